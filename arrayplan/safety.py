@@ -1,0 +1,417 @@
+"""Safety for loud test signals: the caution block and the exposure estimate.
+
+Two parts, both for every command that writes or plays a signal:
+
+* :data:`CAUTION_TEXT` and :func:`print_caution`: the caution block printed
+  (on stderr) whenever a playable signal is written or played, and
+  :data:`CAUTION_NOTE`, its one-line form stored in every signal's sidecar.
+* The exposure estimate: from the speaker's sensitivity (dB SPL at 1 m for
+  a stated drive voltage), the amplifier's voltage at full scale, the
+  signal's level and the listener distances, the sound level at each
+  listener (:func:`estimate_spl_at_listeners`, :func:`estimate_exposure`),
+  the permitted daily exposure after NIOSH and OSHA
+  (:func:`permitted_exposure_niosh`, :func:`permitted_exposure_osha`), and a
+  warning above 85 dBA and a refusal above a cap unless overridden
+  (:func:`check_exposure`).
+
+Assumptions (stated in the printed report too): free field, inverse-square
+spreading from 1 m, a speaker with a flat response at its rated sensitivity,
+no room gain (a reverberant room adds to these figures), and, for several
+speakers playing one signal, their pressures adding in phase (the worst
+case).  The estimate is a guide for planning, not a measurement: check the
+level with a sound level meter and follow local codes and licensed practice.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+from dataclasses import dataclass, field
+from typing import Sequence, TextIO
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = [
+    "CAUTION_TEXT",
+    "CAUTION_NOTE",
+    "print_caution",
+    "P_REF_PA",
+    "NIOSH_CRITERION_DBA",
+    "NIOSH_EXCHANGE_RATE_DB",
+    "OSHA_CRITERION_DBA",
+    "OSHA_EXCHANGE_RATE_DB",
+    "WARN_DBA",
+    "DEFAULT_MAX_DBA",
+    "DEFAULT_MAX_PEAK_DB_SPL",
+    "LEVEL_WINDOW_S",
+    "spl_from_pressure",
+    "pressure_from_spl",
+    "permitted_exposure_niosh",
+    "permitted_exposure_osha",
+    "a_weighting_db",
+    "a_weight_signal",
+    "max_window_rms",
+    "estimate_spl_at_listeners",
+    "ExposureEstimate",
+    "estimate_exposure",
+    "check_exposure",
+    "format_exposure",
+]
+
+CAUTION_TEXT = """\
+CAUTION - loud test signals can harm hearing and loudspeakers.
+  * Hearing: keep people out of the room or give them hearing protection;
+    sweeps and noise at measurement level are loud, and damage adds up over
+    the day.  Above 85 dBA, limit the time (NIOSH: 8 h at 85 dBA, half the
+    time for every 3 dB more).
+  * Tweeters and small drivers: sweeps and noise carry sustained
+    high-frequency energy that music rarely has; they can burn a tweeter
+    voice coil.  Use the high-pass option for small drivers and keep the
+    level modest at the top of the band.
+  * Start quiet and raise slowly: set the amplifier gain low, play, and step
+    up a few dB at a time while listening for distortion, rattles or strain.
+  * Watch the clip indicators of the interface, the converters and the
+    amplifier; a clipped signal is a wrong measurement and a danger to the
+    drivers.  Stop at once if anything sounds wrong.
+  * The level estimate arrayplan prints is a planning guide (free field,
+    rated sensitivity); check with a sound level meter.  Defer to local
+    codes, workplace rules and licensed practice."""
+
+#: The caution in one line, stored in every signal file's sidecar.
+CAUTION_NOTE = ("Loud test signal: can harm hearing and loudspeakers (tweeters especially). "
+                "Start quiet, raise slowly, watch clip indicators, protect listeners; "
+                "defer to local codes and licensed practice.")
+
+
+def print_caution(stream: TextIO | None = None) -> None:
+    """Print :data:`CAUTION_TEXT` to `stream` (default: standard error)."""
+    stream = sys.stderr if stream is None else stream
+    print(CAUTION_TEXT, file=stream)
+    stream.flush()
+
+
+#: Reference sound pressure in air, Pa (20 µPa; 1 Pa = 93.98 dB SPL).
+P_REF_PA = 20e-6
+
+NIOSH_CRITERION_DBA = 85.0   # NIOSH Publication 98-126 (1998): 85 dBA for 8 h
+NIOSH_EXCHANGE_RATE_DB = 3.0
+OSHA_CRITERION_DBA = 90.0    # OSHA 29 CFR 1910.95, Table G-16: 90 dBA for 8 h
+OSHA_EXCHANGE_RATE_DB = 5.0
+_EIGHT_HOURS_S = 8 * 3600.0
+
+#: Level (dBA) above which a warning is raised (the NIOSH recommended limit).
+WARN_DBA = 85.0
+#: Level (dBA) above which a signal is refused unless explicitly allowed
+#: (NIOSH permits 15 min a day at 100 dBA).
+DEFAULT_MAX_DBA = 100.0
+#: Peak level (dB SPL) above which a signal is refused unless allowed:
+#: 200 Pa, the limit value of EU Directive 2003/10/EC Art. 3 (140 dB(C)).
+DEFAULT_MAX_PEAK_DB_SPL = 140.0
+#: Window of the running RMS level, s (a sound level meter's "fast" time
+#: weighting is 125 ms, IEC 61672-1; value from memory).
+LEVEL_WINDOW_S = 0.125
+
+
+def spl_from_pressure(p_pa: float | np.ndarray) -> float | np.ndarray:
+    """Sound pressure level in dB re 20 µPa of an RMS (or peak) pressure in Pa."""
+    with np.errstate(divide="ignore"):
+        return 20.0 * np.log10(np.asarray(p_pa, dtype=float) / P_REF_PA)
+
+
+def pressure_from_spl(spl_db: float | np.ndarray) -> float | np.ndarray:
+    """Pressure in Pa of a sound pressure level in dB re 20 µPa."""
+    return P_REF_PA * 10.0 ** (np.asarray(spl_db, dtype=float) / 20.0)
+
+
+def _permitted(dba: float, criterion: float, exchange: float) -> float:
+    if not math.isfinite(dba):
+        if dba == -math.inf:
+            return math.inf
+        raise InputError(f"sound level must be a finite number of dBA, got {dba!r}")
+    return _EIGHT_HOURS_S / 2.0 ** ((dba - criterion) / exchange)
+
+
+def permitted_exposure_niosh(dba: float) -> float:
+    """Permitted daily exposure (s) at `dba` after NIOSH: 8 h at 85 dBA, 3 dB exchange rate.
+
+    ``T = 8 h / 2^((L - 85) / 3)`` (NIOSH Publication 98-126, 1998).  Levels
+    below 85 dBA give more than 8 h.
+    """
+    return _permitted(float(dba), NIOSH_CRITERION_DBA, NIOSH_EXCHANGE_RATE_DB)
+
+
+def permitted_exposure_osha(dba: float) -> float:
+    """Permitted daily exposure (s) at `dba` after OSHA: 8 h at 90 dBA, 5 dB exchange rate.
+
+    ``T = 8 h / 2^((L - 90) / 5)`` (OSHA 29 CFR 1910.95, Table G-16 and its
+    formula).  Levels below 90 dBA give more than 8 h.
+    """
+    return _permitted(float(dba), OSHA_CRITERION_DBA, OSHA_EXCHANGE_RATE_DB)
+
+
+def a_weighting_db(freq_hz: float | np.ndarray) -> np.ndarray:
+    """A-weighting in dB at `freq_hz` (IEC 61672-1 analogue formula, 0 dB at 1 kHz).
+
+    Returns -inf at 0 Hz.
+    """
+    f2 = np.asarray(freq_hz, dtype=float) ** 2
+    ra = (12194.0 ** 2 * f2 ** 2) / ((f2 + 20.6 ** 2) * np.sqrt((f2 + 107.7 ** 2) * (f2 + 737.9 ** 2))
+                                      * (f2 + 12194.0 ** 2))
+    with np.errstate(divide="ignore"):
+        return 20.0 * np.log10(ra) + 2.00
+
+
+def a_weight_signal(x: np.ndarray, sample_rate_hz: float) -> np.ndarray:
+    """A-weight each channel of `x` by zero-phase weighting of its spectrum.
+
+    Parameters
+    ----------
+    x : ndarray, shape (n_samples,) or (n_samples, n_channels)
+    sample_rate_hz : float
+
+    Returns
+    -------
+    ndarray, same shape
+    """
+    x = np.asarray(x, dtype=float)
+    n = x.shape[0]
+    nfft = 1 << max(1, int(math.ceil(math.log2(max(2, 2 * n)))))
+    spec = np.fft.rfft(x, nfft, axis=0)
+    gain = 10.0 ** (a_weighting_db(np.fft.rfftfreq(nfft, 1.0 / sample_rate_hz)) / 20.0)
+    shape = (-1,) + (1,) * (x.ndim - 1)
+    return np.fft.irfft(spec * gain.reshape(shape), nfft, axis=0)[:n]
+
+
+def max_window_rms(x: np.ndarray, sample_rate_hz: float, window_s: float = LEVEL_WINDOW_S) -> np.ndarray:
+    """Highest RMS over any window of `window_s` seconds, per channel (full scale = 1).
+
+    Shape (n_samples, n_channels) -> (n_channels,).  A signal shorter than the
+    window is measured over its whole length.
+    """
+    x = np.asarray(x, dtype=float)
+    if x.ndim == 1:
+        x = x[:, None]
+    n = x.shape[0]
+    w = max(1, min(n, int(round(window_s * sample_rate_hz))))
+    c = np.concatenate([np.zeros((1, x.shape[1])), np.cumsum(x * x, axis=0)])
+    energy = c[w:] - c[:-w]
+    return np.sqrt(np.maximum(energy.max(axis=0), 0.0) / w)
+
+
+def _check_positive(value: float, name: str) -> float:
+    value = float(value)
+    if not (math.isfinite(value) and value > 0):
+        raise InputError(f"must be a positive number, got {value!r}", field=name)
+    return value
+
+
+def _distances(distances_m: Sequence[float] | np.ndarray, n_spk: int) -> np.ndarray:
+    d = np.asarray(distances_m, dtype=float)
+    if d.ndim == 1:
+        d = np.repeat(d[:, None], n_spk, axis=1)
+    if d.ndim != 2 or d.shape[1] != n_spk or d.shape[0] < 1:
+        raise InputError(f"listener distances must have shape (n_listeners,) or (n_listeners, {n_spk}), "
+                         f"got {np.asarray(distances_m).shape}", field="--listener-distance-m")
+    if not np.all(np.isfinite(d)) or np.any(d <= 0):
+        raise InputError("listener distances must be positive and finite (metres)", field="--listener-distance-m")
+    return d
+
+
+def _combine(levels_db: np.ndarray, how: str) -> np.ndarray:
+    """Combine per-speaker levels (n_listeners, n_spk) into one per listener."""
+    if how == "coherent":
+        return 20.0 * np.log10(np.sum(10.0 ** (levels_db / 20.0), axis=1))
+    if how == "incoherent":
+        return 10.0 * np.log10(np.sum(10.0 ** (levels_db / 10.0), axis=1))
+    if how == "one_at_a_time":
+        return np.max(levels_db, axis=1)
+    raise ValueError(f"combine must be 'coherent', 'incoherent' or 'one_at_a_time', got {how!r}")
+
+
+def estimate_spl_at_listeners(*, sensitivity_db_spl: float, amp_vrms_full_scale: float,
+                              channel_level_dbfs: Sequence[float] | np.ndarray,
+                              distances_m: Sequence[float] | np.ndarray,
+                              sensitivity_vrms: float = 2.83, combine: str = "coherent") -> np.ndarray:
+    """Sound level (dB re 20 µPa) at each listener from the speakers' drive levels.
+
+    Parameters
+    ----------
+    sensitivity_db_spl : float
+        Speaker sensitivity, dB SPL at 1 m for `sensitivity_vrms` volts RMS.
+    amp_vrms_full_scale : float
+        Volts RMS at the speaker terminals for a full-scale (0 dBFS peak) sine.
+        A sample of value 1 then gives sqrt(2) times this in volts.
+    channel_level_dbfs : array_like, shape (n_spk,)
+        Level (RMS or peak, dBFS) of the signal each speaker plays; an RMS
+        level gives an RMS SPL, a peak level a peak SPL.
+    distances_m : array_like, shape (n_listeners,) or (n_listeners, n_spk)
+        Listener-to-speaker distances, m (one per listener applies to every speaker).
+    sensitivity_vrms : float
+        Drive voltage of the sensitivity rating, V RMS (2.83 V: 1 W into 8 ohm).
+    combine : {"coherent", "incoherent", "one_at_a_time"}
+        How several speakers add: in phase (worst case, for one signal
+        through several speakers), in power, or one at a time (the largest).
+
+    Returns
+    -------
+    ndarray, shape (n_listeners,)
+        dB SPL: free field, inverse square from 1 m, flat speaker response.
+    """
+    _check_positive(amp_vrms_full_scale, "--amp-vrms")
+    _check_positive(sensitivity_vrms, "--sensitivity-vrms")
+    if not math.isfinite(float(sensitivity_db_spl)):
+        raise InputError(f"speaker sensitivity must be a finite dB SPL, got {sensitivity_db_spl!r}",
+                         field="--sensitivity-db-spl")
+    lev = np.asarray(channel_level_dbfs, dtype=float).reshape(-1)
+    d = _distances(distances_m, lev.size)
+    volts = math.sqrt(2.0) * amp_vrms_full_scale * 10.0 ** (lev / 20.0)
+    with np.errstate(divide="ignore"):
+        at_1m = sensitivity_db_spl + 20.0 * np.log10(volts / sensitivity_vrms)
+    return _combine(at_1m[None, :] - 20.0 * np.log10(d), combine)
+
+
+@dataclass
+class ExposureEstimate:
+    """Estimated sound levels of a signal at the listeners and the permitted exposure.
+
+    Attributes
+    ----------
+    distances_m : ndarray, shape (n_listeners,)  nearest distance of each listener
+    spl_db : ndarray, shape (n_listeners,)  highest 125 ms RMS level, unweighted, dB SPL
+    dba : ndarray, shape (n_listeners,)  the same A-weighted, dBA
+    peak_spl_db : ndarray, shape (n_listeners,)  peak level, dB SPL
+    niosh_s, osha_s : ndarray, shape (n_listeners,)  permitted daily exposure at `dba`, s
+    play_s : float  duration of the signal's active part, s
+    combine : str  how the speakers were summed
+    """
+
+    distances_m: np.ndarray
+    spl_db: np.ndarray
+    dba: np.ndarray
+    peak_spl_db: np.ndarray
+    niosh_s: np.ndarray
+    osha_s: np.ndarray
+    play_s: float
+    combine: str
+    assumptions: str = ("free field, inverse square from 1 m, flat speaker at rated sensitivity, "
+                        "no room gain, level = highest 125 ms RMS")
+
+    def to_json(self) -> dict:
+        def fin(a):
+            return [None if not math.isfinite(v) else round(float(v), 3) for v in np.asarray(a).ravel()]
+        return {
+            "listener_distances_m": fin(self.distances_m),
+            "spl_db": fin(self.spl_db),
+            "dba": fin(self.dba),
+            "peak_spl_db": fin(self.peak_spl_db),
+            "niosh_permitted_s": fin(self.niosh_s),
+            "osha_permitted_s": fin(self.osha_s),
+            "play_s": round(self.play_s, 6),
+            "speakers_combined": self.combine,
+            "assumptions": self.assumptions,
+        }
+
+
+def estimate_exposure(signal: np.ndarray, sample_rate_hz: float, *, sensitivity_db_spl: float,
+                      amp_vrms_full_scale: float, distances_m: Sequence[float] | np.ndarray,
+                      sensitivity_vrms: float = 2.83, combine: str = "coherent") -> ExposureEstimate:
+    """Estimate the levels a signal file produces at the listeners.
+
+    Parameters
+    ----------
+    signal : ndarray, shape (n_samples,) or (n_samples, n_spk)
+        The file, one channel per speaker, full scale = 1.
+    sample_rate_hz : float
+    sensitivity_db_spl, amp_vrms_full_scale, distances_m, sensitivity_vrms, combine
+        As for :func:`estimate_spl_at_listeners`.
+
+    Returns
+    -------
+    ExposureEstimate
+        The level of each channel is its highest RMS over 125 ms (so silence
+        padding does not dilute it); the A-weighted level weights the
+        signal's own spectrum, as a flat speaker would radiate it.
+    """
+    x = np.asarray(signal, dtype=float)
+    if x.ndim == 1:
+        x = x[:, None]
+    with np.errstate(divide="ignore"):
+        rms_db = 20.0 * np.log10(max_window_rms(x, sample_rate_hz))
+        a_db = 20.0 * np.log10(max_window_rms(a_weight_signal(x, sample_rate_hz), sample_rate_hz))
+        peak_db = 20.0 * np.log10(np.max(np.abs(x), axis=0))
+    kw = dict(sensitivity_db_spl=sensitivity_db_spl, amp_vrms_full_scale=amp_vrms_full_scale,
+              distances_m=distances_m, sensitivity_vrms=sensitivity_vrms, combine=combine)
+    spl = estimate_spl_at_listeners(channel_level_dbfs=rms_db, **kw)
+    dba = estimate_spl_at_listeners(channel_level_dbfs=a_db, **kw)
+    # Pressure is proportional to voltage, so the peak sample gives the peak pressure (coherent sum).
+    peak = estimate_spl_at_listeners(channel_level_dbfs=peak_db, **{**kw, "combine": "coherent"
+                                                                     if combine != "one_at_a_time" else combine})
+    active = np.flatnonzero(np.any(x != 0, axis=1))
+    play_s = (active[-1] - active[0] + 1) / sample_rate_hz if active.size else 0.0
+    d = _distances(distances_m, x.shape[1]).min(axis=1)
+    return ExposureEstimate(distances_m=d, spl_db=spl, dba=dba, peak_spl_db=peak,
+                            niosh_s=np.array([permitted_exposure_niosh(v) for v in dba]),
+                            osha_s=np.array([permitted_exposure_osha(v) for v in dba]),
+                            play_s=float(play_s), combine=combine)
+
+
+def check_exposure(estimate: ExposureEstimate, *, max_dba: float = DEFAULT_MAX_DBA,
+                   max_peak_db_spl: float = DEFAULT_MAX_PEAK_DB_SPL, allow_loud: bool = False,
+                   source: str | None = None) -> list[str]:
+    """Warn above 85 dBA; refuse above `max_dba` or `max_peak_db_spl` unless `allow_loud`.
+
+    Returns
+    -------
+    list of str
+        One-line warnings (empty when every listener is at or below 85 dBA).
+
+    Raises
+    ------
+    InputError
+        When a listener's estimated level exceeds a cap and `allow_loud` is False.
+    """
+    warnings = []
+    loudest = int(np.argmax(estimate.dba))
+    top, dist = float(estimate.dba[loudest]), float(estimate.distances_m[loudest])
+    peak = float(np.max(estimate.peak_spl_db))
+    if not allow_loud:
+        if top > max_dba:
+            raise InputError(f"estimated {top:.1f} dBA at the listener {dist:g} m away exceeds the cap of "
+                             f"{max_dba:g} dBA", source=source, field="--listener-distance-m",
+                             fix="lower the level or the amplifier gain, move listeners away, "
+                                 "or pass --allow-loud with hearing protection in place")
+        if peak > max_peak_db_spl:
+            raise InputError(f"estimated peak {peak:.1f} dB SPL at a listener exceeds the cap of "
+                             f"{max_peak_db_spl:g} dB SPL", source=source, field="--listener-distance-m",
+                             fix="lower the level, or pass --allow-loud with hearing protection in place")
+    if top > WARN_DBA:
+        warnings.append(f"estimated {top:.1f} dBA at the listener {dist:g} m away is above {WARN_DBA:g} dBA: "
+                        f"NIOSH permits {_duration(permitted_exposure_niosh(top))} a day, OSHA "
+                        f"{_duration(permitted_exposure_osha(top))}; use hearing protection")
+    if allow_loud and (top > max_dba or peak > max_peak_db_spl):
+        warnings.append(f"level above the cap ({top:.1f} dBA, peak {peak:.1f} dB SPL) allowed by --allow-loud")
+    return warnings
+
+
+def _duration(seconds: float) -> str:
+    if seconds >= _EIGHT_HOURS_S:
+        return "8 h or more"
+    if seconds >= 3600:
+        return f"{seconds / 3600:.1f} h"
+    if seconds >= 60:
+        return f"{seconds / 60:.1f} min"
+    return f"{seconds:.0f} s"
+
+
+def format_exposure(estimate: ExposureEstimate) -> str:
+    """A short human-readable report of an exposure estimate (several lines)."""
+    lines = [f"Estimated level at the listeners ({estimate.assumptions}; speakers {estimate.combine.replace('_', ' ')}):"]
+    for i in range(estimate.dba.size):
+        dose = estimate.play_s / estimate.niosh_s[i] if estimate.niosh_s[i] > 0 else math.inf
+        lines.append(f"  {estimate.distances_m[i]:g} m: {estimate.spl_db[i]:.1f} dB SPL, {estimate.dba[i]:.1f} dBA, "
+                     f"peak {estimate.peak_spl_db[i]:.1f} dB SPL; permitted a day: NIOSH "
+                     f"{_duration(estimate.niosh_s[i])}, OSHA {_duration(estimate.osha_s[i])}; one play "
+                     f"({estimate.play_s:.2f} s) uses {100 * dose:.3g} % of the NIOSH daily dose")
+    return "\n".join(lines)

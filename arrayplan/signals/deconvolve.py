@@ -1,0 +1,253 @@
+"""Recordings of a sweep -> impulse responses, harmonic distortion products, peak-to-noise.
+
+The recording of each microphone is convolved with the sweep's normalised
+inverse filter (:func:`deconvolve`).  In the result the linear impulse
+response starts at the *linear lag* (``n_pad_before + n_sweep - 1`` for a
+recording that starts with the played file's first sample) and, for an
+exponential sweep, the n-th harmonic distortion product sits
+``T ln(n) / ln(f2/f1)`` seconds earlier (A. Farina, 108th AES Convention,
+Paris, 2000), so each is cut out by a window of its own.
+
+All functions here are pure: arrays in, arrays out.  Time signals are
+``(n_samples, n_channels)``; one channel per microphone.  Impulse responses
+are in units of recorded full scale per played full scale.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Mapping, Sequence
+
+import numpy as np
+
+__all__ = [
+    "CLIP_THRESHOLD",
+    "DEFAULT_MIN_PEAK_TO_NOISE_DB",
+    "Deconvolution",
+    "deconvolve",
+    "harmonic_windows",
+    "harmonic_levels_db",
+    "total_harmonic_level_db",
+    "peak_to_noise_db",
+    "clipped_sample_counts",
+    "split_schedule",
+]
+
+#: A recorded sample whose magnitude reaches this (within 0.01 dB of full
+#: scale) is counted as clipped (common practice, no source).
+CLIP_THRESHOLD = 0.999
+
+#: Peak-to-noise ratio (dB) below which a warning is raised.  ISO 3382-1
+#: asks for at least 35 dB of decay range above the noise for T20 and 45 dB
+#: for T30 (value from memory); 40 dB sits between.
+DEFAULT_MIN_PEAK_TO_NOISE_DB = 40.0
+
+
+@dataclass
+class Deconvolution:
+    """Impulse responses cut from a deconvolved recording.
+
+    Attributes
+    ----------
+    linear : ndarray, shape (ir_length, n_channels)
+        Linear impulse response; index 0 is zero lag (the played file's first
+        sample reaching the recorder's first sample).
+    harmonics : dict of int -> ndarray, shape (n_window, n_channels)
+        Harmonic distortion products by order (2, 3, ...).
+    harmonic_starts : dict of int -> int
+        Index in `full` where each harmonic window starts.
+    full : ndarray, shape (n_recording + n_inverse - 1, n_channels)
+        The whole deconvolved signal.
+    linear_lag : int
+        Index in `full` of the linear response's zero lag.
+    """
+
+    linear: np.ndarray
+    harmonics: dict[int, np.ndarray]
+    harmonic_starts: dict[int, int]
+    full: np.ndarray
+    linear_lag: int
+    notes: list[str] = field(default_factory=list)
+
+
+def _as_2d(x: np.ndarray, name: str) -> np.ndarray:
+    x = np.asarray(x, dtype=float)
+    if x.ndim == 1:
+        x = x[:, None]
+    if x.ndim != 2:
+        raise ValueError(f"{name} must have shape (n_samples, n_channels), got {x.shape}")
+    return x
+
+
+def _cut(full: np.ndarray, start: int, length: int) -> np.ndarray:
+    """full[start:start+length] with zeros where the window leaves the array."""
+    out = np.zeros((length, full.shape[1]))
+    lo, hi = max(start, 0), min(start + length, full.shape[0])
+    if hi > lo:
+        out[lo - start:hi - start] = full[lo:hi]
+    return out
+
+
+def harmonic_windows(linear_lag: int, harmonic_offsets: Mapping[int, float], ir_length: int,
+                     pre_samples: int = 0) -> dict[int, tuple[int, int]]:
+    """Window (start, length) in the deconvolved signal of each harmonic order.
+
+    Parameters
+    ----------
+    linear_lag : int
+        Index of the linear response's zero lag.
+    harmonic_offsets : mapping of int -> float
+        Offset (samples) of each order before the linear response.
+    ir_length : int
+        Longest window, samples.
+    pre_samples : int
+        Samples kept before each harmonic's nominal start.
+
+    Returns
+    -------
+    dict of int -> (int, int)
+        Order n's window starts `pre_samples` before ``linear_lag - round(offset_n)``
+        and is no longer than the gap to order n-1 (so windows never overlap).
+    """
+    out: dict[int, tuple[int, int]] = {}
+    prev = 0
+    for order in sorted(harmonic_offsets):
+        off = int(round(harmonic_offsets[order]))
+        gap = off - prev
+        length = min(ir_length + pre_samples, gap)
+        if length > 0:
+            out[order] = (linear_lag - off - pre_samples, length)
+        prev = off
+    return out
+
+
+def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, ir_length: int,
+               harmonic_offsets: Mapping[int, float] | None = None, pre_samples: int = 0) -> Deconvolution:
+    """Convolve a recording with a sweep's inverse filter and cut out the responses.
+
+    Parameters
+    ----------
+    recording : ndarray, shape (n_samples,) or (n_samples, n_channels)
+        What the microphones recorded while the sweep file played, starting
+        at the file's first sample; full scale = 1.
+    inverse : ndarray, shape (n_inverse,)
+        The sweep's normalised inverse filter.
+    linear_lag : int
+        Index of zero lag in the full deconvolution (``n_pad_before + n_sweep - 1``).
+    ir_length : int
+        Length of the linear impulse response, samples.
+    harmonic_offsets : mapping of int -> float, optional
+        Harmonic order -> offset in samples before the linear response
+        (:meth:`arrayplan.signals.sweeps.SweepSignal.harmonic_offsets_samples`).
+    pre_samples : int
+        Samples kept before each harmonic's nominal start.
+
+    Returns
+    -------
+    Deconvolution
+    """
+    from scipy.signal import fftconvolve
+
+    rec = _as_2d(recording, "recording")
+    inv = np.asarray(inverse, dtype=float).reshape(-1)
+    if ir_length < 1:
+        raise ValueError(f"ir_length must be >= 1, got {ir_length}")
+    full = fftconvolve(rec, inv[:, None], axes=0)
+    linear = _cut(full, linear_lag, ir_length)
+    windows = harmonic_windows(linear_lag, harmonic_offsets or {}, ir_length, pre_samples)
+    harmonics = {n: _cut(full, start, length) for n, (start, length) in windows.items()}
+    return Deconvolution(linear=linear, harmonics=harmonics,
+                         harmonic_starts={n: w[0] for n, w in windows.items()},
+                         full=full, linear_lag=int(linear_lag))
+
+
+def harmonic_levels_db(linear: np.ndarray, harmonics: Mapping[int, np.ndarray]) -> dict[int, np.ndarray]:
+    """Energy of each harmonic product relative to the linear response, per channel, dB.
+
+    Parameters
+    ----------
+    linear : ndarray, shape (n, n_channels)
+    harmonics : mapping of int -> ndarray, shape (n_k, n_channels)
+
+    Returns
+    -------
+    dict of int -> ndarray, shape (n_channels,)
+        ``10 log10(sum h_k^2 / sum h_1^2)`` (-inf where a product is zero).
+    """
+    lin = _as_2d(linear, "linear")
+    e1 = np.sum(lin * lin, axis=0)
+    out = {}
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for n, h in sorted(harmonics.items()):
+            h = _as_2d(h, "harmonic")
+            out[n] = 10.0 * np.log10(np.sum(h * h, axis=0) / e1)
+    return out
+
+
+def total_harmonic_level_db(levels_db: Mapping[int, np.ndarray]) -> np.ndarray:
+    """Sum of the harmonic energies relative to the linear one, per channel, dB (broadband THD)."""
+    if not levels_db:
+        return np.array([])
+    total = sum(10.0 ** (np.asarray(v) / 10.0) for v in levels_db.values())
+    with np.errstate(divide="ignore"):
+        return 10.0 * np.log10(total)
+
+
+def peak_to_noise_db(ir: np.ndarray, noise_fraction: float = 0.1) -> np.ndarray:
+    """Peak-to-noise ratio of each channel of an impulse response, dB.
+
+    The noise is the RMS of the last `noise_fraction` of the response (at
+    least 16 samples); the peak is ``max |h|``.  If the room has not decayed
+    by then the ratio comes out low: a conservative figure.
+
+    Parameters
+    ----------
+    ir : ndarray, shape (n_samples, n_channels)
+    noise_fraction : float
+        Fraction of the response, at its end, taken as noise (0 < f < 1).
+
+    Returns
+    -------
+    ndarray, shape (n_channels,)
+        ``20 log10(peak / noise_rms)``; inf for a noiseless tail.
+    """
+    h = _as_2d(ir, "ir")
+    if not 0 < noise_fraction < 1:
+        raise ValueError(f"noise_fraction must be in (0, 1), got {noise_fraction}")
+    n_tail = min(h.shape[0], max(16, int(round(noise_fraction * h.shape[0]))))
+    tail = h[-n_tail:]
+    noise = np.sqrt(np.mean(tail * tail, axis=0))
+    peak = np.max(np.abs(h), axis=0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(noise > 0, 20.0 * np.log10(peak / np.where(noise > 0, noise, 1.0)), math.inf)
+
+
+def clipped_sample_counts(recording: np.ndarray, threshold: float = CLIP_THRESHOLD) -> np.ndarray:
+    """Number of samples per channel whose magnitude reaches `threshold` (full scale = 1).
+
+    Shape (n_samples, n_channels) -> (n_channels,), int.
+    """
+    rec = _as_2d(recording, "recording")
+    return np.sum(np.abs(rec) >= threshold, axis=0).astype(int)
+
+
+def split_schedule(recording: np.ndarray, segment_starts: Sequence[int], segment_length: int) -> list[np.ndarray]:
+    """Cut one long recording of a per-speaker schedule into one recording per speaker.
+
+    Parameters
+    ----------
+    recording : ndarray, shape (n_samples, n_channels)
+    segment_starts : sequence of int
+        First sample of each speaker's segment (its sweep start minus the
+        silence before it).
+    segment_length : int
+        Samples per segment (the single-sweep file length).
+
+    Returns
+    -------
+    list of ndarray, each shape (segment_length, n_channels)
+        Zero-padded where the recording ends early.
+    """
+    rec = _as_2d(recording, "recording")
+    return [_cut(rec, int(s), int(segment_length)) for s in segment_starts]

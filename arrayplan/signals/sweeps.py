@@ -1,0 +1,436 @@
+"""Sine sweeps and their inverse filters (exponential after A. Farina, 2000; linear).
+
+The exponential sine sweep from ``f1`` to ``f2`` over ``T`` seconds is
+
+    x(t) = sin(2 pi f1 L (exp(t / L) - 1)),   L = T / ln(f2 / f1),
+
+and its inverse filter is the time-reversed sweep times ``exp(-t / L)``
+(which undoes the sweep's pink, -3 dB per octave, spectrum), normalised so
+that the played sweep convolved with the inverse peaks at exactly 1.  The
+response of a system to the sweep, convolved with the inverse, is its
+impulse response at lag ``n_sweep - 1`` after the sweep's first sample; the
+n-th harmonic distortion product appears ``T ln(n) / ln(f2 / f1)`` seconds
+earlier (A. Farina, "Simultaneous measurement of impulse response and
+distortion with a swept-sine technique", 108th AES Convention, Paris, 2000).
+
+The pure functions (:func:`exponential_sweep`, :func:`linear_sweep`,
+:func:`exponential_inverse_filter`, :func:`linear_inverse_filter`,
+:func:`harmonic_offset_s`) take and return plain arrays; :func:`make_sweep`
+adds the conditioning, level, padding and normalisation a playable file
+needs and returns a :class:`SweepSignal`, whose :meth:`SweepSignal.sidecar`
+holds everything :mod:`arrayplan.signals.deconvolve` needs.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ..errors import InputError
+from .levels import (DEFAULT_PEAK_CAP_DBFS, check_peak, condition, peak_dbfs, raised_cosine_fade,
+                     rms_dbfs, scale_to_level)
+
+__all__ = [
+    "SWEEP_KINDS",
+    "MIN_CYCLES_LOWEST_OCTAVE",
+    "MIN_TIME_BANDWIDTH",
+    "exponential_sweep",
+    "linear_sweep",
+    "exponential_inverse_filter",
+    "linear_inverse_filter",
+    "normalise_inverse",
+    "harmonic_offset_s",
+    "check_sweep_band",
+    "SweepSettings",
+    "SweepSignal",
+    "make_sweep",
+    "SweepRecord",
+]
+
+SWEEP_KINDS = ("exponential", "linear")
+
+#: An exponential sweep must hold at least this many periods of f1 while it
+#: climbs its lowest octave (f1 T / ln(f2/f1) periods); shorter sweeps are
+#: refused as too short for the band (common practice, no source).
+MIN_CYCLES_LOWEST_OCTAVE = 2.0
+
+#: A linear sweep must have a time-bandwidth product T (f2 - f1) of at least
+#: this (common practice for pulse compression, no source).
+MIN_TIME_BANDWIDTH = 100.0
+
+
+def _times(duration_s: float, sample_rate_hz: float) -> np.ndarray:
+    n = int(round(duration_s * sample_rate_hz))
+    return np.arange(n) / sample_rate_hz
+
+
+def exponential_sweep(f1_hz: float, f2_hz: float, duration_s: float, sample_rate_hz: float) -> np.ndarray:
+    """Unit-amplitude exponential sine sweep, no fades.
+
+    Parameters
+    ----------
+    f1_hz, f2_hz : float
+        Start and end frequencies in Hz, 0 < f1 < f2 < sample_rate_hz / 2.
+    duration_s : float
+        Sweep duration T in seconds.
+    sample_rate_hz : float
+        Sample rate in Hz.
+
+    Returns
+    -------
+    ndarray, shape (round(T * fs),)
+        ``sin(2 pi f1 L (exp(t/L) - 1))`` with ``L = T / ln(f2/f1)``, t = n / fs.
+    """
+    t = _times(duration_s, sample_rate_hz)
+    rate = duration_s / math.log(f2_hz / f1_hz)
+    return np.sin(2.0 * math.pi * f1_hz * rate * np.expm1(t / rate))
+
+
+def linear_sweep(f1_hz: float, f2_hz: float, duration_s: float, sample_rate_hz: float) -> np.ndarray:
+    """Unit-amplitude linear sine sweep ``sin(2 pi (f1 t + (f2 - f1) t^2 / (2 T)))``, no fades.
+
+    Shape (round(T * fs),); arguments as for :func:`exponential_sweep`.
+    """
+    t = _times(duration_s, sample_rate_hz)
+    return np.sin(2.0 * math.pi * (f1_hz * t + (f2_hz - f1_hz) * t * t / (2.0 * duration_s)))
+
+
+def exponential_inverse_filter(sweep: np.ndarray, f1_hz: float, f2_hz: float, duration_s: float,
+                               sample_rate_hz: float) -> np.ndarray:
+    """Unnormalised inverse of an exponential sweep: reversed sweep times ``exp(-t / L)``.
+
+    Parameters
+    ----------
+    sweep : ndarray, shape (n_sweep,)
+        The sweep (faded or not), one channel.
+    f1_hz, f2_hz, duration_s, sample_rate_hz : float
+        The sweep's parameters (Hz, s).
+
+    Returns
+    -------
+    ndarray, shape (n_sweep,)
+        Scale it so that ``max |sweep * inverse| = 1`` (as :func:`make_sweep` does).
+    """
+    sweep = np.asarray(sweep, dtype=float).reshape(-1)
+    rate = duration_s / math.log(f2_hz / f1_hz)
+    t = np.arange(sweep.size) / sample_rate_hz
+    return sweep[::-1] * np.exp(-t / rate)
+
+
+def linear_inverse_filter(sweep: np.ndarray) -> np.ndarray:
+    """Unnormalised inverse (matched filter) of a linear sweep: the sweep reversed in time.
+
+    A linear sweep's spectrum is flat over its band, so its time reversal is
+    its inverse there.  Shape (n_sweep,) -> (n_sweep,).
+    """
+    return np.asarray(sweep, dtype=float).reshape(-1)[::-1].copy()
+
+
+def harmonic_offset_s(order: int, f1_hz: float, f2_hz: float, duration_s: float) -> float:
+    """Time (s) by which the `order`-th harmonic's impulse response precedes the linear one.
+
+    ``T ln(order) / ln(f2 / f1)`` for an exponential sweep (Farina 2000).
+    """
+    if order < 1:
+        raise ValueError(f"harmonic order must be >= 1, got {order}")
+    return duration_s * math.log(order) / math.log(f2_hz / f1_hz)
+
+
+def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, sample_rate_hz: float,
+                     *, fade_in_s: float | None = None, fade_out_s: float | None = None,
+                     source: str | None = None) -> None:
+    """Refuse sweep limits outside (0, fs/2) and durations too short for the band.
+
+    Raises
+    ------
+    InputError
+        One line naming the option and the bad value.
+    """
+    if kind not in SWEEP_KINDS:
+        raise InputError(f"sweep kind must be one of {', '.join(SWEEP_KINDS)}, got {kind!r}", source=source)
+    if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
+        raise InputError(f"sample rate must be a positive number of Hz, got {sample_rate_hz!r}",
+                         source=source, field="--rate")
+    nyq = sample_rate_hz / 2.0
+    for name, f in (("--f1", f1_hz), ("--f2", f2_hz)):
+        if not (math.isfinite(f) and 0 < f < nyq):
+            raise InputError(f"sweep limit {f:g} Hz is outside (0, {nyq:g}) Hz (half the sample rate)",
+                             source=source, field=name, fix="choose limits between 0 Hz and fs/2")
+    if not f1_hz < f2_hz:
+        raise InputError(f"sweep must rise: f1 = {f1_hz:g} Hz is not below f2 = {f2_hz:g} Hz",
+                         source=source, field="--f1", fix="swap the limits")
+    if not (math.isfinite(duration_s) and duration_s > 0):
+        raise InputError(f"sweep duration must be positive, got {duration_s!r} s", source=source,
+                         field="--duration-s")
+    if kind == "exponential":
+        rate = duration_s / math.log(f2_hz / f1_hz)
+        cycles = f1_hz * rate
+        if cycles < MIN_CYCLES_LOWEST_OCTAVE:
+            need = MIN_CYCLES_LOWEST_OCTAVE * math.log(f2_hz / f1_hz) / f1_hz
+            raise InputError(f"a {duration_s:g} s sweep is too short for {f1_hz:g}-{f2_hz:g} Hz: it holds "
+                             f"{cycles:.2f} periods of f1 in its lowest octave, at least "
+                             f"{MIN_CYCLES_LOWEST_OCTAVE:g} are needed", source=source, field="--duration-s",
+                             fix=f"use --duration-s {math.ceil(need * 100) / 100:g} or more, or raise --f1")
+        octave_s = rate * math.log(2.0)
+        for name, fade in (("--fade-in-s", fade_in_s), ("--fade-out-s", fade_out_s)):
+            if fade is not None and fade > octave_s / 2:
+                raise InputError(f"fade of {fade:g} s is longer than half the time the sweep spends in an "
+                                 f"octave ({octave_s:.3g} s) and would cut into the band", source=source,
+                                 field=name, fix="shorten the fade or lengthen the sweep")
+    else:
+        tbw = duration_s * (f2_hz - f1_hz)
+        if tbw < MIN_TIME_BANDWIDTH:
+            raise InputError(f"a {duration_s:g} s linear sweep over {f2_hz - f1_hz:g} Hz has a time-bandwidth "
+                             f"product of {tbw:.3g}, below {MIN_TIME_BANDWIDTH:g}", source=source,
+                             field="--duration-s", fix="lengthen the sweep or widen the band")
+        for name, fade in (("--fade-in-s", fade_in_s), ("--fade-out-s", fade_out_s)):
+            if fade is not None and fade > duration_s / 4:
+                raise InputError(f"fade of {fade:g} s is longer than a quarter of the sweep", source=source,
+                                 field=name, fix="shorten the fade")
+
+
+@dataclass(frozen=True)
+class SweepSettings:
+    """Everything that defines a playable sweep.
+
+    Parameters
+    ----------
+    kind : {"exponential", "linear"}
+    f1_hz, f2_hz : float
+        Start and end frequencies, Hz.
+    duration_s : float
+        Sweep duration, s (padding excluded).
+    sample_rate_hz : float
+        Sample rate, Hz.
+    fade_in_s, fade_out_s : float
+        Raised-cosine fades on the sweep, s (> 0).
+    pad_before_s, pad_after_s : float
+        Silence before and after the sweep, s.  The silence after is the
+        room's decay time the recording captures: the impulse-response length.
+    peak_dbfs, rms_dbfs : float or None
+        Target level; exactly one is set (default: peak at the cap).
+    peak_cap_dbfs : float
+        Highest peak allowed unless `allow_above_cap`.
+    highpass_hz : float or None
+        Optional Butterworth high-pass for small drivers, Hz; `highpass_order` its order.
+    """
+
+    kind: str = "exponential"
+    f1_hz: float = 20.0
+    f2_hz: float = 20000.0
+    duration_s: float = 4.0
+    sample_rate_hz: float = 48000.0
+    fade_in_s: float = 0.02
+    fade_out_s: float = 0.005
+    pad_before_s: float = 0.1
+    pad_after_s: float = 1.0
+    peak_dbfs: float | None = None
+    rms_dbfs: float | None = None
+    peak_cap_dbfs: float = DEFAULT_PEAK_CAP_DBFS
+    allow_above_cap: bool = False
+    highpass_hz: float | None = None
+    highpass_order: int = 2
+
+    def level(self) -> dict[str, float | None]:
+        if self.peak_dbfs is None and self.rms_dbfs is None:
+            return {"peak_dbfs": self.peak_cap_dbfs, "rms_dbfs": None}
+        return {"peak_dbfs": self.peak_dbfs, "rms_dbfs": self.rms_dbfs}
+
+
+@dataclass
+class SweepSignal:
+    """A playable sweep, its normalised inverse filter, and where the responses land.
+
+    Attributes
+    ----------
+    settings : SweepSettings
+    sweep : ndarray, shape (n_sweep,)
+        The conditioned, scaled sweep as played (no padding), full scale = 1.
+    signal : ndarray, shape (n_pad_before + n_sweep + n_pad_after,)
+        The file content: silence, sweep, silence.
+    inverse : ndarray, shape (n_sweep,)
+        Inverse filter, scaled so that ``max |sweep * inverse| = 1``.
+    n_pad_before, n_pad_after : int
+        Padding in samples.
+    linear_lag : int
+        Index, in ``fftconvolve(file, inverse)``, of the linear impulse
+        response's zero lag: ``n_pad_before + n_sweep - 1``.
+    """
+
+    settings: SweepSettings
+    sweep: np.ndarray
+    signal: np.ndarray
+    inverse: np.ndarray
+    n_pad_before: int
+    n_pad_after: int
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def n_sweep(self) -> int:
+        return int(self.sweep.size)
+
+    @property
+    def linear_lag(self) -> int:
+        return self.n_pad_before + self.n_sweep - 1
+
+    def harmonic_offsets_samples(self, max_order: int = 5) -> dict[int, float]:
+        """Offsets (samples, fractional) of harmonics 2..max_order before the linear response.
+
+        Empty for a linear sweep, whose harmonics do not separate in time.
+        """
+        s = self.settings
+        if s.kind != "exponential":
+            return {}
+        return {n: harmonic_offset_s(n, s.f1_hz, s.f2_hz, s.duration_s) * s.sample_rate_hz
+                for n in range(2, max_order + 1)}
+
+    def sidecar(self, inverse_file: str | None) -> dict[str, Any]:
+        """The ``sweep`` block of the JSON sidecar: everything deconvolution needs."""
+        s = self.settings
+        return {
+            "kind": s.kind,
+            "f1_hz": s.f1_hz,
+            "f2_hz": s.f2_hz,
+            "duration_s": s.duration_s,
+            "sample_rate_hz": s.sample_rate_hz,
+            "n_sweep_samples": self.n_sweep,
+            "pad_before_samples": self.n_pad_before,
+            "pad_after_samples": self.n_pad_after,
+            "pad_before_s": s.pad_before_s,
+            "pad_after_s": s.pad_after_s,
+            "fade_in_s": s.fade_in_s,
+            "fade_out_s": s.fade_out_s,
+            "fade_shape": "raised cosine",
+            "dc_blocked": True,
+            "highpass_hz": s.highpass_hz,
+            "highpass_order": s.highpass_order if s.highpass_hz is not None else None,
+            "sweep_peak_dbfs": peak_dbfs(self.sweep),
+            "sweep_rms_dbfs": rms_dbfs(self.sweep),
+            "inverse_filter_file": inverse_file,
+            "inverse_normalisation": "max |sweep * inverse| = 1 for the sweep as played",
+            "linear_lag_samples": self.linear_lag,
+            "harmonic_offsets_samples": {str(k): v for k, v in self.harmonic_offsets_samples().items()},
+        }
+
+
+def _pad_samples(value_s: float, fs: float, name: str, source: str | None) -> int:
+    if not (math.isfinite(value_s) and value_s >= 0):
+        raise InputError(f"padding must be zero or a positive number of seconds, got {value_s!r}",
+                         source=source, field=name)
+    return int(round(value_s * fs))
+
+
+def make_sweep(settings: SweepSettings, *, source: str | None = None) -> SweepSignal:
+    """Build a playable sweep: generate, condition, set the level, pad, and make its inverse.
+
+    Raises
+    ------
+    InputError
+        Limits outside (0, fs/2), a duration too short for the band, fades
+        that do not fit, a level above the cap or one that would clip.
+    """
+    s = settings
+    check_sweep_band(s.kind, s.f1_hz, s.f2_hz, s.duration_s, s.sample_rate_hz,
+                     fade_in_s=s.fade_in_s, fade_out_s=s.fade_out_s, source=source)
+    n_before = _pad_samples(s.pad_before_s, s.sample_rate_hz, "--pad-before-s", source)
+    n_after = _pad_samples(s.pad_after_s, s.sample_rate_hz, "--pad-after-s", source)
+    if n_after < 1:
+        raise InputError("a sweep needs silence after it: that silence is the decay time the recording "
+                         "captures and the impulse-response length", source=source, field="--pad-after-s",
+                         fix="give the room's decay time, e.g. --pad-after-s 1")
+    make = exponential_sweep if s.kind == "exponential" else linear_sweep
+    raw = make(s.f1_hz, s.f2_hz, s.duration_s, s.sample_rate_hz)
+    played = condition(raw, s.sample_rate_hz, fade_in_s=s.fade_in_s, fade_out_s=s.fade_out_s,
+                       highpass_hz=s.highpass_hz, highpass_order=s.highpass_order, source=source)
+    played = scale_to_level(played, **s.level(), source=source)
+    check_peak(played, cap_dbfs=s.peak_cap_dbfs, allow_above_cap=s.allow_above_cap, source=source)
+    faded = raised_cosine_fade(raw, s.sample_rate_hz, s.fade_in_s, s.fade_out_s, source=source)
+    if s.kind == "exponential":
+        inverse = exponential_inverse_filter(faded, s.f1_hz, s.f2_hz, s.duration_s, s.sample_rate_hz)
+    else:
+        inverse = linear_inverse_filter(faded)
+    inverse = normalise_inverse(played, inverse)
+    signal = np.concatenate([np.zeros(n_before), played, np.zeros(n_after)])
+    return SweepSignal(settings=s, sweep=played, signal=signal, inverse=inverse,
+                       n_pad_before=n_before, n_pad_after=n_after)
+
+
+def normalise_inverse(played: np.ndarray, inverse: np.ndarray) -> np.ndarray:
+    """Scale `inverse` so that ``max |played * inverse| = 1`` (both shape (n,), same scale as played)."""
+    from scipy.signal import fftconvolve
+
+    peak = float(np.max(np.abs(fftconvolve(np.asarray(played, float), np.asarray(inverse, float)))))
+    return np.asarray(inverse, dtype=float) / peak
+
+
+@dataclass(frozen=True)
+class SweepRecord:
+    """The sweep block of a sidecar, read back and checked (what deconvolution needs).
+
+    Attributes are those of :meth:`SweepSignal.sidecar`; `inverse_filter_file`
+    is resolved against the sidecar's folder by the caller.
+    """
+
+    kind: str
+    f1_hz: float
+    f2_hz: float
+    duration_s: float
+    sample_rate_hz: float
+    n_sweep_samples: int
+    pad_before_samples: int
+    pad_after_samples: int
+    linear_lag_samples: int
+    inverse_filter_file: str
+
+    @property
+    def n_file_samples(self) -> int:
+        return self.pad_before_samples + self.n_sweep_samples + self.pad_after_samples
+
+    def harmonic_offsets_samples(self, max_order: int) -> dict[int, float]:
+        if self.kind != "exponential":
+            return {}
+        return {n: harmonic_offset_s(n, self.f1_hz, self.f2_hz, self.duration_s) * self.sample_rate_hz
+                for n in range(2, max_order + 1)}
+
+    @classmethod
+    def from_json(cls, block: Any, *, source: str | None = None) -> "SweepRecord":
+        """Validate a sidecar's ``sweep`` block; InputError naming the field otherwise."""
+        if not isinstance(block, dict):
+            raise InputError("no 'sweep' block: this sidecar does not describe a sweep", source=source,
+                             field="sweep", fix="give the .json written beside a sweep, schedule or sweep probe")
+
+        def get(name: str, kinds: tuple, positive: bool = True) -> Any:
+            if name not in block:
+                raise InputError("missing field", source=source, field=f"sweep.{name}",
+                                 fix="use the sidecar exactly as arrayplan wrote it")
+            v = block[name]
+            if isinstance(v, bool) or not isinstance(v, kinds):
+                raise InputError(f"wrong type {type(v).__name__}", source=source, field=f"sweep.{name}")
+            if isinstance(v, (int, float)) and (not math.isfinite(v) or v < 0 or (positive and v == 0)):
+                raise InputError(f"must be {'positive' if positive else 'non-negative'}, got {v!r}",
+                                 source=source, field=f"sweep.{name}")
+            return v
+
+        kind = get("kind", (str,))
+        if kind not in SWEEP_KINDS:
+            raise InputError(f"unknown sweep kind {kind!r}", source=source, field="sweep.kind")
+        rec = cls(
+            kind=kind,
+            f1_hz=float(get("f1_hz", (int, float))),
+            f2_hz=float(get("f2_hz", (int, float))),
+            duration_s=float(get("duration_s", (int, float))),
+            sample_rate_hz=float(get("sample_rate_hz", (int, float))),
+            n_sweep_samples=int(get("n_sweep_samples", (int,))),
+            pad_before_samples=int(get("pad_before_samples", (int,), positive=False)),
+            pad_after_samples=int(get("pad_after_samples", (int,))),
+            linear_lag_samples=int(get("linear_lag_samples", (int,))),
+            inverse_filter_file=str(get("inverse_filter_file", (str,))),
+        )
+        check_sweep_band(rec.kind, rec.f1_hz, rec.f2_hz, rec.duration_s, rec.sample_rate_hz, source=source)
+        if rec.linear_lag_samples != rec.pad_before_samples + rec.n_sweep_samples - 1:
+            raise InputError("linear_lag_samples does not equal pad_before_samples + n_sweep_samples - 1",
+                             source=source, field="sweep.linear_lag_samples")
+        return rec
