@@ -21,6 +21,9 @@ __all__ = ["main", "build_parser"]
 COMMAND_MODULES = (
     "arrayplan.commands.plan",
     "arrayplan.commands.field",
+    "arrayplan.commands.devices",
+    "arrayplan.commands.measure",
+    "arrayplan.commands.calibrate",
 )
 
 

@@ -1,0 +1,219 @@
+"""``arrayplan measure``: measure a rig's impulse responses through an audio interface.
+
+Prints the caution block and the estimated sound level before anything
+plays, asks for confirmation on a terminal (``--yes`` where there is none),
+then runs :func:`arrayplan.hardware.measure.measure`.  ``--simulate`` runs
+the same loop against a simulated rig (nothing plays).
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..errors import InputError
+
+__all__ = ["register", "run", "confirm_before_playing", "add_level_options", "print_level_estimate"]
+
+
+def add_level_options(p: argparse.ArgumentParser) -> None:
+    """Options for the sound-level estimate printed before playing."""
+    g = p.add_argument_group("sound-level estimate (printed before anything plays)")
+    g.add_argument("--speaker-sensitivity-db-spl", type=float, metavar="DB",
+                   help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms volts")
+    g.add_argument("--sensitivity-vrms", type=float, default=2.83, metavar="V",
+                   help="drive voltage of that rating, V RMS (default 2.83 V: 1 W into 8 ohm)")
+    g.add_argument("--amp-vrms", type=float, metavar="V",
+                   help="V RMS at the speaker terminals for a full-scale sine (default: from the "
+                        "calibration record's outputs)")
+    g.add_argument("--listener-distance-m", type=float, nargs="+", default=[1.0], metavar="M",
+                   help="distance of each person in the room from the speaker playing (default 1 m)")
+    g.add_argument("--allow-loud", action="store_true",
+                   help="play even when the estimate exceeds the exposure caps (hearing protection on)")
+    g.add_argument("--yes", action="store_true",
+                   help="confirm without a prompt (needed when there is no terminal), after reading the caution")
+
+
+def print_level_estimate(args: argparse.Namespace, signal: np.ndarray, sample_rate_hz: float,
+                         amp_vrms_default: float | None, stream: Any = None) -> list[str]:
+    """Print the estimated level of `signal` (one speaker at a time) and return its warnings."""
+    from ..safety import check_exposure, estimate_exposure, format_exposure
+
+    stream = sys.stderr if stream is None else stream
+    amp = args.amp_vrms if args.amp_vrms is not None else amp_vrms_default
+    if args.speaker_sensitivity_db_spl is None or amp is None:
+        missing = [name for name, v in (("--speaker-sensitivity-db-spl", args.speaker_sensitivity_db_spl),
+                                        ("--amp-vrms", amp)) if v is None]
+        print(f"Estimated level: UNKNOWN (give {' and '.join(missing)} for an estimate). Treat the level as "
+              "unknown: start with the amplifier gain low and raise it slowly.", file=stream)
+        return []
+    est = estimate_exposure(np.asarray(signal, float).reshape(-1, 1), sample_rate_hz,
+                            sensitivity_db_spl=args.speaker_sensitivity_db_spl, amp_vrms_full_scale=amp,
+                            distances_m=args.listener_distance_m, sensitivity_vrms=args.sensitivity_vrms,
+                            combine="one_at_a_time")
+    print(format_exposure(est), file=stream)
+    warnings = check_exposure(est, allow_loud=args.allow_loud)
+    for w in warnings:
+        print(f"warning: {w}", file=stream)
+    return warnings
+
+
+def confirm_before_playing(yes: bool, what: str, stream: Any = None) -> None:
+    """Ask on the terminal before playing; without a terminal require `yes`.
+
+    Raises
+    ------
+    InputError
+        No terminal and no ``--yes``, or the answer was not "yes".
+    """
+    stream = sys.stderr if stream is None else stream
+    if yes:
+        print(f"Confirmed by --yes: {what}", file=stream)
+        return
+    if not sys.stdin.isatty():
+        raise InputError("nothing plays without confirmation and there is no terminal to ask on",
+                         field="--yes", fix="read the caution above, then pass --yes")
+    print(f"About to play: {what}", file=stream)
+    answer = input("Type 'yes' to play, anything else to stop: ").strip().lower()
+    if answer != "yes":
+        raise InputError("not confirmed; nothing was played", field="--yes")
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    p = subparsers.add_parser(
+        "measure", help="measure the rig's impulse responses through the audio interface",
+        description="Play a faded exponential sweep on each speaker's output in turn, record every "
+                    "microphone (and the loopback reference), and save each take as it ends: raw recording "
+                    "plus impulse responses.  Running again into the same --out folder measures only the "
+                    "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "
+                    "printed before anything plays.")
+    p.add_argument("rig", help="rig file (TOML); speakers' and microphones' 'channel' are 1-based")
+    p.add_argument("--out", required=True, metavar="DIR", help="output folder (resumes when it exists)")
+    p.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the rig's, else the system's)")
+    p.add_argument("--rate", type=float, metavar="HZ", help="sample rate (default: the rig's, else the device's)")
+    p.add_argument("--calibration", metavar="FILE", help="calibration record (default: the rig's, if any)")
+    p.add_argument("--latency-samples", type=int, metavar="N",
+                   help="latency to remove when there is neither a reference loop nor a calibrated latency")
+    s = p.add_argument_group("sweep")
+    s.add_argument("--f1", type=float, default=40.0, metavar="HZ", help="start frequency (default 40 Hz)")
+    s.add_argument("--f2", type=float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
+    s.add_argument("--duration-s", type=float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
+    s.add_argument("--peak-dbfs", type=float, metavar="DB", help="sweep peak level (default: the peak cap, -12 dBFS)")
+    s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
+    s.add_argument("--repeats", type=int, default=1, metavar="N", help="sweeps per take, averaged (default 1)")
+    s.add_argument("--ir-s", type=float, default=0.5, metavar="S", help="impulse-response length (default 0.5 s)")
+    s.add_argument("--max-latency-s", type=float, default=0.25, metavar="S",
+                   help="longest interface latency expected (default 0.25 s)")
+    s.add_argument("--lead-in-s", type=float, default=0.2, metavar="S", help="silence before each sweep (default 0.2 s)")
+    c = p.add_argument_group("checks")
+    c.add_argument("--min-peak-to-noise-db", type=float, default=None, metavar="DB",
+                   help="mark takes whose responses fall below this peak-to-noise ratio (default 40 dB)")
+    c.add_argument("--redo-marked", action="store_true", help="measure marked takes again when resuming")
+    add_level_options(p)
+    m = p.add_argument_group("simulated rig (nothing plays)")
+    m.add_argument("--simulate", action="store_true",
+                   help="measure a simulated rig: the rig's free-field responses plus latency, noise, a mild "
+                        "nonlinearity and optional dropouts")
+    m.add_argument("--sim-latency-samples", type=int, default=300, metavar="N", help="default 300")
+    m.add_argument("--sim-noise-dbfs", type=float, default=-90.0, metavar="DB", help="RMS noise (default -90 dBFS)")
+    m.add_argument("--sim-nonlinearity", default="0.01,0.005", metavar="A2,A3,...",
+                   help="coefficients of x^2, x^3, ... (default 0.01,0.005; '' for linear)")
+    m.add_argument("--sim-dropouts", type=int, default=0, metavar="N", help="dropped input blocks per take")
+    m.add_argument("--sim-seed", type=int, default=0, metavar="N", help="noise seed")
+    p.set_defaults(run=run)
+
+
+def _parse_coefficients(text: str) -> tuple[float, ...]:
+    if not text.strip():
+        return ()
+    try:
+        vals = tuple(float(v) for v in text.split(","))
+    except ValueError:
+        raise InputError(f"expected comma-separated numbers, got {text!r}", field="--sim-nonlinearity") from None
+    if not all(math.isfinite(v) for v in vals):
+        raise InputError(f"coefficients must be finite, got {text!r}", field="--sim-nonlinearity")
+    return vals
+
+
+def run(args: argparse.Namespace) -> int:
+    from ..hardware.calibration import read_calibration
+    from ..hardware.measure import MeasurementSettings, RigWiring, measure
+    from ..rig import load_rig
+    from ..safety import print_caution
+    from ..signals.deconvolve import DEFAULT_MIN_PEAK_TO_NOISE_DB
+    from ..signals.sweeps import make_sweep
+
+    rig = load_rig(args.rig)
+    wiring = RigWiring.from_rig(rig)
+    hw = rig.hardware
+    cal_path = args.calibration or hw.calibration
+    calibration = read_calibration(cal_path) if cal_path else None
+    settings = MeasurementSettings(
+        f1_hz=args.f1, f2_hz=args.f2, sweep_s=args.duration_s, peak_dbfs=args.peak_dbfs,
+        allow_above_cap=args.allow_above_cap, ir_s=args.ir_s, lead_in_s=args.lead_in_s,
+        max_latency_s=args.max_latency_s, repeats=args.repeats,
+        min_peak_to_noise_db=(DEFAULT_MIN_PEAK_TO_NOISE_DB if args.min_peak_to_noise_db is None
+                              else args.min_peak_to_noise_db))
+    rate = args.rate or hw.sample_rate_hz
+    if args.simulate:
+        from ..hardware.simulated import SimulatedLink
+
+        fs = float(rate or 48000.0)
+        link = SimulatedLink.from_rig(rig, fs, int(round(settings.ir_s * fs)),
+                                      latency_samples=args.sim_latency_samples, noise_rms_dbfs=args.sim_noise_dbfs,
+                                      nonlinearity=_parse_coefficients(args.sim_nonlinearity),
+                                      dropouts_per_take=args.sim_dropouts, seed=args.sim_seed)
+        make_sweep(settings.sweep_settings(fs))  # refuse bad sweep options before anything else
+        print(f"Simulated rig: nothing is played ({link.description}).", file=sys.stderr)
+    else:
+        from ..hardware.duplex import SoundDeviceLink
+
+        device = args.device if args.device is not None else hw.device
+        link = SoundDeviceLink(device, rate, n_outputs=wiring.n_outputs_needed, n_inputs=wiring.n_inputs_needed)
+        sweep = make_sweep(settings.sweep_settings(link.sample_rate_hz))
+        print_caution()
+        amp = None
+        if calibration is not None:
+            outs = [calibration.output(c + 1) for c in wiring.speaker_outputs]
+            if all(o is not None for o in outs):
+                amp = max(o.volts_per_full_scale for o in outs) / math.sqrt(2.0)
+        print(f"Sweep: {settings.f1_hz:g} Hz to {sweep.settings.f2_hz:g} Hz, {settings.sweep_s:g} s, peak "
+              f"{sweep.settings.level()['peak_dbfs']:+.1f} dBFS, {settings.repeats} per speaker, "
+              f"{len(wiring.speaker_names)} speakers, one at a time, faded in and out.", file=sys.stderr)
+        print_level_estimate(args, sweep.signal, link.sample_rate_hz, amp)
+        confirm_before_playing(args.yes, f"{len(wiring.speaker_names)} sweeps through {link.description}")
+
+    tty = sys.stderr.isatty()
+
+    def event(text: str) -> None:
+        if tty:
+            print(text, file=sys.stderr)
+
+    def warn(text: str) -> None:
+        print(f"warning: {text}", file=sys.stderr)
+
+    try:
+        summary = measure(link, wiring, args.out, settings, calibration=calibration,
+                          latency_samples=args.latency_samples, redo_marked=args.redo_marked,
+                          on_event=event, on_warning=warn)
+    except KeyboardInterrupt:
+        from ..hardware.measure import completed_takes
+
+        kept = len(completed_takes(Path(args.out)))
+        print(f"stopped by Ctrl-C: {kept} of {len(wiring.speaker_names)} takes are kept in {args.out}; run the "
+              "same command again to measure the rest", file=sys.stderr)
+        raise
+    marked = [t for t in summary.takes if t.status != "ok"]
+    print(f"{len(summary.measured)} take(s) measured, {len(summary.resumed)} kept from before, "
+          f"{len(marked)} marked; impulse responses: {summary.irset_path}")
+    for t in summary.takes:
+        best = max((p for p in t.peak_to_noise_db if p is not None), default=math.inf)
+        print(f"  {t.speaker}: {t.status}, latency {t.latency_samples} samples ({t.latency_source}), "
+              f"best peak-to-noise {best:.1f} dB" + (" (kept from before)" if t.resumed else ""))
+    return 1 if marked else 0
+
