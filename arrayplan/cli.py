@@ -24,6 +24,8 @@ COMMAND_MODULES = (
     "arrayplan.commands.devices",
     "arrayplan.commands.measure",
     "arrayplan.commands.calibrate",
+    "arrayplan.commands.signals",
+    "arrayplan.commands.deconvolve",
 )
 
 

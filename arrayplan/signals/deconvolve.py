@@ -32,6 +32,8 @@ __all__ = [
     "peak_to_noise_db",
     "clipped_sample_counts",
     "split_schedule",
+    "OfflineResult",
+    "impulse_responses",
 ]
 
 #: A recorded sample whose magnitude reaches this (within 0.01 dB of full
@@ -57,6 +59,8 @@ class Deconvolution:
         Harmonic distortion products by order (2, 3, ...).
     harmonic_starts : dict of int -> int
         Index in `full` where each harmonic window starts.
+    harmonic_zero_index : dict of int -> int
+        Index inside each harmonic window of that order's nominal zero lag.
     full : ndarray, shape (n_recording + n_inverse - 1, n_channels)
         The whole deconvolved signal.
     linear_lag : int
@@ -66,6 +70,7 @@ class Deconvolution:
     linear: np.ndarray
     harmonics: dict[int, np.ndarray]
     harmonic_starts: dict[int, int]
+    harmonic_zero_index: dict[int, int]
     full: np.ndarray
     linear_lag: int
     notes: list[str] = field(default_factory=list)
@@ -90,8 +95,15 @@ def _cut(full: np.ndarray, start: int, length: int) -> np.ndarray:
 
 
 def harmonic_windows(linear_lag: int, harmonic_offsets: Mapping[int, float], ir_length: int,
-                     pre_samples: int = 0) -> dict[int, tuple[int, int]]:
-    """Window (start, length) in the deconvolved signal of each harmonic order.
+                     pre_samples: int | None = None) -> dict[int, tuple[int, int, int]]:
+    """Window of each harmonic order in the deconvolved signal.
+
+    The windows tile the lags before the linear response: order n owns the
+    lags from halfway to order n+1 (or as far before its nominal position as
+    after it, for the highest order) up to halfway to order n-1 (the linear
+    response for n = 2), and never more than `ir_length` after its nominal
+    position.  Stopping halfway keeps the pre-ringing of the band-limited
+    linear pulse (lowest frequency f1) out of the distortion products.
 
     Parameters
     ----------
@@ -100,30 +112,38 @@ def harmonic_windows(linear_lag: int, harmonic_offsets: Mapping[int, float], ir_
     harmonic_offsets : mapping of int -> float
         Offset (samples) of each order before the linear response.
     ir_length : int
-        Longest window, samples.
-    pre_samples : int
-        Samples kept before each harmonic's nominal start.
+        Longest part of a window after its nominal position, samples.
+    pre_samples : int, optional
+        Samples kept before each nominal position instead of the automatic
+        half gap (still no more than the half gap).
 
     Returns
     -------
-    dict of int -> (int, int)
-        Order n's window starts `pre_samples` before ``linear_lag - round(offset_n)``
-        and is no longer than the gap to order n-1 (so windows never overlap).
+    dict of int -> (start, length, zero)
+        `start` is the window's first index in the deconvolved signal,
+        `length` its length, `zero` the index inside the window of the
+        order's nominal zero lag (``linear_lag - round(offset)``).
     """
-    out: dict[int, tuple[int, int]] = {}
-    prev = 0
-    for order in sorted(harmonic_offsets):
-        off = int(round(harmonic_offsets[order]))
-        gap = off - prev
-        length = min(ir_length + pre_samples, gap)
-        if length > 0:
-            out[order] = (linear_lag - off - pre_samples, length)
-        prev = off
+    orders = sorted(n for n in harmonic_offsets if n >= 2)
+    offs = {1: 0.0, **{n: float(harmonic_offsets[n]) for n in orders}}
+    seq = [1] + orders
+    out: dict[int, tuple[int, int, int]] = {}
+    for i, n in enumerate(seq[1:], start=1):
+        post = (offs[n] - offs[seq[i - 1]]) / 2.0
+        pre = (offs[seq[i + 1]] - offs[n]) / 2.0 if i + 1 < len(seq) else post
+        post_n = int(math.floor(min(post, ir_length)))
+        pre_n = int(math.floor(pre))
+        if pre_samples is not None:
+            pre_n = min(pre_n, int(pre_samples))
+        nominal = linear_lag - int(round(offs[n]))
+        if post_n + pre_n > 0:
+            out[n] = (nominal - pre_n, pre_n + post_n, pre_n)
     return out
 
 
 def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, ir_length: int,
-               harmonic_offsets: Mapping[int, float] | None = None, pre_samples: int = 0) -> Deconvolution:
+               harmonic_offsets: Mapping[int, float] | None = None,
+               pre_samples: int | None = None) -> Deconvolution:
     """Convolve a recording with a sweep's inverse filter and cut out the responses.
 
     Parameters
@@ -140,8 +160,9 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
     harmonic_offsets : mapping of int -> float, optional
         Harmonic order -> offset in samples before the linear response
         (:meth:`arrayplan.signals.sweeps.SweepSignal.harmonic_offsets_samples`).
-    pre_samples : int
-        Samples kept before each harmonic's nominal start.
+    pre_samples : int, optional
+        Samples kept before each harmonic's nominal position (default: half
+        the gap to the next order, see :func:`harmonic_windows`).
 
     Returns
     -------
@@ -156,9 +177,10 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
     full = fftconvolve(rec, inv[:, None], axes=0)
     linear = _cut(full, linear_lag, ir_length)
     windows = harmonic_windows(linear_lag, harmonic_offsets or {}, ir_length, pre_samples)
-    harmonics = {n: _cut(full, start, length) for n, (start, length) in windows.items()}
+    harmonics = {n: _cut(full, start, length) for n, (start, length, _) in windows.items()}
     return Deconvolution(linear=linear, harmonics=harmonics,
                          harmonic_starts={n: w[0] for n, w in windows.items()},
+                         harmonic_zero_index={n: w[2] for n, w in windows.items()},
                          full=full, linear_lag=int(linear_lag))
 
 
@@ -251,3 +273,107 @@ def split_schedule(recording: np.ndarray, segment_starts: Sequence[int], segment
     """
     rec = _as_2d(recording, "recording")
     return [_cut(rec, int(s), int(segment_length)) for s in segment_starts]
+
+
+@dataclass
+class OfflineResult:
+    """Impulse responses of every speaker to every microphone, with their quality figures.
+
+    Attributes
+    ----------
+    data : ndarray, shape (ir_length, n_mic, n_spk)
+        Linear impulse responses (the layout of :class:`arrayplan.irset.IRSet`).
+    harmonics : dict of int -> ndarray, shape (n_window, n_mic, n_spk)
+        Harmonic distortion products by order.
+    harmonic_zero_index : dict of int -> int
+        Index in each harmonic window of that order's nominal zero lag.
+    harmonic_db : dict of int -> ndarray, shape (n_mic, n_spk)
+        Energy of each product relative to the linear response, dB.
+    thd_db : ndarray, shape (n_mic, n_spk)
+        All products together relative to the linear response, dB (-inf if none).
+    peak_to_noise_db : ndarray, shape (n_mic, n_spk)
+    peak_dbfs : ndarray, shape (n_mic, n_spk)
+        Peak of each linear response, dB re 1 (recorded full scale per played full scale).
+    peak_index : ndarray, shape (n_mic, n_spk)
+        Sample of that peak (the arrival, roughly).
+    clipped_samples : ndarray, shape (n_mic, n_spk)
+        Recorded samples at or above the clip threshold.
+    warnings : list of str
+        One line each: clipping, low peak-to-noise.
+    """
+
+    data: np.ndarray
+    harmonics: dict[int, np.ndarray]
+    harmonic_zero_index: dict[int, int]
+    harmonic_db: dict[int, np.ndarray]
+    thd_db: np.ndarray
+    peak_to_noise_db: np.ndarray
+    peak_dbfs: np.ndarray
+    peak_index: np.ndarray
+    clipped_samples: np.ndarray
+    warnings: list[str]
+
+
+def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, linear_lag: int, ir_length: int,
+                      harmonic_offsets: Mapping[int, float] | None = None, speaker_names: Sequence[str],
+                      mic_names: Sequence[str], min_peak_to_noise_db: float = DEFAULT_MIN_PEAK_TO_NOISE_DB,
+                      clip_threshold: float = CLIP_THRESHOLD, pre_samples: int | None = None) -> OfflineResult:
+    """Deconvolve one recording per speaker and gather responses, distortion and warnings.
+
+    Parameters
+    ----------
+    recordings : sequence of ndarray, each shape (n_samples, n_mic)
+        Speaker k's recording (all microphones), aligned with the played file.
+    inverse : ndarray, shape (n_inverse,)
+        The sweep's normalised inverse filter.
+    linear_lag, ir_length, harmonic_offsets, pre_samples
+        As for :func:`deconvolve`.
+    speaker_names, mic_names : sequence of str
+        Names used in the warnings; lengths n_spk and n_mic.
+    min_peak_to_noise_db : float
+        A response with a lower peak-to-noise ratio raises a warning.
+    clip_threshold : float
+        Recorded magnitude counted as clipped.
+
+    Returns
+    -------
+    OfflineResult
+    """
+    if len(recordings) != len(speaker_names):
+        raise ValueError(f"{len(recordings)} recordings for {len(speaker_names)} speakers")
+    linear, harm, clipped, zero = [], {}, [], {}
+    for rec in recordings:
+        rec = _as_2d(rec, "recording")
+        if rec.shape[1] != len(mic_names):
+            raise ValueError(f"recording has {rec.shape[1]} channels for {len(mic_names)} microphones")
+        d = deconvolve(rec, inverse, linear_lag=linear_lag, ir_length=ir_length,
+                       harmonic_offsets=harmonic_offsets, pre_samples=pre_samples)
+        linear.append(d.linear)
+        for n, h in d.harmonics.items():
+            harm.setdefault(n, []).append(h)
+        zero = d.harmonic_zero_index
+        clipped.append(clipped_sample_counts(rec, clip_threshold))
+    data = np.stack(linear, axis=2)
+    harmonics = {n: np.stack(v, axis=2) for n, v in harm.items()}
+    n_mic, n_spk = data.shape[1], data.shape[2]
+    pnr = np.stack([peak_to_noise_db(data[:, :, s]) for s in range(n_spk)], axis=1)
+    levels = {n: np.stack([harmonic_levels_db(data[:, :, s], {n: h[:, :, s]})[n] for s in range(n_spk)], axis=1)
+              for n, h in harmonics.items()}
+    thd = total_harmonic_level_db(levels) if levels else np.full((n_mic, n_spk), -math.inf)
+    peak = np.max(np.abs(data), axis=0)
+    with np.errstate(divide="ignore"):
+        peak_db = 20.0 * np.log10(peak)
+    clip = np.stack(clipped, axis=1)
+    warnings = []
+    for s, spk in enumerate(speaker_names):
+        hit = [f"{mic_names[m]} ({clip[m, s]} samples)" for m in range(n_mic) if clip[m, s] > 0]
+        if hit:
+            warnings.append(f"speaker {spk}: recording clipped at {', '.join(hit)}: these responses are "
+                            "distorted; lower the level and measure again")
+        low = [f"{mic_names[m]} ({pnr[m, s]:.1f} dB)" for m in range(n_mic) if pnr[m, s] < min_peak_to_noise_db]
+        if low:
+            warnings.append(f"speaker {spk}: peak-to-noise below {min_peak_to_noise_db:g} dB at {', '.join(low)}: "
+                            "raise the level carefully, lengthen the sweep, or quieten the room")
+    return OfflineResult(data=data, harmonics=harmonics, harmonic_zero_index=dict(zero), harmonic_db=levels, thd_db=np.asarray(thd),
+                         peak_to_noise_db=pnr, peak_dbfs=peak_db, peak_index=np.argmax(np.abs(data), axis=0),
+                         clipped_samples=clip, warnings=warnings)

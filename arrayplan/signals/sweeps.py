@@ -153,15 +153,15 @@ def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, s
         raise InputError(f"sweep kind must be one of {', '.join(SWEEP_KINDS)}, got {kind!r}", source=source)
     if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
         raise InputError(f"sample rate must be a positive number of Hz, got {sample_rate_hz!r}",
-                         source=source, field="--rate")
+                         source=source, field="--rate-hz")
     nyq = sample_rate_hz / 2.0
-    for name, f in (("--f1", f1_hz), ("--f2", f2_hz)):
+    for name, f in (("--f1-hz", f1_hz), ("--f2-hz", f2_hz)):
         if not (math.isfinite(f) and 0 < f < nyq):
             raise InputError(f"sweep limit {f:g} Hz is outside (0, {nyq:g}) Hz (half the sample rate)",
                              source=source, field=name, fix="choose limits between 0 Hz and fs/2")
     if not f1_hz < f2_hz:
         raise InputError(f"sweep must rise: f1 = {f1_hz:g} Hz is not below f2 = {f2_hz:g} Hz",
-                         source=source, field="--f1", fix="swap the limits")
+                         source=source, field="--f1-hz", fix="swap the limits")
     if not (math.isfinite(duration_s) and duration_s > 0):
         raise InputError(f"sweep duration must be positive, got {duration_s!r} s", source=source,
                          field="--duration-s")
@@ -173,7 +173,7 @@ def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, s
             raise InputError(f"a {duration_s:g} s sweep is too short for {f1_hz:g}-{f2_hz:g} Hz: it holds "
                              f"{cycles:.2f} periods of f1 in its lowest octave, at least "
                              f"{MIN_CYCLES_LOWEST_OCTAVE:g} are needed", source=source, field="--duration-s",
-                             fix=f"use --duration-s {math.ceil(need * 100) / 100:g} or more, or raise --f1")
+                             fix=f"use --duration-s {math.ceil(need * 100) / 100:g} or more, or raise --f1-hz")
         octave_s = rate * math.log(2.0)
         for name, fade in (("--fade-in-s", fade_in_s), ("--fade-out-s", fade_out_s)):
             if fade is not None and fade > octave_s / 2:

@@ -1,0 +1,248 @@
+"""``arrayplan deconvolve``: recordings of a sweep (made with any recorder) -> an IR set.
+
+Give either one multichannel WAV per speaker (channels = microphones), each
+recorded while the sweep file played, or one long recording of a schedule
+written by ``arrayplan signal schedule`` (it is split by the schedule's
+sidecar), or one recording of a sweep channel probe.  Each recording must
+start with the played file's first sample (as when playing one track and
+recording another in the same session) and run at least to its end.
+
+The output folder is an IR set (``irset.json`` and one WAV per speaker, see
+:mod:`arrayplan.irset`) holding the linear impulse responses, plus
+``harmonic-N/`` IR sets with the harmonic distortion products of an
+exponential sweep and ``deconvolution.csv`` with, per speaker and
+microphone, the peak, its delay, the peak-to-noise ratio and each
+harmonic's level.  Clipping and low peak-to-noise are printed as warnings
+and stored in the IR set's warnings.
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import io
+import json
+import math
+import sys
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..errors import InputError
+from ..fileio import staged_output_dir, write_text_atomic
+from ..irset import IRSet, write_irset
+from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, impulse_responses,
+                                  split_schedule)
+from ..signals.sweeps import SweepRecord
+from ..signals.wavout import read_recording
+
+__all__ = ["register", "REPORT_NAME"]
+
+REPORT_NAME = "deconvolution.csv"
+
+
+def _csv_names(text: str) -> list[str]:
+    names = [v.strip() for v in text.split(",")]
+    if not all(names):
+        raise argparse.ArgumentTypeError(f"empty name in {text!r}")
+    if len(set(names)) != len(names):
+        raise argparse.ArgumentTypeError(f"names must be unique, got {text!r}")
+    return names
+
+
+def _read_sidecar(path: Path) -> dict[str, Any]:
+    src = str(path)
+    if not path.exists():
+        raise InputError("sweep sidecar not found", source=src, field="--sweep",
+                         fix="give the .json written beside the sweep file")
+    try:
+        obj = json.loads(path.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=src) from None
+    if not isinstance(obj, dict) or obj.get("format") != "arrayplan-signal":
+        raise InputError("not an arrayplan signal sidecar", source=src, field="format",
+                         fix="give the .json written by 'arrayplan signal sweep|schedule|probe'")
+    if not isinstance(obj.get("n_samples"), int) or obj["n_samples"] <= 0:
+        raise InputError("missing or bad n_samples", source=src, field="n_samples")
+    return obj
+
+
+def _check_length(n_rec: int, n_file: int, rate: int, src: str, warnings: list[str]) -> None:
+    if n_rec < n_file:
+        raise InputError(f"recording has {n_rec} samples ({n_rec / rate:.3f} s) but the played file has {n_file} "
+                         f"({n_file / rate:.3f} s)", source=src,
+                         fix="record the whole file, including the silence after the sweep")
+    if n_rec > 2 * n_file:
+        raise InputError(f"recording has {n_rec} samples, more than twice the played file's {n_file}: it may hold "
+                         "several takes or start well before the file", source=src,
+                         fix="trim it so it starts with the played file's first sample")
+    if n_rec > n_file:
+        warnings.append(f"{src}: recording is {(n_rec - n_file) / rate:.3f} s longer than the played file; "
+                        "its first sample is taken as the file's first sample")
+
+
+def _run(args: argparse.Namespace) -> int:
+    side_path = Path(args.sweep)
+    side = _read_sidecar(side_path)
+    src = str(side_path)
+    rec_info = SweepRecord.from_json(side.get("sweep"), source=src)
+    rate = int(round(rec_info.sample_rate_hz))
+    inv_path = side_path.parent / rec_info.inverse_filter_file
+    inverse, inv_rate = read_recording(inv_path, field="sweep.inverse_filter_file")
+    if inv_rate != rate or inverse.shape[1] != 1 or inverse.shape[0] != rec_info.n_sweep_samples:
+        raise InputError(f"inverse filter does not match the sidecar ({inverse.shape[0]} samples, {inv_rate} Hz; "
+                         f"expected {rec_info.n_sweep_samples} samples, {rate} Hz)", source=str(inv_path),
+                         fix="use the files written together by arrayplan signal")
+    inverse = inverse[:, 0]
+
+    schedule = side.get("schedule")
+    probe = side.get("probe")
+    warnings: list[str] = []
+    n_file = int(side["n_samples"])
+    recordings: list[np.ndarray] = []
+    if schedule is not None or probe is not None:
+        if len(args.recordings) != 1:
+            raise InputError(f"a {'schedule' if schedule else 'channel probe'} is recorded as one file, got "
+                             f"{len(args.recordings)}", source=src, fix="give the one recording of the whole file")
+        data, r = read_recording(args.recordings[0])
+        if r != rate:
+            raise InputError(f"recorded at {r} Hz but the sweep is at {rate} Hz", source=str(args.recordings[0]),
+                             fix="record at the sweep's rate (no resampling)")
+        _check_length(data.shape[0], n_file, rate, str(args.recordings[0]), warnings)
+        if schedule is not None:
+            try:
+                starts = [int(e["segment_start_sample"]) for e in schedule["speakers"]]
+                default_names = [str(e["speaker"]) for e in schedule["speakers"]]
+                seg = int(schedule["segment_length_samples"])
+            except (KeyError, TypeError, ValueError):
+                raise InputError("malformed schedule block", source=src, field="schedule") from None
+            recordings = split_schedule(data, starts, seg)
+        else:
+            default_names = [str(probe.get("channel_name", "probe"))]
+            recordings = [data]
+        recorded = [str(args.recordings[0])]
+    else:
+        default_names = [f"S{i + 1}" for i in range(len(args.recordings))]
+        recorded = []
+        for path in args.recordings:
+            data, r = read_recording(path)
+            if r != rate:
+                raise InputError(f"recorded at {r} Hz but the sweep is at {rate} Hz", source=str(path),
+                                 fix="record at the sweep's rate (no resampling)")
+            if recordings and data.shape[1] != recordings[0].shape[1]:
+                raise InputError(f"has {data.shape[1]} channels, the first recording {recordings[0].shape[1]}",
+                                 source=str(path), fix="record every speaker with the same microphones")
+            _check_length(data.shape[0], n_file, rate, str(path), warnings)
+            recordings.append(data)
+            recorded.append(str(path))
+    speakers = args.speaker_names or default_names
+    if len(speakers) != len(recordings):
+        raise InputError(f"{len(speakers)} speaker names for {len(recordings)} speakers", field="--speaker-names")
+    n_mic = recordings[0].shape[1]
+    mics = args.mic_names or [f"M{i + 1}" for i in range(n_mic)]
+    if len(mics) != n_mic:
+        raise InputError(f"{len(mics)} microphone names for {n_mic} recorded channels", field="--mic-names")
+
+    max_len = rec_info.pad_after_samples
+    if args.ir_length_s is not None:
+        if not (math.isfinite(args.ir_length_s) and args.ir_length_s > 0):
+            raise InputError(f"must be positive, got {args.ir_length_s!r} s", field="--ir-length-s")
+        ir_len = int(round(args.ir_length_s * rate))
+        if ir_len > max_len:
+            raise InputError(f"{args.ir_length_s:g} s is longer than the silence after the sweep "
+                             f"({max_len / rate:g} s)", field="--ir-length-s",
+                             fix="make a sweep with a longer --pad-after-s, or shorten the response")
+    else:
+        ir_len = max_len
+    if args.max_harmonic < 1:
+        raise InputError(f"must be 1 (none) or more, got {args.max_harmonic}", field="--max-harmonic")
+    offsets = rec_info.harmonic_offsets_samples(args.max_harmonic)
+    notes: list[str] = []
+    if rec_info.kind == "exponential" and offsets and offsets[2] < ir_len:
+        notes.append(f"the 2nd harmonic sits {offsets[2] / rate:.3f} s before the linear response, less than "
+                        f"the response length {ir_len / rate:.3f} s: a long room tail may overlap the distortion "
+                        "products (a longer sweep separates them further)")
+
+    result = impulse_responses(recordings, inverse, linear_lag=rec_info.linear_lag_samples, ir_length=ir_len,
+                               harmonic_offsets=offsets, speaker_names=speakers, mic_names=mics,
+                               min_peak_to_noise_db=args.min_pnr_db, clip_threshold=CLIP_THRESHOLD)
+    warnings += result.warnings
+
+    def fin(v: float) -> float | None:
+        return round(float(v), 3) if math.isfinite(v) else None
+
+    per_pair = {spk: {mic: {"peak_db": fin(result.peak_dbfs[m, s]),
+                            "peak_delay_s": float(result.peak_index[m, s]) / rate,
+                            "peak_to_noise_db": fin(result.peak_to_noise_db[m, s]),
+                            "clipped_samples": int(result.clipped_samples[m, s]),
+                            "harmonic_db": {str(n): fin(v[m, s]) for n, v in result.harmonic_db.items()},
+                            "thd_db": fin(result.thd_db[m, s]) if result.harmonic_db else None}
+                      for m, mic in enumerate(mics)} for s, spk in enumerate(speakers)}
+    extra = {"producer": "arrayplan deconvolve (offline)", "sweep_sidecar": side_path.name,
+             "sweep": side.get("sweep"), "recordings": recorded,
+             "harmonic_windows": {str(n): {"offset_samples": offsets[n], "samples": int(h.shape[0]),
+                                           "nominal_index": int(result.harmonic_zero_index[n])}
+                                  for n, h in result.harmonics.items()},
+             "harmonic_level_definition": "10 log10 of the product's energy over the linear response's energy",
+             "peak_to_noise_definition": "20 log10 of the peak over the RMS of the last 10 % of the response",
+             "notes": notes, "per_pair": per_pair}
+    irs = IRSet(data=result.data, sample_rate_hz=float(rate), speaker_names=speakers, mic_names=mics,
+                units="full_scale", latency_removed_samples=0, warnings=warnings, extra=extra)
+
+    buf = io.StringIO()
+    orders = sorted(result.harmonic_db)
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["speaker", "mic", "peak_db", "peak_delay_ms", "peak_to_noise_db", "clipped_samples"]
+               + [f"harmonic{n}_db" for n in orders] + (["thd_db"] if orders else []))
+    for s, spk in enumerate(speakers):
+        for m, mic in enumerate(mics):
+            cell = per_pair[spk][mic]
+            w.writerow([spk, mic, cell["peak_db"], round(1000 * cell["peak_delay_s"], 4), cell["peak_to_noise_db"],
+                        cell["clipped_samples"]] + [cell["harmonic_db"][str(n)] for n in orders]
+                       + ([cell["thd_db"]] if orders else []))
+
+    with staged_output_dir(args.out) as stage:
+        write_irset(stage, irs, command="arrayplan deconvolve")
+        for n, h in result.harmonics.items():
+            write_irset(stage / f"harmonic-{n}", IRSet(
+                data=h, sample_rate_hz=float(rate), speaker_names=speakers, mic_names=mics, units="full_scale",
+                extra={"harmonic_order": n, "offset_samples": offsets[n],
+                       "nominal_index": int(result.harmonic_zero_index[n]),
+                       "note": f"order-{n} distortion product; sample nominal_index is {offsets[n]:.1f} samples "
+                               "before the linear response's zero lag"}), command="arrayplan deconvolve")
+        write_text_atomic(stage / REPORT_NAME, buf.getvalue())
+
+    for line in warnings:
+        print(f"arrayplan deconvolve: warning: {line}", file=sys.stderr)
+    for line in notes:
+        print(f"arrayplan deconvolve: note: {line}", file=sys.stderr)
+    print(f"wrote IR set {Path(args.out) / 'irset.json'}: {len(speakers)} speaker(s) x {n_mic} microphone(s), "
+          f"{ir_len} samples at {rate} Hz; report {Path(args.out) / REPORT_NAME}")
+    for s, spk in enumerate(speakers):
+        worst = float(np.min(result.peak_to_noise_db[:, s]))
+        text = f"  {spk}: peak-to-noise {worst:.1f} dB (lowest mic)"
+        if orders:
+            text += ", " + ", ".join(f"H{n} {np.max(result.harmonic_db[n][:, s]):.1f} dB" for n in orders)
+        print(text)
+    return 0
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    """Add the ``deconvolve`` command."""
+    p = subparsers.add_parser("deconvolve", help="recordings of a sweep (any recorder) -> impulse responses",
+                              description=__doc__.split("\n\n")[1].replace("\n", " "))
+    p.add_argument("recordings", nargs="+", type=Path, metavar="RECORDING.wav",
+                   help="one WAV per speaker (channels = microphones), or one recording of a schedule or probe")
+    p.add_argument("--sweep", required=True, type=Path, metavar="SWEEP.json",
+                   help="the sidecar written beside the played sweep, schedule or sweep probe")
+    p.add_argument("--out", required=True, type=Path, metavar="DIR", help="output folder (an IR set)")
+    p.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated "
+                                                            "(default: the schedule's, else S1, S2, ...)")
+    p.add_argument("--mic-names", type=_csv_names, help="microphone names, comma-separated (default M1, M2, ...)")
+    p.add_argument("--ir-length-s", type=float, help="response length, s (default: the silence after the sweep)")
+    p.add_argument("--max-harmonic", type=int, default=5,
+                   help="highest harmonic order separated (exponential sweeps; default 5, 1 for none)")
+    p.add_argument("--min-pnr-db", type=float, default=DEFAULT_MIN_PEAK_TO_NOISE_DB,
+                   help=f"warn below this peak-to-noise ratio, dB (default {DEFAULT_MIN_PEAK_TO_NOISE_DB:g})")
+    p.set_defaults(run=_run)

@@ -1,0 +1,431 @@
+"""``arrayplan signal``: write safe test signals as WAV files with JSON sidecars.
+
+Sub-commands: ``sweep`` (exponential or linear, with its inverse filter),
+``noise`` (band-limited pink or white), ``tones`` (stepped tones),
+``bursts`` (tone bursts), ``silence``, ``schedule`` (each speaker in turn)
+and ``probe`` (one planned channel through its drive filters, all speakers
+at once).  Every signal is faded at both ends, DC-blocked, held below a
+peak cap (-12 dBFS unless ``--allow-above-cap``) and refused if it would
+clip; with the speaker's sensitivity, the amplifier's voltage and the
+listener distances the command estimates the level at the listeners and
+refuses levels above a cap unless ``--allow-loud``.  The caution block is
+printed on stderr whenever a playable signal is written.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..errors import InputError
+from ..fileio import provenance
+from ..safety import (CAUTION_NOTE, DEFAULT_MAX_DBA, check_exposure, estimate_exposure, format_exposure,
+                      print_caution)
+from ..signals.levels import (DEFAULT_PEAK_CAP_DBFS, channel_rms_dbfs, check_peak, condition, peak_dbfs,
+                              rms_dbfs, scale_to_level)
+from ..signals.noise import NOISE_COLOURS, band_limited_noise
+from ..signals.probe import channel_probe, read_filter_wav
+from ..signals.schedule import measurement_schedule
+from ..signals.sweeps import SWEEP_KINDS, SweepSettings, make_sweep
+from ..signals.tones import stepped_tones, tone_bursts
+from ..signals.wavout import SAMPLE_FORMATS, inverse_path, write_signal_files
+
+__all__ = ["register", "SIGNAL_FORMAT"]
+
+SIGNAL_FORMAT = "arrayplan-signal"
+_PROBE_EDGE_FADE_S = 0.001
+
+
+# ----------------------------------------------------------------------------- options
+
+def _csv_floats(text: str) -> list[float]:
+    try:
+        vals = [float(v) for v in text.split(",") if v.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected comma-separated numbers, got {text!r}") from None
+    if not vals:
+        raise argparse.ArgumentTypeError("expected at least one number")
+    return vals
+
+
+def _csv_names(text: str) -> list[str]:
+    names = [v.strip() for v in text.split(",")]
+    if not all(names):
+        raise argparse.ArgumentTypeError(f"empty name in {text!r}")
+    if len(set(names)) != len(names):
+        raise argparse.ArgumentTypeError(f"names must be unique, got {text!r}")
+    return names
+
+
+def _positive_int(text: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if v <= 0:
+        raise argparse.ArgumentTypeError(f"must be positive, got {v}")
+    return v
+
+
+def _add_output(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("output")
+    g.add_argument("--out", required=True, type=Path, metavar="FILE.wav",
+                   help="signal file; its sidecar FILE.json (and FILE.inverse.wav for sweeps) go beside it")
+    g.add_argument("--rate-hz", type=_positive_int, default=48000, help="sample rate in Hz (default 48000)")
+    g.add_argument("--format", choices=tuple(SAMPLE_FORMATS), default="float32",
+                   help="sample format of the signal file (default float32)")
+
+
+def _add_level(p: argparse.ArgumentParser, fade_in: float, fade_out: float) -> None:
+    g = p.add_argument_group("level and conditioning")
+    m = g.add_mutually_exclusive_group()
+    m.add_argument("--peak-dbfs", type=float, help="peak level in dBFS (default: the peak cap)")
+    m.add_argument("--rms-dbfs", type=float, help="RMS level in dBFS instead (20 log10 rms; full-scale sine = -3.01)")
+    g.add_argument("--peak-cap-dbfs", type=float, default=DEFAULT_PEAK_CAP_DBFS,
+                   help=f"highest peak allowed without --allow-above-cap (default {DEFAULT_PEAK_CAP_DBFS:g})")
+    g.add_argument("--allow-above-cap", action="store_true",
+                   help="allow a peak above the cap (never above 0 dBFS: clipping is always refused)")
+    g.add_argument("--fade-in-s", type=float, default=fade_in, help=f"raised-cosine fade-in, s (default {fade_in:g})")
+    g.add_argument("--fade-out-s", type=float, default=fade_out,
+                   help=f"raised-cosine fade-out, s (default {fade_out:g})")
+    g.add_argument("--highpass-hz", type=float, help="Butterworth high-pass for small drivers, Hz (default none)")
+    g.add_argument("--highpass-order", type=int, default=2, help="its order (default 2, 12 dB per octave)")
+    g.add_argument("--pad-before-s", type=float, default=0.1, help="silence before the signal, s (default 0.1)")
+
+
+def _add_exposure(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("exposure estimate (give the first three to get one)")
+    g.add_argument("--sensitivity-db-spl", type=float, help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms")
+    g.add_argument("--amp-vrms", type=float,
+                   help="volts RMS at the speaker terminals for a 0 dBFS sine (meter it, or DAC full scale x gain)")
+    g.add_argument("--listener-distance-m", type=_csv_floats,
+                   help="distances of the people present from the speakers, m, comma-separated")
+    g.add_argument("--sensitivity-vrms", type=float, default=2.83,
+                   help="drive voltage of the sensitivity rating, V RMS (default 2.83: 1 W into 8 ohm)")
+    g.add_argument("--max-dba", type=float, default=DEFAULT_MAX_DBA,
+                   help=f"refuse above this estimated level at a listener, dBA (default {DEFAULT_MAX_DBA:g})")
+    g.add_argument("--allow-loud", action="store_true",
+                   help="write the file even above --max-dba or 140 dB SPL peak (hearing protection in place)")
+
+
+def _add_sweep(p: argparse.ArgumentParser, *, kind: bool = True) -> None:
+    g = p.add_argument_group("sweep")
+    if kind:
+        g.add_argument("--kind", choices=SWEEP_KINDS, default="exponential", help="sweep law (default exponential)")
+    g.add_argument("--f1-hz", type=float, default=20.0, help="start frequency (noise: lower band edge), Hz (default 20)")
+    g.add_argument("--f2-hz", type=float, help="end frequency (noise: upper band edge), Hz "
+                                               "(default 20000 or 0.45 x rate if lower)")
+    g.add_argument("--duration-s", type=float, default=4.0, help="sweep duration, s, without padding (default 4)")
+    g.add_argument("--pad-after-s", type=float, default=1.0,
+                   help="silence after each sweep: the room's decay time and the response length, s (default 1)")
+
+
+# ----------------------------------------------------------------------------- building
+
+def _f2(args: argparse.Namespace) -> float:
+    return args.f2_hz if args.f2_hz is not None else min(20000.0, 0.45 * args.rate_hz)
+
+
+def _level_kwargs(args: argparse.Namespace) -> dict[str, float | None]:
+    if args.peak_dbfs is None and args.rms_dbfs is None:
+        return {"peak_dbfs": args.peak_cap_dbfs, "rms_dbfs": None}
+    return {"peak_dbfs": args.peak_dbfs, "rms_dbfs": args.rms_dbfs}
+
+
+def _finish(x: np.ndarray, args: argparse.Namespace, src: str) -> np.ndarray:
+    """Condition, set the level, and check the cap of a generated signal."""
+    y = condition(x, args.rate_hz, fade_in_s=args.fade_in_s, fade_out_s=args.fade_out_s,
+                  highpass_hz=args.highpass_hz, highpass_order=args.highpass_order, source=src)
+    y = scale_to_level(y, **_level_kwargs(args), source=src)
+    check_peak(y, cap_dbfs=args.peak_cap_dbfs, allow_above_cap=args.allow_above_cap, source=src)
+    return y
+
+
+def _pad(x: np.ndarray, before_s: float, after_s: float, fs: int, src: str) -> np.ndarray:
+    for name, v in (("--pad-before-s", before_s), ("--pad-after-s", after_s)):
+        if not (math.isfinite(v) and v >= 0):
+            raise InputError(f"padding must be zero or a positive number of seconds, got {v!r}", source=src,
+                             field=name)
+    x = x if x.ndim == 2 else x[:, None]
+    nb, na = int(round(before_s * fs)), int(round(after_s * fs))
+    return np.concatenate([np.zeros((nb, x.shape[1])), x, np.zeros((na, x.shape[1]))])
+
+
+def _sweep_settings(args: argparse.Namespace, **override: Any) -> SweepSettings:
+    kw = dict(kind=getattr(args, "kind", "exponential"), f1_hz=args.f1_hz, f2_hz=_f2(args),
+              duration_s=args.duration_s, sample_rate_hz=float(args.rate_hz), fade_in_s=args.fade_in_s,
+              fade_out_s=args.fade_out_s, pad_before_s=args.pad_before_s, pad_after_s=args.pad_after_s,
+              peak_dbfs=args.peak_dbfs, rms_dbfs=args.rms_dbfs, peak_cap_dbfs=args.peak_cap_dbfs,
+              allow_above_cap=args.allow_above_cap, highpass_hz=args.highpass_hz,
+              highpass_order=args.highpass_order)
+    kw.update(override)
+    return SweepSettings(**kw)
+
+
+def _conditioning(args: argparse.Namespace) -> dict[str, Any]:
+    return {"fade_in_s": args.fade_in_s, "fade_out_s": args.fade_out_s, "fade_shape": "raised cosine",
+            "dc_blocked": True, "highpass_hz": args.highpass_hz,
+            "highpass_order": args.highpass_order if args.highpass_hz is not None else None}
+
+
+def _build_sweep(args: argparse.Namespace, src: str) -> dict[str, Any]:
+    sw = make_sweep(_sweep_settings(args), source=src)
+    inv = inverse_path(args.out)
+    return {"signal": sw.signal[:, None], "kind": f"{sw.settings.kind}_sweep", "sweep": sw.sidecar(inv.name),
+            "extra_wavs": {inv: sw.inverse}, "combine": "coherent", "channel_names": ["S1"],
+            "parameters": {}}
+
+
+def _build_noise(args: argparse.Namespace, src: str) -> dict[str, Any]:
+    raw = band_limited_noise(args.colour, args.duration_s, args.rate_hz, args.f1_hz, _f2(args),
+                             seed=args.seed, source=src)
+    x = _pad(_finish(raw, args, src), args.pad_before_s, args.pad_after_s, args.rate_hz, src)
+    return {"signal": x, "kind": f"{args.colour}_noise", "combine": "coherent", "channel_names": ["S1"],
+            "parameters": {"colour": args.colour, "f1_hz": args.f1_hz, "f2_hz": _f2(args),
+                           "duration_s": args.duration_s, "seed": args.seed}}
+
+
+def _build_tones(args: argparse.Namespace, src: str) -> dict[str, Any]:
+    raw = stepped_tones(args.freqs_hz, args.tone_s, args.gap_s, args.rate_hz, args.fade_in_s, source=src)
+    x = _pad(_finish(raw, args, src), args.pad_before_s, args.pad_after_s, args.rate_hz, src)
+    return {"signal": x, "kind": "stepped_tones", "combine": "coherent", "channel_names": ["S1"],
+            "parameters": {"freqs_hz": args.freqs_hz, "tone_s": args.tone_s, "gap_s": args.gap_s,
+                           "tone_fade_s": args.fade_in_s}}
+
+
+def _build_bursts(args: argparse.Namespace, src: str) -> dict[str, Any]:
+    raw = tone_bursts(args.freq_hz, args.cycles, args.period_s, args.count, args.rate_hz,
+                      fade_cycles=args.fade_cycles, source=src)
+    x = _pad(_finish(raw, args, src), args.pad_before_s, args.pad_after_s, args.rate_hz, src)
+    return {"signal": x, "kind": "tone_bursts", "combine": "coherent", "channel_names": ["S1"],
+            "parameters": {"freq_hz": args.freq_hz, "cycles": args.cycles, "period_s": args.period_s,
+                           "count": args.count, "fade_cycles": args.fade_cycles}}
+
+
+def _build_silence(args: argparse.Namespace, src: str) -> dict[str, Any]:
+    if not (math.isfinite(args.duration_s) and args.duration_s > 0):
+        raise InputError(f"duration must be positive, got {args.duration_s!r} s", source=src, field="--duration-s")
+    n = int(round(args.duration_s * args.rate_hz))
+    return {"signal": np.zeros((n, args.channels)), "kind": "silence", "combine": "coherent",
+            "channel_names": [f"S{i + 1}" for i in range(args.channels)],
+            "parameters": {"duration_s": args.duration_s}, "playable": False}
+
+
+def _build_schedule(args: argparse.Namespace, src: str) -> dict[str, Any]:
+    names = args.speaker_names or [f"S{i + 1}" for i in range(args.speakers or 0)]
+    if not names:
+        raise InputError("say how many speakers the schedule has", source=src, field="--speakers",
+                         fix="give --speakers N or --speaker-names A,B,...")
+    if args.speakers is not None and args.speaker_names and args.speakers != len(args.speaker_names):
+        raise InputError(f"--speakers {args.speakers} but {len(args.speaker_names)} names", source=src,
+                         field="--speaker-names")
+    sw = make_sweep(_sweep_settings(args), source=src)
+    sched = measurement_schedule(sw, len(names), source=src)
+    inv = inverse_path(args.out)
+    return {"signal": sched.signal, "kind": f"{sw.settings.kind}_sweep_schedule", "sweep": sw.sidecar(inv.name),
+            "extra_wavs": {inv: sw.inverse}, "combine": "one_at_a_time", "channel_names": names,
+            "parameters": {"n_speakers": len(names)},
+            "schedule": {"segment_length_samples": sched.segment_length,
+                         "speakers": [{"speaker": n, "channel": k + 1, "sweep_start_sample": sched.sweep_starts[k],
+                                       "segment_start_sample": sched.segment_starts[k]}
+                                      for k, n in enumerate(names)]}}
+
+
+def _build_probe(args: argparse.Namespace, src: str) -> dict[str, Any]:
+    filters, _, names = read_filter_wav(args.filters, sample_rate_hz=args.rate_hz)
+    fs = args.rate_hz
+    sweep_block = None
+    extra = {}
+    if args.source == "sweep":
+        # Unit-peak sweep; its inverse is rescaled below to the level actually played.
+        sw = make_sweep(_sweep_settings(args, peak_dbfs=0.0, rms_dbfs=None, allow_above_cap=True,
+                                        pad_before_s=0.0, pad_after_s=1.0 / fs), source=src)
+        unit = sw.sweep
+    else:
+        unit = condition(band_limited_noise(args.source, args.duration_s, fs, args.f1_hz, _f2(args),
+                                            seed=args.seed, source=src), fs, fade_in_s=args.fade_in_s,
+                         fade_out_s=args.fade_out_s, highpass_hz=args.highpass_hz,
+                         highpass_order=args.highpass_order, source=src)
+    out = channel_probe(unit, filters)
+    out = condition(out, fs, fade_in_s=_PROBE_EDGE_FADE_S, fade_out_s=_PROBE_EDGE_FADE_S, source=src)
+    lev = _level_kwargs(args)
+    played = scale_to_level(out, **lev, source=src)
+    check_peak(played, cap_dbfs=args.peak_cap_dbfs, allow_above_cap=args.allow_above_cap, source=src)
+    scale = float(np.max(np.abs(played)) / np.max(np.abs(out)))
+    x = _pad(played, args.pad_before_s, args.pad_after_s, fs, src)
+    channel = args.channel_name or Path(args.filters).stem
+    if args.source == "sweep":
+        inv = inverse_path(args.out)
+        extra = {inv: sw.inverse / scale}
+        sweep_block = sw.sidecar(inv.name)
+        nb = int(round(args.pad_before_s * fs))
+        sweep_block.update({
+            "pad_before_samples": nb, "pad_before_s": args.pad_before_s,
+            "pad_after_samples": x.shape[0] - nb - sw.n_sweep,
+            "pad_after_s": (x.shape[0] - nb - sw.n_sweep) / fs,
+            "linear_lag_samples": nb + sw.n_sweep - 1,
+            "sweep_peak_dbfs": 20 * math.log10(scale), "sweep_rms_dbfs": rms_dbfs(unit * scale),
+            "inverse_normalisation": "max |sweep * inverse| = 1 for the sweep at its level before the filters, "
+                                     "so a deconvolved recording is the channel's response per unit channel input",
+        })
+    return {"signal": x, "kind": f"channel_probe_{args.source}", "sweep": sweep_block, "extra_wavs": extra,
+            "combine": "coherent", "channel_names": names,
+            "parameters": {"source": args.source, "f1_hz": args.f1_hz, "f2_hz": _f2(args),
+                           "duration_s": args.duration_s, "seed": getattr(args, "seed", None)},
+            "probe": {"channel_name": channel, "filters_file": str(Path(args.filters).name),
+                      "n_filter_taps": int(filters.shape[0]), "speaker_names": names,
+                      "source_gain_db": 20 * math.log10(scale)}}
+
+
+_BUILDERS = {"sweep": _build_sweep, "noise": _build_noise, "tones": _build_tones, "bursts": _build_bursts,
+             "silence": _build_silence, "schedule": _build_schedule, "probe": _build_probe}
+
+
+# ----------------------------------------------------------------------------- running
+
+def _finite(v: float) -> float | None:
+    return float(v) if math.isfinite(v) else None
+
+
+def _exposure(args: argparse.Namespace, x: np.ndarray, combine: str, src: str):
+    given = [args.sensitivity_db_spl is not None, args.amp_vrms is not None, args.listener_distance_m is not None]
+    if not any(given):
+        return None
+    if not all(given):
+        raise InputError("the exposure estimate needs all of --sensitivity-db-spl, --amp-vrms and "
+                         "--listener-distance-m", source=src, field="--sensitivity-db-spl",
+                         fix="give all three, or none to skip the estimate")
+    return estimate_exposure(x, args.rate_hz, sensitivity_db_spl=args.sensitivity_db_spl,
+                             amp_vrms_full_scale=args.amp_vrms, distances_m=args.listener_distance_m,
+                             sensitivity_vrms=args.sensitivity_vrms, combine=combine)
+
+
+def _run(args: argparse.Namespace) -> int:
+    src = f"signal {args.signal}"
+    built = _BUILDERS[args.signal](args, src)
+    x = built["signal"]
+    playable = built.get("playable", True)
+    warnings: list[str] = []
+    estimate = _exposure(args, x, built["combine"], src) if playable else None
+    if estimate is not None:
+        warnings += check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud, source=src)
+    elif playable:
+        warnings.append("no exposure estimate: give --sensitivity-db-spl, --amp-vrms and --listener-distance-m "
+                        "to check the level at the listeners")
+    if getattr(args, "allow_above_cap", False) and peak_dbfs(x) > args.peak_cap_dbfs + 1e-9:
+        warnings.append(f"peak {peak_dbfs(x):+.2f} dBFS is above the cap of {args.peak_cap_dbfs:+.1f} dBFS "
+                        "(allowed by --allow-above-cap)")
+    sidecar = {
+        "format": SIGNAL_FORMAT,
+        "format_version": 1,
+        "signal": built["kind"],
+        "file": args.out.name,
+        "sample_rate_hz": float(args.rate_hz),
+        "n_samples": int(x.shape[0]),
+        "n_channels": int(x.shape[1]),
+        "channel_names": built["channel_names"],
+        "sample_format": args.format,
+        "level": {"peak_dbfs": _finite(peak_dbfs(x)), "rms_dbfs": _finite(rms_dbfs(x)),
+                  "channel_rms_dbfs": [_finite(v) for v in channel_rms_dbfs(x)],
+                  "peak_cap_dbfs": getattr(args, "peak_cap_dbfs", None),
+                  "above_cap_allowed": bool(getattr(args, "allow_above_cap", False)),
+                  "dbfs_convention": "20 log10 of peak or RMS, full scale = 1 (full-scale sine: -3.01 dBFS RMS)"},
+        "conditioning": _conditioning(args) if playable else None,
+        "parameters": built["parameters"],
+        "sweep": built.get("sweep"),
+        "schedule": built.get("schedule"),
+        "probe": built.get("probe"),
+        "exposure": estimate.to_json() if estimate is not None else None,
+        "warnings": warnings,
+        "caution": CAUTION_NOTE,
+        "provenance": provenance(command=f"arrayplan signal {args.signal}"),
+    }
+    written = write_signal_files(args.out, x, args.rate_hz, args.format, sidecar, built.get("extra_wavs"))
+    if playable:
+        print_caution(sys.stderr)
+    for w in warnings:
+        print(f"arrayplan signal: warning: {w}", file=sys.stderr)
+    print(f"wrote {written[0]} ({built['kind']}, {x.shape[1]} channel(s), {x.shape[0] / args.rate_hz:.3f} s at "
+          f"{args.rate_hz} Hz, {args.format}; peak {peak_dbfs(x):+.2f} dBFS, RMS {rms_dbfs(x):+.2f} dBFS)")
+    for p in written[1:]:
+        print(f"wrote {p}")
+    if estimate is not None:
+        print(format_exposure(estimate))
+    return 0
+
+
+def register(subparsers: argparse._SubParsersAction) -> None:
+    """Add the ``signal`` command and its sub-commands."""
+    p = subparsers.add_parser("signal", help="write safe test signals (sweeps, noise, tones, schedules, probes)",
+                              description=__doc__.split("\n\n")[1].replace("\n", " "))
+    sub = p.add_subparsers(dest="signal", metavar="KIND")
+    sub.required = True
+
+    s = sub.add_parser("sweep", help="exponential or linear sine sweep, with its inverse filter")
+    _add_sweep(s)
+    _add_level(s, 0.02, 0.005)
+    _add_output(s)
+    _add_exposure(s)
+
+    s = sub.add_parser("noise", help="band-limited pink or white noise")
+    s.add_argument("--colour", choices=NOISE_COLOURS, default="pink", help="spectrum (default pink)")
+    s.add_argument("--seed", type=int, help="random seed, for a reproducible file")
+    _add_sweep(s, kind=False)
+    s.set_defaults(duration_s=10.0)
+    _add_level(s, 0.05, 0.05)
+    _add_output(s)
+    _add_exposure(s)
+
+    s = sub.add_parser("tones", help="stepped steady tones separated by silence")
+    s.add_argument("--freqs-hz", type=_csv_floats, required=True, help="tone frequencies, Hz, comma-separated")
+    s.add_argument("--tone-s", type=float, default=1.0, help="duration of each tone, s (default 1)")
+    s.add_argument("--gap-s", type=float, default=0.5, help="silence between tones, s (default 0.5)")
+    s.add_argument("--pad-after-s", type=float, default=0.1, help="silence after the last tone, s (default 0.1)")
+    _add_level(s, 0.01, 0.01)
+    _add_output(s)
+    _add_exposure(s)
+
+    s = sub.add_parser("bursts", help="tone bursts: a few periods of a tone, repeated")
+    s.add_argument("--freq-hz", type=float, required=True, help="tone frequency, Hz")
+    s.add_argument("--cycles", type=float, default=10.0, help="periods per burst, fades included (default 10)")
+    s.add_argument("--fade-cycles", type=float, default=2.0, help="fade at each end of a burst, periods (default 2)")
+    s.add_argument("--period-s", type=float, default=0.5, help="time from burst to burst, s (default 0.5)")
+    s.add_argument("--count", type=_positive_int, default=8, help="number of bursts (default 8)")
+    s.add_argument("--pad-after-s", type=float, default=0.1, help="silence after the last burst, s (default 0.1)")
+    _add_level(s, 0.001, 0.001)
+    _add_output(s)
+    _add_exposure(s)
+
+    s = sub.add_parser("silence", help="silence, for padding a playlist or recording the noise floor")
+    s.add_argument("--duration-s", type=float, default=1.0, help="duration, s (default 1)")
+    s.add_argument("--channels", type=_positive_int, default=1, help="number of channels (default 1)")
+    _add_output(s)
+
+    s = sub.add_parser("schedule", help="each speaker plays the sweep in turn, with a decay gap between")
+    s.add_argument("--speakers", type=_positive_int, help="number of speakers (channels, rig order)")
+    s.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated (default S1, S2, ...)")
+    _add_sweep(s)
+    _add_level(s, 0.02, 0.005)
+    _add_output(s)
+    _add_exposure(s)
+
+    s = sub.add_parser("probe", help="one planned channel: a sweep or noise through its drive filters, "
+                                     "all speakers at once")
+    s.add_argument("--filters", type=Path, required=True, metavar="FILTERS.wav",
+                   help="the channel's drive filters: float WAV, one channel per speaker in rig order "
+                        "(speaker names are taken from FILTERS.json if it exists)")
+    s.add_argument("--source", choices=("sweep",) + NOISE_COLOURS, default="sweep",
+                   help="probe signal before the filters (default sweep; its inverse filter is written too)")
+    s.add_argument("--channel-name", help="name of the channel in the sidecar (default: the filter file's stem)")
+    s.add_argument("--seed", type=int, help="random seed for a noise source")
+    _add_sweep(s)
+    _add_level(s, 0.02, 0.005)
+    _add_output(s)
+    _add_exposure(s)
+
+    p.set_defaults(run=_run)
