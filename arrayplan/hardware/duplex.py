@@ -162,7 +162,8 @@ class SoundDeviceLink:
     been seen to lose data silently on software audio servers.  Status flags
     are collected per block; blocks flagged before the first non-zero output
     sample are counted as start-up flags only, which is why every take starts
-    with a lead-in of silence.  A Ctrl-C while playing ramps the output to
+    with a lead-in of silence.  Streams open channels 1..max(channel) (at least
+    two where the device has two): unused outputs play silence.  A Ctrl-C while playing ramps the output to
     zero over :data:`FADE_OUT_ON_STOP_S`, closes the stream and re-raises
     KeyboardInterrupt.
     """
@@ -184,8 +185,10 @@ class SoundDeviceLink:
                               f"device {self.device.index} ({self.device.name})")
         sd = sounddevice_module()
         n = sig.shape[0]
-        n_out_open = max(out_channels) + 1
-        n_in_open = max(in_channels) + 1
+        # Open at least two channels where the device has them: a one-channel
+        # stream is "mono" to some servers and does not land on channel 1.
+        n_out_open = max(max(out_channels) + 1, min(2, self.n_outputs))
+        n_in_open = max(max(in_channels) + 1, min(2, self.n_inputs))
         frames_out = np.zeros((n, n_out_open), dtype=np.float32)
         frames_out[:, list(out_channels)] = sig
         captured = np.zeros((n, n_in_open), dtype=np.float32)

@@ -1,0 +1,95 @@
+"""Shared fixtures.
+
+``audio_server``: a private PulseAudio daemon with an 8-channel null sink
+(see tests/audio_server.py), started once per session and only for tests
+that ask for it.  Where pulseaudio is not installed those tests are skipped
+with the exact reason; under CI (CI=true) they fail instead, because .ci/run
+installs it.  No test module may import sounddevice at import time:
+PortAudio must be initialised after the daemon is up and PULSE_SERVER set.
+"""
+
+from __future__ import annotations
+
+import os
+
+import pytest
+
+from audio_server import AudioServer, missing_reason
+
+#: Channels of the null sink used by the real-audio tests.
+AUDIO_SERVER_CHANNELS = 8
+
+
+@pytest.fixture(scope="session")
+def audio_server():
+    """A running private PulseAudio daemon; PULSE_SERVER points at it."""
+    reason = missing_reason()
+    if reason:
+        if os.environ.get("CI"):
+            pytest.fail(f"real-audio tests cannot run in CI: {reason}")
+        pytest.skip(f"real-audio test skipped: {reason}")
+    server = AudioServer(n_channels=AUDIO_SERVER_CHANNELS).start()
+    try:
+        yield server
+    finally:
+        server.stop()
+
+
+#: The invented bench rig of the measurement tests and of calibration/demo-rig.toml:
+#: three speakers on outputs 1-3, three microphones on inputs 1-3, and a loopback
+#: reference from output 4 to input 4.
+BENCH_RIG_TOML = """\
+[rig]
+name = "bench-trio"
+description = "Invented bench rig: three speakers facing three microphones 1.5 m away"
+
+[medium]
+speed_of_sound = 343.2
+
+[[speakers]]
+name = "S1"
+position = [0.0, 0.0, 1.0]
+channel = 1
+
+[[speakers]]
+name = "S2"
+position = [0.4, 0.0, 1.0]
+channel = 2
+
+[[speakers]]
+name = "S3"
+position = [0.8, 0.0, 1.0]
+channel = 3
+
+[[microphones]]
+name = "M1"
+position = [0.0, 1.5, 1.0]
+channel = 1
+
+[[microphones]]
+name = "M2"
+position = [0.4, 1.5, 1.0]
+channel = 2
+
+[[microphones]]
+name = "M3"
+position = [0.8, 1.5, 1.0]
+channel = 3
+
+[hardware]
+sample_rate_hz = 48000
+reference = { output_channel = 4, input_channel = 4 }
+"""
+
+
+@pytest.fixture
+def bench_rig(tmp_path):
+    """Path of the bench rig file (with its reference loop) in a temporary folder."""
+    path = tmp_path / "bench-rig.toml"
+    path.write_text(BENCH_RIG_TOML)
+    return path
+
+
+#: Short sweep options for the measure command in tests (keep the suite fast).
+FAST_MEASURE_ARGS = ["--f1", "100", "--duration-s", "0.5", "--ir-s", "0.05", "--max-latency-s", "0.1",
+                     "--lead-in-s", "0.1"]

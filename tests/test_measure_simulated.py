@@ -1,0 +1,216 @@
+"""The take loop against the simulated rig, whose true responses are known."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from scipy.signal import fftconvolve
+
+from arrayplan.errors import DeviceError, InputError
+from arrayplan.hardware.measure import MeasurementSettings, RigWiring, completed_takes, measure
+from arrayplan.hardware.simulated import SimulatedLink, apply_nonlinearity
+from arrayplan.irset import IRSet, read_irset
+from arrayplan.rig import load_rig
+from arrayplan.signals.sweeps import make_sweep
+
+FS = 48000.0
+FAST = MeasurementSettings(f1_hz=100.0, sweep_s=0.5, ir_s=0.05, max_latency_s=0.1, lead_in_s=0.1)
+N_IR = int(FAST.ir_s * FS)
+
+
+def _expected(truth: np.ndarray, settings: MeasurementSettings, n: int) -> np.ndarray:
+    """Truth convolved with sweep * inverse, cut at zero lag: what an exact loop must give."""
+    sweep = make_sweep(settings.sweep_settings(FS))
+    g = fftconvolve(sweep.sweep, sweep.inverse)
+    lag = sweep.n_sweep - 1
+    out = np.zeros((n,) + truth.shape[1:])
+    for m in range(truth.shape[1]):
+        for s in range(truth.shape[2]):
+            out[:, m, s] = fftconvolve(truth[:, m, s], g)[lag:lag + n]
+    return out
+
+
+@pytest.fixture
+def rig(bench_rig):
+    return load_rig(bench_rig)
+
+
+def test_exact_linear_rig_gives_truth_through_the_sweep_band(rig, tmp_path):
+    link = SimulatedLink.from_rig(rig, FS, N_IR, latency_samples=777, nonlinearity=(), noise_rms_dbfs=None)
+    summary = measure(link, RigWiring.from_rig(rig), tmp_path / "m", FAST)
+    assert [t.latency_samples for t in summary.takes] == [777, 777, 777]
+    assert all(t.status == "ok" for t in summary.takes)
+    got = read_irset(tmp_path / "m" / "irset")
+    assert got.data.shape == (N_IR, 3, 3) and got.units == "full_scale"
+    assert got.speaker_names == ["S1", "S2", "S3"] and got.mic_names == ["M1", "M2", "M3"]
+    want = _expected(link.truth.data, FAST, N_IR)
+    # float32 converters and files: relative error at the float32 level.
+    assert np.max(np.abs(got.data - want)) < 1e-6 * np.max(np.abs(want))
+    # Direct sound of S1 at M1 arrives after 1.5 m / 343.2 m/s (geometry of the bench rig).
+    arrival = int(np.argmax(np.abs(got.data[:, 0, 0])))
+    assert abs(arrival - 1.5 / 343.2 * FS) <= 1
+
+
+def test_latency_from_calibration_or_given_when_there_is_no_reference(rig, tmp_path):
+    from arrayplan.hardware.calibration import CalibrationRecord, LatencyCalibration, MicCalibration
+
+    wiring = RigWiring.from_rig(rig)
+    no_ref = RigWiring(wiring.speaker_names, wiring.speaker_outputs, wiring.mic_names, wiring.mic_inputs, None,
+                       wiring.speaker_positions, wiring.mic_positions, wiring.rig_sha256, "bench")
+    link = SimulatedLink.from_rig(rig, FS, N_IR, latency_samples=500, nonlinearity=(), noise_rms_dbfs=None,
+                                  reference=None)
+    mics = tuple(MicCalibration(n, i + 1, 10.0, 1.0) for i, n in enumerate(wiring.mic_names))
+    rec = CalibrationRecord(microphones=mics, latency=LatencyCalibration(500, FS))
+    a = measure(link, no_ref, tmp_path / "a", FAST, calibration=rec)
+    assert [t.latency_source for t in a.takes] == ["calibration"] * 3
+    b = measure(link, no_ref, tmp_path / "b", FAST, latency_samples=500)
+    assert [t.latency_samples for t in b.takes] == [500] * 3
+    warned = []
+    measure(link, no_ref, tmp_path / "c", FAST, on_warning=warned.append)
+    assert any("latency not removed" in w for w in warned)
+    with pytest.raises(InputError, match="measured at 44100 Hz"):
+        measure(link, no_ref, tmp_path / "d", FAST, calibration=CalibrationRecord(
+            microphones=mics, latency=LatencyCalibration(500, 44100.0)))
+
+
+def test_averaging_repeats_lowers_the_noise_by_10_log10_n(rig, tmp_path):
+    # Synchronous averaging of N takes lowers uncorrelated noise power by N:
+    # 10 log10(4) = 6.02 dB (common practice, no source).
+    wiring = RigWiring.from_rig(rig)
+    pnr = {}
+    for repeats in (1, 4):
+        link = SimulatedLink.from_rig(rig, FS, N_IR, nonlinearity=(), noise_rms_dbfs=-70.0, seed=repeats)
+        settings = MeasurementSettings(**{**FAST.__dict__, "repeats": repeats, "min_peak_to_noise_db": 0.0})
+        summary = measure(link, wiring, tmp_path / f"r{repeats}", settings)
+        pnr[repeats] = np.mean([np.mean(t.peak_to_noise_db) for t in summary.takes])
+        take = json.loads((summary.takes[0].folder / "take.json").read_text())
+        assert take["recording"]["repeats"] == repeats
+    assert pnr[4] - pnr[1] == pytest.approx(10 * math.log10(4), abs=1.0)
+
+
+def test_harmonics_of_the_simulated_speaker_are_reported(rig, tmp_path):
+    link = SimulatedLink.from_rig(rig, FS, N_IR, nonlinearity=(0.05,), noise_rms_dbfs=None)
+    summary = measure(link, RigWiring.from_rig(rig), tmp_path / "h", FAST)
+    levels = summary.takes[0].details["harmonic_levels_db"]
+    # x + a x^2 at sweep amplitude A gives a second harmonic of amplitude a A^2 / 2
+    # relative to A: 20 log10(0.05 * 0.251 / 2) = -44 dB (trigonometric identity, no source).
+    amp = 10 ** (-12 / 20)
+    assert levels["2"] == pytest.approx(20 * math.log10(0.05 * amp / 2), abs=1.5)
+    assert levels["3"] < levels["2"] - 20
+
+
+class TestTakeChecks:
+    """Each fault gives a warning and a marked take, never a silent pass."""
+
+    def _run(self, rig, tmp_path, truth=None, **options):
+        if truth is None:
+            link = SimulatedLink.from_rig(rig, FS, N_IR, **options)
+        else:
+            link = SimulatedLink(truth, [0, 1, 2], [0, 1, 2], reference=(3, 3), **options)
+        warned = []
+        summary = measure(link, RigWiring.from_rig(rig), tmp_path / "t", FAST, on_warning=warned.append)
+        return summary, warned
+
+    def test_clean_takes_are_ok(self, rig, tmp_path):
+        summary, warned = self._run(rig, tmp_path)
+        assert warned == [] and all(t.status == "ok" for t in summary.takes)
+
+    def test_clipping_at_the_input(self, rig, tmp_path):
+        from arrayplan.simulate import free_field_irset
+
+        loud = free_field_irset(rig, FS, N_IR)
+        loud.data *= 100.0
+        summary, warned = self._run(rig, tmp_path, truth=loud, noise_rms_dbfs=None)
+        assert all(t.status == "marked" for t in summary.takes)
+        assert all("input clipped at M" in w for w in warned)
+        manifest = json.loads((tmp_path / "t" / "irset" / "irset.json").read_text())
+        assert any("clipped" in w for w in manifest["warnings"])
+
+    def test_dropouts_are_flagged(self, rig, tmp_path):
+        summary, warned = self._run(rig, tmp_path, dropouts_per_take=2)
+        assert all(t.status == "marked" for t in summary.takes)
+        assert all("2 input dropouts" in w for w in warned)
+
+    def test_low_peak_to_noise(self, rig, tmp_path):
+        summary, warned = self._run(rig, tmp_path, noise_rms_dbfs=-30.0)
+        assert all(t.status == "marked" for t in summary.takes)
+        assert all("peak-to-noise below 40 dB" in w for w in warned)
+
+    def test_a_speaker_on_no_microphone(self, rig, tmp_path):
+        from arrayplan.simulate import free_field_irset
+
+        cut = free_field_irset(rig, FS, N_IR)
+        cut.data[:, :, 1] = 0.0  # S2's cable is unplugged
+        summary, warned = self._run(rig, tmp_path, truth=cut)
+        assert [t.status for t in summary.takes] == ["ok", "marked", "ok"]
+        assert len(warned) == 1 and "speaker S2 shows up on no microphone" in warned[0]
+
+    def test_missing_reference_loop_stops_with_a_clear_message(self, rig, tmp_path):
+        link = SimulatedLink.from_rig(rig, FS, N_IR, reference=None, n_inputs=4, n_outputs=4)
+        with pytest.raises(DeviceError, match="loopback reference shows no clear impulse"):
+            measure(link, RigWiring.from_rig(rig), tmp_path / "t", FAST)
+        assert completed_takes(tmp_path / "t") == {}
+
+
+def test_resume_measures_only_missing_takes_and_redo_marked(rig, tmp_path):
+    wiring = RigWiring.from_rig(rig)
+    out = tmp_path / "r"
+
+    class StopAfter(SimulatedLink):
+        """Raises KeyboardInterrupt on the third call, as Ctrl-C would."""
+        calls = 0
+
+        def play_record(self, *a, **k):
+            StopAfter.calls += 1
+            if StopAfter.calls == 3:
+                raise KeyboardInterrupt
+            return super().play_record(*a, **k)
+
+    truth = SimulatedLink.from_rig(rig, FS, N_IR).truth
+    stopping = StopAfter(truth, [0, 1, 2], [0, 1, 2], reference=(3, 3), dropouts_per_take=1)
+    events = []
+    with pytest.raises(KeyboardInterrupt):
+        measure(stopping, wiring, out, FAST, on_event=events.append)
+    assert sorted(completed_takes(out)) == ["001-S1", "002-S2"]
+    assert "stopped: 2 of 3 takes are kept" in events[-1]
+    assert not (out / "irset").exists()
+    first = (out / "takes" / "001-S1" / "recording.wav").read_bytes()
+
+    clean = SimulatedLink(truth, [0, 1, 2], [0, 1, 2], reference=(3, 3))
+    again = measure(clean, wiring, out, FAST)
+    assert again.resumed == ["S1", "S2"] and again.measured == ["S3"]
+    assert (out / "takes" / "001-S1" / "recording.wav").read_bytes() == first
+    assert [t.status for t in again.takes] == ["marked", "marked", "ok"]
+    redo = measure(clean, wiring, out, FAST, redo_marked=True)
+    assert redo.measured == ["S1", "S2"] and [t.status for t in redo.takes] == ["ok"] * 3
+    assert read_irset(out / "irset").n_spk == 3
+    assert not [p for p in (out / "takes").iterdir() if p.name.startswith(".")]
+
+
+def test_resume_refuses_other_settings_or_rig(rig, tmp_path):
+    link = SimulatedLink.from_rig(rig, FS, N_IR)
+    wiring = RigWiring.from_rig(rig)
+    measure(link, wiring, tmp_path / "s", FAST)
+    other = MeasurementSettings(**{**FAST.__dict__, "sweep_s": 0.6})
+    with pytest.raises(InputError, match="other 'settings'"):
+        measure(link, wiring, tmp_path / "s", other)
+
+
+def test_wiring_faults_are_refused_before_anything_plays(rig, tmp_path):
+    wiring = RigWiring.from_rig(rig)
+    with pytest.raises(InputError, match="reference output 1 is also a speaker's output"):
+        RigWiring(wiring.speaker_names, wiring.speaker_outputs, wiring.mic_names, wiring.mic_inputs, (0, 3))
+    with pytest.raises(InputError, match="share a speaker output channel"):
+        RigWiring(("a", "b"), (0, 0), ("m",), (0,))
+    small = SimulatedLink(IRSet(np.ones((64, 1, 1)), FS, ["a"], ["m"]), [0], [0], reference=None)
+    with pytest.raises(DeviceError, match="uses output channel 4 but simulated"):
+        measure(small, wiring, tmp_path / "x", FAST)
+    assert not (tmp_path / "x").exists()
+
+
+def test_nonlinearity_helper():
+    x = np.array([0.0, 0.5, -1.0])
+    assert np.allclose(apply_nonlinearity(x, (0.1, 0.2)), x + 0.1 * x ** 2 + 0.2 * x ** 3)
