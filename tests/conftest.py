@@ -11,6 +11,7 @@ PortAudio must be initialised after the daemon is up and PULSE_SERVER set.
 from __future__ import annotations
 
 import os
+import sys
 
 import pytest
 
@@ -93,3 +94,6 @@ def bench_rig(tmp_path):
 #: Short sweep options for the measure command in tests (keep the suite fast).
 FAST_MEASURE_ARGS = ["--f1", "100", "--duration-s", "0.5", "--ir-s", "0.05", "--max-latency-s", "0.1",
                      "--lead-in-s", "0.1"]
+
+#: How the tests run the command line in a child process.
+ARRAYPLAN_COMMAND = [sys.executable, "-m", "arrayplan"]

@@ -430,10 +430,10 @@ def read_wav_channel(path: str | os.PathLike, channel: int, *, field: str = "--c
     import soundfile as sf
 
     src = str(path)
+    if not Path(src).is_file():
+        raise InputError("recording not found", source=src, fix="check the path")
     try:
         data, rate = sf.read(src, dtype="float64", always_2d=True)
-    except FileNotFoundError:
-        raise InputError("recording not found", source=src) from None
     except Exception as exc:  # soundfile raises several kinds
         raise InputError(f"cannot read as audio ({exc})", source=src) from None
     if not 1 <= channel <= data.shape[1]:

@@ -27,6 +27,7 @@ same folder measures only the missing takes.
 
 from __future__ import annotations
 
+import io
 import math
 import os
 import shutil
@@ -414,8 +415,9 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
         Output folder (created); re-running into it resumes.
     settings : MeasurementSettings
     calibration : CalibrationRecord, optional
-        Gives physical units (Pa per V, or Pa per full scale) and, when the
-        rig has no reference loop, the latency.
+        Gives physical units (Pa per V, or Pa per full scale) when it holds
+        microphones (then it must hold every microphone of the rig) and, when
+        the rig has no reference loop, the latency.
     latency_samples : int, optional
         Latency to remove when there is neither a reference nor a
         calibrated latency.
@@ -457,7 +459,7 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
     else:
         latency_source = "none"
     units, pa_per_fs, v_per_fs, cal_notes = "full_scale", None, None, []
-    if calibration is not None:
+    if calibration is not None and calibration.microphones:
         pa_per_fs, v_per_fs, units, cal_notes = calibration_factors(
             calibration, wiring.mic_names, [c + 1 for c in wiring.mic_inputs],
             [c + 1 for c in wiring.speaker_outputs])
@@ -578,8 +580,11 @@ def _save_take(take: TakeResult, result: DuplexResult, ir: np.ndarray, units: st
     s = take.index
     stage = Path(tempfile.mkdtemp(prefix=_STAGING_PREFIX + take.folder.name + ".", dir=takes_dir))
     try:
-        sf.write(stage / "recording.wav", result.recording.astype(np.float32), int(round(result.sample_rate_hz)),
+        # Encoded in memory and written with plain file I/O, so a full disk is an OSError.
+        wav = io.BytesIO()
+        sf.write(wav, result.recording.astype(np.float32), int(round(result.sample_rate_hz)),
                  subtype="FLOAT", format="WAV")
+        (stage / "recording.wav").write_bytes(wav.getvalue())
         pos_s = None if wiring.speaker_positions is None else wiring.speaker_positions[[s]]
         irs = IRSet(data=ir[:, :, None], sample_rate_hz=result.sample_rate_hz, speaker_names=[take.speaker],
                     mic_names=list(wiring.mic_names), speaker_positions=pos_s, mic_positions=wiring.mic_positions,
@@ -605,9 +610,10 @@ def _save_take(take: TakeResult, result: DuplexResult, ir: np.ndarray, units: st
             shutil.rmtree(old, ignore_errors=True)
         else:
             os.rename(stage, take.folder)
-    except OSError as exc:
+    except (OSError, sf.SoundFileError) as exc:
         shutil.rmtree(stage, ignore_errors=True)
-        raise InputError(f"could not save the take of speaker {take.speaker} ({exc.strerror or exc})",
+        reason = getattr(exc, "strerror", None) or " ".join(str(exc).split())
+        raise InputError(f"could not save the take of speaker {take.speaker} ({reason})",
                          source=str(out_dir),
                          fix=f"free disk space or choose another folder; the {n_kept} finished take(s) are "
                              "intact and running the same command again resumes") from None
