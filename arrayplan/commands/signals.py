@@ -26,7 +26,7 @@ from ..errors import InputError
 from ..fileio import provenance
 from ..safety import (CAUTION_NOTE, DEFAULT_MAX_DBA, check_exposure, estimate_exposure, format_exposure,
                       print_caution)
-from ..signals.levels import (DEFAULT_PEAK_CAP_DBFS, channel_rms_dbfs, check_peak, condition, peak_dbfs,
+from ..signals.levels import (DEFAULT_PEAK_CAP_DBFS, block_dc, channel_rms_dbfs, check_peak, condition, peak_dbfs,
                               rms_dbfs, scale_to_level)
 from ..signals.noise import NOISE_COLOURS, band_limited_noise
 from ..signals.probe import channel_probe, read_filter_wav
@@ -38,7 +38,6 @@ from ..signals.wavout import SAMPLE_FORMATS, inverse_path, write_signal_files
 __all__ = ["register", "SIGNAL_FORMAT"]
 
 SIGNAL_FORMAT = "arrayplan-signal"
-_PROBE_EDGE_FADE_S = 0.001
 
 
 # ----------------------------------------------------------------------------- options
@@ -251,8 +250,9 @@ def _build_probe(args: argparse.Namespace, src: str) -> dict[str, Any]:
                                             seed=args.seed, source=src), fs, fade_in_s=args.fade_in_s,
                          fade_out_s=args.fade_out_s, highpass_hz=args.highpass_hz,
                          highpass_order=args.highpass_order, source=src)
-    out = channel_probe(unit, filters)
-    out = condition(out, fs, fade_in_s=_PROBE_EDGE_FADE_S, fade_out_s=_PROBE_EDGE_FADE_S, source=src)
+    # The source is faded at both ends, so each speaker's drive starts and ends at zero too;
+    # only the DC the filters could add is removed again.
+    out = block_dc(channel_probe(unit, filters))
     lev = _level_kwargs(args)
     played = scale_to_level(out, **lev, source=src)
     check_peak(played, cap_dbfs=args.peak_cap_dbfs, allow_above_cap=args.allow_above_cap, source=src)

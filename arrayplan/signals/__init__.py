@@ -35,20 +35,29 @@ Deconvolution (:mod:`.deconvolve`)
         -> Deconvolution (.linear (ir_length, n_mic), .harmonics {order: (n_k, n_mic)}, .full)
     harmonic_levels_db, total_harmonic_level_db, peak_to_noise_db, clipped_sample_counts,
     split_schedule(recording, segment_starts, segment_length)
+    impulse_responses([recording (n, n_mic) per speaker], inverse, ...) -> OfflineResult
+        (.data (ir_length, n_mic, n_spk), .harmonics, .harmonic_db, .peak_to_noise_db, .warnings)
 
 Files (:mod:`.wavout`)
-    write_signal_files(wav_path, signal, rate, subtype, sidecar, extra_wavs) : WAV + JSON sidecar, atomic
+    write_signal_files(wav_path, signal, rate, sample_format, sidecar, extra_wavs) : WAV + JSON sidecar, atomic
     read_recording(path) -> (data (n, n_ch), rate)
+
+Safety (the caution block, the exposure estimate) lives in :mod:`arrayplan.safety`.
 """
 
-from .deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, Deconvolution, clipped_sample_counts,
-                         deconvolve, harmonic_levels_db, harmonic_windows, peak_to_noise_db, split_schedule,
-                         total_harmonic_level_db)
+from .deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, Deconvolution, OfflineResult,
+                         clipped_sample_counts, deconvolve, harmonic_levels_db, harmonic_windows, impulse_responses,
+                         peak_to_noise_db, split_schedule, total_harmonic_level_db)
 from .levels import (DEFAULT_PEAK_CAP_DBFS, amplitude_from_dbfs, block_dc, channel_rms_dbfs, check_peak,
                      condition, highpass, peak_dbfs, raised_cosine_fade, rms_dbfs, scale_to_level)
 from .sweeps import (SWEEP_KINDS, SweepRecord, SweepSettings, SweepSignal, check_sweep_band,
                      exponential_inverse_filter, exponential_sweep, harmonic_offset_s, linear_inverse_filter,
                      linear_sweep, make_sweep, normalise_inverse)
+from .noise import NOISE_COLOURS, band_limited_noise
+from .probe import channel_probe, read_filter_wav
+from .schedule import Schedule, measurement_schedule
+from .tones import stepped_tones, tone_bursts
+from .wavout import SAMPLE_FORMATS, read_recording, write_signal_files
 
 __all__ = [
     "CLIP_THRESHOLD", "DEFAULT_MIN_PEAK_TO_NOISE_DB", "Deconvolution", "clipped_sample_counts", "deconvolve",
@@ -58,4 +67,7 @@ __all__ = [
     "SWEEP_KINDS", "SweepRecord", "SweepSettings", "SweepSignal", "check_sweep_band",
     "exponential_inverse_filter", "exponential_sweep", "harmonic_offset_s", "linear_inverse_filter",
     "linear_sweep", "make_sweep", "normalise_inverse",
+    "OfflineResult", "impulse_responses", "NOISE_COLOURS", "band_limited_noise", "channel_probe", "read_filter_wav",
+    "Schedule", "measurement_schedule", "stepped_tones", "tone_bursts", "SAMPLE_FORMATS", "read_recording",
+    "write_signal_files",
 ]

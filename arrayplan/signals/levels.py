@@ -234,5 +234,6 @@ def check_peak(x: np.ndarray, *, cap_dbfs: float = DEFAULT_PEAK_CAP_DBFS,
     if peak > cap_dbfs + 1e-9 and not allow_above_cap:
         raise InputError(f"peak level {peak:+.2f} dBFS is above the cap of {cap_dbfs:+.1f} dBFS",
                          source=source, field="--peak-dbfs",
-                         fix="lower the level, or pass --allow-above-cap if you really need it")
+                         fix="lower the level (an RMS target puts the peak higher by the signal's crest "
+                             "factor), or pass --allow-above-cap if you really need it")
     return peak

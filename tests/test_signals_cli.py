@@ -1,0 +1,179 @@
+"""``arrayplan signal ...``: real WAV files written and read back, bad input, nothing half-written."""
+
+import importlib.util
+import json
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+import arrayplan.cli as cli
+from arrayplan.safety import CAUTION_NOTE
+from arrayplan.signals import wavout
+
+SWEEP = ["--f1-hz", "50", "--f2-hz", "5000", "--duration-s", "0.5", "--pad-after-s", "0.2", "--rate-hz", "16000"]
+
+
+@pytest.fixture(autouse=True)
+def _importable_commands(monkeypatch):
+    # The shared tree may list colleagues' command modules before they are committed; register the
+    # ones that exist so these tests run the real cli.main either way.
+    mods = tuple(m for m in cli.COMMAND_MODULES if importlib.util.find_spec(m) is not None)
+    monkeypatch.setattr(cli, "COMMAND_MODULES", mods)
+
+
+def _run(capsys, *argv):
+    rc = cli.main(list(argv))
+    out, err = capsys.readouterr()
+    return rc, out, err
+
+
+def _assert_one_line_error(rc, err, *words):
+    assert rc == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1, err
+    assert lines[0].startswith("arrayplan signal: error:")
+    assert "Traceback" not in err
+    for w in words:
+        assert w in lines[0]
+
+
+@pytest.mark.parametrize("fmt, subtype", [("float32", "FLOAT"), ("pcm24", "PCM_24")])
+def test_sweep_round_trip(tmp_path, capsys, fmt, subtype):
+    out = tmp_path / "sweep.wav"
+    rc, stdout, err = _run(capsys, "signal", "sweep", "--out", str(out), "--format", fmt, *SWEEP)
+    assert rc == 0
+    assert "CAUTION" in err and "licensed practice" in err
+    info = sf.info(out)
+    assert info.samplerate == 16000 and info.channels == 1 and info.subtype == subtype
+    data, _ = sf.read(out, always_2d=True)
+    side = json.loads((tmp_path / "sweep.json").read_text())
+    assert side["n_samples"] == data.shape[0] == 1600 + 8000 + 3200
+    assert side["caution"] == CAUTION_NOTE and side["provenance"]["tool"] == "arrayplan"
+    sw = side["sweep"]
+    for key in ("f1_hz", "f2_hz", "duration_s", "sample_rate_hz", "fade_in_s", "fade_out_s", "pad_before_samples",
+                "pad_after_samples", "sweep_peak_dbfs", "inverse_filter_file", "linear_lag_samples"):
+        assert key in sw
+    assert 20 * np.log10(np.max(np.abs(data))) == pytest.approx(-12.0, abs=1e-4)
+    assert data[0, 0] == 0.0 and data[-1, 0] == 0.0
+    inv, rate = sf.read(tmp_path / sw["inverse_filter_file"])
+    assert rate == 16000 and inv.size == sw["n_sweep_samples"] == 8000
+    assert sf.info(tmp_path / sw["inverse_filter_file"]).subtype == "FLOAT"
+    # the played file and its inverse still give a unit pulse at the linear lag
+    from scipy.signal import fftconvolve
+    full = fftconvolve(data[:, 0], inv)
+    assert int(np.argmax(np.abs(full))) == sw["linear_lag_samples"]
+    assert np.max(np.abs(full)) == pytest.approx(1.0, abs=2e-5)
+    assert "no exposure estimate" in err
+
+
+def test_other_signals_round_trip(tmp_path, capsys):
+    cases = {
+        "noise.wav": ["noise", "--colour", "white", "--duration-s", "1", "--seed", "3", "--rms-dbfs", "-30"],
+        "tones.wav": ["tones", "--freqs-hz", "250,1000", "--tone-s", "0.3", "--gap-s", "0.1"],
+        "bursts.wav": ["bursts", "--freq-hz", "1000", "--cycles", "8", "--count", "3", "--period-s", "0.1"],
+        "silence.wav": ["silence", "--duration-s", "0.5", "--channels", "2"],
+        "sched.wav": ["schedule", "--speaker-names", "L,R,Sub", *SWEEP],
+    }
+    for name, args in cases.items():
+        out = tmp_path / name
+        rc, _, err = _run(capsys, "signal", args[0], "--out", str(out), "--rate-hz", "16000", *args[1:])
+        assert rc == 0, err
+        data, rate = sf.read(out, always_2d=True)
+        side = json.loads(out.with_suffix(".json").read_text())
+        assert rate == 16000 and side["n_samples"] == data.shape[0] and side["n_channels"] == data.shape[1]
+        assert side["caution"] == CAUTION_NOTE
+        assert data[0].max() == 0.0 and abs(data[-1]).max() == 0.0
+        assert ("CAUTION" in err) == (name != "silence.wav")
+    noise, _ = sf.read(tmp_path / "noise.wav")
+    active = noise[1600:-16000]
+    assert 20 * np.log10(np.sqrt(np.mean(active ** 2))) == pytest.approx(-30.0, abs=0.05)
+    assert abs(np.mean(noise)) < 1e-9
+    side = json.loads((tmp_path / "sched.json").read_text())
+    assert side["channel_names"] == ["L", "R", "Sub"]
+    assert [e["channel"] for e in side["schedule"]["speakers"]] == [1, 2, 3]
+
+
+def test_exposure_estimate_warns_refuses_and_overrides(tmp_path, capsys):
+    out = tmp_path / "loud.wav"
+    expo = ["--sensitivity-db-spl", "95", "--amp-vrms", "20", "--listener-distance-m", "1"]
+    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(out), *SWEEP, *expo)
+    _assert_one_line_error(rc, err, "exceeds the cap of 100 dBA", "--allow-loud")
+    assert list(tmp_path.iterdir()) == []
+    rc, stdout, err = _run(capsys, "signal", "sweep", "--out", str(out), *SWEEP, *expo, "--allow-loud")
+    assert rc == 0 and "allowed by --allow-loud" in err and "NIOSH" in stdout
+    side = json.loads((tmp_path / "loud.json").read_text())
+    assert side["exposure"]["dba"][0] > 100
+    assert any("above 85 dBA" in w for w in side["warnings"])
+    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "x.wav"), *SWEEP,
+                      "--sensitivity-db-spl", "95")
+    _assert_one_line_error(rc, err, "needs all of")
+
+
+@pytest.mark.parametrize("extra, words", [
+    (["--f2-hz", "8000"], ["--f2-hz", "outside (0, 8000)"]),
+    (["--f2-hz", "9000"], ["outside"]),
+    (["--f1-hz", "0"], ["--f1-hz"]),
+    (["--duration-s", "0.03"], ["too short"]),
+    (["--peak-dbfs", "-6"], ["above the cap", "--allow-above-cap"]),
+    (["--peak-dbfs", "1", "--allow-above-cap"], ["would clip"]),
+    (["--fade-in-s", "0"], ["fade"]),
+])
+def test_bad_sweep_input_is_one_line_and_writes_nothing(tmp_path, capsys, extra, words):
+    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, *extra)
+    _assert_one_line_error(rc, err, *words)
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_usage_errors_exit_2(tmp_path, capsys):
+    with pytest.raises(SystemExit) as exc:
+        cli.main(["signal", "sweep", "--out", str(tmp_path / "s.wav"), "--format", "pcm8"])
+    assert exc.value.code == 2
+    assert len(capsys.readouterr().err.strip().splitlines()) == 1
+    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "missing" / "s.wav"), *SWEEP)
+    _assert_one_line_error(rc, err, "folder does not exist")
+
+
+def test_probe_sends_the_signal_through_each_filter(tmp_path, capsys):
+    fs = 16000
+    filters = np.zeros((32, 3))
+    filters[2, 0], filters[10, 1], filters[31, 2] = 0.5, -0.25, 1.0
+    sf.write(tmp_path / "ch1.wav", filters, fs, subtype="FLOAT")
+    (tmp_path / "ch1.json").write_text(json.dumps({"speaker_names": ["L", "C", "R"]}))
+    rc, _, err = _run(capsys, "signal", "probe", "--filters", str(tmp_path / "ch1.wav"),
+                      "--out", str(tmp_path / "probe.wav"), *SWEEP)
+    assert rc == 0, err
+    data, _ = sf.read(tmp_path / "probe.wav", always_2d=True)
+    side = json.loads((tmp_path / "probe.json").read_text())
+    assert data.shape[1] == 3 and side["channel_names"] == ["L", "C", "R"]
+    assert side["n_samples"] == 1600 + 8000 + 31 + 3200
+    assert 20 * np.log10(np.max(np.abs(data))) == pytest.approx(-12.0, abs=1e-4)
+    # each speaker's drive is the same signal through its own filter: delays 2, 10, 31, gains 0.5, -0.25, 1
+    ref = data[:, 2]
+    np.testing.assert_allclose(data[:-29, 0], 0.5 * ref[29:], atol=3e-4)
+    np.testing.assert_allclose(data[:-21, 1], -0.25 * ref[21:], atol=3e-4)
+    # noise source, no names sidecar
+    (tmp_path / "ch1.json").unlink()
+    rc, _, err = _run(capsys, "signal", "probe", "--filters", str(tmp_path / "ch1.wav"), "--source", "pink",
+                      "--out", str(tmp_path / "pn.wav"), *SWEEP, "--seed", "1")
+    assert rc == 0, err
+    side = json.loads((tmp_path / "pn.json").read_text())
+    assert side["channel_names"] == ["S1", "S2", "S3"] and side["sweep"] is None
+    # wrong rate
+    rc, _, err = _run(capsys, "signal", "probe", "--filters", str(tmp_path / "ch1.wav"),
+                      "--out", str(tmp_path / "p2.wav"), *SWEEP[:-2], "--rate-hz", "48000")
+    _assert_one_line_error(rc, err, "16000 Hz")
+    assert not (tmp_path / "p2.wav").exists()
+
+
+def test_nothing_half_written_when_a_later_file_fails(tmp_path, monkeypatch):
+    def boom(*a, **k):
+        raise OSError("disk full")
+
+    monkeypatch.setattr(wavout, "write_json_atomic", boom)
+    x = np.zeros(100)
+    x[50] = 0.1
+    with pytest.raises(OSError):
+        wavout.write_signal_files(tmp_path / "a.wav", x, 16000, "float32", {"k": 1},
+                                  {tmp_path / "a.inverse.wav": x})
+    assert list(tmp_path.iterdir()) == []
