@@ -89,6 +89,18 @@ def test_per_speaker_recordings_to_irset(tmp_path, capsys):
     assert "Left" in stdout
 
 
+def test_linear_sweep_gives_responses_without_harmonics(tmp_path, capsys):
+    data, side = _make(tmp_path, capsys, "sweep", "--kind", "linear")
+    sf.write(tmp_path / "r.wav", _through(data[:, 0], [33], [0.7]), FS, subtype="FLOAT")
+    rc, _, err = _run(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", side, "--out", tmp_path / "irs")
+    assert rc == 0, err
+    irs = read_irset(tmp_path / "irs")
+    h = irs.data[:, 0, 0]
+    assert int(np.argmax(np.abs(h))) == 33 and abs(20 * math.log10(abs(h[33]) / 0.7)) < 0.01
+    assert not list(tmp_path.glob("irs/harmonic-*"))
+    assert "harmonic2_db" not in (tmp_path / "irs" / "deconvolution.csv").read_text()
+
+
 def test_clipping_and_low_peak_to_noise_are_warned_and_stored(tmp_path, capsys):
     data, side = _make(tmp_path, capsys)
     x = data[:, 0]

@@ -59,6 +59,8 @@ def test_sweep_round_trip(tmp_path, capsys, fmt, subtype):
     inv, rate = sf.read(tmp_path / sw["inverse_filter_file"])
     assert rate == 16000 and inv.size == sw["n_sweep_samples"] == 8000
     assert sf.info(tmp_path / sw["inverse_filter_file"]).subtype == "FLOAT"
+    inv_side = json.loads((tmp_path / "sweep.inverse.json").read_text())
+    assert inv_side["inverse_of"] == "sweep.wav" and inv_side["sweep"] == sw and inv_side["caution"] == CAUTION_NOTE
     # the played file and its inverse still give a unit pulse at the linear lag
     from scipy.signal import fftconvolve
     full = fftconvolve(data[:, 0], inv)

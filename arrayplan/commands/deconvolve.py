@@ -164,9 +164,14 @@ def _run(args: argparse.Namespace) -> int:
                         f"the response length {ir_len / rate:.3f} s: a long room tail may overlap the distortion "
                         "products (a longer sweep separates them further)")
 
+    def progress(done: int, total: int) -> None:
+        end = "\n" if done == total else ""
+        print(f"\rdeconvolving: speaker {done} of {total}", end=end, file=sys.stderr, flush=True)
+
     result = impulse_responses(recordings, inverse, linear_lag=rec_info.linear_lag_samples, ir_length=ir_len,
                                harmonic_offsets=offsets, speaker_names=speakers, mic_names=mics,
-                               min_peak_to_noise_db=args.min_pnr_db, clip_threshold=CLIP_THRESHOLD)
+                               min_peak_to_noise_db=args.min_pnr_db, clip_threshold=CLIP_THRESHOLD,
+                               progress=progress if sys.stderr.isatty() else None)
     warnings += result.warnings
 
     def fin(v: float) -> float | None:

@@ -33,7 +33,7 @@ from ..signals.probe import channel_probe, read_filter_wav
 from ..signals.schedule import measurement_schedule
 from ..signals.sweeps import SWEEP_KINDS, SweepSettings, make_sweep
 from ..signals.tones import stepped_tones, tone_bursts
-from ..signals.wavout import SAMPLE_FORMATS, inverse_path, write_signal_files
+from ..signals.wavout import SAMPLE_FORMATS, inverse_path, sidecar_path, write_signal_files
 
 __all__ = ["register", "SIGNAL_FORMAT"]
 
@@ -345,7 +345,17 @@ def _run(args: argparse.Namespace) -> int:
         "caution": CAUTION_NOTE,
         "provenance": provenance(command=f"arrayplan signal {args.signal}"),
     }
-    written = write_signal_files(args.out, x, args.rate_hz, args.format, sidecar, built.get("extra_wavs"))
+    extra_sidecars = {}
+    for path, inv in (built.get("extra_wavs") or {}).items():
+        extra_sidecars[sidecar_path(path)] = {
+            "format": SIGNAL_FORMAT, "format_version": 1, "signal": "inverse_filter", "file": Path(path).name,
+            "inverse_of": args.out.name, "parameters_in": sidecar_path(args.out).name,
+            "sample_rate_hz": float(args.rate_hz), "n_samples": int(np.asarray(inv).shape[0]), "n_channels": 1,
+            "sample_format": "float32", "sweep": built.get("sweep"),
+            "note": "inverse filter for deconvolution: not a signal to play",
+            "caution": CAUTION_NOTE, "provenance": provenance(command=f"arrayplan signal {args.signal}")}
+    written = write_signal_files(args.out, x, args.rate_hz, args.format, sidecar, built.get("extra_wavs"),
+                                 extra_sidecars)
     if playable:
         print_caution(sys.stderr)
     for w in warnings:

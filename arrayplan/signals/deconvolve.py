@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Mapping, Sequence
+from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
@@ -317,7 +317,8 @@ class OfflineResult:
 def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, linear_lag: int, ir_length: int,
                       harmonic_offsets: Mapping[int, float] | None = None, speaker_names: Sequence[str],
                       mic_names: Sequence[str], min_peak_to_noise_db: float = DEFAULT_MIN_PEAK_TO_NOISE_DB,
-                      clip_threshold: float = CLIP_THRESHOLD, pre_samples: int | None = None) -> OfflineResult:
+                      clip_threshold: float = CLIP_THRESHOLD, pre_samples: int | None = None,
+                      progress: Callable[[int, int], None] | None = None) -> OfflineResult:
     """Deconvolve one recording per speaker and gather responses, distortion and warnings.
 
     Parameters
@@ -334,6 +335,8 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
         A response with a lower peak-to-noise ratio raises a warning.
     clip_threshold : float
         Recorded magnitude counted as clipped.
+    progress : callable, optional
+        Called as ``progress(done, total)`` after each speaker.
 
     Returns
     -------
@@ -342,7 +345,7 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
     if len(recordings) != len(speaker_names):
         raise ValueError(f"{len(recordings)} recordings for {len(speaker_names)} speakers")
     linear, harm, clipped, zero = [], {}, [], {}
-    for rec in recordings:
+    for i_rec, rec in enumerate(recordings):
         rec = _as_2d(rec, "recording")
         if rec.shape[1] != len(mic_names):
             raise ValueError(f"recording has {rec.shape[1]} channels for {len(mic_names)} microphones")
@@ -353,6 +356,8 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
             harm.setdefault(n, []).append(h)
         zero = d.harmonic_zero_index
         clipped.append(clipped_sample_counts(rec, clip_threshold))
+        if progress is not None:
+            progress(i_rec + 1, len(recordings))
     data = np.stack(linear, axis=2)
     harmonics = {n: np.stack(v, axis=2) for n, v in harm.items()}
     n_mic, n_spk = data.shape[1], data.shape[2]

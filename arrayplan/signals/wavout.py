@@ -30,8 +30,8 @@ def inverse_path(wav_path: str | os.PathLike) -> Path:
 
 
 def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_rate_hz: int, sample_format: str,
-                       sidecar: Mapping[str, Any], extra_wavs: Mapping[str | os.PathLike, np.ndarray] | None = None
-                       ) -> list[Path]:
+                       sidecar: Mapping[str, Any], extra_wavs: Mapping[str | os.PathLike, np.ndarray] | None = None,
+                       extra_sidecars: Mapping[str | os.PathLike, Mapping[str, Any]] | None = None) -> list[Path]:
     """Write a signal WAV, its sidecar and any extra float32 WAVs, all or nothing.
 
     Every file is written to a temporary name first; they are renamed into
@@ -49,6 +49,8 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
         Written as JSON to :func:`sidecar_path` of `wav_path`.
     extra_wavs : mapping of path -> ndarray, optional
         Further files (e.g. an inverse filter), always float32.
+    extra_sidecars : mapping of path -> mapping, optional
+        Further JSON files (e.g. the inverse filter's own sidecar).
 
     Returns
     -------
@@ -70,6 +72,8 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
     for p, data in (extra_wavs or {}).items():
         targets.append((Path(p), ("wav", np.asarray(data, dtype=float), "FLOAT")))
     targets.append((sidecar_path(wav_path), ("json", dict(sidecar), None)))
+    for p, obj in (extra_sidecars or {}).items():
+        targets.append((Path(p), ("json", dict(obj), None)))
     with contextlib.ExitStack() as stack:
         for path, (kind, data, subtype) in targets:
             tmp = stack.enter_context(atomic_path(path))
