@@ -1,0 +1,573 @@
+"""Rigs: where the speakers and microphones are, what they are, and the medium.
+
+A rig is read from a TOML file (schema documented in ``docs`` of
+:func:`load_rig` and in the README) or built from arrays with
+:meth:`Rig.from_positions`.  Loading resolves every generated group and CSV
+file into plain arrays, so the rest of arrayplan sees only an
+:class:`ElementSet` for each side.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Sequence
+
+import numpy as np
+
+from . import geometry
+from .directivity import OMNI, Directivity, parse_directivity
+from .errors import InputError
+from .fileio import sha256_of_text
+from .frequency import FrequencyAxis
+from .medium import Medium, speed_of_sound_air
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+__all__ = ["ElementSet", "HardwareMap", "PlanSettings", "Rig", "load_rig", "read_positions_csv"]
+
+#: Two elements closer than this (metres) are taken as coincident.
+COINCIDENT_M = 1e-6
+
+
+@dataclass(frozen=True)
+class ElementSet:
+    """The speakers or the microphones of a rig.
+
+    Attributes
+    ----------
+    names : tuple of str
+        Unique names, in the order of the coupling stack's axis.
+    positions : ndarray, shape (n, 3)
+        Positions in metres.
+    directivities : tuple of Directivity
+        One per element.
+    channels : tuple of int
+        1-based hardware channel per element (output for speakers, input for
+        microphones).
+    """
+
+    names: tuple[str, ...]
+    positions: np.ndarray
+    directivities: tuple[Directivity, ...]
+    channels: tuple[int, ...]
+
+    def __len__(self) -> int:
+        return len(self.names)
+
+    @property
+    def all_omni(self) -> bool:
+        return all(d.is_omni for d in self.directivities)
+
+
+@dataclass(frozen=True)
+class HardwareMap:
+    """How the rig connects to the audio interface (all channels 1-based)."""
+
+    device: str | int | None = None
+    sample_rate_hz: float | None = None
+    reference_output: int | None = None
+    reference_input: int | None = None
+    calibration: Path | None = None
+
+
+@dataclass(frozen=True)
+class PlanSettings:
+    """Planning options a rig file may set (command-line flags override them).
+
+    Attributes
+    ----------
+    threshold_db : float
+        A channel is *strong* when its power coupling is within this many dB
+        of the strongest channel (default 3 dB: at least half its power).
+    snr_db : float
+        Signal-to-noise ratio of the strongest channel; channels more than
+        this many dB below it are under the noise floor.
+    track : bool
+        Order and phase-align channels from bin to bin (see
+        :func:`arrayplan.channels.track_channels`).
+    chunk_size : int
+        Frequencies evaluated and decomposed at once (bounds memory).
+    """
+
+    threshold_db: float = 3.0
+    snr_db: float = 40.0
+    track: bool = False
+    chunk_size: int = 64
+
+
+@dataclass(frozen=True)
+class Rig:
+    """A complete rig description."""
+
+    speakers: ElementSet
+    mics: ElementSet
+    medium: Medium = field(default_factory=Medium)
+    frequencies: FrequencyAxis | None = None
+    hardware: HardwareMap = field(default_factory=HardwareMap)
+    planning: PlanSettings = field(default_factory=PlanSettings)
+    name: str = "rig"
+    description: str = ""
+    source: str = "<arrays>"
+
+    @property
+    def sha256(self) -> str:
+        """Hash of the resolved geometry, directivities and medium (not of file layout)."""
+        canon = {
+            "speakers": _canon(self.speakers),
+            "mics": _canon(self.mics),
+            "medium": [self.medium.speed_of_sound, self.medium.air_absorption, self.medium.temperature_c,
+                       self.medium.relative_humidity_pct, self.medium.pressure_kpa],
+        }
+        return sha256_of_text(json.dumps(canon, sort_keys=True))
+
+    @classmethod
+    def from_positions(cls, speaker_positions: np.ndarray, mic_positions: np.ndarray, *,
+                       speed_of_sound: float = 343.2, frequencies: Sequence[float] | None = None,
+                       speaker_names: Sequence[str] | None = None, mic_names: Sequence[str] | None = None,
+                       speaker_directivity: Directivity = OMNI, mic_directivity: Directivity = OMNI,
+                       name: str = "rig", source: str = "<arrays>") -> "Rig":
+        """A rig from position arrays in metres, shapes (n_spk, 3) and (n_mic, 3)."""
+        spk = _element_set(speaker_positions, speaker_names, "S", speaker_directivity, source, "speakers")
+        mic = _element_set(mic_positions, mic_names, "M", mic_directivity, source, "microphones")
+        rig = cls(spk, mic, Medium(speed_of_sound=float(speed_of_sound)),
+                  FrequencyAxis(frequencies, source=source) if frequencies is not None else None,
+                  name=name, source=source)
+        rig.validate()
+        return rig
+
+    def validate(self) -> None:
+        """Check positions for NaN, coincidences and name or channel clashes."""
+        for label, es in (("speakers", self.speakers), ("microphones", self.mics)):
+            if len(es) == 0:
+                raise InputError(f"the rig has no {label}", source=self.source, field=label,
+                                 fix=f"add at least one entry under [[{label}]]")
+            bad = ~np.all(np.isfinite(es.positions), axis=1)
+            if bad.any():
+                i = int(np.flatnonzero(bad)[0])
+                raise InputError(f"position of {es.names[i]!r} is not finite", source=self.source,
+                                 field=f"{label}[{es.names[i]}].position")
+            _check_unique(es.names, f"{label} names", self.source, label)
+            _check_unique([str(c) for c in es.channels], f"{label} channels", self.source, label)
+            _check_not_coincident(es, es, self.source, label, same=True)
+        _check_not_coincident(self.speakers, self.mics, self.source, "speakers/microphones", same=False)
+
+
+def _canon(es: ElementSet) -> list:
+    return [[n, [round(float(x), 9) for x in p], repr(d)] for n, p, d in
+            zip(es.names, es.positions, es.directivities)]
+
+
+def _element_set(positions: np.ndarray, names: Sequence[str] | None, prefix: str, directivity: Directivity,
+                 source: str, label: str) -> ElementSet:
+    pos = np.asarray(positions, dtype=float)
+    if pos.ndim != 2 or pos.shape[1] != 3:
+        raise InputError(f"positions must have shape (n, 3), got {pos.shape}", source=source, field=label)
+    n = pos.shape[0]
+    names = tuple(str(x) for x in names) if names is not None else tuple(f"{prefix}{i + 1}" for i in range(n))
+    if len(names) != n:
+        raise InputError(f"{len(names)} names for {n} positions", source=source, field=label)
+    pos = pos.copy()
+    pos.setflags(write=False)
+    return ElementSet(names, pos, (directivity,) * n, tuple(range(1, n + 1)))
+
+
+def _check_unique(values: Sequence[str], what: str, source: str, label: str) -> None:
+    seen: set[str] = set()
+    for v in values:
+        if v in seen:
+            raise InputError(f"{what} must be unique; {v!r} appears twice", source=source, field=label)
+        seen.add(v)
+
+
+def _check_not_coincident(a: ElementSet, b: ElementSet, source: str, label: str, same: bool) -> None:
+    d = np.linalg.norm(a.positions[:, None, :] - b.positions[None, :, :], axis=-1)
+    if same:
+        d = d + np.diag(np.full(len(a), np.inf))
+    close = np.argwhere(d < COINCIDENT_M)
+    if close.size:
+        i, j = close[0]
+        raise InputError(f"{a.names[i]!r} and {b.names[j]!r} are at the same position "
+                         f"{list(np.round(a.positions[i], 6))}", source=source, field=label,
+                         fix="move one of them; elements must be at least 1 µm apart")
+
+
+# ---------------------------------------------------------------- rig files
+
+_TOP_KEYS = {"rig", "medium", "frequencies", "speakers", "microphones", "hardware", "planning"}
+_POINT_KEYS = {"name", "position", "directivity", "channel"}
+_GROUP_KEYS = {"name", "shape", "count", "counts", "spacing", "length", "size", "center", "direction",
+               "normal", "facing", "radius", "start_deg", "stop_deg", "directivity", "first_channel"}
+_CSV_KEYS = {"csv", "directivity", "first_channel", "name"}
+
+
+class _Reader:
+    """Typed access to a TOML table with errors that name the file and field."""
+
+    def __init__(self, source: str) -> None:
+        self.source = source
+
+    def fail(self, field: str, problem: str, fix: str | None = None) -> InputError:
+        return InputError(problem, source=self.source, field=field, fix=fix)
+
+    def number(self, table: dict, key: str, where: str, default: Any = ..., positive: bool = False) -> float:
+        if key not in table:
+            if default is ...:
+                raise self.fail(f"{where}.{key}", "missing", fix=f"add {key} = <number>")
+            return default
+        v = table[key]
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise self.fail(f"{where}.{key}", f"expected a finite number, got {v!r}")
+        if positive and v <= 0:
+            raise self.fail(f"{where}.{key}", f"must be positive, got {v!r}")
+        return float(v)
+
+    def integer(self, table: dict, key: str, where: str, default: Any = ..., minimum: int = 1) -> int:
+        if key not in table:
+            if default is ...:
+                raise self.fail(f"{where}.{key}", "missing", fix=f"add {key} = <whole number>")
+            return default
+        v = table[key]
+        if isinstance(v, bool) or not isinstance(v, int) or v < minimum:
+            raise self.fail(f"{where}.{key}", f"expected a whole number >= {minimum}, got {v!r}")
+        return int(v)
+
+    def vector(self, table: dict, key: str, where: str, n: int = 3, default: Any = ...) -> tuple:
+        if key not in table:
+            if default is ...:
+                raise self.fail(f"{where}.{key}", "missing", fix=f"add {key} = [{', '.join(['0'] * n)}]")
+            return default
+        v = table[key]
+        ok = (isinstance(v, list) and len(v) == n
+              and all(isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x) for x in v))
+        if not ok:
+            raise self.fail(f"{where}.{key}", f"expected {n} finite numbers, got {v!r}")
+        return tuple(float(x) for x in v)
+
+    def string(self, table: dict, key: str, where: str, default: Any = ...) -> str:
+        if key not in table:
+            if default is ...:
+                raise self.fail(f"{where}.{key}", "missing")
+            return default
+        v = table[key]
+        if not isinstance(v, str) or not v:
+            raise self.fail(f"{where}.{key}", f"expected a non-empty string, got {v!r}")
+        return v
+
+    def keys(self, table: dict, allowed: set[str], where: str) -> None:
+        unknown = sorted(set(table) - allowed)
+        if unknown:
+            raise self.fail(where, f"unknown key(s) {', '.join(unknown)}",
+                            fix=f"allowed here: {', '.join(sorted(allowed))}")
+
+
+def read_positions_csv(path: str | Path, *, field: str = "csv") -> tuple[list[str] | None, np.ndarray,
+                                                                          list[int] | None]:
+    """Read element positions from a CSV file with a header ``x,y,z`` (metres).
+
+    Optional columns ``name`` and ``channel`` (1-based hardware channel).
+
+    Returns
+    -------
+    names : list of str or None
+    positions : ndarray, shape (n, 3)
+    channels : list of int or None
+    """
+    path = Path(path)
+    src = str(path)
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise InputError("file not found", source=src, field=field) from None
+    except (UnicodeDecodeError, IsADirectoryError) as exc:
+        raise InputError(f"cannot read as UTF-8 text ({exc.__class__.__name__})", source=src) from None
+    reader = csv.DictReader(io.StringIO(text))
+    header = [h.strip().lower() for h in (reader.fieldnames or [])]
+    if not {"x", "y", "z"} <= set(header):
+        raise InputError(f"header must contain x,y,z (found {','.join(header) or 'nothing'})", source=src,
+                         field="header", fix="first line: name,x,y,z  (positions in metres)")
+    reader.fieldnames = header
+    names, rows, channels = [], [], []
+    for line_no, row in enumerate(reader, start=2):
+        try:
+            xyz = [float(row[c]) for c in ("x", "y", "z")]
+        except (TypeError, ValueError):
+            raise InputError(f"x, y, z must be numbers, got {[row.get(c) for c in 'xyz']}", source=src,
+                             field=f"line {line_no}") from None
+        if not all(math.isfinite(v) for v in xyz):
+            raise InputError("position is not finite", source=src, field=f"line {line_no}")
+        rows.append(xyz)
+        if "name" in header:
+            nm = (row.get("name") or "").strip()
+            if not nm:
+                raise InputError("empty name", source=src, field=f"line {line_no}")
+            names.append(nm)
+        if "channel" in header:
+            try:
+                ch = int(row["channel"])
+            except (TypeError, ValueError):
+                raise InputError(f"channel must be a whole number, got {row.get('channel')!r}", source=src,
+                                 field=f"line {line_no}") from None
+            if ch < 1:
+                raise InputError("channels are numbered from 1", source=src, field=f"line {line_no}")
+            channels.append(ch)
+    if not rows:
+        raise InputError("no positions", source=src, fix="add one line per element below the header")
+    return (names or None), np.array(rows, dtype=float), (channels or None)
+
+
+def _resolve_side(entries: Any, label: str, prefix: str, r: _Reader, base: Path) -> ElementSet:
+    if entries is None:
+        raise r.fail(label, "missing", fix=f"add at least one [[{label}]] entry")
+    if not isinstance(entries, list):
+        raise r.fail(label, f"must be an array of tables ([[{label}]])")
+    names: list[str] = []
+    positions: list[np.ndarray] = []
+    dirs: list[Directivity] = []
+    channels: list[int] = []
+    next_channel = 1
+    for i, entry in enumerate(entries):
+        where = f"{label}[{i}]"
+        if not isinstance(entry, dict):
+            raise r.fail(where, "must be a table")
+        if "csv" in entry:
+            r.keys(entry, _CSV_KEYS, where)
+            csv_path = base / r.string(entry, "csv", where)
+            nm, pos, ch = read_positions_csv(csv_path, field=f"{where}.csv")
+            prefix_i = entry.get("name", f"{prefix}{len(names) + 1}-" if len(entries) > 1 else prefix)
+            nm = nm or [f"{prefix_i}{j + 1}" for j in range(len(pos))]
+            outward = None
+        elif "shape" in entry:
+            r.keys(entry, _GROUP_KEYS, where)
+            nm, pos, outward = _group(entry, where, r, prefix if len(entries) == 1 else None, len(names))
+            ch = None
+        else:
+            r.keys(entry, _POINT_KEYS, where)
+            pos = np.array([r.vector(entry, "position", where)])
+            nm = [r.string(entry, "name", where, default=f"{prefix}{len(names) + 1}")]
+            ch = [r.integer(entry, "channel", where)] if "channel" in entry else None
+            outward = None
+        spec = entry.get("directivity")
+        if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward") and outward is not None:
+            sign = 1.0 if spec["axis"] == "outward" else -1.0
+            base_spec = {k: v for k, v in spec.items() if k != "axis"}
+            group_dirs = [parse_directivity(dict(base_spec, axis=list(sign * o)), source=r.source,
+                                            field=f"{where}.directivity") for o in outward]
+        else:
+            if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward"):
+                raise r.fail(f"{where}.directivity.axis", "'outward'/'inward' needs a generated group",
+                             fix="give axis = [x, y, z]")
+            d = parse_directivity(spec, source=r.source, field=f"{where}.directivity")
+            group_dirs = [d] * len(pos)
+        if ch is None:
+            first = r.integer(entry, "first_channel", where, default=next_channel)
+            ch = list(range(first, first + len(pos)))
+        names += list(nm)
+        positions.append(pos)
+        dirs += group_dirs
+        channels += ch
+        next_channel = max(channels) + 1
+    pos_all = np.vstack(positions)
+    pos_all.setflags(write=False)
+    return ElementSet(tuple(names), pos_all, tuple(dirs), tuple(channels))
+
+
+def _group(entry: dict, where: str, r: _Reader, sole_prefix: str | None, offset: int
+           ) -> tuple[list[str], np.ndarray, np.ndarray]:
+    shape = entry["shape"]
+    center = r.vector(entry, "center", where, default=(0.0, 0.0, 0.0))
+    if shape == "line":
+        count = r.integer(entry, "count", where)
+        direction = r.vector(entry, "direction", where, default=(1.0, 0.0, 0.0))
+        spacing = _spacing(entry, where, r, count)
+        if np.linalg.norm(direction) == 0:
+            raise r.fail(f"{where}.direction", "has zero length")
+        facing = r.vector(entry, "facing", where, default=None)
+        pos, out = geometry.line(count, spacing, center, direction, facing)
+    elif shape == "grid":
+        counts = r.vector(entry, "counts", where, n=2)
+        if any(c != int(c) or c < 1 for c in counts):
+            raise r.fail(f"{where}.counts", f"expected two whole numbers >= 1, got {list(counts)}")
+        nu, nv = int(counts[0]), int(counts[1])
+        if "spacing" in entry and "size" in entry:
+            raise r.fail(where, "give spacing or size, not both")
+        if "size" in entry:
+            size = r.vector(entry, "size", where, n=2)
+            spacing = (size[0] / max(nu - 1, 1), size[1] / max(nv - 1, 1))
+        else:
+            sp = entry.get("spacing")
+            spacing = (r.vector(entry, "spacing", where, n=2) if isinstance(sp, list)
+                       else (r.number(entry, "spacing", where, positive=True),) * 2)
+        normal = r.vector(entry, "normal", where, default=(0.0, 0.0, 1.0))
+        if np.linalg.norm(normal) == 0:
+            raise r.fail(f"{where}.normal", "has zero length")
+        pos, out = geometry.grid((nu, nv), spacing, center, normal)
+    elif shape in ("arc", "circle"):
+        count = r.integer(entry, "count", where)
+        radius = r.number(entry, "radius", where, positive=True)
+        normal = r.vector(entry, "normal", where, default=(0.0, 0.0, 1.0))
+        start = r.number(entry, "start_deg", where, default=0.0)
+        stop = r.number(entry, "stop_deg", where, default=start + 360.0)
+        pos, out = geometry.arc(count, radius, center, normal, start, stop)
+    elif shape == "sphere":
+        count = r.integer(entry, "count", where)
+        radius = r.number(entry, "radius", where, positive=True)
+        pos, out = geometry.sphere(count, radius, center)
+    else:
+        raise r.fail(f"{where}.shape", f"unknown shape {shape!r}", fix="use line, grid, arc, circle or sphere")
+    prefix = entry.get("name", sole_prefix if sole_prefix is not None else f"G{offset + 1}-")
+    if not isinstance(prefix, str):
+        raise r.fail(f"{where}.name", "must be a string (the prefix of the element names)")
+    return [f"{prefix}{j + 1}" for j in range(len(pos))], pos, out
+
+
+def _spacing(entry: dict, where: str, r: _Reader, count: int) -> float:
+    if "spacing" in entry and "length" in entry:
+        raise r.fail(where, "give spacing or length, not both")
+    if "length" in entry:
+        length = r.number(entry, "length", where, positive=True)
+        return length / max(count - 1, 1)
+    if count == 1:
+        return 0.0
+    return r.number(entry, "spacing", where, positive=True)
+
+
+def _medium(table: Any, r: _Reader) -> Medium:
+    if table is None:
+        return Medium()
+    if not isinstance(table, dict):
+        raise r.fail("medium", "must be a table")
+    r.keys(table, {"speed_of_sound", "temperature_c", "relative_humidity_pct", "pressure_kpa",
+                   "air_absorption"}, "medium")
+    temp = r.number(table, "temperature_c", "medium", default=20.0)
+    if "speed_of_sound" in table:
+        c = r.number(table, "speed_of_sound", "medium", positive=True)
+    else:
+        c = speed_of_sound_air(temp)
+    absorb = table.get("air_absorption", False)
+    if not isinstance(absorb, bool):
+        raise r.fail("medium.air_absorption", f"expected true or false, got {absorb!r}")
+    try:
+        return Medium(c, temp, r.number(table, "relative_humidity_pct", "medium", default=50.0),
+                      r.number(table, "pressure_kpa", "medium", default=101.325, positive=True), absorb)
+    except InputError as exc:
+        raise InputError(exc.problem, source=r.source, field=exc.field, fix=exc.fix) from None
+
+
+def _frequencies(table: Any, r: _Reader) -> FrequencyAxis | None:
+    if table is None:
+        return None
+    if not isinstance(table, dict):
+        raise r.fail("frequencies", "must be a table")
+    r.keys(table, {"list", "start", "stop", "count", "spacing"}, "frequencies")
+    if "list" in table:
+        if set(table) - {"list"}:
+            raise r.fail("frequencies", "give either list or start/stop/count, not both")
+        vals = table["list"]
+        if not isinstance(vals, list) or not all(isinstance(v, (int, float)) and not isinstance(v, bool)
+                                                 for v in vals):
+            raise r.fail("frequencies.list", "expected a list of numbers in Hz")
+        return FrequencyAxis(vals, source=r.source, field="frequencies.list")
+    start = r.number(table, "start", "frequencies", positive=True)
+    stop = r.number(table, "stop", "frequencies", positive=True)
+    count = r.integer(table, "count", "frequencies")
+    spacing = table.get("spacing", "log")
+    return FrequencyAxis.spaced(start, stop, count, spacing, source=r.source, field="frequencies")
+
+
+def _hardware(table: Any, r: _Reader, base: Path) -> HardwareMap:
+    if table is None:
+        return HardwareMap()
+    if not isinstance(table, dict):
+        raise r.fail("hardware", "must be a table")
+    r.keys(table, {"device", "sample_rate_hz", "reference", "calibration"}, "hardware")
+    device = table.get("device")
+    if device is not None and (isinstance(device, bool) or not isinstance(device, (str, int))):
+        raise r.fail("hardware.device", "expected a device index or a name substring")
+    rate = r.number(table, "sample_rate_hz", "hardware", default=None, positive=True)
+    ref_out = ref_in = None
+    if "reference" in table:
+        ref = table["reference"]
+        if not isinstance(ref, dict):
+            raise r.fail("hardware.reference", "must be a table { output_channel = N, input_channel = M }")
+        r.keys(ref, {"output_channel", "input_channel"}, "hardware.reference")
+        ref_out = r.integer(ref, "output_channel", "hardware.reference")
+        ref_in = r.integer(ref, "input_channel", "hardware.reference")
+    cal = table.get("calibration")
+    if cal is not None and not isinstance(cal, str):
+        raise r.fail("hardware.calibration", "expected a path (string)")
+    return HardwareMap(device, rate, ref_out, ref_in, (base / cal) if cal else None)
+
+
+def _planning(table: Any, r: _Reader) -> PlanSettings:
+    if table is None:
+        return PlanSettings()
+    if not isinstance(table, dict):
+        raise r.fail("planning", "must be a table")
+    r.keys(table, {"threshold_db", "snr_db", "track", "chunk_size"}, "planning")
+    track = table.get("track", False)
+    if not isinstance(track, bool):
+        raise r.fail("planning.track", f"expected true or false, got {track!r}")
+    return PlanSettings(r.number(table, "threshold_db", "planning", default=3.0, positive=True),
+                        r.number(table, "snr_db", "planning", default=40.0, positive=True), track,
+                        r.integer(table, "chunk_size", "planning", default=64))
+
+
+def load_rig(path: str | Path) -> Rig:
+    """Read a rig file (TOML).
+
+    Tables: ``[rig]`` (name, description), ``[medium]`` (speed_of_sound in
+    m/s, or temperature_c; relative_humidity_pct, pressure_kpa,
+    air_absorption), ``[frequencies]`` (list, or start/stop/count with
+    spacing "log" or "linear"), ``[[speakers]]`` and ``[[microphones]]``
+    (each entry one point, one generated group with ``shape``, or one CSV
+    file with ``csv``), ``[hardware]`` and ``[planning]``.  See the README
+    for every key.
+
+    Raises
+    ------
+    InputError
+        Naming the file and the field for any problem.
+    """
+    path = Path(path)
+    src = str(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise InputError("rig file not found", source=src, fix="check the path") from None
+    except IsADirectoryError:
+        raise InputError("is a folder, not a rig file", source=src) from None
+    try:
+        doc = tomllib.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise InputError("not UTF-8 text", source=src) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"not valid TOML: {exc}", source=src) from None
+    r = _Reader(src)
+    r.keys(doc, _TOP_KEYS, "(top level)")
+    base = path.parent
+    meta = doc.get("rig", {})
+    if not isinstance(meta, dict):
+        raise r.fail("rig", "must be a table")
+    r.keys(meta, {"name", "description"}, "rig")
+    rig = Rig(
+        speakers=_resolve_side(doc.get("speakers"), "speakers", "S", r, base),
+        mics=_resolve_side(doc.get("microphones"), "microphones", "M", r, base),
+        medium=_medium(doc.get("medium"), r),
+        frequencies=_frequencies(doc.get("frequencies"), r),
+        hardware=_hardware(doc.get("hardware"), r, base),
+        planning=_planning(doc.get("planning"), r),
+        name=str(meta.get("name", path.stem)),
+        description=str(meta.get("description", "")),
+        source=src,
+    )
+    rig.validate()
+    return rig
