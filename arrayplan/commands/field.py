@@ -1,0 +1,68 @@
+"""``arrayplan field``: the pressure map one channel's drive weights produce over a plane."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+import matplotlib
+import numpy as np
+
+from ..channels import decompose_stack
+from ..errors import InputError
+from ..field import channel_field, default_plane
+from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic
+from ..kernels.freefield import FreeFieldKernel
+from ..plots import plot_field
+from ..rig import load_rig
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("field", help="map the pressure one channel produces over a plane (PNG + NPY)",
+                       description="Drive the speakers with one channel's weights at one frequency and map the "
+                                   "free-field pressure magnitude over a plane.")
+    p.add_argument("rig", help="rig file (TOML)")
+    p.add_argument("--freq", type=float, required=True, metavar="HZ", help="frequency")
+    p.add_argument("--channel", type=int, default=1, help="channel number, 1 = strongest (default 1)")
+    p.add_argument("--plane", default="xz", choices=("xy", "xz", "yz"), help="coordinate plane (default xz)")
+    p.add_argument("--at", type=float, metavar="M", help="the plane's third coordinate (default: rig centre)")
+    p.add_argument("--resolution", type=int, default=161, help="grid points along the first axis")
+    p.add_argument("--out", required=True, help="output folder")
+    p.set_defaults(run=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    matplotlib.use("Agg")
+    rig = load_rig(args.rig)
+    if not (args.freq > 0):
+        raise InputError(f"must be positive, got {args.freq}", source="--freq")
+    if not 8 <= args.resolution <= 2000:
+        raise InputError(f"must be 8..2000, got {args.resolution}", source="--resolution")
+    g = FreeFieldKernel(rig).evaluate(np.array([args.freq]))
+    s, drive, _ = decompose_stack(g)
+    n_chan = s.shape[1]
+    if not 1 <= args.channel <= n_chan:
+        raise InputError(f"channel {args.channel} does not exist; this rig has {n_chan}", source="--channel",
+                         fix=f"choose 1..{n_chan}")
+    j = args.channel - 1
+    grid = default_plane(rig, args.plane, args.at, args.resolution)
+    p = channel_field(rig, drive[0, :, j], args.freq, grid)
+    level = 20 * np.log10(s[0, j] / s[0, 0]) if s[0, 0] > 0 else float("nan")
+    stem = f"field-ch{args.channel}-{args.freq:g}Hz-{args.plane}"
+    fig = plot_field(rig, grid, p, f"Channel {args.channel} at {args.freq:g} Hz "
+                                   f"({level:.1f} dB re strongest), {args.plane} plane at {grid.offset:g} m")
+    with staged_output_dir(args.out) as stage:
+        with atomic_path(stage / f"{stem}.png") as tmp:
+            fig.savefig(tmp, dpi=130)
+        with atomic_path(stage / f"{stem}.npy") as tmp:
+            np.save(tmp, np.abs(p))
+        write_json_atomic(stage / f"{stem}.json", {
+            "what": "|pressure| per unit source strength over a plane, for unit-norm drive weights",
+            "npy_shape": list(p.shape), "npy_rows": "second plane axis (v)", "npy_columns": "first plane axis (u)",
+            "plane": args.plane, "offset_m": grid.offset, "u_m": grid.u, "v_m": grid.v,
+            "frequency_hz": args.freq, "channel": args.channel, "singular_value": s[0, j],
+            "drive_weights": {"speakers": list(rig.speakers.names), "re": drive[0, :, j].real,
+                              "im": drive[0, :, j].imag},
+            "provenance": provenance(rig_sha256=rig.sha256)})
+    print(f"wrote {Path(args.out) / stem}.png, .npy and .json")
+    return 0

@@ -1,0 +1,82 @@
+"""``arrayplan plan``: the channels of a rig, written to a folder."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+import matplotlib
+
+from ..errors import InputError
+from ..frequency import FrequencyAxis
+from ..medium import speed_of_sound_air
+from ..planning import plan_rig
+from ..plan_files import summary_lines, write_plan
+from ..progress import ProgressBar
+from ..rig import Rig, load_rig, read_positions_csv
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("plan", help="plan the channels of a rig (counts, strengths, weights, figures)",
+                       description="Plan the independent channels of a speaker/microphone rig at each "
+                                   "frequency and write tables, weights and figures to --out.")
+    p.add_argument("rig", nargs="?", help="rig file (TOML); omit to use --speakers/--mics")
+    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+    p.add_argument("--speakers", help="CSV of speaker positions (header x,y,z[,name]) in metres")
+    p.add_argument("--mics", help="CSV of microphone positions (header x,y,z[,name]) in metres")
+    p.add_argument("--freq", type=float, action="append", metavar="HZ",
+                   help="plan at this frequency (repeatable); overrides the rig file's [frequencies]")
+    p.add_argument("--speed-of-sound", type=float, metavar="M_PER_S",
+                   help="speed of sound (quick form; default from 20 °C air)")
+    p.add_argument("--threshold-db", type=float, help="strong = within this many dB of the strongest (default 3)")
+    p.add_argument("--snr-db", type=float, help="SNR of the strongest channel, sets the noise floor (default 40)")
+    p.add_argument("--track", action="store_true", default=None,
+                   help="order and phase-align channels from bin to bin")
+    p.add_argument("--chunk-size", type=int, help="frequencies decomposed at once (bounds memory)")
+    p.add_argument("--no-figures", action="store_true", help="write tables and weights only")
+    p.set_defaults(run=run)
+
+
+def rig_from_args(args: argparse.Namespace) -> Rig:
+    """The rig of a ``plan``-like command: a rig file, or --speakers/--mics CSV files."""
+    if args.rig and (args.speakers or args.mics):
+        raise InputError("give a rig file or --speakers/--mics, not both", source="command line")
+    if args.rig:
+        if args.speed_of_sound is not None:
+            raise InputError("--speed-of-sound applies to the quick form only", source="--speed-of-sound",
+                             fix="set [medium] speed_of_sound in the rig file")
+        return load_rig(args.rig)
+    if not (args.speakers and args.mics):
+        raise InputError("no rig given", source="command line",
+                         fix="give RIG.toml, or both --speakers S.csv and --mics M.csv")
+    if not args.freq:
+        raise InputError("the quick form needs at least one --freq", source="--freq")
+    s_names, s_pos, _ = read_positions_csv(args.speakers, field="--speakers")
+    m_names, m_pos, _ = read_positions_csv(args.mics, field="--mics")
+    c = args.speed_of_sound if args.speed_of_sound is not None else speed_of_sound_air(20.0)
+    if not (c > 0):
+        raise InputError(f"must be positive, got {c}", source="--speed-of-sound")
+    return Rig.from_positions(s_pos, m_pos, speed_of_sound=c, speaker_names=s_names, mic_names=m_names,
+                              name=Path(args.speakers).stem + "-" + Path(args.mics).stem, source="command line")
+
+
+def _checked(value: float | None, flag: str) -> float | None:
+    if value is not None and not value > 0:
+        raise InputError(f"must be positive, got {value}", source=flag)
+    return value
+
+
+def run(args: argparse.Namespace) -> int:
+    matplotlib.use("Agg")
+    rig = rig_from_args(args)
+    axis = FrequencyAxis(sorted(args.freq), source="--freq") if args.freq else None
+    if args.chunk_size is not None and args.chunk_size < 1:
+        raise InputError(f"must be at least 1, got {args.chunk_size}", source="--chunk-size")
+    plan = plan_rig(rig, axis, threshold_db=_checked(args.threshold_db, "--threshold-db"),
+                    snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,
+                    progress=ProgressBar("planning"))
+    files = write_plan(plan, args.out, figures=not args.no_figures)
+    for line in summary_lines(plan):
+        print(line)
+    print(f"wrote {len(files)} files to {args.out}: {', '.join(p.name for p in files)}")
+    return 0

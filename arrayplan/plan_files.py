@@ -1,0 +1,208 @@
+"""Writing a plan to a folder, and reading its weights back.
+
+Files (all written together, atomically, by :func:`write_plan`):
+
+``channels.csv``
+    One row per (frequency, channel): ``frequency_hz, channel, singular_value,
+    power_coupling, share_of_sum_rule, level_db``.  Channels are numbered
+    from 1, strongest first (or by tracked identity when tracking is on).
+``summary.csv``
+    One row per frequency: ``frequency_hz, sum_rule, strong_channels,
+    usable_channels, effective_channels, heuristic_channels`` (empty where
+    the paraxial estimate does not apply).
+``weights.npz``
+    ``frequency_hz`` (n_freq,), ``singular_value`` (n_freq, n_chan),
+    ``drive`` (n_freq, n_spk, n_chan) and ``combine`` (n_freq, n_mic, n_chan),
+    complex128, plus ``speaker_names`` and ``mic_names``.
+``weights.csv``
+    The same weights as a long table ``frequency_hz, channel, side, element,
+    re, im`` with side ``drive`` or ``combine``.
+``weights.json``
+    The sidecar: conventions, normalisation, units, element names and
+    order, settings, tool version and the rig's hash.
+``rig.png``, ``couplings.png``, ``channel-counts.png``
+    Figures.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .errors import InputError
+from .fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from .frequency import FrequencyAxis
+from .planning import Plan
+
+__all__ = ["write_plan", "read_weights", "PlanWeights", "summary_lines"]
+
+NORMALISATION = ("drive and combine weight vectors have unit Euclidean norm per channel and frequency; "
+                 "combine^T G drive = diag(singular_value)")
+PHASE = ("the speaker entry of largest magnitude in each drive vector is real and positive "
+         "(tracked plans: phase follows the previous bin instead)")
+
+
+def _csv_text(header: list[str], rows: list[list[Any]]) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(header)
+    w.writerows(rows)
+    return buf.getvalue()
+
+
+def _fmt(x: float) -> str:
+    return "" if not np.isfinite(x) else f"{x:.10g}"
+
+
+def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True) -> list[Path]:
+    """Write every plan file into `out_dir` (created if needed); return their paths."""
+    ch = plan.channels
+    hz = ch.axis.hz
+    share, level = ch.share_of_sum_rule(), ch.level_db()
+    strong, usable, eff = plan.strong_channels, plan.usable_channels, ch.effective_channels()
+    rows = [[_fmt(hz[f]), j + 1, _fmt(ch.singular_values[f, j]), _fmt(ch.power_coupling[f, j]),
+             _fmt(share[f, j]), _fmt(level[f, j]) if np.isfinite(level[f, j]) else "-inf"]
+            for f in range(len(hz)) for j in range(ch.n_channels)]
+    summary = [[_fmt(hz[f]), _fmt(ch.sum_rule[f]), int(strong[f]), int(usable[f]), _fmt(eff[f]),
+                _fmt(plan.estimate.counts[f])] for f in range(len(hz))]
+    written = []
+    with staged_output_dir(out_dir) as stage:
+        write_text_atomic(stage / "channels.csv", _csv_text(
+            ["frequency_hz", "channel", "singular_value", "power_coupling", "share_of_sum_rule", "level_db"], rows))
+        write_text_atomic(stage / "summary.csv", _csv_text(
+            ["frequency_hz", "sum_rule", "strong_channels", "usable_channels", "effective_channels",
+             "heuristic_channels"], summary))
+        np.savez(stage / "weights.npz", frequency_hz=hz, singular_value=ch.singular_values, drive=ch.drive,
+                 combine=ch.combine, speaker_names=np.array(ch.speaker_names), mic_names=np.array(ch.mic_names))
+        write_text_atomic(stage / "weights.csv", _weights_csv(plan))
+        write_json_atomic(stage / "weights.json", _sidecar(plan))
+        if figures:
+            _write_figures(plan, stage)
+        written = sorted(p.name for p in stage.iterdir())
+    return [Path(out_dir) / name for name in written]
+
+
+def _weights_csv(plan: Plan) -> str:
+    ch = plan.channels
+    buf = io.StringIO()
+    buf.write("frequency_hz,channel,side,element,re,im\n")
+    for f, hz in enumerate(ch.axis.hz):
+        for j in range(ch.n_channels):
+            for side, names, w in (("drive", ch.speaker_names, ch.drive), ("combine", ch.mic_names, ch.combine)):
+                for e, name in enumerate(names):
+                    z = w[f, e, j]
+                    buf.write(f"{hz:.10g},{j + 1},{side},{name},{z.real:.12g},{z.imag:.12g}\n")
+    return buf.getvalue()
+
+
+def _sidecar(plan: Plan) -> dict[str, Any]:
+    ch, rig = plan.channels, plan.rig
+    return {
+        "kind": "arrayplan-plan",
+        "format_version": 1,
+        "rig": {"name": rig.name, "source": rig.source, "sha256": rig.sha256,
+                "speed_of_sound_m_per_s": rig.medium.speed_of_sound, "air_absorption": rig.medium.air_absorption},
+        "kernel": plan.kernel_name,
+        "coupling": "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)",
+        "channels": "G = U S V^H per frequency; drive = V, combine = conj(U); power coupling = s^2",
+        "normalisation": NORMALISATION,
+        "phase_convention": PHASE,
+        "tracked": ch.tracked,
+        "speaker_names": list(ch.speaker_names),
+        "mic_names": list(ch.mic_names),
+        "n_frequencies": len(ch.axis),
+        "n_channels": ch.n_channels,
+        "threshold_db": plan.threshold_db,
+        "snr_db": plan.snr_db,
+        "heuristic": {"kind": plan.estimate.kind, "distance_m": plan.estimate.distance_m,
+                      "speaker_aperture": plan.estimate.speaker_size, "mic_aperture": plan.estimate.mic_size,
+                      "warning": plan.estimate.warning},
+        "files": {"weights.npz": "frequency_hz (n_freq,), singular_value (n_freq, n_chan), drive (n_freq, n_spk, "
+                                 "n_chan), combine (n_freq, n_mic, n_chan)",
+                  "weights.csv": "frequency_hz, channel (1-based), side (drive|combine), element, re, im"},
+        "provenance": provenance(rig_sha256=rig.sha256),
+    }
+
+
+def _write_figures(plan: Plan, folder: Path) -> None:
+    from .fileio import atomic_path
+    from .plots import plot_channel_counts, plot_couplings, plot_rig
+
+    for name, fig in (("rig.png", plot_rig(plan.rig)), ("couplings.png", plot_couplings(plan)),
+                      ("channel-counts.png", plot_channel_counts(plan))):
+        with atomic_path(folder / name) as tmp:
+            fig.savefig(tmp, dpi=130)
+
+
+class PlanWeights:
+    """Weights read back from a plan folder (see :func:`read_weights`).
+
+    Attributes
+    ----------
+    axis : FrequencyAxis
+    singular_values : ndarray, (n_freq, n_chan)
+    drive : ndarray, complex, (n_freq, n_spk, n_chan)
+    combine : ndarray, complex, (n_freq, n_mic, n_chan)
+    speaker_names, mic_names : tuple of str
+    sidecar : dict
+    """
+
+    def __init__(self, axis, singular_values, drive, combine, speaker_names, mic_names, sidecar) -> None:
+        self.axis = axis
+        self.singular_values = singular_values
+        self.drive = drive
+        self.combine = combine
+        self.speaker_names = speaker_names
+        self.mic_names = mic_names
+        self.sidecar = sidecar
+
+
+def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
+    """Read ``weights.npz`` and ``weights.json`` from a plan folder, with checks."""
+    folder = Path(plan_dir)
+    npz, side = folder / "weights.npz", folder / "weights.json"
+    for p in (npz, side):
+        if not p.exists():
+            raise InputError("missing", source=str(p), fix="point at a folder written by 'arrayplan plan'")
+    try:
+        sidecar = json.loads(side.read_text(encoding="utf-8"))
+        with np.load(npz, allow_pickle=False) as z:
+            data = {k: z[k] for k in ("frequency_hz", "singular_value", "drive", "combine", "speaker_names",
+                                      "mic_names")}
+    except (ValueError, KeyError, OSError) as exc:
+        raise InputError(f"cannot read plan weights ({exc})", source=str(folder)) from None
+    return PlanWeights(FrequencyAxis(data["frequency_hz"], source=str(npz)), data["singular_value"],
+                       data["drive"], data["combine"], tuple(str(x) for x in data["speaker_names"]),
+                       tuple(str(x) for x in data["mic_names"]), sidecar)
+
+
+def summary_lines(plan: Plan, max_rows: int = 12) -> list[str]:
+    """A short human summary of a plan, for stdout."""
+    ch, rig = plan.channels, plan.rig
+    hz = ch.axis.hz
+    lines = [f"Rig '{rig.name}': {len(rig.speakers)} speakers, {len(rig.mics)} microphones, "
+             f"c = {rig.medium.speed_of_sound:.2f} m/s, {len(hz)} frequencies "
+             f"({hz[0]:g}..{hz[-1]:g} Hz), kernel: {plan.kernel_name}"]
+    if plan.estimate.warning:
+        lines.append(f"note: paraxial estimate: {plan.estimate.warning}")
+    lines.append(f"{'frequency (Hz)':>15} {'strong':>7} {'usable':>7} {'effective':>10} {'paraxial':>9} "
+                 f"{'strongest s^2 (%)':>18}")
+    picks = np.unique(np.linspace(0, len(hz) - 1, min(max_rows, len(hz))).round().astype(int))
+    share = ch.share_of_sum_rule()
+    eff = ch.effective_channels()
+    for f in picks:
+        est = plan.estimate.counts[f]
+        lines.append(f"{hz[f]:15.6g} {int(plan.strong_channels[f]):7d} {int(plan.usable_channels[f]):7d} "
+                     f"{eff[f]:10.2f} {('%.1f' % est) if np.isfinite(est) else '-':>9} "
+                     f"{100 * share[f].max():18.1f}")
+    if len(picks) < len(hz):
+        lines.append(f"({len(hz) - len(picks)} more frequencies in summary.csv)")
+    lines.append(f"strong: within {plan.threshold_db:g} dB of the strongest channel; usable: above the noise "
+                 f"floor at an SNR of {plan.snr_db:g} dB on the strongest channel")
+    return lines

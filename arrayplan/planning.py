@@ -1,0 +1,90 @@
+"""The planning pipeline in one call: rig -> kernel -> channels -> counts.
+
+>>> from arrayplan import load_rig, plan_rig, write_plan
+>>> plan = plan_rig(load_rig("demos/corridor-link/rig.toml"))   # doctest: +SKIP
+>>> write_plan(plan, "out/")                                   # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+from .channels import ChannelSet, decompose
+from .coupling import Kernel
+from .errors import InputError
+from .frequency import FrequencyAxis
+from .heuristics import ParaxialEstimate, paraxial_estimate
+from .kernels.freefield import FreeFieldKernel
+from .rig import Rig
+
+__all__ = ["Plan", "plan_rig"]
+
+
+@dataclass(frozen=True)
+class Plan:
+    """The result of planning a rig.
+
+    Attributes
+    ----------
+    rig : Rig
+    channels : ChannelSet
+    estimate : ParaxialEstimate
+    threshold_db, snr_db : float
+        The settings the strong and usable counts were made with.
+    kernel_name : str
+    """
+
+    rig: Rig
+    channels: ChannelSet
+    estimate: ParaxialEstimate
+    threshold_db: float
+    snr_db: float
+    kernel_name: str = "free field"
+
+    @property
+    def strong_channels(self) -> np.ndarray:
+        return self.channels.strong_channels(self.threshold_db)
+
+    @property
+    def usable_channels(self) -> np.ndarray:
+        return self.channels.usable_channels(self.snr_db)
+
+
+def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | None = None,
+             threshold_db: float | None = None, snr_db: float | None = None, track: bool | None = None,
+             chunk_size: int | None = None, progress: Callable[[int, int], None] | None = None) -> Plan:
+    """Plan the channels of `rig`.
+
+    Parameters
+    ----------
+    rig : Rig
+    axis : FrequencyAxis, optional
+        Frequencies (default: the rig file's ``[frequencies]``).
+    kernel : Kernel, optional
+        Source of the coupling matrices (default: the free field of `rig`).
+    threshold_db, snr_db, track, chunk_size : optional
+        Override the rig file's ``[planning]`` settings.
+    progress : callable, optional
+        ``progress(done, total)`` after each chunk.
+
+    Returns
+    -------
+    Plan
+    """
+    axis = axis if axis is not None else rig.frequencies
+    if axis is None:
+        raise InputError("no frequencies to plan at", source=rig.source, field="frequencies",
+                         fix="add a [frequencies] table or give --freq")
+    settings = rig.planning
+    kern = kernel if kernel is not None else FreeFieldKernel(rig)
+    channels: ChannelSet = decompose(kern, axis, chunk_size=chunk_size or settings.chunk_size,
+                                     track=settings.track if track is None else track, progress=progress)
+    estimate = paraxial_estimate(rig.speakers.positions, rig.mics.positions,
+                                 axis.wavelengths(rig.medium.speed_of_sound))
+    return Plan(rig, channels, estimate,
+                settings.threshold_db if threshold_db is None else float(threshold_db),
+                settings.snr_db if snr_db is None else float(snr_db),
+                "free field" if kernel is None else getattr(kernel, "name", type(kernel).__name__))

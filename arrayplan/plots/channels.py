@@ -1,0 +1,78 @@
+"""Channel strength figures."""
+
+from __future__ import annotations
+
+import numpy as np
+from matplotlib.figure import Figure
+
+from ..planning import Plan
+
+__all__ = ["plot_couplings", "plot_channel_counts", "representative_indices"]
+
+
+def representative_indices(n_freq: int, count: int = 3) -> list[int]:
+    """Up to `count` frequency indices spread over the axis (lowest, middle, highest)."""
+    return sorted(set(np.linspace(0, n_freq - 1, min(count, n_freq)).round().astype(int).tolist()))
+
+
+def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40) -> Figure:
+    """Each channel's power coupling as % of the sum rule (left) and in dB re the strongest (right).
+
+    Drawn at up to three frequencies spread over the plan; the paraxial
+    estimate of the channel count is marked with a dashed line of the same
+    colour where it applies.
+    """
+    fig = fig or Figure(figsize=(11.0, 4.2), layout="constrained")
+    ax_lin, ax_db = fig.subplots(1, 2)
+    ch = plan.channels
+    share = ch.share_of_sum_rule() * 100.0
+    level = ch.level_db()
+    n = min(ch.n_channels, max_channels)
+    idx_ch = np.arange(1, n + 1)
+    colours = ["#440154", "#21918c", "#e2a000"]
+    for colour, f in zip(colours, representative_indices(len(ch.axis))):
+        order = np.argsort(-ch.power_coupling[f])[:n]    # descending, also for tracked plans
+        label = f"{ch.axis.hz[f]:g} Hz"
+        ax_lin.plot(idx_ch, share[f, order], "o-", ms=3, color=colour, label=label)
+        ax_db.plot(idx_ch, np.maximum(level[f, order], -120.0), "o-", ms=3, color=colour, label=label)
+        est = plan.estimate.counts[f]
+        if np.isfinite(est):
+            for ax in (ax_lin, ax_db):
+                ax.axvline(est + 0.5, color=colour, ls="--", lw=1)
+    ax_db.axhline(-plan.threshold_db, color="grey", ls=":", lw=1, label=f"-{plan.threshold_db:g} dB (strong)")
+    ax_lin.set_xlabel("channel (strongest first)")
+    ax_lin.set_ylabel("power coupling (% of sum rule)")
+    ax_db.set_xlabel("channel (strongest first)")
+    ax_db.set_ylabel("power coupling re strongest (dB)")
+    for ax in (ax_lin, ax_db):
+        ax.grid(True, alpha=0.3)
+        ax.legend(fontsize=7)
+    title = "Channel strengths"
+    if plan.estimate.kind:
+        title += f"  (dashed: paraxial estimate, {plan.estimate.kind}s)"
+    fig.suptitle(title)
+    return fig
+
+
+def plot_channel_counts(plan: Plan, fig: Figure | None = None) -> Figure:
+    """Strong, usable and effective channel counts against frequency, with the paraxial estimate."""
+    fig = fig or Figure(figsize=(7.5, 4.2), layout="constrained")
+    ax = fig.subplots()
+    hz = plan.channels.axis.hz
+    style = "o-" if len(hz) < 40 else "-"
+    ax.plot(hz, plan.strong_channels, style, ms=3, color="#440154",
+            label=f"strong (within {plan.threshold_db:g} dB of the strongest)")
+    ax.plot(hz, plan.usable_channels, style, ms=3, color="#21918c",
+            label=f"above the noise floor (SNR {plan.snr_db:g} dB)")
+    ax.plot(hz, plan.channels.effective_channels(), "--", color="#e2a000", label="effective (participation ratio)")
+    if plan.estimate.kind:
+        ax.plot(hz, plan.estimate.counts, ":", color="black", label=f"paraxial estimate ({plan.estimate.kind}s)")
+    if len(hz) > 1 and hz[-1] / hz[0] > 4:
+        ax.set_xscale("log")
+    ax.set_xlabel("frequency (Hz)")
+    ax.set_ylabel("number of channels")
+    ax.set_ylim(bottom=0)
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize=7)
+    ax.set_title("Channels against frequency")
+    return fig

@@ -1,0 +1,40 @@
+"""The rig geometry in three orthographic views."""
+
+from __future__ import annotations
+
+from matplotlib.figure import Figure
+
+from ..rig import Rig
+
+__all__ = ["plot_rig"]
+
+_VIEWS = (("top view", 0, 1, "x (m)", "y (m)"), ("side view", 0, 2, "x (m)", "z (m)"),
+          ("front view", 1, 2, "y (m)", "z (m)"))
+
+
+def plot_rig(rig: Rig, fig: Figure | None = None, label_limit: int = 8) -> Figure:
+    """Speakers (triangles) and microphones (circles) seen from the top, the side and the front.
+
+    Element names are written when there are at most `label_limit` of a kind.
+    """
+    fig = fig or Figure(figsize=(11.0, 3.9), layout="constrained")
+    axes = fig.subplots(1, 3)
+    for ax, (title, i, j, xl, yl) in zip(axes, _VIEWS):
+        for es, marker, colour, label in ((rig.speakers, "^", "tab:red", "speakers"),
+                                          (rig.mics, "o", "tab:blue", "microphones")):
+            p = es.positions
+            ax.scatter(p[:, i], p[:, j], marker=marker, s=28, c=colour, label=f"{label} ({len(es)})",
+                       edgecolors="black", linewidths=0.4, zorder=3)
+            if len(es) <= label_limit:
+                for name, row in zip(es.names, p):
+                    ax.annotate(name, (row[i], row[j]), fontsize=6, xytext=(3, 3), textcoords="offset points")
+        ax.set_title(title)
+        ax.set_xlabel(xl)
+        ax.set_ylabel(yl)
+        ax.set_aspect("equal", adjustable="datalim")
+        ax.grid(True, alpha=0.3)
+    axes[0].legend(loc="best", fontsize=7)
+    fig.suptitle(f"Rig '{rig.name}': {len(rig.speakers)} speakers, {len(rig.mics)} microphones")
+    return fig
+
+
