@@ -1,0 +1,129 @@
+"""End-to-end tests of `arrayplan plan` and `arrayplan field` on real files."""
+
+from __future__ import annotations
+
+import csv
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from arrayplan.cli import main
+
+DEMO = Path(__file__).resolve().parents[1] / "demos" / "workshop-link" / "rig.toml"
+
+SMALL_RIG = """
+[rig]
+name = "bench"
+[medium]
+speed_of_sound = 343.0
+[frequencies]
+list = [1000.0, 2000.0]
+[[speakers]]
+shape = "line"
+count = 4
+spacing = 0.1
+center = [0.0, 0.0, 0.0]
+[[microphones]]
+shape = "line"
+count = 5
+spacing = 0.1
+center = [0.0, 0.0, 2.0]
+"""
+
+
+def _rows(path: Path) -> list[dict[str, str]]:
+    with path.open() as fh:
+        return list(csv.DictReader(fh))
+
+
+def test_plan_writes_tables_weights_and_figures(tmp_path, capsys):
+    rig = tmp_path / "rig.toml"
+    rig.write_text(SMALL_RIG)
+    out = tmp_path / "plan"
+    assert main(["plan", str(rig), "--out", str(out)]) == 0
+    for name in ("channels.csv", "summary.csv", "weights.npz", "weights.csv", "weights.json",
+                 "rig.png", "couplings.png", "channel-counts.png"):
+        assert (out / name).stat().st_size > 0, name
+    rows = _rows(out / "channels.csv")
+    assert len(rows) == 2 * 4 and rows[0]["channel"] == "1"
+    # Sum rule: sum of shares is 1 at every frequency (Golub & Van Loan, Matrix Computations: ||G||_F^2 = sum s^2)
+    for f in ("1000", "2000"):
+        assert sum(float(r["share_of_sum_rule"]) for r in rows if r["frequency_hz"] == f) == pytest.approx(1, 1e-9)
+    summary = _rows(out / "summary.csv")
+    assert [r["frequency_hz"] for r in summary] == ["1000", "2000"]
+    # The weights read back reproduce diag(s) through the free-field G (SVD definition, Golub & Van Loan).
+    from arrayplan import FreeFieldKernel, load_rig, read_weights
+    w = read_weights(out)
+    g = FreeFieldKernel(load_rig(rig)).evaluate(w.axis.hz)
+    c = np.einsum("fmi,fms,fsj->fij", w.combine, g, w.drive)
+    np.testing.assert_allclose(c, np.stack([np.diag(s) for s in w.singular_values]), atol=1e-12)
+    side = json.loads((out / "weights.json").read_text())
+    assert side["speaker_names"] == ["S1", "S2", "S3", "S4"] and "exp(-j*k*r)" in side["provenance"]["sign_convention"]
+    # weights.csv long table holds every weight once
+    assert len(_rows(out / "weights.csv")) == 2 * 4 * (4 + 5)
+    assert "strong" in capsys.readouterr().out
+
+
+def test_quick_form_matches_rig_file(tmp_path):
+    spk, mic = tmp_path / "s.csv", tmp_path / "m.csv"
+    spk.write_text("name,x,y,z\n" + "".join(f"S{i+1},{-0.15 + 0.1*i},0,0\n" for i in range(4)))
+    mic.write_text("x,y,z\n" + "".join(f"{-0.2 + 0.1*i},0,2\n" for i in range(5)))
+    rig = tmp_path / "rig.toml"
+    rig.write_text(SMALL_RIG)
+    assert main(["plan", "--speakers", str(spk), "--mics", str(mic), "--freq", "1000", "--freq", "2000",
+                 "--speed-of-sound", "343", "--out", str(tmp_path / "a"), "--no-figures"]) == 0
+    assert main(["plan", str(rig), "--out", str(tmp_path / "b"), "--no-figures"]) == 0
+    a = np.load(tmp_path / "a" / "weights.npz")["singular_value"]
+    b = np.load(tmp_path / "b" / "weights.npz")["singular_value"]
+    np.testing.assert_allclose(a, b, rtol=1e-12)
+
+
+@pytest.mark.parametrize("body, needle", [
+    ("[[speakers]]\nposition = [0, 0, nan]\n[[microphones]]\nposition = [0, 0, 1]\n", "speakers[0].position"),
+    ("[[speakers]]\nposition = [0, 0, 1]\n[[microphones]]\nposition = [0, 0, 1]\n", "same position"),
+    ("[[speakers]]\nposition = [0, 0]\n[[microphones]]\nposition = [0, 0, 1]\n", "speakers[0].position"),
+    ("[[speakers]]\nposition = [0, 0, 0]\ncolour = 1\n[[microphones]]\nposition = [0, 0, 1]\n", "colour"),
+    ("[[speakers]]\nposition = [0, 0, 0]\n", "microphones"),
+    ("this is not toml", "not valid TOML"),
+])
+def test_bad_rig_is_one_line_exit_2_nothing_written(tmp_path, capsys, body, needle):
+    rig = tmp_path / "bad.toml"
+    rig.write_text("[frequencies]\nlist = [1000]\n" + body if "toml" not in body else body)
+    out = tmp_path / "out"
+    assert main(["plan", str(rig), "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert str(rig) in err and needle in err
+    assert not out.exists()
+    assert not list(tmp_path.glob(".out.staging*"))
+
+
+def test_bad_flags(tmp_path, capsys):
+    rig = tmp_path / "rig.toml"
+    rig.write_text(SMALL_RIG)
+    assert main(["plan", str(rig), "--out", str(tmp_path / "o"), "--freq", "-5"]) == 2
+    assert "--freq" in capsys.readouterr().err
+    assert main(["plan", "--speakers", str(tmp_path / "nope.csv"), "--mics", str(tmp_path / "m.csv"),
+                 "--freq", "100", "--out", str(tmp_path / "o")]) == 2
+    assert "nope.csv" in capsys.readouterr().err
+
+
+def test_demo_rig_plans(tmp_path):
+    out = tmp_path / "demo"
+    assert main(["plan", str(DEMO), "--out", str(out), "--no-figures"]) == 0
+    summary = _rows(out / "summary.csv")
+    assert len(summary) == 48
+
+
+def test_field_map(tmp_path):
+    rig = tmp_path / "rig.toml"
+    rig.write_text(SMALL_RIG)
+    out = tmp_path / "field"
+    assert main(["field", str(rig), "--freq", "2000", "--channel", "2", "--plane", "xz", "--at", "0",
+                 "--resolution", "40", "--out", str(out)]) == 0
+    mag = np.load(out / "field-ch2-2000Hz-xz.npy")
+    assert mag.shape[1] == 40 and np.all(np.isfinite(mag)) and mag.max() > 0
+    assert (out / "field-ch2-2000Hz-xz.png").stat().st_size > 0
+    assert main(["field", str(rig), "--freq", "2000", "--channel", "9", "--out", str(out)]) == 2
