@@ -49,8 +49,8 @@ def run(args: argparse.Namespace) -> int:
     p = channel_field(rig, drive[0, :, j], args.freq, grid)
     level = 20 * np.log10(s[0, j] / s[0, 0]) if s[0, 0] > 0 else float("nan")
     stem = f"field-ch{args.channel}-{args.freq:g}Hz-{args.plane}"
-    fig = plot_field(rig, grid, p, f"Channel {args.channel} at {args.freq:g} Hz "
-                                   f"({level:.1f} dB re strongest), {args.plane} plane at {grid.offset:g} m")
+    fig = plot_field(rig, grid, p, f"Channel {args.channel} at {args.freq:g} Hz ({abs(level):.1f} dB below the strongest)\n"
+                                   f"{args.plane} plane at {grid.offset:g} m")
     with staged_output_dir(args.out) as stage:
         with atomic_path(stage / f"{stem}.png") as tmp:
             fig.savefig(tmp, dpi=130)
