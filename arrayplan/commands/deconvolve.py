@@ -29,6 +29,7 @@ from typing import Any
 
 import numpy as np
 
+from ._args import csv_names as _csv_names
 from ..errors import InputError
 from ..fileio import staged_output_dir, write_text_atomic
 from ..irset import IRSet, write_irset
@@ -40,15 +41,6 @@ from ..signals.wavout import read_recording
 __all__ = ["register", "REPORT_NAME"]
 
 REPORT_NAME = "deconvolution.csv"
-
-
-def _csv_names(text: str) -> list[str]:
-    names = [v.strip() for v in text.split(",")]
-    if not all(names):
-        raise argparse.ArgumentTypeError(f"empty name in {text!r}")
-    if len(set(names)) != len(names):
-        raise argparse.ArgumentTypeError(f"names must be unique, got {text!r}")
-    return names
 
 
 def _read_sidecar(path: Path) -> dict[str, Any]:

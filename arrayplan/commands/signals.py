@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from ._args import csv_names as _csv_names
 from ..errors import InputError
 from ..fileio import provenance
 from ..safety import (CAUTION_NOTE, DEFAULT_MAX_DBA, check_exposure, estimate_exposure, format_exposure,
@@ -50,15 +51,6 @@ def _csv_floats(text: str) -> list[float]:
     if not vals:
         raise argparse.ArgumentTypeError("expected at least one number")
     return vals
-
-
-def _csv_names(text: str) -> list[str]:
-    names = [v.strip() for v in text.split(",")]
-    if not all(names):
-        raise argparse.ArgumentTypeError(f"empty name in {text!r}")
-    if len(set(names)) != len(names):
-        raise argparse.ArgumentTypeError(f"names must be unique, got {text!r}")
-    return names
 
 
 def _positive_int(text: str) -> int:
