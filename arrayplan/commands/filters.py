@@ -1,0 +1,61 @@
+"""``arrayplan filters``: channel weights as FIR filter files, checked in a time-domain simulation."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+import matplotlib
+
+from ..errors import InputError
+from ..filters import check_filters, design_filters, validate_request, write_filters
+from ..progress import ProgressBar
+from ..rig import load_rig
+
+CAUTION = ("caution: these filters feed loudspeakers; start any playback at a low level, protect hearing "
+           "and drivers, and follow local codes and licensed practice")
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("filters", help="write each channel's drive and combine weights as FIR filter files",
+                       description="Design FIR drive filters (per speaker) and combine filters (per "
+                                   "microphone) for each planned channel, write them as WAV files with a "
+                                   "JSON sidecar, and check channel isolation in a time-domain simulation.")
+    p.add_argument("rig", help="rig file (TOML)")
+    p.add_argument("--rate", type=float, required=True, metavar="HZ", help="DSP sample rate in Hz")
+    p.add_argument("--taps", type=int, default=2048, help="filter length in samples (default 2048)")
+    p.add_argument("--band", type=float, nargs=2, required=True, metavar=("LOW_HZ", "HIGH_HZ"),
+                   help="band where the filters realise the planned weights")
+    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+    p.add_argument("--min-level-db", type=float, default=-30.0,
+                   help="skip channels weaker than this re the strongest at band centre (default -30)")
+    p.add_argument("--crosstalk-limit-db", type=float, default=-40.0,
+                   help="pass/fail limit of the worst in-band crosstalk (default -40)")
+    p.add_argument("--no-check", action="store_true", help="skip the time-domain check")
+    p.set_defaults(run=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    matplotlib.use("Agg")
+    rig = load_rig(args.rig)
+    if not args.min_level_db <= 0:
+        raise InputError(f"must be 0 dB or below, got {args.min_level_db:g}", source="--min-level-db")
+    validate_request(rig, args.rate, args.taps, tuple(args.band))
+    filters = design_filters(rig, args.rate, args.taps, tuple(args.band), min_level_db=args.min_level_db)
+    check = None if args.no_check else check_filters(rig, filters, limit_db=args.crosstalk_limit_db,
+                                                     progress=ProgressBar("checking"))
+    files = write_filters(rig, filters, args.out, check)
+    fs = filters.sample_rate_hz
+    print(f"{rig.name}: {len(filters.kept)} channels with filters, {filters.taps} taps at {fs:g} Hz, "
+          f"bulk delay {filters.bulk_delay_samples} samples ({1e3 * filters.bulk_delay_samples / fs:.2f} ms)")
+    for j, why in filters.skipped:
+        print(f"  channel {j + 1} skipped: {why}")
+    if check is not None:
+        worst = check.worst_crosstalk_db()
+        print(f"{'channel':>7} {'level dB':>9} {'gain err dB':>11} {'crosstalk dB':>12} {'latency':>8}  verdict")
+        for k, c in enumerate(check.channels):
+            print(f"{c + 1:>7} {filters.level_db[c]:>9.1f} {check.gain_error_db[k]:>11.2f} {worst[k]:>12.1f} "
+                  f"{int(check.latency_samples[k]):>8}  {'pass' if check.passed()[k] else 'FAIL'}")
+    print(f"wrote {len(files)} files to {args.out}")
+    print(CAUTION, file=sys.stderr)
+    return 0

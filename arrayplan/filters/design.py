@@ -1,0 +1,241 @@
+"""FIR drive and combine filters for each planned channel.
+
+The channels are planned on the FFT bins of the filter length (the band
+plus its transitions), with tracking so the weights are smooth in
+frequency.  For channel j the drive filter of speaker s has the spectrum
+
+    H_s(f) = drive[f, s, j] * W(f) * exp(-j 2 pi f (D - a_drive) / fs)
+
+and the combine filter of microphone m likewise uses combine[f, m, j] and
+a_combine.  W is the band window (raised-cosine transitions of 1/6 octave
+outside the band edges, zero at DC and at Nyquist), D = taps // 2 is the
+bulk delay, and a_side is the weights' own group delay (whole samples,
+estimated from their phase slope over frequency; usually an advance, so
+negative), removed so each filter's energy sits at D.  The taps are the
+inverse real FFT, then a Tukey time window (alpha 0.2) reduces truncation
+ripple.
+
+Normalisation (unit drive energy in band): the planned weights are unit
+vectors, so at every in-band frequency sum_s |H_s(f)|^2 = 1 and likewise
+for the combine filters; channel j's end-to-end gain is then s_j in band.
+The group delay estimate is known only modulo the filter length (the
+tracked phase per bin is), so the end-to-end latency is measured by the
+time-domain check (:mod:`arrayplan.filters.check`), not predicted here.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.signal.windows import tukey
+
+from ..channels import ChannelSet, decompose
+from ..errors import InputError
+from ..frequency import FrequencyAxis
+from ..kernels.freefield import FreeFieldKernel
+from ..rig import Rig
+
+__all__ = ["FilterSet", "band_window", "design_filters", "minimum_taps", "validate_request"]
+
+#: Width of each raised-cosine transition outside the band, in octaves.
+TRANSITION_OCTAVES = 1.0 / 6.0
+#: Tukey window taper fraction applied to the taps.
+TUKEY_ALPHA = 0.2
+#: Extra samples on top of twice the rig's delay spread in the minimum filter length.
+TAPS_MARGIN = 64
+
+
+@dataclass(frozen=True)
+class FilterSet:
+    """The FIR filters of the kept channels.
+
+    Attributes
+    ----------
+    drive : ndarray, shape (taps, n_spk, n_kept)
+        Drive filter taps (dimensionless), one column per speaker, rig order.
+    combine : ndarray, shape (taps, n_mic, n_kept)
+        Combine filter taps, one column per microphone.
+    kept : tuple of int
+        0-based channel numbers (in ``plan``) that have filters.
+    skipped : tuple of (int, str)
+        0-based channel numbers without filters, with the reason.
+    plan : ChannelSet
+        The tracked plan on the design bins (band plus transitions).
+    level_db : ndarray, shape (n_chan,)
+        10 log10(s_j^2 / s_max^2) at the band centre bin, every channel.
+    """
+
+    sample_rate_hz: float
+    taps: int
+    band_hz: tuple[float, float]
+    bulk_delay_samples: int
+    drive_alignment_samples: int
+    combine_alignment_samples: int
+    drive: np.ndarray
+    combine: np.ndarray
+    kept: tuple[int, ...]
+    skipped: tuple[tuple[int, str], ...]
+    plan: ChannelSet
+    level_db: np.ndarray
+    centre_hz: float
+
+    @property
+    def drive_delay_samples(self) -> int:
+        """Delay applied to the drive weights, D - a_drive."""
+        return self.bulk_delay_samples - self.drive_alignment_samples
+
+    @property
+    def combine_delay_samples(self) -> int:
+        """Delay applied to the combine weights, D - a_combine."""
+        return self.bulk_delay_samples - self.combine_alignment_samples
+
+    def in_band(self) -> np.ndarray:
+        """Boolean mask over ``plan.axis`` of the bins inside the band."""
+        hz = self.plan.axis.hz
+        return (hz >= self.band_hz[0]) & (hz <= self.band_hz[1])
+
+
+def band_window(hz: np.ndarray, band_hz: tuple[float, float], sample_rate_hz: float) -> np.ndarray:
+    """The band window W(f): 1 in band, raised-cosine transitions outside, 0 at DC and Nyquist.
+
+    Parameters
+    ----------
+    hz : ndarray, shape (n,)
+        Frequencies in Hz.
+    band_hz : (low, high)
+    sample_rate_hz : float
+
+    Returns
+    -------
+    ndarray, shape (n,)
+    """
+    hz = np.asarray(hz, dtype=float)
+    lo, hi = band_hz
+    lo0 = lo * 2.0 ** -TRANSITION_OCTAVES
+    hi1 = min(hi * 2.0 ** TRANSITION_OCTAVES, sample_rate_hz / 2.0)
+    w = np.zeros_like(hz)
+    w[(hz >= lo) & (hz <= hi)] = 1.0
+    rise = (hz > lo0) & (hz < lo)
+    w[rise] = 0.5 - 0.5 * np.cos(np.pi * (hz[rise] - lo0) / (lo - lo0))
+    if hi1 > hi:
+        fall = (hz > hi) & (hz < hi1)
+        w[fall] = 0.5 + 0.5 * np.cos(np.pi * (hz[fall] - hi) / (hi1 - hi))
+    w[(hz <= 0) | (hz >= sample_rate_hz / 2.0)] = 0.0
+    return w
+
+
+def _distances(rig: Rig) -> np.ndarray:
+    d = rig.mics.positions[:, None, :] - rig.speakers.positions[None, :, :]
+    return np.linalg.norm(d, axis=-1)
+
+
+def minimum_taps(rig: Rig, sample_rate_hz: float) -> int:
+    """Shortest filter length: twice the delay spread (max r - min r) / c in samples, plus a margin."""
+    r = _distances(rig)
+    spread = (r.max() - r.min()) / rig.medium.speed_of_sound * sample_rate_hz
+    return int(2 * np.ceil(spread) + TAPS_MARGIN)
+
+
+def validate_request(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[float, float]) -> None:
+    """Raise InputError (naming the flag) when rate, taps or band cannot work for `rig`."""
+    fs = float(sample_rate_hz)
+    lo, hi = (float(b) for b in band_hz)
+    if not (np.isfinite(fs) and fs > 0):
+        raise InputError(f"sample rate must be positive, got {sample_rate_hz!r}", source="--rate",
+                         fix="give the DSP's sample rate in Hz, e.g. 48000")
+    if not (np.isfinite(lo) and np.isfinite(hi) and 0 < lo < hi):
+        raise InputError(f"band must satisfy 0 < low < high, got {lo:g} {hi:g} Hz", source="--band",
+                         fix="give two frequencies in Hz, low then high")
+    if fs < 2.0 * hi:
+        raise InputError(f"rate {fs:g} Hz is below twice the band's top {hi:g} Hz", source="--rate",
+                         fix=f"use a rate of at least {2 * hi:g} Hz or lower the band's top")
+    if hi >= fs / 2.0:
+        raise InputError(f"band top {hi:g} Hz is not below Nyquist {fs / 2:g} Hz", source="--band",
+                         fix="lower the band's top below half the rate")
+    if int(taps) != taps or taps < 16:
+        raise InputError(f"taps must be a whole number >= 16, got {taps!r}", source="--taps")
+    need = minimum_taps(rig, fs)
+    if taps < need:
+        raise InputError(f"{int(taps)} taps cannot hold the rig's delay spread", source="--taps",
+                         fix=f"use at least {need} taps")
+    if _bins_in_band(fs, int(taps), lo, hi) < 2:
+        raise InputError(f"{int(taps)} taps give fewer than 2 FFT bins in the band", source="--taps",
+                         fix="use more taps or widen --band")
+
+
+def _bins_in_band(fs: float, taps: int, lo: float, hi: float) -> int:
+    hz = np.fft.rfftfreq(taps, 1.0 / fs)
+    return int(np.sum((hz >= lo) & (hz <= hi)))
+
+
+def _group_delay_samples(w: np.ndarray, bin_hz: float, sample_rate_hz: float) -> int:
+    """Common group delay of weights (n_freq, n_elem, n_chan) from their bin-to-bin phase slope."""
+    c = np.sum(np.conj(w[:-1]) * w[1:])
+    if len(w) < 2 or abs(c) == 0:
+        return 0
+    tau_s = -np.angle(c) / (2.0 * np.pi * bin_hz)
+    return int(np.round(tau_s * sample_rate_hz))
+
+
+def _taps(weights: np.ndarray, window: np.ndarray, design_idx: np.ndarray, taps: int, delay: int,
+          sample_rate_hz: float) -> np.ndarray:
+    """(taps, n_elem, n_chan) real taps from weights on the design bins."""
+    n_rfft = taps // 2 + 1
+    hz = np.fft.rfftfreq(taps, 1.0 / sample_rate_hz)
+    spec = np.zeros((n_rfft,) + weights.shape[1:], dtype=complex)
+    phase = np.exp(-2j * np.pi * hz[design_idx] * delay / sample_rate_hz)
+    spec[design_idx] = weights * (window[design_idx] * phase)[:, None, None]
+    h = np.fft.irfft(spec, n=taps, axis=0)
+    return h * tukey(taps, TUKEY_ALPHA)[:, None, None]
+
+
+def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[float, float], *,
+                   min_level_db: float = -30.0, chunk_size: int = 64) -> FilterSet:
+    """Design drive and combine FIR filters for the channels of `rig` (see module docstring).
+
+    Parameters
+    ----------
+    rig : Rig
+    sample_rate_hz : float
+        DSP sample rate in Hz.
+    taps : int
+        Filter length N; the bulk delay is N // 2 samples.
+    band_hz : (low, high)
+        Band in Hz where the filters realise the planned weights.
+    min_level_db : float
+        Channels whose power coupling at the band centre is more than this
+        many dB below the strongest are skipped (listed in ``skipped``).
+
+    Returns
+    -------
+    FilterSet
+    """
+    validate_request(rig, sample_rate_hz, taps, band_hz)
+    fs, taps = float(sample_rate_hz), int(taps)
+    lo, hi = float(band_hz[0]), float(band_hz[1])
+    hz_all = np.fft.rfftfreq(taps, 1.0 / fs)
+    window = band_window(hz_all, (lo, hi), fs)
+    design_idx = np.nonzero(window > 0)[0]
+    axis = FrequencyAxis(hz_all[design_idx])
+    plan = decompose(FreeFieldKernel(rig), axis, chunk_size=chunk_size, track=True)
+    centre = float(np.sqrt(lo * hi))
+    in_band = (axis.hz >= lo) & (axis.hz <= hi)
+    band_idx = np.nonzero(in_band)[0]
+    ci = band_idx[np.argmin(np.abs(axis.hz[band_idx] - centre))]
+    p = plan.power_coupling[ci]
+    with np.errstate(divide="ignore"):
+        level = 10.0 * np.log10(p / p.max())
+    kept = tuple(int(j) for j in np.nonzero(level >= min_level_db)[0])
+    skipped = tuple((int(j), f"{level[j]:.1f} dB re the strongest channel at {axis.hz[ci]:.0f} Hz, "
+                     f"below the {min_level_db:g} dB limit") for j in range(len(level)) if j not in kept)
+    bin_hz = fs / taps
+    drive_w = plan.drive[:, :, list(kept)]
+    combine_w = plan.combine[:, :, list(kept)]
+    a_drive = _group_delay_samples(drive_w[in_band], bin_hz, fs)
+    a_combine = _group_delay_samples(combine_w[in_band], bin_hz, fs)
+    bulk = taps // 2
+    drive = _taps(drive_w, window, design_idx, taps, bulk - a_drive, fs)
+    combine = _taps(combine_w, window, design_idx, taps, bulk - a_combine, fs)
+    return FilterSet(fs, taps, (lo, hi), bulk, a_drive, a_combine, drive, combine, kept, skipped, plan,
+                     level, float(axis.hz[ci]))
