@@ -143,5 +143,5 @@ def plot_crosstalk(check: FilterCheck, ax=None):
     ax.set_ylabel("output channel i (combine filters)")
     ax.set_title(f"Worst in-band crosstalk, limit {check.limit_db:g} dB (diagonal blank)")
     cbar = ax.figure.colorbar(im, ax=ax)
-    cbar.set_label("|T_ij| / |T_ii|, worst over the band (dB)")
+    cbar.set_label("|T_ij| / |T_ii|, worst over the band (dB, floor -160)")
     return ax
