@@ -102,6 +102,7 @@ def test_weak_channel_is_listed_as_skipped_and_files_are_complete(tmp_path):
     doc = json.loads((tmp_path / "out" / "filters.json").read_text())
     assert doc["skipped"][0]["channel"] == 2 and doc["bulk_delay_samples"] == TAPS // 2
     assert doc["speakers"] == list(rig.speakers.names) and doc["provenance"]["rig_sha256"] == rig.sha256
+    assert doc["caution"]
 
 
 RIG_TOML = """

@@ -23,6 +23,7 @@ import soundfile as sf
 
 from ..fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..rig import Rig
+from ..safety import CAUTION_NOTE
 from .check import FilterCheck, plot_crosstalk
 from .design import TRANSITION_OCTAVES, TUKEY_ALPHA, FilterSet
 
@@ -64,6 +65,7 @@ def sidecar(rig: Rig, filters: FilterSet, check: FilterCheck | None = None) -> d
         "speakers": list(rig.speakers.names),
         "microphones": list(rig.mics.names),
         "sign_convention": provenance()["sign_convention"],
+        "caution": CAUTION_NOTE,
     }
     if check is not None:
         doc["check"] = {
