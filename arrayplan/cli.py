@@ -26,6 +26,7 @@ COMMAND_MODULES = (
     "arrayplan.commands.calibrate",
     "arrayplan.commands.signals",
     "arrayplan.commands.deconvolve",
+    "arrayplan.commands.verify",
     "arrayplan.commands.filters",
 )
 

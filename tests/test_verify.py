@@ -1,0 +1,154 @@
+"""Verification of planned channels against (simulated) measured impulse responses, API and CLI."""
+
+from __future__ import annotations
+
+import csv
+import json
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from arrayplan.cli import main
+from arrayplan.frequency import FrequencyAxis
+from arrayplan.irset import IRSet, read_irset, write_irset
+from arrayplan.kernels.measured import MeasuredKernel
+from arrayplan.plan_files import read_weights, write_plan
+from arrayplan.planning import plan_rig
+from arrayplan.rig import Rig
+from arrayplan.simulate import free_field_irset
+from arrayplan.verify import verify_plan
+
+FS = 48000.0
+N = 4096
+C = 343.2
+HZ = np.array([100, 200, 300]) * FS / N      # FFT bins, where the simulated record is exact
+
+
+def _rig(shift=None) -> Rig:
+    spk = np.c_[np.linspace(-0.3, 0.3, 4), np.zeros(4), np.zeros(4)]
+    mic = np.c_[np.linspace(-0.3, 0.3, 4), np.full(4, 1.0), np.zeros(4)]
+    return Rig.from_positions(spk, mic if shift is None else mic + shift, speed_of_sound=C)
+
+
+@pytest.fixture()
+def plan_dir(tmp_path):
+    folder = tmp_path / "plan"
+    write_plan(plan_rig(_rig(), FrequencyAxis(HZ)), folder, figures=False)
+    return folder
+
+
+def _irset_dir(tmp_path, rig, name="irs", irs=None):
+    folder = tmp_path / name
+    write_irset(folder, irs if irs is not None else free_field_irset(rig, FS, N))
+    return folder
+
+
+def test_perfect_rig_reproduces_plan(plan_dir, tmp_path):
+    # Channels of the SVD: combine^T G drive = diag(s) (Miller, Applied Optics 39(11), 2000).
+    weights = read_weights(plan_dir)
+    irs = read_irset(_irset_dir(tmp_path, _rig()))
+    res = verify_plan(weights, MeasuredKernel(irs))
+    np.testing.assert_allclose(res.gain_db, 0.0, atol=1e-3)           # float32 storage
+    assert res.crosstalk_db.max() < -60.0
+    np.testing.assert_allclose(res.measured_sv, res.planned_sv, rtol=0, atol=2e-5 * res.planned_sv.max())
+    assert res.max_angle_deg.max() < 0.1
+    assert np.all(res.passed)
+
+
+def test_names_in_another_order_are_matched(plan_dir, tmp_path):
+    irs = free_field_irset(_rig(), FS, N)
+    perm_s, perm_m = [2, 0, 3, 1], [1, 3, 0, 2]
+    shuffled = IRSet(irs.data[:, perm_m][:, :, perm_s], FS, [irs.speaker_names[i] for i in perm_s],
+                     [irs.mic_names[i] for i in perm_m])
+    res = verify_plan(read_weights(plan_dir), MeasuredKernel(shuffled))
+    np.testing.assert_allclose(res.gain_db, 0.0, atol=1e-6)
+
+
+def test_moved_mics_raise_crosstalk_and_subspace_angle(plan_dir, tmp_path):
+    # First-order perturbation (Golub & Van Loan, Matrix Computations, 2013): crosstalk and the
+    # subspace angle both grow linearly with a small displacement.
+    rng = np.random.default_rng(5)
+    direction = rng.uniform(-1, 1, (4, 3))
+    weights = read_weights(plan_dir)
+    xt, ang = [], []
+    for mm in (0.5, 1.0):
+        res = verify_plan(weights, MeasuredKernel(free_field_irset(_rig(direction * mm * 1e-3), FS, N)))
+        xt.append(10 ** (res.crosstalk_db.max() / 20))
+        ang.append(res.max_angle_deg.max())
+    assert xt[1] / xt[0] == pytest.approx(2.0, rel=0.1)
+    assert ang[1] / ang[0] == pytest.approx(2.0, rel=0.1)
+
+
+def _run(capsys, *args):
+    code = main(["verify", *map(str, args)])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_cli_pass_and_fail(plan_dir, tmp_path, capsys):
+    good = _irset_dir(tmp_path, _rig(), "good")
+    out = tmp_path / "v-good"
+    code, stdout, _ = _run(capsys, plan_dir, good, "--out", out, "--channels", "1,2,3")
+    assert code == 0
+    lines = [ln for ln in stdout.splitlines() if ln.startswith("channel ")]
+    assert len(lines) == 3 and all(": PASS" in ln for ln in lines)
+    for name in ("verify-channels.csv", "verify-summary.csv", "verify-crosstalk.png", "verify-singular-values.png",
+                 "verify.json"):
+        assert (out / name).exists(), name
+    rows = list(csv.DictReader((out / "verify-channels.csv").open()))
+    assert len(rows) == 3 * len(HZ) and {r["channel"] for r in rows} == {"1", "2", "3"}
+    assert all(float(r["isolation_db"]) > 60 for r in rows)
+    # 5 cm of microphone displacement (~0.5 wavelength at 3.5 kHz) ruins isolation
+    rng = np.random.default_rng(9)
+    bad = _irset_dir(tmp_path, _rig(rng.uniform(-0.05, 0.05, (4, 3))), "bad")
+    code, stdout, _ = _run(capsys, plan_dir, bad, "--out", tmp_path / "v-bad", "--window-ms", "20")
+    assert code == 1
+    assert "FAIL" in stdout
+    summary = list(csv.DictReader((tmp_path / "v-bad" / "verify-summary.csv").open()))
+    assert sum(int(r["lost_channels"]) for r in summary) > 0
+    assert json.loads((tmp_path / "v-bad" / "verify.json").read_text())["passed"].count(False) > 0
+
+
+def _rewrite_wav(folder, fname, transform):
+    data, rate = sf.read(folder / fname, dtype="float32", always_2d=True)
+    data, rate = transform(data, rate)
+    sf.write(folder / fname, data, rate, subtype="FLOAT", format="WAV")
+
+
+@pytest.mark.parametrize("damage, message", [
+    ("names", "differ"),
+    ("rate", "sample rate"),
+    ("truncated", "truncated"),
+    ("silent", "silent"),
+    ("count", "differ"),
+])
+def test_cli_bad_input_exit_2_nothing_written(plan_dir, tmp_path, capsys, damage, message):
+    rig = _rig()
+    if damage == "names":
+        rig = Rig.from_positions(rig.speakers.positions, rig.mics.positions, speed_of_sound=C,
+                                 mic_names=["M1", "M2", "M3", "X9"])
+    if damage == "count":
+        rig = Rig.from_positions(rig.speakers.positions[:3], rig.mics.positions, speed_of_sound=C)
+    folder = _irset_dir(tmp_path, rig)
+    if damage == "rate":
+        _rewrite_wav(folder, "spk-002.wav", lambda d, r: (d, 44100))
+    if damage == "truncated":
+        _rewrite_wav(folder, "spk-003.wav", lambda d, r: (d[:1000], r))
+    if damage == "silent":
+        _rewrite_wav(folder, "spk-001.wav", lambda d, r: (np.zeros_like(d), r))
+    out = tmp_path / "v"
+    code, stdout, err = _run(capsys, plan_dir, folder, "--out", out)
+    assert code == 2
+    assert len(err.strip().splitlines()) == 1 and message in err, err
+    assert "Traceback" not in err and stdout == ""
+    assert not out.exists()
+
+
+def test_cli_rejects_plan_above_nyquist(tmp_path, capsys):
+    plan = tmp_path / "plan"
+    write_plan(plan_rig(_rig(), FrequencyAxis([1000.0, 9000.0])), plan, figures=False)
+    irs = free_field_irset(_rig(), 16000.0, 1024)
+    code, _, err = _run(capsys, plan, _irset_dir(tmp_path, None, irs=irs), "--out", tmp_path / "v")
+    assert code == 2 and "Nyquist" in err
+    assert not (tmp_path / "v").exists()
