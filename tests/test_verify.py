@@ -152,3 +152,15 @@ def test_cli_rejects_plan_above_nyquist(tmp_path, capsys):
     code, _, err = _run(capsys, plan, _irset_dir(tmp_path, None, irs=irs), "--out", tmp_path / "v")
     assert code == 2 and "Nyquist" in err
     assert not (tmp_path / "v").exists()
+
+
+@pytest.mark.parametrize("flags, message", [
+    (["--channels", "9"], "--channels"),
+    (["--window-ms", "0.01"], "window"),
+    (["--isolation-db", "-3"], "--isolation-db"),
+])
+def test_cli_bad_options_exit_2(plan_dir, tmp_path, capsys, flags, message):
+    folder = _irset_dir(tmp_path, _rig())
+    code, _, err = _run(capsys, plan_dir, folder, "--out", tmp_path / "v", *flags)
+    assert code == 2 and message in err and len(err.strip().splitlines()) == 1, err
+    assert not (tmp_path / "v").exists()
