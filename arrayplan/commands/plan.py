@@ -7,7 +7,11 @@ from pathlib import Path
 
 import matplotlib
 
+import numpy as np
+
 from ..errors import InputError
+from ..irset import IRSet, read_irset
+from ..kernels.measured import MeasuredKernel
 from ..frequency import FrequencyAxis
 from ..medium import speed_of_sound_air
 from ..planning import plan_rig
@@ -33,8 +37,41 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--track", action="store_true", default=None,
                    help="order and phase-align channels from bin to bin")
     p.add_argument("--chunk-size", type=int, help="frequencies decomposed at once (bounds memory)")
+    p.add_argument("--irset", metavar="DIR",
+                   help="plan from this measured impulse-response set instead of the free field")
+    p.add_argument("--window-ms", type=float, metavar="MS",
+                   help="with --irset: fade the responses out by this time to drop the late room response")
+    p.add_argument("--latency-samples", type=int, default=0, metavar="N",
+                   help="with --irset: common latency to remove first (default 0)")
     p.add_argument("--no-figures", action="store_true", help="write tables and weights only")
     p.set_defaults(run=run)
+
+
+def rig_from_irset(irs: IRSet, source: str) -> Rig:
+    """A rig from the positions stored in an IR set's manifest."""
+    if irs.speaker_positions is None or irs.mic_positions is None \
+            or not (np.all(np.isfinite(irs.speaker_positions)) and np.all(np.isfinite(irs.mic_positions))):
+        raise InputError("the IR set does not give every speaker and microphone position", source=source,
+                         field="position_m", fix="give a rig file with the positions as well")
+    return Rig.from_positions(irs.speaker_positions, irs.mic_positions, speaker_names=irs.speaker_names,
+                              mic_names=irs.mic_names, name=Path(source).name, source=source)
+
+
+def _measured_kernel(args: argparse.Namespace, rig: Rig | None) -> tuple[Rig, MeasuredKernel]:
+    irs = read_irset(args.irset)
+    if rig is None:
+        rig = rig_from_irset(irs, args.irset)
+    for kind, planned, measured in (("speakers", rig.speakers.names, irs.speaker_names),
+                                    ("microphones", rig.mics.names, irs.mic_names)):
+        if list(planned) != list(measured):
+            raise InputError(f"{kind} {list(measured)} differ from the rig's {list(planned)}", source=args.irset,
+                             field=kind, fix="use the IR set measured on this rig, with the same names in order")
+    window = None
+    if args.window_ms is not None:
+        if not args.window_ms > 0:
+            raise InputError(f"must be positive, got {args.window_ms}", source="--window-ms")
+        window = args.window_ms / 1000.0
+    return rig, MeasuredKernel(irs, window_s=window, latency_samples=args.latency_samples)
 
 
 def rig_from_args(args: argparse.Namespace) -> Rig:
@@ -46,6 +83,8 @@ def rig_from_args(args: argparse.Namespace) -> Rig:
             raise InputError("--speed-of-sound applies to the quick form only", source="--speed-of-sound",
                              fix="set [medium] speed_of_sound in the rig file")
         return load_rig(args.rig)
+    if getattr(args, "irset", None) and not (args.speakers or args.mics):
+        return None  # type: ignore[return-value]  # positions come from the IR set
     if not (args.speakers and args.mics):
         raise InputError("no rig given", source="command line",
                          fix="give RIG.toml, or both --speakers S.csv and --mics M.csv")
@@ -69,10 +108,20 @@ def _checked(value: float | None, flag: str) -> float | None:
 def run(args: argparse.Namespace) -> int:
     matplotlib.use("Agg")
     rig = rig_from_args(args)
+    kernel = None
+    if args.irset:
+        rig, kernel = _measured_kernel(args, rig)
+    elif args.window_ms is not None or args.latency_samples:
+        raise InputError("applies only with --irset", source="--window-ms/--latency-samples")
     axis = FrequencyAxis(sorted(args.freq), source="--freq") if args.freq else None
+    if kernel is not None:
+        top = (axis or rig.frequencies)
+        if top is not None and top.hz[-1] >= kernel.sample_rate_hz / 2:
+            raise InputError(f"plan frequency {top.hz[-1]:g} Hz is not below the IR set's Nyquist frequency "
+                             f"{kernel.sample_rate_hz / 2:g} Hz", source="--freq", fix="plan at lower frequencies")
     if args.chunk_size is not None and args.chunk_size < 1:
         raise InputError(f"must be at least 1, got {args.chunk_size}", source="--chunk-size")
-    plan = plan_rig(rig, axis, threshold_db=_checked(args.threshold_db, "--threshold-db"),
+    plan = plan_rig(rig, axis, kernel=kernel, threshold_db=_checked(args.threshold_db, "--threshold-db"),
                     snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,
                     progress=ProgressBar("planning"))
     files = write_plan(plan, args.out, figures=not args.no_figures)

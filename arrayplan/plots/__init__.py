@@ -9,5 +9,7 @@
 from .channels import plot_channel_counts, plot_couplings
 from .field import plot_field
 from .rig import plot_rig
+from .verify import plot_crosstalk, plot_singular_values
 
-__all__ = ["plot_rig", "plot_couplings", "plot_channel_counts", "plot_field"]
+__all__ = ["plot_rig", "plot_couplings", "plot_channel_counts", "plot_field", "plot_crosstalk",
+           "plot_singular_values"]
