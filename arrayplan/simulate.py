@@ -46,7 +46,7 @@ def free_field_impulse_responses(rig: Rig, sample_rate_hz: float, n_samples: int
     """
     n_samples = int(n_samples)
     kernel = FreeFieldKernel(rig)
-    r_max = float(np.max(kernel._r))
+    r_max = float(np.max(kernel.distances_m))
     delay = r_max / rig.medium.speed_of_sound * sample_rate_hz
     if n_samples < delay + 64:
         raise InputError(f"{n_samples} samples cannot hold the rig's longest delay of {delay:.0f} samples",

@@ -73,6 +73,11 @@ class FreeFieldKernel:
         self._mic_groups = _cosines(mics, -unit)
         self._inv_4pi_r = 1.0 / (4.0 * np.pi * self._r)
 
+    @property
+    def distances_m(self) -> np.ndarray:
+        """Speaker-to-microphone distances in metres, shape (n_mic, n_spk)."""
+        return self._r
+
     def evaluate(self, hz: np.ndarray) -> np.ndarray:
         """Coupling matrices at `hz` (Hz, shape (n,)); shape (n, n_mic, n_spk), complex."""
         hz = np.atleast_1d(np.asarray(hz, dtype=float))
