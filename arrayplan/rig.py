@@ -32,7 +32,9 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
-__all__ = ["ElementSet", "HardwareMap", "PlanSettings", "Rig", "load_rig", "read_positions_csv"]
+__all__ = ["ElementSet", "HardwareMap", "PlanSettings", "Rig", "load_rig", "read_positions_csv",
+           "read_rig_document", "resolve_entry", "resolve_section", "join_entries", "EntryElements",
+           "FieldReader", "TABLE_KEYS", "ENTRY_KEYS"]
 
 #: Two elements closer than this (metres) are taken as coincident.
 COINCIDENT_M = 1e-6
@@ -145,20 +147,52 @@ class Rig:
         return rig
 
     def validate(self) -> None:
-        """Check positions for NaN, coincidences and name or channel clashes."""
+        """Check positions for NaN, coincidences and name or channel clashes.
+
+        Raises
+        ------
+        InputError
+            The first of :meth:`problems`.
+        """
+        found = self.problems(limit=1)
+        if found:
+            raise found[0]
+
+    def problems(self, limit: int | None = None) -> list[InputError]:
+        """Every structural problem of the rig, in the order :meth:`validate` meets them.
+
+        Parameters
+        ----------
+        limit : int, optional
+            Stop after this many problems.
+
+        Returns
+        -------
+        list of InputError
+            Empty sides, non-finite positions, repeated names or channels,
+            coincident elements (each pair once).
+        """
+        out: list[InputError] = []
         for label, es in (("speakers", self.speakers), ("microphones", self.mics)):
-            if len(es) == 0:
-                raise InputError(f"the rig has no {label}", source=self.source, field=label,
-                                 fix=f"add at least one entry under [[{label}]]")
-            bad = ~np.all(np.isfinite(es.positions), axis=1)
-            if bad.any():
-                i = int(np.flatnonzero(bad)[0])
-                raise InputError(f"position of {es.names[i]!r} is not finite", source=self.source,
-                                 field=f"{label}[{es.names[i]}].position")
-            _check_unique(es.names, f"{label} names", self.source, label)
-            _check_unique([str(c) for c in es.channels], f"{label} channels", self.source, label)
-            _check_not_coincident(es, es, self.source, label, same=True)
-        _check_not_coincident(self.speakers, self.mics, self.source, "speakers/microphones", same=False)
+            out += _side_problems(es, label, self.source)
+        if len(self.speakers) and len(self.mics):
+            out += _coincident(self.speakers, self.mics, self.source, "speakers/microphones", same=False)
+        return out[:limit] if limit is not None else out
+
+
+def _side_problems(es: ElementSet, label: str, source: str) -> list[InputError]:
+    if len(es) == 0:
+        return [InputError(f"the rig has no {label}", source=source, field=label,
+                           fix=f"add at least one entry under [[{label}]]")]
+    out = []
+    bad = ~np.all(np.isfinite(es.positions), axis=1)
+    for i in np.flatnonzero(bad):
+        out.append(InputError(f"position of {es.names[i]!r} is not finite", source=source,
+                              field=f"{label}[{es.names[i]}].position"))
+    out += _repeats(es.names, f"{label} names", source, label)
+    out += _repeats([str(c) for c in es.channels], f"{label} channels", source, label)
+    out += _coincident(es, es, source, label, same=True)
+    return out
 
 
 def _canon(es: ElementSet) -> list:
@@ -180,24 +214,27 @@ def _element_set(positions: np.ndarray, names: Sequence[str] | None, prefix: str
     return ElementSet(names, pos, (directivity,) * n, tuple(range(1, n + 1)))
 
 
-def _check_unique(values: Sequence[str], what: str, source: str, label: str) -> None:
+def _repeats(values: Sequence[str], what: str, source: str, label: str) -> list[InputError]:
     seen: set[str] = set()
+    out = []
     for v in values:
         if v in seen:
-            raise InputError(f"{what} must be unique; {v!r} appears twice", source=source, field=label)
+            out.append(InputError(f"{what} must be unique; {v!r} appears twice", source=source, field=label))
         seen.add(v)
+    return out
 
 
-def _check_not_coincident(a: ElementSet, b: ElementSet, source: str, label: str, same: bool) -> None:
-    d = np.linalg.norm(a.positions[:, None, :] - b.positions[None, :, :], axis=-1)
+def _coincident(a: ElementSet, b: ElementSet, source: str, label: str, same: bool) -> list[InputError]:
+    with np.errstate(invalid="ignore"):
+        d = np.linalg.norm(a.positions[:, None, :] - b.positions[None, :, :], axis=-1)
     if same:
         d = d + np.diag(np.full(len(a), np.inf))
     close = np.argwhere(d < COINCIDENT_M)
-    if close.size:
-        i, j = close[0]
-        raise InputError(f"{a.names[i]!r} and {b.names[j]!r} are at the same position "
-                         f"{list(np.round(a.positions[i], 6))}", source=source, field=label,
-                         fix="move one of them; elements must be at least 1 µm apart")
+    if same:
+        close = close[close[:, 0] < close[:, 1]]
+    return [InputError(f"{a.names[i]!r} and {b.names[j]!r} are at the same position "
+                       f"{list(np.round(a.positions[i], 6))}", source=source, field=label,
+                       fix="move one of them; elements must be at least 1 µm apart") for i, j in close]
 
 
 # ---------------------------------------------------------------- rig files
@@ -207,10 +244,24 @@ _POINT_KEYS = {"name", "position", "directivity", "channel"}
 _GROUP_KEYS = {"name", "shape", "count", "counts", "spacing", "length", "size", "center", "direction",
                "normal", "facing", "radius", "start_deg", "stop_deg", "directivity", "first_channel"}
 _CSV_KEYS = {"csv", "directivity", "first_channel", "name"}
+#: Keys allowed in each table of a rig file ("" is the top level).
+TABLE_KEYS = {
+    "": _TOP_KEYS,
+    "rig": {"name", "description"},
+    "medium": {"speed_of_sound", "temperature_c", "relative_humidity_pct", "pressure_kpa", "air_absorption"},
+    "frequencies": {"list", "start", "stop", "count", "spacing"},
+    "hardware": {"device", "sample_rate_hz", "reference", "calibration"},
+    "hardware.reference": {"output_channel", "input_channel"},
+    "planning": {"threshold_db", "snr_db", "track", "chunk_size"},
+}
 
 
-class _Reader:
-    """Typed access to a TOML table with errors that name the file and field."""
+class FieldReader:
+    """Typed access to a TOML table with errors that name the file and field.
+
+    Each method returns the value of `key` in `table` (or `default` when it is
+    absent) and raises :class:`InputError` with field ``"<where>.<key>"``.
+    """
 
     def __init__(self, source: str) -> None:
         self.source = source
@@ -324,63 +375,129 @@ def read_positions_csv(path: str | Path, *, field: str = "csv") -> tuple[list[st
     return (names or None), np.array(rows, dtype=float), (channels or None)
 
 
-def _resolve_side(entries: Any, label: str, prefix: str, r: _Reader, base: Path) -> ElementSet:
+@dataclass(frozen=True)
+class EntryElements:
+    """The elements one ``[[speakers]]`` or ``[[microphones]]`` entry of a rig file resolves to.
+
+    Attributes
+    ----------
+    kind : str
+        ``"point"``, ``"csv"`` or the group's shape (``"line"``, ``"grid"``, ...).
+    names : tuple of str
+    positions : ndarray, shape (n, 3), metres
+    directivities : tuple of Directivity
+    channels : tuple of int
+        1-based hardware channels.
+    """
+
+    kind: str
+    names: tuple[str, ...]
+    positions: np.ndarray
+    directivities: tuple[Directivity, ...]
+    channels: tuple[int, ...]
+
+
+def entry_kind(entry: dict) -> str:
+    """``"csv"``, ``"group"`` or ``"point"``: how a side's entry gives its elements."""
+    return "csv" if "csv" in entry else "group" if "shape" in entry else "point"
+
+
+#: Keys allowed in each kind of [[speakers]] / [[microphones]] entry.
+ENTRY_KEYS = {"point": _POINT_KEYS, "group": _GROUP_KEYS, "csv": _CSV_KEYS}
+
+
+def resolve_entry(entry: Any, index: int, label: str, r: "FieldReader", base: Path, *, n_entries: int,
+                  n_before: int, next_channel: int) -> EntryElements:
+    """Resolve entry `index` of side `label` (``"speakers"`` or ``"microphones"``).
+
+    Parameters
+    ----------
+    entry : dict
+        The TOML table.
+    index : int
+        0-based position of the entry in its array of tables.
+    label : str
+        ``"speakers"`` or ``"microphones"``.
+    r : FieldReader
+        Typed access that names the rig file in its errors.
+    base : Path
+        Folder CSV paths are relative to.
+    n_entries, n_before, next_channel : int
+        Entries on this side, elements resolved before this entry, and the
+        channel the entry starts at when it gives none (default names and
+        channels depend on them).
+
+    Raises
+    ------
+    InputError
+        At the first problem in the entry.
+    """
+    prefix = "S" if label == "speakers" else "M"
+    where = f"{label}[{index}]"
+    if not isinstance(entry, dict):
+        raise r.fail(where, "must be a table")
+    kind = entry_kind(entry)
+    r.keys(entry, ENTRY_KEYS[kind], where)
+    if kind == "csv":
+        csv_path = base / r.string(entry, "csv", where)
+        nm, pos, ch = read_positions_csv(csv_path, field=f"{where}.csv")
+        prefix_i = entry.get("name", f"{prefix}{n_before + 1}-" if n_entries > 1 else prefix)
+        nm = nm or [f"{prefix_i}{j + 1}" for j in range(len(pos))]
+        outward = None
+    elif kind == "group":
+        nm, pos, outward = _group(entry, where, r, prefix if n_entries == 1 else None, n_before)
+        ch = None
+    else:
+        pos = np.array([r.vector(entry, "position", where)])
+        nm = [r.string(entry, "name", where, default=f"{prefix}{n_before + 1}")]
+        ch = [r.integer(entry, "channel", where)] if "channel" in entry else None
+        outward = None
+    spec = entry.get("directivity")
+    if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward") and outward is not None:
+        sign = 1.0 if spec["axis"] == "outward" else -1.0
+        base_spec = {k: v for k, v in spec.items() if k != "axis"}
+        group_dirs = [parse_directivity(dict(base_spec, axis=list(sign * o)), source=r.source,
+                                        field=f"{where}.directivity") for o in outward]
+    else:
+        if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward"):
+            raise r.fail(f"{where}.directivity.axis", "'outward'/'inward' needs a generated group",
+                         fix="give axis = [x, y, z]")
+        d = parse_directivity(spec, source=r.source, field=f"{where}.directivity")
+        group_dirs = [d] * len(pos)
+    if ch is None:
+        first = r.integer(entry, "first_channel", where, default=next_channel)
+        ch = list(range(first, first + len(pos)))
+    shape = entry["shape"] if kind == "group" else kind
+    return EntryElements(shape, tuple(nm), pos, tuple(group_dirs), tuple(ch))
+
+
+def join_entries(parts: Sequence[EntryElements]) -> ElementSet:
+    """One :class:`ElementSet` from the entries of a side, in order."""
+    if not parts:
+        return ElementSet((), np.zeros((0, 3)), (), ())
+    pos_all = np.vstack([p.positions for p in parts])
+    pos_all.setflags(write=False)
+    return ElementSet(tuple(n for p in parts for n in p.names), pos_all,
+                      tuple(d for p in parts for d in p.directivities),
+                      tuple(c for p in parts for c in p.channels))
+
+
+def _resolve_side(entries: Any, label: str, prefix: str, r: FieldReader, base: Path) -> ElementSet:
     if entries is None:
         raise r.fail(label, "missing", fix=f"add at least one [[{label}]] entry")
     if not isinstance(entries, list):
         raise r.fail(label, f"must be an array of tables ([[{label}]])")
-    names: list[str] = []
-    positions: list[np.ndarray] = []
-    dirs: list[Directivity] = []
-    channels: list[int] = []
+    parts: list[EntryElements] = []
     next_channel = 1
     for i, entry in enumerate(entries):
-        where = f"{label}[{i}]"
-        if not isinstance(entry, dict):
-            raise r.fail(where, "must be a table")
-        if "csv" in entry:
-            r.keys(entry, _CSV_KEYS, where)
-            csv_path = base / r.string(entry, "csv", where)
-            nm, pos, ch = read_positions_csv(csv_path, field=f"{where}.csv")
-            prefix_i = entry.get("name", f"{prefix}{len(names) + 1}-" if len(entries) > 1 else prefix)
-            nm = nm or [f"{prefix_i}{j + 1}" for j in range(len(pos))]
-            outward = None
-        elif "shape" in entry:
-            r.keys(entry, _GROUP_KEYS, where)
-            nm, pos, outward = _group(entry, where, r, prefix if len(entries) == 1 else None, len(names))
-            ch = None
-        else:
-            r.keys(entry, _POINT_KEYS, where)
-            pos = np.array([r.vector(entry, "position", where)])
-            nm = [r.string(entry, "name", where, default=f"{prefix}{len(names) + 1}")]
-            ch = [r.integer(entry, "channel", where)] if "channel" in entry else None
-            outward = None
-        spec = entry.get("directivity")
-        if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward") and outward is not None:
-            sign = 1.0 if spec["axis"] == "outward" else -1.0
-            base_spec = {k: v for k, v in spec.items() if k != "axis"}
-            group_dirs = [parse_directivity(dict(base_spec, axis=list(sign * o)), source=r.source,
-                                            field=f"{where}.directivity") for o in outward]
-        else:
-            if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward"):
-                raise r.fail(f"{where}.directivity.axis", "'outward'/'inward' needs a generated group",
-                             fix="give axis = [x, y, z]")
-            d = parse_directivity(spec, source=r.source, field=f"{where}.directivity")
-            group_dirs = [d] * len(pos)
-        if ch is None:
-            first = r.integer(entry, "first_channel", where, default=next_channel)
-            ch = list(range(first, first + len(pos)))
-        names += list(nm)
-        positions.append(pos)
-        dirs += group_dirs
-        channels += ch
-        next_channel = max(channels) + 1
-    pos_all = np.vstack(positions)
-    pos_all.setflags(write=False)
-    return ElementSet(tuple(names), pos_all, tuple(dirs), tuple(channels))
+        part = resolve_entry(entry, i, label, r, base, n_entries=len(entries),
+                             n_before=sum(len(p.names) for p in parts), next_channel=next_channel)
+        parts.append(part)
+        next_channel = max(c for p in parts for c in p.channels) + 1
+    return join_entries(parts)
 
 
-def _group(entry: dict, where: str, r: _Reader, sole_prefix: str | None, offset: int
+def _group(entry: dict, where: str, r: FieldReader, sole_prefix: str | None, offset: int
            ) -> tuple[list[str], np.ndarray, np.ndarray]:
     shape = entry["shape"]
     center = r.vector(entry, "center", where, default=(0.0, 0.0, 0.0))
@@ -429,7 +546,7 @@ def _group(entry: dict, where: str, r: _Reader, sole_prefix: str | None, offset:
     return [f"{prefix}{j + 1}" for j in range(len(pos))], pos, out
 
 
-def _spacing(entry: dict, where: str, r: _Reader, count: int) -> float:
+def _spacing(entry: dict, where: str, r: FieldReader, count: int) -> float:
     if "spacing" in entry and "length" in entry:
         raise r.fail(where, "give spacing or length, not both")
     if "length" in entry:
@@ -440,13 +557,12 @@ def _spacing(entry: dict, where: str, r: _Reader, count: int) -> float:
     return r.number(entry, "spacing", where, positive=True)
 
 
-def _medium(table: Any, r: _Reader) -> Medium:
+def _medium(table: Any, r: FieldReader) -> Medium:
     if table is None:
         return Medium()
     if not isinstance(table, dict):
         raise r.fail("medium", "must be a table")
-    r.keys(table, {"speed_of_sound", "temperature_c", "relative_humidity_pct", "pressure_kpa",
-                   "air_absorption"}, "medium")
+    r.keys(table, TABLE_KEYS["medium"], "medium")
     temp = r.number(table, "temperature_c", "medium", default=20.0)
     if "speed_of_sound" in table:
         c = r.number(table, "speed_of_sound", "medium", positive=True)
@@ -462,12 +578,12 @@ def _medium(table: Any, r: _Reader) -> Medium:
         raise InputError(exc.problem, source=r.source, field=exc.field, fix=exc.fix) from None
 
 
-def _frequencies(table: Any, r: _Reader) -> FrequencyAxis | None:
+def _frequencies(table: Any, r: FieldReader) -> FrequencyAxis | None:
     if table is None:
         return None
     if not isinstance(table, dict):
         raise r.fail("frequencies", "must be a table")
-    r.keys(table, {"list", "start", "stop", "count", "spacing"}, "frequencies")
+    r.keys(table, TABLE_KEYS["frequencies"], "frequencies")
     if "list" in table:
         if set(table) - {"list"}:
             raise r.fail("frequencies", "give either list or start/stop/count, not both")
@@ -483,12 +599,12 @@ def _frequencies(table: Any, r: _Reader) -> FrequencyAxis | None:
     return FrequencyAxis.spaced(start, stop, count, spacing, source=r.source, field="frequencies")
 
 
-def _hardware(table: Any, r: _Reader, base: Path) -> HardwareMap:
+def _hardware(table: Any, r: FieldReader, base: Path) -> HardwareMap:
     if table is None:
         return HardwareMap()
     if not isinstance(table, dict):
         raise r.fail("hardware", "must be a table")
-    r.keys(table, {"device", "sample_rate_hz", "reference", "calibration"}, "hardware")
+    r.keys(table, TABLE_KEYS["hardware"], "hardware")
     device = table.get("device")
     if device is not None and (isinstance(device, bool) or not isinstance(device, (str, int))):
         raise r.fail("hardware.device", "expected a device index or a name substring")
@@ -498,7 +614,7 @@ def _hardware(table: Any, r: _Reader, base: Path) -> HardwareMap:
         ref = table["reference"]
         if not isinstance(ref, dict):
             raise r.fail("hardware.reference", "must be a table { output_channel = N, input_channel = M }")
-        r.keys(ref, {"output_channel", "input_channel"}, "hardware.reference")
+        r.keys(ref, TABLE_KEYS["hardware.reference"], "hardware.reference")
         ref_out = r.integer(ref, "output_channel", "hardware.reference")
         ref_in = r.integer(ref, "input_channel", "hardware.reference")
     cal = table.get("calibration")
@@ -507,18 +623,55 @@ def _hardware(table: Any, r: _Reader, base: Path) -> HardwareMap:
     return HardwareMap(device, rate, ref_out, ref_in, (base / cal) if cal else None)
 
 
-def _planning(table: Any, r: _Reader) -> PlanSettings:
+def _planning(table: Any, r: FieldReader) -> PlanSettings:
     if table is None:
         return PlanSettings()
     if not isinstance(table, dict):
         raise r.fail("planning", "must be a table")
-    r.keys(table, {"threshold_db", "snr_db", "track", "chunk_size"}, "planning")
+    r.keys(table, TABLE_KEYS["planning"], "planning")
     track = table.get("track", False)
     if not isinstance(track, bool):
         raise r.fail("planning.track", f"expected true or false, got {track!r}")
     return PlanSettings(r.number(table, "threshold_db", "planning", default=3.0, positive=True),
                         r.number(table, "snr_db", "planning", default=40.0, positive=True), track,
                         r.integer(table, "chunk_size", "planning", default=64))
+
+
+def resolve_section(name: str, table: Any, r: FieldReader, base: Path) -> Any:
+    """Resolve one optional table of a rig file: ``medium``, ``frequencies``, ``hardware`` or ``planning``.
+
+    Returns the :class:`Medium`, :class:`FrequencyAxis` (or None),
+    :class:`HardwareMap` or :class:`PlanSettings`; raises InputError at the
+    first problem.
+    """
+    if name == "hardware":
+        return _hardware(table, r, base)
+    return {"medium": _medium, "frequencies": _frequencies, "planning": _planning}[name](table, r)
+
+
+def read_rig_document(path: str | Path) -> dict:
+    """The TOML document of a rig file, unchecked.
+
+    Raises
+    ------
+    InputError
+        When the file is missing, a folder, not UTF-8 or not valid TOML
+        (the message gives the line and column).
+    """
+    path = Path(path)
+    src = str(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise InputError("rig file not found", source=src, fix="check the path") from None
+    except IsADirectoryError:
+        raise InputError("is a folder, not a rig file", source=src) from None
+    try:
+        return tomllib.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise InputError("not UTF-8 text", source=src) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"not valid TOML: {exc}", source=src) from None
 
 
 def load_rig(path: str | Path) -> Rig:
@@ -539,32 +692,21 @@ def load_rig(path: str | Path) -> Rig:
     """
     path = Path(path)
     src = str(path)
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise InputError("rig file not found", source=src, fix="check the path") from None
-    except IsADirectoryError:
-        raise InputError("is a folder, not a rig file", source=src) from None
-    try:
-        doc = tomllib.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise InputError("not UTF-8 text", source=src) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"not valid TOML: {exc}", source=src) from None
-    r = _Reader(src)
+    doc = read_rig_document(path)
+    r = FieldReader(src)
     r.keys(doc, _TOP_KEYS, "(top level)")
     base = path.parent
     meta = doc.get("rig", {})
     if not isinstance(meta, dict):
         raise r.fail("rig", "must be a table")
-    r.keys(meta, {"name", "description"}, "rig")
+    r.keys(meta, TABLE_KEYS["rig"], "rig")
     rig = Rig(
         speakers=_resolve_side(doc.get("speakers"), "speakers", "S", r, base),
         mics=_resolve_side(doc.get("microphones"), "microphones", "M", r, base),
-        medium=_medium(doc.get("medium"), r),
-        frequencies=_frequencies(doc.get("frequencies"), r),
-        hardware=_hardware(doc.get("hardware"), r, base),
-        planning=_planning(doc.get("planning"), r),
+        medium=resolve_section("medium", doc.get("medium"), r, base),
+        frequencies=resolve_section("frequencies", doc.get("frequencies"), r, base),
+        hardware=resolve_section("hardware", doc.get("hardware"), r, base),
+        planning=resolve_section("planning", doc.get("planning"), r, base),
         name=str(meta.get("name", path.stem)),
         description=str(meta.get("description", "")),
         source=src,
