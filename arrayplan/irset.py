@@ -31,7 +31,8 @@ present they are in metres.
 
 The loader checks every field, the rates, channel counts and lengths of every
 WAV file, and rejects non-finite samples, each with a one-line message naming
-the file and field.
+the file and field.  :func:`read_irset` also reads AES69 (SOFA) files
+(:mod:`arrayplan.irset_sofa`).
 """
 
 from __future__ import annotations
@@ -194,6 +195,9 @@ def _read_positions(entries: Sequence[dict], src: str, kind: str) -> np.ndarray 
 def read_irset(folder: str | os.PathLike) -> IRSet:
     """Read and validate the IR set in `folder` (or the path of its manifest).
 
+    A path ending in ``.sofa`` is read as an AES69 (SOFA) file through
+    :func:`arrayplan.irset_sofa.read_irset_sofa`.
+
     Raises
     ------
     InputError
@@ -202,6 +206,10 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
     import soundfile as sf
 
     path = Path(folder)
+    if path.suffix.lower() == ".sofa":
+        from .irset_sofa import read_irset_sofa
+
+        return read_irset_sofa(path)
     manifest_path = path if path.is_file() else path / MANIFEST_NAME
     folder = manifest_path.parent
     src = str(manifest_path)
