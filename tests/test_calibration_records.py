@@ -153,6 +153,18 @@ def test_calibrated_measurement_carries_pascal_per_volt(bench_rig, tmp_path):
     assert units == "pascal_per_volt" and notes == []
     expect = a.data * pa[None, :, None] / volts[None, None, :]
     assert np.allclose(b.data, expect, rtol=1e-5, atol=1e-9 * np.max(np.abs(expect)))
+    # In the band the calibrated response is the true transfer function in Pa/V, not a peak-normalised
+    # pulse: at the sweep's band centre sqrt(f1 f2) its magnitude equals the simulated truth's times
+    # the calibration factors within 0.05 dB (S. Mueller & P. Massarani, "Transfer-function
+    # measurement with sweeps", JAES 49(6), 2001: the deconvolved spectrum of a unity system is flat
+    # in band; truth from the simulated link, exact arithmetic otherwise).
+    centre = math.sqrt(100.0 * 20000.0)
+    phasor = np.exp(-2j * np.pi * centre / 48000.0 * np.arange(2400))
+    for m in range(3):
+        for s in range(3):
+            got = abs(np.dot(b.data[:, m, s], phasor))
+            want = abs(np.dot(link.truth.data[:, m, s], phasor[:link.truth.n_samples])) * pa[m] / volts[s]
+            assert 20 * math.log10(got / want) == pytest.approx(0.0, abs=0.05)
     # Without output gains the responses are Pa per full scale, with a warning.
     mics_only = CalibrationRecord(microphones=rec.microphones)
     warned = []

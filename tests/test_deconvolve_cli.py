@@ -3,7 +3,6 @@
 import csv
 import importlib.util
 import json
-import math
 
 import numpy as np
 import pytest
@@ -56,6 +55,31 @@ def _through(x, delays, gains, length=None):
     return out
 
 
+def _unity_pulse(data, side):
+    """The played file convolved with its inverse filter, from the zero lag on (what a wire gives).
+
+    Returns the whole deconvolution and the index of its zero lag.
+    """
+    from scipy.signal import fftconvolve
+
+    block = json.loads(side.read_text())["sweep"]
+    inverse, _ = sf.read(side.parent / block["inverse_filter_file"])
+    return fftconvolve(data, inverse), block["linear_lag_samples"]
+
+
+def _check_wire(h, full, lag, delay, gain):
+    """A wire of `gain` and `delay`: the peak exact to the sample, the waveform the unity pulse times the gain.
+
+    The inverse has unit gain in band (S. Mueller & P. Massarani, "Transfer-function measurement with
+    sweeps", JAES 49(6), 2001), so the band-limited pulse peaks below 1; PCM_24 files: 1e-4 relative.
+    """
+    k = int(np.argmax(np.abs(h)))
+    assert k == delay  # exact to the sample
+    want = gain * full[lag - delay:lag - delay + h.size]
+    assert np.max(np.abs(h - want)) < 1e-4 * abs(gain) * np.max(np.abs(full))
+    assert 0 < np.max(np.abs(full)) < 1
+
+
 def test_per_speaker_recordings_to_irset(tmp_path, capsys):
     data, side = _make(tmp_path, capsys)
     x = data[:, 0]
@@ -72,12 +96,10 @@ def test_per_speaker_recordings_to_irset(tmp_path, capsys):
     assert irs.data.shape == (4000, 3, 2)
     assert irs.speaker_names == ["Left", "Right"] and irs.mic_names == ["a", "b", "c"]
     assert irs.sample_rate_hz == FS and irs.units == "full_scale"
+    full, lag = _unity_pulse(x, side)
     for s in range(2):
         for m in range(3):
-            h = irs.data[:, m, s]
-            k = int(np.argmax(np.abs(h)))
-            assert k == delays[s][m]  # exact to the sample
-            assert abs(20 * math.log10(abs(h[k]) / gains[s][m])) < 0.01  # within 0.01 dB
+            _check_wire(irs.data[:, m, s], full, lag, delays[s][m], gains[s][m])
     assert irs.warnings == []
     rows = list(csv.DictReader((out / "deconvolution.csv").open()))
     assert len(rows) == 6 and rows[0]["speaker"] == "Left" and rows[0]["mic"] == "a"
@@ -95,8 +117,8 @@ def test_linear_sweep_gives_responses_without_harmonics(tmp_path, capsys):
     rc, _, err = _run(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", side, "--out", tmp_path / "irs")
     assert rc == 0, err
     irs = read_irset(tmp_path / "irs")
-    h = irs.data[:, 0, 0]
-    assert int(np.argmax(np.abs(h))) == 33 and abs(20 * math.log10(abs(h[33]) / 0.7)) < 0.01
+    full, lag = _unity_pulse(data[:, 0], side)
+    _check_wire(irs.data[:, 0, 0], full, lag, 33, 0.7)
     assert not list(tmp_path.glob("irs/harmonic-*"))
     assert "harmonic2_db" not in (tmp_path / "irs" / "deconvolution.csv").read_text()
 
@@ -138,12 +160,11 @@ def test_schedule_recording_is_split_by_its_sidecar(tmp_path, capsys):
     assert "longer than the played file" in err
     irs = read_irset(tmp_path / "irs")
     assert irs.speaker_names == ["A", "B", "C"]
+    single, single_side = _make(tmp_path, capsys)  # the same sweep alone: its unity pulse
+    full, lag = _unity_pulse(single[:, 0], single_side)
     for s in range(3):
         for m in range(2):
-            h = irs.data[:, m, s]
-            k = int(np.argmax(np.abs(h)))
-            assert k == delays[s, m]
-            assert abs(20 * math.log10(abs(h[k]) / gains[s, m])) < 0.01
+            _check_wire(irs.data[:, m, s], full, lag, delays[s, m], gains[s, m])
 
 
 def test_channel_probe_recording_gives_the_channel_response(tmp_path, capsys):
@@ -162,10 +183,15 @@ def test_channel_probe_recording_gives_the_channel_response(tmp_path, capsys):
     irs = read_irset(tmp_path / "pir")
     assert irs.speaker_names == ["chan"] and irs.n_samples == 4000 + 2400
     h = irs.data[:, 0, 0]
+    # The same sweep alone gives the band-limited unity pulse; the probe's inverse is scaled to the
+    # sweep's level before the filters, so each filter tap comes back as tap * 0.5 * that pulse.
+    single, single_side = _make(tmp_path, capsys)
+    full, lag = _unity_pulse(single[:, 0], single_side)
+    unity_peak = full[lag]
     for d, g in ((0, 0.5), (800, 0.3), (2400, -0.2)):
         k = d - 3 + int(np.argmax(np.abs(h[d - 3:d + 4]))) if d else int(np.argmax(np.abs(h[:4])))
         assert k == d
-        assert h[k] == pytest.approx(0.5 * g, rel=0.01)
+        assert h[k] == pytest.approx(0.5 * g * unity_peak, rel=0.01)
 
 
 @pytest.fixture

@@ -2,8 +2,8 @@
 
 Outputs 1-3 are the speakers, inputs 1-3 (the monitor channels) the
 microphones, and output 4 -> input 4 the reference loop, so every impulse
-response must come out as the sweep's own zero-lag response (a unit
-impulse) at the measured latency on its own channel and zero elsewhere.
+response must come out as the sweep's own zero-lag response (the
+band-limited pulse of a unit-gain wire) at the measured latency on its own channel and zero elsewhere.
 """
 
 from __future__ import annotations
@@ -32,14 +32,15 @@ def _run(cmd, **kw):
     return subprocess.run(cmd, capture_output=True, text=True, stdin=subprocess.DEVNULL, timeout=120, **kw)
 
 
-def _sweep_zero_lag_response(n):
+def _sweep_zero_lag_response(n, whole=False):
     from arrayplan.hardware.measure import MeasurementSettings
     from arrayplan.signals.sweeps import make_sweep
 
     settings = MeasurementSettings(f1_hz=100.0, sweep_s=0.5, ir_s=0.05, max_latency_s=0.1, lead_in_s=0.1)
     sweep = make_sweep(settings.sweep_settings(FS))
+    assert (sweep.settings.f1_hz, sweep.settings.f2_hz) == (100.0, 20000.0)
     g = fftconvolve(sweep.sweep, sweep.inverse)
-    return g[sweep.n_sweep - 1:sweep.n_sweep - 1 + n]
+    return g if whole else g[sweep.n_sweep - 1:sweep.n_sweep - 1 + n]
 
 
 def _check_unit_impulses(folder):
@@ -58,8 +59,15 @@ def _check_unit_impulses(folder):
                 peaks.append(float(h[0]))
             else:
                 assert not np.any(h), f"speaker {s + 1} leaks into mic {m + 1}"
-    # The sweep's inverse is normalised so that a pure delay peaks at exactly 1.
-    assert peaks == pytest.approx([1.0] * 3, abs=1e-6)
+    # The inverse has unit gain in band (S. Mueller & P. Massarani, "Transfer-function measurement
+    # with sweeps", JAES 49(6), 2001), so a unit-gain wire gives the band-limited pulse, whose peak
+    # lies below 1; its spectrum at the band centre, sqrt(f1 f2), is 0 dB (checked on the whole pulse,
+    # which the cut at zero lag shortens).
+    assert peaks == pytest.approx([g[0]] * 3, abs=1e-6) and 0.5 < g[0] < 1.0
+    whole = _sweep_zero_lag_response(None, whole=True)
+    centre = np.sqrt(100.0 * 20000.0)
+    at_centre = np.dot(whole, np.exp(-2j * np.pi * centre / FS * np.arange(whole.size)))
+    assert 20 * np.log10(abs(at_centre)) == pytest.approx(0.0, abs=0.01)
     return irs, peaks
 
 

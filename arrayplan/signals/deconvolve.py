@@ -10,7 +10,12 @@ Paris, 2000), so each is cut out by a window of its own.
 
 All functions here are pure: arrays in, arrays out.  Time signals are
 ``(n_samples, n_channels)``; one channel per microphone.  Impulse responses
-are in units of recorded full scale per played full scale.
+are in units of recorded full scale per played full scale: the inverse
+filter has unit gain in the sweep's band (see :mod:`arrayplan.signals.sweeps`),
+so the DFT of a response is the system's transfer function there, and the
+band-limited pulse of a unit-gain wire peaks below 1.  The linear response
+starts at zero lag, so a response whose delay is shorter than the pulse's
+pre-ringing (a few periods of f1) loses that pre-ringing and reads low near f1.
 """
 
 from __future__ import annotations

@@ -5,13 +5,39 @@ The exponential sine sweep from ``f1`` to ``f2`` over ``T`` seconds is
     x(t) = sin(2 pi f1 L (exp(t / L) - 1)),   L = T / ln(f2 / f1),
 
 and its inverse filter is the time-reversed sweep times ``exp(-t / L)``
-(which undoes the sweep's pink, -3 dB per octave, spectrum), normalised so
-that the played sweep convolved with the inverse peaks at exactly 1.  The
-response of a system to the sweep, convolved with the inverse, is its
-impulse response at lag ``n_sweep - 1`` after the sweep's first sample; the
-n-th harmonic distortion product appears ``T ln(n) / ln(f2 / f1)`` seconds
+(which undoes the sweep's pink, -3 dB per octave, spectrum).  The response
+of a system to the sweep, convolved with the inverse, is its impulse
+response at lag ``n_sweep - 1`` after the sweep's first sample; the n-th
+harmonic distortion product appears ``T ln(n) / ln(f2 / f1)`` seconds
 earlier (A. Farina, "Simultaneous measurement of impulse response and
 distortion with a swept-sine technique", 108th AES Convention, Paris, 2000).
+
+Gain of the deconvolution
+-------------------------
+The inverse is scaled so that the played sweep convolved with it has unit
+magnitude *in the band*: exactly 0 dB at the band's centre (the frequency the
+sweep passes half-way through, ``sqrt(f1 f2)`` for an exponential sweep,
+``(f1 + f2) / 2`` for a linear one).  A deconvolved response is then the
+system's transfer function in the band (in the IR set's units: full scale
+per full scale, or Pa/V when calibrated), as the planner and verification
+read it through the DFT (S. Müller and P. Massarani, "Transfer-function
+measurement with sweeps", JAES 49(6), 2001: the deconvolved spectrum of a
+unity system is flat in band).  In the time domain the band-limited pulse of
+a pure delay then peaks *below* 1 (about ``2 (f2 - f1) / fs`` for a wide
+band); its position is still exact to the sample.
+
+Near the band edges the sweep's spectrum ripples (Fresnel ripple of the
+short fades) and the time-reversed inverse does not undo it, so the unity
+response is flat only inside :attr:`SweepSignal.flat_band_hz`, the band
+around the centre where it stays within :data:`FLAT_BAND_TOLERANCE_DB`.
+Longer fades widen it.  With fades one Fresnel time long (the time an
+exponential sweep takes to cross one Fresnel zone, ``1 / sqrt(f ln(f2/f1) / T)``
+seconds at f = f1 for the fade-in and f = f2 for the fade-out, see
+:func:`fresnel_time_s`) the ripple stays within 0.1 dB from half an octave
+above the fade-in's end to a tenth of an octave below the fade-out's start
+(measured, see tests/test_signals_sweeps.py).  The default 20 ms fade-in is
+far shorter than that at 20 Hz (0.17 s for a 4 s sweep): the flat band then
+starts about two octaves up, and :attr:`SweepSignal.flat_band_hz` says where.
 
 The pure functions (:func:`exponential_sweep`, :func:`linear_sweep`,
 :func:`exponential_inverse_filter`, :func:`linear_inverse_filter`,
@@ -42,6 +68,10 @@ __all__ = [
     "exponential_inverse_filter",
     "linear_inverse_filter",
     "normalise_inverse",
+    "FLAT_BAND_TOLERANCE_DB",
+    "band_centre_hz",
+    "unity_response",
+    "flat_band_hz",
     "harmonic_offset_s",
     "check_sweep_band",
     "SweepSettings",
@@ -60,6 +90,10 @@ MIN_CYCLES_LOWEST_OCTAVE = 2.0
 #: A linear sweep must have a time-bandwidth product T (f2 - f1) of at least
 #: this (common practice for pulse compression, no source).
 MIN_TIME_BANDWIDTH = 100.0
+
+#: Ripple allowed in the deconvolved response of a unity system inside the
+#: sweep's flat band (common practice for loudspeaker response work, no source).
+FLAT_BAND_TOLERANCE_DB = 0.1
 
 
 def _times(duration_s: float, sample_rate_hz: float) -> np.ndarray:
@@ -252,7 +286,8 @@ class SweepSignal:
     signal : ndarray, shape (n_pad_before + n_sweep + n_pad_after,)
         The file content: silence, sweep, silence.
     inverse : ndarray, shape (n_sweep,)
-        Inverse filter, scaled so that ``max |sweep * inverse| = 1``.
+        Inverse filter, scaled so that ``sweep * inverse`` has unit
+        magnitude at the band centre (:func:`normalise_inverse`).
     n_pad_before, n_pad_after : int
         Padding in samples.
     linear_lag : int
@@ -271,6 +306,20 @@ class SweepSignal:
     @property
     def n_sweep(self) -> int:
         return int(self.sweep.size)
+
+    @property
+    def centre_hz(self) -> float:
+        """The band centre where the deconvolution gain is exactly 1, Hz."""
+        return band_centre_hz(self.settings.kind, self.settings.f1_hz, self.settings.f2_hz)
+
+    @property
+    def flat_band_hz(self) -> tuple[float, float]:
+        """Band (Hz) around the centre where a unity system deconvolves to 0 dB within
+        :data:`FLAT_BAND_TOLERANCE_DB` (computed once, then kept)."""
+        if "flat_band_hz" not in self.extra:
+            self.extra["flat_band_hz"] = flat_band_hz(self.sweep, self.inverse, self.centre_hz,
+                                                      self.settings.sample_rate_hz)
+        return self.extra["flat_band_hz"]
 
     @property
     def linear_lag(self) -> int:
@@ -310,7 +359,11 @@ class SweepSignal:
             "sweep_peak_dbfs": peak_dbfs(self.sweep),
             "sweep_rms_dbfs": rms_dbfs(self.sweep),
             "inverse_filter_file": inverse_file,
-            "inverse_normalisation": "max |sweep * inverse| = 1 for the sweep as played",
+            "inverse_normalisation": "|DFT(sweep * inverse)| = 1 at the band centre for the sweep as played "
+                                     "(deconvolved responses carry the system's in-band gain)",
+            "unity_gain_at_hz": self.centre_hz,
+            "flat_band_hz": list(self.flat_band_hz),
+            "flat_band_tolerance_db": FLAT_BAND_TOLERANCE_DB,
             "linear_lag_samples": self.linear_lag,
             "harmonic_offsets_samples": {str(k): v for k, v in self.harmonic_offsets_samples().items()},
         }
@@ -352,18 +405,122 @@ def make_sweep(settings: SweepSettings, *, source: str | None = None) -> SweepSi
         inverse = exponential_inverse_filter(faded, s.f1_hz, s.f2_hz, s.duration_s, s.sample_rate_hz)
     else:
         inverse = linear_inverse_filter(faded)
-    inverse = normalise_inverse(played, inverse)
+    inverse = normalise_inverse(played, inverse, band_centre_hz(s.kind, s.f1_hz, s.f2_hz), s.sample_rate_hz)
     signal = np.concatenate([np.zeros(n_before), played, np.zeros(n_after)])
     return SweepSignal(settings=s, sweep=played, signal=signal, inverse=inverse,
                        n_pad_before=n_before, n_pad_after=n_after)
 
 
-def normalise_inverse(played: np.ndarray, inverse: np.ndarray) -> np.ndarray:
-    """Scale `inverse` so that ``max |played * inverse| = 1`` (both shape (n,), same scale as played)."""
-    from scipy.signal import fftconvolve
+def band_centre_hz(kind: str, f1_hz: float, f2_hz: float) -> float:
+    """Frequency the sweep passes half-way through its duration, Hz.
 
-    peak = float(np.max(np.abs(fftconvolve(np.asarray(played, float), np.asarray(inverse, float)))))
-    return np.asarray(inverse, dtype=float) / peak
+    ``sqrt(f1 f2)`` for an exponential sweep, ``(f1 + f2) / 2`` for a linear one.
+    """
+    if kind == "exponential":
+        return math.sqrt(f1_hz * f2_hz)
+    return 0.5 * (f1_hz + f2_hz)
+
+
+def fresnel_time_s(freq_hz: float, f1_hz: float, f2_hz: float, duration_s: float) -> float:
+    """Time (s) an exponential sweep takes to cross one Fresnel zone at `freq_hz`.
+
+    ``1 / sqrt(df/dt)`` with ``df/dt = f ln(f2/f1) / T`` (Hz/s); a raised-cosine
+    fade at least this long keeps the sweep's edge ripple out of the band
+    (measured; common practice, no source).
+    """
+    return 1.0 / math.sqrt(freq_hz * math.log(f2_hz / f1_hz) / duration_s)
+
+
+def _dtft(x: np.ndarray, freq_hz: float, sample_rate_hz: float) -> complex:
+    n = np.arange(x.size)
+    return complex(np.dot(x, np.exp(-2j * math.pi * freq_hz / sample_rate_hz * n)))
+
+
+def normalise_inverse(played: np.ndarray, inverse: np.ndarray, centre_hz: float,
+                      sample_rate_hz: float) -> np.ndarray:
+    """Scale `inverse` so that ``played * inverse`` has unit magnitude at `centre_hz`.
+
+    Parameters
+    ----------
+    played : ndarray, shape (n,)
+        The sweep as played (same scale as the file: full scale = 1).
+    inverse : ndarray, shape (m,)
+        Unnormalised inverse filter.
+    centre_hz : float
+        Frequency of unit gain, Hz (:func:`band_centre_hz`).
+    sample_rate_hz : float
+        Sample rate, Hz.
+
+    Returns
+    -------
+    ndarray, shape (m,)
+        ``inverse / |X(fc) Y(fc)|`` with X, Y the discrete-time Fourier
+        transforms of `played` and `inverse` at the centre: a unity system
+        then deconvolves to 0 dB there.
+    """
+    played = np.asarray(played, dtype=float).reshape(-1)
+    inverse = np.asarray(inverse, dtype=float).reshape(-1)
+    gain = abs(_dtft(played, centre_hz, sample_rate_hz) * _dtft(inverse, centre_hz, sample_rate_hz))
+    if not gain > 0:
+        raise ValueError(f"the sweep and its inverse have no energy at {centre_hz:g} Hz")
+    return inverse / gain
+
+
+def unity_response(played: np.ndarray, inverse: np.ndarray, sample_rate_hz: float,
+                   n_fft: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Spectrum of ``played * inverse``: what deconvolution makes of a unity system.
+
+    Parameters
+    ----------
+    played, inverse : ndarray, shape (n,) and (m,)
+    sample_rate_hz : float
+    n_fft : int, optional
+        DFT length (default: the next power of two >= n + m - 1, no time aliasing).
+
+    Returns
+    -------
+    freqs_hz : ndarray, shape (n_fft // 2 + 1,)
+    response : ndarray, complex, same shape
+        Linear-phase term of the lag ``n - 1`` included (magnitude is what matters).
+    """
+    played = np.asarray(played, dtype=float).reshape(-1)
+    inverse = np.asarray(inverse, dtype=float).reshape(-1)
+    if n_fft is None:
+        n_fft = 1 << int(math.ceil(math.log2(played.size + inverse.size - 1)))
+    resp = np.fft.rfft(played, n_fft) * np.fft.rfft(inverse, n_fft)
+    return np.fft.rfftfreq(n_fft, 1.0 / sample_rate_hz), resp
+
+
+def flat_band_hz(played: np.ndarray, inverse: np.ndarray, centre_hz: float, sample_rate_hz: float,
+                 tolerance_db: float = FLAT_BAND_TOLERANCE_DB) -> tuple[float, float]:
+    """Widest band around `centre_hz` where the unity response stays within `tolerance_db` of 0 dB.
+
+    Parameters
+    ----------
+    played, inverse : ndarray
+        The sweep as played and its normalised inverse filter.
+    centre_hz, sample_rate_hz : float
+        Band centre and sample rate, Hz.
+    tolerance_db : float
+        Allowed deviation from 0 dB, dB.
+
+    Returns
+    -------
+    (low_hz, high_hz) : tuple of float
+        The lowest and highest DFT frequencies of the contiguous run of bins,
+        containing the centre, whose magnitude is within the tolerance.
+    """
+    f, resp = unity_response(played, inverse, sample_rate_hz)
+    with np.errstate(divide="ignore"):
+        ok = np.abs(20.0 * np.log10(np.abs(resp))) <= tolerance_db
+    c = int(np.argmin(np.abs(f - centre_hz)))
+    if not ok[c]:
+        return (float(f[c]), float(f[c]))
+    bad_below = np.flatnonzero(~ok[:c])
+    bad_above = np.flatnonzero(~ok[c:])
+    lo = int(bad_below[-1]) + 1 if bad_below.size else 0
+    hi = c + int(bad_above[0]) - 1 if bad_above.size else f.size - 1
+    return (float(f[lo]), float(f[hi]))
 
 
 @dataclass(frozen=True)
