@@ -222,7 +222,13 @@ def read_irset_sofa(path: str | os.PathLike) -> IRSet:
     if issues and "ERRORS" in issues:
         raise InputError(f"does not follow the {convention} convention ({_first_issue(issues)})", source=src,
                          fix="repair the file with the tool that wrote it")
-    return _irset_from_sofa(sofa, convention, src)
+    try:
+        return _irset_from_sofa(sofa, convention, src)
+    except InputError as exc:
+        if exc.source is None:                            # raised by IRSet itself: name the file
+            raise InputError(exc.problem, source=src, field=exc.field or "GLOBAL:ArrayplanIRSet",
+                             fix=exc.fix) from None
+        raise
 
 
 def _first_issue(text: str) -> str:
@@ -432,8 +438,14 @@ def _units(text: Any, kind: str, src: str, field: str) -> None:
         raise InputError(f"must be '{want}' for {kind} coordinates, got {text!r}", source=src, field=field)
 
 
-def _coordinates(sofa: Any, name: str, src: str, notes: list[str]) -> np.ndarray | None:
-    """Variable `name` as cartesian metres, shape (k, 3) or (M, k, 3); None if absent or not a position."""
+def _coordinates(sofa: Any, name: str, src: str, notes: list[str], described_by: str | None = None
+                 ) -> np.ndarray | None:
+    """Variable `name` as cartesian metres, shape (k, 3) or (M, k, 3); None if absent or not a position.
+
+    `described_by` names the variable whose ``:Type`` and ``:Units`` apply
+    (AES69 gives ``...Up`` the type and units of ``...View``).
+    """
+    meta = described_by or name
     value = _array(sofa, name, src)
     if value is None:
         return None
@@ -443,22 +455,22 @@ def _coordinates(sofa: Any, name: str, src: str, notes: list[str]) -> np.ndarray
         value = np.moveaxis(value, 2, 0)
     if value.shape[-1] != 3:
         raise InputError(f"has shape {value.shape}, needs 3 coordinates", source=src, field=name)
-    kind = str(_get(sofa, name + ":Type") or "cartesian").strip().lower()
+    kind = str(_get(sofa, meta + ":Type") or "cartesian").strip().lower()
     if kind == "cartesian":
-        _units(_get(sofa, name + ":Units"), kind, src, name + ":Units")
+        _units(_get(sofa, meta + ":Units"), kind, src, meta + ":Units")
         return value
     if kind == "spherical":
-        _units(_get(sofa, name + ":Units"), kind, src, name + ":Units")
+        _units(_get(sofa, meta + ":Units"), kind, src, meta + ":Units")
         az, el, r = np.radians(value[..., 0]), np.radians(value[..., 1]), value[..., 2]
         return np.stack([r * np.cos(el) * np.cos(az), r * np.cos(el) * np.sin(az), r * np.sin(el)], axis=-1)
-    notes.append(f"{name}:Type is '{kind}'; those positions were not kept")
+    notes.append(f"{meta}:Type is '{kind}'; those positions were not kept")
     return None
 
 
 def _frames(sofa: Any, prefix: str, src: str, notes: list[str]) -> np.ndarray | None:
     """Rotation matrices (k, 3, 3) from `prefix`View and `prefix`Up (columns: x, y, z), or None."""
     view = _coordinates(sofa, prefix + "View", src, notes)
-    up = _coordinates(sofa, prefix + "Up", src, notes)
+    up = _coordinates(sofa, prefix + "Up", src, notes, described_by=prefix + "View")
     if view is None:
         return None
     up = np.broadcast_to(np.array([[0.0, 0.0, 1.0]]) if up is None else up, view.shape)

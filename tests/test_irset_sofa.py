@@ -153,6 +153,58 @@ def test_one_speaker_per_measurement_layout(tmp_path):
     assert irs.extra["sofa"]["convention"] == "GeneralFIR" and irs.extra["sofa"]["speakers_are"] == "measurements"
 
 
+def _mimo_file(path, tmp_path):
+    """A SingleRoomMIMOSRIR file: sofar writes it, netCDF4 adds EmitterDescriptions.
+
+    (sofar 1.3 cannot write string variables with netCDF4 1.7, so the names are
+    added with netCDF4 itself: a copy with the string-length dimension S = 4.)
+    """
+    sofa = sofar.Sofa("SingleRoomMIMOSRIR")
+    for key in ("EmitterDescriptions", "ReceiverDescriptions", "ReceiverView", "ReceiverUp", "EmitterView",
+                "EmitterUp", "ReceiverView_Type", "ReceiverView_Units", "EmitterView_Type", "EmitterView_Units"):
+        sofa.delete(key)
+    sofa.Data_IR = np.random.default_rng(0).standard_normal((1, 2, 16, 3))
+    sofa.Data_Delay = np.zeros((1, 2, 3))
+    sofa.Data_SamplingRate = 32000.0
+    sofa.SourcePosition = np.array([[1.0, 2.0, 0.5]])
+    sofa.SourceView = np.array([[0.0, 1.0, 0.0]])             # the source faces +y
+    sofa.EmitterPosition = np.array([[0.0, 0.0, 1.0], [90.0, 0.0, 1.0], [0.0, 90.0, 2.0]])
+    sofa.ListenerPosition = np.array([[0.0, 0.0, 1.5]])
+    sofa.ReceiverPosition = np.array([[0.0, 0.0, 0.1], [180.0, 0.0, 0.1]])
+    plain = tmp_path / "plain.sofa"
+    sofar.write_sofa(str(plain), sofa)
+    with netCDF4.Dataset(str(plain)) as src, netCDF4.Dataset(str(path), "w") as dst:
+        dst.setncatts({a: src.getncattr(a) for a in src.ncattrs()})
+        dst.EmitterDescription = "three loudspeakers"
+        for name, dim in src.dimensions.items():
+            dst.createDimension(name, 4 if name == "S" else dim.size)
+        for name, var in src.variables.items():
+            out = dst.createVariable(name, var.dtype, var.dimensions)
+            out.setncatts({a: var.getncattr(a) for a in var.ncattrs()})
+            out[:] = var[:]
+        chars = np.zeros((3, 4), "S1")
+        for k, name in enumerate(["Lx", "Ly", "Top"]):
+            chars[k, :len(name)] = list(name)
+        dst.createVariable("EmitterDescriptions", "S1", ("E", "S"))[:] = chars
+    plain.unlink()
+    return path
+
+
+def test_mimo_file_with_descriptions_views_and_spherical_positions(tmp_path):
+    path = _mimo_file(tmp_path / "mimo.sofa", tmp_path)
+    assert sofar.read_sofa(str(path), verbose=False).verify(issue_handling="return", mode="read") is None
+    irs = read_irset_sofa(path)
+    assert irs.speaker_names == ["Lx", "Ly", "Top"] and irs.mic_names == ["M1", "M2"]
+    assert irs.sample_rate_hz == 32000.0 and irs.data.shape == (16, 2, 3)
+    # AES69 local frames (value from memory): emitter positions are in the source's frame,
+    # x along SourceView, z along SourceUp (default +z), y = z x x; spherical (az, el, r) with
+    # azimuth counter-clockwise from x.  View +y turns local x into +y and local y into -x.
+    np.testing.assert_allclose(irs.speaker_positions, [[1.0, 3.0, 0.5], [0.0, 2.0, 0.5], [1.0, 2.0, 2.5]],
+                               atol=1e-12)
+    np.testing.assert_allclose(irs.mic_positions, [[0.1, 0.0, 1.5], [-0.1, 0.0, 1.5]], atol=1e-12)
+    assert irs.extra["sofa"]["convention"] == "SingleRoomMIMOSRIR"
+
+
 def test_whole_sample_delays_shift_the_responses(tmp_path):
     rng = np.random.default_rng(9)
     ir = rng.standard_normal((2, 2, 16))
