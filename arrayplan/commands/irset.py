@@ -80,18 +80,19 @@ def peak_table(irs: IRSet) -> tuple[np.ndarray, np.ndarray]:
 def summary_lines(irs: IRSet, source: str) -> list[str]:
     """The lines ``arrayplan irset show`` prints."""
     kind = "AES69 (SOFA) file" if _is_sofa(source) else "IR-set folder"
-    lines = [
-        f"{source} ({kind})",
-        f"  sample rate      {irs.sample_rate_hz:g} Hz",
-        f"  length           {irs.n_samples} samples ({irs.n_samples / irs.sample_rate_hz * 1e3:.1f} ms)",
-        f"  speakers ({irs.n_spk})     {_names(irs.speaker_names)}",
-        f"  microphones ({irs.n_mic})  {_names(irs.mic_names)}",
-        f"  positions known  {_known(irs.speaker_positions, irs.n_spk)} of {irs.n_spk} speakers, "
-        f"{_known(irs.mic_positions, irs.n_mic)} of {irs.n_mic} microphones",
-        f"  units            {irs.units}",
-        f"  latency removed  {irs.latency_removed_samples} samples",
-        f"  warnings         {len(irs.warnings) or 'none'}",
+    rows = [
+        ("sample rate", f"{irs.sample_rate_hz:g} Hz"),
+        ("length", f"{irs.n_samples} samples ({irs.n_samples / irs.sample_rate_hz * 1e3:.1f} ms)"),
+        (f"speakers ({irs.n_spk})", _names(irs.speaker_names)),
+        (f"microphones ({irs.n_mic})", _names(irs.mic_names)),
+        ("positions known", f"{_known(irs.speaker_positions, irs.n_spk)} of {irs.n_spk} speakers, "
+                            f"{_known(irs.mic_positions, irs.n_mic)} of {irs.n_mic} microphones"),
+        ("units", irs.units),
+        ("latency removed", f"{irs.latency_removed_samples} samples"),
+        ("warnings", str(len(irs.warnings) or "none")),
     ]
+    label_w = max(len(label) for label, _ in rows) + 2
+    lines = [f"{source} ({kind})"] + [f"  {label:<{label_w}}{value}" for label, value in rows]
     lines += [f"    - {w}" for w in irs.warnings]
     level_db, delay_ms = peak_table(irs)
     n_s, n_m = min(irs.n_spk, MAX_TABLE_SPEAKERS), min(irs.n_mic, MAX_TABLE_MICS)
