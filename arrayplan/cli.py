@@ -26,8 +26,10 @@ COMMAND_MODULES = (
     "arrayplan.commands.calibrate",
     "arrayplan.commands.signals",
     "arrayplan.commands.deconvolve",
+    "arrayplan.commands.irset",
     "arrayplan.commands.verify",
     "arrayplan.commands.filters",
+    "arrayplan.commands.report",
 )
 
 

@@ -16,7 +16,7 @@ from .errors import InputError
 from .kernels.freefield import FreeFieldKernel
 from .rig import ElementSet, Rig
 
-__all__ = ["PlaneGrid", "channel_field", "default_plane"]
+__all__ = ["PlaneGrid", "channel_field", "default_plane", "best_plane"]
 
 _AXES = {"xy": (0, 1, 2), "xz": (0, 2, 1), "yz": (1, 2, 0)}
 
@@ -66,6 +66,18 @@ def default_plane(rig: Rig, plane: str = "xz", offset: float | None = None, reso
     u = np.linspace(lo[i], hi[i], resolution)
     v = np.linspace(lo[j], hi[j], max(2, int(round(resolution * (hi[j] - lo[j]) / (hi[i] - lo[i])))))
     return PlaneGrid(plane, float(offset), u, v)
+
+
+def best_plane(rig: Rig) -> str:
+    """The coordinate plane that holds most of the rig: the one normal to the axis of least spread.
+
+    For two parallel line arrays facing each other this is the plane that
+    contains both lines; for two facing grids, a plane through both.
+    """
+    pts = np.vstack([rig.speakers.positions, rig.mics.positions])
+    spread = pts.max(axis=0) - pts.min(axis=0)
+    normal = int(np.argmin(spread))
+    return {2: "xy", 1: "xz", 0: "yz"}[normal]
 
 
 def channel_field(rig: Rig, drive_weights: np.ndarray, frequency_hz: float, grid: PlaneGrid) -> np.ndarray:

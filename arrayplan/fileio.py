@@ -41,6 +41,12 @@ SIGN_CONVENTION = (
 )
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 @contextlib.contextmanager
 def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
     """Yield a temporary path next to `path`; rename it onto `path` on success.
@@ -59,6 +65,7 @@ def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
     tmp_path = Path(tmp)
     try:
         yield tmp_path
+        os.chmod(tmp_path, 0o666 & ~_umask())      # mkstemp makes 0600; give the usual permissions
         os.replace(tmp_path, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):

@@ -35,12 +35,15 @@ from typing import Any
 
 import numpy as np
 
+from .channels import ChannelSet
 from .errors import InputError
 from .fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from .frequency import FrequencyAxis
+from .heuristics import paraxial_estimate
 from .planning import Plan
+from .rig import Rig
 
-__all__ = ["write_plan", "read_weights", "PlanWeights", "summary_lines"]
+__all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines"]
 
 NORMALISATION = ("drive and combine weight vectors have unit Euclidean norm per channel and frequency; "
                  "combine^T G drive = diag(singular_value)")
@@ -116,6 +119,8 @@ def _sidecar(plan: Plan) -> dict[str, Any]:
         "tracked": ch.tracked,
         "speaker_names": list(ch.speaker_names),
         "mic_names": list(ch.mic_names),
+        "speaker_positions_m": rig.speakers.positions.tolist(),
+        "mic_positions_m": rig.mics.positions.tolist(),
         "n_frequencies": len(ch.axis),
         "n_channels": ch.n_channels,
         "threshold_db": plan.threshold_db,
@@ -180,6 +185,58 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
     return PlanWeights(FrequencyAxis(data["frequency_hz"], source=str(npz)), data["singular_value"],
                        data["drive"], data["combine"], tuple(str(x) for x in data["speaker_names"]),
                        tuple(str(x) for x in data["mic_names"]), sidecar)
+
+
+def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None) -> Plan:
+    """Rebuild the :class:`Plan` a plan folder was written from.
+
+    Parameters
+    ----------
+    plan_dir : path
+        A folder written by :func:`write_plan`.
+    rig : Rig, optional
+        The rig the plan was made for (it must have the plan's element names,
+        in order).  Default: a rig of omnidirectional elements at the
+        positions stored in ``weights.json``, with its speed of sound.
+
+    Returns
+    -------
+    Plan
+        Channels, counts and the paraxial estimate as planned; the sum rule
+        is taken as the sum of s^2 (equal to sum |G|^2 by the SVD).
+
+    Raises
+    ------
+    InputError
+        When the folder lacks its files, or (without `rig`) was written by a
+        version that did not store positions.
+    """
+    w = read_weights(plan_dir)
+    side = w.sidecar
+    src = str(Path(plan_dir) / "weights.json")
+    if rig is None:
+        pos = {k: side.get(k) for k in ("speaker_positions_m", "mic_positions_m")}
+        if any(v is None for v in pos.values()):
+            raise InputError("the plan does not store element positions", source=src,
+                             field="speaker_positions_m", fix="give the rig file, or plan again")
+        try:
+            rig = Rig.from_positions(np.asarray(pos["speaker_positions_m"], dtype=float),
+                                     np.asarray(pos["mic_positions_m"], dtype=float),
+                                     speed_of_sound=float(side["rig"]["speed_of_sound_m_per_s"]),
+                                     speaker_names=w.speaker_names, mic_names=w.mic_names,
+                                     name=str(side["rig"].get("name", "rig")), source=src)
+        except (KeyError, TypeError, ValueError) as exc:
+            raise InputError(f"malformed rig description ({exc})", source=src, field="rig") from None
+    elif tuple(rig.speakers.names) != w.speaker_names or tuple(rig.mics.names) != w.mic_names:
+        raise InputError("the rig's element names differ from the plan's", source=src, field="speaker_names",
+                         fix="give the rig file the plan was made from")
+    sv = np.asarray(w.singular_values, dtype=float)
+    channels = ChannelSet(w.axis, sv, w.drive, w.combine, np.sum(sv ** 2, axis=1), w.speaker_names,
+                          w.mic_names, bool(side.get("tracked", False)))
+    estimate = paraxial_estimate(rig.speakers.positions, rig.mics.positions,
+                                 w.axis.wavelengths(rig.medium.speed_of_sound))
+    return Plan(rig, channels, estimate, float(side.get("threshold_db", 3.0)), float(side.get("snr_db", 40.0)),
+                str(side.get("kernel", "free field")))
 
 
 def summary_lines(plan: Plan, max_rows: int = 12) -> list[str]:

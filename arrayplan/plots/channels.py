@@ -6,6 +6,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from ..planning import Plan
+from ._axes import frequency_axis
 
 __all__ = ["plot_couplings", "plot_channel_counts", "representative_indices"]
 
@@ -40,13 +41,13 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
             for ax in (ax_lin, ax_db):
                 ax.axvline(est + 0.5, color=colour, ls="--", lw=1)
     ax_db.axhline(-plan.threshold_db, color="grey", ls=":", lw=1, label=f"-{plan.threshold_db:g} dB (strong)")
-    ax_lin.set_xlabel("channel (strongest first)")
+    ax_lin.set_xlabel("channel, strongest first (no.)")
     ax_lin.set_ylabel("power coupling (% of sum rule)")
-    ax_db.set_xlabel("channel (strongest first)")
+    ax_db.set_xlabel("channel, strongest first (no.)")
     ax_db.set_ylabel("power coupling re strongest (dB)")
     for ax in (ax_lin, ax_db):
         ax.grid(True, alpha=0.3)
-        ax.legend(fontsize=7)
+        ax.legend(fontsize=8)
     title = "Channel strengths"
     if plan.estimate.kind:
         title += f"  (dashed: paraxial estimate, {plan.estimate.kind}s)"
@@ -67,12 +68,11 @@ def plot_channel_counts(plan: Plan, fig: Figure | None = None) -> Figure:
     ax.plot(hz, plan.channels.effective_channels(), "--", color="#e2a000", label="effective (participation ratio)")
     if plan.estimate.kind:
         ax.plot(hz, plan.estimate.counts, ":", color="black", label=f"paraxial estimate ({plan.estimate.kind}s)")
-    if len(hz) > 1 and hz[-1] / hz[0] > 4:
-        ax.set_xscale("log")
+    frequency_axis(ax, hz)
     ax.set_xlabel("frequency (Hz)")
-    ax.set_ylabel("number of channels")
+    ax.set_ylabel("number of channels (count)")
     ax.set_ylim(bottom=0)
     ax.grid(True, which="both", alpha=0.3)
-    ax.legend(fontsize=7)
+    ax.legend(fontsize=8)
     ax.set_title("Channels against frequency")
     return fig

@@ -8,7 +8,7 @@ from matplotlib.figure import Figure
 from ..field import _AXES, PlaneGrid
 from ..rig import Rig
 
-__all__ = ["plot_field"]
+__all__ = ["plot_field", "plot_field_panels"]
 
 
 def plot_field(rig: Rig, grid: PlaneGrid, pressure: np.ndarray, title: str, fig: Figure | None = None,
@@ -41,4 +41,61 @@ def plot_field(rig: Rig, grid: PlaneGrid, pressure: np.ndarray, title: str, fig:
     ax.set_aspect("equal")
     ax.legend(loc="upper right", fontsize=7)
     ax.set_title(title)
+    return fig
+
+
+def plot_field_panels(rig: Rig, grid: PlaneGrid, pressures: list[np.ndarray], titles: list[str],
+                      fig: Figure | None = None, range_db: float = 40.0) -> Figure:
+    """Small multiples of |p| in dB, one panel per channel.
+
+    Each panel's 0 dB is the 99th percentile of its own |p| over the plane
+    (as in :func:`plot_field`); speakers are red triangles, microphones
+    white circles.  The plane's longer side is drawn across, so long rigs
+    give wide strips stacked down the page.
+
+    Parameters
+    ----------
+    rig : Rig
+    grid : PlaneGrid
+    pressures : list of ndarray, each shape (len(grid.v), len(grid.u))
+        Complex or magnitude pressure per panel.
+    titles : list of str
+    fig : Figure, optional
+    range_db : float
+        Colour range below each panel's reference, dB.
+
+    Returns
+    -------
+    Figure
+    """
+    n = len(pressures)
+    i, j, _ = _AXES[grid.plane]
+    names = "xyz"
+    swap = (grid.v[-1] - grid.v[0]) > (grid.u[-1] - grid.u[0])
+    across, down = (grid.v, grid.u) if swap else (grid.u, grid.v)
+    ia, id_ = (j, i) if swap else (i, j)
+    aspect = (down[-1] - down[0]) / max(across[-1] - across[0], 1e-12)
+    cols = 1 if aspect < 0.6 or n == 1 else 2
+    rows = int(np.ceil(n / cols))
+    width = 7.0
+    panel_h = float(np.clip((width - 1.0) / cols * aspect + 0.6, 1.4, 4.0))
+    fig = fig or Figure(figsize=(width, panel_h * rows + 0.6), layout="constrained")
+    axes = np.atleast_1d(fig.subplots(rows, cols, squeeze=False)).ravel()
+    mesh = None
+    for ax, p, title in zip(axes, pressures, titles):
+        mag = np.abs(p)
+        ref = np.percentile(mag, 99.0) or mag.max()
+        db = np.clip(20.0 * np.log10(np.maximum(mag / ref, 1e-12)), -range_db, 0.0)
+        mesh = ax.pcolormesh(across, down, db.T if swap else db, cmap="viridis", vmin=-range_db, vmax=0.0,
+                             shading="auto")
+        for es, marker, colour in ((rig.speakers, "^", "tab:red"), (rig.mics, "o", "white")):
+            ax.scatter(es.positions[:, ia], es.positions[:, id_], marker=marker, s=12, c=colour,
+                       edgecolors="black", linewidths=0.4)
+        ax.set_xlabel(f"{names[ia]} (m)")
+        ax.set_ylabel(f"{names[id_]} (m)")
+        ax.set_aspect("equal")
+        ax.set_title(title, fontsize=9)
+    for ax in axes[n:]:
+        ax.set_visible(False)
+    fig.colorbar(mesh, ax=list(axes[:n]), label="|p| (dB re 99th percentile)", shrink=0.9)
     return fig

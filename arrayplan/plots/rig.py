@@ -27,13 +27,13 @@ def plot_rig(rig: Rig, fig: Figure | None = None, label_limit: int = 8) -> Figur
                        edgecolors="black", linewidths=0.4, zorder=3)
             if len(es) <= label_limit:
                 for name, row in zip(es.names, p):
-                    ax.annotate(name, (row[i], row[j]), fontsize=6, xytext=(3, 3), textcoords="offset points")
+                    ax.annotate(name, (row[i], row[j]), fontsize=7, xytext=(3, 3), textcoords="offset points")
         ax.set_title(title)
         ax.set_xlabel(xl)
         ax.set_ylabel(yl)
         ax.set_aspect("equal", adjustable="datalim")
         ax.grid(True, alpha=0.3)
-    axes[0].legend(loc="best", fontsize=7)
+    axes[0].legend(loc="best", fontsize=8)
     fig.suptitle(f"Rig '{rig.name}': {len(rig.speakers)} speakers, {len(rig.mics)} microphones")
     return fig
 

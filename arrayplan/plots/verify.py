@@ -4,7 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["plot_crosstalk", "plot_singular_values"]
+from ._axes import frequency_axis
+
+__all__ = ["plot_crosstalk", "plot_singular_values", "plot_isolation"]
 
 
 def plot_crosstalk(result, max_panels: int = 4, floor_db: float = -60.0, fig=None):
@@ -40,8 +42,8 @@ def plot_crosstalk(result, max_panels: int = 4, floor_db: float = -60.0, fig=Non
         im = ax.imshow(np.maximum(db, floor_db), cmap="viridis", vmin=floor_db, vmax=0.0, origin="upper")
         ax.set_xticks(range(len(want)), labels)
         ax.set_yticks(range(len(want)), labels)
-        ax.set_xlabel("driven channel j")
-        ax.set_ylabel("received channel i")
+        ax.set_xlabel("driven channel j (no.)")
+        ax.set_ylabel("received channel i (no.)")
         ax.set_title(f"{hz[f]:g} Hz")
     fig.colorbar(im, ax=list(axes), label="|C_ij| re strongest diagonal (dB)")
     fig.suptitle("Realised channel matrix combine^T G_measured drive")
@@ -74,12 +76,67 @@ def plot_singular_values(result, ax=None):
                 label=f"planned s{j + 1}" if n <= 8 else None)
         ax.plot(hz, m_db[:, j], "--", color=colours[j], marker="x" if marker else None, ms=4,
                 label=f"measured s{j + 1}" if n <= 8 else None)
-    if len(hz) > 1 and hz[-1] / hz[0] > 8:
-        ax.set_xscale("log")
+    frequency_axis(ax, hz, log_above_ratio=8.0)
     ax.set_xlabel("frequency (Hz)")
     ax.set_ylabel("singular value re strongest planned (dB)")
     ax.set_title("Planned (solid) and measured re-plan (dashed) singular values")
     ax.grid(True, alpha=0.3)
     if n <= 8:
         ax.legend(fontsize="small", ncol=2)
+    return fig
+
+
+def plot_isolation(hz, channels, isolation_db, isolation_limit_db: float, ax=None):
+    """Each wanted channel's isolation (dB) against frequency, with the pass limit.
+
+    Parameters
+    ----------
+    hz : ndarray, shape (n_freq,)
+        Frequencies, Hz.
+    channels : sequence of int
+        1-based channel numbers, one per column of `isolation_db`.
+    isolation_db : ndarray, shape (n_freq, n_want)
+        Isolation = -(worst crosstalk re the channel's own gain), dB.
+    isolation_limit_db : float
+        A channel is lost where its isolation falls below this, dB.
+    ax : matplotlib Axes, optional
+
+    Returns
+    -------
+    Figure
+    """
+    import matplotlib.pyplot as plt
+    from matplotlib.figure import Figure
+
+    if ax is None:
+        fig = Figure(figsize=(7.0, 3.6), layout="constrained")
+        ax = fig.subplots()
+    else:
+        fig = ax.figure
+    hz = np.asarray(hz, dtype=float)
+    iso = np.asarray(isolation_db, dtype=float)
+    colours = plt.get_cmap("viridis")(np.linspace(0.0, 0.9, max(len(channels), 1)))
+    marker = "o" if len(hz) < 30 else None
+    for k, (c, colour) in enumerate(zip(channels, colours)):
+        ax.plot(hz, np.clip(iso[:, k], -40.0, 160.0), "-", color=colour, marker=marker, ms=3,
+                label=f"channel {c}" if len(channels) <= 10 else None)
+    ax.axhline(isolation_limit_db, color="#b2182b", ls="--", lw=1.2, label=f"limit {isolation_limit_db:g} dB")
+    ax.fill_between(hz, -40.0, isolation_limit_db, color="#b2182b", alpha=0.08)
+    frequency_axis(ax, hz, log_above_ratio=8.0)
+    ax.set_ylim(bottom=max(-40.0, min(0.0, float(np.nanmin(iso)) - 5.0)))
+    ax.set_xlabel("frequency (Hz)")
+    ax.set_ylabel("isolation (dB)")
+    ax.set_title("Isolation of each wanted channel (below the limit: lost)")
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=8, ncol=2 if len(channels) > 5 else 1, loc="upper left")
+    if len(channels) > 10:
+        from matplotlib.cm import ScalarMappable
+        from matplotlib.colors import BoundaryNorm, ListedColormap
+
+        bounds = np.arange(len(channels) + 1) + 0.5
+        sm = ScalarMappable(BoundaryNorm(bounds, len(channels)), ListedColormap(colours))
+        cbar = fig.colorbar(sm, ax=ax)
+        ticks = np.unique(np.linspace(0, len(channels) - 1, min(len(channels), 16)).round().astype(int))
+        cbar.set_ticks(ticks + 1.0, labels=[str(channels[t]) for t in ticks])
+        cbar.set_label("channel (no.)")
     return fig

@@ -1,0 +1,76 @@
+"""Overview of an impulse-response set: envelopes of every pair and their peak levels."""
+
+from __future__ import annotations
+
+import numpy as np
+from matplotlib.figure import Figure
+
+from ..irset import IRSet
+
+__all__ = ["plot_ir_overview"]
+
+
+def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80.0,
+                     max_time_s: float | None = None) -> Figure:
+    """Envelopes of all responses (left) and the peak level of each microphone/speaker pair (right).
+
+    Left: 20 log10 |h| re the largest sample of the set, time against pair
+    (pairs ordered speaker by speaker, microphones within), so a late, weak
+    or missing response stands out as a row.  Right: each pair's peak level
+    (dB re the largest), microphones down, speakers across.
+
+    Parameters
+    ----------
+    irs : IRSet
+    fig : Figure, optional
+    range_db : float
+        Colour range below the largest sample, dB.
+    max_time_s : float, optional
+        Time shown on the left, seconds (default: until the loudest response
+        has decayed by 60 dB or into the noise, plus a quarter).
+
+    Returns
+    -------
+    Figure
+    """
+    fig = fig or Figure(figsize=(7.2, 3.8), layout="constrained")
+    ax_env, ax_peak = fig.subplots(1, 2, width_ratios=[1.6, 1.0])
+    data = np.abs(irs.data)
+    ref = float(data.max()) or 1.0
+    if max_time_s is None:
+        # until the loudest pair has decayed by 60 dB or into the noise (4x the median of the
+        # last fifth of the set), plus a quarter
+        loudest = np.max(data, axis=(1, 2))
+        tail = loudest[int(0.8 * len(loudest)):]
+        floor = 4.0 * float(np.median(tail)) if tail.size else 0.0
+        above = np.flatnonzero(loudest > max(ref * 1e-3, floor))
+        last = int(above[-1]) + 1 if above.size else irs.n_samples
+        n_show = min(irs.n_samples, max(int(1.25 * last), 32))
+    else:
+        n_show = min(irs.n_samples, int(max_time_s * irs.sample_rate_hz) + 1)
+    pairs = data[:n_show].transpose(2, 1, 0).reshape(irs.n_spk * irs.n_mic, n_show)    # (pair, time)
+    with np.errstate(divide="ignore"):
+        env_db = np.maximum(20.0 * np.log10(pairs / ref), -range_db)
+        peak_db = np.maximum(20.0 * np.log10(data.max(axis=0) / ref), -range_db)       # (mic, spk)
+    t_ms = np.arange(n_show) / irs.sample_rate_hz * 1e3
+    im = ax_env.imshow(env_db, aspect="auto", cmap="cividis", vmin=-range_db, vmax=0.0, interpolation="nearest",
+                       extent=(t_ms[0], t_ms[-1], irs.n_spk * irs.n_mic + 0.5, 0.5))
+    ax_env.set_xlabel("time (ms)")
+    ax_env.set_ylabel("speaker/mic pair (no.)")
+    ax_env.set_title("Envelopes |h| (speaker by speaker)")
+    if irs.n_spk <= 16:
+        ticks = np.arange(irs.n_spk) * irs.n_mic + 1
+        ax_env.set_yticks(ticks, [f"{name}" for name in irs.speaker_names], fontsize=7)
+        ax_env.set_ylabel("speaker, microphones within (no.)")
+    im2 = ax_peak.imshow(peak_db, aspect="auto", cmap="cividis", vmin=-range_db, vmax=0.0, interpolation="nearest")
+    ax_peak.set_xlabel("speaker (no.)")
+    ax_peak.set_ylabel("microphone (no.)")
+    for axis, count, setter in ((ax_peak.xaxis, irs.n_spk, ax_peak.set_xticks),
+                                (ax_peak.yaxis, irs.n_mic, ax_peak.set_yticks)):
+        idx = np.arange(0, count, int(np.ceil(count / 12)))
+        setter(idx, [str(i + 1) for i in idx])
+    ax_peak.set_title("Peak level per pair")
+    fig.colorbar(im2, ax=[ax_env, ax_peak], label="level re largest sample (dB)")
+    del im
+    fig.suptitle(f"Impulse responses: {irs.n_spk} speakers x {irs.n_mic} microphones at {irs.sample_rate_hz:g} Hz")
+    return fig

@@ -1,0 +1,390 @@
+"""Assemble the report: one self-contained HTML page for a project folder."""
+
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import os
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+
+from .._version import __version__
+from ..errors import InputError
+from ..fileio import SIGN_CONVENTION, write_text_atomic
+from ..irset import MANIFEST_NAME
+from ..rig import Rig
+from ..safety import CAUTION_TEXT
+from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundVerification, ProjectResults, find_results
+from .figures import (ReportFigure, filter_figures, irset_figures, plan_figures, png_bytes, report_style,
+                      verification_figures)
+from .html import esc, figure_html, page, table
+
+__all__ = ["build_report", "write_report"]
+
+_MAX_ELEMENT_ROWS = 48
+_MAX_FREQ_ROWS = 12
+
+
+def _rel(path: Path, root: Path) -> str:
+    try:
+        rel = path.relative_to(root)
+        return "." if str(rel) == "." else str(rel)
+    except ValueError:
+        return str(path)
+
+
+def _anchor(kind: str, path: Path, root: Path) -> str:
+    return kind + "-" + "".join(c if c.isalnum() else "-" for c in _rel(path, root)).strip("-")
+
+
+def _fmt(x: float, spec: str = ".3g") -> str:
+    return "-" if x is None or not np.isfinite(x) else format(x, spec)
+
+
+def _figures_html(figs: list[ReportFigure], label: str) -> str:
+    import matplotlib.pyplot as plt
+
+    parts = []
+    for k, rf in enumerate(figs, 1):
+        parts.append(figure_html(png_bytes(rf.figure), rf.caption, f"{label}, figure {k}"))
+        plt.close(rf.figure)
+    return "\n".join(parts)
+
+
+def _element_rows(rig: Rig, with_directivity: bool) -> tuple[list[str], list[list[object]]]:
+    header = ["kind", "name", "x (m)", "y (m)", "z (m)", "channel"] + (["directivity"] if with_directivity else [])
+    rows: list[list[object]] = []
+    for kind, es in (("speaker", rig.speakers), ("microphone", rig.mics)):
+        for i, name in enumerate(es.names[:_MAX_ELEMENT_ROWS]):
+            row: list[object] = [kind, name, *(f"{v:.3f}" for v in es.positions[i]), es.channels[i]]
+            if with_directivity:
+                d = es.directivities[i]
+                desc = d.kind + (f", radius {d.radius:g} m" if d.kind == "piston" else "")
+                if d.kind != "omni":
+                    desc += ", axis (" + ", ".join(f"{a:.2g}" for a in d.axis) + ")"
+                row.append(desc)
+            rows.append(row)
+        if len(es) > _MAX_ELEMENT_ROWS:
+            rows.append([kind, f"... {len(es) - _MAX_ELEMENT_ROWS} more", "", "", "", ""]
+                        + ([""] if with_directivity else []))
+    return header, rows
+
+
+def _plan_numbers(found: FoundPlan) -> tuple[str, list[list[object]]]:
+    plan = found.plan
+    ch = plan.channels
+    hz = ch.axis.hz
+    share = ch.share_of_sum_rule()
+    eff = ch.effective_channels()
+    picks = np.unique(np.linspace(0, len(hz) - 1, min(_MAX_FREQ_ROWS, len(hz))).round().astype(int))
+    rows = [[f"{hz[f]:.5g}", int(plan.strong_channels[f]), int(plan.usable_channels[f]), f"{eff[f]:.2f}",
+             _fmt(plan.estimate.counts[f], ".1f"), f"{100 * share[f].max():.1f}"] for f in picks]
+    note = (f"{len(picks)} of {len(hz)} planned frequencies; all are in summary.csv." if len(picks) < len(hz)
+            else f"All {len(hz)} planned frequencies.")
+    return note, rows
+
+
+def _plan_section(found: FoundPlan, root: Path, progress: Callable[[], None]) -> str:
+    plan, side = found.plan, found.sidecar
+    rig = plan.rig
+    hz = plan.channels.axis.hz
+    parts = [f'<section id="{_anchor("plan", found.folder, root)}"><h2>Plan: {esc(_rel(found.folder, root))}</h2>']
+    rig_info = side.get("rig", {})
+    parts.append(table(["item", "value"], [
+        ["rig", rig_info.get("name", rig.name)],
+        ["rig source", rig_info.get("source", "")],
+        ["geometry shown from", found.rig_note],
+        ["speakers / microphones", f"{len(rig.speakers)} / {len(rig.mics)}"],
+        ["speed of sound", f"{rig.medium.speed_of_sound:.2f} m/s"],
+        ["air absorption", "ISO 9613-1" if rig_info.get("air_absorption") else "none"],
+        ["kernel", plan.kernel_name],
+        ["frequencies", f"{len(hz)} from {hz[0]:.5g} Hz to {hz[-1]:.5g} Hz"],
+        ["strong channels", f"within {plan.threshold_db:g} dB of the strongest"],
+        ["usable channels", f"above the noise floor at an SNR of {plan.snr_db:g} dB on the strongest"],
+        ["channels tracked across frequency", "yes" if plan.channels.tracked else "no"],
+    ], text_columns=(0, 1)))
+    if plan.estimate.warning:
+        parts.append(f'<p class="note">Paraxial estimate: {esc(plan.estimate.warning)}.</p>')
+    header, rows = _element_rows(rig, with_directivity=found.rig_file is not None)
+    parts.append("<h3>Elements</h3>" + table(header, rows, text_columns=(0, 1, 6)))
+    note, rows = _plan_numbers(found)
+    parts.append("<h3>Channels per frequency</h3>")
+    parts.append(table(["frequency (Hz)", "strong", "usable", "effective", "paraxial estimate",
+                        "strongest s² (% of sum rule)"], rows, text_columns=()))
+    parts.append(f'<p class="note">{esc(note)}</p>')
+    parts.append(_figures_html(plan_figures(found, progress=progress), f"plan {_rel(found.folder, root)}"))
+    parts.append("</section>")
+    return "\n".join(parts)
+
+
+def _filters_section(found: FoundFilters, root: Path) -> str:
+    d = found.sidecar
+    parts = [f'<section id="{_anchor("filters", found.folder, root)}"><h2>Filters: '
+             f'{esc(_rel(found.folder, root))}</h2>']
+    band = d.get("band_hz", [np.nan, np.nan])
+    parts.append(table(["item", "value"], [
+        ["sample rate", f"{d.get('sample_rate_hz', float('nan')):g} Hz"],
+        ["taps", d.get("taps", "")],
+        ["bulk delay", f"{d.get('bulk_delay_samples', '')} samples ({1e3 * float(d.get('bulk_delay_s', 0)):.2f} ms)"],
+        ["band", f"{band[0]:g} Hz to {band[1]:g} Hz"],
+        ["normalisation", d.get("normalisation", "")],
+    ], text_columns=(0, 1)))
+    rows, classes = [], {}
+    check = d.get("check") or {}
+    checked = {c: k for k, c in enumerate(check.get("channels", []))}
+    skipped = {s.get("channel"): s.get("reason", "") for s in d.get("skipped", [])}
+    for r, c in enumerate(d.get("channels", [])):
+        j = c.get("channel")
+        k = checked.get(j)
+        verdict = "-" if k is None else ("pass" if check["passed"][k] else "fail")
+        if k is not None:
+            classes[(r, 4)] = verdict
+        worst = None if k is None else check["worst_crosstalk_db"][k]
+        rows.append([j, _fmt(c.get("level_db_at_centre"), ".1f"), "yes" if c.get("filters") else "no",
+                     _fmt(worst, ".1f") if worst is not None else "-", verdict,
+                     "skipped: " + skipped[j].rsplit(", ", 1)[-1] if j in skipped else ""])
+    parts.append("<h3>Channels</h3>" + table(
+        ["channel", "level at band centre (dB)", "filters written", "worst planned crosstalk (dB)", "check", "note"],
+        rows, text_columns=(5,), cell_classes=classes))
+    if check:
+        parts.append(f'<p class="note">Check limit {esc(check.get("limit_db"))} dB: the kept channels\' filters '
+                     "drive the simulated free-field rig and the leakage between them is measured.</p>")
+    parts.append(_figures_html(filter_figures(found), f"filters {_rel(found.folder, root)}"))
+    parts.append("</section>")
+    return "\n".join(parts)
+
+
+def _sweep_text(session: dict) -> str:
+    """The measurement sweep in one line, from a session record."""
+    sweep = session.get("sweep") or session.get("settings", {}).get("sweep") or {}
+    if not isinstance(sweep, dict) or not sweep:
+        return "not recorded"
+    parts = []
+    for key, fmt in (("kind", "{}"), ("f1_hz", "{:g} Hz"), ("f2_hz", "to {:g} Hz"), ("duration_s", "{:g} s"),
+                     ("sweep_peak_dbfs", "peak {:.1f} dBFS")):
+        if sweep.get(key) is not None:
+            parts.append(fmt.format(sweep[key]))
+    repeats = session.get("settings", {}).get("repeats")
+    if repeats:
+        parts.append(f"{repeats} sweep(s) averaged per take")
+    return ", ".join(parts)
+
+
+def _irset_section(found: FoundIRSet, root: Path) -> str:
+    irs = found.irs
+    parts = [f'<section id="{_anchor("irset", found.folder, root)}"><h2>Impulse responses: '
+             f'{esc(_rel(found.folder, root))}</h2>']
+    rows = [["written by", found.role],
+            ["speakers / microphones", f"{irs.n_spk} / {irs.n_mic}"],
+            ["sample rate", f"{irs.sample_rate_hz:g} Hz"],
+            ["length", f"{irs.n_samples} samples ({1e3 * irs.n_samples / irs.sample_rate_hz:.1f} ms)"],
+            ["units", irs.units],
+            ["latency removed", f"{irs.latency_removed_samples} samples"]]
+    if found.session:
+        rows.append(["sweep", _sweep_text(found.session)])
+    parts.append(table(["item", "value"], rows, text_columns=(0, 1)))
+    if irs.warnings:
+        parts.append("<h3>Warnings</h3><ul>" + "".join(f"<li>{esc(w)}</li>" for w in irs.warnings[:40]) + "</ul>")
+        if len(irs.warnings) > 40:
+            parts.append(f'<p class="note">{len(irs.warnings) - 40} more warnings in {MANIFEST_NAME}.</p>')
+    if found.marked_takes:
+        parts.append("<h3>Marked takes</h3><ul>" + "".join(f"<li>{esc(t)}</li>" for t in found.marked_takes)
+                     + "</ul>")
+    parts.append(_figures_html(irset_figures(found), f"impulse responses {_rel(found.folder, root)}"))
+    parts.append("</section>")
+    return "\n".join(parts)
+
+
+def _verification_verdicts(found: FoundVerification) -> list[list[object]]:
+    by_channel: dict[int, list[dict[str, str]]] = {}
+    for r in found.channel_rows:
+        by_channel.setdefault(int(r["channel"]), []).append(r)
+    passed = dict(zip(found.doc.get("channels", []), found.doc.get("passed", [])))
+    rows = []
+    for c, rs in sorted(by_channel.items()):
+        iso = np.array([float(r["isolation_db"]) if r["isolation_db"] else np.nan for r in rs])
+        gain = np.array([float(r["gain_db"]) if r["gain_db"] else np.nan for r in rs])
+        lost = sum(int(r["lost"]) for r in rs)
+        worst = int(np.nanargmin(iso)) if np.any(np.isfinite(iso)) else 0
+        ok = passed.get(c, lost == 0)
+        rows.append([c, "PASS" if ok else "FAIL", _fmt(iso[worst], ".1f"), _fmt(float(rs[worst]["frequency_hz"]), ".5g"),
+                     f"{lost} of {len(rs)}", _fmt(float(np.nanmedian(gain)) if np.any(np.isfinite(gain)) else np.nan,
+                                                  ".1f")])
+    return rows
+
+
+def _verification_section(found: FoundVerification, root: Path) -> str:
+    d = found.doc
+    parts = [f'<section id="{_anchor("verify", found.folder, root)}"><h2>Verification: '
+             f'{esc(_rel(found.folder, root))}</h2>']
+    parts.append(table(["item", "value"], [
+        ["plan", d.get("plan_dir", "")], ["measured impulse responses", d.get("irset_dir", "")],
+        ["isolation limit", f"{d.get('isolation_db', '')} dB"], ["measured units", d.get("irset_units", "")],
+        ["window", "none" if d.get("window_ms") is None else f"{d.get('window_ms')} ms"],
+    ], text_columns=(0, 1)))
+    rows = _verification_verdicts(found)
+    classes = {(r, 1): ("pass" if row[1] == "PASS" else "fail") for r, row in enumerate(rows)}
+    parts.append("<h3>Channels</h3>" + table(
+        ["channel", "verdict", "worst isolation (dB)", "at (Hz)", "lost at", "median gain re plan (dB)"],
+        rows, text_columns=(), cell_classes=classes))
+    if d.get("gain_note"):
+        parts.append(f'<p class="note">{esc(d["gain_note"])}</p>')
+    parts.append(_figures_html(verification_figures(found), f"verification {_rel(found.folder, root)}"))
+    parts.append("</section>")
+    return "\n".join(parts)
+
+
+def _summary(results: ProjectResults, root: Path) -> str:
+    items = []
+    for fp in results.plans:
+        plan = fp.plan
+        hz = plan.channels.axis.hz
+        strong = plan.strong_channels
+        items.append(f"Plan <b>{esc(_rel(fp.folder, root))}</b> ({esc(plan.rig.name)}, {len(plan.rig.speakers)} "
+                     f"speakers, {len(plan.rig.mics)} microphones): {int(strong[0])} strong channel(s) at "
+                     f"{hz[0]:.4g} Hz, {int(strong[-1])} at {hz[-1]:.4g} Hz, at most {int(strong.max())}; "
+                     f"{int(plan.usable_channels.max())} above a {plan.snr_db:g} dB noise floor.")
+    for ff in results.filters:
+        ch = ff.sidecar.get("channels", [])
+        kept = sum(1 for c in ch if c.get("filters"))
+        check = ff.sidecar.get("check") or {}
+        tail = ""
+        if check:
+            tail = f"; {sum(check.get('passed', []))} of {len(check.get('passed', []))} pass the planned crosstalk check"
+        items.append(f"Filters <b>{esc(_rel(ff.folder, root))}</b>: {kept} of {len(ch)} channels written{tail}.")
+    for fi in results.irsets:
+        w = len(fi.irs.warnings)
+        items.append(f"Impulse responses <b>{esc(_rel(fi.folder, root))}</b> ({fi.role}): {fi.irs.n_spk} x "
+                     f"{fi.irs.n_mic}, {w} warning(s)" + (f", {len(fi.marked_takes)} marked take(s)"
+                                                         if fi.marked_takes else "") + ".")
+    for fv in results.verifications:
+        passed = fv.doc.get("passed", [])
+        chans = fv.doc.get("channels", [])
+        failed = [c for c, p in zip(chans, passed) if not p]
+        verdict = ('<span class="pass">all pass</span>' if not failed else
+                   f'<span class="fail">{len(failed)} lost</span> (channel{"s" if len(failed) > 1 else ""} '
+                   f'{esc(", ".join(str(c) for c in failed))})')
+        items.append(f"Verification <b>{esc(_rel(fv.folder, root))}</b>: {sum(passed)} of {len(passed)} wanted "
+                     f"channels pass at {esc(fv.doc.get('isolation_db'))} dB isolation; {verdict}.")
+    body = "".join(f"<li>{i}</li>" for i in items)
+    return f'<section id="summary"><h2>Summary</h2><div class="verdict"><ul>{body}</ul></div></section>'
+
+
+def _provenance_of(path: Path) -> dict:
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return doc.get("provenance", {}) if isinstance(doc, dict) else {}
+
+
+def _provenance_section(results: ProjectResults, root: Path, generated: str) -> str:
+    rows = []
+    sources = ([(fp.folder / "weights.json", "plan") for fp in results.plans]
+               + [(ff.folder / "filters.json", "filters") for ff in results.filters]
+               + [(fi.folder / MANIFEST_NAME, "impulse responses") for fi in results.irsets]
+               + [(fv.folder / "verify.json", "verification") for fv in results.verifications])
+    for path, kind in sources:
+        prov = _provenance_of(path)
+        sha = str(prov.get("rig_sha256", "-"))
+        rows.append([kind, _rel(path, root), prov.get("tool_version", "?"), prov.get("written_utc", "?"),
+                     sha[:16] + "..." if len(sha) > 16 else sha])
+    rig_hashes = sorted({fp.plan.rig.sha256 for fp in results.plans})
+    parts = ['<section id="provenance"><h2>Provenance</h2>',
+             table(["result", "file", "arrayplan version", "written (UTC)", "rig SHA-256"], rows,
+                   text_columns=(0, 1, 2, 3, 4)),
+             f'<p class="note">This report: arrayplan {esc(__version__)}, generated {esc(generated)} UTC from '
+             f'{esc(str(root.resolve()))}. Rig geometry hash(es) of the plans: '
+             f'{esc(", ".join(rig_hashes) or "none")}. Sign convention: {esc(SIGN_CONVENTION)}. '
+             "Units: metres, hertz, seconds, pascals; levels in dB as labelled.</p>"]
+    if results.problems:
+        parts.append("<h3>Results that could not be read</h3><ul>"
+                     + "".join(f"<li>{esc(p)}</li>" for p in results.problems) + "</ul>")
+    parts.append("</section>")
+    return "\n".join(parts)
+
+
+def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, title: str | None = None,
+                 progress: Callable[[int, int], None] | None = None) -> str:
+    """The report of everything under `project_dir`, as one HTML document.
+
+    Parameters
+    ----------
+    project_dir : path
+        Folder holding plan, filters, measurement and verification results
+        (searched recursively, see :mod:`arrayplan.report.discover`).
+    rig : Rig, optional
+        The rig file's content, where the plans' sidecars no longer point to it.
+    title : str, optional
+        Page title (default: the folder's name).
+    progress : callable, optional
+        ``progress(done, total)`` after each section.
+
+    Returns
+    -------
+    str
+        A self-contained HTML5 document (inline style, PNG data URIs, no scripts).
+
+    Raises
+    ------
+    InputError
+        When the folder does not exist or holds no arrayplan results.
+    """
+    root = Path(project_dir)
+    results = find_results(root, rig=rig)
+    if results.empty:
+        detail = f" ({'; '.join(results.problems)})" if results.problems else ""
+        raise InputError("no arrayplan results found" + detail, source=str(root),
+                         fix="run 'arrayplan plan RIG.toml --out DIR' (and filters, measure, verify) into this folder")
+    generated = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
+    title = title or f"arrayplan report: {root.resolve().name}"
+    steps = ([("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
+             + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications])
+    total = len(steps) + 1
+    done = [0]
+
+    def tick() -> None:
+        if progress is not None:
+            progress(done[0], total)
+
+    toc = []
+    sections = []
+    with report_style():
+        for kind, found in steps:
+            if kind == "plan":
+                sections.append(_plan_section(found, root, progress=tick))
+                name = "Plan"
+            elif kind == "filters":
+                sections.append(_filters_section(found, root))
+                name = "Filters"
+            elif kind == "irset":
+                sections.append(_irset_section(found, root))
+                name = "Impulse responses"
+            else:
+                sections.append(_verification_section(found, root))
+                name = "Verification"
+            toc.append(f'<li><a href="#{_anchor(kind, found.folder, root)}">{name}: '
+                       f'{esc(_rel(found.folder, root))}</a></li>')
+            done[0] += 1
+            tick()
+    header = (f"<header><h1>{esc(title)}</h1><p class=\"meta\">Generated {esc(generated)} UTC by arrayplan "
+              f"{esc(__version__)} from <code>{esc(str(root.resolve()))}</code>.</p></header>")
+    caution = ('<section class="caution" id="caution"><h2>Caution</h2>'
+               "<p>Measuring and verifying a rig plays loud test signals through real loudspeakers. "
+               "The drive filters in this project feed loudspeakers too.</p>"
+               f"<pre>{esc(CAUTION_TEXT.strip())}</pre></section>")
+    nav = ('<nav><h2>Contents</h2><ol><li><a href="#summary">Summary</a></li>' + "".join(toc)
+           + '<li><a href="#provenance">Provenance</a></li></ol></nav>')
+    body = "\n".join([header, _summary(results, root), caution, nav, *sections,
+                      _provenance_section(results, root, generated)])
+    done[0] = total
+    tick()
+    return page(title, body)
+
+
+def write_report(project_dir: str | os.PathLike, out_path: str | os.PathLike, **kwargs) -> Path:
+    """Build the report (see :func:`build_report`) and write it atomically to `out_path`."""
+    text = build_report(project_dir, **kwargs)
+    return write_text_atomic(out_path, text)

@@ -1,0 +1,270 @@
+"""Find and load the results a project folder holds: plans, filters, IR sets, verifications.
+
+A project folder is any folder under which arrayplan wrote its outputs, for
+example::
+
+    project/
+      rig.toml
+      plan/          weights.json (kind arrayplan-plan), weights.npz, summary.csv, ...
+      filters/       filters.json, channel-NN-*.wav, check.csv
+      meas/          session.json, takes/, irset/ (an IR set)
+      verify/        verify.json (kind arrayplan-verification), verify-*.csv
+
+Each result is recognised by its sidecar, wherever it lies (up to
+:data:`MAX_DEPTH` folders down).  Per-take IR sets (``takes/*/irset``) and
+harmonic IR sets (``harmonic-N/``) are parts of a larger result and are not
+listed on their own.  A result whose files cannot be read is not fatal: it
+is listed with the reason, so the report still comes out and says what is
+missing.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from ..errors import InputError
+from ..filters.check import FilterCheck
+from ..irset import MANIFEST_NAME, IRSet, read_irset
+from ..plan_files import read_plan
+from ..planning import Plan
+from ..rig import Rig, load_rig
+
+__all__ = ["MAX_DEPTH", "FoundPlan", "FoundFilters", "FoundIRSet", "FoundVerification", "ProjectResults",
+           "find_results"]
+
+#: How many folder levels below the project folder are searched.
+MAX_DEPTH = 4
+
+_SKIP_DIRS = {".git", ".venv", "venv", "__pycache__", "node_modules"}
+
+
+@dataclass
+class FoundPlan:
+    """A plan folder.
+
+    Attributes
+    ----------
+    folder : Path
+    plan : Plan
+        Rebuilt from the folder's files (see :func:`arrayplan.plan_files.read_plan`).
+    sidecar : dict
+        ``weights.json``.
+    rig_file : Path or None
+        The rig file whose geometry hash matches the plan's, when one was found.
+    rig_note : str
+        Where the geometry shown comes from.
+    """
+
+    folder: Path
+    plan: Plan
+    sidecar: dict
+    rig_file: Path | None
+    rig_note: str
+
+
+@dataclass
+class FoundFilters:
+    """A filters folder: ``filters.json`` and, when the check ran, its result."""
+
+    folder: Path
+    sidecar: dict
+    check: FilterCheck | None
+
+
+@dataclass
+class FoundIRSet:
+    """An IR set; `role` says who wrote it (measurement, deconvolution, or unknown)."""
+
+    folder: Path
+    irs: IRSet
+    role: str
+    session: dict | None = None
+    marked_takes: list[str] = field(default_factory=list)
+
+
+@dataclass
+class FoundVerification:
+    """A verification folder: ``verify.json`` and its two tables as lists of row dicts."""
+
+    folder: Path
+    doc: dict
+    channel_rows: list[dict[str, str]]
+    summary_rows: list[dict[str, str]]
+
+
+@dataclass
+class ProjectResults:
+    """Everything found under a project folder, each list sorted by path."""
+
+    folder: Path
+    plans: list[FoundPlan] = field(default_factory=list)
+    filters: list[FoundFilters] = field(default_factory=list)
+    irsets: list[FoundIRSet] = field(default_factory=list)
+    verifications: list[FoundVerification] = field(default_factory=list)
+    problems: list[str] = field(default_factory=list)
+
+    @property
+    def empty(self) -> bool:
+        return not (self.plans or self.filters or self.irsets or self.verifications)
+
+
+def _read_json(path: Path) -> Any:
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(f"cannot read ({exc.__class__.__name__}: {exc})", source=str(path)) from None
+
+
+def _read_csv(path: Path) -> list[dict[str, str]]:
+    if not path.exists():
+        raise InputError("missing", source=str(path))
+    with open(path, newline="", encoding="utf-8") as fh:
+        return list(csv.DictReader(fh))
+
+
+def _walk(root: Path) -> list[Path]:
+    """Folders below `root` (itself included) down to MAX_DEPTH, sorted, hidden ones skipped."""
+    found = []
+    for dirpath, dirnames, _ in os.walk(root):
+        here = Path(dirpath)
+        depth = len(here.relative_to(root).parts)
+        dirnames[:] = sorted(d for d in dirnames if not d.startswith(".") and d not in _SKIP_DIRS
+                             and depth < MAX_DEPTH)
+        found.append(here)
+    return sorted(found)
+
+
+def _candidate_rig_paths(source: str, plan_dir: Path, project: Path) -> list[Path]:
+    p = Path(source)
+    if p.is_absolute():
+        return [p]
+    return [Path.cwd() / p, project / p, plan_dir.parent / p, plan_dir / p, project / p.name]
+
+
+def _rig_for_plan(sidecar: dict, plan_dir: Path, project: Path, given: Rig | None) -> tuple[Rig | None, Path | None,
+                                                                                          str]:
+    want = str(sidecar.get("rig", {}).get("sha256", ""))
+    if given is not None:
+        if given.sha256 == want:
+            return given, Path(given.source), f"rig file {given.source} (geometry hash matches the plan)"
+    source = str(sidecar.get("rig", {}).get("source", ""))
+    if source and not source.startswith("<") and source != "command line":
+        for cand in _candidate_rig_paths(source, plan_dir, project):
+            if cand.is_file():
+                try:
+                    rig = load_rig(cand)
+                except InputError:
+                    continue
+                if rig.sha256 == want:
+                    return rig, cand, f"rig file {cand} (geometry hash matches the plan)"
+    return None, None, ("element positions stored in the plan (rig file not found or changed since planning; "
+                        "directivity unknown, so no field maps)")
+
+
+def _load_plan(folder: Path, project: Path, rig: Rig | None) -> FoundPlan:
+    sidecar = _read_json(folder / "weights.json")
+    full_rig, rig_file, note = _rig_for_plan(sidecar, folder, project, rig)
+    plan = read_plan(folder, full_rig)
+    return FoundPlan(folder, plan, sidecar, rig_file, note)
+
+
+def _load_filters(folder: Path) -> FoundFilters:
+    import numpy as np
+
+    doc = _read_json(folder / "filters.json")
+    check = None
+    c = doc.get("check")
+    if isinstance(c, dict):
+        try:
+            xt = np.array([[np.nan if v is None else float(v) for v in row] for row in c["crosstalk_db"]], dtype=float)
+            check = FilterCheck(tuple(int(k) - 1 for k in c["channels"]), np.asarray(c["gain_error_db"], dtype=float),
+                                xt.reshape(len(c["channels"]), len(c["channels"])),
+                                np.asarray(c["latency_samples"], dtype=int), float(c["limit_db"]),
+                                int(c["rig_ir_samples"]))
+        except (KeyError, TypeError, ValueError) as exc:
+            raise InputError(f"malformed check ({exc})", source=str(folder / "filters.json"), field="check") from None
+    return FoundFilters(folder, doc, check)
+
+
+def _load_irset(folder: Path) -> FoundIRSet:
+    irs = read_irset(folder)
+    parent = folder.parent
+    if (parent / "session.json").is_file():
+        session = _read_json(parent / "session.json")
+        marked = []
+        for take in sorted((parent / "takes").glob("*/take.json")):
+            t = _read_json(take)
+            if t.get("status") not in (None, "ok"):
+                marked.append(f"{t.get('speaker', take.parent.name)}: {t.get('status')}; "
+                              + "; ".join(str(w) for w in t.get("warnings", [])))
+        return FoundIRSet(folder, irs, "measurement", session, marked)
+    if (folder / "deconvolution.csv").is_file():
+        return FoundIRSet(folder, irs, "deconvolution")
+    return FoundIRSet(folder, irs, "impulse-response set")
+
+
+def _load_verification(folder: Path) -> FoundVerification:
+    doc = _read_json(folder / "verify.json")
+    return FoundVerification(folder, doc, _read_csv(folder / "verify-channels.csv"),
+                             _read_csv(folder / "verify-summary.csv"))
+
+
+def _kind(folder: Path) -> str | None:
+    if (folder / "weights.json").is_file() and (folder / "weights.npz").is_file():
+        return "plan"
+    if (folder / "filters.json").is_file():
+        return "filters"
+    if (folder / "verify.json").is_file():
+        return "verification"
+    if (folder / MANIFEST_NAME).is_file():
+        parts = folder.parts
+        if folder.name.startswith("harmonic-") or (len(parts) >= 3 and parts[-3] == "takes"):
+            return None
+        return "irset"
+    return None
+
+
+def find_results(project_dir: str | os.PathLike, rig: Rig | None = None) -> ProjectResults:
+    """Find and load every result under `project_dir`.
+
+    Parameters
+    ----------
+    project_dir : path
+    rig : Rig, optional
+        The rig to show with plans whose geometry hash it matches (default:
+        the rig file named in each plan's sidecar, when it still matches).
+
+    Returns
+    -------
+    ProjectResults
+        Results that could not be read are listed in ``problems``.
+
+    Raises
+    ------
+    InputError
+        When `project_dir` is not a folder.
+    """
+    root = Path(project_dir)
+    if not root.is_dir():
+        raise InputError("not a folder", source=str(root), fix="give the folder that holds the plan/measure results")
+    out = ProjectResults(root)
+    loaders = {"plan": (lambda f: _load_plan(f, root, rig), out.plans),
+               "filters": (_load_filters, out.filters),
+               "irset": (_load_irset, out.irsets),
+               "verification": (_load_verification, out.verifications)}
+    for folder in _walk(root):
+        kind = _kind(folder)
+        if kind is None:
+            continue
+        load, bucket = loaders[kind]
+        try:
+            bucket.append(load(folder))
+        except InputError as exc:
+            text = exc.one_line() if hasattr(exc, "one_line") else str(exc)
+            out.problems.append(f"{kind} in {folder}: {text}")
+    return out

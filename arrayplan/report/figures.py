@@ -1,0 +1,146 @@
+"""The report's figures, drawn from the results found in a project folder.
+
+Every figure is made at A4 text width (:data:`PAGE_WIDTH_IN`) with text of
+at least :data:`MIN_FONT_PT` points, so it stays readable when the report is
+printed; colour maps are perceptually uniform (viridis, cividis).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+from dataclasses import dataclass
+from typing import Iterator
+
+import numpy as np
+from matplotlib.figure import Figure
+
+from ..field import best_plane, channel_field, default_plane
+from ..filters.check import plot_crosstalk as plot_filter_crosstalk
+from ..plots import (plot_channel_counts, plot_couplings, plot_field_panels, plot_ir_overview, plot_isolation,
+                     plot_level_map, plot_rig)
+from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundVerification
+
+__all__ = ["ReportFigure", "PAGE_WIDTH_IN", "MIN_FONT_PT", "report_style", "plan_figures", "filter_figures",
+           "irset_figures", "verification_figures", "png_bytes"]
+
+#: A4 is 210 mm wide; with 15 mm margins the text is 180 mm = 7.09 in wide.
+PAGE_WIDTH_IN = 7.0
+#: Smallest text in a figure, points, at print size (common practice for printed figures, no source).
+MIN_FONT_PT = 7.0
+#: Channels shown as field maps.
+FIELD_CHANNELS = 4
+
+
+@dataclass
+class ReportFigure:
+    """A figure and its caption."""
+
+    caption: str
+    figure: Figure
+
+
+_STYLE = {"font.size": 9.0, "axes.titlesize": 9.5, "axes.labelsize": 9.0, "xtick.labelsize": 8.0,
+          "ytick.labelsize": 8.0, "legend.fontsize": 8.0, "figure.titlesize": 10.0, "image.cmap": "viridis"}
+
+
+@contextlib.contextmanager
+def report_style() -> Iterator[None]:
+    """Matplotlib settings for report figures (font sizes for print)."""
+    import matplotlib
+
+    with matplotlib.rc_context(_STYLE):
+        yield
+
+
+def _fig(height_in: float) -> Figure:
+    return Figure(figsize=(PAGE_WIDTH_IN, height_in), layout="constrained")
+
+
+def png_bytes(fig: Figure, dpi: int = 150) -> bytes:
+    """The figure as PNG bytes."""
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=dpi)
+    return buf.getvalue()
+
+
+def _field_figure(found: FoundPlan) -> ReportFigure | None:
+    plan = found.plan
+    if found.rig_file is None:
+        return None
+    rig = plan.rig
+    ch = plan.channels
+    f = int(np.argmin(np.abs(np.log(ch.axis.hz) - np.log(ch.axis.hz).mean())))    # geometric centre
+    n = min(FIELD_CHANNELS, ch.n_channels)
+    plane = best_plane(rig)
+    grid = default_plane(rig, plane, resolution=121)
+    pressures = [channel_field(rig, ch.drive[f, :, j], float(ch.axis.hz[f]), grid) for j in range(n)]
+    level = ch.level_db()[f]
+    titles = [f"channel {j + 1}: {level[j]:.1f} dB re strongest" for j in range(n)]
+    fig = plot_field_panels(rig, grid, pressures, titles)
+    fig.suptitle(f"Field of the first {n} channels at {ch.axis.hz[f]:.4g} Hz, {plane} plane at "
+                 f"{grid.offset:.3g} m")
+    return ReportFigure(f"Sound pressure level over the {plane} plane that each of the first {n} channels' drive "
+                        f"weights produce at {ch.axis.hz[f]:.4g} Hz (free field; each panel on its own 0 dB). "
+                        "Speakers: red triangles; microphones: white circles.", fig)
+
+
+def plan_figures(found: FoundPlan, progress=None) -> list[ReportFigure]:
+    """Rig geometry, channel strengths, counts, level map and field maps of one plan."""
+    plan = found.plan
+    out = [ReportFigure(f"The rig in three views ({found.rig_note}).", plot_rig(plan.rig, fig=_fig(2.9))),
+           ReportFigure("Each channel's power coupling s^2 as a share of the sum rule (left) and in dB re the "
+                        "strongest channel (right), at three frequencies; dashed: paraxial estimate of the count.",
+                        plot_couplings(plan, fig=_fig(3.3))),
+           ReportFigure("Strong, usable and effective channel counts against frequency, with the paraxial estimate.",
+                        plot_channel_counts(plan, fig=_fig(3.4))),
+           ReportFigure("Level of every channel (strongest first) over frequency; white: the strong count; "
+                        "dashed: the paraxial estimate.", plot_level_map(plan, fig=_fig(3.6)))]
+    if progress is not None:
+        progress()
+    field = _field_figure(found)
+    if field is not None:
+        out.append(field)
+    return out
+
+
+def filter_figures(found: FoundFilters) -> list[ReportFigure]:
+    """The planned crosstalk matrix from the filters' time-domain check."""
+    if found.check is None or len(found.check.channels) < 2:
+        return []
+    fig = _fig(3.4)
+    ax = fig.subplots()
+    plot_filter_crosstalk(found.check, ax=ax)
+    return [ReportFigure("Planned crosstalk: worst in-band leakage between the kept channels when the filters drive "
+                         "the simulated free-field rig (dB re each output's own gain).", fig)]
+
+
+def irset_figures(found: FoundIRSet) -> list[ReportFigure]:
+    """Envelopes and peak levels of an IR set."""
+    irs = found.irs
+    fig = plot_ir_overview(irs, fig=_fig(3.8))
+    peak = float(np.max(np.abs(irs.data)))
+    return [ReportFigure(f"Impulse responses in {found.folder.name}: envelope of every speaker/microphone pair "
+                         f"(left) and each pair's peak (right), dB re the largest sample ({peak:.3g}, unit "
+                         f"{irs.units}).", fig)]
+
+
+def _floats(rows: list[dict[str, str]], key: str) -> np.ndarray:
+    return np.array([float(r[key]) if r.get(key) not in (None, "") else np.nan for r in rows], dtype=float)
+
+
+def verification_figures(found: FoundVerification) -> list[ReportFigure]:
+    """Isolation against frequency and the measured channel matrices of a verification."""
+    rows = found.channel_rows
+    if not rows:
+        return []
+    chans = sorted({int(r["channel"]) for r in rows})
+    hz = np.unique(_floats(rows, "frequency_hz"))
+    iso = np.full((len(hz), len(chans)), np.nan)
+    f_idx = np.searchsorted(hz, _floats(rows, "frequency_hz"))
+    c_idx = np.searchsorted(chans, [int(r["channel"]) for r in rows])
+    iso[f_idx, c_idx] = _floats(rows, "isolation_db")
+    limit = float(found.doc.get("isolation_db", 20.0))
+    out = [ReportFigure("Measured isolation of each wanted channel against frequency; a channel is lost where it "
+                        f"falls below {limit:g} dB.", plot_isolation(hz, chans, iso, limit, ax=_fig(3.6).subplots()))]
+    return out

@@ -1,0 +1,316 @@
+"""The project report: structure, embedded figures, offline use, print readability, Chromium rendering."""
+
+from __future__ import annotations
+
+import base64
+import io
+import json
+import os
+import re
+import shutil
+import subprocess
+from html.parser import HTMLParser
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+import numpy as np
+import pytest
+from matplotlib.text import Text
+from PIL import Image
+
+from arrayplan.cli import main
+from arrayplan.plan_files import read_plan
+from arrayplan.report import build_report, find_results
+from arrayplan.report.figures import (MIN_FONT_PT, filter_figures, irset_figures, plan_figures, report_style,
+                                      verification_figures)
+from arrayplan.rig import load_rig
+from arrayplan.safety import CAUTION_TEXT
+
+# Invented fixture: a bench link of five small drivers facing six microphones 1.2 m away.
+RIG_TOML = """
+[rig]
+name = "bench-link"
+
+[medium]
+speed_of_sound = 343.0
+
+[frequencies]
+start = 400.0
+stop = 4000.0
+count = 10
+spacing = "log"
+
+[[speakers]]
+shape = "line"
+name = "S"
+count = 5
+spacing = 0.09
+center = [0.0, 0.0, 1.0]
+direction = [1.0, 0.0, 0.0]
+
+[[microphones]]
+shape = "line"
+name = "M"
+count = 6
+spacing = 0.08
+center = [0.0, 1.2, 1.0]
+direction = [1.0, 0.0, 0.0]
+"""
+
+VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
+
+
+@pytest.fixture(scope="module")
+def project(tmp_path_factory) -> Path:
+    """plan -> filters -> simulated measurement -> verify, through the real CLI."""
+    root = tmp_path_factory.mktemp("project")
+    rig = root / "rig.toml"
+    rig.write_text(RIG_TOML, encoding="utf-8")
+    steps = [["plan", str(rig), "--out", str(root / "plan")],
+             ["filters", str(rig), "--rate", "16000", "--band", "400", "4000", "--taps", "512", "--out",
+              str(root / "filters")],
+             ["measure", str(rig), "--out", str(root / "meas"), "--simulate", "--yes", "--rate", "16000",
+              "--duration-s", "0.5", "--f1", "100", "--ir-s", "0.1", "--latency-samples", "0"],
+             ["verify", str(root / "plan"), str(root / "meas" / "irset"), "--out", str(root / "verify")]]
+    for argv in steps:
+        assert main(argv) in (0, 1), argv          # verify exits 1 when a channel is lost
+    return root
+
+
+@pytest.fixture(scope="module")
+def report_html(project) -> str:
+    assert main(["report", str(project)]) == 0
+    return (project / "report.html").read_text(encoding="utf-8")
+
+
+class _Collector(HTMLParser):
+    """Checks nesting and collects tags, ids, links and image sources."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.stack: list[str] = []
+        self.errors: list[str] = []
+        self.tags: list[tuple[str, dict]] = []
+        self.ids: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        self.tags.append((tag, a))
+        if "id" in a:
+            self.ids.append(a["id"])
+        if tag not in VOID:
+            self.stack.append(tag)
+
+    def handle_endtag(self, tag):
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> closes {self.stack[-1] if self.stack else 'nothing'}")
+        else:
+            self.stack.pop()
+
+
+def _parse(text: str) -> _Collector:
+    p = _Collector()
+    p.feed(text)
+    p.close()
+    return p
+
+
+def test_report_parses_and_is_well_nested(report_html):
+    # HTML5 element nesting (WHATWG HTML Living Standard): every non-void element closed in order.
+    p = _parse(report_html)
+    assert p.errors == [] and p.stack == []
+    assert report_html.startswith("<!DOCTYPE html>")
+    assert [t for t, _ in p.tags].count("h1") == 1
+    assert len(p.ids) == len(set(p.ids)), "ids must be unique"
+    for tag, a in p.tags:
+        if tag == "a" and "href" in a:
+            assert a["href"].startswith("#") and a["href"][1:] in p.ids, a["href"]
+
+
+def test_report_is_self_contained(report_html):
+    p = _parse(report_html)
+    kinds = {t for t, _ in p.tags}
+    assert not kinds & {"script", "link", "iframe", "object", "embed"}
+    for tag, a in p.tags:
+        for attr in ("src", "href"):
+            if attr in a:
+                assert a[attr].startswith(("data:", "#")), f"<{tag} {attr}={a[attr][:40]}>"
+    assert "@import" not in report_html and "url(" not in report_html
+    assert "http://" not in report_html and "https://" not in report_html
+
+
+def test_every_embedded_image_decodes(report_html):
+    p = _parse(report_html)
+    imgs = [a for t, a in p.tags if t == "img"]
+    assert len(imgs) >= 8      # rig, strengths, counts, levels, fields, crosstalk, IRs, isolation
+    for a in imgs:
+        assert a.get("alt"), "every figure has alt text"
+        head, data = a["src"].split(",", 1)
+        assert head == "data:image/png;base64"
+        raw = base64.b64decode(data, validate=True)
+        # PNG signature, ISO/IEC 15948:2004 (PNG specification), section 5.2
+        assert raw[:8] == b"\x89PNG\r\n\x1a\n"
+        with Image.open(io.BytesIO(raw)) as im:
+            im.load()                                    # full decode, not just the header
+            assert im.size[0] >= 600 and im.size[1] >= 150
+            px = np.asarray(im.convert("L"), dtype=float)
+            assert px.std() > 5.0, "figure is not blank"
+
+
+def test_report_content_matches_results(project, report_html):
+    rig = load_rig(project / "rig.toml")
+    assert rig.sha256 in report_html                       # rig hash in the provenance
+    assert CAUTION_TEXT.strip().splitlines()[0] in report_html
+    from arrayplan import __version__
+    assert f"arrayplan {__version__}" in report_html
+    for sidecar in ("plan/weights.json", "filters/filters.json", "meas/irset/irset.json", "verify/verify.json"):
+        written = json.loads((project / sidecar).read_text())["provenance"]["written_utc"]
+        assert written in report_html, sidecar
+    doc = json.loads((project / "verify" / "verify.json").read_text())
+    assert report_html.count(">PASS<") == sum(doc["passed"])
+    assert report_html.count(">FAIL<") == len(doc["passed"]) - sum(doc["passed"])
+    for section in ("Plan: plan", "Filters: filters", "Impulse responses: meas/irset", "Verification: verify"):
+        assert section in report_html
+
+
+def _report_figures(project):
+    res = find_results(project)
+    figs = []
+    with report_style():
+        for fp in res.plans:
+            figs += plan_figures(fp)
+        for ff in res.filters:
+            figs += filter_figures(ff)
+        for fi in res.irsets:
+            figs += irset_figures(fi)
+        for fv in res.verifications:
+            figs += verification_figures(fv)
+    return figs
+
+
+UNIT = re.compile(r"\(([^()]+)\)\s*$")
+# Perceptually uniform maps: S. van der Walt & N. Smith, "A better default colormap for matplotlib",
+# SciPy 2015 (viridis, magma, inferno, plasma); J. R. Nuñez et al., "Optimizing colormaps with
+# consideration for color vision deficiency", PLoS ONE 13(7), 2018 (cividis).
+UNIFORM = ("viridis", "cividis", "magma", "inferno", "plasma")
+
+
+def test_every_figure_axis_is_labelled_with_a_unit(project):
+    figs = _report_figures(project)
+    assert len(figs) >= 8
+    for rf in figs:
+        for ax in rf.figure.axes:
+            if not ax.get_visible():
+                continue
+            if hasattr(ax, "_colorbar"):
+                cb = ax._colorbar
+                label = cb.ax.get_ylabel() if cb.orientation == "vertical" else cb.ax.get_xlabel()
+                assert UNIT.search(label), f"colour bar without unit in {rf.caption[:50]!r}: {label!r}"
+                continue
+            for label in (ax.get_xlabel(), ax.get_ylabel()):
+                assert UNIT.search(label), f"axis label without unit in {rf.caption[:50]!r}: {label!r}"
+
+
+def test_figures_are_readable_on_a4_and_use_uniform_colour_maps(project):
+    # A4 is 210 mm wide; with 15 mm margins the text width is 180 mm = 7.09 in (ISO 216).
+    for rf in _report_figures(project):
+        fig = rf.figure
+        width_in = fig.get_size_inches()[0]
+        assert width_in <= 7.09 + 1e-9
+        fig.canvas.draw()                     # lay out so every text has its final size
+        for t in fig.findobj(Text):
+            if t.get_visible() and t.get_text().strip():
+                assert t.get_fontsize() >= MIN_FONT_PT, (rf.caption[:40], t.get_text(), t.get_fontsize())
+        for artist in fig.findobj(lambda a: hasattr(a, "get_cmap") and hasattr(a, "get_array")):
+            if artist.get_array() is None:
+                continue
+            assert artist.get_cmap().name.startswith(UNIFORM), (rf.caption[:40], artist.get_cmap().name)
+
+
+def test_read_plan_keeps_the_sum_rule_of_the_green_function(project):
+    # Sum rule ||G||_F^2 = sum s_j^2 (G. H. Golub & C. F. Van Loan, Matrix Computations, 4th ed., 2013,
+    # section 2.4) with G = exp(-jkr)/(4 pi r) computed here with numpy, outside arrayplan's kernel.
+    plan = read_plan(project / "plan")
+    rig = load_rig(project / "rig.toml")
+    r = np.linalg.norm(rig.mics.positions[:, None, :] - rig.speakers.positions[None, :, :], axis=2)
+    for f, hz in enumerate(plan.channels.axis.hz):
+        k = 2 * np.pi * hz / 343.0
+        g = np.exp(-1j * k * r) / (4 * np.pi * r)
+        assert np.sum(plan.channels.singular_values[f] ** 2) == pytest.approx(np.sum(np.abs(g) ** 2), rel=1e-9)
+
+
+def test_a_result_that_cannot_be_read_is_listed_not_fatal(project, tmp_path):
+    copy = tmp_path / "proj"
+    shutil.copytree(project, copy)
+    side = copy / "plan" / "weights.json"
+    doc = json.loads(side.read_text())
+    del doc["speaker_positions_m"]                        # as written by an older version
+    doc["rig"]["source"] = "gone.toml"
+    side.write_text(json.dumps(doc))
+    html = build_report(copy)
+    assert "Results that could not be read" in html and "does not store element positions" in html
+    assert "Verification: verify" in html
+
+
+@pytest.mark.parametrize("argv, needle", [
+    (["report", "{missing}"], "not a folder"),
+    (["report", "{empty}"], "no arrayplan results found"),
+    (["report", "{project}", "--out", "{project}/report.pdf"], "--out"),
+    (["report", "{project}", "--rig", "{empty}/none.toml"], "none.toml"),
+])
+def test_bad_input_one_line_exit_2_nothing_written(project, tmp_path, capsys, argv, needle):
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    names = {"missing": str(tmp_path / "missing"), "empty": str(empty), "project": str(tmp_path / "p")}
+    shutil.copytree(project, names["project"])
+    (Path(names["project"]) / "report.html").unlink(missing_ok=True)
+    before = sorted(p.name for p in Path(names["project"]).iterdir())
+    code = main([a.format(**names) for a in argv])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert len(err.strip().splitlines()) == 1 and needle in err and "Traceback" not in err
+    assert sorted(p.name for p in Path(names["project"]).iterdir()) == before
+    assert list(empty.iterdir()) == []
+
+
+CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                  "--disable-background-networking", "--disable-component-update", "--disable-sync",
+                  "--hide-scrollbars"]
+
+
+def _chromium() -> str:
+    exe = shutil.which("chromium") or shutil.which("chromium-browser")
+    if exe is None:
+        reason = "Chromium is not installed (Debian package 'chromium'; bash .ci/run installs it)"
+        if os.environ.get("CI"):
+            pytest.fail(f"report rendering test cannot run in CI: {reason}")
+        pytest.skip(f"report rendering test skipped: {reason}")
+    return exe
+
+
+def test_report_renders_in_headless_chromium(project, report_html, tmp_path):
+    exe = _chromium()
+    shot, pdf = tmp_path / "page.png", tmp_path / "page.pdf"
+    url = (project / "report.html").resolve().as_uri()
+    common = [exe, *CHROMIUM_FLAGS, f"--user-data-dir={tmp_path / 'profile'}"]
+    subprocess.run([*common, "--window-size=1000,6000", f"--screenshot={shot}", url], check=True,
+                   capture_output=True, timeout=180)
+    with Image.open(shot) as im:
+        assert im.size == (1000, 6000)
+        px = np.asarray(im.convert("RGB"), dtype=float)
+    assert px.std() > 20.0                                   # text, tables and figures, not a blank page
+    # viridis/cividis figures put strongly coloured pixels on the page (plain text and tables are grey)
+    chroma = px.max(axis=2) - px.min(axis=2)
+    assert np.mean(chroma > 80) > 0.01
+    subprocess.run([*common, "--no-pdf-header-footer", f"--print-to-pdf={pdf}", url], check=True,
+                   capture_output=True, timeout=180)
+    data = pdf.read_bytes()
+    assert data[:5] == b"%PDF-"
+    pages = len(re.findall(rb"/Type\s*/Page[^s]", data))
+    assert pages >= 3
+    # A4 in PDF points: 595 x 842 (ISO 216: 210 mm x 297 mm at 72 pt per inch)
+    box = re.search(rb"/MediaBox\s*\[\s*0\s+0\s+([\d.]+)\s+([\d.]+)\s*\]", data)
+    assert box and abs(float(box.group(1)) - 595.3) < 1.5 and abs(float(box.group(2)) - 841.9) < 1.5
