@@ -233,7 +233,7 @@ def _coincident(a: ElementSet, b: ElementSet, source: str, label: str, same: boo
     if same:
         close = close[close[:, 0] < close[:, 1]]
     return [InputError(f"{a.names[i]!r} and {b.names[j]!r} are at the same position "
-                       f"{list(np.round(a.positions[i], 6))}", source=source, field=label,
+                       f"{[float(x) for x in np.round(a.positions[i], 6)]}", source=source, field=label,
                        fix="move one of them; elements must be at least 1 µm apart") for i, j in close]
 
 

@@ -1,0 +1,443 @@
+"""Commented starter rig files for layouts practitioners build.
+
+:func:`starter_rig_text` writes a rig file (TOML) for one of :data:`LAYOUTS`
+with every key commented (what it is, its unit) and the next commands to run
+on it; :func:`write_starter_rig` writes it atomically and refuses to replace
+an existing file unless asked.  Every starter loads with
+:func:`arrayplan.rig.load_rig` and plans with
+:func:`arrayplan.planning.plan_rig`.
+
+By default the top planned frequency is the highest the layout samples
+without grating lobes (element spacing d <= lambda / 2, rounded down to two
+significant digits), and the band spans three octaves below it.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable
+
+from ._version import __version__
+from .errors import InputError
+from .fileio import write_text_atomic
+from .medium import speed_of_sound_air
+
+__all__ = ["Layout", "LAYOUTS", "starter_rig_text", "write_starter_rig", "parse_counts"]
+
+_COMMENT_COLUMN = 34
+
+
+# ------------------------------------------------------------ TOML writing
+
+def _num(x: float) -> str:
+    """A float as TOML (always with a decimal point)."""
+    text = f"{round(float(x), 9):.10g}"
+    return text if any(ch in text for ch in ".en") else text + ".0"
+
+
+def _value(v: Any) -> str:
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float):
+        return _num(v)
+    if isinstance(v, str):
+        return json.dumps(v, ensure_ascii=False)
+    if isinstance(v, (list, tuple)):
+        return "[" + ", ".join(_value(x) for x in v) + "]"
+    if isinstance(v, dict):
+        return "{ " + ", ".join(f"{k} = {_value(x)}" for k, x in v.items()) + " }"
+    raise TypeError(f"cannot write {type(v).__name__} to TOML")
+
+
+def _kv(key: str, value: Any, comment: str) -> str:
+    return f"{key} = {_value(value)}".ljust(_COMMENT_COLUMN - 1) + f" # {comment}"
+
+
+def _table(name: str, comment: str, array: bool = False) -> str:
+    head = f"[[{name}]]" if array else f"[{name}]"
+    return head.ljust(_COMMENT_COLUMN - 1) + f" # {comment}"
+
+
+# ------------------------------------------------------------ options
+
+@dataclass(frozen=True)
+class Layout:
+    """A starter layout.
+
+    Attributes
+    ----------
+    name : str
+        What to type after ``arrayplan new-rig``.
+    summary : str
+        One line for ``--list``.
+    defaults : dict
+        The options the layout takes, with their defaults (None: computed).
+    body : callable
+        ``body(options, speed_of_sound) -> (lines, spacings_m)``: the
+        speaker/microphone tables and the element spacings that set the
+        default top frequency.
+    """
+
+    name: str
+    summary: str
+    defaults: dict[str, Any]
+    body: Callable[[dict[str, Any], float], tuple[list[str], list[float]]]
+
+
+def parse_counts(value: Any, option: str) -> tuple[int, int]:
+    """Grid counts from ``"4x6"``, ``6`` (a square) or a pair of whole numbers."""
+    if isinstance(value, str):
+        parts = value.lower().replace("×", "x").split("x")
+        try:
+            nums = [int(p) for p in parts]
+        except ValueError:
+            raise InputError(f"expected counts like 4x4, got {value!r}", source=option) from None
+        value = nums * 2 if len(nums) == 1 else nums
+    elif isinstance(value, int) and not isinstance(value, bool):
+        value = (value, value)
+    if not (isinstance(value, (list, tuple)) and len(value) == 2 and all(isinstance(v, int) for v in value)):
+        raise InputError(f"expected counts like 4x4, got {value!r}", source=option)
+    if min(value) < 1 or value[0] * value[1] < 2:
+        raise InputError(f"a grid needs at least 2 elements, got {value[0]}x{value[1]}", source=option)
+    return int(value[0]), int(value[1])
+
+
+def _count(value: Any, option: str, minimum: int = 2) -> int:
+    if isinstance(value, bool) or not isinstance(value, int) or value < minimum:
+        raise InputError(f"expected a whole number >= {minimum}, got {value!r}", source=option)
+    return value
+
+
+def _positive(value: Any, option: str, unit: str) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value <= 0:
+        raise InputError(f"expected a positive number of {unit}, got {value!r}", source=option)
+    return float(value)
+
+
+def _round_down(x: float) -> float:
+    """`x` rounded down to two significant digits (4288 -> 4200)."""
+    step = 10.0 ** (math.floor(math.log10(x)) - 1)
+    return math.floor(x / step + 1e-9) * step
+
+
+def _driver_radius(spacing: float, largest: float) -> float:
+    """A piston radius that fits the spacing: 40 % of it, at most `largest` metres."""
+    return round(min(largest, 0.4 * spacing), 4)
+
+
+# ------------------------------------------------------------ layouts
+
+def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+    n_s, n_m = _count(o["speakers"], "--speakers"), _count(o["mics"], "--mics")
+    d_s = _positive(o["spacing"], "--spacing", "metres")
+    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "--mic-spacing", "metres")
+    dist = _positive(o["distance"], "--distance", "metres")
+    a = _driver_radius(d_s, 0.015)
+    return [
+        _table("speakers", "the transmitting line: small drivers on a bar", array=True),
+        _kv("shape", "line", "a straight line of equally spaced elements"),
+        _kv("name", "T", f"element names T1..T{n_s}"),
+        _kv("count", n_s, "number of drivers"),
+        _kv("spacing", d_s, "centre-to-centre distance, m"),
+        _kv("center", [0.0, 0.0, 1.2], "middle of the line (x, y, z), m"),
+        _kv("direction", [1.0, 0.0, 0.0], "the line runs along x"),
+        _kv("directivity", {"type": "piston", "radius": a, "axis": [0.0, 1.0, 0.0]},
+            "baffled piston, radius in m, facing +y"),
+        _kv("first_channel", 1, "interface output of T1 (1-based); T2 the next"),
+        "",
+        _table("microphones", "the receiving line, facing the drivers", array=True),
+        _kv("shape", "line", "a straight line of equally spaced elements"),
+        _kv("name", "R", f"element names R1..R{n_m}"),
+        _kv("count", n_m, "number of microphones"),
+        _kv("spacing", d_m, "centre-to-centre distance, m"),
+        _kv("center", [0.0, dist, 1.2], "middle of the line, m (distance along y)"),
+        _kv("direction", [1.0, 0.0, 0.0], "parallel to the drivers"),
+        _kv("directivity", {"type": "cardioid", "axis": [0.0, -1.0, 0.0]}, "cardioid, facing the drivers (-y)"),
+        _kv("first_channel", 1, "interface input of R1 (1-based)"),
+    ], [d_s, d_m]
+
+
+def _facing_grids(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+    (su, sv), (mu, mv) = parse_counts(o["speakers"], "--speakers"), parse_counts(o["mics"], "--mics")
+    d_s = _positive(o["spacing"], "--spacing", "metres")
+    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "--mic-spacing", "metres")
+    dist = _positive(o["distance"], "--distance", "metres")
+    a = _driver_radius(d_s, 0.015)
+    return [
+        _table("speakers", "a flat panel of drivers", array=True),
+        _kv("shape", "grid", "a rectangular grid in one plane"),
+        _kv("name", "P", f"element names P1..P{su * sv}, row by row"),
+        _kv("counts", [su, sv], "elements along the panel's width and height"),
+        _kv("spacing", d_s, "centre-to-centre distance both ways, m"),
+        _kv("center", [0.0, 0.0, 1.2], "middle of the panel (x, y, z), m"),
+        _kv("normal", [0.0, 1.0, 0.0], "the panel faces +y (rows run along x)"),
+        _kv("directivity", {"type": "piston", "radius": a, "axis": [0.0, 1.0, 0.0]},
+            "baffled piston, radius in m, facing +y"),
+        _kv("first_channel", 1, "interface output of P1 (1-based)"),
+        "",
+        _table("microphones", "a flat panel of microphones, facing the drivers", array=True),
+        _kv("shape", "grid", "a rectangular grid in one plane"),
+        _kv("name", "Q", f"element names Q1..Q{mu * mv}, row by row"),
+        _kv("counts", [mu, mv], "elements along the panel's width and height"),
+        _kv("spacing", d_m, "centre-to-centre distance both ways, m"),
+        _kv("center", [0.0, dist, 1.2], "middle of the panel, m (distance along y)"),
+        _kv("normal", [0.0, 1.0, 0.0], "parallel to the drivers' panel"),
+        _kv("directivity", "omni", "pressure microphones, equal in every direction"),
+        _kv("first_channel", 1, "interface input of Q1 (1-based)"),
+    ], [d_s, d_m]
+
+
+def _ring_zone(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+    n_s = _count(o["speakers"], "--speakers", minimum=3)
+    mu, mv = parse_counts(o["mics"], "--mics")
+    radius = _positive(o["radius"], "--radius", "metres")
+    d_m = _positive(o["mic_spacing"], "--mic-spacing", "metres")
+    if max(mu - 1, mv - 1) * d_m * math.sqrt(2) / 2 >= 0.9 * radius:
+        raise InputError(f"a {mu}x{mv} grid at {d_m:g} m does not fit well inside a ring of radius {radius:g} m",
+                         source="--mic-spacing", fix="use fewer microphones, closer spacing or a larger --radius")
+    chord = 2.0 * radius * math.sin(math.pi / n_s)
+    a = _driver_radius(chord, 0.05)
+    return [
+        _table("speakers", "a ring of loudspeakers around the listening area", array=True),
+        _kv("shape", "circle", "equally spaced on a full circle"),
+        _kv("name", "L", f"element names L1..L{n_s}, anticlockwise from +x"),
+        _kv("count", n_s, "number of loudspeakers"),
+        _kv("radius", radius, "circle radius, m"),
+        _kv("center", [0.0, 0.0, 1.2], "centre of the ring (ear height), m"),
+        _kv("normal", [0.0, 0.0, 1.0], "the ring lies in a horizontal plane"),
+        _kv("directivity", {"type": "piston", "radius": a, "axis": "inward"},
+            "baffled piston, radius in m, each facing the centre"),
+        _kv("first_channel", 1, "interface output of L1 (1-based)"),
+        "",
+        _table("microphones", "the listening area, sampled by a grid of microphones", array=True),
+        _kv("shape", "grid", "a rectangular grid in one plane"),
+        _kv("name", "Z", f"element names Z1..Z{mu * mv}, row by row"),
+        _kv("counts", [mu, mv], "microphones along x and along y"),
+        _kv("spacing", d_m, "centre-to-centre distance both ways, m"),
+        _kv("center", [0.0, 0.0, 1.2], "middle of the listening area, m"),
+        _kv("normal", [0.0, 0.0, 1.0], "a horizontal grid at ear height"),
+        _kv("directivity", "omni", "pressure microphones, equal in every direction"),
+        _kv("first_channel", 1, "interface input of Z1 (1-based)"),
+    ], [chord, d_m]
+
+
+def _two_zones(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+    n_s = _count(o["speakers"], "--speakers")
+    mu, mv = parse_counts(o["mics"], "--mics")
+    d_s = _positive(o["spacing"], "--spacing", "metres")
+    d_m = _positive(o["mic_spacing"], "--mic-spacing", "metres")
+    dist = _positive(o["distance"], "--distance", "metres")
+    gap = _positive(o["zone_separation"], "--zone-separation", "metres")
+    if gap <= (mu - 1) * d_m:
+        raise InputError(f"zones {gap:g} m apart overlap: each is {(mu - 1) * d_m:g} m wide",
+                         source="--zone-separation", fix="separate the zones further or use fewer microphones")
+    a = _driver_radius(d_s, 0.04)
+    lines = [
+        _table("speakers", "a line array in front of both zones", array=True),
+        _kv("shape", "line", "a straight line of equally spaced elements"),
+        _kv("name", "S", f"element names S1..S{n_s}"),
+        _kv("count", n_s, "number of loudspeakers"),
+        _kv("spacing", d_s, "centre-to-centre distance, m"),
+        _kv("center", [0.0, 0.0, 1.2], "middle of the line (x, y, z), m"),
+        _kv("direction", [1.0, 0.0, 0.0], "the line runs along x"),
+        _kv("directivity", {"type": "piston", "radius": a, "axis": [0.0, 1.0, 0.0]},
+            "baffled piston, radius in m, facing the zones (+y)"),
+        _kv("first_channel", 1, "interface output of S1 (1-based)"),
+    ]
+    for zone, x, first in (("A", -gap / 2, 1), ("B", gap / 2, 1 + mu * mv)):
+        lines += [
+            "",
+            _table("microphones", f"listening zone {zone}", array=True),
+            _kv("shape", "grid", "a rectangular grid in one plane"),
+            _kv("name", zone, f"element names {zone}1..{zone}{mu * mv}, row by row"),
+            _kv("counts", [mu, mv], "microphones along x and along y"),
+            _kv("spacing", d_m, "centre-to-centre distance both ways, m"),
+            _kv("center", [x, dist, 1.2], f"middle of zone {zone}, m"),
+            _kv("normal", [0.0, 0.0, 1.0], "a horizontal grid at ear height"),
+            _kv("directivity", "omni", "pressure microphones, equal in every direction"),
+            _kv("first_channel", first, f"interface input of {zone}1 (1-based)"),
+        ]
+    return lines, [d_s, d_m]
+
+
+def _bench(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+    n_s, n_m = _count(o["speakers"], "--speakers", minimum=1), _count(o["mics"], "--mics", minimum=1)
+    d = _positive(o["spacing"], "--spacing", "metres")
+    dist = _positive(o["distance"], "--distance", "metres")
+    a = _driver_radius(d, 0.015)
+    lines: list[str] = []
+    for label, n, y, prefix, what in (("speakers", n_s, 0.0, "D", "driver"), ("microphones", n_m, dist, "K",
+                                                                                 "microphone")):
+        for i in range(n):
+            x = (i - (n - 1) / 2) * d
+            lines += [
+                _table(label, f"one {what}; copy this block for another", array=True),
+                _kv("name", f"{prefix}{i + 1}", "a unique name"),
+                _kv("position", [round(x, 6), y, 0.1], "x, y, z in m (z: height above the bench)"),
+            ]
+            if label == "speakers":
+                lines.append(_kv("directivity", {"type": "piston", "radius": a, "axis": [0.0, 1.0, 0.0]},
+                                 "baffled piston, radius in m, facing +y"))
+            else:
+                lines.append(_kv("directivity", "omni", "pressure microphone"))
+            lines += [_kv("channel", i + 1, f"interface {'output' if label == 'speakers' else 'input'} (1-based)"),
+                      ""]
+    lines += [
+        _table("hardware", "the audio interface (for measurement)"),
+        "# device = \"USB\"                 # interface by index or part of its name; see 'arrayplan devices'",
+        _kv("sample_rate_hz", 48000.0, "sample rate, Hz"),
+        _kv("reference", {"output_channel": n_s + 1, "input_channel": n_m + 1},
+            "loopback cable: output -> input (1-based)"),
+        "# calibration = \"cal.toml\"       # level calibration from 'arrayplan calibrate'",
+    ]
+    return lines, [d]
+
+
+LAYOUTS: dict[str, Layout] = {lay.name: lay for lay in (
+    Layout("facing-lines", "two facing line arrays, drivers to microphones (an in-air data link)",
+           {"speakers": 16, "mics": 16, "spacing": 0.04, "mic_spacing": None, "distance": 1.25}, _facing_lines),
+    Layout("facing-grids", "two facing flat grids, a panel of drivers to a panel of microphones",
+           {"speakers": "8x8", "mics": "8x8", "spacing": 0.04, "mic_spacing": None, "distance": 0.8},
+           _facing_grids),
+    Layout("ring-zone", "a ring of loudspeakers around a grid of microphones (zone reproduction)",
+           {"speakers": 24, "mics": "5x5", "radius": 1.5, "mic_spacing": 0.1}, _ring_zone),
+    Layout("two-zones", "a line array in front of two grids of microphones (two-zone reproduction)",
+           {"speakers": 16, "mics": "3x3", "spacing": 0.1, "mic_spacing": 0.1, "distance": 2.0,
+            "zone_separation": 1.5}, _two_zones),
+    Layout("bench", "a small bench rig: a few drivers and microphones as single points, with [hardware]",
+           {"speakers": 4, "mics": 4, "spacing": 0.05, "distance": 0.4}, _bench),
+)}
+
+#: Options every layout takes (besides its own).
+COMMON_DEFAULTS: dict[str, Any] = {"fmin": None, "fmax": None, "freq_count": 48, "temperature_c": 20.0,
+                                   "speed_of_sound": None, "name": None}
+
+
+def option_flag(option: str) -> str:
+    """The command-line flag of a starter option (``temperature_c`` -> ``--temperature``)."""
+    return "--temperature" if option == "temperature_c" else "--" + option.replace("_", "-")
+
+
+def _resolve_options(layout: str, options: dict[str, Any]) -> tuple[Layout, dict[str, Any]]:
+    if layout not in LAYOUTS:
+        raise InputError(f"unknown layout {layout!r}", source="LAYOUT",
+                         fix=f"choose one of {', '.join(LAYOUTS)} (see 'arrayplan new-rig --list')")
+    lay = LAYOUTS[layout]
+    allowed = dict(COMMON_DEFAULTS, **lay.defaults)
+    given = {k: v for k, v in options.items() if v is not None}
+    unknown = sorted(set(given) - set(allowed))
+    if unknown:
+        raise InputError(f"does not apply to the {layout} layout", source=option_flag(unknown[0]),
+                         fix=f"{layout} takes {', '.join(option_flag(k) for k in allowed)}")
+    return lay, dict(allowed, **given)
+
+
+def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any) -> str:
+    """The commented rig file of `layout` (a key of :data:`LAYOUTS`).
+
+    Parameters
+    ----------
+    layout : str
+        ``"facing-lines"``, ``"facing-grids"``, ``"ring-zone"``, ``"two-zones"`` or ``"bench"``.
+    file_name : str
+        Used in the "next steps" comment.
+    **options
+        The layout's options (see ``LAYOUTS[layout].defaults``): counts
+        (``speakers``, ``mics``; ``"NxM"`` for grids), spacings and
+        distances in m (``spacing``, ``mic_spacing``, ``distance``,
+        ``radius``, ``zone_separation``), and for every layout ``fmin``,
+        ``fmax`` (Hz), ``freq_count``, ``temperature_c`` (°C) or
+        ``speed_of_sound`` (m/s), and ``name``.  None means the default.
+
+    Returns
+    -------
+    str
+        TOML text.
+
+    Raises
+    ------
+    InputError
+        An unknown layout or option, or a value out of range (the source
+        is the command-line flag).
+    """
+    lay, o = _resolve_options(layout, options)
+    temp = o["temperature_c"]
+    if isinstance(temp, bool) or not isinstance(temp, (int, float)) or not -60.0 <= temp <= 60.0:
+        raise InputError(f"expected an air temperature from -60 to 60 °C, got {temp!r}", source="--temperature")
+    if o["speed_of_sound"] is not None:
+        c = _positive(o["speed_of_sound"], "--speed-of-sound", "m/s")
+        medium = [_kv("speed_of_sound", c, "m/s, as measured (or give temperature_c instead)")]
+    else:
+        c = speed_of_sound_air(float(temp))
+        medium = [_kv("temperature_c", float(temp), f"air temperature, °C; sets c = {c:.1f} m/s")]
+    body, spacings = lay.body(o, c)
+    f_alias = c / (2.0 * max(spacings))
+    fmax = _positive(o["fmax"], "--fmax", "Hz") if o["fmax"] is not None else _round_down(f_alias)
+    fmin = _positive(o["fmin"], "--fmin", "Hz") if o["fmin"] is not None else _round_down(fmax / 8.0)
+    if fmin >= fmax:
+        raise InputError(f"must be below the top frequency {fmax:g} Hz, got {fmin:g} Hz", source="--fmin")
+    count = _count(o["freq_count"], "--freq-count", minimum=2)
+    name = o["name"] or layout
+    lay_note = (f"the top frequency {fmax:g} Hz is the highest this spacing samples without grating lobes"
+                if o["fmax"] is None else f"top frequency as asked; spacing allows up to {f_alias:.0f} Hz")
+    head = [
+        f"# Rig file: {lay.summary}.",
+        f"# Written by 'arrayplan new-rig {layout}' (arrayplan {__version__}) as a starting point: edit the",
+        "# positions to match what you build.  Lengths in metres, frequencies in Hz, channels from 1.",
+        "#",
+        "# Next:",
+        f"#   arrayplan check-rig {file_name}             explains any problem before you mount hardware",
+        f"#   arrayplan plan {file_name} --out plan/      channels per frequency: counts, weights, figures",
+        "#",
+        "# Caution: measuring this rig drives its loudspeakers with test signals that can harm hearing",
+        "# and loudspeakers.  Start quiet, protect your hearing near loud rigs, and follow local codes",
+        "# and licensed practice.",
+        "",
+        _table("rig", "what this rig is"),
+        _kv("name", name, "short name, used in output files"),
+        _kv("description", lay.summary, "free text"),
+        "",
+        _table("medium", "the air between the elements"),
+        *medium,
+        _kv("relative_humidity_pct", 50.0, "relative humidity, %"),
+        _kv("air_absorption", False, "true: add ISO 9613-1 air absorption"),
+        "",
+        _table("frequencies", f"planned band; {lay_note}"),
+        _kv("start", fmin, "lowest frequency, Hz"),
+        _kv("stop", fmax, "highest frequency, Hz"),
+        _kv("count", count, "number of frequencies"),
+        _kv("spacing", "log", "\"log\" (equal ratios) or \"linear\""),
+        "",
+    ]
+    tail = [
+        "",
+        _table("planning", "how channels are counted"),
+        _kv("threshold_db", 3.0, "strong: within this many dB of the strongest"),
+        _kv("snr_db", 40.0, "signal-to-noise ratio of the strongest, dB"),
+        _kv("track", False, "true: follow each channel from bin to bin"),
+    ]
+    while body and body[-1] == "":
+        body = body[:-1]
+    return "\n".join(head + body + tail) + "\n"
+
+
+def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = False, **options: Any) -> Path:
+    """Write the starter rig of `layout` to `path` atomically; refuse to replace a file unless `force`.
+
+    Returns the path.  Raises InputError (and writes nothing) on bad options
+    or an existing file.
+    """
+    path = Path(path)
+    if path.exists() and not force:
+        raise InputError("already exists; not replaced", source=str(path),
+                         fix="choose another --out or add --force")
+    if path.is_dir():
+        raise InputError("is a folder", source=str(path), fix="give a file name such as rig.toml")
+    text = starter_rig_text(layout, file_name=path.name, **options)
+    return write_text_atomic(path, text)
