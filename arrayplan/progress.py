@@ -1,34 +1,293 @@
-"""A minimal progress bar on stderr, shown only when stderr is a terminal."""
+"""Progress bars on stderr for long work, shown only on a terminal.
+
+A :class:`ProgressBar` draws one line, redrawn in place with a carriage
+return::
+
+    planning [##########..............]  42%  20/48  0:03 elapsed, 0:04 left
+
+It is shown only when its stream is a terminal, never when the environment
+variable ``CI`` holds a true value (``CI=true``, as CI runners set it), and
+never with ``ARRAYPLAN_PROGRESS=0``; ``ARRAYPLAN_PROGRESS=1`` shows it anyway
+(in a pipe, a log file or CI).  Redraws are rate-limited; the line is
+finished with a newline when the work completes and erased when an exception
+(or Ctrl-C) stops the work inside ``with bar:``.  Lines printed with
+:meth:`ProgressBar.print_above` appear above the bar without garbling it.
+
+The bar is also a plain callable ``bar(done, total)``, the progress
+callback that :func:`arrayplan.planning.plan_rig` and others accept.
+"""
 
 from __future__ import annotations
 
+import os
 import sys
+import threading
 import time
-from typing import TextIO
+from contextlib import contextmanager
+from typing import Callable, Iterator, TextIO
 
-__all__ = ["ProgressBar"]
+__all__ = ["ProgressBar", "progress_wanted", "format_duration", "mini_bar", "ticking",
+           "PROGRESS_ENV", "CI_ENV"]
+
+#: Environment variable that forces the bar on (1) or off (0).
+PROGRESS_ENV = "ARRAYPLAN_PROGRESS"
+#: Environment variable that CI runners set to "true"; a true value hides the bar.
+CI_ENV = "CI"
+
+_TRUE = frozenset({"1", "true", "yes", "on"})
+_FALSE = frozenset({"0", "false", "no", "off"})
+
+
+def progress_wanted(stream: TextIO | None = None) -> bool:
+    """Whether progress should be drawn on `stream` (default stderr).
+
+    ``ARRAYPLAN_PROGRESS`` decides when it is 1/true/yes/on or 0/false/no/off;
+    otherwise a true ``CI`` hides progress, and else it is shown only when
+    `stream` is a terminal.
+    """
+    stream = sys.stderr if stream is None else stream
+    force = os.environ.get(PROGRESS_ENV, "").strip().lower()
+    if force in _TRUE:
+        return True
+    if force in _FALSE:
+        return False
+    if os.environ.get(CI_ENV, "").strip().lower() in _TRUE:
+        return False
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, ValueError, OSError):  # no isatty, or a closed stream
+        return False
+
+
+def format_duration(seconds: float) -> str:
+    """``"0:07"``, ``"12:34"`` or ``"1:02:03"`` for a duration in seconds (rounded down)."""
+    s = max(0, int(seconds))
+    h, rest = divmod(s, 3600)
+    m, s = divmod(rest, 60)
+    return f"{h}:{m:02d}:{s:02d}" if h else f"{m}:{s:02d}"
+
+
+def mini_bar(fraction: float, width: int = 10) -> str:
+    """A bracketed bar of `width` cells filled to `fraction` (clipped to 0..1)."""
+    f = min(1.0, max(0.0, float(fraction)))
+    filled = int(width * f)
+    return "[" + "#" * filled + "." * (width - filled) + "]"
+
+
+def _columns(stream: TextIO) -> int:
+    """Width of the terminal behind `stream`; else $COLUMNS; else 80 (a new pty reports 0)."""
+    try:
+        cols = os.get_terminal_size(stream.fileno()).columns
+        if cols > 0:
+            return max(20, cols)
+    except (AttributeError, ValueError, OSError):
+        pass
+    try:
+        return max(20, int(os.environ.get("COLUMNS", "")))
+    except ValueError:
+        return 80
 
 
 class ProgressBar:
-    """Call with ``(done, total)``; prints a bar on a terminal, nothing in pipes or CI."""
+    """A one-line progress bar: label, bar, percent, count, detail, elapsed and time left.
 
-    def __init__(self, label: str, stream: TextIO | None = None, min_interval_s: float = 0.1) -> None:
+    Parameters
+    ----------
+    label : str
+        Text before the bar (``"planning"``).
+    total : int or float, optional
+        Amount of work; may also be given with each update.
+    stream : text stream, optional
+        Where to draw (default ``sys.stderr``).
+    min_interval_s : float
+        Least time between redraws, s; the first and the final state are
+        always drawn.
+    width : int
+        Cells of the bar.
+    show_count : bool
+        Show ``done/total`` after the percentage.
+    enabled : bool, optional
+        Override the decision of :func:`progress_wanted`.
+    clock : callable, optional
+        Monotonic clock in seconds (default ``time.monotonic``).
+
+    Notes
+    -----
+    Call it as ``bar(done, total)`` (the callback form) or use
+    :meth:`update`; ``done`` may be fractional.  Reaching ``done >= total``
+    draws the final state and ends the line.  Elapsed time counts from
+    construction, or from a first update with ``done == 0``, or from the
+    first update after the bar finished (which starts a new run).  As a
+    context manager it ends the line on normal exit and erases it when an
+    exception (or Ctrl-C) leaves the block.  Updates from another thread are
+    serialised by a lock.
+    """
+
+    def __init__(self, label: str, total: float | None = None, *, stream: TextIO | None = None,
+                 min_interval_s: float = 0.1, width: int = 20, show_count: bool = True,
+                 enabled: bool | None = None, clock: Callable[[], float] = time.monotonic) -> None:
         self.label = label
+        self.total = total
         self.stream = stream if stream is not None else sys.stderr
-        self.enabled = bool(getattr(self.stream, "isatty", lambda: False)())
-        self._last = 0.0
-        self._min = min_interval_s
+        self.enabled = progress_wanted(self.stream) if enabled is None else bool(enabled)
+        self.min_interval_s = float(min_interval_s)
+        self.width = int(width)
+        self.show_count = show_count
+        self.detail = ""
+        self.done: float = 0.0
+        self._clock = clock
+        self._start: float = clock()
+        self._last_draw: float | None = None
+        self._shown = 0          # length of the line now on screen, 0 when none
+        self._finished = False
+        self._lock = threading.RLock()
 
-    def __call__(self, done: int, total: int) -> None:
-        if not self.enabled:
-            return
-        now = time.monotonic()
-        if done < total and now - self._last < self._min:
-            return
-        self._last = now
-        width = 30
-        filled = int(width * done / max(total, 1))
-        self.stream.write(f"\r{self.label} [{'#' * filled}{'.' * (width - filled)}] {done}/{total}")
-        if done >= total:
-            self.stream.write("\n")
+    # -- updating -------------------------------------------------------------------------------
+    def __call__(self, done: float, total: float | None = None) -> None:
+        """Callback form: the same as ``update(done, total)``."""
+        self.update(done, total)
+
+    def update(self, done: float, total: float | None = None, *, label: str | None = None,
+               detail: str | None = None, force: bool = False) -> None:
+        """Set the amount done (and optionally total, label and detail text) and redraw if due."""
+        with self._lock:
+            if total is not None:
+                self.total = total
+            if label is not None:
+                self.label = label
+            if detail is not None:
+                self.detail = detail
+            self.done = done
+            if not self.enabled:
+                return
+            now = self._clock()
+            if self._finished:  # used again after it finished: a new run
+                self._start, self._last_draw, self._finished = now, None, False
+            elif done == 0 and self._last_draw is None:  # "starting now"
+                self._start = now
+            complete = self.total is not None and done >= self.total
+            if complete:
+                self._draw(now)
+                self._end_line()
+                self._finished = True
+                return
+            if force or self._last_draw is None or now - self._last_draw >= self.min_interval_s:
+                self._draw(now)
+
+    def print_above(self, text: str) -> None:
+        """Print a line of text above the bar (or just print it when no bar is shown)."""
+        with self._lock:
+            if self._shown:
+                self.stream.write("\r" + " " * self._shown + "\r")
+                self._shown = 0
+                self.stream.write(text + "\n")
+                self._draw(self._clock())
+            else:
+                self.stream.write(text + "\n")
+            self.stream.flush()
+
+    # -- ending ---------------------------------------------------------------------------------
+    def finish(self) -> None:
+        """Draw the last state and end the line (nothing if no bar is on screen)."""
+        with self._lock:
+            if self.enabled and self._shown and not self._finished:
+                self._draw(self._clock())
+                self._end_line()
+            self._finished = True
+
+    def clear(self) -> None:
+        """Erase the bar's line, leaving the cursor at its start."""
+        with self._lock:
+            if self._shown:
+                self.stream.write("\r" + " " * self._shown + "\r")
+                self.stream.flush()
+                self._shown = 0
+            self._finished = True
+
+    def __enter__(self) -> "ProgressBar":
+        return self
+
+    def __exit__(self, exc_type, exc, tb) -> None:
+        if exc_type is None:
+            self.finish()
+        else:
+            self.clear()
+
+    # -- drawing --------------------------------------------------------------------------------
+    def text(self, now: float | None = None) -> str:
+        """The line as it would be drawn at clock time `now`."""
+        now = self._clock() if now is None else now
+        elapsed = now - self._start
+        parts = [self.label]
+        total = self.total
+        if total:
+            frac = min(1.0, max(0.0, self.done / total))
+            filled = int(self.width * frac)
+            parts.append("[" + "#" * filled + "." * (self.width - filled) + f"] {int(100 * frac):3d}%")
+            if self.show_count:
+                parts.append(f"{_count(self.done)}/{_count(total)}")
+        elif self.show_count:
+            parts.append(_count(self.done))
+        if self.detail:
+            parts.append(self.detail)
+        timing = f"{format_duration(elapsed)} elapsed"
+        if total and 0 < self.done < total and elapsed > 0:
+            timing += f", {format_duration(elapsed * (total - self.done) / self.done)} left"
+        parts.append(timing)
+        return "  ".join(parts)
+
+    def _fitted(self, now: float) -> str:
+        """:meth:`text` cut to the terminal's width, shortening the label first."""
+        room = _columns(self.stream) - 1
+        line = self.text(now)
+        over = len(line) - room
+        if over > 0 and self.label:
+            keep = max(8, len(self.label) - over - 1)
+            if keep < len(self.label):
+                line = self.label[:keep - 1] + "~" + line[len(self.label):]
+        return line[:room]
+
+    def _draw(self, now: float) -> None:
+        line = self._fitted(now)
+        pad = " " * max(0, self._shown - len(line))
+        self.stream.write("\r" + line + pad)
         self.stream.flush()
+        self._shown = len(line)
+        self._last_draw = now
+
+    def _end_line(self) -> None:
+        self.stream.write("\n")
+        self.stream.flush()
+        self._shown = 0
+
+
+def _count(x: float) -> str:
+    return str(int(x)) if float(x).is_integer() else f"{x:.1f}"
+
+
+@contextmanager
+def ticking(callback: Callable[[float], None], interval_s: float = 0.2) -> Iterator[None]:
+    """Call ``callback(elapsed_s)`` every `interval_s` from a helper thread while the block runs.
+
+    For work that blocks without reporting (playing a sweep through the
+    audio interface): the callback sees wall-clock seconds since the block
+    began.  The thread is a daemon, stopped and joined when the block ends,
+    by exception too; an exception in the callback stops the ticks only.
+    """
+    stop = threading.Event()
+    t0 = time.monotonic()
+
+    def run() -> None:
+        while not stop.wait(interval_s):
+            try:
+                callback(time.monotonic() - t0)
+            except Exception:  # progress must never break the work it reports on
+                return
+
+    thread = threading.Thread(target=run, name="arrayplan-progress", daemon=True)
+    thread.start()
+    try:
+        yield
+    finally:
+        stop.set()
+        thread.join(timeout=1.0)
