@@ -33,6 +33,7 @@ from ._args import csv_names as _csv_names
 from ..errors import InputError
 from ..fileio import staged_output_dir, write_text_atomic
 from ..irset import IRSet, write_irset
+from ..progress import ProgressBar
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, impulse_responses,
                                   split_schedule)
 from ..signals.sweeps import SweepRecord
@@ -156,14 +157,11 @@ def _run(args: argparse.Namespace) -> int:
                         f"the response length {ir_len / rate:.3f} s: a long room tail may overlap the distortion "
                         "products (a longer sweep separates them further)")
 
-    def progress(done: int, total: int) -> None:
-        end = "\n" if done == total else ""
-        print(f"\rdeconvolving: speaker {done} of {total}", end=end, file=sys.stderr, flush=True)
-
-    result = impulse_responses(recordings, inverse, linear_lag=rec_info.linear_lag_samples, ir_length=ir_len,
-                               harmonic_offsets=offsets, speaker_names=speakers, mic_names=mics,
-                               min_peak_to_noise_db=args.min_pnr_db, clip_threshold=CLIP_THRESHOLD,
-                               progress=progress if sys.stderr.isatty() else None)
+    with ProgressBar("deconvolving speakers") as bar:
+        result = impulse_responses(recordings, inverse, linear_lag=rec_info.linear_lag_samples, ir_length=ir_len,
+                                   harmonic_offsets=offsets, speaker_names=speakers, mic_names=mics,
+                                   min_peak_to_noise_db=args.min_pnr_db, clip_threshold=CLIP_THRESHOLD,
+                                   progress=bar)
     warnings += result.warnings
 
     def fin(v: float) -> float | None:

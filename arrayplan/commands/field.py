@@ -10,11 +10,12 @@ import numpy as np
 
 from ..channels import decompose_stack
 from ..errors import InputError
-from ..field import channel_field, default_plane
+from ..field import PlaneGrid, channel_field, default_plane
 from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic
 from ..kernels.freefield import FreeFieldKernel
 from ..plots import plot_field
-from ..rig import load_rig
+from ..progress import ProgressBar
+from ..rig import Rig, load_rig
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -29,6 +30,23 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--resolution", type=int, default=161, help="grid points along the first axis")
     p.add_argument("--out", required=True, help="output folder")
     p.set_defaults(run=run)
+
+
+#: Grid points computed between two progress updates.
+POINTS_PER_UPDATE = 100_000
+
+
+def _field_with_progress(rig: Rig, weights: np.ndarray, frequency_hz: float, grid: PlaneGrid) -> np.ndarray:
+    """:func:`channel_field` over `grid`, a block of rows at a time, with a progress bar (rows)."""
+    rows = max(1, POINTS_PER_UPDATE // len(grid.u))
+    n_v = len(grid.v)
+    out = np.empty((n_v, len(grid.u)), dtype=complex)
+    with ProgressBar("field rows") as bar:
+        for start in range(0, n_v, rows):
+            block = PlaneGrid(grid.plane, grid.offset, grid.u, grid.v[start:start + rows])
+            out[start:start + rows] = channel_field(rig, weights, frequency_hz, block)
+            bar(min(start + rows, n_v), n_v)
+    return out
 
 
 def run(args: argparse.Namespace) -> int:
@@ -46,7 +64,7 @@ def run(args: argparse.Namespace) -> int:
                          fix=f"choose 1..{n_chan}")
     j = args.channel - 1
     grid = default_plane(rig, args.plane, args.at, args.resolution)
-    p = channel_field(rig, drive[0, :, j], args.freq, grid)
+    p = _field_with_progress(rig, drive[0, :, j], args.freq, grid)
     level = 20 * np.log10(s[0, j] / s[0, 0]) if s[0, 0] > 0 else float("nan")
     stem = f"field-ch{args.channel}-{args.freq:g}Hz-{args.plane}"
     fig = plot_field(rig, grid, p, f"Channel {args.channel} at {args.freq:g} Hz ({abs(level):.1f} dB below the strongest)\n"

@@ -41,9 +41,14 @@ def run(args: argparse.Namespace) -> int:
     if not args.min_level_db <= 0:
         raise InputError(f"must be 0 dB or below, got {args.min_level_db:g}", source="--min-level-db")
     validate_request(rig, args.rate, args.taps, tuple(args.band))
-    filters = design_filters(rig, args.rate, args.taps, tuple(args.band), min_level_db=args.min_level_db)
-    check = None if args.no_check else check_filters(rig, filters, limit_db=args.crosstalk_limit_db,
-                                                     progress=ProgressBar("checking"))
+    with ProgressBar("filter plan") as plan_bar, \
+            ProgressBar("filter taps") as taps_bar:
+        filters = design_filters(rig, args.rate, args.taps, tuple(args.band), min_level_db=args.min_level_db,
+                                 plan_progress=plan_bar, taps_progress=taps_bar)
+    check = None
+    if not args.no_check:
+        with ProgressBar("checking crosstalk") as check_bar:
+            check = check_filters(rig, filters, limit_db=args.crosstalk_limit_db, progress=check_bar)
     files = write_filters(rig, filters, args.out, check)
     fs = filters.sample_rate_hz
     print(f"{rig.name}: {len(filters.kept)} channels with filters, {filters.taps} taps at {fs:g} Hz, "

@@ -121,9 +121,10 @@ def run(args: argparse.Namespace) -> int:
                              f"{kernel.sample_rate_hz / 2:g} Hz", source="--freq", fix="plan at lower frequencies")
     if args.chunk_size is not None and args.chunk_size < 1:
         raise InputError(f"must be at least 1, got {args.chunk_size}", source="--chunk-size")
-    plan = plan_rig(rig, axis, kernel=kernel, threshold_db=_checked(args.threshold_db, "--threshold-db"),
-                    snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,
-                    progress=ProgressBar("planning"))
+    with ProgressBar("planning") as bar:
+        plan = plan_rig(rig, axis, kernel=kernel, threshold_db=_checked(args.threshold_db, "--threshold-db"),
+                        snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,
+                        progress=bar)
     files = write_plan(plan, args.out, figures=not args.no_figures)
     for line in summary_lines(plan):
         print(line)

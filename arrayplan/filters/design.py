@@ -26,6 +26,7 @@ time-domain check (:mod:`arrayplan.filters.check`), not predicted here.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 from scipy.signal.windows import tukey
@@ -179,19 +180,35 @@ def _group_delay_samples(w: np.ndarray, bin_hz: float, sample_rate_hz: float) ->
 
 
 def _taps(weights: np.ndarray, window: np.ndarray, design_idx: np.ndarray, taps: int, delay: int,
-          sample_rate_hz: float) -> np.ndarray:
-    """(taps, n_elem, n_chan) real taps from weights on the design bins."""
+          sample_rate_hz: float, progress: Callable[[int, int], None] | None = None,
+          done_before: int = 0, total: int | None = None) -> np.ndarray:
+    """(taps, n_elem, n_chan) real taps from weights on the design bins, one channel at a time.
+
+    `progress(done_before + j + 1, total)` follows each channel j (and
+    `progress(0, total)` comes first when `done_before` is 0).
+    """
     n_rfft = taps // 2 + 1
     hz = np.fft.rfftfreq(taps, 1.0 / sample_rate_hz)
-    spec = np.zeros((n_rfft,) + weights.shape[1:], dtype=complex)
     phase = np.exp(-2j * np.pi * hz[design_idx] * delay / sample_rate_hz)
-    spec[design_idx] = weights * (window[design_idx] * phase)[:, None, None]
-    h = np.fft.irfft(spec, n=taps, axis=0)
-    return h * tukey(taps, TUKEY_ALPHA)[:, None, None]
+    scale = (window[design_idx] * phase)[:, None]
+    taper = tukey(taps, TUKEY_ALPHA)[:, None]
+    n_chan = weights.shape[2]
+    if progress is not None and done_before == 0:
+        progress(0, n_chan if total is None else total)
+    out = np.empty((taps,) + weights.shape[1:])
+    spec = np.zeros((n_rfft, weights.shape[1]), dtype=complex)
+    for j in range(n_chan):
+        spec[design_idx] = weights[:, :, j] * scale
+        out[:, :, j] = np.fft.irfft(spec, n=taps, axis=0) * taper
+        if progress is not None:
+            progress(done_before + j + 1, n_chan if total is None else total)
+    return out
 
 
 def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[float, float], *,
-                   min_level_db: float = -30.0, chunk_size: int = 64) -> FilterSet:
+                   min_level_db: float = -30.0, chunk_size: int = 64,
+                   plan_progress: Callable[[int, int], None] | None = None,
+                   taps_progress: Callable[[int, int], None] | None = None) -> FilterSet:
     """Design drive and combine FIR filters for the channels of `rig` (see module docstring).
 
     Parameters
@@ -206,6 +223,13 @@ def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[fl
     min_level_db : float
         Channels whose power coupling at the band centre is more than this
         many dB below the strongest are skipped (listed in ``skipped``).
+    chunk_size : int
+        Design bins planned per batch.
+    plan_progress : callable, optional
+        ``plan_progress(done, total)`` in design bins, after each batch of the plan.
+    taps_progress : callable, optional
+        ``taps_progress(done, total)`` in filter sets (drive then combine, one per
+        kept channel each), after each.
 
     Returns
     -------
@@ -218,7 +242,7 @@ def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[fl
     window = band_window(hz_all, (lo, hi), fs)
     design_idx = np.nonzero(window > 0)[0]
     axis = FrequencyAxis(hz_all[design_idx])
-    plan = decompose(FreeFieldKernel(rig), axis, chunk_size=chunk_size, track=True)
+    plan = decompose(FreeFieldKernel(rig), axis, chunk_size=chunk_size, track=True, progress=plan_progress)
     centre = float(np.sqrt(lo * hi))
     in_band = (axis.hz >= lo) & (axis.hz <= hi)
     band_idx = np.nonzero(in_band)[0]
@@ -235,7 +259,8 @@ def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[fl
     a_drive = _group_delay_samples(drive_w[in_band], bin_hz, fs)
     a_combine = _group_delay_samples(combine_w[in_band], bin_hz, fs)
     bulk = taps // 2
-    drive = _taps(drive_w, window, design_idx, taps, bulk - a_drive, fs)
-    combine = _taps(combine_w, window, design_idx, taps, bulk - a_combine, fs)
+    n_sets = 2 * len(kept)
+    drive = _taps(drive_w, window, design_idx, taps, bulk - a_drive, fs, taps_progress, 0, n_sets)
+    combine = _taps(combine_w, window, design_idx, taps, bulk - a_combine, fs, taps_progress, len(kept), n_sets)
     return FilterSet(fs, taps, (lo, hi), bulk, a_drive, a_combine, drive, combine, kept, skipped, plan,
                      level, float(axis.hz[ci]))
