@@ -12,13 +12,18 @@ import argparse
 import math
 import sys
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from ..errors import InputError
+from ..progress import ProgressBar, mini_bar
 
-__all__ = ["register", "run", "confirm_before_playing", "add_level_options", "print_level_estimate"]
+if TYPE_CHECKING:
+    from ..hardware.measure import TakeProgress
+
+__all__ = ["register", "run", "confirm_before_playing", "add_level_options", "print_level_estimate",
+           "show_take_progress"]
 
 
 def add_level_options(p: argparse.ArgumentParser) -> None:
@@ -128,6 +133,27 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.set_defaults(run=run)
 
 
+def show_take_progress(bar: ProgressBar, p: "TakeProgress") -> None:
+    """Draw a :class:`~arrayplan.hardware.measure.TakeProgress` on `bar` (total: the takes to measure).
+
+    Takes kept from an earlier run leave the count; the bar moves with the
+    time played inside each take.
+    """
+    if p.stage == "kept":
+        bar.total = max(0, (bar.total or 0) - 1)
+        return
+    kept_before = p.n_takes - (bar.total or 0)  # the loop runs in order: every kept take so far came before
+    measured_before = p.take - kept_before
+    if p.stage == "saved":
+        bar.update(measured_before + 1, label=f"take {p.take + 1}/{p.n_takes} {p.speaker}", detail="saved")
+        return
+    frac = p.played_s / p.signal_s if p.signal_s > 0 else 1.0
+    detail = (f"{mini_bar(frac, 8)} {p.played_s:.1f}/{p.signal_s:.1f} s" if p.stage == "playing"
+              else p.stage)
+    bar.update(measured_before + min(frac, 0.999), label=f"take {p.take + 1}/{p.n_takes} {p.speaker}",
+               detail=detail)
+
+
 def _parse_coefficients(text: str) -> tuple[float, ...]:
     if not text.strip():
         return ()
@@ -189,18 +215,20 @@ def run(args: argparse.Namespace) -> int:
         confirm_before_playing(args.yes, f"{len(wiring.speaker_names)} sweeps through {link.description}")
 
     tty = sys.stderr.isatty()
+    bar = ProgressBar("measuring", total=len(wiring.speaker_names), show_count=False, width=10)
 
     def event(text: str) -> None:
         if tty:
-            print(text, file=sys.stderr)
+            bar.print_above(text)
 
     def warn(text: str) -> None:
-        print(f"warning: {text}", file=sys.stderr)
+        bar.print_above(f"warning: {text}")
 
     try:
-        summary = measure(link, wiring, args.out, settings, calibration=calibration,
-                          latency_samples=args.latency_samples, redo_marked=args.redo_marked,
-                          on_event=event, on_warning=warn)
+        with bar:
+            summary = measure(link, wiring, args.out, settings, calibration=calibration,
+                              latency_samples=args.latency_samples, redo_marked=args.redo_marked,
+                              on_event=event, on_warning=warn, on_progress=lambda p: show_take_progress(bar, p))
     except KeyboardInterrupt:
         from ..hardware.measure import completed_takes
 

@@ -32,7 +32,7 @@ import math
 import os
 import shutil
 import tempfile
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable, Sequence
 
@@ -40,6 +40,7 @@ import numpy as np
 
 from ..errors import DeviceError, InputError
 from ..fileio import provenance, write_json_atomic
+from ..progress import ticking
 from ..irset import IRSet, write_irset
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, clipped_sample_counts,
                                   deconvolve, harmonic_levels_db, peak_to_noise_db)
@@ -47,7 +48,7 @@ from ..signals.sweeps import SweepSettings, SweepSignal, make_sweep
 from .calibration import CalibrationRecord, calibration_factors
 from .duplex import AudioLink, DuplexResult
 
-__all__ = ["MeasurementSettings", "RigWiring", "TakeResult", "MeasurementSummary", "measure",
+__all__ = ["MeasurementSettings", "RigWiring", "TakeResult", "TakeProgress", "MeasurementSummary", "measure",
            "estimate_latency", "take_folder_name", "completed_takes", "SESSION_FILE",
            "NOT_DETECTED_DB", "REFERENCE_MIN_DB"]
 
@@ -230,6 +231,35 @@ class TakeResult:
     details: dict[str, Any] = field(default_factory=dict)
 
 
+@dataclass(frozen=True)
+class TakeProgress:
+    """Where the take loop is, for progress displays (see ``on_progress`` of :func:`measure`).
+
+    Attributes
+    ----------
+    take : int
+        0-based index of the speaker (and take).
+    n_takes : int
+    speaker : str
+    stage : str
+        ``"kept"`` (finished by an earlier run, not measured again),
+        ``"playing"``, ``"analysing"`` or ``"saved"``.
+    played_s : float
+        Seconds of the take's signal played so far: wall-clock time since
+        the play call began, at most `signal_s` (the stream's start-up is
+        not subtracted).
+    signal_s : float
+        Length of the take's signal (lead-in, sweeps, tail), s.
+    """
+
+    take: int
+    n_takes: int
+    speaker: str
+    stage: str
+    played_s: float = 0.0
+    signal_s: float = 0.0
+
+
 @dataclass
 class MeasurementSummary:
     """What :func:`measure` did."""
@@ -266,7 +296,8 @@ def estimate_latency(reference: np.ndarray, sweep: SweepSignal, max_latency_samp
     fractional : float
         Sub-sample estimate (parabolic fit through the peak and its neighbours).
     peak : float
-        Deconvolved peak value (1 for a unit-gain loop).
+        Deconvolved peak value (below 1 for a unit-gain loop: the band-limited pulse of an
+        inverse filter with unit gain in band).
 
     Raises
     ------
@@ -402,7 +433,8 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
             settings: MeasurementSettings = MeasurementSettings(), *,
             calibration: CalibrationRecord | None = None, latency_samples: int | None = None,
             redo_marked: bool = False, on_event: Callable[[str], None] = lambda text: None,
-            on_warning: Callable[[str], None] = lambda text: None) -> MeasurementSummary:
+            on_warning: Callable[[str], None] = lambda text: None,
+            on_progress: Callable[[TakeProgress], None] | None = None) -> MeasurementSummary:
     """Measure every speaker's take that `out_dir` does not hold yet.
 
     Parameters
@@ -425,6 +457,10 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
         Measure marked takes again (finished good takes are kept).
     on_event, on_warning : callable
         Receive progress lines and warnings.
+    on_progress : callable, optional
+        Receives a :class:`TakeProgress` for each kept take, before, during
+        (every 0.2 s, from a helper thread; the audio callback is untouched)
+        and after playing each take, and when it is saved.
 
     Returns
     -------
@@ -497,6 +533,8 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
                     old.resumed = True
                     results.append(old)
                     resumed.append(speaker)
+                    if on_progress is not None:
+                        on_progress(TakeProgress(s, n_spk, speaker, "kept"))
                     continue
             on_event(f"take {s + 1}/{n_spk}: speaker {speaker} on output {wiring.speaker_outputs[s] + 1}, "
                      f"{settings.repeats} x {settings.sweep_s:g} s sweep")
@@ -506,7 +544,8 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
                 out_channels.append(wiring.reference[0])
                 in_channels.append(wiring.reference[1])
             drive = np.tile(signal_one, settings.repeats)[:, None].repeat(len(out_channels), axis=1)
-            result = link.play_record(drive, out_channels, in_channels)
+            result = _play_reporting(link, drive, out_channels, in_channels, on_progress,
+                                     TakeProgress(s, n_spk, speaker, "playing", 0.0, drive.shape[0] / fs))
             avg = result.recording.reshape(settings.repeats, period, len(in_channels)).mean(axis=0)
             warnings: list[str] = []
             frac = None
@@ -546,6 +585,8 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
                      f"{max((p for p in take.peak_to_noise_db if p is not None), default=math.inf):.1f} dB")
             results.append(take)
             measured.append(speaker)
+            if on_progress is not None:
+                on_progress(TakeProgress(s, n_spk, speaker, "saved", drive.shape[0] / fs, drive.shape[0] / fs))
     except KeyboardInterrupt:
         kept = len(completed_takes(out_dir))
         on_event(f"stopped: {kept} of {n_spk} takes are kept in {out_dir}; run the same command again to "
@@ -555,6 +596,18 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
     irset_path = _write_combined(out_dir, results, wiring, fs, units, session_warnings, latency_source)
     all_warnings = session_warnings + [f"speaker {t.speaker}: {w}" for t in results for w in t.warnings]
     return MeasurementSummary(out_dir, results, measured, resumed, irset_path, all_warnings)
+
+
+def _play_reporting(link: AudioLink, drive: np.ndarray, out_channels: Sequence[int], in_channels: Sequence[int],
+                    on_progress: Callable[[TakeProgress], None] | None, at: TakeProgress) -> DuplexResult:
+    """``link.play_record``, reporting the time played to `on_progress` from a helper thread."""
+    if on_progress is None:
+        return link.play_record(drive, out_channels, in_channels)
+    on_progress(at)
+    with ticking(lambda t: on_progress(replace(at, played_s=min(t, at.signal_s))), 0.2):
+        result = link.play_record(drive, out_channels, in_channels)
+    on_progress(replace(at, stage="analysing", played_s=at.signal_s))
+    return result
 
 
 def _load_take(folder: Path, index: int, speaker: str) -> TakeResult:
