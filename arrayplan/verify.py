@@ -7,17 +7,29 @@ shape (n_freq, n_chan, n_chan); row i is the output of channel i's combine
 weights, column j the input driven with channel j's drive weights.  For a
 perfect rig C = diag(planned singular values).
 
-Per wanted channel j and frequency:
+Wanted channels (:func:`wanted_channels`).  By default a channel is wanted
+when the plan calls it strong (within the plan's ``threshold_db`` of the
+strongest) at one or more planned frequencies, and it is *judged* only at
+the frequencies where it is strong: elsewhere the plan itself says it is
+not worth driving, so nobody would use it there.  An explicit list of
+channels, or ``"all"``, judges those channels at every planned frequency.
 
-* gain against plan, ``20 log10(|C_jj| / s_j)`` dB (meaningful in absolute
-  terms only when the IR set is calibrated in the plan's units; otherwise
-  compare channels with each other);
-* worst crosstalk, ``20 log10(max_i |C_ij| or |C_ji|, i != j, i wanted / |C_jj|)``
-  dB re the diagonal (leakage both into and out of channel j, among the
-  wanted channels only, since only those are driven);
+Per wanted channel j and judged frequency (NaN where not judged):
+
+* gain, ``20 log10(|C_jj| / s_j)`` dB re the plan's singular value, or re
+  the plan times one common factor (``gain_reference="common"``): the
+  least-squares fit in dB of |C_jj| to s_j over all judged channels and
+  frequencies, i.e. the mean of their dB differences.  Use the common
+  reference for uncalibrated (full-scale) measurements, whose gains against
+  a free-field plan (1/m) carry an arbitrary common offset; the channel
+  matrix and the measured singular values are then divided by that factor;
+* worst crosstalk, ``20 log10(max_i |C_ij| or |C_ji|, i != j / |C_jj|)`` dB re
+  the diagonal, over the channels i judged at that frequency (leakage both
+  into and out of channel j among the channels in use there).  Crosstalk
+  and isolation are ratios: the gain reference does not change them;
 * isolation = -worst crosstalk; the channel is *lost* at that frequency
   when the isolation is below the threshold.  A channel passes when it is
-  never lost.
+  never lost where it is judged.
 
 The measured G is also decomposed afresh (re-plan); the summary compares
 its singular values with the planned ones and gives the principal
@@ -37,7 +49,11 @@ from .coupling import Kernel
 from .errors import InputError
 from .plan_files import PlanWeights
 
-__all__ = ["Verification", "verify_plan", "align_kernel_names"]
+__all__ = ["Verification", "verify_plan", "align_kernel_names", "wanted_channels", "GAIN_REFERENCES"]
+
+#: How realised gains are referred: to the plan's singular values, or to the
+#: plan times one fitted common factor.
+GAIN_REFERENCES = ("plan", "common")
 
 
 @dataclass(frozen=True)
@@ -55,14 +71,26 @@ class Verification:
     planned_sv, measured_sv : ndarray, shape (n_freq, n_chan)
         Planned singular values and those of the measured G.
     gain_db, crosstalk_db : ndarray, shape (n_freq, n_want)
-        Gain against plan and worst crosstalk re the diagonal, dB.
+        Gain against the reference (see `gain_reference`) and worst
+        crosstalk re the diagonal, dB; NaN where the channel is not judged.
     lost : ndarray of bool, shape (n_freq, n_want)
+        Isolation below the limit at a judged frequency.
     strong_planned, strong_measured : ndarray of int, shape (n_freq,)
         Channels within `threshold_db` of the strongest.
     max_angle_deg : ndarray, shape (n_freq,)
         Largest principal angle between planned and re-planned drive
         subspaces of the strong planned channels, degrees.
     isolation_db, threshold_db : float
+    judged : ndarray of bool, shape (n_freq, n_want)
+        Where each wanted channel is judged.
+    gain_reference : {"plan", "common"}
+    common_gain_db : float
+        The fitted common factor, dB: mean over judged cells of
+        ``20 log10(|C_jj| / s_j)``.  With the ``common`` reference the channel
+        matrix and measured singular values are divided by it; with ``plan``
+        it is reported only.
+    wanted_rule : str
+        One line saying which channels were taken as wanted and why.
     """
 
     hz: np.ndarray
@@ -78,6 +106,10 @@ class Verification:
     max_angle_deg: np.ndarray
     isolation_db: float
     threshold_db: float
+    judged: np.ndarray | None = None
+    gain_reference: str = "plan"
+    common_gain_db: float = float("nan")
+    wanted_rule: str = ""
 
     @property
     def passed(self) -> np.ndarray:
@@ -128,9 +160,69 @@ def _db(x: np.ndarray) -> np.ndarray:
         return 20.0 * np.log10(x)
 
 
+def _ranges(numbers: list[int]) -> str:
+    """1-based channel numbers as ``1-4,7``."""
+    out, i = [], 0
+    while i < len(numbers):
+        j = i
+        while j + 1 < len(numbers) and numbers[j + 1] == numbers[j] + 1:
+            j += 1
+        out.append(str(numbers[i]) if i == j else f"{numbers[i]}-{numbers[j]}")
+        i = j + 1
+    return ",".join(out)
+
+
+def wanted_channels(planned_sv: np.ndarray, threshold_db: float,
+                    channels: list[int] | str | None = None) -> tuple[np.ndarray, np.ndarray, str]:
+    """Which channels to judge, and where.
+
+    Parameters
+    ----------
+    planned_sv : ndarray, shape (n_freq, n_chan)
+        The plan's singular values, descending per frequency.
+    threshold_db : float
+        A channel is strong within this of the strongest, dB.
+    channels : list of int, "all", or None
+        0-based explicit list (judged everywhere), every planned channel
+        (judged everywhere), or None: the channels strong at one or more
+        planned frequencies, each judged only where strong.
+
+    Returns
+    -------
+    want : ndarray of int, shape (n_want,)
+    judged : ndarray of bool, shape (n_freq, n_want)
+    rule : str
+        One line for people: which channels and why.
+    """
+    n_freq, n_chan = planned_sv.shape
+    if isinstance(channels, str):
+        if channels != "all":
+            raise InputError(f"expected 'all' or channel numbers, got {channels!r}", source="--channels")
+        want = np.arange(n_chan)
+        return want, np.ones((n_freq, n_chan), bool), \
+            f"all {n_chan} planned channels, each judged at every planned frequency (--channels all)"
+    if channels is not None:
+        want = np.asarray(sorted(set(channels)), dtype=int)
+        if want.size == 0 or want.min() < 0 or want.max() >= n_chan:
+            raise InputError(f"channels must lie in 1..{n_chan}", source="--channels")
+        return want, np.ones((n_freq, want.size), bool), \
+            f"channels {_ranges([int(j) + 1 for j in want])} as given, each judged at every planned frequency"
+    with np.errstate(divide="ignore", invalid="ignore"):
+        level = 20.0 * np.log10(planned_sv / planned_sv[:, :1])
+    strong = level >= -abs(threshold_db) - 1e-12                 # (n_freq, n_chan)
+    want = np.flatnonzero(strong.any(axis=0))
+    never = [j + 1 for j in range(n_chan) if j not in set(want.tolist())]
+    rule = (f"channels {_ranges([int(j) + 1 for j in want])}: strong in the plan (within {abs(threshold_db):g} dB "
+            f"of the strongest) at one or more planned frequencies, each judged only where strong")
+    if never:
+        rule += f"; channels {_ranges(never)} are never strong and not judged (--channels all judges every channel)"
+    return want, strong[:, want], rule
+
+
 def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 20.0,
-                channels: list[int] | None = None, threshold_db: float | None = None,
-                plan_source: str | None = None, measured_source: str | None = None) -> Verification:
+                channels: list[int] | str | None = None, threshold_db: float | None = None,
+                gain_reference: str = "plan", plan_source: str | None = None,
+                measured_source: str | None = None) -> Verification:
     """Verify the planned channels against the rig described by `kernel`.
 
     Parameters
@@ -141,11 +233,16 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
         The measured rig; element names must match the plan's (any order).
     isolation_db : float
         A channel is lost where its isolation is below this, dB.
-    channels : list of int, optional
-        Wanted channels, 0-based (default all planned channels).
+    channels : list of int, "all", or None
+        Wanted channels, 0-based, judged at every frequency; "all" for every
+        planned channel; None (default) for the channels strong in the plan
+        somewhere, each judged where strong (:func:`wanted_channels`).
     threshold_db : float, optional
-        Strong-channel threshold for the subspace comparison, dB (default:
-        the plan's, else 3).
+        Strong-channel threshold for the wanted channels and the subspace
+        comparison, dB (default: the plan's, else 3).
+    gain_reference : {"plan", "common"}
+        Refer gains to the plan's singular values, or to the plan times one
+        fitted common factor (for uncalibrated measurements).
     plan_source, measured_source : str, optional
         Names used in error messages.
 
@@ -154,27 +251,43 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
     Verification
     """
     kernel = align_kernel_names(weights, kernel, plan_source=plan_source, measured_source=measured_source)
-    n_chan = weights.drive.shape[2]
-    want = np.arange(n_chan) if channels is None else np.asarray(sorted(set(channels)), dtype=int)
-    if want.size == 0 or want.min() < 0 or want.max() >= n_chan:
-        raise InputError(f"channels must lie in 1..{n_chan}", source="--channels")
+    if gain_reference not in GAIN_REFERENCES:
+        raise InputError(f"must be one of {', '.join(GAIN_REFERENCES)}, got {gain_reference!r}",
+                         source="--gain-reference")
     if threshold_db is None:
         threshold_db = float(weights.sidecar.get("threshold_db", 3.0)) if isinstance(weights.sidecar, dict) else 3.0
+    want, judged, rule = wanted_channels(weights.singular_values, threshold_db, channels)
     hz = weights.axis.hz
     g = kernel.evaluate(hz)                                         # (n_freq, n_mic, n_spk)
     c = np.einsum("fmi,fms,fsj->fij", weights.combine, g, weights.drive)
     s_meas, drive_meas, _ = decompose_stack(g)
     sub = np.abs(c[:, want][:, :, want])                            # (n_freq, n_want, n_want)
-    diag = np.diagonal(sub, axis1=1, axis2=2)
-    off = sub.copy()
+    diag = np.diagonal(sub, axis1=1, axis2=2).copy()
+    # crosstalk only among the channels in use (judged) at each frequency
+    off = sub * (judged[:, :, None] & judged[:, None, :])
     idx = np.arange(want.size)
     off[:, idx, idx] = 0.0
-    worst = np.maximum(off.max(axis=1), off.max(axis=2)) if want.size > 1 else np.zeros_like(diag)
+    worst = np.maximum(off.max(axis=1), off.max(axis=2))
     with np.errstate(divide="ignore", invalid="ignore"):
         crosstalk = _db(worst / diag)
-        gain = _db(diag / weights.singular_values[:, want])
+        raw_gain = _db(diag / weights.singular_values[:, want])
     crosstalk = np.where(diag > 0, crosstalk, np.inf)
-    lost = ~(-crosstalk >= isolation_db)
+    crosstalk = np.where(judged, crosstalk, np.nan)
+    raw_gain = np.where(judged, raw_gain, np.nan)
+    fit = np.isfinite(raw_gain)
+    common_db = float(np.mean(raw_gain[fit])) if np.any(fit) else float("nan")
+    if gain_reference == "common":
+        if not np.isfinite(common_db):
+            raise InputError("no wanted channel reaches the microphones, so no common gain can be fitted",
+                             source=measured_source, field="--gain-reference",
+                             fix="check the IR set, or use --gain-reference plan")
+        factor = 10.0 ** (common_db / 20.0)
+        c = c / factor
+        s_meas = s_meas / factor
+        gain = raw_gain - common_db
+    else:
+        gain = raw_gain
+    lost = judged & ~(-crosstalk >= isolation_db)
     level = _db(weights.singular_values / weights.singular_values[:, :1])
     strong_p = np.sum(level >= -abs(threshold_db) - 1e-12, axis=1)
     strong_m = np.sum(_db(s_meas / s_meas[:, :1]) >= -abs(threshold_db) - 1e-12, axis=1)
@@ -184,4 +297,5 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
         # the re-planned subspace of the same dimension, strongest first
         angles[f] = np.degrees(np.max(subspace_angles(weights.drive[f][:, :k], drive_meas[f][:, :k])))
     return Verification(hz, want, c, weights.singular_values, s_meas, gain, crosstalk, lost, strong_p, strong_m,
-                        angles, float(isolation_db), float(threshold_db))
+                        angles, float(isolation_db), float(threshold_db), judged=judged,
+                        gain_reference=gain_reference, common_gain_db=common_db, wanted_rule=rule)

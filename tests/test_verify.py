@@ -48,9 +48,10 @@ def test_perfect_rig_reproduces_plan(plan_dir, tmp_path):
     # Channels of the SVD: combine^T G drive = diag(s) (Miller, Applied Optics 39(11), 2000).
     weights = read_weights(plan_dir)
     irs = read_irset(_irset_dir(tmp_path, _rig()))
-    res = verify_plan(weights, MeasuredKernel(irs))
+    res = verify_plan(weights, MeasuredKernel(irs), channels="all")
     np.testing.assert_allclose(res.gain_db, 0.0, atol=1e-3)           # float32 storage
     assert res.crosstalk_db.max() < -60.0
+    assert res.judged.all() and res.common_gain_db == pytest.approx(0.0, abs=1e-3)
     np.testing.assert_allclose(res.measured_sv, res.planned_sv, rtol=0, atol=2e-5 * res.planned_sv.max())
     assert res.max_angle_deg.max() < 0.1
     assert np.all(res.passed)
@@ -61,7 +62,7 @@ def test_names_in_another_order_are_matched(plan_dir, tmp_path):
     perm_s, perm_m = [2, 0, 3, 1], [1, 3, 0, 2]
     shuffled = IRSet(irs.data[:, perm_m][:, :, perm_s], FS, [irs.speaker_names[i] for i in perm_s],
                      [irs.mic_names[i] for i in perm_m])
-    res = verify_plan(read_weights(plan_dir), MeasuredKernel(shuffled))
+    res = verify_plan(read_weights(plan_dir), MeasuredKernel(shuffled), channels="all")
     np.testing.assert_allclose(res.gain_db, 0.0, atol=1e-6)
 
 
@@ -73,11 +74,87 @@ def test_moved_mics_raise_crosstalk_and_subspace_angle(plan_dir, tmp_path):
     weights = read_weights(plan_dir)
     xt, ang = [], []
     for mm in (0.5, 1.0):
-        res = verify_plan(weights, MeasuredKernel(free_field_irset(_rig(direction * mm * 1e-3), FS, N)))
+        res = verify_plan(weights, MeasuredKernel(free_field_irset(_rig(direction * mm * 1e-3), FS, N)),
+                          channels="all")
         xt.append(10 ** (res.crosstalk_db.max() / 20))
         ang.append(res.max_angle_deg.max())
     assert xt[1] / xt[0] == pytest.approx(2.0, rel=0.1)
     assert ang[1] / ang[0] == pytest.approx(2.0, rel=0.1)
+
+
+def _level_db(weights):
+    return 20 * np.log10(weights.singular_values / weights.singular_values[:, :1])
+
+
+def test_default_wanted_channels_are_the_strong_ones_judged_where_strong(plan_dir, tmp_path):
+    # The plan's own definition of strong: within threshold_db (3 dB here) of the strongest.
+    weights = read_weights(plan_dir)
+    res = verify_plan(weights, MeasuredKernel(free_field_irset(_rig(), FS, N)))
+    strong = _level_db(weights) >= -3.0 - 1e-9
+    np.testing.assert_array_equal(res.channels, np.flatnonzero(strong.any(axis=0)))
+    np.testing.assert_array_equal(res.judged, strong[:, res.channels])
+    assert not res.judged.all()                                       # some channel is weak somewhere
+    assert np.all(np.isnan(res.gain_db[~res.judged])) and np.all(np.isfinite(res.gain_db[res.judged]))
+    np.testing.assert_allclose(res.gain_db[res.judged], 0.0, atol=1e-3)
+    assert not res.lost[~res.judged].any()
+    assert "judged only where strong" in res.wanted_rule
+
+
+def test_weak_channels_fail_first_and_are_left_out_by_default(tmp_path):
+    # First-order perturbation (Golub & Van Loan, Matrix Computations, 2013): a small error E leaks
+    # about |E| s_strong into a channel of gain s_weak, so the weakest channel loses isolation first.
+    # At 1172 and 3516 Hz channel 4 is 22 and 10 dB below the strongest: never strong.
+    plan = tmp_path / "plan"
+    write_plan(plan_rig(_rig(), FrequencyAxis(HZ[[0, 2]])), plan, figures=False)
+    weights = read_weights(plan)
+    assert np.all(_level_db(weights)[:, 3] < -3.0)
+    rng = np.random.default_rng(5)
+    moved = MeasuredKernel(free_field_irset(_rig(rng.uniform(-1, 1, (4, 3)) * 1e-3), FS, N))  # 1 mm
+    every = verify_plan(weights, moved, channels="all")
+    default = verify_plan(weights, moved)
+    assert list(every.passed) == [True, True, True, False]
+    assert list(default.channels) == [0, 1, 2] and default.passed.all()
+    assert "channels 4 are never strong" in default.wanted_rule
+
+
+@pytest.mark.parametrize("scale", [0.0123, 3.7])
+def test_common_reference_recovers_a_known_scale(plan_dir, tmp_path, scale):
+    # A full-scale measurement is the true G times one unknown factor; the fitted common factor must
+    # come back as 20 log10(scale) within 0.01 dB (exact arithmetic, common practice, no source), the
+    # gains re that factor are the plan's, and crosstalk (a ratio) does not change.
+    weights = read_weights(plan_dir)
+    want_db = 20 * np.log10(scale)
+    irs = free_field_irset(_rig(), FS, N)
+    irs.data = irs.data * scale
+    common = verify_plan(weights, MeasuredKernel(irs), gain_reference="common")
+    plan = verify_plan(weights, MeasuredKernel(irs), gain_reference="plan")
+    assert common.common_gain_db == pytest.approx(want_db, abs=0.01)
+    assert plan.common_gain_db == pytest.approx(want_db, abs=0.01)
+    np.testing.assert_allclose(common.gain_db[common.judged], 0.0, atol=1e-3)
+    np.testing.assert_allclose(plan.gain_db[plan.judged], want_db, atol=1e-3)
+    np.testing.assert_allclose(common.measured_sv, common.planned_sv, rtol=1e-6)
+    # On a rig with real crosstalk (mics moved by up to 1 mm) the ratios are untouched by the scale.
+    rng = np.random.default_rng(3)
+    moved = free_field_irset(_rig(rng.uniform(-1e-3, 1e-3, (4, 3))), FS, N)
+    true = verify_plan(weights, MeasuredKernel(moved))
+    moved.data = moved.data * scale
+    scaled = verify_plan(weights, MeasuredKernel(moved), gain_reference="common")
+    assert np.nanmax(true.crosstalk_db) > -60
+    np.testing.assert_allclose(scaled.crosstalk_db, true.crosstalk_db, atol=1e-6)
+    assert scaled.common_gain_db - true.common_gain_db == pytest.approx(want_db, abs=1e-6)
+    np.testing.assert_allclose(scaled.gain_db, true.gain_db - true.common_gain_db, atol=1e-6)
+    np.testing.assert_array_equal(scaled.passed, true.passed)
+
+
+def test_common_reference_on_a_moved_rig_is_the_mean_db_offset(plan_dir, tmp_path):
+    # The least-squares fit in dB of |C_jj| to s_j is the mean of the dB differences (normal
+    # equations of a one-parameter fit, common practice, no source): the residual gains average 0.
+    rng = np.random.default_rng(9)
+    irs = free_field_irset(_rig(rng.uniform(-0.02, 0.02, (4, 3))), FS, N)
+    irs.data = irs.data * 0.05
+    res = verify_plan(read_weights(plan_dir), MeasuredKernel(irs), gain_reference="common")
+    assert np.nanmean(res.gain_db) == pytest.approx(0.0, abs=1e-9)
+    assert np.nanstd(res.gain_db) > 0.01
 
 
 def _run(capsys, *args):
@@ -108,6 +185,36 @@ def test_cli_pass_and_fail(plan_dir, tmp_path, capsys):
     summary = list(csv.DictReader((tmp_path / "v-bad" / "verify-summary.csv").open()))
     assert sum(int(r["lost_channels"]) for r in summary) > 0
     assert json.loads((tmp_path / "v-bad" / "verify.json").read_text())["passed"].count(False) > 0
+
+
+def test_cli_gain_reference_defaults_follow_the_units(plan_dir, tmp_path, capsys):
+    irs = free_field_irset(_rig(), FS, N)
+    irs.data = irs.data * 0.02
+    full_scale = _irset_dir(tmp_path, None, "fs", irs=irs)
+    code, stdout, _ = _run(capsys, plan_dir, full_scale, "--out", tmp_path / "v1", "--no-figures")
+    assert code == 0
+    doc = json.loads((tmp_path / "v1" / "verify.json").read_text())
+    assert doc["gain_reference"] == "common" and "full_scale" in doc["gain_reference_reason"]
+    assert doc["common_gain_db"] == pytest.approx(20 * np.log10(0.02), abs=0.01)  # exact arithmetic
+    assert "gain reference: common factor -33.98 dB re plan" in stdout
+    assert "wanted channels: channels 1-4: strong in the plan" in stdout
+    assert all("median gain +0.00 dB re common" in ln for ln in stdout.splitlines() if ln.startswith("channel "))
+    rows = list(csv.DictReader((tmp_path / "v1" / "verify-channels.csv").open()))
+    judged = [r for r in rows if r["judged"] == "1"]
+    assert all(abs(float(r["gain_db"])) < 1e-3 for r in judged)
+    assert all(r["gain_db"] == "" and r["lost"] == "0" for r in rows if r["judged"] == "0")
+    assert doc["judged_frequencies_hz"]["4"] == [pytest.approx(HZ[1])]
+    calibrated = IRSet(irs.data, FS, irs.speaker_names, irs.mic_names, units="pascal_per_volt")
+    code, stdout, _ = _run(capsys, plan_dir, _irset_dir(tmp_path, None, "pv", irs=calibrated),
+                           "--out", tmp_path / "v2", "--no-figures", "--channels", "all")
+    assert code == 0
+    doc = json.loads((tmp_path / "v2" / "verify.json").read_text())
+    assert doc["gain_reference"] == "plan" and doc["channels"] == [1, 2, 3, 4]
+    assert "gain reference: plan (the IR set is calibrated" in stdout
+    assert "all 4 planned channels, each judged at every planned frequency" in stdout
+    code, stdout, _ = _run(capsys, plan_dir, full_scale, "--out", tmp_path / "v3", "--no-figures",
+                           "--gain-reference", "plan")
+    assert "median gain -33.98 dB re plan" in stdout
 
 
 def _rewrite_wav(folder, fname, transform):
@@ -158,9 +265,14 @@ def test_cli_rejects_plan_above_nyquist(tmp_path, capsys):
     (["--channels", "9"], "--channels"),
     (["--window-ms", "0.01"], "window"),
     (["--isolation-db", "-3"], "--isolation-db"),
+    (["--channels", "some"], "--channels"),
+    (["--gain-reference", "loud"], "--gain-reference"),
 ])
 def test_cli_bad_options_exit_2(plan_dir, tmp_path, capsys, flags, message):
     folder = _irset_dir(tmp_path, _rig())
-    code, _, err = _run(capsys, plan_dir, folder, "--out", tmp_path / "v", *flags)
+    try:
+        code, _, err = _run(capsys, plan_dir, folder, "--out", tmp_path / "v", *flags)
+    except SystemExit as stop:  # argparse refuses the option before the command runs
+        code, err = stop.code, capsys.readouterr().err
     assert code == 2 and message in err and len(err.strip().splitlines()) == 1, err
     assert not (tmp_path / "v").exists()

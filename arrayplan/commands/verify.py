@@ -15,10 +15,12 @@ from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atom
 from ..irset import read_irset
 from ..kernels.measured import MeasuredKernel
 from ..plan_files import read_weights
-from ..verify import Verification, verify_plan
+from ..verify import GAIN_REFERENCES, Verification, verify_plan
 
 
-def _channel_list(text: str) -> list[int]:
+def _channel_list(text: str) -> list[int] | str:
+    if text.strip().lower() == "all":
+        return "all"
     try:
         vals = [int(v) for v in text.split(",")]
     except ValueError:
@@ -38,7 +40,15 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--isolation-db", type=float, default=20.0,
                    help="a channel is lost where its isolation falls below this (dB, default 20)")
-    p.add_argument("--channels", type=_channel_list, help="wanted channels, 1-based, e.g. 1,2,3 (default all)")
+    p.add_argument("--channels", type=_channel_list,
+                   help="wanted channels, 1-based, e.g. 1,2,3, judged at every frequency; 'all' for every planned "
+                        "channel (default: the channels strong in the plan somewhere, each judged where strong)")
+    p.add_argument("--gain-reference", choices=GAIN_REFERENCES,
+                   help="refer realised gains to the plan's singular values ('plan'), or to the plan times one "
+                        "common factor fitted over all judged channels and frequencies ('common', for "
+                        "uncalibrated measurements; crosstalk and isolation do not change). Default: 'plan' when "
+                        "the IR set is in pascal_per_volt or the plan was made from measured responses, else "
+                        "'common'")
     p.add_argument("--window-ms", type=float, help="keep this much of each response (ms), half-Hann fade-out")
     p.add_argument("--latency-samples", type=int, default=0, help="common latency to drop first (samples)")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
@@ -53,6 +63,10 @@ def _fmt(x: float) -> str:
     return f"{x:.8g}"
 
 
+def _finite_or_none(x: float) -> float | None:
+    return float(x) if np.isfinite(x) else None
+
+
 def _csv(header: list[str], rows: list[list]) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
@@ -63,18 +77,50 @@ def _csv(header: list[str], rows: list[list]) -> str:
 
 def channel_rows(res: Verification) -> list[list]:
     rows = []
+    judged = res.judged if res.judged is not None else np.ones(res.lost.shape, bool)
     for f, hz in enumerate(res.hz):
         for k, j in enumerate(res.channels):
             rows.append([_fmt(hz), j + 1, _fmt(res.planned_sv[f, j]), _fmt(abs(res.channel_matrix[f, j, j])),
                          _fmt(res.gain_db[f, k]), _fmt(res.crosstalk_db[f, k]), _fmt(-res.crosstalk_db[f, k]),
-                         int(res.lost[f, k]), _fmt(res.measured_sv[f, j])])
+                         int(res.lost[f, k]), _fmt(res.measured_sv[f, j]), int(judged[f, k])])
     return rows
 
 
 def summary_rows(res: Verification) -> list[list]:
     return [[_fmt(hz), len(res.channels), int(res.lost[f].sum()), int(res.strong_planned[f]),
-             int(res.strong_measured[f]), _fmt(res.max_angle_deg[f]), _fmt(np.max(res.crosstalk_db[f]))]
+             int(res.strong_measured[f]), _fmt(res.max_angle_deg[f]), _fmt(_nanmax(res.crosstalk_db[f]))]
             for f, hz in enumerate(res.hz)]
+
+
+def _nanmax(x: np.ndarray) -> float:
+    x = np.asarray(x, dtype=float)
+    return float(np.nanmax(x)) if np.any(~np.isnan(x)) else float("nan")
+
+
+#: IR-set units whose gains can be compared with a plan directly.
+PHYSICAL_UNITS = ("pascal_per_volt",)
+
+
+def default_gain_reference(irset_units: str, plan_kernel: str) -> tuple[str, str]:
+    """The gain reference when none is given, and why (one phrase)."""
+    if str(plan_kernel).startswith("measured"):
+        return "plan", "the plan was made from measured responses, in the measurement's own units"
+    if irset_units in PHYSICAL_UNITS:
+        return "plan", f"the IR set is calibrated ({irset_units})"
+    return "common", f"the IR set is not calibrated in physical units ({irset_units})"
+
+
+def _signed(x: float) -> str:
+    """``+1.23`` with two decimals; never ``-0.00``."""
+    return f"{round(float(x), 2) + 0.0:+.2f}"
+
+
+def _gain_lines(res: Verification, reason: str) -> list[str]:
+    if res.gain_reference == "common":
+        return [f"gain reference: common factor {_signed(res.common_gain_db)} dB re plan (least-squares fit in dB of "
+                f"|C_jj| to the planned singular values over the judged channels and frequencies; {reason}); "
+                "channel gains below are relative to it"]
+    return [f"gain reference: plan ({reason}); the common offset re plan is {_signed(res.common_gain_db)} dB"]
 
 
 def run(args: argparse.Namespace) -> int:
@@ -93,15 +139,21 @@ def run(args: argparse.Namespace) -> int:
     kernel = MeasuredKernel(irs, window_s=None if args.window_ms is None else args.window_ms / 1e3,
                             latency_samples=args.latency_samples)
     n_chan = weights.drive.shape[2]
-    if args.channels and max(args.channels) > n_chan:
+    if isinstance(args.channels, list) and max(args.channels) > n_chan:
         raise InputError(f"the plan has {n_chan} channels, asked for {max(args.channels)}", source="--channels")
-    res = verify_plan(weights, kernel, isolation_db=args.isolation_db,
-                      channels=None if not args.channels else [c - 1 for c in args.channels],
+    plan_kernel = weights.sidecar.get("kernel", "free field") if isinstance(weights.sidecar, dict) else "free field"
+    if args.gain_reference is None:
+        gain_reference, reason = default_gain_reference(irs.units, plan_kernel)
+    else:
+        gain_reference, reason = args.gain_reference, "as given by --gain-reference"
+    channels = args.channels if args.channels in (None, "all") else [c - 1 for c in args.channels]
+    res = verify_plan(weights, kernel, isolation_db=args.isolation_db, channels=channels,
+                      gain_reference=gain_reference,
                       plan_source=str(args.plan_dir), measured_source=str(Path(args.irset_dir)))
     with staged_output_dir(args.out) as stage:
         write_text_atomic(stage / "verify-channels.csv", _csv(
             ["frequency_hz", "channel", "planned_singular_value", "realised_gain", "gain_db", "worst_crosstalk_db",
-             "isolation_db", "lost", "measured_singular_value"], channel_rows(res)))
+             "isolation_db", "lost", "measured_singular_value", "judged"], channel_rows(res)))
         write_text_atomic(stage / "verify-summary.csv", _csv(
             ["frequency_hz", "wanted_channels", "lost_channels", "strong_planned", "strong_measured",
              "max_subspace_angle_deg", "worst_crosstalk_db"], summary_rows(res)))
@@ -110,7 +162,19 @@ def run(args: argparse.Namespace) -> int:
             "irset_units": irs.units, "isolation_db": res.isolation_db, "threshold_db": res.threshold_db,
             "window_ms": args.window_ms, "latency_samples": args.latency_samples,
             "channels": [int(j) + 1 for j in res.channels], "passed": [bool(p) for p in res.passed],
-            "gain_note": "gain_db compares with the plan's units; uncalibrated IR sets give a common offset",
+            "wanted_channels_rule": res.wanted_rule,
+            "judged_frequencies_hz": {str(int(j) + 1): [float(h) for h in res.hz[res.judged[:, k]]]
+                                      for k, j in enumerate(res.channels)},
+            "gain_reference": res.gain_reference, "gain_reference_reason": reason,
+            "common_gain_db": _finite_or_none(res.common_gain_db),
+            "gain_note": ("gain_db is re the plan times the common factor common_gain_db (one real positive "
+                          "scalar, the least-squares fit in dB of |C_jj| to the planned singular values over the "
+                          "judged channels and frequencies); the channel matrix and measured singular values are "
+                          "divided by it; crosstalk and isolation are ratios and do not change"
+                          if res.gain_reference == "common" else
+                          "gain_db is re the plan's singular values in the plan's units (1/m for a free-field "
+                          "plan): absolute only when the IR set is in the same units; common_gain_db is the "
+                          "mean offset, for information"),
             "provenance": provenance()})
         if not args.no_figures:
             import matplotlib.pyplot as plt
@@ -121,11 +185,20 @@ def run(args: argparse.Namespace) -> int:
                 with atomic_path(stage / name) as tmp:
                     fig.savefig(tmp, dpi=120)
                 plt.close(fig)
+    print(f"wanted channels: {res.wanted_rule}")
+    for line in _gain_lines(res, reason):
+        print(line)
+    ref = "re common" if res.gain_reference == "common" else "re plan"
     for k, j in enumerate(res.channels):
-        iso = -res.crosstalk_db[:, k]
+        where = res.judged[:, k]
+        iso = np.where(where, -res.crosstalk_db[:, k], np.inf)
         worst = int(np.argmin(iso))
         verdict = "PASS" if res.passed[k] else "FAIL"
+        gains = res.gain_db[where, k]
+        gains = gains[np.isfinite(gains)]
+        gain_text = f"median gain {_signed(np.median(gains))} dB {ref}" if gains.size else "no gain (silent)"
         print(f"channel {j + 1}: {verdict}  worst isolation {_fmt(iso[worst])} dB at {res.hz[worst]:g} Hz "
-              f"(need {res.isolation_db:g} dB), lost at {int(res.lost[:, k].sum())} of {len(res.hz)} frequencies")
+              f"(need {res.isolation_db:g} dB), lost at {int(res.lost[:, k].sum())} of {int(where.sum())} judged "
+              f"frequencies (of {len(res.hz)}), {gain_text}")
     print(f"wrote verification to {args.out}")
     return 0 if bool(np.all(res.passed)) else 1
