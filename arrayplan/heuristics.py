@@ -23,10 +23,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import ConvexHull, QhullError, cKDTree
 
-__all__ = ["ApertureShape", "aperture_shape", "ParaxialEstimate", "paraxial_estimate"]
+__all__ = ["PARAXIAL_RATIO", "ApertureShape", "aperture_shape", "ParaxialEstimate", "paraxial_estimate"]
 
 _FLAT = 0.05           # a principal extent below 5 % of the largest counts as flat
-_PARAXIAL_RATIO = 0.5  # (half aperture sum) / distance above this is not paraxial
+PARAXIAL_RATIO = 0.5  # (half aperture sum) / distance above this is not paraxial
 _ANGLE_TOL_DEG = 15.0
 
 
@@ -131,7 +131,7 @@ def paraxial_estimate(speaker_positions: np.ndarray, mic_positions: np.ndarray,
         return ParaxialEstimate(None, nan, dist, spk.size, mic.size, "the two arrays share a centre")
     n = axis / dist
     warnings = []
-    if (spk.extent + mic.extent) / 2.0 > _PARAXIAL_RATIO * dist:
+    if (spk.extent + mic.extent) / 2.0 > PARAXIAL_RATIO * dist:
         warnings.append(f"not paraxial: apertures {spk.extent:.3g} m and {mic.extent:.3g} m at only "
                         f"{dist:.3g} m apart")
     tol = np.cos(np.deg2rad(_ANGLE_TOL_DEG))

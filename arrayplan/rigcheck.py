@@ -23,7 +23,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from .errors import InputError
-from .heuristics import _PARAXIAL_RATIO, aperture_shape
+from .heuristics import PARAXIAL_RATIO, aperture_shape
 from .medium import speed_of_sound_air
 from .rig import (ENTRY_KEYS, TABLE_KEYS, EntryElements, FieldReader, Rig, entry_kind, join_entries,
                   load_rig, read_rig_document, resolve_entry, resolve_section)
@@ -398,15 +398,15 @@ def paraxial_findings(rig: Rig) -> list[Finding]:
                         "the two arrays share a centre (one surrounds the other), so the quick estimate of "
                         "Ls Lr / (lambda L) does not apply; the SVD counts from 'arrayplan plan' are the ones "
                         "to trust")]
-    if span <= _PARAXIAL_RATIO * dist:
+    if span <= PARAXIAL_RATIO * dist:
         return []
     angle = float(np.degrees(np.arctan(span / dist)))
     return [Finding(
         "warning", "speakers/microphones",
         f"the arrays span {spk.extent:.3g} m and {mic.extent:.3g} m but are only {dist:.3g} m apart "
-        f"(less than the {span / _PARAXIAL_RATIO:.3g} m the paraxial estimate needs): paths reach {angle:.0f} "
+        f"(less than the {span / PARAXIAL_RATIO:.3g} m the paraxial estimate needs): paths reach {angle:.0f} "
         f"degrees off axis, in the near field of the apertures, so the quick count of the estimate is rough",
-        f"move the arrays at least {span / _PARAXIAL_RATIO:.3g} m apart, or rely on the SVD counts of "
+        f"move the arrays at least {span / PARAXIAL_RATIO:.3g} m apart, or rely on the SVD counts of "
         f"'arrayplan plan' rather than the estimate")]
 
 
