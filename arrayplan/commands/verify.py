@@ -175,7 +175,13 @@ def run(args: argparse.Namespace) -> int:
                           "gain_db is re the plan's singular values in the plan's units (1/m for a free-field "
                           "plan): absolute only when the IR set is in the same units; common_gain_db is the "
                           "mean offset, for information"),
+            "files": {"verify.npz": "frequency_hz (n_freq,), channels (n_want,) 1-based, channel_matrix complex "
+                                    "(n_freq, n_chan, n_chan) = combine^T G_measured drive, planned_singular_value "
+                                    "and measured_singular_value (n_freq, n_chan), judged (n_freq, n_want)"},
             "provenance": provenance()})
+        np.savez(stage / "verify.npz", frequency_hz=res.hz, channels=np.asarray(res.channels) + 1,
+                 channel_matrix=res.channel_matrix, planned_singular_value=res.planned_sv,
+                 measured_singular_value=res.measured_sv, judged=res.judged)
         if not args.no_figures:
             import matplotlib.pyplot as plt
 
@@ -197,7 +203,7 @@ def run(args: argparse.Namespace) -> int:
         gains = res.gain_db[where, k]
         gains = gains[np.isfinite(gains)]
         gain_text = f"median gain {_signed(np.median(gains))} dB {ref}" if gains.size else "no gain (silent)"
-        print(f"channel {j + 1}: {verdict}  worst isolation {_fmt(iso[worst])} dB at {res.hz[worst]:g} Hz "
+        print(f"channel {j + 1}: {verdict}  worst isolation {iso[worst]:.1f} dB at {res.hz[worst]:.5g} Hz "
               f"(need {res.isolation_db:g} dB), lost at {int(res.lost[:, k].sum())} of {int(where.sum())} judged "
               f"frequencies (of {len(res.hz)}), {gain_text}")
     print(f"wrote verification to {args.out}")

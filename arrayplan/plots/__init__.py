@@ -15,7 +15,8 @@ from .field import plot_field, plot_field_panels
 from .irs import plot_ir_overview
 from .levels import plot_level_map
 from .rig import plot_rig
-from .verify import plot_crosstalk, plot_isolation, plot_singular_values
+from .verify import plot_channel_matrices, plot_crosstalk, plot_isolation, plot_singular_values
 
 __all__ = ["plot_rig", "plot_couplings", "plot_channel_counts", "plot_level_map", "plot_field",
-           "plot_field_panels", "plot_ir_overview", "plot_crosstalk", "plot_singular_values", "plot_isolation"]
+           "plot_field_panels", "plot_ir_overview", "plot_crosstalk", "plot_channel_matrices",
+           "plot_singular_values", "plot_isolation"]

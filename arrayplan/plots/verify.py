@@ -6,15 +6,36 @@ import numpy as np
 
 from ._axes import frequency_axis
 
-__all__ = ["plot_crosstalk", "plot_singular_values", "plot_isolation"]
+__all__ = ["plot_crosstalk", "plot_channel_matrices", "plot_singular_values", "plot_isolation"]
 
 
 def plot_crosstalk(result, max_panels: int = 4, floor_db: float = -60.0, fig=None):
+    """Heat maps of the realised channel matrix of a :class:`~arrayplan.verify.Verification`.
+
+    See :func:`plot_channel_matrices`; channels not judged at a panel's
+    frequency are left blank.
+    """
+    return plot_channel_matrices(result.hz, result.channel_matrix, result.channels,
+                                 judged=getattr(result, "judged", None), max_panels=max_panels,
+                                 floor_db=floor_db, fig=fig)
+
+
+def plot_channel_matrices(hz, channel_matrix, channels, judged=None, max_panels: int = 4,
+                          floor_db: float = -60.0, fig=None):
     """Heat maps of ``20 log10 |C_ij| / max_j |C_jj|`` (dB) at up to `max_panels` frequencies.
 
     Parameters
     ----------
-    result : arrayplan.verify.Verification
+    hz : ndarray, shape (n_freq,)
+        Frequencies, Hz.
+    channel_matrix : ndarray, complex, shape (n_freq, n_chan, n_chan)
+        ``combine^T G_measured drive`` over all planned channels.
+    channels : sequence of int
+        Wanted channels, 0-based.
+    judged : ndarray of bool, shape (n_freq, n_want), optional
+        Where each wanted channel is judged; rows and columns of channels
+        not judged at a panel's frequency are left blank.  Panels are picked
+        among the frequencies where at least two channels are judged.
     max_panels : int
     floor_db : float
         Lower end of the colour scale, dB.
@@ -24,34 +45,46 @@ def plot_crosstalk(result, max_panels: int = 4, floor_db: float = -60.0, fig=Non
     -------
     Figure
     """
-    import matplotlib.pyplot as plt
+    from matplotlib.figure import Figure
 
-    hz = result.hz
-    picks = np.unique(np.linspace(0, len(hz) - 1, min(max_panels, len(hz))).round().astype(int))
+    hz = np.asarray(hz, dtype=float)
+    want = np.asarray(channels, dtype=int)
+    judged = np.ones((len(hz), len(want)), dtype=bool) if judged is None else np.asarray(judged, dtype=bool)
+    usable = np.flatnonzero(judged.sum(axis=1) >= min(2, len(want)))
+    if usable.size == 0:
+        usable = np.arange(len(hz))
+    picks = usable[np.unique(np.linspace(0, len(usable) - 1, min(max_panels, len(usable))).round().astype(int))]
     if fig is None:
-        fig = plt.figure(figsize=(3.6 * len(picks) + 1.2, 3.8), layout="constrained")
+        fig = Figure(figsize=(min(3.0 * len(picks) + 1.0, 7.0), 3.2), layout="constrained")
     axes = fig.subplots(1, len(picks), squeeze=False)[0]
-    want = result.channels
     labels = [str(j + 1) for j in want]
+    step = max(1, int(np.ceil(len(want) / 8)))
     im = None
     for ax, f in zip(axes, picks):
-        c = np.abs(result.channel_matrix[f][np.ix_(want, want)])
-        ref = np.max(np.diagonal(c)) or 1.0
+        c = np.abs(np.asarray(channel_matrix)[f][np.ix_(want, want)])
+        on = judged[f]
+        diag = np.diagonal(c)[on]
+        ref = (np.max(diag) if diag.size else 0.0) or 1.0
         with np.errstate(divide="ignore"):
-            db = 20.0 * np.log10(c / ref)
-        im = ax.imshow(np.maximum(db, floor_db), cmap="viridis", vmin=floor_db, vmax=0.0, origin="upper")
-        ax.set_xticks(range(len(want)), labels)
-        ax.set_yticks(range(len(want)), labels)
+            db = np.maximum(20.0 * np.log10(c / ref), floor_db)
+        db[~on, :] = np.nan
+        db[:, ~on] = np.nan
+        im = ax.imshow(db, cmap="viridis", vmin=floor_db, vmax=0.0, origin="upper", interpolation="nearest")
+        ticks = np.arange(0, len(want), step)
+        ax.set_xticks(ticks, [labels[t] for t in ticks])
+        ax.set_yticks(ticks, [labels[t] for t in ticks])
         ax.set_xlabel("driven channel j (no.)")
         ax.set_ylabel("received channel i (no.)")
-        ax.set_title(f"{hz[f]:g} Hz")
+        ax.set_title(f"{hz[f]:.4g} Hz")
     fig.colorbar(im, ax=list(axes), label="|C_ij| re strongest diagonal (dB)")
     fig.suptitle("Realised channel matrix combine^T G_measured drive")
     return fig
 
 
-def plot_singular_values(result, ax=None):
+def plot_singular_values(result, ax=None, floor_db: float = -120.0):
     """Planned and measured singular values (dB re the strongest planned) against frequency.
+
+    The axis stops at `floor_db` (dB), so channels far below any noise floor do not squeeze the rest.
 
     Returns
     -------
@@ -79,6 +112,9 @@ def plot_singular_values(result, ax=None):
     frequency_axis(ax, hz, log_above_ratio=8.0)
     ax.set_xlabel("frequency (Hz)")
     ax.set_ylabel("singular value re strongest planned (dB)")
+    finite = np.concatenate([p_db[np.isfinite(p_db)], m_db[np.isfinite(m_db)]])
+    if finite.size:
+        ax.set_ylim(bottom=max(float(finite.min()) - 5.0, floor_db), top=float(finite.max()) + 5.0)
     ax.set_title("Planned (solid) and measured re-plan (dashed) singular values")
     ax.grid(True, alpha=0.3)
     if n <= 8:
@@ -96,7 +132,8 @@ def plot_isolation(hz, channels, isolation_db, isolation_limit_db: float, ax=Non
     channels : sequence of int
         1-based channel numbers, one per column of `isolation_db`.
     isolation_db : ndarray, shape (n_freq, n_want)
-        Isolation = -(worst crosstalk re the channel's own gain), dB.
+        Isolation = -(worst crosstalk re the channel's own gain), dB; NaN where the channel is
+        not judged and infinite where no other channel is judged (both left out of the plot).
     isolation_limit_db : float
         A channel is lost where its isolation falls below this, dB.
     ax : matplotlib Axes, optional
@@ -118,7 +155,8 @@ def plot_isolation(hz, channels, isolation_db, isolation_limit_db: float, ax=Non
     colours = plt.get_cmap("viridis")(np.linspace(0.0, 0.9, max(len(channels), 1)))
     marker = "o" if len(hz) < 30 else None
     for k, (c, colour) in enumerate(zip(channels, colours)):
-        ax.plot(hz, np.clip(iso[:, k], -40.0, 160.0), "-", color=colour, marker=marker, ms=3,
+        ax.plot(hz, np.where(np.isfinite(iso[:, k]), np.clip(iso[:, k], -40.0, None), np.nan), "-", color=colour,
+                marker=marker, ms=3,
                 label=f"channel {c}" if len(channels) <= 10 else None)
     ax.axhline(isolation_limit_db, color="#b2182b", ls="--", lw=1.2, label=f"limit {isolation_limit_db:g} dB")
     ax.fill_between(hz, -40.0, isolation_limit_db, color="#b2182b", alpha=0.08)

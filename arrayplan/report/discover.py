@@ -89,12 +89,14 @@ class FoundIRSet:
 
 @dataclass
 class FoundVerification:
-    """A verification folder: ``verify.json`` and its two tables as lists of row dicts."""
+    """A verification folder: ``verify.json``, its two tables as lists of row dicts, and ``verify.npz``
+    (the realised channel matrices) when present."""
 
     folder: Path
     doc: dict
     channel_rows: list[dict[str, str]]
     summary_rows: list[dict[str, str]]
+    arrays: dict[str, Any] | None = None
 
 
 @dataclass
@@ -209,9 +211,20 @@ def _load_irset(folder: Path) -> FoundIRSet:
 
 
 def _load_verification(folder: Path) -> FoundVerification:
+    import numpy as np
+
     doc = _read_json(folder / "verify.json")
+    arrays = None
+    if (folder / "verify.npz").is_file():
+        keys = ("frequency_hz", "channels", "channel_matrix", "planned_singular_value", "measured_singular_value",
+                "judged")
+        try:
+            with np.load(folder / "verify.npz", allow_pickle=False) as z:
+                arrays = {k: z[k] for k in keys}
+        except (ValueError, KeyError, OSError) as exc:
+            raise InputError(f"cannot read ({exc})", source=str(folder / "verify.npz")) from None
     return FoundVerification(folder, doc, _read_csv(folder / "verify-channels.csv"),
-                             _read_csv(folder / "verify-summary.csv"))
+                             _read_csv(folder / "verify-summary.csv"), arrays)
 
 
 def _kind(folder: Path) -> str | None:

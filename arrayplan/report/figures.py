@@ -10,6 +10,7 @@ from __future__ import annotations
 import contextlib
 import io
 from dataclasses import dataclass
+from types import SimpleNamespace
 from typing import Iterator
 
 import numpy as np
@@ -17,8 +18,8 @@ from matplotlib.figure import Figure
 
 from ..field import best_plane, channel_field, default_plane
 from ..filters.check import plot_crosstalk as plot_filter_crosstalk
-from ..plots import (plot_channel_counts, plot_couplings, plot_field_panels, plot_ir_overview, plot_isolation,
-                     plot_level_map, plot_rig)
+from ..plots import (plot_channel_counts, plot_channel_matrices, plot_couplings, plot_field_panels,
+                     plot_ir_overview, plot_isolation, plot_level_map, plot_rig, plot_singular_values)
 from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundVerification
 
 __all__ = ["ReportFigure", "PAGE_WIDTH_IN", "MIN_FONT_PT", "report_style", "plan_figures", "filter_figures",
@@ -142,5 +143,18 @@ def verification_figures(found: FoundVerification) -> list[ReportFigure]:
     iso[f_idx, c_idx] = _floats(rows, "isolation_db")
     limit = float(found.doc.get("isolation_db", 20.0))
     out = [ReportFigure("Measured isolation of each wanted channel against frequency; a channel is lost where it "
-                        f"falls below {limit:g} dB.", plot_isolation(hz, chans, iso, limit, ax=_fig(3.6).subplots()))]
+                        f"falls below {limit:g} dB. Gaps: the channel is not judged there, or no other channel is, "
+                        "so there is no crosstalk to measure.", plot_isolation(hz, chans, iso, limit, ax=_fig(3.6).subplots()))]
+    a = found.arrays
+    if a is not None:
+        out.append(ReportFigure(
+            "Measured crosstalk: the realised channel matrix |combine^T G_measured drive| of the wanted channels at "
+            "up to four frequencies, dB re the strongest diagonal entry; blank rows and columns: channels not "
+            "judged there (not strong in the plan).",
+            plot_channel_matrices(a["frequency_hz"], a["channel_matrix"], np.asarray(a["channels"]) - 1,
+                                  judged=a["judged"], fig=_fig(3.0))))
+        sv = SimpleNamespace(hz=a["frequency_hz"], planned_sv=a["planned_singular_value"],
+                             measured_sv=a["measured_singular_value"])
+        out.append(ReportFigure("Planned singular values (solid) and those of the measured coupling matrices "
+                                "(dashed), dB re the strongest planned.", plot_singular_values(sv, ax=_fig(3.6).subplots())))
     return out
