@@ -262,8 +262,9 @@ def _build_probe(args: argparse.Namespace, src: str) -> dict[str, Any]:
             "pad_after_s": (x.shape[0] - nb - sw.n_sweep) / fs,
             "linear_lag_samples": nb + sw.n_sweep - 1,
             "sweep_peak_dbfs": 20 * math.log10(scale), "sweep_rms_dbfs": rms_dbfs(unit * scale),
-            "inverse_normalisation": "max |sweep * inverse| = 1 for the sweep at its level before the filters, "
-                                     "so a deconvolved recording is the channel's response per unit channel input",
+            "inverse_normalisation": "|DFT(sweep * inverse)| = 1 at the band centre for the sweep at its level "
+                                     "before the filters, so a deconvolved recording is the channel's response "
+                                     "per unit channel input",
         })
     return {"signal": x, "kind": f"channel_probe_{args.source}", "sweep": sweep_block, "extra_wavs": extra,
             "combine": "coherent", "channel_names": names,

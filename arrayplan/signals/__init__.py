@@ -8,7 +8,7 @@ Sweeps (:mod:`.sweeps`; exponential after A. Farina, 108th AES Convention, 2000)
     linear_sweep(f1_hz, f2_hz, duration_s, sample_rate_hz) -> (n,)
     exponential_inverse_filter(sweep, f1_hz, f2_hz, duration_s, sample_rate_hz) -> (n,)
     linear_inverse_filter(sweep) -> (n,)
-    normalise_inverse(played, inverse) -> (n,)     max |played * inverse| = 1
+    normalise_inverse(played, inverse, centre_hz, fs) -> (n,)  |DFT(played * inverse)| = 1 at centre_hz
     harmonic_offset_s(order, f1_hz, f2_hz, duration_s) -> s before the linear response
     check_sweep_band(kind, f1_hz, f2_hz, duration_s, sample_rate_hz, ...)  InputError if unusable
     SweepSettings, make_sweep(settings) -> SweepSignal (.signal, .sweep, .inverse,

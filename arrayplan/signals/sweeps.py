@@ -146,7 +146,7 @@ def exponential_inverse_filter(sweep: np.ndarray, f1_hz: float, f2_hz: float, du
     Returns
     -------
     ndarray, shape (n_sweep,)
-        Scale it so that ``max |sweep * inverse| = 1`` (as :func:`make_sweep` does).
+        Scale it with :func:`normalise_inverse` (unit gain at the band centre, as :func:`make_sweep` does).
     """
     sweep = np.asarray(sweep, dtype=float).reshape(-1)
     rate = duration_s / math.log(f2_hz / f1_hz)
