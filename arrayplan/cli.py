@@ -21,6 +21,8 @@ __all__ = ["main", "build_parser"]
 COMMAND_MODULES = (
     "arrayplan.commands.plan",
     "arrayplan.commands.field",
+    "arrayplan.commands.new_rig",
+    "arrayplan.commands.check_rig",
     "arrayplan.commands.devices",
     "arrayplan.commands.measure",
     "arrayplan.commands.calibrate",
