@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 from typing import Sequence
 
@@ -62,7 +63,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
-        return int(args.run(args) or 0)
+        status = int(args.run(args) or 0)
+        sys.stdout.flush()                   # a closed pipe shows up here, not at interpreter exit
+        return status
     except ArrayplanError as exc:
         text = exc.one_line() if hasattr(exc, "one_line") else " ".join(str(exc).split())
         print(f"arrayplan {args.command}: error: {text}", file=sys.stderr)
@@ -70,6 +73,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"arrayplan {args.command}: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # stdout went to a reader that stopped early (| head): not an error of ours; silence the
+        # interpreter's flush at exit (Python documentation, "Note on SIGPIPE", signal module)
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 141
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -37,8 +37,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--track", action="store_true", default=None,
                    help="order and phase-align channels from bin to bin")
     p.add_argument("--chunk-size", type=int, help="frequencies decomposed at once (bounds memory)")
-    p.add_argument("--irset", metavar="DIR",
-                   help="plan from this measured impulse-response set instead of the free field")
+    p.add_argument("--irset", metavar="DIR|FILE.sofa",
+                   help="plan from this measured impulse-response set (IR-set folder or AES69/SOFA file) "
+                        "instead of the free field")
     p.add_argument("--window-ms", type=float, metavar="MS",
                    help="with --irset: fade the responses out by this time to drop the late room response")
     p.add_argument("--latency-samples", type=int, default=0, metavar="N",

@@ -36,7 +36,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "on the real rig; report gain, crosstalk and lost channels per frequency. "
                                    "Exit 0 when every wanted channel passes, 1 when some fail, 2 on bad input.")
     p.add_argument("plan_dir", metavar="PLAN_DIR", help="folder written by 'arrayplan plan'")
-    p.add_argument("irset_dir", metavar="IRSET_DIR", help="IR-set folder measured on the rig")
+    p.add_argument("irset_dir", metavar="IRSET", help="IR-set folder (or AES69/SOFA file) measured on the rig")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--isolation-db", type=float, default=20.0,
                    help="a channel is lost where its isolation falls below this (dB, default 20)")
