@@ -32,6 +32,7 @@ __all__ = [
     "staged_output_dir",
     "provenance",
     "sha256_of_text",
+    "json_default",
 ]
 
 #: Stated in every output header and in the documentation.
@@ -85,7 +86,8 @@ def write_text_atomic(path: str | os.PathLike, text: str) -> Path:
     return write_bytes_atomic(path, text.encode("utf-8"))
 
 
-def _json_default(obj: Any) -> Any:
+def json_default(obj: Any) -> Any:
+    """``json.dumps(default=...)`` for numpy scalars and arrays and paths."""
     if isinstance(obj, np.generic):
         return obj.item()
     if isinstance(obj, np.ndarray):
@@ -97,7 +99,7 @@ def _json_default(obj: Any) -> Any:
 
 def write_json_atomic(path: str | os.PathLike, obj: Any) -> Path:
     """Write `obj` as indented JSON to `path` atomically."""
-    text = json.dumps(obj, indent=2, default=_json_default, allow_nan=False)
+    text = json.dumps(obj, indent=2, default=json_default, allow_nan=False)
     return write_text_atomic(path, text + "\n")
 
 

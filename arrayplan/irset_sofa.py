@@ -55,7 +55,7 @@ import numpy as np
 
 from ._version import __version__
 from .errors import InputError
-from .fileio import atomic_path, provenance as _provenance
+from .fileio import atomic_path, json_default, provenance as _provenance
 from .irset import FORMAT_NAME, FORMAT_VERSION, UNITS, IRSet
 
 __all__ = ["write_irset_sofa", "read_irset_sofa", "SOFA_CONVENTION", "METADATA_ATTRIBUTE"]
@@ -153,22 +153,12 @@ def write_irset_sofa(path: str | os.PathLike, irs: IRSet, **provenance_extra: An
     sofa.Data_Delay = np.zeros((1, n_mic, n_spk))
     sofa.add_attribute("GLOBAL_EmitterDescription", _name_list("loudspeakers", irs.speaker_names))
     sofa.add_attribute("GLOBAL_ReceiverDescription", _name_list("microphones", irs.mic_names))
-    text = json.dumps(meta, ensure_ascii=True, allow_nan=False, default=_json_default)
+    text = json.dumps(meta, ensure_ascii=True, allow_nan=False, default=json_default)
     sofa.add_attribute(METADATA_ATTRIBUTE, text)
     with atomic_path(path) as tmp, warnings.catch_warnings():
         warnings.simplefilter("ignore")
         sofar.write_sofa(str(tmp), sofa)
     return path
-
-
-def _json_default(obj: Any) -> Any:
-    if isinstance(obj, np.generic):
-        return obj.item()
-    if isinstance(obj, np.ndarray):
-        return obj.tolist()
-    if isinstance(obj, Path):
-        return str(obj)
-    raise TypeError(f"cannot write {type(obj).__name__} to JSON")
 
 
 def _positions_or_nan(pos: np.ndarray | None, n: int) -> np.ndarray:

@@ -18,7 +18,7 @@ from arrayplan.hardware.calibration import (CalibrationRecord, LatencyCalibratio
                                             read_calibration, sensitivity_db_re_1v_per_pa, tone_rms,
                                             write_calibration)
 
-from conftest import ARRAYPLAN_COMMAND, FAST_MEASURE_ARGS
+from conftest import ARRAYPLAN_COMMAND
 
 REPO = Path(__file__).resolve().parents[1]
 FS = 48000
