@@ -9,6 +9,24 @@ from ..irset import IRSet
 
 __all__ = ["plot_ir_overview"]
 
+#: The envelope image is max-pooled down to at most this many rows (pairs) and columns (samples).
+MAX_ROWS = 600
+MAX_COLUMNS = 1200
+
+
+def _max_pool(a: np.ndarray, axis: int, target: int) -> np.ndarray:
+    """Largest value over runs of equal length along `axis`, so that at most `target` remain."""
+    n = a.shape[axis]
+    if n <= target:
+        return a
+    step = int(np.ceil(n / target))
+    pad = [(0, 0)] * a.ndim
+    pad[axis] = (0, (-n) % step)
+    a = np.pad(a.astype(float, copy=False), pad, constant_values=-np.inf)
+    shape = list(a.shape)
+    shape[axis:axis + 1] = [shape[axis] // step, step]
+    return a.reshape(shape).max(axis=axis + 1)
+
 
 def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80.0,
                      max_time_s: float | None = None) -> Figure:
@@ -17,7 +35,9 @@ def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80
     Left: 20 log10 |h| re the largest sample of the set, time against pair
     (pairs ordered speaker by speaker, microphones within), so a late, weak
     or missing response stands out as a row.  Right: each pair's peak level
-    (dB re the largest), microphones down, speakers across.
+    (dB re the largest), microphones down, speakers across.  Sets larger than
+    :data:`MAX_ROWS` pairs or :data:`MAX_COLUMNS` samples are max-pooled, so
+    no peak disappears from the picture.
 
     Parameters
     ----------
@@ -49,6 +69,7 @@ def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80
     else:
         n_show = min(irs.n_samples, int(max_time_s * irs.sample_rate_hz) + 1)
     pairs = data[:n_show].transpose(2, 1, 0).reshape(irs.n_spk * irs.n_mic, n_show)    # (pair, time)
+    pairs = _max_pool(_max_pool(pairs, 0, MAX_ROWS), 1, MAX_COLUMNS)     # big sets: keep every peak visible
     with np.errstate(divide="ignore"):
         env_db = np.maximum(20.0 * np.log10(pairs / ref), -range_db)
         peak_db = np.maximum(20.0 * np.log10(data.max(axis=0) / ref), -range_db)       # (mic, spk)

@@ -40,7 +40,10 @@ def _anchor(kind: str, path: Path, root: Path) -> str:
 
 
 def _fmt(x: float, spec: str = ".3g") -> str:
-    return "-" if x is None or not np.isfinite(x) else format(x, spec)
+    if x is None or not np.isfinite(x):
+        return "-"
+    text = format(x, spec)
+    return text[1:] if text.startswith("-") and not text.strip("-0.") else text     # no "-0.0"
 
 
 def _figures_html(figs: list[ReportFigure], label: str) -> str:
@@ -207,12 +210,28 @@ def _verification_verdicts(found: FoundVerification) -> list[list[object]]:
         iso = np.array([float(r["isolation_db"]) if r["isolation_db"] else np.nan for r in rs])
         gain = np.array([float(r["gain_db"]) if r["gain_db"] else np.nan for r in rs])
         lost = sum(int(r["lost"]) for r in rs)
-        worst = int(np.nanargmin(iso)) if np.any(np.isfinite(iso)) else 0
+        judged = sum(r.get("judged", "1") not in ("0", "False", "false") for r in rs)
+        finite = np.isfinite(iso)
+        worst = int(np.flatnonzero(finite)[np.argmin(iso[finite])]) if finite.any() else None
         ok = passed.get(c, lost == 0)
-        rows.append([c, "PASS" if ok else "FAIL", _fmt(iso[worst], ".1f"), _fmt(float(rs[worst]["frequency_hz"]), ".5g"),
-                     f"{lost} of {len(rs)}", _fmt(float(np.nanmedian(gain)) if np.any(np.isfinite(gain)) else np.nan,
-                                                  ".1f")])
+        median_gain = float(np.nanmedian(gain)) if np.any(np.isfinite(gain)) else np.nan
+        rows.append([c, "PASS" if ok else "FAIL",
+                     "-" if worst is None else _fmt(iso[worst], ".1f"),
+                     "-" if worst is None else _fmt(float(rs[worst]["frequency_hz"]), ".5g"),
+                     f"{lost} of {judged} judged", _fmt(median_gain, ".1f")])
     return rows
+
+
+def _gain_reference_text(doc: dict) -> str:
+    ref = doc.get("gain_reference", "plan")
+    common = doc.get("common_gain_db")
+    text = ("the plan's singular values, in the plan's units" if ref == "plan" else
+            "the plan times one common factor fitted to the measurement")
+    if common is not None:
+        text += f"; common factor {common:+.2f} dB re plan"
+    if doc.get("gain_reference_reason"):
+        text += f" ({doc['gain_reference_reason']})"
+    return text
 
 
 def _verification_section(found: FoundVerification, root: Path) -> str:
@@ -223,11 +242,13 @@ def _verification_section(found: FoundVerification, root: Path) -> str:
         ["plan", d.get("plan_dir", "")], ["measured impulse responses", d.get("irset_dir", "")],
         ["isolation limit", f"{d.get('isolation_db', '')} dB"], ["measured units", d.get("irset_units", "")],
         ["window", "none" if d.get("window_ms") is None else f"{d.get('window_ms')} ms"],
+        ["wanted channels", d.get("wanted_channels_rule", "all planned channels")],
+        ["gain reference", _gain_reference_text(d)],
     ], text_columns=(0, 1)))
     rows = _verification_verdicts(found)
     classes = {(r, 1): ("pass" if row[1] == "PASS" else "fail") for r, row in enumerate(rows)}
     parts.append("<h3>Channels</h3>" + table(
-        ["channel", "verdict", "worst isolation (dB)", "at (Hz)", "lost at", "median gain re plan (dB)"],
+        ["channel", "verdict", "worst isolation (dB)", "at (Hz)", "lost at", "median gain re reference (dB)"],
         rows, text_columns=(), cell_classes=classes))
     if d.get("gain_note"):
         parts.append(f'<p class="note">{esc(d["gain_note"])}</p>')
