@@ -1,0 +1,88 @@
+"""Build the report of a large project; print time and memory against bare figure rendering.
+
+Run: python benchmarks/report_speed.py [--n 64] [--freqs 256]
+
+The project (made beforehand, not counted): a plan of an n x n rig at the
+given number of frequencies, written with write_plan, and the rig's
+free-field IR set (simulated).  Both runs happen in this process:
+
+* baseline: render (after one warm-up figure) as many empty figures of the report's size to PNG at
+  the report's resolution as the report holds, the part of the work that
+  does not depend on the data;
+* report: arrayplan.report.build_report on the project folder.
+
+The ratio shows what finding, reading, plotting and encoding the data cost
+beyond matplotlib's own rendering.  Peak memory is measured with tracemalloc,
+in runs of their own (it slows allocation, so it stays out of the timings).
+"""
+
+from __future__ import annotations
+
+import argparse
+import tempfile
+import time
+import tracemalloc
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+import numpy as np
+from matplotlib.figure import Figure
+
+from arrayplan import FrequencyAxis, Rig, plan_rig, write_plan, write_irset
+from arrayplan.report import build_report
+from arrayplan.report.figures import PAGE_WIDTH_IN, png_bytes
+from arrayplan.simulate import free_field_irset
+
+
+def make_project(folder: Path, n: int, n_freq: int) -> None:
+    rng = np.random.default_rng(7)
+    spk = np.column_stack([np.linspace(-1.0, 1.0, n), rng.uniform(-0.01, 0.01, n), np.zeros(n)])
+    mic = np.column_stack([np.linspace(-1.2, 1.2, n), rng.uniform(-0.01, 0.01, n), np.full(n, 5.0)])
+    rig = Rig.from_positions(spk, mic, speed_of_sound=343.2, name=f"bench-{n}x{n}")
+    plan = plan_rig(rig, FrequencyAxis.spaced(200.0, 8000.0, n_freq, "log"))
+    write_plan(plan, folder / "plan", figures=False)
+    write_irset(folder / "irset", free_field_irset(rig, 48000.0, 2048))
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--n", type=int, default=64, help="speakers = microphones")
+    ap.add_argument("--freqs", type=int, default=256)
+    args = ap.parse_args()
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp)
+        make_project(folder, args.n, args.freqs)
+        png_bytes(Figure(figsize=(PAGE_WIDTH_IN, 3.5)).add_subplot().figure)   # warm up fonts and caches
+
+        def baseline(n_figs: int) -> None:
+            for _ in range(n_figs):
+                png_bytes(Figure(figsize=(PAGE_WIDTH_IN, 3.5)).add_subplot().figure)
+
+        t0 = time.perf_counter()
+        html = build_report(folder)
+        t_report = time.perf_counter() - t0
+        n_figs = html.count("<img ")
+        t0 = time.perf_counter()
+        baseline(n_figs)
+        t_base = time.perf_counter() - t0
+        # memory in separate runs: tracemalloc slows allocation, so it stays out of the timings
+        peaks = []
+        for job in (lambda: build_report(folder), lambda: baseline(n_figs)):
+            tracemalloc.start()
+            job()
+            peaks.append(tracemalloc.get_traced_memory()[1])
+            tracemalloc.stop()
+        peak_report, peak_base = peaks
+
+    print(f"project: {args.n} speakers x {args.n} microphones, {args.freqs} frequencies, IR set of 2048 samples")
+    print(f"report: {n_figs} figures, {len(html) / 2**20:.1f} MiB of HTML")
+    print(f"baseline ({n_figs} empty figures to PNG): {t_base:.2f} s, peak {peak_base / 2**20:.0f} MiB")
+    print(f"report:                              {t_report:.2f} s, peak {peak_report / 2**20:.0f} MiB")
+    print(f"ratio report / baseline: time {t_report / t_base:.1f}x, memory {peak_report / max(peak_base, 1):.1f}x")
+
+
+if __name__ == "__main__":
+    main()
