@@ -314,3 +314,14 @@ def test_report_renders_in_headless_chromium(project, report_html, tmp_path):
     # A4 in PDF points: 595 x 842 (ISO 216: 210 mm x 297 mm at 72 pt per inch)
     box = re.search(rb"/MediaBox\s*\[\s*0\s+0\s+([\d.]+)\s+([\d.]+)\s*\]", data)
     assert box and abs(float(box.group(1)) - 595.3) < 1.5 and abs(float(box.group(2)) - 841.9) < 1.5
+
+
+def test_sofa_files_in_the_project_are_reported(project, tmp_path):
+    copy = tmp_path / "proj"
+    shutil.copytree(project, copy)
+    (copy / "report.html").unlink(missing_ok=True)
+    assert main(["irset", "convert", str(copy / "meas" / "irset"), str(copy / "meas" / "rig.sofa")]) == 0
+    html = build_report(copy)
+    assert "Impulse responses: meas/rig.sofa" in html and "AES69 (SOFA) file" in html
+    p = _parse(html)
+    assert p.errors == [] and len([t for t, _ in p.tags if t == "img"]) >= 9

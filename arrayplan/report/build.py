@@ -294,6 +294,8 @@ def _summary(results: ProjectResults, root: Path) -> str:
 
 
 def _provenance_of(path: Path) -> dict:
+    if path.suffix.lower() == ".sofa":
+        return _sofa_provenance(path)
     try:
         doc = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
@@ -301,11 +303,29 @@ def _provenance_of(path: Path) -> dict:
     return doc.get("provenance", {}) if isinstance(doc, dict) else {}
 
 
+def _sofa_provenance(path: Path) -> dict:
+    """The provenance arrayplan stored in a SOFA file, else the file's own creation date and producer."""
+    try:
+        import netCDF4
+
+        with netCDF4.Dataset(str(path)) as nc:
+            attrs = {k: nc.getncattr(k) for k in nc.ncattrs()}
+    except (ImportError, OSError):
+        return {}
+    try:
+        prov = json.loads(attrs.get("ArrayplanIRSet", "{}")).get("provenance", {})
+    except (ValueError, AttributeError):
+        prov = {}
+    return prov or {"tool_version": f"{attrs.get('APIName', '?')} {attrs.get('APIVersion', '')}".strip(),
+                    "written_utc": attrs.get("DateCreated", "?")}
+
+
 def _provenance_section(results: ProjectResults, root: Path, generated: str) -> str:
     rows = []
     sources = ([(fp.folder / "weights.json", "plan") for fp in results.plans]
                + [(ff.folder / "filters.json", "filters") for ff in results.filters]
-               + [(fi.folder / MANIFEST_NAME, "impulse responses") for fi in results.irsets]
+               + [(fi.folder if fi.folder.is_file() else fi.folder / MANIFEST_NAME, "impulse responses")
+                  for fi in results.irsets]
                + [(fv.folder / "verify.json", "verification") for fv in results.verifications])
     for path, kind in sources:
         prov = _provenance_of(path)

@@ -11,7 +11,8 @@ example::
       verify/        verify.json (kind arrayplan-verification), verify-*.csv
 
 Each result is recognised by its sidecar, wherever it lies (up to
-:data:`MAX_DEPTH` folders down).  Per-take IR sets (``takes/*/irset``) and
+:data:`MAX_DEPTH` folders down); AES69 (SOFA) files (``*.sofa``) count as IR
+sets.  Per-take IR sets (``takes/*/irset``) and
 harmonic IR sets (``harmonic-N/``) are parts of a larger result and are not
 listed on their own.  A result whose files cannot be read is not fatal: it
 is listed with the reason, so the report still comes out and says what is
@@ -78,7 +79,7 @@ class FoundFilters:
 
 @dataclass
 class FoundIRSet:
-    """An IR set; `role` says who wrote it (measurement, deconvolution, or unknown)."""
+    """An IR set (a folder, or a ``.sofa`` file); `role` says who wrote it (measurement, deconvolution, SOFA...)."""
 
     folder: Path
     irs: IRSet
@@ -195,6 +196,8 @@ def _load_filters(folder: Path) -> FoundFilters:
 
 def _load_irset(folder: Path) -> FoundIRSet:
     irs = read_irset(folder)
+    if folder.suffix.lower() == ".sofa":
+        return FoundIRSet(folder, irs, "AES69 (SOFA) file")
     parent = folder.parent
     if (parent / "session.json").is_file():
         session = _read_json(parent / "session.json")
@@ -271,13 +274,14 @@ def find_results(project_dir: str | os.PathLike, rig: Rig | None = None) -> Proj
                "irset": (_load_irset, out.irsets),
                "verification": (_load_verification, out.verifications)}
     for folder in _walk(root):
-        kind = _kind(folder)
-        if kind is None:
-            continue
-        load, bucket = loaders[kind]
-        try:
-            bucket.append(load(folder))
-        except InputError as exc:
-            text = exc.one_line() if hasattr(exc, "one_line") else str(exc)
-            out.problems.append(f"{kind} in {folder}: {text}")
+        found = [(_kind(folder), folder)] + [("irset", f) for f in sorted(folder.glob("*.sofa")) if f.is_file()]
+        for kind, where in found:
+            if kind is None:
+                continue
+            load, bucket = loaders[kind]
+            try:
+                bucket.append(load(where))
+            except InputError as exc:
+                text = exc.one_line() if hasattr(exc, "one_line") else str(exc)
+                out.problems.append(f"{kind} in {where}: {text}")
     return out
