@@ -123,6 +123,12 @@ def _gain_lines(res: Verification, reason: str) -> list[str]:
     return [f"gain reference: plan ({reason}); the common offset re plan is {_signed(res.common_gain_db)} dB"]
 
 
+def _plan_rig_hash(sidecar: object) -> str | None:
+    """The rig hash the plan was made for, if its sidecar gives one."""
+    rig = sidecar.get("rig") if isinstance(sidecar, dict) else None
+    return rig.get("sha256") if isinstance(rig, dict) else None
+
+
 def run(args: argparse.Namespace) -> int:
     matplotlib.use("Agg")
     weights = read_weights(args.plan_dir)
@@ -178,7 +184,7 @@ def run(args: argparse.Namespace) -> int:
             "files": {"verify.npz": "frequency_hz (n_freq,), channels (n_want,) 1-based, channel_matrix complex "
                                     "(n_freq, n_chan, n_chan) = combine^T G_measured drive, planned_singular_value "
                                     "and measured_singular_value (n_freq, n_chan), judged (n_freq, n_want)"},
-            "provenance": provenance()})
+            "provenance": provenance(rig_sha256=_plan_rig_hash(weights.sidecar))})
         np.savez(stage / "verify.npz", frequency_hz=res.hz, channels=np.asarray(res.channels) + 1,
                  channel_matrix=res.channel_matrix, planned_singular_value=res.planned_sv,
                  measured_singular_value=res.measured_sv, judged=res.judged)
