@@ -250,3 +250,48 @@ def test_bad_sweep_settings_are_refused_with_the_field(kw, field):
 def test_too_short_message_says_how_long():
     with pytest.raises(InputError, match=r"too short.*use --duration-s"):
         _sweep(f1_hz=20.0, f2_hz=20000.0, duration_s=0.3)
+
+
+@pytest.mark.parametrize("f1, f2, T", [(40.0, 20000.0, 3.0), (20.0, 20000.0, 4.0), (100.0, 16000.0, 1.0)])
+def test_default_fades_are_one_fresnel_time_and_keep_the_band_flat(f1, f2, T):
+    # Fades of 1 / sqrt(f ln(f2/f1) / T) at f1 and f2 (the time to cross one Fresnel zone; common
+    # practice, no source) when none are given; Mueller & Massarani 2001 (flat in band): the unity
+    # response then stays within 0.1 dB from half an octave above the fade-in's end to a tenth of an
+    # octave below the fade-out's start, the claim checked above for hand-set fades.
+    sw = _sweep(f1_hz=f1, f2_hz=f2, duration_s=T, fade_in_s=None, fade_out_s=None)
+    s = sw.settings
+    assert s.fade_in_s == pytest.approx(1 / math.sqrt(f1 * math.log(f2 / f1) / T), rel=1e-12)
+    assert s.fade_out_s == pytest.approx(1 / math.sqrt(f2 * math.log(f2 / f1) / T), rel=1e-12)
+    side = sw.sidecar("x.inverse.wav")
+    assert side["fade_in_s"] == s.fade_in_s and side["fade_rule"].startswith("one Fresnel time")
+    lo, hi = _band_inside_fades(sw, 1 / 2, 1 / 10)
+    flat = sw.flat_band_hz
+    assert flat[0] <= lo and flat[1] >= hi
+    freqs, resp = unity_response(sw.sweep, sw.inverse, FS)
+    band = (freqs >= flat[0]) & (freqs <= flat[1])
+    assert np.max(np.abs(20 * np.log10(np.abs(resp[band])))) <= 0.1
+
+
+def test_default_fades_start_the_flat_band_lower_than_fixed_short_fades():
+    # The measurement sweep (40 Hz-20 kHz, 3 s): fixed 20 ms / 5 ms fades leave the band flat only from
+    # more than an octave above f1; the default fades bring that to within an octave.
+    fixed = _sweep(f1_hz=40.0, f2_hz=20000.0, duration_s=3.0, fade_in_s=0.02, fade_out_s=0.005)
+    auto = _sweep(f1_hz=40.0, f2_hz=20000.0, duration_s=3.0)
+    assert fixed.flat_band_hz[0] > 2 * 40.0
+    assert auto.flat_band_hz[0] < 2 * 40.0 < fixed.flat_band_hz[0]
+    assert auto.flat_band_hz[1] >= fixed.flat_band_hz[1] - 1.0
+
+
+def test_default_fades_are_capped_for_short_sweeps_and_given_fades_are_kept():
+    # 100 Hz-20 kHz in 0.2 s: one Fresnel time at f1 is longer than half an octave's time, the longest
+    # fade the sweep accepts; the default takes that limit instead of refusing the sweep.
+    rate = 0.2 / math.log(200.0)
+    sw = _sweep(f1_hz=100.0, f2_hz=20000.0, duration_s=0.2)
+    assert 1 / math.sqrt(100.0 / rate) > rate * math.log(2) / 2
+    assert sw.settings.fade_in_s == pytest.approx(rate * math.log(2) / 2, rel=1e-12)
+    given = _sweep(f1_hz=100.0, f2_hz=20000.0, duration_s=0.2, fade_in_s=0.004)
+    assert given.settings.fade_in_s == 0.004
+    assert given.settings.fade_out_s == pytest.approx(1 / math.sqrt(20000.0 / rate), rel=1e-12)
+    assert "fade-in as given" in given.sidecar(None)["fade_rule"]
+    lin = _sweep(kind="linear", f1_hz=200.0, f2_hz=16000.0, duration_s=1.0)
+    assert lin.settings.fade_in_s == lin.settings.fade_out_s == pytest.approx(1 / math.sqrt(15800.0), rel=1e-12)

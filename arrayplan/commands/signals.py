@@ -72,7 +72,14 @@ def _add_output(p: argparse.ArgumentParser) -> None:
                    help="sample format of the signal file (default float32)")
 
 
-def _add_level(p: argparse.ArgumentParser, fade_in: float, fade_out: float) -> None:
+#: Help text of the fade options of sweeps, schedules and probes (default: the sweep's Fresnel-length fades).
+_FRESNEL_FADES = ("one Fresnel time of the sweep at f1 (fade-in) or f2 (fade-out), 1/sqrt(f ln(f2/f1)/T), "
+                  "which keeps the band flat")
+#: Fades of a noise probe when none are given, s (common practice, no source).
+_NOISE_PROBE_FADES = (0.02, 0.005)
+
+
+def _add_level(p: argparse.ArgumentParser, fade_in: float | None, fade_out: float | None) -> None:
     g = p.add_argument_group("level and conditioning")
     m = g.add_mutually_exclusive_group()
     m.add_argument("--peak-dbfs", type=float, help="peak level in dBFS (default: the peak cap)")
@@ -81,9 +88,10 @@ def _add_level(p: argparse.ArgumentParser, fade_in: float, fade_out: float) -> N
                    help=f"highest peak allowed without --allow-above-cap (default {DEFAULT_PEAK_CAP_DBFS:g})")
     g.add_argument("--allow-above-cap", action="store_true",
                    help="allow a peak above the cap (never above 0 dBFS: clipping is always refused)")
-    g.add_argument("--fade-in-s", type=float, default=fade_in, help=f"raised-cosine fade-in, s (default {fade_in:g})")
+    g.add_argument("--fade-in-s", type=float, default=fade_in,
+                   help=f"raised-cosine fade-in, s (default {_FRESNEL_FADES if fade_in is None else f'{fade_in:g}'})")
     g.add_argument("--fade-out-s", type=float, default=fade_out,
-                   help=f"raised-cosine fade-out, s (default {fade_out:g})")
+                   help=f"raised-cosine fade-out, s (default {'the same rule' if fade_out is None else f'{fade_out:g}'})")
     g.add_argument("--highpass-hz", type=float, help="Butterworth high-pass for small drivers, Hz (default none)")
     g.add_argument("--highpass-order", type=int, default=2, help="its order (default 2, 12 dB per octave)")
     g.add_argument("--pad-before-s", type=float, default=0.1, help="silence before the signal, s (default 0.1)")
@@ -158,8 +166,10 @@ def _sweep_settings(args: argparse.Namespace, **override: Any) -> SweepSettings:
     return SweepSettings(**kw)
 
 
-def _conditioning(args: argparse.Namespace) -> dict[str, Any]:
-    return {"fade_in_s": args.fade_in_s, "fade_out_s": args.fade_out_s, "fade_shape": "raised cosine",
+def _conditioning(args: argparse.Namespace, fades: tuple[float, float] | None = None) -> dict[str, Any]:
+    """The sidecar's conditioning block; `fades` are the fades used when the builder resolved defaults."""
+    fade_in, fade_out = fades if fades is not None else (args.fade_in_s, args.fade_out_s)
+    return {"fade_in_s": fade_in, "fade_out_s": fade_out, "fade_shape": "raised cosine",
             "dc_blocked": True, "highpass_hz": args.highpass_hz,
             "highpass_order": args.highpass_order if args.highpass_hz is not None else None}
 
@@ -169,7 +179,7 @@ def _build_sweep(args: argparse.Namespace, src: str) -> dict[str, Any]:
     inv = inverse_path(args.out)
     return {"signal": sw.signal[:, None], "kind": f"{sw.settings.kind}_sweep", "sweep": sw.sidecar(inv.name),
             "extra_wavs": {inv: sw.inverse}, "combine": "coherent", "channel_names": ["S1"],
-            "parameters": {}}
+            "parameters": {}, "fades": (sw.settings.fade_in_s, sw.settings.fade_out_s)}
 
 
 def _build_noise(args: argparse.Namespace, src: str) -> dict[str, Any]:
@@ -220,7 +230,7 @@ def _build_schedule(args: argparse.Namespace, src: str) -> dict[str, Any]:
     inv = inverse_path(args.out)
     return {"signal": sched.signal, "kind": f"{sw.settings.kind}_sweep_schedule", "sweep": sw.sidecar(inv.name),
             "extra_wavs": {inv: sw.inverse}, "combine": "one_at_a_time", "channel_names": names,
-            "parameters": {"n_speakers": len(names)},
+            "parameters": {"n_speakers": len(names)}, "fades": (sw.settings.fade_in_s, sw.settings.fade_out_s),
             "schedule": {"segment_length_samples": sched.segment_length,
                          "speakers": [{"speaker": n, "channel": k + 1, "sweep_start_sample": sched.sweep_starts[k],
                                        "segment_start_sample": sched.segment_starts[k]}
@@ -237,10 +247,13 @@ def _build_probe(args: argparse.Namespace, src: str) -> dict[str, Any]:
         sw = make_sweep(_sweep_settings(args, peak_dbfs=0.0, rms_dbfs=None, allow_above_cap=True,
                                         pad_before_s=0.0, pad_after_s=1.0 / fs), source=src)
         unit = sw.sweep
+        fades = (sw.settings.fade_in_s, sw.settings.fade_out_s)
     else:
+        fades = (_NOISE_PROBE_FADES[0] if args.fade_in_s is None else args.fade_in_s,
+                 _NOISE_PROBE_FADES[1] if args.fade_out_s is None else args.fade_out_s)
         unit = condition(band_limited_noise(args.source, args.duration_s, fs, args.f1_hz, _f2(args),
-                                            seed=args.seed, source=src), fs, fade_in_s=args.fade_in_s,
-                         fade_out_s=args.fade_out_s, highpass_hz=args.highpass_hz,
+                                            seed=args.seed, source=src), fs, fade_in_s=fades[0],
+                         fade_out_s=fades[1], highpass_hz=args.highpass_hz,
                          highpass_order=args.highpass_order, source=src)
     # The source is faded at both ends, so each speaker's drive starts and ends at zero too;
     # only the DC the filters could add is removed again.
@@ -267,7 +280,7 @@ def _build_probe(args: argparse.Namespace, src: str) -> dict[str, Any]:
                                      "per unit channel input",
         })
     return {"signal": x, "kind": f"channel_probe_{args.source}", "sweep": sweep_block, "extra_wavs": extra,
-            "combine": "coherent", "channel_names": names,
+            "combine": "coherent", "channel_names": names, "fades": fades,
             "parameters": {"source": args.source, "f1_hz": args.f1_hz, "f2_hz": _f2(args),
                            "duration_s": args.duration_s, "seed": getattr(args, "seed", None)},
             "probe": {"channel_name": channel, "filters_file": str(Path(args.filters).name),
@@ -328,7 +341,7 @@ def _run(args: argparse.Namespace) -> int:
                   "peak_cap_dbfs": getattr(args, "peak_cap_dbfs", None),
                   "above_cap_allowed": bool(getattr(args, "allow_above_cap", False)),
                   "dbfs_convention": "20 log10 of peak or RMS, full scale = 1 (full-scale sine: -3.01 dBFS RMS)"},
-        "conditioning": _conditioning(args) if playable else None,
+        "conditioning": _conditioning(args, built.get("fades")) if playable else None,
         "parameters": built["parameters"],
         "sweep": built.get("sweep"),
         "schedule": built.get("schedule"),
@@ -371,7 +384,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
     s = sub.add_parser("sweep", help="exponential or linear sine sweep, with its inverse filter")
     _add_sweep(s)
-    _add_level(s, 0.02, 0.005)
+    _add_level(s, None, None)
     _add_output(s)
     _add_exposure(s)
 
@@ -413,7 +426,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--speakers", type=_positive_int, help="number of speakers (channels, rig order)")
     s.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated (default S1, S2, ...)")
     _add_sweep(s)
-    _add_level(s, 0.02, 0.005)
+    _add_level(s, None, None)
     _add_output(s)
     _add_exposure(s)
 
@@ -423,11 +436,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                    help="the channel's drive filters: float WAV, one channel per speaker in rig order "
                         "(speaker names are taken from FILTERS.json if it exists)")
     s.add_argument("--source", choices=("sweep",) + NOISE_COLOURS, default="sweep",
-                   help="probe signal before the filters (default sweep; its inverse filter is written too)")
+                   help="probe signal before the filters (default sweep; its inverse filter is written too; "
+                        "noise is faded 0.02 s in and 0.005 s out unless the fades are given)")
     s.add_argument("--channel-name", help="name of the channel in the sidecar (default: the filter file's stem)")
     s.add_argument("--seed", type=int, help="random seed for a noise source")
     _add_sweep(s)
-    _add_level(s, 0.02, 0.005)
+    _add_level(s, None, None)
     _add_output(s)
     _add_exposure(s)
 

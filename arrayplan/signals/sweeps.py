@@ -35,9 +35,24 @@ exponential sweep takes to cross one Fresnel zone, ``1 / sqrt(f ln(f2/f1) / T)``
 seconds at f = f1 for the fade-in and f = f2 for the fade-out, see
 :func:`fresnel_time_s`) the ripple stays within 0.1 dB from half an octave
 above the fade-in's end to a tenth of an octave below the fade-out's start
-(measured, see tests/test_signals_sweeps.py).  The default 20 ms fade-in is
-far shorter than that at 20 Hz (0.17 s for a 4 s sweep): the flat band then
-starts about two octaves up, and :attr:`SweepSignal.flat_band_hz` says where.
+(measured, see tests/test_signals_sweeps.py).  These are the default fades
+(:func:`default_fades_s`), used when a fade is not given; a fixed 20 ms
+fade-in is far shorter than that at 20 Hz (0.17 s for a 4 s sweep) and loses
+more than an octave at the bottom.  :attr:`SweepSignal.flat_band_hz` says
+where the band is flat in either case.
+
+Pre-roll
+--------
+The deconvolved pulse is close to zero phase: it rings *before* zero lag as
+much as after, and longest at the lowest frequencies, for about one Fresnel
+time at f1.  A response cut at zero lag loses that pre-ringing when the
+acoustic delay is shorter, and reads low near f1.  Producers of impulse
+responses therefore keep :func:`default_pre_roll_s` before zero lag: one
+Fresnel time at f1 (the default fade-in), but no more than half the time to
+the 2nd harmonic's response (where the harmonic windows begin), so the
+pre-roll holds no distortion products.  For a linear sweep the Fresnel time
+is ``sqrt(T / (f2 - f1))`` at every frequency; it rings at both band edges and
+keeps two Fresnel times, at most T / 4.
 
 The pure functions (:func:`exponential_sweep`, :func:`linear_sweep`,
 :func:`exponential_inverse_filter`, :func:`linear_inverse_filter`,
@@ -50,7 +65,7 @@ holds everything :mod:`arrayplan.signals.deconvolve` needs.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -72,6 +87,9 @@ __all__ = [
     "band_centre_hz",
     "unity_response",
     "flat_band_hz",
+    "fresnel_time_s",
+    "default_fades_s",
+    "default_pre_roll_s",
     "harmonic_offset_s",
     "check_sweep_band",
     "SweepSettings",
@@ -239,8 +257,10 @@ class SweepSettings:
         Sweep duration, s (padding excluded).
     sample_rate_hz : float
         Sample rate, Hz.
-    fade_in_s, fade_out_s : float
-        Raised-cosine fades on the sweep, s (> 0).
+    fade_in_s, fade_out_s : float or None
+        Raised-cosine fades on the sweep, s (> 0); None (the default) takes
+        one Fresnel time at f1 and f2 (:func:`default_fades_s`).
+        :func:`make_sweep` returns the settings with the values used.
     pad_before_s, pad_after_s : float
         Silence before and after the sweep, s.  The silence after is the
         room's decay time the recording captures: the impulse-response length.
@@ -257,8 +277,8 @@ class SweepSettings:
     f2_hz: float = 20000.0
     duration_s: float = 4.0
     sample_rate_hz: float = 48000.0
-    fade_in_s: float = 0.02
-    fade_out_s: float = 0.005
+    fade_in_s: float | None = None
+    fade_out_s: float | None = None
     pad_before_s: float = 0.1
     pad_after_s: float = 1.0
     peak_dbfs: float | None = None
@@ -267,6 +287,14 @@ class SweepSettings:
     allow_above_cap: bool = False
     highpass_hz: float | None = None
     highpass_order: int = 2
+
+    def with_fades(self) -> "SweepSettings":
+        """These settings with the default fades (:func:`default_fades_s`) filled in where None."""
+        if self.fade_in_s is not None and self.fade_out_s is not None:
+            return self
+        auto_in, auto_out = default_fades_s(self.kind, self.f1_hz, self.f2_hz, self.duration_s)
+        return replace(self, fade_in_s=auto_in if self.fade_in_s is None else self.fade_in_s,
+                       fade_out_s=auto_out if self.fade_out_s is None else self.fade_out_s)
 
     def level(self) -> dict[str, float | None]:
         if self.peak_dbfs is None and self.rms_dbfs is None:
@@ -325,6 +353,12 @@ class SweepSignal:
     def linear_lag(self) -> int:
         return self.n_pad_before + self.n_sweep - 1
 
+    @property
+    def pre_roll_samples(self) -> int:
+        """Samples to keep before zero lag in a deconvolved response (:func:`default_pre_roll_s`)."""
+        s = self.settings
+        return int(math.floor(default_pre_roll_s(s.kind, s.f1_hz, s.f2_hz, s.duration_s) * s.sample_rate_hz))
+
     def harmonic_offsets_samples(self, max_order: int = 5) -> dict[int, float]:
         """Offsets (samples, fractional) of harmonics 2..max_order before the linear response.
 
@@ -353,6 +387,7 @@ class SweepSignal:
             "fade_in_s": s.fade_in_s,
             "fade_out_s": s.fade_out_s,
             "fade_shape": "raised cosine",
+            "fade_rule": self.extra.get("fade_rule", "as given"),
             "dc_blocked": True,
             "highpass_hz": s.highpass_hz,
             "highpass_order": s.highpass_order if s.highpass_hz is not None else None,
@@ -365,6 +400,9 @@ class SweepSignal:
             "flat_band_hz": list(self.flat_band_hz),
             "flat_band_tolerance_db": FLAT_BAND_TOLERANCE_DB,
             "linear_lag_samples": self.linear_lag,
+            "pre_roll_samples": self.pre_roll_samples,
+            "pre_roll_rule": "one Fresnel time at f1, at most half the time to the 2nd harmonic "
+                             "(linear sweeps: two Fresnel times, at most a quarter of the sweep)",
             "harmonic_offsets_samples": {str(k): v for k, v in self.harmonic_offsets_samples().items()},
         }
 
@@ -388,6 +426,11 @@ def make_sweep(settings: SweepSettings, *, source: str | None = None) -> SweepSi
     s = settings
     check_sweep_band(s.kind, s.f1_hz, s.f2_hz, s.duration_s, s.sample_rate_hz,
                      fade_in_s=s.fade_in_s, fade_out_s=s.fade_out_s, source=source)
+    given = [name for name, v in (("fade-in", s.fade_in_s), ("fade-out", s.fade_out_s)) if v is not None]
+    fade_rule = ("as given" if len(given) == 2 else
+                 "one Fresnel time at f1 (fade-in) and f2 (fade-out)"
+                 + (f"; {given[0]} as given" if given else ""))
+    s = s.with_fades()
     n_before = _pad_samples(s.pad_before_s, s.sample_rate_hz, "--pad-before-s", source)
     n_after = _pad_samples(s.pad_after_s, s.sample_rate_hz, "--pad-after-s", source)
     if n_after < 1:
@@ -408,7 +451,7 @@ def make_sweep(settings: SweepSettings, *, source: str | None = None) -> SweepSi
     inverse = normalise_inverse(played, inverse, band_centre_hz(s.kind, s.f1_hz, s.f2_hz), s.sample_rate_hz)
     signal = np.concatenate([np.zeros(n_before), played, np.zeros(n_after)])
     return SweepSignal(settings=s, sweep=played, signal=signal, inverse=inverse,
-                       n_pad_before=n_before, n_pad_after=n_after)
+                       n_pad_before=n_before, n_pad_after=n_after, extra={"fade_rule": fade_rule})
 
 
 def band_centre_hz(kind: str, f1_hz: float, f2_hz: float) -> float:
@@ -429,6 +472,73 @@ def fresnel_time_s(freq_hz: float, f1_hz: float, f2_hz: float, duration_s: float
     (measured; common practice, no source).
     """
     return 1.0 / math.sqrt(freq_hz * math.log(f2_hz / f1_hz) / duration_s)
+
+
+def _linear_fresnel_time_s(f1_hz: float, f2_hz: float, duration_s: float) -> float:
+    """``1 / sqrt(df/dt)`` of a linear sweep, ``df/dt = (f2 - f1) / T`` (the same at every frequency), s."""
+    return 1.0 / math.sqrt((f2_hz - f1_hz) / duration_s)
+
+
+def _fade_limit_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float) -> float:
+    """Longest fade :func:`check_sweep_band` accepts, s: half an octave's time, or a quarter of a linear sweep."""
+    if kind == "exponential":
+        return duration_s / math.log(f2_hz / f1_hz) * math.log(2.0) / 2.0
+    return duration_s / 4.0
+
+
+def default_fades_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float) -> tuple[float, float]:
+    """Fades (s) that keep the band flat: one Fresnel time at f1 (fade-in) and at f2 (fade-out).
+
+    Parameters
+    ----------
+    kind : {"exponential", "linear"}
+    f1_hz, f2_hz : float
+        Sweep limits, Hz.
+    duration_s : float
+        Sweep duration T, s.
+
+    Returns
+    -------
+    (fade_in_s, fade_out_s) : tuple of float
+        :func:`fresnel_time_s` at f1 and f2 for an exponential sweep,
+        ``sqrt(T / (f2 - f1))`` for both ends of a linear one; each at most
+        the longest fade the sweep allows (half the time of an octave, or a
+        quarter of a linear sweep), which binds only for short sweeps.
+    """
+    limit = _fade_limit_s(kind, f1_hz, f2_hz, duration_s)
+    if kind == "exponential":
+        fades = (fresnel_time_s(f1_hz, f1_hz, f2_hz, duration_s), fresnel_time_s(f2_hz, f1_hz, f2_hz, duration_s))
+    else:
+        t = _linear_fresnel_time_s(f1_hz, f2_hz, duration_s)
+        fades = (t, t)
+    return (min(fades[0], limit), min(fades[1], limit))
+
+
+def default_pre_roll_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float) -> float:
+    """Time (s) a deconvolved response keeps before zero lag to hold the pulse's pre-ringing.
+
+    One Fresnel time at f1 (:func:`fresnel_time_s`; the pulse's lowest
+    frequencies ring about that long before zero lag), but at most half the
+    time between the linear response and the 2nd harmonic's,
+    ``T ln 2 / (2 ln(f2/f1))``, where :func:`arrayplan.signals.deconvolve.harmonic_windows`
+    starts the 2nd harmonic's window; for an exponential sweep that is the
+    default fade-in (:func:`default_fades_s`).  Linear sweeps ring at both band
+    edges: two Fresnel times, ``2 sqrt(T / (f2 - f1))``, at most T / 4.
+
+    With it, a known system measured at any delay reads within 0.1 dB of its
+    transfer function across :attr:`SweepSignal.flat_band_hz`; one Fresnel
+    time left 0.11 dB for linear sweeps (measured, tests/test_deconvolve.py).
+    Without it, a delay shorter than the pre-ringing reads up to a few dB low
+    near f1.
+    """
+    if kind == "exponential":
+        return default_fades_s(kind, f1_hz, f2_hz, duration_s)[0]
+    return min(2.0 * _linear_fresnel_time_s(f1_hz, f2_hz, duration_s), _fade_limit_s(kind, f1_hz, f2_hz, duration_s))
+
+
+def max_pre_roll_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float) -> float:
+    """Longest pre-roll (s) that stays clear of the 2nd harmonic: half its offset (linear sweeps: T / 4)."""
+    return _fade_limit_s(kind, f1_hz, f2_hz, duration_s)
 
 
 def _dtft(x: np.ndarray, freq_hz: float, sample_rate_hz: float) -> complex:
@@ -528,7 +638,9 @@ class SweepRecord:
     """The sweep block of a sidecar, read back and checked (what deconvolution needs).
 
     Attributes are those of :meth:`SweepSignal.sidecar`; `inverse_filter_file`
-    is resolved against the sidecar's folder by the caller.
+    is resolved against the sidecar's folder by the caller.  Sidecars written
+    before ``pre_roll_samples`` existed get the default rule's value
+    (:func:`default_pre_roll_s`).
     """
 
     kind: str
@@ -541,6 +653,13 @@ class SweepRecord:
     pad_after_samples: int
     linear_lag_samples: int
     inverse_filter_file: str
+    pre_roll_samples: int = 0
+
+    @property
+    def max_pre_roll_samples(self) -> int:
+        """Most samples a response may keep before zero lag (:func:`max_pre_roll_s`)."""
+        return int(math.floor(max_pre_roll_s(self.kind, self.f1_hz, self.f2_hz, self.duration_s)
+                              * self.sample_rate_hz))
 
     @property
     def n_file_samples(self) -> int:
@@ -587,6 +706,16 @@ class SweepRecord:
             inverse_filter_file=str(get("inverse_filter_file", (str,))),
         )
         check_sweep_band(rec.kind, rec.f1_hz, rec.f2_hz, rec.duration_s, rec.sample_rate_hz, source=source)
+        if "pre_roll_samples" in block:
+            pre = int(get("pre_roll_samples", (int,), positive=False))
+            if pre > rec.max_pre_roll_samples:
+                raise InputError(f"{pre} samples reach past half-way to the 2nd harmonic "
+                                 f"({rec.max_pre_roll_samples} samples)", source=source,
+                                 field="sweep.pre_roll_samples", fix="use the sidecar exactly as arrayplan wrote it")
+        else:
+            pre = int(math.floor(default_pre_roll_s(rec.kind, rec.f1_hz, rec.f2_hz, rec.duration_s)
+                                 * rec.sample_rate_hz))
+        rec = replace(rec, pre_roll_samples=pre)
         if rec.linear_lag_samples != rec.pad_before_samples + rec.n_sweep_samples - 1:
             raise InputError("linear_lag_samples does not equal pad_before_samples + n_sweep_samples - 1",
                              source=source, field="sweep.linear_lag_samples")
