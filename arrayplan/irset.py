@@ -11,9 +11,10 @@ The manifest (JSON, UTF-8)::
 
     {
       "format": "arrayplan-irset",
-      "format_version": 1,
+      "format_version": 2,                 # 1 when zero_lag_samples is 0 (see below)
       "sample_rate_hz": 48000,
       "n_samples": 4096,
+      "zero_lag_samples": 4800,            # index of zero lag; optional, default 0
       "units": "full_scale",              # or "pascal_per_volt", see below
       "latency_removed_samples": 0,        # what the producer already removed
       "speakers": [{"name": "L1", "position_m": [0, 0, 1.2], "file": "spk-001.wav"}, ...],
@@ -23,7 +24,14 @@ The manifest (JSON, UTF-8)::
     }
 
 ``data[n, m, s]`` is the response at microphone ``m`` to speaker ``s`` at
-sample ``n`` (time first, as in soundfile).  ``units`` says what one unit of
+sample ``n`` (time first, as in soundfile).  Sample ``zero_lag_samples``
+(n0) is zero lag: the moment the speaker is driven, after the removed
+latency; the n0 samples before it hold the pre-ringing of the band-limited
+measurement pulse (see :mod:`arrayplan.signals.deconvolve`), so the response
+at time ``t`` is ``data[n0 + round(t fs)]``.  Sets with n0 > 0 are written as
+``format_version`` 2, so that readers that know only version 1 (and would
+take sample 0 as zero lag) refuse them; sets with n0 = 0 stay version 1, and
+manifests without the field read as n0 = 0.  ``units`` says what one unit of
 the data means: ``"full_scale"`` (input full scale per output full scale,
 uncalibrated), ``"pascal_per_full_scale"`` or ``"pascal_per_volt"`` when a
 calibration record was applied.  Positions are optional (``null``); when
@@ -49,11 +57,13 @@ import numpy as np
 from .errors import InputError
 from .fileio import provenance as _provenance, staged_output_dir, write_json_atomic
 
-__all__ = ["IRSet", "read_irset", "write_irset", "MANIFEST_NAME", "UNITS"]
+__all__ = ["IRSet", "read_irset", "write_irset", "MANIFEST_NAME", "UNITS", "zero_lag_problem", "format_version_for"]
 
 MANIFEST_NAME = "irset.json"
 FORMAT_NAME = "arrayplan-irset"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+#: Version written when zero lag is sample 0 (readable by every arrayplan).
+FORMAT_VERSION_NO_PRE_ROLL = 1
 UNITS = ("full_scale", "pascal_per_full_scale", "pascal_per_volt")
 
 
@@ -75,6 +85,9 @@ class IRSet:
         One of :data:`UNITS`.
     latency_removed_samples : int
         Latency already removed by the producer, in samples.
+    zero_lag_samples : int
+        Index of zero lag in `data` (0 <= n0 < n_samples); the samples
+        before it are pre-ringing kept by the producer.
     warnings : list of str
         Warnings raised while producing the set (clipping, low peak-to-noise).
     """
@@ -89,6 +102,7 @@ class IRSet:
     latency_removed_samples: int = 0
     warnings: list[str] = field(default_factory=list)
     extra: dict[str, Any] = field(default_factory=dict)
+    zero_lag_samples: int = 0
 
     def __post_init__(self) -> None:
         self.data = np.asarray(self.data, dtype=float)
@@ -107,6 +121,10 @@ class IRSet:
             raise InputError(f"units must be one of {UNITS}, got {self.units!r}")
         if not np.all(np.isfinite(self.data)):
             raise InputError("IR data contains NaN or infinite samples")
+        problem = zero_lag_problem(self.zero_lag_samples, n)
+        if problem:
+            raise InputError(problem, field="zero_lag_samples")
+        self.zero_lag_samples = int(self.zero_lag_samples)
 
     @property
     def n_samples(self) -> int:
@@ -119,6 +137,20 @@ class IRSet:
     @property
     def n_spk(self) -> int:
         return int(self.data.shape[2])
+
+
+def zero_lag_problem(value: Any, n_samples: int) -> str | None:
+    """What is wrong with `value` as the zero-lag index of `n_samples`-sample responses, or None."""
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
+        return f"must be a whole number of samples, got {value!r}"
+    if not 0 <= int(value) < n_samples:
+        return f"must lie in 0..{n_samples - 1} (the responses have {n_samples} samples), got {int(value)}"
+    return None
+
+
+def format_version_for(irs: IRSet) -> int:
+    """The ``format_version`` to write: 2 when zero lag is not sample 0, else 1."""
+    return FORMAT_VERSION if irs.zero_lag_samples else FORMAT_VERSION_NO_PRE_ROLL
 
 
 def _positions_json(pos: np.ndarray | None, i: int) -> list[float] | None:
@@ -149,9 +181,10 @@ def write_irset(folder: str | os.PathLike, irs: IRSet, **provenance_extra: Any) 
                              "file": fname})
         manifest = {
             "format": FORMAT_NAME,
-            "format_version": FORMAT_VERSION,
+            "format_version": format_version_for(irs),
             "sample_rate_hz": float(irs.sample_rate_hz),
             "n_samples": irs.n_samples,
+            "zero_lag_samples": irs.zero_lag_samples,
             "units": irs.units,
             "latency_removed_samples": int(irs.latency_removed_samples),
             "speakers": speakers,
@@ -280,6 +313,11 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
             raise InputError("is silent (all samples zero)", source=str(wav),
                              fix="check the wiring of this speaker and measure again")
         blocks.append(data)
+    zero_lag = manifest.get("zero_lag_samples", 0)
+    problem = zero_lag_problem(zero_lag, blocks[0].shape[0])
+    if problem:
+        raise InputError(problem, source=src, field="zero_lag_samples",
+                         fix="give the index of zero lag in the responses (0 when none was kept before it)")
     return IRSet(
         data=np.stack(blocks, axis=2),
         sample_rate_hz=rate,
@@ -291,4 +329,5 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
         latency_removed_samples=int(manifest.get("latency_removed_samples", 0)),
         warnings=[str(w) for w in manifest.get("warnings", [])],
         extra=dict(manifest.get("extra", {})),
+        zero_lag_samples=int(zero_lag),
     )

@@ -22,9 +22,17 @@ The mapping written:
   "reverberant" with a ``GLOBAL:RoomDescription`` saying the room is not
   described;
 * the names (also readable in ``GLOBAL:EmitterDescription`` and
-  ``GLOBAL:ReceiverDescription``), units, latency removed, warnings, extra
-  fields and our provenance, as JSON in the custom global attribute
-  ``GLOBAL:ArrayplanIRSet`` (ASCII, so any netCDF reader can show it).
+  ``GLOBAL:ReceiverDescription``), units, latency removed, the index of zero
+  lag (``zero_lag_samples``), warnings, extra fields and our provenance, as
+  JSON in the custom global attribute ``GLOBAL:ArrayplanIRSet`` (ASCII, so
+  any netCDF reader can show it).
+
+Zero lag: a set that keeps n0 samples of pre-ringing before zero lag is
+written as it is, so for a reader that does not look at
+``GLOBAL:ArrayplanIRSet`` the responses simply start n0 samples early (every
+arrival sits n0 samples later than its acoustic delay).  ``Data.Delay`` cannot
+say so: AES69 delays are added, never negative.  ``GLOBAL:Comment`` states n0
+in words; arrayplan reads it back from the metadata.
 
 Names go into global attributes rather than string variables because
 sofar 1.3 cannot write string variables with netCDF4 1.7.
@@ -56,7 +64,7 @@ import numpy as np
 from ._version import __version__
 from .errors import InputError
 from .fileio import atomic_path, json_default, provenance as _provenance
-from .irset import FORMAT_NAME, FORMAT_VERSION, UNITS, IRSet
+from .irset import FORMAT_NAME, FORMAT_VERSION, UNITS, IRSet, format_version_for, zero_lag_problem
 
 __all__ = ["write_irset_sofa", "read_irset_sofa", "SOFA_CONVENTION", "METADATA_ATTRIBUTE"]
 
@@ -119,11 +127,12 @@ def write_irset_sofa(path: str | os.PathLike, irs: IRSet, **provenance_extra: An
     n_mic, n_spk = irs.n_mic, irs.n_spk
     meta = {
         "format": FORMAT_NAME,
-        "format_version": FORMAT_VERSION,
+        "format_version": format_version_for(irs),
         "speaker_names": list(irs.speaker_names),
         "mic_names": list(irs.mic_names),
         "units": irs.units,
         "latency_removed_samples": int(irs.latency_removed_samples),
+        "zero_lag_samples": int(irs.zero_lag_samples),
         "warnings": list(irs.warnings),
         "extra": irs.extra,
         "provenance": _provenance(**provenance_extra),
@@ -134,7 +143,8 @@ def write_irset_sofa(path: str | os.PathLike, irs: IRSet, **provenance_extra: An
     sofa.GLOBAL_ApplicationVersion = __version__
     sofa.GLOBAL_Comment = (f"Data.IR[0, r, n, e] is the response at microphone r to loudspeaker e; one unit of "
                            f"Data.IR is '{irs.units}'; latency already removed: {int(irs.latency_removed_samples)} "
-                           "samples; unknown positions are NaN")
+                           f"samples; zero lag (the moment of driving) is sample {irs.zero_lag_samples}, the "
+                           "samples before it are pre-ringing of the measurement; unknown positions are NaN")
     sofa.GLOBAL_History = f"written by arrayplan {__version__}"
     if irs.extra.get("simulated") == "free field":
         sofa.GLOBAL_RoomType = "free field"
@@ -186,7 +196,8 @@ def read_irset_sofa(path: str | os.PathLike) -> IRSet:
     IRSet
         ``data`` of shape (n_samples, n_mic, n_spk); positions in m where
         the file gives them.  Names, units, latency, warnings and extra
-        fields come from ``GLOBAL:ArrayplanIRSet`` when present; otherwise
+        fields and the index of zero lag come from ``GLOBAL:ArrayplanIRSet``
+        when present (zero lag 0 when it has no ``zero_lag_samples``); otherwise
         names are ``S1..`` / ``M1..`` (or the file's Emitter/Receiver
         descriptions) and the units ``"full_scale"``.
 
@@ -305,12 +316,13 @@ def _irset_from_sofa(sofa: Any, convention: str, src: str) -> IRSet:
                              field="Data.IR", fix="check the wiring of this speaker and measure again")
     spk_pos, mic_pos = _element_positions(sofa, layout, n_meas, n_rec, n_emit, src, notes)
 
-    meta = _metadata(sofa, src, n_spk, data.shape[1])
+    meta = _metadata(sofa, src, n_spk, data.shape[1], data.shape[0])
     if meta is not None:
         return IRSet(data=data, sample_rate_hz=rate, speaker_names=meta["speaker_names"],
                      mic_names=meta["mic_names"], speaker_positions=spk_pos, mic_positions=mic_pos,
                      units=meta["units"], latency_removed_samples=meta["latency_removed_samples"],
-                     warnings=meta["warnings"] + notes, extra=meta["extra"])
+                     warnings=meta["warnings"] + notes, extra=meta["extra"],
+                     zero_lag_samples=meta["zero_lag_samples"])
     spk_names = _descriptions(sofa, "EmitterDescriptions", n_spk) if layout == "emitters" else None
     return IRSet(data=data, sample_rate_hz=rate,
                  speaker_names=spk_names or [f"S{i + 1}" for i in range(n_spk)],
@@ -379,7 +391,7 @@ def _descriptions(sofa: Any, name: str, n: int) -> list[str] | None:
     return names
 
 
-def _metadata(sofa: Any, src: str, n_spk: int, n_mic: int) -> dict | None:
+def _metadata(sofa: Any, src: str, n_spk: int, n_mic: int, n_samples: int) -> dict | None:
     text = _get(sofa, "GLOBAL:ArrayplanIRSet")
     if text is None:
         return None
@@ -406,12 +418,18 @@ def _metadata(sofa: Any, src: str, n_spk: int, n_mic: int) -> dict | None:
     if not isinstance(latency, int) or isinstance(latency, bool):
         raise InputError(f"must be a whole number of samples, got {latency!r}", source=src,
                          field=field + ".latency_removed_samples")
+    zero_lag = meta.get("zero_lag_samples", 0)
+    problem = zero_lag_problem(zero_lag, n_samples)
+    if problem:
+        raise InputError(problem, source=src, field=field + ".zero_lag_samples",
+                         fix="correct or delete the attribute")
     warn = meta.get("warnings", [])
     extra = meta.get("extra", {})
     if not isinstance(warn, list) or not isinstance(extra, dict):
         raise InputError("warnings must be a list and extra an object", source=src, field=field)
     return {"speaker_names": meta["speaker_names"], "mic_names": meta["mic_names"], "units": meta["units"],
-            "latency_removed_samples": latency, "warnings": [str(w) for w in warn], "extra": extra}
+            "latency_removed_samples": latency, "zero_lag_samples": int(zero_lag),
+            "warnings": [str(w) for w in warn], "extra": extra}
 
 
 # --------------------------------------------------------------------------- positions

@@ -77,6 +77,43 @@ def test_round_trip_through_folder_and_cli(tmp_path, capsys):
     np.testing.assert_array_equal(back.speaker_positions, irs.speaker_positions)
 
 
+def test_zero_lag_survives_sofa_and_folder_round_trips(tmp_path, capsys):
+    import json
+
+    irs = _irset()
+    irs = IRSet(irs.data, irs.sample_rate_hz, irs.speaker_names, irs.mic_names, irs.speaker_positions,
+                irs.mic_positions, irs.units, 12, irs.warnings, irs.extra, zero_lag_samples=40)
+    back = read_irset(write_irset_sofa(tmp_path / "z.sofa", irs))
+    assert back.zero_lag_samples == 40 and np.array_equal(back.data, irs.data)
+    # foreign readers see the responses as they are (starting 40 samples early), and the comment says so
+    sofa = sofar.read_sofa(str(tmp_path / "z.sofa"), verify=False, verbose=False)
+    assert np.array_equal(sofa.Data_IR[0].transpose(1, 0, 2), irs.data)
+    assert "zero lag (the moment of driving) is sample 40" in sofa.GLOBAL_Comment
+    assert json.loads(sofa.GLOBAL_ArrayplanIRSet)["format_version"] == 2
+    assert main(["irset", "convert", str(tmp_path / "z.sofa"), str(tmp_path / "folder")]) == 0
+    assert read_irset(tmp_path / "folder").zero_lag_samples == 40
+    assert main(["irset", "convert", str(tmp_path / "folder"), str(tmp_path / "again.sofa")]) == 0
+    assert read_irset(tmp_path / "again.sofa").zero_lag_samples == 40
+    # metadata written before the field existed: zero lag is sample 0
+    assert read_irset(write_irset_sofa(tmp_path / "plain.sofa", _irset())).zero_lag_samples == 0
+
+
+@pytest.mark.parametrize("value, words", [(-3, "must lie in 0..199"), (200, "must lie in 0..199"),
+                                          (2.5, "whole number")])
+def test_bad_zero_lag_in_the_metadata_is_one_line(tmp_path, capsys, value, words):
+    import json
+
+    path = write_irset_sofa(tmp_path / "z.sofa", _irset())
+    with netCDF4.Dataset(str(path), "r+") as ds:
+        meta = json.loads(ds.getncattr("ArrayplanIRSet"))
+        meta["zero_lag_samples"] = value
+        ds.setncattr("ArrayplanIRSet", json.dumps(meta))
+    assert main(["irset", "show", str(path)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and str(path) in err[0] and words in err[0], err
+    assert "GLOBAL:ArrayplanIRSet.zero_lag_samples" in err[0]
+
+
 def test_no_positions_read_back_as_none(tmp_path):
     irs = IRSet(np.eye(8)[:, :2, None] + 0.0, 8000.0, ["s"], ["a", "b"])
     back = read_irset_sofa(write_irset_sofa(tmp_path / "p.sofa", irs))
@@ -265,6 +302,18 @@ def test_show_reports_peak_level_and_delay(tmp_path, capsys):
     assert "-6.0 / 1.00" in out and "-20.0 / 2.00" in out
     assert "480 samples (10.0 ms)" in out and "48000 Hz" in out
     assert "(table shows" not in out
+    assert "zero lag" in out and "sample 0" in out
+
+
+def test_show_gives_peak_delays_after_zero_lag(tmp_path, capsys):
+    data = np.zeros((480, 1, 2))
+    data[96 + 48, 0, 0] = 0.5                             # 1.00 ms after zero lag at sample 96
+    data[96 - 48, 0, 1] = -0.1                            # 1.00 ms before it (a pre-ringing peak)
+    write_irset(tmp_path / "f", IRSet(data, 48000.0, ["A", "B"], ["mic"], zero_lag_samples=96))
+    assert main(["irset", "show", str(tmp_path / "f")]) == 0
+    out = capsys.readouterr().out
+    assert "-6.0 / 1.00" in out and "-20.0 / -1.00" in out
+    assert "sample 96 (2.0 ms of pre-ringing kept before it)" in out
 
 
 def test_show_truncates_big_sets(tmp_path, capsys):

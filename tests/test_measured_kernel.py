@@ -147,3 +147,116 @@ def test_rigid_floor_comb_notches(tmp_path):
     np.testing.assert_allclose(found, expected, atol=0.25)
     # measured within 0.05 dB of the formula; allow 0.2 dB (window and float32 storage)
     np.testing.assert_allclose(level_db[1:-1][interior], 20 * np.log10(1 - r1 / r2), atol=0.2)
+
+
+# --------------------------------------------------------------------------- zero lag after a pre-roll
+
+def _pre_rolled(n0: int, seed: int = 8, n: int = 256) -> IRSet:
+    rng = np.random.default_rng(seed)
+    return IRSet(rng.standard_normal((n, 2, 3)), 8000.0, ["a", "b", "c"], ["m1", "m2"], zero_lag_samples=n0)
+
+
+@pytest.mark.parametrize("n0", [1, 37, 200])
+def test_zero_lag_is_the_time_origin(n0):
+    # G(f) = sum_n h[n] exp(-j 2 pi f (n - n0) / fs): on the FFT bins this is numpy.fft.rfft of the
+    # responses rotated so that zero lag is sample 0 (reference library: numpy; shift theorem).
+    irs = _pre_rolled(n0)
+    bins = np.arange(1, 128)
+    ref = np.fft.rfft(np.roll(irs.data, -n0, axis=0), axis=0)[bins]
+    np.testing.assert_allclose(MeasuredKernel(irs).evaluate(bins * 8000.0 / 256), ref, rtol=0, atol=1e-9)
+
+
+def test_free_field_set_with_pre_roll_matches_the_kernel_on_the_grid():
+    # Free-field Green's function exp(-jkr)/(4 pi r) (D. A. B. Miller, Applied Optics 39(11), 2000): a
+    # simulated set that keeps 300 samples before zero lag still gives G exactly on the FFT bins.
+    rig = _rig()
+    irs = free_field_irset(rig, FS, N, zero_lag_samples=300)
+    assert irs.zero_lag_samples == 300
+    hz = np.arange(1, 400, 7) * FS / N
+    np.testing.assert_allclose(MeasuredKernel(irs).evaluate(hz), FreeFieldKernel(rig).evaluate(hz),
+                               rtol=0, atol=1e-9 * np.abs(FreeFieldKernel(rig).evaluate(hz)).max())
+    # the pre-roll holds the sinc tails that lead each arrival (no wrap to the record's end)
+    plain = free_field_irset(rig, FS, N)
+    np.testing.assert_allclose(irs.data[300:], np.roll(plain.data, 300, axis=0)[300:], atol=1e-12)
+
+
+def test_window_and_latency_count_from_zero_lag():
+    # A late echo beyond the window leaves the spectrum flat (common practice, no source): the window
+    # starts at zero lag, and the pre-roll before it is kept whole.
+    n0 = 100
+    h = np.zeros((2000, 1, 1))
+    h[n0 - 3, 0, 0] = 0.25                                  # pre-ringing, 3 samples before zero lag
+    h[n0 + 10, 0, 0] = 1.0
+    h[n0 + 380, 0, 0] = 0.5                                 # beyond a 50 ms window at 8 kHz (400 samples)
+    irs = IRSet(h, 8000.0, ["s"], ["m"], zero_lag_samples=n0)
+    hz = np.linspace(50, 3900, 200)
+    g = MeasuredKernel(irs, window_s=0.05).evaluate(hz)[:, 0, 0]
+    w = fade_out_window(1900, 8000.0, 0.05)
+    want = (0.25 * np.exp(2j * np.pi * hz * 3 / 8000.0) + np.exp(-2j * np.pi * hz * 10 / 8000.0)
+            + 0.5 * w[380] * np.exp(-2j * np.pi * hz * 380 / 8000.0))
+    np.testing.assert_allclose(g, want, atol=1e-12)
+    # latency: zero lag moves 30 samples later, a phase advance exp(+j 2 pi f 30 / fs) (shift theorem)
+    full = MeasuredKernel(irs).evaluate(hz)
+    cut = MeasuredKernel(irs, latency_samples=30).evaluate(hz)
+    np.testing.assert_allclose(cut * np.exp(-2j * np.pi * hz * 30 / 8000.0)[:, None, None], full, atol=1e-10)
+    with pytest.raises(InputError, match="latency"):
+        MeasuredKernel(irs, latency_samples=2000 - n0)
+
+
+def test_folder_round_trip_keeps_zero_lag_and_old_manifests_read_as_zero(tmp_path):
+    import json
+
+    irs = _pre_rolled(37)
+    back = _roundtrip(irs, tmp_path)
+    assert back.zero_lag_samples == 37
+    manifest = json.loads((tmp_path / "irs" / "irset.json").read_text())
+    assert manifest["zero_lag_samples"] == 37 and manifest["format_version"] == 2
+    # a set with zero lag at sample 0 stays version 1, readable by readers that know only version 1
+    write_irset(tmp_path / "plain", _pre_rolled(0))
+    assert json.loads((tmp_path / "plain" / "irset.json").read_text())["format_version"] == 1
+    # a manifest written before the field existed: zero lag is sample 0
+    del manifest["zero_lag_samples"]
+    manifest["format_version"] = 1
+    (tmp_path / "irs" / "irset.json").write_text(json.dumps(manifest))
+    old = read_irset(tmp_path / "irs")
+    assert old.zero_lag_samples == 0
+    np.testing.assert_allclose(old.data, irs.data, rtol=2.0 ** -24)   # float32 WAV storage
+
+
+@pytest.mark.parametrize("value, words", [
+    (-1, "must lie in 0..255"),
+    (256, "must lie in 0..255"),
+    (3.5, "whole number"),
+    ("12", "whole number"),
+    (True, "whole number"),
+])
+def test_bad_zero_lag_is_one_line_naming_file_and_field(tmp_path, capsys, value, words):
+    import json
+
+    from arrayplan.cli import main
+
+    write_irset(tmp_path / "s", _pre_rolled(5))
+    path = tmp_path / "s" / "irset.json"
+    manifest = json.loads(path.read_text())
+    manifest["zero_lag_samples"] = value
+    path.write_text(json.dumps(manifest))
+    with pytest.raises(InputError) as err:
+        read_irset(tmp_path / "s")
+    assert err.value.field == "zero_lag_samples" and err.value.source == str(path)
+    assert main(["irset", "show", str(tmp_path / "s")]) == 2
+    lines = capsys.readouterr().err.strip().splitlines()
+    assert len(lines) == 1 and str(path) in lines[0] and "zero_lag_samples" in lines[0] and words in lines[0]
+    with pytest.raises(InputError, match=words):
+        IRSet(np.ones((256, 1, 1)), 8000.0, ["s"], ["m"], zero_lag_samples=value)
+
+
+def test_newer_format_version_is_refused(tmp_path):
+    import json
+
+    write_irset(tmp_path / "s", _pre_rolled(5))
+    path = tmp_path / "s" / "irset.json"
+    manifest = json.loads(path.read_text())
+    manifest["format_version"] = 3
+    path.write_text(json.dumps(manifest))
+    with pytest.raises(InputError, match="newer than this arrayplan reads"):
+        read_irset(tmp_path / "s")

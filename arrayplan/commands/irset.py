@@ -25,15 +25,16 @@ def register(sub: argparse._SubParsersAction) -> None:
     actions.required = True
     conv = actions.add_parser("convert", help="copy an IR set from SRC to DST, SOFA file <-> IR-set folder",
                               description="Read SRC (a .sofa file or an IR-set folder) and write it to DST (a .sofa "
-                                          "file or an IR-set folder). Names, positions, units, latency removed and "
-                                          "warnings are kept. DST is written atomically.")
+                                          "file or an IR-set folder). Names, positions, units, latency removed, zero "
+                                          "lag and warnings are kept. DST is written atomically.")
     conv.add_argument("src", metavar="SRC", help="IR-set folder or .sofa file to read")
     conv.add_argument("dst", metavar="DST", help="IR-set folder or .sofa file to write")
     conv.add_argument("--force", action="store_true", help="replace DST if it exists")
     conv.set_defaults(run=run_convert)
     show = actions.add_parser("show", help="one-screen summary of an IR set",
-                              description="Print rate, length, elements, units, latency, warnings, and the peak "
-                                          "level and peak delay of each speaker/microphone pair.")
+                              description="Print rate, length, zero lag, elements, units, latency, warnings, and "
+                                          "the peak level and peak delay (after zero lag) of each "
+                                          "speaker/microphone pair.")
     show.add_argument("src", metavar="SRC", help="IR-set folder or .sofa file")
     show.set_defaults(run=run_show)
 
@@ -68,12 +69,12 @@ def _known(pos: np.ndarray | None, n: int) -> int:
 
 
 def peak_table(irs: IRSet) -> tuple[np.ndarray, np.ndarray]:
-    """Peak level in dB re one unit and peak time in ms, each shape (n_mic, n_spk)."""
+    """Peak level in dB re one unit and peak time after zero lag in ms, each shape (n_mic, n_spk)."""
     mag = np.abs(irs.data)
     peak = mag.max(axis=0)
     with np.errstate(divide="ignore"):
         level_db = 20.0 * np.log10(peak)
-    delay_ms = mag.argmax(axis=0) / irs.sample_rate_hz * 1e3
+    delay_ms = (mag.argmax(axis=0) - irs.zero_lag_samples) / irs.sample_rate_hz * 1e3
     return level_db, delay_ms
 
 
@@ -83,6 +84,8 @@ def summary_lines(irs: IRSet, source: str) -> list[str]:
     rows = [
         ("sample rate", f"{irs.sample_rate_hz:g} Hz"),
         ("length", f"{irs.n_samples} samples ({irs.n_samples / irs.sample_rate_hz * 1e3:.1f} ms)"),
+        ("zero lag", f"sample {irs.zero_lag_samples} ({irs.zero_lag_samples / irs.sample_rate_hz * 1e3:.1f} ms "
+                     "of pre-ringing kept before it)" if irs.zero_lag_samples else "sample 0"),
         (f"speakers ({irs.n_spk})", _names(irs.speaker_names)),
         (f"microphones ({irs.n_mic})", _names(irs.mic_names)),
         ("positions known", f"{_known(irs.speaker_positions, irs.n_spk)} of {irs.n_spk} speakers, "
@@ -96,7 +99,8 @@ def summary_lines(irs: IRSet, source: str) -> list[str]:
     lines += [f"    - {w}" for w in irs.warnings]
     level_db, delay_ms = peak_table(irs)
     n_s, n_m = min(irs.n_spk, MAX_TABLE_SPEAKERS), min(irs.n_mic, MAX_TABLE_MICS)
-    lines.append(f"peak level (dB re 1 {irs.units}) / time of the peak (ms), microphones down, speakers across:")
+    lines.append(f"peak level (dB re 1 {irs.units}) / time of the peak after zero lag (ms), microphones down, "
+                 "speakers across:")
     width = 16
     mic_w = max(len(n) for n in irs.mic_names[:n_m])
     lines.append(" " * (mic_w + 2) + "".join(f"{name[:width - 1]:>{width}}" for name in irs.speaker_names[:n_s]))

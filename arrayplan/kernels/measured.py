@@ -1,18 +1,22 @@
 """Measured kernel: coupling matrices from an impulse-response set.
 
-``G[f, m, s] = sum_n w[n] h[n + L, m, s] exp(-j 2 pi f n / fs)``: the
+``G[f, m, s] = sum_n w[n] h[n + L, m, s] exp(-j 2 pi f (n - n0) / fs)``: the
 discrete-time Fourier transform of each impulse response at exactly the
 requested frequencies (the sign of numpy.fft.rfft, so a delay is
-exp(-j k r) as in the free-field kernel), after dropping a common latency of
-``L`` samples and, when a window is given, fading out the late room
-response with a half-Hann taper.  Evaluation is direct (no FFT grid), in
-chunks, so any planned frequency works.
+exp(-j k r) as in the free-field kernel), with the time origin at the IR
+set's zero lag ``n0 = IRSet.zero_lag_samples``, after dropping a common
+latency of ``L`` samples (zero lag moves L samples later; the n0 samples
+before it are kept) and, when a window is given, fading out the late room
+response with a half-Hann taper that counts from zero lag.  Evaluation is
+direct (no FFT grid), in chunks, so any planned frequency works.
 
 Notes
 -----
 Units: those of the IR set (``IRSet.units``; for example full scale per full
-scale, or pascal per volt), per unit drive; the time origin is the first
-sample after the removed latency.  Frequencies must lie below fs / 2.
+scale, or pascal per volt), per unit drive.  The samples before zero lag
+(the measurement pulse's pre-ringing) enter with negative times, unwindowed;
+without them a near microphone reads low near the sweep's f1.  Frequencies
+must lie below fs / 2.
 """
 
 from __future__ import annotations
@@ -68,12 +72,13 @@ class MeasuredKernel:
     irset : IRSet
         Responses ``data[n, m, s]``, shape (n_samples, n_mic, n_spk).
     window_s : float, optional
-        Keep this many seconds after the latency; the last quarter is a
-        half-Hann fade-out (see :func:`fade_out_window`).  None keeps the
-        whole record.
+        Keep this many seconds after zero lag; the last quarter is a
+        half-Hann fade-out (see :func:`fade_out_window`).  The samples
+        before zero lag are kept whole.  None keeps the whole record.
     latency_samples : int
-        Common latency to drop from the start of every response, in samples
-        (on top of what the producer already removed).
+        Common latency to drop, in samples (on top of what the producer
+        already removed): zero lag moves this many samples later, and as
+        many samples leave the start of every response.
 
     Attributes
     ----------
@@ -81,13 +86,17 @@ class MeasuredKernel:
     sample_rate_hz : float
     units : str
         The IR set's units.
+    zero_lag_samples : int
+        Index of zero lag in the samples used (the IR set's n0).
     name : str
     """
 
     def __init__(self, irset: IRSet, window_s: float | None = None, latency_samples: int = 0) -> None:
         latency_samples = int(latency_samples)
-        if latency_samples < 0 or latency_samples >= irset.n_samples:
-            raise InputError(f"latency of {latency_samples} samples must lie in 0..{irset.n_samples - 1}",
+        n0 = int(irset.zero_lag_samples)
+        if latency_samples < 0 or latency_samples >= irset.n_samples - n0:
+            raise InputError(f"latency of {latency_samples} samples must lie in 0..{irset.n_samples - n0 - 1} "
+                             f"(the responses hold {irset.n_samples - n0} samples from zero lag on)",
                              field="latency_samples")
         h = irset.data[latency_samples:]
         if window_s is not None:
@@ -96,8 +105,9 @@ class MeasuredKernel:
             if window_s * irset.sample_rate_hz < 4:
                 raise InputError(f"window of {window_s * 1e3:g} ms is shorter than 4 samples", field="window_s",
                                  fix="use a longer window")
-            w = fade_out_window(h.shape[0], irset.sample_rate_hz, window_s)
-            n_keep = int(np.count_nonzero(w))
+            w = np.ones(h.shape[0])
+            w[n0:] = fade_out_window(h.shape[0] - n0, irset.sample_rate_hz, window_s)
+            n_keep = n0 + int(np.count_nonzero(w[n0:]))
             h = h[:n_keep] * w[:n_keep, None, None]
         self._h = np.ascontiguousarray(h.reshape(h.shape[0], -1))   # (n, n_mic * n_spk)
         self._shape = (irset.n_mic, irset.n_spk)
@@ -107,11 +117,12 @@ class MeasuredKernel:
         self.units = irset.units
         self.window_s = window_s
         self.latency_samples = latency_samples
+        self.zero_lag_samples = n0
         self.name = "measured impulse responses"
 
     @property
     def n_samples(self) -> int:
-        """Samples used per response after latency removal and windowing."""
+        """Samples used per response after latency removal and windowing (pre-roll included)."""
         return int(self._h.shape[0])
 
     def evaluate(self, hz: np.ndarray) -> np.ndarray:
@@ -121,7 +132,7 @@ class MeasuredKernel:
             raise InputError(f"frequencies must lie in 0..{self.sample_rate_hz / 2:g} Hz (below Nyquist), "
                              f"got {hz.min():g}..{hz.max():g} Hz", field="frequencies",
                              fix="plan below half the IR set's sample rate")
-        n = np.arange(self.n_samples)
+        n = np.arange(self.n_samples) - self.zero_lag_samples     # time re zero lag, samples
         out = np.empty((hz.size, self._h.shape[1]), dtype=complex)
         step = max(1, _CHUNK_ELEMENTS // max(1, self.n_samples))
         for start in range(0, hz.size, step):
