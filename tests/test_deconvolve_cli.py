@@ -67,15 +67,16 @@ def _unity_pulse(data, side):
     return fftconvolve(data, inverse), block["linear_lag_samples"]
 
 
-def _check_wire(h, full, lag, delay, gain):
+def _check_wire(h, full, lag, delay, gain, n0):
     """A wire of `gain` and `delay`: the peak exact to the sample, the waveform the unity pulse times the gain.
 
-    The inverse has unit gain in band (S. Mueller & P. Massarani, "Transfer-function measurement with
-    sweeps", JAES 49(6), 2001), so the band-limited pulse peaks below 1; PCM_24 files: 1e-4 relative.
+    `h` starts `n0` samples before zero lag.  The inverse has unit gain in band (S. Mueller &
+    P. Massarani, "Transfer-function measurement with sweeps", JAES 49(6), 2001), so the band-limited
+    pulse peaks below 1; PCM_24 files: 1e-4 relative.
     """
     k = int(np.argmax(np.abs(h)))
-    assert k == delay  # exact to the sample
-    want = gain * full[lag - delay:lag - delay + h.size]
+    assert k == n0 + delay  # exact to the sample
+    want = gain * full[lag - n0 - delay:lag - n0 - delay + h.size]
     assert np.max(np.abs(h - want)) < 1e-4 * abs(gain) * np.max(np.abs(full))
     assert 0 < np.max(np.abs(full)) < 1
 
@@ -93,13 +94,16 @@ def test_per_speaker_recordings_to_irset(tmp_path, capsys):
                            "--out", out, "--speaker-names", "Left,Right", "--mic-names", "a,b,c")
     assert rc == 0, err
     irs = read_irset(out)
-    assert irs.data.shape == (4000, 3, 2)
+    n0 = irs.zero_lag_samples
+    # Pre-roll: one Fresnel time at f1, sqrt(T / (f1 ln(f2/f1))), under half the 2nd harmonic's offset.
+    assert n0 == int(np.sqrt(0.8 / (50 * np.log(3000 / 50))) * FS) == 1000
+    assert irs.data.shape == (n0 + 4000, 3, 2)
     assert irs.speaker_names == ["Left", "Right"] and irs.mic_names == ["a", "b", "c"]
     assert irs.sample_rate_hz == FS and irs.units == "full_scale"
     full, lag = _unity_pulse(x, side)
     for s in range(2):
         for m in range(3):
-            _check_wire(irs.data[:, m, s], full, lag, delays[s][m], gains[s][m])
+            _check_wire(irs.data[:, m, s], full, lag, delays[s][m], gains[s][m], n0)
     assert irs.warnings == []
     rows = list(csv.DictReader((out / "deconvolution.csv").open()))
     assert len(rows) == 6 and rows[0]["speaker"] == "Left" and rows[0]["mic"] == "a"
@@ -107,6 +111,8 @@ def test_per_speaker_recordings_to_irset(tmp_path, capsys):
     assert all(float(r["harmonic2_db"]) < -35 for r in rows)
     h2 = read_irset(out / "harmonic-2")
     assert h2.data.shape[1:] == (3, 2) and h2.extra["harmonic_order"] == 2
+    assert h2.zero_lag_samples == h2.extra["nominal_index"]
+    assert "before + after zero lag" in stdout
     assert irs.extra["per_pair"]["Right"]["b"]["peak_to_noise_db"] > 60
     assert "Left" in stdout
 
@@ -118,7 +124,9 @@ def test_linear_sweep_gives_responses_without_harmonics(tmp_path, capsys):
     assert rc == 0, err
     irs = read_irset(tmp_path / "irs")
     full, lag = _unity_pulse(data[:, 0], side)
-    _check_wire(irs.data[:, 0, 0], full, lag, 33, 0.7)
+    _check_wire(irs.data[:, 0, 0], full, lag, 33, 0.7, irs.zero_lag_samples)
+    # Linear sweep: the pre-roll is twice sqrt(T / (f2 - f1)), the time to cross one Fresnel zone.
+    assert irs.zero_lag_samples == int(2 * np.sqrt(0.8 / (3000 - 50)) * FS)
     assert not list(tmp_path.glob("irs/harmonic-*"))
     assert "harmonic2_db" not in (tmp_path / "irs" / "deconvolution.csv").read_text()
 
@@ -164,7 +172,7 @@ def test_schedule_recording_is_split_by_its_sidecar(tmp_path, capsys):
     full, lag = _unity_pulse(single[:, 0], single_side)
     for s in range(3):
         for m in range(2):
-            _check_wire(irs.data[:, m, s], full, lag, delays[s, m], gains[s, m])
+            _check_wire(irs.data[:, m, s], full, lag, delays[s, m], gains[s, m], irs.zero_lag_samples)
 
 
 def test_channel_probe_recording_gives_the_channel_response(tmp_path, capsys):
@@ -181,8 +189,9 @@ def test_channel_probe_recording_gives_the_channel_response(tmp_path, capsys):
                       "--out", tmp_path / "pir")
     assert rc == 0, err
     irs = read_irset(tmp_path / "pir")
-    assert irs.speaker_names == ["chan"] and irs.n_samples == 4000 + 2400
-    h = irs.data[:, 0, 0]
+    n0 = irs.zero_lag_samples
+    assert irs.speaker_names == ["chan"] and irs.n_samples == n0 + 4000 + 2400
+    h = irs.data[n0:, 0, 0]
     # The same sweep alone gives the band-limited unity pulse; the probe's inverse is scaled to the
     # sweep's level before the filters, so each filter tap comes back as tap * 0.5 * that pulse.
     single, single_side = _make(tmp_path, capsys)
@@ -192,6 +201,35 @@ def test_channel_probe_recording_gives_the_channel_response(tmp_path, capsys):
         k = d - 3 + int(np.argmax(np.abs(h[d - 3:d + 4]))) if d else int(np.argmax(np.abs(h[:4])))
         assert k == d
         assert h[k] == pytest.approx(0.5 * g * unity_peak, rel=0.01)
+
+
+def test_pre_ms_sets_the_samples_kept_before_zero_lag(tmp_path, capsys):
+    data, side = _make(tmp_path, capsys)
+    sf.write(tmp_path / "r.wav", _through(data[:, 0], [12], [0.6]), FS, subtype="FLOAT")
+    full, lag = _unity_pulse(data[:, 0], side)
+    for pre_ms, n0 in (("0", 0), ("12.5", 200)):
+        out = tmp_path / f"irs-{n0}"
+        rc, _, err = _run(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", side, "--out", out, "--pre-ms", pre_ms)
+        assert rc == 0, err
+        irs = read_irset(out)
+        assert irs.zero_lag_samples == n0 and irs.n_samples == n0 + 4000
+        _check_wire(irs.data[:, 0, 0], full, lag, 12, 0.6, n0)
+        assert json.loads((out / "irset.json").read_text())["format_version"] == (1 if n0 == 0 else 2)
+        rows = list(csv.DictReader((out / "deconvolution.csv").open()))
+        assert float(rows[0]["peak_delay_ms"]) == pytest.approx(1000 * 12 / FS, abs=1e-3)
+
+
+def test_sidecar_without_pre_roll_takes_the_default_rule(tmp_path, capsys):
+    # Sidecars written before the pre-roll existed: the rule gives the same value as a new sidecar.
+    data, side = _make(tmp_path, capsys)
+    obj = json.loads(side.read_text())
+    want = obj["sweep"].pop("pre_roll_samples")
+    old = tmp_path / "old.json"
+    old.write_text(json.dumps(obj))
+    sf.write(tmp_path / "r.wav", _through(data[:, 0], [3], [0.5]), FS, subtype="FLOAT")
+    rc, _, err = _run(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", old, "--out", tmp_path / "irs")
+    assert rc == 0, err
+    assert read_irset(tmp_path / "irs").zero_lag_samples == want
 
 
 @pytest.fixture
@@ -214,6 +252,9 @@ def sweep_and_rec(tmp_path, capsys):
     ("irlen", ["longer than the silence after the sweep"]),
     ("missing", ["recording not found"]),
     ("notwav", ["cannot read audio file"]),
+    ("prenegative", ["--pre-ms", "zero or a positive"]),
+    ("prelong", ["--pre-ms", "half-way to the 2nd harmonic"]),
+    ("sidecarpre", ["sweep.pre_roll_samples", "half-way to the 2nd harmonic"]),
 ])
 def test_bad_input_is_one_line_and_writes_nothing(tmp_path, capsys, sweep_and_rec, case, words):
     data, side = sweep_and_rec
@@ -256,6 +297,15 @@ def test_bad_input_is_one_line_and_writes_nothing(tmp_path, capsys, sweep_and_re
     elif case == "notwav":
         bad.write_text("RIFF? no")
         args = [bad, "--sweep", side]
+    elif case == "prenegative":
+        args += ["--pre-ms", "-1"]
+    elif case == "prelong":
+        args += ["--pre-ms", "80"]   # half the 2nd harmonic's offset is 67.7 ms
+    elif case == "sidecarpre":
+        obj = json.loads(side.read_text())
+        obj["sweep"]["pre_roll_samples"] = 5000
+        (tmp_path / "b.json").write_text(json.dumps(obj))
+        args = [ok, "--sweep", tmp_path / "b.json"]
     out = tmp_path / "irs"
     rc, _, err = _run(capsys, "deconvolve", *args, "--out", out)
     _one_line_error(rc, err, *words)

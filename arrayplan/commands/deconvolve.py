@@ -8,7 +8,9 @@ start with the played file's first sample (as when playing one track and
 recording another in the same session) and run at least to its end.
 
 The output folder is an IR set (``irset.json`` and one WAV per speaker, see
-:mod:`arrayplan.irset`) holding the linear impulse responses, plus
+:mod:`arrayplan.irset`) holding the linear impulse responses (each starts
+``--pre-ms`` before zero lag, to keep the pre-ringing of the measurement
+pulse; the set records the index of zero lag), plus
 ``harmonic-N/`` IR sets with the harmonic distortion products of an
 exponential sweep and ``deconvolution.csv`` with, per speaker and
 microphone, the peak, its delay, the peak-to-noise ratio and each
@@ -73,6 +75,22 @@ def _check_length(n_rec: int, n_file: int, rate: int, src: str, warnings: list[s
     if n_rec > n_file:
         warnings.append(f"{src}: recording is {(n_rec - n_file) / rate:.3f} s longer than the played file; "
                         "its first sample is taken as the file's first sample")
+
+
+def _pre_roll_samples(pre_ms: float | None, rec_info: SweepRecord, rate: int) -> int:
+    """Samples kept before zero lag: ``--pre-ms``, else the sweep's default (see arrayplan.signals.sweeps)."""
+    if pre_ms is None:
+        return rec_info.pre_roll_samples
+    if not (math.isfinite(pre_ms) and pre_ms >= 0):
+        raise InputError(f"must be zero or a positive number of milliseconds, got {pre_ms!r}", field="--pre-ms")
+    n = int(round(pre_ms * 1e-3 * rate))
+    top = rec_info.max_pre_roll_samples
+    if n > top:
+        what = ("half-way to the 2nd harmonic's response" if rec_info.kind == "exponential"
+                else "a quarter of the sweep")
+        raise InputError(f"{pre_ms:g} ms reaches past {what} ({1e3 * top / rate:.1f} ms)", field="--pre-ms",
+                         fix=f"use at most {math.floor(1e4 * top / rate) / 10:g} ms, or a longer sweep")
+    return n
 
 
 def _run(args: argparse.Namespace) -> int:
@@ -150,6 +168,7 @@ def _run(args: argparse.Namespace) -> int:
         ir_len = max_len
     if args.max_harmonic < 1:
         raise InputError(f"must be 1 (none) or more, got {args.max_harmonic}", field="--max-harmonic")
+    pre_roll = _pre_roll_samples(args.pre_ms, rec_info, rate)
     offsets = rec_info.harmonic_offsets_samples(args.max_harmonic)
     notes: list[str] = []
     if rec_info.kind == "exponential" and offsets and offsets[2] < ir_len:
@@ -161,14 +180,14 @@ def _run(args: argparse.Namespace) -> int:
         result = impulse_responses(recordings, inverse, linear_lag=rec_info.linear_lag_samples, ir_length=ir_len,
                                    harmonic_offsets=offsets, speaker_names=speakers, mic_names=mics,
                                    min_peak_to_noise_db=args.min_pnr_db, clip_threshold=CLIP_THRESHOLD,
-                                   progress=bar)
+                                   pre_roll_samples=pre_roll, progress=bar)
     warnings += result.warnings
 
     def fin(v: float) -> float | None:
         return round(float(v), 3) if math.isfinite(v) else None
 
     per_pair = {spk: {mic: {"peak_db": fin(result.peak_dbfs[m, s]),
-                            "peak_delay_s": float(result.peak_index[m, s]) / rate,
+                            "peak_delay_s": float(result.peak_index[m, s] - pre_roll) / rate,
                             "peak_to_noise_db": fin(result.peak_to_noise_db[m, s]),
                             "clipped_samples": int(result.clipped_samples[m, s]),
                             "harmonic_db": {str(n): fin(v[m, s]) for n, v in result.harmonic_db.items()},
@@ -179,11 +198,16 @@ def _run(args: argparse.Namespace) -> int:
              "harmonic_windows": {str(n): {"offset_samples": offsets[n], "samples": int(h.shape[0]),
                                            "nominal_index": int(result.harmonic_zero_index[n])}
                                   for n, h in result.harmonics.items()},
+             "pre_roll": {"samples": pre_roll, "ms": 1e3 * pre_roll / rate,
+                          "rule": "given by --pre-ms" if args.pre_ms is not None else
+                          f"the sweep's: {side['sweep'].get('pre_roll_rule', 'one Fresnel time at f1')}"},
+             "peak_delay_definition": "time of the largest sample after zero lag",
              "harmonic_level_definition": "10 log10 of the product's energy over the linear response's energy",
              "peak_to_noise_definition": "20 log10 of the peak over the RMS of the last 10 % of the response",
              "notes": notes, "per_pair": per_pair}
     irs = IRSet(data=result.data, sample_rate_hz=float(rate), speaker_names=speakers, mic_names=mics,
-                units="full_scale", latency_removed_samples=0, warnings=warnings, extra=extra)
+                units="full_scale", latency_removed_samples=0, warnings=warnings, extra=extra,
+                zero_lag_samples=pre_roll)
 
     buf = io.StringIO()
     orders = sorted(result.harmonic_db)
@@ -204,8 +228,10 @@ def _run(args: argparse.Namespace) -> int:
                 data=h, sample_rate_hz=float(rate), speaker_names=speakers, mic_names=mics, units="full_scale",
                 extra={"harmonic_order": n, "offset_samples": offsets[n],
                        "nominal_index": int(result.harmonic_zero_index[n]),
-                       "note": f"order-{n} distortion product; sample nominal_index is {offsets[n]:.1f} samples "
-                               "before the linear response's zero lag"}), command="arrayplan deconvolve")
+                       "note": f"order-{n} distortion product; sample nominal_index (the set's zero lag) is "
+                               f"{offsets[n]:.1f} samples before the linear response's zero lag"},
+                zero_lag_samples=min(int(result.harmonic_zero_index[n]), h.shape[0] - 1)),
+                command="arrayplan deconvolve")
         write_text_atomic(stage / REPORT_NAME, buf.getvalue())
 
     for line in warnings:
@@ -213,7 +239,8 @@ def _run(args: argparse.Namespace) -> int:
     for line in notes:
         print(f"arrayplan deconvolve: note: {line}", file=sys.stderr)
     print(f"wrote IR set {Path(args.out) / 'irset.json'}: {len(speakers)} speaker(s) x {n_mic} microphone(s), "
-          f"{ir_len} samples at {rate} Hz; report {Path(args.out) / REPORT_NAME}")
+          f"{pre_roll} + {ir_len} samples (before + after zero lag) at {rate} Hz; "
+          f"report {Path(args.out) / REPORT_NAME}")
     for s, spk in enumerate(speakers):
         worst = float(np.min(result.peak_to_noise_db[:, s]))
         text = f"  {spk}: peak-to-noise {worst:.1f} dB (lowest mic)"
@@ -235,7 +262,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated "
                                                             "(default: the schedule's, else S1, S2, ...)")
     p.add_argument("--mic-names", type=_csv_names, help="microphone names, comma-separated (default M1, M2, ...)")
-    p.add_argument("--ir-length-s", type=float, help="response length, s (default: the silence after the sweep)")
+    p.add_argument("--ir-length-s", type=float,
+                   help="response length after zero lag, s (default: the silence after the sweep)")
+    p.add_argument("--pre-ms", type=float, metavar="MS",
+                   help="time kept before zero lag for the pre-ringing of the measurement pulse, ms (default: the "
+                        "sweep's, one Fresnel time at f1 and at most half-way to the 2nd harmonic; 0 cuts at "
+                        "zero lag)")
     p.add_argument("--max-harmonic", type=int, default=5,
                    help="highest harmonic order separated (exponential sweeps; default 5, 1 for none)")
     p.add_argument("--min-pnr-db", type=float, default=DEFAULT_MIN_PEAK_TO_NOISE_DB,

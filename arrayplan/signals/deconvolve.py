@@ -13,9 +13,16 @@ All functions here are pure: arrays in, arrays out.  Time signals are
 are in units of recorded full scale per played full scale: the inverse
 filter has unit gain in the sweep's band (see :mod:`arrayplan.signals.sweeps`),
 so the DFT of a response is the system's transfer function there, and the
-band-limited pulse of a unit-gain wire peaks below 1.  The linear response
-starts at zero lag, so a response whose delay is shorter than the pulse's
-pre-ringing (a few periods of f1) loses that pre-ringing and reads low near f1.
+band-limited pulse of a unit-gain wire peaks below 1.
+
+The pulse rings before zero lag, longest at f1 (about one Fresnel time), so a
+linear response cut at zero lag loses that pre-ringing whenever the acoustic
+delay is shorter, and reads low near f1 (about 1 dB near 164 Hz for a 137-sample
+delay and a 100 Hz-16 kHz sweep).  :func:`deconvolve` therefore keeps
+``pre_roll_samples`` before zero lag (the sweep's
+:attr:`~arrayplan.signals.sweeps.SweepSignal.pre_roll_samples`: one Fresnel
+time at f1, at most half-way to the 2nd harmonic); zero lag is then at that
+index of the response, which IR sets record as ``zero_lag_samples``.
 """
 
 from __future__ import annotations
@@ -57,9 +64,9 @@ class Deconvolution:
 
     Attributes
     ----------
-    linear : ndarray, shape (ir_length, n_channels)
-        Linear impulse response; index 0 is zero lag (the played file's first
-        sample reaching the recorder's first sample).
+    linear : ndarray, shape (pre_roll + ir_length, n_channels)
+        Linear impulse response; index `zero_lag_index` is zero lag (the
+        played file's first sample reaching the recorder's first sample).
     harmonics : dict of int -> ndarray, shape (n_window, n_channels)
         Harmonic distortion products by order (2, 3, ...).
     harmonic_starts : dict of int -> int
@@ -70,6 +77,8 @@ class Deconvolution:
         The whole deconvolved signal.
     linear_lag : int
         Index in `full` of the linear response's zero lag.
+    zero_lag_index : int
+        Index in `linear` of zero lag: the samples kept before it (pre-roll).
     """
 
     linear: np.ndarray
@@ -79,6 +88,7 @@ class Deconvolution:
     full: np.ndarray
     linear_lag: int
     notes: list[str] = field(default_factory=list)
+    zero_lag_index: int = 0
 
 
 def _as_2d(x: np.ndarray, name: str) -> np.ndarray:
@@ -148,7 +158,7 @@ def harmonic_windows(linear_lag: int, harmonic_offsets: Mapping[int, float], ir_
 
 def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, ir_length: int,
                harmonic_offsets: Mapping[int, float] | None = None,
-               pre_samples: int | None = None) -> Deconvolution:
+               pre_samples: int | None = None, pre_roll_samples: int = 0) -> Deconvolution:
     """Convolve a recording with a sweep's inverse filter and cut out the responses.
 
     Parameters
@@ -161,17 +171,23 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
     linear_lag : int
         Index of zero lag in the full deconvolution (``n_pad_before + n_sweep - 1``).
     ir_length : int
-        Length of the linear impulse response, samples.
+        Length of the linear impulse response from zero lag on, samples.
     harmonic_offsets : mapping of int -> float, optional
         Harmonic order -> offset in samples before the linear response
         (:meth:`arrayplan.signals.sweeps.SweepSignal.harmonic_offsets_samples`).
     pre_samples : int, optional
         Samples kept before each harmonic's nominal position (default: half
         the gap to the next order, see :func:`harmonic_windows`).
+    pre_roll_samples : int
+        Samples of the linear response kept before zero lag, to hold the
+        pulse's pre-ringing (the sweep's ``pre_roll_samples``; 0 cuts at
+        zero lag).  Must not reach past half-way to the 2nd harmonic.
 
     Returns
     -------
     Deconvolution
+        ``linear`` has ``pre_roll_samples + ir_length`` samples, zero lag at
+        index ``pre_roll_samples``.
     """
     from scipy.signal import fftconvolve
 
@@ -179,14 +195,21 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
     inv = np.asarray(inverse, dtype=float).reshape(-1)
     if ir_length < 1:
         raise ValueError(f"ir_length must be >= 1, got {ir_length}")
+    pre_roll = int(pre_roll_samples)
+    if pre_roll < 0:
+        raise ValueError(f"pre_roll_samples must be >= 0, got {pre_roll}")
+    second = (harmonic_offsets or {}).get(2)
+    if second is not None and pre_roll > second / 2:
+        raise ValueError(f"a pre-roll of {pre_roll} samples reaches past half-way to the 2nd harmonic "
+                         f"({second / 2:.0f} samples)")
     full = fftconvolve(rec, inv[:, None], axes=0)
-    linear = _cut(full, linear_lag, ir_length)
+    linear = _cut(full, linear_lag - pre_roll, pre_roll + ir_length)
     windows = harmonic_windows(linear_lag, harmonic_offsets or {}, ir_length, pre_samples)
     harmonics = {n: _cut(full, start, length) for n, (start, length, _) in windows.items()}
     return Deconvolution(linear=linear, harmonics=harmonics,
                          harmonic_starts={n: w[0] for n, w in windows.items()},
                          harmonic_zero_index={n: w[2] for n, w in windows.items()},
-                         full=full, linear_lag=int(linear_lag))
+                         full=full, linear_lag=int(linear_lag), zero_lag_index=pre_roll)
 
 
 def harmonic_levels_db(linear: np.ndarray, harmonics: Mapping[int, np.ndarray]) -> dict[int, np.ndarray]:
@@ -286,8 +309,9 @@ class OfflineResult:
 
     Attributes
     ----------
-    data : ndarray, shape (ir_length, n_mic, n_spk)
-        Linear impulse responses (the layout of :class:`arrayplan.irset.IRSet`).
+    data : ndarray, shape (pre_roll + ir_length, n_mic, n_spk)
+        Linear impulse responses (the layout of :class:`arrayplan.irset.IRSet`),
+        zero lag at index `zero_lag_index`.
     harmonics : dict of int -> ndarray, shape (n_window, n_mic, n_spk)
         Harmonic distortion products by order.
     harmonic_zero_index : dict of int -> int
@@ -300,7 +324,8 @@ class OfflineResult:
     peak_dbfs : ndarray, shape (n_mic, n_spk)
         Peak of each linear response, dB re 1 (recorded full scale per played full scale).
     peak_index : ndarray, shape (n_mic, n_spk)
-        Sample of that peak (the arrival, roughly).
+        Index in `data` of that peak; ``peak_index - zero_lag_index`` is the
+        arrival, roughly, in samples after zero lag.
     clipped_samples : ndarray, shape (n_mic, n_spk)
         Recorded samples at or above the clip threshold.
     warnings : list of str
@@ -317,12 +342,14 @@ class OfflineResult:
     peak_index: np.ndarray
     clipped_samples: np.ndarray
     warnings: list[str]
+    zero_lag_index: int = 0
 
 
 def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, linear_lag: int, ir_length: int,
                       harmonic_offsets: Mapping[int, float] | None = None, speaker_names: Sequence[str],
                       mic_names: Sequence[str], min_peak_to_noise_db: float = DEFAULT_MIN_PEAK_TO_NOISE_DB,
                       clip_threshold: float = CLIP_THRESHOLD, pre_samples: int | None = None,
+                      pre_roll_samples: int = 0,
                       progress: Callable[[int, int], None] | None = None) -> OfflineResult:
     """Deconvolve one recording per speaker and gather responses, distortion and warnings.
 
@@ -332,7 +359,7 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
         Speaker k's recording (all microphones), aligned with the played file.
     inverse : ndarray, shape (n_inverse,)
         The sweep's normalised inverse filter.
-    linear_lag, ir_length, harmonic_offsets, pre_samples
+    linear_lag, ir_length, harmonic_offsets, pre_samples, pre_roll_samples
         As for :func:`deconvolve`.
     speaker_names, mic_names : sequence of str
         Names used in the warnings; lengths n_spk and n_mic.
@@ -355,7 +382,8 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
         if rec.shape[1] != len(mic_names):
             raise ValueError(f"recording has {rec.shape[1]} channels for {len(mic_names)} microphones")
         d = deconvolve(rec, inverse, linear_lag=linear_lag, ir_length=ir_length,
-                       harmonic_offsets=harmonic_offsets, pre_samples=pre_samples)
+                       harmonic_offsets=harmonic_offsets, pre_samples=pre_samples,
+                       pre_roll_samples=pre_roll_samples)
         linear.append(d.linear)
         for n, h in d.harmonics.items():
             harm.setdefault(n, []).append(h)
@@ -386,4 +414,4 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
                             "raise the level carefully, lengthen the sweep, or quieten the room")
     return OfflineResult(data=data, harmonics=harmonics, harmonic_zero_index=dict(zero), harmonic_db=levels, thd_db=np.asarray(thd),
                          peak_to_noise_db=pnr, peak_dbfs=peak_db, peak_index=np.argmax(np.abs(data), axis=0),
-                         clipped_samples=clip, warnings=warnings)
+                         clipped_samples=clip, warnings=warnings, zero_lag_index=int(pre_roll_samples))
