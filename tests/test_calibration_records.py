@@ -159,11 +159,13 @@ def test_calibrated_measurement_carries_pascal_per_volt(bench_rig, tmp_path):
     # measurement with sweeps", JAES 49(6), 2001: the deconvolved spectrum of a unity system is flat
     # in band; truth from the simulated link, exact arithmetic otherwise).
     centre = math.sqrt(100.0 * 20000.0)
-    phasor = np.exp(-2j * np.pi * centre / 48000.0 * np.arange(2400))
+    assert b.zero_lag_samples > 0 and b.n_samples == b.zero_lag_samples + 2400   # pre-roll kept before zero lag
+    phasor = np.exp(-2j * np.pi * centre / 48000.0 * (np.arange(b.n_samples) - b.zero_lag_samples))
+    truth_phasor = np.exp(-2j * np.pi * centre / 48000.0 * np.arange(link.truth.n_samples))
     for m in range(3):
         for s in range(3):
             got = abs(np.dot(b.data[:, m, s], phasor))
-            want = abs(np.dot(link.truth.data[:, m, s], phasor[:link.truth.n_samples])) * pa[m] / volts[s]
+            want = abs(np.dot(link.truth.data[:, m, s], truth_phasor)) * pa[m] / volts[s]
             assert 20 * math.log10(got / want) == pytest.approx(0.0, abs=0.05)
     # Without output gains the responses are Pa per full scale, with a warning.
     mics_only = CalibrationRecord(microphones=rec.microphones)

@@ -33,6 +33,7 @@ def _run(cmd, **kw):
 
 
 def _sweep_zero_lag_response(n, whole=False):
+    """The unity pulse from the sweep's pre-roll before zero lag on (n samples), and the pre-roll."""
     from arrayplan.hardware.measure import MeasurementSettings
     from arrayplan.signals.sweeps import make_sweep
 
@@ -40,30 +41,31 @@ def _sweep_zero_lag_response(n, whole=False):
     sweep = make_sweep(settings.sweep_settings(FS))
     assert (sweep.settings.f1_hz, sweep.settings.f2_hz) == (100.0, 20000.0)
     g = fftconvolve(sweep.sweep, sweep.inverse)
-    return g if whole else g[sweep.n_sweep - 1:sweep.n_sweep - 1 + n]
+    n0 = sweep.pre_roll_samples
+    return g if whole else (g[sweep.n_sweep - 1 - n0:sweep.n_sweep - 1 - n0 + n], n0)
 
 
 def _check_unit_impulses(folder):
     from arrayplan.irset import read_irset
 
     irs = read_irset(folder)
-    assert irs.data.shape == (2400, 3, 3)
-    g = _sweep_zero_lag_response(irs.n_samples)
+    g, n0 = _sweep_zero_lag_response(irs.n_samples)
+    assert irs.zero_lag_samples == n0 and irs.data.shape == (n0 + 2400, 3, 3)
     peaks = []
     for s in range(3):
         for m in range(3):
             h = irs.data[:, m, s]
             if m == s:
-                assert int(np.argmax(np.abs(h))) == 0
+                assert int(np.argmax(np.abs(h))) == n0     # zero lag, after the pre-roll
                 assert np.max(np.abs(h - g)) < 1e-6
-                peaks.append(float(h[0]))
+                peaks.append(float(h[n0]))
             else:
                 assert not np.any(h), f"speaker {s + 1} leaks into mic {m + 1}"
     # The inverse has unit gain in band (S. Mueller & P. Massarani, "Transfer-function measurement
     # with sweeps", JAES 49(6), 2001), so a unit-gain wire gives the band-limited pulse, whose peak
     # lies below 1; its spectrum at the band centre, sqrt(f1 f2), is 0 dB (checked on the whole pulse,
-    # which the cut at zero lag shortens).
-    assert peaks == pytest.approx([g[0]] * 3, abs=1e-6) and 0.5 < g[0] < 1.0
+    # which the cut shortens).
+    assert peaks == pytest.approx([g[n0]] * 3, abs=1e-6) and 0.5 < g[n0] < 1.0
     whole = _sweep_zero_lag_response(None, whole=True)
     centre = np.sqrt(100.0 * 20000.0)
     at_centre = np.dot(whole, np.exp(-2j * np.pi * centre / FS * np.arange(whole.size)))

@@ -88,8 +88,8 @@ def _pre_roll_samples(pre_ms: float | None, rec_info: SweepRecord, rate: int) ->
     if n > top:
         what = ("half-way to the 2nd harmonic's response" if rec_info.kind == "exponential"
                 else "a quarter of the sweep")
-        raise InputError(f"{pre_ms:g} ms reaches past {what} ({1e3 * top / rate:.1f} ms)", field="--pre-ms",
-                         fix=f"use at most {math.floor(1e4 * top / rate) / 10:g} ms, or a longer sweep")
+        raise InputError(f"{pre_ms:g} ms reaches past {what} ({math.floor(1e4 * top / rate) / 10:g} ms)",
+                         field="--pre-ms", fix="use a shorter pre-roll, or a longer sweep")
     return n
 
 

@@ -111,7 +111,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--peak-dbfs", type=float, metavar="DB", help="sweep peak level (default: the peak cap, -12 dBFS)")
     s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
     s.add_argument("--repeats", type=int, default=1, metavar="N", help="sweeps per take, averaged (default 1)")
-    s.add_argument("--ir-s", type=float, default=0.5, metavar="S", help="impulse-response length (default 0.5 s)")
+    s.add_argument("--ir-s", type=float, default=0.5, metavar="S",
+                   help="impulse-response length after zero lag (default 0.5 s)")
+    s.add_argument("--pre-ms", type=float, metavar="MS",
+                   help="time kept before zero lag for the measurement pulse's pre-ringing (default: one Fresnel "
+                        "time at f1, at most half-way to the 2nd harmonic; 110 ms for the default sweep)")
     s.add_argument("--max-latency-s", type=float, default=0.25, metavar="S",
                    help="longest interface latency expected (default 0.25 s)")
     s.add_argument("--lead-in-s", type=float, default=0.2, metavar="S", help="silence before each sweep (default 0.2 s)")
@@ -181,7 +185,8 @@ def run(args: argparse.Namespace) -> int:
     calibration = read_calibration(cal_path) if cal_path else None
     settings = MeasurementSettings(
         f1_hz=args.f1, f2_hz=args.f2, sweep_s=args.duration_s, peak_dbfs=args.peak_dbfs,
-        allow_above_cap=args.allow_above_cap, ir_s=args.ir_s, lead_in_s=args.lead_in_s,
+        allow_above_cap=args.allow_above_cap, ir_s=args.ir_s,
+        pre_s=None if args.pre_ms is None else args.pre_ms * 1e-3, lead_in_s=args.lead_in_s,
         max_latency_s=args.max_latency_s, repeats=args.repeats,
         min_peak_to_noise_db=(DEFAULT_MIN_PEAK_TO_NOISE_DB if args.min_peak_to_noise_db is None
                               else args.min_peak_to_noise_db))
@@ -194,7 +199,7 @@ def run(args: argparse.Namespace) -> int:
                                       latency_samples=args.sim_latency_samples, noise_rms_dbfs=args.sim_noise_dbfs,
                                       nonlinearity=_parse_coefficients(args.sim_nonlinearity),
                                       dropouts_per_take=args.sim_dropouts, seed=args.sim_seed)
-        make_sweep(settings.sweep_settings(fs))  # refuse bad sweep options before anything else
+        settings.pre_roll_samples(make_sweep(settings.sweep_settings(fs)))  # refuse bad options before anything else
         print(f"Simulated rig: nothing is played ({link.description}).", file=sys.stderr)
     else:
         from ..hardware.duplex import SoundDeviceLink
@@ -202,6 +207,7 @@ def run(args: argparse.Namespace) -> int:
         device = args.device if args.device is not None else hw.device
         link = SoundDeviceLink(device, rate, n_outputs=wiring.n_outputs_needed, n_inputs=wiring.n_inputs_needed)
         sweep = make_sweep(settings.sweep_settings(link.sample_rate_hz))
+        settings.pre_roll_samples(sweep)  # refuse a bad --pre-ms before anything plays
         print_caution()
         amp = None
         if calibration is not None:

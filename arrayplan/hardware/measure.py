@@ -16,7 +16,9 @@ An output folder looks like::
     takes/001-S1/             one folder per finished take, renamed into place
         recording.wav         raw inputs (mics in rig order, then the reference),
                               every repeat, float32
-        irset/                the take's impulse responses (arrayplan.irset)
+        irset/                the take's impulse responses (arrayplan.irset); each
+                              starts the pre-roll before zero lag (the set's
+                              zero_lag_samples) to keep the pulse's pre-ringing
         take.json             status ("ok" or "marked"), warnings, latency, checks
     irset/                    all speakers together, written when every take is done
 
@@ -44,7 +46,7 @@ from ..progress import ticking
 from ..irset import IRSet, write_irset
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, clipped_sample_counts,
                                   deconvolve, harmonic_levels_db, peak_to_noise_db)
-from ..signals.sweeps import SweepSettings, SweepSignal, make_sweep
+from ..signals.sweeps import SweepSettings, SweepSignal, make_sweep, max_pre_roll_s
 from .calibration import CalibrationRecord, calibration_factors
 from .duplex import AudioLink, DuplexResult
 
@@ -83,7 +85,12 @@ class MeasurementSettings:
     allow_above_cap : bool
         Allow a peak above the cap (refused otherwise).
     ir_s : float
-        Length of the impulse responses kept, s.
+        Length of the impulse responses kept after zero lag, s.
+    pre_s : float or None
+        Time kept before zero lag for the pre-ringing of the measurement
+        pulse, s; None takes the sweep's default (one Fresnel time at f1,
+        at most half-way to the 2nd harmonic; see
+        :func:`arrayplan.signals.sweeps.default_pre_roll_s`).
     lead_in_s : float
         Silence before each sweep, s; covers the audio stream's start-up.
     max_latency_s : float
@@ -91,8 +98,10 @@ class MeasurementSettings:
         ``max_latency_s + ir_s``.
     repeats : int
         Sweeps per take, averaged synchronously.
-    fade_in_s, fade_out_s : float
-        Raised-cosine fades of the sweep, s.
+    fade_in_s, fade_out_s : float or None
+        Raised-cosine fades of the sweep, s; None (the default) takes one
+        Fresnel time at f1 and f2, which keeps the band flat
+        (:func:`arrayplan.signals.sweeps.default_fades_s`).
     min_peak_to_noise_db : float
         A microphone response below this peak-to-noise ratio marks the take.
     clip_threshold : float
@@ -105,11 +114,12 @@ class MeasurementSettings:
     peak_dbfs: float | None = None
     allow_above_cap: bool = False
     ir_s: float = 0.5
+    pre_s: float | None = None
     lead_in_s: float = 0.2
     max_latency_s: float = 0.25
     repeats: int = 1
-    fade_in_s: float = 0.02
-    fade_out_s: float = 0.005
+    fade_in_s: float | None = None
+    fade_out_s: float | None = None
     min_peak_to_noise_db: float = DEFAULT_MIN_PEAK_TO_NOISE_DB
     clip_threshold: float = CLIP_THRESHOLD
 
@@ -129,6 +139,28 @@ class MeasurementSettings:
                              sample_rate_hz=sample_rate_hz, fade_in_s=self.fade_in_s, fade_out_s=self.fade_out_s,
                              pad_before_s=self.lead_in_s, pad_after_s=self.max_latency_s + self.ir_s,
                              allow_above_cap=self.allow_above_cap, **kw)
+
+    def pre_roll_samples(self, sweep: SweepSignal) -> int:
+        """Samples kept before zero lag: `pre_s`, else the sweep's default.
+
+        Raises
+        ------
+        InputError
+            For a negative `pre_s` or one reaching past half-way to the 2nd harmonic.
+        """
+        if self.pre_s is None:
+            return sweep.pre_roll_samples
+        fs = sweep.settings.sample_rate_hz
+        if not (math.isfinite(self.pre_s) and self.pre_s >= 0):
+            raise InputError(f"must be zero or a positive time, got {self.pre_s * 1e3!r} ms", field="--pre-ms")
+        n = int(round(self.pre_s * fs))
+        s = sweep.settings
+        top = int(math.floor(max_pre_roll_s(s.kind, s.f1_hz, s.f2_hz, s.duration_s) * fs))
+        if n > top:
+            raise InputError(f"{self.pre_s * 1e3:g} ms reaches past half-way to the 2nd harmonic's response "
+                             f"({math.floor(1e4 * top / fs) / 10:g} ms)", field="--pre-ms",
+                             fix="use a shorter pre-roll, or a longer sweep")
+        return n
 
 
 @dataclass(frozen=True)
@@ -507,6 +539,7 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
         on_warning(w)
 
     ir_len = int(round(settings.ir_s * fs))
+    pre_roll = settings.pre_roll_samples(sweep)
     max_lat = int(round(settings.max_latency_s * fs))
     if latency_samples is not None and latency_source != "reference" and latency_samples > max_lat:
         raise InputError(f"latency of {latency_samples} samples exceeds --max-latency-s ({max_lat} samples)",
@@ -556,7 +589,7 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
                 lat, ref_peak = int(latency_samples or 0), None
             n_mic = len(wiring.mic_names)
             dec = deconvolve(avg[:, :n_mic], sweep.inverse, linear_lag=sweep.linear_lag + lat, ir_length=ir_len,
-                             harmonic_offsets=sweep.harmonic_offsets_samples(5))
+                             harmonic_offsets=sweep.harmonic_offsets_samples(5), pre_roll_samples=pre_roll)
             ir_fs = dec.linear
             checks, details = _check_take(result, ir_fs, wiring, settings, speaker)
             warnings += checks
@@ -571,7 +604,7 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
             for w in warnings:
                 on_warning(f"speaker {speaker}: {w}")
             details.update({
-                "latency_fractional_samples": frac, "reference_peak": ref_peak,
+                "latency_fractional_samples": frac, "reference_peak": ref_peak, "zero_lag_samples": pre_roll,
                 "harmonic_levels_db": {"microphone": wiring.mic_names[best_mic],
                                        **{str(k): _finite_or_none(float(v[0])) for k, v in levels.items()}},
             })
@@ -593,7 +626,7 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
                  "measure the rest")
         raise
 
-    irset_path = _write_combined(out_dir, results, wiring, fs, units, session_warnings, latency_source)
+    irset_path = _write_combined(out_dir, results, wiring, fs, units, session_warnings, latency_source, pre_roll)
     all_warnings = session_warnings + [f"speaker {t.speaker}: {w}" for t in results for w in t.warnings]
     return MeasurementSummary(out_dir, results, measured, resumed, irset_path, all_warnings)
 
@@ -642,7 +675,8 @@ def _save_take(take: TakeResult, result: DuplexResult, ir: np.ndarray, units: st
         irs = IRSet(data=ir[:, :, None], sample_rate_hz=result.sample_rate_hz, speaker_names=[take.speaker],
                     mic_names=list(wiring.mic_names), speaker_positions=pos_s, mic_positions=wiring.mic_positions,
                     units=units, latency_removed_samples=int(take.latency_samples or 0), warnings=take.warnings,
-                    extra={"take": take.folder.name, "status": take.status})
+                    extra={"take": take.folder.name, "status": take.status},
+                    zero_lag_samples=int(take.details.get("zero_lag_samples", 0)))
         write_irset(stage / "irset", irs, rig_sha256=wiring.rig_sha256)
         in_names = list(wiring.mic_names) + (["reference"] if wiring.reference else [])
         write_json_atomic(stage / "take.json", {
@@ -676,8 +710,12 @@ def _save_take(take: TakeResult, result: DuplexResult, ir: np.ndarray, units: st
 
 
 def _write_combined(out_dir: Path, takes: Sequence[TakeResult], wiring: RigWiring, fs: float, units: str,
-                    session_warnings: list[str], latency_source: str) -> Path | None:
-    """Stack every take's responses into out_dir/irset once all takes are there."""
+                    session_warnings: list[str], latency_source: str, zero_lag: int) -> Path | None:
+    """Stack every take's responses into out_dir/irset once all takes are there.
+
+    `zero_lag` is the session's pre-roll (the same for every take: resumed
+    takes were measured with the same settings, which session.json checks).
+    """
     import soundfile as sf
 
     if len(takes) != len(wiring.speaker_names):
@@ -697,12 +735,18 @@ def _write_combined(out_dir: Path, takes: Sequence[TakeResult], wiring: RigWirin
     lengths = {b.shape[0] for b in blocks}
     if len(lengths) != 1:
         raise InputError(f"takes have different lengths {sorted(lengths)}", source=str(out_dir))
+    for t in takes:
+        if int(t.details.get("zero_lag_samples", 0)) != zero_lag:
+            raise InputError(f"take of speaker {t.speaker} keeps {t.details.get('zero_lag_samples', 0)} samples "
+                             f"before zero lag, this session {zero_lag}", source=str(t.folder / "take.json"),
+                             fix="delete this take's folder to measure it again")
     lat = [t.latency_samples for t in takes]
     irs = IRSet(data=np.stack(blocks, axis=2), sample_rate_hz=fs, speaker_names=list(wiring.speaker_names),
                 mic_names=list(wiring.mic_names), speaker_positions=wiring.speaker_positions,
                 mic_positions=wiring.mic_positions, units=units,
                 latency_removed_samples=int(round(float(np.median(lat)))) if latency_source != "none" else 0,
                 warnings=session_warnings + [f"speaker {t.speaker}: {w}" for t in takes for w in t.warnings],
+                zero_lag_samples=zero_lag,
                 extra={"measurement": {
                     "latency_source": latency_source,
                     "takes": [{"speaker": t.speaker, "status": t.status, "latency_samples": t.latency_samples,

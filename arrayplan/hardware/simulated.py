@@ -56,6 +56,9 @@ class SimulatedLink:
     truth : IRSet
         The rig's true responses, ``data`` of shape (n_ir, n_mic, n_spk), in
         recorded full scale per played full scale; its rate is the link's.
+        Samples before its zero lag (``truth.zero_lag_samples``) act before
+        the drive, as a non-causal filter would (the recording is the
+        convolution advanced by that many samples).
     speaker_outputs : sequence of int
         0-based output channel of each speaker of `truth`, in order.
     mic_inputs : sequence of int
@@ -141,8 +144,9 @@ class SimulatedLink:
             if out in self.speaker_outputs:
                 s = self.speaker_outputs.index(out)
                 drive = apply_nonlinearity(x, self.nonlinearity)
+                n0 = self.truth.zero_lag_samples
                 for m, inp in enumerate(self.mic_inputs):
-                    inputs[:, inp] += fftconvolve(drive, self.truth.data[:, m, s])[:n]
+                    inputs[:, inp] += fftconvolve(drive, self.truth.data[:, m, s])[n0:n0 + n]
             if self.reference and out == self.reference[0]:
                 inputs[:, self.reference[1]] += x
         lat = self.latency_samples
