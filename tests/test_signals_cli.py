@@ -74,6 +74,28 @@ def test_sweep_round_trip(tmp_path, capsys, fmt, subtype):
     assert "no exposure estimate" in err
 
 
+def test_sweep_fades_default_to_one_fresnel_time_and_given_ones_are_kept(tmp_path, capsys):
+    # 1 / sqrt(f ln(f2/f1) / T) at f1 and f2: the time the sweep takes to cross one Fresnel zone
+    # (common practice, no source), at most half an octave's time T ln 2 / ln(f2/f1) / 2 (which binds
+    # at f1 for this short sweep); recorded in both the conditioning and the sweep block.
+    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "a.wav"), *SWEEP)
+    assert rc == 0, err
+    side = json.loads((tmp_path / "a.json").read_text())
+    rate = 0.5 / np.log(5000 / 50)
+    half_octave = rate * np.log(2) / 2
+    assert 1 / np.sqrt(50 / rate) > half_octave > 1 / np.sqrt(5000 / rate)
+    for key, want in (("fade_in_s", half_octave), ("fade_out_s", 1 / np.sqrt(5000 / rate))):
+        assert side["conditioning"][key] == side["sweep"][key] == pytest.approx(want, rel=1e-12)
+    assert side["sweep"]["fade_rule"].startswith("one Fresnel time")
+    assert side["sweep"]["pre_roll_samples"] == int(half_octave * 16000)
+    rc, _, err = _run(capsys, "signal", "schedule", "--speakers", "2", "--out", str(tmp_path / "s.wav"), *SWEEP,
+                      "--fade-in-s", "0.01", "--fade-out-s", "0.002")
+    assert rc == 0, err
+    side = json.loads((tmp_path / "s.json").read_text())
+    assert (side["conditioning"]["fade_in_s"], side["conditioning"]["fade_out_s"]) == (0.01, 0.002)
+    assert side["sweep"]["fade_rule"] == "as given"
+
+
 def test_other_signals_round_trip(tmp_path, capsys):
     cases = {
         "noise.wav": ["noise", "--colour", "white", "--duration-s", "1", "--seed", "3", "--rms-dbfs", "-30"],
