@@ -46,8 +46,10 @@ def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80
     range_db : float
         Colour range below the largest sample, dB.
     max_time_s : float, optional
-        Time shown on the left, seconds (default: until the loudest response
-        has decayed by 60 dB or into the noise, plus a quarter).
+        Time after zero lag shown on the left, seconds (default: until the
+        loudest response has decayed by 60 dB or into the noise, plus a
+        quarter).  The view starts a fifth of that before zero lag, where a
+        set keeps samples before it (``zero_lag_samples``).
 
     Returns
     -------
@@ -57,6 +59,7 @@ def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80
     ax_env, ax_peak = fig.subplots(1, 2, width_ratios=[1.6, 1.0])
     data = np.abs(irs.data)
     ref = float(data.max()) or 1.0
+    n0 = int(irs.zero_lag_samples)
     if max_time_s is None:
         # until the loudest pair has decayed by 60 dB or into the noise (4x the median of the
         # last fifth of the set), plus a quarter
@@ -65,18 +68,20 @@ def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80
         floor = 4.0 * float(np.median(tail)) if tail.size else 0.0
         above = np.flatnonzero(loudest > max(ref * 1e-3, floor))
         last = int(above[-1]) + 1 if above.size else irs.n_samples
-        n_show = min(irs.n_samples, max(int(1.25 * last), 32))
+        n_show = min(irs.n_samples, max(n0 + int(1.25 * (last - n0)), n0 + 32))
     else:
-        n_show = min(irs.n_samples, int(max_time_s * irs.sample_rate_hz) + 1)
-    pairs = data[:n_show].transpose(2, 1, 0).reshape(irs.n_spk * irs.n_mic, n_show)    # (pair, time)
+        n_show = min(irs.n_samples, n0 + int(max_time_s * irs.sample_rate_hz) + 1)
+    # start a little before zero lag, so the pre-ringing kept before it shows too
+    start = max(0, n0 - max((n_show - n0) // 5, 1))
+    pairs = data[start:n_show].transpose(2, 1, 0).reshape(irs.n_spk * irs.n_mic, n_show - start)  # (pair, time)
     pairs = _max_pool(_max_pool(pairs, 0, MAX_ROWS), 1, MAX_COLUMNS)     # big sets: keep every peak visible
     with np.errstate(divide="ignore"):
         env_db = np.maximum(20.0 * np.log10(pairs / ref), -range_db)
         peak_db = np.maximum(20.0 * np.log10(data.max(axis=0) / ref), -range_db)       # (mic, spk)
-    t_ms = np.arange(n_show) / irs.sample_rate_hz * 1e3
+    t_ms = (np.arange(start, n_show) - n0) / irs.sample_rate_hz * 1e3
     im = ax_env.imshow(env_db, aspect="auto", cmap="cividis", vmin=-range_db, vmax=0.0, interpolation="nearest",
                        extent=(t_ms[0], t_ms[-1], irs.n_spk * irs.n_mic + 0.5, 0.5))
-    ax_env.set_xlabel("time (ms)")
+    ax_env.set_xlabel("time after zero lag (ms)")
     ax_env.set_ylabel("speaker/mic pair (no.)")
     ax_env.set_title("Envelopes |h| (speaker by speaker)")
     if irs.n_spk <= 16:
@@ -88,7 +93,7 @@ def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80
     ax_peak.set_ylabel("microphone (no.)")
     for axis, count, setter in ((ax_peak.xaxis, irs.n_spk, ax_peak.set_xticks),
                                 (ax_peak.yaxis, irs.n_mic, ax_peak.set_yticks)):
-        idx = np.arange(0, count, int(np.ceil(count / 12)))
+        idx = np.arange(0, count, int(np.ceil(count / 8)))
         setter(idx, [str(i + 1) for i in idx])
     ax_peak.set_title("Peak level per pair")
     fig.colorbar(im2, ax=[ax_env, ax_peak], label="level re largest sample (dB)")

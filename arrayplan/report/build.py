@@ -184,7 +184,9 @@ def _irset_section(found: FoundIRSet, root: Path) -> str:
             ["sample rate", f"{irs.sample_rate_hz:g} Hz"],
             ["length", f"{irs.n_samples} samples ({1e3 * irs.n_samples / irs.sample_rate_hz:.1f} ms)"],
             ["units", irs.units],
-            ["latency removed", f"{irs.latency_removed_samples} samples"]]
+            ["latency removed", f"{irs.latency_removed_samples} samples"],
+            ["zero lag", f"sample {irs.zero_lag_samples} ({1e3 * irs.zero_lag_samples / irs.sample_rate_hz:.1f} ms "
+                         "kept before it for the pre-ringing)" if irs.zero_lag_samples else "sample 0"]]
     if found.session:
         rows.append(["sweep", _sweep_text(found.session)])
     parts.append(table(["item", "value"], rows, text_columns=(0, 1)))

@@ -31,8 +31,8 @@ Schedules and probes (:mod:`.schedule`, :mod:`.probe`)
     channel_probe(source (n,), filters (n_taps, n_spk)) -> (n + n_taps - 1, n_spk)
 
 Deconvolution (:mod:`.deconvolve`)
-    deconvolve(recording (n, n_mic), inverse (m,), linear_lag=, ir_length=, harmonic_offsets=)
-        -> Deconvolution (.linear (ir_length, n_mic), .harmonics {order: (n_k, n_mic)}, .full)
+    deconvolve(recording (n, n_mic), inverse (m,), linear_lag=, ir_length=, harmonic_offsets=, pre_roll_samples=)
+        -> Deconvolution (.linear (pre_roll_samples + ir_length, n_mic), .harmonics {order: (n_k, n_mic)}, .full)
     harmonic_levels_db, total_harmonic_level_db, peak_to_noise_db, clipped_sample_counts,
     split_schedule(recording, segment_starts, segment_length)
     impulse_responses([recording (n, n_mic) per speaker], inverse, ...) -> OfflineResult
