@@ -48,20 +48,52 @@ def _umask() -> int:
     return mask
 
 
+def _make_folders(folder: Path, source: str) -> list[Path]:
+    """Create `folder` and its missing parents (like ``mkdir -p``); return the folders created, outermost first."""
+    missing = []
+    probe = folder
+    while not probe.exists():
+        missing.append(probe)
+        if probe.parent == probe:
+            break
+        probe = probe.parent
+    if probe.exists() and not probe.is_dir():
+        raise InputError(f"{probe} is a file, not a folder", source=source, fix="choose another output path")
+    created = []
+    try:
+        for d in reversed(missing):
+            d.mkdir()
+            created.append(d)
+    except OSError as exc:
+        _remove_folders(created)
+        raise InputError(f"cannot create folder {exc.filename or folder} ({exc.strerror or exc})", source=source,
+                         fix="check the path and its permissions") from None
+    return created
+
+
+def _remove_folders(created: list[Path]) -> None:
+    """Remove folders made by :func:`_make_folders` (innermost first) that are still empty."""
+    for d in reversed(created):
+        with contextlib.suppress(OSError):
+            d.rmdir()
+
+
 @contextlib.contextmanager
 def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
     """Yield a temporary path next to `path`; rename it onto `path` on success.
 
-    On any exception the temporary file is removed and `path` is untouched.
+    Missing parent folders are created (and removed again on failure).  On
+    any exception the temporary file is removed and `path` is untouched.
     The temporary name keeps the suffix of `path`, so libraries that choose a
     format by suffix (soundfile, matplotlib) still work.
     """
     path = Path(path)
-    if not path.parent.exists():
-        raise InputError("folder does not exist", source=str(path.parent),
-                         fix="create it or choose another output path")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".part" + path.suffix,
-                               dir=path.parent)
+    created = _make_folders(path.parent, str(path))
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".part" + path.suffix, dir=path.parent)
+    except BaseException:
+        _remove_folders(created)
+        raise
     os.close(fd)
     tmp_path = Path(tmp)
     try:
@@ -71,6 +103,7 @@ def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             tmp_path.unlink()
+        _remove_folders(created)
         raise
 
 
@@ -109,30 +142,35 @@ def staged_output_dir(final_dir: str | os.PathLike) -> Iterator[Path]:
 
     Yields a temporary folder beside `final_dir`.  When the block ends
     without an exception, each staged file is renamed into `final_dir`
-    (created if missing; files of the same name are replaced, others are
-    left alone).  When it raises, the staging folder is deleted and
-    `final_dir` is exactly as it was.
+    (created with its missing parents if needed; files of the same name are
+    replaced, others are left alone).  When it raises, the staging folder and
+    any parent folders it created are deleted and `final_dir` is exactly as
+    it was.
     """
     final_dir = Path(final_dir)
     parent = final_dir.parent if str(final_dir.parent) else Path(".")
-    if not parent.exists():
-        raise InputError("parent folder does not exist", source=str(final_dir),
-                         fix="create the parent folder first")
     if final_dir.exists() and not final_dir.is_dir():
         raise InputError("exists and is not a folder", source=str(final_dir),
                          fix="choose another --out folder")
-    stage = Path(tempfile.mkdtemp(prefix=f".{final_dir.name}.staging.", dir=parent))
+    created = _make_folders(parent, str(final_dir))
+    done = False
     try:
-        yield stage
-        final_dir.mkdir(exist_ok=True)
-        for item in sorted(stage.rglob("*")):
-            if item.is_dir():
-                continue
-            target = final_dir / item.relative_to(stage)
-            target.parent.mkdir(parents=True, exist_ok=True)
-            os.replace(item, target)
+        stage = Path(tempfile.mkdtemp(prefix=f".{final_dir.name}.staging.", dir=parent))
+        try:
+            yield stage
+            final_dir.mkdir(exist_ok=True)
+            for item in sorted(stage.rglob("*")):
+                if item.is_dir():
+                    continue
+                target = final_dir / item.relative_to(stage)
+                target.parent.mkdir(parents=True, exist_ok=True)
+                os.replace(item, target)
+            done = True
+        finally:
+            shutil.rmtree(stage, ignore_errors=True)
     finally:
-        shutil.rmtree(stage, ignore_errors=True)
+        if not done:
+            _remove_folders(created)
 
 
 def sha256_of_text(text: str) -> str:

@@ -159,8 +159,14 @@ def test_usage_errors_exit_2(tmp_path, capsys):
         cli.main(["signal", "sweep", "--out", str(tmp_path / "s.wav"), "--format", "pcm8"])
     assert exc.value.code == 2
     assert len(capsys.readouterr().err.strip().splitlines()) == 1
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "missing" / "s.wav"), *SWEEP)
-    _assert_one_line_error(rc, err, "folder does not exist")
+    (tmp_path / "notes").write_text("a file where a folder is wanted")
+    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "notes" / "s.wav"), *SWEEP)
+    _assert_one_line_error(rc, err, "is a file, not a folder")
+
+
+def test_missing_output_folders_are_created(tmp_path, capsys):
+    rc, _, _ = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "new" / "s.wav"), *SWEEP)
+    assert rc == 0 and (tmp_path / "new" / "s.wav").is_file() and (tmp_path / "new" / "s.json").is_file()
 
 
 def test_probe_sends_the_signal_through_each_filter(tmp_path, capsys):
