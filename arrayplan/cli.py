@@ -18,22 +18,33 @@ from .errors import ArrayplanError
 
 __all__ = ["main", "build_parser"]
 
-#: Command modules, in the order they are listed in ``arrayplan --help``.
+#: Command modules, in the order they are listed in ``arrayplan --help``: the order of the work.
 COMMAND_MODULES = (
-    "arrayplan.commands.plan",
-    "arrayplan.commands.field",
     "arrayplan.commands.new_rig",
     "arrayplan.commands.check_rig",
-    "arrayplan.commands.devices",
-    "arrayplan.commands.measure",
-    "arrayplan.commands.calibrate",
+    "arrayplan.commands.plan",
+    "arrayplan.commands.field",
+    "arrayplan.commands.filters",
     "arrayplan.commands.signals",
+    "arrayplan.commands.devices",
+    "arrayplan.commands.calibrate",
+    "arrayplan.commands.measure",
     "arrayplan.commands.deconvolve",
     "arrayplan.commands.irset",
     "arrayplan.commands.verify",
-    "arrayplan.commands.filters",
     "arrayplan.commands.report",
 )
+
+
+_FIRST_RUN = """\
+The commands are listed in the order of the work.  A first run:
+  arrayplan new-rig --list                        the starter layouts
+  arrayplan new-rig facing-lines --out rig.toml   a commented rig file to edit
+  arrayplan check-rig rig.toml                    every problem, in plain words
+  arrayplan plan rig.toml --out project/plan      channels, weights, figures
+  arrayplan report project                        one HTML page of it all
+Every step on the demo rig, measurement simulated: bash demos/workshop-link/walkthrough.sh
+Measuring plays loud signals through real loudspeakers: read the caution 'measure' prints."""
 
 
 class _OneLineParser(argparse.ArgumentParser):
@@ -49,6 +60,8 @@ def build_parser() -> argparse.ArgumentParser:
         prog="arrayplan",
         description="Plan the independent channels of loudspeaker and microphone arrays, "
                     "turn them into filters and test signals, measure the rig, verify the plan.",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        epilog=_FIRST_RUN,
     )
     parser.add_argument("--version", action="version", version=f"arrayplan {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_OneLineParser)
