@@ -57,3 +57,27 @@ def test_log_frequency_ticks_are_plain_numbers():
     assert ax.get_xscale() == "log"
     assert {"500", "1000", "2000", "5000"} <= set(labels)
     assert not any("10^" in t or "times" in t for t in labels)
+
+
+def test_field_panel_of_a_channel_silent_in_the_plane_is_not_blown_up():
+    # Two speakers mirrored about z = 0: the antisymmetric channel (a dipole pair) has the plane
+    # z = 0 as a nodal plane, where its pressure is zero (superposition of equal and opposite
+    # sources; common practice, no source).  Its panel must not show rounding noise at 0 dB.
+    from arrayplan.field import channel_field, default_plane
+    from arrayplan.planning import plan_rig
+    from arrayplan.plots import plot_field_panels
+    from arrayplan.rig import Rig
+    from arrayplan.frequency import FrequencyAxis
+
+    rig = Rig.from_positions(np.array([[0.0, 0.0, 0.1], [0.0, 0.0, -0.1]]),
+                             np.array([[0.0, 1.0, 0.1], [0.0, 1.0, -0.1]]), speed_of_sound=343.0)
+    plan = plan_rig(rig, FrequencyAxis([1000.0]))
+    grid = default_plane(rig, "xy", offset=0.0, resolution=41)
+    fields = [channel_field(rig, plan.channels.drive[0, :, j], 1000.0, grid) for j in range(2)]
+    levels = [np.percentile(np.abs(p), 99) for p in fields]
+    assert levels[1] < 1e-12 * levels[0]                   # the antisymmetric channel is silent here
+    fig = plot_field_panels(rig, grid, fields, ["channel 1", "channel 2"])
+    titles = [ax.get_title() for ax in fig.axes if ax.get_title()]
+    assert titles == ["channel 1", "channel 2 (silent in this plane)"]
+    silent = np.asarray(fig.axes[1].collections[0].get_array())
+    assert np.all(silent <= -40.0 + 1e-9)                  # drawn at the floor, not as speckle

@@ -8,7 +8,10 @@ from matplotlib.figure import Figure
 from ..field import _AXES, PlaneGrid
 from ..rig import Rig
 
-__all__ = ["plot_field", "plot_field_panels"]
+__all__ = ["plot_field", "plot_field_panels", "SILENT_RATIO"]
+
+#: A panel whose level is below this share of the loudest panel's (-200 dB) is silent in the plane.
+SILENT_RATIO = 1e-10
 
 
 def plot_field(rig: Rig, grid: PlaneGrid, pressure: np.ndarray, title: str, fig: Figure | None = None,
@@ -49,8 +52,11 @@ def plot_field_panels(rig: Rig, grid: PlaneGrid, pressures: list[np.ndarray], ti
     """Small multiples of |p| in dB, one panel per channel.
 
     Each panel's 0 dB is the 99th percentile of its own |p| over the plane
-    (as in :func:`plot_field`); speakers are red triangles, microphones
-    white circles.  The plane's longer side is drawn across, so long rigs
+    (as in :func:`plot_field`), except for a channel that is silent in the
+    plane (99th percentile below :data:`SILENT_RATIO` of the loudest panel's,
+    as on a symmetry plane of an antisymmetric channel): it is drawn on the
+    loudest panel's scale and titled so.  Speakers are red triangles,
+    microphones white circles.  The plane's longer side is drawn across, so long rigs
     give wide strips stacked down the page.
 
     Parameters
@@ -82,10 +88,16 @@ def plot_field_panels(rig: Rig, grid: PlaneGrid, pressures: list[np.ndarray], ti
     fig = fig or Figure(figsize=(width, panel_h * rows + 0.6), layout="constrained")
     axes = np.atleast_1d(fig.subplots(rows, cols, squeeze=False)).ravel()
     mesh = None
-    for ax, p, title in zip(axes, pressures, titles):
-        mag = np.abs(p)
-        ref = np.percentile(mag, 99.0) or mag.max()
-        db = np.clip(20.0 * np.log10(np.maximum(mag / ref, 1e-12)), -range_db, 0.0)
+    mags = [np.abs(p) for p in pressures]
+    refs = [float(np.percentile(m, 99.0) or m.max()) for m in mags]
+    loudest = max(refs) if refs else 0.0
+    for ax, mag, ref, title in zip(axes, mags, refs, titles):
+        if ref <= SILENT_RATIO * loudest:
+            # the plane is a nodal plane of this channel: what is left is rounding error, so show it
+            # on the loudest panel's scale (all at the floor) instead of blowing the noise up to 0 dB
+            ref = loudest
+            title = f"{title} (silent in this plane)"
+        db = np.clip(20.0 * np.log10(np.maximum(mag / max(ref, 1e-300), 1e-12)), -range_db, 0.0)
         mesh = ax.pcolormesh(across, down, db.T if swap else db, cmap="viridis", vmin=-range_db, vmax=0.0,
                              shading="auto")
         for es, marker, colour in ((rig.speakers, "^", "tab:red"), (rig.mics, "o", "white")):
