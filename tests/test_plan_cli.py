@@ -155,3 +155,24 @@ def test_plan_from_measured_irset_matches_free_field(tmp_path, capsys):
     assert main(["plan", str(rig_path), "--irset", str(tmp_path / "irs"), "--freq", "9000",
                  "--out", str(tmp_path / "x")]) == 2
     assert "Nyquist" in capsys.readouterr().err and not (tmp_path / "x").exists()
+
+
+def test_field_says_when_the_channel_is_silent_in_the_plane(tmp_path, capsys):
+    # Two speakers mirrored about z = 0: the antisymmetric channel has z = 0 as a nodal plane
+    # (superposition of equal and opposite sources; common practice, no source).
+    rig = tmp_path / "pair.toml"
+    rig.write_text('[medium]\nspeed_of_sound = 343.0\n'
+                   '[[speakers]]\nname = "A"\nposition = [0.0, 0.0, 0.1]\n'
+                   '[[speakers]]\nname = "B"\nposition = [0.0, 0.0, -0.1]\n'
+                   '[[microphones]]\nname = "M1"\nposition = [0.0, 1.0, 0.1]\n'
+                   '[[microphones]]\nname = "M2"\nposition = [0.0, 1.0, -0.1]\n')
+    from arrayplan.cli import main
+    import json
+    for at, silent in (("0", True), ("0.05", False)):
+        out = tmp_path / f"f{at}"
+        assert main(["field", str(rig), "--freq", "1000", "--channel", "2", "--plane", "xy", "--at", at,
+                     "--resolution", "40", "--out", str(out)]) == 0
+        err = capsys.readouterr().err
+        assert ("silent in the xy plane" in err) is silent
+        doc = json.loads(next(out.glob("*.json")).read_text())
+        assert doc["silent_in_plane"] is silent

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
 
 import matplotlib
@@ -49,6 +50,23 @@ def _field_with_progress(rig: Rig, weights: np.ndarray, frequency_hz: float, gri
     return out
 
 
+def _silent_in_plane(rig, drive: np.ndarray, j: int, frequency_hz: float, grid: PlaneGrid,
+                     p: np.ndarray) -> bool:
+    """True when channel `j`'s field over the plane is rounding error beside the strongest channel's.
+
+    Compared on every fourth grid point in each direction, with the ratio the report's field
+    panels use (:data:`arrayplan.plots.field.SILENT_RATIO`).
+    """
+    from ..plots.field import SILENT_RATIO
+
+    if j == 0:
+        return False
+    coarse = PlaneGrid(grid.plane, grid.offset, grid.u[::4], grid.v[::4])
+    strongest = np.abs(channel_field(rig, drive[:, 0], frequency_hz, coarse))
+    own = np.abs(p[::4, ::4])
+    return bool(np.percentile(own, 99.0) <= SILENT_RATIO * np.percentile(strongest, 99.0))
+
+
 def run(args: argparse.Namespace) -> int:
     matplotlib.use("Agg")
     rig = load_rig(args.rig)
@@ -67,8 +85,15 @@ def run(args: argparse.Namespace) -> int:
     p = _field_with_progress(rig, drive[0, :, j], args.freq, grid)
     level = 20 * np.log10(s[0, j] / s[0, 0]) if s[0, 0] > 0 else float("nan")
     stem = f"field-ch{args.channel}-{args.freq:g}Hz-{args.plane}"
-    fig = plot_field(rig, grid, p, f"Channel {args.channel} at {args.freq:g} Hz ({abs(level):.1f} dB below the strongest)\n"
-                                   f"{args.plane} plane at {grid.offset:g} m")
+    silent = _silent_in_plane(rig, drive[0], j, args.freq, grid, p)
+    title = (f"Channel {args.channel} at {args.freq:g} Hz ({abs(level):.1f} dB below the strongest)\n"
+             f"{args.plane} plane at {grid.offset:g} m")
+    if silent:
+        title += ": silent in this plane (a nodal plane), rounding error shown"
+        print(f"arrayplan field: note: channel {args.channel} is silent in the {args.plane} plane at "
+              f"{grid.offset:g} m (a nodal plane of its symmetry); the map shows rounding error only. "
+              "Choose another --at to see its field.", file=sys.stderr)
+    fig = plot_field(rig, grid, p, title)
     with staged_output_dir(args.out) as stage:
         with atomic_path(stage / f"{stem}.png") as tmp:
             fig.savefig(tmp, dpi=130)
@@ -79,6 +104,7 @@ def run(args: argparse.Namespace) -> int:
             "npy_shape": list(p.shape), "npy_rows": "second plane axis (v)", "npy_columns": "first plane axis (u)",
             "plane": args.plane, "offset_m": grid.offset, "u_m": grid.u, "v_m": grid.v,
             "frequency_hz": args.freq, "channel": args.channel, "singular_value": s[0, j],
+            "silent_in_plane": silent,
             "drive_weights": {"speakers": list(rig.speakers.names), "re": drive[0, :, j].real,
                               "im": drive[0, :, j].imag},
             "provenance": provenance(rig_sha256=rig.sha256)})
