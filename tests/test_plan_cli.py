@@ -176,3 +176,42 @@ def test_field_says_when_the_channel_is_silent_in_the_plane(tmp_path, capsys):
         assert ("silent in the xy plane" in err) is silent
         doc = json.loads(next(out.glob("*.json")).read_text())
         assert doc["silent_in_plane"] is silent
+
+
+def test_smoothing_options_of_plan_and_verify(tmp_path, capsys):
+    """--smooth-octaves reaches the measured kernel in plan and verify, and is checked.
+
+    On a free-field set the direct sound passes the smoothing unchanged, so the plan keeps the
+    free-field singular values within 1 % of the largest (the off-grid tolerance of the measured
+    kernel; reference: exp(-jkr)/(4 pi r) via the free-field plan, numpy.linalg.svd).
+    """
+    import json
+
+    from arrayplan import free_field_irset, load_rig, write_irset
+    rig_path = tmp_path / "rig.toml"
+    rig_path.write_text(SMALL_RIG)
+    write_irset(tmp_path / "irs", free_field_irset(load_rig(rig_path), 16000.0, 2048))
+    assert main(["plan", str(rig_path), "--out", str(tmp_path / "f"), "--no-figures"]) == 0
+    assert main(["plan", str(rig_path), "--irset", str(tmp_path / "irs"), "--smooth-octaves", "1/3",
+                 "--out", str(tmp_path / "m"), "--no-figures"]) == 0
+    m = np.load(tmp_path / "m" / "weights.npz")["singular_value"]
+    f = np.load(tmp_path / "f" / "weights.npz")["singular_value"]
+    assert np.max(np.abs(m - f)) < 0.01 * f.max()
+    assert "complex-smoothed over 0.333 octave" in json.loads((tmp_path / "m" / "weights.json").read_text())["kernel"]
+    assert main(["verify", str(tmp_path / "f"), str(tmp_path / "irs"), "--smooth-octaves", "0.5",
+                 "--out", str(tmp_path / "v")]) == 0
+    assert json.loads((tmp_path / "v" / "verify.json").read_text())["smoothing_octaves"] == 0.5
+    capsys.readouterr()
+    def status(argv):
+        try:
+            return main(argv)
+        except SystemExit as exc:                       # argparse's own usage errors
+            return exc.code
+
+    for bad, where in (("3", "--smooth-octaves"), ("1/0", "--smooth-octaves"), ("-0.2", "--smooth-octaves")):
+        assert status(["verify", str(tmp_path / "f"), str(tmp_path / "irs"), "--smooth-octaves", bad,
+                       "--out", str(tmp_path / "bad")]) == 2
+        err = capsys.readouterr().err
+        assert where in err and len(err.strip().splitlines()) == 1 and not (tmp_path / "bad").exists()
+    assert main(["plan", str(rig_path), "--smooth-octaves", "1/3", "--out", str(tmp_path / "n")]) == 2
+    assert "only with --irset" in capsys.readouterr().err

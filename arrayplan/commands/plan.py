@@ -12,6 +12,7 @@ import numpy as np
 from ..errors import InputError
 from ..irset import IRSet, read_irset
 from ..kernels.measured import MeasuredKernel
+from ._args import add_measured_kernel_options, measured_kernel_from_args
 from ..frequency import FrequencyAxis
 from ..medium import speed_of_sound_air
 from ..planning import plan_rig
@@ -40,10 +41,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--irset", metavar="DIR|FILE.sofa",
                    help="plan from this measured impulse-response set (IR-set folder or AES69/SOFA file) "
                         "instead of the free field")
-    p.add_argument("--window-ms", type=float, metavar="MS",
-                   help="with --irset: fade the responses out by this time to drop the late room response")
-    p.add_argument("--latency-samples", type=int, default=0, metavar="N",
-                   help="with --irset: common latency to remove first (default 0)")
+    add_measured_kernel_options(p, prefix="with --irset: ")
     p.add_argument("--no-figures", action="store_true", help="write tables and weights only")
     p.set_defaults(run=run)
 
@@ -67,12 +65,7 @@ def _measured_kernel(args: argparse.Namespace, rig: Rig | None) -> tuple[Rig, Me
         if list(planned) != list(measured):
             raise InputError(f"{kind} {list(measured)} differ from the rig's {list(planned)}", source=args.irset,
                              field=kind, fix="use the IR set measured on this rig, with the same names in order")
-    window = None
-    if args.window_ms is not None:
-        if not args.window_ms > 0:
-            raise InputError(f"must be positive, got {args.window_ms}", source="--window-ms")
-        window = args.window_ms / 1000.0
-    return rig, MeasuredKernel(irs, window_s=window, latency_samples=args.latency_samples)
+    return rig, measured_kernel_from_args(irs, args)
 
 
 def rig_from_args(args: argparse.Namespace) -> Rig:
@@ -112,8 +105,8 @@ def run(args: argparse.Namespace) -> int:
     kernel = None
     if args.irset:
         rig, kernel = _measured_kernel(args, rig)
-    elif args.window_ms is not None or args.latency_samples:
-        raise InputError("applies only with --irset", source="--window-ms/--latency-samples")
+    elif args.window_ms is not None or args.latency_samples or args.smooth_octaves is not None:
+        raise InputError("applies only with --irset", source="--window-ms/--latency-samples/--smooth-octaves")
     axis = FrequencyAxis(sorted(args.freq), source="--freq") if args.freq else None
     if kernel is not None:
         top = (axis or rig.frequencies)

@@ -13,7 +13,7 @@ import numpy as np
 from ..errors import InputError
 from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..irset import read_irset
-from ..kernels.measured import MeasuredKernel
+from ._args import add_measured_kernel_options, measured_kernel_from_args
 from ..plan_files import read_weights
 from ..verify import GAIN_REFERENCES, Verification, verify_plan
 
@@ -49,8 +49,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                         "uncalibrated measurements; crosstalk and isolation do not change). Default: 'plan' when "
                         "the IR set is in pascal_per_volt or the plan was made from measured responses, else "
                         "'common'")
-    p.add_argument("--window-ms", type=float, help="keep this much of each response (ms), half-Hann fade-out")
-    p.add_argument("--latency-samples", type=int, default=0, help="common latency to drop first (samples)")
+    add_measured_kernel_options(p)
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)
 
@@ -135,15 +134,12 @@ def run(args: argparse.Namespace) -> int:
     irs = read_irset(args.irset_dir)
     if not (args.isolation_db > 0):
         raise InputError(f"must be positive, got {args.isolation_db}", source="--isolation-db")
-    if args.window_ms is not None and not (args.window_ms > 0):
-        raise InputError(f"must be positive, got {args.window_ms}", source="--window-ms")
     nyquist = irs.sample_rate_hz / 2
     if weights.axis.hz[-1] >= nyquist:
         raise InputError(f"plan goes up to {weights.axis.hz[-1]:g} Hz, at or above the IR set's Nyquist "
                          f"frequency {nyquist:g} Hz", source=str(args.irset_dir),
                          fix="measure at a higher sample rate or plan lower")
-    kernel = MeasuredKernel(irs, window_s=None if args.window_ms is None else args.window_ms / 1e3,
-                            latency_samples=args.latency_samples)
+    kernel = measured_kernel_from_args(irs, args)
     n_chan = weights.drive.shape[2]
     if isinstance(args.channels, list) and max(args.channels) > n_chan:
         raise InputError(f"the plan has {n_chan} channels, asked for {max(args.channels)}", source="--channels")
@@ -167,6 +163,7 @@ def run(args: argparse.Namespace) -> int:
             "kind": "arrayplan-verification", "plan_dir": str(args.plan_dir), "irset_dir": str(args.irset_dir),
             "irset_units": irs.units, "isolation_db": res.isolation_db, "threshold_db": res.threshold_db,
             "window_ms": args.window_ms, "latency_samples": args.latency_samples,
+            "smoothing_octaves": args.smooth_octaves,
             "channels": [int(j) + 1 for j in res.channels], "passed": [bool(p) for p in res.passed],
             "wanted_channels_rule": res.wanted_rule,
             "judged_frequencies_hz": {str(int(j) + 1): [float(h) for h in res.hz[res.judged[:, k]]]

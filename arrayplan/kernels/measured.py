@@ -10,6 +10,21 @@ before it are kept) and, when a window is given, fading out the late room
 response with a half-Hann taper that counts from zero lag.  Evaluation is
 direct (no FFT grid), in chunks, so any planned frequency works.
 
+Smoothing (optional, ``smoothing_octaves=b``): each response is first
+advanced by its own direct delay tau (the peak of |h|, to a fraction of a
+sample), its transfer function is averaged over the band
+[f 2^(-b/2), f 2^(b/2)] (a uniform mean in linear frequency over the
+bins of a zero-padded FFT), and the delay is put back:
+``G_b(f) = exp(-j 2 pi f tau) mean_band(H(f') exp(+j 2 pi f' tau))``.  The
+direct sound, flat once its delay is removed, passes unchanged (magnitude
+and phase), while a reflection arriving dt later is scaled by about
+sinc(B dt) (B the band's width in Hz): fractional-octave complex smoothing
+(P. D. Hatziantoniou and J. N. Mourjopoulos, "Generalized fractional-octave
+smoothing of audio and acoustic responses", JAES 48(4), 2000), taken about
+each path's own arrival so that the spatial phase the channels are made of
+is kept.  Where the band holds no FFT bin (very low frequencies), the
+response is evaluated unsmoothed.
+
 Notes
 -----
 Units: those of the IR set (``IRSet.units``; for example full scale per full
@@ -79,6 +94,10 @@ class MeasuredKernel:
         Common latency to drop, in samples (on top of what the producer
         already removed): zero lag moves this many samples later, and as
         many samples leave the start of every response.
+    smoothing_octaves : float, optional
+        Width b of the complex smoothing band in octaves (for example 1/3),
+        about each response's direct arrival (see the module Notes).  None:
+        no smoothing.
 
     Attributes
     ----------
@@ -91,7 +110,8 @@ class MeasuredKernel:
     name : str
     """
 
-    def __init__(self, irset: IRSet, window_s: float | None = None, latency_samples: int = 0) -> None:
+    def __init__(self, irset: IRSet, window_s: float | None = None, latency_samples: int = 0,
+                 smoothing_octaves: float | None = None) -> None:
         latency_samples = int(latency_samples)
         n0 = int(irset.zero_lag_samples)
         if latency_samples < 0 or latency_samples >= irset.n_samples - n0:
@@ -119,6 +139,14 @@ class MeasuredKernel:
         self.latency_samples = latency_samples
         self.zero_lag_samples = n0
         self.name = "measured impulse responses"
+        self.smoothing_octaves = None
+        if smoothing_octaves is not None:
+            if not (np.isfinite(smoothing_octaves) and 0 < smoothing_octaves <= 2):
+                raise InputError(f"smoothing width must be above 0 and at most 2 octaves, got {smoothing_octaves}",
+                                 field="smoothing_octaves", fix="use for example 1/3 or 1/6")
+            self.smoothing_octaves = float(smoothing_octaves)
+            self._delay = _direct_delays(self._h) - n0                # samples re zero lag, per pair
+            self.name += f", complex-smoothed over {self.smoothing_octaves:.3g} octave about each arrival"
 
     @property
     def n_samples(self) -> int:
@@ -132,6 +160,11 @@ class MeasuredKernel:
             raise InputError(f"frequencies must lie in 0..{self.sample_rate_hz / 2:g} Hz (below Nyquist), "
                              f"got {hz.min():g}..{hz.max():g} Hz", field="frequencies",
                              fix="plan below half the IR set's sample rate")
+        out = self._dtft(hz) if self.smoothing_octaves is None else self._smoothed(hz)
+        return out.reshape(hz.size, *self._shape)
+
+    def _dtft(self, hz: np.ndarray) -> np.ndarray:
+        """Unsmoothed transfer functions at `hz`, shape (n_f, n_pairs)."""
         n = np.arange(self.n_samples) - self.zero_lag_samples     # time re zero lag, samples
         out = np.empty((hz.size, self._h.shape[1]), dtype=complex)
         step = max(1, _CHUNK_ELEMENTS // max(1, self.n_samples))
@@ -139,4 +172,49 @@ class MeasuredKernel:
             f = hz[start:start + step]
             phase = np.exp(-2j * np.pi * np.outer(f / self.sample_rate_hz, n))   # (n_f, n_samples)
             out[start:start + step] = phase @ self._h
-        return out.reshape(hz.size, *self._shape)
+        return out
+
+    def _smoothed(self, hz: np.ndarray) -> np.ndarray:
+        """Transfer functions at `hz` smoothed about each pair's arrival (module Notes), shape (n_f, n_pairs)."""
+        fs = self.sample_rate_hz
+        n_fft = int(2 ** np.ceil(np.log2(max(4 * self.n_samples, 64))))
+        df = fs / n_fft
+        half = 2.0 ** (self.smoothing_octaves / 2.0)
+        lo = np.ceil(hz / half / df).astype(int)                 # first bin in each band
+        hi = np.minimum(np.floor(hz * half / df).astype(int), n_fft // 2 - 1)
+        has_bins = hi >= lo
+        out = np.empty((hz.size, self._h.shape[1]), dtype=complex)
+        if not np.all(has_bins):
+            out[~has_bins] = self._dtft(hz[~has_bins])
+        if not np.any(has_bins):
+            return out
+        f_bins = np.arange(n_fft // 2 + 1) * df
+        n0 = self.zero_lag_samples
+        step = max(1, _CHUNK_ELEMENTS // (n_fft // 2 + 1))
+        idx = np.flatnonzero(has_bins)
+        for start in range(0, self._h.shape[1], step):
+            cols = slice(start, start + step)
+            tau = self._delay[cols]
+            # DTFT with time re zero lag, advanced by each pair's own arrival
+            spec = np.fft.rfft(self._h[:, cols], n=n_fft, axis=0)
+            spec *= np.exp(2j * np.pi * np.outer(f_bins / fs, n0 + tau))
+            csum = np.concatenate([np.zeros((1, spec.shape[1]), dtype=complex), np.cumsum(spec, axis=0)])
+            mean = (csum[hi[idx] + 1] - csum[lo[idx]]) / (hi[idx] - lo[idx] + 1)[:, None]
+            out[idx, cols] = mean * np.exp(-2j * np.pi * np.outer(hz[idx] / fs, tau))
+        return out
+
+
+def _direct_delays(h: np.ndarray) -> np.ndarray:
+    """Index of each column's largest |h|, refined to a fraction of a sample by a parabola (samples)."""
+    mag = np.abs(h)
+    k = np.argmax(mag, axis=0)
+    cols = np.arange(h.shape[1])
+    inner = (k > 0) & (k < h.shape[0] - 1)
+    frac = np.zeros(h.shape[1])
+    a = mag[np.maximum(k - 1, 0), cols]
+    b = mag[k, cols]
+    c = mag[np.minimum(k + 1, h.shape[0] - 1), cols]
+    denom = a - 2.0 * b + c
+    ok = inner & (denom < 0)
+    frac[ok] = 0.5 * (a[ok] - c[ok]) / denom[ok]
+    return k + np.clip(frac, -0.5, 0.5)

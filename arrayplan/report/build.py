@@ -244,6 +244,8 @@ def _verification_section(found: FoundVerification, root: Path) -> str:
         ["plan", d.get("plan_dir", "")], ["measured impulse responses", d.get("irset_dir", "")],
         ["isolation limit", f"{d.get('isolation_db', '')} dB"], ["measured units", d.get("irset_units", "")],
         ["window", "none" if d.get("window_ms") is None else f"{d.get('window_ms')} ms"],
+        ["smoothing", "none" if d.get("smoothing_octaves") is None
+         else f"{d['smoothing_octaves']:.3g} octave, complex, about each direct arrival"],
         ["wanted channels", d.get("wanted_channels_rule", "all planned channels")],
         ["gain reference", _gain_reference_text(d)],
     ], text_columns=(0, 1)))
