@@ -124,3 +124,22 @@ def assert_singular_values_match_free_field(irs, rig, fs: float, n: int) -> None
         s_model = np.linalg.svd(model.evaluate(hz), compute_uv=False)
         err = np.abs(s_meas - s_model) / s_model[:, :1]
         assert err.max() < tol, (tol, err.max())
+
+
+def known_iir_systems(fs: float) -> dict[str, tuple]:
+    """Known linear systems (b, a) for measurement checks, designed with scipy.signal at `fs` Hz.
+
+    A plain gain, 2nd-order Butterworth band-pass (300 Hz-3 kHz) and high-pass (150 Hz), and a
+    +6 dB peaking section at 1 kHz (H = 1 + (G - 1) H_bp on the band-pass's denominator).
+    """
+    import numpy as np
+    from scipy.signal import butter, iirpeak
+
+    b_bp, a_bp = iirpeak(1000.0, 5.0, fs=fs)
+    boost = 10 ** (6 / 20)
+    return {
+        "gain": ([0.3], [1.0]),
+        "butter-band-pass": butter(2, [300.0, 3000.0], btype="bandpass", fs=fs),
+        "butter-high-pass-150": butter(2, 150.0, btype="highpass", fs=fs),
+        "peaking+6dB": (np.asarray(a_bp) + (boost - 1) * np.asarray(b_bp), a_bp),
+    }

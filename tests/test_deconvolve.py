@@ -10,6 +10,7 @@ from arrayplan.signals import (SweepSettings, clipped_sample_counts, deconvolve,
                                harmonic_windows, make_sweep, peak_to_noise_db, split_schedule)
 from arrayplan.signals.deconvolve import impulse_responses
 from arrayplan.signals.schedule import measurement_schedule
+from conftest import known_iir_systems
 
 FS = 48000
 
@@ -113,19 +114,6 @@ def test_impulse_responses_gather_warnings(sweep):
 
 # --------------------------------------------------------------------------- pre-roll before zero lag
 
-def _known_systems():
-    from scipy.signal import butter, iirpeak
-
-    b_bp, a_bp = iirpeak(1000.0, 5.0, fs=FS)
-    boost = 10 ** (6 / 20)  # +6 dB peaking section: H = 1 + (G - 1) H_bp, same denominator
-    return {
-        "gain": ([0.3], [1.0]),
-        "butter-band-pass": butter(2, [300.0, 3000.0], btype="bandpass", fs=FS),
-        "butter-high-pass-150": butter(2, 150.0, btype="highpass", fs=FS),
-        "peaking+6dB": (np.asarray(a_bp) + (boost - 1) * np.asarray(b_bp), a_bp),
-    }
-
-
 #: (kind, f1, f2, T): the measurement default (40 Hz-20 kHz, 3 s), a short sweep, a linear sweep.
 _PRE_ROLL_SWEEPS = {"default-3s": ("exponential", 40.0, 20000.0, 3.0),
                     "short-1s": ("exponential", 100.0, 16000.0, 1.0),
@@ -143,7 +131,7 @@ def _measured_error_db(sw, system, delay, pre_roll):
     """|DFT of the deconvolved response| / |freqz| in dB, on the DFT bins inside the sweep's flat band."""
     from scipy.signal import freqz, lfilter
 
-    b, a = _known_systems()[system]
+    b, a = known_iir_systems(FS)[system]
     y = lfilter(b, a, sw.signal)
     rec = np.zeros(y.size)
     rec[delay:] = y[:y.size - delay]

@@ -10,6 +10,7 @@ from arrayplan.errors import InputError
 from arrayplan.signals import (SweepSettings, deconvolve, exponential_inverse_filter, exponential_sweep,
                                harmonic_offset_s, linear_sweep, make_sweep)
 from arrayplan.signals.sweeps import fresnel_time_s, unity_response
+from conftest import known_iir_systems
 
 FS = 48000
 
@@ -131,18 +132,6 @@ def test_short_default_fades_ripple_more_and_the_flat_band_says_so():
     assert np.max(np.abs(20 * np.log10(np.abs(resp[below])))) > 0.1
 
 
-def _known_systems():
-    from scipy.signal import butter, iirpeak
-
-    b_bp, a_bp = iirpeak(1000.0, 5.0, fs=FS)
-    boost = 10 ** (6 / 20)  # +6 dB peaking section: H = 1 + (G - 1) H_bp, same denominator
-    return {
-        "gain": ([0.3], [1.0]),
-        "butter-band-pass": butter(2, [300.0, 3000.0], btype="bandpass", fs=FS),
-        "peaking+6dB": (np.asarray(a_bp) + (boost - 1) * np.asarray(b_bp), a_bp),
-    }
-
-
 @pytest.mark.parametrize("kind", ["exponential", "linear"])
 @pytest.mark.parametrize("name", ["gain", "butter-band-pass", "peaking+6dB"])
 def test_known_system_through_sweep_and_deconvolution_matches_freqz(kind, name):
@@ -152,7 +141,7 @@ def test_known_system_through_sweep_and_deconvolution_matches_freqz(kind, name):
     # leaves room for the band-limited pulse's pre-ringing, which a cut at zero lag would lose.
     from scipy.signal import freqz, lfilter
 
-    b, a = _known_systems()[name]
+    b, a = known_iir_systems(FS)[name]
     if kind == "exponential":
         f1, f2, T = 100.0, 16000.0, 1.0
         fade_in, fade_out = _fresnel_fades(f1, f2, T)
