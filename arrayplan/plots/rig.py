@@ -33,7 +33,8 @@ def plot_rig(rig: Rig, fig: Figure | None = None, label_limit: int = 8) -> Figur
         ax.set_ylabel(yl)
         ax.set_aspect("equal", adjustable="datalim")
         ax.grid(True, alpha=0.3)
-    axes[0].legend(loc="best", fontsize=8)
+    handles, labels = axes[0].get_legend_handles_labels()
+    fig.legend(handles, labels, loc="outside lower center", ncol=2, fontsize=8, frameon=False)
     fig.suptitle(f"Rig '{rig.name}': {len(rig.speakers)} speakers, {len(rig.mics)} microphones")
     return fig
 
