@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 from matplotlib.figure import Figure
+from matplotlib.ticker import MaxNLocator
 
 from ..planning import Plan
 from ._axes import frequency_axis
@@ -33,7 +34,7 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
     colours = ["#440154", "#21918c", "#e2a000"]
     for colour, f in zip(colours, representative_indices(len(ch.axis))):
         order = np.argsort(-ch.power_coupling[f])[:n]    # descending, also for tracked plans
-        label = f"{ch.axis.hz[f]:g} Hz"
+        label = f"{ch.axis.hz[f]:.4g} Hz"
         ax_lin.plot(idx_ch, share[f, order], "o-", ms=3, color=colour, label=label)
         ax_db.plot(idx_ch, np.maximum(level[f, order], -120.0), "o-", ms=3, color=colour, label=label)
         est = plan.estimate.counts[f]
@@ -46,6 +47,7 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
     ax_db.set_xlabel("channel, strongest first (no.)")
     ax_db.set_ylabel("power coupling re strongest (dB)")
     for ax in (ax_lin, ax_db):
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
         ax.grid(True, alpha=0.3)
         ax.legend(fontsize=8)
     title = "Channel strengths"

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.colors import BoundaryNorm
 from matplotlib.figure import Figure
+from matplotlib.ticker import MaxNLocator
 
 from ..planning import Plan
 from ._axes import frequency_axis
@@ -66,6 +67,7 @@ def plot_level_map(plan: Plan, fig: Figure | None = None, floor_db: float = -60.
     frequency_axis(ax, hz)
     ax.set_xlim(_edges(hz)[0], _edges(hz)[-1])
     ax.set_ylim(0.5, n + 0.5)
+    ax.yaxis.set_major_locator(MaxNLocator(integer=True))
     ax.set_xlabel("frequency (Hz)")
     ax.set_ylabel("channel, strongest first (no.)")
     ax.legend(loc="upper left", fontsize=8, facecolor="#555555", labelcolor="white", framealpha=0.8)
