@@ -36,7 +36,7 @@ def audio_server():
         server.stop()
 
 
-#: The invented bench rig of the measurement tests and of calibration/demo-rig.toml:
+#: The invented bench rig of the measurement tests and of calibration/bench-trio.toml:
 #: three speakers on outputs 1-3, three microphones on inputs 1-3, and a loopback
 #: reference from output 4 to input 4.
 BENCH_RIG_TOML = """\

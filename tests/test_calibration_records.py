@@ -128,7 +128,7 @@ class TestRecordFiles:
             read_calibration(tmp_path / "nope.toml")
 
     def test_the_demo_record_in_the_repository_reads(self):
-        rec = read_calibration(REPO / "calibration" / "demo-rig.toml")
+        rec = read_calibration(REPO / "calibration" / "bench-trio.toml")
         assert [m.name for m in rec.microphones] == ["M1", "M2", "M3"]
         assert [o.channel for o in rec.outputs] == [1, 2, 3]
         assert rec.latency is not None and rec.latency.sample_rate_hz == 48000.0
@@ -145,7 +145,7 @@ def test_calibrated_measurement_carries_pascal_per_volt(bench_rig, tmp_path):
     fast = MeasurementSettings(f1_hz=100.0, sweep_s=0.5, ir_s=0.05, max_latency_s=0.1, lead_in_s=0.1)
     link = SimulatedLink.from_rig(rig, 48000.0, 2400, nonlinearity=(), noise_rms_dbfs=None)
     plain = measure(link, wiring, tmp_path / "plain", fast)
-    rec = read_calibration(REPO / "calibration" / "demo-rig.toml")
+    rec = read_calibration(REPO / "calibration" / "bench-trio.toml")
     cal = measure(link, wiring, tmp_path / "cal", fast, calibration=rec)
     a, b = read_irset(plain.irset_path), read_irset(cal.irset_path)
     assert a.units == "full_scale" and b.units == "pascal_per_volt"
