@@ -207,8 +207,14 @@ def test_calibrate_command_builds_a_record(tmp_path):
 
 def test_calibrate_latency_through_real_audio(audio_server, bench_rig, tmp_path):
     record = tmp_path / "lat.toml"
-    done = _cli("calibrate", "latency", str(record), "--output-channel", "4", "--input-channel", "4",
-                "--device", "pulse", "--rate", "48000", "--yes")
+    for _attempt in range(3):
+        # A software audio server can drop a block under load; the command then refuses to write and
+        # says "run it again", as a user would: the test does the same, at most three times.
+        done = _cli("calibrate", "latency", str(record), "--output-channel", "4", "--input-channel", "4",
+                    "--device", "pulse", "--rate", "48000", "--yes")
+        if "the stream lost samples" not in done.stderr:
+            break
+        assert not record.exists()                  # nothing written after a lost block
     assert done.returncode == 0, done.stderr
     assert "CAUTION" in done.stderr
     lat = read_calibration(record).latency
