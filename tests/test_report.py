@@ -325,3 +325,26 @@ def test_sofa_files_in_the_project_are_reported(project, tmp_path):
     assert "Impulse responses: meas/rig.sofa" in html and "AES69 (SOFA) file" in html
     p = _parse(html)
     assert p.errors == [] and len([t for t, _ in p.tags if t == "img"]) >= 9
+
+
+def test_degenerate_channels_of_a_symmetric_rig_are_named(tmp_path):
+    # Two identical square grids facing each other on a common axis: the rig is unchanged by a
+    # quarter turn about that axis, so channels that are not themselves symmetric under the turn
+    # come in pairs with equal singular values (the two-dimensional representations of the
+    # group of rotations by 90 degrees; M. Tinkham, Group Theory and Quantum Mechanics, 1964).
+    from arrayplan.frequency import FrequencyAxis
+    from arrayplan.planning import plan_rig
+    from arrayplan.plan_files import write_plan
+    from arrayplan.report.build import degenerate_pairs
+    from arrayplan.rig import Rig
+
+    g = np.array([(x, 0.0, z) for x in (-0.06, -0.02, 0.02, 0.06) for z in (-0.06, -0.02, 0.02, 0.06)])
+    rig = Rig.from_positions(g, g + [0.0, 0.5, 0.0], speed_of_sound=343.0)
+    plan = plan_rig(rig, FrequencyAxis([2000.0, 4000.0]))
+    pairs = dict(degenerate_pairs(plan.channels.singular_values, plan.channels.level_db()))
+    assert pairs.get(1) == 2                                    # channels 2 and 3 at both frequencies
+    s = plan.channels.singular_values
+    assert np.allclose(s[:, 1], s[:, 2], rtol=1e-9)
+    write_plan(plan, tmp_path / "plan", figures=False)
+    html = build_report(tmp_path)
+    assert "Degenerate channels" in html and "channels 2 and 3 at 2 of 2 frequencies" in html

@@ -56,6 +56,34 @@ def _figures_html(figs: list[ReportFigure], label: str) -> str:
     return "\n".join(parts)
 
 
+#: Two channels whose singular values differ by less than this (dB) are reported as degenerate.
+DEGENERATE_DB = 0.01
+
+
+def degenerate_pairs(singular_values: np.ndarray, level_db: np.ndarray) -> list[tuple[int, int]]:
+    """Neighbouring channels (j, j + 1) with equal singular values, and at how many frequencies.
+
+    Parameters
+    ----------
+    singular_values : ndarray, shape (n_freq, n_chan)
+    level_db : ndarray, shape (n_freq, n_chan)
+        Levels re the strongest channel, dB; channels below -60 dB are ignored.
+
+    Returns
+    -------
+    list of (j, count)
+        0-based first channel of the pair and the number of frequencies where it is degenerate.
+    """
+    s = np.asarray(singular_values, dtype=float)
+    if s.shape[1] < 2:
+        return []
+    with np.errstate(divide="ignore", invalid="ignore"):
+        gap_db = np.abs(20.0 * np.log10(s[:, :-1] / s[:, 1:]))
+    loud = (level_db[:, :-1] > -60.0) & (level_db[:, 1:] > -60.0)
+    counts = np.sum((gap_db < DEGENERATE_DB) & loud, axis=0)
+    return [(int(j), int(n)) for j, n in enumerate(counts) if n]
+
+
 def _element_rows(rig: Rig, with_directivity: bool) -> tuple[list[str], list[list[object]]]:
     header = ["kind", "name", "x (m)", "y (m)", "z (m)", "channel"] + (["directivity"] if with_directivity else [])
     rows: list[list[object]] = []
@@ -110,6 +138,13 @@ def _plan_section(found: FoundPlan, root: Path, progress: Callable[[], None]) ->
     ], text_columns=(0, 1)))
     if plan.estimate.warning:
         parts.append(f'<p class="note">Paraxial estimate: {esc(plan.estimate.warning)}.</p>')
+    pairs = degenerate_pairs(plan.channels.singular_values, plan.channels.level_db())
+    if pairs:
+        text = "; ".join(f"channels {j + 1} and {j + 2} at {n} of {len(hz)} frequencies" for j, n in pairs[:6])
+        parts.append(f'<p class="note">Degenerate channels (singular values within {DEGENERATE_DB:g} dB, above '
+                     f'-60 dB): {esc(text)}. Any orthonormal basis of such a pair is an equally valid plan, so '
+                     "their weights and field maps show one choice of many; a symmetric rig has them by "
+                     "symmetry.</p>")
     header, rows = _element_rows(rig, with_directivity=found.rig_file is not None)
     parts.append("<h3>Elements</h3>" + table(header, rows, text_columns=(0, 1, 6)))
     note, rows = _plan_numbers(found)
