@@ -117,7 +117,7 @@ def _plan_numbers(found: FoundPlan) -> tuple[str, list[list[object]]]:
     return note, rows
 
 
-def _plan_section(found: FoundPlan, root: Path, progress: Callable[[], None]) -> str:
+def _plan_section(found: FoundPlan, root: Path) -> str:
     plan, side = found.plan, found.sidecar
     rig = plan.rig
     hz = plan.channels.axis.hz
@@ -152,7 +152,7 @@ def _plan_section(found: FoundPlan, root: Path, progress: Callable[[], None]) ->
     parts.append(table(["frequency (Hz)", "strong", "usable", "effective", "paraxial estimate",
                         "strongest s² (% of sum rule)"], rows, text_columns=()))
     parts.append(f'<p class="note">{esc(note)}</p>')
-    parts.append(_figures_html(plan_figures(found, progress=progress), f"plan {_rel(found.folder, root)}"))
+    parts.append(_figures_html(plan_figures(found), f"plan {_rel(found.folder, root)}"))
     parts.append("</section>")
     return "\n".join(parts)
 
@@ -423,32 +423,18 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     steps = ([("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
              + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications])
     total = len(steps) + 1
-    done = [0]
-
-    def tick() -> None:
-        if progress is not None:
-            progress(done[0], total)
-
+    builders = {"plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
+                "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification")}
     toc = []
     sections = []
     with report_style():
-        for kind, found in steps:
-            if kind == "plan":
-                sections.append(_plan_section(found, root, progress=tick))
-                name = "Plan"
-            elif kind == "filters":
-                sections.append(_filters_section(found, root))
-                name = "Filters"
-            elif kind == "irset":
-                sections.append(_irset_section(found, root))
-                name = "Impulse responses"
-            else:
-                sections.append(_verification_section(found, root))
-                name = "Verification"
+        for done, (kind, found) in enumerate(steps, 1):
+            build, name = builders[kind]
+            sections.append(build(found, root))
             toc.append(f'<li><a href="#{_anchor(kind, found.folder, root)}">{name}: '
                        f'{esc(_rel(found.folder, root))}</a></li>')
-            done[0] += 1
-            tick()
+            if progress is not None:
+                progress(done, total)
     header = (f"<header><h1>{esc(title)}</h1><p class=\"meta\">Generated {esc(generated)} UTC by arrayplan "
               f"{esc(__version__)} from <code>{esc(str(root.resolve()))}</code>.</p></header>")
     caution = ('<section class="caution" id="caution"><h2>Caution</h2>'
@@ -459,8 +445,8 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
            + '<li><a href="#provenance">Provenance</a></li></ol></nav>')
     body = "\n".join([header, _summary(results, root), caution, nav, *sections,
                       _provenance_section(results, root, generated)])
-    done[0] = total
-    tick()
+    if progress is not None:
+        progress(total, total)
     return page(title, body)
 
 

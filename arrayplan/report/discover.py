@@ -28,6 +28,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from ..errors import InputError
 from ..filters.check import FilterCheck
 from ..irset import MANIFEST_NAME, IRSet, read_irset
@@ -177,8 +179,6 @@ def _load_plan(folder: Path, project: Path, rig: Rig | None) -> FoundPlan:
 
 
 def _load_filters(folder: Path) -> FoundFilters:
-    import numpy as np
-
     doc = _read_json(folder / "filters.json")
     check = None
     c = doc.get("check")
@@ -214,8 +214,6 @@ def _load_irset(folder: Path) -> FoundIRSet:
 
 
 def _load_verification(folder: Path) -> FoundVerification:
-    import numpy as np
-
     doc = _read_json(folder / "verify.json")
     arrays = None
     if (folder / "verify.npz").is_file():

@@ -86,7 +86,7 @@ def _field_figure(found: FoundPlan) -> ReportFigure | None:
                         "Speakers: red triangles; microphones: white circles.", fig)
 
 
-def plan_figures(found: FoundPlan, progress=None) -> list[ReportFigure]:
+def plan_figures(found: FoundPlan) -> list[ReportFigure]:
     """Rig geometry, channel strengths, counts, level map and field maps of one plan."""
     plan = found.plan
     out = [ReportFigure(f"The rig in three views ({found.rig_note}).", plot_rig(plan.rig, fig=_fig(2.9))),
@@ -97,8 +97,6 @@ def plan_figures(found: FoundPlan, progress=None) -> list[ReportFigure]:
                         plot_channel_counts(plan, fig=_fig(3.4))),
            ReportFigure("Level of every channel (strongest first) over frequency; white: the strong count; "
                         "dashed: the paraxial estimate.", plot_level_map(plan, fig=_fig(3.6)))]
-    if progress is not None:
-        progress()
     field = _field_figure(found)
     if field is not None:
         out.append(field)
