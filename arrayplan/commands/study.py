@@ -1,0 +1,23 @@
+"""``arrayplan study``: design studies of a plan or rig, one sub-command per study module.
+
+Each module listed in :data:`STUDY_MODULES` defines ``register(actions)``,
+which adds its parser to the ``study`` sub-commands and sets ``run=...``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+
+#: Study command modules, in the order ``arrayplan study --help`` lists them.
+STUDY_MODULES: tuple[str, ...] = ()
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("study", help="design studies: questions a plan alone does not answer",
+                       description="Design studies of a plan or rig. Each writes tables, a JSON sidecar and "
+                                   "figures to its --out folder.")
+    actions = p.add_subparsers(dest="study_action", metavar="STUDY", parser_class=type(p))
+    actions.required = True
+    for name in STUDY_MODULES:
+        importlib.import_module(name).register(actions)
