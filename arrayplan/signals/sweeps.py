@@ -71,8 +71,8 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
-from .levels import (DEFAULT_PEAK_CAP_DBFS, check_peak, condition, peak_dbfs, raised_cosine_fade,
-                     rms_dbfs, scale_to_level)
+from .levels import (DEFAULT_PEAK_CAP_DBFS, check_peak, condition, effective_cap_dbfs, peak_dbfs, raised_cosine_fade,
+                     rms_dbfs, scale_to_level, true_peak_dbfs)
 
 __all__ = [
     "SWEEP_KINDS",
@@ -265,7 +265,8 @@ class SweepSettings:
         Silence before and after the sweep, s.  The silence after is the
         room's decay time the recording captures: the impulse-response length.
     peak_dbfs, rms_dbfs : float or None
-        Target level; exactly one is set (default: peak at the cap).
+        Target level, dBFS: true peak (4x oversampled) or RMS of the sweep
+        without its padding; at most one is set (default: true peak at the cap).
     peak_cap_dbfs : float
         Highest peak allowed unless `allow_above_cap`.
     highpass_hz : float or None
@@ -298,7 +299,8 @@ class SweepSettings:
 
     def level(self) -> dict[str, float | None]:
         if self.peak_dbfs is None and self.rms_dbfs is None:
-            return {"peak_dbfs": self.peak_cap_dbfs, "rms_dbfs": None}
+            cap = effective_cap_dbfs(self.peak_cap_dbfs, self.allow_above_cap)
+            return {"peak_dbfs": cap, "rms_dbfs": None}
         return {"peak_dbfs": self.peak_dbfs, "rms_dbfs": self.rms_dbfs}
 
 
@@ -392,6 +394,7 @@ class SweepSignal:
             "highpass_hz": s.highpass_hz,
             "highpass_order": s.highpass_order if s.highpass_hz is not None else None,
             "sweep_peak_dbfs": peak_dbfs(self.sweep),
+            "sweep_true_peak_dbfs": true_peak_dbfs(self.sweep),
             "sweep_rms_dbfs": rms_dbfs(self.sweep),
             "inverse_filter_file": inverse_file,
             "inverse_normalisation": "|DFT(sweep * inverse)| = 1 at the band centre for the sweep as played "
