@@ -38,7 +38,7 @@ from ..irset import IRSet, write_irset
 from ..progress import ProgressBar
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, impulse_responses,
                                   split_schedule)
-from ..signals.sweeps import SweepRecord
+from ..signals.sweep_record import SweepRecord
 from ..signals.wavout import read_recording
 
 __all__ = ["register", "REPORT_NAME"]

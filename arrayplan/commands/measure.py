@@ -108,7 +108,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--f1", type=float, default=40.0, metavar="HZ", help="start frequency (default 40 Hz)")
     s.add_argument("--f2", type=float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
     s.add_argument("--duration-s", type=float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
-    s.add_argument("--peak-dbfs", type=float, metavar="DB", help="sweep true peak level, 4x oversampled (default: the peak cap, -12 dBFS)")
+    s.add_argument("--peak-dbfs", type=float, metavar="DB",
+                   help="sweep true peak level, 4x oversampled (default: the peak cap, -12 dBFS)")
     s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
     s.add_argument("--repeats", type=int, default=1, metavar="N", help="sweeps per take, averaged (default 1)")
     s.add_argument("--ir-s", type=float, default=0.5, metavar="S",
