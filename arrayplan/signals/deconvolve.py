@@ -33,6 +33,8 @@ from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
+from .distortion_floor import MEASURED, harmonic_status, method_floor_db, noise_floor_db
+
 __all__ = [
     "CLIP_THRESHOLD",
     "DEFAULT_MIN_PEAK_TO_NOISE_DB",
@@ -317,9 +319,11 @@ class OfflineResult:
     harmonic_zero_index : dict of int -> int
         Index in each harmonic window of that order's nominal zero lag.
     harmonic_db : dict of int -> ndarray, shape (n_mic, n_spk)
-        Energy of each product relative to the linear response, dB.
+        Energy of each product relative to the linear response, dB, as read
+        (floors included: see `harmonic_status`).
     thd_db : ndarray, shape (n_mic, n_spk)
-        All products together relative to the linear response, dB (-inf if none).
+        The products reported as measured, together, relative to the linear
+        response, dB (-inf if none is above the floors).
     peak_to_noise_db : ndarray, shape (n_mic, n_spk)
     peak_dbfs : ndarray, shape (n_mic, n_spk)
         Peak of each linear response, dB re 1 (recorded full scale per played full scale).
@@ -330,6 +334,13 @@ class OfflineResult:
         Recorded samples at or above the clip threshold.
     warnings : list of str
         One line each: clipping, low peak-to-noise.
+    method_floor_db : dict of int -> float, or None
+        The method's own floor per order (:mod:`arrayplan.signals.distortion_floor`);
+        None when no clean recording was given.
+    noise_floor_db : dict of int -> ndarray, shape (n_mic, n_spk)
+        The noise floor per order and pair, dB.
+    harmonic_status : dict of int -> ndarray of str, shape (n_mic, n_spk)
+        "measured", "below the method's floor" or "below the noise floor".
     """
 
     data: np.ndarray
@@ -343,13 +354,20 @@ class OfflineResult:
     clipped_samples: np.ndarray
     warnings: list[str]
     zero_lag_index: int = 0
+    method_floor_db: dict[int, float] | None = None
+    noise_floor_db: dict[int, np.ndarray] = field(default_factory=dict)
+    harmonic_status: dict[int, np.ndarray] = field(default_factory=dict)
+
+    def reported_harmonic_db(self, order: int) -> np.ndarray:
+        """Level of `order` where it is measured, NaN where below a floor; shape (n_mic, n_spk), dB."""
+        return np.where(self.harmonic_status[order] == MEASURED, self.harmonic_db[order], np.nan)
 
 
 def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, linear_lag: int, ir_length: int,
                       harmonic_offsets: Mapping[int, float] | None = None, speaker_names: Sequence[str],
                       mic_names: Sequence[str], min_peak_to_noise_db: float = DEFAULT_MIN_PEAK_TO_NOISE_DB,
                       clip_threshold: float = CLIP_THRESHOLD, pre_samples: int | None = None,
-                      pre_roll_samples: int = 0,
+                      pre_roll_samples: int = 0, clean_recording: np.ndarray | None = None,
                       progress: Callable[[int, int], None] | None = None) -> OfflineResult:
     """Deconvolve one recording per speaker and gather responses, distortion and warnings.
 
@@ -367,6 +385,10 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
         A response with a lower peak-to-noise ratio raises a warning.
     clip_threshold : float
         Recorded magnitude counted as clipped.
+    clean_recording : ndarray, shape (n_file,), optional
+        The single-sweep file as played, for the method's own floor
+        (:func:`arrayplan.signals.distortion_floor.method_floor_db`); without
+        it only the noise floor is known.
     progress : callable, optional
         Called as ``progress(done, total)`` after each speaker.
 
@@ -397,7 +419,19 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
     pnr = np.stack([peak_to_noise_db(data[:, :, s]) for s in range(n_spk)], axis=1)
     levels = {n: np.stack([harmonic_levels_db(data[:, :, s], {n: h[:, :, s]})[n] for s in range(n_spk)], axis=1)
               for n, h in harmonics.items()}
-    thd = total_harmonic_level_db(levels) if levels else np.full((n_mic, n_spk), -math.inf)
+    method = None
+    if clean_recording is not None and harmonics:
+        method = method_floor_db(clean_recording, inverse, linear_lag=linear_lag, ir_length=ir_length,
+                                 harmonic_offsets=harmonic_offsets or {}, pre_samples=pre_samples,
+                                 pre_roll_samples=pre_roll_samples)
+    lengths = {n: h.shape[0] for n, h in harmonics.items()}
+    noise = {n: np.stack([noise_floor_db(data[:, :, s], {n: k})[n] for s in range(n_spk)], axis=1)
+             for n, k in lengths.items()}
+    status = {n: np.array([[harmonic_status(float(levels[n][m, s]), None if method is None else method[n],
+                                            float(noise[n][m, s])) for s in range(n_spk)] for m in range(n_mic)],
+                          dtype=object) for n in levels}
+    measured = {n: np.where(status[n] == MEASURED, v, -math.inf) for n, v in levels.items()}
+    thd = total_harmonic_level_db(measured) if levels else np.full((n_mic, n_spk), -math.inf)
     peak = np.max(np.abs(data), axis=0)
     with np.errstate(divide="ignore"):
         peak_db = 20.0 * np.log10(peak)
@@ -414,4 +448,5 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
                             "raise the level carefully, lengthen the sweep, or quieten the room")
     return OfflineResult(data=data, harmonics=harmonics, harmonic_zero_index=dict(zero), harmonic_db=levels, thd_db=np.asarray(thd),
                          peak_to_noise_db=pnr, peak_dbfs=peak_db, peak_index=np.argmax(np.abs(data), axis=0),
-                         clipped_samples=clip, warnings=warnings, zero_lag_index=int(pre_roll_samples))
+                         clipped_samples=clip, warnings=warnings, zero_lag_index=int(pre_roll_samples),
+                         method_floor_db=method, noise_floor_db=noise, harmonic_status=status)

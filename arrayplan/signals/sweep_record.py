@@ -6,10 +6,27 @@ import math
 from dataclasses import dataclass, replace
 from typing import Any
 
+import numpy as np
+
 from ..errors import InputError
-from .sweeps import (SWEEP_KINDS, check_sweep_band, default_pre_roll_s, harmonic_offset_s, max_pre_roll_s)
+from .sweeps import (SWEEP_KINDS, SweepSettings, check_sweep_band, default_pre_roll_s, harmonic_offset_s, make_sweep,
+                     max_pre_roll_s)
 
 __all__ = ["SweepRecord"]
+
+
+def _number(v: Any) -> float | None:
+    ok = isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) and v > 0
+    return float(v) if ok else None
+
+
+def _conditioning(block: dict) -> dict[str, Any]:
+    """Fades and high-pass of the sweep, where the block gives them sensibly (else None: not rebuilt)."""
+    order = block.get("highpass_order")
+    return {"fade_in_s": _number(block.get("fade_in_s")), "fade_out_s": _number(block.get("fade_out_s")),
+            "highpass_hz": _number(block.get("highpass_hz")),
+            "highpass_order": order if isinstance(order, int) and not isinstance(order, bool) and 1 <= order <= 8
+            else None}
 
 
 @dataclass(frozen=True)
@@ -33,6 +50,38 @@ class SweepRecord:
     linear_lag_samples: int
     inverse_filter_file: str
     pre_roll_samples: int = 0
+    fade_in_s: float | None = None
+    fade_out_s: float | None = None
+    highpass_hz: float | None = None
+    highpass_order: int | None = None
+
+    def clean_recording(self) -> np.ndarray | None:
+        """The single-sweep file rebuilt from this record (full scale 0.9), or None if the record cannot say.
+
+        Rebuilt with :func:`arrayplan.signals.sweeps.make_sweep` from the
+        band, duration, fades, high-pass and padding; None for a record
+        without its fades or whose rebuilt sweep differs in length.  Used as
+        a unity wire's recording for the method's own distortion floor.
+
+        Returns
+        -------
+        ndarray, shape (n_file_samples,), or None
+        """
+        if self.fade_in_s is None or self.fade_out_s is None or (self.highpass_hz is not None
+                                                                  and self.highpass_order is None):
+            return None
+        fs = self.sample_rate_hz
+        try:
+            sw = make_sweep(SweepSettings(
+                kind=self.kind, f1_hz=self.f1_hz, f2_hz=self.f2_hz, duration_s=self.duration_s, sample_rate_hz=fs,
+                fade_in_s=self.fade_in_s, fade_out_s=self.fade_out_s, pad_before_s=self.pad_before_samples / fs,
+                pad_after_s=self.pad_after_samples / fs, peak_dbfs=-1.0, peak_cap_dbfs=0.0, allow_above_cap=True,
+                highpass_hz=self.highpass_hz, highpass_order=self.highpass_order or 2))
+        except InputError:
+            return None
+        if sw.n_sweep != self.n_sweep_samples or sw.signal.size != self.n_file_samples:
+            return None
+        return sw.signal
 
     @property
     def max_pre_roll_samples(self) -> int:
@@ -94,7 +143,7 @@ class SweepRecord:
         else:
             pre = int(math.floor(default_pre_roll_s(rec.kind, rec.f1_hz, rec.f2_hz, rec.duration_s)
                                  * rec.sample_rate_hz))
-        rec = replace(rec, pre_roll_samples=pre)
+        rec = replace(rec, pre_roll_samples=pre, **_conditioning(block))
         if rec.linear_lag_samples != rec.pad_before_samples + rec.n_sweep_samples - 1:
             raise InputError("linear_lag_samples does not equal pad_before_samples + n_sweep_samples - 1",
                              source=source, field="sweep.linear_lag_samples")
