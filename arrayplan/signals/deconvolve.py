@@ -39,6 +39,7 @@ __all__ = [
     "CLIP_THRESHOLD",
     "DEFAULT_MIN_PEAK_TO_NOISE_DB",
     "Deconvolution",
+    "PreparedInverse",
     "deconvolve",
     "harmonic_windows",
     "harmonic_levels_db",
@@ -75,7 +76,7 @@ class Deconvolution:
         Index in `full` where each harmonic window starts.
     harmonic_zero_index : dict of int -> int
         Index inside each harmonic window of that order's nominal zero lag.
-    full : ndarray, shape (n_recording + n_inverse - 1, n_channels)
+    full : ndarray, float32, shape (n_recording + n_inverse - 1, n_channels)
         The whole deconvolved signal.
     linear_lag : int
         Index in `full` of the linear response's zero lag.
@@ -94,7 +95,9 @@ class Deconvolution:
 
 
 def _as_2d(x: np.ndarray, name: str) -> np.ndarray:
-    x = np.asarray(x, dtype=float)
+    x = np.asarray(x)
+    if not np.issubdtype(x.dtype, np.floating):
+        x = x.astype(float)
     if x.ndim == 1:
         x = x[:, None]
     if x.ndim != 2:
@@ -109,6 +112,53 @@ def _cut(full: np.ndarray, start: int, length: int) -> np.ndarray:
     if hi > lo:
         out[lo - start:hi - start] = full[lo:hi]
     return out
+
+
+class PreparedInverse:
+    """An inverse filter ready to convolve many recordings: its spectrum is computed once per length.
+
+    The convolution is done with real FFTs in single precision (scipy.fft,
+    several workers): its error, about 1e-7 of the response's peak, is far
+    below the float32 WAV files responses are stored in and below any
+    recording's noise.
+
+    Parameters
+    ----------
+    inverse : ndarray, shape (n_inverse,)
+        The sweep's normalised inverse filter.
+    workers : int
+        Threads for the FFTs (-1: all processors).
+    """
+
+    def __init__(self, inverse: np.ndarray, workers: int = -1) -> None:
+        self.taps = np.asarray(inverse, dtype=np.float32).reshape(-1)
+        if self.taps.size < 1:
+            raise ValueError("the inverse filter is empty")
+        self.workers = int(workers)
+        self._spectra: dict[int, np.ndarray] = {}
+
+    def convolve(self, recording: np.ndarray) -> np.ndarray:
+        """Full linear convolution of each column with the inverse.
+
+        Parameters
+        ----------
+        recording : ndarray, shape (n_samples, n_channels)
+
+        Returns
+        -------
+        ndarray, float32, shape (n_samples + n_inverse - 1, n_channels)
+        """
+        from scipy.fft import irfft, next_fast_len, rfft
+
+        rec = np.asarray(recording, dtype=np.float32)
+        n_full = rec.shape[0] + self.taps.size - 1
+        n_fft = next_fast_len(n_full, real=True)
+        spec = self._spectra.get(n_fft)
+        if spec is None:
+            spec = self._spectra[n_fft] = rfft(self.taps, n_fft, workers=self.workers)
+        x = rfft(rec, n_fft, axis=0, workers=self.workers)
+        x *= spec[:, None]
+        return irfft(x, n_fft, axis=0, workers=self.workers, overwrite_x=True)[:n_full]
 
 
 def harmonic_windows(linear_lag: int, harmonic_offsets: Mapping[int, float], ir_length: int,
@@ -158,7 +208,7 @@ def harmonic_windows(linear_lag: int, harmonic_offsets: Mapping[int, float], ir_
     return out
 
 
-def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, ir_length: int,
+def deconvolve(recording: np.ndarray, inverse: np.ndarray | PreparedInverse, *, linear_lag: int, ir_length: int,
                harmonic_offsets: Mapping[int, float] | None = None,
                pre_samples: int | None = None, pre_roll_samples: int = 0) -> Deconvolution:
     """Convolve a recording with a sweep's inverse filter and cut out the responses.
@@ -168,8 +218,8 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
     recording : ndarray, shape (n_samples,) or (n_samples, n_channels)
         What the microphones recorded while the sweep file played, starting
         at the file's first sample; full scale = 1.
-    inverse : ndarray, shape (n_inverse,)
-        The sweep's normalised inverse filter.
+    inverse : ndarray, shape (n_inverse,), or PreparedInverse
+        The sweep's normalised inverse filter (prepared once for many recordings).
     linear_lag : int
         Index of zero lag in the full deconvolution (``n_pad_before + n_sweep - 1``).
     ir_length : int
@@ -191,10 +241,8 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
         ``linear`` has ``pre_roll_samples + ir_length`` samples, zero lag at
         index ``pre_roll_samples``.
     """
-    from scipy.signal import fftconvolve
-
     rec = _as_2d(recording, "recording")
-    inv = np.asarray(inverse, dtype=float).reshape(-1)
+    inv = inverse if isinstance(inverse, PreparedInverse) else PreparedInverse(inverse)
     if ir_length < 1:
         raise ValueError(f"ir_length must be >= 1, got {ir_length}")
     pre_roll = int(pre_roll_samples)
@@ -204,7 +252,7 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
     if second is not None and pre_roll > second / 2:
         raise ValueError(f"a pre-roll of {pre_roll} samples reaches past half-way to the 2nd harmonic "
                          f"({second / 2:.0f} samples)")
-    full = fftconvolve(rec, inv[:, None], axes=0)
+    full = inv.convolve(rec)
     linear = _cut(full, linear_lag - pre_roll, pre_roll + ir_length)
     windows = harmonic_windows(linear_lag, harmonic_offsets or {}, ir_length, pre_samples)
     harmonics = {n: _cut(full, start, length) for n, (start, length, _) in windows.items()}
@@ -399,11 +447,12 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
     if len(recordings) != len(speaker_names):
         raise ValueError(f"{len(recordings)} recordings for {len(speaker_names)} speakers")
     linear, harm, clipped, zero = [], {}, [], {}
+    prepared = inverse if isinstance(inverse, PreparedInverse) else PreparedInverse(inverse)
     for i_rec, rec in enumerate(recordings):
         rec = _as_2d(rec, "recording")
         if rec.shape[1] != len(mic_names):
             raise ValueError(f"recording has {rec.shape[1]} channels for {len(mic_names)} microphones")
-        d = deconvolve(rec, inverse, linear_lag=linear_lag, ir_length=ir_length,
+        d = deconvolve(rec, prepared, linear_lag=linear_lag, ir_length=ir_length,
                        harmonic_offsets=harmonic_offsets, pre_samples=pre_samples,
                        pre_roll_samples=pre_roll_samples)
         linear.append(d.linear)
@@ -421,7 +470,7 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
               for n, h in harmonics.items()}
     method = None
     if clean_recording is not None and harmonics:
-        method = method_floor_db(clean_recording, inverse, linear_lag=linear_lag, ir_length=ir_length,
+        method = method_floor_db(clean_recording, prepared, linear_lag=linear_lag, ir_length=ir_length,
                                  harmonic_offsets=harmonic_offsets or {}, pre_samples=pre_samples,
                                  pre_roll_samples=pre_roll_samples)
     lengths = {n: h.shape[0] for n, h in harmonics.items()}

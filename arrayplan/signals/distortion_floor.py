@@ -26,9 +26,12 @@ what is read, so the level is within 1.25 dB of the distortion alone.
 from __future__ import annotations
 
 import math
-from typing import Mapping
+from typing import TYPE_CHECKING, Mapping
 
 import numpy as np
+
+if TYPE_CHECKING:
+    from .deconvolve import PreparedInverse
 
 __all__ = ["DISTORTION_MARGIN_DB", "BELOW_METHOD_FLOOR", "BELOW_NOISE_FLOOR", "MEASURED",
            "method_floor_db", "noise_floor_db", "combined_floor_db", "harmonic_status"]
@@ -42,7 +45,7 @@ BELOW_METHOD_FLOOR = "below the method's floor"
 BELOW_NOISE_FLOOR = "below the noise floor"
 
 
-def method_floor_db(clean_recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, ir_length: int,
+def method_floor_db(clean_recording: np.ndarray, inverse: "np.ndarray | PreparedInverse", *, linear_lag: int, ir_length: int,
                     harmonic_offsets: Mapping[int, float], pre_samples: int | None = None,
                     pre_roll_samples: int = 0) -> dict[int, float]:
     """Harmonic levels the method reads for a unity wire: the played file deconvolved as its own recording.
@@ -51,7 +54,7 @@ def method_floor_db(clean_recording: np.ndarray, inverse: np.ndarray, *, linear_
     ----------
     clean_recording : ndarray, shape (n_samples,)
         The single-sweep file as played (silence, sweep, silence), any level.
-    inverse : ndarray, shape (n_inverse,)
+    inverse : ndarray, shape (n_inverse,), or PreparedInverse
         The sweep's inverse filter.
     linear_lag, ir_length, harmonic_offsets, pre_samples, pre_roll_samples
         As for :func:`arrayplan.signals.deconvolve.deconvolve`, the same as the measurement's.
