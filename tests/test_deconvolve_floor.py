@@ -9,7 +9,6 @@ impulse response and distortion with a swept-sine technique", 108th AES Conventi
 """
 
 import csv
-import importlib.util
 import json
 import math
 
@@ -17,25 +16,13 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-import arrayplan.cli as cli
 from arrayplan.signals import SweepSettings, make_sweep
 from arrayplan.signals.deconvolve import impulse_responses
 from arrayplan.signals.distortion_floor import BELOW_METHOD_FLOOR, MEASURED
+from test_deconvolve_cli import _importable_commands, _run  # noqa: F401  (the fixture is autouse)
 
 FS = 16000
 SWEEP = ["--f1-hz", "50", "--f2-hz", "3000", "--duration-s", "0.8", "--pad-after-s", "0.25", "--rate-hz", str(FS)]
-
-
-@pytest.fixture(autouse=True)
-def _importable_commands(monkeypatch):
-    mods = tuple(m for m in cli.COMMAND_MODULES if importlib.util.find_spec(m) is not None)
-    monkeypatch.setattr(cli, "COMMAND_MODULES", mods)
-
-
-def _run(capsys, *argv):
-    rc = cli.main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return rc, out, err
 
 
 def _sweep_file(tmp_path, capsys):
