@@ -34,8 +34,9 @@ from typing import Sequence
 import numpy as np
 
 from ..errors import InputError
+from ..plan_files import PlanWeights
 from ..planning import Plan
-from ._common import is_measured_plan
+from ._common import plan_channels
 
 __all__ = ["CapacityStudy", "capacity_study", "water_fill", "equal_power_capacity", "band_widths_hz",
            "check_snr_list"]
@@ -195,37 +196,38 @@ class CapacityStudy:
     measured: bool
 
 
-def capacity_study(plan: Plan, snr_db: float | Sequence[float], *, threshold_db: float | None = None) -> CapacityStudy:
+def capacity_study(plan: Plan | PlanWeights, snr_db: float | Sequence[float], *,
+                   threshold_db: float | None = None) -> CapacityStudy:
     """Water-filling capacity of `plan` at each SNR in `snr_db`.
 
     Parameters
     ----------
-    plan : Plan
-        From :func:`arrayplan.planning.plan_rig` or
-        :func:`arrayplan.plan_files.read_plan`.
+    plan : Plan or PlanWeights
+        From :func:`arrayplan.planning.plan_rig`, :func:`arrayplan.plan_files.read_plan`
+        or :func:`arrayplan.plan_files.read_weights` (positions are not needed).
     snr_db : float or sequence of float
         SNR of the strongest channel with all the power on it, dB.
     threshold_db : float, optional
         Strong channels (for the equal-power comparison) are within this of
-        the strongest, dB (default: the plan's).
+        the strongest, dB (default: the plan's, else 3).
 
     Returns
     -------
     CapacityStudy
     """
     snr = check_snr_list(np.atleast_1d(np.asarray(snr_db, dtype=object)).tolist())
-    thr = plan.threshold_db if threshold_db is None else float(threshold_db)
-    ch = plan.channels
-    p = ch.power_coupling                                               # (n_freq, n_chan)
+    hz, sv, plan_thr, kernel = plan_channels(plan)
+    thr = plan_thr if threshold_db is None else float(threshold_db)
+    p = np.asarray(sv, dtype=float) ** 2                                # (n_freq, n_chan)
     rel = p / np.max(p, axis=1, keepdims=True)
     gamma = 10.0 ** (snr[:, None, None] / 10.0) * rel[None]             # (n_snr, n_freq, n_chan)
     power, level = water_fill(gamma)
     cap = np.sum(np.log2(1.0 + power * gamma), axis=-1)
-    strong_mask = ch.level_db() >= -abs(thr) - 1e-12
-    eq = equal_power_capacity(gamma, np.broadcast_to(strong_mask, gamma.shape))
     with np.errstate(divide="ignore"):
+        strong_mask = 10.0 * np.log10(rel) >= -abs(thr) - 1e-12
         floor = np.where(gamma > 0, 1.0 / gamma, np.inf)
-    widths = band_widths_hz(ch.axis.hz)
-    return CapacityStudy(ch.axis.hz.copy(), snr, cap, power, level, floor, np.sum(power > 0, axis=-1), eq,
-                         np.sum(strong_mask, axis=1), widths, cap @ widths, eq @ widths, thr,
-                         measured=is_measured_plan(plan))
+    eq = equal_power_capacity(gamma, np.broadcast_to(strong_mask, gamma.shape))
+    widths = band_widths_hz(hz)
+    return CapacityStudy(np.asarray(hz, dtype=float).copy(), snr, cap, power, level, floor,
+                         np.sum(power > 0, axis=-1), eq, np.sum(strong_mask, axis=1), widths, cap @ widths,
+                         eq @ widths, thr, measured=kernel.lower().startswith("measured"))
