@@ -124,3 +124,14 @@ def test_cli_rejects_a_folder_without_weights(tmp_path, capsys):
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "weights.npz" in err
     assert not out.exists()
+
+
+def test_report_finds_study_folders_and_gives_a_verdict(tmp_path):
+    from arrayplan.report import build_report
+
+    plan = _plan_dir(tmp_path)
+    assert main(["study", "capacity", str(plan), "--out", str(tmp_path / "cap"), "--snr-db", "20", "--no-figures"]) == 0
+    html = build_report(tmp_path)
+    assert "Capacity study: cap" in html
+    verdict = json.loads((tmp_path / "cap" / "capacity.json").read_text())["verdict"]
+    assert verdict.startswith("Water-filling carries") and verdict.replace("'", "&#x27;") in html
