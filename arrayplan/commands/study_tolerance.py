@@ -84,9 +84,11 @@ def run(args: argparse.Namespace) -> int:
               f"{np.nanmin(study.wng_speaker_db[f, j]):13.1f}")
     print(tolerance_verdict(study))
     if study.settings["coupling_model"] == "ratio":
-        print("note: the free field at the stored positions does not reproduce this plan's couplings (measured "
-              "plan, or directivities not stored); each path is scaled by the free field's change instead"
-              + ("" if args.rig else " (give --rig for the rig's own directivities)"))
+        why = ("the plan comes from measured responses" if study.settings["measured_plan"] else
+               "the free field at the stored positions does not reproduce the plan's couplings (directivities "
+               "not stored; give --rig)")
+        print(f"note: {why}; each path's planned coupling is scaled by the kernel's change at the perturbed "
+              "positions")
     if np.any(study.beyond_first_order):
         print(f"note: k * position error exceeds {KR_LIMIT:g} above "
               f"{study.hz[np.argmax(study.beyond_first_order)]:.4g} Hz: the first-order prediction does not hold "
