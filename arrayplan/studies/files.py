@@ -24,12 +24,13 @@ import numpy as np
 
 from ..errors import InputError
 from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..verify import _ranges as channel_ranges
 from .capacity import CapacityStudy
 from .tolerance import KR_LIMIT, ToleranceStudy
 from .trials import TrialChunk
 
 __all__ = ["CAPACITY_KIND", "TOLERANCE_KIND", "write_capacity_study", "write_tolerance_study", "read_capacity_study",
-           "read_tolerance_study", "capacity_verdict", "tolerance_verdict", "channel_ranges"]
+           "read_tolerance_study", "capacity_verdict", "tolerance_verdict"]
 
 CAPACITY_KIND = "arrayplan-capacity-study"
 TOLERANCE_KIND = "arrayplan-tolerance-study"
@@ -37,18 +38,6 @@ TOLERANCE_KIND = "arrayplan-tolerance-study"
 
 def _g(x: float) -> str:
     return "" if not np.isfinite(x) else f"{x:.8g}"
-
-
-def channel_ranges(numbers: list[int]) -> str:
-    """1-based channel numbers as ``1-4, 7``."""
-    out, i = [], 0
-    while i < len(numbers):
-        j = i
-        while j + 1 < len(numbers) and numbers[j + 1] == numbers[j] + 1:
-            j += 1
-        out.append(str(numbers[i]) if i == j else f"{numbers[i]}-{numbers[j]}")
-        i = j + 1
-    return ", ".join(out)
 
 
 def _csv(header: list[str], rows: list[list[Any]]) -> str:
