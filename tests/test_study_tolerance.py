@@ -219,3 +219,14 @@ def test_cli_rejects_a_folder_without_weights(tmp_path, capsys):
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "weights.json" in err
     assert not (tmp_path / "tol").exists()
+
+
+def test_trial_chunks_can_run_in_worker_processes():
+    from concurrent.futures import ProcessPoolExecutor
+
+    plan = plan_rig(_scattered(), FrequencyAxis(HZ))
+    kw = dict(position_sd_m=1e-3, gain_sd_db=0.3, n_trials=12, seed=9, chunk_size=4)
+    here = tolerance_study(plan, **kw)
+    with ProcessPoolExecutor(max_workers=1) as pool:
+        spread = tolerance_study(plan, map_chunks=pool.map, **kw)
+    assert np.array_equal(here.trials.gain_db, spread.trials.gain_db)
