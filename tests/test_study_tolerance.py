@@ -52,9 +52,11 @@ def test_weyl_bound_holds_in_every_trial():
 @pytest.mark.parametrize("make_rig", [_scattered, _facing_squares])
 def test_first_order_gain_spread_agrees_with_monte_carlo_at_small_errors(make_rig):
     plan = plan_rig(make_rig(), FrequencyAxis(HZ))
-    study = tolerance_study(plan, position_sd_m=1e-4, gain_sd_db=0.02, phase_sd_deg=0.1, n_trials=400, seed=11)
+    # channels within 20 dB are judged: on the facing squares that takes in the degenerate pair 2-3
+    study = tolerance_study(plan, position_sd_m=1e-4, gain_sd_db=0.02, phase_sd_deg=0.1, n_trials=400, seed=11,
+                            threshold_db=20.0)
     use = study.judged
-    assert not np.any(study.beyond_first_order)
+    assert use[:, :3].all() and not np.any(study.beyond_first_order)
     # first-order perturbation of the channel gain with fixed weights (Stewart and Sun, Matrix Perturbation
     # Theory, 1990): Monte Carlo standard deviation within 10 %
     ratio = study.gain_sd_db[use] / study.predicted_gain_sd_db[use]
