@@ -17,9 +17,10 @@ from ..irset import MANIFEST_NAME
 from ..planning import Plan
 from ..rig import Rig
 from ..safety import CAUTION_TEXT
-from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundVerification, ProjectResults, find_results
+from .discover import (FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification, ProjectResults,
+                       find_results)
 from .figures import (ReportFigure, filter_figures, irset_figures, plan_figures, png_bytes, report_style,
-                      verification_figures)
+                      study_figures, verification_figures)
 from .html import esc, figure_html, page, table
 
 __all__ = ["build_report", "write_report"]
@@ -336,6 +337,21 @@ def _verification_section(found: FoundVerification, root: Path) -> str:
     return "\n".join(parts)
 
 
+def _study_section(found: FoundStudy, root: Path) -> str:
+    side = found.sidecar
+    title = {"capacity": "Capacity study", "tolerance": "Tolerance study"}[found.kind]
+    parts = [f'<section id="{_anchor("study", found.folder, root)}"><h2>{title}: {esc(_rel(found.folder, root))}</h2>',
+             f'<p class="verdict">{esc(str(side.get("verdict", "")))}</p>']
+    conventions = side.get("conventions", {})
+    rows = [[k.replace("_", " "), str(v)] for k, v in conventions.items()]
+    if found.kind == "tolerance":
+        rows = [[k.replace("_", " "), str(v)] for k, v in side.get("settings", {}).items()] + rows
+    parts.append(table(["item", "value"], [["plan", str(side.get("plan", ""))]] + rows, text_columns=(0, 1)))
+    parts.append(_figures_html(study_figures(found), f"{found.kind} study {_rel(found.folder, root)}"))
+    parts.append("</section>")
+    return "\n".join(parts)
+
+
 def _summary(results: ProjectResults, root: Path) -> str:
     items = []
     for fp in results.plans:
@@ -461,10 +477,12 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     generated = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
     title = title or f"arrayplan report: {root.resolve().name}"
     steps = ([("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
-             + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications])
+             + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications]
+             + [("study", fs) for fs in results.studies])
     total = len(steps) + 1
     builders = {"plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
-                "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification")}
+                "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification"),
+                "study": (_study_section, "Study")}
     toc = []
     sections = []
     with report_style():
