@@ -179,6 +179,14 @@ class RoomKernel:
     def n_images(self) -> int:
         return len(self._lattice)
 
+    @property
+    def longest_path_m(self) -> float:
+        """Length of the longest image path kept, metres (sets how long the room's responses last)."""
+        if not hasattr(self, "_longest"):
+            blocks = self._cache if self._cache is not None else self._blocks()
+            self._longest = max(float(np.max(r, initial=0.0, where=r <= self._r_max)) for _, r, *_ in blocks)
+        return self._longest
+
     def settings(self) -> dict:
         """The kernel and its settings as plain data (for plan sidecars)."""
         return {"kernel": self.name, "room": self.room.settings(), "images_kept": self.n_images,
