@@ -104,32 +104,19 @@ def kernel_impulse_responses(kernel, sample_rate_hz: float, n_samples: int, chun
 
 def free_field_impulse_responses(rig: Rig, sample_rate_hz: float, n_samples: int,
                                  chunk_size: int = 256, zero_lag_samples: int = 0) -> np.ndarray:
-    """Impulse responses of the free-field kernel.
+    """Impulse responses of the rig's free-field kernel (whatever its room).
 
     Parameters
     ----------
     rig : Rig
-    sample_rate_hz : float
-    n_samples : int
-        Length of each response; must exceed the pre-roll plus the longest
-        delay in samples by at least 64 samples so the interpolation tails
-        do not wrap.
-    chunk_size : int
-        FFT bins evaluated at once.
-    zero_lag_samples : int
-        Index of zero lag (samples kept before it), default 0.
+    sample_rate_hz, n_samples, chunk_size, zero_lag_samples
+        As for :func:`kernel_impulse_responses`.
 
     Returns
     -------
     ndarray, shape (n_samples, n_mic, n_spk)
         Pressure per unit source strength (1/m) against time; the arrival
         over distance r sits at sample ``zero_lag_samples + r fs / c``.
-
-    Notes
-    -----
-    The Nyquist bin is set to zero, so each response is band-limited below
-    fs / 2; DC takes the limit of the kernel at f -> 0 (1 / (4 pi r) times
-    the directivity at low frequency).
     """
     return kernel_impulse_responses(FreeFieldKernel(rig), sample_rate_hz, n_samples, chunk_size,
                                     zero_lag_samples)
