@@ -72,7 +72,7 @@ def default_plane(rig: Rig, plane: str = "xz", offset: float | None = None, reso
         lo, hi = np.zeros(3), np.asarray(rig.room.size_m, dtype=float)
         if offset is not None and not 0.0 <= offset <= hi[k]:
             raise InputError(f"the plane at {offset:g} m lies outside the room (0..{hi[k]:g} m along "
-                             f"{'xyz'[k]})", field="--at")
+                             f"{'xyz'[k]})", field="offset")
     if offset is None:
         offset = float(pts[:, k].mean())
     u = np.linspace(lo[i], hi[i], resolution)

@@ -176,3 +176,23 @@ def test_against_pyroomacoustics_time_domain_image_sources():
         theirs = np.fft.rfft(sim.rir[m][0], n) * np.exp(2j * np.pi * hz * lead / fs) / (4 * np.pi)
         err = np.abs(theirs[band] - ours[band, m, 0])
         assert np.max(err) <= 2e-3 * np.max(np.abs(ours[band, m, 0]))
+
+
+def test_field_over_a_room_plane_is_direct_plus_floor_image():
+    # Field map in a room with only a rigid floor: at each grid point the direct path and the floor
+    # image (image method, exact geometry; /work/shared/REFERENCE-VALUES.md, "Rigid reflecting floor"),
+    # computed here independently.  The default plane spans the room's cross-section.
+    from arrayplan.field import channel_field, default_plane
+
+    s = np.array([1.0, 2.0, 0.8])
+    rig = _rig([s], [[3.0, 2.0, 1.4]])
+    rig = Rig(rig.speakers, rig.mics, rig.medium, room=_open_except((4.0, 5.0, 3.0), {"floor": 0.0}, order=2))
+    grid = default_plane(rig, "xz", offset=2.0, resolution=9)
+    assert (grid.u[0], grid.u[-1], grid.v[0], grid.v[-1]) == (0.0, 4.0, 0.0, 3.0)
+    p = channel_field(rig, np.array([1.0]), 700.0, grid).ravel()
+    pts = grid.points()
+    k = 2 * np.pi * 700.0 / C
+    r1 = np.maximum(np.linalg.norm(pts - s, axis=1), 1e-3)
+    r2 = np.linalg.norm(pts - s * [1, 1, -1], axis=1)
+    ref = np.exp(-1j * k * r1) / (4 * np.pi * r1) + np.exp(-1j * k * r2) / (4 * np.pi * r2)
+    np.testing.assert_allclose(p, ref, rtol=1e-12)

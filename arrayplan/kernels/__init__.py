@@ -8,11 +8,12 @@
 from .freefield import FreeFieldKernel
 from .measured import MeasuredKernel, fade_out_window
 from .room import RoomKernel
+from ..rig import Rig
 
 __all__ = ["FreeFieldKernel", "MeasuredKernel", "RoomKernel", "fade_out_window", "rig_kernel", "kernel_settings"]
 
 
-def rig_kernel(rig, *, free_field: bool = False):
+def rig_kernel(rig: Rig, *, free_field: bool = False) -> RoomKernel | FreeFieldKernel:
     """The model kernel of `rig`: its room when it has a ``[room]`` table, else the free field.
 
     Parameters
@@ -30,7 +31,7 @@ def rig_kernel(rig, *, free_field: bool = False):
     return FreeFieldKernel(rig)
 
 
-def kernel_settings(kernel) -> dict:
+def kernel_settings(kernel: object) -> dict:
     """A kernel's name and settings as plain data, for sidecars."""
     if hasattr(kernel, "settings"):
         return kernel.settings()
