@@ -48,7 +48,7 @@ def main() -> None:
     room = Room.uniform((4.0, 3.7, 2.6), 0.3, reflection_order=10)
     pairs = len(rig.speakers) * len(rig.mics)
     free = FreeFieldKernel(rig)
-    print(f"rig 16 x 16, room 4.0 x 3.7 x 2.6 m, order 10, 256 frequencies")
+    print("rig 16 x 16, room 4.0 x 3.7 x 2.6 m, order 10, 256 frequencies")
     for label, hz in (("evenly spaced 100..8000 Hz", np.linspace(100.0, 8000.0, 256)),
                       ("log spaced 100..8000 Hz", np.geomspace(100.0, 8000.0, 256))):
         kern = RoomKernel(rig, room)
@@ -68,8 +68,10 @@ def main() -> None:
         peak = tracemalloc.get_traced_memory()[1]
         tracemalloc.stop()
         cached = kern.n_images * pairs * 8 * 2
-        print(f"chunk {chunk:>8} elements ({chunk * 8 / 2**20:5.1f} MiB per float64 array): peak {peak / 2**20:6.1f} MiB "
-              f"(of which cached image geometry {cached / 2**20:.1f} MiB, result {hz.size * pairs * 16 / 2**20:.1f} MiB)")
+        result = hz.size * pairs * 16
+        print(f"chunk {chunk:>8} elements ({chunk * 8 / 2**20:5.1f} MiB per float64 array): "
+              f"peak {peak / 2**20:6.1f} MiB (of which cached image geometry {cached / 2**20:.1f} MiB, "
+              f"result {result / 2**20:.1f} MiB)")
 
 
 if __name__ == "__main__":
