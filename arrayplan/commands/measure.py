@@ -127,8 +127,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     add_level_options(p)
     m = p.add_argument_group("simulated rig (nothing plays)")
     m.add_argument("--simulate", action="store_true",
-                   help="measure a simulated rig: the rig's free-field responses plus latency, noise, a mild "
-                        "nonlinearity and optional dropouts")
+                   help="measure a simulated rig: the rig's free-field (or [room]) responses plus latency, noise, "
+                        "a mild nonlinearity and optional dropouts")
     m.add_argument("--sim-latency-samples", type=int, default=300, metavar="N", help="default 300")
     m.add_argument("--sim-noise-dbfs", type=float, default=-90.0, metavar="DB", help="RMS noise (default -90 dBFS)")
     m.add_argument("--sim-nonlinearity", default="0.01,0.005", metavar="A2,A3,...",
