@@ -11,6 +11,7 @@ from scipy.signal import fftconvolve, freqz
 
 from arrayplan.cli import main
 from arrayplan.filters import check_filters, design_filters, end_to_end_responses, write_filters
+from arrayplan.filters.check import channel_transfer
 from arrayplan.rig import Rig
 
 FS = 16000.0
@@ -160,3 +161,25 @@ def test_irregular_rig_strong_channels_stay_isolated_in_time_domain():
     x = chk.crosstalk_db[np.ix_(strong, strong)]
     assert np.nanmax(x) < -40.0
     assert np.all(chk.gain_error_db < 0.5)
+
+
+def test_channel_transfer_matches_direct_convolution_on_both_grids():
+    # Reference: numpy.convolve (direct sum) for drive -> rig -> combine, then numpy.fft.rfft of the
+    # end-to-end responses zero-padded to the fine grid (DFT of a linear convolution = product of the
+    # zero-padded DFTs, common practice, no source).
+    rng = np.random.default_rng(11)
+    ir = rng.standard_normal((40, 3, 2))
+    drive = rng.standard_normal((16, 2, 2))
+    combine = rng.standard_normal((16, 3, 2))
+    n_out = 40 + 16 + 16 - 2
+    t = np.zeros((n_out, 2, 2))
+    for i in range(2):
+        for j in range(2):
+            t[:, i, j] = sum(np.convolve(np.convolve(drive[:, s, j], ir[:, m, s]), combine[:, m, i])
+                             for m in range(3) for s in range(2))
+    n_coarse, n_fft = 80, 640
+    fine = np.arange(5, 200, 3)
+    got_fine, got_diag = channel_transfer(ir, drive, combine, n_fft, fine, n_coarse)
+    np.testing.assert_allclose(got_fine, np.fft.rfft(t, n=n_fft, axis=0)[fine], atol=1e-10)
+    np.testing.assert_allclose(got_diag[:n_out], np.einsum("njj->nj", t), atol=1e-10)
+    np.testing.assert_allclose(got_diag[n_out:], 0.0, atol=1e-10)

@@ -1,28 +1,34 @@
 """Time-domain check of channel filters: drive filters -> simulated rig -> combine filters.
 
 The rig's free-field impulse responses (:func:`arrayplan.simulate.free_field_impulse_responses`)
-are convolved with the drive filters of each channel and then with the
-combine filters of every channel (``scipy.signal.fftconvolve``), giving the
-end-to-end channel-to-channel impulse responses t_ij[n] (output i, input j)
-and their transfer T_ij(f).  Per channel it reports the in-band gain error
-re the planned singular value (dB, worst over the planned bins) and the
-worst in-band crosstalk into it: max over the band of |T_ij| / |T_ii| for
-j != i (dB re its own diagonal), evaluated on a grid four times finer than
-the design bins so the response between them counts too.
+are put through the drive filters of each channel and then the combine
+filters of every channel, giving the end-to-end channel-to-channel impulse
+responses t_ij[n] (output i, input j) and their transfer T_ij(f).  The
+chain is computed from the spectra (:func:`channel_transfer`): the
+zero-padded FFTs of the responses and of the filter taps sample their
+Fourier transforms exactly, so ``T = Cb^T R D`` at each bin is the FFT of
+the linear convolution (:func:`end_to_end_responses` computes the same in
+the time domain).  Per channel it reports the in-band gain error re the
+planned singular value (dB, worst over the planned bins) and the worst
+in-band crosstalk into it: max over the band of |T_ij| / |T_ii| for j != i
+(dB re its own diagonal), evaluated on a grid four times finer than the
+design bins so the response between them counts too.
 """
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.fft as sp_fft
 from scipy.signal import fftconvolve
 
 from ..rig import Rig
 from ..simulate import free_field_impulse_responses
 from .design import FilterSet, band_window
 
-__all__ = ["FilterCheck", "check_filters", "end_to_end_responses", "plot_crosstalk"]
+__all__ = ["FilterCheck", "channel_transfer", "check_filters", "end_to_end_responses", "plot_crosstalk"]
 
 #: Frequency grid of the check is this many times finer than the design bins.
 OVERSAMPLE = 4
@@ -98,32 +104,99 @@ def rig_ir_samples(rig: Rig, sample_rate_hz: float) -> int:
     return int(max(4096, 2 ** int(np.ceil(np.log2(8 * (delay + 64))))))
 
 
+#: Memory budget of one batch of microphone spectra in :func:`channel_transfer`, bytes.
+BATCH_BYTES = 64 * 2 ** 20
+#: Threads of each FFT (scipy.fft ``workers``): every core this process may use.
+FFT_WORKERS = max(1, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1))
+
+
+def channel_transfer(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndarray, n_fft: int, fine: np.ndarray,
+                     n_coarse: int, progress=None) -> tuple[np.ndarray, np.ndarray]:
+    """End-to-end transfer of drive filters -> rig -> combine filters, straight from the spectra.
+
+    The transfer is ``T(f) = Cb(f)^T R(f) D(f)`` (output i, input j), with R,
+    D and Cb the discrete-time Fourier transforms of the rig's responses and
+    of the filters; each is sampled exactly by a zero-padded real FFT of
+    length `n_fft` (at least the length of every sequence), so ``T`` equals
+    the FFT of the end-to-end responses of :func:`end_to_end_responses` at
+    those bins.  The microphones are taken in batches (:data:`BATCH_BYTES`).
+
+    Parameters
+    ----------
+    rig_ir : ndarray, shape (n_ir, n_mic, n_spk)
+    drive : ndarray, shape (taps, n_spk, n_chan)
+    combine : ndarray, shape (taps_c, n_mic, n_chan)
+        The same channels as `drive`, in the same order.
+    n_fft : int
+        FFT length of the fine grid (bin spacing fs / n_fft); a multiple of `n_coarse`.
+    fine : ndarray of int, shape (n_fine,)
+        Bins of the fine grid where the whole matrix T is wanted.
+    n_coarse : int
+        FFT length of the coarse grid, at least ``n_ir + taps + taps_c - 2``
+        so that its inverse FFT gives the end-to-end responses without wrap.
+    progress : callable, optional
+        ``progress(done, total)`` in microphones.
+
+    Returns
+    -------
+    t_fine : ndarray, complex, shape (n_fine, n_chan, n_chan)
+        T at the `fine` bins.
+    t_diag : ndarray, shape (n_coarse, n_chan)
+        The diagonal end-to-end impulse responses t_jj[n] (output j, input j).
+    """
+    n_fft, n_coarse = int(n_fft), int(n_coarse)
+    step = n_fft // n_coarse
+    coarse = np.arange(0, n_fft // 2 + 1, step)                    # every step-th fine bin
+    n_mic, n_spk = rig_ir.shape[1:]
+    n_chan = drive.shape[2]
+
+    def spectra(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        spec = sp_fft.rfft(x, n=n_fft, axis=0, workers=FFT_WORKERS)
+        return spec[fine], spec[coarse]
+
+    d_fine, d_coarse = spectra(drive)                              # (n_bins, n_spk, n_chan)
+    t_fine = np.zeros((len(fine), n_chan, n_chan), dtype=complex)
+    diag = np.zeros((len(coarse), n_chan), dtype=complex)
+    per_mic = (n_fft // 2 + 1) * (n_spk + n_chan) * 16
+    batch = int(max(1, BATCH_BYTES // per_mic))
+    for m0 in range(0, n_mic, batch):
+        mics = slice(m0, min(m0 + batch, n_mic))
+        r_fine, r_coarse = spectra(rig_ir[:, mics, :])
+        c_fine, c_coarse = spectra(combine[:, mics, :])
+        t_fine += np.matmul(np.swapaxes(c_fine, 1, 2), np.matmul(r_fine, d_fine))
+        diag += np.einsum("fmj,fmj->fj", c_coarse, np.matmul(r_coarse, d_coarse))
+        if progress is not None:
+            progress(mics.stop, n_mic)
+    return t_fine, sp_fft.irfft(diag, n=n_coarse, axis=0)
+
+
 def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, progress=None) -> FilterCheck:
     """Simulate the rig and measure each channel's gain and crosstalk (see module docstring)."""
     fs, taps = filters.sample_rate_hz, filters.taps
     n_ir = rig_ir_samples(rig, fs)
     ir = free_field_impulse_responses(rig, fs, n_ir)
-    t = end_to_end_responses(ir, filters.drive, filters.combine, progress=progress)
-    n_fft = OVERSAMPLE * taps * int(np.ceil(t.shape[0] / taps))
-    spec = np.fft.rfft(t, n=n_fft, axis=0)
+    n_out = n_ir + filters.drive.shape[0] + filters.combine.shape[0] - 2
+    n_coarse = taps * int(np.ceil(n_out / taps))
+    n_fft = OVERSAMPLE * n_coarse
     hz = np.fft.rfftfreq(n_fft, 1.0 / fs)
     lo, hi = filters.band_hz
     fine = np.nonzero((hz >= lo) & (hz <= hi))[0]
+    spec, t_diag = channel_transfer(ir, filters.drive, filters.combine, n_fft, fine, n_coarse, progress=progress)
     kept = list(filters.kept)
-    # planned bins: every OVERSAMPLE-th fine bin is a design bin (n_fft is a multiple of taps)
+    # planned bins: every (n_fft / taps)-th fine bin is a design bin (n_fft is a multiple of taps)
     plan_hz = filters.plan.axis.hz
     band_mask = filters.in_band()
-    idx = np.round(plan_hz[band_mask] / (fs / n_fft)).astype(int)
+    idx = np.searchsorted(fine, np.round(plan_hz[band_mask] / (fs / n_fft)).astype(int))
     s = filters.plan.singular_values[band_mask][:, kept]
     w2 = band_window(plan_hz[band_mask], filters.band_hz, fs)[:, None] ** 2
     diag = np.abs(np.einsum("fjj->fj", spec[idx]))
     gain_err = np.max(np.abs(20 * np.log10(diag / (s * w2))), axis=0)
-    mag = np.abs(spec[fine])                                      # (n_fine, i, j)
+    mag = np.abs(spec)                                            # (n_fine, i, j)
     own = np.einsum("fii->fi", mag)
     with np.errstate(divide="ignore"):
         ratio = 20 * np.log10(np.max(mag / own[:, :, None], axis=0))
     np.fill_diagonal(ratio, np.nan)
-    latency = np.array([np.argmax(np.abs(t[:, j, j])) for j in range(len(kept))])
+    latency = np.argmax(np.abs(t_diag[:n_out]), axis=0)
     return FilterCheck(tuple(kept), gain_err, ratio, latency, float(limit_db), n_ir)
 
 
