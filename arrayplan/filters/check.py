@@ -8,11 +8,25 @@ chain is computed from the spectra (:func:`channel_transfer`): the
 zero-padded FFTs of the responses and of the filter taps sample their
 Fourier transforms exactly, so ``T = Cb^T R D`` at each bin is the FFT of
 the linear convolution (:func:`end_to_end_responses` computes the same in
-the time domain).  Per channel it reports the in-band gain error re the
-planned singular value (dB, worst over the planned bins) and the worst
-in-band crosstalk into it: max over the band of |T_ij| / |T_ii| for j != i
-(dB re its own diagonal), evaluated on a grid four times finer than the
-design bins so the response between them counts too.
+the time domain).
+
+Everything in band is evaluated on a fine grid, at least :data:`OVERSAMPLE`
+times finer than the design bins (fs / taps), so the response between the
+bins counts as much as on them; each figure is the worst case over it.  Per
+channel j the check reports
+
+* the gain error, ``|20 log10(|T_jj(f)| / g_j(f))|`` dB, against the planned
+  gain ``g_j(f) = |c_j^T G(f) d_j|``: the planned weights c_j, d_j of the
+  nearest design bin on the simulated rig's G at f.  On a design bin g_j is
+  the planned singular value s_j; between bins it differs from s_j(f) only
+  to second order in the weights' change, because a singular value is
+  stationary in its singular vectors.  Also reported on the design bins
+  alone (against s_j);
+* the energy error of its drive filters, ``|10 log10 sum_s |D_sj(f)|^2|`` dB
+  (their in-band energy against the planned 1), and of its combine filters;
+* the worst crosstalk into it: max over the band of |T_ji| / |T_jj| for
+  i != j (dB re its own diagonal);
+* its latency, the peak of t_jj in samples.
 """
 
 from __future__ import annotations
@@ -26,12 +40,12 @@ from scipy.signal import fftconvolve
 
 from ..rig import Rig
 from ..simulate import free_field_impulse_responses
-from .design import FilterSet, band_window
+from .design import FilterSet
 
-__all__ = ["FilterCheck", "channel_transfer", "check_filters", "end_to_end_responses", "plot_crosstalk"]
+__all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "end_to_end_responses", "plot_crosstalk"]
 
-#: Frequency grid of the check is this many times finer than the design bins.
-OVERSAMPLE = 4
+#: The check's frequency grid is at least this many times finer than the design bins.
+OVERSAMPLE = 8
 
 
 @dataclass(frozen=True)
@@ -43,14 +57,23 @@ class FilterCheck:
     channels : tuple of int
         0-based plan channel numbers, the order of every axis below.
     gain_error_db : ndarray, shape (n_kept,)
-        Worst |20 log10(|T_jj| / (s_j W^2))| over the planned in-band bins.
+        Worst |20 log10(|T_jj| / g_j)| over the fine in-band grid, dB
+        (g_j: the planned gain, see the module docstring).
     crosstalk_db : ndarray, shape (n_kept, n_kept)
         [i, j] = worst in-band 20 log10(|T_ij| / |T_ii|); diagonal NaN.
     latency_samples : ndarray, shape (n_kept,)
         Measured end-to-end delay (peak of t_jj) in samples.
     limit_db : float
+        Pass/fail limit of the worst crosstalk, dB.
     ir_samples : int
         Length of the simulated rig impulse responses.
+    bin_gain_error_db : ndarray, shape (n_kept,), optional
+        The gain error on the in-band design bins alone, dB.
+    drive_energy_error_db, combine_energy_error_db : ndarray, shape (n_kept,), optional
+        Worst |10 log10 sum_e |H_e(f)|^2| of the drive (combine) filters over
+        the fine in-band grid, dB.
+    grid_factor : float
+        How many times finer than the design bins the check's grid is.
     """
 
     channels: tuple[int, ...]
@@ -59,6 +82,10 @@ class FilterCheck:
     latency_samples: np.ndarray
     limit_db: float
     ir_samples: int
+    bin_gain_error_db: np.ndarray | None = None
+    drive_energy_error_db: np.ndarray | None = None
+    combine_energy_error_db: np.ndarray | None = None
+    grid_factor: float = float("nan")
 
     def worst_crosstalk_db(self) -> np.ndarray:
         """Worst crosstalk into each channel, shape (n_kept,)."""
@@ -111,7 +138,8 @@ FFT_WORKERS = max(1, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffin
 
 
 def channel_transfer(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndarray, n_fft: int, fine: np.ndarray,
-                     n_coarse: int, progress=None) -> tuple[np.ndarray, np.ndarray]:
+                     n_coarse: int, drive_ref: np.ndarray | None = None, combine_ref: np.ndarray | None = None,
+                     progress=None) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
     """End-to-end transfer of drive filters -> rig -> combine filters, straight from the spectra.
 
     The transfer is ``T(f) = Cb(f)^T R(f) D(f)`` (output i, input j), with R,
@@ -134,6 +162,9 @@ def channel_transfer(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndarray,
     n_coarse : int
         FFT length of the coarse grid, at least ``n_ir + taps + taps_c - 2``
         so that its inverse FFT gives the end-to-end responses without wrap.
+    drive_ref, combine_ref : ndarray, complex, shapes (n_fine, n_spk, n_chan) and (n_fine, n_mic, n_chan), optional
+        Reference weights at the `fine` bins; when given, the reference gains
+        ``|combine_ref_j^T R drive_ref_j|`` are returned too.
     progress : callable, optional
         ``progress(done, total)`` in microphones.
 
@@ -143,6 +174,10 @@ def channel_transfer(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndarray,
         T at the `fine` bins.
     t_diag : ndarray, shape (n_coarse, n_chan)
         The diagonal end-to-end impulse responses t_jj[n] (output j, input j).
+    drive_energy, combine_energy : ndarray, shape (n_fine, n_chan)
+        ``sum_s |D_sj|^2`` and ``sum_m |Cb_mj|^2`` at the `fine` bins.
+    ref_gain : ndarray, shape (n_fine, n_chan), or None
+        The reference gains, when reference weights are given.
     """
     n_fft, n_coarse = int(n_fft), int(n_coarse)
     step = n_fft // n_coarse
@@ -157,6 +192,8 @@ def channel_transfer(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndarray,
     d_fine, d_coarse = spectra(drive)                              # (n_bins, n_spk, n_chan)
     t_fine = np.zeros((len(fine), n_chan, n_chan), dtype=complex)
     diag = np.zeros((len(coarse), n_chan), dtype=complex)
+    combine_energy = np.zeros((len(fine), n_chan))
+    ref = None if drive_ref is None else np.zeros((len(fine), n_chan), dtype=complex)
     per_mic = (n_fft // 2 + 1) * (n_spk + n_chan) * 16
     batch = int(max(1, BATCH_BYTES // per_mic))
     for m0 in range(0, n_mic, batch):
@@ -165,39 +202,85 @@ def channel_transfer(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndarray,
         c_fine, c_coarse = spectra(combine[:, mics, :])
         t_fine += np.matmul(np.swapaxes(c_fine, 1, 2), np.matmul(r_fine, d_fine))
         diag += np.einsum("fmj,fmj->fj", c_coarse, np.matmul(r_coarse, d_coarse))
+        combine_energy += np.sum(np.abs(c_fine) ** 2, axis=1)
+        if ref is not None:
+            ref += np.einsum("fmj,fmj->fj", combine_ref[:, mics, :], np.matmul(r_fine, drive_ref))
         if progress is not None:
             progress(mics.stop, n_mic)
-    return t_fine, sp_fft.irfft(diag, n=n_coarse, axis=0)
+    drive_energy = np.sum(np.abs(d_fine) ** 2, axis=1)
+    return (t_fine, sp_fft.irfft(diag, n=n_coarse, axis=0), drive_energy, combine_energy,
+            None if ref is None else np.abs(ref))
+
+
+def check_grid(taps: int, n_out: int, sample_rate_hz: float, band_hz: tuple[float, float]
+               ) -> tuple[int, int, np.ndarray, np.ndarray]:
+    """The check's grids: coarse (whole end-to-end responses) and fine (in band).
+
+    Parameters
+    ----------
+    taps : int
+        Filter length; the design bins are spaced sample_rate_hz / taps.
+    n_out : int
+        Length of the end-to-end responses, samples.
+    sample_rate_hz : float
+    band_hz : (low, high)
+        Band, Hz.
+
+    Returns
+    -------
+    n_coarse : int
+        The least multiple of `taps` >= `n_out`.
+    n_fft : int
+        The least multiple of `n_coarse` >= OVERSAMPLE * taps: the fine grid,
+        ``n_fft / taps`` (>= OVERSAMPLE) times finer than the design bins.
+    fine : ndarray of int, shape (n_fine,)
+        The fine bins inside the band.
+    hz : ndarray, shape (n_fine,)
+        Their frequencies, Hz.
+    """
+    n_coarse = taps * int(np.ceil(n_out / taps))
+    n_fft = n_coarse * int(np.ceil(OVERSAMPLE * taps / n_coarse))
+    hz = np.fft.rfftfreq(n_fft, 1.0 / sample_rate_hz)
+    lo, hi = band_hz
+    fine = np.nonzero((hz >= lo) & (hz <= hi))[0]
+    return n_coarse, n_fft, fine, hz[fine]
+
+
+def _worst_db(x: np.ndarray, power: bool = False) -> np.ndarray:
+    """Worst |dB| of a ratio over axis 0 (10 log10 for power ratios, 20 log10 for amplitudes)."""
+    with np.errstate(divide="ignore"):
+        return np.max(np.abs((10.0 if power else 20.0) * np.log10(x)), axis=0)
 
 
 def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, progress=None) -> FilterCheck:
-    """Simulate the rig and measure each channel's gain and crosstalk (see module docstring)."""
+    """Simulate the rig and measure each channel's gain, energy and crosstalk (see module docstring)."""
     fs, taps = filters.sample_rate_hz, filters.taps
     n_ir = rig_ir_samples(rig, fs)
     ir = free_field_impulse_responses(rig, fs, n_ir)
     n_out = n_ir + filters.drive.shape[0] + filters.combine.shape[0] - 2
-    n_coarse = taps * int(np.ceil(n_out / taps))
-    n_fft = OVERSAMPLE * n_coarse
-    hz = np.fft.rfftfreq(n_fft, 1.0 / fs)
-    lo, hi = filters.band_hz
-    fine = np.nonzero((hz >= lo) & (hz <= hi))[0]
-    spec, t_diag = channel_transfer(ir, filters.drive, filters.combine, n_fft, fine, n_coarse, progress=progress)
+    n_coarse, n_fft, fine, fine_hz = check_grid(taps, n_out, fs, filters.band_hz)
     kept = list(filters.kept)
-    # planned bins: every (n_fft / taps)-th fine bin is a design bin (n_fft is a multiple of taps)
     plan_hz = filters.plan.axis.hz
+    # the planned weights of the nearest design bin at each fine frequency
+    nearest = np.clip(np.round((fine_hz - plan_hz[0]) / (fs / taps)).astype(int), 0, len(plan_hz) - 1)
+    spec, t_diag, e_drive, e_combine, ref_gain = channel_transfer(
+        ir, filters.drive, filters.combine, n_fft, fine, n_coarse,
+        drive_ref=filters.plan.drive[:, :, kept][nearest], combine_ref=filters.plan.combine[:, :, kept][nearest],
+        progress=progress)
+    diag = np.abs(np.einsum("fjj->fj", spec))
+    gain_err = _worst_db(diag / ref_gain)
+    # the design bins in band are every (n_fft / taps)-th fine bin (n_fft is a multiple of taps)
     band_mask = filters.in_band()
-    idx = np.searchsorted(fine, np.round(plan_hz[band_mask] / (fs / n_fft)).astype(int))
-    s = filters.plan.singular_values[band_mask][:, kept]
-    w2 = band_window(plan_hz[band_mask], filters.band_hz, fs)[:, None] ** 2
-    diag = np.abs(np.einsum("fjj->fj", spec[idx]))
-    gain_err = np.max(np.abs(20 * np.log10(diag / (s * w2))), axis=0)
+    on_bins = np.searchsorted(fine, np.round(plan_hz[band_mask] / (fs / n_fft)).astype(int))
+    bin_err = _worst_db(diag[on_bins] / filters.plan.singular_values[band_mask][:, kept])
     mag = np.abs(spec)                                            # (n_fine, i, j)
-    own = np.einsum("fii->fi", mag)
     with np.errstate(divide="ignore"):
-        ratio = 20 * np.log10(np.max(mag / own[:, :, None], axis=0))
+        ratio = 20 * np.log10(np.max(mag / diag[:, :, None], axis=0))
     np.fill_diagonal(ratio, np.nan)
     latency = np.argmax(np.abs(t_diag[:n_out]), axis=0)
-    return FilterCheck(tuple(kept), gain_err, ratio, latency, float(limit_db), n_ir)
+    return FilterCheck(tuple(kept), gain_err, ratio, latency, float(limit_db), n_ir, bin_gain_error_db=bin_err,
+                       drive_energy_error_db=_worst_db(e_drive, power=True),
+                       combine_energy_error_db=_worst_db(e_combine, power=True), grid_factor=n_fft / taps)
 
 
 def plot_crosstalk(check: FilterCheck, ax=None):
