@@ -1,14 +1,15 @@
-"""Time-domain check of channel filters: drive filters -> simulated rig -> combine filters.
+"""Check of channel filters: drive filters -> simulated free-field rig -> combine filters.
 
-The rig's free-field impulse responses (:func:`arrayplan.simulate.free_field_impulse_responses`)
-are put through the drive filters of each channel and then the combine
-filters of every channel, giving the end-to-end channel-to-channel impulse
-responses t_ij[n] (output i, input j) and their transfer T_ij(f).  The
-chain is computed from the spectra (:func:`channel_transfer`): the
-zero-padded FFTs of the responses and of the filter taps sample their
-Fourier transforms exactly, so ``T = Cb^T R D`` at each bin is the FFT of
-the linear convolution (:func:`end_to_end_responses` computes the same in
-the time domain).
+The realised filter taps are put through the rig, giving the end-to-end
+channel-to-channel transfer T_ij(f) (output i, input j) and impulse
+responses t_ij[n].  The chain is computed from the spectra
+(:func:`channel_transfer`): the zero-padded FFTs of the taps sample their
+Fourier transforms exactly, and the rig is the free-field coupling G(f)
+at every bin, the spectrum of the band-limited simulated impulse responses
+of :func:`arrayplan.simulate.free_field_impulse_responses` as long as the
+grid; so ``T = Cb^T G D`` at each bin is the FFT of the linear
+convolution of filters and rig (:func:`end_to_end_responses` computes the
+same in the time domain from given responses).
 
 Everything in band is evaluated on a fine grid, at least :data:`OVERSAMPLE`
 times finer than the design bins (fs / taps), so the response between the
@@ -33,16 +34,17 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 import scipy.fft as sp_fft
 from scipy.signal import fftconvolve
 
 from ..rig import Rig
-from ..simulate import free_field_impulse_responses
+from ..kernels.freefield import FreeFieldKernel
 from .design import FilterSet
 
-__all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "end_to_end_responses", "plot_crosstalk"]
+__all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "free_field_at", "end_to_end_responses", "plot_crosstalk"]
 
 #: The check's frequency grid is at least this many times finer than the design bins.
 OVERSAMPLE = 8
@@ -66,7 +68,8 @@ class FilterCheck:
     limit_db : float
         Pass/fail limit of the worst crosstalk, dB.
     ir_samples : int
-        Length of the simulated rig impulse responses.
+        Length allowed for the rig's impulse responses (delays and their
+        tails) when sizing the end-to-end responses, samples.
     bin_gain_error_db : ndarray, shape (n_kept,), optional
         The gain error on the in-band design bins alone, dB.
     drive_energy_error_db, combine_energy_error_db : ndarray, shape (n_kept,), optional
@@ -131,42 +134,59 @@ def rig_ir_samples(rig: Rig, sample_rate_hz: float) -> int:
     return int(max(4096, 2 ** int(np.ceil(np.log2(8 * (delay + 64))))))
 
 
-#: Memory budget of one batch of microphone spectra in :func:`channel_transfer`, bytes.
+#: Memory budget of the temporaries of one batch in :func:`channel_transfer`, bytes.
 BATCH_BYTES = 64 * 2 ** 20
 #: Threads of each FFT (scipy.fft ``workers``): every core this process may use.
 FFT_WORKERS = max(1, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1))
 
 
-def channel_transfer(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndarray, n_fft: int, fine: np.ndarray,
-                     n_coarse: int, drive_ref: np.ndarray | None = None, combine_ref: np.ndarray | None = None,
-                     progress=None) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
+def _spectra_at(x: np.ndarray, n_fft: int, *bins: np.ndarray | slice) -> list[np.ndarray]:
+    """Zero-padded real FFTs of x (n, a, b) along axis 0 at each set of `bins`, a few columns at a time."""
+    n_bins = np.arange(n_fft // 2 + 1)
+    out = [np.empty((len(n_bins[b]),) + x.shape[1:], dtype=complex) for b in bins]
+    per_column = (n_fft // 2 + 1) * 16 * x.shape[1]
+    step = int(max(1, BATCH_BYTES // per_column))
+    for c0 in range(0, x.shape[2], step):
+        cols = slice(c0, min(c0 + step, x.shape[2]))
+        spec = sp_fft.rfft(x[:, :, cols], n=n_fft, axis=0, workers=FFT_WORKERS)
+        for o, b in zip(out, bins):
+            o[:, :, cols] = spec[b]
+    return out
+
+
+def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarray, combine: np.ndarray,
+                     n_fft: int, fine: np.ndarray, n_coarse: int, drive_ref: np.ndarray | None = None,
+                     combine_ref: np.ndarray | None = None, progress=None
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
     """End-to-end transfer of drive filters -> rig -> combine filters, straight from the spectra.
 
-    The transfer is ``T(f) = Cb(f)^T R(f) D(f)`` (output i, input j), with R,
-    D and Cb the discrete-time Fourier transforms of the rig's responses and
-    of the filters; each is sampled exactly by a zero-padded real FFT of
-    length `n_fft` (at least the length of every sequence), so ``T`` equals
-    the FFT of the end-to-end responses of :func:`end_to_end_responses` at
-    those bins.  The microphones are taken in batches (:data:`BATCH_BYTES`).
+    The transfer is ``T(f) = Cb(f)^T R(f) D(f)`` (output i, input j), with R
+    the rig's coupling and D, Cb the discrete-time Fourier transforms of the
+    filter taps, sampled exactly by zero-padded real FFTs of length `n_fft`.
+    With R the FFT of impulse responses no longer than `n_coarse`, T equals
+    the FFT of the end-to-end responses of :func:`end_to_end_responses`.
+    Frequencies are taken in batches (:data:`BATCH_BYTES`).
 
     Parameters
     ----------
-    rig_ir : ndarray, shape (n_ir, n_mic, n_spk)
+    rig_at : callable
+        ``rig_at(bins)`` -> ndarray, complex, shape (len(bins), n_mic, n_spk): the
+        rig's coupling at those bins of the `n_fft` grid (bin k is k fs / n_fft).
     drive : ndarray, shape (taps, n_spk, n_chan)
     combine : ndarray, shape (taps_c, n_mic, n_chan)
         The same channels as `drive`, in the same order.
     n_fft : int
-        FFT length of the fine grid (bin spacing fs / n_fft); a multiple of `n_coarse`.
+        FFT length of the fine grid, at least `taps` and `taps_c`; a multiple of `n_coarse`.
     fine : ndarray of int, shape (n_fine,)
         Bins of the fine grid where the whole matrix T is wanted.
     n_coarse : int
-        FFT length of the coarse grid, at least ``n_ir + taps + taps_c - 2``
-        so that its inverse FFT gives the end-to-end responses without wrap.
+        FFT length of the coarse grid; long enough to hold the end-to-end
+        responses without wrap.
     drive_ref, combine_ref : ndarray, complex, shapes (n_fine, n_spk, n_chan) and (n_fine, n_mic, n_chan), optional
         Reference weights at the `fine` bins; when given, the reference gains
         ``|combine_ref_j^T R drive_ref_j|`` are returned too.
     progress : callable, optional
-        ``progress(done, total)`` in microphones.
+        ``progress(done, total)`` in bins.
 
     Returns
     -------
@@ -180,36 +200,55 @@ def channel_transfer(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndarray,
         The reference gains, when reference weights are given.
     """
     n_fft, n_coarse = int(n_fft), int(n_coarse)
-    step = n_fft // n_coarse
-    coarse = np.arange(0, n_fft // 2 + 1, step)                    # every step-th fine bin
-    n_mic, n_spk = rig_ir.shape[1:]
+    coarse = np.arange(0, n_fft // 2 + 1, n_fft // n_coarse)       # every (n_fft / n_coarse)-th bin
+    # slices (views, no gather) where the bins are evenly spaced
+    picks = [slice(int(b[0]), int(b[-1]) + 1, int(b[1] - b[0])) if len(b) > 1 and np.all(np.diff(b) == b[1] - b[0])
+             else b for b in (np.asarray(fine), coarse)]
+    d_fine, d_coarse = _spectra_at(drive, n_fft, *picks)           # (n_bins, n_spk, n_chan)
+    c_fine, c_coarse = _spectra_at(combine, n_fft, *picks)         # (n_bins, n_mic, n_chan)
     n_chan = drive.shape[2]
-
-    def spectra(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        spec = sp_fft.rfft(x, n=n_fft, axis=0, workers=FFT_WORKERS)
-        return spec[fine], spec[coarse]
-
-    d_fine, d_coarse = spectra(drive)                              # (n_bins, n_spk, n_chan)
-    t_fine = np.zeros((len(fine), n_chan, n_chan), dtype=complex)
-    diag = np.zeros((len(coarse), n_chan), dtype=complex)
-    combine_energy = np.zeros((len(fine), n_chan))
-    ref = None if drive_ref is None else np.zeros((len(fine), n_chan), dtype=complex)
-    per_mic = (n_fft // 2 + 1) * (n_spk + n_chan) * 16
-    batch = int(max(1, BATCH_BYTES // per_mic))
-    for m0 in range(0, n_mic, batch):
-        mics = slice(m0, min(m0 + batch, n_mic))
-        r_fine, r_coarse = spectra(rig_ir[:, mics, :])
-        c_fine, c_coarse = spectra(combine[:, mics, :])
-        t_fine += np.matmul(np.swapaxes(c_fine, 1, 2), np.matmul(r_fine, d_fine))
-        diag += np.einsum("fmj,fmj->fj", c_coarse, np.matmul(r_coarse, d_coarse))
-        combine_energy += np.sum(np.abs(c_fine) ** 2, axis=1)
-        if ref is not None:
-            ref += np.einsum("fmj,fmj->fj", combine_ref[:, mics, :], np.matmul(r_fine, drive_ref))
-        if progress is not None:
-            progress(mics.stop, n_mic)
+    t_fine = np.empty((len(fine), n_chan, n_chan), dtype=complex)
+    ref = None if drive_ref is None else np.empty((len(fine), n_chan))
+    diag = np.empty((len(coarse), n_chan), dtype=complex)
+    per_bin = 16 * (drive.shape[1] + combine.shape[1] + 2 * n_chan) * max(drive.shape[1], n_chan)
+    batch = int(max(1, BATCH_BYTES // per_bin))
+    total, done = len(fine) + len(coarse), 0
+    for bins, out in ((fine, "fine"), (coarse, "coarse")):
+        for b0 in range(0, len(bins), batch):
+            sl = slice(b0, min(b0 + batch, len(bins)))
+            r = rig_at(bins[sl])
+            if out == "fine":
+                t_fine[sl] = np.matmul(np.swapaxes(c_fine[sl], 1, 2), np.matmul(r, d_fine[sl]))
+                if ref is not None:
+                    ref[sl] = np.abs(np.einsum("fmj,fmj->fj", combine_ref[sl], np.matmul(r, drive_ref[sl])))
+            else:
+                diag[sl] = np.einsum("fmj,fmj->fj", c_coarse[sl], np.matmul(r, d_coarse[sl]))
+            done += sl.stop - sl.start
+            if progress is not None:
+                progress(done, total)
     drive_energy = np.sum(np.abs(d_fine) ** 2, axis=1)
-    return (t_fine, sp_fft.irfft(diag, n=n_coarse, axis=0), drive_energy, combine_energy,
-            None if ref is None else np.abs(ref))
+    combine_energy = np.sum(np.abs(c_fine) ** 2, axis=1)
+    return t_fine, sp_fft.irfft(diag, n=n_coarse, axis=0), drive_energy, combine_energy, ref
+
+
+def free_field_at(rig: Rig, n_fft: int, sample_rate_hz: float) -> Callable[[np.ndarray], np.ndarray]:
+    """``rig_at(bins)`` for :func:`channel_transfer`: the free-field coupling at bins of an `n_fft` grid.
+
+    The same spectrum as :func:`arrayplan.simulate.free_field_impulse_responses`
+    of `n_fft` samples: the kernel at every bin, its real limit at DC, zero
+    at the Nyquist bin of an even grid.
+    """
+    kernel = FreeFieldKernel(rig)
+
+    def rig_at(bins: np.ndarray) -> np.ndarray:
+        hz = np.asarray(bins, dtype=float) * sample_rate_hz / n_fft
+        g = kernel.evaluate(np.where(hz > 0, hz, 1e-6))
+        g[hz == 0] = g[hz == 0].real
+        if n_fft % 2 == 0:
+            g[np.asarray(bins) == n_fft // 2] = 0.0
+        return g
+
+    return rig_at
 
 
 def check_grid(taps: int, n_out: int, sample_rate_hz: float, band_hz: tuple[float, float]
@@ -229,17 +268,18 @@ def check_grid(taps: int, n_out: int, sample_rate_hz: float, band_hz: tuple[floa
     Returns
     -------
     n_coarse : int
-        The least multiple of `taps` >= `n_out`.
+        The least power-of-two multiple of `taps` >= `n_out`.
     n_fft : int
-        The least multiple of `n_coarse` >= OVERSAMPLE * taps: the fine grid,
-        ``n_fft / taps`` (>= OVERSAMPLE) times finer than the design bins.
+        The larger of `n_coarse` and OVERSAMPLE * taps (so a multiple of
+        both): the fine grid, ``n_fft / taps`` (>= OVERSAMPLE) times finer
+        than the design bins.
     fine : ndarray of int, shape (n_fine,)
         The fine bins inside the band.
     hz : ndarray, shape (n_fine,)
         Their frequencies, Hz.
     """
-    n_coarse = taps * int(np.ceil(n_out / taps))
-    n_fft = n_coarse * int(np.ceil(OVERSAMPLE * taps / n_coarse))
+    n_coarse = taps * 2 ** int(np.ceil(np.log2(max(n_out / taps, 1.0))))
+    n_fft = max(n_coarse, OVERSAMPLE * taps)
     hz = np.fft.rfftfreq(n_fft, 1.0 / sample_rate_hz)
     lo, hi = band_hz
     fine = np.nonzero((hz >= lo) & (hz <= hi))[0]
@@ -256,7 +296,6 @@ def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, prog
     """Simulate the rig and measure each channel's gain, energy and crosstalk (see module docstring)."""
     fs, taps = filters.sample_rate_hz, filters.taps
     n_ir = rig_ir_samples(rig, fs)
-    ir = free_field_impulse_responses(rig, fs, n_ir)
     n_out = n_ir + filters.drive.shape[0] + filters.combine.shape[0] - 2
     n_coarse, n_fft, fine, fine_hz = check_grid(taps, n_out, fs, filters.band_hz)
     kept = list(filters.kept)
@@ -264,7 +303,7 @@ def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, prog
     # the planned weights of the nearest design bin at each fine frequency
     nearest = np.clip(np.round((fine_hz - plan_hz[0]) / (fs / taps)).astype(int), 0, len(plan_hz) - 1)
     spec, t_diag, e_drive, e_combine, ref_gain = channel_transfer(
-        ir, filters.drive, filters.combine, n_fft, fine, n_coarse,
+        free_field_at(rig, n_fft, fs), filters.drive, filters.combine, n_fft, fine, n_coarse,
         drive_ref=filters.plan.drive[:, :, kept][nearest], combine_ref=filters.plan.combine[:, :, kept][nearest],
         progress=progress)
     diag = np.abs(np.einsum("fjj->fj", spec))
