@@ -27,7 +27,10 @@ channel j the check reports
   (their in-band energy against the planned 1), and of its combine filters;
 * the worst crosstalk into it: max over the band of |T_ji| / |T_jj| for
   i != j (dB re its own diagonal);
-* its latency, the peak of t_jj in samples.
+* its latency, the peak of t_jj in samples, with t_jj taken from its
+  spectrum over the filters' band and transitions (where the design window
+  is above zero; outside it the filters hold only the time window's
+  leakage).
 """
 
 from __future__ import annotations
@@ -155,7 +158,7 @@ def _spectra_at(x: np.ndarray, n_fft: int, *bins: np.ndarray | slice) -> list[np
 
 
 def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarray, combine: np.ndarray,
-                     n_fft: int, fine: np.ndarray, n_coarse: int, drive_ref: np.ndarray | None = None,
+                     n_fft: int, fine: np.ndarray, diag_bins: np.ndarray, drive_ref: np.ndarray | None = None,
                      combine_ref: np.ndarray | None = None, progress=None
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
     """End-to-end transfer of drive filters -> rig -> combine filters, straight from the spectra.
@@ -163,8 +166,8 @@ def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarr
     The transfer is ``T(f) = Cb(f)^T R(f) D(f)`` (output i, input j), with R
     the rig's coupling and D, Cb the discrete-time Fourier transforms of the
     filter taps, sampled exactly by zero-padded real FFTs of length `n_fft`.
-    With R the FFT of impulse responses no longer than `n_coarse`, T equals
-    the FFT of the end-to-end responses of :func:`end_to_end_responses`.
+    With R the FFT of impulse responses, T equals the FFT of the end-to-end
+    responses of :func:`end_to_end_responses` (zero-padded to `n_fft`).
     Frequencies are taken in batches (:data:`BATCH_BYTES`).
 
     Parameters
@@ -176,12 +179,11 @@ def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarr
     combine : ndarray, shape (taps_c, n_mic, n_chan)
         The same channels as `drive`, in the same order.
     n_fft : int
-        FFT length of the fine grid, at least `taps` and `taps_c`; a multiple of `n_coarse`.
+        FFT length, at least `taps` and `taps_c`.
     fine : ndarray of int, shape (n_fine,)
-        Bins of the fine grid where the whole matrix T is wanted.
-    n_coarse : int
-        FFT length of the coarse grid; long enough to hold the end-to-end
-        responses without wrap.
+        Bins where the whole matrix T is wanted (evenly spaced bins are read as views).
+    diag_bins : ndarray of int, shape (n_diag,)
+        Bins where only the diagonal T_jj is wanted.
     drive_ref, combine_ref : ndarray, complex, shapes (n_fine, n_spk, n_chan) and (n_fine, n_mic, n_chan), optional
         Reference weights at the `fine` bins; when given, the reference gains
         ``|combine_ref_j^T R drive_ref_j|`` are returned too.
@@ -192,43 +194,43 @@ def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarr
     -------
     t_fine : ndarray, complex, shape (n_fine, n_chan, n_chan)
         T at the `fine` bins.
-    t_diag : ndarray, shape (n_coarse, n_chan)
-        The diagonal end-to-end impulse responses t_jj[n] (output j, input j).
+    t_diag : ndarray, complex, shape (n_diag, n_chan)
+        T_jj at the `diag_bins`.
     drive_energy, combine_energy : ndarray, shape (n_fine, n_chan)
         ``sum_s |D_sj|^2`` and ``sum_m |Cb_mj|^2`` at the `fine` bins.
     ref_gain : ndarray, shape (n_fine, n_chan), or None
         The reference gains, when reference weights are given.
     """
-    n_fft, n_coarse = int(n_fft), int(n_coarse)
-    coarse = np.arange(0, n_fft // 2 + 1, n_fft // n_coarse)       # every (n_fft / n_coarse)-th bin
+    n_fft = int(n_fft)
+    fine, diag_bins = np.asarray(fine, dtype=int), np.asarray(diag_bins, dtype=int)
     # slices (views, no gather) where the bins are evenly spaced
     picks = [slice(int(b[0]), int(b[-1]) + 1, int(b[1] - b[0])) if len(b) > 1 and np.all(np.diff(b) == b[1] - b[0])
-             else b for b in (np.asarray(fine), coarse)]
-    d_fine, d_coarse = _spectra_at(drive, n_fft, *picks)           # (n_bins, n_spk, n_chan)
-    c_fine, c_coarse = _spectra_at(combine, n_fft, *picks)         # (n_bins, n_mic, n_chan)
+             else b for b in (fine, diag_bins)]
+    d_fine, d_diag = _spectra_at(drive, n_fft, *picks)             # (n_bins, n_spk, n_chan)
+    c_fine, c_diag = _spectra_at(combine, n_fft, *picks)           # (n_bins, n_mic, n_chan)
     n_chan = drive.shape[2]
     t_fine = np.empty((len(fine), n_chan, n_chan), dtype=complex)
     ref = None if drive_ref is None else np.empty((len(fine), n_chan))
-    diag = np.empty((len(coarse), n_chan), dtype=complex)
+    t_diag = np.empty((len(diag_bins), n_chan), dtype=complex)
     per_bin = 16 * (drive.shape[1] + combine.shape[1] + 2 * n_chan) * max(drive.shape[1], n_chan)
     batch = int(max(1, BATCH_BYTES // per_bin))
-    total, done = len(fine) + len(coarse), 0
-    for bins, out in ((fine, "fine"), (coarse, "coarse")):
+    total, done = len(fine) + len(diag_bins), 0
+    for bins, whole in ((fine, True), (diag_bins, False)):
         for b0 in range(0, len(bins), batch):
             sl = slice(b0, min(b0 + batch, len(bins)))
             r = rig_at(bins[sl])
-            if out == "fine":
+            if whole:
                 t_fine[sl] = np.matmul(np.swapaxes(c_fine[sl], 1, 2), np.matmul(r, d_fine[sl]))
                 if ref is not None:
                     ref[sl] = np.abs(np.einsum("fmj,fmj->fj", combine_ref[sl], np.matmul(r, drive_ref[sl])))
             else:
-                diag[sl] = np.einsum("fmj,fmj->fj", c_coarse[sl], np.matmul(r, d_coarse[sl]))
+                t_diag[sl] = np.einsum("fmj,fmj->fj", c_diag[sl], np.matmul(r, d_diag[sl]))
             done += sl.stop - sl.start
             if progress is not None:
                 progress(done, total)
     drive_energy = np.sum(np.abs(d_fine) ** 2, axis=1)
     combine_energy = np.sum(np.abs(c_fine) ** 2, axis=1)
-    return t_fine, sp_fft.irfft(diag, n=n_coarse, axis=0), drive_energy, combine_energy, ref
+    return t_fine, t_diag, drive_energy, combine_energy, ref
 
 
 def free_field_at(rig: Rig, n_fft: int, sample_rate_hz: float) -> Callable[[np.ndarray], np.ndarray]:
@@ -251,9 +253,9 @@ def free_field_at(rig: Rig, n_fft: int, sample_rate_hz: float) -> Callable[[np.n
     return rig_at
 
 
-def check_grid(taps: int, n_out: int, sample_rate_hz: float, band_hz: tuple[float, float]
-               ) -> tuple[int, int, np.ndarray, np.ndarray]:
-    """The check's grids: coarse (whole end-to-end responses) and fine (in band).
+def check_grid(taps: int, n_out: int, sample_rate_hz: float, band_hz: tuple[float, float],
+               support_hz: tuple[float, float]) -> tuple[int, np.ndarray, np.ndarray, np.ndarray]:
+    """The check's grid: at least OVERSAMPLE times finer than the design bins, and long enough.
 
     Parameters
     ----------
@@ -264,26 +266,27 @@ def check_grid(taps: int, n_out: int, sample_rate_hz: float, band_hz: tuple[floa
     sample_rate_hz : float
     band_hz : (low, high)
         Band, Hz.
+    support_hz : (low, high)
+        Where the filters' band window is above zero (band plus transitions), Hz.
 
     Returns
     -------
-    n_coarse : int
-        The least power-of-two multiple of `taps` >= `n_out`.
     n_fft : int
-        The larger of `n_coarse` and OVERSAMPLE * taps (so a multiple of
-        both): the fine grid, ``n_fft / taps`` (>= OVERSAMPLE) times finer
-        than the design bins.
+        ``taps`` times a power of two, at least ``OVERSAMPLE * taps`` and `n_out`.
     fine : ndarray of int, shape (n_fine,)
-        The fine bins inside the band.
-    hz : ndarray, shape (n_fine,)
+        The bins inside the band.
+    fine_hz : ndarray, shape (n_fine,)
         Their frequencies, Hz.
+    edges : ndarray of int, shape (n_edge,)
+        The bins of the transitions: inside `support_hz`, outside the band.
     """
-    n_coarse = taps * 2 ** int(np.ceil(np.log2(max(n_out / taps, 1.0))))
-    n_fft = max(n_coarse, OVERSAMPLE * taps)
+    n_fft = taps * 2 ** int(np.ceil(np.log2(max(n_out / taps, OVERSAMPLE))))
     hz = np.fft.rfftfreq(n_fft, 1.0 / sample_rate_hz)
     lo, hi = band_hz
-    fine = np.nonzero((hz >= lo) & (hz <= hi))[0]
-    return n_coarse, n_fft, fine, hz[fine]
+    inside = (hz >= lo) & (hz <= hi)
+    edges = np.nonzero(~inside & (hz > support_hz[0]) & (hz < support_hz[1]))[0]
+    fine = np.nonzero(inside)[0]
+    return n_fft, fine, hz[fine], edges
 
 
 def _worst_db(x: np.ndarray, power: bool = False) -> np.ndarray:
@@ -297,16 +300,19 @@ def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, prog
     fs, taps = filters.sample_rate_hz, filters.taps
     n_ir = rig_ir_samples(rig, fs)
     n_out = n_ir + filters.drive.shape[0] + filters.combine.shape[0] - 2
-    n_coarse, n_fft, fine, fine_hz = check_grid(taps, n_out, fs, filters.band_hz)
-    kept = list(filters.kept)
     plan_hz = filters.plan.axis.hz
+    bin_hz = fs / taps
+    support = (plan_hz[0] - bin_hz, plan_hz[-1] + bin_hz)          # the design window is 0 on the next bins
+    n_fft, fine, fine_hz, edges = check_grid(taps, n_out, fs, filters.band_hz, support)
+    kept = list(filters.kept)
     # the planned weights of the nearest design bin at each fine frequency
-    nearest = np.clip(np.round((fine_hz - plan_hz[0]) / (fs / taps)).astype(int), 0, len(plan_hz) - 1)
-    spec, t_diag, e_drive, e_combine, ref_gain = channel_transfer(
-        free_field_at(rig, n_fft, fs), filters.drive, filters.combine, n_fft, fine, n_coarse,
+    nearest = np.clip(np.round((fine_hz - plan_hz[0]) / bin_hz).astype(int), 0, len(plan_hz) - 1)
+    spec, t_edges, e_drive, e_combine, ref_gain = channel_transfer(
+        free_field_at(rig, n_fft, fs), filters.drive, filters.combine, n_fft, fine, edges,
         drive_ref=filters.plan.drive[:, :, kept][nearest], combine_ref=filters.plan.combine[:, :, kept][nearest],
         progress=progress)
-    diag = np.abs(np.einsum("fjj->fj", spec))
+    diag_c = np.einsum("fjj->fj", spec)
+    diag = np.abs(diag_c)
     gain_err = _worst_db(diag / ref_gain)
     # the design bins in band are every (n_fft / taps)-th fine bin (n_fft is a multiple of taps)
     band_mask = filters.in_band()
@@ -316,7 +322,10 @@ def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, prog
     with np.errstate(divide="ignore"):
         ratio = 20 * np.log10(np.max(mag / diag[:, :, None], axis=0))
     np.fill_diagonal(ratio, np.nan)
-    latency = np.argmax(np.abs(t_diag[:n_out]), axis=0)
+    # latency: peak of t_jj from its spectrum over the filters' band (band and transitions)
+    full = np.zeros((n_fft // 2 + 1, len(kept)), dtype=complex)
+    full[fine], full[edges] = diag_c, t_edges
+    latency = np.argmax(np.abs(sp_fft.irfft(full, n=n_fft, axis=0)[:n_out]), axis=0)
     return FilterCheck(tuple(kept), gain_err, ratio, latency, float(limit_db), n_ir, bin_gain_error_db=bin_err,
                        drive_energy_error_db=_worst_db(e_drive, power=True),
                        combine_energy_error_db=_worst_db(e_combine, power=True), grid_factor=n_fft / taps)
