@@ -144,16 +144,25 @@ FFT_WORKERS = max(1, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffin
 
 
 def _spectra_at(x: np.ndarray, n_fft: int, *bins: np.ndarray | slice) -> list[np.ndarray]:
-    """Zero-padded real FFTs of x (n, a, b) along axis 0 at each set of `bins`, a few columns at a time."""
+    """Zero-padded real FFTs of x (n, a, b) along axis 0 at each set of `bins`, a few columns at a time.
+
+    The FFTs run along contiguous rows of one zero-padded buffer, reused
+    from batch to batch, which is faster than along the first axis of the
+    original layout.
+    """
     n_bins = np.arange(n_fft // 2 + 1)
     out = [np.empty((len(n_bins[b]),) + x.shape[1:], dtype=complex) for b in bins]
+    n = x.shape[0]
     per_column = (n_fft // 2 + 1) * 16 * x.shape[1]
     step = int(max(1, BATCH_BYTES // per_column))
+    padded = np.zeros((x.shape[1], min(step, x.shape[2]), n_fft))  # zero tail written once, reused
     for c0 in range(0, x.shape[2], step):
         cols = slice(c0, min(c0 + step, x.shape[2]))
-        spec = sp_fft.rfft(x[:, :, cols], n=n_fft, axis=0, workers=FFT_WORKERS)
+        width = cols.stop - cols.start
+        padded[:, :width, :n] = np.moveaxis(x[:, :, cols], 0, -1)
+        spec = sp_fft.rfft(padded[:, :width], axis=-1, workers=FFT_WORKERS)
         for o, b in zip(out, bins):
-            o[:, :, cols] = spec[b]
+            o[:, :, cols] = np.moveaxis(spec[:, :, b], -1, 0)
     return out
 
 
