@@ -43,11 +43,12 @@ import numpy as np
 import scipy.fft as sp_fft
 from scipy.signal import fftconvolve
 
-from ..rig import Rig
 from ..kernels.freefield import FreeFieldKernel
+from ..rig import Rig
 from .design import FilterSet
 
-__all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "free_field_at", "end_to_end_responses", "plot_crosstalk"]
+__all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "free_field_at", "end_to_end_responses",
+           "plot_crosstalk"]
 
 #: The check's frequency grid is at least this many times finer than the design bins.
 OVERSAMPLE = 8
