@@ -133,7 +133,24 @@ def _sidecar(plan: Plan) -> dict[str, Any]:
                                  "n_chan), combine (n_freq, n_mic, n_chan)",
                   "weights.csv": "frequency_hz, channel (1-based), side (drive|combine), element, re, im"},
         "provenance": provenance(rig_sha256=rig.sha256),
+        **_piston_note(rig),
     }
+
+
+def _piston_note(rig) -> dict[str, str]:
+    """The level convention of pistons (see arrayplan.directivity), for a rig that has any."""
+    sides = {side: {d.kind for d in elements.directivities}
+             for side, elements in (("speakers", rig.speakers), ("microphones", rig.mics))}
+    if not any("piston" in kinds for kinds in sides.values()):
+        return {}
+    note = ("piston patterns are 1 on axis: a piston of unit strength gives on axis, in the far field, the "
+            "pressure of an omni of unit strength; a real baffled piston moving the same volume velocity gives "
+            "+6 dB (half-space radiation), which the coupling does not include")
+    mixed = [side for side, kinds in sides.items() if "piston" in kinds and kinds - {"piston"}]
+    if mixed:
+        note += (f"; the {' and '.join(mixed)} mix pistons with other patterns, so their relative levels compare "
+                 "equal on-axis far-field output, not equal volume velocity")
+    return {"level_convention": note + "; valid beyond the Rayleigh distance pi a^2 / lambda"}
 
 
 def _write_figures(plan: Plan, folder: Path) -> None:

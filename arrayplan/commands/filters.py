@@ -57,10 +57,14 @@ def run(args: argparse.Namespace) -> int:
         print(f"  channel {j + 1} skipped: {why}")
     if check is not None:
         worst = check.worst_crosstalk_db()
-        print(f"{'channel':>7} {'level dB':>9} {'gain err dB':>11} {'crosstalk dB':>12} {'latency':>8}  verdict")
+        print(f"check on a grid {check.grid_factor:g} times finer than the design bins; worst in-band case of each "
+              "figure (gain re plan, drive/combine energy re 1)")
+        print(f"{'channel':>7} {'level dB':>9} {'gain err dB':>11} {'drive E dB':>10} {'combine E dB':>12} "
+              f"{'crosstalk dB':>12} {'latency':>8}  verdict")
         for k, c in enumerate(check.channels):
-            print(f"{c + 1:>7} {filters.level_db[c]:>9.1f} {check.gain_error_db[k]:>11.2f} {worst[k]:>12.1f} "
-                  f"{int(check.latency_samples[k]):>8}  {'pass' if check.passed()[k] else 'FAIL'}")
+            print(f"{c + 1:>7} {filters.level_db[c]:>9.1f} {check.gain_error_db[k]:>11.2f} "
+                  f"{check.drive_energy_error_db[k]:>10.2f} {check.combine_energy_error_db[k]:>12.2f} "
+                  f"{worst[k]:>12.1f} {int(check.latency_samples[k]):>8}  {'pass' if check.passed()[k] else 'FAIL'}")
     print(f"wrote {len(files)} files to {args.out}")
     print(CAUTION, file=sys.stderr)
     return 0

@@ -180,7 +180,9 @@ def run(args: argparse.Namespace) -> int:
                           "mean offset, for information"),
             "files": {"verify.npz": "frequency_hz (n_freq,), channels (n_want,) 1-based, channel_matrix complex "
                                     "(n_freq, n_chan, n_chan) = combine^T G_measured drive, planned_singular_value "
-                                    "and measured_singular_value (n_freq, n_chan), judged (n_freq, n_want)"},
+                                    "and measured_singular_value (n_freq, n_chan; the measured value of the same "
+                                    "rank as the planned channel at that frequency), judged (n_freq, n_want)"},
+            "levels": "re the strongest channel at each frequency (a tracked plan's channel 1 need not be it)",
             "provenance": provenance(rig_sha256=_plan_rig_hash(weights.sidecar))})
         np.savez(stage / "verify.npz", frequency_hz=res.hz, channels=np.asarray(res.channels) + 1,
                  channel_matrix=res.channel_matrix, planned_singular_value=res.planned_sv,
