@@ -32,6 +32,7 @@ COMMAND_MODULES = (
     "arrayplan.commands.deconvolve",
     "arrayplan.commands.irset",
     "arrayplan.commands.verify",
+    "arrayplan.commands.study",
     "arrayplan.commands.report",
 )
 

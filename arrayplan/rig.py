@@ -14,7 +14,7 @@ import io
 import json
 import math
 import sys
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Sequence
 
@@ -119,6 +119,7 @@ class Rig:
     name: str = "rig"
     description: str = ""
     source: str = "<arrays>"
+    zones: tuple = ()  # of arrayplan.zones.Zone, from [[zones]]
 
     @property
     def sha256(self) -> str:
@@ -239,7 +240,7 @@ def _coincident(a: ElementSet, b: ElementSet, source: str, label: str, same: boo
 
 # ---------------------------------------------------------------- rig files
 
-_TOP_KEYS = {"rig", "medium", "frequencies", "speakers", "microphones", "hardware", "planning"}
+_TOP_KEYS = {"rig", "medium", "frequencies", "speakers", "microphones", "hardware", "planning", "zones"}
 _POINT_KEYS = {"name", "position", "directivity", "channel"}
 _GROUP_KEYS = {"name", "shape", "count", "counts", "spacing", "length", "size", "center", "direction",
                "normal", "facing", "radius", "start_deg", "stop_deg", "directivity", "first_channel"}
@@ -712,4 +713,7 @@ def load_rig(path: str | Path) -> Rig:
         source=src,
     )
     rig.validate()
+    if "zones" in doc:
+        from .zones import resolve_zones
+        rig = replace(rig, zones=resolve_zones(doc["zones"], rig.mics.names, rig.mics.positions, r, base))
     return rig

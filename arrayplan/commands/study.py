@@ -10,7 +10,9 @@ import argparse
 import importlib
 
 #: Study command modules, in the order ``arrayplan study --help`` lists them.
-STUDY_MODULES: tuple[str, ...] = ()
+STUDY_MODULES: tuple[str, ...] = (
+    "arrayplan.commands.study_zones",
+)
 
 
 def register(sub: argparse._SubParsersAction) -> None:
