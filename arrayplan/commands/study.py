@@ -12,6 +12,7 @@ import importlib
 #: Study command modules, in the order ``arrayplan study --help`` lists them.
 STUDY_MODULES: tuple[str, ...] = (
     "arrayplan.commands.study_zones",
+    "arrayplan.commands.study_layout",
 )
 
 
