@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 from matplotlib import colormaps
 from matplotlib.figure import Figure
+from matplotlib.ticker import MaxNLocator
 
 from ..field import _AXES, best_plane
 from ..rig import Rig
@@ -104,6 +105,8 @@ def plot_comparison(hz: np.ndarray, names: list[str], series: dict[str, np.ndarr
             ax.plot(hz, row, styles[n % len(styles)], ms=3, color=colours[n], label=name)
         ax.set_ylabel(title)
         ax.grid(True, alpha=0.3)
+        if "(bit/s/Hz)" not in title:
+            ax.yaxis.set_major_locator(MaxNLocator(integer=True))
     axes[0].legend(fontsize=8)
     axes[-1].set_xlabel("frequency (Hz)")
     frequency_axis(axes[-1], hz)
