@@ -103,3 +103,16 @@ def test_bad_input_is_one_line_exit_2_and_nothing_written(tmp_path, capsys, monk
     err = capsys.readouterr().err
     assert status == 2 and word in err and len(err.strip().splitlines()) == 1
     assert not (tmp_path / "never").exists()
+
+
+def test_report_shows_a_comparison_section_when_the_project_holds_one(tmp_path, capsys):
+    from arrayplan.report.build import build_report
+
+    (tmp_path / "a.toml").write_text(RIG.format(name="small", n=4))
+    (tmp_path / "b.toml").write_text(RIG.format(name="large", n=10))
+    assert main(["compare", str(tmp_path / "a.toml"), str(tmp_path / "b.toml"), "--out", str(tmp_path / "cmp"),
+                 "--no-figures"]) == 0
+    capsys.readouterr()
+    html = build_report(tmp_path)
+    assert "Layout comparison: cmp" in html and "2 layouts compared on 2 frequencies" in html
+    assert html.count("<tr>") >= 3 and "large" in html and "small" in html

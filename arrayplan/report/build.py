@@ -328,8 +328,22 @@ def _summary(results: ProjectResults, root: Path) -> str:
                    f'{esc(", ".join(str(c) for c in failed))})')
         items.append(f"Verification <b>{esc(_rel(fv.folder, root))}</b>: {sum(passed)} of {len(passed)} wanted "
                      f"channels pass at {esc(fv.doc.get('isolation_db'))} dB isolation; {verdict}.")
+    if results.studies:
+        from .studies import STUDY_NAMES, study_summary
+        items += [f"{STUDY_NAMES[fs.kind]} <b>{esc(_rel(fs.folder, root))}</b>: {esc(study_summary(fs))}."
+                  for fs in results.studies]
     body = "".join(f"<li>{i}</li>" for i in items)
     return f'<section id="summary"><h2>Summary</h2><div class="verdict"><ul>{body}</ul></div></section>'
+
+
+def _study_section(found, root: Path) -> str:
+    """A zones, layout or comparison study (tables and figures from :mod:`arrayplan.report.studies`)."""
+    from .studies import STUDY_NAMES, study_figures, study_section_html
+
+    figs = [ReportFigure(caption, fig) for caption, fig in study_figures(found)]
+    return "\n".join([f'<section id="{_anchor("study", found.folder, root)}"><h2>{STUDY_NAMES[found.kind]}: '
+                      f'{esc(_rel(found.folder, root))}</h2>', study_section_html(found),
+                      _figures_html(figs, f"study {_rel(found.folder, root)}"), "</section>"])
 
 
 def _provenance_of(path: Path) -> dict:
@@ -421,10 +435,12 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     generated = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
     title = title or f"arrayplan report: {root.resolve().name}"
     steps = ([("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
-             + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications])
+             + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications]
+             + [("study", fs) for fs in results.studies])
     total = len(steps) + 1
     builders = {"plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
-                "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification")}
+                "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification"),
+                "study": (_study_section, "Design study")}
     toc = []
     sections = []
     with report_style():

@@ -112,10 +112,11 @@ class ProjectResults:
     irsets: list[FoundIRSet] = field(default_factory=list)
     verifications: list[FoundVerification] = field(default_factory=list)
     problems: list[str] = field(default_factory=list)
+    studies: list = field(default_factory=list)   # of arrayplan.report.studies.FoundStudy
 
     @property
     def empty(self) -> bool:
-        return not (self.plans or self.filters or self.irsets or self.verifications)
+        return not (self.plans or self.filters or self.irsets or self.verifications or self.studies)
 
 
 def _read_json(path: Path) -> Any:
@@ -271,8 +272,11 @@ def find_results(project_dir: str | os.PathLike, rig: Rig | None = None) -> Proj
                "filters": (_load_filters, out.filters),
                "irset": (_load_irset, out.irsets),
                "verification": (_load_verification, out.verifications)}
+    from .studies import load_study, study_kind
+    loaders["study"] = (load_study, out.studies)
     for folder in _walk(root):
         found = [(_kind(folder), folder)] + [("irset", f) for f in sorted(folder.glob("*.sofa")) if f.is_file()]
+        found += [("study", folder)] if study_kind(folder) else []
         for kind, where in found:
             if kind is None:
                 continue
