@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import io
 from pathlib import Path
 
 import matplotlib
@@ -16,6 +15,7 @@ from ..planning import plan_rig
 from ..plan_files import read_plan
 from ..progress import ProgressBar
 from ..rig import load_rig
+from ..studies._tables import csv_text as _csv
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -54,14 +54,6 @@ def _load(path: str, axis: FrequencyAxis | None, args: argparse.Namespace):
         raise InputError("no frequencies to compare at", source=path, field="frequencies",
                          fix="add a [frequencies] table or give --freq")
     return rig.name, plan_rig(rig, use, threshold_db=args.threshold_db, snr_db=args.snr_db)
-
-
-def _csv(header: list[str], rows: list[list]) -> str:
-    buf = io.StringIO()
-    buf.write(",".join(f'"{h}"' if "," in h else h for h in header) + "\n")
-    for r in rows:
-        buf.write(",".join(f"{x:.10g}" if isinstance(x, float) else str(x) for x in r) + "\n")
-    return buf.getvalue()
 
 
 def run(args: argparse.Namespace) -> int:

@@ -10,16 +10,14 @@
 
 from __future__ import annotations
 
-import io
 import json
 from pathlib import Path
-
-import numpy as np
 
 from ..directivity import Directivity
 from ..fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..rig import ElementSet, Rig
 from .layout import LayoutChoice, chosen_rig
+from ._tables import csv_text as _csv
 
 __all__ = ["rig_toml_text", "write_layout", "summary_lines"]
 
@@ -84,14 +82,6 @@ def summary_lines(choice: LayoutChoice) -> list[str]:
     if choice.bound is not None:
         lines.append(f"upper bound (convex relaxation) {choice.bound:.6g}; gap {choice.gap_percent:.2f} % of the bound")
     return lines
-
-
-def _csv(header: list[str], rows: list[list]) -> str:
-    buf = io.StringIO()
-    buf.write(",".join(header) + "\n")
-    for r in rows:
-        buf.write(",".join(f"{x:.10g}" if isinstance(x, float) else str(x) for x in r) + "\n")
-    return buf.getvalue()
 
 
 def write_layout(rig: Rig, choice: LayoutChoice, out_dir: str | Path, figures: bool = True) -> list[Path]:

@@ -16,7 +16,6 @@ Files written to the output folder:
 
 from __future__ import annotations
 
-import io
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -29,6 +28,7 @@ from ..rig import Rig
 from ..safety import CAUTION_NOTE
 from .zone_filters import ZoneFilters
 from .zones import ZoneStudy, zone_coupling
+from ._tables import csv_text as _csv
 
 __all__ = ["ZoneTolerance", "write_zone_study", "field_grid", "summary_lines"]
 
@@ -61,14 +61,6 @@ def field_grid(rig: Rig, study: ZoneStudy, resolution: int = 121) -> PlaneGrid:
     u = np.linspace(lo[0], hi[0], resolution)
     v = np.linspace(lo[1], hi[1], max(2, int(round(resolution * (hi[1] - lo[1]) / (hi[0] - lo[0])))))
     return PlaneGrid("xy", float(zpts[:, 2].mean()), u, v)
-
-
-def _csv(header: list[str], rows: list[list]) -> str:
-    buf = io.StringIO()
-    buf.write(",".join(header) + "\n")
-    for r in rows:
-        buf.write(",".join(f"{x:.10g}" if isinstance(x, float) else str(x) for x in r) + "\n")
-    return buf.getvalue()
 
 
 def _band_means(study: ZoneStudy) -> dict:
