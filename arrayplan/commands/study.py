@@ -11,6 +11,8 @@ import importlib
 
 #: Study command modules, in the order ``arrayplan study --help`` lists them.
 STUDY_MODULES: tuple[str, ...] = (
+    "arrayplan.commands.study_capacity",
+    "arrayplan.commands.study_tolerance",
     "arrayplan.commands.study_zones",
     "arrayplan.commands.study_layout",
 )

@@ -1,4 +1,4 @@
-"""Report sections of the design studies: zones, layout choice and layout comparison.
+"""Report sections of the zones, layout-choice and layout-comparison studies.
 
 Each study folder is recognised by its JSON sidecar (``zones.json``,
 ``layout.json``, ``compare.json``); the section shows its numbers as tables
@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import csv
 import json
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -19,7 +18,7 @@ from matplotlib.figure import Figure
 from ..errors import InputError
 from .html import esc, table
 
-__all__ = ["FoundStudy", "study_kind", "load_study", "study_section_html", "study_figures", "study_summary",
+__all__ = ["study_kind", "load_study", "study_section_html", "study_figures", "study_summary",
            "STUDY_NAMES"]
 
 #: Sidecar file and ``kind`` of each study.
@@ -29,16 +28,6 @@ _SIDECARS = {"zones": ("zones.json", "arrayplan-zones-study"), "layout": ("layou
 STUDY_NAMES = {"zones": "Zones study", "layout": "Layout choice", "comparison": "Layout comparison"}
 _METHOD_LABELS = {"contrast": "acoustic contrast control", "matching": "pressure matching",
                   "channel": "best plan channel"}
-
-
-@dataclass
-class FoundStudy:
-    """A study folder: its kind, its sidecar and its tables (lists of row dicts)."""
-
-    folder: Path
-    kind: str
-    doc: dict
-    rows: list
 
 
 def study_kind(folder: Path) -> str | None:
@@ -57,8 +46,13 @@ def _read_csv(path: Path) -> list[dict[str, str]]:
         raise InputError(f"cannot read ({exc.__class__.__name__})", source=str(path)) from None
 
 
-def load_study(folder: Path) -> FoundStudy:
-    """Read a study folder (see :func:`study_kind`); raise InputError naming the file when it cannot."""
+def load_study(folder: Path):
+    """Read a study folder (see :func:`study_kind`) as a :class:`~arrayplan.report.discover.FoundStudy`.
+
+    Its ``study`` is the study's main table (list of row dicts), its
+    ``sidecar`` the JSON sidecar.  Raises InputError naming the file when it
+    cannot.
+    """
     kind = study_kind(folder)
     if kind is None:
         raise InputError("not a study folder", source=str(folder))
@@ -71,21 +65,22 @@ def load_study(folder: Path) -> FoundStudy:
         raise InputError(f"kind is not {expected!r}", source=str(folder / name), field="kind")
     table_file = {"zones": "zones-metrics.csv", "layout": "layout-steps.csv",
                   "comparison": "compare-by-frequency.csv"}[kind]
-    return FoundStudy(folder, kind, doc, _read_csv(folder / table_file))
+    from .discover import FoundStudy
+    return FoundStudy(folder, kind, _read_csv(folder / table_file), doc)
 
 
 def _fig(height_in: float) -> Figure:
     return Figure(figsize=(7.0, height_in), layout="constrained")
 
 
-def _zones_figure(found: FoundStudy) -> Figure:
+def _zones_figure(found) -> Figure:
     from ..plots._axes import frequency_axis
 
     fig = _fig(3.4)
     ax_c, ax_t = fig.subplots(1, 2)
     colours = {"contrast": "#1b7837", "matching": "#2166ac", "channel": "#762a83"}
     for method, colour in colours.items():
-        rows = [r for r in found.rows if r["method"] == method]
+        rows = [r for r in found.study if r["method"] == method]
         if not rows:
             continue
         chosen = [r for r in rows if r["chosen"] == "1"]
@@ -107,7 +102,7 @@ def _zones_figure(found: FoundStudy) -> Figure:
     return fig
 
 
-def study_figures(found: FoundStudy) -> list[tuple[str, Figure]]:
+def study_figures(found) -> list[tuple[str, Figure]]:
     """(caption, figure) pairs of a study section."""
     if found.kind == "zones":
         return [("Left: contrast of each method's chosen design against frequency. Right: band-mean contrast "
@@ -116,26 +111,26 @@ def study_figures(found: FoundStudy) -> list[tuple[str, Figure]]:
     if found.kind == "layout":
         from ..plots.layout import plot_layout_criterion
         from types import SimpleNamespace
-        d = found.doc
+        d = found.sidecar
         choice = SimpleNamespace(greedy_values=np.asarray(d["greedy_values"], dtype=float), value=d["value"],
                                  bound=d.get("bound"), gap_percent=d.get("gap_percent"), criterion=d["criterion"])
         return [("The criterion after each greedy step, after the swaps, and the relaxation's upper bound.",
                  plot_layout_criterion(choice, ax=_fig(3.2).subplots()))]
     from ..plots.layout import plot_comparison
-    names = [lay["name"] for lay in found.doc["layouts"]]
-    hz = np.array(found.doc["frequencies_hz"], dtype=float)
+    names = [lay["name"] for lay in found.sidecar["layouts"]]
+    hz = np.array(found.sidecar["frequencies_hz"], dtype=float)
     keys = {"strong channels": "strong", "usable channels": "usable", "effective channels": "effective"}
-    if found.doc.get("capacity_snr_db") is not None:
+    if found.sidecar.get("capacity_snr_db") is not None:
         keys["capacity (bit/s/Hz)"] = "capacity_bit_per_s_hz"
-    series = {title: np.array([[float(r[col]) for r in found.rows if r["layout"] == n] for n in names])
+    series = {title: np.array([[float(r[col]) for r in found.study if r["layout"] == n] for n in names])
               for title, col in keys.items()}
     return [("The layouts' channel counts (and capacity) against frequency, overlaid.",
              plot_comparison(hz, names, series, fig=_fig(1.9 * len(series) + 0.6)))]
 
 
-def study_section_html(found: FoundStudy) -> str:
+def study_section_html(found) -> str:
     """The tables of a study section (the caller adds the heading and the figures)."""
-    d = found.doc
+    d = found.sidecar
     if found.kind == "zones":
         rows = [[_METHOD_LABELS.get(k, k), "-" if m["regularisation"] is None else f"{m['regularisation']:g}",
                  f"{m['mean_contrast_db']:.1f}", f"{m['min_contrast_db']:.1f}", f"{m['mean_effort_db']:.1f}",
@@ -168,9 +163,9 @@ def study_section_html(found: FoundStudy) -> str:
     return table(list(d["header"]), [list(r) for r in d["rows"]], text_columns=(0, 3, 4))
 
 
-def study_summary(found: FoundStudy) -> str:
+def study_summary(found) -> str:
     """One sentence for the report's summary (plain text)."""
-    d = found.doc
+    d = found.sidecar
     if found.kind == "zones":
         best = max(d["chosen"].items(), key=lambda kv: kv[1]["mean_contrast_db"])
         return (f"best mean contrast {best[1]['mean_contrast_db']:.1f} dB by {_METHOD_LABELS.get(best[0], best[0])}"
