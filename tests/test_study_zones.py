@@ -162,3 +162,31 @@ def test_bad_input_is_one_line_exit_2_and_nothing_written(tmp_path, capsys, extr
     assert r.returncode == 2
     assert len(r.stderr.strip().splitlines()) == 1 and word in r.stderr
     assert not out.exists()
+
+
+def test_measured_responses_give_the_free_field_design_when_they_are_the_free_field(tmp_path, capsys):
+    from arrayplan.irset import write_irset
+    from arrayplan.simulate import free_field_irset
+
+    text = DEMO.read_text() + '\n[[zones]]\nname = "mics-A"\nrole = "bright"\nmembers = ["A1", "A2"]\n'
+    rig_path = tmp_path / "rig.toml"
+    rig_path.write_text(text)
+    rig = load_rig(rig_path)
+    write_irset(tmp_path / "irs", free_field_irset(rig, 8000.0, 4096, zero_lag_samples=256))
+    runs = {}
+    for name, extra in (("free", []), ("measured", ["--irset", tmp_path / "irs"])):
+        r = _cli(capsys, rig_path, "--bright", "mics-A", "--dark", "mics-B", "--out", tmp_path / name, "--freq", "300",
+                 "--freq", "900", "--regularisation", "0.01", "--no-figures", "--filters", "matching", "--rate",
+                 "8000", "--taps", "512", "--band", "300", "900", *extra)
+        assert r.returncode == 0, r.stderr
+        runs[name] = json.loads((tmp_path / name / "zones.json").read_text())
+    # the DTFT of band-limited sampled responses reproduces the free field below Nyquist
+    # (Oppenheim and Schafer, Discrete-Time Signal Processing, sampling theorem)
+    for method in ("contrast", "matching"):
+        assert runs["measured"]["chosen"][method]["mean_contrast_db"] == pytest.approx(
+            runs["free"]["chosen"][method]["mean_contrast_db"], abs=0.05)
+    assert runs["measured"]["filters"]["band_contrast_realised_db"] == pytest.approx(
+        runs["free"]["filters"]["band_contrast_realised_db"], abs=0.5)
+    r = _cli(capsys, rig_path, "--bright", "seat-A", "--dark", "mics-B", "--out", tmp_path / "never",
+             "--irset", tmp_path / "irs")
+    assert r.returncode == 2 and "control points" in r.stderr and not (tmp_path / "never").exists()

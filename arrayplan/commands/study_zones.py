@@ -13,7 +13,7 @@ from ..progress import ProgressBar
 from ..rig import load_rig
 from ..safety import CAUTION_NOTE
 from ..zones import select_zones
-from ._args import csv_names
+from ._args import add_measured_kernel_options, csv_names
 
 
 def _numbers(text: str) -> list[float]:
@@ -67,6 +67,11 @@ def register(actions: argparse._SubParsersAction) -> None:
     p.add_argument("--taps", type=int, default=2048, help="filter length (default 2048)")
     p.add_argument("--band", type=float, nargs=2, metavar=("LOW", "HIGH"),
                    help="filter band in Hz (default the studied frequencies' range)")
+    p.add_argument("--irset", metavar="DIR|FILE.sofa",
+                   help="take the coupling to zones of microphones from this measured impulse-response set "
+                        "instead of the free field (every zone must then be made of microphones); --tolerance "
+                        "and the field maps stay free field, the filter check uses the measured responses")
+    add_measured_kernel_options(p, prefix="with --irset: ")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)
 
@@ -120,8 +125,26 @@ def run(args: argparse.Namespace) -> int:
         if args.taps < 16:
             raise InputError(f"must be at least 16, got {args.taps}", source="--taps")
 
+    kernel, measured_ir = None, None
+    if args.irset:
+        from .plan import _measured_kernel
+        points = [z.name for z in (*bright, *dark) if z.mic_indices is None]
+        if points:
+            raise InputError(f"zone {points[0]!r} is made of control points, and measured responses exist only at "
+                             "microphones", source="--irset", fix="use zones of microphones (members = [...])")
+        rig, kernel = _measured_kernel(args, rig)
+        if args.filters:
+            from ..irset import read_irset
+            irs = read_irset(args.irset)
+            if abs(irs.sample_rate_hz - args.rate) > 1e-9:
+                raise InputError(f"the IR set's rate {irs.sample_rate_hz:g} Hz differs from the filter rate "
+                                 f"{args.rate:g} Hz", source="--rate", fix=f"give --rate {irs.sample_rate_hz:g}")
+            rows = [i for z in (*bright, *dark) for i in z.mic_indices]
+            measured_ir = irs.data[irs.zero_lag_samples:, rows, :]
+    elif args.window_ms is not None or args.latency_samples or args.smooth_octaves is not None:
+        raise InputError("applies only with --irset", source="--window-ms/--latency-samples/--smooth-octaves")
     study = study_zones(rig, bright, dark, axis, target=target, regularisation=regs,
-                        max_effort_db=args.max_effort_db)
+                        max_effort_db=args.max_effort_db, kernel=kernel)
     tolerance = None
     if args.tolerance is not None:
         with ProgressBar("perturbed rigs") as bar:
@@ -138,18 +161,19 @@ def run(args: argparse.Namespace) -> int:
         beta = float(study.results[args.filters].regularisation[study.results[args.filters].chosen])
 
         def weights_at(ax: FrequencyAxis) -> np.ndarray:
-            sub = study_zones(rig, bright, dark, ax, target=target, regularisation=[beta])
+            sub = study_zones(rig, bright, dark, ax, target=target, regularisation=[beta], kernel=kernel)
             return sub.results[args.filters].weights[0]
 
         def designed(ax: FrequencyAxis) -> np.ndarray:
             w = weights_at(ax)
-            return contrast_db(w, zone_coupling(rig, bright, ax.hz), zone_coupling(rig, dark, ax.hz))
+            return contrast_db(w, zone_coupling(rig, bright, ax.hz, kernel), zone_coupling(rig, dark, ax.hz, kernel))
 
         with ProgressBar("zone filters") as bar:
             bar(0, 2)
             taps = zone_filter_taps(weights_at, len(rig.speakers), args.rate, args.taps, band)
             bar(1, 2)
-            filters = check_zone_filters(rig, bright, dark, taps, args.rate, band, designed)
+            filters = check_zone_filters(rig, bright, dark, taps, args.rate, band, designed,
+                                         impulse_responses=measured_ir)
             bar(2, 2)
     files = write_zone_study(rig, study, args.out, map_hz=map_hz, tolerance=tolerance, filters=filters,
                              filter_method=args.filters, figures=not args.no_figures)

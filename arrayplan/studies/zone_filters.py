@@ -7,7 +7,7 @@ the bulk delay; the taps are its inverse real FFT with a Tukey (alpha 0.2)
 time window.  The check convolves the taps with the free-field impulse
 responses from the speakers to every zone point (in the time domain) and
 measures the contrast the filters realise in each FFT bin of the band and
-over the whole band.
+over the whole band (or, when given, with measured responses instead).
 
 Notes
 -----
@@ -36,6 +36,8 @@ from ..zones import Zone
 __all__ = ["ZoneFilters", "zone_filter_taps", "check_zone_filters"]
 
 _TUKEY_ALPHA = 0.2
+#: Bins of the band listed in the check (evenly spread); the band's contrast uses every bin.
+MAX_CHECK_BINS = 64
 
 
 @dataclass(frozen=True)
@@ -48,7 +50,7 @@ class ZoneFilters:
     sample_rate_hz : float
     band_hz : (float, float)
     check_hz : ndarray, shape (n_bins,)
-        FFT bins of the band where the check was made, Hz.
+        FFT bins of the band listed (at most MAX_CHECK_BINS, evenly spread), Hz.
     designed_db, realised_db : ndarray, shape (n_bins,)
         Contrast of the weights and of the filters in each bin, dB.
     band_contrast_db : float
@@ -108,9 +110,9 @@ def _points_rig(rig: Rig, zones: list[Zone]) -> Rig:
 
 
 def check_zone_filters(rig: Rig, bright: list[Zone], dark: list[Zone], taps: np.ndarray, sample_rate_hz: float,
-                       band_hz: tuple[float, float], designed: Callable[[FrequencyAxis], np.ndarray]
-                       ) -> ZoneFilters:
-    """Convolve the filters with the free-field responses to the zone points and measure the contrast.
+                       band_hz: tuple[float, float], designed: Callable[[FrequencyAxis], np.ndarray],
+                       impulse_responses: np.ndarray | None = None) -> ZoneFilters:
+    """Convolve the filters with the responses to the zone points and measure the contrast.
 
     Parameters
     ----------
@@ -122,6 +124,10 @@ def check_zone_filters(rig: Rig, bright: list[Zone], dark: list[Zone], taps: np.
     designed : callable
         ``designed(axis)`` -> contrast of the weights in dB at those
         frequencies, shape (n_freq,).
+    impulse_responses : ndarray, shape (n_samples, n_points, n_spk), optional
+        Responses to the bright then the dark points, from zero lag, at
+        `sample_rate_hz` (for example measured ones); default the free-field
+        responses simulated here.
 
     Returns
     -------
@@ -129,10 +135,16 @@ def check_zone_filters(rig: Rig, bright: list[Zone], dark: list[Zone], taps: np.
     """
     fs = float(sample_rate_hz)
     n_b = sum(len(z) for z in bright)
-    pts = _points_rig(rig, list(bright) + list(dark))
-    r = np.linalg.norm(pts.mics.positions[:, None] - rig.speakers.positions[None], axis=-1)
-    n_ir = int(max(1024, 2 ** int(np.ceil(np.log2(r.max() / rig.medium.speed_of_sound * fs + 256)))))
-    ir = free_field_impulse_responses(pts, fs, n_ir)                      # (n_ir, n_points, n_spk)
+    if impulse_responses is not None:
+        ir = np.asarray(impulse_responses, dtype=float)
+        if ir.ndim != 3 or ir.shape[1:] != (n_b + sum(len(z) for z in dark), taps.shape[1]):
+            raise InputError(f"responses of shape {ir.shape} do not match the zones' points and the speakers",
+                             source="impulse_responses")
+    else:
+        pts = _points_rig(rig, list(bright) + list(dark))
+        r = np.linalg.norm(pts.mics.positions[:, None] - rig.speakers.positions[None], axis=-1)
+        n_ir = int(max(1024, 2 ** int(np.ceil(np.log2(r.max() / rig.medium.speed_of_sound * fs + 256)))))
+        ir = free_field_impulse_responses(pts, fs, n_ir)                  # (n_ir, n_points, n_spk)
     y = fftconvolve(ir, taps[:, None, :], axes=0).sum(axis=2)             # (n_out, n_points)
     n_fft = 2 ** int(np.ceil(np.log2(y.shape[0])))
     spec = np.fft.rfft(y, n=n_fft, axis=0)
@@ -142,6 +154,7 @@ def check_zone_filters(rig: Rig, bright: list[Zone], dark: list[Zone], taps: np.
     e_d = np.mean(np.abs(spec[band, n_b:]) ** 2, axis=1)
     realised = 10 * np.log10(e_b / np.maximum(e_d, 1e-300))
     whole = 10 * np.log10(np.sum(e_b) / max(float(np.sum(e_d)), 1e-300))
-    check_hz = hz[band]
+    shown = np.unique(np.linspace(0, band.size - 1, min(band.size, MAX_CHECK_BINS)).round().astype(int))
+    check_hz = hz[band][shown]
     return ZoneFilters(taps, fs, (float(band_hz[0]), float(band_hz[1])), check_hz,
-                       designed(FrequencyAxis(check_hz)), realised, float(whole))
+                       designed(FrequencyAxis(check_hz)), realised[shown], float(whole))
