@@ -33,6 +33,7 @@ COMMAND_MODULES = (
     "arrayplan.commands.irset",
     "arrayplan.commands.verify",
     "arrayplan.commands.study",
+    "arrayplan.commands.compare",
     "arrayplan.commands.report",
 )
 

@@ -14,7 +14,7 @@ import io
 import json
 import math
 import sys
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Sequence
 
@@ -121,6 +121,7 @@ class Rig:
     description: str = ""
     source: str = "<arrays>"
     room: Room | None = None
+    zones: tuple = ()  # of arrayplan.zones.Zone, from [[zones]]
 
     @property
     def sha256(self) -> str:
@@ -246,7 +247,7 @@ def _coincident(a: ElementSet, b: ElementSet, source: str, label: str, same: boo
 
 # ---------------------------------------------------------------- rig files
 
-_TOP_KEYS = {"rig", "medium", "frequencies", "speakers", "microphones", "hardware", "planning", "room"}
+_TOP_KEYS = {"rig", "medium", "frequencies", "speakers", "microphones", "hardware", "planning", "room", "zones"}
 _POINT_KEYS = {"name", "position", "directivity", "channel"}
 _GROUP_KEYS = {"name", "shape", "count", "counts", "spacing", "length", "size", "center", "direction",
                "normal", "facing", "radius", "start_deg", "stop_deg", "directivity", "first_channel"}
@@ -722,4 +723,7 @@ def load_rig(path: str | Path) -> Rig:
         room=parse_room(doc.get("room"), r),
     )
     rig.validate()
+    if "zones" in doc:
+        from .zones import resolve_zones
+        rig = replace(rig, zones=resolve_zones(doc["zones"], rig.mics.names, rig.mics.positions, r, base))
     return rig

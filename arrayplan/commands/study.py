@@ -13,6 +13,8 @@ import importlib
 STUDY_MODULES: tuple[str, ...] = (
     "arrayplan.commands.study_capacity",
     "arrayplan.commands.study_tolerance",
+    "arrayplan.commands.study_zones",
+    "arrayplan.commands.study_layout",
 )
 
 

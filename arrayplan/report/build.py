@@ -338,6 +338,8 @@ def _verification_section(found: FoundVerification, root: Path) -> str:
 
 
 def _study_section(found: FoundStudy, root: Path) -> str:
+    if found.kind in ("zones", "layout", "comparison"):
+        return _design_study_section(found, root)
     side = found.sidecar
     title = {"capacity": "Capacity study", "tolerance": "Tolerance study"}[found.kind]
     parts = [f'<section id="{_anchor("study", found.folder, root)}"><h2>{title}: {esc(_rel(found.folder, root))}</h2>',
@@ -384,8 +386,22 @@ def _summary(results: ProjectResults, root: Path) -> str:
                    f'{esc(", ".join(str(c) for c in failed))})')
         items.append(f"Verification <b>{esc(_rel(fv.folder, root))}</b>: {sum(passed)} of {len(passed)} wanted "
                      f"channels pass at {esc(fv.doc.get('isolation_db'))} dB isolation; {verdict}.")
+    if results.studies:
+        from .studies import STUDY_NAMES, study_summary
+        items += [f"{STUDY_NAMES[fs.kind]} <b>{esc(_rel(fs.folder, root))}</b>: {esc(study_summary(fs))}."
+                  for fs in results.studies if fs.kind in STUDY_NAMES]
     body = "".join(f"<li>{i}</li>" for i in items)
     return f'<section id="summary"><h2>Summary</h2><div class="verdict"><ul>{body}</ul></div></section>'
+
+
+def _design_study_section(found, root: Path) -> str:
+    """A zones, layout or comparison study (tables and figures from :mod:`arrayplan.report.studies`)."""
+    from .studies import STUDY_NAMES, study_figures, study_section_html
+
+    figs = [ReportFigure(caption, fig) for caption, fig in study_figures(found)]
+    return "\n".join([f'<section id="{_anchor("study", found.folder, root)}"><h2>{STUDY_NAMES[found.kind]}: '
+                      f'{esc(_rel(found.folder, root))}</h2>', study_section_html(found),
+                      _figures_html(figs, f"study {_rel(found.folder, root)}"), "</section>"])
 
 
 def _provenance_of(path: Path) -> dict:

@@ -252,6 +252,9 @@ def _load_study(folder: Path) -> FoundStudy:
         if (folder / name).is_file():
             study, side = getattr(study_files, reader)(folder)
             return FoundStudy(folder, kind, study, side)
+    from .studies import load_study, study_kind
+    if study_kind(folder):
+        return load_study(folder)
     raise InputError("no study sidecar", source=str(folder))
 
 
@@ -263,6 +266,9 @@ def _kind(folder: Path) -> str | None:
     if (folder / "verify.json").is_file():
         return "verification"
     if any((folder / name).is_file() for name in _STUDY_SIDECARS):
+        return "study"
+    from .studies import study_kind       # zones, layout and comparison studies
+    if study_kind(folder):
         return "study"
     if (folder / MANIFEST_NAME).is_file():
         parts = folder.parts
