@@ -33,7 +33,6 @@ import io
 import math
 import os
 import shutil
-import tempfile
 from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable, Sequence
@@ -41,7 +40,8 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from ..errors import DeviceError, InputError
-from ..fileio import provenance, write_json_atomic
+from ..fileio import (clean_stale_staging, make_folders, new_staging_folder, provenance, publish_folder,
+                      write_json_atomic)
 from ..progress import ticking
 from ..irset import IRSet, write_irset
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, clipped_sample_counts,
@@ -410,13 +410,16 @@ def _open_session(out_dir: Path, record: dict[str, Any], device: str) -> None:
     write_json_atomic(path, dict(record, device=device, provenance=provenance(rig_sha256=record["wiring"]["rig_sha256"])))
 
 
-def _cleanup_staging(takes_dir: Path) -> list[str]:
+def _cleanup_staging(takes_dir: Path, wiring: RigWiring) -> list[str]:
+    """Remove unfinished takes of dead runs (those of a live run into the same folder are left alone)."""
     removed = []
     if takes_dir.is_dir():
-        for p in takes_dir.iterdir():
+        for p in takes_dir.iterdir():   # names of versions before staging names carried the process id
             if p.name.startswith(_STAGING_PREFIX) or p.name.startswith(".replaced-"):
                 shutil.rmtree(p, ignore_errors=True)
                 removed.append(p.name)
+        for s, speaker in enumerate(wiring.speaker_names):
+            removed += [p.name for p in clean_stale_staging(takes_dir / take_folder_name(s, speaker))]
     return removed
 
 
@@ -507,8 +510,6 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
     KeyboardInterrupt
         Passed on after the takes already done are safe.
     """
-    import soundfile as sf
-
     out_dir = Path(out_dir)
     fs = float(link.sample_rate_hz)
     sweep = make_sweep(settings.sweep_settings(fs))
@@ -544,11 +545,47 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
     if latency_samples is not None and latency_source != "reference" and latency_samples > max_lat:
         raise InputError(f"latency of {latency_samples} samples exceeds --max-latency-s ({max_lat} samples)",
                          field="--max-latency-s", fix="raise --max-latency-s")
-    out_dir.mkdir(parents=True, exist_ok=True)
+    fresh = not (out_dir / SESSION_FILE).exists()
+    created = make_folders(out_dir, str(out_dir))
+    takes_dir = out_dir / "takes"
+    made_takes_dir = not takes_dir.exists()
+    try:
+        return _measure_into(link, wiring, out_dir, settings, sweep, pre_roll, ir_len, max_lat, latency_source,
+                             latency_samples, units, pa_per_fs, v_per_fs, session_warnings, redo_marked, on_event,
+                             on_warning, on_progress)
+    except BaseException:
+        if fresh and not completed_takes(out_dir):
+            _undo_fresh_session(out_dir, takes_dir if made_takes_dir else None, created)
+        raise
+
+
+def _undo_fresh_session(out_dir: Path, takes_dir: Path | None, created: list[Path]) -> None:
+    """Remove what a new session created before it failed with no take finished."""
+    import contextlib
+
+    with contextlib.suppress(OSError):
+        (out_dir / SESSION_FILE).unlink()
+    if takes_dir is not None:
+        shutil.rmtree(takes_dir, ignore_errors=True)
+    for d in reversed(created):
+        with contextlib.suppress(OSError):
+            d.rmdir()
+
+
+def _measure_into(link: AudioLink, wiring: RigWiring, out_dir: Path, settings: MeasurementSettings,
+                  sweep: SweepSignal, pre_roll: int, ir_len: int, max_lat: int, latency_source: str,
+                  latency_samples: int | None, units: str, pa_per_fs: np.ndarray | None,
+                  v_per_fs: np.ndarray | None, session_warnings: list[str], redo_marked: bool,
+                  on_event: Callable[[str], None], on_warning: Callable[[str], None],
+                  on_progress: Callable[[TakeProgress], None] | None) -> MeasurementSummary:
+    """The take loop of :func:`measure` once its settings are checked."""
+    import soundfile as sf
+
+    fs = float(link.sample_rate_hz)
     _open_session(out_dir, _session_record(link, wiring, settings, sweep, latency_source, units), link.description)
     takes_dir = out_dir / "takes"
     takes_dir.mkdir(exist_ok=True)
-    for name in _cleanup_staging(takes_dir):
+    for name in _cleanup_staging(takes_dir, wiring):
         on_event(f"removed an unfinished take left by an earlier run ({name})")
 
     done = completed_takes(out_dir)
@@ -664,7 +701,7 @@ def _save_take(take: TakeResult, result: DuplexResult, ir: np.ndarray, units: st
     """Write the take under a staging name and rename it into place."""
     takes_dir = take.folder.parent
     s = take.index
-    stage = Path(tempfile.mkdtemp(prefix=_STAGING_PREFIX + take.folder.name + ".", dir=takes_dir))
+    stage = new_staging_folder(take.folder)
     try:
         # Encoded in memory and written with plain file I/O, so a full disk is an OSError.
         wav = io.BytesIO()
@@ -689,14 +726,7 @@ def _save_take(take: TakeResult, result: DuplexResult, ir: np.ndarray, units: st
             "details": take.details,
             "provenance": provenance(rig_sha256=wiring.rig_sha256),
         })
-        if take.folder.exists():  # a marked take measured again: swap it out
-            old = takes_dir / f".replaced-{take.folder.name}"
-            shutil.rmtree(old, ignore_errors=True)
-            os.rename(take.folder, old)
-            os.rename(stage, take.folder)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.rename(stage, take.folder)
+        publish_folder(stage, take.folder)  # a marked take measured again is swapped out whole
     except (OSError, sf.SoundFileError) as exc:
         shutil.rmtree(stage, ignore_errors=True)
         reason = getattr(exc, "strerror", None) or " ".join(str(exc).split())
@@ -751,4 +781,9 @@ def _write_combined(out_dir: Path, takes: Sequence[TakeResult], wiring: RigWirin
                     "latency_source": latency_source,
                     "takes": [{"speaker": t.speaker, "status": t.status, "latency_samples": t.latency_samples,
                                "peak_to_noise_db": t.peak_to_noise_db} for t in takes]}})
-    return write_irset(out_dir / "irset", irs, rig_sha256=wiring.rig_sha256)
+    try:
+        return write_irset(out_dir / "irset", irs, rig_sha256=wiring.rig_sha256)
+    except OSError as exc:
+        raise InputError(f"could not write the combined impulse responses ({exc.strerror or exc})",
+                         source=str(out_dir / "irset"),
+                         fix="free disk space and run the same command again: the finished takes are kept") from None
