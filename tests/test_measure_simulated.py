@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -315,7 +316,10 @@ def _resumed_and_uninterrupted(rig, tmp_path, *, stop_at: int, seed: int, fs: fl
     wiring = RigWiring.from_rig(rig)
     n_ir = int(round(settings.ir_s * fs))
     opts = dict(noise_rms_dbfs=-50.0, dropouts_per_take=1, seed=seed)
-    whole, parts = tmp_path / f"whole-{seed}-{stop_at}", tmp_path / f"parts-{seed}-{stop_at}"
+    import tempfile
+
+    base = Path(tempfile.mkdtemp(prefix=f"resume-{seed}-{stop_at}-", dir=tmp_path))  # unique per call
+    whole, parts = base / "whole", base / "parts"
     measure(SimulatedLink.from_rig(rig, fs, n_ir, **opts), wiring, whole, settings)
     truth = SimulatedLink.from_rig(rig, fs, n_ir).truth
     with pytest.raises(KeyboardInterrupt):
