@@ -513,7 +513,8 @@ def check_exposure(estimate: ExposureEstimate, *, max_dba: float = DEFAULT_MAX_D
         warnings.append(f"estimated {top:.1f} dBA at the listener {dist:g} m away is above {WARN_DBA:g} dBA: "
                         f"NIOSH permits {_duration(_permitted_or_zero(permitted_exposure_niosh, top))} a day, OSHA "
                         f"{_duration(_permitted_or_zero(permitted_exposure_osha, top))}; use hearing protection")
-    if allow_loud and not (within_dba and within_peak):
+    under_refusal = top <= min(max_dba, DEFAULT_MAX_DBA) and peak <= min(max_peak_db_spl, DEFAULT_MAX_PEAK_DB_SPL)
+    if allow_loud and not under_refusal:
         warnings.append(f"level above the cap ({top:.1f} dBA, peak {peak:.1f} dB SPL) allowed by {consent}")
     return warnings
 
