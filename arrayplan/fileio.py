@@ -119,13 +119,17 @@ def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
 
     Missing parent folders are created (and removed again on failure).  On
     any exception the temporary file is removed and `path` is untouched.
+    The temporary name carries this process's id, so the next write of
+    `path` removes one a killed run left (:func:`clean_stale_staging`).
     The temporary name keeps the suffix of `path`, so libraries that choose a
     format by suffix (soundfile, matplotlib) still work.
     """
     path = Path(path)
     created = _make_folders(path.parent, str(path))
     try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".part" + path.suffix, dir=path.parent)
+        clean_stale_staging(path)
+        fd, tmp = tempfile.mkstemp(prefix=_hidden_prefix(path.name, _STAGING_TAG) + f"{os.getpid()}.",
+                                   suffix=path.suffix, dir=path.parent)
     except BaseException:
         _remove_folders(created)
         raise
