@@ -361,3 +361,16 @@ def test_each_take_has_its_own_noise(rig):
     # The same take played again by a new link (a resumed run) gets the same noise.
     fresh = SimulatedLink.from_rig(rig, FS, N_IR, noise_rms_dbfs=-40.0, nonlinearity=())
     assert np.array_equal(fresh.play_record(silence, [1, 3], [0, 1, 2, 3]).recording, takes[1])
+
+
+def test_a_take_changed_after_it_was_saved_is_refused_when_resuming(rig, tmp_path):
+    wiring = RigWiring.from_rig(rig)
+    out = tmp_path / "m"
+    truth = SimulatedLink.from_rig(rig, FS, N_IR).truth
+    with pytest.raises(KeyboardInterrupt):
+        measure(_StopAt(truth, [0, 1, 2], [0, 1, 2], reference=(3, 3), stop_at=3), wiring, out, FAST)
+    wav = out / "takes" / "002-S2" / "irset" / "spk-001.wav"
+    wav.write_bytes((out / "takes" / "001-S1" / "irset" / "spk-001.wav").read_bytes())   # a take of another speaker
+    with pytest.raises(InputError, match="differs") as err:
+        measure(SimulatedLink.from_rig(rig, FS, N_IR), wiring, out, FAST)
+    assert err.value.source == str(wav) and "measure it again" in err.value.one_line()

@@ -13,7 +13,7 @@ warning and marks the take; nothing fails silently.
 An output folder looks like::
 
     session.json              what was measured and how (checked on resume)
-    takes/001-S1/             one folder per finished take, renamed into place
+    takes/001-S1/             one folder per finished take, renamed into place, with SHA256SUMS
         recording.wav         raw inputs (mics in rig order, then the reference),
                               every repeat, float32
         irset/                the take's impulse responses (arrayplan.irset); each
@@ -40,8 +40,8 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from ..errors import DeviceError, InputError
-from ..fileio import (clean_stale_staging, make_folders, new_staging_folder, provenance, publish_folder,
-                      write_json_atomic)
+from ..fileio import (check_folder, clean_stale_staging, make_folders, new_staging_folder, provenance,
+                      publish_folder, write_checksums, write_json_atomic)
 from ..progress import ticking
 from ..irset import IRSet, write_irset
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, clipped_sample_counts,
@@ -726,6 +726,7 @@ def _save_take(take: TakeResult, result: DuplexResult, ir: np.ndarray, units: st
             "details": take.details,
             "provenance": provenance(rig_sha256=wiring.rig_sha256),
         })
+        write_checksums(stage)
         publish_folder(stage, take.folder)  # a marked take measured again is swapped out whole
     except (OSError, sf.SoundFileError) as exc:
         shutil.rmtree(stage, ignore_errors=True)
@@ -752,6 +753,11 @@ def _write_combined(out_dir: Path, takes: Sequence[TakeResult], wiring: RigWirin
         return None
     blocks = []
     for t in takes:
+        try:
+            check_folder(t.folder, needed=("take.json", "recording.wav", "irset/*"))
+        except InputError as exc:
+            raise InputError(exc.problem, source=exc.source,
+                             fix="delete this take's folder to measure it again") from None
         wav = t.folder / "irset" / "spk-001.wav"
         try:
             data, rate = sf.read(wav, dtype="float64", always_2d=True)
