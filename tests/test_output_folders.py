@@ -265,7 +265,7 @@ def test_a_run_killed_while_publishing_leaves_no_mix_and_the_next_run_tidies(rig
     child = subprocess.Popen(ARRAYPLAN_COMMAND + ["plan", str(pair), "--out", str(out), *PLAN_ARGS], env=env,
                              stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, stdin=subprocess.DEVNULL)
     try:
-        deadline = time.monotonic() + 60
+        deadline = time.monotonic() + 120
         while not any(n.startswith(".plan.old.") for n in _hidden(tmp_path)):   # the old plan is set aside
             assert child.poll() is None and time.monotonic() < deadline
             time.sleep(0.05)
