@@ -25,25 +25,8 @@ from arrayplan.fileio import (CHECKSUM_FILE, PUBLISH_PAUSE_ENV, atomic_paths, ch
 
 from conftest import ARRAYPLAN_COMMAND, BENCH_RIG_TOML
 
-#: A second invented rig: two speakers and two microphones, so its plan differs from the bench rig's.
-PAIR_RIG_TOML = """\
-[rig]
-name = "pair"
-[medium]
-speed_of_sound = 343.0
-[[speakers]]
-name = "A"
-position = [0.0, 0.0, 0.0]
-[[speakers]]
-name = "B"
-position = [0.3, 0.0, 0.0]
-[[microphones]]
-name = "M1"
-position = [0.0, 2.0, 0.0]
-[[microphones]]
-name = "M2"
-position = [0.3, 2.0, 0.0]
-"""
+#: A second invented rig: the bench rig with its microphones 2.5 m away, so its plan differs.
+FAR_RIG_TOML = BENCH_RIG_TOML.replace('name = "bench-trio"', 'name = "far-trio"').replace(", 1.5, 1.0]", ", 2.5, 1.0]")
 
 PLAN_ARGS = ["--freq", "500", "--freq", "1000", "--no-figures"]
 
@@ -76,10 +59,10 @@ def _dead_pid() -> int:
 
 @pytest.fixture
 def rigs(tmp_path):
-    bench, pair = tmp_path / "bench.toml", tmp_path / "pair.toml"
+    bench, far = tmp_path / "bench.toml", tmp_path / "far.toml"
     bench.write_text(BENCH_RIG_TOML)
-    pair.write_text(PAIR_RIG_TOML)
-    return bench, pair
+    far.write_text(FAR_RIG_TOML)
+    return bench, far
 
 
 # ------------------------------------------------------------------ the folder as a whole
@@ -140,14 +123,14 @@ def test_a_mixed_or_damaged_folder_is_refused_naming_the_file(tmp_path):
 
 
 def test_plan_rerun_drops_old_figures_and_a_mixed_plan_is_refused_by_verify_and_report(rigs, tmp_path, capsys):
-    bench, pair = rigs
+    bench, far = rigs
     a, b = tmp_path / "proj" / "a", tmp_path / "proj" / "b"
     assert _main(capsys, ["plan", str(bench), "--out", str(a), "--freq", "500"])[0] == 0
     assert (a / "rig.png").is_file()
     assert _main(capsys, ["plan", str(bench), "--out", str(a), *PLAN_ARGS])[0] == 0
     assert not list(a.glob("*.png"))                           # no figures of the earlier run remain
     _sha256sum_ok(a)
-    assert _main(capsys, ["plan", str(pair), "--out", str(b), *PLAN_ARGS])[0] == 0
+    assert _main(capsys, ["plan", str(far), "--out", str(b), *PLAN_ARGS])[0] == 0
     shutil.copy(b / "weights.npz", a / "weights.npz")          # the old per-file publish could leave this mix
     from arrayplan.plan_files import read_weights
 
@@ -161,9 +144,9 @@ def test_plan_rerun_drops_old_figures_and_a_mixed_plan_is_refused_by_verify_and_
 
 
 def test_report_lists_a_truncated_weights_file_and_still_writes(rigs, tmp_path, capsys):
-    bench, pair = rigs
+    bench, far = rigs
     proj = tmp_path / "proj"
-    for name, rig in (("good", pair), ("cut", bench)):
+    for name, rig in (("good", far), ("cut", bench)):
         assert _main(capsys, ["plan", str(rig), "--out", str(proj / name), *PLAN_ARGS])[0] == 0
     npz = proj / "cut" / "weights.npz"
     npz.write_bytes(npz.read_bytes()[:100])
@@ -175,7 +158,7 @@ def test_report_lists_a_truncated_weights_file_and_still_writes(rigs, tmp_path, 
         assert rc == 0, err
         html = out.read_text()
         assert "could not be read" in html and str(npz) in html
-        assert "pair" in html                                   # the readable plan is still reported
+        assert "far-trio" in html                               # the readable plan is still reported
 
 
 def test_filter_set_with_a_stale_channel_file_is_refused_by_discovery(tmp_path):
@@ -257,12 +240,12 @@ def test_staging_of_dead_runs_is_removed_and_a_set_aside_folder_put_back(tmp_pat
 
 
 def test_a_run_killed_while_publishing_leaves_no_mix_and_the_next_run_tidies(rigs, tmp_path, capsys):
-    bench, pair = rigs
+    bench, far = rigs
     out = tmp_path / "plan"
     assert _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])[0] == 0
     old = json.loads((out / "weights.json").read_text())["rig"]["name"]
     env = dict(os.environ, **{PUBLISH_PAUSE_ENV: "60"})
-    child = subprocess.Popen(ARRAYPLAN_COMMAND + ["plan", str(pair), "--out", str(out), *PLAN_ARGS], env=env,
+    child = subprocess.Popen(ARRAYPLAN_COMMAND + ["plan", str(far), "--out", str(out), *PLAN_ARGS], env=env,
                              stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, stdin=subprocess.DEVNULL)
     try:
         deadline = time.monotonic() + 120
@@ -279,20 +262,20 @@ def test_a_run_killed_while_publishing_leaves_no_mix_and_the_next_run_tidies(rig
     with pytest.raises(InputError, match="missing"):
         read_weights(out)
     # The next run puts the old plan back first, then replaces it whole, and leaves nothing hidden.
-    assert _main(capsys, ["plan", str(pair), "--out", str(out), *PLAN_ARGS])[0] == 0
+    assert _main(capsys, ["plan", str(far), "--out", str(out), *PLAN_ARGS])[0] == 0
     assert _hidden(tmp_path) == []
     _sha256sum_ok(out)
-    assert json.loads((out / "weights.json").read_text())["rig"]["name"] == "pair" != old
+    assert json.loads((out / "weights.json").read_text())["rig"]["name"] == "far-trio" != old
 
 
 def test_two_runs_into_one_folder_end_with_one_complete_folder(rigs, tmp_path, capsys):
-    bench, pair = rigs
+    bench, far = rigs
     out = tmp_path / "plan"
     assert _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])[0] == 0
     env = dict(os.environ, **{PUBLISH_PAUSE_ENV: "2"})       # widen the window between set-aside and rename
     children = [subprocess.Popen(ARRAYPLAN_COMMAND + ["plan", str(r), "--out", str(out), *PLAN_ARGS], env=env,
                                  stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, stdin=subprocess.DEVNULL,
-                                 text=True) for r in (bench, pair)]
+                                 text=True) for r in (bench, far)]
     for c in children:
         _, err = c.communicate(timeout=120)
         assert c.returncode == 0, err
@@ -301,7 +284,8 @@ def test_two_runs_into_one_folder_end_with_one_complete_folder(rigs, tmp_path, c
     from arrayplan.plan_files import read_weights
 
     w = read_weights(out)
-    assert (len(w.speaker_names), w.sidecar["rig"]["name"]) in ((3, "bench-trio"), (2, "pair"))
+    far = np.allclose(np.asarray(w.sidecar["mic_positions_m"])[:, 1], 2.5)
+    assert w.sidecar["rig"]["name"] == ("far-trio" if far else "bench-trio")
 
 
 # ------------------------------------------------------------------ measure leaves nothing when it cannot start

@@ -8,7 +8,6 @@ sensitivities, voltages and distances; and hot outputs of unknown level need the
 from __future__ import annotations
 
 import argparse
-import importlib.util
 import io
 import math
 import subprocess
@@ -16,30 +15,18 @@ import subprocess
 import numpy as np
 import pytest
 
-import arrayplan.cli as cli
 from arrayplan.commands.measure import print_level_estimate
 from arrayplan.errors import InputError
 from arrayplan.safety import check_exposure, estimate_exposure
 
 from conftest import ARRAYPLAN_COMMAND, FAST_MEASURE_ARGS
+from test_signals_cli import _importable_commands, _run  # noqa: F401  (autouse fixture, runner)
 
 FS = 16000
 SWEEP = ["signal", "sweep", "--f1-hz", "50", "--f2-hz", "5000", "--duration-s", "0.5", "--pad-after-s", "0.2",
          "--rate-hz", str(FS)]
 #: An invented loud setup: about 112 dBA at 1 m for the -12 dBFS sweep.
 LOUD = ["--sensitivity-db-spl", "100", "--amp-vrms", "40", "--listener-distance-m", "1"]
-
-
-@pytest.fixture(autouse=True)
-def _importable_commands(monkeypatch):
-    mods = tuple(m for m in cli.COMMAND_MODULES if importlib.util.find_spec(m) is not None)
-    monkeypatch.setattr(cli, "COMMAND_MODULES", mods)
-
-
-def _run(capsys, *argv):
-    rc = cli.main(list(argv))
-    out, err = capsys.readouterr()
-    return rc, out, err
 
 
 def _one_line(rc, err, *words):
