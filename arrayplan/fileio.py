@@ -188,7 +188,9 @@ _NAME_KEEP = 120
 
 
 def _hidden_prefix(name: str, tag: str) -> str:
-    return f".{name[:_NAME_KEEP]}.{tag}."
+    if len(name) > _NAME_KEEP:   # shortened, with a hash so two long names never share a prefix
+        name = f"{name[:_NAME_KEEP]}~{hashlib.sha256(name.encode('utf-8', 'surrogateescape')).hexdigest()[:12]}"
+    return f".{name}.{tag}."
 
 
 def _hidden_name(name: str, tag: str) -> str:
@@ -232,6 +234,13 @@ def _remove(p: Path) -> None:
             p.unlink()
 
 
+def _mtime(p: Path) -> float:
+    try:
+        return p.lstat().st_mtime
+    except OSError:
+        return 0.0
+
+
 def clean_stale_staging(final: str | os.PathLike) -> list[Path]:
     """Tidy what killed runs left beside `final`; return the hidden paths removed.
 
@@ -242,7 +251,7 @@ def clean_stale_staging(final: str | os.PathLike) -> list[Path]:
     """
     final = Path(final)
     parent = final.parent if str(final.parent) else Path(".")
-    aside = sorted(_dead_hidden(parent, final.name, _ASIDE_TAG), key=lambda p: p.stat().st_mtime)
+    aside = sorted(_dead_hidden(parent, final.name, _ASIDE_TAG), key=_mtime)
     if aside and not os.path.lexists(final):
         with contextlib.suppress(OSError):
             os.rename(aside[-1], final)
