@@ -246,7 +246,7 @@ def _check_range(value: float, bounds: tuple[float, float], name: str, unit: str
     if not (lo <= value <= hi):
         raise InputError(f"{value!r} {unit} is outside the plausible range {lo:g}..{hi:g} {unit}; the level "
                          "estimate would be meaningless", field=name,
-                         fix="check the number and its unit (a value too low makes the estimate too quiet)")
+                         fix="check the number and its unit; a value too low makes the estimate too quiet")
     return value
 
 
