@@ -28,6 +28,7 @@ import errno
 import hashlib
 import json
 import os
+import re
 import shutil
 import tempfile
 from pathlib import Path
@@ -53,6 +54,7 @@ __all__ = [
     "clean_stale_staging",
     "new_staging_folder",
     "publish_folder",
+    "foreign_files",
     "provenance",
     "sha256_of_text",
     "json_default",
@@ -200,12 +202,10 @@ def _hidden_name(name: str, tag: str) -> str:
 def _pid_alive(pid: int) -> bool:
     try:
         os.kill(pid, 0)
-    except ProcessLookupError:
+    except (ProcessLookupError, OverflowError):
         return False
     except PermissionError:      # alive, another user's
-        return True
-    except OverflowError:
-        return False
+        pass
     return True
 
 
@@ -229,16 +229,14 @@ def _dead_hidden(parent: Path, name: str, tag: str) -> list[Path]:
 def _remove(p: Path) -> None:
     if p.is_dir() and not p.is_symlink():
         shutil.rmtree(p, ignore_errors=True)
-    else:
-        with contextlib.suppress(OSError):
-            p.unlink()
+    with contextlib.suppress(OSError):
+        p.unlink()
 
 
 def _mtime(p: Path) -> float:
-    try:
+    with contextlib.suppress(OSError):
         return p.lstat().st_mtime
-    except OSError:
-        return 0.0
+    return 0.0
 
 
 def clean_stale_staging(final: str | os.PathLike) -> list[Path]:
@@ -281,15 +279,7 @@ def _escape(name: str) -> tuple[str, str]:
 
 
 def _unescape(name: str) -> str:
-    out, i = [], 0
-    while i < len(name):
-        if name[i] == "\\" and i + 1 < len(name):
-            out.append({"n": "\n", "r": "\r"}.get(name[i + 1], name[i + 1]))
-            i += 2
-        else:
-            out.append(name[i])
-            i += 1
-    return "".join(out)
+    return re.sub(r"\\(.)", lambda m: {"n": "\n", "r": "\r"}.get(m.group(1), m.group(1)), name)
 
 
 def write_checksums(folder: str | os.PathLike) -> Path:
@@ -380,17 +370,55 @@ def new_staging_folder(final: str | os.PathLike) -> Path:
     return stage
 
 
-def publish_folder(stage: str | os.PathLike, final: str | os.PathLike) -> None:
+def publish_folder(stage: str | os.PathLike, final: str | os.PathLike, *, ours_only: bool = True) -> None:
     """Rename the complete folder `stage` to `final`, replacing a folder there as a whole.
 
     An existing `final` is set aside under a hidden name, `stage` renamed in
     and the old one removed; a concurrent writer that publishes in between
     is set aside in turn (the last complete folder wins, never a mix).
+
+    Parameters
+    ----------
+    stage, final : path
+    ours_only : bool
+        Refuse to replace a `final` that holds files its ``SHA256SUMS`` does
+        not list (see :func:`foreign_files`), so a mistyped output path never
+        deletes someone's folder.  False for folders that only arrayplan
+        writes into (a measurement's take folders).
     """
-    _publish_folder(Path(stage), Path(final))
+    _publish_folder(Path(stage), Path(final), ours_only=ours_only)
 
 
-def _publish_folder(stage: Path, final: Path) -> None:
+def foreign_files(folder: str | os.PathLike) -> list[Path]:
+    """Files in `folder` that arrayplan did not write there as one output.
+
+    Those its :data:`CHECKSUM_FILE` does not list (every file when it has
+    none); hidden files (names starting with ".") are not counted.
+
+    Returns
+    -------
+    list of Path
+        Sorted; empty for an empty folder or a complete arrayplan output.
+    """
+    folder = Path(folder)
+    try:
+        listed = set(_read_checksums(folder / CHECKSUM_FILE)) if (folder / CHECKSUM_FILE).is_file() else set()
+    except (OSError, UnicodeDecodeError, ValueError):
+        listed = set()
+    return [p for p in _folder_files(folder)
+            if not p.name.startswith(".") and p.relative_to(folder).as_posix() not in listed]
+
+
+def _refuse_foreign(final: Path) -> None:
+    foreign = foreign_files(final) if final.is_dir() and not final.is_symlink() else []
+    if foreign:
+        shown = ", ".join(p.relative_to(final).as_posix() for p in foreign[:3])
+        raise InputError(f"exists and holds files this output would delete but arrayplan did not write as one "
+                         f"output ({shown}{', ...' if len(foreign) > 3 else ''})", source=str(final),
+                         fix="choose a new or empty output folder (a rerun replaces the whole folder)")
+
+
+def _publish_folder(stage: Path, final: Path, *, ours_only: bool = True) -> None:
     """Rename `stage` to `final`, replacing a folder there as a whole (retrying against concurrent writers)."""
     parent = final.parent
     pause = os.environ.get(PUBLISH_PAUSE_ENV)
@@ -401,6 +429,8 @@ def _publish_folder(stage: Path, final: Path) -> None:
                 if not final.is_dir() or final.is_symlink():
                     raise InputError("exists and is not a folder", source=str(final),
                                      fix="choose another output folder")
+                if ours_only:
+                    _refuse_foreign(final)
                 aside = parent / _hidden_name(final.name, _ASIDE_TAG)
                 try:
                     os.rename(final, aside)
@@ -448,8 +478,10 @@ def staged_output_dir(final_dir: str | os.PathLike) -> Iterator[Path]:
     Raises
     ------
     InputError
-        When `final_dir` exists and is not a folder, or a folder cannot be
-        created (naming the path and the cause).
+        When `final_dir` exists and is not a folder, holds files that are
+        not one arrayplan output (:func:`foreign_files`: replacing it would
+        delete them), or a folder cannot be created (naming the path and the
+        cause).
     """
     final_dir = Path(final_dir)
     parent = final_dir.parent if str(final_dir.parent) else Path(".")
@@ -459,6 +491,7 @@ def staged_output_dir(final_dir: str | os.PathLike) -> Iterator[Path]:
         clean_stale_staging(final_dir)
         if os.path.lexists(final_dir) and (not final_dir.is_dir() or final_dir.is_symlink()):
             raise InputError("exists and is not a folder", source=str(final_dir), fix="choose another output folder")
+        _refuse_foreign(final_dir)       # before any work, and again when publishing
         stage = parent / _hidden_name(final_dir.name, _STAGING_TAG)
         try:
             stage.mkdir()

@@ -309,3 +309,21 @@ def test_a_fresh_measure_that_fails_before_its_first_take_leaves_nothing(bench_r
     with pytest.raises(InputError, match="is a file, not a folder"):
         measure(SimulatedLink.from_rig(rig, 16000.0, 320), RigWiring.from_rig(rig), tmp_path / "file", fast)
     assert (tmp_path / "file").read_text() == "mine"
+
+
+def test_a_folder_holding_someone_elses_files_is_never_replaced(rigs, tmp_path, capsys):
+    bench, _ = rigs
+    docs = tmp_path / "docs"
+    docs.mkdir()
+    (docs / "thesis.tex").write_text("years of work")
+    rc, err = _main(capsys, ["plan", str(bench), "--out", str(docs), *PLAN_ARGS])
+    assert rc == 2 and err.count("\n") == 1 and "thesis.tex" in err, err
+    assert sorted(p.name for p in docs.iterdir()) == ["thesis.tex"] and _hidden(tmp_path) == []
+    # An arrayplan output with a file added later is refused too; the plain output is replaced.
+    out = tmp_path / "plan"
+    assert _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])[0] == 0
+    (out / "notes.txt").write_text("mine")
+    rc, err = _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])
+    assert rc == 2 and "notes.txt" in err
+    (out / "notes.txt").unlink()
+    assert _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])[0] == 0

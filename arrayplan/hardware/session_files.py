@@ -177,7 +177,7 @@ def _save_take(take: TakeResult, result: DuplexResult, ir: np.ndarray, units: st
             "provenance": provenance(rig_sha256=wiring.rig_sha256),
         })
         write_checksums(stage)
-        publish_folder(stage, take.folder)  # a marked take measured again is swapped out whole
+        publish_folder(stage, take.folder, ours_only=False)  # a marked take measured again is swapped out whole
     except (OSError, sf.SoundFileError) as exc:
         shutil.rmtree(stage, ignore_errors=True)
         reason = getattr(exc, "strerror", None) or " ".join(str(exc).split())
