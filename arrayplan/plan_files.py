@@ -37,7 +37,7 @@ import numpy as np
 
 from .channels import ChannelSet
 from .errors import InputError
-from .fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from .fileio import check_folder, provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from .frequency import FrequencyAxis
 from .heuristics import paraxial_estimate
 from .planning import Plan
@@ -187,7 +187,16 @@ class PlanWeights:
 
 
 def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
-    """Read ``weights.npz`` and ``weights.json`` from a plan folder, with checks."""
+    """Read ``weights.npz`` and ``weights.json`` from a plan folder, with checks.
+
+    The folder must match its checksums (:func:`arrayplan.fileio.check_folder`),
+    so weights of one run are never read beside a sidecar of another.
+
+    Raises
+    ------
+    InputError
+        A missing, damaged or mixed file, naming it.
+    """
     folder = Path(plan_dir)
     npz, side = folder / "weights.npz", folder / "weights.json"
     for p in (npz, side):
@@ -195,11 +204,16 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
             raise InputError("missing", source=str(p), fix="point at a folder written by 'arrayplan plan'")
     try:
         sidecar = json.loads(side.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
+        raise InputError(f"cannot read the plan sidecar ({' '.join(str(exc).split())})", source=str(side)) from None
+    try:
         with np.load(npz, allow_pickle=False) as z:
             data = {k: z[k] for k in ("frequency_hz", "singular_value", "drive", "combine", "speaker_names",
                                       "mic_names")}
-    except (ValueError, KeyError, OSError) as exc:
-        raise InputError(f"cannot read plan weights ({exc})", source=str(folder)) from None
+    except Exception as exc:  # numpy raises ValueError, KeyError, OSError, EOFError, zipfile.BadZipFile
+        raise InputError(f"cannot read plan weights ({exc.__class__.__name__}: {' '.join(str(exc).split())})",
+                         source=str(npz)) from None
+    check_folder(folder, needed=("weights.*", "*.csv"))
     return PlanWeights(FrequencyAxis(data["frequency_hz"], source=str(npz)), data["singular_value"],
                        data["drive"], data["combine"], tuple(str(x) for x in data["speaker_names"]),
                        tuple(str(x) for x in data["mic_names"]), sidecar)

@@ -250,6 +250,7 @@ def test_a_result_that_cannot_be_read_is_listed_not_fatal(project, tmp_path):
     del doc["speaker_positions_m"]                        # as written by an older version
     doc["rig"]["source"] = "gone.toml"
     side.write_text(json.dumps(doc))
+    (copy / "plan" / "SHA256SUMS").unlink()               # older versions wrote no checksums
     html = build_report(copy)
     assert "Results that could not be read" in html and "does not store element positions" in html
     assert "Verification: verify" in html

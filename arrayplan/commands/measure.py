@@ -40,29 +40,75 @@ def add_level_options(p: argparse.ArgumentParser) -> None:
                    help="distance of each person in the room from the speaker playing (default 1 m)")
     g.add_argument("--allow-loud", action="store_true",
                    help="play even when the estimate exceeds the exposure caps (hearing protection on)")
+    g.add_argument("--allow-unknown-level", action="store_true",
+                   help="play hot outputs (a known voltage that could exceed the caps) although the speaker "
+                        "sensitivity, and so the level, is unknown (hearing protection on)")
     g.add_argument("--yes", action="store_true",
                    help="confirm without a prompt (needed when there is no terminal), after reading the caution")
 
 
+#: Option names for the messages of the level estimate.
+_LEVEL_OPTIONS = {"sensitivity_db_spl": "--speaker-sensitivity-db-spl", "sensitivity_vrms": "--sensitivity-vrms",
+                  "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
+                  "allow_loud": "--allow-loud"}
+
+
 def print_level_estimate(args: argparse.Namespace, signal: np.ndarray, sample_rate_hz: float,
                          amp_vrms_default: float | None, stream: Any = None) -> list[str]:
-    """Print the estimated level of `signal` (one speaker at a time) and return its warnings."""
-    from ..safety import check_exposure, estimate_exposure, format_exposure
+    """Print the estimated level of `signal` (one speaker at a time) and return its warnings.
+
+    With a known output voltage but no speaker sensitivity, the level is
+    bounded with a sensitive speaker
+    (:func:`arrayplan.safety.worst_case_unknown_speaker`); when that bound
+    exceeds a refusal cap, the outputs are hot and nothing plays without
+    ``--allow-unknown-level`` (a consent of its own, apart from ``--yes``).
+
+    Raises
+    ------
+    InputError
+        Above the caps without ``--allow-loud``; hot outputs at an unknown
+        level without ``--allow-unknown-level``; implausible inputs.
+    """
+    from ..safety import (ASSUMED_SENSITIVE_SPEAKER_DB_SPL, DEFAULT_MAX_DBA, DEFAULT_MAX_PEAK_DB_SPL,
+                          check_exposure, estimate_exposure, format_exposure, worst_case_unknown_speaker)
 
     stream = sys.stderr if stream is None else stream
     amp = args.amp_vrms if args.amp_vrms is not None else amp_vrms_default
+    x = np.asarray(signal, float).reshape(-1, 1)
+    if args.speaker_sensitivity_db_spl is None and amp is not None:
+        worst = worst_case_unknown_speaker(x, sample_rate_hz, amp_vrms_full_scale=amp,
+                                           distances_m=args.listener_distance_m, option_names=_LEVEL_OPTIONS)
+        i = int(np.argmax(np.where(np.isnan(worst.dba), np.inf, worst.dba)))
+        top, peak = float(worst.dba[i]), float(np.max(worst.peak_spl_db))
+        print(f"Estimated level: UNKNOWN (no --speaker-sensitivity-db-spl). The outputs give {amp:.3g} V RMS at "
+              f"full scale; through a sensitive speaker ({ASSUMED_SENSITIVE_SPEAKER_DB_SPL:g} dB SPL at 1 m for "
+              f"2.83 V) this sweep would reach {top:.1f} dBA, peak {peak:.1f} dB SPL, at "
+              f"{worst.distances_m[i]:g} m.", file=stream)
+        if top <= DEFAULT_MAX_DBA and peak <= DEFAULT_MAX_PEAK_DB_SPL:
+            return []
+        if not getattr(args, "allow_unknown_level", False):
+            raise InputError(f"HOT OUTPUTS AT AN UNKNOWN LEVEL: {amp:.3g} V RMS at full scale could give "
+                             f"{top:.1f} dBA (cap {DEFAULT_MAX_DBA:g}) or peak {peak:.1f} dB SPL (cap "
+                             f"{DEFAULT_MAX_PEAK_DB_SPL:g}) and the speaker sensitivity is not known",
+                             field="--speaker-sensitivity-db-spl",
+                             fix="give --speaker-sensitivity-db-spl for an estimate, lower the amplifier gain, or "
+                                 "pass --allow-unknown-level (apart from --yes) with hearing protection in place")
+        w = (f"playing hot outputs ({amp:.3g} V RMS at full scale) at an unknown level, allowed by "
+             "--allow-unknown-level: start with the amplifier gain low and raise it slowly")
+        print(f"warning: {w}", file=stream)
+        return [w]
     if args.speaker_sensitivity_db_spl is None or amp is None:
         missing = [name for name, v in (("--speaker-sensitivity-db-spl", args.speaker_sensitivity_db_spl),
                                         ("--amp-vrms", amp)) if v is None]
         print(f"Estimated level: UNKNOWN (give {' and '.join(missing)} for an estimate). Treat the level as "
               "unknown: start with the amplifier gain low and raise it slowly.", file=stream)
         return []
-    est = estimate_exposure(np.asarray(signal, float).reshape(-1, 1), sample_rate_hz,
-                            sensitivity_db_spl=args.speaker_sensitivity_db_spl, amp_vrms_full_scale=amp,
-                            distances_m=args.listener_distance_m, sensitivity_vrms=args.sensitivity_vrms,
-                            combine="one_at_a_time")
+    est = estimate_exposure(x, sample_rate_hz, sensitivity_db_spl=args.speaker_sensitivity_db_spl,
+                            amp_vrms_full_scale=amp, distances_m=args.listener_distance_m,
+                            sensitivity_vrms=args.sensitivity_vrms, combine="one_at_a_time",
+                            option_names=_LEVEL_OPTIONS)
     print(format_exposure(est), file=stream)
-    warnings = check_exposure(est, allow_loud=args.allow_loud)
+    warnings = check_exposure(est, allow_loud=args.allow_loud, option_names=_LEVEL_OPTIONS)
     for w in warnings:
         print(f"warning: {w}", file=stream)
     return warnings
@@ -224,9 +270,9 @@ def run(args: argparse.Namespace) -> int:
         settings.pre_roll_samples(sweep)  # refuse a bad --pre-ms before anything plays
         print_caution()
         amp = None
-        if calibration is not None:
-            outs = [calibration.output(c + 1) for c in wiring.speaker_outputs]
-            if all(o is not None for o in outs):
+        if calibration is not None:  # the hottest calibrated output bounds what is known of the level
+            outs = [o for o in (calibration.output(c + 1) for c in wiring.speaker_outputs) if o is not None]
+            if outs:
                 amp = max(o.volts_per_full_scale for o in outs) / math.sqrt(2.0)
         print(f"Sweep: {settings.f1_hz:g} Hz to {sweep.settings.f2_hz:g} Hz, {settings.sweep_s:g} s, true peak "
               f"{true_peak_dbfs(sweep.sweep):+.1f} dBFS (sample peak {peak_dbfs(sweep.sweep):+.1f} dBFS), "

@@ -338,6 +338,12 @@ def _finite(v: float) -> float | None:
     return float(v) if math.isfinite(v) else None
 
 
+#: Option names for the messages of the exposure estimate and check.
+_EXPOSURE_OPTIONS = {"sensitivity_db_spl": "--sensitivity-db-spl", "sensitivity_vrms": "--sensitivity-vrms",
+                     "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
+                     "max_dba": "--max-dba", "allow_loud": "--allow-loud"}
+
+
 def _exposure(args: argparse.Namespace, x: np.ndarray, combine: str, src: str):
     given = [args.sensitivity_db_spl is not None, args.amp_vrms is not None, args.listener_distance_m is not None]
     if not any(given):
@@ -348,7 +354,8 @@ def _exposure(args: argparse.Namespace, x: np.ndarray, combine: str, src: str):
                          fix="give all three, or none to skip the estimate")
     return estimate_exposure(x, args.rate_hz, sensitivity_db_spl=args.sensitivity_db_spl,
                              amp_vrms_full_scale=args.amp_vrms, distances_m=args.listener_distance_m,
-                             sensitivity_vrms=args.sensitivity_vrms, combine=combine)
+                             sensitivity_vrms=args.sensitivity_vrms, combine=combine,
+                             option_names=_EXPOSURE_OPTIONS)
 
 
 _DBFS_CONVENTION = ("20 log10 of peak or RMS, full scale = 1 (full-scale sine: -3.01 dBFS RMS); true peak: "
@@ -397,7 +404,8 @@ def _run(args: argparse.Namespace) -> int:
     warnings: list[str] = []
     estimate = _exposure(args, x, built["combine"], src) if playable else None
     if estimate is not None:
-        warnings += check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud, source=src)
+        warnings += check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud, source=src,
+                                   option_names=_EXPOSURE_OPTIONS)
     elif playable:
         warnings.append("no exposure estimate: give --sensitivity-db-spl, --amp-vrms and --listener-distance-m "
                         "to check the level at the listeners")

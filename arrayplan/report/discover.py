@@ -25,6 +25,7 @@ from __future__ import annotations
 import csv
 import json
 import os
+import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -32,6 +33,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
+from ..fileio import check_folder
 from ..filters.check import FilterCheck
 from ..irset import MANIFEST_NAME, IRSet, read_irset
 from ..plan_files import read_plan
@@ -196,6 +198,7 @@ def _load_plan(folder: Path, project: Path, rig: Rig | None) -> FoundPlan:
 
 
 def _load_filters(folder: Path) -> FoundFilters:
+    check_folder(folder, needed=("filters.json", "channel-*.wav", "*.csv"))
     doc = _read_json(folder / "filters.json")
     check = None
     c = doc.get("check")
@@ -231,6 +234,7 @@ def _load_irset(folder: Path) -> FoundIRSet:
 
 
 def _load_verification(folder: Path) -> FoundVerification:
+    check_folder(folder, needed=("verify*",))
     doc = _read_json(folder / "verify.json")
     arrays = None
     if (folder / "verify.npz").is_file():
@@ -316,6 +320,9 @@ def find_results(project_dir: str | os.PathLike, rig: Rig | None = None) -> Proj
             try:
                 bucket.append(load(where))
             except InputError as exc:
-                text = exc.one_line() if hasattr(exc, "one_line") else str(exc)
-                out.problems.append(f"{kind} in {where}: {text}")
+                out.problems.append(f"{kind} in {where}: {exc.one_line()}")
+            except (OSError, ValueError, KeyError, TypeError, EOFError, zipfile.BadZipFile) as exc:
+                # Any other fault of one result's files: listed, and the rest still comes out.
+                out.problems.append(f"{kind} in {where}: unreadable ({exc.__class__.__name__}: "
+                                    f"{' '.join(str(exc).split())})")
     return out

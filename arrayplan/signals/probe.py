@@ -15,6 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
+from ..fileio import check_folder
 
 __all__ = ["read_filter_wav", "filter_names_from_sidecar", "channel_probe"]
 
@@ -79,6 +80,7 @@ def read_filter_wav(path: str | Path, *, sample_rate_hz: float | None = None) ->
     path = Path(path)
     if not path.exists():
         raise InputError("filter file not found", source=str(path), field="--filters")
+    check_folder(path.parent, needed=(path.name,))  # a filter set's file must be the one written with it
     try:
         data, rate = sf.read(path, dtype="float64", always_2d=True)
     except Exception as exc:  # soundfile raises several types

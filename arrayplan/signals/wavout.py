@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import contextlib
 import os
 from pathlib import Path
 from typing import Any, Mapping
@@ -10,7 +9,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from ..errors import InputError
-from ..fileio import atomic_path, write_json_atomic
+from ..fileio import atomic_paths, write_json_atomic
 from .levels import true_peak_dbfs
 
 __all__ = ["SAMPLE_FORMATS", "sidecar_path", "inverse_path", "write_signal_files", "read_recording"]
@@ -79,9 +78,8 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
     targets.append((sidecar_path(wav_path), ("json", dict(sidecar), None)))
     for p, obj in (extra_sidecars or {}).items():
         targets.append((Path(p), ("json", dict(obj), None)))
-    with contextlib.ExitStack() as stack:
-        for path, (kind, data, subtype) in targets:
-            tmp = stack.enter_context(atomic_path(path))
+    with atomic_paths([p for p, _ in targets]) as temps:
+        for tmp, (path, (kind, data, subtype)) in zip(temps, targets):
             if kind == "wav":
                 sf.write(tmp, data.astype(np.float32) if subtype == "FLOAT" else data, int(sample_rate_hz),
                          subtype=subtype, format="WAV")
