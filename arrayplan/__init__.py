@@ -20,18 +20,32 @@ the API, 1-based at the command line and hardware edge.
 """
 
 from ._version import __version__
-from .channels import ChannelSet, decompose
-from .coupling import CouplingStack
 from .errors import ArrayplanError, InputError
-from .field import channel_field
-from .frequency import FrequencyAxis
-from .heuristics import paraxial_estimate
-from .irset import IRSet, read_irset, write_irset
-from .kernels import FreeFieldKernel
-from .plan_files import read_weights, write_plan
-from .planning import Plan, plan_rig
-from .rig import Rig, load_rig
-from .simulate import free_field_irset
+
+#: Public names imported on first use (PEP 562), so that ``import arrayplan`` and the command line's
+#: ``--help`` and ``--version`` stay light: numpy and scipy load only when a name below is used.
+_LAZY = {
+    "ChannelSet": ".channels", "decompose": ".channels", "CouplingStack": ".coupling",
+    "channel_field": ".field", "FrequencyAxis": ".frequency", "paraxial_estimate": ".heuristics",
+    "IRSet": ".irset", "read_irset": ".irset", "write_irset": ".irset", "FreeFieldKernel": ".kernels",
+    "read_weights": ".plan_files", "write_plan": ".plan_files", "Plan": ".planning", "plan_rig": ".planning",
+    "Rig": ".rig", "load_rig": ".rig", "free_field_irset": ".simulate",
+}
+
+
+def __getattr__(name: str):
+    if name in _LAZY:
+        import importlib
+
+        value = getattr(importlib.import_module(_LAZY[name], __name__), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'arrayplan' has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_LAZY))
+
 
 __all__ = ["__version__", "ArrayplanError", "InputError", "ChannelSet", "decompose", "CouplingStack",
            "channel_field", "FrequencyAxis", "paraxial_estimate", "IRSet", "read_irset", "write_irset",

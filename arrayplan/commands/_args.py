@@ -1,10 +1,128 @@
-"""Argument types shared by several commands."""
+"""Argument types shared by every command: each kind of value is checked in one place, when parsed.
+
+Every type raises :class:`argparse.ArgumentTypeError` with the bad value
+quoted; argparse puts the flag in front (``argument --at: must be a finite
+number, got 'nan'``) and the command-line parser prints that one line and
+exits with status 2.
+"""
 
 from __future__ import annotations
 
 import argparse
+import math
+from typing import Callable
 
-__all__ = ["csv_names", "octaves", "add_measured_kernel_options", "measured_kernel_from_args"]
+from ..limits import MAX_CHANNEL_NUMBER
+
+__all__ = ["csv_names", "octaves", "finite_float", "positive_float", "nonnegative_float", "float_in",
+           "dbfs_level", "count", "nonnegative_count", "channel_number", "MAX_CHANNEL_NUMBER", "MAX_COUNT",
+           "add_measured_kernel_options", "measured_kernel_from_args", "add_memory_limit"]
+
+#: Highest count any option accepts before a command's own size estimate (repeats, bursts, channels...).
+MAX_COUNT = 1_000_000
+
+
+def _number(text: str) -> float:
+    try:
+        return float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
+
+
+def finite_float(text: str) -> float:
+    """A finite number (argparse type): NaN and infinities are refused."""
+    v = _number(text)
+    if not math.isfinite(v):
+        raise argparse.ArgumentTypeError(f"must be a finite number, got {text!r}")
+    return v
+
+
+def positive_float(text: str) -> float:
+    """A finite number above zero (argparse type)."""
+    v = finite_float(text)
+    if not v > 0:
+        raise argparse.ArgumentTypeError(f"must be above 0, got {text!r}")
+    return v
+
+
+def nonnegative_float(text: str) -> float:
+    """A finite number, zero or above (argparse type)."""
+    v = finite_float(text)
+    if v < 0:
+        raise argparse.ArgumentTypeError(f"must be zero or a positive number, got {text!r}")
+    return v
+
+
+def float_in(low: float, high: float, unit: str = "") -> Callable[[str], float]:
+    """An argparse type: a finite number in ``[low, high]`` (`unit` is only for the message)."""
+    suffix = f" {unit}" if unit else ""
+
+    def parse(text: str) -> float:
+        v = finite_float(text)
+        if not low <= v <= high:
+            raise argparse.ArgumentTypeError(f"must be between {low:g} and {high:g}{suffix}, got {text!r}")
+        return v
+
+    parse.__name__ = f"number in {low:g}..{high:g}"
+    return parse
+
+
+#: Quietest level accepted, dBFS (far below anything a 32-bit float file holds usefully).
+MIN_DBFS = -300.0
+
+
+def dbfs_level(text: str) -> float:
+    """A level re digital full scale, -300 to 0 dBFS: above 0 dBFS would clip (argparse type)."""
+    v = finite_float(text)
+    if v > 0:
+        raise argparse.ArgumentTypeError(f"levels above 0 dBFS would clip, got {text!r}")
+    if v < MIN_DBFS:
+        raise argparse.ArgumentTypeError(f"must be at least {MIN_DBFS:g} dBFS, got {text!r}")
+    return v
+
+
+def count(maximum: int = MAX_COUNT) -> Callable[[str], int]:
+    """An argparse type: a whole number from 1 to `maximum`."""
+
+    def parse(text: str) -> int:
+        try:
+            v = int(text.strip())
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+        if not 1 <= v <= maximum:
+            raise argparse.ArgumentTypeError(f"must be a whole number from 1 to {maximum}, got {text!r}")
+        return v
+
+    parse.__name__ = "count"
+    return parse
+
+
+def nonnegative_count(maximum: int = MAX_COUNT) -> Callable[[str], int]:
+    """An argparse type: a whole number from 0 to `maximum` (samples, dropouts, seeds...)."""
+
+    def parse(text: str) -> int:
+        try:
+            v = int(text.strip())
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+        if not 0 <= v <= maximum:
+            raise argparse.ArgumentTypeError(f"must be a whole number from 0 to {maximum}, got {text!r}")
+        return v
+
+    parse.__name__ = "whole number"
+    return parse
+
+
+def channel_number(text: str) -> int:
+    """A 1-based hardware or file channel number, 1 to :data:`MAX_CHANNEL_NUMBER` (argparse type)."""
+    try:
+        v = int(text.strip())
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a 1-based channel number, got {text!r}") from None
+    if not 1 <= v <= MAX_CHANNEL_NUMBER:
+        raise argparse.ArgumentTypeError(f"channels are numbered from 1 to at most {MAX_CHANNEL_NUMBER}, "
+                                         f"got {text!r}")
+    return v
 
 
 def csv_names(text: str) -> list[str]:
@@ -18,7 +136,7 @@ def csv_names(text: str) -> list[str]:
 
 
 def octaves(text: str) -> float:
-    """A band width in octaves, as a number (0.333) or a fraction (1/3) (argparse type)."""
+    """A band width in octaves, as a number (0.333) or a fraction (1/3), above 0 and at most 2 (argparse type)."""
     try:
         if "/" in text:
             num, den = text.split("/", 1)
@@ -27,15 +145,25 @@ def octaves(text: str) -> float:
             value = float(text)
     except (ValueError, ZeroDivisionError):
         raise argparse.ArgumentTypeError(f"expected a width in octaves like 1/3 or 0.333, got {text!r}") from None
+    if not (math.isfinite(value) and 0 < value <= 2):
+        raise argparse.ArgumentTypeError(f"must be above 0 and at most 2 octaves (e.g. 1/3), got {text!r}")
     return value
+
+
+def add_memory_limit(p: argparse.ArgumentParser) -> None:
+    """The ``--max-memory-gib`` option: lifts the size estimate's limit (:mod:`arrayplan.limits`)."""
+    from ..limits import DEFAULT_MAX_MEMORY_GIB
+
+    p.add_argument("--max-memory-gib", type=positive_float, default=None, metavar="GIB",
+                   help=f"refuse work whose estimated memory exceeds this (GiB, default {DEFAULT_MAX_MEMORY_GIB:g})")
 
 
 def add_measured_kernel_options(p: argparse.ArgumentParser, prefix: str = "") -> None:
     """The options that shape coupling matrices taken from impulse responses (plan --irset, verify)."""
-    p.add_argument("--window-ms", type=float, metavar="MS",
+    p.add_argument("--window-ms", type=positive_float, metavar="MS",
                    help=f"{prefix}keep this much of each response after zero lag (ms); the last quarter is a "
                         "half-Hann fade-out, which drops the late room response")
-    p.add_argument("--latency-samples", type=int, default=0, metavar="N",
+    p.add_argument("--latency-samples", type=nonnegative_count(), default=0, metavar="N",
                    help=f"{prefix}common latency to remove first (samples, default 0)")
     p.add_argument("--smooth-octaves", type=octaves, metavar="B",
                    help=f"{prefix}complex-smooth each response over B octaves (e.g. 1/3) about its own direct "
@@ -43,14 +171,8 @@ def add_measured_kernel_options(p: argparse.ArgumentParser, prefix: str = "") ->
 
 
 def measured_kernel_from_args(irs, args: argparse.Namespace):
-    """A :class:`~arrayplan.kernels.measured.MeasuredKernel` from the options above, checked."""
-    from ..errors import InputError
+    """A :class:`~arrayplan.kernels.measured.MeasuredKernel` from the options above (checked when parsed)."""
     from ..kernels.measured import MeasuredKernel
 
-    if args.window_ms is not None and not args.window_ms > 0:
-        raise InputError(f"must be positive, got {args.window_ms}", source="--window-ms")
-    if args.smooth_octaves is not None and not (0 < args.smooth_octaves <= 2):
-        raise InputError(f"must be above 0 and at most 2 octaves, got {args.smooth_octaves:g}",
-                         source="--smooth-octaves", fix="use for example 1/3 or 1/6")
     return MeasuredKernel(irs, window_s=None if args.window_ms is None else args.window_ms / 1000.0,
                           latency_samples=args.latency_samples, smoothing_octaves=args.smooth_octaves)

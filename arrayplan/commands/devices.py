@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import argparse
 
+from ._args import nonnegative_count, positive_float, MAX_CHANNEL_NUMBER
+
 __all__ = ["register", "run"]
 
 
@@ -14,9 +16,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                     "rates.  With --device, show the one device an index or name substring selects (an "
                     "ambiguous name lists the candidates).")
     p.add_argument("--device", metavar="INDEX|NAME", help="index or part of the name of one device")
-    p.add_argument("--inputs", type=int, default=0, metavar="N", help="check that it has at least N inputs")
-    p.add_argument("--outputs", type=int, default=0, metavar="N", help="check that it has at least N outputs")
-    p.add_argument("--rate", type=float, metavar="HZ", help="check that it runs at this sample rate")
+    p.add_argument("--inputs", type=nonnegative_count(MAX_CHANNEL_NUMBER), default=0, metavar="N", help="check that it has at least N inputs")
+    p.add_argument("--outputs", type=nonnegative_count(MAX_CHANNEL_NUMBER), default=0, metavar="N", help="check that it has at least N outputs")
+    p.add_argument("--rate", type=positive_float, metavar="HZ", help="check that it runs at this sample rate")
     p.set_defaults(run=run)
 
 

@@ -11,6 +11,7 @@ from ..errors import InputError
 from ..filters import check_filters, design_filters, validate_request, write_filters
 from ..progress import ProgressBar
 from ..rig import load_rig
+from ._args import add_memory_limit, count, finite_float, positive_float
 
 CAUTION = ("caution: these filters feed loudspeakers; start any playback at a low level, protect hearing "
            "and drivers, and follow local codes and licensed practice")
@@ -22,16 +23,17 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "microphone) for each planned channel, write them as WAV files with a "
                                    "JSON sidecar, and check channel isolation in a time-domain simulation.")
     p.add_argument("rig", help="rig file (TOML)")
-    p.add_argument("--rate", type=float, required=True, metavar="HZ", help="DSP sample rate in Hz")
-    p.add_argument("--taps", type=int, default=2048, help="filter length in samples (default 2048)")
-    p.add_argument("--band", type=float, nargs=2, required=True, metavar=("LOW_HZ", "HIGH_HZ"),
+    p.add_argument("--rate", type=positive_float, required=True, metavar="HZ", help="DSP sample rate in Hz")
+    p.add_argument("--taps", type=count(), default=2048, help="filter length in samples (default 2048)")
+    p.add_argument("--band", type=positive_float, nargs=2, required=True, metavar=("LOW_HZ", "HIGH_HZ"),
                    help="band where the filters realise the planned weights")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
-    p.add_argument("--min-level-db", type=float, default=-30.0,
+    p.add_argument("--min-level-db", type=finite_float, default=-30.0,
                    help="skip channels weaker than this re the strongest at band centre (default -30)")
-    p.add_argument("--crosstalk-limit-db", type=float, default=-40.0,
+    p.add_argument("--crosstalk-limit-db", type=finite_float, default=-40.0,
                    help="pass/fail limit of the worst in-band crosstalk (default -40)")
     p.add_argument("--no-check", action="store_true", help="skip the time-domain check")
+    add_memory_limit(p)
     p.set_defaults(run=run)
 
 

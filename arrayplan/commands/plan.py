@@ -12,7 +12,8 @@ import numpy as np
 from ..errors import InputError
 from ..irset import IRSet, read_irset
 from ..kernels.measured import MeasuredKernel
-from ._args import add_measured_kernel_options, measured_kernel_from_args
+from ._args import (add_measured_kernel_options, add_memory_limit, count, float_in, measured_kernel_from_args,
+                    positive_float)
 from ..frequency import FrequencyAxis
 from ..medium import speed_of_sound_air
 from ..planning import plan_rig
@@ -29,20 +30,21 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--speakers", help="CSV of speaker positions (header x,y,z[,name]) in metres")
     p.add_argument("--mics", help="CSV of microphone positions (header x,y,z[,name]) in metres")
-    p.add_argument("--freq", type=float, action="append", metavar="HZ",
+    p.add_argument("--freq", type=positive_float, action="append", metavar="HZ",
                    help="plan at this frequency (repeatable); overrides the rig file's [frequencies]")
-    p.add_argument("--speed-of-sound", type=float, metavar="M_PER_S",
+    p.add_argument("--speed-of-sound", type=float_in(1.0, 10000.0, "m/s"), metavar="M_PER_S",
                    help="speed of sound (quick form; default from 20 °C air)")
-    p.add_argument("--threshold-db", type=float, help="strong = within this many dB of the strongest (default 3)")
-    p.add_argument("--snr-db", type=float, help="SNR of the strongest channel, sets the noise floor (default 40)")
+    p.add_argument("--threshold-db", type=positive_float, help="strong = within this many dB of the strongest (default 3)")
+    p.add_argument("--snr-db", type=positive_float, help="SNR of the strongest channel, sets the noise floor (default 40)")
     p.add_argument("--track", action="store_true", default=None,
                    help="order and phase-align channels from bin to bin")
-    p.add_argument("--chunk-size", type=int, help="frequencies decomposed at once (bounds memory)")
+    p.add_argument("--chunk-size", type=count(1_000_000), help="frequencies decomposed at once (bounds memory)")
     p.add_argument("--irset", metavar="DIR|FILE.sofa",
                    help="plan from this measured impulse-response set (IR-set folder or AES69/SOFA file) "
                         "instead of the free field")
     add_measured_kernel_options(p, prefix="with --irset: ")
     p.add_argument("--no-figures", action="store_true", help="write tables and weights only")
+    add_memory_limit(p)
     p.set_defaults(run=run)
 
 
