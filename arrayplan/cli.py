@@ -10,11 +10,11 @@ from __future__ import annotations
 import argparse
 import importlib
 import os
-import re
 import sys
 from typing import Sequence
 
 from ._version import __version__
+from .commands._args import error_with_flags, parameter_flags
 from .errors import ArrayplanError, InputError
 
 __all__ = ["main", "build_parser"]
@@ -72,44 +72,6 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-#: A snake_case parameter name in a library message (not part of a dotted field or a path).
-_PARAMETER = re.compile(r"(?<![\w./\[-])([a-z][a-z0-9]*(?:_[a-z0-9]+)+)(?![\w\[(]|\.\w)")
-
-
-def command_parser(parser: argparse.ArgumentParser, args: argparse.Namespace) -> argparse.ArgumentParser:
-    """The (sub-)parser that parsed `args`: ``signal sweep`` gives the parser of ``sweep``."""
-    current = parser
-    while True:
-        subs = [a for a in current._actions if isinstance(a, argparse._SubParsersAction)]
-        if not subs or getattr(args, subs[0].dest, None) is None:
-            return current
-        current = subs[0].choices[getattr(args, subs[0].dest)]
-
-
-def parameter_flags(parser: argparse.ArgumentParser, args: argparse.Namespace) -> dict[str, str]:
-    """Library parameter name -> this command's flag: every option by its dest, then the command's own map.
-
-    A command whose flags differ from the library's parameter names sets
-    ``parameter_flags={"f2_hz": "--f2", ...}`` as a parser default.
-    """
-    flags = {a.dest: max(a.option_strings, key=len) for a in command_parser(parser, args)._actions
-             if a.option_strings and a.dest not in ("help", "version")}
-    flags.update(getattr(args, "parameter_flags", None) or {})
-    return flags
-
-
-def _flag_text(error: InputError, flags: dict[str, str]) -> str:
-    """The one-line message of `error` with library parameter names given as the command's flags."""
-    def part(value: str | None) -> str | None:
-        if value is None:
-            return None
-        pieces = [flags.get(v.strip(), v) for v in re.split(r"([/,])", value)]
-        return _PARAMETER.sub(lambda m: flags.get(m.group(1), m.group(1)), "".join(pieces))
-
-    return InputError(part(error.problem) or "", source=part(error.source), field=part(error.field),
-                      fix=part(error.fix)).one_line()
-
-
 def _os_error_text(exc: OSError) -> str:
     """One line for an operating-system fault: the path(s) and the cause."""
     cause = exc.strerror or exc.__class__.__name__
@@ -136,6 +98,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         except SystemExit as exc:            # --help, --version, or a usage error already printed as one line
             return exc.code if isinstance(exc.code, int) else 2
         command = args.command
+        args.flag_names = parameter_flags(parser, args)
         from .limits import memory_limit
 
         with memory_limit(getattr(args, "max_memory_gib", None)):
@@ -144,7 +107,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return status
     except InputError as exc:
         flags = parameter_flags(parser, args) if parser is not None and args is not None else {}
-        print(f"arrayplan {command}: error: {_flag_text(exc, flags)}", file=sys.stderr)
+        print(f"arrayplan {command}: error: {error_with_flags(exc, flags)}", file=sys.stderr)
         return 2
     except ArrayplanError as exc:
         text = exc.one_line() if hasattr(exc, "one_line") else " ".join(str(exc).split())

@@ -55,7 +55,7 @@ def default_plane(rig: Rig, plane: str = "xz", offset: float | None = None, reso
                   margin: float = 0.25) -> PlaneGrid:
     """A grid over the rig's bounding box in `plane`, grown by `margin` of its size on each side."""
     if plane not in _AXES:
-        raise InputError(f"plane must be one of {', '.join(_AXES)}, got {plane!r}", field="--plane")
+        raise InputError(f"plane must be one of {', '.join(_AXES)}, got {plane!r}", field="plane")
     i, j, k = _AXES[plane]
     pts = np.vstack([rig.speakers.positions, rig.mics.positions])
     lo, hi = pts.min(axis=0), pts.max(axis=0)

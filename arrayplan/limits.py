@@ -92,4 +92,4 @@ def check_memory(n_bytes: float, what: str, *, source: str | None = None, field:
         size = format_bytes(n_bytes) if math.isfinite(n_bytes) else "an unbounded amount"
         raise InputError(f"{what} needs about {size} of memory, above the limit of {limit:g} GiB",
                          source=source, field=field,
-                         fix=f"check the size; to lift the limit raise max_memory_gib above {limit:g}")
+                         fix=f"check the size; to lift the limit raise `max_memory_gib` above {limit:g}")

@@ -213,9 +213,9 @@ def _distances(distances_m: Sequence[float] | np.ndarray, n_spk: int) -> np.ndar
         d = np.repeat(d[:, None], n_spk, axis=1)
     if d.ndim != 2 or d.shape[1] != n_spk or d.shape[0] < 1:
         raise InputError(f"listener distances must have shape (n_listeners,) or (n_listeners, {n_spk}), "
-                         f"got {np.asarray(distances_m).shape}", field="--listener-distance-m")
+                         f"got {np.asarray(distances_m).shape}", field="distances_m")
     if not np.all(np.isfinite(d)) or np.any(d <= 0):
-        raise InputError("listener distances must be positive and finite (metres)", field="--listener-distance-m")
+        raise InputError("listener distances must be positive and finite (metres)", field="distances_m")
     return d
 
 
@@ -259,11 +259,11 @@ def estimate_spl_at_listeners(*, sensitivity_db_spl: float, amp_vrms_full_scale:
     ndarray, shape (n_listeners,)
         dB SPL: free field, inverse square from 1 m, flat speaker response.
     """
-    _check_positive(amp_vrms_full_scale, "--amp-vrms")
-    _check_positive(sensitivity_vrms, "--sensitivity-vrms")
+    _check_positive(amp_vrms_full_scale, "amp_vrms_full_scale")
+    _check_positive(sensitivity_vrms, "sensitivity_vrms")
     if not math.isfinite(float(sensitivity_db_spl)):
         raise InputError(f"speaker sensitivity must be a finite dB SPL, got {sensitivity_db_spl!r}",
-                         field="--sensitivity-db-spl")
+                         field="sensitivity_db_spl")
     lev = np.asarray(channel_level_dbfs, dtype=float).reshape(-1)
     d = _distances(distances_m, lev.size)
     volts = math.sqrt(2.0) * amp_vrms_full_scale * 10.0 ** (lev / 20.0)
@@ -379,19 +379,19 @@ def check_exposure(estimate: ExposureEstimate, *, max_dba: float = DEFAULT_MAX_D
     if not allow_loud:
         if top > max_dba:
             raise InputError(f"estimated {top:.1f} dBA at the listener {dist:g} m away exceeds the cap of "
-                             f"{max_dba:g} dBA", source=source, field="--listener-distance-m",
+                             f"{max_dba:g} dBA", source=source, field="distances_m",
                              fix="lower the level or the amplifier gain, move listeners away, "
-                                 "or pass --allow-loud with hearing protection in place")
+                                 "or pass `allow_loud` with hearing protection in place")
         if peak > max_peak_db_spl:
             raise InputError(f"estimated peak {peak:.1f} dB SPL at a listener exceeds the cap of "
-                             f"{max_peak_db_spl:g} dB SPL", source=source, field="--listener-distance-m",
-                             fix="lower the level, or pass --allow-loud with hearing protection in place")
+                             f"{max_peak_db_spl:g} dB SPL", source=source, field="distances_m",
+                             fix="lower the level, or pass `allow_loud` with hearing protection in place")
     if top > WARN_DBA:
         warnings.append(f"estimated {top:.1f} dBA at the listener {dist:g} m away is above {WARN_DBA:g} dBA: "
                         f"NIOSH permits {_duration(permitted_exposure_niosh(top))} a day, OSHA "
                         f"{_duration(permitted_exposure_osha(top))}; use hearing protection")
     if allow_loud and (top > max_dba or peak > max_peak_db_spl):
-        warnings.append(f"level above the cap ({top:.1f} dBA, peak {peak:.1f} dB SPL) allowed by --allow-loud")
+        warnings.append(f"level above the cap ({top:.1f} dBA, peak {peak:.1f} dB SPL) allowed by `allow_loud`")
     return warnings
 
 

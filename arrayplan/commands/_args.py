@@ -10,13 +10,17 @@ from __future__ import annotations
 
 import argparse
 import math
+import os
+import re
 from typing import Callable
 
+from ..errors import InputError
 from ..limits import MAX_CHANNEL_NUMBER
 
 __all__ = ["csv_names", "octaves", "finite_float", "positive_float", "nonnegative_float", "float_in",
            "dbfs_level", "count", "nonnegative_count", "channel_number", "MAX_CHANNEL_NUMBER", "MAX_COUNT",
-           "add_measured_kernel_options", "measured_kernel_from_args", "add_memory_limit"]
+           "add_measured_kernel_options", "measured_kernel_from_args", "add_memory_limit",
+           "text_with_flags", "error_with_flags", "say", "command_parser", "parameter_flags"]
 
 #: Highest count any option accepts before a command's own size estimate (repeats, bursts, channels...).
 MAX_COUNT = 1_000_000
@@ -176,3 +180,70 @@ def measured_kernel_from_args(irs, args: argparse.Namespace):
 
     return MeasuredKernel(irs, window_s=None if args.window_ms is None else args.window_ms / 1000.0,
                           latency_samples=args.latency_samples, smoothing_octaves=args.smooth_octaves)
+
+
+# ----------------------------------------------------------------------------- library names -> flags
+
+#: A library parameter named in a message's text: ```f2_hz```.
+_PARAMETER = re.compile(r"`([A-Za-z_][A-Za-z0-9_]*)`")
+#: A parameter given as a message's field or source, optionally indexed: ``freqs_hz[3]``.
+_FIELD = re.compile(r"([A-Za-z_][A-Za-z0-9_]*)(\[[^\]]*\])?")
+
+
+def command_parser(parser: argparse.ArgumentParser, args: argparse.Namespace) -> argparse.ArgumentParser:
+    """The (sub-)parser that parsed `args`: ``signal sweep`` gives the parser of ``sweep``."""
+    current = parser
+    while True:
+        subs = [a for a in current._actions if isinstance(a, argparse._SubParsersAction)]
+        if not subs or getattr(args, subs[0].dest, None) is None:
+            return current
+        current = subs[0].choices[getattr(args, subs[0].dest)]
+
+
+def parameter_flags(parser: argparse.ArgumentParser, args: argparse.Namespace) -> dict[str, str]:
+    """Library parameter name -> this command's flag: every option by its dest, then the command's own map.
+
+    A command whose flags differ from the library's parameter names sets
+    ``parameter_flags={"f2_hz": "--f2", ...}`` as a parser default.
+    """
+    flags = {a.dest: max(a.option_strings, key=len) for a in command_parser(parser, args)._actions
+             if a.option_strings and a.dest not in ("help", "version")}
+    flags.update(getattr(args, "parameter_flags", None) or {})
+    return flags
+
+
+def error_with_flags(error: InputError, flags: dict[str, str]) -> str:
+    """The one-line message of `error` with the library's parameter names given as the command's flags.
+
+    Parameters named in the text (```f2_hz```) become flags (``--f2``) or, where
+    the command has none, the bare name.  A field or source that is a parameter
+    name (``f2_hz``, ``peak_dbfs/rms_dbfs``, ``freqs_hz[2]``) becomes the flag,
+    unless the error names a file: its fields are the file's own.
+    """
+    def text(value: str | None) -> str | None:
+        return None if value is None else text_with_flags(value, flags)
+
+    def names(value: str | None) -> str | None:
+        if value is None:
+            return None
+        pieces = []
+        for piece in re.split(r"([/,])", value):
+            m = _FIELD.fullmatch(piece.strip())
+            pieces.append(flags[m.group(1)] + (m.group(2) or "") if m and m.group(1) in flags else piece)
+        return text("".join(pieces))
+
+    from_file = error.source is not None and error.source not in flags and (
+        os.sep in error.source or "." in error.source or os.path.exists(error.source))
+    field = text(error.field) if from_file else names(error.field)
+    source = error.source if from_file else names(error.source)
+    return InputError(text(error.problem) or "", source=source, field=field, fix=text(error.fix)).one_line()
+
+
+def text_with_flags(text: str, flags: dict[str, str]) -> str:
+    """`text` with each library parameter named in it (```f2_hz```) given as its flag, else as its bare name."""
+    return _PARAMETER.sub(lambda m: flags.get(m.group(1), m.group(1)), text)
+
+
+def say(text: str, args: argparse.Namespace) -> str:
+    """A library message (a warning) as this command's user reads it: parameters named by their flags."""
+    return text_with_flags(text, getattr(args, "flag_names", None) or {})

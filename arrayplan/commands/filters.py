@@ -34,7 +34,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="pass/fail limit of the worst in-band crosstalk (default -40)")
     p.add_argument("--no-check", action="store_true", help="skip the time-domain check")
     add_memory_limit(p)
-    p.set_defaults(run=run)
+    p.set_defaults(run=run, parameter_flags={"sample_rate_hz": "--rate", "band_hz": "--band"})
 
 
 def run(args: argparse.Namespace) -> int:

@@ -19,7 +19,7 @@ import numpy as np
 from ..errors import InputError
 from ..progress import ProgressBar, mini_bar
 from ._args import (add_memory_limit, count, dbfs_level, finite_float, float_in,
-                    nonnegative_count, nonnegative_float, positive_float)
+                    nonnegative_count, nonnegative_float, positive_float, say)
 
 if TYPE_CHECKING:
     from ..hardware.measure import TakeProgress
@@ -64,7 +64,7 @@ def print_level_estimate(args: argparse.Namespace, signal: np.ndarray, sample_ra
                             distances_m=args.listener_distance_m, sensitivity_vrms=args.sensitivity_vrms,
                             combine="one_at_a_time")
     print(format_exposure(est), file=stream)
-    warnings = check_exposure(est, allow_loud=args.allow_loud)
+    warnings = [say(w, args) for w in check_exposure(est, allow_loud=args.allow_loud)]
     for w in warnings:
         print(f"warning: {w}", file=stream)
     return warnings
@@ -251,7 +251,7 @@ def run(args: argparse.Namespace) -> int:
             bar.print_above(text)
 
     def warn(text: str) -> None:
-        bar.print_above(f"warning: {text}")
+        bar.print_above(f"warning: {say(text, args)}")
 
     try:
         with bar:

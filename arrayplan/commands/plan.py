@@ -101,6 +101,23 @@ def _checked(value: float | None, flag: str) -> float | None:
     return value
 
 
+def check_plan_size(rig: Rig, n_freq: int, chunk_size: int) -> None:
+    """Refuse a plan whose weights and coupling chunks would not fit the memory limit (estimated first).
+
+    The plan keeps drive and combine weights for every channel at every
+    frequency, ``n_freq (n_spk + n_mic) min(n_spk, n_mic)`` complex numbers,
+    and decomposes `chunk_size` coupling matrices at once (with about three
+    working copies each for the SVD).
+    """
+    from ..limits import check_memory
+
+    n_s, n_m = len(rig.speakers), len(rig.mics)
+    k = min(n_s, n_m)
+    n_bytes = 16.0 * n_freq * (n_s + n_m + 1) * k + 3 * 16.0 * min(chunk_size, n_freq) * n_s * n_m
+    check_memory(n_bytes, f"a plan of {n_s} speakers x {n_m} microphones at {n_freq} frequencies",
+                 source=rig.source)
+
+
 def run(args: argparse.Namespace) -> int:
     matplotlib.use("Agg")
     rig = rig_from_args(args)
@@ -115,8 +132,8 @@ def run(args: argparse.Namespace) -> int:
         if top is not None and top.hz[-1] >= kernel.sample_rate_hz / 2:
             raise InputError(f"plan frequency {top.hz[-1]:g} Hz is not below the IR set's Nyquist frequency "
                              f"{kernel.sample_rate_hz / 2:g} Hz", source="--freq", fix="plan at lower frequencies")
-    if args.chunk_size is not None and args.chunk_size < 1:
-        raise InputError(f"must be at least 1, got {args.chunk_size}", source="--chunk-size")
+    if axis is not None or rig.frequencies is not None:
+        check_plan_size(rig, len((axis or rig.frequencies).hz), args.chunk_size or rig.planning.chunk_size)
     with ProgressBar("planning") as bar:
         plan = plan_rig(rig, axis, kernel=kernel, threshold_db=_checked(args.threshold_db, "--threshold-db"),
                         snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,

@@ -23,7 +23,7 @@ from typing import Any
 import numpy as np
 
 from ._args import (MAX_CHANNEL_NUMBER, add_memory_limit, count, dbfs_level, finite_float, float_in,
-                    nonnegative_count, nonnegative_float, positive_float)
+                    nonnegative_count, nonnegative_float, positive_float, say)
 from ._args import csv_names as _csv_names
 from ..limits import check_memory
 from ..errors import InputError
@@ -338,7 +338,8 @@ def _run(args: argparse.Namespace) -> int:
     warnings: list[str] = []
     estimate = _exposure(args, x, built["combine"], src) if playable else None
     if estimate is not None:
-        warnings += check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud, source=src)
+        warnings += [say(w, args) for w in check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud,
+                                                          source=src)]
     elif playable:
         warnings.append("no exposure estimate: give --sensitivity-db-spl, --amp-vrms and --listener-distance-m "
                         "to check the level at the listeners")
