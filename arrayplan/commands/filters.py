@@ -37,11 +37,27 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.set_defaults(run=run, parameter_flags={"sample_rate_hz": "--rate", "band_hz": "--band"})
 
 
+def _check_filter_size(rig, taps: int) -> None:
+    """Refuse filter sets whose design would not fit the memory limit (estimated before designing).
+
+    The design holds a coupling matrix per FFT bin (``taps / 2 + 1`` of them,
+    about three working copies for the SVD) and real filters of `taps`
+    samples per element and channel (with the time-domain check, twice).
+    """
+    from ..limits import check_memory
+
+    n_s, n_m = len(rig.speakers), len(rig.mics)
+    n_bins = taps // 2 + 1
+    n_bytes = 3 * 16.0 * n_bins * n_s * n_m + 2 * 8.0 * taps * (n_s + n_m) * min(n_s, n_m)
+    check_memory(n_bytes, f"{taps}-tap filters for {n_s} speakers x {n_m} microphones", field="taps")
+
+
 def run(args: argparse.Namespace) -> int:
     matplotlib.use("Agg")
     rig = load_rig(args.rig)
     if not args.min_level_db <= 0:
         raise InputError(f"must be 0 dB or below, got {args.min_level_db:g}", source="--min-level-db")
+    _check_filter_size(rig, args.taps)
     validate_request(rig, args.rate, args.taps, tuple(args.band))
     with ProgressBar("filter plan") as plan_bar, \
             ProgressBar("filter taps") as taps_bar:
