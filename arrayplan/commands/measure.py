@@ -200,6 +200,9 @@ def run(args: argparse.Namespace) -> int:
     from ..signals.deconvolve import DEFAULT_MIN_PEAK_TO_NOISE_DB
     from ..signals.sweeps import make_sweep
 
+    if Path(args.out).exists() and not Path(args.out).is_dir():
+        raise InputError("exists and is not a folder", source=args.out,
+                         fix="give a new folder, or the folder of an earlier run to resume it")
     rig = load_rig(args.rig)
     wiring = RigWiring.from_rig(rig)
     hw = rig.hardware
