@@ -416,7 +416,8 @@ def format_calibration(rec: CalibrationRecord) -> str:
             ("name", m.name, "as in the rig file"),
             ("input_channel", m.input_channel, "1-based input it was calibrated on"),
             ("sensitivity_mv_per_pa", _significant(m.sensitivity_mv_per_pa), "mV/Pa"),
-            ("sensitivity_db_re_1v_per_pa", round(sensitivity_db_re_1v_per_pa(m.sensitivity_mv_per_pa), 3),
+            ("sensitivity_db_re_1v_per_pa", round(sensitivity_db_re_1v_per_pa(m.sensitivity_mv_per_pa), 3)
+             if _in_range("sensitivity_mv_per_pa", m.sensitivity_mv_per_pa) else None,
              "derived, checked on reading"),
             ("input_full_scale_vrms", _significant(m.input_full_scale_vrms), "V RMS of a full-scale sine"),
             ("calibrator_level_db_spl", m.calibrator_level_db_spl, "dB re 20 uPa"),
@@ -441,6 +442,11 @@ def format_calibration(rec: CalibrationRecord) -> str:
             ("output_channel", la.output_channel, "1-based"), ("input_channel", la.input_channel, "1-based"),
             ("device", la.device, ""), ("measured_utc", la.measured_utc, "")])
     return "\n".join(lines) + "\n"
+
+
+def _in_range(key: str, value: float) -> bool:
+    low, high = RANGES[key]
+    return isinstance(value, (int, float)) and low <= value <= high
 
 
 def _significant(x: float, digits: int = 7) -> float:
