@@ -635,3 +635,57 @@ def test_bad_input_is_one_line_exit_2_nothing_written(argv, needs, expect, prepa
     assert tree_state(case) == before
     unknown = set(FLAG.findall(lines[0])) - options_of(argv)
     assert not unknown, f"{sorted(unknown)} named in {lines[0]!r} are not options of this command"
+
+
+CHECK_RIG_CASES = [
+    pytest.param(POINT_RIG.format(a="[nan, 0, 0]"), ("speakers[0].position",), id="position-nan"),
+    pytest.param(POINT_RIG.format(a="[1e308, 0, 0]"), ("speakers[0].position",), id="position-1e308"),
+    pytest.param(RIG + "[medium]\ntemperature_c = -300\n", ("medium.temperature_c",), id="temperature-300"),
+    pytest.param(RIG.replace("count = 2\nspacing = 0.1", "count = 1000000000\nspacing = 0.1", 1),
+                 ("speakers[0].count",), id="count-1e9"),
+    pytest.param(POINT_RIG.format(a="[0, 0, 0]").replace('name = "B"\nposition = [0.2, 0, 0]',
+                                                         'name = "A"\nposition = [0.2, 0, "x"]'),
+                 ("speakers[1].position", "'A' appears twice"), id="repeated-name-in-bad-entry"),
+    pytest.param("[[[", ("line 1",), id="not-toml"),
+]
+
+
+@pytest.mark.parametrize("text, expect", CHECK_RIG_CASES)
+def test_check_rig_lists_each_problem_exit_2_nothing_written(text, expect, tmp_path, monkeypatch, capsys):
+    # check-rig's report of a bad rig is its output (stdout), one finding per line, and exit status 2
+    (tmp_path / "bad.toml").write_text(text)
+    monkeypatch.chdir(tmp_path)
+    before = tree_state(tmp_path)
+    rc = cli.main(["check-rig", "bad.toml"])
+    out, err = capsys.readouterr()
+    assert rc == 2 and err == "" and "Traceback" not in out
+    for word in expect:
+        assert word in out, out
+    assert tree_state(tmp_path) == before
+
+
+def test_check_rig_of_a_missing_file_is_one_line(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    rc = cli.main(["check-rig", "nope.toml"])
+    out, err = capsys.readouterr()
+    assert rc == 2 and "nope.toml" in out + err and "Traceback" not in out + err
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_ctrl_c_while_modules_load_prints_no_traceback(tmp_path):
+    # SIGINT soon after start lands while the command modules (numpy, scipy, matplotlib) import
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    for delay in (0.15, 0.4, 0.8):
+        proc = subprocess.Popen([sys.executable, "-m", "arrayplan", "plan", "--help"], cwd=tmp_path,
+                                stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        time.sleep(delay)
+        proc.send_signal(signal.SIGINT)
+        out, err = proc.communicate(timeout=60)
+        assert "Traceback" not in err, (delay, err)
+        # 130 from the handler; -SIGINT when CPython re-raises an interrupt it saw inside an import at exit
+        assert proc.returncode in (0, 130, -signal.SIGINT), (delay, proc.returncode, err)
+        assert len(err.strip().splitlines()) <= 1, err
