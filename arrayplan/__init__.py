@@ -19,8 +19,31 @@ of an impulse response); singular values descending; 0-based indices in
 the API, 1-based at the command line and hardware edge.
 """
 
-from ._version import __version__
-from .errors import ArrayplanError, InputError
+import sys as _sys
+
+
+def _started_as_command() -> bool:
+    """True when this process is the ``arrayplan`` command (``python -m arrayplan`` or the script)."""
+    orig = list(getattr(_sys, "orig_argv", []))
+    as_module = any(a == "-m" and b == "arrayplan" for a, b in zip(orig, orig[1:]))
+    script = bool(_sys.argv) and _sys.argv[0].replace("\\", "/").rsplit("/", 1)[-1] in ("arrayplan", "arrayplan.exe")
+    return as_module or script
+
+
+if _started_as_command():
+    # Ctrl-C before the command line's own handling is in place (while modules load): one line, status 130,
+    # no traceback.  arrayplan.cli.main puts Python's usual KeyboardInterrupt back once it runs.
+    import os as _os
+    import signal as _signal
+
+    def _quiet_interrupt(signum, frame):  # pragma: no cover - exercised in a child process
+        _os.write(2, b"arrayplan: interrupted\n")
+        _os._exit(130)
+
+    _signal.signal(_signal.SIGINT, _quiet_interrupt)
+
+from ._version import __version__  # noqa: E402
+from .errors import ArrayplanError, InputError  # noqa: E402
 
 #: Public names imported on first use (PEP 562), so that ``import arrayplan`` and the command line's
 #: ``--help`` and ``--version`` stay light: numpy and scipy load only when a name below is used.

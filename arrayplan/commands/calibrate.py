@@ -42,8 +42,7 @@ def _add_full_scale(p: argparse.ArgumentParser, what: str) -> None:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
-        "calibrate", help="create or show calibration records (mic sensitivity, output gain, latency)",
-        description="Calibration records (TOML, documented in calibration/README.md) give measured impulse "
+        "calibrate", description="Calibration records (TOML, documented in calibration/README.md) give measured impulse "
                     "responses physical units and supply the interface latency.")
     sub = p.add_subparsers(dest="calibrate_command", metavar="WHAT", parser_class=type(p))
     sub.required = True

@@ -8,8 +8,7 @@ from ..rigcheck import check_rig_file, count_by_severity
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("check-rig", help="check a rig file and explain every problem in plain words",
-                       description="List every problem in a rig file at once (syntax, keys, values, positions, "
+    p = sub.add_parser("check-rig", description="List every problem in a rig file at once (syntax, keys, values, positions, "
                                    "CSV files), then what will go wrong physically (spacing against the "
                                    "wavelength, near field, elements facing away, sample rate, missing "
                                    "calibration). Exit status 0: no errors; 1: warnings with --strict; "

@@ -11,8 +11,7 @@ __all__ = ["register", "run"]
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
-        "devices", help="list audio devices and host APIs (PortAudio)",
-        description="List the audio host APIs and devices PortAudio sees, with channel counts and default "
+        "devices", description="List the audio host APIs and devices PortAudio sees, with channel counts and default "
                     "rates.  With --device, show the one device an index or name substring selects (an "
                     "ambiguous name lists the candidates).")
     p.add_argument("--device", metavar="INDEX|NAME", help="index or part of the name of one device")

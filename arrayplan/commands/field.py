@@ -21,8 +21,7 @@ from ._args import add_memory_limit, count, finite_float, positive_float
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("field", help="map the pressure one channel produces over a plane (PNG + NPY)",
-                       description="Drive the speakers with one channel's weights at one frequency and map the "
+    p = sub.add_parser("field", description="Drive the speakers with one channel's weights at one frequency and map the "
                                    "free-field pressure magnitude over a plane.")
     p.add_argument("rig", help="rig file (TOML)")
     p.add_argument("--freq", type=positive_float, required=True, metavar="HZ", help="frequency")

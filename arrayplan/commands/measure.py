@@ -93,8 +93,7 @@ def confirm_before_playing(yes: bool, what: str, stream: Any = None) -> None:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
-        "measure", help="measure the rig's impulse responses through the audio interface",
-        description="Play a faded exponential sweep on each speaker's output in turn, record every "
+        "measure", description="Play a faded exponential sweep on each speaker's output in turn, record every "
                     "microphone (and the loopback reference), and save each take as it ends: raw recording "
                     "plus impulse responses.  Running again into the same --out folder measures only the "
                     "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "

@@ -22,8 +22,7 @@ def _count_or_grid(text: str) -> int | str:
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("new-rig", help="write a commented starter rig file for a chosen layout",
-                       description="Write a rig file (TOML) for one of the starter layouts, every key commented, "
+    p = sub.add_parser("new-rig", description="Write a rig file (TOML) for one of the starter layouts, every key commented, "
                                    "ready for 'arrayplan check-rig' and 'arrayplan plan'. Options a layout does "
                                    "not take are refused; see --list.")
     p.add_argument("layout", nargs="?", metavar="LAYOUT", help=f"one of: {', '.join(LAYOUTS)}")

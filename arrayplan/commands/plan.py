@@ -23,8 +23,7 @@ from ..rig import Rig, load_rig, read_positions_csv
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("plan", help="plan the channels of a rig (counts, strengths, weights, figures)",
-                       description="Plan the independent channels of a speaker/microphone rig at each "
+    p = sub.add_parser("plan", description="Plan the independent channels of a speaker/microphone rig at each "
                                    "frequency and write tables, weights and figures to --out.")
     p.add_argument("rig", nargs="?", help="rig file (TOML); omit to use --speakers/--mics")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")

@@ -397,8 +397,7 @@ def _run(args: argparse.Namespace) -> int:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add the ``signal`` command and its sub-commands."""
-    p = subparsers.add_parser("signal", help="write safe test signals (sweeps, noise, tones, schedules, probes)",
-                              description=__doc__.split("\n\n")[1].replace("\n", " "))
+    p = subparsers.add_parser("signal", description=__doc__.split("\n\n")[1].replace("\n", " "))
     sub = p.add_subparsers(dest="signal", metavar="KIND")
     sub.required = True
 
