@@ -689,3 +689,14 @@ def test_ctrl_c_while_modules_load_prints_no_traceback(tmp_path):
         # 130 from the handler; -SIGINT when CPython re-raises an interrupt it saw inside an import at exit
         assert proc.returncode in (0, 130, -signal.SIGINT), (delay, proc.returncode, err)
         assert len(err.strip().splitlines()) <= 1, err
+
+
+def test_check_rig_of_a_30000_element_line_stays_within_the_memory_limit(tmp_path, monkeypatch, capsys):
+    # the coincidence check (a KD-tree) and the aperture's principal axes are linear in memory; the
+    # path-by-path checks are estimated first and skipped with a note that says how to lift the limit
+    (tmp_path / "big.toml").write_text(RIG.replace("count = 2\nspacing = 0.1", "count = 30000\nspacing = 0.01"))
+    monkeypatch.chdir(tmp_path)
+    rc = cli.main(["check-rig", "big.toml", "--max-memory-gib", "2"])
+    out, err = capsys.readouterr()
+    assert rc == 0, out + err
+    assert "were skipped" in out and "--max-memory-gib" in out

@@ -18,6 +18,7 @@ from ..plots import plot_field
 from ..progress import ProgressBar
 from ..rig import Rig, load_rig
 from ._args import add_memory_limit, count, finite_float, positive_float
+from .plan import check_plan_size
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -75,6 +76,7 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"must be positive, got {args.freq}", source="--freq")
     if not 8 <= args.resolution <= 2000:
         raise InputError(f"must be 8..2000, got {args.resolution}", source="--resolution")
+    check_plan_size(rig, 1, 1)
     g = FreeFieldKernel(rig).evaluate(np.array([args.freq]))
     s, drive, _ = decompose_stack(g)
     n_chan = s.shape[1]

@@ -7,7 +7,9 @@ import re
 import numpy as np
 from scipy.spatial import cKDTree
 
+from ..errors import InputError
 from ..heuristics import PARAXIAL_RATIO, aperture_shape
+from ..limits import check_memory
 from ..medium import speed_of_sound_air
 from ..rig import Rig
 from .findings import Finding, SideGroup
@@ -303,9 +305,16 @@ def physical_findings(rig: Rig, groups: dict[str, list[SideGroup]], raw_medium: 
     hz = rig.frequencies.hz
     out += aliasing_findings(rig, groups)
     out += paraxial_findings(rig)
-    out += coupling_findings(rig, hz)
-    out += piston_findings(rig, float(hz[-1]))
-    out += proximity_findings(rig, float(hz[0]))
+    try:    # tables of every speaker-microphone path at every frequency: estimated before they are built
+        check_memory(8.0 * len(rig.mics) * len(rig.speakers) * (2 * len(hz) + 8),
+                     "checking every speaker-microphone path", source=rig.source)
+    except InputError as exc:
+        out.append(Finding("note", "speakers/microphones", "the checks of each speaker-microphone path (nulls, "
+                           f"baffles, pistons' near field, proximity) were skipped: {exc.problem}", exc.fix))
+    else:
+        out += coupling_findings(rig, hz)
+        out += piston_findings(rig, float(hz[-1]))
+        out += proximity_findings(rig, float(hz[0]))
     out += compact_findings(rig, float(hz[-1]))
     out += hardware_findings(rig, float(hz[-1]))
     return out
