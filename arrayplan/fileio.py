@@ -151,7 +151,7 @@ def staged_output_dir(final_dir: str | os.PathLike) -> Iterator[Path]:
     parent = final_dir.parent if str(final_dir.parent) else Path(".")
     if final_dir.exists() and not final_dir.is_dir():
         raise InputError("exists and is not a folder", source=str(final_dir),
-                         fix="choose another --out folder")
+                         fix="choose another `out` folder")
     created = _make_folders(parent, str(final_dir))
     done = False
     try:

@@ -700,3 +700,27 @@ def test_check_rig_of_a_30000_element_line_stays_within_the_memory_limit(tmp_pat
     out, err = capsys.readouterr()
     assert rc == 0, out + err
     assert "were skipped" in out and "--max-memory-gib" in out
+
+
+def test_the_library_names_no_command_line_flags():
+    # messages outside arrayplan/commands and arrayplan/cli.py name library parameters (`f2_hz`), never
+    # flags: each command shows its own flag for them (docstrings and comments may show a command line)
+    import io
+    import tokenize
+
+    root = Path(cli.__file__).parent
+    offenders = []
+    for path in sorted(root.rglob("*.py")):
+        if path.parent.name == "commands" or path.name == "cli.py":
+            continue
+        prev = tokenize.NEWLINE
+        for tok in tokenize.generate_tokens(io.StringIO(path.read_text(encoding="utf-8")).readline):
+            if tok.type == tokenize.STRING and prev not in (tokenize.NEWLINE, tokenize.INDENT, tokenize.DEDENT,
+                                                            tokenize.NL):
+                body = tok.string.lstrip("rbfuRBFU").lstrip("\"'")
+                # a line starting with '#' is a comment written into a generated file (a starter rig's usage)
+                if re.search(r"(?<![\w`-])--[a-z]", tok.string) and not body.startswith("#"):
+                    offenders.append(f"{path.relative_to(root)}:{tok.start[0]}: {tok.string[:60]}")
+            if tok.type not in (tokenize.COMMENT, tokenize.NL):
+                prev = tok.type
+    assert not offenders, "\n".join(offenders)

@@ -661,7 +661,7 @@ def calibration_factors(rec: CalibrationRecord, mic_names: Sequence[str], mic_ch
         if m is None:
             raise InputError(f"microphone {name!r} is not in the calibration record", source=rec.source,
                              field="microphones", fix="calibrate it with 'arrayplan calibrate mic' "
-                                                      "or measure without --calibration")
+                                                      "or measure without `calibration`")
         if m.input_channel != ch:
             notes.append(f"microphone {name} was calibrated on input {m.input_channel} but is on input {ch}: "
                          "the input gain may differ")

@@ -298,7 +298,8 @@ def physical_findings(rig: Rig, groups: dict[str, list[SideGroup]], raw_medium: 
     out = medium_findings(rig, raw_medium or {})
     if rig.frequencies is None:
         out.append(Finding("note", "frequencies",
-                           "no [frequencies] table: 'arrayplan plan' will need --freq, and the checks that depend "
+                           "no [frequencies] table: 'arrayplan plan' will need frequencies on its command line, and "
+                           "the checks that depend "
                            "on frequency (spacing, near field, nulls, sample rate) were skipped",
                            "add [frequencies] with start, stop and count in Hz"))
         return out + paraxial_findings(rig) + hardware_findings(rig, None)
