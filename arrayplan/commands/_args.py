@@ -85,48 +85,34 @@ def dbfs_level(text: str) -> float:
     return v
 
 
-def count(maximum: int = MAX_COUNT) -> Callable[[str], int]:
-    """An argparse type: a whole number from 1 to `maximum`."""
+def _whole_number(minimum: int, maximum: int, what: str = "a whole number") -> Callable[[str], int]:
+    """An argparse type: a whole number from `minimum` to `maximum`."""
 
     def parse(text: str) -> int:
         try:
             v = int(text.strip())
         except ValueError:
-            raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-        if not 1 <= v <= maximum:
-            raise argparse.ArgumentTypeError(f"must be a whole number from 1 to {maximum}, got {text!r}")
+            raise argparse.ArgumentTypeError(f"expected {what}, got {text!r}") from None
+        if not minimum <= v <= maximum:
+            raise argparse.ArgumentTypeError(f"must be {what} from {minimum} to {maximum}, got {text!r}")
         return v
 
-    parse.__name__ = "count"
+    parse.__name__ = what
     return parse
+
+
+def count(maximum: int = MAX_COUNT) -> Callable[[str], int]:
+    """An argparse type: a whole number from 1 to `maximum`."""
+    return _whole_number(1, maximum)
 
 
 def nonnegative_count(maximum: int = MAX_COUNT) -> Callable[[str], int]:
     """An argparse type: a whole number from 0 to `maximum` (samples, dropouts, seeds...)."""
-
-    def parse(text: str) -> int:
-        try:
-            v = int(text.strip())
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-        if not 0 <= v <= maximum:
-            raise argparse.ArgumentTypeError(f"must be a whole number from 0 to {maximum}, got {text!r}")
-        return v
-
-    parse.__name__ = "whole number"
-    return parse
+    return _whole_number(0, maximum)
 
 
-def channel_number(text: str) -> int:
-    """A 1-based hardware or file channel number, 1 to :data:`MAX_CHANNEL_NUMBER` (argparse type)."""
-    try:
-        v = int(text.strip())
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a 1-based channel number, got {text!r}") from None
-    if not 1 <= v <= MAX_CHANNEL_NUMBER:
-        raise argparse.ArgumentTypeError(f"channels are numbered from 1 to at most {MAX_CHANNEL_NUMBER}, "
-                                         f"got {text!r}")
-    return v
+#: A 1-based hardware or file channel number, 1 to :data:`MAX_CHANNEL_NUMBER` (argparse type).
+channel_number = _whole_number(1, MAX_CHANNEL_NUMBER, "a 1-based channel number")
 
 
 def csv_names(text: str) -> list[str]:
