@@ -19,7 +19,8 @@ from typing import Iterator
 
 from .errors import InputError
 
-__all__ = ["DEFAULT_MAX_MEMORY_GIB", "MAX_ELEMENTS_PER_SIDE", "MAX_CHANNEL_NUMBER", "MAX_FREQUENCIES", "check_memory", "memory_limit",
+__all__ = ["DEFAULT_MAX_MEMORY_GIB", "MAX_ELEMENTS_PER_SIDE", "MAX_CHANNEL_NUMBER", "MAX_FREQUENCIES", "check_memory",
+           "memory_limit",
            "current_limit_gib", "format_bytes"]
 
 #: Default limit of one estimate, GiB (a few times below a small workstation's memory).

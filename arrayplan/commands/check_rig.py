@@ -9,7 +9,8 @@ from ._args import add_memory_limit, say
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("check-rig", description="List every problem in a rig file at once (syntax, keys, values, positions, "
+    p = sub.add_parser("check-rig",
+                       description="List every problem in a rig file at once (syntax, keys, values, positions, "
                                    "CSV files), then what will go wrong physically (spacing against the "
                                    "wavelength, near field, elements facing away, sample rate, missing "
                                    "calibration). Exit status 0: no errors; 1: warnings with --strict; "

@@ -253,7 +253,8 @@ def _run(args: argparse.Namespace) -> int:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add the ``deconvolve`` command."""
-    p = subparsers.add_parser("deconvolve", description=__doc__.split("\n\n")[1].replace("\n", " "))
+    p = subparsers.add_parser("deconvolve",
+                              description=__doc__.split("\n\n")[1].replace("\n", " "))
     p.add_argument("recordings", nargs="+", type=Path, metavar="RECORDING.wav",
                    help="one WAV per speaker (channels = microphones), or one recording of a schedule or probe")
     p.add_argument("--sweep", required=True, type=Path, metavar="SWEEP.json",

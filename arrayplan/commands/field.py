@@ -22,7 +22,8 @@ from .plan import check_plan_size
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("field", description="Drive the speakers with one channel's weights at one frequency and map the "
+    p = sub.add_parser("field",
+                       description="Drive the speakers with one channel's weights at one frequency and map the "
                                    "free-field pressure magnitude over a plane.")
     p.add_argument("rig", help="rig file (TOML)")
     p.add_argument("--freq", type=positive_float, required=True, metavar="HZ", help="frequency")

@@ -18,7 +18,8 @@ CAUTION = ("caution: these filters feed loudspeakers; start any playback at a lo
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("filters", description="Design FIR drive filters (per speaker) and combine filters (per "
+    p = sub.add_parser("filters",
+                       description="Design FIR drive filters (per speaker) and combine filters (per "
                                    "microphone) for each planned channel, write them as WAV files with a "
                                    "JSON sidecar, and check channel isolation in a time-domain simulation.")
     p.add_argument("rig", help="rig file (TOML)")

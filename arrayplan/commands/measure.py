@@ -94,14 +94,15 @@ def confirm_before_playing(yes: bool, what: str, stream: Any = None) -> None:
 def register(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
         "measure", description="Play a faded exponential sweep on each speaker's output in turn, record every "
-                    "microphone (and the loopback reference), and save each take as it ends: raw recording "
-                    "plus impulse responses.  Running again into the same --out folder measures only the "
-                    "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "
-                    "printed before anything plays.")
+                               "microphone (and the loopback reference), and save each take as it ends: raw recording "
+                               "plus impulse responses.  Running again into the same --out folder measures only the "
+                               "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "
+                               "printed before anything plays.")
     p.add_argument("rig", help="rig file (TOML); speakers' and microphones' 'channel' are 1-based")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (resumes when it exists)")
     p.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the rig's, else the system's)")
-    p.add_argument("--rate", type=positive_float, metavar="HZ", help="sample rate (default: the rig's, else the device's)")
+    p.add_argument("--rate", type=positive_float, metavar="HZ",
+                   help="sample rate (default: the rig's, else the device's)")
     p.add_argument("--calibration", metavar="FILE", help="calibration record (default: the rig's, if any)")
     p.add_argument("--latency-samples", type=nonnegative_count(10_000_000), metavar="N",
                    help="latency to remove when there is neither a reference loop nor a calibrated latency")
@@ -109,7 +110,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--f1", type=positive_float, default=40.0, metavar="HZ", help="start frequency (default 40 Hz)")
     s.add_argument("--f2", type=positive_float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
     s.add_argument("--duration-s", type=positive_float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
-    s.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB", help="sweep peak level (default: the peak cap, -12 dBFS)")
+    s.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB",
+                   help="sweep peak level (default: the peak cap, -12 dBFS)")
     s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
     s.add_argument("--repeats", type=count(), default=1, metavar="N", help="sweeps per take, averaged (default 1)")
     s.add_argument("--ir-s", type=positive_float, default=0.5, metavar="S",
@@ -119,7 +121,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         "time at f1, at most half-way to the 2nd harmonic; 110 ms for the default sweep)")
     s.add_argument("--max-latency-s", type=positive_float, default=0.25, metavar="S",
                    help="longest interface latency expected (default 0.25 s)")
-    s.add_argument("--lead-in-s", type=nonnegative_float, default=0.2, metavar="S", help="silence before each sweep (default 0.2 s)")
+    s.add_argument("--lead-in-s", type=nonnegative_float, default=0.2, metavar="S",
+                   help="silence before each sweep (default 0.2 s)")
     c = p.add_argument_group("checks")
     c.add_argument("--min-peak-to-noise-db", type=finite_float, default=None, metavar="DB",
                    help="mark takes whose responses fall below this peak-to-noise ratio (default 40 dB)")
@@ -129,11 +132,14 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     m.add_argument("--simulate", action="store_true",
                    help="measure a simulated rig: the rig's free-field responses plus latency, noise, a mild "
                         "nonlinearity and optional dropouts")
-    m.add_argument("--sim-latency-samples", type=nonnegative_count(10_000_000), default=300, metavar="N", help="default 300")
-    m.add_argument("--sim-noise-dbfs", type=dbfs_level, default=-90.0, metavar="DB", help="RMS noise (default -90 dBFS)")
+    m.add_argument("--sim-latency-samples", type=nonnegative_count(10_000_000), default=300, metavar="N",
+                   help="default 300")
+    m.add_argument("--sim-noise-dbfs", type=dbfs_level, default=-90.0, metavar="DB",
+                   help="RMS noise (default -90 dBFS)")
     m.add_argument("--sim-nonlinearity", default="0.01,0.005", metavar="A2,A3,...",
                    help="coefficients of x^2, x^3, ... (default 0.01,0.005; '' for linear)")
-    m.add_argument("--sim-dropouts", type=nonnegative_count(1000), default=0, metavar="N", help="dropped input blocks per take")
+    m.add_argument("--sim-dropouts", type=nonnegative_count(1000), default=0, metavar="N",
+                   help="dropped input blocks per take")
     m.add_argument("--sim-seed", type=nonnegative_count(2 ** 32 - 1), default=0, metavar="N", help="noise seed")
     add_memory_limit(p)
     p.set_defaults(run=run, parameter_flags=PARAMETER_FLAGS)
@@ -141,7 +147,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 #: Library parameter names that this command spells differently.
 PARAMETER_FLAGS = {"f1_hz": "--f1", "f2_hz": "--f2", "sweep_s": "--duration-s", "pre_s": "--pre-ms",
-                   "sample_rate_hz": "--rate", "rate_hz": "--rate", "sensitivity_db_spl": "--speaker-sensitivity-db-spl",
+                   "sample_rate_hz": "--rate", "rate_hz": "--rate",
+                   "sensitivity_db_spl": "--speaker-sensitivity-db-spl",
                    "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
                    "latency_samples": "--latency-samples", "dropouts_per_take": "--sim-dropouts",
                    "noise_rms_dbfs": "--sim-noise-dbfs", "nonlinearity": "--sim-nonlinearity"}

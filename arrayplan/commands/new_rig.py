@@ -22,7 +22,8 @@ def _count_or_grid(text: str) -> int | str:
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("new-rig", description="Write a rig file (TOML) for one of the starter layouts, every key commented, "
+    p = sub.add_parser("new-rig",
+                       description="Write a rig file (TOML) for one of the starter layouts, every key commented, "
                                    "ready for 'arrayplan check-rig' and 'arrayplan plan'. Options a layout does "
                                    "not take are refused; see --list.")
     p.add_argument("layout", nargs="?", metavar="LAYOUT", help=f"one of: {', '.join(LAYOUTS)}")
@@ -36,14 +37,16 @@ def register(sub: argparse._SubParsersAction) -> None:
     g.add_argument("--mic-spacing", type=positive_float, metavar="M", help="microphone spacing, m")
     g.add_argument("--distance", type=positive_float, metavar="M", help="distance from speakers to microphones, m")
     g.add_argument("--radius", type=positive_float, metavar="M", help="radius of a ring of speakers, m")
-    g.add_argument("--zone-separation", type=positive_float, metavar="M", help="centre-to-centre distance of two zones, m")
+    g.add_argument("--zone-separation", type=positive_float, metavar="M",
+                   help="centre-to-centre distance of two zones, m")
     g.add_argument("--fmin", type=positive_float, metavar="HZ", help="lowest planned frequency (default: top / 8)")
     g.add_argument("--fmax", type=positive_float, metavar="HZ",
                    help="highest planned frequency (default: the highest the spacing samples, d <= lambda/2)")
     g.add_argument("--freq-count", type=count(100_000), metavar="N", help="number of planned frequencies (default 48)")
     g.add_argument("--temperature", type=float_in(-100.0, 100.0, "°C"), metavar="C",
                    help="air temperature, °C (default 20)")
-    g.add_argument("--speed-of-sound", type=float_in(1.0, 10000.0, "m/s"), metavar="M_PER_S", help="speed of sound instead of temperature")
+    g.add_argument("--speed-of-sound", type=float_in(1.0, 10000.0, "m/s"), metavar="M_PER_S",
+                   help="speed of sound instead of temperature")
     g.add_argument("--name", help="rig name (default: the layout's)")
     p.set_defaults(run=run, parameter_flags={"temperature_c": "--temperature"})
 

@@ -23,7 +23,8 @@ from ..rig import Rig, load_rig, read_positions_csv
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("plan", description="Plan the independent channels of a speaker/microphone rig at each "
+    p = sub.add_parser("plan",
+                       description="Plan the independent channels of a speaker/microphone rig at each "
                                    "frequency and write tables, weights and figures to --out.")
     p.add_argument("rig", nargs="?", help="rig file (TOML); omit to use --speakers/--mics")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
@@ -33,8 +34,10 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="plan at this frequency (repeatable); overrides the rig file's [frequencies]")
     p.add_argument("--speed-of-sound", type=float_in(1.0, 10000.0, "m/s"), metavar="M_PER_S",
                    help="speed of sound (quick form; default from 20 °C air)")
-    p.add_argument("--threshold-db", type=positive_float, help="strong = within this many dB of the strongest (default 3)")
-    p.add_argument("--snr-db", type=positive_float, help="SNR of the strongest channel, sets the noise floor (default 40)")
+    p.add_argument("--threshold-db", type=positive_float,
+                   help="strong = within this many dB of the strongest (default 3)")
+    p.add_argument("--snr-db", type=positive_float,
+                   help="SNR of the strongest channel, sets the noise floor (default 40)")
     p.add_argument("--track", action="store_true", default=None,
                    help="order and phase-align channels from bin to bin")
     p.add_argument("--chunk-size", type=count(1_000_000), help="frequencies decomposed at once (bounds memory)")

@@ -12,7 +12,8 @@ from ..progress import ProgressBar
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("report", description="Find every plan, filter set, impulse-response set and verification under "
+    p = sub.add_parser("report",
+                       description="Find every plan, filter set, impulse-response set and verification under "
                                    "PROJECT_DIR and write one HTML file with the rig summary, tables, figures, "
                                    "the cautions and the provenance of every result. The file opens offline: "
                                    "no scripts, fonts or styles from elsewhere.")

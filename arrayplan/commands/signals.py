@@ -99,7 +99,8 @@ def _add_level(p: argparse.ArgumentParser, fade_in: float | None, fade_out: floa
     g = p.add_argument_group("level and conditioning")
     m = g.add_mutually_exclusive_group()
     m.add_argument("--peak-dbfs", type=dbfs_level, help="peak level in dBFS (default: the peak cap)")
-    m.add_argument("--rms-dbfs", type=dbfs_level, help="RMS level in dBFS instead (20 log10 rms; full-scale sine = -3.01)")
+    m.add_argument("--rms-dbfs", type=dbfs_level,
+                   help="RMS level in dBFS instead (20 log10 rms; full-scale sine = -3.01)")
     g.add_argument("--peak-cap-dbfs", type=dbfs_level, default=DEFAULT_PEAK_CAP_DBFS,
                    help=f"highest peak allowed without --allow-above-cap (default {DEFAULT_PEAK_CAP_DBFS:g})")
     g.add_argument("--allow-above-cap", action="store_true",
@@ -108,14 +109,17 @@ def _add_level(p: argparse.ArgumentParser, fade_in: float | None, fade_out: floa
                    help=f"raised-cosine fade-in, s (default {_FRESNEL_FADES if fade_in is None else f'{fade_in:g}'})")
     g.add_argument("--fade-out-s", type=nonnegative_float, default=fade_out,
                    help=f"raised-cosine fade-out, s (default {'the same rule' if fade_out is None else f'{fade_out:g}'})")
-    g.add_argument("--highpass-hz", type=positive_float, help="Butterworth high-pass for small drivers, Hz (default none)")
+    g.add_argument("--highpass-hz", type=positive_float,
+                   help="Butterworth high-pass for small drivers, Hz (default none)")
     g.add_argument("--highpass-order", type=count(12), default=2, help="its order (default 2, 12 dB per octave)")
-    g.add_argument("--pad-before-s", type=nonnegative_float, default=0.1, help="silence before the signal, s (default 0.1)")
+    g.add_argument("--pad-before-s", type=nonnegative_float, default=0.1,
+                   help="silence before the signal, s (default 0.1)")
 
 
 def _add_exposure(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("exposure estimate (give the first three to get one)")
-    g.add_argument("--sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"), help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms")
+    g.add_argument("--sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"),
+                   help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms")
     g.add_argument("--amp-vrms", type=positive_float,
                    help="volts RMS at the speaker terminals for a 0 dBFS sine (meter it, or DAC full scale x gain)")
     g.add_argument("--listener-distance-m", type=_csv_floats,
@@ -132,10 +136,12 @@ def _add_sweep(p: argparse.ArgumentParser, *, kind: bool = True) -> None:
     g = p.add_argument_group("sweep")
     if kind:
         g.add_argument("--kind", choices=SWEEP_KINDS, default="exponential", help="sweep law (default exponential)")
-    g.add_argument("--f1-hz", type=positive_float, default=20.0, help="start frequency (noise: lower band edge), Hz (default 20)")
+    g.add_argument("--f1-hz", type=positive_float, default=20.0,
+                   help="start frequency (noise: lower band edge), Hz (default 20)")
     g.add_argument("--f2-hz", type=positive_float, help="end frequency (noise: upper band edge), Hz "
                                                "(default 20000 or 0.45 x rate if lower)")
-    g.add_argument("--duration-s", type=positive_float, default=4.0, help="sweep duration, s, without padding (default 4)")
+    g.add_argument("--duration-s", type=positive_float, default=4.0,
+                   help="sweep duration, s, without padding (default 4)")
     g.add_argument("--pad-after-s", type=nonnegative_float, default=1.0,
                    help="silence after each sweep: the room's decay time and the response length, s (default 1)")
 
@@ -397,7 +403,8 @@ def _run(args: argparse.Namespace) -> int:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add the ``signal`` command and its sub-commands."""
-    p = subparsers.add_parser("signal", description=__doc__.split("\n\n")[1].replace("\n", " "))
+    p = subparsers.add_parser("signal",
+                              description=__doc__.split("\n\n")[1].replace("\n", " "))
     sub = p.add_subparsers(dest="signal", metavar="KIND")
     sub.required = True
 
@@ -429,7 +436,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s = sub.add_parser("bursts", help="tone bursts: a few periods of a tone, repeated")
     s.add_argument("--freq-hz", type=positive_float, required=True, help="tone frequency, Hz")
     s.add_argument("--cycles", type=positive_float, default=10.0, help="periods per burst, fades included (default 10)")
-    s.add_argument("--fade-cycles", type=nonnegative_float, default=2.0, help="fade at each end of a burst, periods (default 2)")
+    s.add_argument("--fade-cycles", type=nonnegative_float, default=2.0,
+                   help="fade at each end of a burst, periods (default 2)")
     s.add_argument("--period-s", type=positive_float, default=0.5, help="time from burst to burst, s (default 0.5)")
     s.add_argument("--count", type=count(), default=8, help="number of bursts (default 8)")
     s.add_argument("--pad-after-s", type=nonnegative_float, default=0.1,

@@ -32,7 +32,8 @@ def _channel_list(text: str) -> list[int] | str:
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("verify", description="Apply a plan's drive and combine weights to impulse responses measured "
+    p = sub.add_parser("verify",
+                       description="Apply a plan's drive and combine weights to impulse responses measured "
                                    "on the real rig; report gain, crosstalk and lost channels per frequency. "
                                    "Exit 0 when every wanted channel passes, 1 when some fail, 2 on bad input.")
     p.add_argument("plan_dir", metavar="PLAN_DIR", help="folder written by 'arrayplan plan'")

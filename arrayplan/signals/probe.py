@@ -91,7 +91,8 @@ def read_filter_wav(path: str | Path, *, sample_rate_hz: float | None = None) ->
         raise InputError("every filter in the file is zero", source=str(path), field="filters")
     if sample_rate_hz is not None and rate != int(round(sample_rate_hz)):
         raise InputError(f"filter file is at {rate} Hz, the probe at {sample_rate_hz:g} Hz", source=str(path),
-                         field="sample_rate_hz", fix=f"use `sample_rate_hz`={rate} or design the filters at the probe's rate")
+                         field="sample_rate_hz",
+                         fix=f"use `sample_rate_hz`={rate} or design the filters at the probe's rate")
     names = filter_names_from_sidecar(path, data.shape[1]) or [f"S{i + 1}" for i in range(data.shape[1])]
     return data, int(rate), names
 
