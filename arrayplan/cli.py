@@ -119,6 +119,17 @@ def _os_error_text(exc: OSError) -> str:
     return " ".join(f"{' -> '.join(paths)}: {cause}".split())
 
 
+#: Set once Ctrl-C has been pressed in this process (see :func:`_interrupt`).
+_interrupted: list[bool] = []
+
+
+def _interrupt(signum: int, frame) -> None:
+    """SIGINT handler: Python's KeyboardInterrupt, remembered so that an error it turns into is still reported
+    as an interruption."""
+    _interrupted.append(True)
+    raise KeyboardInterrupt
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line with `argv` (default ``sys.argv[1:]``); return the exit status.
 
@@ -129,9 +140,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     a traceback.
     """
     command, parser, args = "", None, None
+    _interrupted.clear()
     try:
         if threading.current_thread() is threading.main_thread():
-            signal.signal(signal.SIGINT, signal.default_int_handler)   # Ctrl-C is a KeyboardInterrupt again
+            signal.signal(signal.SIGINT, _interrupt)   # Ctrl-C is a KeyboardInterrupt again, and remembered
         words = list(sys.argv[1:] if argv is None else argv)
         wanted = words[0] if words and not words[0].startswith("-") else None
         parser = build_parser([wanted] if wanted else [])
@@ -168,6 +180,12 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"arrayplan{command}: error: out of memory (fix: use smaller sizes)", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
+        print(f"arrayplan{command}: interrupted", file=sys.stderr)
+        return 130
+    except Exception:
+        if not _interrupted:
+            raise
+        # an interrupt inside a C extension's import can surface as another error (numpy: ImportError)
         print(f"arrayplan{command}: interrupted", file=sys.stderr)
         return 130
 
