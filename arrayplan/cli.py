@@ -49,6 +49,8 @@ COMMANDS: tuple[tuple[str, str, str], ...] = (
      "convert impulse-response sets to and from AES69 (SOFA) files; summarise one"),
     ("verify", "arrayplan.commands.verify",
      "verify planned channels against measured impulse responses"),
+    ("study", "arrayplan.commands.study",
+     "design studies: questions a plan alone does not answer"),
     ("report", "arrayplan.commands.report",
      "write one self-contained HTML report of a project folder"),
 )

@@ -112,6 +112,7 @@ def _sidecar(plan: Plan) -> dict[str, Any]:
         "rig": {"name": rig.name, "source": rig.source, "sha256": rig.sha256,
                 "speed_of_sound_m_per_s": rig.medium.speed_of_sound, "air_absorption": rig.medium.air_absorption},
         "kernel": plan.kernel_name,
+        "kernel_settings": plan.kernel_settings,
         "coupling": "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)",
         "channels": "G = U S V^H per frequency; drive = V, combine = conj(U); power coupling = s^2",
         "normalisation": NORMALISATION,

@@ -27,6 +27,7 @@ from .fileio import sha256_of_text
 from .frequency import FrequencyAxis
 from .limits import MAX_CHANNEL_NUMBER, MAX_ELEMENTS_PER_SIDE, MAX_FREQUENCIES
 from .medium import Medium, speed_of_sound_air
+from .room import ROOM_KEYS, Room, parse_room
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -126,6 +127,7 @@ class Rig:
     name: str = "rig"
     description: str = ""
     source: str = "<arrays>"
+    room: Room | None = None
 
     @property
     def sha256(self) -> str:
@@ -136,6 +138,8 @@ class Rig:
             "medium": [self.medium.speed_of_sound, self.medium.air_absorption, self.medium.temperature_c,
                        self.medium.relative_humidity_pct, self.medium.pressure_kpa],
         }
+        if self.room is not None:
+            canon["room"] = self.room.settings()
         return sha256_of_text(json.dumps(canon, sort_keys=True))
 
     @classmethod
@@ -184,6 +188,9 @@ class Rig:
             out += _side_problems(es, label, self.source)
         if len(self.speakers) and len(self.mics):
             out += _coincident(self.speakers, self.mics, self.source, "speakers/microphones", same=False)
+        if self.room is not None:
+            out += self.room.element_problems(self.speakers, "speakers", self.source)
+            out += self.room.element_problems(self.mics, "microphones", self.source)
         return out[:limit] if limit is not None else out
 
 
@@ -282,7 +289,7 @@ def _coincident(a: ElementSet, b: ElementSet, source: str, label: str, same: boo
 
 # ---------------------------------------------------------------- rig files
 
-_TOP_KEYS = {"rig", "medium", "frequencies", "speakers", "microphones", "hardware", "planning"}
+_TOP_KEYS = {"rig", "medium", "frequencies", "speakers", "microphones", "hardware", "planning", "room"}
 _POINT_KEYS = {"name", "position", "directivity", "channel"}
 _GROUP_KEYS = {"name", "shape", "count", "counts", "spacing", "length", "size", "center", "direction",
                "normal", "facing", "radius", "start_deg", "stop_deg", "directivity", "first_channel"}
@@ -296,6 +303,7 @@ TABLE_KEYS = {
     "hardware": {"device", "sample_rate_hz", "reference", "calibration"},
     "hardware.reference": {"output_channel", "input_channel"},
     "planning": {"threshold_db", "snr_db", "track", "chunk_size"},
+    "room": ROOM_KEYS,
 }
 
 
@@ -761,7 +769,8 @@ def load_rig(path: str | Path) -> Rig:
     air_absorption), ``[frequencies]`` (list, or start/stop/count with
     spacing "log" or "linear"), ``[[speakers]]`` and ``[[microphones]]``
     (each entry one point, one generated group with ``shape``, or one CSV
-    file with ``csv``), ``[hardware]`` and ``[planning]``.  See the README
+    file with ``csv``), ``[hardware]``, ``[planning]`` and ``[room]``
+    (:func:`arrayplan.room.parse_room`).  See the README
     for every key.
 
     Raises
@@ -789,6 +798,7 @@ def load_rig(path: str | Path) -> Rig:
         name=str(meta.get("name", path.stem)),
         description=str(meta.get("description", "")),
         source=src,
+        room=parse_room(doc.get("room"), r),
     )
     rig.validate()
     return rig

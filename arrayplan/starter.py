@@ -17,9 +17,12 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable
+
+import numpy as np
 
 from ._version import __version__
 from .errors import InputError
@@ -316,7 +319,9 @@ LAYOUTS: dict[str, Layout] = {lay.name: lay for lay in (
 
 #: Options every layout takes (besides its own).
 COMMON_DEFAULTS: dict[str, Any] = {"fmin": None, "fmax": None, "freq_count": 48, "temperature_c": 20.0,
-                                   "speed_of_sound": None, "name": None}
+                                   "speed_of_sound": None, "name": None, "room": None}
+#: Space kept between a starter layout placed in a room and the room's walls, m.
+ROOM_MARGIN_M = 0.1
 
 
 def option_flag(option: str) -> str:
@@ -353,7 +358,9 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
         distances in m (``spacing``, ``mic_spacing``, ``distance``,
         ``radius``, ``zone_separation``), and for every layout ``fmin``,
         ``fmax`` (Hz), ``freq_count``, ``temperature_c`` (°C) or
-        ``speed_of_sound`` (m/s), and ``name``.  None means the default.
+        ``speed_of_sound`` (m/s), ``name``, and ``room``: the size of a
+        rectangular room (Lx, Ly, Lz in m, or text ``"LxWxH"``) to centre the
+        layout in, written as a ``[room]`` table.  None means the default.
 
     Returns
     -------
@@ -424,7 +431,66 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
     ]
     while body and body[-1] == "":
         body = body[:-1]
-    return "\n".join(head + body + tail) + "\n"
+    text = "\n".join(head + body + tail) + "\n"
+    if o["room"] is None:
+        return text
+    size = parse_room_size(o["room"], option_flag("room"))
+    return _placed_in_room(head, body, tail, text, size, option_flag("room"))
+
+
+def parse_room_size(value: Any, source: str) -> tuple[float, float, float]:
+    """Room size from three numbers or text ``"LxWxH"`` (metres); InputError naming `source` otherwise."""
+    parts = value.lower().split("x") if isinstance(value, str) else value
+    try:
+        size = tuple(float(p) for p in parts)
+    except (TypeError, ValueError):
+        size = ()
+    if len(size) != 3 or not all(math.isfinite(x) and x > 0 for x in size):
+        raise InputError(f"expected the room's length, width and height in metres as LxWxH, got {value!r}",
+                         source=source, fix="for example 5x4x2.7")
+    return size  # type: ignore[return-value]
+
+
+def _placed_in_room(head: list[str], body: list[str], tail: list[str], text: str,
+                    size: tuple[float, float, float], source: str) -> str:
+    """The starter text with the layout centred on the room's floor plan and a [room] table added."""
+    import tempfile
+
+    from .rig import load_rig
+
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "rig.toml"
+        path.write_text(text, encoding="utf-8")
+        rig = load_rig(path)
+    pts = np.vstack([rig.speakers.positions, rig.mics.positions])
+    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    room = np.asarray(size)
+    shift = np.array([(room[0] - lo[0] - hi[0]) / 2, (room[1] - lo[1] - hi[1]) / 2, 0.0])
+    if np.any(lo + shift < ROOM_MARGIN_M) or np.any(hi + shift > room - ROOM_MARGIN_M):
+        span = hi - lo
+        raise InputError(f"the layout spans {span[0]:.2f} x {span[1]:.2f} m up to {hi[2]:.2f} m high, which does not "
+                         f"fit a {size[0]:g} x {size[1]:g} x {size[2]:g} m room with {ROOM_MARGIN_M:g} m to spare",
+                         source=source, fix="give a larger room or a smaller layout")
+
+    def moved(line: str) -> str:
+        m = re.match(r"^(center|position) = \[([^\]]*)\](.*)$", line)
+        if not m:
+            return line
+        xyz = np.array([float(v) for v in m.group(2).split(",")]) + shift
+        key = f"{m.group(1)} = {_value([round(float(v), 6) for v in xyz])}"
+        rest = m.group(3).strip()
+        return key.ljust(_COMMENT_COLUMN - 1) + " " + rest if rest else key
+
+    room_table = [
+        "",
+        _table("room", "a rectangular room, one corner at the origin, walls on the coordinate planes"),
+        _kv("size_m", [float(x) for x in size], "length (x), width (y), height (z), m"),
+        _kv("absorption", 0.2, "0 rigid .. 1 open; one number or a [room.absorption] table"),
+        _kv("reflection_order", 8, "highest number of reflections kept (image sources)"),
+        "# The room model is specular image sources with angle-independent reflection: a guide to",
+        "# what the room adds, not a measurement.  Measure the built rig ('arrayplan measure').",
+    ]
+    return "\n".join(head + [moved(b) for b in body] + room_table + tail) + "\n"
 
 
 def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = False, **options: Any) -> Path:

@@ -108,7 +108,8 @@ def test_per_speaker_recordings_to_irset(tmp_path, capsys):
     rows = list(csv.DictReader((out / "deconvolution.csv").open()))
     assert len(rows) == 6 and rows[0]["speaker"] == "Left" and rows[0]["mic"] == "a"
     assert float(rows[1]["peak_delay_ms"]) == pytest.approx(1000 * 40 / FS, abs=1e-3)
-    assert all(float(r["harmonic2_db"]) < -35 for r in rows)
+    # Wires are linear: every product is below a floor, none is reported as distortion.
+    assert all(r["harmonic2_db"] == "" and r["harmonic2_status"].startswith("below the") for r in rows)
     h2 = read_irset(out / "harmonic-2")
     assert h2.data.shape[1:] == (3, 2) and h2.extra["harmonic_order"] == 2
     assert h2.zero_lag_samples == h2.extra["nominal_index"]

@@ -167,7 +167,8 @@ def test_known_system_through_sweep_and_deconvolution_matches_freqz(kind, name):
         # The peak sits at the delay, exact to the sample, and is the gain times the unity pulse's peak.
         assert int(np.argmax(np.abs(h))) == delay
         unity_peak = np.max(np.abs(fftconvolve(sw.sweep, sw.inverse)))
-        assert abs(h[delay]) == pytest.approx(0.3 * unity_peak, rel=1e-9)
+        # Deconvolution runs in single precision: about 1e-7 of the peak (float32 epsilon, 1.2e-7).
+        assert abs(h[delay]) == pytest.approx(0.3 * unity_peak, rel=1e-6)
 
 
 @pytest.mark.parametrize("kind", ["exponential", "linear"])
@@ -184,7 +185,7 @@ def test_delay_and_gain_system_peaks_at_the_delay(kind):
         h = d.linear[:, 0]
         k = int(np.argmax(np.abs(h)))
         assert k == delay
-        assert h[k] == pytest.approx(gain * unity[0], rel=1e-9)
+        assert h[k] == pytest.approx(gain * unity[0], rel=1e-6)   # single-precision deconvolution
 
 
 @pytest.mark.parametrize("order", [2, 3, 4])

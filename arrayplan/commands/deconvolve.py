@@ -14,8 +14,12 @@ pulse; the set records the index of zero lag), plus
 ``harmonic-N/`` IR sets with the harmonic distortion products of an
 exponential sweep and ``deconvolution.csv`` with, per speaker and
 microphone, the peak, its delay, the peak-to-noise ratio and each
-harmonic's level.  Clipping and low peak-to-noise are printed as warnings
-and stored in the IR set's warnings.
+harmonic's level with its floor.  A harmonic level is given only where it
+stands clear of the method's own floor (the clean sweep deconvolved as its
+own recording) and the noise floor; otherwise the report says "below the
+method's floor" or "below the noise floor" (see
+:mod:`arrayplan.signals.distortion_floor`).  Clipping and low peak-to-noise
+are printed as warnings and stored in the IR set's warnings.
 """
 
 from __future__ import annotations
@@ -39,7 +43,8 @@ from ..irset import IRSet, write_irset
 from ..progress import ProgressBar
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, impulse_responses,
                                   split_schedule)
-from ..signals.sweeps import SweepRecord
+from ..signals.distortion_floor import DISTORTION_MARGIN_DB, MEASURED, combined_floor_db
+from ..signals.sweep_record import SweepRecord
 from ..signals.wavout import read_recording
 
 __all__ = ["register", "REPORT_NAME"]
@@ -92,6 +97,21 @@ def _pre_roll_samples(pre_ms: float | None, rec_info: SweepRecord, rate: int) ->
         raise InputError(f"{pre_ms:g} ms reaches past {what} ({math.floor(1e4 * top / rate) / 10:g} ms)",
                          field="--pre-ms", fix="use a shorter pre-roll, or a longer sweep")
     return n
+
+
+def _floor(result: Any, order: int, m: int, s: int) -> float:
+    """The floor (method's and noise's together) of one order and pair, dB."""
+    method = None if result.method_floor_db is None else result.method_floor_db[order]
+    return float(combined_floor_db(method, result.noise_floor_db[order][m, s]))
+
+
+def _harmonic_text(result: Any, order: int, s: int) -> str:
+    """``H2 -44.1 dB`` (worst microphone measured) or ``H2 below the method's floor (-66.1 dB)``."""
+    reported = result.reported_harmonic_db(order)[:, s]
+    if np.any(np.isfinite(reported)):
+        return f"H{order} {np.nanmax(reported):.1f} dB"
+    m = int(np.argmax([_floor(result, order, m, s) for m in range(reported.size)]))
+    return f"H{order} {result.harmonic_status[order][m, s]} ({_floor(result, order, m, s):.1f} dB)"
 
 
 def _run(args: argparse.Namespace) -> int:
@@ -177,11 +197,15 @@ def _run(args: argparse.Namespace) -> int:
                         f"the response length {ir_len / rate:.3f} s: a long room tail may overlap the distortion "
                         "products (a longer sweep separates them further)")
 
+    clean = rec_info.clean_recording() if offsets else None
+    if offsets and clean is None:
+        notes.append("the sidecar does not say how the sweep was faded, so the method's own distortion floor is "
+                     "unknown: harmonic levels are judged against the noise floor only")
     with ProgressBar("deconvolving speakers") as bar:
         result = impulse_responses(recordings, inverse, linear_lag=rec_info.linear_lag_samples, ir_length=ir_len,
                                    harmonic_offsets=offsets, speaker_names=speakers, mic_names=mics,
                                    min_peak_to_noise_db=args.min_pnr_db, clip_threshold=CLIP_THRESHOLD,
-                                   pre_roll_samples=pre_roll, progress=bar)
+                                   pre_roll_samples=pre_roll, clean_recording=clean, progress=bar)
     warnings += result.warnings
 
     def fin(v: float) -> float | None:
@@ -191,8 +215,14 @@ def _run(args: argparse.Namespace) -> int:
                             "peak_delay_s": float(result.peak_index[m, s] - pre_roll) / rate,
                             "peak_to_noise_db": fin(result.peak_to_noise_db[m, s]),
                             "clipped_samples": int(result.clipped_samples[m, s]),
-                            "harmonic_db": {str(n): fin(v[m, s]) for n, v in result.harmonic_db.items()},
-                            "thd_db": fin(result.thd_db[m, s]) if result.harmonic_db else None}
+                            "harmonic_db": {str(n): fin(result.reported_harmonic_db(n)[m, s])
+                                            for n in result.harmonic_db},
+                            "harmonic_status": {str(n): str(result.harmonic_status[n][m, s])
+                                                for n in result.harmonic_db},
+                            "harmonic_floor_db": {str(n): fin(_floor(result, n, m, s)) for n in result.harmonic_db},
+                            "thd_db": fin(result.thd_db[m, s]) if result.harmonic_db else None,
+                            "thd_status": (None if not result.harmonic_db else MEASURED
+                                           if math.isfinite(result.thd_db[m, s]) else "below the floors")}
                       for m, mic in enumerate(mics)} for s, spk in enumerate(speakers)}
     extra = {"producer": "arrayplan deconvolve (offline)", "sweep_sidecar": side_path.name,
              "sweep": side.get("sweep"), "recordings": recorded,
@@ -204,6 +234,17 @@ def _run(args: argparse.Namespace) -> int:
                           f"the sweep's: {side['sweep'].get('pre_roll_rule', 'one Fresnel time at f1')}"},
              "peak_delay_definition": "time of the largest sample after zero lag",
              "harmonic_level_definition": "10 log10 of the product's energy over the linear response's energy",
+             "harmonic_floor": {
+                 "method_floor_db": ({str(n): fin(v) for n, v in result.method_floor_db.items()}
+                                     if result.method_floor_db is not None else None),
+                 "method_floor_definition": "harmonic levels of the clean sweep file deconvolved as its own "
+                                            "recording (a unity wire): the method's own artefacts",
+                 "noise_floor_definition": "the response tail's noise power (last 10 %) times each harmonic "
+                                           "window's length, over the linear response's energy",
+                 "margin_db": DISTORTION_MARGIN_DB,
+                 "rule": "a harmonic level is reported only when it exceeds the energy sum of both floors by "
+                         "the margin; otherwise harmonic_db is null and harmonic_status says which floor it is "
+                         "below; thd_db sums the reported products only"},
              "peak_to_noise_definition": "20 log10 of the peak over the RMS of the last 10 % of the response",
              "notes": notes, "per_pair": per_pair}
     irs = IRSet(data=result.data, sample_rate_hz=float(rate), speaker_names=speakers, mic_names=mics,
@@ -214,13 +255,15 @@ def _run(args: argparse.Namespace) -> int:
     orders = sorted(result.harmonic_db)
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["speaker", "mic", "peak_db", "peak_delay_ms", "peak_to_noise_db", "clipped_samples"]
-               + [f"harmonic{n}_db" for n in orders] + (["thd_db"] if orders else []))
+               + [f"harmonic{n}_{c}" for n in orders for c in ("db", "floor_db", "status")]
+               + (["thd_db", "thd_status"] if orders else []))
     for s, spk in enumerate(speakers):
         for m, mic in enumerate(mics):
             cell = per_pair[spk][mic]
             w.writerow([spk, mic, cell["peak_db"], round(1000 * cell["peak_delay_s"], 4), cell["peak_to_noise_db"],
-                        cell["clipped_samples"]] + [cell["harmonic_db"][str(n)] for n in orders]
-                       + ([cell["thd_db"]] if orders else []))
+                        cell["clipped_samples"]]
+                       + [cell[f"harmonic_{c}"][str(n)] for n in orders for c in ("db", "floor_db", "status")]
+                       + ([cell["thd_db"], cell["thd_status"]] if orders else []))
 
     with staged_output_dir(args.out) as stage:
         write_irset(stage, irs, command="arrayplan deconvolve")
@@ -246,7 +289,7 @@ def _run(args: argparse.Namespace) -> int:
         worst = float(np.min(result.peak_to_noise_db[:, s]))
         text = f"  {spk}: peak-to-noise {worst:.1f} dB (lowest mic)"
         if orders:
-            text += ", " + ", ".join(f"H{n} {np.max(result.harmonic_db[n][:, s]):.1f} dB" for n in orders)
+            text += ", " + ", ".join(_harmonic_text(result, n, s) for n in orders)
         print(text)
     return 0
 

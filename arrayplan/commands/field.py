@@ -13,7 +13,7 @@ from ..channels import decompose_stack
 from ..errors import InputError
 from ..field import PlaneGrid, channel_field, default_plane
 from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic
-from ..kernels.freefield import FreeFieldKernel
+from ..kernels import rig_kernel
 from ..plots import plot_field
 from ..progress import ProgressBar
 from ..rig import Rig, load_rig
@@ -78,7 +78,7 @@ def run(args: argparse.Namespace) -> int:
     if not 8 <= args.resolution <= 2000:
         raise InputError(f"must be 8..2000, got {args.resolution}", source="--resolution")
     check_plan_size(rig, 1, 1)
-    g = FreeFieldKernel(rig).evaluate(np.array([args.freq]))
+    g = rig_kernel(rig).evaluate(np.array([args.freq]))
     s, drive, _ = decompose_stack(g)
     n_chan = s.shape[1]
     if not 1 <= args.channel <= n_chan:

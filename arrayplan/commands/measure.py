@@ -111,7 +111,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--f2", type=positive_float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
     s.add_argument("--duration-s", type=positive_float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
     s.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB",
-                   help="sweep peak level (default: the peak cap, -12 dBFS)")
+                   help="sweep true peak level, 4x oversampled (default: the peak cap, -12 dBFS)")
     s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
     s.add_argument("--repeats", type=count(), default=1, metavar="N", help="sweeps per take, averaged (default 1)")
     s.add_argument("--ir-s", type=positive_float, default=0.5, metavar="S",
@@ -130,8 +130,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     add_level_options(p)
     m = p.add_argument_group("simulated rig (nothing plays)")
     m.add_argument("--simulate", action="store_true",
-                   help="measure a simulated rig: the rig's free-field responses plus latency, noise, a mild "
-                        "nonlinearity and optional dropouts")
+                   help="measure a simulated rig: the rig's free-field (or [room]) responses plus latency, noise, "
+                        "a mild nonlinearity and optional dropouts")
     m.add_argument("--sim-latency-samples", type=nonnegative_count(10_000_000), default=300, metavar="N",
                    help="default 300")
     m.add_argument("--sim-noise-dbfs", type=dbfs_level, default=-90.0, metavar="DB",
@@ -198,12 +198,23 @@ def _check_take_size(args: argparse.Namespace, wiring: Any, fs: float) -> None:
                  f"input(s) at {fs:g} Hz", field="repeats")
 
 
+def _warn_above_cap(args: argparse.Namespace, sweep: Any) -> None:
+    """Print the warning ``signal`` prints when a sweep's true peak is above the cap (with consent)."""
+    from ..signals.levels import DEFAULT_PEAK_CAP_DBFS, true_peak_dbfs
+    from .signals import above_cap_warning
+
+    text = above_cap_warning(true_peak_dbfs(sweep.sweep), DEFAULT_PEAK_CAP_DBFS) if args.allow_above_cap else None
+    if text is not None:
+        print(f"warning: {text}", file=sys.stderr)
+
+
 def run(args: argparse.Namespace) -> int:
     from ..hardware.calibration import read_calibration
     from ..hardware.measure import MeasurementSettings, RigWiring, measure
     from ..rig import load_rig
     from ..safety import print_caution
     from ..signals.deconvolve import DEFAULT_MIN_PEAK_TO_NOISE_DB
+    from ..signals.levels import peak_dbfs, true_peak_dbfs
     from ..signals.sweeps import make_sweep
 
     if Path(args.out).exists() and not Path(args.out).is_dir():
@@ -231,8 +242,10 @@ def run(args: argparse.Namespace) -> int:
                                       latency_samples=args.sim_latency_samples, noise_rms_dbfs=args.sim_noise_dbfs,
                                       nonlinearity=_parse_coefficients(args.sim_nonlinearity),
                                       dropouts_per_take=args.sim_dropouts, seed=args.sim_seed)
-        settings.pre_roll_samples(make_sweep(settings.sweep_settings(fs)))  # refuse bad options before anything else
+        sweep = make_sweep(settings.sweep_settings(fs))
+        settings.pre_roll_samples(sweep)  # refuse bad options before anything else
         print(f"Simulated rig: nothing is played ({link.description}).", file=sys.stderr)
+        _warn_above_cap(args, sweep)
     else:
         from ..hardware.duplex import SoundDeviceLink
 
@@ -246,9 +259,11 @@ def run(args: argparse.Namespace) -> int:
             outs = [calibration.output(c + 1) for c in wiring.speaker_outputs]
             if all(o is not None for o in outs):
                 amp = max(o.volts_per_full_scale for o in outs) / math.sqrt(2.0)
-        print(f"Sweep: {settings.f1_hz:g} Hz to {sweep.settings.f2_hz:g} Hz, {settings.sweep_s:g} s, peak "
-              f"{sweep.settings.level()['peak_dbfs']:+.1f} dBFS, {settings.repeats} per speaker, "
+        print(f"Sweep: {settings.f1_hz:g} Hz to {sweep.settings.f2_hz:g} Hz, {settings.sweep_s:g} s, true peak "
+              f"{true_peak_dbfs(sweep.sweep):+.1f} dBFS (sample peak {peak_dbfs(sweep.sweep):+.1f} dBFS), "
+              f"{settings.repeats} per speaker, "
               f"{len(wiring.speaker_names)} speakers, one at a time, faded in and out.", file=sys.stderr)
+        _warn_above_cap(args, sweep)
         print_level_estimate(args, sweep.signal, link.sample_rate_hz, amp)
         confirm_before_playing(args.yes, f"{len(wiring.speaker_names)} sweeps through {link.description}")
 

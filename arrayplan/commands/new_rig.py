@@ -48,6 +48,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     g.add_argument("--speed-of-sound", type=float_in(1.0, 10000.0, "m/s"), metavar="M_PER_S",
                    help="speed of sound instead of temperature")
     g.add_argument("--name", help="rig name (default: the layout's)")
+    g.add_argument("--room", metavar="LxWxH",
+                   help="centre the layout in a rectangular room of this size, m (adds a [room] table)")
     p.set_defaults(run=run, parameter_flags={"temperature_c": "--temperature"})
 
 
@@ -71,7 +73,7 @@ def run(args: argparse.Namespace) -> int:
                "mic_spacing": args.mic_spacing, "distance": args.distance, "radius": args.radius,
                "zone_separation": args.zone_separation, "fmin": args.fmin, "fmax": args.fmax,
                "freq_count": args.freq_count, "temperature_c": args.temperature,
-               "speed_of_sound": args.speed_of_sound, "name": args.name}
+               "speed_of_sound": args.speed_of_sound, "name": args.name, "room": args.room}
     path = write_starter_rig(args.out, args.layout, force=args.force, **options)
     rig = load_rig(path)
     hz = rig.frequencies.hz if rig.frequencies is not None else None

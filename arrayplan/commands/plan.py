@@ -11,6 +11,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..irset import IRSet, read_irset
+from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
 from ._args import (add_measured_kernel_options, add_memory_limit, count, float_in, measured_kernel_from_args,
                     positive_float)
@@ -45,6 +46,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="plan from this measured impulse-response set (IR-set folder or AES69/SOFA file) "
                         "instead of the free field")
     add_measured_kernel_options(p, prefix="with --irset: ")
+    p.add_argument("--free-field", action="store_true",
+                   help="plan in the free field even when the rig file has a [room] table")
     p.add_argument("--no-figures", action="store_true", help="write tables and weights only")
     add_memory_limit(p)
     p.set_defaults(run=run)
@@ -125,11 +128,15 @@ def run(args: argparse.Namespace) -> int:
     rig = rig_from_args(args)
     kernel = None
     if args.irset:
+        if args.free_field:
+            raise InputError("give --irset or --free-field, not both", source="--free-field")
         rig, kernel = _measured_kernel(args, rig)
+    elif args.free_field:
+        kernel = rig_kernel(rig, free_field=True)
     elif args.window_ms is not None or args.latency_samples or args.smooth_octaves is not None:
         raise InputError("applies only with --irset", source="--window-ms/--latency-samples/--smooth-octaves")
     axis = FrequencyAxis(sorted(args.freq), source="--freq") if args.freq else None
-    if kernel is not None:
+    if args.irset:
         top = (axis or rig.frequencies)
         if top is not None and top.hz[-1] >= kernel.sample_rate_hz / 2:
             raise InputError(f"plan frequency {top.hz[-1]:g} Hz is not below the IR set's Nyquist frequency "

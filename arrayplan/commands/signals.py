@@ -30,8 +30,8 @@ from ..errors import InputError
 from ..fileio import provenance
 from ..safety import (CAUTION_NOTE, DEFAULT_MAX_DBA, check_exposure, estimate_exposure, format_exposure,
                       print_caution)
-from ..signals.levels import (DEFAULT_PEAK_CAP_DBFS, block_dc, channel_rms_dbfs, check_peak, condition, peak_dbfs,
-                              rms_dbfs, scale_to_level)
+from ..signals.levels import (DEFAULT_PEAK_CAP_DBFS, block_dc, channel_rms_dbfs, check_peak, condition,
+                              effective_cap_dbfs, peak_dbfs, rms_dbfs, scale_to_level, true_peak_dbfs)
 from ..signals.noise import NOISE_COLOURS, band_limited_noise
 from ..signals.probe import channel_probe, read_filter_wav
 from ..signals.schedule import measurement_schedule
@@ -39,7 +39,7 @@ from ..signals.sweeps import SWEEP_KINDS, SweepSettings, make_sweep
 from ..signals.tones import stepped_tones, tone_bursts
 from ..signals.wavout import SAMPLE_FORMATS, inverse_path, sidecar_path, write_signal_files
 
-__all__ = ["register", "SIGNAL_FORMAT"]
+__all__ = ["register", "SIGNAL_FORMAT", "above_cap_warning"]
 
 SIGNAL_FORMAT = "arrayplan-signal"
 
@@ -98,13 +98,16 @@ _NOISE_PROBE_FADES = (0.02, 0.005)
 def _add_level(p: argparse.ArgumentParser, fade_in: float | None, fade_out: float | None) -> None:
     g = p.add_argument_group("level and conditioning")
     m = g.add_mutually_exclusive_group()
-    m.add_argument("--peak-dbfs", type=dbfs_level, help="peak level in dBFS (default: the peak cap)")
-    m.add_argument("--rms-dbfs", type=dbfs_level,
-                   help="RMS level in dBFS instead (20 log10 rms; full-scale sine = -3.01)")
+    m.add_argument("--peak-dbfs", type=dbfs_level,
+                   help="true peak level in dBFS, 4x oversampled (default: the peak cap)")
+    m.add_argument("--rms-dbfs", type=dbfs_level, help="RMS level of the signal without its padding, in dBFS instead "
+                                                      "(20 log10 rms; full-scale sine = -3.01)")
     g.add_argument("--peak-cap-dbfs", type=dbfs_level, default=DEFAULT_PEAK_CAP_DBFS,
-                   help=f"highest peak allowed without --allow-above-cap (default {DEFAULT_PEAK_CAP_DBFS:g})")
+                   help=f"highest true peak allowed (default {DEFAULT_PEAK_CAP_DBFS:g}); lowering it needs "
+                        "nothing, raising it needs --allow-above-cap")
     g.add_argument("--allow-above-cap", action="store_true",
-                   help="allow a peak above the cap (never above 0 dBFS: clipping is always refused)")
+                   help="allow a true peak above the default cap or the cap given (never above 0 dBFS: "
+                        "clipping is always refused)")
     g.add_argument("--fade-in-s", type=nonnegative_float, default=fade_in,
                    help=f"raised-cosine fade-in, s (default {_FRESNEL_FADES if fade_in is None else f'{fade_in:g}'})")
     g.add_argument("--fade-out-s", type=nonnegative_float, default=fade_out,
@@ -158,6 +161,30 @@ def _level_kwargs(args: argparse.Namespace) -> dict[str, float | None]:
     return {"peak_dbfs": args.peak_dbfs, "rms_dbfs": args.rms_dbfs}
 
 
+def _check_cap_option(args: argparse.Namespace, src: str) -> None:
+    """Refuse a cap raised above the default without consent: raising the cap lifts it."""
+    cap = args.peak_cap_dbfs
+    if not math.isfinite(cap):
+        raise InputError(f"must be a finite number of dBFS, got {cap!r}", source=src, field="--peak-cap-dbfs")
+    if cap > DEFAULT_PEAK_CAP_DBFS and not args.allow_above_cap:
+        raise InputError(f"a cap of {cap:+.1f} dBFS is above the default {DEFAULT_PEAK_CAP_DBFS:+.1f} dBFS: raising "
+                         "the cap lifts it", source=src, field="--peak-cap-dbfs",
+                         fix="keep the cap at or below the default, or add --allow-above-cap if you really need it")
+
+
+def above_cap_warning(true_peak: float, cap_dbfs: float) -> str | None:
+    """The warning printed when a signal's true peak is above the cap (with consent), else None.
+
+    `cap_dbfs` is the cap asked for; the warning is given above the lower of it and the default cap.
+    """
+    limit = min(cap_dbfs, DEFAULT_PEAK_CAP_DBFS)
+    if not true_peak > limit + 1e-9:
+        return None
+    which = "the cap" if limit == cap_dbfs else "the default cap"
+    return (f"true peak {true_peak:+.2f} dBFS is above {which} of {limit:+.1f} dBFS (allowed by --allow-above-cap): "
+            "check the level at the speaker and the listeners before playing")
+
+
 def _finish(x: np.ndarray, args: argparse.Namespace, src: str) -> np.ndarray:
     """Condition, set the level, and check the cap of a generated signal."""
     y = condition(x, args.rate_hz, fade_in_s=args.fade_in_s, fade_out_s=args.fade_out_s,
@@ -201,22 +228,28 @@ def _build_sweep(args: argparse.Namespace, src: str) -> dict[str, Any]:
     inv = inverse_path(args.out)
     return {"signal": sw.signal[:, None], "kind": f"{sw.settings.kind}_sweep", "sweep": sw.sidecar(inv.name),
             "extra_wavs": {inv: sw.inverse}, "combine": "coherent", "channel_names": ["S1"],
-            "parameters": {}, "fades": (sw.settings.fade_in_s, sw.settings.fade_out_s)}
+            "parameters": {}, "fades": (sw.settings.fade_in_s, sw.settings.fade_out_s),
+            "active": sw.sweep[:, None], "active_basis": "the sweep without the silence before and after it"}
 
 
 def _build_noise(args: argparse.Namespace, src: str) -> dict[str, Any]:
     raw = band_limited_noise(args.colour, args.duration_s, args.rate_hz, args.f1_hz, _f2(args),
                              seed=args.seed, source=src)
-    x = _pad(_finish(raw, args, src), args.pad_before_s, args.pad_after_s, args.rate_hz, src)
+    active = _finish(raw, args, src)
+    x = _pad(active, args.pad_before_s, args.pad_after_s, args.rate_hz, src)
     return {"signal": x, "kind": f"{args.colour}_noise", "combine": "coherent", "channel_names": ["S1"],
+            "active": active, "active_basis": "the noise without the silence before and after it",
             "parameters": {"colour": args.colour, "f1_hz": args.f1_hz, "f2_hz": _f2(args),
                            "duration_s": args.duration_s, "seed": args.seed}}
 
 
 def _build_tones(args: argparse.Namespace, src: str) -> dict[str, Any]:
     raw = stepped_tones(args.freqs_hz, args.tone_s, args.gap_s, args.rate_hz, args.fade_in_s, source=src)
-    x = _pad(_finish(raw, args, src), args.pad_before_s, args.pad_after_s, args.rate_hz, src)
+    active = _finish(raw, args, src)
+    x = _pad(active, args.pad_before_s, args.pad_after_s, args.rate_hz, src)
     return {"signal": x, "kind": "stepped_tones", "combine": "coherent", "channel_names": ["S1"],
+            "active": active, "active_basis": "from the first tone's start to the last tone's end, the gaps "
+                                              "between tones included, without the silence before and after",
             "parameters": {"freqs_hz": args.freqs_hz, "tone_s": args.tone_s, "gap_s": args.gap_s,
                            "tone_fade_s": args.fade_in_s}}
 
@@ -224,8 +257,11 @@ def _build_tones(args: argparse.Namespace, src: str) -> dict[str, Any]:
 def _build_bursts(args: argparse.Namespace, src: str) -> dict[str, Any]:
     raw = tone_bursts(args.freq_hz, args.cycles, args.period_s, args.count, args.rate_hz,
                       fade_cycles=args.fade_cycles, source=src)
-    x = _pad(_finish(raw, args, src), args.pad_before_s, args.pad_after_s, args.rate_hz, src)
+    active = _finish(raw, args, src)
+    x = _pad(active, args.pad_before_s, args.pad_after_s, args.rate_hz, src)
     return {"signal": x, "kind": "tone_bursts", "combine": "coherent", "channel_names": ["S1"],
+            "active": active, "active_basis": "from the first burst's start to the last period's end, the "
+                                              "silences between bursts included, without the padding",
             "parameters": {"freq_hz": args.freq_hz, "cycles": args.cycles, "period_s": args.period_s,
                            "count": args.count, "fade_cycles": args.fade_cycles}}
 
@@ -252,6 +288,8 @@ def _build_schedule(args: argparse.Namespace, src: str) -> dict[str, Any]:
     inv = inverse_path(args.out)
     return {"signal": sched.signal, "kind": f"{sw.settings.kind}_sweep_schedule", "sweep": sw.sidecar(inv.name),
             "extra_wavs": {inv: sw.inverse}, "combine": "one_at_a_time", "channel_names": names,
+            "active": sw.sweep[:, None], "active_basis": "one speaker's sweep, without the silence around it "
+                                                         "(every speaker plays the same sweep in turn)",
             "parameters": {"n_speakers": len(names)}, "fades": (sw.settings.fade_in_s, sw.settings.fade_out_s),
             "schedule": {"segment_length_samples": sched.segment_length,
                          "speakers": [{"speaker": n, "channel": k + 1, "sweep_start_sample": sched.sweep_starts[k],
@@ -302,6 +340,7 @@ def _build_probe(args: argparse.Namespace, src: str) -> dict[str, Any]:
                                      "per unit channel input",
         })
     return {"signal": x, "kind": f"channel_probe_{args.source}", "sweep": sweep_block, "extra_wavs": extra,
+            "active": played, "active_basis": "every speaker's drive together, without the padding",
             "combine": "coherent", "channel_names": names, "fades": fades,
             "parameters": {"source": args.source, "f1_hz": args.f1_hz, "f2_hz": _f2(args),
                            "duration_s": args.duration_s, "seed": getattr(args, "seed", None)},
@@ -333,11 +372,49 @@ def _exposure(args: argparse.Namespace, x: np.ndarray, combine: str, src: str):
                              sensitivity_vrms=args.sensitivity_vrms, combine=combine)
 
 
+_DBFS_CONVENTION = ("20 log10 of peak or RMS, full scale = 1 (full-scale sine: -3.01 dBFS RMS); true peak: "
+                    "4x oversampled, ITU-R BS.1770-4 Annex 2")
+
+
+def _level_block(args: argparse.Namespace, x: np.ndarray, built: dict[str, Any]) -> dict[str, Any]:
+    """The sidecar's level block: levels of the active part, the request, the whole file's RMS."""
+    active = built.get("active")
+    block: dict[str, Any] = {"dbfs_convention": _DBFS_CONVENTION}
+    if active is None:
+        block.update({"basis": "whole file", "peak_dbfs": peak_dbfs(x), "true_peak_dbfs": true_peak_dbfs(x),
+                      "rms_dbfs": rms_dbfs(x), "file_rms_dbfs": rms_dbfs(x)})
+        return block
+    requested = _level_kwargs(args)
+    block.update({
+        "basis": "active part: " + built["active_basis"],
+        "requested_peak_dbfs": requested["peak_dbfs"], "requested_rms_dbfs": requested["rms_dbfs"],
+        "requested_peak_basis": "true peak" if requested["peak_dbfs"] is not None else None,
+        "peak_dbfs": peak_dbfs(active), "true_peak_dbfs": true_peak_dbfs(x),
+        "rms_dbfs": rms_dbfs(active), "channel_rms_dbfs": [_finite(v) for v in channel_rms_dbfs(active)],
+        "file_rms_dbfs": rms_dbfs(x),
+        "file_rms_note": "RMS over the whole file, silence included (lower than the active part's)",
+        "peak_cap_dbfs": args.peak_cap_dbfs,
+        "cap_applied_dbfs": effective_cap_dbfs(args.peak_cap_dbfs, args.allow_above_cap),
+        "above_cap_allowed": bool(args.allow_above_cap)})
+    return block
+
+
+def _level_text(level: dict[str, Any]) -> str:
+    """One-line summary of a level block for the printout."""
+    if level["basis"] == "whole file":
+        return f"peak {level['peak_dbfs']:+.2f} dBFS"
+    return (f"true peak {level['true_peak_dbfs']:+.2f} dBFS, sample peak {level['peak_dbfs']:+.2f} dBFS, "
+            f"RMS {level['rms_dbfs']:+.2f} dBFS of the active part, {level['file_rms_dbfs']:+.2f} dBFS "
+            "over the whole file")
+
+
 def _run(args: argparse.Namespace) -> int:
     src = f"signal {args.signal}"
     seconds, channels = _signal_size(args)
     check_memory(_COPIES * 8.0 * seconds * args.rate_hz * channels,
                  f"a {seconds:.3g} s signal of {channels} channel(s) at {args.rate_hz} Hz", source=src)
+    if hasattr(args, "peak_cap_dbfs"):
+        _check_cap_option(args, src)
     built = _BUILDERS[args.signal](args, src)
     x = built["signal"]
     playable = built.get("playable", True)
@@ -349,9 +426,10 @@ def _run(args: argparse.Namespace) -> int:
     elif playable:
         warnings.append("no exposure estimate: give --sensitivity-db-spl, --amp-vrms and --listener-distance-m "
                         "to check the level at the listeners")
-    if getattr(args, "allow_above_cap", False) and peak_dbfs(x) > args.peak_cap_dbfs + 1e-9:
-        warnings.append(f"peak {peak_dbfs(x):+.2f} dBFS is above the cap of {args.peak_cap_dbfs:+.1f} dBFS "
-                        "(allowed by --allow-above-cap)")
+    level = _level_block(args, x, built)
+    above = above_cap_warning(level["true_peak_dbfs"], args.peak_cap_dbfs) if playable else None
+    if above is not None:
+        warnings.append(above)
     sidecar = {
         "format": SIGNAL_FORMAT,
         "format_version": 1,
@@ -362,11 +440,7 @@ def _run(args: argparse.Namespace) -> int:
         "n_channels": int(x.shape[1]),
         "channel_names": built["channel_names"],
         "sample_format": args.format,
-        "level": {"peak_dbfs": _finite(peak_dbfs(x)), "rms_dbfs": _finite(rms_dbfs(x)),
-                  "channel_rms_dbfs": [_finite(v) for v in channel_rms_dbfs(x)],
-                  "peak_cap_dbfs": getattr(args, "peak_cap_dbfs", None),
-                  "above_cap_allowed": bool(getattr(args, "allow_above_cap", False)),
-                  "dbfs_convention": "20 log10 of peak or RMS, full scale = 1 (full-scale sine: -3.01 dBFS RMS)"},
+        "level": {k: (_finite(v) if isinstance(v, float) else v) for k, v in level.items()},
         "conditioning": _conditioning(args, built.get("fades")) if playable else None,
         "parameters": built["parameters"],
         "sweep": built.get("sweep"),
@@ -393,7 +467,7 @@ def _run(args: argparse.Namespace) -> int:
     for w in warnings:
         print(f"arrayplan signal: warning: {w}", file=sys.stderr)
     print(f"wrote {written[0]} ({built['kind']}, {x.shape[1]} channel(s), {x.shape[0] / args.rate_hz:.3f} s at "
-          f"{args.rate_hz} Hz, {args.format}; peak {peak_dbfs(x):+.2f} dBFS, RMS {rms_dbfs(x):+.2f} dBFS)")
+          f"{args.rate_hz} Hz, {args.format}; {_level_text(level)})")
     for p in written[1:]:
         print(f"wrote {p}")
     if estimate is not None:

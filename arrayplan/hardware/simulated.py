@@ -113,15 +113,19 @@ class SimulatedLink:
 
     @classmethod
     def from_rig(cls, rig, sample_rate_hz: float, n_ir_samples: int, **options) -> "SimulatedLink":
-        """A simulated link whose truth is the rig's free-field responses.
+        """A simulated link whose truth is the rig's model responses: its room when it has one, else the free field.
+
+        A room's responses are made at least as long as its longest image
+        path, whatever `n_ir_samples` asks for.
 
         Channels come from the rig (its 1-based numbers become 0-based here),
         and so does the loopback reference when the rig names one.  Keyword
         options are those of the constructor.
         """
-        from ..simulate import free_field_irset
+        from ..simulate import free_field_irset, rig_irset
 
-        truth = free_field_irset(rig, sample_rate_hz, n_ir_samples)
+        truth = (rig_irset(rig, sample_rate_hz, n_ir_samples) if rig.room is not None
+                 else free_field_irset(rig, sample_rate_hz, n_ir_samples))
         hw = rig.hardware
         if "reference" not in options and hw.reference_output and hw.reference_input:
             options["reference"] = (hw.reference_output - 1, hw.reference_input - 1)

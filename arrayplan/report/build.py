@@ -14,11 +14,13 @@ from .._version import __version__
 from ..errors import InputError
 from ..fileio import SIGN_CONVENTION, write_text_atomic
 from ..irset import MANIFEST_NAME
+from ..planning import Plan
 from ..rig import Rig
 from ..safety import CAUTION_TEXT
-from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundVerification, ProjectResults, find_results
+from .discover import (FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification, ProjectResults,
+                       find_results)
 from .figures import (ReportFigure, filter_figures, irset_figures, plan_figures, png_bytes, report_style,
-                      verification_figures)
+                      study_figures, verification_figures)
 from .html import esc, figure_html, page, table
 
 __all__ = ["build_report", "write_report"]
@@ -58,30 +60,75 @@ def _figures_html(figs: list[ReportFigure], label: str) -> str:
 
 #: Two channels whose singular values differ by less than this (dB) are reported as degenerate.
 DEGENERATE_DB = 0.01
+#: Two channels closer than this (dB) are reported as near-degenerate: the pairs that mix first.
+NEAR_DEGENERATE_DB = 1.0
+#: Channels weaker than this re the strongest (dB) are left out of both checks.
+_DEGENERATE_FLOOR_DB = -60.0
 
 
-def degenerate_pairs(singular_values: np.ndarray, level_db: np.ndarray) -> list[tuple[int, int]]:
-    """Neighbouring channels (j, j + 1) with equal singular values, and at how many frequencies.
+def degenerate_pairs(singular_values: np.ndarray, level_db: np.ndarray,
+                     within_db: float = DEGENERATE_DB) -> list[tuple[tuple[int, int], int]]:
+    """Pairs of channels whose singular values lie within `within_db` of each other, and where.
+
+    At each frequency the channels are ranked by singular value, and each two
+    neighbours in that ranking closer than `within_db` form a pair; pairs are
+    named by their channel numbers, so a tracked plan (whose numbers do not
+    follow the ranking) is counted by the channels themselves.
 
     Parameters
     ----------
     singular_values : ndarray, shape (n_freq, n_chan)
     level_db : ndarray, shape (n_freq, n_chan)
         Levels re the strongest channel, dB; channels below -60 dB are ignored.
+    within_db : float
+        Largest gap 20 log10(s_a / s_b) of a pair, dB.
 
     Returns
     -------
-    list of (j, count)
-        0-based first channel of the pair and the number of frequencies where it is degenerate.
+    list of ((a, b), count)
+        0-based channel numbers a < b of each pair and the number of frequencies where they are
+        that close, in the order of a, then b.
     """
     s = np.asarray(singular_values, dtype=float)
-    if s.shape[1] < 2:
+    if s.ndim != 2 or s.shape[1] < 2:
         return []
+    order = np.argsort(-s, axis=1, kind="stable")
+    ranked = np.take_along_axis(s, order, axis=1)
+    loud = np.take_along_axis(np.asarray(level_db, dtype=float), order, axis=1) > _DEGENERATE_FLOOR_DB
     with np.errstate(divide="ignore", invalid="ignore"):
-        gap_db = np.abs(20.0 * np.log10(s[:, :-1] / s[:, 1:]))
-    loud = (level_db[:, :-1] > -60.0) & (level_db[:, 1:] > -60.0)
-    counts = np.sum((gap_db < DEGENERATE_DB) & loud, axis=0)
-    return [(int(j), int(n)) for j, n in enumerate(counts) if n]
+        gap_db = np.abs(20.0 * np.log10(ranked[:, :-1] / ranked[:, 1:]))
+    close = (gap_db < within_db) & loud[:, :-1] & loud[:, 1:]
+    counts: dict[tuple[int, int], int] = {}
+    for f, j in zip(*np.nonzero(close)):
+        a, b = sorted((int(order[f, j]), int(order[f, j + 1])))
+        counts[(a, b)] = counts.get((a, b), 0) + 1
+    return sorted(counts.items())
+
+
+def _pairs_text(pairs: list[tuple[tuple[int, int], int]], n_freq: int) -> str:
+    return "; ".join(f"channels {a + 1} and {b + 1} at {n} of {n_freq} frequencies" for (a, b), n in pairs[:6])
+
+
+def _degeneracy_notes(plan: Plan) -> list[str]:
+    """The report's notes on degenerate and near-degenerate channel pairs (HTML paragraphs)."""
+    ch = plan.channels
+    n_freq = len(ch.axis)
+    level = ch.level_db()
+    exact = degenerate_pairs(ch.singular_values, level, DEGENERATE_DB)
+    near = [p for p in degenerate_pairs(ch.singular_values, level, NEAR_DEGENERATE_DB)
+            if p[0] not in dict(exact)]
+    notes = []
+    if exact:
+        notes.append(f'<p class="note">Degenerate channels (singular values within {DEGENERATE_DB:g} dB, above '
+                     f'{_DEGENERATE_FLOOR_DB:g} dB): {esc(_pairs_text(exact, n_freq))}. Any orthonormal basis '
+                     "of such a pair is an equally valid plan, so their weights and field maps show one choice "
+                     "of many; a symmetric rig has them by symmetry.</p>")
+    if near:
+        notes.append(f'<p class="note">Near-degenerate channels (singular values within {NEAR_DEGENERATE_DB:g} dB): '
+                     f"{esc(_pairs_text(near, n_freq))}. Small placement or gain errors mix such a pair first, "
+                     "so their isolation is the most fragile on the real rig: verify them on the measured "
+                     "responses, or drive the pair as one two-channel group.</p>")
+    return notes
 
 
 def _element_rows(rig: Rig, with_directivity: bool) -> tuple[list[str], list[list[object]]]:
@@ -138,13 +185,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
     ], text_columns=(0, 1)))
     if plan.estimate.warning:
         parts.append(f'<p class="note">Paraxial estimate: {esc(plan.estimate.warning)}.</p>')
-    pairs = degenerate_pairs(plan.channels.singular_values, plan.channels.level_db())
-    if pairs:
-        text = "; ".join(f"channels {j + 1} and {j + 2} at {n} of {len(hz)} frequencies" for j, n in pairs[:6])
-        parts.append(f'<p class="note">Degenerate channels (singular values within {DEGENERATE_DB:g} dB, above '
-                     f'-60 dB): {esc(text)}. Any orthonormal basis of such a pair is an equally valid plan, so '
-                     "their weights and field maps show one choice of many; a symmetric rig has them by "
-                     "symmetry.</p>")
+    parts.extend(_degeneracy_notes(plan))
     header, rows = _element_rows(rig, with_directivity=found.rig_file is not None)
     parts.append("<h3>Elements</h3>" + table(header, rows, text_columns=(0, 1, 6)))
     note, rows = _plan_numbers(found)
@@ -296,6 +337,21 @@ def _verification_section(found: FoundVerification, root: Path) -> str:
     return "\n".join(parts)
 
 
+def _study_section(found: FoundStudy, root: Path) -> str:
+    side = found.sidecar
+    title = {"capacity": "Capacity study", "tolerance": "Tolerance study"}[found.kind]
+    parts = [f'<section id="{_anchor("study", found.folder, root)}"><h2>{title}: {esc(_rel(found.folder, root))}</h2>',
+             f'<p class="verdict">{esc(str(side.get("verdict", "")))}</p>']
+    conventions = side.get("conventions", {})
+    rows = [[k.replace("_", " "), str(v)] for k, v in conventions.items()]
+    if found.kind == "tolerance":
+        rows = [[k.replace("_", " "), str(v)] for k, v in side.get("settings", {}).items()] + rows
+    parts.append(table(["item", "value"], [["plan", str(side.get("plan", ""))]] + rows, text_columns=(0, 1)))
+    parts.append(_figures_html(study_figures(found), f"{found.kind} study {_rel(found.folder, root)}"))
+    parts.append("</section>")
+    return "\n".join(parts)
+
+
 def _summary(results: ProjectResults, root: Path) -> str:
     items = []
     for fp in results.plans:
@@ -421,10 +477,12 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     generated = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
     title = title or f"arrayplan report: {root.resolve().name}"
     steps = ([("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
-             + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications])
+             + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications]
+             + [("study", fs) for fs in results.studies])
     total = len(steps) + 1
     builders = {"plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
-                "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification")}
+                "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification"),
+                "study": (_study_section, "Study")}
     toc = []
     sections = []
     with report_style():

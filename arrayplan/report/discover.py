@@ -9,6 +9,7 @@ example::
       filters/       filters.json, channel-NN-*.wav, check.csv
       meas/          session.json, takes/, irset/ (an IR set)
       verify/        verify.json (kind arrayplan-verification), verify-*.csv
+      capacity/      capacity.json (kind arrayplan-capacity-study), tolerance/ tolerance.json (design studies)
 
 Each result is recognised by its sidecar, wherever it lies (up to
 :data:`MAX_DEPTH` folders down); AES69 (SOFA) files (``*.sofa``) count as IR
@@ -37,8 +38,8 @@ from ..plan_files import read_plan
 from ..planning import Plan
 from ..rig import Rig, load_rig
 
-__all__ = ["MAX_DEPTH", "FoundPlan", "FoundFilters", "FoundIRSet", "FoundVerification", "ProjectResults",
-           "find_results"]
+__all__ = ["MAX_DEPTH", "FoundPlan", "FoundFilters", "FoundIRSet", "FoundVerification", "FoundStudy",
+           "ProjectResults", "find_results"]
 
 #: How many folder levels below the project folder are searched.
 MAX_DEPTH = 4
@@ -103,6 +104,21 @@ class FoundVerification:
 
 
 @dataclass
+class FoundStudy:
+    """A design-study folder: `kind` ``capacity`` or ``tolerance``, the study read back and its sidecar."""
+
+    folder: Path
+    kind: str
+    study: Any
+    sidecar: dict
+
+
+#: Study sidecars by file name: (kind, reader module attribute).
+_STUDY_SIDECARS = {"capacity.json": ("capacity", "read_capacity_study"),
+                   "tolerance.json": ("tolerance", "read_tolerance_study")}
+
+
+@dataclass
 class ProjectResults:
     """Everything found under a project folder, each list sorted by path."""
 
@@ -112,10 +128,11 @@ class ProjectResults:
     irsets: list[FoundIRSet] = field(default_factory=list)
     verifications: list[FoundVerification] = field(default_factory=list)
     problems: list[str] = field(default_factory=list)
+    studies: list[FoundStudy] = field(default_factory=list)
 
     @property
     def empty(self) -> bool:
-        return not (self.plans or self.filters or self.irsets or self.verifications)
+        return not (self.plans or self.filters or self.irsets or self.verifications or self.studies)
 
 
 def _read_json(path: Path) -> Any:
@@ -228,6 +245,16 @@ def _load_verification(folder: Path) -> FoundVerification:
                              _read_csv(folder / "verify-summary.csv"), arrays)
 
 
+def _load_study(folder: Path) -> FoundStudy:
+    from ..studies import files as study_files
+
+    for name, (kind, reader) in _STUDY_SIDECARS.items():
+        if (folder / name).is_file():
+            study, side = getattr(study_files, reader)(folder)
+            return FoundStudy(folder, kind, study, side)
+    raise InputError("no study sidecar", source=str(folder))
+
+
 def _kind(folder: Path) -> str | None:
     if (folder / "weights.json").is_file() and (folder / "weights.npz").is_file():
         return "plan"
@@ -235,6 +262,8 @@ def _kind(folder: Path) -> str | None:
         return "filters"
     if (folder / "verify.json").is_file():
         return "verification"
+    if any((folder / name).is_file() for name in _STUDY_SIDECARS):
+        return "study"
     if (folder / MANIFEST_NAME).is_file():
         parts = folder.parts
         if folder.name.startswith("harmonic-") or (len(parts) >= 3 and parts[-3] == "takes"):
@@ -270,7 +299,8 @@ def find_results(project_dir: str | os.PathLike, rig: Rig | None = None) -> Proj
     loaders = {"plan": (lambda f: _load_plan(f, root, rig), out.plans),
                "filters": (_load_filters, out.filters),
                "irset": (_load_irset, out.irsets),
-               "verification": (_load_verification, out.verifications)}
+               "verification": (_load_verification, out.verifications),
+               "study": (_load_study, out.studies)}
     for folder in _walk(root):
         found = [(_kind(folder), folder)] + [("irset", f) for f in sorted(folder.glob("*.sofa")) if f.is_file()]
         for kind, where in found:

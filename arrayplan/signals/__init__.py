@@ -50,7 +50,8 @@ from .deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, Deconvolu
                          peak_to_noise_db, split_schedule, total_harmonic_level_db)
 from .levels import (DEFAULT_PEAK_CAP_DBFS, amplitude_from_dbfs, block_dc, channel_rms_dbfs, check_peak,
                      condition, highpass, peak_dbfs, raised_cosine_fade, rms_dbfs, scale_to_level)
-from .sweeps import (SWEEP_KINDS, SweepRecord, SweepSettings, SweepSignal, check_sweep_band,
+from .sweep_record import SweepRecord
+from .sweeps import (SWEEP_KINDS, SweepSettings, SweepSignal, check_sweep_band,
                      exponential_inverse_filter, exponential_sweep, harmonic_offset_s, linear_inverse_filter,
                      linear_sweep, make_sweep, normalise_inverse)
 from .noise import NOISE_COLOURS, band_limited_noise

@@ -11,6 +11,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..fileio import atomic_path, write_json_atomic
+from .levels import true_peak_dbfs
 
 __all__ = ["SAMPLE_FORMATS", "sidecar_path", "inverse_path", "write_signal_files", "read_recording"]
 
@@ -42,7 +43,8 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
     wav_path : path
         The signal file (``.wav``).
     signal : ndarray, shape (n_samples,) or (n_samples, n_channels)
-        Full scale = 1; must not exceed it.
+        Full scale = 1; neither its samples nor its true peak (4x
+        oversampled, :func:`arrayplan.signals.levels.true_peak_dbfs`) may exceed it.
     sample_rate_hz : int
     sample_format : {"float32", "pcm24"}
     sidecar : mapping
@@ -68,6 +70,9 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
     signal = np.asarray(signal, dtype=float)
     if not np.all(np.isfinite(signal)) or (signal.size and np.max(np.abs(signal)) > 1.0):
         raise InputError("signal exceeds full scale or is not finite; refusing to write it", source=str(wav_path))
+    if signal.size and true_peak_dbfs(signal) > 1e-9:
+        raise InputError(f"signal's true peak {true_peak_dbfs(signal):+.2f} dBFS would clip in a converter; "
+                         "refusing to write it", source=str(wav_path))
     targets: list[tuple[Path, Any]] = [(wav_path, ("wav", signal, SAMPLE_FORMATS[sample_format]))]
     for p, data in (extra_wavs or {}).items():
         targets.append((Path(p), ("wav", np.asarray(data, dtype=float), "FLOAT")))
