@@ -145,6 +145,16 @@ CASES = [
     C("newrig-option-not-taken", "new-rig facing-lines --out r.toml --radius 1", expect=("--radius",)),
     C("newrig-fmin-above-fmax", "new-rig facing-lines --out r.toml --fmin 5000 --fmax 1000", expect=("--fmin",)),
     C("newrig-out-unwritable", "new-rig facing-lines --out /proc/arrayplan-no/r.toml", expect=("/proc",)),
+    C("newrig-room-nan", "new-rig facing-lines --out r.toml --room nanx3x3", expect=("--room",)),
+    C("newrig-room-1e308", "new-rig facing-lines --out r.toml --room 1e308x1x1", expect=("--room",)),
+    C("plan-room-size-nan", "plan bad.toml --out o", expect=("bad.toml", "size_m"),
+      prepare=_write("bad.toml", RIG + "[room]\nsize_m = [nan, 4, 3]\n")),
+    C("plan-room-size-1e308", "plan bad.toml --out o", expect=("bad.toml", "size_m"),
+      prepare=_write("bad.toml", RIG + "[room]\nsize_m = [1e308, 4, 3]\n")),
+    C("plan-room-order-1e9", "plan bad.toml --out o", expect=("bad.toml", "reflection_order"),
+      prepare=_write("bad.toml", RIG.replace("center = [0, 0, 1]", "center = [1, 1, 1]").replace(
+          "spacing = 0.1\n[[microphones]]", "spacing = 0.1\ncenter = [1, 1, 0.5]\n[[microphones]]")
+          + "[room]\nsize_m = [5, 4, 3]\nabsorption = 0.2\nreflection_order = 1000000000\n")),
     C("newrig-zone-separation-nan", "new-rig two-zones --out r.toml --zone-separation nan",
       expect=("--zone-separation",)),
 
@@ -733,3 +743,32 @@ def test_the_library_names_no_command_line_flags():
             if tok.type not in (tokenize.COMMENT, tokenize.NL):
                 prev = tok.type
     assert not offenders, "\n".join(offenders)
+
+
+STUDY_CASES = [
+    C("study-capacity-freq-nan", "study capacity rig.toml --out o --freq nan", needs=("rig.toml",),
+      expect=("--freq",)),
+    C("study-capacity-threshold-zero", "study capacity rig.toml --out o --threshold-db 0", needs=("rig.toml",),
+      expect=("--threshold-db",)),
+    C("study-capacity-water-inf", "study capacity rig.toml --out o --water-hz inf", needs=("rig.toml",),
+      expect=("--water-hz",)),
+    C("study-capacity-snr-nan", "study capacity rig.toml --out o --snr-db nan", needs=("rig.toml",),
+      expect=("--snr-db",)),
+    C("study-capacity-missing", "study capacity nope --out o", expect=("nope",)),
+    C("study-tolerance-freq-nan", "study tolerance rig.toml --out o --freq nan", needs=("rig.toml",),
+      expect=("--freq",)),
+    C("study-tolerance-trials-1e9", "study tolerance rig.toml --out o --trials 1000000000 --position-mm 1",
+      needs=("rig.toml",), expect=("--trials",)),
+    C("study-tolerance-seed-negative", "study tolerance rig.toml --out o --seed -1 --position-mm 1",
+      needs=("rig.toml",), expect=("--seed",)),
+    C("study-tolerance-sd-negative", "study tolerance rig.toml --out o --position-mm -1", needs=("rig.toml",),
+      expect=("--position-mm",)),
+    C("study-tolerance-nothing", "study tolerance rig.toml --out o", needs=("rig.toml",), expect=("--position-mm",)),
+]
+
+
+@pytest.mark.parametrize("argv, needs, expect, prepare", STUDY_CASES)
+def test_study_bad_input_is_one_line_exit_2_nothing_written(argv, needs, expect, prepare, assets, tmp_path,
+                                                            monkeypatch, capsys):
+    test_bad_input_is_one_line_exit_2_nothing_written(argv, needs, expect, prepare, assets, tmp_path, monkeypatch,
+                                                      capsys)
