@@ -317,10 +317,18 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
                              fix="check the wiring of this speaker and measure again")
         blocks.append(data)
     zero_lag = manifest.get("zero_lag_samples", 0)
-    problem = zero_lag_problem(zero_lag, blocks[0].shape[0])
+    problem = (f"expected a whole number, got {zero_lag!r}" if isinstance(zero_lag, bool) or
+               not isinstance(zero_lag, int) else zero_lag_problem(zero_lag, blocks[0].shape[0]))
     if problem:
         raise InputError(problem, source=src, field="zero_lag_samples",
                          fix="give the index of zero lag in the responses (0 when none was kept before it)")
+    latency = manifest.get("latency_removed_samples", 0)
+    if isinstance(latency, bool) or not isinstance(latency, int) or latency < 0:
+        raise InputError(f"expected a whole number of samples >= 0, got {latency!r}", source=src,
+                         field="latency_removed_samples")
+    for key, kind in (("warnings", list), ("extra", dict)):
+        if not isinstance(manifest.get(key, kind()), kind):
+            raise InputError(f"must be a{'n array' if kind is list else 'n object'}", source=src, field=key)
     # A folder arrayplan wrote carries checksums: refuse one whose files come from different runs.
     check_folder(folder, needed=(MANIFEST_NAME, "*.wav"))
     return IRSet(

@@ -186,6 +186,39 @@ class PlanWeights:
         self.sidecar = sidecar
 
 
+#: Arrays of ``weights.npz`` and the number of dimensions of each.
+_WEIGHT_ARRAYS = {"frequency_hz": 1, "singular_value": 2, "drive": 3, "combine": 3, "speaker_names": 1,
+                  "mic_names": 1}
+
+
+def _weight_arrays(npz: Path) -> dict[str, np.ndarray]:
+    """The arrays of a plan's ``weights.npz``, with their shapes checked against each other."""
+    import zipfile
+
+    src = str(npz)
+    try:
+        with np.load(npz, allow_pickle=False) as z:
+            missing = sorted(set(_WEIGHT_ARRAYS) - set(z.files))
+            if missing:
+                raise InputError(f"has no array {', '.join(missing)}", source=src,
+                                 fix="run 'arrayplan plan' again to rewrite the folder")
+            data = {k: z[k] for k in _WEIGHT_ARRAYS}
+    except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:
+        raise InputError(f"not a readable NumPy archive ({exc.__class__.__name__}: {' '.join(str(exc).split())})",
+                         source=src, fix="run 'arrayplan plan' again to rewrite the folder") from None
+    for key, ndim in _WEIGHT_ARRAYS.items():
+        if data[key].ndim != ndim:
+            raise InputError(f"expected {ndim} dimensions, got shape {data[key].shape}", source=src, field=key)
+    n_f, n_c = data["singular_value"].shape
+    expected = {"frequency_hz": (n_f,), "drive": (n_f, len(data["speaker_names"]), n_c),
+                "combine": (n_f, len(data["mic_names"]), n_c)}
+    for key, shape in expected.items():
+        if data[key].shape != shape:
+            raise InputError(f"shape {data[key].shape} does not match the other arrays (expected {shape})",
+                             source=src, field=key)
+    return data
+
+
 def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
     """Read ``weights.npz`` and ``weights.json`` from a plan folder, with checks.
 
@@ -205,14 +238,9 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
     try:
         sidecar = json.loads(side.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, ValueError) as exc:
-        raise InputError(f"cannot read the plan sidecar ({' '.join(str(exc).split())})", source=str(side)) from None
-    try:
-        with np.load(npz, allow_pickle=False) as z:
-            data = {k: z[k] for k in ("frequency_hz", "singular_value", "drive", "combine", "speaker_names",
-                                      "mic_names")}
-    except Exception as exc:  # numpy raises ValueError, KeyError, OSError, EOFError, zipfile.BadZipFile
-        raise InputError(f"cannot read plan weights ({exc.__class__.__name__}: {' '.join(str(exc).split())})",
-                         source=str(npz)) from None
+        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(side),
+                         fix="run 'arrayplan plan' again to rewrite the folder") from None
+    data = _weight_arrays(npz)
     check_folder(folder, needed=("weights.*", "*.csv"))
     return PlanWeights(FrequencyAxis(data["frequency_hz"], source=str(npz)), data["singular_value"],
                        data["drive"], data["combine"], tuple(str(x) for x in data["speaker_names"]),

@@ -81,7 +81,7 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
     axis = axis if axis is not None else rig.frequencies
     if axis is None:
         raise InputError("no frequencies to plan at", source=rig.source, field="frequencies",
-                         fix="add a [frequencies] table or give --freq")
+                         fix="add a [frequencies] table or give the frequencies to plan at")
     settings = rig.planning
     kern = kernel if kernel is not None else rig_kernel(rig)
     channels: ChannelSet = decompose(kern, axis, chunk_size=chunk_size or settings.chunk_size,

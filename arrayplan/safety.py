@@ -478,7 +478,7 @@ def check_exposure(estimate: ExposureEstimate, *, max_dba: float = DEFAULT_MAX_D
         exceeds a cap (or is not a number) and `allow_loud` is False.
     """
     n = _names(option_names)
-    consent = n["allow_loud"]
+    consent = n["allow_loud"] if n["allow_loud"].startswith("-") else f"`{n['allow_loud']}`"
     for value, default, name, unit in ((max_dba, DEFAULT_MAX_DBA, n["max_dba"], "dBA"),
                                        (max_peak_db_spl, DEFAULT_MAX_PEAK_DB_SPL, n["max_peak_db_spl"], "dB SPL")):
         value = float(value)

@@ -123,7 +123,7 @@ position = [0.15, 0, 1]
 @pytest.mark.parametrize("extra, flag", [
     (["--rate", "6000", "--band", "500", "4000"], "--rate"),
     (["--rate", "16000", "--band", "500", "9000"], "--rate"),
-    (["--rate", "16000", "--band", "0", "4000"], "--band"),
+    (["--rate", "16000", "--band", "4000", "500"], "--band"),
     (["--rate", "16000", "--band", "500", "4000", "--taps", "20"], "--taps"),
 ])
 def test_cli_bad_input_exits_2_one_line_nothing_written(tmp_path, capsys, extra, flag):

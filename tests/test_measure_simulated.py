@@ -272,7 +272,7 @@ def test_pre_roll_past_half_way_to_the_second_harmonic_is_refused(rig, tmp_path)
     with pytest.raises(InputError, match="half-way to the 2nd harmonic") as err:
         measure(link, RigWiring.from_rig(rig), tmp_path / "p", MeasurementSettings(**{**FAST.__dict__,
                                                                                       "pre_s": 0.05}))
-    assert err.value.field == "--pre-ms"
+    assert err.value.field == "pre_s"
     assert not (tmp_path / "p").exists()
 
 

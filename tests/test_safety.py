@@ -110,11 +110,11 @@ def test_check_exposure_warns_refuses_and_can_be_overridden():
     assert len(warnings) == 1 and "above 85 dBA" in warnings[0] and "2.0 h" in warnings[0]
     with pytest.raises(InputError, match="exceeds the cap of 100 dBA") as err:
         check_exposure(_estimate(103.0))
-    assert "allow_loud" in err.value.one_line()
+    assert "`allow_loud`" in err.value.one_line()
     with pytest.raises(InputError):
         check_exposure(_estimate(95.0), max_dba=94.0)
     allowed = check_exposure(_estimate(103.0), allow_loud=True)
-    assert any("allowed by allow_loud" in w for w in allowed)
+    assert any("allowed by `allow_loud`" in w for w in allowed)
     # A peak above 140 dB SPL (200 Pa, EU Directive 2003/10/EC limit value) is refused too.
     click = np.zeros(FS)
     click[100] = 0.9

@@ -110,7 +110,7 @@ def test_absurd_listener_distances_are_refused(d):
     (["--max-dba", "200"], ["--max-dba", "above the refusal level", "--allow-loud"]),
     (["--max-dba", "inf"], ["--max-dba", "finite"]),
     (["--sensitivity-vrms", "1e9"], ["--sensitivity-vrms", "1000000000.0", "plausible range"]),
-    (["--sensitivity-vrms", "nan"], ["--sensitivity-vrms", "plausible range"]),
+    (["--sensitivity-vrms", "nan"], ["--sensitivity-vrms", "nan"]),
 ])
 def test_signal_command_keeps_the_refusal(tmp_path, capsys, extra, words):
     rc, _, err = _run(capsys, *SWEEP, "--out", str(tmp_path / "s.wav"), *LOUD, *extra)

@@ -35,6 +35,7 @@ from typing import Any
 
 import numpy as np
 
+from ._args import count, finite_float, nonnegative_float, positive_float
 from ._args import csv_names as _csv_names
 from ..errors import InputError
 from ..fileio import staged_output_dir, write_text_atomic
@@ -295,7 +296,7 @@ def _run(args: argparse.Namespace) -> int:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add the ``deconvolve`` command."""
-    p = subparsers.add_parser("deconvolve", help="recordings of a sweep (any recorder) -> impulse responses",
+    p = subparsers.add_parser("deconvolve",
                               description=__doc__.split("\n\n")[1].replace("\n", " "))
     p.add_argument("recordings", nargs="+", type=Path, metavar="RECORDING.wav",
                    help="one WAV per speaker (channels = microphones), or one recording of a schedule or probe")
@@ -305,14 +306,14 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated "
                                                             "(default: the schedule's, else S1, S2, ...)")
     p.add_argument("--mic-names", type=_csv_names, help="microphone names, comma-separated (default M1, M2, ...)")
-    p.add_argument("--ir-length-s", type=float,
+    p.add_argument("--ir-length-s", type=positive_float,
                    help="response length after zero lag, s (default: the silence after the sweep)")
-    p.add_argument("--pre-ms", type=float, metavar="MS",
+    p.add_argument("--pre-ms", type=nonnegative_float, metavar="MS",
                    help="time kept before zero lag for the pre-ringing of the measurement pulse, ms (default: the "
                         "sweep's, one Fresnel time at f1 and at most half-way to the 2nd harmonic; 0 cuts at "
                         "zero lag)")
-    p.add_argument("--max-harmonic", type=int, default=5,
+    p.add_argument("--max-harmonic", type=count(50), default=5,
                    help="highest harmonic order separated (exponential sweeps; default 5, 1 for none)")
-    p.add_argument("--min-pnr-db", type=float, default=DEFAULT_MIN_PEAK_TO_NOISE_DB,
+    p.add_argument("--min-pnr-db", type=finite_float, default=DEFAULT_MIN_PEAK_TO_NOISE_DB,
                    help=f"warn below this peak-to-noise ratio, dB (default {DEFAULT_MIN_PEAK_TO_NOISE_DB:g})")
     p.set_defaults(run=_run)

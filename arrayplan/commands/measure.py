@@ -18,6 +18,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..progress import ProgressBar, mini_bar
+from ._args import (add_memory_limit, count, dbfs_level, finite_float, float_in,
+                    nonnegative_count, nonnegative_float, positive_float, say)
 
 if TYPE_CHECKING:
     from ..hardware.measure import TakeProgress
@@ -29,14 +31,14 @@ __all__ = ["register", "run", "confirm_before_playing", "add_level_options", "pr
 def add_level_options(p: argparse.ArgumentParser) -> None:
     """Options for the sound-level estimate printed before playing."""
     g = p.add_argument_group("sound-level estimate (printed before anything plays)")
-    g.add_argument("--speaker-sensitivity-db-spl", type=float, metavar="DB",
+    g.add_argument("--speaker-sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"), metavar="DB",
                    help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms volts")
-    g.add_argument("--sensitivity-vrms", type=float, default=2.83, metavar="V",
+    g.add_argument("--sensitivity-vrms", type=positive_float, default=2.83, metavar="V",
                    help="drive voltage of that rating, V RMS (default 2.83 V: 1 W into 8 ohm)")
-    g.add_argument("--amp-vrms", type=float, metavar="V",
+    g.add_argument("--amp-vrms", type=positive_float, metavar="V",
                    help="V RMS at the speaker terminals for a full-scale sine (default: from the "
                         "calibration record's outputs)")
-    g.add_argument("--listener-distance-m", type=float, nargs="+", default=[1.0], metavar="M",
+    g.add_argument("--listener-distance-m", type=positive_float, nargs="+", default=[1.0], metavar="M",
                    help="distance of each person in the room from the speaker playing (default 1 m)")
     g.add_argument("--allow-loud", action="store_true",
                    help="play even when the estimate exceeds the exposure caps (hearing protection on)")
@@ -108,7 +110,7 @@ def print_level_estimate(args: argparse.Namespace, signal: np.ndarray, sample_ra
                             sensitivity_vrms=args.sensitivity_vrms, combine="one_at_a_time",
                             option_names=_LEVEL_OPTIONS)
     print(format_exposure(est), file=stream)
-    warnings = check_exposure(est, allow_loud=args.allow_loud, option_names=_LEVEL_OPTIONS)
+    warnings = [say(w, args) for w in check_exposure(est, allow_loud=args.allow_loud, option_names=_LEVEL_OPTIONS)]
     for w in warnings:
         print(f"warning: {w}", file=stream)
     return warnings
@@ -137,37 +139,38 @@ def confirm_before_playing(yes: bool, what: str, stream: Any = None) -> None:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
-        "measure", help="measure the rig's impulse responses through the audio interface",
-        description="Play a faded exponential sweep on each speaker's output in turn, record every "
-                    "microphone (and the loopback reference), and save each take as it ends: raw recording "
-                    "plus impulse responses.  Running again into the same --out folder measures only the "
-                    "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "
-                    "printed before anything plays.")
+        "measure", description="Play a faded exponential sweep on each speaker's output in turn, record every "
+                               "microphone (and the loopback reference), and save each take as it ends: raw recording "
+                               "plus impulse responses.  Running again into the same --out folder measures only the "
+                               "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "
+                               "printed before anything plays.")
     p.add_argument("rig", help="rig file (TOML); speakers' and microphones' 'channel' are 1-based")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (resumes when it exists)")
     p.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the rig's, else the system's)")
-    p.add_argument("--rate", type=float, metavar="HZ", help="sample rate (default: the rig's, else the device's)")
+    p.add_argument("--rate", type=positive_float, metavar="HZ",
+                   help="sample rate (default: the rig's, else the device's)")
     p.add_argument("--calibration", metavar="FILE", help="calibration record (default: the rig's, if any)")
-    p.add_argument("--latency-samples", type=int, metavar="N",
+    p.add_argument("--latency-samples", type=nonnegative_count(10_000_000), metavar="N",
                    help="latency to remove when there is neither a reference loop nor a calibrated latency")
     s = p.add_argument_group("sweep")
-    s.add_argument("--f1", type=float, default=40.0, metavar="HZ", help="start frequency (default 40 Hz)")
-    s.add_argument("--f2", type=float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
-    s.add_argument("--duration-s", type=float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
-    s.add_argument("--peak-dbfs", type=float, metavar="DB",
+    s.add_argument("--f1", type=positive_float, default=40.0, metavar="HZ", help="start frequency (default 40 Hz)")
+    s.add_argument("--f2", type=positive_float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
+    s.add_argument("--duration-s", type=positive_float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
+    s.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB",
                    help="sweep true peak level, 4x oversampled (default: the peak cap, -12 dBFS)")
     s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
-    s.add_argument("--repeats", type=int, default=1, metavar="N", help="sweeps per take, averaged (default 1)")
-    s.add_argument("--ir-s", type=float, default=0.5, metavar="S",
+    s.add_argument("--repeats", type=count(), default=1, metavar="N", help="sweeps per take, averaged (default 1)")
+    s.add_argument("--ir-s", type=positive_float, default=0.5, metavar="S",
                    help="impulse-response length after zero lag (default 0.5 s)")
-    s.add_argument("--pre-ms", type=float, metavar="MS",
+    s.add_argument("--pre-ms", type=nonnegative_float, metavar="MS",
                    help="time kept before zero lag for the measurement pulse's pre-ringing (default: one Fresnel "
                         "time at f1, at most half-way to the 2nd harmonic; 110 ms for the default sweep)")
-    s.add_argument("--max-latency-s", type=float, default=0.25, metavar="S",
+    s.add_argument("--max-latency-s", type=positive_float, default=0.25, metavar="S",
                    help="longest interface latency expected (default 0.25 s)")
-    s.add_argument("--lead-in-s", type=float, default=0.2, metavar="S", help="silence before each sweep (default 0.2 s)")
+    s.add_argument("--lead-in-s", type=nonnegative_float, default=0.2, metavar="S",
+                   help="silence before each sweep (default 0.2 s)")
     c = p.add_argument_group("checks")
-    c.add_argument("--min-peak-to-noise-db", type=float, default=None, metavar="DB",
+    c.add_argument("--min-peak-to-noise-db", type=finite_float, default=None, metavar="DB",
                    help="mark takes whose responses fall below this peak-to-noise ratio (default 40 dB)")
     c.add_argument("--redo-marked", action="store_true", help="measure marked takes again when resuming")
     add_level_options(p)
@@ -175,13 +178,26 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     m.add_argument("--simulate", action="store_true",
                    help="measure a simulated rig: the rig's free-field (or [room]) responses plus latency, noise, "
                         "a mild nonlinearity and optional dropouts")
-    m.add_argument("--sim-latency-samples", type=int, default=300, metavar="N", help="default 300")
-    m.add_argument("--sim-noise-dbfs", type=float, default=-90.0, metavar="DB", help="RMS noise (default -90 dBFS)")
+    m.add_argument("--sim-latency-samples", type=nonnegative_count(10_000_000), default=300, metavar="N",
+                   help="default 300")
+    m.add_argument("--sim-noise-dbfs", type=dbfs_level, default=-90.0, metavar="DB",
+                   help="RMS noise (default -90 dBFS)")
     m.add_argument("--sim-nonlinearity", default="0.01,0.005", metavar="A2,A3,...",
                    help="coefficients of x^2, x^3, ... (default 0.01,0.005; '' for linear)")
-    m.add_argument("--sim-dropouts", type=int, default=0, metavar="N", help="dropped input blocks per take")
-    m.add_argument("--sim-seed", type=int, default=0, metavar="N", help="noise seed")
-    p.set_defaults(run=run)
+    m.add_argument("--sim-dropouts", type=nonnegative_count(1000), default=0, metavar="N",
+                   help="dropped input blocks per take")
+    m.add_argument("--sim-seed", type=nonnegative_count(2 ** 32 - 1), default=0, metavar="N", help="noise seed")
+    add_memory_limit(p)
+    p.set_defaults(run=run, parameter_flags=PARAMETER_FLAGS)
+
+
+#: Library parameter names that this command spells differently.
+PARAMETER_FLAGS = {"f1_hz": "--f1", "f2_hz": "--f2", "sweep_s": "--duration-s", "pre_s": "--pre-ms",
+                   "sample_rate_hz": "--rate", "rate_hz": "--rate",
+                   "sensitivity_db_spl": "--speaker-sensitivity-db-spl",
+                   "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
+                   "latency_samples": "--latency-samples", "dropouts_per_take": "--sim-dropouts",
+                   "noise_rms_dbfs": "--sim-noise-dbfs", "nonlinearity": "--sim-nonlinearity"}
 
 
 def show_take_progress(bar: ProgressBar, p: "TakeProgress") -> None:
@@ -217,6 +233,17 @@ def _parse_coefficients(text: str) -> tuple[float, ...]:
     return vals
 
 
+def _check_take_size(args: argparse.Namespace, wiring: Any, fs: float) -> None:
+    """Refuse takes whose recordings would not fit the memory limit (estimated before anything plays)."""
+    from ..limits import check_memory
+
+    sweep_s = args.lead_in_s + args.duration_s + args.max_latency_s + args.ir_s
+    take_s = args.repeats * sweep_s
+    n_in = wiring.n_inputs_needed
+    check_memory(3 * 8.0 * take_s * fs * n_in, f"a take of {args.repeats} sweep(s), {take_s:.3g} s on {n_in} "
+                 f"input(s) at {fs:g} Hz", field="repeats")
+
+
 def _warn_above_cap(args: argparse.Namespace, sweep: Any) -> None:
     """Print the warning ``signal`` prints when a sweep's true peak is above the cap (with consent)."""
     from ..signals.levels import DEFAULT_PEAK_CAP_DBFS, true_peak_dbfs
@@ -236,6 +263,9 @@ def run(args: argparse.Namespace) -> int:
     from ..signals.levels import peak_dbfs, true_peak_dbfs
     from ..signals.sweeps import make_sweep
 
+    if Path(args.out).exists() and not Path(args.out).is_dir():
+        raise InputError("exists and is not a folder", source=args.out,
+                         fix="give a new folder, or the folder of an earlier run to resume it")
     rig = load_rig(args.rig)
     wiring = RigWiring.from_rig(rig)
     hw = rig.hardware
@@ -249,6 +279,7 @@ def run(args: argparse.Namespace) -> int:
         min_peak_to_noise_db=(DEFAULT_MIN_PEAK_TO_NOISE_DB if args.min_peak_to_noise_db is None
                               else args.min_peak_to_noise_db))
     rate = args.rate or hw.sample_rate_hz
+    _check_take_size(args, wiring, float(rate or 48000.0))
     if args.simulate:
         from ..hardware.simulated import SimulatedLink
 
@@ -290,7 +321,7 @@ def run(args: argparse.Namespace) -> int:
             bar.print_above(text)
 
     def warn(text: str) -> None:
-        bar.print_above(f"warning: {text}")
+        bar.print_above(f"warning: {say(text, args)}")
 
     try:
         with bar:

@@ -13,7 +13,8 @@ from ..errors import InputError
 from ..irset import IRSet, read_irset
 from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
-from ._args import add_measured_kernel_options, measured_kernel_from_args
+from ._args import (add_measured_kernel_options, add_memory_limit, count, float_in, measured_kernel_from_args,
+                    positive_float)
 from ..frequency import FrequencyAxis
 from ..medium import speed_of_sound_air
 from ..planning import plan_rig
@@ -23,22 +24,24 @@ from ..rig import Rig, load_rig, read_positions_csv
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("plan", help="plan the channels of a rig (counts, strengths, weights, figures)",
+    p = sub.add_parser("plan",
                        description="Plan the independent channels of a speaker/microphone rig at each "
                                    "frequency and write tables, weights and figures to --out.")
     p.add_argument("rig", nargs="?", help="rig file (TOML); omit to use --speakers/--mics")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--speakers", help="CSV of speaker positions (header x,y,z[,name]) in metres")
     p.add_argument("--mics", help="CSV of microphone positions (header x,y,z[,name]) in metres")
-    p.add_argument("--freq", type=float, action="append", metavar="HZ",
+    p.add_argument("--freq", type=positive_float, action="append", metavar="HZ",
                    help="plan at this frequency (repeatable); overrides the rig file's [frequencies]")
-    p.add_argument("--speed-of-sound", type=float, metavar="M_PER_S",
+    p.add_argument("--speed-of-sound", type=float_in(1.0, 10000.0, "m/s"), metavar="M_PER_S",
                    help="speed of sound (quick form; default from 20 °C air)")
-    p.add_argument("--threshold-db", type=float, help="strong = within this many dB of the strongest (default 3)")
-    p.add_argument("--snr-db", type=float, help="SNR of the strongest channel, sets the noise floor (default 40)")
+    p.add_argument("--threshold-db", type=positive_float,
+                   help="strong = within this many dB of the strongest (default 3)")
+    p.add_argument("--snr-db", type=positive_float,
+                   help="SNR of the strongest channel, sets the noise floor (default 40)")
     p.add_argument("--track", action="store_true", default=None,
                    help="order and phase-align channels from bin to bin")
-    p.add_argument("--chunk-size", type=int, help="frequencies decomposed at once (bounds memory)")
+    p.add_argument("--chunk-size", type=count(1_000_000), help="frequencies decomposed at once (bounds memory)")
     p.add_argument("--irset", metavar="DIR|FILE.sofa",
                    help="plan from this measured impulse-response set (IR-set folder or AES69/SOFA file) "
                         "instead of the free field")
@@ -46,6 +49,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--free-field", action="store_true",
                    help="plan in the free field even when the rig file has a [room] table")
     p.add_argument("--no-figures", action="store_true", help="write tables and weights only")
+    add_memory_limit(p)
     p.set_defaults(run=run)
 
 
@@ -102,6 +106,23 @@ def _checked(value: float | None, flag: str) -> float | None:
     return value
 
 
+def check_plan_size(rig: Rig, n_freq: int, chunk_size: int) -> None:
+    """Refuse a plan whose weights and coupling chunks would not fit the memory limit (estimated first).
+
+    The plan keeps drive and combine weights for every channel at every
+    frequency, ``n_freq (n_spk + n_mic) min(n_spk, n_mic)`` complex numbers,
+    and decomposes `chunk_size` coupling matrices at once (with about three
+    working copies each for the SVD).
+    """
+    from ..limits import check_memory
+
+    n_s, n_m = len(rig.speakers), len(rig.mics)
+    k = min(n_s, n_m)
+    n_bytes = 16.0 * n_freq * (n_s + n_m + 1) * k + 3 * 16.0 * min(chunk_size, n_freq) * n_s * n_m
+    check_memory(n_bytes, f"a plan of {n_s} speakers x {n_m} microphones at {n_freq} frequencies",
+                 source=rig.source)
+
+
 def run(args: argparse.Namespace) -> int:
     matplotlib.use("Agg")
     rig = rig_from_args(args)
@@ -120,8 +141,8 @@ def run(args: argparse.Namespace) -> int:
         if top is not None and top.hz[-1] >= kernel.sample_rate_hz / 2:
             raise InputError(f"plan frequency {top.hz[-1]:g} Hz is not below the IR set's Nyquist frequency "
                              f"{kernel.sample_rate_hz / 2:g} Hz", source="--freq", fix="plan at lower frequencies")
-    if args.chunk_size is not None and args.chunk_size < 1:
-        raise InputError(f"must be at least 1, got {args.chunk_size}", source="--chunk-size")
+    if axis is not None or rig.frequencies is not None:
+        check_plan_size(rig, len((axis or rig.frequencies).hz), args.chunk_size or rig.planning.chunk_size)
     with ProgressBar("planning") as bar:
         plan = plan_rig(rig, axis, kernel=kernel, threshold_db=_checked(args.threshold_db, "--threshold-db"),
                         snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,

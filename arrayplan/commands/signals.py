@@ -22,7 +22,10 @@ from typing import Any
 
 import numpy as np
 
+from ._args import (MAX_CHANNEL_NUMBER, add_memory_limit, count, dbfs_level, finite_float, float_in,
+                    nonnegative_count, nonnegative_float, positive_float, say)
 from ._args import csv_names as _csv_names
+from ..limits import check_memory
 from ..errors import InputError
 from ..fileio import provenance
 from ..safety import (CAUTION_NOTE, DEFAULT_MAX_DBA, check_exposure, estimate_exposure, format_exposure,
@@ -44,32 +47,45 @@ SIGNAL_FORMAT = "arrayplan-signal"
 # ----------------------------------------------------------------------------- options
 
 def _csv_floats(text: str) -> list[float]:
-    try:
-        vals = [float(v) for v in text.split(",") if v.strip()]
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected comma-separated numbers, got {text!r}") from None
-    if not vals:
+    """Comma-separated positive finite numbers, at most 10000 of them (argparse type)."""
+    parts = [v for v in text.split(",") if v.strip()]
+    if not parts:
         raise argparse.ArgumentTypeError("expected at least one number")
-    return vals
+    if len(parts) > 10_000:
+        raise argparse.ArgumentTypeError(f"expected at most 10000 numbers, got {len(parts)}")
+    return [positive_float(v) for v in parts]
 
 
-def _positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-    if v <= 0:
-        raise argparse.ArgumentTypeError(f"must be positive, got {v}")
-    return v
+#: Highest sample rate accepted, Hz.
+MAX_RATE_HZ = 768_000
+#: Working copies of a signal held at once while it is built, conditioned and written (estimate).
+_COPIES = 6
+
+
+def _signal_size(args: argparse.Namespace) -> tuple[float, int]:
+    """Estimated length (s) and channel count of the signal the options ask for, before building it."""
+    pads = getattr(args, "pad_before_s", 0.0) + getattr(args, "pad_after_s", 0.0)
+    kind = args.signal
+    if kind == "tones":
+        return len(args.freqs_hz) * (args.tone_s + args.gap_s) + pads, 1
+    if kind == "bursts":
+        return args.count * args.period_s + pads, 1
+    if kind == "silence":
+        return args.duration_s, args.channels
+    if kind == "schedule":
+        n = args.speakers or len(args.speaker_names or ()) or 1
+        return n * (args.duration_s + pads), n
+    return args.duration_s + pads, 1
 
 
 def _add_output(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("output")
     g.add_argument("--out", required=True, type=Path, metavar="FILE.wav",
                    help="signal file; its sidecar FILE.json (and FILE.inverse.wav for sweeps) go beside it")
-    g.add_argument("--rate-hz", type=_positive_int, default=48000, help="sample rate in Hz (default 48000)")
+    g.add_argument("--rate-hz", type=count(MAX_RATE_HZ), default=48000, help="sample rate in Hz (default 48000)")
     g.add_argument("--format", choices=tuple(SAMPLE_FORMATS), default="float32",
                    help="sample format of the signal file (default float32)")
+    add_memory_limit(p)
 
 
 #: Help text of the fade options of sweeps, schedules and probes (default: the sweep's Fresnel-length fades).
@@ -82,35 +98,38 @@ _NOISE_PROBE_FADES = (0.02, 0.005)
 def _add_level(p: argparse.ArgumentParser, fade_in: float | None, fade_out: float | None) -> None:
     g = p.add_argument_group("level and conditioning")
     m = g.add_mutually_exclusive_group()
-    m.add_argument("--peak-dbfs", type=float,
+    m.add_argument("--peak-dbfs", type=dbfs_level,
                    help="true peak level in dBFS, 4x oversampled (default: the peak cap)")
-    m.add_argument("--rms-dbfs", type=float, help="RMS level of the signal without its padding, in dBFS instead "
-                                                  "(20 log10 rms; full-scale sine = -3.01)")
-    g.add_argument("--peak-cap-dbfs", type=float, default=DEFAULT_PEAK_CAP_DBFS,
+    m.add_argument("--rms-dbfs", type=dbfs_level, help="RMS level of the signal without its padding, in dBFS instead "
+                                                      "(20 log10 rms; full-scale sine = -3.01)")
+    g.add_argument("--peak-cap-dbfs", type=dbfs_level, default=DEFAULT_PEAK_CAP_DBFS,
                    help=f"highest true peak allowed (default {DEFAULT_PEAK_CAP_DBFS:g}); lowering it needs "
                         "nothing, raising it needs --allow-above-cap")
     g.add_argument("--allow-above-cap", action="store_true",
                    help="allow a true peak above the default cap or the cap given (never above 0 dBFS: "
                         "clipping is always refused)")
-    g.add_argument("--fade-in-s", type=float, default=fade_in,
+    g.add_argument("--fade-in-s", type=nonnegative_float, default=fade_in,
                    help=f"raised-cosine fade-in, s (default {_FRESNEL_FADES if fade_in is None else f'{fade_in:g}'})")
-    g.add_argument("--fade-out-s", type=float, default=fade_out,
+    g.add_argument("--fade-out-s", type=nonnegative_float, default=fade_out,
                    help=f"raised-cosine fade-out, s (default {'the same rule' if fade_out is None else f'{fade_out:g}'})")
-    g.add_argument("--highpass-hz", type=float, help="Butterworth high-pass for small drivers, Hz (default none)")
-    g.add_argument("--highpass-order", type=int, default=2, help="its order (default 2, 12 dB per octave)")
-    g.add_argument("--pad-before-s", type=float, default=0.1, help="silence before the signal, s (default 0.1)")
+    g.add_argument("--highpass-hz", type=positive_float,
+                   help="Butterworth high-pass for small drivers, Hz (default none)")
+    g.add_argument("--highpass-order", type=count(12), default=2, help="its order (default 2, 12 dB per octave)")
+    g.add_argument("--pad-before-s", type=nonnegative_float, default=0.1,
+                   help="silence before the signal, s (default 0.1)")
 
 
 def _add_exposure(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("exposure estimate (give the first three to get one)")
-    g.add_argument("--sensitivity-db-spl", type=float, help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms")
-    g.add_argument("--amp-vrms", type=float,
+    g.add_argument("--sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"),
+                   help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms")
+    g.add_argument("--amp-vrms", type=positive_float,
                    help="volts RMS at the speaker terminals for a 0 dBFS sine (meter it, or DAC full scale x gain)")
     g.add_argument("--listener-distance-m", type=_csv_floats,
                    help="distances of the people present from the speakers, m, comma-separated")
-    g.add_argument("--sensitivity-vrms", type=float, default=2.83,
+    g.add_argument("--sensitivity-vrms", type=positive_float, default=2.83,
                    help="drive voltage of the sensitivity rating, V RMS (default 2.83: 1 W into 8 ohm)")
-    g.add_argument("--max-dba", type=float, default=DEFAULT_MAX_DBA,
+    g.add_argument("--max-dba", type=finite_float, default=DEFAULT_MAX_DBA,
                    help=f"refuse above this estimated level at a listener, dBA (default {DEFAULT_MAX_DBA:g})")
     g.add_argument("--allow-loud", action="store_true",
                    help="write the file even above --max-dba or 140 dB SPL peak (hearing protection in place)")
@@ -120,11 +139,13 @@ def _add_sweep(p: argparse.ArgumentParser, *, kind: bool = True) -> None:
     g = p.add_argument_group("sweep")
     if kind:
         g.add_argument("--kind", choices=SWEEP_KINDS, default="exponential", help="sweep law (default exponential)")
-    g.add_argument("--f1-hz", type=float, default=20.0, help="start frequency (noise: lower band edge), Hz (default 20)")
-    g.add_argument("--f2-hz", type=float, help="end frequency (noise: upper band edge), Hz "
+    g.add_argument("--f1-hz", type=positive_float, default=20.0,
+                   help="start frequency (noise: lower band edge), Hz (default 20)")
+    g.add_argument("--f2-hz", type=positive_float, help="end frequency (noise: upper band edge), Hz "
                                                "(default 20000 or 0.45 x rate if lower)")
-    g.add_argument("--duration-s", type=float, default=4.0, help="sweep duration, s, without padding (default 4)")
-    g.add_argument("--pad-after-s", type=float, default=1.0,
+    g.add_argument("--duration-s", type=positive_float, default=4.0,
+                   help="sweep duration, s, without padding (default 4)")
+    g.add_argument("--pad-after-s", type=nonnegative_float, default=1.0,
                    help="silence after each sweep: the room's decay time and the response length, s (default 1)")
 
 
@@ -396,6 +417,9 @@ def _level_text(level: dict[str, Any]) -> str:
 
 def _run(args: argparse.Namespace) -> int:
     src = f"signal {args.signal}"
+    seconds, channels = _signal_size(args)
+    check_memory(_COPIES * 8.0 * seconds * args.rate_hz * channels,
+                 f"a {seconds:.3g} s signal of {channels} channel(s) at {args.rate_hz} Hz", source=src)
     if hasattr(args, "peak_cap_dbfs"):
         _check_cap_option(args, src)
     built = _BUILDERS[args.signal](args, src)
@@ -404,8 +428,8 @@ def _run(args: argparse.Namespace) -> int:
     warnings: list[str] = []
     estimate = _exposure(args, x, built["combine"], src) if playable else None
     if estimate is not None:
-        warnings += check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud, source=src,
-                                   option_names=_EXPOSURE_OPTIONS)
+        warnings += [say(w, args) for w in check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud,
+                                                          source=src, option_names=_EXPOSURE_OPTIONS)]
     elif playable:
         warnings.append("no exposure estimate: give --sensitivity-db-spl, --amp-vrms and --listener-distance-m "
                         "to check the level at the listeners")
@@ -460,7 +484,7 @@ def _run(args: argparse.Namespace) -> int:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add the ``signal`` command and its sub-commands."""
-    p = subparsers.add_parser("signal", help="write safe test signals (sweeps, noise, tones, schedules, probes)",
+    p = subparsers.add_parser("signal",
                               description=__doc__.split("\n\n")[1].replace("\n", " "))
     sub = p.add_subparsers(dest="signal", metavar="KIND")
     sub.required = True
@@ -473,7 +497,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
     s = sub.add_parser("noise", help="band-limited pink or white noise")
     s.add_argument("--colour", choices=NOISE_COLOURS, default="pink", help="spectrum (default pink)")
-    s.add_argument("--seed", type=int, help="random seed, for a reproducible file")
+    s.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), help="random seed, for a reproducible file")
     _add_sweep(s, kind=False)
     s.set_defaults(duration_s=10.0)
     _add_level(s, 0.05, 0.05)
@@ -482,31 +506,34 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
     s = sub.add_parser("tones", help="stepped steady tones separated by silence")
     s.add_argument("--freqs-hz", type=_csv_floats, required=True, help="tone frequencies, Hz, comma-separated")
-    s.add_argument("--tone-s", type=float, default=1.0, help="duration of each tone, s (default 1)")
-    s.add_argument("--gap-s", type=float, default=0.5, help="silence between tones, s (default 0.5)")
-    s.add_argument("--pad-after-s", type=float, default=0.1, help="silence after the last tone, s (default 0.1)")
+    s.add_argument("--tone-s", type=positive_float, default=1.0, help="duration of each tone, s (default 1)")
+    s.add_argument("--gap-s", type=nonnegative_float, default=0.5, help="silence between tones, s (default 0.5)")
+    s.add_argument("--pad-after-s", type=nonnegative_float, default=0.1,
+                   help="silence after the last tone, s (default 0.1)")
     _add_level(s, 0.01, 0.01)
     _add_output(s)
     _add_exposure(s)
 
     s = sub.add_parser("bursts", help="tone bursts: a few periods of a tone, repeated")
-    s.add_argument("--freq-hz", type=float, required=True, help="tone frequency, Hz")
-    s.add_argument("--cycles", type=float, default=10.0, help="periods per burst, fades included (default 10)")
-    s.add_argument("--fade-cycles", type=float, default=2.0, help="fade at each end of a burst, periods (default 2)")
-    s.add_argument("--period-s", type=float, default=0.5, help="time from burst to burst, s (default 0.5)")
-    s.add_argument("--count", type=_positive_int, default=8, help="number of bursts (default 8)")
-    s.add_argument("--pad-after-s", type=float, default=0.1, help="silence after the last burst, s (default 0.1)")
+    s.add_argument("--freq-hz", type=positive_float, required=True, help="tone frequency, Hz")
+    s.add_argument("--cycles", type=positive_float, default=10.0, help="periods per burst, fades included (default 10)")
+    s.add_argument("--fade-cycles", type=nonnegative_float, default=2.0,
+                   help="fade at each end of a burst, periods (default 2)")
+    s.add_argument("--period-s", type=positive_float, default=0.5, help="time from burst to burst, s (default 0.5)")
+    s.add_argument("--count", type=count(), default=8, help="number of bursts (default 8)")
+    s.add_argument("--pad-after-s", type=nonnegative_float, default=0.1,
+                   help="silence after the last burst, s (default 0.1)")
     _add_level(s, 0.001, 0.001)
     _add_output(s)
     _add_exposure(s)
 
     s = sub.add_parser("silence", help="silence, for padding a playlist or recording the noise floor")
-    s.add_argument("--duration-s", type=float, default=1.0, help="duration, s (default 1)")
-    s.add_argument("--channels", type=_positive_int, default=1, help="number of channels (default 1)")
+    s.add_argument("--duration-s", type=positive_float, default=1.0, help="duration, s (default 1)")
+    s.add_argument("--channels", type=count(MAX_CHANNEL_NUMBER), default=1, help="number of channels (default 1)")
     _add_output(s)
 
     s = sub.add_parser("schedule", help="each speaker plays the sweep in turn, with a decay gap between")
-    s.add_argument("--speakers", type=_positive_int, help="number of speakers (channels, rig order)")
+    s.add_argument("--speakers", type=count(MAX_CHANNEL_NUMBER), help="number of speakers (channels, rig order)")
     s.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated (default S1, S2, ...)")
     _add_sweep(s)
     _add_level(s, None, None)
@@ -522,10 +549,11 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                    help="probe signal before the filters (default sweep; its inverse filter is written too; "
                         "noise is faded 0.02 s in and 0.005 s out unless the fades are given)")
     s.add_argument("--channel-name", help="name of the channel in the sidecar (default: the filter file's stem)")
-    s.add_argument("--seed", type=int, help="random seed for a noise source")
+    s.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), help="random seed for a noise source")
     _add_sweep(s)
     _add_level(s, None, None)
     _add_output(s)
     _add_exposure(s)
 
-    p.set_defaults(run=_run)
+    p.set_defaults(run=_run, parameter_flags={"sample_rate_hz": "--rate-hz", "amp_vrms_full_scale": "--amp-vrms",
+                                              "distances_m": "--listener-distance-m", "fade_s": "--fade-in-s"})

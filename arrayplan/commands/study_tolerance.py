@@ -7,6 +7,7 @@ import argparse
 import matplotlib
 import numpy as np
 
+from ._args import count, nonnegative_count, positive_float
 from ..errors import InputError
 from ..progress import ProgressBar
 from ..studies._common import load_study_source
@@ -35,13 +36,13 @@ def register(actions: argparse._SubParsersAction) -> None:
                    help="standard deviation of each element's gain, dB (default 0)")
     p.add_argument("--phase-deg", type=_number, default=0.0, metavar="DEG",
                    help="standard deviation of each element's phase, degrees (default 0)")
-    p.add_argument("--trials", type=_number, default=200, metavar="N", help="Monte Carlo trials (default 200)")
-    p.add_argument("--seed", type=_number, default=0, metavar="N", help="random seed (default 0)")
+    p.add_argument("--trials", type=count(100_000), default=200, metavar="N", help="Monte Carlo trials (default 200)")
+    p.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), default=0, metavar="N", help="random seed (default 0)")
     p.add_argument("--isolation-db", type=_number, default=20.0, metavar="DB",
                    help="a channel keeps its isolation when its worst crosstalk is at least this far below it "
                         "(default 20, as in verify)")
     p.add_argument("--rig", metavar="RIG", help="the rig file a plan folder was made for (positions, directivities)")
-    p.add_argument("--freq", type=float, action="append", metavar="HZ",
+    p.add_argument("--freq", type=positive_float, action="append", metavar="HZ",
                    help="with a rig file: plan at this frequency (repeatable; default the rig's [frequencies])")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)

@@ -120,9 +120,9 @@ class MeasurementSettings:
     def sweep_settings(self, sample_rate_hz: float) -> SweepSettings:
         """The sweep of one repeat, at `sample_rate_hz`."""
         if self.repeats < 1:
-            raise InputError(f"repeats must be at least 1, got {self.repeats}", field="--repeats")
-        for name, v in (("--ir-s", self.ir_s), ("--max-latency-s", self.max_latency_s),
-                        ("--lead-in-s", self.lead_in_s)):
+            raise InputError(f"repeats must be at least 1, got {self.repeats}", field="repeats")
+        for name, v in (("ir_s", self.ir_s), ("max_latency_s", self.max_latency_s),
+                        ("lead_in_s", self.lead_in_s)):
             if not (math.isfinite(v) and v > 0):
                 raise InputError(f"must be a positive number of seconds, got {v!r}", field=name)
         f2 = self.f2_hz if self.f2_hz is not None else min(20000.0, 0.45 * sample_rate_hz)
@@ -146,13 +146,13 @@ class MeasurementSettings:
             return sweep.pre_roll_samples
         fs = sweep.settings.sample_rate_hz
         if not (math.isfinite(self.pre_s) and self.pre_s >= 0):
-            raise InputError(f"must be zero or a positive time, got {self.pre_s * 1e3!r} ms", field="--pre-ms")
+            raise InputError(f"must be zero or a positive time, got {self.pre_s * 1e3!r} ms", field="pre_s")
         n = int(round(self.pre_s * fs))
         s = sweep.settings
         top = int(math.floor(max_pre_roll_s(s.kind, s.f1_hz, s.f2_hz, s.duration_s) * fs))
         if n > top:
             raise InputError(f"{self.pre_s * 1e3:g} ms reaches past half-way to the 2nd harmonic's response "
-                             f"({math.floor(1e4 * top / fs) / 10:g} ms)", field="--pre-ms",
+                             f"({math.floor(1e4 * top / fs) / 10:g} ms)", field="pre_s",
                              fix="use a shorter pre-roll, or a longer sweep")
         return n
 
@@ -326,7 +326,7 @@ def estimate_latency(reference: np.ndarray, sweep: SweepSignal, max_latency_samp
         raise DeviceError(f"the loopback reference shows no clear impulse within {max_latency_samples} samples "
                           f"(peak {abs(peak):.3g} full scale, {ratio_db:.1f} dB above the rest)", source=source,
                           fix="check the loopback cable from the reference output to the reference input, "
-                              "or raise --max-latency-s")
+                              "or raise `max_latency_s`")
     frac = float(i)
     if 0 < i < h.size - 1:
         a, b, c = abs(h[i - 1]), abs(h[i]), abs(h[i + 1])
@@ -361,7 +361,7 @@ def _check_take(result: DuplexResult, ir: np.ndarray, wiring: RigWiring, setting
         if low:
             where = ", ".join(f"{n} {p:.1f} dB" for n, p in low)
             warnings.append(f"peak-to-noise below {settings.min_peak_to_noise_db:g} dB at {where}: raise the "
-                            "level (within the caution limits), add --repeats, or reduce background noise")
+                            "level (within the caution limits), add `repeats`, or reduce background noise")
     details = {
         "clipped_samples": {n: int(c) for n, c in zip(in_names, clipped)},
         "stream_flags": {"input_overflows": result.input_overflows, "input_underflows": result.input_underflows,
@@ -456,8 +456,8 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
     pre_roll = settings.pre_roll_samples(sweep)
     max_lat = int(round(settings.max_latency_s * fs))
     if latency_samples is not None and latency_source != "reference" and latency_samples > max_lat:
-        raise InputError(f"latency of {latency_samples} samples exceeds --max-latency-s ({max_lat} samples)",
-                         field="--max-latency-s", fix="raise --max-latency-s")
+        raise InputError(f"latency of {latency_samples} samples exceeds `max_latency_s` ({max_lat} samples)",
+                         field="max_latency_s", fix="raise `max_latency_s`")
     fresh = not (out_dir / SESSION_FILE).exists()
     created = make_folders(out_dir, str(out_dir))
     takes_dir = out_dir / "takes"

@@ -94,12 +94,12 @@ def _open_session(out_dir: Path, record: dict[str, Any], device: str) -> None:
             old = json.loads(path.read_text(encoding="utf-8"))
         except (UnicodeDecodeError, json.JSONDecodeError) as exc:
             raise InputError(f"not valid JSON ({exc})", source=str(path),
-                             fix="measure into a new --out folder") from None
+                             fix="measure into a new `out` folder") from None
         for key in _SESSION_KEYS_THAT_MUST_MATCH:
             if json.loads(json.dumps(old.get(key), default=str)) != json.loads(json.dumps(record[key], default=str)):
                 raise InputError(f"this folder holds a measurement with other '{key}' than asked for now",
                                  source=str(path), field=key,
-                                 fix="resume with the same rig and options as before, or use a new --out folder")
+                                 fix="resume with the same rig and options as before, or use a new `out` folder")
         return
     write_json_atomic(path, dict(record, device=device, provenance=provenance(rig_sha256=record["wiring"]["rig_sha256"])))
 

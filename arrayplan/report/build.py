@@ -489,7 +489,7 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     if results.empty:
         detail = f" ({'; '.join(results.problems)})" if results.problems else ""
         raise InputError("no arrayplan results found" + detail, source=str(root),
-                         fix="run 'arrayplan plan RIG.toml --out DIR' (and filters, measure, verify) into this folder")
+                         fix="write results into this folder first ('arrayplan plan', then filters, measure, verify)")
     generated = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
     title = title or f"arrayplan report: {root.resolve().name}"
     steps = ([("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]

@@ -79,21 +79,22 @@ def read_filter_wav(path: str | Path, *, sample_rate_hz: float | None = None) ->
 
     path = Path(path)
     if not path.exists():
-        raise InputError("filter file not found", source=str(path), field="--filters")
+        raise InputError("filter file not found", source=str(path), field="filters")
     check_folder(path.parent, needed=(path.name,))  # a filter set's file must be the one written with it
     try:
         data, rate = sf.read(path, dtype="float64", always_2d=True)
     except Exception as exc:  # soundfile raises several types
-        raise InputError(f"cannot read WAV ({exc})", source=str(path), field="--filters") from None
+        raise InputError(f"cannot read WAV ({exc})", source=str(path), field="filters") from None
     if data.shape[0] == 0:
-        raise InputError("filter file has no samples", source=str(path), field="--filters")
+        raise InputError("filter file has no samples", source=str(path), field="filters")
     if not np.all(np.isfinite(data)):
-        raise InputError("filter file contains NaN or infinite samples", source=str(path), field="--filters")
+        raise InputError("filter file contains NaN or infinite samples", source=str(path), field="filters")
     if not np.any(data):
-        raise InputError("every filter in the file is zero", source=str(path), field="--filters")
+        raise InputError("every filter in the file is zero", source=str(path), field="filters")
     if sample_rate_hz is not None and rate != int(round(sample_rate_hz)):
         raise InputError(f"filter file is at {rate} Hz, the probe at {sample_rate_hz:g} Hz", source=str(path),
-                         field="--rate", fix=f"use --rate {rate} or design the filters at the probe's rate")
+                         field="sample_rate_hz",
+                         fix=f"use `sample_rate_hz`={rate} or design the filters at the probe's rate")
     names = filter_names_from_sidecar(path, data.shape[1]) or [f"S{i + 1}" for i in range(data.shape[1])]
     return data, int(rate), names
 

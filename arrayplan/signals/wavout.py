@@ -62,10 +62,10 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
 
     wav_path = Path(wav_path)
     if wav_path.suffix.lower() != ".wav":
-        raise InputError("output file must end in .wav", source=str(wav_path), field="--out")
+        raise InputError("output file must end in .wav", source=str(wav_path), field="out")
     if sample_format not in SAMPLE_FORMATS:
         raise InputError(f"sample format must be one of {', '.join(SAMPLE_FORMATS)}, got {sample_format!r}",
-                         field="--format")
+                         field="format")
     signal = np.asarray(signal, dtype=float)
     if not np.all(np.isfinite(signal)) or (signal.size and np.max(np.abs(signal)) > 1.0):
         raise InputError("signal exceeds full scale or is not finite; refusing to write it", source=str(wav_path))
