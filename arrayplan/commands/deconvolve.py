@@ -5,7 +5,11 @@ recorded while the sweep file played, or one long recording of a schedule
 written by ``arrayplan signal schedule`` (it is split by the schedule's
 sidecar), or one recording of a sweep channel probe.  Each recording must
 start with the played file's first sample (as when playing one track and
-recording another in the same session) and run at least to its end.
+recording another in the same session) and run at least to its end.  With
+``--rig RIG.toml`` or ``--plan PLAN_DIR`` the speakers and microphones are
+named (and placed) as the rig names them, so ``plan --irset`` and ``verify``
+match them to the plan; the recordings must then hold the rig's speakers and
+microphones, in rig order.
 
 The output folder is an IR set (``irset.json`` and one WAV per speaker, see
 :mod:`arrayplan.irset`) holding the linear impulse responses (each starts
@@ -42,6 +46,7 @@ from ..irset import IRSet, write_irset
 from ..progress import ProgressBar
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, impulse_responses,
                                   split_schedule)
+from ..signals.element_names import RigNames, fit_names, names_from_plan, names_from_rig_file
 from ..signals.distortion_floor import DISTORTION_MARGIN_DB, MEASURED, combined_floor_db
 from ..signals.sweep_record import SweepRecord
 from ..signals.wavout import read_recording
@@ -113,7 +118,42 @@ def _harmonic_text(result: Any, order: int, s: int) -> str:
     return f"H{order} {result.harmonic_status[order][m, s]} ({_floor(result, order, m, s):.1f} dB)"
 
 
+def _rig_names(args: argparse.Namespace) -> RigNames | None:
+    """The rig's element names from ``--rig`` or ``--plan``, else None (names given or defaulted)."""
+    if args.rig is None and args.plan is None:
+        return None
+    if args.speaker_names or args.mic_names:
+        raise InputError("the names come from the rig or the plan; --speaker-names and --mic-names are for "
+                         "recordings without one", field="--speaker-names/--mic-names",
+                         fix="drop --speaker-names and --mic-names, or drop --rig/--plan")
+    return names_from_rig_file(args.rig) if args.rig is not None else names_from_plan(args.plan)
+
+
+def _element_names(args: argparse.Namespace, rig_names: RigNames | None, default_speakers: list[str],
+                   n_speakers: int, n_mic: int, *, probe: bool, notes: list[str]
+                   ) -> tuple[list[str], list[str], tuple[np.ndarray | None, np.ndarray | None]]:
+    """Speaker and microphone names (and positions, where the rig gives them) of the IR set."""
+    if rig_names is not None:
+        fitted = fit_names(rig_names, None if probe else n_speakers, n_mic)
+        speakers = list(fitted.speaker_names) or default_speakers
+        if not probe and default_speakers != [f"S{i + 1}" for i in range(n_speakers)] \
+                and default_speakers != speakers:
+            notes.append(f"the schedule names the speakers {', '.join(default_speakers)}; the IR set takes the "
+                         f"{fitted.kind}'s names {', '.join(speakers)} (same order)")
+        return speakers, list(fitted.mic_names), (fitted.speaker_positions, fitted.mic_positions)
+    speakers = args.speaker_names or default_speakers
+    if len(speakers) != n_speakers:
+        raise InputError(f"{len(speakers)} speaker names for {n_speakers} speakers", field="--speaker-names",
+                         fix="give one name per recorded speaker, or --rig RIG.toml to take the rig's names")
+    mics = args.mic_names or [f"M{i + 1}" for i in range(n_mic)]
+    if len(mics) != n_mic:
+        raise InputError(f"{len(mics)} microphone names for {n_mic} recorded channels", field="--mic-names",
+                         fix="give one name per recorded channel, or --rig RIG.toml to take the rig's names")
+    return speakers, mics, (None, None)
+
+
 def _run(args: argparse.Namespace) -> int:
+    rig_names = _rig_names(args)
     side_path = Path(args.sweep)
     side = _read_sidecar(side_path)
     src = str(side_path)
@@ -167,13 +207,10 @@ def _run(args: argparse.Namespace) -> int:
             _check_length(data.shape[0], n_file, rate, str(path), warnings)
             recordings.append(data)
             recorded.append(str(path))
-    speakers = args.speaker_names or default_names
-    if len(speakers) != len(recordings):
-        raise InputError(f"{len(speakers)} speaker names for {len(recordings)} speakers", field="--speaker-names")
     n_mic = recordings[0].shape[1]
-    mics = args.mic_names or [f"M{i + 1}" for i in range(n_mic)]
-    if len(mics) != n_mic:
-        raise InputError(f"{len(mics)} microphone names for {n_mic} recorded channels", field="--mic-names")
+    notes: list[str] = []
+    speakers, mics, positions = _element_names(args, rig_names, default_names, len(recordings), n_mic,
+                                               probe=probe is not None and schedule is None, notes=notes)
 
     max_len = rec_info.pad_after_samples
     if args.ir_length_s is not None:
@@ -190,7 +227,6 @@ def _run(args: argparse.Namespace) -> int:
         raise InputError(f"must be 1 (none) or more, got {args.max_harmonic}", field="--max-harmonic")
     pre_roll = _pre_roll_samples(args.pre_ms, rec_info, rate)
     offsets = rec_info.harmonic_offsets_samples(args.max_harmonic)
-    notes: list[str] = []
     if rec_info.kind == "exponential" and offsets and offsets[2] < ir_len:
         notes.append(f"the 2nd harmonic sits {offsets[2] / rate:.3f} s before the linear response, less than "
                         f"the response length {ir_len / rate:.3f} s: a long room tail may overlap the distortion "
@@ -224,6 +260,8 @@ def _run(args: argparse.Namespace) -> int:
                                            if math.isfinite(result.thd_db[m, s]) else "below the floors")}
                       for m, mic in enumerate(mics)} for s, spk in enumerate(speakers)}
     extra = {"producer": "arrayplan deconvolve (offline)", "sweep_sidecar": side_path.name,
+             "element_names_from": ({"kind": rig_names.kind, "source": rig_names.source} if rig_names is not None
+                                    else "given" if args.speaker_names or args.mic_names else "defaults"),
              "sweep": side.get("sweep"), "recordings": recorded,
              "harmonic_windows": {str(n): {"offset_samples": offsets[n], "samples": int(h.shape[0]),
                                            "nominal_index": int(result.harmonic_zero_index[n])}
@@ -247,7 +285,7 @@ def _run(args: argparse.Namespace) -> int:
              "peak_to_noise_definition": "20 log10 of the peak over the RMS of the last 10 % of the response",
              "notes": notes, "per_pair": per_pair}
     irs = IRSet(data=result.data, sample_rate_hz=float(rate), speaker_names=speakers, mic_names=mics,
-                units="full_scale", latency_removed_samples=0, warnings=warnings, extra=extra,
+                speaker_positions=positions[0], mic_positions=positions[1], units="full_scale", latency_removed_samples=0, warnings=warnings, extra=extra,
                 zero_lag_samples=pre_roll)
 
     buf = io.StringIO()
@@ -302,9 +340,16 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--sweep", required=True, type=Path, metavar="SWEEP.json",
                    help="the sidecar written beside the played sweep, schedule or sweep probe")
     p.add_argument("--out", required=True, type=Path, metavar="DIR", help="output folder (an IR set)")
-    p.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated "
+    names = p.add_mutually_exclusive_group()
+    names.add_argument("--rig", type=Path, metavar="RIG.toml",
+                       help="name (and place) the speakers and microphones as this rig file does; the recordings "
+                            "must hold its speakers and microphones in rig order")
+    names.add_argument("--plan", type=Path, metavar="PLAN_DIR",
+                       help="the same, from a folder written by 'arrayplan plan'")
+    p.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated, without --rig/--plan "
                                                             "(default: the schedule's, else S1, S2, ...)")
-    p.add_argument("--mic-names", type=_csv_names, help="microphone names, comma-separated (default M1, M2, ...)")
+    p.add_argument("--mic-names", type=_csv_names, help="microphone names, comma-separated, without --rig/--plan "
+                                                        "(default M1, M2, ...)")
     p.add_argument("--ir-length-s", type=float,
                    help="response length after zero lag, s (default: the silence after the sweep)")
     p.add_argument("--pre-ms", type=float, metavar="MS",

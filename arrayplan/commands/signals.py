@@ -508,8 +508,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s = sub.add_parser("probe", help="one planned channel: a sweep or noise through its drive filters, "
                                      "all speakers at once")
     s.add_argument("--filters", type=Path, required=True, metavar="FILTERS.wav",
-                   help="the channel's drive filters: float WAV, one channel per speaker in rig order "
-                        "(speaker names are taken from FILTERS.json if it exists)")
+                   help="the channel's drive filters: float WAV, one channel per speaker in rig order, such "
+                        "as channel-NN-drive.wav written by 'arrayplan filters' (speaker names from FILTERS.json "
+                        "beside it if it exists, else from that folder's filters.json)")
     s.add_argument("--source", choices=("sweep",) + NOISE_COLOURS, default="sweep",
                    help="probe signal before the filters (default sweep; its inverse filter is written too; "
                         "noise is faded 0.02 s in and 0.005 s out unless the fades are given)")
