@@ -7,7 +7,6 @@ the plan uses; the delay theorem of the DFT).
 """
 
 import json
-import re
 
 import numpy as np
 import pytest
@@ -15,6 +14,7 @@ import soundfile as sf
 
 import arrayplan.cli as cli
 from arrayplan.irset import read_irset
+from cli_flags import assert_flags_exist
 
 FS = 16000
 C = 343.2
@@ -30,18 +30,6 @@ def _run(capsys, *argv):
     rc = cli.main([str(a) for a in argv])
     out, err = capsys.readouterr()
     return rc, out, err
-
-
-def assert_flags_exist(capsys, err, *command):
-    """Every option named in an error line exists in that command's --help (common practice, no source)."""
-    try:
-        rc = cli.main([*command, "--help"])
-    except SystemExit as stop:      # argparse's own exit, where the command line does not catch it
-        rc = stop.code
-    help_text = capsys.readouterr().out
-    assert rc == 0 and "usage:" in help_text
-    for flag in set(re.findall(r"(?<![\w-])--[a-z][a-z0-9-]*", err)):
-        assert re.search(rf"(?<![\w-]){re.escape(flag)}(?![\w-])", help_text), (flag, err)
 
 
 def _one_line_error(rc, err, command, *words):

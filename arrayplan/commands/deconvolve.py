@@ -220,7 +220,7 @@ def _run(args: argparse.Namespace) -> int:
         if ir_len > max_len:
             raise InputError(f"{args.ir_length_s:g} s is longer than the silence after the sweep "
                              f"({max_len / rate:g} s)", field="--ir-length-s",
-                             fix="make a sweep with a longer --pad-after-s, or shorten the response")
+                             fix="give a shorter --ir-length-s, or make the sweep again with more silence after it")
     else:
         ir_len = max_len
     if args.max_harmonic < 1:
