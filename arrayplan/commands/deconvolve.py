@@ -29,48 +29,28 @@ are printed as warnings and stored in the IR set's warnings.
 from __future__ import annotations
 
 import argparse
-import csv
-import io
-import json
 import math
 import sys
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 
 from ._args import csv_names as _csv_names
 from ..errors import InputError
-from ..fileio import staged_output_dir, write_text_atomic
+from ..fileio import staged_output_dir
+from ..formats.deconvolution_summary import SUMMARY_FILE, summarise, summary_record, write_deconvolution_summary
+from ..formats.signal_sidecar import read_signal_sidecar
 from ..irset import IRSet, write_irset
 from ..progress import ProgressBar
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, impulse_responses,
                                   split_schedule)
 from ..signals.element_names import RigNames, fit_names, names_from_plan, names_from_rig_file
-from ..signals.distortion_floor import DISTORTION_MARGIN_DB, MEASURED, combined_floor_db
 from ..signals.sweep_record import SweepRecord
 from ..signals.wavout import read_recording
 
 __all__ = ["register", "REPORT_NAME"]
 
-REPORT_NAME = "deconvolution.csv"
-
-
-def _read_sidecar(path: Path) -> dict[str, Any]:
-    src = str(path)
-    if not path.exists():
-        raise InputError("sweep sidecar not found", source=src, field="--sweep",
-                         fix="give the .json written beside the sweep file")
-    try:
-        obj = json.loads(path.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=src) from None
-    if not isinstance(obj, dict) or obj.get("format") != "arrayplan-signal":
-        raise InputError("not an arrayplan signal sidecar", source=src, field="format",
-                         fix="give the .json written by 'arrayplan signal sweep|schedule|probe'")
-    if not isinstance(obj.get("n_samples"), int) or obj["n_samples"] <= 0:
-        raise InputError("missing or bad n_samples", source=src, field="n_samples")
-    return obj
+REPORT_NAME = SUMMARY_FILE
 
 
 def _check_length(n_rec: int, n_file: int, rate: int, src: str, warnings: list[str]) -> None:
@@ -101,21 +81,6 @@ def _pre_roll_samples(pre_ms: float | None, rec_info: SweepRecord, rate: int) ->
         raise InputError(f"{pre_ms:g} ms reaches past {what} ({math.floor(1e4 * top / rate) / 10:g} ms)",
                          field="--pre-ms", fix="use a shorter pre-roll, or a longer sweep")
     return n
-
-
-def _floor(result: Any, order: int, m: int, s: int) -> float:
-    """The floor (method's and noise's together) of one order and pair, dB."""
-    method = None if result.method_floor_db is None else result.method_floor_db[order]
-    return float(combined_floor_db(method, result.noise_floor_db[order][m, s]))
-
-
-def _harmonic_text(result: Any, order: int, s: int) -> str:
-    """``H2 -44.1 dB`` (worst microphone measured) or ``H2 below the method's floor (-66.1 dB)``."""
-    reported = result.reported_harmonic_db(order)[:, s]
-    if np.any(np.isfinite(reported)):
-        return f"H{order} {np.nanmax(reported):.1f} dB"
-    m = int(np.argmax([_floor(result, order, m, s) for m in range(reported.size)]))
-    return f"H{order} {result.harmonic_status[order][m, s]} ({_floor(result, order, m, s):.1f} dB)"
 
 
 def _rig_names(args: argparse.Namespace) -> RigNames | None:
@@ -155,7 +120,7 @@ def _element_names(args: argparse.Namespace, rig_names: RigNames | None, default
 def _run(args: argparse.Namespace) -> int:
     rig_names = _rig_names(args)
     side_path = Path(args.sweep)
-    side = _read_sidecar(side_path)
+    side = read_signal_sidecar(side_path)
     src = str(side_path)
     rec_info = SweepRecord.from_json(side.get("sweep"), source=src)
     rate = int(round(rec_info.sample_rate_hz))
@@ -243,22 +208,7 @@ def _run(args: argparse.Namespace) -> int:
                                    pre_roll_samples=pre_roll, clean_recording=clean, progress=bar)
     warnings += result.warnings
 
-    def fin(v: float) -> float | None:
-        return round(float(v), 3) if math.isfinite(v) else None
-
-    per_pair = {spk: {mic: {"peak_db": fin(result.peak_dbfs[m, s]),
-                            "peak_delay_s": float(result.peak_index[m, s] - pre_roll) / rate,
-                            "peak_to_noise_db": fin(result.peak_to_noise_db[m, s]),
-                            "clipped_samples": int(result.clipped_samples[m, s]),
-                            "harmonic_db": {str(n): fin(result.reported_harmonic_db(n)[m, s])
-                                            for n in result.harmonic_db},
-                            "harmonic_status": {str(n): str(result.harmonic_status[n][m, s])
-                                                for n in result.harmonic_db},
-                            "harmonic_floor_db": {str(n): fin(_floor(result, n, m, s)) for n in result.harmonic_db},
-                            "thd_db": fin(result.thd_db[m, s]) if result.harmonic_db else None,
-                            "thd_status": (None if not result.harmonic_db else MEASURED
-                                           if math.isfinite(result.thd_db[m, s]) else "below the floors")}
-                      for m, mic in enumerate(mics)} for s, spk in enumerate(speakers)}
+    summary = summarise(result, speakers, mics, pre_roll_samples=pre_roll, sample_rate_hz=rate)
     extra = {"producer": "arrayplan deconvolve (offline)", "sweep_sidecar": side_path.name,
              "element_names_from": ({"kind": rig_names.kind, "source": rig_names.source} if rig_names is not None
                                     else "given" if args.speaker_names or args.mic_names else "defaults"),
@@ -269,38 +219,10 @@ def _run(args: argparse.Namespace) -> int:
              "pre_roll": {"samples": pre_roll, "ms": 1e3 * pre_roll / rate,
                           "rule": "given by --pre-ms" if args.pre_ms is not None else
                           f"the sweep's: {side['sweep'].get('pre_roll_rule', 'one Fresnel time at f1')}"},
-             "peak_delay_definition": "time of the largest sample after zero lag",
-             "harmonic_level_definition": "10 log10 of the product's energy over the linear response's energy",
-             "harmonic_floor": {
-                 "method_floor_db": ({str(n): fin(v) for n, v in result.method_floor_db.items()}
-                                     if result.method_floor_db is not None else None),
-                 "method_floor_definition": "harmonic levels of the clean sweep file deconvolved as its own "
-                                            "recording (a unity wire): the method's own artefacts",
-                 "noise_floor_definition": "the response tail's noise power (last 10 %) times each harmonic "
-                                           "window's length, over the linear response's energy",
-                 "margin_db": DISTORTION_MARGIN_DB,
-                 "rule": "a harmonic level is reported only when it exceeds the energy sum of both floors by "
-                         "the margin; otherwise harmonic_db is null and harmonic_status says which floor it is "
-                         "below; thd_db sums the reported products only"},
-             "peak_to_noise_definition": "20 log10 of the peak over the RMS of the last 10 % of the response",
-             "notes": notes, "per_pair": per_pair}
+             "notes": notes, **summary_record(summary)}
     irs = IRSet(data=result.data, sample_rate_hz=float(rate), speaker_names=speakers, mic_names=mics,
-                speaker_positions=positions[0], mic_positions=positions[1], units="full_scale", latency_removed_samples=0, warnings=warnings, extra=extra,
-                zero_lag_samples=pre_roll)
-
-    buf = io.StringIO()
-    orders = sorted(result.harmonic_db)
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["speaker", "mic", "peak_db", "peak_delay_ms", "peak_to_noise_db", "clipped_samples"]
-               + [f"harmonic{n}_{c}" for n in orders for c in ("db", "floor_db", "status")]
-               + (["thd_db", "thd_status"] if orders else []))
-    for s, spk in enumerate(speakers):
-        for m, mic in enumerate(mics):
-            cell = per_pair[spk][mic]
-            w.writerow([spk, mic, cell["peak_db"], round(1000 * cell["peak_delay_s"], 4), cell["peak_to_noise_db"],
-                        cell["clipped_samples"]]
-                       + [cell[f"harmonic_{c}"][str(n)] for n in orders for c in ("db", "floor_db", "status")]
-                       + ([cell["thd_db"], cell["thd_status"]] if orders else []))
+                speaker_positions=positions[0], mic_positions=positions[1], units="full_scale",
+                latency_removed_samples=0, warnings=warnings, extra=extra, zero_lag_samples=pre_roll)
 
     with staged_output_dir(args.out) as stage:
         write_irset(stage, irs, command="arrayplan deconvolve")
@@ -313,7 +235,7 @@ def _run(args: argparse.Namespace) -> int:
                                f"{offsets[n]:.1f} samples before the linear response's zero lag"},
                 zero_lag_samples=min(int(result.harmonic_zero_index[n]), h.shape[0] - 1)),
                 command="arrayplan deconvolve")
-        write_text_atomic(stage / REPORT_NAME, buf.getvalue())
+        write_deconvolution_summary(stage, summary)
 
     for line in warnings:
         print(f"arrayplan deconvolve: warning: {line}", file=sys.stderr)
@@ -323,10 +245,10 @@ def _run(args: argparse.Namespace) -> int:
           f"{pre_roll} + {ir_len} samples (before + after zero lag) at {rate} Hz; "
           f"report {Path(args.out) / REPORT_NAME}")
     for s, spk in enumerate(speakers):
-        worst = float(np.min(result.peak_to_noise_db[:, s]))
+        worst = float(np.nanmin(summary.peak_to_noise_db[:, s]))
         text = f"  {spk}: peak-to-noise {worst:.1f} dB (lowest mic)"
-        if orders:
-            text += ", " + ", ".join(_harmonic_text(result, n, s) for n in orders)
+        if summary.orders:
+            text += ", " + ", ".join(summary.worst_harmonic_text(n, s) for n in summary.orders)
         print(text)
     return 0
 
