@@ -37,34 +37,16 @@ import numpy as np
 
 from ._args import csv_names as _csv_names
 from ..errors import InputError
-from ..fileio import staged_output_dir
-from ..formats.deconvolution_summary import SUMMARY_FILE, summarise, summary_record, write_deconvolution_summary
-from ..formats.signal_sidecar import read_signal_sidecar
-from ..irset import IRSet, write_irset
+from ..formats.deconvolution_summary import SUMMARY_FILE
 from ..progress import ProgressBar
-from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, impulse_responses,
-                                  split_schedule)
+from ..signals.deconvolve import DEFAULT_MIN_PEAK_TO_NOISE_DB
 from ..signals.element_names import RigNames, fit_names, names_from_plan, names_from_rig_file
+from ..signals.offline import PlayedSweep, deconvolve_takes, read_played_sweep, read_takes, write_offline_irs
 from ..signals.sweep_record import SweepRecord
-from ..signals.wavout import read_recording
 
 __all__ = ["register", "REPORT_NAME"]
 
 REPORT_NAME = SUMMARY_FILE
-
-
-def _check_length(n_rec: int, n_file: int, rate: int, src: str, warnings: list[str]) -> None:
-    if n_rec < n_file:
-        raise InputError(f"recording has {n_rec} samples ({n_rec / rate:.3f} s) but the played file has {n_file} "
-                         f"({n_file / rate:.3f} s)", source=src,
-                         fix="record the whole file, including the silence after the sweep")
-    if n_rec > 2 * n_file:
-        raise InputError(f"recording has {n_rec} samples, more than twice the played file's {n_file}: it may hold "
-                         "several takes or start well before the file", source=src,
-                         fix="trim it so it starts with the played file's first sample")
-    if n_rec > n_file:
-        warnings.append(f"{src}: recording is {(n_rec - n_file) / rate:.3f} s longer than the played file; "
-                        "its first sample is taken as the file's first sample")
 
 
 def _pre_roll_samples(pre_ms: float | None, rec_info: SweepRecord, rate: int) -> int:
@@ -117,131 +99,53 @@ def _element_names(args: argparse.Namespace, rig_names: RigNames | None, default
     return speakers, mics, (None, None)
 
 
+def _ir_length(ir_length_s: float | None, played: PlayedSweep) -> int:
+    """Samples kept after zero lag: ``--ir-length-s``, else the whole silence after the sweep."""
+    rate, most = played.sample_rate_hz, played.record.pad_after_samples
+    if ir_length_s is None:
+        return most
+    if not (math.isfinite(ir_length_s) and ir_length_s > 0):
+        raise InputError(f"must be positive, got {ir_length_s!r} s", field="--ir-length-s")
+    n = int(round(ir_length_s * rate))
+    if n > most:
+        raise InputError(f"{ir_length_s:g} s is longer than the silence after the sweep ({most / rate:g} s)",
+                         field="--ir-length-s",
+                         fix="give a shorter --ir-length-s, or make the sweep again with more silence after it")
+    return n
+
+
 def _run(args: argparse.Namespace) -> int:
     rig_names = _rig_names(args)
-    side_path = Path(args.sweep)
-    side = read_signal_sidecar(side_path)
-    src = str(side_path)
-    rec_info = SweepRecord.from_json(side.get("sweep"), source=src)
-    rate = int(round(rec_info.sample_rate_hz))
-    inv_path = side_path.parent / rec_info.inverse_filter_file
-    inverse, inv_rate = read_recording(inv_path, field="sweep.inverse_filter_file")
-    if inv_rate != rate or inverse.shape[1] != 1 or inverse.shape[0] != rec_info.n_sweep_samples:
-        raise InputError(f"inverse filter does not match the sidecar ({inverse.shape[0]} samples, {inv_rate} Hz; "
-                         f"expected {rec_info.n_sweep_samples} samples, {rate} Hz)", source=str(inv_path),
-                         fix="use the files written together by arrayplan signal")
-    inverse = inverse[:, 0]
-
-    schedule = side.get("schedule")
-    probe = side.get("probe")
-    warnings: list[str] = []
-    n_file = int(side["n_samples"])
-    recordings: list[np.ndarray] = []
-    if schedule is not None or probe is not None:
-        if len(args.recordings) != 1:
-            raise InputError(f"a {'schedule' if schedule else 'channel probe'} is recorded as one file, got "
-                             f"{len(args.recordings)}", source=src, fix="give the one recording of the whole file")
-        data, r = read_recording(args.recordings[0])
-        if r != rate:
-            raise InputError(f"recorded at {r} Hz but the sweep is at {rate} Hz", source=str(args.recordings[0]),
-                             fix="record at the sweep's rate (no resampling)")
-        _check_length(data.shape[0], n_file, rate, str(args.recordings[0]), warnings)
-        if schedule is not None:
-            try:
-                starts = [int(e["segment_start_sample"]) for e in schedule["speakers"]]
-                default_names = [str(e["speaker"]) for e in schedule["speakers"]]
-                seg = int(schedule["segment_length_samples"])
-            except (KeyError, TypeError, ValueError):
-                raise InputError("malformed schedule block", source=src, field="schedule") from None
-            recordings = split_schedule(data, starts, seg)
-        else:
-            default_names = [str(probe.get("channel_name", "probe"))]
-            recordings = [data]
-        recorded = [str(args.recordings[0])]
-    else:
-        default_names = [f"S{i + 1}" for i in range(len(args.recordings))]
-        recorded = []
-        for path in args.recordings:
-            data, r = read_recording(path)
-            if r != rate:
-                raise InputError(f"recorded at {r} Hz but the sweep is at {rate} Hz", source=str(path),
-                                 fix="record at the sweep's rate (no resampling)")
-            if recordings and data.shape[1] != recordings[0].shape[1]:
-                raise InputError(f"has {data.shape[1]} channels, the first recording {recordings[0].shape[1]}",
-                                 source=str(path), fix="record every speaker with the same microphones")
-            _check_length(data.shape[0], n_file, rate, str(path), warnings)
-            recordings.append(data)
-            recorded.append(str(path))
-    n_mic = recordings[0].shape[1]
+    played = read_played_sweep(args.sweep)
+    takes = read_takes(played, args.recordings)
     notes: list[str] = []
-    speakers, mics, positions = _element_names(args, rig_names, default_names, len(recordings), n_mic,
-                                               probe=probe is not None and schedule is None, notes=notes)
-
-    max_len = rec_info.pad_after_samples
-    if args.ir_length_s is not None:
-        if not (math.isfinite(args.ir_length_s) and args.ir_length_s > 0):
-            raise InputError(f"must be positive, got {args.ir_length_s!r} s", field="--ir-length-s")
-        ir_len = int(round(args.ir_length_s * rate))
-        if ir_len > max_len:
-            raise InputError(f"{args.ir_length_s:g} s is longer than the silence after the sweep "
-                             f"({max_len / rate:g} s)", field="--ir-length-s",
-                             fix="give a shorter --ir-length-s, or make the sweep again with more silence after it")
-    else:
-        ir_len = max_len
+    speakers, mics, positions = _element_names(args, rig_names, takes.speaker_names, len(takes.recordings),
+                                               takes.n_mic, probe=takes.probe, notes=notes)
+    ir_len = _ir_length(args.ir_length_s, played)
     if args.max_harmonic < 1:
         raise InputError(f"must be 1 (none) or more, got {args.max_harmonic}", field="--max-harmonic")
-    pre_roll = _pre_roll_samples(args.pre_ms, rec_info, rate)
-    offsets = rec_info.harmonic_offsets_samples(args.max_harmonic)
-    if rec_info.kind == "exponential" and offsets and offsets[2] < ir_len:
-        notes.append(f"the 2nd harmonic sits {offsets[2] / rate:.3f} s before the linear response, less than "
-                        f"the response length {ir_len / rate:.3f} s: a long room tail may overlap the distortion "
-                        "products (a longer sweep separates them further)")
-
-    clean = rec_info.clean_recording() if offsets else None
-    if offsets and clean is None:
-        notes.append("the sidecar does not say how the sweep was faded, so the method's own distortion floor is "
-                     "unknown: harmonic levels are judged against the noise floor only")
+    rate = played.sample_rate_hz
+    pre_roll = _pre_roll_samples(args.pre_ms, played.record, rate)
+    names_from = ({"kind": rig_names.kind, "source": rig_names.source} if rig_names is not None
+                  else "given" if args.speaker_names or args.mic_names else "defaults")
+    pre_rule = ("given by --pre-ms" if args.pre_ms is not None else
+                f"the sweep's: {played.sidecar['sweep'].get('pre_roll_rule', 'one Fresnel time at f1')}")
     with ProgressBar("deconvolving speakers") as bar:
-        result = impulse_responses(recordings, inverse, linear_lag=rec_info.linear_lag_samples, ir_length=ir_len,
-                                   harmonic_offsets=offsets, speaker_names=speakers, mic_names=mics,
-                                   min_peak_to_noise_db=args.min_pnr_db, clip_threshold=CLIP_THRESHOLD,
-                                   pre_roll_samples=pre_roll, clean_recording=clean, progress=bar)
-    warnings += result.warnings
+        made = deconvolve_takes(played, takes, speaker_names=speakers, mic_names=mics, ir_length=ir_len,
+                                pre_roll=pre_roll, max_harmonic=args.max_harmonic,
+                                min_peak_to_noise_db=args.min_pnr_db, speaker_positions=positions[0],
+                                mic_positions=positions[1], notes=notes, progress=bar,
+                                provenance={"element_names_from": names_from,
+                                            "pre_roll": {"samples": pre_roll, "ms": 1e3 * pre_roll / rate,
+                                                         "rule": pre_rule}})
+    write_offline_irs(args.out, made)
 
-    summary = summarise(result, speakers, mics, pre_roll_samples=pre_roll, sample_rate_hz=rate)
-    extra = {"producer": "arrayplan deconvolve (offline)", "sweep_sidecar": side_path.name,
-             "element_names_from": ({"kind": rig_names.kind, "source": rig_names.source} if rig_names is not None
-                                    else "given" if args.speaker_names or args.mic_names else "defaults"),
-             "sweep": side.get("sweep"), "recordings": recorded,
-             "harmonic_windows": {str(n): {"offset_samples": offsets[n], "samples": int(h.shape[0]),
-                                           "nominal_index": int(result.harmonic_zero_index[n])}
-                                  for n, h in result.harmonics.items()},
-             "pre_roll": {"samples": pre_roll, "ms": 1e3 * pre_roll / rate,
-                          "rule": "given by --pre-ms" if args.pre_ms is not None else
-                          f"the sweep's: {side['sweep'].get('pre_roll_rule', 'one Fresnel time at f1')}"},
-             "notes": notes, **summary_record(summary)}
-    irs = IRSet(data=result.data, sample_rate_hz=float(rate), speaker_names=speakers, mic_names=mics,
-                speaker_positions=positions[0], mic_positions=positions[1], units="full_scale",
-                latency_removed_samples=0, warnings=warnings, extra=extra, zero_lag_samples=pre_roll)
-
-    with staged_output_dir(args.out) as stage:
-        write_irset(stage, irs, command="arrayplan deconvolve")
-        for n, h in result.harmonics.items():
-            write_irset(stage / f"harmonic-{n}", IRSet(
-                data=h, sample_rate_hz=float(rate), speaker_names=speakers, mic_names=mics, units="full_scale",
-                extra={"harmonic_order": n, "offset_samples": offsets[n],
-                       "nominal_index": int(result.harmonic_zero_index[n]),
-                       "note": f"order-{n} distortion product; sample nominal_index (the set's zero lag) is "
-                               f"{offsets[n]:.1f} samples before the linear response's zero lag"},
-                zero_lag_samples=min(int(result.harmonic_zero_index[n]), h.shape[0] - 1)),
-                command="arrayplan deconvolve")
-        write_deconvolution_summary(stage, summary)
-
-    for line in warnings:
+    for line in made.irset.warnings:
         print(f"arrayplan deconvolve: warning: {line}", file=sys.stderr)
-    for line in notes:
+    for line in made.notes:
         print(f"arrayplan deconvolve: note: {line}", file=sys.stderr)
-    print(f"wrote IR set {Path(args.out) / 'irset.json'}: {len(speakers)} speaker(s) x {n_mic} microphone(s), "
+    summary = made.summary
+    print(f"wrote IR set {Path(args.out) / 'irset.json'}: {len(speakers)} speaker(s) x {len(mics)} microphone(s), "
           f"{pre_roll} + {ir_len} samples (before + after zero lag) at {rate} Hz; "
           f"report {Path(args.out) / REPORT_NAME}")
     for s, spk in enumerate(speakers):
