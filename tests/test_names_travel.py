@@ -152,3 +152,20 @@ def test_a_probe_of_filters_from_the_rig_names_its_speakers_and_deconvolves_with
     assert rc == 0, err
     irs = read_irset(tmp_path / "probe-irs")
     assert irs.speaker_names == ["channel-01-drive"] and irs.mic_names == list(MICS)
+
+
+def test_a_schedule_recorded_on_the_rig_takes_the_rigs_names_and_says_so(bench, tmp_path, capsys):
+    rc, _, err = _run(capsys, "signal", "schedule", "--speaker-names", "T1,T2", "--out", tmp_path / "sched.wav",
+                      *SWEEP)
+    assert rc == 0, err
+    x, _ = sf.read(tmp_path / "sched.wav", always_2d=True)
+    # Each speaker's channel reaches every microphone at a different (invented) gain: fixture data.
+    rec = x @ np.array([[0.3, 0.2, 0.1], [0.1, 0.2, 0.3]])
+    sf.write(tmp_path / "sched-take.wav", rec, FS, subtype="FLOAT")
+    rc, _, err = _run(capsys, "deconvolve", tmp_path / "sched-take.wav", "--sweep", tmp_path / "sched.json",
+                      "--out", tmp_path / "irs", "--rig", bench["rig"])
+    assert rc == 0, err
+    assert "the schedule names the speakers T1, T2; the IR set takes the rig file's names left, right" in err
+    irs = read_irset(tmp_path / "irs")
+    assert irs.speaker_names == list(SPEAKERS) and irs.mic_names == list(MICS)
+    assert irs.extra["element_names_from"] == {"kind": "rig file", "source": str(bench["rig"])}
