@@ -99,7 +99,7 @@ def test_without_the_rig_verify_names_the_mismatch_and_a_fix_that_exists(bench, 
 def test_counts_that_do_not_fit_the_rig_are_refused_naming_both(bench, tmp_path, capsys):
     rc, _, err = _run(capsys, "deconvolve", bench["takes"][0], "--sweep", bench["sweep"], "--out", tmp_path / "a",
                       "--rig", bench["rig"])
-    _one_line_error(rc, err, "deconvolve", "rig.toml", "has 2 speakers but 1 were recorded")
+    _one_line_error(rc, err, "deconvolve", "rig.toml", "has 2 speakers but 1 was recorded")
     assert_flags_exist(capsys, err, "deconvolve")
     two, _ = sf.read(bench["takes"][0], always_2d=True)
     for k, take in enumerate(bench["takes"]):

@@ -121,7 +121,8 @@ def fit_names(names: RigNames, n_speakers: int | None, n_mics: int) -> RigNames:
         Naming the rig's source and both counts when they differ.
     """
     if n_speakers is not None and n_speakers != len(names.speaker_names):
-        raise InputError(f"the {names.kind} has {len(names.speaker_names)} speakers but {n_speakers} were recorded",
+        raise InputError(f"the {names.kind} has {len(names.speaker_names)} speakers but {n_speakers} "
+                         f"{'was' if n_speakers == 1 else 'were'} recorded",
                          source=names.source, field="speakers",
                          fix="record every speaker of the rig, in rig order (one recording each, or a schedule "
                              "for all of them)")

@@ -114,6 +114,7 @@ class Takes:
 
     @property
     def n_mic(self) -> int:
+        """Microphone channels in each recording."""
         return int(self.recordings[0].shape[1])
 
 
