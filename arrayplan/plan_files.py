@@ -19,7 +19,9 @@ Files (all written together, atomically, by :func:`write_plan`):
     re, im`` with side ``drive`` or ``combine``.
 ``weights.json``
     The sidecar: conventions, normalisation, units, element names and
-    order, settings, tool version and the rig's hash.
+    order, settings, tool version and the rig's hash; for a plan made from
+    measured responses, the ``measurement`` it was made from
+    (:func:`measurement_record`) and the coupling's units in that set's units.
 ``rig.png``, ``couplings.png``, ``channel-counts.png``
     Figures.
 """
@@ -43,7 +45,13 @@ from .heuristics import paraxial_estimate
 from .planning import Plan
 from .rig import Rig
 
-__all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines"]
+__all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
+           "coupling_text"]
+
+#: What one unit of a measured coupling means, by the IR set's units (see :data:`arrayplan.irset.UNITS`).
+MEASURED_UNITS = {"full_scale": "input full scale per output full scale (uncalibrated)",
+                  "pascal_per_full_scale": "Pa per output full scale",
+                  "pascal_per_volt": "Pa per V at the speaker terminals"}
 
 NORMALISATION = ("drive and combine weight vectors have unit Euclidean norm per channel and frequency; "
                  "combine^T G drive = diag(singular_value)")
@@ -63,8 +71,24 @@ def _fmt(x: float) -> str:
     return "" if not np.isfinite(x) else f"{x:.10g}"
 
 
-def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True) -> list[Path]:
-    """Write every plan file into `out_dir` (created if needed); return their paths."""
+def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *,
+               measurement: dict[str, Any] | None = None) -> list[Path]:
+    """Write every plan file into `out_dir` (created if needed); return their paths.
+
+    Parameters
+    ----------
+    plan : Plan
+    out_dir : path
+    figures : bool
+        Write the figures too.
+    measurement : dict, optional
+        For a plan made from measured responses: :func:`measurement_record`
+        of the IR set and kernel, stored in ``weights.json``.
+
+    Returns
+    -------
+    list of Path
+    """
     ch = plan.channels
     hz = ch.axis.hz
     share, level = ch.share_of_sum_rule(), ch.level_db()
@@ -84,7 +108,7 @@ def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True) -> 
         np.savez(stage / "weights.npz", frequency_hz=hz, singular_value=ch.singular_values, drive=ch.drive,
                  combine=ch.combine, speaker_names=np.array(ch.speaker_names), mic_names=np.array(ch.mic_names))
         write_text_atomic(stage / "weights.csv", _weights_csv(plan))
-        write_json_atomic(stage / "weights.json", _sidecar(plan))
+        write_json_atomic(stage / "weights.json", _sidecar(plan) | _measurement_fields(measurement))
         if figures:
             _write_figures(plan, stage)
         written = sorted(p.name for p in stage.iterdir())
@@ -113,7 +137,7 @@ def _sidecar(plan: Plan) -> dict[str, Any]:
                 "speed_of_sound_m_per_s": rig.medium.speed_of_sound, "air_absorption": rig.medium.air_absorption},
         "kernel": plan.kernel_name,
         "kernel_settings": plan.kernel_settings,
-        "coupling": "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)",
+        "coupling": coupling_text(),
         "channels": "G = U S V^H per frequency; drive = V, combine = conj(U); power coupling = s^2",
         "normalisation": NORMALISATION,
         "phase_convention": PHASE,
@@ -151,6 +175,66 @@ def _piston_note(rig) -> dict[str, str]:
         note += (f"; the {' and '.join(mixed)} mix pistons with other patterns, so their relative levels compare "
                  "equal on-axis far-field output, not equal volume velocity")
     return {"level_convention": note + "; valid beyond the Rayleigh distance pi a^2 / lambda"}
+
+
+def coupling_text(units: str | None = None) -> str:
+    """The ``coupling`` line of ``weights.json``: free field (`units` None) or an IR set's `units`."""
+    if units is None:
+        return "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)"
+    return (f"G[f, m, s]: measured transfer function from speaker s's drive to microphone m, in the IR set's "
+            f"units: {MEASURED_UNITS.get(units, units)}")
+
+
+def measurement_record(irset_path: str | os.PathLike, kernel: Any) -> dict[str, Any]:
+    """What ``weights.json`` records of the IR set a plan was made from.
+
+    Parameters
+    ----------
+    irset_path : path
+        The IR-set folder (its ``irset.json`` is hashed) or AES69 (SOFA) file
+        (the file is hashed).
+    kernel : MeasuredKernel
+        The kernel planned from (:class:`arrayplan.kernels.measured.MeasuredKernel`):
+        its units, window (s), latency (samples) and smoothing (octaves).
+
+    Returns
+    -------
+    dict
+        ``irset`` (``path``, ``sha256`` and ``hashed_file``, ``format``,
+        ``format_version``), ``units``, ``units_meaning``, ``sample_rate_hz``,
+        ``zero_lag_samples``, ``window_ms``, ``latency_samples`` and
+        ``smoothing_octaves`` (None where not used).
+    """
+    import hashlib
+
+    path = Path(irset_path)
+    hashed = path if path.suffix.lower() == ".sofa" else path / "irset.json"
+    try:
+        raw = hashed.read_bytes()
+    except OSError as exc:
+        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(hashed)) from None
+    if hashed.suffix.lower() == ".sofa":
+        fmt, version = "AES69 (SOFA)", None
+    else:
+        try:
+            manifest = json.loads(raw.decode("utf-8"))
+        except (UnicodeDecodeError, json.JSONDecodeError):
+            manifest = {}
+        fmt, version = manifest.get("format"), manifest.get("format_version")
+    return {"irset": {"path": str(path), "hashed_file": hashed.name, "sha256": hashlib.sha256(raw).hexdigest(),
+                      "format": fmt, "format_version": version},
+            "units": kernel.units, "units_meaning": MEASURED_UNITS.get(kernel.units, kernel.units),
+            "sample_rate_hz": float(kernel.sample_rate_hz), "zero_lag_samples": int(kernel.zero_lag_samples),
+            "window_ms": None if kernel.window_s is None else 1e3 * float(kernel.window_s),
+            "latency_samples": int(kernel.latency_samples),
+            "smoothing_octaves": kernel.smoothing_octaves}
+
+
+def _measurement_fields(measurement: dict[str, Any] | None) -> dict[str, Any]:
+    """The ``weights.json`` fields of a plan made from measured responses (none for a free-field plan)."""
+    if measurement is None:
+        return {}
+    return {"coupling": coupling_text(measurement["units"]), "measurement": measurement}
 
 
 def _write_figures(plan: Plan, folder: Path) -> None:

@@ -158,7 +158,8 @@ def align_kernel_names(weights: PlanWeights, kernel: Kernel, *, plan_source: str
             raise InputError(f"{kind} differ: plan has {len(planned)}, IR set has {len(measured)}"
                              + (f" ({'; '.join(what)})" if what else ""), source=measured_source,
                              field=kind, fix=f"measure the rig planned in {plan_source or 'the plan'}, "
-                                             "with the same element names")
+                                             "with the same element names ('arrayplan deconvolve' takes them "
+                                             "from the rig file or plan folder given to it)")
         out_idx[kind] = [measured.index(n) for n in planned]
     if out_idx["speakers"] == list(range(len(out_idx["speakers"]))) and \
             out_idx["microphones"] == list(range(len(out_idx["microphones"]))):

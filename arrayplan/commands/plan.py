@@ -18,7 +18,7 @@ from ._args import (add_measured_kernel_options, add_memory_limit, count, float_
 from ..frequency import FrequencyAxis
 from ..medium import speed_of_sound_air
 from ..planning import plan_rig
-from ..plan_files import summary_lines, write_plan
+from ..plan_files import measurement_record, summary_lines, write_plan
 from ..progress import ProgressBar
 from ..rig import Rig, load_rig, read_positions_csv
 
@@ -147,8 +147,12 @@ def run(args: argparse.Namespace) -> int:
         plan = plan_rig(rig, axis, kernel=kernel, threshold_db=_checked(args.threshold_db, "--threshold-db"),
                         snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,
                         progress=bar)
-    files = write_plan(plan, args.out, figures=not args.no_figures)
+    measurement = measurement_record(args.irset, kernel) if kernel is not None else None
+    files = write_plan(plan, args.out, figures=not args.no_figures, measurement=measurement)
     for line in summary_lines(plan):
         print(line)
+    if measurement is not None:
+        print(f"measured from {measurement['irset']['path']} (sha256 {measurement['irset']['sha256'][:16]}...), "
+              f"couplings in {measurement['units_meaning']}")
     print(f"wrote {len(files)} files to {args.out}: {', '.join(p.name for p in files)}")
     return 0

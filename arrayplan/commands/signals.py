@@ -28,6 +28,7 @@ from ._args import csv_names as _csv_names
 from ..limits import check_memory
 from ..errors import InputError
 from ..fileio import provenance
+from ..formats.signal_sidecar import inverse_filter_sidecar, signal_sidecar
 from ..safety import (CAUTION_NOTE, DEFAULT_MAX_DBA, check_exposure, estimate_exposure, format_exposure,
                       print_caution)
 from ..signals.levels import (DEFAULT_PEAK_CAP_DBFS, block_dc, channel_rms_dbfs, check_peak, condition,
@@ -39,9 +40,7 @@ from ..signals.sweeps import SWEEP_KINDS, SweepSettings, make_sweep
 from ..signals.tones import stepped_tones, tone_bursts
 from ..signals.wavout import SAMPLE_FORMATS, inverse_path, sidecar_path, write_signal_files
 
-__all__ = ["register", "SIGNAL_FORMAT", "above_cap_warning"]
-
-SIGNAL_FORMAT = "arrayplan-signal"
+__all__ = ["register", "above_cap_warning"]
 
 
 # ----------------------------------------------------------------------------- options
@@ -437,36 +436,20 @@ def _run(args: argparse.Namespace) -> int:
     above = above_cap_warning(level["true_peak_dbfs"], args.peak_cap_dbfs) if playable else None
     if above is not None:
         warnings.append(above)
-    sidecar = {
-        "format": SIGNAL_FORMAT,
-        "format_version": 1,
-        "signal": built["kind"],
-        "file": args.out.name,
-        "sample_rate_hz": float(args.rate_hz),
-        "n_samples": int(x.shape[0]),
-        "n_channels": int(x.shape[1]),
-        "channel_names": built["channel_names"],
-        "sample_format": args.format,
-        "level": {k: (_finite(v) if isinstance(v, float) else v) for k, v in level.items()},
-        "conditioning": _conditioning(args, built.get("fades")) if playable else None,
-        "parameters": built["parameters"],
-        "sweep": built.get("sweep"),
-        "schedule": built.get("schedule"),
-        "probe": built.get("probe"),
-        "exposure": estimate.to_json() if estimate is not None else None,
-        "warnings": warnings,
-        "caution": CAUTION_NOTE,
-        "provenance": provenance(command=f"arrayplan signal {args.signal}"),
-    }
-    extra_sidecars = {}
-    for path, inv in (built.get("extra_wavs") or {}).items():
-        extra_sidecars[sidecar_path(path)] = {
-            "format": SIGNAL_FORMAT, "format_version": 1, "signal": "inverse_filter", "file": Path(path).name,
-            "inverse_of": args.out.name, "parameters_in": sidecar_path(args.out).name,
-            "sample_rate_hz": float(args.rate_hz), "n_samples": int(np.asarray(inv).shape[0]), "n_channels": 1,
-            "sample_format": "float32", "sweep": built.get("sweep"),
-            "note": "inverse filter for deconvolution: not a signal to play",
-            "caution": CAUTION_NOTE, "provenance": provenance(command=f"arrayplan signal {args.signal}")}
+    sidecar = signal_sidecar(
+        signal=built["kind"], file=args.out.name, sample_rate_hz=args.rate_hz, n_samples=x.shape[0],
+        n_channels=x.shape[1], channel_names=built["channel_names"], sample_format=args.format,
+        level={k: (_finite(v) if isinstance(v, float) else v) for k, v in level.items()},
+        conditioning=_conditioning(args, built.get("fades")) if playable else None,
+        parameters=built["parameters"], sweep=built.get("sweep"), schedule=built.get("schedule"),
+        probe=built.get("probe"), exposure=estimate.to_json() if estimate is not None else None,
+        warnings=warnings, caution=CAUTION_NOTE, provenance=provenance(command=f"arrayplan signal {args.signal}"))
+    extra_sidecars = {
+        sidecar_path(path): inverse_filter_sidecar(
+            file=Path(path).name, signal_file=args.out.name, sample_rate_hz=args.rate_hz,
+            n_samples=np.asarray(inv).shape[0], sweep=built.get("sweep"), caution=CAUTION_NOTE,
+            provenance=provenance(command=f"arrayplan signal {args.signal}"))
+        for path, inv in (built.get("extra_wavs") or {}).items()}
     written = write_signal_files(args.out, x, args.rate_hz, args.format, sidecar, built.get("extra_wavs"),
                                  extra_sidecars)
     if playable:
@@ -543,8 +526,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s = sub.add_parser("probe", help="one planned channel: a sweep or noise through its drive filters, "
                                      "all speakers at once")
     s.add_argument("--filters", type=Path, required=True, metavar="FILTERS.wav",
-                   help="the channel's drive filters: float WAV, one channel per speaker in rig order "
-                        "(speaker names are taken from FILTERS.json if it exists)")
+                   help="the channel's drive filters: float WAV, one channel per speaker in rig order, such "
+                        "as channel-NN-drive.wav written by 'arrayplan filters' (speaker names from FILTERS.json "
+                        "beside it if it exists, else from that folder's filters.json)")
     s.add_argument("--source", choices=("sweep",) + NOISE_COLOURS, default="sweep",
                    help="probe signal before the filters (default sweep; its inverse filter is written too; "
                         "noise is faded 0.02 s in and 0.005 s out unless the fades are given)")

@@ -164,6 +164,22 @@ def _plan_numbers(found: FoundPlan) -> tuple[str, list[list[object]]]:
     return note, rows
 
 
+def _measurement_rows(side: dict) -> list[list[str]]:
+    """Rows naming the IR set a plan was made from (none for a free-field plan), from its ``weights.json``."""
+    m = side.get("measurement")
+    if not isinstance(m, dict) or not isinstance(m.get("irset"), dict):
+        return []
+    irs = m["irset"]
+    fmt = " ".join(str(v) for v in (irs.get("format"), irs.get("format_version")) if v is not None)
+    window = "whole response" if m.get("window_ms") is None else f"{m['window_ms']:g} ms after zero lag"
+    smooth = "none" if m.get("smoothing_octaves") is None else f"{m['smoothing_octaves']:.3g} octave"
+    return [["measured IR set", f"{irs.get('path', '')} ({fmt}; SHA-256 of {irs.get('hashed_file', '')}: "
+                                f"{irs.get('sha256', '')})"],
+            ["coupling units", str(m.get("units_meaning", m.get("units", "")))],
+            ["window, latency removed, smoothing",
+             f"{window}; {m.get('latency_samples', 0)} samples; {smooth}"]]
+
+
 def _plan_section(found: FoundPlan, root: Path) -> str:
     plan, side = found.plan, found.sidecar
     rig = plan.rig
@@ -178,6 +194,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
         ["speed of sound", f"{rig.medium.speed_of_sound:.2f} m/s"],
         ["air absorption", "ISO 9613-1" if rig_info.get("air_absorption") else "none"],
         ["kernel", plan.kernel_name],
+        *_measurement_rows(side),
         ["frequencies", f"{len(hz)} from {hz[0]:.5g} Hz to {hz[-1]:.5g} Hz"],
         ["strong channels", f"within {plan.threshold_db:g} dB of the strongest"],
         ["usable channels", f"above the noise floor at an SNR of {plan.snr_db:g} dB on the strongest"],

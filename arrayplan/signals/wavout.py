@@ -9,7 +9,8 @@ from typing import Any, Mapping
 import numpy as np
 
 from ..errors import InputError
-from ..fileio import atomic_paths, write_json_atomic
+from ..fileio import atomic_paths
+from ..formats.signal_sidecar import write_signal_sidecar
 from .levels import true_peak_dbfs
 
 __all__ = ["SAMPLE_FORMATS", "sidecar_path", "inverse_path", "write_signal_files", "read_recording"]
@@ -47,11 +48,12 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
     sample_rate_hz : int
     sample_format : {"float32", "pcm24"}
     sidecar : mapping
-        Written as JSON to :func:`sidecar_path` of `wav_path`.
+        Written as JSON to :func:`sidecar_path` of `wav_path`
+        (:func:`arrayplan.formats.signal_sidecar.write_signal_sidecar`, which checks it).
     extra_wavs : mapping of path -> ndarray, optional
         Further files (e.g. an inverse filter), always float32.
     extra_sidecars : mapping of path -> mapping, optional
-        Further JSON files (e.g. the inverse filter's own sidecar).
+        Further sidecars (e.g. the inverse filter's own), written the same way.
 
     Returns
     -------
@@ -84,7 +86,7 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
                 sf.write(tmp, data.astype(np.float32) if subtype == "FLOAT" else data, int(sample_rate_hz),
                          subtype=subtype, format="WAV")
             else:
-                write_json_atomic(tmp, data)
+                write_signal_sidecar(tmp, data)
     return [p for p, _ in targets]
 
 
