@@ -16,7 +16,7 @@ import threading
 from typing import Sequence
 
 from ._version import __version__
-from .commands._args import error_with_flags, parameter_flags
+from .commands._args import DefaultsShown, command_parser, error_with_flags, parameter_flags
 from .errors import ArrayplanError, InputError
 
 __all__ = ["main", "build_parser"]
@@ -81,10 +81,22 @@ Measuring plays loud signals through real loudspeakers: read the caution 'measur
 
 
 class _OneLineParser(argparse.ArgumentParser):
-    """An ArgumentParser whose usage errors are a single line, exit status 2."""
+    """An ArgumentParser whose usage errors are a single line, exit status 2, pointing to the (sub-)command's
+    own help; its help shows every option's default."""
+
+    def __init__(self, *args, **kwargs) -> None:
+        kwargs.setdefault("formatter_class", DefaultsShown)
+        super().__init__(*args, **kwargs)
 
     def error(self, message: str) -> None:  # type: ignore[override]
         self.exit(2, f"{self.prog}: error: {message} (see '{self.prog} --help')\n")
+
+    def parse_args(self, args=None, namespace=None):  # type: ignore[override]
+        """As argparse's, but unknown options are reported by the sub-command that was given them."""
+        parsed, extras = self.parse_known_args(args, namespace)
+        if extras:
+            command_parser(self, parsed).error(f"unrecognized arguments: {' '.join(extras)}")
+        return parsed
 
 
 def build_parser(commands: Sequence[str] | None = None) -> argparse.ArgumentParser:

@@ -116,6 +116,10 @@ DEFAULT_MAX_DBA = 100.0
 #: Peak level (dB SPL) above which a signal is refused unless allowed:
 #: 200 Pa, the limit value of EU Directive 2003/10/EC Art. 3 (140 dB(C)).
 DEFAULT_MAX_PEAK_DB_SPL = 140.0
+#: Drive voltage of a loudspeaker's sensitivity rating, V RMS: 2.83 V, 1 W into 8 ohm (common practice, no source).
+RATING_VRMS = 2.83
+#: Listener distance assumed when none is given, m: a person next to the speaker (common practice, no source).
+DEFAULT_LISTENER_DISTANCE_M = 1.0
 #: Window of the running RMS level, s (a sound level meter's "fast" time
 #: weighting is 125 ms, IEC 61672-1; value from memory).
 LEVEL_WINDOW_S = 0.125
@@ -304,7 +308,7 @@ def _combine(levels_db: np.ndarray, how: str) -> np.ndarray:
 def estimate_spl_at_listeners(*, sensitivity_db_spl: float, amp_vrms_full_scale: float,
                               channel_level_dbfs: Sequence[float] | np.ndarray,
                               distances_m: Sequence[float] | np.ndarray,
-                              sensitivity_vrms: float = 2.83, combine: str = "coherent",
+                              sensitivity_vrms: float = RATING_VRMS, combine: str = "coherent",
                               option_names: Mapping[str, str] | None = None) -> np.ndarray:
     """Sound level (dB re 20 µPa) at each listener from the speakers' drive levels.
 
@@ -394,7 +398,7 @@ class ExposureEstimate:
 
 def estimate_exposure(signal: np.ndarray, sample_rate_hz: float, *, sensitivity_db_spl: float,
                       amp_vrms_full_scale: float, distances_m: Sequence[float] | np.ndarray,
-                      sensitivity_vrms: float = 2.83, combine: str = "coherent",
+                      sensitivity_vrms: float = RATING_VRMS, combine: str = "coherent",
                       option_names: Mapping[str, str] | None = None) -> ExposureEstimate:
     """Estimate the levels a signal file produces at the listeners.
 
@@ -550,7 +554,7 @@ def worst_case_unknown_speaker(signal: np.ndarray, sample_rate_hz: float, *, amp
     """
     return estimate_exposure(signal, sample_rate_hz, sensitivity_db_spl=ASSUMED_SENSITIVE_SPEAKER_DB_SPL,
                              amp_vrms_full_scale=amp_vrms_full_scale, distances_m=distances_m,
-                             sensitivity_vrms=2.83, combine=combine, option_names=option_names)
+                             sensitivity_vrms=RATING_VRMS, combine=combine, option_names=option_names)
 
 
 def _duration(seconds: float) -> str:

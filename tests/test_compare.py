@@ -81,7 +81,7 @@ def test_command_compares_a_rig_and_a_plan_folder_on_one_table(tmp_path, capsys)
     (tmp_path / "a.toml").write_text(RIG.format(name="small", n=4))
     (tmp_path / "b.toml").write_text(RIG.format(name="large", n=10))
     assert main(["plan", str(tmp_path / "b.toml"), "--out", str(tmp_path / "planb"), "--no-figures",
-                 "--freq", "700"]) == 0
+                 "--freq-hz", "700"]) == 0
     capsys.readouterr()
     out = tmp_path / "cmp"
     status = main(["compare", str(tmp_path / "a.toml"), str(tmp_path / "planb"), "--out", str(out),

@@ -31,7 +31,7 @@ def _weights(folder):
 
 def test_measured_plan_records_the_set_its_units_and_the_kernel_settings(tmp_path, capsys):
     irs = _irset(tmp_path / "irs")
-    assert main(["plan", "--irset", str(irs), "--out", str(tmp_path / "plan"), "--freq", "500", "--freq", "1000",
+    assert main(["plan", "--irset", str(irs), "--out", str(tmp_path / "plan"), "--freq-hz", "500", "--freq-hz", "1000",
                  "--window-ms", "10", "--latency-samples", "4", "--smooth-octaves", "1/3", "--no-figures"]) == 0
     printed = capsys.readouterr().out
     side = _weights(tmp_path / "plan")
@@ -56,11 +56,11 @@ def test_free_field_plan_keeps_its_units_and_records_no_measurement(tmp_path):
     rig = tmp_path / "rig.toml"
     rig.write_text("[[speakers]]\nname = \"A\"\nposition = [-0.1, 0.0, 0.0]\n[[speakers]]\nname = \"B\"\n"
                    "position = [0.1, 0.0, 0.0]\n[[microphones]]\nname = \"x\"\nposition = [0.0, 0.5, 0.0]\n")
-    assert main(["plan", str(rig), "--out", str(tmp_path / "ff"), "--freq", "500", "--no-figures"]) == 0
+    assert main(["plan", str(rig), "--out", str(tmp_path / "ff"), "--freq-hz", "500", "--no-figures"]) == 0
     side = _weights(tmp_path / "ff")
     assert "measurement" not in side and "(1/m)" in side["coupling"]
     _irset(tmp_path / "cal", units="pascal_per_volt")
-    assert main(["plan", "--irset", str(tmp_path / "cal"), "--out", str(tmp_path / "pv"), "--freq", "500",
+    assert main(["plan", "--irset", str(tmp_path / "cal"), "--out", str(tmp_path / "pv"), "--freq-hz", "500",
                  "--no-figures"]) == 0
     side = _weights(tmp_path / "pv")
     assert "Pa per V" in side["coupling"] and side["measurement"]["window_ms"] is None
@@ -69,7 +69,7 @@ def test_free_field_plan_keeps_its_units_and_records_no_measurement(tmp_path):
 
 def test_the_report_names_the_set_in_the_plans_section(tmp_path):
     irs = _irset(tmp_path / "irs")
-    assert main(["plan", "--irset", str(irs), "--out", str(tmp_path / "plan"), "--freq", "500", "--freq", "1000",
+    assert main(["plan", "--irset", str(irs), "--out", str(tmp_path / "plan"), "--freq-hz", "500", "--freq-hz", "1000",
                  "--window-ms", "10", "--no-figures"]) == 0
     assert main(["report", str(tmp_path)]) == 0
     html = (tmp_path / "report.html").read_text(encoding="utf-8")
@@ -85,7 +85,7 @@ def test_a_sofa_file_is_hashed_whole(tmp_path):
     irs = _irset(tmp_path / "irs")
     sofa = tmp_path / "set.sofa"
     assert main(["irset", "convert", str(irs), str(sofa)]) == 0
-    assert main(["plan", "--irset", str(sofa), "--out", str(tmp_path / "plan"), "--freq", "500",
+    assert main(["plan", "--irset", str(sofa), "--out", str(tmp_path / "plan"), "--freq-hz", "500",
                  "--no-figures"]) == 0
     rec = _weights(tmp_path / "plan")["measurement"]
     assert rec["irset"]["hashed_file"] == "set.sofa"

@@ -45,8 +45,8 @@ def bench(tmp_path, capsys):
     """The rig file, a plan of it, a sweep, and one free-field recording per speaker (all channels = mics)."""
     rig = tmp_path / "rig.toml"
     rig.write_text(RIG)
-    rc, _, err = _run(capsys, "plan", rig, "--out", tmp_path / "plan", "--freq", "400", "--freq", "800",
-                      "--freq", "1600", "--no-figures")
+    rc, _, err = _run(capsys, "plan", rig, "--out", tmp_path / "plan", "--freq-hz", "400", "--freq-hz", "800",
+                      "--freq-hz", "1600", "--no-figures")
     assert rc == 0, err
     rc, _, err = _run(capsys, "signal", "sweep", "--out", tmp_path / "sweep.wav", *SWEEP)
     assert rc == 0, err
@@ -81,7 +81,7 @@ def test_deconvolve_names_as_the_rig_and_verify_needs_no_renaming(bench, tmp_pat
     # The recordings are the plan's own free field, so every wanted channel passes (Miller 2000).
     assert rc == 0, out
     # The set re-plans without a rig file: its positions came from the rig.
-    rc, _, err = _run(capsys, "plan", "--irset", tmp_path / "irs", "--out", tmp_path / "replan", "--freq", "800",
+    rc, _, err = _run(capsys, "plan", "--irset", tmp_path / "irs", "--out", tmp_path / "replan", "--freq-hz", "800",
                       "--no-figures")
     assert rc == 0, err
 
@@ -125,7 +125,7 @@ def test_counts_that_do_not_fit_the_rig_are_refused_naming_both(bench, tmp_path,
 
 def test_a_probe_of_filters_from_the_rig_names_its_speakers_and_deconvolves_with_the_rigs_mics(
         bench, tmp_path, capsys):
-    rc, _, err = _run(capsys, "filters", bench["rig"], "--rate", FS, "--band", "300", "3000", "--taps", "512",
+    rc, _, err = _run(capsys, "filters", bench["rig"], "--rate-hz", FS, "--band-hz", "300", "3000", "--taps", "512",
                       "--out", tmp_path / "filters", "--no-check")
     assert rc == 0, err
     drive = tmp_path / "filters" / "channel-01-drive.wav"

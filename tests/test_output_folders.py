@@ -28,7 +28,7 @@ from conftest import ARRAYPLAN_COMMAND, BENCH_RIG_TOML
 #: A second invented rig: the bench rig with its microphones 2.5 m away, so its plan differs.
 FAR_RIG_TOML = BENCH_RIG_TOML.replace('name = "bench-trio"', 'name = "far-trio"').replace(", 1.5, 1.0]", ", 2.5, 1.0]")
 
-PLAN_ARGS = ["--freq", "500", "--freq", "1000", "--no-figures"]
+PLAN_ARGS = ["--freq-hz", "500", "--freq-hz", "1000", "--no-figures"]
 
 
 def _main(capsys, args):
@@ -125,7 +125,7 @@ def test_a_mixed_or_damaged_folder_is_refused_naming_the_file(tmp_path):
 def test_plan_rerun_drops_old_figures_and_a_mixed_plan_is_refused_by_verify_and_report(rigs, tmp_path, capsys):
     bench, far = rigs
     a, b = tmp_path / "proj" / "a", tmp_path / "proj" / "b"
-    assert _main(capsys, ["plan", str(bench), "--out", str(a), "--freq", "500"])[0] == 0
+    assert _main(capsys, ["plan", str(bench), "--out", str(a), "--freq-hz", "500"])[0] == 0
     assert (a / "rig.png").is_file()
     assert _main(capsys, ["plan", str(bench), "--out", str(a), *PLAN_ARGS])[0] == 0
     assert not list(a.glob("*.png"))                           # no figures of the earlier run remain

@@ -72,8 +72,8 @@ def test_quick_form_matches_rig_file(tmp_path):
     mic.write_text("x,y,z\n" + "".join(f"{-0.2 + 0.1*i},0,2\n" for i in range(5)))
     rig = tmp_path / "rig.toml"
     rig.write_text(SMALL_RIG)
-    assert main(["plan", "--speakers", str(spk), "--mics", str(mic), "--freq", "1000", "--freq", "2000",
-                 "--speed-of-sound", "343", "--out", str(tmp_path / "a"), "--no-figures"]) == 0
+    assert main(["plan", "--speakers", str(spk), "--mics", str(mic), "--freq-hz", "1000", "--freq-hz", "2000",
+                 "--speed-of-sound-m-s", "343", "--out", str(tmp_path / "a"), "--no-figures"]) == 0
     assert main(["plan", str(rig), "--out", str(tmp_path / "b"), "--no-figures"]) == 0
     a = np.load(tmp_path / "a" / "weights.npz")["singular_value"]
     b = np.load(tmp_path / "b" / "weights.npz")["singular_value"]
@@ -103,10 +103,10 @@ def test_bad_rig_is_one_line_exit_2_nothing_written(tmp_path, capsys, body, need
 def test_bad_flags(tmp_path, capsys):
     rig = tmp_path / "rig.toml"
     rig.write_text(SMALL_RIG)
-    assert main(["plan", str(rig), "--out", str(tmp_path / "o"), "--freq", "-5"]) == 2
-    assert "--freq" in capsys.readouterr().err
+    assert main(["plan", str(rig), "--out", str(tmp_path / "o"), "--freq-hz", "-5"]) == 2
+    assert "--freq-hz" in capsys.readouterr().err
     assert main(["plan", "--speakers", str(tmp_path / "nope.csv"), "--mics", str(tmp_path / "m.csv"),
-                 "--freq", "100", "--out", str(tmp_path / "o")]) == 2
+                 "--freq-hz", "100", "--out", str(tmp_path / "o")]) == 2
     assert "nope.csv" in capsys.readouterr().err
 
 
@@ -121,12 +121,12 @@ def test_field_map(tmp_path):
     rig = tmp_path / "rig.toml"
     rig.write_text(SMALL_RIG)
     out = tmp_path / "field"
-    assert main(["field", str(rig), "--freq", "2000", "--channel", "2", "--plane", "xz", "--at", "0",
+    assert main(["field", str(rig), "--freq-hz", "2000", "--channel", "2", "--plane", "xz", "--at-m", "0",
                  "--resolution", "40", "--out", str(out)]) == 0
     mag = np.load(out / "field-ch2-2000Hz-xz.npy")
     assert mag.shape[1] == 40 and np.all(np.isfinite(mag)) and mag.max() > 0
     assert (out / "field-ch2-2000Hz-xz.png").stat().st_size > 0
-    assert main(["field", str(rig), "--freq", "2000", "--channel", "9", "--out", str(out)]) == 2
+    assert main(["field", str(rig), "--freq-hz", "2000", "--channel", "9", "--out", str(out)]) == 2
 
 
 def test_plan_from_measured_irset_matches_free_field(tmp_path, capsys):
@@ -142,17 +142,17 @@ def test_plan_from_measured_irset_matches_free_field(tmp_path, capsys):
     fs, n = 16000.0, 2048
     write_irset(tmp_path / "irs", free_field_irset(rig, fs, n))
     bins = [str(fs / n * k) for k in (128, 256)]   # 1000 Hz and 2000 Hz are FFT bins
-    assert main(["plan", str(rig_path), "--irset", str(tmp_path / "irs"), "--freq", bins[0], "--freq", bins[1],
+    assert main(["plan", str(rig_path), "--irset", str(tmp_path / "irs"), "--freq-hz", bins[0], "--freq-hz", bins[1],
                  "--out", str(tmp_path / "m"), "--no-figures"]) == 0
     assert main(["plan", str(rig_path), "--out", str(tmp_path / "f"), "--no-figures"]) == 0
     m = np.load(tmp_path / "m" / "weights.npz")["singular_value"]
     f = np.load(tmp_path / "f" / "weights.npz")["singular_value"]
     np.testing.assert_allclose(m, f, atol=1e-5 * f.max())
     # Positions stored in the IR set are enough on their own.
-    assert main(["plan", "--irset", str(tmp_path / "irs"), "--freq", bins[0], "--out", str(tmp_path / "p"),
+    assert main(["plan", "--irset", str(tmp_path / "irs"), "--freq-hz", bins[0], "--out", str(tmp_path / "p"),
                  "--no-figures"]) == 0
     # Plan frequencies must lie below the IR set's Nyquist frequency.
-    assert main(["plan", str(rig_path), "--irset", str(tmp_path / "irs"), "--freq", "9000",
+    assert main(["plan", str(rig_path), "--irset", str(tmp_path / "irs"), "--freq-hz", "9000",
                  "--out", str(tmp_path / "x")]) == 2
     assert "Nyquist" in capsys.readouterr().err and not (tmp_path / "x").exists()
 
@@ -170,7 +170,7 @@ def test_field_says_when_the_channel_is_silent_in_the_plane(tmp_path, capsys):
     import json
     for at, silent in (("0", True), ("0.05", False)):
         out = tmp_path / f"f{at}"
-        assert main(["field", str(rig), "--freq", "1000", "--channel", "2", "--plane", "xy", "--at", at,
+        assert main(["field", str(rig), "--freq-hz", "1000", "--channel", "2", "--plane", "xy", "--at-m", at,
                      "--resolution", "40", "--out", str(out)]) == 0
         err = capsys.readouterr().err
         assert ("silent in the xy plane" in err) is silent

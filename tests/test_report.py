@@ -70,10 +70,10 @@ def project(tmp_path_factory) -> Path:
     rig = root / "rig.toml"
     rig.write_text(RIG_TOML, encoding="utf-8")
     steps = [["plan", str(rig), "--out", str(root / "plan")],
-             ["filters", str(rig), "--rate", "16000", "--band", "400", "4000", "--taps", "512", "--out",
+             ["filters", str(rig), "--rate-hz", "16000", "--band-hz", "400", "4000", "--taps", "512", "--out",
               str(root / "filters")],
-             ["measure", str(rig), "--out", str(root / "meas"), "--simulate", "--yes", "--rate", "16000",
-              "--duration-s", "0.5", "--f1", "100", "--ir-s", "0.1", "--latency-samples", "0"],
+             ["measure", str(rig), "--out", str(root / "meas"), "--simulate", "--yes", "--rate-hz", "16000",
+              "--duration-s", "0.5", "--f1-hz", "100", "--ir-length-s", "0.1", "--latency-samples", "0"],
              ["verify", str(root / "plan"), str(root / "meas" / "irset"), "--out", str(root / "verify")]]
     for argv in steps:
         assert main(argv) in (0, 1), argv          # verify exits 1 when a channel is lost

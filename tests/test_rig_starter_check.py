@@ -288,7 +288,7 @@ def test_new_rig_cli(tmp_path, capsys):
     listed = capsys.readouterr().out.splitlines()
     assert [ln.split()[0] for ln in listed] == list(LAYOUTS)
     out = tmp_path / "link.toml"
-    assert main(["new-rig", "facing-lines", "--out", str(out), "--speakers", "12", "--spacing", "0.03"]) == 0
+    assert main(["new-rig", "facing-lines", "--out", str(out), "--speakers", "12", "--spacing-m", "0.03"]) == 0
     assert len(load_rig(out).speakers) == 12
     before = out.read_bytes()
     assert main(["new-rig", "bench", "--out", str(out)]) == 2
@@ -297,8 +297,8 @@ def test_new_rig_cli(tmp_path, capsys):
     assert main(["new-rig", "bench", "--out", str(out), "--force"]) == 0
     assert load_rig(out).name == "bench"
     missing = tmp_path / "never.toml"
-    assert main(["new-rig", "ring-zone", "--out", str(missing), "--spacing", "0.1"]) == 2
+    assert main(["new-rig", "ring-zone", "--out", str(missing), "--spacing-m", "0.1"]) == 2
     err = capsys.readouterr().err
-    assert err.count("\n") == 1 and "--spacing" in err and "Traceback" not in err
+    assert err.count("\n") == 1 and "--spacing-m" in err and "Traceback" not in err
     assert not missing.exists()
     assert sorted(p.name for p in tmp_path.iterdir()) == ["link.toml"]

@@ -26,7 +26,7 @@ FS = 16000
 SWEEP = ["signal", "sweep", "--f1-hz", "50", "--f2-hz", "5000", "--duration-s", "0.5", "--pad-after-s", "0.2",
          "--rate-hz", str(FS)]
 #: An invented loud setup: about 112 dBA at 1 m for the -12 dBFS sweep.
-LOUD = ["--sensitivity-db-spl", "100", "--amp-vrms", "40", "--listener-distance-m", "1"]
+LOUD = ["--speaker-sensitivity-db-spl", "100", "--amp-vrms", "40", "--listener-distance-m", "1"]
 
 
 def _one_line(rc, err, *words):
@@ -170,7 +170,7 @@ def test_measure_refuses_hot_calibrated_outputs_of_unknown_level(audio_server, b
         OutputCalibration(channel=c, full_scale_vrms=2.0, amplifier_gain_db=40.0) for c in (1, 2, 3))))
     out = tmp_path / "never"
     done = subprocess.run(ARRAYPLAN_COMMAND + ["measure", str(bench_rig), "--out", str(out), "--device", "pulse",
-                                               "--rate", "48000", "--calibration", str(cal), "--yes",
+                                               "--rate-hz", "48000", "--calibration", str(cal), "--yes",
                                                *FAST_MEASURE_ARGS],
                           capture_output=True, text=True, stdin=subprocess.DEVNULL, timeout=120)
     assert done.returncode == 2, done.stderr

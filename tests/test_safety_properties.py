@@ -86,9 +86,10 @@ def test_every_written_signal_respects_the_refusal_levels(tmp_path, capsys, kind
     out = tmp_path / f"{kind}-{amp:.3f}-{max_dba}-{loud}.wav"
     kind_args = {"sweep": ["--f1-hz", "50", "--f2-hz", "3000", "--duration-s", "0.3", "--pad-after-s", "0.05"],
                  "noise": ["--f1-hz", "50", "--f2-hz", "3000", "--duration-s", "0.3", "--seed", "3"],
-                 "tones": ["--freqs-hz", "500,1000", "--tone-s", "0.2"]}[kind]
-    rc = main(["signal", kind, *kind_args, "--rate-hz", str(FS), "--out", str(out), "--sensitivity-db-spl", "95",
-               "--amp-vrms", repr(amp), "--listener-distance-m", "1", f"--max-dba={max_dba}"]
+                 "tones": ["--freqs-hz", "500", "1000", "--tone-s", "0.2"]}[kind]
+    rc = main(["signal", kind, *kind_args, "--rate-hz", str(FS), "--out", str(out),
+               "--speaker-sensitivity-db-spl", "95", "--amp-vrms", repr(amp), "--listener-distance-m", "1",
+               f"--max-dba={max_dba}"]
               + (["--allow-loud"] if loud else []))
     err = capsys.readouterr().err
     if rc != 0:

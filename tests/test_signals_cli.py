@@ -101,7 +101,7 @@ def test_sweep_fades_default_to_one_fresnel_time_and_given_ones_are_kept(tmp_pat
 def test_other_signals_round_trip(tmp_path, capsys):
     cases = {
         "noise.wav": ["noise", "--colour", "white", "--duration-s", "1", "--seed", "3", "--rms-dbfs", "-30"],
-        "tones.wav": ["tones", "--freqs-hz", "250,1000", "--tone-s", "0.3", "--gap-s", "0.1"],
+        "tones.wav": ["tones", "--freqs-hz", "250", "1000", "--tone-s", "0.3", "--gap-s", "0.1"],
         "bursts.wav": ["bursts", "--freq-hz", "1000", "--cycles", "8", "--count", "3", "--period-s", "0.1"],
         "silence.wav": ["silence", "--duration-s", "0.5", "--channels", "2"],
         "sched.wav": ["schedule", "--speaker-names", "L,R,Sub", *SWEEP],
@@ -127,7 +127,7 @@ def test_other_signals_round_trip(tmp_path, capsys):
 
 def test_exposure_estimate_warns_refuses_and_overrides(tmp_path, capsys):
     out = tmp_path / "loud.wav"
-    expo = ["--sensitivity-db-spl", "95", "--amp-vrms", "20", "--listener-distance-m", "1"]
+    expo = ["--speaker-sensitivity-db-spl", "95", "--amp-vrms", "20", "--listener-distance-m", "1"]
     rc, _, err = _run(capsys, "signal", "sweep", "--out", str(out), *SWEEP, *expo)
     _assert_one_line_error(rc, err, "exceeds the cap of 100 dBA", "--allow-loud")
     assert list(tmp_path.iterdir()) == []
@@ -137,8 +137,13 @@ def test_exposure_estimate_warns_refuses_and_overrides(tmp_path, capsys):
     assert side["exposure"]["dba"][0] > 100
     assert any("above 85 dBA" in w for w in side["warnings"])
     rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "x.wav"), *SWEEP,
-                      "--sensitivity-db-spl", "95")
-    _assert_one_line_error(rc, err, "needs all of")
+                      "--speaker-sensitivity-db-spl", "95")
+    _assert_one_line_error(rc, err, "needs both", "--amp-vrms")
+    # without distances the estimate is made for a listener 1 m away, as in 'measure'
+    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "near.wav"), *SWEEP, *expo[:4],
+                      "--allow-loud")
+    assert rc == 0, err
+    assert json.loads((tmp_path / "near.json").read_text())["exposure"]["listener_distances_m"] == [1.0]
 
 
 @pytest.mark.parametrize("extra, words", [

@@ -129,9 +129,9 @@ def _cli(capsys, *args):
 
 def test_command_writes_tables_figures_and_filters_whose_contrast_matches_the_design(tmp_path, capsys):
     out = tmp_path / "z"
-    r = _cli(capsys, DEMO, "--bright", "seat-A", "--dark", "seat-B", "--out", out, "--freq", "300", "--freq", "600",
-             "--regularisation", "0.01,0.1", "--filters", "contrast", "--taps", "1024", "--rate", "8000",
-             "--band", "300", "600", "--tolerance", "0.005", "--trials", "3")
+    r = _cli(capsys, DEMO, "--bright", "seat-A", "--dark", "seat-B", "--out", out, "--freq-hz", "300",
+             "--freq-hz", "600", "--regularisation", "0.01,0.1", "--filters", "contrast", "--taps", "1024",
+             "--rate-hz", "8000", "--band-hz", "300", "600", "--tolerance-m", "0.005", "--trials", "3")
     assert r.returncode == 0, r.stderr
     assert "contrast realised" in r.stdout
     names = {p.name for p in out.iterdir()}
@@ -175,9 +175,9 @@ def test_measured_responses_give_the_free_field_design_when_they_are_the_free_fi
     write_irset(tmp_path / "irs", free_field_irset(rig, 8000.0, 4096, zero_lag_samples=256))
     runs = {}
     for name, extra in (("free", []), ("measured", ["--irset", tmp_path / "irs"])):
-        r = _cli(capsys, rig_path, "--bright", "mics-A", "--dark", "mics-B", "--out", tmp_path / name, "--freq", "300",
-                 "--freq", "900", "--regularisation", "0.01", "--no-figures", "--filters", "matching", "--rate",
-                 "8000", "--taps", "512", "--band", "300", "900", *extra)
+        r = _cli(capsys, rig_path, "--bright", "mics-A", "--dark", "mics-B", "--out", tmp_path / name,
+                 "--freq-hz", "300", "--freq-hz", "900", "--regularisation", "0.01", "--no-figures", "--filters",
+                 "matching", "--rate-hz", "8000", "--taps", "512", "--band-hz", "300", "900", *extra)
         assert r.returncode == 0, r.stderr
         runs[name] = json.loads((tmp_path / name / "zones.json").read_text())
     # the DTFT of band-limited sampled responses reproduces the free field below Nyquist

@@ -1,7 +1,7 @@
 """Argument types shared by every command: each kind of value is checked in one place, when parsed.
 
 Every type raises :class:`argparse.ArgumentTypeError` with the bad value
-quoted; argparse puts the flag in front (``argument --at: must be a finite
+quoted; argparse puts the flag in front (``argument --at-m: must be a finite
 number, got 'nan'``) and the command-line parser prints that one line and
 exits with status 2.
 """
@@ -12,7 +12,8 @@ import argparse
 import math
 import os
 import re
-from typing import Callable
+import sys
+from typing import Any, Callable, Sequence
 
 from ..errors import InputError
 from ..limits import MAX_CHANNEL_NUMBER
@@ -20,7 +21,9 @@ from ..limits import MAX_CHANNEL_NUMBER
 __all__ = ["csv_names", "octaves", "finite_float", "positive_float", "nonnegative_float", "float_in",
            "dbfs_level", "count", "nonnegative_count", "channel_number", "MAX_CHANNEL_NUMBER", "MAX_COUNT",
            "add_measured_kernel_options", "measured_kernel_from_args", "add_memory_limit",
-           "text_with_flags", "error_with_flags", "say", "command_parser", "parameter_flags"]
+           "text_with_flags", "error_with_flags", "say", "command_parser", "parameter_flags",
+           "DefaultsShown", "accept_old_spelling", "renamed_options", "positive_floats", "FlatList",
+           "add_sweep_options", "add_exposure_options"]
 
 #: Highest count any option accepts before a command's own size estimate (repeats, bursts, channels...).
 MAX_COUNT = 1_000_000
@@ -140,12 +143,145 @@ def octaves(text: str) -> float:
     return value
 
 
+def positive_floats(text: str) -> list[float]:
+    """One or more positive numbers (argparse type, for ``nargs="+"``): ``2`` gives ``[2.0]``.
+
+    The comma form (``1,2.5``) of earlier releases is still read, with a note
+    on stderr; :class:`FlatList` joins the values of all words into one list.
+    """
+    parts = [v for v in text.split(",") if v.strip()]
+    if not parts:
+        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}")
+    if len(parts) > 1:
+        print(f"arrayplan: note: comma-separated values ({text!r}) are read for one more release; "
+              f"give them space-separated ({' '.join(p.strip() for p in parts)})", file=sys.stderr)
+    return [positive_float(v) for v in parts]
+
+
+#: Most values a list option takes.
+MAX_LIST_VALUES = 10_000
+
+
+class FlatList(argparse.Action):
+    """Store the values of an ``nargs="+"`` option whose type gives lists, as one flat list (at most
+    :data:`MAX_LIST_VALUES`)."""
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        flat = [v for group in values for v in group]
+        if len(flat) > MAX_LIST_VALUES:
+            parser.error(f"argument {option_string}: expected at most {MAX_LIST_VALUES} values, got {len(flat)}")
+        setattr(namespace, self.dest, flat)
+
+
+# ----------------------------------------------------------------------------- help and old spellings
+
+class DefaultsShown(argparse.HelpFormatter):
+    """Help formatter that shows every option's default: ``(default: 48000)``.
+
+    Options without a value of their own (None, flags that are off) and help
+    texts that already state their default are left as they are.
+    """
+
+    def _get_help_string(self, action: argparse.Action) -> str:
+        text = action.help or ""
+        default = action.default
+        if ("default" in text or not action.option_strings or default in (None, False, argparse.SUPPRESS)
+                or action.required):
+            return text
+        return f"{text} (default: {_shown(default).replace('%', '%%')})"
+
+
+def _shown(value: Any) -> str:
+    """A default as the user types it: ``48000``, ``0.5``, ``1 2`` for a list."""
+    if isinstance(value, (list, tuple)):
+        return " ".join(_shown(v) for v in value)
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
+_RENAMED_CLASSES: dict[type, type] = {}
+
+
+def _renamed_class(base: type) -> type:
+    """`base` (an argparse action class) that prints a note when called by one of its old spellings."""
+    if base not in _RENAMED_CLASSES:
+        def __call__(self, parser, namespace, values, option_string=None):
+            if option_string in self.old_spellings:
+                noted = parser.__dict__.setdefault("_old_spellings_noted", set())
+                if option_string not in noted:
+                    noted.add(option_string)
+                    print(f"{parser.prog}: note: {option_string} is now {max(self.option_strings, key=len)}; "
+                          "the old spelling is accepted until the next release", file=sys.stderr)
+            base.__call__(self, parser, namespace, values, option_string)
+
+        _RENAMED_CLASSES[base] = type(f"Renamed{base.__name__}", (base,), {"__call__": __call__})
+    return _RENAMED_CLASSES[base]
+
+
+def accept_old_spelling(parser: argparse.ArgumentParser, new: str, *old: str) -> argparse.Action:
+    """Accept the old spellings `old` of `parser`'s option `new` for one release, hidden from ``--help``.
+
+    The old spelling sets the same value (a required option given by its old
+    name counts as given) and prints one note on stderr naming `new`.
+    """
+    action = parser._option_string_actions[new]     # shared by the parser and its argument groups
+    for name in old:
+        if name in parser._option_string_actions:
+            raise ValueError(f"{name} is already an option")
+        parser._option_string_actions[name] = action
+    action.old_spellings = tuple(getattr(action, "old_spellings", ())) + old
+    if type(action) not in _RENAMED_CLASSES.values():
+        action.__class__ = _renamed_class(type(action))
+    return action
+
+
+def renamed_options(parser: argparse.ArgumentParser) -> dict[str, str]:
+    """Old spelling -> new option of `parser` (not its sub-commands)."""
+    return {name: max(a.option_strings, key=len) for name, a in parser._option_string_actions.items()
+            if name not in a.option_strings}
+
+
 def add_memory_limit(p: argparse.ArgumentParser) -> None:
     """The ``--max-memory-gib`` option: lifts the size estimate's limit (:mod:`arrayplan.limits`)."""
     from ..limits import DEFAULT_MAX_MEMORY_GIB
 
     p.add_argument("--max-memory-gib", type=positive_float, default=None, metavar="GIB",
                    help=f"refuse work whose estimated memory exceeds this (GiB, default {DEFAULT_MAX_MEMORY_GIB:g})")
+
+
+def add_sweep_options(p: argparse.ArgumentParser, *, f1_hz: float, duration_s: float, what: str = "sweep",
+                      title: str | None = None) -> argparse._ArgumentGroup:
+    """The sweep's band and duration: ``--f1-hz``, ``--f2-hz``, ``--duration-s`` (defaults from the caller's
+    library settings); `what` names the signal in the help ("sweep", "noise")."""
+    g = p.add_argument_group(title or what)
+    low, high = ("start", "end") if what == "sweep" else ("lowest", "highest")
+    g.add_argument("--f1-hz", type=positive_float, default=f1_hz, metavar="HZ", help=f"{low} frequency, Hz")
+    g.add_argument("--f2-hz", type=positive_float, metavar="HZ",
+                   help=f"{high} frequency, Hz (default: 20000 or 0.45 x the sample rate if lower)")
+    g.add_argument("--duration-s", type=positive_float, default=duration_s, metavar="S",
+                   help=f"{what} duration without padding, s")
+    return g
+
+
+def add_exposure_options(p: argparse.ArgumentParser, title: str, amp_help: str) -> argparse._ArgumentGroup:
+    """The sound-level estimate's inputs: speaker rating, amplifier voltage, listener distances, ``--allow-loud``.
+
+    The rating's voltage and the listeners' distance default to the library's
+    (:data:`arrayplan.safety.RATING_VRMS`, :data:`arrayplan.safety.DEFAULT_LISTENER_DISTANCE_M`).
+    """
+    from ..safety import DEFAULT_LISTENER_DISTANCE_M, RATING_VRMS
+
+    g = p.add_argument_group(title)
+    g.add_argument("--speaker-sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"), metavar="DB",
+                   help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms volts")
+    g.add_argument("--sensitivity-vrms", type=positive_float, default=RATING_VRMS, metavar="V",
+                   help="drive voltage of that rating, V RMS; 2.83 V is 1 W into 8 ohm")
+    g.add_argument("--amp-vrms", type=positive_float, metavar="V", help=amp_help)
+    g.add_argument("--listener-distance-m", type=positive_floats, nargs="+", action=FlatList,
+                   default=[DEFAULT_LISTENER_DISTANCE_M],
+                   metavar="M", help="distance of each person present from the speakers, m, space-separated")
+    g.add_argument("--allow-loud", action="store_true",
+                   help="go ahead even when the estimate exceeds the exposure caps (hearing protection in place)")
+    return g
 
 
 def add_measured_kernel_options(p: argparse.ArgumentParser, prefix: str = "") -> None:
@@ -190,7 +326,7 @@ def parameter_flags(parser: argparse.ArgumentParser, args: argparse.Namespace) -
     """Library parameter name -> this command's flag: every option by its dest, then the command's own map.
 
     A command whose flags differ from the library's parameter names sets
-    ``parameter_flags={"f2_hz": "--f2", ...}`` as a parser default.
+    ``parameter_flags={"sample_rate_hz": "--rate-hz", ...}`` as a parser default.
     """
     flags = {a.dest: max(a.option_strings, key=len) for a in command_parser(parser, args)._actions
              if a.option_strings and a.dest not in ("help", "version")}
@@ -201,7 +337,7 @@ def parameter_flags(parser: argparse.ArgumentParser, args: argparse.Namespace) -
 def error_with_flags(error: InputError, flags: dict[str, str]) -> str:
     """The one-line message of `error` with the library's parameter names given as the command's flags.
 
-    Parameters named in the text (```f2_hz```) become flags (``--f2``) or, where
+    Parameters named in the text (```f2_hz```) become flags (``--f2-hz``) or, where
     the command has none, the bare name.  A field or source that is a parameter
     name (``f2_hz``, ``peak_dbfs/rms_dbfs``, ``freqs_hz[2]``) becomes the flag,
     unless the error names a file: its fields are the file's own.

@@ -13,7 +13,7 @@ import math
 import sys
 
 from ..errors import InputError
-from ._args import channel_number, dbfs_level, float_in, positive_float
+from ._args import accept_old_spelling, channel_number, dbfs_level, float_in, positive_float
 
 __all__ = ["register", "run_mic", "run_output", "run_latency", "run_show"]
 
@@ -55,7 +55,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     m.add_argument("record", help="calibration record to create or update (TOML)")
     m.add_argument("--recording", required=True, metavar="WAV", help="recording of the calibrator")
     m.add_argument("--channel", type=channel_number, default=1, metavar="N",
-                   help="1-based channel of the file (default 1)")
+                   help="1-based channel of the file (default: 1)")
     m.add_argument("--mic", required=True, metavar="NAME", help="the microphone's name in the rig file")
     m.add_argument("--input-channel", type=channel_number, metavar="N",
                    help="1-based interface input the mic is on (default: --channel)")
@@ -76,13 +76,13 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                    help="1-based output calibrated")
     o.add_argument("--recording", required=True, metavar="WAV", help="recording of the tone")
     o.add_argument("--channel", type=channel_number, default=1, metavar="N",
-                   help="1-based channel of the file (default 1)")
+                   help="1-based channel of the file (default: 1)")
     o.add_argument("--played-peak-dbfs", type=float_in(-120.0, 0.0, "dBFS"), required=True, metavar="DB",
                    help="peak level of the played sine")
     o.add_argument("--tone-hz", type=float_in(1.0, 100_000.0, "Hz"), default=1000.0, metavar="HZ",
-                   help="frequency of the sine (default 1000)")
+                   help="frequency of the sine (default: 1000)")
     o.add_argument("--amplifier-gain-db", type=float_in(-100.0, 100.0, "dB"), default=0.0, metavar="DB",
-                   help="voltage gain of the amplifier after this output (default 0)")
+                   help="voltage gain of the amplifier after this output (default: 0)")
     _add_full_scale(o, "the input that recorded it")
     o.add_argument("--description", default="", help="description for a new record")
     o.set_defaults(run=run_output)
@@ -96,8 +96,9 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     la.add_argument("--input-channel", type=channel_number, required=True, metavar="N",
                     help="1-based input of the loop")
     la.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the system's)")
-    la.add_argument("--rate", type=positive_float, metavar="HZ", help="sample rate (default: the device's)")
-    la.add_argument("--peak-dbfs", type=dbfs_level, default=-20.0, metavar="DB", help="sweep peak (default -20 dBFS)")
+    la.add_argument("--rate-hz", type=positive_float, metavar="HZ", help="sample rate, Hz (default: the device's)")
+    accept_old_spelling(la, "--rate-hz", "--rate")
+    la.add_argument("--peak-dbfs", type=dbfs_level, default=-20.0, metavar="DB", help="sweep peak (default: -20 dBFS)")
     la.add_argument("--max-latency-s", type=float_in(0.001, 10.0, "s"), default=0.25, metavar="S",
                     help="default 0.25 s")
     la.add_argument("--yes", action="store_true", help="confirm without a prompt, after reading the caution")
@@ -149,7 +150,7 @@ def run_latency(args: argparse.Namespace) -> int:
     from .measure import confirm_before_playing
 
     rec = read_or_new(args.record, args.description)
-    link = SoundDeviceLink(args.device, args.rate, n_outputs=args.output_channel, n_inputs=args.input_channel)
+    link = SoundDeviceLink(args.device, args.rate_hz, n_outputs=args.output_channel, n_inputs=args.input_channel)
     fs = link.sample_rate_hz
     sweep = make_sweep(SweepSettings(f1_hz=100.0, f2_hz=min(20000.0, 0.45 * fs), duration_s=0.5,
                                      sample_rate_hz=fs, pad_before_s=0.2, pad_after_s=args.max_latency_s + 0.05,

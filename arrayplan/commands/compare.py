@@ -15,6 +15,7 @@ from ..planning import plan_rig
 from ..plan_files import read_plan
 from ..progress import ProgressBar
 from ..rig import load_rig
+from ._args import accept_old_spelling
 from ..studies._tables import csv_text as _csv
 
 
@@ -26,7 +27,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "Writes a table, per-frequency values and an overlaid figure to --out.")
     p.add_argument("layouts", nargs="+", metavar="RIG_OR_PLAN", help="rig files (TOML) or plan folders")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
-    p.add_argument("--freq", type=float, action="append", metavar="HZ",
+    p.add_argument("--freq-hz", dest="freq", type=float, action="append", metavar="HZ",
                    help="compare at this frequency (repeatable); default the first layout's frequencies")
     p.add_argument("--capacity-snr-db", type=float, metavar="DB",
                    help="also give the capacity at this SNR (one speaker at full drive, 1 m, free field; power "
@@ -34,6 +35,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--threshold-db", type=float, help="strong-channel threshold for rigs planned here, dB")
     p.add_argument("--snr-db", type=float, help="SNR of the strongest channel for rigs planned here, dB")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
+    accept_old_spelling(p, "--freq-hz", "--freq")
     p.set_defaults(run=run)
 
 
@@ -52,7 +54,7 @@ def _load(path: str, axis: FrequencyAxis | None, args: argparse.Namespace):
     use = axis if axis is not None else rig.frequencies
     if use is None:
         raise InputError("no frequencies to compare at", source=path, field="frequencies",
-                         fix="add a [frequencies] table or give --freq")
+                         fix="add a [frequencies] table or give --freq-hz")
     return rig.name, plan_rig(rig, use, threshold_db=args.threshold_db, snr_db=args.snr_db)
 
 
@@ -69,7 +71,7 @@ def run(args: argparse.Namespace) -> int:
     for flag, value in (("--threshold-db", args.threshold_db), ("--snr-db", args.snr_db)):
         if value is not None and value <= 0:
             raise InputError(f"must be positive, got {value}", source=flag)
-    axis = FrequencyAxis(sorted(args.freq), source="--freq") if args.freq else None
+    axis = FrequencyAxis(sorted(args.freq), source="--freq-hz") if args.freq else None
     named = []
     with ProgressBar("planning layouts") as bar:
         for i, path in enumerate(args.layouts):

@@ -35,7 +35,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ._args import count, finite_float, nonnegative_float, positive_float
+from ._args import accept_old_spelling, count, finite_float, nonnegative_float, positive_float
 from ._args import csv_names as _csv_names
 from ..errors import InputError
 from ..formats.deconvolution_summary import SUMMARY_FILE
@@ -134,7 +134,7 @@ def _run(args: argparse.Namespace) -> int:
     with ProgressBar("deconvolving speakers") as bar:
         made = deconvolve_takes(played, takes, speaker_names=speakers, mic_names=mics, ir_length=ir_len,
                                 pre_roll=pre_roll, max_harmonic=args.max_harmonic,
-                                min_peak_to_noise_db=args.min_pnr_db, speaker_positions=positions[0],
+                                min_peak_to_noise_db=args.min_peak_to_noise_db, speaker_positions=positions[0],
                                 mic_positions=positions[1], notes=notes, progress=bar,
                                 provenance={"element_names_from": names_from,
                                             "pre_roll": {"samples": pre_roll, "ms": 1e3 * pre_roll / rate,
@@ -176,15 +176,16 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated, without --rig/--plan "
                                                             "(default: the schedule's, else S1, S2, ...)")
     p.add_argument("--mic-names", type=_csv_names, help="microphone names, comma-separated, without --rig/--plan "
-                                                        "(default M1, M2, ...)")
-    p.add_argument("--ir-length-s", type=positive_float,
+                                                        "(default: M1, M2, ...)")
+    p.add_argument("--ir-length-s", type=positive_float, metavar="S",
                    help="response length after zero lag, s (default: the silence after the sweep)")
     p.add_argument("--pre-ms", type=nonnegative_float, metavar="MS",
                    help="time kept before zero lag for the pre-ringing of the measurement pulse, ms (default: the "
                         "sweep's, one Fresnel time at f1 and at most half-way to the 2nd harmonic; 0 cuts at "
                         "zero lag)")
-    p.add_argument("--max-harmonic", type=count(50), default=5,
-                   help="highest harmonic order separated (exponential sweeps; default 5, 1 for none)")
-    p.add_argument("--min-pnr-db", type=finite_float, default=DEFAULT_MIN_PEAK_TO_NOISE_DB,
-                   help=f"warn below this peak-to-noise ratio, dB (default {DEFAULT_MIN_PEAK_TO_NOISE_DB:g})")
+    p.add_argument("--max-harmonic", type=count(50), default=5, metavar="N",
+                   help="highest harmonic order separated (exponential sweeps; 1 for none)")
+    p.add_argument("--min-peak-to-noise-db", type=finite_float, default=DEFAULT_MIN_PEAK_TO_NOISE_DB, metavar="DB",
+                   help="warn below this peak-to-noise ratio, dB")
+    accept_old_spelling(p, "--min-peak-to-noise-db", "--min-pnr-db")
     p.set_defaults(run=_run)

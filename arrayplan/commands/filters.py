@@ -11,7 +11,7 @@ from ..errors import InputError
 from ..filters import check_filters, design_filters, validate_request, write_filters
 from ..progress import ProgressBar
 from ..rig import load_rig
-from ._args import add_memory_limit, count, finite_float, positive_float
+from ._args import accept_old_spelling, add_memory_limit, count, finite_float, positive_float
 
 CAUTION = ("caution: these filters feed loudspeakers; start any playback at a low level, protect hearing "
            "and drivers, and follow local codes and licensed practice")
@@ -23,9 +23,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "microphone) for each planned channel, write them as WAV files with a "
                                    "JSON sidecar, and check channel isolation in a time-domain simulation.")
     p.add_argument("rig", help="rig file (TOML)")
-    p.add_argument("--rate", type=positive_float, required=True, metavar="HZ", help="DSP sample rate in Hz")
+    p.add_argument("--rate-hz", type=positive_float, required=True, metavar="HZ", help="DSP sample rate, Hz")
     p.add_argument("--taps", type=count(), default=2048, help="filter length in samples (default 2048)")
-    p.add_argument("--band", type=positive_float, nargs=2, required=True, metavar=("LOW_HZ", "HIGH_HZ"),
+    p.add_argument("--band-hz", type=positive_float, nargs=2, required=True, metavar=("LOW_HZ", "HIGH_HZ"),
                    help="band where the filters realise the planned weights")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--min-level-db", type=finite_float, default=-30.0,
@@ -34,7 +34,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="pass/fail limit of the worst in-band crosstalk (default -40)")
     p.add_argument("--no-check", action="store_true", help="skip the time-domain check")
     add_memory_limit(p)
-    p.set_defaults(run=run, parameter_flags={"sample_rate_hz": "--rate", "band_hz": "--band"})
+    accept_old_spelling(p, "--rate-hz", "--rate")
+    accept_old_spelling(p, "--band-hz", "--band")
+    p.set_defaults(run=run, parameter_flags={"sample_rate_hz": "--rate-hz"})
 
 
 def _check_filter_size(rig, taps: int) -> None:
@@ -58,10 +60,10 @@ def run(args: argparse.Namespace) -> int:
     if not args.min_level_db <= 0:
         raise InputError(f"must be 0 dB or below, got {args.min_level_db:g}", source="--min-level-db")
     _check_filter_size(rig, args.taps)
-    validate_request(rig, args.rate, args.taps, tuple(args.band))
+    validate_request(rig, args.rate_hz, args.taps, tuple(args.band_hz))
     with ProgressBar("filter plan") as plan_bar, \
             ProgressBar("filter taps") as taps_bar:
-        filters = design_filters(rig, args.rate, args.taps, tuple(args.band), min_level_db=args.min_level_db,
+        filters = design_filters(rig, args.rate_hz, args.taps, tuple(args.band_hz), min_level_db=args.min_level_db,
                                  plan_progress=plan_bar, taps_progress=taps_bar)
     check = None
     if not args.no_check:

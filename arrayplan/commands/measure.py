@@ -18,8 +18,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..progress import ProgressBar, mini_bar
-from ._args import (add_memory_limit, count, dbfs_level, finite_float, float_in,
-                    nonnegative_count, nonnegative_float, positive_float, say)
+from ._args import (accept_old_spelling, add_exposure_options, add_memory_limit, add_sweep_options, count,
+                    dbfs_level, finite_float, nonnegative_count, nonnegative_float, positive_float, say)
 
 if TYPE_CHECKING:
     from ..hardware.measure import TakeProgress
@@ -30,18 +30,9 @@ __all__ = ["register", "run", "confirm_before_playing", "add_level_options", "pr
 
 def add_level_options(p: argparse.ArgumentParser) -> None:
     """Options for the sound-level estimate printed before playing."""
-    g = p.add_argument_group("sound-level estimate (printed before anything plays)")
-    g.add_argument("--speaker-sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"), metavar="DB",
-                   help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms volts")
-    g.add_argument("--sensitivity-vrms", type=positive_float, default=2.83, metavar="V",
-                   help="drive voltage of that rating, V RMS (default 2.83 V: 1 W into 8 ohm)")
-    g.add_argument("--amp-vrms", type=positive_float, metavar="V",
-                   help="V RMS at the speaker terminals for a full-scale sine (default: from the "
-                        "calibration record's outputs)")
-    g.add_argument("--listener-distance-m", type=positive_float, nargs="+", default=[1.0], metavar="M",
-                   help="distance of each person in the room from the speaker playing (default 1 m)")
-    g.add_argument("--allow-loud", action="store_true",
-                   help="play even when the estimate exceeds the exposure caps (hearing protection on)")
+    g = add_exposure_options(p, "sound-level estimate (printed before anything plays)",
+                             amp_help="V RMS at the speaker terminals for a full-scale sine (default: from the "
+                                      "calibration record's outputs)")
     g.add_argument("--allow-unknown-level", action="store_true",
                    help="play hot outputs (a known voltage that could exceed the caps) although the speaker "
                         "sensitivity, and so the level, is unknown (hearing protection on)")
@@ -147,31 +138,32 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("rig", help="rig file (TOML); speakers' and microphones' 'channel' are 1-based")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (resumes when it exists)")
     p.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the rig's, else the system's)")
-    p.add_argument("--rate", type=positive_float, metavar="HZ",
-                   help="sample rate (default: the rig's, else the device's)")
+    p.add_argument("--rate-hz", type=positive_float, metavar="HZ",
+                   help="sample rate, Hz (default: the rig's, else the device's)")
     p.add_argument("--calibration", metavar="FILE", help="calibration record (default: the rig's, if any)")
     p.add_argument("--latency-samples", type=nonnegative_count(10_000_000), metavar="N",
                    help="latency to remove when there is neither a reference loop nor a calibrated latency")
-    s = p.add_argument_group("sweep")
-    s.add_argument("--f1", type=positive_float, default=40.0, metavar="HZ", help="start frequency (default 40 Hz)")
-    s.add_argument("--f2", type=positive_float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
-    s.add_argument("--duration-s", type=positive_float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
+    from ..hardware.measure import MeasurementSettings
+
+    settings = MeasurementSettings()            # the library's defaults, shown in --help
+    s = add_sweep_options(p, f1_hz=settings.f1_hz, duration_s=settings.sweep_s)
     s.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB",
                    help="sweep true peak level, 4x oversampled (default: the peak cap, -12 dBFS)")
     s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
-    s.add_argument("--repeats", type=count(), default=1, metavar="N", help="sweeps per take, averaged (default 1)")
-    s.add_argument("--ir-s", type=positive_float, default=0.5, metavar="S",
-                   help="impulse-response length after zero lag (default 0.5 s)")
+    s.add_argument("--repeats", type=count(), default=settings.repeats, metavar="N",
+                   help="sweeps per take, averaged")
+    s.add_argument("--ir-length-s", type=positive_float, default=settings.ir_s, metavar="S",
+                   help="impulse-response length after zero lag, s")
     s.add_argument("--pre-ms", type=nonnegative_float, metavar="MS",
                    help="time kept before zero lag for the measurement pulse's pre-ringing (default: one Fresnel "
                         "time at f1, at most half-way to the 2nd harmonic; 110 ms for the default sweep)")
-    s.add_argument("--max-latency-s", type=positive_float, default=0.25, metavar="S",
-                   help="longest interface latency expected (default 0.25 s)")
-    s.add_argument("--lead-in-s", type=nonnegative_float, default=0.2, metavar="S",
-                   help="silence before each sweep (default 0.2 s)")
+    s.add_argument("--max-latency-s", type=positive_float, default=settings.max_latency_s, metavar="S",
+                   help="longest interface latency expected, s")
+    s.add_argument("--lead-in-s", type=nonnegative_float, default=settings.lead_in_s, metavar="S",
+                   help="silence before each sweep, s")
     c = p.add_argument_group("checks")
-    c.add_argument("--min-peak-to-noise-db", type=finite_float, default=None, metavar="DB",
-                   help="mark takes whose responses fall below this peak-to-noise ratio (default 40 dB)")
+    c.add_argument("--min-peak-to-noise-db", type=finite_float, default=settings.min_peak_to_noise_db, metavar="DB",
+                   help="mark takes whose responses fall below this peak-to-noise ratio, dB")
     c.add_argument("--redo-marked", action="store_true", help="measure marked takes again when resuming")
     add_level_options(p)
     m = p.add_argument_group("simulated rig (nothing plays)")
@@ -181,19 +173,21 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     m.add_argument("--sim-latency-samples", type=nonnegative_count(10_000_000), default=300, metavar="N",
                    help="default 300")
     m.add_argument("--sim-noise-dbfs", type=dbfs_level, default=-90.0, metavar="DB",
-                   help="RMS noise (default -90 dBFS)")
+                   help="RMS noise (default: -90 dBFS)")
     m.add_argument("--sim-nonlinearity", default="0.01,0.005", metavar="A2,A3,...",
-                   help="coefficients of x^2, x^3, ... (default 0.01,0.005; '' for linear)")
+                   help="coefficients of x^2, x^3, ... (default: 0.01,0.005; '' for linear)")
     m.add_argument("--sim-dropouts", type=nonnegative_count(1000), default=0, metavar="N",
                    help="dropped input blocks per take")
     m.add_argument("--sim-seed", type=nonnegative_count(2 ** 32 - 1), default=0, metavar="N", help="noise seed")
     add_memory_limit(p)
+    for new, old in (("--rate-hz", "--rate"), ("--f1-hz", "--f1"), ("--f2-hz", "--f2"), ("--ir-length-s", "--ir-s")):
+        accept_old_spelling(p, new, old)
     p.set_defaults(run=run, parameter_flags=PARAMETER_FLAGS)
 
 
 #: Library parameter names that this command spells differently.
-PARAMETER_FLAGS = {"f1_hz": "--f1", "f2_hz": "--f2", "sweep_s": "--duration-s", "pre_s": "--pre-ms",
-                   "sample_rate_hz": "--rate", "rate_hz": "--rate",
+PARAMETER_FLAGS = {"sweep_s": "--duration-s", "pre_s": "--pre-ms", "ir_s": "--ir-length-s",
+                   "sample_rate_hz": "--rate-hz",
                    "sensitivity_db_spl": "--speaker-sensitivity-db-spl",
                    "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
                    "latency_samples": "--latency-samples", "dropouts_per_take": "--sim-dropouts",
@@ -237,7 +231,7 @@ def _check_take_size(args: argparse.Namespace, wiring: Any, fs: float) -> None:
     """Refuse takes whose recordings would not fit the memory limit (estimated before anything plays)."""
     from ..limits import check_memory
 
-    sweep_s = args.lead_in_s + args.duration_s + args.max_latency_s + args.ir_s
+    sweep_s = args.lead_in_s + args.duration_s + args.max_latency_s + args.ir_length_s
     take_s = args.repeats * sweep_s
     n_in = wiring.n_inputs_needed
     check_memory(3 * 8.0 * take_s * fs * n_in, f"a take of {args.repeats} sweep(s), {take_s:.3g} s on {n_in} "
@@ -259,7 +253,6 @@ def run(args: argparse.Namespace) -> int:
     from ..hardware.measure import MeasurementSettings, RigWiring, measure
     from ..rig import load_rig
     from ..safety import print_caution
-    from ..signals.deconvolve import DEFAULT_MIN_PEAK_TO_NOISE_DB
     from ..signals.levels import peak_dbfs, true_peak_dbfs
     from ..signals.sweeps import make_sweep
 
@@ -272,13 +265,12 @@ def run(args: argparse.Namespace) -> int:
     cal_path = args.calibration or hw.calibration
     calibration = read_calibration(cal_path) if cal_path else None
     settings = MeasurementSettings(
-        f1_hz=args.f1, f2_hz=args.f2, sweep_s=args.duration_s, peak_dbfs=args.peak_dbfs,
-        allow_above_cap=args.allow_above_cap, ir_s=args.ir_s,
+        f1_hz=args.f1_hz, f2_hz=args.f2_hz, sweep_s=args.duration_s, peak_dbfs=args.peak_dbfs,
+        allow_above_cap=args.allow_above_cap, ir_s=args.ir_length_s,
         pre_s=None if args.pre_ms is None else args.pre_ms * 1e-3, lead_in_s=args.lead_in_s,
         max_latency_s=args.max_latency_s, repeats=args.repeats,
-        min_peak_to_noise_db=(DEFAULT_MIN_PEAK_TO_NOISE_DB if args.min_peak_to_noise_db is None
-                              else args.min_peak_to_noise_db))
-    rate = args.rate or hw.sample_rate_hz
+        min_peak_to_noise_db=args.min_peak_to_noise_db)
+    rate = args.rate_hz or hw.sample_rate_hz
     _check_take_size(args, wiring, float(rate or 48000.0))
     if args.simulate:
         from ..hardware.simulated import SimulatedLink

@@ -13,8 +13,8 @@ from ..errors import InputError
 from ..irset import IRSet, read_irset
 from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
-from ._args import (add_measured_kernel_options, add_memory_limit, count, float_in, measured_kernel_from_args,
-                    positive_float)
+from ._args import (accept_old_spelling, add_measured_kernel_options, add_memory_limit, count, float_in,
+                    measured_kernel_from_args, positive_float)
 from ..frequency import FrequencyAxis
 from ..medium import speed_of_sound_air
 from ..planning import plan_rig
@@ -31,14 +31,15 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--speakers", help="CSV of speaker positions (header x,y,z[,name]) in metres")
     p.add_argument("--mics", help="CSV of microphone positions (header x,y,z[,name]) in metres")
-    p.add_argument("--freq", type=positive_float, action="append", metavar="HZ",
+    p.add_argument("--freq-hz", dest="freq", type=positive_float, action="append", metavar="HZ",
                    help="plan at this frequency (repeatable); overrides the rig file's [frequencies]")
-    p.add_argument("--speed-of-sound", type=float_in(1.0, 10000.0, "m/s"), metavar="M_PER_S",
+    p.add_argument("--speed-of-sound-m-s", dest="speed_of_sound", type=float_in(1.0, 10000.0, "m/s"),
+                   metavar="M_PER_S",
                    help="speed of sound (quick form; default from 20 °C air)")
     p.add_argument("--threshold-db", type=positive_float,
-                   help="strong = within this many dB of the strongest (default 3)")
+                   help="strong = within this many dB of the strongest (default: 3)")
     p.add_argument("--snr-db", type=positive_float,
-                   help="SNR of the strongest channel, sets the noise floor (default 40)")
+                   help="SNR of the strongest channel, sets the noise floor (default: 40)")
     p.add_argument("--track", action="store_true", default=None,
                    help="order and phase-align channels from bin to bin")
     p.add_argument("--chunk-size", type=count(1_000_000), help="frequencies decomposed at once (bounds memory)")
@@ -50,6 +51,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="plan in the free field even when the rig file has a [room] table")
     p.add_argument("--no-figures", action="store_true", help="write tables and weights only")
     add_memory_limit(p)
+    accept_old_spelling(p, "--freq-hz", "--freq")
+    accept_old_spelling(p, "--speed-of-sound-m-s", "--speed-of-sound")
     p.set_defaults(run=run)
 
 
@@ -81,7 +84,7 @@ def rig_from_args(args: argparse.Namespace) -> Rig:
         raise InputError("give a rig file or --speakers/--mics, not both", source="command line")
     if args.rig:
         if args.speed_of_sound is not None:
-            raise InputError("--speed-of-sound applies to the quick form only", source="--speed-of-sound",
+            raise InputError("--speed-of-sound-m-s applies to the quick form only", source="--speed-of-sound-m-s",
                              fix="set [medium] speed_of_sound in the rig file")
         return load_rig(args.rig)
     if getattr(args, "irset", None) and not (args.speakers or args.mics):
@@ -90,12 +93,12 @@ def rig_from_args(args: argparse.Namespace) -> Rig:
         raise InputError("no rig given", source="command line",
                          fix="give RIG.toml, or both --speakers S.csv and --mics M.csv")
     if not args.freq:
-        raise InputError("the quick form needs at least one --freq", source="--freq")
+        raise InputError("the quick form needs at least one --freq-hz", source="--freq-hz")
     s_names, s_pos, _ = read_positions_csv(args.speakers, field="--speakers")
     m_names, m_pos, _ = read_positions_csv(args.mics, field="--mics")
     c = args.speed_of_sound if args.speed_of_sound is not None else speed_of_sound_air(20.0)
     if not (c > 0):
-        raise InputError(f"must be positive, got {c}", source="--speed-of-sound")
+        raise InputError(f"must be positive, got {c}", source="--speed-of-sound-m-s")
     return Rig.from_positions(s_pos, m_pos, speed_of_sound=c, speaker_names=s_names, mic_names=m_names,
                               name=Path(args.speakers).stem + "-" + Path(args.mics).stem, source="command line")
 
@@ -135,12 +138,12 @@ def run(args: argparse.Namespace) -> int:
         kernel = rig_kernel(rig, free_field=True)
     elif args.window_ms is not None or args.latency_samples or args.smooth_octaves is not None:
         raise InputError("applies only with --irset", source="--window-ms/--latency-samples/--smooth-octaves")
-    axis = FrequencyAxis(sorted(args.freq), source="--freq") if args.freq else None
+    axis = FrequencyAxis(sorted(args.freq), source="--freq-hz") if args.freq else None
     if args.irset:
         top = (axis or rig.frequencies)
         if top is not None and top.hz[-1] >= kernel.sample_rate_hz / 2:
             raise InputError(f"plan frequency {top.hz[-1]:g} Hz is not below the IR set's Nyquist frequency "
-                             f"{kernel.sample_rate_hz / 2:g} Hz", source="--freq", fix="plan at lower frequencies")
+                             f"{kernel.sample_rate_hz / 2:g} Hz", source="--freq-hz", fix="plan at lower frequencies")
     if axis is not None or rig.frequencies is not None:
         check_plan_size(rig, len((axis or rig.frequencies).hz), args.chunk_size or rig.planning.chunk_size)
     with ProgressBar("planning") as bar:

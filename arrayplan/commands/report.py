@@ -18,7 +18,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "the cautions and the provenance of every result. The file opens offline: "
                                    "no scripts, fonts or styles from elsewhere.")
     p.add_argument("project_dir", metavar="PROJECT_DIR", help="folder holding arrayplan results (searched 4 deep)")
-    p.add_argument("--out", help="report file (default PROJECT_DIR/report.html; written atomically)")
+    p.add_argument("--out", help="report file (default: PROJECT_DIR/report.html; written atomically)")
     p.add_argument("--rig", metavar="RIG.toml",
                    help="the rig file, when the plans' sidecars no longer point to it (used where its geometry "
                         "hash matches)")

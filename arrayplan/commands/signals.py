@@ -22,8 +22,9 @@ from typing import Any
 
 import numpy as np
 
-from ._args import (MAX_CHANNEL_NUMBER, add_memory_limit, count, dbfs_level, finite_float, float_in,
-                    nonnegative_count, nonnegative_float, positive_float, say)
+from ._args import (MAX_CHANNEL_NUMBER, FlatList, accept_old_spelling, add_exposure_options, add_memory_limit,
+                    add_sweep_options, count, dbfs_level, finite_float, nonnegative_count, nonnegative_float,
+                    positive_float, positive_floats, say)
 from ._args import csv_names as _csv_names
 from ..limits import check_memory
 from ..errors import InputError
@@ -45,16 +46,8 @@ __all__ = ["register", "above_cap_warning"]
 
 # ----------------------------------------------------------------------------- options
 
-def _csv_floats(text: str) -> list[float]:
-    """Comma-separated positive finite numbers, at most 10000 of them (argparse type)."""
-    parts = [v for v in text.split(",") if v.strip()]
-    if not parts:
-        raise argparse.ArgumentTypeError("expected at least one number")
-    if len(parts) > 10_000:
-        raise argparse.ArgumentTypeError(f"expected at most 10000 numbers, got {len(parts)}")
-    return [positive_float(v) for v in parts]
-
-
+#: Sweep settings whose defaults the options show (the library's).
+_SWEEP = SweepSettings()
 #: Highest sample rate accepted, Hz.
 MAX_RATE_HZ = 768_000
 #: Working copies of a signal held at once while it is built, conditioned and written (estimate).
@@ -81,9 +74,10 @@ def _add_output(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("output")
     g.add_argument("--out", required=True, type=Path, metavar="FILE.wav",
                    help="signal file; its sidecar FILE.json (and FILE.inverse.wav for sweeps) go beside it")
-    g.add_argument("--rate-hz", type=count(MAX_RATE_HZ), default=48000, help="sample rate in Hz (default 48000)")
+    g.add_argument("--rate-hz", type=count(MAX_RATE_HZ), default=int(_SWEEP.sample_rate_hz), metavar="HZ",
+                   help="sample rate, Hz")
     g.add_argument("--format", choices=tuple(SAMPLE_FORMATS), default="float32",
-                   help="sample format of the signal file (default float32)")
+                   help="sample format of the signal file")
     add_memory_limit(p)
 
 
@@ -97,55 +91,51 @@ _NOISE_PROBE_FADES = (0.02, 0.005)
 def _add_level(p: argparse.ArgumentParser, fade_in: float | None, fade_out: float | None) -> None:
     g = p.add_argument_group("level and conditioning")
     m = g.add_mutually_exclusive_group()
-    m.add_argument("--peak-dbfs", type=dbfs_level,
+    m.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB",
                    help="true peak level in dBFS, 4x oversampled (default: the peak cap)")
-    m.add_argument("--rms-dbfs", type=dbfs_level, help="RMS level of the signal without its padding, in dBFS instead "
-                                                      "(20 log10 rms; full-scale sine = -3.01)")
-    g.add_argument("--peak-cap-dbfs", type=dbfs_level, default=DEFAULT_PEAK_CAP_DBFS,
-                   help=f"highest true peak allowed (default {DEFAULT_PEAK_CAP_DBFS:g}); lowering it needs "
-                        "nothing, raising it needs --allow-above-cap")
+    m.add_argument("--rms-dbfs", type=dbfs_level, metavar="DB",
+                   help="RMS level of the signal without its padding, in dBFS instead (20 log10 rms; full-scale "
+                        "sine = -3.01)")
+    g.add_argument("--peak-cap-dbfs", type=dbfs_level, default=DEFAULT_PEAK_CAP_DBFS, metavar="DB",
+                   help="highest true peak allowed; lowering it needs nothing, raising it needs --allow-above-cap")
     g.add_argument("--allow-above-cap", action="store_true",
                    help="allow a true peak above the default cap or the cap given (never above 0 dBFS: "
                         "clipping is always refused)")
-    g.add_argument("--fade-in-s", type=nonnegative_float, default=fade_in,
-                   help=f"raised-cosine fade-in, s (default {_FRESNEL_FADES if fade_in is None else f'{fade_in:g}'})")
-    g.add_argument("--fade-out-s", type=nonnegative_float, default=fade_out,
-                   help=f"raised-cosine fade-out, s (default {'the same rule' if fade_out is None else f'{fade_out:g}'})")
-    g.add_argument("--highpass-hz", type=positive_float,
-                   help="Butterworth high-pass for small drivers, Hz (default none)")
-    g.add_argument("--highpass-order", type=count(12), default=2, help="its order (default 2, 12 dB per octave)")
-    g.add_argument("--pad-before-s", type=nonnegative_float, default=0.1,
-                   help="silence before the signal, s (default 0.1)")
+    g.add_argument("--fade-in-s", type=nonnegative_float, default=fade_in, metavar="S",
+                   help=f"raised-cosine fade-in, s (default: {_FRESNEL_FADES if fade_in is None else f'{fade_in:g}'})")
+    g.add_argument("--fade-out-s", type=nonnegative_float, default=fade_out, metavar="S",
+                   help="raised-cosine fade-out, s "
+                        f"(default: {'the same rule' if fade_out is None else f'{fade_out:g}'})")
+    g.add_argument("--highpass-hz", type=positive_float, metavar="HZ",
+                   help="Butterworth high-pass for small drivers, Hz (default: none)")
+    g.add_argument("--highpass-order", type=count(12), default=_SWEEP.highpass_order, metavar="N",
+                   help="its order (2: 12 dB per octave)")
+    g.add_argument("--pad-before-s", type=nonnegative_float, default=_SWEEP.pad_before_s, metavar="S",
+                   help="silence before the signal, s")
 
 
 def _add_exposure(p: argparse.ArgumentParser) -> None:
-    g = p.add_argument_group("exposure estimate (give the first three to get one)")
-    g.add_argument("--sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"),
-                   help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms")
-    g.add_argument("--amp-vrms", type=positive_float,
-                   help="volts RMS at the speaker terminals for a 0 dBFS sine (meter it, or DAC full scale x gain)")
-    g.add_argument("--listener-distance-m", type=_csv_floats,
-                   help="distances of the people present from the speakers, m, comma-separated")
-    g.add_argument("--sensitivity-vrms", type=positive_float, default=2.83,
-                   help="drive voltage of the sensitivity rating, V RMS (default 2.83: 1 W into 8 ohm)")
-    g.add_argument("--max-dba", type=finite_float, default=DEFAULT_MAX_DBA,
-                   help=f"refuse above this estimated level at a listener, dBA (default {DEFAULT_MAX_DBA:g})")
-    g.add_argument("--allow-loud", action="store_true",
-                   help="write the file even above --max-dba or 140 dB SPL peak (hearing protection in place)")
+    g = add_exposure_options(p, "exposure estimate (give the speaker's sensitivity and the amplifier's voltage "
+                                "to get one)",
+                             amp_help="volts RMS at the speaker terminals for a 0 dBFS sine (meter it, or DAC full "
+                                      "scale x gain)")
+    g.add_argument("--max-dba", type=finite_float, default=DEFAULT_MAX_DBA, metavar="DBA",
+                   help="refuse above this estimated level at a listener, dBA")
+    accept_old_spelling(p, "--speaker-sensitivity-db-spl", "--sensitivity-db-spl")
 
 
-def _add_sweep(p: argparse.ArgumentParser, *, kind: bool = True) -> None:
-    g = p.add_argument_group("sweep")
+#: Duration of a noise signal when none is given, s (long enough for a stable spectrum; common practice, no source).
+NOISE_DURATION_S = 10.0
+
+
+def _add_sweep(p: argparse.ArgumentParser, *, kind: bool = True, what: str = "sweep") -> None:
+    g = add_sweep_options(p, f1_hz=_SWEEP.f1_hz, duration_s=NOISE_DURATION_S if what == "noise" else _SWEEP.duration_s,
+                          what=what)
     if kind:
-        g.add_argument("--kind", choices=SWEEP_KINDS, default="exponential", help="sweep law (default exponential)")
-    g.add_argument("--f1-hz", type=positive_float, default=20.0,
-                   help="start frequency (noise: lower band edge), Hz (default 20)")
-    g.add_argument("--f2-hz", type=positive_float, help="end frequency (noise: upper band edge), Hz "
-                                               "(default 20000 or 0.45 x rate if lower)")
-    g.add_argument("--duration-s", type=positive_float, default=4.0,
-                   help="sweep duration, s, without padding (default 4)")
-    g.add_argument("--pad-after-s", type=nonnegative_float, default=1.0,
-                   help="silence after each sweep: the room's decay time and the response length, s (default 1)")
+        g.add_argument("--kind", choices=SWEEP_KINDS, default=_SWEEP.kind, help="sweep law")
+    g.add_argument("--pad-after-s", type=nonnegative_float, default=_SWEEP.pad_after_s, metavar="S",
+                   help="silence after each sweep: the room's decay time and the response length, s"
+                   if what == "sweep" else f"silence after the {what}, s")
 
 
 # ----------------------------------------------------------------------------- building
@@ -359,20 +349,20 @@ def _finite(v: float) -> float | None:
 
 
 #: Option names for the messages of the exposure estimate and check.
-_EXPOSURE_OPTIONS = {"sensitivity_db_spl": "--sensitivity-db-spl", "sensitivity_vrms": "--sensitivity-vrms",
+_EXPOSURE_OPTIONS = {"sensitivity_db_spl": "--speaker-sensitivity-db-spl", "sensitivity_vrms": "--sensitivity-vrms",
                      "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
                      "max_dba": "--max-dba", "allow_loud": "--allow-loud"}
 
 
 def _exposure(args: argparse.Namespace, x: np.ndarray, combine: str, src: str):
-    given = [args.sensitivity_db_spl is not None, args.amp_vrms is not None, args.listener_distance_m is not None]
+    given = [args.speaker_sensitivity_db_spl is not None, args.amp_vrms is not None]
     if not any(given):
         return None
     if not all(given):
-        raise InputError("the exposure estimate needs all of --sensitivity-db-spl, --amp-vrms and "
-                         "--listener-distance-m", source=src, field="--sensitivity-db-spl",
-                         fix="give all three, or none to skip the estimate")
-    return estimate_exposure(x, args.rate_hz, sensitivity_db_spl=args.sensitivity_db_spl,
+        raise InputError("the exposure estimate needs both --speaker-sensitivity-db-spl and --amp-vrms",
+                         source=src, field="--speaker-sensitivity-db-spl" if given[1] else "--amp-vrms",
+                         fix="give both, or neither to skip the estimate")
+    return estimate_exposure(x, args.rate_hz, sensitivity_db_spl=args.speaker_sensitivity_db_spl,
                              amp_vrms_full_scale=args.amp_vrms, distances_m=args.listener_distance_m,
                              sensitivity_vrms=args.sensitivity_vrms, combine=combine,
                              option_names=_EXPOSURE_OPTIONS)
@@ -430,8 +420,8 @@ def _run(args: argparse.Namespace) -> int:
         warnings += [say(w, args) for w in check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud,
                                                           source=src, option_names=_EXPOSURE_OPTIONS)]
     elif playable:
-        warnings.append("no exposure estimate: give --sensitivity-db-spl, --amp-vrms and --listener-distance-m "
-                        "to check the level at the listeners")
+        warnings.append("no exposure estimate: give --speaker-sensitivity-db-spl and --amp-vrms (and "
+                        "--listener-distance-m) to check the level at the listeners")
     level = _level_block(args, x, built)
     above = above_cap_warning(level["true_peak_dbfs"], args.peak_cap_dbfs) if playable else None
     if above is not None:
@@ -479,45 +469,46 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     _add_exposure(s)
 
     s = sub.add_parser("noise", help="band-limited pink or white noise")
-    s.add_argument("--colour", choices=NOISE_COLOURS, default="pink", help="spectrum (default pink)")
+    s.add_argument("--colour", choices=NOISE_COLOURS, default="pink", help="spectrum (default: pink)")
     s.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), help="random seed, for a reproducible file")
-    _add_sweep(s, kind=False)
-    s.set_defaults(duration_s=10.0)
+    _add_sweep(s, kind=False, what="noise")
     _add_level(s, 0.05, 0.05)
     _add_output(s)
     _add_exposure(s)
 
     s = sub.add_parser("tones", help="stepped steady tones separated by silence")
-    s.add_argument("--freqs-hz", type=_csv_floats, required=True, help="tone frequencies, Hz, comma-separated")
-    s.add_argument("--tone-s", type=positive_float, default=1.0, help="duration of each tone, s (default 1)")
-    s.add_argument("--gap-s", type=nonnegative_float, default=0.5, help="silence between tones, s (default 0.5)")
+    s.add_argument("--freqs-hz", type=positive_floats, nargs="+", action=FlatList, required=True, metavar="HZ",
+                   help="tone frequencies, Hz, space-separated")
+    s.add_argument("--tone-s", type=positive_float, default=1.0, help="duration of each tone, s (default: 1)")
+    s.add_argument("--gap-s", type=nonnegative_float, default=0.5, help="silence between tones, s (default: 0.5)")
     s.add_argument("--pad-after-s", type=nonnegative_float, default=0.1,
-                   help="silence after the last tone, s (default 0.1)")
+                   help="silence after the last tone, s (default: 0.1)")
     _add_level(s, 0.01, 0.01)
     _add_output(s)
     _add_exposure(s)
 
     s = sub.add_parser("bursts", help="tone bursts: a few periods of a tone, repeated")
     s.add_argument("--freq-hz", type=positive_float, required=True, help="tone frequency, Hz")
-    s.add_argument("--cycles", type=positive_float, default=10.0, help="periods per burst, fades included (default 10)")
+    s.add_argument("--cycles", type=positive_float, default=10.0,
+                   help="periods per burst, fades included (default: 10)")
     s.add_argument("--fade-cycles", type=nonnegative_float, default=2.0,
-                   help="fade at each end of a burst, periods (default 2)")
-    s.add_argument("--period-s", type=positive_float, default=0.5, help="time from burst to burst, s (default 0.5)")
-    s.add_argument("--count", type=count(), default=8, help="number of bursts (default 8)")
+                   help="fade at each end of a burst, periods (default: 2)")
+    s.add_argument("--period-s", type=positive_float, default=0.5, help="time from burst to burst, s (default: 0.5)")
+    s.add_argument("--count", type=count(), default=8, help="number of bursts (default: 8)")
     s.add_argument("--pad-after-s", type=nonnegative_float, default=0.1,
-                   help="silence after the last burst, s (default 0.1)")
+                   help="silence after the last burst, s (default: 0.1)")
     _add_level(s, 0.001, 0.001)
     _add_output(s)
     _add_exposure(s)
 
     s = sub.add_parser("silence", help="silence, for padding a playlist or recording the noise floor")
-    s.add_argument("--duration-s", type=positive_float, default=1.0, help="duration, s (default 1)")
-    s.add_argument("--channels", type=count(MAX_CHANNEL_NUMBER), default=1, help="number of channels (default 1)")
+    s.add_argument("--duration-s", type=positive_float, default=1.0, help="duration, s (default: 1)")
+    s.add_argument("--channels", type=count(MAX_CHANNEL_NUMBER), default=1, help="number of channels (default: 1)")
     _add_output(s)
 
     s = sub.add_parser("schedule", help="each speaker plays the sweep in turn, with a decay gap between")
     s.add_argument("--speakers", type=count(MAX_CHANNEL_NUMBER), help="number of speakers (channels, rig order)")
-    s.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated (default S1, S2, ...)")
+    s.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated (default: S1, S2, ...)")
     _add_sweep(s)
     _add_level(s, None, None)
     _add_output(s)
@@ -530,7 +521,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         "as channel-NN-drive.wav written by 'arrayplan filters' (speaker names from FILTERS.json "
                         "beside it if it exists, else from that folder's filters.json)")
     s.add_argument("--source", choices=("sweep",) + NOISE_COLOURS, default="sweep",
-                   help="probe signal before the filters (default sweep; its inverse filter is written too; "
+                   help="probe signal before the filters (default: sweep; its inverse filter is written too; "
                         "noise is faded 0.02 s in and 0.005 s out unless the fades are given)")
     s.add_argument("--channel-name", help="name of the channel in the sidecar (default: the filter file's stem)")
     s.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), help="random seed for a noise source")

@@ -11,6 +11,7 @@ from ..errors import InputError
 from ..frequency import FrequencyAxis
 from ..progress import ProgressBar
 from ..rig import ElementSet, load_rig, read_positions_csv
+from ._args import accept_old_spelling
 
 
 def register(actions: argparse._SubParsersAction) -> None:
@@ -33,9 +34,10 @@ def register(actions: argparse._SubParsersAction) -> None:
     p.add_argument("--snr-db", type=float, help="SNR rho of one average candidate at full drive, dB "
                                                 "(default the rig's [planning] snr_db)")
     p.add_argument("--threshold-db", type=float, help="strong-channel threshold, dB (default the rig's)")
-    p.add_argument("--freq", type=float, action="append", metavar="HZ",
+    p.add_argument("--freq-hz", dest="freq", type=float, action="append", metavar="HZ",
                    help="score at this frequency (repeatable); default the rig file's [frequencies]")
     p.add_argument("--no-figures", action="store_true", help="write tables and the rig file only")
+    accept_old_spelling(p, "--freq-hz", "--freq")
     p.set_defaults(run=run)
 
 
@@ -57,10 +59,10 @@ def run(args: argparse.Namespace) -> int:
 
     matplotlib.use("Agg")
     rig = load_rig(args.rig)
-    axis = FrequencyAxis(sorted(args.freq), source="--freq") if args.freq else rig.frequencies
+    axis = FrequencyAxis(sorted(args.freq), source="--freq-hz") if args.freq else rig.frequencies
     if axis is None:
         raise InputError("no frequencies to score at", source=args.rig, field="frequencies",
-                         fix="add a [frequencies] table or give --freq")
+                         fix="add a [frequencies] table or give --freq-hz")
     for flag, value in (("--snr-db", args.snr_db), ("--threshold-db", args.threshold_db)):
         if value is not None and not (np.isfinite(value) and value > 0):
             raise InputError(f"must be a positive number of dB, got {value}", source=flag)

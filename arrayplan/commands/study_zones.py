@@ -13,7 +13,7 @@ from ..progress import ProgressBar
 from ..rig import load_rig
 from ..safety import CAUTION_NOTE
 from ..zones import select_zones
-from ._args import add_measured_kernel_options, csv_names
+from ._args import accept_old_spelling, add_measured_kernel_options, csv_names
 
 
 def _numbers(text: str) -> list[float]:
@@ -42,7 +42,7 @@ def register(actions: argparse._SubParsersAction) -> None:
                    help="bright zone(s) by name (default: every zone with role = \"bright\")")
     p.add_argument("--dark", type=csv_names, metavar="ZONE[,ZONE]",
                    help="dark zone(s) by name (default: every zone with role = \"dark\")")
-    p.add_argument("--freq", type=float, action="append", metavar="HZ",
+    p.add_argument("--freq-hz", dest="freq", type=float, action="append", metavar="HZ",
                    help="study at this frequency (repeatable); default the rig file's [frequencies]")
     p.add_argument("--regularisation", type=_numbers, metavar="R[,R...]",
                    help="relative regularisation values to sweep (> 0; default 1e-4,1e-3,1e-2,0.1,1)")
@@ -56,24 +56,28 @@ def register(actions: argparse._SubParsersAction) -> None:
     target.add_argument("--target-source", type=_vector, metavar="X,Y,Z",
                         help="pressure-matching target: the field of a virtual point source here (m)")
     p.add_argument("--map-hz", type=float, metavar="HZ", help="frequency of the field maps (default mid-band)")
-    p.add_argument("--tolerance", type=float, metavar="SIGMA_M",
+    p.add_argument("--tolerance-m", dest="tolerance", type=float, metavar="SIGMA_M",
                    help="re-evaluate the contrast on rigs whose speakers and zone points move by Gaussian errors "
                         "of this standard deviation per coordinate (m)")
-    p.add_argument("--trials", type=int, default=20, help="perturbed rigs for --tolerance (default 20)")
-    p.add_argument("--seed", type=int, default=0, help="random seed for --tolerance (default 0)")
+    p.add_argument("--trials", type=int, default=20, help="perturbed rigs for --tolerance-m (default 20)")
+    p.add_argument("--seed", type=int, default=0, help="random seed for --tolerance-m (default 0)")
     p.add_argument("--filters", choices=("contrast", "matching"),
                    help="write drive FIR filters of this method's chosen design (zone-drive.wav) and check them")
-    p.add_argument("--rate", type=float, default=48000.0, help="filter sample rate, Hz (default 48000)")
+    p.add_argument("--rate-hz", dest="rate", type=float, default=48000.0, help="filter sample rate, Hz (default 48000)")
     p.add_argument("--taps", type=int, default=2048, help="filter length (default 2048)")
-    p.add_argument("--band", type=float, nargs=2, metavar=("LOW", "HIGH"),
+    p.add_argument("--band-hz", dest="band", type=float, nargs=2, metavar=("LOW_HZ", "HIGH_HZ"),
                    help="filter band in Hz (default the studied frequencies' range)")
     p.add_argument("--irset", metavar="DIR|FILE.sofa",
                    help="take the coupling to zones of microphones from this measured impulse-response set "
-                        "instead of the free field (every zone must then be made of microphones); --tolerance "
+                        "instead of the free field (every zone must then be made of microphones); --tolerance-m "
                         "and the field maps stay free field, the filter check uses the measured responses")
     add_measured_kernel_options(p, prefix="with --irset: ")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
-    p.set_defaults(run=run)
+    accept_old_spelling(p, "--freq-hz", "--freq")
+    accept_old_spelling(p, "--rate-hz", "--rate")
+    accept_old_spelling(p, "--band-hz", "--band")
+    accept_old_spelling(p, "--tolerance-m", "--tolerance")
+    p.set_defaults(run=run, parameter_flags={"sample_rate_hz": "--rate-hz", "band_hz": "--band-hz"})
 
 
 def run(args: argparse.Namespace) -> int:
@@ -89,10 +93,10 @@ def run(args: argparse.Namespace) -> int:
                          fix="add [[zones]] entries with name, role and members or a generated group")
     bright = select_zones(rig.zones, args.bright, "bright", args.rig if args.bright is None else "--bright")
     dark = select_zones(rig.zones, args.dark, "dark", args.rig if args.dark is None else "--dark")
-    axis = FrequencyAxis(sorted(args.freq), source="--freq") if args.freq else rig.frequencies
+    axis = FrequencyAxis(sorted(args.freq), source="--freq-hz") if args.freq else rig.frequencies
     if axis is None:
         raise InputError("no frequencies to study", source=args.rig, field="frequencies",
-                         fix="add a [frequencies] table or give --freq")
+                         fix="add a [frequencies] table or give --freq-hz")
     regs = args.regularisation if args.regularisation is not None else list(AUTO_REGULARISATION)
     if not all(np.isfinite(r) and r > 0 for r in regs):
         raise InputError(f"values must be positive, got {','.join(f'{r:g}' for r in regs)}",
@@ -109,7 +113,7 @@ def run(args: argparse.Namespace) -> int:
         ref = rig.speakers.positions[reference_speaker(rig.speakers.positions)]
         target = ZoneTarget.plane(pts_b.mean(axis=0) - ref, source="rig")
     if args.tolerance is not None and not (np.isfinite(args.tolerance) and args.tolerance > 0):
-        raise InputError(f"must be a positive position error in metres, got {args.tolerance}", source="--tolerance")
+        raise InputError(f"must be a positive position error in metres, got {args.tolerance}", source="--tolerance-m")
     if args.trials < 1:
         raise InputError(f"must be at least 1, got {args.trials}", source="--trials")
     map_hz = float(args.map_hz) if args.map_hz is not None else float(np.sqrt(axis.hz[0] * axis.hz[-1]))
@@ -118,10 +122,10 @@ def run(args: argparse.Namespace) -> int:
     band = tuple(args.band) if args.band else (float(axis.hz[0]), float(axis.hz[-1]))
     if args.filters:
         if not (np.isfinite(args.rate) and args.rate > 0):
-            raise InputError(f"must be a positive sample rate in Hz, got {args.rate}", source="--rate")
+            raise InputError(f"must be a positive sample rate in Hz, got {args.rate}", source="--rate-hz")
         if not (np.all(np.isfinite(band)) and 0 < band[0] < band[1] < args.rate / 2):
             raise InputError(f"band must satisfy 0 < low < high < rate/2, got {band[0]:g} {band[1]:g} Hz",
-                             source="--band")
+                             source="--band-hz")
         if args.taps < 16:
             raise InputError(f"must be at least 16, got {args.taps}", source="--taps")
 
@@ -138,7 +142,7 @@ def run(args: argparse.Namespace) -> int:
             irs = read_irset(args.irset)
             if abs(irs.sample_rate_hz - args.rate) > 1e-9:
                 raise InputError(f"the IR set's rate {irs.sample_rate_hz:g} Hz differs from the filter rate "
-                                 f"{args.rate:g} Hz", source="--rate", fix=f"give --rate {irs.sample_rate_hz:g}")
+                                 f"{args.rate:g} Hz", source="--rate-hz", fix=f"give --rate-hz {irs.sample_rate_hz:g}")
             rows = [i for z in (*bright, *dark) for i in z.mic_indices]
             measured_ir = irs.data[irs.zero_lag_samples:, rows, :]
     elif args.window_ms is not None or args.latency_samples or args.smooth_octaves is not None:

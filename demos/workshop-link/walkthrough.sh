@@ -21,10 +21,10 @@ echo "== 2. plan the channels (tables, weights, figures)"
 "$ap" plan "$rig" --out "$out/plan"
 
 echo "== 3. FIR filters for the strong channels, checked on the simulated rig"
-"$ap" filters "$rig" --rate 48000 --band 500 8000 --out "$out/filters"
+"$ap" filters "$rig" --rate-hz 48000 --band-hz 500 8000 --out "$out/filters"
 
 echo "== 4. measure the rig: SIMULATED here (nothing plays); on real hardware drop --simulate"
-"$ap" measure "$rig" --simulate --yes --out "$out/meas" --rate 48000 --duration-s 1 --f1 200 \
+"$ap" measure "$rig" --simulate --yes --out "$out/meas" --rate-hz 48000 --duration-s 1 --f1-hz 200 \
     --sim-latency-samples 0 --latency-samples 0 --sim-noise-dbfs -90
 
 echo "== 5. verify the plan against the measured impulse responses"
