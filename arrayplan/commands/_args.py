@@ -13,7 +13,7 @@ import math
 import os
 import re
 import sys
-from typing import Any, Callable, Sequence
+from typing import Any, Callable
 
 from ..errors import InputError
 from ..limits import MAX_CHANNEL_NUMBER
@@ -23,7 +23,7 @@ __all__ = ["csv_names", "octaves", "finite_float", "positive_float", "nonnegativ
            "add_measured_kernel_options", "measured_kernel_from_args", "add_memory_limit",
            "text_with_flags", "error_with_flags", "say", "command_parser", "parameter_flags",
            "DefaultsShown", "accept_old_spelling", "renamed_options", "positive_floats", "FlatList",
-           "add_sweep_options", "add_exposure_options"]
+           "add_sweep_options", "add_exposure_options", "add_frequencies_option"]
 
 #: Highest count any option accepts before a command's own size estimate (repeats, bursts, channels...).
 MAX_COUNT = 1_000_000
@@ -246,6 +246,17 @@ def add_memory_limit(p: argparse.ArgumentParser) -> None:
 
     p.add_argument("--max-memory-gib", type=positive_float, default=None, metavar="GIB",
                    help=f"refuse work whose estimated memory exceeds this (GiB, default {DEFAULT_MAX_MEMORY_GIB:g})")
+
+
+def add_frequencies_option(p: argparse.ArgumentParser, what: str, default: str) -> None:
+    """``--freq-hz``, repeatable: the frequencies a command works at (``args.freq``, a list or None).
+
+    `what` says what happens there ("plan", "score"); `default` where the
+    frequencies come from without it.  ``--freq`` (earlier releases) is read too.
+    """
+    p.add_argument("--freq-hz", dest="freq", type=positive_float, action="append", metavar="HZ",
+                   help=f"{what} at this frequency, Hz (repeatable; default: {default})")
+    accept_old_spelling(p, "--freq-hz", "--freq")
 
 
 def add_sweep_options(p: argparse.ArgumentParser, *, f1_hz: float, duration_s: float, what: str = "sweep",

@@ -15,7 +15,7 @@ from ..planning import plan_rig
 from ..plan_files import read_plan
 from ..progress import ProgressBar
 from ..rig import load_rig
-from ._args import accept_old_spelling
+from ._args import add_frequencies_option
 from ..studies._tables import csv_text as _csv
 
 
@@ -27,15 +27,13 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "Writes a table, per-frequency values and an overlaid figure to --out.")
     p.add_argument("layouts", nargs="+", metavar="RIG_OR_PLAN", help="rig files (TOML) or plan folders")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
-    p.add_argument("--freq-hz", dest="freq", type=float, action="append", metavar="HZ",
-                   help="compare at this frequency (repeatable); default the first layout's frequencies")
+    add_frequencies_option(p, "compare", "the first layout's frequencies")
     p.add_argument("--capacity-snr-db", type=float, metavar="DB",
                    help="also give the capacity at this SNR (one speaker at full drive, 1 m, free field; power "
                         "shared among the speakers)")
     p.add_argument("--threshold-db", type=float, help="strong-channel threshold for rigs planned here, dB")
     p.add_argument("--snr-db", type=float, help="SNR of the strongest channel for rigs planned here, dB")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
-    accept_old_spelling(p, "--freq-hz", "--freq")
     p.set_defaults(run=run)
 
 

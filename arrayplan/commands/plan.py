@@ -13,8 +13,8 @@ from ..errors import InputError
 from ..irset import IRSet, read_irset
 from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
-from ._args import (accept_old_spelling, add_measured_kernel_options, add_memory_limit, count, float_in,
-                    measured_kernel_from_args, positive_float)
+from ._args import (accept_old_spelling, add_frequencies_option, add_measured_kernel_options, add_memory_limit,
+                    count, float_in, measured_kernel_from_args, positive_float)
 from ..frequency import FrequencyAxis
 from ..medium import speed_of_sound_air
 from ..planning import plan_rig
@@ -31,8 +31,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--speakers", help="CSV of speaker positions (header x,y,z[,name]) in metres")
     p.add_argument("--mics", help="CSV of microphone positions (header x,y,z[,name]) in metres")
-    p.add_argument("--freq-hz", dest="freq", type=positive_float, action="append", metavar="HZ",
-                   help="plan at this frequency (repeatable); overrides the rig file's [frequencies]")
+    add_frequencies_option(p, "plan", "the rig file's [frequencies]")
     p.add_argument("--speed-of-sound-m-s", dest="speed_of_sound", type=float_in(1.0, 10000.0, "m/s"),
                    metavar="M_PER_S",
                    help="speed of sound (quick form; default from 20 °C air)")
@@ -51,7 +50,6 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="plan in the free field even when the rig file has a [room] table")
     p.add_argument("--no-figures", action="store_true", help="write tables and weights only")
     add_memory_limit(p)
-    accept_old_spelling(p, "--freq-hz", "--freq")
     accept_old_spelling(p, "--speed-of-sound-m-s", "--speed-of-sound")
     p.set_defaults(run=run)
 

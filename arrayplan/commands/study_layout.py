@@ -11,7 +11,7 @@ from ..errors import InputError
 from ..frequency import FrequencyAxis
 from ..progress import ProgressBar
 from ..rig import ElementSet, load_rig, read_positions_csv
-from ._args import accept_old_spelling
+from ._args import add_frequencies_option
 
 
 def register(actions: argparse._SubParsersAction) -> None:
@@ -34,10 +34,8 @@ def register(actions: argparse._SubParsersAction) -> None:
     p.add_argument("--snr-db", type=float, help="SNR rho of one average candidate at full drive, dB "
                                                 "(default the rig's [planning] snr_db)")
     p.add_argument("--threshold-db", type=float, help="strong-channel threshold, dB (default the rig's)")
-    p.add_argument("--freq-hz", dest="freq", type=float, action="append", metavar="HZ",
-                   help="score at this frequency (repeatable); default the rig file's [frequencies]")
+    add_frequencies_option(p, "score", "the rig file's [frequencies]")
     p.add_argument("--no-figures", action="store_true", help="write tables and the rig file only")
-    accept_old_spelling(p, "--freq-hz", "--freq")
     p.set_defaults(run=run)
 
 

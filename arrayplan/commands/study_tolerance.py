@@ -7,7 +7,7 @@ import argparse
 import matplotlib
 import numpy as np
 
-from ._args import accept_old_spelling, count, nonnegative_count, positive_float
+from ._args import add_frequencies_option, count, nonnegative_count
 from ..errors import InputError
 from ..progress import ProgressBar
 from ..studies._common import load_study_source
@@ -42,10 +42,8 @@ def register(actions: argparse._SubParsersAction) -> None:
                    help="a channel keeps its isolation when its worst crosstalk is at least this far below it "
                         "(default 20, as in verify)")
     p.add_argument("--rig", metavar="RIG", help="the rig file a plan folder was made for (positions, directivities)")
-    p.add_argument("--freq-hz", dest="freq", type=positive_float, action="append", metavar="HZ",
-                   help="with a rig file: plan at this frequency (repeatable; default the rig's [frequencies])")
+    add_frequencies_option(p, "with a rig file: plan", "the rig's [frequencies]")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
-    accept_old_spelling(p, "--freq-hz", "--freq")
     p.set_defaults(run=run)
 
 

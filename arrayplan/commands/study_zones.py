@@ -13,7 +13,7 @@ from ..progress import ProgressBar
 from ..rig import load_rig
 from ..safety import CAUTION_NOTE
 from ..zones import select_zones
-from ._args import accept_old_spelling, add_measured_kernel_options, csv_names
+from ._args import accept_old_spelling, add_frequencies_option, add_measured_kernel_options, csv_names
 
 
 def _numbers(text: str) -> list[float]:
@@ -42,8 +42,7 @@ def register(actions: argparse._SubParsersAction) -> None:
                    help="bright zone(s) by name (default: every zone with role = \"bright\")")
     p.add_argument("--dark", type=csv_names, metavar="ZONE[,ZONE]",
                    help="dark zone(s) by name (default: every zone with role = \"dark\")")
-    p.add_argument("--freq-hz", dest="freq", type=float, action="append", metavar="HZ",
-                   help="study at this frequency (repeatable); default the rig file's [frequencies]")
+    add_frequencies_option(p, "study", "the rig file's [frequencies]")
     p.add_argument("--regularisation", type=_numbers, metavar="R[,R...]",
                    help="relative regularisation values to sweep (> 0; default 1e-4,1e-3,1e-2,0.1,1)")
     p.add_argument("--max-effort-db", type=float, default=10.0, metavar="DB",
@@ -73,7 +72,6 @@ def register(actions: argparse._SubParsersAction) -> None:
                         "and the field maps stay free field, the filter check uses the measured responses")
     add_measured_kernel_options(p, prefix="with --irset: ")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
-    accept_old_spelling(p, "--freq-hz", "--freq")
     accept_old_spelling(p, "--rate-hz", "--rate")
     accept_old_spelling(p, "--band-hz", "--band")
     accept_old_spelling(p, "--tolerance-m", "--tolerance")
