@@ -144,11 +144,13 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     p.add_argument("--latency-samples", type=nonnegative_count(10_000_000), metavar="N",
                    help="latency to remove when there is neither a reference loop nor a calibrated latency")
     from ..hardware.measure import MeasurementSettings
+    from ..signals.levels import DEFAULT_PEAK_CAP_DBFS
 
     settings = MeasurementSettings()            # the library's defaults, shown in --help
     s = add_sweep_options(p, f1_hz=settings.f1_hz, duration_s=settings.sweep_s)
     s.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB",
-                   help="sweep true peak level, 4x oversampled (default: the peak cap, -12 dBFS)")
+                   help="sweep true peak level, 4x oversampled (default: the peak cap, "
+                        f"{DEFAULT_PEAK_CAP_DBFS:g} dBFS)")
     s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
     s.add_argument("--repeats", type=count(), default=settings.repeats, metavar="N",
                    help="sweeps per take, averaged")
