@@ -222,6 +222,20 @@ def accept_old_spelling(parser: argparse.ArgumentParser, new: str, *old: str) ->
 
     The old spelling sets the same value (a required option given by its old
     name counts as given) and prints one note on stderr naming `new`.
+
+    Parameters
+    ----------
+    parser : argparse.ArgumentParser
+        The (sub-)command's parser; `new` may sit in one of its argument groups.
+    new : str
+        The option as it is spelt now, e.g. ``"--rate-hz"``.
+    *old : str
+        Its spellings of earlier releases, e.g. ``"--rate"``.
+
+    Returns
+    -------
+    argparse.Action
+        The action of `new`, now also reached by `old`.
     """
     action = parser._option_string_actions[new]     # shared by the parser and its argument groups
     for name in old:
@@ -251,8 +265,16 @@ def add_memory_limit(p: argparse.ArgumentParser) -> None:
 def add_frequencies_option(p: argparse.ArgumentParser, what: str, default: str) -> None:
     """``--freq-hz``, repeatable: the frequencies a command works at (``args.freq``, a list or None).
 
-    `what` says what happens there ("plan", "score"); `default` where the
-    frequencies come from without it.  ``--freq`` (earlier releases) is read too.
+    ``--freq`` (earlier releases) is read too.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's parser.
+    what : str
+        What happens at the frequency, for the help ("plan", "score").
+    default : str
+        Where the frequencies come from without the option, for the help.
     """
     p.add_argument("--freq-hz", dest="freq", type=positive_float, action="append", metavar="HZ",
                    help=f"{what} at this frequency, Hz (repeatable; default: {default})")
@@ -261,8 +283,25 @@ def add_frequencies_option(p: argparse.ArgumentParser, what: str, default: str) 
 
 def add_sweep_options(p: argparse.ArgumentParser, *, f1_hz: float, duration_s: float, what: str = "sweep",
                       title: str | None = None) -> argparse._ArgumentGroup:
-    """The sweep's band and duration: ``--f1-hz``, ``--f2-hz``, ``--duration-s`` (defaults from the caller's
-    library settings); `what` names the signal in the help ("sweep", "noise")."""
+    """The band and duration of a sweep or noise: ``--f1-hz``, ``--f2-hz``, ``--duration-s``.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's parser.
+    f1_hz, duration_s : float
+        Defaults, Hz and s: pass the library's settings (``SweepSettings()``,
+        ``MeasurementSettings()``) so that ``--help`` shows what the library uses.
+    what : str
+        The signal, for the help texts ("sweep", "noise").
+    title : str, optional
+        Title of the argument group (default: `what`).
+
+    Returns
+    -------
+    argparse._ArgumentGroup
+        The group, for the command's own options of the same kind.
+    """
     g = p.add_argument_group(title or what)
     low, high = ("start", "end") if what == "sweep" else ("lowest", "highest")
     g.add_argument("--f1-hz", type=positive_float, default=f1_hz, metavar="HZ", help=f"{low} frequency, Hz")
@@ -278,6 +317,20 @@ def add_exposure_options(p: argparse.ArgumentParser, title: str, amp_help: str) 
 
     The rating's voltage and the listeners' distance default to the library's
     (:data:`arrayplan.safety.RATING_VRMS`, :data:`arrayplan.safety.DEFAULT_LISTENER_DISTANCE_M`).
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's parser.
+    title : str
+        Title of the argument group.
+    amp_help : str
+        Help of ``--amp-vrms`` (where its default comes from differs by command).
+
+    Returns
+    -------
+    argparse._ArgumentGroup
+        The group, for the command's own options of the same kind.
     """
     from ..safety import DEFAULT_LISTENER_DISTANCE_M, RATING_VRMS
 
