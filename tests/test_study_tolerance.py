@@ -185,7 +185,33 @@ def test_cli_writes_tables_sidecar_and_figures(tmp_path, capsys):
     assert len(rows) == 1 + len(HZ) * 5
 
 
+@pytest.mark.parametrize("threshold", [None, 3.0, 25.0])
+def test_cli_threshold_decides_the_channels_in_use(tmp_path, capsys, threshold):
+    # channels in use: singular values within the threshold of the strongest, from numpy's SVD of
+    # G = exp(-jkr) / (4 pi r) written here (D. A. B. Miller, Applied Optics 39(11), 2000: the
+    # channels are the SVD of G); without the option the plan's own threshold applies
+    rig = _scattered()
+    plan = tmp_path / "plan"
+    write_plan(plan_rig(rig, FrequencyAxis(HZ), threshold_db=6.0), plan, figures=False)
+    out = tmp_path / "tol"
+    extra = [] if threshold is None else ["--threshold-db", str(threshold)]
+    assert main(["study", "tolerance", str(plan), "--out", str(out), "--gain-db", "0.5", "--trials", "4",
+                 "--no-figures", *extra]) == 0
+    spk, mic = rig.speakers.positions, rig.mics.positions
+    r = np.linalg.norm(mic[:, None] - spk[None], axis=-1)
+    hz = np.array(HZ)
+    g = np.exp(-2j * np.pi * hz[:, None, None] / rig.medium.speed_of_sound * r) / (4 * np.pi * r)
+    s = np.linalg.svd(g, compute_uv=False)
+    strong = 20 * np.log10(s / s[:, :1]) >= -(6.0 if threshold is None else threshold)
+    rows = [line.split(",") for line in (out / "tolerance.csv").read_text().splitlines()[1:]]
+    in_use = np.array([int(row[2]) for row in rows]).reshape(len(HZ), -1).astype(bool)
+    np.testing.assert_array_equal(in_use, strong)
+    side = json.loads((out / "tolerance.json").read_text())
+    assert side["settings"]["threshold_db"] == (6.0 if threshold is None else threshold)
+
+
 @pytest.mark.parametrize("args, flag", [(["--trials", "-5", "--position-mm", "1"], "--trials"),
+                                        (["--threshold-db", "-3", "--gain-db", "1"], "--threshold-db"),
                                         (["--position-mm", "-1"], "--position-mm"),
                                         (["--gain-db", "nan"], "--gain-db"),
                                         (["--phase-deg", "x"], "--phase-deg")])
