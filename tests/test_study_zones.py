@@ -164,6 +164,22 @@ def test_bad_input_is_one_line_exit_2_and_nothing_written(tmp_path, capsys, extr
     assert not out.exists()
 
 
+def test_filters_too_short_for_the_delay_spread_to_the_zone_points_are_refused(tmp_path, capsys):
+    # a FIR drive filter must hold the spread of arrival times from the speakers to the points it serves,
+    # (max r - min r) / c in samples, or the far arrivals wrap around (common practice, no source);
+    # the spread is computed here from the rig's positions with numpy
+    rig = load_rig(DEMO)
+    pts = np.vstack([z.positions for z in rig.zones if z.name in ("seat-A", "seat-B")])
+    r = np.linalg.norm(pts[:, None] - rig.speakers.positions[None], axis=-1)
+    spread = (r.max() - r.min()) / rig.medium.speed_of_sound * 48000.0
+    taps = int(np.floor(spread))                     # shorter than the spread itself
+    out = tmp_path / "never"
+    got = _cli(capsys, DEMO, "--bright", "seat-A", "--dark", "seat-B", "--out", out, "--freq", "500",
+               "--filters", "contrast", "--rate", "48000", "--taps", max(taps, 16), "--band", "300", "900")
+    assert got.returncode == 2 and "--taps" in got.stderr and "delay spread" in got.stderr
+    assert len(got.stderr.strip().splitlines()) == 1 and not out.exists()
+
+
 def test_measured_responses_give_the_free_field_design_when_they_are_the_free_field(tmp_path, capsys):
     from arrayplan.irset import write_irset
     from arrayplan.simulate import free_field_irset
