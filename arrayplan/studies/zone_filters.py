@@ -33,8 +33,9 @@ from ..filters import band_window, validate_request
 from ..filters.design import TUKEY_ALPHA
 from ..frequency import FrequencyAxis
 from ..rig import ElementSet, Rig
-from ..simulate import free_field_impulse_responses
+from ..simulate import kernel_impulse_responses, required_samples
 from ..zones import Zone
+from .zones import points_model_kernel
 
 __all__ = ["ZoneFilters", "zone_filter_taps", "check_zone_filters", "zone_points_rig"]
 
@@ -134,8 +135,8 @@ def check_zone_filters(rig: Rig, bright: list[Zone], dark: list[Zone], taps: np.
         frequencies, shape (n_freq,).
     impulse_responses : ndarray, shape (n_samples, n_points, n_spk), optional
         Responses to the bright then the dark points, from zero lag, at
-        `sample_rate_hz` (for example measured ones); default the free-field
-        responses simulated here.
+        `sample_rate_hz` (for example measured ones); default the responses
+        of the rig's room (or free field) simulated here.
 
     Returns
     -------
@@ -150,9 +151,9 @@ def check_zone_filters(rig: Rig, bright: list[Zone], dark: list[Zone], taps: np.
                              source="impulse_responses")
     else:
         pts = zone_points_rig(rig, list(bright) + list(dark))
-        r = np.linalg.norm(pts.mics.positions[:, None] - rig.speakers.positions[None], axis=-1)
-        n_ir = int(max(1024, 2 ** int(np.ceil(np.log2(r.max() / rig.medium.speed_of_sound * fs + 256)))))
-        ir = free_field_impulse_responses(pts, fs, n_ir)                  # (n_ir, n_points, n_spk)
+        kern = points_model_kernel(rig, pts.mics)
+        n_ir = int(max(1024, 2 ** int(np.ceil(np.log2(required_samples(kern, fs) + 192)))))
+        ir = kernel_impulse_responses(kern, fs, n_ir)                     # (n_ir, n_points, n_spk)
     y = fftconvolve(ir, taps[:, None, :], axes=0).sum(axis=2)             # (n_out, n_points)
     n_fft = 2 ** int(np.ceil(np.log2(y.shape[0])))
     spec = np.fft.rfft(y, n=n_fft, axis=0)
