@@ -258,3 +258,31 @@ def test_trial_chunks_can_run_in_worker_processes():
     with ProcessPoolExecutor(max_workers=1) as pool:
         spread = tolerance_study(plan, map_chunks=pool.map, **kw)
     assert np.array_equal(here.trials.gain_db, spread.trials.gain_db)
+
+
+def test_a_room_plan_perturbs_the_room():
+    # with no error the trial's coupling is the room's: the direct path and the six first-order images
+    # across the walls of the box [0, L], each exp(-jkr) / (4 pi r) times beta = sqrt(1 - alpha), written
+    # here with numpy (J. B. Allen and D. A. Berkley, JASA 65(4), 1979); and the planned weights see it
+    from dataclasses import replace
+    from arrayplan.room import Room
+
+    spk = np.array([[1.0, 0.8, 1.1], [1.6, 0.8, 1.2], [2.2, 0.9, 1.0]])
+    mic = np.array([[1.2, 2.5, 1.3], [1.9, 2.6, 1.2], [2.4, 2.4, 1.4], [1.5, 2.2, 1.0]])
+    rig = replace(Rig.from_positions(spk, mic, speed_of_sound=343.0),
+                  room=Room.uniform((3.5, 3.2, 2.5), 0.4, reflection_order=1))
+    plan = plan_rig(rig, FrequencyAxis(HZ))
+    assert plan.kernel_name == "room"
+    problem = tolerance_problem(plan, gain_sd_db=0.0)
+    assert problem.model == "direct"
+    size, beta, hz = np.array([3.5, 3.2, 2.5]), np.sqrt(1 - 0.4), np.array(HZ)
+    g = 0
+    for axis_i in (None, 0, 1, 2):
+        for wall in ((None,) if axis_i is None else (0.0, size[axis_i])):
+            img = spk.copy()
+            if axis_i is not None:
+                img[:, axis_i] = 2 * wall - spk[:, axis_i]
+            r = np.linalg.norm(mic[:, None] - img[None], axis=-1)
+            g = g + (1.0 if axis_i is None else beta) * np.exp(-2j * np.pi * hz[:, None, None] / 343.0 * r) / (
+                4 * np.pi * r)
+    np.testing.assert_allclose(perturbed_couplings(problem, 0), g, rtol=1e-9)
