@@ -268,3 +268,28 @@ def test_chosen_rig_keeps_the_room_and_the_zones(tmp_path, capsys, side, count):
         assert all(set(z.point_names) <= set(chosen.mics.names) & {"B1", "B2", "B3"} for z in kept)
     assert main(["plan", str(out / "chosen-rig.toml"), "--out", str(tmp_path / "plan"), "--no-figures"]) == 0
     assert "kernel: room" in capsys.readouterr().out
+
+
+def test_a_rig_in_a_room_is_scored_in_the_room():
+    # the capacity of the chosen set with G from the direct path and the six first-order images across
+    # the walls of the box [0, L], each exp(-jkr) / (4 pi r) times beta = sqrt(1 - alpha), written here
+    # with numpy (J. B. Allen and D. A. Berkley, JASA 65(4), 1979); log-det as in _capacity (Telatar 1999)
+    from dataclasses import replace
+    from arrayplan.room import Room
+
+    cand = np.array([[0.6, 0.5, 1.0], [1.2, 0.4, 1.3], [1.9, 0.6, 0.9], [2.5, 0.5, 1.1], [1.5, 0.9, 1.6]])
+    mic = np.array([[1.0, 2.4, 1.2], [1.6, 2.5, 1.1], [2.2, 2.3, 1.3]])
+    size, alpha = np.array([3.2, 3.0, 2.4]), 0.3
+    rig = replace(Rig.from_positions(cand, mic, speed_of_sound=C), room=Room.uniform(tuple(size), alpha, 1))
+    hz = np.array([350.0, 800.0])
+    choice = choose_layout(layout_problem(rig, "speakers", 2, FrequencyAxis(hz), reference_snr_db=30.0))
+    g = _green(cand, mic, hz)
+    for axis_i in range(3):
+        for wall in (0.0, size[axis_i]):
+            img = cand.copy()
+            img[:, axis_i] = 2 * wall - cand[:, axis_i]
+            g = g + np.sqrt(1 - alpha) * _green(img, mic, hz)
+    assert choice.value == pytest.approx(_capacity(g, choice.chosen, 30.0, 2), rel=1e-9)
+    best = max(_capacity(g, s, 30.0, 2) for s in itertools.combinations(range(5), 2))
+    # Nemhauser, Wolsey and Fisher 1978: greedy within (1 - 1/e); Joshi and Boyd 2009: the bound holds
+    assert (1 - 1 / np.e) * best <= choice.value <= best * (1 + 1e-12) <= choice.bound * (1 + 1e-12)
