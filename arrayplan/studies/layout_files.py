@@ -21,6 +21,7 @@ from ..errors import InputError
 from ..fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..rig import ElementSet, Rig, read_rig_document
 from ..room import IMAGE_LIMIT, SURFACES, Room
+from ..starter import _value  # the TOML value writer of the starter rigs
 from .layout import LayoutChoice, chosen_rig
 from ._common import REFERENCE_SNR_MEANING
 from ._tables import csv_text as _csv
@@ -76,21 +77,6 @@ def rig_toml_text(rig: Rig, comment: str) -> str:
     lines += _points("speakers", rig.speakers) + _points("microphones", rig.mics)
     lines += _room(rig.room) + _zones(rig)
     return "\n".join(lines) + "\n"
-
-
-def _value(v) -> str:
-    """A TOML value for a number, string, bool, list or table read from a rig file."""
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, int):
-        return str(v)
-    if isinstance(v, float):
-        return _num(v)
-    if isinstance(v, str):
-        return json.dumps(v)
-    if isinstance(v, dict):
-        return "{ " + ", ".join(f"{k} = {_value(x)}" for k, x in v.items()) + " }"
-    return "[" + ", ".join(_value(x) for x in v) + "]"
 
 
 def _room(room: Room | None) -> list[str]:
