@@ -29,8 +29,8 @@ def register(actions: argparse._SubParsersAction) -> None:
                    help="CSV of candidate positions (header x,y,z[,name]) in metres; default: the rig's own "
                         "elements on --side are the candidates")
     p.add_argument("--criterion", choices=("capacity", "strong", "usable"), default="capacity",
-                   help="capacity: sum over frequencies of log2 det(I + rho G^H G / n); strong: channels within "
-                        "the threshold of the strongest; usable: channels whose own SNR reaches 0 dB")
+                   help="capacity: sum over frequencies of log2 det(I + rho (4 pi)^2 G^H G / n); strong: channels "
+                        "within the threshold of the strongest; usable: channels whose own SNR reaches 0 dB")
     p.add_argument("--reference-snr-db", type=float, default=DEFAULT_REFERENCE_SNR_DB, metavar="DB",
                    help="reference SNR rho, dB: at a microphone 1 m from one speaker in free field with all the "
                         "drive power on it; the speakers share the power (default %(default)g; the same "

@@ -13,8 +13,8 @@ from ..plan_files import PlanWeights, read_plan, read_weights
 from ..planning import Plan, plan_rig
 from ..rig import Rig, load_rig
 
-__all__ = ["is_measured_plan", "plan_channels", "load_study_source", "DEFAULT_REFERENCE_SNR_DB", "REFERENCE_SNR_MEANING",
-           "STRONGEST_SNR_MEANING", "reference_snr_scale"]
+__all__ = ["is_measured_plan", "plan_channels", "load_study_source", "DEFAULT_REFERENCE_SNR_DB",
+           "REFERENCE_SNR_MEANING", "STRONGEST_SNR_MEANING", "reference_snr_scale"]
 
 #: Reference SNR used by the layout study when none is given, dB.
 DEFAULT_REFERENCE_SNR_DB = 40.0

@@ -6,9 +6,10 @@ band window of :func:`arrayplan.filters.band_window` and D = taps // 2
 the bulk delay; the taps are its inverse real FFT with the channel filters'
 Tukey time window (:data:`arrayplan.filters.design.TUKEY_ALPHA`).  The request
 (rate, band, taps, and taps enough for the delay spread from the speakers to
-the zone points) is checked by :func:`arrayplan.filters.validate_request`.  The check convolves the taps with the free-field impulse
-responses from the speakers to every zone point (in the time domain) and
-measures the contrast the filters realise in each FFT bin of the band and
+the zone points) is checked by :func:`arrayplan.filters.validate_request`.
+The check convolves the taps with the simulated impulse responses (the
+rig's room when it has one, else the free field) from the speakers to every
+zone point (in the time domain) and measures the contrast the filters realise in each FFT bin of the band and
 over the whole band (or, when given, with measured responses instead).
 
 Notes
