@@ -5,6 +5,7 @@ from __future__ import annotations
 import datetime as _dt
 import json
 import os
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
@@ -19,9 +20,13 @@ from ..rig import Rig
 from ..safety import CAUTION_TEXT
 from .discover import (FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification, ProjectResults,
                        find_results)
+from ..plots.channels import centre_index
+from ..plots.effort import drive_effort_db, loudest_speaker_db
 from .figures import (ReportFigure, filter_figures, irset_figures, plan_figures, png_bytes, report_style,
-                      study_figures, verification_figures)
+                      rig_figures, study_figures, verification_figures)
 from .html import esc, figure_html, page, table
+from .verdicts import (Verdict, filters_verdict, hz_text, irset_verdict, plan_verdict, study_verdict,
+                       verification_verdict)
 
 __all__ = ["build_report", "write_report"]
 
@@ -164,11 +169,81 @@ def _plan_numbers(found: FoundPlan) -> tuple[str, list[list[object]]]:
     return note, rows
 
 
+def _rig_anchor(sha256: str) -> str:
+    return "rig-" + sha256[:16]
+
+
+@dataclass
+class RigGroup:
+    """One rig (by geometry hash) and the plans made for it, in path order."""
+
+    sha256: str
+    plans: list[FoundPlan]
+
+    @property
+    def shown(self) -> FoundPlan:
+        """The plan whose rig is shown: the first one that found its rig file (with directivity), else the first."""
+        return next((fp for fp in self.plans if fp.rig_file is not None), self.plans[0])
+
+
+def rig_groups(plans: list[FoundPlan]) -> list[RigGroup]:
+    """The plans grouped by their rig's geometry hash, in the order of each rig's first plan."""
+    groups: dict[str, RigGroup] = {}
+    for fp in plans:
+        key = str(fp.sidecar.get("rig", {}).get("sha256") or fp.plan.rig.sha256)     # the hash the plan recorded
+        groups.setdefault(key, RigGroup(key, [])).plans.append(fp)
+    return list(groups.values())
+
+
+def _step_anchor(kind: str, found: object, root: Path) -> str:
+    """The id of a result's section (a rig by its hash, everything else by its folder)."""
+    return _rig_anchor(found.sha256) if isinstance(found, RigGroup) else _anchor(kind, found.folder, root)
+
+
+def _step_label(kind: str, found: object, root: Path) -> str:
+    return found.shown.plan.rig.name if isinstance(found, RigGroup) else _rel(found.folder, root)
+
+
+def _rig_section(group: RigGroup, root: Path) -> str:
+    found = group.shown
+    rig = found.plan.rig
+    plans = ", ".join(f'<a href="#{_anchor("plan", fp.folder, root)}">{esc(_rel(fp.folder, root))}</a>'
+                      for fp in group.plans)
+    parts = [f'<section id="{_rig_anchor(group.sha256)}"><h2>Rig: {esc(rig.name)}</h2>',
+             f"<p>Geometry hash <code>{esc(group.sha256[:16])}...</code>; plans made for this rig: {plans}. "
+             f"Geometry shown from {esc(found.rig_note)}.</p>"]
+    header, rows = _element_rows(rig, with_directivity=found.rig_file is not None)
+    parts.append("<h3>Elements</h3>" + table(header, rows, text_columns=(0, 1, 6)))
+    parts.append(_figures_html(rig_figures(found), f"rig {rig.name}"))
+    parts.append("</section>")
+    return "\n".join(parts)
+
+
+def _effort_table(plan: Plan, max_rows: int = 12) -> str:
+    """Level, drive effort and loudest speaker of each channel at the centre frequency (HTML)."""
+    ch = plan.channels
+    f = centre_index(ch.axis.hz)
+    effort = drive_effort_db(ch.singular_values[f:f + 1])[0]
+    loudest = loudest_speaker_db(ch.drive[f])
+    order = np.argsort(effort, kind="stable")[:max_rows]
+    rows = [[int(j) + 1, _fmt(-effort[j], ".1f"), _fmt(effort[j], ".1f"), _fmt(loudest[j], ".1f")] for j in order]
+    more = ch.n_channels - len(order)
+    note = (f"Drive effort at the centre, {ch.axis.hz[f]:.5g} Hz: the extra drive a channel needs for the same output as "
+            "the strongest, 20 log10(s_max / s_j), and the share of its drive on its loudest speaker, "
+            "20 log10 max |v_sj| (unit-norm drive weights; the full weights are in weights.npz and weights.csv)."
+            + (f" {more} weaker channel(s) not shown." if more > 0 else ""))
+    return ("<h3>Drive effort per channel</h3>"
+            + table(["channel", "level re strongest (dB)", "extra drive for equal output (dB)",
+                     "loudest speaker's share (dB)"], rows, text_columns=())
+            + f'<p class="note">{esc(note)}</p>')
+
+
 def _plan_section(found: FoundPlan, root: Path) -> str:
     plan, side = found.plan, found.sidecar
     rig = plan.rig
     hz = plan.channels.axis.hz
-    parts = [f'<section id="{_anchor("plan", found.folder, root)}"><h2>Plan: {esc(_rel(found.folder, root))}</h2>']
+    parts = [f'<section id="{_anchor("plan", found.folder, root)}"><h2>Plan: {esc(_rel(found.folder, root))}</h2>',
+             _verdict_html(plan_verdict(found))]
     rig_info = side.get("rig", {})
     parts.append(table(["item", "value"], [
         ["rig", rig_info.get("name", rig.name)],
@@ -186,13 +261,14 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
     if plan.estimate.warning:
         parts.append(f'<p class="note">Paraxial estimate: {esc(plan.estimate.warning)}.</p>')
     parts.extend(_degeneracy_notes(plan))
-    header, rows = _element_rows(rig, with_directivity=found.rig_file is not None)
-    parts.append("<h3>Elements</h3>" + table(header, rows, text_columns=(0, 1, 6)))
+    key = str(side.get("rig", {}).get("sha256") or rig.sha256)
+    parts.append(f'<p>Elements and geometry: <a href="#{_rig_anchor(key)}">rig {esc(rig.name)}</a>.</p>')
     note, rows = _plan_numbers(found)
     parts.append("<h3>Channels per frequency</h3>")
     parts.append(table(["frequency (Hz)", "strong", "usable", "effective", "paraxial estimate",
                         "strongest s² (% of sum rule)"], rows, text_columns=()))
     parts.append(f'<p class="note">{esc(note)}</p>')
+    parts.append(_effort_table(plan))
     parts.append(_figures_html(plan_figures(found), f"plan {_rel(found.folder, root)}"))
     parts.append("</section>")
     return "\n".join(parts)
@@ -201,7 +277,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
 def _filters_section(found: FoundFilters, root: Path) -> str:
     d = found.sidecar
     parts = [f'<section id="{_anchor("filters", found.folder, root)}"><h2>Filters: '
-             f'{esc(_rel(found.folder, root))}</h2>']
+             f'{esc(_rel(found.folder, root))}</h2>', _verdict_html(filters_verdict(found))]
     band = d.get("band_hz", [np.nan, np.nan])
     parts.append(table(["item", "value"], [
         ["sample rate", f"{d.get('sample_rate_hz', float('nan')):g} Hz"],
@@ -225,7 +301,7 @@ def _filters_section(found: FoundFilters, root: Path) -> str:
                      _fmt(worst, ".1f") if worst is not None else "-", verdict,
                      "skipped: " + skipped[j].rsplit(", ", 1)[-1] if j in skipped else ""])
     parts.append("<h3>Channels</h3>" + table(
-        ["channel", "level at band centre (dB)", "filters written", "worst planned crosstalk (dB)", "check", "note"],
+        ["channel", f"level at {_fmt(d.get('centre_hz'), '.5g')} Hz (dB)", "filters written", "worst planned crosstalk (dB)", "check", "note"],
         rows, text_columns=(5,), cell_classes=classes))
     if check:
         parts.append(f'<p class="note">Check limit {esc(check.get("limit_db"))} dB: the kept channels\' filters '
@@ -254,7 +330,7 @@ def _sweep_text(session: dict) -> str:
 def _irset_section(found: FoundIRSet, root: Path) -> str:
     irs = found.irs
     parts = [f'<section id="{_anchor("irset", found.folder, root)}"><h2>Impulse responses: '
-             f'{esc(_rel(found.folder, root))}</h2>']
+             f'{esc(_rel(found.folder, root))}</h2>', _verdict_html(irset_verdict(found))]
     rows = [["written by", found.role],
             ["speakers / microphones", f"{irs.n_spk} / {irs.n_mic}"],
             ["sample rate", f"{irs.sample_rate_hz:g} Hz"],
@@ -315,7 +391,7 @@ def _gain_reference_text(doc: dict) -> str:
 def _verification_section(found: FoundVerification, root: Path) -> str:
     d = found.doc
     parts = [f'<section id="{_anchor("verify", found.folder, root)}"><h2>Verification: '
-             f'{esc(_rel(found.folder, root))}</h2>']
+             f'{esc(_rel(found.folder, root))}</h2>', _verdict_html(verification_verdict(found))]
     parts.append(table(["item", "value"], [
         ["plan", d.get("plan_dir", "")], ["measured impulse responses", d.get("irset_dir", "")],
         ["isolation limit", f"{d.get('isolation_db', '')} dB"], ["measured units", d.get("irset_units", "")],
@@ -341,7 +417,7 @@ def _study_section(found: FoundStudy, root: Path) -> str:
     side = found.sidecar
     title = {"capacity": "Capacity study", "tolerance": "Tolerance study"}[found.kind]
     parts = [f'<section id="{_anchor("study", found.folder, root)}"><h2>{title}: {esc(_rel(found.folder, root))}</h2>',
-             f'<p class="verdict">{esc(str(side.get("verdict", "")))}</p>']
+             _verdict_html(study_verdict(found))]
     conventions = side.get("conventions", {})
     rows = [[k.replace("_", " "), str(v)] for k, v in conventions.items()]
     if found.kind == "tolerance":
@@ -352,40 +428,54 @@ def _study_section(found: FoundStudy, root: Path) -> str:
     return "\n".join(parts)
 
 
-def _summary(results: ProjectResults, root: Path) -> str:
+_BADGE = {"pass": "all pass", "fail": "some fail", "info": "result"}
+
+
+def _verdict_html(v: Verdict) -> str:
+    """A result's verdict as the paragraph that opens its section (same words as in the conclusions)."""
+    remedy = f'<br><span class="remedy">Remedy: {esc(v.remedy)}.</span>' if v.remedy else ""
+    return (f'<p class="verdict"><span class="badge {v.status}">{_BADGE[v.status]}</span> '
+            f"{esc(v.line[:1].upper() + v.line[1:])}.{remedy}</p>")
+
+
+def _verdict_of(kind: str, found: object) -> Verdict | None:
+    makers = {"plan": plan_verdict, "filters": filters_verdict, "irset": irset_verdict,
+              "verify": verification_verdict, "study": study_verdict}
+    return makers[kind](found) if kind in makers else None
+
+
+def _centre_note(results: ProjectResults, root: Path) -> str:
+    """The one statement of what "centre" means in this report, with its value for each result that uses it."""
     items = []
     for fp in results.plans:
-        plan = fp.plan
-        hz = plan.channels.axis.hz
-        strong = plan.strong_channels
-        items.append(f"Plan <b>{esc(_rel(fp.folder, root))}</b> ({esc(plan.rig.name)}, {len(plan.rig.speakers)} "
-                     f"speakers, {len(plan.rig.mics)} microphones): {int(strong[0])} strong channel(s) at "
-                     f"{hz[0]:.4g} Hz, {int(strong[-1])} at {hz[-1]:.4g} Hz, at most {int(strong.max())}; "
-                     f"{int(plan.usable_channels.max())} above a {plan.snr_db:g} dB noise floor.")
+        hz = fp.plan.channels.axis.hz
+        items.append(f"plan {_rel(fp.folder, root)}: {hz[centre_index(hz)]:.5g} Hz, the planned frequency nearest "
+                     f"{np.sqrt(hz[0] * hz[-1]):.5g} Hz ({hz_text(hz[0])} to {hz_text(hz[-1])})")
     for ff in results.filters:
-        ch = ff.sidecar.get("channels", [])
-        kept = sum(1 for c in ch if c.get("filters"))
-        check = ff.sidecar.get("check") or {}
-        tail = ""
-        if check:
-            tail = f"; {sum(check.get('passed', []))} of {len(check.get('passed', []))} pass the planned crosstalk check"
-        items.append(f"Filters <b>{esc(_rel(ff.folder, root))}</b>: {kept} of {len(ch)} channels written{tail}.")
-    for fi in results.irsets:
-        w = len(fi.irs.warnings)
-        items.append(f"Impulse responses <b>{esc(_rel(fi.folder, root))}</b> ({fi.role}): {fi.irs.n_spk} x "
-                     f"{fi.irs.n_mic}, {w} warning(s)" + (f", {len(fi.marked_takes)} marked take(s)"
-                                                         if fi.marked_takes else "") + ".")
-    for fv in results.verifications:
-        passed = fv.doc.get("passed", [])
-        chans = fv.doc.get("channels", [])
-        failed = [c for c, p in zip(chans, passed) if not p]
-        verdict = ('<span class="pass">all pass</span>' if not failed else
-                   f'<span class="fail">{len(failed)} lost</span> (channel{"s" if len(failed) > 1 else ""} '
-                   f'{esc(", ".join(str(c) for c in failed))})')
-        items.append(f"Verification <b>{esc(_rel(fv.folder, root))}</b>: {sum(passed)} of {len(passed)} wanted "
-                     f"channels pass at {esc(fv.doc.get('isolation_db'))} dB isolation; {verdict}.")
-    body = "".join(f"<li>{i}</li>" for i in items)
-    return f'<section id="summary"><h2>Summary</h2><div class="verdict"><ul>{body}</ul></div></section>'
+        band, c = ff.sidecar.get("band_hz"), ff.sidecar.get("centre_hz")
+        if band and c is not None:
+            items.append(f"filters {_rel(ff.folder, root)}: {float(c):.5g} Hz, the design bin nearest "
+                         f"{np.sqrt(band[0] * band[1]):.5g} Hz ({hz_text(band[0])} to {hz_text(band[1])})")
+    if not items:
+        return ""
+    return ('<p class="note" id="centre">"Centre" in this report (field maps, couplings, drive effort, filter levels) '
+            "is the geometric centre sqrt(f_low f_high) of the band, taken at the nearest frequency the result "
+            f"holds: {esc('; '.join(items))}.</p>")
+
+
+def _conclusions(entries: list[tuple[str, str, str, Verdict]], centre_note: str) -> str:
+    """One line per result: its verdict, a link to its section and the remedy where one is known."""
+    items = []
+    for _kind, anchor, label, v in entries:
+        remedy = f' <span class="remedy">Remedy: {esc(v.remedy)}.</span>' if v.remedy else ""
+        items.append(f'<li><span class="badge {v.status}">{_BADGE[v.status]}</span> '
+                     f'<a href="#{anchor}">{esc(label)}</a>: {esc(v.line)}.{remedy}</li>')
+    n_fail = sum(v.status == "fail" for *_, v in entries)
+    n_checked = sum(v.status != "info" for *_, v in entries)
+    overall = (f"{n_checked - n_fail} of {n_checked} checked results pass" if n_checked else
+               "no result in this project has a pass/fail check")
+    return (f'<section id="summary"><h2>Conclusions</h2><p class="overall">{esc(overall)}.</p>'
+            f'<ul class="conclusions">{"".join(items)}</ul>{centre_note}</section>')
 
 
 def _provenance_of(path: Path) -> dict:
@@ -476,21 +566,26 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
                          fix="run 'arrayplan plan RIG.toml --out DIR' (and filters, measure, verify) into this folder")
     generated = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
     title = title or f"arrayplan report: {root.resolve().name}"
-    steps = ([("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
+    steps = ([("rig", g) for g in rig_groups(results.plans)]
+             + [("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
              + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications]
              + [("study", fs) for fs in results.studies])
     total = len(steps) + 1
-    builders = {"plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
+    builders = {"rig": (_rig_section, "Rig"), "plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
                 "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification"),
                 "study": (_study_section, "Study")}
     toc = []
     sections = []
+    entries = []
     with report_style():
         for done, (kind, found) in enumerate(steps, 1):
             build, name = builders[kind]
             sections.append(build(found, root))
-            toc.append(f'<li><a href="#{_anchor(kind, found.folder, root)}">{name}: '
-                       f'{esc(_rel(found.folder, root))}</a></li>')
+            anchor, label = _step_anchor(kind, found, root), f"{name}: {_step_label(kind, found, root)}"
+            toc.append(f'<li><a href="#{anchor}">{esc(label)}</a></li>')
+            verdict = _verdict_of(kind, found)
+            if verdict is not None:
+                entries.append((kind, anchor, label, verdict))
             if progress is not None:
                 progress(done, total)
     header = (f"<header><h1>{esc(title)}</h1><p class=\"meta\">Generated {esc(generated)} UTC by arrayplan "
@@ -499,9 +594,10 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
                "<p>Measuring and verifying a rig plays loud test signals through real loudspeakers. "
                "The drive filters in this project feed loudspeakers too.</p>"
                f"<pre>{esc(CAUTION_TEXT.strip())}</pre></section>")
-    nav = ('<nav><h2>Contents</h2><ol><li><a href="#summary">Summary</a></li>' + "".join(toc)
+    nav = ('<nav id="contents"><h2>Contents</h2><ol><li><a href="#summary">Conclusions</a></li>'
+           '<li><a href="#caution">Caution</a></li>' + "".join(toc)
            + '<li><a href="#provenance">Provenance</a></li></ol></nav>')
-    body = "\n".join([header, _summary(results, root), caution, nav, *sections,
+    body = "\n".join([header, _conclusions(entries, _centre_note(results, root)), nav, caution, *sections,
                       _provenance_section(results, root, generated)])
     if progress is not None:
         progress(total, total)
