@@ -62,19 +62,23 @@ def _fig(height_in: float) -> Figure:
 
 
 def png_bytes(fig: Figure, dpi: int = 150) -> bytes:
-    """The figure as PNG bytes.
+    """The figure as PNG bytes, drawn once.
 
-    A figure with a layout engine is laid out once and then frozen, so that
-    saving draws it once instead of twice (a dry draw for the layout, then
-    the real one): the same picture for about half the work.
+    A figure with a layout engine is laid out once at the output resolution
+    and then frozen, and the canvas prints it directly: ``savefig`` would
+    draw such a figure twice (a dry draw for the layout, then the real one).
+    The picture is the same, pixel for pixel, for about half the work.
     """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    fig.set_dpi(dpi)
+    canvas = FigureCanvasAgg(fig)
     engine = fig.get_layout_engine()
-    if engine is not None and engine.__class__.__name__ != "PlaceHolderLayoutEngine":
-        fig.set_dpi(dpi)
+    if engine is not None:
         engine.execute(fig)
         fig.set_layout_engine("none")
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi)
+    canvas.print_png(buf)
     return buf.getvalue()
 
 

@@ -83,8 +83,7 @@ def filters_verdict(found: FoundFilters) -> Verdict:
     if not passed:
         return Verdict("info", f"filters for {kept} of {len(chans)} channels written; not checked")
     n_pass = sum(passed)
-    limit = check.get('limit_db')
-    line = f"filters pass on {_count_of(n_pass, len(passed))} at {'?' if limit is None else format(float(limit), 'g')} dB crosstalk"
+    line = f"filters pass on {_count_of(n_pass, len(passed))} at {_g(check.get('limit_db'))} dB crosstalk"
     if n_pass == len(passed):
         return Verdict("pass", line)
     failed = [c for c, p in zip(check.get("channels", []), passed) if not p]
@@ -130,7 +129,8 @@ def verification_verdict(found: FoundVerification) -> Verdict:
     doc = found.doc
     passed = [bool(p) for p in doc.get("passed", [])]
     chans = doc.get("channels", [])
-    line = f"verified on the rig: {_count_of(sum(passed), len(passed))} pass at {_g(doc.get('isolation_db'))} dB isolation"
+    line = (f"verified on the rig: {_count_of(sum(passed), len(passed))} pass at {_g(doc.get('isolation_db'))} dB "
+            "isolation")
     if all(passed):
         return Verdict("pass", line)
     failed = [str(c) for c, p in zip(chans, passed) if not p]
