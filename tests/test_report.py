@@ -534,3 +534,23 @@ def test_drive_effort_figure_and_a_channel_20_db_down():
     s = np.sort(plan.channels.singular_values, axis=1)[:, ::-1]
     want = np.minimum(20 * np.log10(s[:, :1] / s), abs(plan.snr_db) + 10).T
     assert drawn == pytest.approx(want, abs=1e-9)
+
+
+def test_plan_weights_are_mapped_lazily_and_equal_numpys_reading(project, tmp_path):
+    # Reference: numpy's own np.load of the same members (ZIP layout: PKWARE APPNOTE.TXT, section 4.3.7).
+    from arrayplan.report.discover import _mapped_npz
+
+    npz = project / "plan" / "weights.npz"
+    mapped = _mapped_npz(npz, ("drive", "combine", "singular_value"))
+    with np.load(npz) as z:
+        for key, arr in mapped.items():
+            assert isinstance(arr, np.memmap) and not arr.flags.writeable
+            assert arr.dtype == z[key].dtype and np.array_equal(arr, z[key]), key
+    # a compressed archive (invented fixture data, Fortran order too) is read in full instead
+    rng = np.random.default_rng(3)
+    a = rng.standard_normal((4, 3, 2)) + 1j * rng.standard_normal((4, 3, 2))
+    np.savez_compressed(tmp_path / "c.npz", a=a)
+    np.savez(tmp_path / "f.npz", a=np.asfortranarray(a))
+    assert np.array_equal(_mapped_npz(tmp_path / "c.npz", ("a",))["a"], np.load(tmp_path / "c.npz")["a"])
+    fortran = _mapped_npz(tmp_path / "f.npz", ("a",))["a"]
+    assert isinstance(fortran, np.memmap) and np.array_equal(fortran, np.load(tmp_path / "f.npz")["a"])
