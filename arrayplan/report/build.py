@@ -5,7 +5,6 @@ from __future__ import annotations
 import datetime as _dt
 import json
 import os
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
@@ -16,51 +15,24 @@ from ..errors import InputError
 from ..fileio import SIGN_CONVENTION, write_text_atomic
 from ..irset import MANIFEST_NAME
 from ..planning import Plan
+from ..plots.channels import centre_index
+from ..plots.effort import drive_effort_db, loudest_speaker_db
 from ..rig import Rig
 from ..safety import CAUTION_TEXT
 from .discover import (FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification, ProjectResults,
                        find_results)
-from ..plots.channels import centre_index
-from ..plots.effort import drive_effort_db, loudest_speaker_db
 from .figures import (ReportFigure, filter_figures, irset_figures, plan_figures, png_bytes, report_style,
-                      rig_figures, study_figures, verification_figures)
-from .html import esc, figure_html, page, table
-from .verdicts import (Verdict, filters_verdict, hz_text, irset_verdict, plan_verdict, study_verdict,
-                       verification_verdict)
+                      study_figures, verification_figures)
+from ._util import _anchor, _figures_html, _fmt, _rel
+from .conclusions import centre_note, conclusions, verdict_html, verdict_of
+from .html import esc, page, table
+from .rigs import RigGroup, rig_anchor, rig_groups, rig_section
+from .verdicts import filters_verdict, irset_verdict, plan_verdict, study_verdict, verification_verdict
 
 __all__ = ["build_report", "write_report"]
 
-_MAX_ELEMENT_ROWS = 48
 _MAX_FREQ_ROWS = 12
 
-
-def _rel(path: Path, root: Path) -> str:
-    try:
-        rel = path.relative_to(root)
-        return "." if str(rel) == "." else str(rel)
-    except ValueError:
-        return str(path)
-
-
-def _anchor(kind: str, path: Path, root: Path) -> str:
-    return kind + "-" + "".join(c if c.isalnum() else "-" for c in _rel(path, root)).strip("-")
-
-
-def _fmt(x: float, spec: str = ".3g") -> str:
-    if x is None or not np.isfinite(x):
-        return "-"
-    text = format(x, spec)
-    return text[1:] if text.startswith("-") and not text.strip("-0.") else text     # no "-0.0"
-
-
-def _figures_html(figs: list[ReportFigure], label: str) -> str:
-    import matplotlib.pyplot as plt
-
-    parts = []
-    for k, rf in enumerate(figs, 1):
-        parts.append(figure_html(png_bytes(rf.figure), rf.caption, f"{label}, figure {k}"))
-        plt.close(rf.figure)
-    return "\n".join(parts)
 
 
 #: Two channels whose singular values differ by less than this (dB) are reported as degenerate.
@@ -136,25 +108,6 @@ def _degeneracy_notes(plan: Plan) -> list[str]:
     return notes
 
 
-def _element_rows(rig: Rig, with_directivity: bool) -> tuple[list[str], list[list[object]]]:
-    header = ["kind", "name", "x (m)", "y (m)", "z (m)", "channel"] + (["directivity"] if with_directivity else [])
-    rows: list[list[object]] = []
-    for kind, es in (("speaker", rig.speakers), ("microphone", rig.mics)):
-        for i, name in enumerate(es.names[:_MAX_ELEMENT_ROWS]):
-            row: list[object] = [kind, name, *(f"{v:.3f}" for v in es.positions[i]), es.channels[i]]
-            if with_directivity:
-                d = es.directivities[i]
-                desc = d.kind + (f", radius {d.radius:g} m" if d.kind == "piston" else "")
-                if d.kind != "omni":
-                    desc += ", axis (" + ", ".join(f"{a:.2g}" for a in d.axis) + ")"
-                row.append(desc)
-            rows.append(row)
-        if len(es) > _MAX_ELEMENT_ROWS:
-            rows.append([kind, f"... {len(es) - _MAX_ELEMENT_ROWS} more", "", "", "", ""]
-                        + ([""] if with_directivity else []))
-    return header, rows
-
-
 def _plan_numbers(found: FoundPlan) -> tuple[str, list[list[object]]]:
     plan = found.plan
     ch = plan.channels
@@ -169,54 +122,13 @@ def _plan_numbers(found: FoundPlan) -> tuple[str, list[list[object]]]:
     return note, rows
 
 
-def _rig_anchor(sha256: str) -> str:
-    return "rig-" + sha256[:16]
-
-
-@dataclass
-class RigGroup:
-    """One rig (by geometry hash) and the plans made for it, in path order."""
-
-    sha256: str
-    plans: list[FoundPlan]
-
-    @property
-    def shown(self) -> FoundPlan:
-        """The plan whose rig is shown: the first one that found its rig file (with directivity), else the first."""
-        return next((fp for fp in self.plans if fp.rig_file is not None), self.plans[0])
-
-
-def rig_groups(plans: list[FoundPlan]) -> list[RigGroup]:
-    """The plans grouped by their rig's geometry hash, in the order of each rig's first plan."""
-    groups: dict[str, RigGroup] = {}
-    for fp in plans:
-        key = str(fp.sidecar.get("rig", {}).get("sha256") or fp.plan.rig.sha256)     # the hash the plan recorded
-        groups.setdefault(key, RigGroup(key, [])).plans.append(fp)
-    return list(groups.values())
-
-
 def _step_anchor(kind: str, found: object, root: Path) -> str:
     """The id of a result's section (a rig by its hash, everything else by its folder)."""
-    return _rig_anchor(found.sha256) if isinstance(found, RigGroup) else _anchor(kind, found.folder, root)
+    return rig_anchor(found.sha256) if isinstance(found, RigGroup) else _anchor(kind, found.folder, root)
 
 
 def _step_label(kind: str, found: object, root: Path) -> str:
     return found.shown.plan.rig.name if isinstance(found, RigGroup) else _rel(found.folder, root)
-
-
-def _rig_section(group: RigGroup, root: Path) -> str:
-    found = group.shown
-    rig = found.plan.rig
-    plans = ", ".join(f'<a href="#{_anchor("plan", fp.folder, root)}">{esc(_rel(fp.folder, root))}</a>'
-                      for fp in group.plans)
-    parts = [f'<section id="{_rig_anchor(group.sha256)}"><h2>Rig: {esc(rig.name)}</h2>',
-             f"<p>Geometry hash <code>{esc(group.sha256[:16])}...</code>; plans made for this rig: {plans}. "
-             f"Geometry shown from {esc(found.rig_note)}.</p>"]
-    header, rows = _element_rows(rig, with_directivity=found.rig_file is not None)
-    parts.append("<h3>Elements</h3>" + table(header, rows, text_columns=(0, 1, 6)))
-    parts.append(_figures_html(rig_figures(found), f"rig {rig.name}"))
-    parts.append("</section>")
-    return "\n".join(parts)
 
 
 def _effort_table(plan: Plan, max_rows: int = 12) -> str:
@@ -243,7 +155,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
     rig = plan.rig
     hz = plan.channels.axis.hz
     parts = [f'<section id="{_anchor("plan", found.folder, root)}"><h2>Plan: {esc(_rel(found.folder, root))}</h2>',
-             _verdict_html(plan_verdict(found))]
+             verdict_html(plan_verdict(found))]
     rig_info = side.get("rig", {})
     parts.append(table(["item", "value"], [
         ["rig", rig_info.get("name", rig.name)],
@@ -262,7 +174,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
         parts.append(f'<p class="note">Paraxial estimate: {esc(plan.estimate.warning)}.</p>')
     parts.extend(_degeneracy_notes(plan))
     key = str(side.get("rig", {}).get("sha256") or rig.sha256)
-    parts.append(f'<p>Elements and geometry: <a href="#{_rig_anchor(key)}">rig {esc(rig.name)}</a>.</p>')
+    parts.append(f'<p>Elements and geometry: <a href="#{rig_anchor(key)}">rig {esc(rig.name)}</a>.</p>')
     note, rows = _plan_numbers(found)
     parts.append("<h3>Channels per frequency</h3>")
     parts.append(table(["frequency (Hz)", "strong", "usable", "effective", "paraxial estimate",
@@ -277,7 +189,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
 def _filters_section(found: FoundFilters, root: Path) -> str:
     d = found.sidecar
     parts = [f'<section id="{_anchor("filters", found.folder, root)}"><h2>Filters: '
-             f'{esc(_rel(found.folder, root))}</h2>', _verdict_html(filters_verdict(found))]
+             f'{esc(_rel(found.folder, root))}</h2>', verdict_html(filters_verdict(found))]
     band = d.get("band_hz", [np.nan, np.nan])
     parts.append(table(["item", "value"], [
         ["sample rate", f"{d.get('sample_rate_hz', float('nan')):g} Hz"],
@@ -330,7 +242,7 @@ def _sweep_text(session: dict) -> str:
 def _irset_section(found: FoundIRSet, root: Path) -> str:
     irs = found.irs
     parts = [f'<section id="{_anchor("irset", found.folder, root)}"><h2>Impulse responses: '
-             f'{esc(_rel(found.folder, root))}</h2>', _verdict_html(irset_verdict(found))]
+             f'{esc(_rel(found.folder, root))}</h2>', verdict_html(irset_verdict(found))]
     rows = [["written by", found.role],
             ["speakers / microphones", f"{irs.n_spk} / {irs.n_mic}"],
             ["sample rate", f"{irs.sample_rate_hz:g} Hz"],
@@ -391,7 +303,7 @@ def _gain_reference_text(doc: dict) -> str:
 def _verification_section(found: FoundVerification, root: Path) -> str:
     d = found.doc
     parts = [f'<section id="{_anchor("verify", found.folder, root)}"><h2>Verification: '
-             f'{esc(_rel(found.folder, root))}</h2>', _verdict_html(verification_verdict(found))]
+             f'{esc(_rel(found.folder, root))}</h2>', verdict_html(verification_verdict(found))]
     parts.append(table(["item", "value"], [
         ["plan", d.get("plan_dir", "")], ["measured impulse responses", d.get("irset_dir", "")],
         ["isolation limit", f"{d.get('isolation_db', '')} dB"], ["measured units", d.get("irset_units", "")],
@@ -417,7 +329,7 @@ def _study_section(found: FoundStudy, root: Path) -> str:
     side = found.sidecar
     title = {"capacity": "Capacity study", "tolerance": "Tolerance study"}[found.kind]
     parts = [f'<section id="{_anchor("study", found.folder, root)}"><h2>{title}: {esc(_rel(found.folder, root))}</h2>',
-             _verdict_html(study_verdict(found))]
+             verdict_html(study_verdict(found))]
     conventions = side.get("conventions", {})
     rows = [[k.replace("_", " "), str(v)] for k, v in conventions.items()]
     if found.kind == "tolerance":
@@ -426,56 +338,6 @@ def _study_section(found: FoundStudy, root: Path) -> str:
     parts.append(_figures_html(study_figures(found), f"{found.kind} study {_rel(found.folder, root)}"))
     parts.append("</section>")
     return "\n".join(parts)
-
-
-_BADGE = {"pass": "all pass", "fail": "some fail", "info": "result"}
-
-
-def _verdict_html(v: Verdict) -> str:
-    """A result's verdict as the paragraph that opens its section (same words as in the conclusions)."""
-    remedy = f'<br><span class="remedy">Remedy: {esc(v.remedy)}.</span>' if v.remedy else ""
-    return (f'<p class="verdict"><span class="badge {v.status}">{_BADGE[v.status]}</span> '
-            f"{esc(v.line[:1].upper() + v.line[1:])}.{remedy}</p>")
-
-
-def _verdict_of(kind: str, found: object) -> Verdict | None:
-    makers = {"plan": plan_verdict, "filters": filters_verdict, "irset": irset_verdict,
-              "verify": verification_verdict, "study": study_verdict}
-    return makers[kind](found) if kind in makers else None
-
-
-def _centre_note(results: ProjectResults, root: Path) -> str:
-    """The one statement of what "centre" means in this report, with its value for each result that uses it."""
-    items = []
-    for fp in results.plans:
-        hz = fp.plan.channels.axis.hz
-        items.append(f"plan {_rel(fp.folder, root)}: {hz[centre_index(hz)]:.5g} Hz, the planned frequency nearest "
-                     f"{np.sqrt(hz[0] * hz[-1]):.5g} Hz ({hz_text(hz[0])} to {hz_text(hz[-1])})")
-    for ff in results.filters:
-        band, c = ff.sidecar.get("band_hz"), ff.sidecar.get("centre_hz")
-        if band and c is not None:
-            items.append(f"filters {_rel(ff.folder, root)}: {float(c):.5g} Hz, the design bin nearest "
-                         f"{np.sqrt(band[0] * band[1]):.5g} Hz ({hz_text(band[0])} to {hz_text(band[1])})")
-    if not items:
-        return ""
-    return ('<p class="note" id="centre">"Centre" in this report (field maps, couplings, drive effort, filter levels) '
-            "is the geometric centre sqrt(f_low f_high) of the band, taken at the nearest frequency the result "
-            f"holds: {esc('; '.join(items))}.</p>")
-
-
-def _conclusions(entries: list[tuple[str, str, str, Verdict]], centre_note: str) -> str:
-    """One line per result: its verdict, a link to its section and the remedy where one is known."""
-    items = []
-    for _kind, anchor, label, v in entries:
-        remedy = f' <span class="remedy">Remedy: {esc(v.remedy)}.</span>' if v.remedy else ""
-        items.append(f'<li><span class="badge {v.status}">{_BADGE[v.status]}</span> '
-                     f'<a href="#{anchor}">{esc(label)}</a>: {esc(v.line)}.{remedy}</li>')
-    n_fail = sum(v.status == "fail" for *_, v in entries)
-    n_checked = sum(v.status != "info" for *_, v in entries)
-    overall = (f"{n_checked - n_fail} of {n_checked} checked results pass" if n_checked else
-               "no result in this project has a pass/fail check")
-    return (f'<section id="summary"><h2>Conclusions</h2><p class="overall">{esc(overall)}.</p>'
-            f'<ul class="conclusions">{"".join(items)}</ul>{centre_note}</section>')
 
 
 def _provenance_of(path: Path) -> dict:
@@ -571,7 +433,7 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
              + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications]
              + [("study", fs) for fs in results.studies])
     total = len(steps) + 1
-    builders = {"rig": (_rig_section, "Rig"), "plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
+    builders = {"rig": (rig_section, "Rig"), "plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
                 "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification"),
                 "study": (_study_section, "Study")}
     toc = []
@@ -583,7 +445,7 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
             sections.append(build(found, root))
             anchor, label = _step_anchor(kind, found, root), f"{name}: {_step_label(kind, found, root)}"
             toc.append(f'<li><a href="#{anchor}">{esc(label)}</a></li>')
-            verdict = _verdict_of(kind, found)
+            verdict = verdict_of(kind, found)
             if verdict is not None:
                 entries.append((kind, anchor, label, verdict))
             if progress is not None:
@@ -597,7 +459,7 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     nav = ('<nav id="contents"><h2>Contents</h2><ol><li><a href="#summary">Conclusions</a></li>'
            '<li><a href="#caution">Caution</a></li>' + "".join(toc)
            + '<li><a href="#provenance">Provenance</a></li></ol></nav>')
-    body = "\n".join([header, _conclusions(entries, _centre_note(results, root)), nav, caution, *sections,
+    body = "\n".join([header, conclusions(entries, centre_note(results, root)), nav, caution, *sections,
                       _provenance_section(results, root, generated)])
     if progress is not None:
         progress(total, total)

@@ -56,7 +56,17 @@ def _count_of(n: int, total: int) -> str:
 
 
 def plan_verdict(found: FoundPlan) -> Verdict:
-    """How many strong channels the plan has, and over which frequencies it has that many."""
+    """How many strong channels the plan has, and over which frequencies it has that many.
+
+    Parameters
+    ----------
+    found : FoundPlan
+
+    Returns
+    -------
+    Verdict
+        Always ``"info"``: a plan has no pass/fail check.
+    """
     plan = found.plan
     hz = plan.channels.axis.hz
     strong = np.asarray(plan.strong_channels)
@@ -74,7 +84,17 @@ def plan_verdict(found: FoundPlan) -> Verdict:
 
 
 def filters_verdict(found: FoundFilters) -> Verdict:
-    """Pass when every kept channel meets the crosstalk limit of the filters' check; remedy: more taps."""
+    """Pass when every kept channel meets the crosstalk limit of the filters' check; remedy: more taps.
+
+    Parameters
+    ----------
+    found : FoundFilters
+
+    Returns
+    -------
+    Verdict
+        ``"info"`` when the check did not run.
+    """
     d = found.sidecar
     chans = d.get("channels", [])
     kept = sum(1 for c in chans if c.get("filters"))
@@ -96,7 +116,16 @@ def filters_verdict(found: FoundFilters) -> Verdict:
 
 
 def irset_verdict(found: FoundIRSet) -> Verdict:
-    """Pass for a clean measurement; fail where takes were marked (as ``measure`` exits 1 then)."""
+    """Information on an IR set; fail where takes were marked (as ``measure`` exits 1 then).
+
+    Parameters
+    ----------
+    found : FoundIRSet
+
+    Returns
+    -------
+    Verdict
+    """
     irs = found.irs
     w = len(irs.warnings)
     line = (f"{irs.n_spk} speakers x {irs.n_mic} microphones at {irs.sample_rate_hz:g} Hz ({found.role}), "
@@ -124,6 +153,14 @@ def verification_verdict(found: FoundVerification) -> Verdict:
     A failing plan that was not made from measured responses (its
     ``weights.json`` says which kernel it used) gets the remedy of planning
     again from the measurement.
+
+    Parameters
+    ----------
+    found : FoundVerification
+
+    Returns
+    -------
+    Verdict
     """
     plan_kernel = _plan_kernel(found)
     doc = found.doc
@@ -146,7 +183,17 @@ def verification_verdict(found: FoundVerification) -> Verdict:
 
 def study_verdict(found: FoundStudy) -> Verdict:
     """A capacity study informs; a tolerance study passes when every channel in use keeps its isolation
-    limit in at least :data:`TOLERANCE_SHARE` of the trials at every frequency where it is used."""
+    limit in at least :data:`TOLERANCE_SHARE` of the trials at every frequency where it is used.
+
+    Parameters
+    ----------
+    found : FoundStudy
+
+    Returns
+    -------
+    Verdict
+        The line is the study's own verdict from its sidecar.
+    """
     text = str(found.sidecar.get("verdict", "")).rstrip(".")
     if found.kind != "tolerance":
         return Verdict("info", text)
