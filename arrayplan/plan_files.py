@@ -331,7 +331,7 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
                        tuple(str(x) for x in data["mic_names"]), sidecar)
 
 
-def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None) -> Plan:
+def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None, weights: PlanWeights | None = None) -> Plan:
     """Rebuild the :class:`Plan` a plan folder was written from.
 
     Parameters
@@ -342,6 +342,9 @@ def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None) -> Plan:
         The rig the plan was made for (it must have the plan's element names,
         in order).  Default: a rig of omnidirectional elements at the
         positions stored in ``weights.json``, with its speed of sound.
+    weights : PlanWeights, optional
+        The folder's weights when the caller has read them already (for
+        example memory-mapped); default: :func:`read_weights`.
 
     Returns
     -------
@@ -355,7 +358,7 @@ def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None) -> Plan:
         When the folder lacks its files, or (without `rig`) was written by a
         version that did not store positions.
     """
-    w = read_weights(plan_dir)
+    w = weights if weights is not None else read_weights(plan_dir)
     side = w.sidecar
     src = str(Path(plan_dir) / "weights.json")
     if rig is None:
