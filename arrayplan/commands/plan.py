@@ -147,7 +147,7 @@ def run(args: argparse.Namespace) -> int:
         plan = plan_rig(rig, axis, kernel=kernel, threshold_db=_checked(args.threshold_db, "--threshold-db"),
                         snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,
                         progress=bar)
-    measurement = measurement_record(args.irset, kernel) if kernel is not None else None
+    measurement = measurement_record(args.irset, kernel) if args.irset else None
     files = write_plan(plan, args.out, figures=not args.no_figures, measurement=measurement)
     for line in summary_lines(plan):
         print(line)
