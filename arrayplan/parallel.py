@@ -40,17 +40,18 @@ from __future__ import annotations
 
 import multiprocessing
 import os
+import socket
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from typing import Any, Callable, Iterable, Iterator, Sequence
 
 from .errors import InputError
 
-__all__ = ["map_chunks", "iter_chunks", "available_cores", "resolve_scheduler", "SCHEDULER_ENV"]
+__all__ = ["map_chunks", "iter_chunks", "available_cores", "resolve_scheduler", "check_scheduler", "SCHEDULER_ENV"]
 
 #: Environment variable naming a Dask scheduler address (or ``local:N``) for every parallel call.
 SCHEDULER_ENV = "ARRAYPLAN_SCHEDULER"
 
-_CONNECT_TIMEOUT_S = 5.0
+_CONNECT_TIMEOUT_S = 3.0
 _worker_shared: Any = None
 
 
@@ -183,27 +184,61 @@ def _iter_pool(func, items, shared, workers: int) -> Iterator[tuple[int, Any]]:
                 fut.cancel()
 
 
-def _dask_client(scheduler: str):
-    """A connected dask.distributed Client (and the LocalCluster it owns, or None)."""
+def _unreachable(scheduler: str, reason: str) -> InputError:
+    return InputError(f"cannot reach the Dask scheduler at {scheduler!r} ({reason})", field="scheduler",
+                      fix="start the scheduler or check the address (tcp://HOST:PORT)")
+
+
+def _probe(scheduler: str) -> None:
+    """Fail fast when nothing listens at a tcp:// address (before Dask's own, slower, retries)."""
+    host_port = scheduler.split("://", 1)[1] if "://" in scheduler else scheduler
+    if not scheduler.startswith("tcp://") and "://" in scheduler:
+        return                          # another protocol (tls, ucx, inproc): left to Dask
+    host, _, port = host_port.rpartition(":")
+    if not port.isdigit() or not host:
+        raise InputError(f"expected tcp://HOST:PORT or local:N, got {scheduler!r}", field="scheduler")
     try:
-        from distributed import Client, LocalCluster
-    except ImportError:
-        raise InputError("Dask is not installed", field="scheduler",
-                         fix="pip install 'arrayplan[dask]', or run without a scheduler") from None
+        with socket.create_connection((host.strip("[]"), int(port)), timeout=_CONNECT_TIMEOUT_S):
+            pass
+    except OSError as exc:
+        raise _unreachable(scheduler, exc.strerror or type(exc).__name__) from None
+
+
+def check_scheduler(scheduler: str) -> None:
+    """Check a scheduler argument before any work: ``local:N`` well formed, a tcp:// address listening.
+
+    Raises
+    ------
+    InputError
+        (field ``scheduler``) within a few seconds when it is not.
+    """
     if scheduler.startswith("local:"):
         count = scheduler.partition(":")[2]
         if not count.isdigit() or int(count) < 1:
             raise InputError(f"expected local:N with N >= 1 worker processes, got {scheduler!r}",
                              field="scheduler")
-        cluster = LocalCluster(n_workers=int(count), threads_per_worker=1, processes=True,
+    else:
+        _probe(scheduler)
+
+
+def _dask_client(scheduler: str):
+    """A connected dask.distributed Client (and the LocalCluster it owns, or None)."""
+    check_scheduler(scheduler)
+    local = scheduler.startswith("local:")
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:
+        raise InputError("Dask is not installed", field="scheduler",
+                         fix="pip install 'arrayplan[dask]', or run without a scheduler") from None
+    if local:
+        cluster = LocalCluster(n_workers=int(scheduler.partition(":")[2]), threads_per_worker=1, processes=True,
                                dashboard_address=None)
         return Client(cluster), cluster
     try:
         return Client(scheduler, timeout=_CONNECT_TIMEOUT_S), None
-    except (OSError, TimeoutError, ValueError) as exc:
-        raise InputError(f"cannot reach the Dask scheduler at {scheduler!r} within {_CONNECT_TIMEOUT_S:g} s "
-                         f"({type(exc).__name__})", field="scheduler",
-                         fix="start the scheduler or check the address (tcp://HOST:PORT)") from None
+    except Exception as exc:  # refused, timed out, or something else answered (not a Dask scheduler)
+        raise _unreachable(scheduler, f"no Dask scheduler answered within {_CONNECT_TIMEOUT_S:g} s: "
+                                      f"{type(exc).__name__}") from None
 
 
 def _iter_dask(func, items, shared, scheduler: str) -> Iterator[tuple[int, Any]]:

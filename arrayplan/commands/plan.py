@@ -16,7 +16,8 @@ from ._args import add_measured_kernel_options, measured_kernel_from_args
 from ..frequency import FrequencyAxis
 from ..medium import speed_of_sound_air
 from ..planning import plan_rig
-from ..plan_files import summary_lines, write_plan
+from ..parallel import SCHEDULER_ENV, check_scheduler, resolve_scheduler
+from ..plan_files import LONG_TABLE_MAX_ROWS, long_table_rows, summary_lines, write_plan
 from ..progress import ProgressBar
 from ..rig import Rig, load_rig, read_positions_csv
 
@@ -37,7 +38,22 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--snr-db", type=float, help="SNR of the strongest channel, sets the noise floor (default 40)")
     p.add_argument("--track", action="store_true", default=None,
                    help="order and phase-align channels from bin to bin")
-    p.add_argument("--chunk-size", type=int, help="frequencies decomposed at once (bounds memory)")
+    p.add_argument("--chunk-size", type=int, help="frequencies decomposed at once per worker (default: from "
+                                                  "--memory-mb)")
+    p.add_argument("--memory-mb", type=float, metavar="MB",
+                   help="working memory per worker that sets the chunk size (default 64 MB)")
+    p.add_argument("--workers", type=int, metavar="N",
+                   help="worker processes, one LAPACK thread each (default: every core for a large plan; "
+                        "1 = serial); results are identical for every N")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run the chunks on a Dask cluster: tcp://HOST:PORT of a running scheduler, or local:N "
+                        f"to start N worker processes here (default ${SCHEDULER_ENV} when set)")
+    p.add_argument("--max-channels", metavar="K|auto",
+                   help="compute only the K strongest channels per frequency; auto: from the paraxial "
+                        "estimate, grown until the weakest is below the --snr-db floor")
+    p.add_argument("--long-weights", action="store_true",
+                   help=f"always write weights.csv (by default only up to {LONG_TABLE_MAX_ROWS} rows; "
+                        "weights.npz holds every weight)")
     p.add_argument("--irset", metavar="DIR|FILE.sofa",
                    help="plan from this measured impulse-response set (IR-set folder or AES69/SOFA file) "
                         "instead of the free field")
@@ -99,6 +115,25 @@ def _checked(value: float | None, flag: str) -> float | None:
     return value
 
 
+def _max_channels(text: str | None, rig: Rig) -> int | str | None:
+    """--max-channels as a whole number within the rig's channel count, or 'auto'."""
+    if text is None or text.strip().lower() == "auto":
+        return None if text is None else "auto"
+    n_all = min(len(rig.speakers), len(rig.mics))
+    try:
+        k = int(text)
+    except ValueError:
+        raise InputError(f"expected a whole number or 'auto', got {text!r}", source="--max-channels") from None
+    if not 1 <= k <= n_all:
+        raise InputError(f"must lie in 1..{n_all} (the rig has {len(rig.speakers)} speakers and {len(rig.mics)} "
+                         f"microphones), got {k}", source="--max-channels")
+    return k
+
+
+def _scheduler_source(args: argparse.Namespace) -> str:
+    return "--scheduler" if args.scheduler else f"${SCHEDULER_ENV}"
+
+
 def run(args: argparse.Namespace) -> int:
     matplotlib.use("Agg")
     rig = rig_from_args(args)
@@ -113,14 +148,33 @@ def run(args: argparse.Namespace) -> int:
         if top is not None and top.hz[-1] >= kernel.sample_rate_hz / 2:
             raise InputError(f"plan frequency {top.hz[-1]:g} Hz is not below the IR set's Nyquist frequency "
                              f"{kernel.sample_rate_hz / 2:g} Hz", source="--freq", fix="plan at lower frequencies")
-    if args.chunk_size is not None and args.chunk_size < 1:
-        raise InputError(f"must be at least 1, got {args.chunk_size}", source="--chunk-size")
+    for value, flag in ((args.chunk_size, "--chunk-size"), (args.workers, "--workers")):
+        if value is not None and value < 1:
+            raise InputError(f"must be at least 1, got {value}", source=flag)
+    top = _max_channels(args.max_channels, rig)
+    scheduler = resolve_scheduler(args.scheduler)
+    if scheduler is not None:
+        try:
+            check_scheduler(scheduler)
+        except InputError as exc:
+            raise InputError(exc.problem, source=_scheduler_source(args), fix=exc.fix) from None
     with ProgressBar("planning") as bar:
-        plan = plan_rig(rig, axis, kernel=kernel, threshold_db=_checked(args.threshold_db, "--threshold-db"),
-                        snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,
-                        progress=bar)
-    files = write_plan(plan, args.out, figures=not args.no_figures)
+        try:
+            plan = plan_rig(rig, axis, kernel=kernel, threshold_db=_checked(args.threshold_db, "--threshold-db"),
+                            snr_db=_checked(args.snr_db, "--snr-db"), track=args.track, chunk_size=args.chunk_size,
+                            progress=bar, workers=args.workers, scheduler=scheduler, max_channels=top,
+                            memory_mb=_checked(args.memory_mb, "--memory-mb"))
+        except InputError as exc:
+            if exc.field != "scheduler":
+                raise
+            raise InputError(exc.problem, source=_scheduler_source(args), fix=exc.fix) from None
+    with ProgressBar("writing files") as bar:
+        files = write_plan(plan, args.out, figures=not args.no_figures, long_weights=True if args.long_weights
+                           else None, progress=bar)
     for line in summary_lines(plan):
         print(line)
+    if not any(p.name == "weights.csv" for p in files):
+        print(f"note: weights.csv not written ({long_table_rows(plan)} rows, more than {LONG_TABLE_MAX_ROWS}); "
+              "weights.npz holds every weight; give --long-weights to write the table too")
     print(f"wrote {len(files)} files to {args.out}: {', '.join(p.name for p in files)}")
     return 0
