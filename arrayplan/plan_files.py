@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import csv
 import json
+import math
 import os
 from pathlib import Path
 from typing import Any, Callable
@@ -63,7 +64,13 @@ _TRUNCATED_HEADER = ["channels_computed", "share_not_computed"]
 
 
 def _fmt(x: float) -> str:
-    return "" if not np.isfinite(x) else f"{x:.10g}"
+    """Ten significant digits; empty for NaN or infinity.  Takes Python floats (fast) or numpy scalars."""
+    x = float(x)
+    return f"{x:.10g}" if math.isfinite(x) else ""
+
+
+def _fmt_level(x: float) -> str:
+    return f"{x:.10g}" if math.isfinite(x) else "-inf"
 
 
 def long_table_rows(plan: Plan) -> int:
@@ -138,10 +145,10 @@ def _write_channels_csv(plan: Plan, path: Path, each_frequency: Callable[[int], 
     with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
         fh.write(_CHANNEL_HEADER)
         for f in range(len(hz)):
-            f_text = _fmt(hz[f])
-            fh.write("".join(f"{f_text},{j + 1},{_fmt(s[f, j])},{_fmt(power[f, j])},{_fmt(share[f, j])},"
-                             f"{_fmt(level[f, j]) if np.isfinite(level[f, j]) else '-inf'}\n"
-                             for j in range(int(computed[f]))))
+            f_text, n = _fmt(hz[f]), int(computed[f])
+            columns = zip(s[f, :n].tolist(), power[f, :n].tolist(), share[f, :n].tolist(), level[f, :n].tolist())
+            fh.write("".join(f"{f_text},{j},{_fmt(a)},{_fmt(b)},{_fmt(c)},{_fmt_level(d)}\n"
+                             for j, (a, b, c, d) in enumerate(columns, start=1)))
             each_frequency(f)
 
 
