@@ -344,9 +344,10 @@ def chunk_for_budget(n_freq: int, n_mic: int, n_spk: int, memory_mb: float, work
     return chunk
 
 
-#: Below this many multiply-adds (n_freq * n_mic * n_spk * min(n_mic, n_spk)) "auto" stays in one
+#: Below this many multiply-adds (n_freq * n_mic * n_spk * min(n_mic, n_spk); 1e8 is about 0.3 s of SVD on
+#: one core of the test machine, a 64 x 64 rig at 400 frequencies) "auto" stays in one
 #: process: starting worker processes takes longer than the work.
-AUTO_PARALLEL_WORK = 5e8
+AUTO_PARALLEL_WORK = 1e8
 
 
 def workers_for(n_freq: int, n_mic: int, n_spk: int, workers: int | None) -> int:

@@ -10,7 +10,7 @@ cli     ``arrayplan plan RIG --out DIR --no-figures`` end to end (start-up,
         assembly, SVD, counts, files) for 64 x 64 x 1024 and 128 x 128 x 512,
         against (a) one batched numpy.linalg.svd of the same complex128 stack
         in this process (stack built beforehand, not timed) and (b) the same
-        stack built and decomposed in 2 spawned processes with 1 BLAS thread
+        stack built and decomposed in 2 forked processes with 1 BLAS thread
         each (pool start-up included, as the command's is).
 track   the same command with ``--track`` against without.
 topk    1024 x 1024 at 16 frequencies: ``max_channels="auto"`` against the
@@ -91,9 +91,9 @@ def _half_job(args) -> float:
 
 
 def two_process_reference(spk, mic, hz) -> float:
-    """Seconds to start 2 spawned processes and build + decompose half the stack in each (1 BLAS thread)."""
+    """Seconds to start 2 forked processes and build + decompose half the stack in each (1 BLAS thread)."""
     t0 = time.perf_counter()
-    ctx = multiprocessing.get_context("spawn")
+    ctx = multiprocessing.get_context("fork")
     with ctx.Pool(2) as pool:
         pool.map(_half_job, [(spk, mic, part) for part in np.array_split(hz, 2)])
     return time.perf_counter() - t0
