@@ -317,8 +317,11 @@ def bytes_per_frequency(n_mic: int, n_spk: int, n_chan: int | None = None) -> in
     return 16 * (2 * n_mic * n_spk + 2 * (n_mic + n_spk) * k + 4 * k * k)
 
 
-def chunk_for_budget(n_freq: int, n_mic: int, n_spk: int, memory_mb: float, workers: int = 1,
-                     n_chan: int | None = None) -> int:
+#: The default chunk leaves at least this many chunks (to share the work among workers evenly).
+MIN_CHUNKS = 8
+
+
+def chunk_for_budget(n_freq: int, n_mic: int, n_spk: int, memory_mb: float, n_chan: int | None = None) -> int:
     """Frequencies per chunk so that one chunk's working memory stays within `memory_mb`.
 
     Parameters
@@ -326,22 +329,19 @@ def chunk_for_budget(n_freq: int, n_mic: int, n_spk: int, memory_mb: float, work
     n_freq, n_mic, n_spk : int
     memory_mb : float
         Budget per worker, MB (10^6 bytes).
-    workers : int
-        With several workers the chunk is also small enough to give each at
-        least four chunks (to share the work evenly).
     n_chan : int, optional
         Channels computed per frequency (default all).
 
     Returns
     -------
     int
-        At least 1 (a single frequency may exceed the budget).
+        At least 1 (a single frequency may exceed the budget), and small
+        enough to make :data:`MIN_CHUNKS` chunks.  It does not depend on
+        the number of workers, so neither do the results (see
+        :func:`decompose`).
     """
     by_memory = int(memory_mb * 1e6 // bytes_per_frequency(n_mic, n_spk, n_chan))
-    chunk = max(1, min(by_memory, n_freq))
-    if workers > 1:
-        chunk = max(1, min(chunk, -(-n_freq // (4 * workers))))
-    return chunk
+    return max(1, min(by_memory, -(-n_freq // MIN_CHUNKS)))
 
 
 #: Below this many multiply-adds (n_freq * n_mic * n_spk * min(n_mic, n_spk); 1e8 is about 0.3 s of SVD on
@@ -400,8 +400,12 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
     Returns
     -------
     ChannelSet
-        Identical, bit for bit, for every `workers`, `scheduler` and chunk
-        size: each matrix is decomposed alone, with one LAPACK thread.
+        Identical, bit for bit, for every `workers` and `scheduler`: each
+        matrix is decomposed alone, with one LAPACK thread, and the default
+        chunk size does not depend on the workers.  Between different chunk
+        sizes the free-field plan is identical too; a kernel that builds its
+        matrices by a matrix product (the measured kernel's DFT) may differ
+        in the last bits, as BLAS blocks a product by its size.
     """
     if isinstance(source, CouplingStack):
         axis = source.axis if axis is None else axis
@@ -422,7 +426,7 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
         fixed = None
     n_workers = workers_for(len(hz), n_mic, n_spk, workers)
     if chunk_size is None:
-        chunk_size = chunk_for_budget(len(hz), n_mic, n_spk, memory_mb, n_workers, fixed)
+        chunk_size = chunk_for_budget(len(hz), n_mic, n_spk, memory_mb, fixed)
     chunk_size = max(1, int(chunk_size))
     guess = None
     if auto:
