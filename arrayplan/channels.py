@@ -209,8 +209,9 @@ def _overlap_costs(drive: np.ndarray, combine: np.ndarray, block: int = 64) -> n
     out = np.empty((max(0, n_freq - 1), k, k))
     for a in range(1, n_freq, block):
         b = min(a + block, n_freq)
-        ov_v = np.abs(np.matmul(np.conj(np.swapaxes(drive[a - 1:b - 1], -1, -2)), drive[a:b]))
-        ov_u = np.abs(np.matmul(np.swapaxes(combine[a - 1:b - 1], -1, -2), np.conj(combine[a:b])))
+        # contiguous operands, so that matmul hands each product to BLAS
+        ov_v = np.abs(np.matmul(np.ascontiguousarray(np.conj(np.swapaxes(drive[a - 1:b - 1], -1, -2))), drive[a:b]))
+        ov_u = np.abs(np.matmul(np.ascontiguousarray(np.swapaxes(combine[a - 1:b - 1], -1, -2)), np.conj(combine[a:b])))
         np.add(ov_u, ov_v, out=out[a - 1:b - 1])
     return out
 
@@ -219,7 +220,10 @@ def _track_in_place(s: np.ndarray, drive: np.ndarray, combine: np.ndarray) -> No
     """Tracking (module Notes) applied to the arrays themselves."""
     from scipy.optimize import linear_sum_assignment   # imported here: scipy.optimize is slow to import
 
-    costs = _overlap_costs(drive, combine)        # rows: channels of bin f-1 as found
+    from .parallel import one_blas_thread
+
+    with one_blas_thread():   # small products: threaded BLAS only loses time here, badly so on a busy machine
+        costs = _overlap_costs(drive, combine)    # rows: channels of bin f-1 as found
     found = np.arange(s.shape[1])                 # found[i]: bin f-1's index of tracked channel i
     for f in range(1, s.shape[0]):
         rows, cols = linear_sum_assignment(-costs[f - 1][found])

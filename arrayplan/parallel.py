@@ -47,7 +47,8 @@ from typing import Any, Callable, Iterable, Iterator, Sequence
 
 from .errors import InputError
 
-__all__ = ["map_chunks", "iter_chunks", "available_cores", "resolve_scheduler", "check_scheduler", "SCHEDULER_ENV"]
+__all__ = ["map_chunks", "iter_chunks", "available_cores", "resolve_scheduler", "check_scheduler", "one_blas_thread",
+           "SCHEDULER_ENV"]
 
 #: Environment variable naming a Dask scheduler address (or ``local:N``) for every parallel call.
 SCHEDULER_ENV = "ARRAYPLAN_SCHEDULER"
@@ -71,7 +72,12 @@ def resolve_scheduler(scheduler: str | None) -> str | None:
     return scheduler
 
 
-def _one_blas_thread():
+def one_blas_thread():
+    """Context manager (also effective when only called): BLAS/LAPACK limited to one thread here.
+
+    Small matrix products and SVDs gain nothing from BLAS threads, and on a
+    busy machine threaded BLAS runs them several times slower.
+    """
     from threadpoolctl import threadpool_limits
     return threadpool_limits(limits=1)
 
@@ -79,7 +85,7 @@ def _one_blas_thread():
 def _init_worker(shared: Any) -> None:
     global _worker_shared
     _worker_shared = shared
-    _one_blas_thread()          # stays in force for the life of the worker process
+    one_blas_thread()          # stays in force for the life of the worker process
 
 
 def _call_in_worker(func: Callable[[Any, Any], Any], item: Any) -> Any:
@@ -87,7 +93,7 @@ def _call_in_worker(func: Callable[[Any, Any], Any], item: Any) -> Any:
 
 
 def _call_limited(func: Callable[[Any, Any], Any], shared: Any, item: Any) -> Any:
-    with _one_blas_thread():
+    with one_blas_thread():
         return func(shared, item)
 
 
@@ -128,7 +134,7 @@ def iter_chunks(func: Callable[[Any, Any], Any], items: Sequence[Any], *, shared
     if scheduler is not None:
         yield from _iter_dask(func, items, shared, scheduler)
     elif workers == 1 or len(items) <= 1:
-        with _one_blas_thread():
+        with one_blas_thread():
             for i, item in enumerate(items):
                 yield i, func(shared, item)
     else:

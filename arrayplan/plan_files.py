@@ -364,6 +364,11 @@ def summary_lines(plan: Plan, max_rows: int = 12) -> list[str]:
         lines.append(f"truncated plan: only the strongest {n.min()}..{n.max()} of {min(len(rig.speakers), len(rig.mics))} "
                      f"channels computed per frequency; at most {100 * ch.share_not_computed().max():.3g} % of "
                      f"the sum rule lies in the channels not computed")
+        weakest = ch.level_db()[np.arange(len(hz)), np.maximum(n - 1, 0)]
+        short = int(np.sum(weakest > -abs(plan.snr_db)))
+        if short:
+            lines.append(f"note: at {short} of {len(hz)} frequencies the weakest computed channel is still above "
+                         f"the noise floor, so the usable count there is a lower bound; compute more channels")
     lines.append(f"strong: within {plan.threshold_db:g} dB of the strongest channel; usable: above the noise "
                  f"floor at an SNR of {plan.snr_db:g} dB on the strongest channel")
     return lines
