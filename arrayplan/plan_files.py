@@ -146,9 +146,16 @@ def _write_channels_csv(plan: Plan, path: Path, each_frequency: Callable[[int], 
         fh.write(_CHANNEL_HEADER)
         for f in range(len(hz)):
             f_text, n = _fmt(hz[f]), int(computed[f])
-            columns = zip(s[f, :n].tolist(), power[f, :n].tolist(), share[f, :n].tolist(), level[f, :n].tolist())
-            fh.write("".join(f"{f_text},{j},{_fmt(a)},{_fmt(b)},{_fmt(c)},{_fmt_level(d)}\n"
-                             for j, (a, b, c, d) in enumerate(columns, start=1)))
+            rows = zip(range(1, n + 1), s[f, :n].tolist(), power[f, :n].tolist(), share[f, :n].tolist(),
+                       level[f, :n].tolist())
+            if np.all(np.isfinite(share[f, :n])) and np.all(np.isfinite(power[f, :n])) \
+                    and not np.any(np.isnan(level[f, :n])):
+                # all finite (level may be -inf, which %g writes as -inf): one format per row
+                line = f_text + ",%d,%.10g,%.10g,%.10g,%.10g\n"
+                fh.write("".join([line % row for row in rows]))
+            else:
+                fh.write("".join(f"{f_text},{j},{_fmt(a)},{_fmt(b)},{_fmt(c)},{_fmt_level(d)}\n"
+                                 for j, a, b, c, d in rows))
             each_frequency(f)
 
 
