@@ -25,6 +25,18 @@ u_prev^H u_new is real and positive.  Where two singular values cross, the
 weights stay continuous and the channel keeps its number, so a tracked
 channel's singular value need not be descending across channels.
 Strong/effective counts never depend on tracking.
+
+Truncation.  With ``max_channels`` only the strongest channels are computed
+(:mod:`arrayplan.topk`); ``ChannelSet.computed`` then gives their number per
+frequency, the columns beyond it hold zeros, the sum rule is still
+sum |G|^2 from G itself, and :meth:`ChannelSet.share_not_computed` is the
+part of it in the channels not computed.  The effective count of a
+truncated plan is that of the computed channels.
+
+Where the work runs.  :func:`decompose` evaluates the kernel and decomposes
+chunk by chunk, here or on worker processes or a Dask cluster
+(:mod:`arrayplan.parallel`); each worker builds its own coupling matrices,
+and the result does not depend on where it was computed.
 """
 
 from __future__ import annotations

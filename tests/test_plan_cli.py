@@ -307,3 +307,16 @@ def test_long_weight_table_above_the_limit_only_on_request(tmp_path, capsys, mon
                 lines += [f"{hz:.10g},{j + 1},{side},{name},{w[f, e, j].real:.12g},{w[f, e, j].imag:.12g}"
                           for e, name in enumerate(names)]
     assert (tmp_path / "b" / "weights.csv").read_text() == "\n".join(lines) + "\n"
+
+
+def test_planning_keys_in_the_rig_file(tmp_path, capsys):
+    rig = tmp_path / "rig.toml"
+    rig.write_text(PANEL_RIG + "[planning]\nmax_channels = 3\nworkers = 1\nmemory_mb = 8\n")
+    assert main(["plan", str(rig), "--out", str(tmp_path / "a"), "--no-figures"]) == 0
+    assert {r["channels_computed"] for r in _rows(tmp_path / "a" / "summary.csv")} == {"3"}
+    capsys.readouterr()
+    rig.write_text(PANEL_RIG + "[planning]\nmax_channels = 99\n")
+    assert main(["plan", str(rig), "--out", str(tmp_path / "b"), "--no-figures"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and str(rig) in err and "planning.max_channels" in err
+    assert not (tmp_path / "b").exists()
