@@ -212,6 +212,7 @@ def _sidecar(plan: Plan, with_long: bool = True) -> dict[str, Any]:
         "normalisation": NORMALISATION,
         "phase_convention": PHASE,
         "tracked": ch.tracked,
+        "precision": "single (complex64 SVD)" if ch.drive.dtype == np.complex64 else "double (complex128)",
         "truncated": truncation,
         "speaker_names": list(ch.speaker_names),
         "mic_names": list(ch.mic_names),

@@ -57,7 +57,7 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
              threshold_db: float | None = None, snr_db: float | None = None, track: bool | None = None,
              chunk_size: int | None = None, progress: Callable[[int, int], None] | None = None,
              workers: int | None = None, scheduler: str | None = None, max_channels: int | str | None = None,
-             memory_mb: float | None = None) -> Plan:
+             memory_mb: float | None = None, precision: str = "double") -> Plan:
     """Plan the channels of `rig`.
 
     Parameters
@@ -75,6 +75,8 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
         ``progress(done, total)`` after each chunk.
     scheduler : str, optional
         ``"local:N"`` or a Dask scheduler address (:mod:`arrayplan.parallel`).
+    precision : {"double", "single"}
+        Arithmetic of the SVD (see :func:`arrayplan.channels.decompose`).
 
     Returns
     -------
@@ -95,7 +97,7 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
             kern, axis, chunk_size=chunk_size or settings.chunk_size, track=settings.track if track is None else track,
             progress=progress, workers=settings.workers if workers is None else workers, scheduler=scheduler,
             max_channels=top, floor_db=snr, first_guess=estimate.counts,
-            memory_mb=settings.memory_mb if memory_mb is None else memory_mb)
+            memory_mb=settings.memory_mb if memory_mb is None else memory_mb, precision=precision)
     except InputError as exc:
         if exc.field != "max_channels" or max_channels is not None:
             raise

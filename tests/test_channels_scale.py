@@ -177,3 +177,16 @@ def test_kernels_pickle_and_plan_alike_on_workers():
     n = np.arange(512)
     g = np.einsum("fn,nms->fms", np.exp(-2j * np.pi * np.outer(axis.hz / 16000.0, n)), irs.data)
     np.testing.assert_allclose(pooled.singular_values, np.linalg.svd(g, compute_uv=False), rtol=1e-10)
+
+
+def test_single_precision_against_the_double_svd():
+    rig = _panel_rig(5)
+    axis = FrequencyAxis([500.0, 2000.0, 6000.0])
+    g = FreeFieldKernel(rig).evaluate(axis.hz)
+    full = np.linalg.svd(g, compute_uv=False)
+    single = decompose(FreeFieldKernel(rig), axis, precision="single")
+    assert single.drive.dtype == np.complex64 and single.singular_values.dtype == np.float32
+    # a backward-stable SVD in IEEE single (unit roundoff 6e-8) errs by a small multiple of 6e-8 x s_max
+    # (Golub & Van Loan, Matrix Computations, 2013, sec. 8.6)
+    assert np.max(np.abs(single.singular_values - full)) <= 1e-5 * full[:, 0].max()
+    np.testing.assert_allclose(single.sum_rule, np.sum(np.abs(g) ** 2, axis=(1, 2)), rtol=1e-12)  # from G, in double
