@@ -228,21 +228,28 @@ def _overlap_costs(drive: np.ndarray, combine: np.ndarray, block: int = 64) -> n
     return out
 
 
-def _track_in_place(s: np.ndarray, drive: np.ndarray, combine: np.ndarray) -> None:
-    """Tracking (module Notes) applied to the arrays themselves."""
+def _track_in_place(s: np.ndarray, drive: np.ndarray, combine: np.ndarray, costs: np.ndarray | None = None) -> None:
+    """Tracking (module Notes) applied to the arrays themselves.
+
+    `costs` are the overlaps of :func:`_overlap_costs` of the arrays as
+    found, when already computed (on the workers, chunk by chunk).
+    """
     from scipy.optimize import linear_sum_assignment   # imported here: scipy.optimize is slow to import
 
     from .parallel import one_blas_thread
 
-    with one_blas_thread():   # small products: threaded BLAS only loses time here, badly so on a busy machine
-        costs = _overlap_costs(drive, combine)    # rows: channels of bin f-1 as found
-    found = np.arange(s.shape[1])                 # found[i]: bin f-1's index of tracked channel i
+    if costs is None:
+        with one_blas_thread():   # small products: threaded BLAS only loses time here, badly on a busy machine
+            costs = _overlap_costs(drive, combine)    # rows: channels of bin f-1 as found
+    same = np.arange(s.shape[1])
+    found = same                                  # found[i]: bin f-1's index of tracked channel i
     for f in range(1, s.shape[0]):
         rows, cols = linear_sum_assignment(-costs[f - 1][found])
         order = cols[np.argsort(rows)]
-        s[f] = s[f, order]
-        drive[f] = drive[f][:, order]
-        combine[f] = combine[f][:, order]
+        if not np.array_equal(order, same):       # most bins keep their order: no copies then
+            s[f] = s[f, order]
+            drive[f] = drive[f][:, order]
+            combine[f] = combine[f][:, order]
         # inner products of previous and new weights, per channel
         c = (np.sum(np.conj(drive[f - 1]) * drive[f], axis=0)
              + np.sum(combine[f - 1] * np.conj(combine[f]), axis=0))
@@ -283,20 +290,23 @@ class _ChunkJob:
     auto: bool
     floor_ratio: float
     single: bool = False           # decompose in complex64 (the full SVD only)
+    track: bool = False            # also return the overlaps of consecutive bins (for tracking)
 
 
 def _channels_of_chunk(job: _ChunkJob, item: tuple[np.ndarray, np.ndarray | None]):
     """Coupling matrices of one chunk of frequencies, built here, and their channels.
 
-    Returns (s, drive, combine, sum_rule, computed) for the chunk; with
-    truncation, unused columns are zero and ``computed`` counts the rest.
+    Returns (s, drive, combine, sum_rule, computed, costs) for the chunk;
+    with truncation, unused columns are zero and ``computed`` counts the
+    rest; ``costs`` are the tracking overlaps within the chunk (or None).
     """
     hz, k_first = item
     g = job.kernel.evaluate(hz)
     sum_rule = np.einsum("fms,fms->f", g.real, g.real) + np.einsum("fms,fms->f", g.imag, g.imag)
     if job.max_channels is None and not job.auto:
         s, drive, combine = decompose_stack(g.astype(np.complex64) if job.single else g)
-        return s, drive, combine, sum_rule, None
+        del g
+        return s, drive, combine, sum_rule, None, _overlap_costs(drive, combine) if job.track else None
     from .topk import leading_triplets, triplets_above_floor
 
     parts = [triplets_above_floor(g[f], int(k_first[f]), job.floor_ratio) if job.auto
@@ -312,7 +322,7 @@ def _channels_of_chunk(job: _ChunkJob, item: tuple[np.ndarray, np.ndarray | None
     drive = np.empty((len(hz), vh.shape[2], k), dtype=complex)
     combine = np.empty_like(u)
     _phase_fixed_into(u, vh, drive, combine)
-    return s, drive, combine, sum_rule, computed
+    return s, drive, combine, sum_rule, computed, None
 
 
 def bytes_per_frequency(n_mic: int, n_spk: int, n_chan: int | None = None) -> int:
@@ -461,22 +471,23 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
     if precision not in ("double", "single"):
         raise InputError(f"expected 'double' or 'single', got {precision!r}", field="precision")
     single = precision == "single" and fixed is None and not auto
-    job = _ChunkJob(source, fixed, auto, 10.0 ** (-abs(floor_db) / 20.0), single)
+    job = _ChunkJob(source, fixed, auto, 10.0 ** (-abs(floor_db) / 20.0), single, track and not auto)
     results = _gather(job, items, len(hz), n_mic, n_spk, n_all if fixed is None else fixed, auto,
                       n_workers, scheduler, progress)
-    s, drive, combine, sum_rule, computed = results
+    s, drive, combine, sum_rule, computed, costs = results
     if track:
-        _track_in_place(s, drive, combine)
+        _track_in_place(s, drive, combine, costs)
     return ChannelSet(axis, s, drive, combine, sum_rule, tuple(source.speaker_names), tuple(source.mic_names),
                       tracked=track, computed=computed)
 
 
 def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progress):
     """Run the chunks and put their results in frequency order (see :func:`decompose`)."""
-    from .parallel import iter_chunks
+    from .parallel import iter_chunks, one_blas_thread
 
     starts = np.cumsum([0] + [len(it[0]) for it in items])
     sum_rule = np.empty(n_freq)
+    costs = None
     if auto:  # the channel count is known only at the end: keep the chunks, then pad
         parts: list = [None] * len(items)
     else:
@@ -485,20 +496,28 @@ def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progr
         drive = np.empty((n_freq, n_spk, k), dtype=cplx)
         combine = np.empty((n_freq, n_mic, k), dtype=cplx)
         computed = None if job.max_channels is None else np.full(n_freq, k)
+        if job.track:
+            costs = np.empty((max(0, n_freq - 1), k, k))
     freq_done = 0
-    for i, (s_c, d_c, c_c, sr_c, comp_c) in iter_chunks(_channels_of_chunk, items, shared=job, workers=workers,
-                                                        scheduler=scheduler):
-        sl = slice(starts[i], starts[i + 1])
+    for i, (s_c, d_c, c_c, sr_c, comp_c, cost_c) in iter_chunks(_channels_of_chunk, items, shared=job,
+                                                                workers=workers, scheduler=scheduler):
+        a, b = starts[i], starts[i + 1]
+        sum_rule[a:b] = sr_c
         freq_done += len(sr_c)
-        sum_rule[sl] = sr_c
         if auto:
             parts[i] = (s_c, d_c, c_c, comp_c)
         else:
-            s[sl], drive[sl], combine[sl] = s_c, d_c, c_c
+            s[a:b], drive[a:b], combine[a:b] = s_c, d_c, c_c
+            if costs is not None:
+                costs[a:b - 1] = cost_c
         if progress is not None:
             progress(freq_done, n_freq)
     if not auto:
-        return s, drive, combine, sum_rule, computed
+        if costs is not None:   # the seams between chunks
+            with one_blas_thread():
+                for a in starts[1:-1]:
+                    costs[a - 1] = _overlap_costs(drive[a - 1:a + 1], combine[a - 1:a + 1])[0]
+        return s, drive, combine, sum_rule, computed, costs
     k = max(p[0].shape[1] for p in parts)
     s = np.zeros((n_freq, k))
     drive = np.zeros((n_freq, n_spk, k), dtype=complex)
@@ -508,4 +527,4 @@ def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progr
         sl, kc = slice(starts[i], starts[i + 1]), s_c.shape[1]
         s[sl, :kc], drive[sl, :, :kc], combine[sl, :, :kc], computed[sl] = s_c, d_c, c_c, comp_c
         parts[i] = None
-    return s, drive, combine, sum_rule, computed
+    return s, drive, combine, sum_rule, computed, None
