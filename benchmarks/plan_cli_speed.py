@@ -11,7 +11,8 @@ cli     ``arrayplan plan RIG --out DIR --no-figures`` end to end (start-up,
         against (a) one batched numpy.linalg.svd of the same complex128 stack
         in this process (stack built beforehand, not timed) and (b) the same
         stack built and decomposed in 2 forked processes with 1 BLAS thread
-        each (pool start-up included, as the command's is).
+        each (pool start-up included, as the command's is).  The start-up
+        of ``arrayplan --version`` is also measured and subtracted.
 track   the same command with ``--track`` against without.
 topk    1024 x 1024 at 16 frequencies: ``max_channels="auto"`` against the
         full numpy.linalg.svd of the same stack, and the largest error of the
@@ -107,6 +108,14 @@ def run_cli(rig_path: Path, out: Path, *flags: str) -> float:
     return time.perf_counter() - t0
 
 
+def startup_time() -> float:
+    """Wall time of ``arrayplan --version`` (interpreter and command-line start-up), s."""
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    t0 = time.perf_counter()
+    subprocess.run([sys.executable, "-m", "arrayplan", "--version"], check=True, env=env, stdout=subprocess.DEVNULL)
+    return time.perf_counter() - t0
+
+
 def log_axis(n_freq: int) -> np.ndarray:
     return np.geomspace(200.0, 8000.0, n_freq)
 
@@ -125,6 +134,7 @@ def part_cli(tmp: Path, repeats: int, track: bool) -> None:
             times.setdefault("svd", []).append(time.perf_counter() - t0)
             times.setdefault("two", []).append(two_process_reference(spk, mic, hz))
             times.setdefault("cli", []).append(run_cli(rig, tmp / "out"))
+            times.setdefault("start", []).append(startup_time())
             if track:
                 times.setdefault("track", []).append(run_cli(rig, tmp / "out", "--track"))
         med = {k: statistics.median(v) for k, v in times.items()}
@@ -132,6 +142,9 @@ def part_cli(tmp: Path, repeats: int, track: bool) -> None:
               f"{med['two']:.2f} s, arrayplan plan (CLI, no figures) {med['cli']:.2f} s")
         print(f"  CLI / batched svd = {med['cli'] / med['svd']:.2f}   CLI / 2-process reference = "
               f"{med['cli'] / med['two']:.2f}")
+        work = med["cli"] - med["start"]
+        print(f"  of which start-up (arrayplan --version) {med['start']:.2f} s; without it: / batched svd = "
+              f"{work / med['svd']:.2f}, / 2-process reference = {work / med['two']:.2f}")
         if track:
             print(f"  --track {med['track']:.2f} s; tracked / untracked = {med['track'] / med['cli']:.2f}")
 
