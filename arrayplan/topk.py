@@ -85,12 +85,18 @@ def triplets_above_floor(g: np.ndarray, k_first: int, floor_ratio: float
     u, s, vh
         As :func:`leading_triplets`, with K doubled from `k_first` until
         the weakest computed singular value is at or below
-        ``floor_ratio * s[0]``, or K is min(n_mic, n_spk) (all of them).
+        ``floor_ratio * s[0]``.  Once K is large enough for the full SVD to
+        be faster, one full SVD is made and cut after the first singular
+        value at or below the floor (or kept whole).
     """
     n = min(g.shape)
     k = int(min(max(1, k_first), n))
-    while True:
+    while k * _FULL_SVD_SHARE <= n and n >= 16:
         u, s, vh = leading_triplets(g, k)
-        if k == n or s[-1] <= floor_ratio * s[0]:
+        if s[-1] <= floor_ratio * s[0]:
             return u, s, vh
         k = min(2 * k, n)
+    # past the point where the full SVD is faster: one full SVD, cut just below the floor
+    u, s, vh = np.linalg.svd(g, full_matrices=False)
+    keep = min(n, int(np.count_nonzero(s > floor_ratio * s[0])) + 1)
+    return np.ascontiguousarray(u[:, :keep]), s[:keep].copy(), np.ascontiguousarray(vh[:keep])
