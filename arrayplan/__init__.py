@@ -19,19 +19,56 @@ of an impulse response); singular values descending; 0-based indices in
 the API, 1-based at the command line and hardware edge.
 """
 
-from ._version import __version__
-from .channels import ChannelSet, decompose
-from .coupling import CouplingStack
-from .errors import ArrayplanError, InputError
-from .field import channel_field
-from .frequency import FrequencyAxis
-from .heuristics import paraxial_estimate
-from .irset import IRSet, read_irset, write_irset
-from .kernels import FreeFieldKernel
-from .plan_files import read_weights, write_plan
-from .planning import Plan, plan_rig
-from .rig import Rig, load_rig
-from .simulate import free_field_irset
+import sys as _sys
+
+
+def _started_as_command() -> bool:
+    """True when this process is the ``arrayplan`` command (``python -m arrayplan`` or the script)."""
+    orig = list(getattr(_sys, "orig_argv", []))
+    as_module = any(a == "-m" and b == "arrayplan" for a, b in zip(orig, orig[1:]))
+    script = bool(_sys.argv) and _sys.argv[0].replace("\\", "/").rsplit("/", 1)[-1] in ("arrayplan", "arrayplan.exe")
+    return as_module or script
+
+
+if _started_as_command():
+    # Ctrl-C before the command line's own handling is in place (while modules load): one line, status 130,
+    # no traceback.  arrayplan.cli.main puts Python's usual KeyboardInterrupt back once it runs.
+    import os as _os
+    import signal as _signal
+
+    def _quiet_interrupt(signum, frame):  # pragma: no cover - exercised in a child process
+        _os.write(2, b"arrayplan: interrupted\n")
+        _os._exit(130)
+
+    _signal.signal(_signal.SIGINT, _quiet_interrupt)
+
+from ._version import __version__  # noqa: E402
+from .errors import ArrayplanError, InputError  # noqa: E402
+
+#: Public names imported on first use (PEP 562), so that ``import arrayplan`` and the command line's
+#: ``--help`` and ``--version`` stay light: numpy and scipy load only when a name below is used.
+_LAZY = {
+    "ChannelSet": ".channels", "decompose": ".channels", "CouplingStack": ".coupling",
+    "channel_field": ".field", "FrequencyAxis": ".frequency", "paraxial_estimate": ".heuristics",
+    "IRSet": ".irset", "read_irset": ".irset", "write_irset": ".irset", "FreeFieldKernel": ".kernels",
+    "read_weights": ".plan_files", "write_plan": ".plan_files", "Plan": ".planning", "plan_rig": ".planning",
+    "Rig": ".rig", "load_rig": ".rig", "free_field_irset": ".simulate",
+}
+
+
+def __getattr__(name: str):
+    if name in _LAZY:
+        import importlib
+
+        value = getattr(importlib.import_module(_LAZY[name], __name__), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'arrayplan' has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_LAZY))
+
 
 __all__ = ["__version__", "ArrayplanError", "InputError", "ChannelSet", "decompose", "CouplingStack",
            "channel_field", "FrequencyAxis", "paraxial_estimate", "IRSet", "read_irset", "write_irset",

@@ -11,6 +11,28 @@ theta from the element's axis, normalised to 1 on axis:
 * first-order patterns ``D = alpha + (1 - alpha) cos theta``: ``cardioid``
   (alpha = 0.5), ``supercardioid`` (0.37), ``hypercardioid`` (0.25),
   ``figure8`` (0), or ``first_order`` with an explicit ``alpha``.
+
+Notes
+-----
+Level convention.  Every pattern is 1 on axis, so an element of unit
+strength gives, on its axis in the far field, the pressure of an omni
+(monopole) element of unit strength: ``exp(-jkr) / (4 pi r)``.  For a
+piston this is a choice, not the physics of a given volume velocity: a
+rigid piston in an infinite baffle radiates into a half space, and for the
+same volume velocity Q its far-field on-axis pressure is twice that of a
+monopole in free space (``j rho c k Q / (2 pi r)`` against
+``j rho c k Q / (4 pi r)``, +6.02 dB; Kinsler et al., *Fundamentals of
+Acoustics*, 4th ed., 2000, sections 7.1 and 7.4).  So a piston's strength
+in arrayplan is that of the monopole giving the same on-axis far-field
+pressure, a monopole moving twice the piston's volume velocity.  In a rig that mixes pistons and
+omnis, equal drive means equal on-axis far-field level, not equal volume
+velocity: a piston and an omni moving the same volume velocity differ by
+6 dB on axis, which the coupling does not include (add it to the piston's
+drive if that is what the hardware does).  A piston used as a microphone
+likewise has unit on-axis sensitivity, without the pressure doubling at
+its baffle.  The pattern is a far-field one: within the Rayleigh distance
+``pi a^2 / lambda`` the on-axis pressure of a real piston departs from it
+by several dB, and ``check-rig`` warns about microphones there.
 """
 
 from __future__ import annotations

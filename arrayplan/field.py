@@ -1,8 +1,10 @@
 """The pressure field that one channel's drive weights produce over a plane.
 
-p(x) = sum_s G(x, s) v_s with the free-field kernel (speaker directivity
-included, receivers omnidirectional), for unit-energy drive weights v.
-Unit: Pa per unit source strength, the same unit as the coupling stack.
+p(x) = sum_s G(x, s) v_s with the rig's model kernel: the room's image
+sources when the rig has a ``[room]``, else the free field (speaker
+directivity included, receivers omnidirectional), for unit-energy drive
+weights v.  Unit: Pa per unit source strength, the same unit as the
+coupling stack.  In a room the default plane spans the room's cross-section.
 """
 
 from __future__ import annotations
@@ -14,6 +16,7 @@ import numpy as np
 from .directivity import OMNI
 from .errors import InputError
 from .kernels.freefield import FreeFieldKernel
+from .kernels.room import RoomKernel
 from .rig import ElementSet, Rig
 
 __all__ = ["PlaneGrid", "channel_field", "default_plane", "best_plane"]
@@ -53,14 +56,23 @@ class PlaneGrid:
 
 def default_plane(rig: Rig, plane: str = "xz", offset: float | None = None, resolution: int = 161,
                   margin: float = 0.25) -> PlaneGrid:
-    """A grid over the rig's bounding box in `plane`, grown by `margin` of its size on each side."""
+    """A grid over the rig's bounding box in `plane`, grown by `margin` of its size on each side.
+
+    For a rig in a room the grid spans the room's cross-section (walls
+    included) instead, and the plane's offset is kept inside the room.
+    """
     if plane not in _AXES:
-        raise InputError(f"plane must be one of {', '.join(_AXES)}, got {plane!r}", field="--plane")
+        raise InputError(f"plane must be one of {', '.join(_AXES)}, got {plane!r}", field="plane")
     i, j, k = _AXES[plane]
     pts = np.vstack([rig.speakers.positions, rig.mics.positions])
     lo, hi = pts.min(axis=0), pts.max(axis=0)
     size = np.maximum(hi - lo, 0.05 * np.max(hi - lo))
     lo, hi = lo - margin * size, hi + margin * size
+    if rig.room is not None:
+        lo, hi = np.zeros(3), np.asarray(rig.room.size_m, dtype=float)
+        if offset is not None and not 0.0 <= offset <= hi[k]:
+            raise InputError(f"the plane at {offset:g} m lies outside the room (0..{hi[k]:g} m along "
+                             f"{'xyz'[k]})", field="offset")
     if offset is None:
         offset = float(pts[:, k].mean())
     u = np.linspace(lo[i], hi[i], resolution)
@@ -99,6 +111,8 @@ def channel_field(rig: Rig, drive_weights: np.ndarray, frequency_hz: float, grid
         chunk = pts[start:start + step]
         sub = ElementSet(tuple(f"p{start + i}" for i in range(len(chunk))), chunk, (OMNI,) * len(chunk),
                          tuple(range(1, len(chunk) + 1)))
-        g = FreeFieldKernel.between(rig.speakers, sub, rig.medium).evaluate(np.array([frequency_hz]))[0]
+        kernel = (RoomKernel.between(rig.speakers, sub, rig.medium, rig.room) if rig.room is not None
+                  else FreeFieldKernel.between(rig.speakers, sub, rig.medium))
+        g = kernel.evaluate(np.array([frequency_hz]))[0]
         out[start:start + step] = g @ w
     return out.reshape(len(grid.v), len(grid.u))

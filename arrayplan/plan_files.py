@@ -20,7 +20,9 @@ Files (all written together, atomically, by :func:`write_plan`):
     re, im`` with side ``drive`` or ``combine``.
 ``weights.json``
     The sidecar: conventions, normalisation, units, element names and
-    order, settings, tool version and the rig's hash.
+    order, settings, tool version and the rig's hash; for a plan made from
+    measured responses, the ``measurement`` it was made from
+    (:func:`measurement_record`) and the coupling's units in that set's units.
 ``rig.png``, ``couplings.png``, ``channel-counts.png``
     Figures.
 """
@@ -38,14 +40,19 @@ import numpy as np
 
 from .channels import ChannelSet
 from .errors import InputError
-from .fileio import atomic_path, provenance, staged_output_dir, write_json_atomic
+from .fileio import atomic_path, check_folder, provenance, staged_output_dir, write_json_atomic
 from .frequency import FrequencyAxis
 from .heuristics import paraxial_estimate
 from .planning import Plan
 from .rig import Rig
 
-__all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "long_table_rows",
-           "LONG_TABLE_MAX_ROWS"]
+__all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
+           "coupling_text", "long_table_rows", "LONG_TABLE_MAX_ROWS"]
+
+#: What one unit of a measured coupling means, by the IR set's units (see :data:`arrayplan.irset.UNITS`).
+MEASURED_UNITS = {"full_scale": "input full scale per output full scale (uncalibrated)",
+                  "pascal_per_full_scale": "Pa per output full scale",
+                  "pascal_per_volt": "Pa per V at the speaker terminals"}
 
 NORMALISATION = ("drive and combine weight vectors have unit Euclidean norm per channel and frequency; "
                  "combine^T G drive = diag(singular_value)")
@@ -79,7 +86,8 @@ def long_table_rows(plan: Plan) -> int:
     return int(np.sum(ch.channels_computed())) * (len(ch.speaker_names) + len(ch.mic_names))
 
 
-def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *, long_weights: bool | None = None,
+def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *,
+               measurement: dict[str, Any] | None = None, long_weights: bool | None = None,
                progress: Callable[[float, float], None] | None = None) -> list[Path]:
     """Write every plan file into `out_dir` (created if needed); return their paths.
 
@@ -89,6 +97,9 @@ def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *, 
     out_dir : path
     figures : bool
         Draw the figures too.
+    measurement : dict, optional
+        For a plan made from measured responses: :func:`measurement_record`
+        of the IR set and kernel, stored in ``weights.json``.
     long_weights : bool, optional
         Write the long table ``weights.csv``: True always, False never,
         None (default) when it has at most :data:`LONG_TABLE_MAX_ROWS` rows.
@@ -96,6 +107,10 @@ def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *, 
     progress : callable, optional
         ``progress(done, total)`` while the files are written (in units of
         table rows).
+
+    Returns
+    -------
+    list of Path
 
     Notes
     -----
@@ -128,7 +143,7 @@ def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *, 
         advance(steps[2])
         if with_long:
             _write_weights_csv(plan, stage / "weights.csv", lambda f: advance(steps[3] / max(1, n_freq)))
-        write_json_atomic(stage / "weights.json", _sidecar(plan, with_long))
+        write_json_atomic(stage / "weights.json", _sidecar(plan, with_long) | _measurement_fields(measurement))
         advance(steps[4])
         if figures:
             _write_figures(plan, stage)
@@ -207,7 +222,8 @@ def _sidecar(plan: Plan, with_long: bool = True) -> dict[str, Any]:
         "rig": {"name": rig.name, "source": rig.source, "sha256": rig.sha256,
                 "speed_of_sound_m_per_s": rig.medium.speed_of_sound, "air_absorption": rig.medium.air_absorption},
         "kernel": plan.kernel_name,
-        "coupling": "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)",
+        "kernel_settings": plan.kernel_settings,
+        "coupling": coupling_text(),
         "channels": "G = U S V^H per frequency; drive = V, combine = conj(U); power coupling = s^2",
         "normalisation": NORMALISATION,
         "phase_convention": PHASE,
@@ -233,8 +249,85 @@ def _sidecar(plan: Plan, with_long: bool = True) -> dict[str, Any]:
                                   f"not written: {long_table_rows(plan)} rows exceed {LONG_TABLE_MAX_ROWS}; "
                                   "weights.npz holds every weight (ask for the long table to write it)")},
         "provenance": provenance(rig_sha256=rig.sha256),
+        **_piston_note(rig),
     }
     return doc
+
+
+def _piston_note(rig) -> dict[str, str]:
+    """The level convention of pistons (see arrayplan.directivity), for a rig that has any."""
+    sides = {side: {d.kind for d in elements.directivities}
+             for side, elements in (("speakers", rig.speakers), ("microphones", rig.mics))}
+    if not any("piston" in kinds for kinds in sides.values()):
+        return {}
+    note = ("piston patterns are 1 on axis: a piston of unit strength gives on axis, in the far field, the "
+            "pressure of an omni of unit strength; a real baffled piston moving the same volume velocity gives "
+            "+6 dB (half-space radiation), which the coupling does not include")
+    mixed = [side for side, kinds in sides.items() if "piston" in kinds and kinds - {"piston"}]
+    if mixed:
+        note += (f"; the {' and '.join(mixed)} mix pistons with other patterns, so their relative levels compare "
+                 "equal on-axis far-field output, not equal volume velocity")
+    return {"level_convention": note + "; valid beyond the Rayleigh distance pi a^2 / lambda"}
+
+
+def coupling_text(units: str | None = None) -> str:
+    """The ``coupling`` line of ``weights.json``: free field (`units` None) or an IR set's `units`."""
+    if units is None:
+        return "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)"
+    return (f"G[f, m, s]: measured transfer function from speaker s's drive to microphone m, in the IR set's "
+            f"units: {MEASURED_UNITS.get(units, units)}")
+
+
+def measurement_record(irset_path: str | os.PathLike, kernel: Any) -> dict[str, Any]:
+    """What ``weights.json`` records of the IR set a plan was made from.
+
+    Parameters
+    ----------
+    irset_path : path
+        The IR-set folder (its ``irset.json`` is hashed) or AES69 (SOFA) file
+        (the file is hashed).
+    kernel : MeasuredKernel
+        The kernel planned from (:class:`arrayplan.kernels.measured.MeasuredKernel`):
+        its units, window (s), latency (samples) and smoothing (octaves).
+
+    Returns
+    -------
+    dict
+        ``irset`` (``path``, ``sha256`` and ``hashed_file``, ``format``,
+        ``format_version``), ``units``, ``units_meaning``, ``sample_rate_hz``,
+        ``zero_lag_samples``, ``window_ms``, ``latency_samples`` and
+        ``smoothing_octaves`` (None where not used).
+    """
+    import hashlib
+
+    path = Path(irset_path)
+    hashed = path if path.suffix.lower() == ".sofa" else path / "irset.json"
+    try:
+        raw = hashed.read_bytes()
+    except OSError as exc:
+        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(hashed)) from None
+    if hashed.suffix.lower() == ".sofa":
+        fmt, version = "AES69 (SOFA)", None
+    else:
+        try:
+            manifest = json.loads(raw.decode("utf-8"))
+        except (UnicodeDecodeError, json.JSONDecodeError):
+            manifest = {}
+        fmt, version = manifest.get("format"), manifest.get("format_version")
+    return {"irset": {"path": str(path), "hashed_file": hashed.name, "sha256": hashlib.sha256(raw).hexdigest(),
+                      "format": fmt, "format_version": version},
+            "units": kernel.units, "units_meaning": MEASURED_UNITS.get(kernel.units, kernel.units),
+            "sample_rate_hz": float(kernel.sample_rate_hz), "zero_lag_samples": int(kernel.zero_lag_samples),
+            "window_ms": None if kernel.window_s is None else 1e3 * float(kernel.window_s),
+            "latency_samples": int(kernel.latency_samples),
+            "smoothing_octaves": kernel.smoothing_octaves}
+
+
+def _measurement_fields(measurement: dict[str, Any] | None) -> dict[str, Any]:
+    """The ``weights.json`` fields of a plan made from measured responses (none for a free-field plan)."""
+    if measurement is None:
+        return {}
+    return {"coupling": coupling_text(measurement["units"]), "measurement": measurement}
 
 
 def _write_figures(plan: Plan, folder: Path) -> None:
@@ -272,8 +365,55 @@ class PlanWeights:
         self.computed = computed      # (n_freq,) channels computed in a truncated plan, else None
 
 
+#: Arrays of ``weights.npz`` and the number of dimensions of each.
+_WEIGHT_ARRAYS = {"frequency_hz": 1, "singular_value": 2, "drive": 3, "combine": 3, "speaker_names": 1,
+                  "mic_names": 1}
+
+
+#: Arrays that newer plans add: the sum rule from G, and the channels computed of a truncated plan.
+_OPTIONAL_ARRAYS = ("sum_rule", "computed_channels")
+
+
+def _weight_arrays(npz: Path) -> dict[str, np.ndarray]:
+    """The arrays of a plan's ``weights.npz``, with their shapes checked against each other."""
+    import zipfile
+
+    src = str(npz)
+    try:
+        with np.load(npz, allow_pickle=False) as z:
+            missing = sorted(set(_WEIGHT_ARRAYS) - set(z.files))
+            if missing:
+                raise InputError(f"has no array {', '.join(missing)}", source=src,
+                                 fix="run 'arrayplan plan' again to rewrite the folder")
+            data = {k: z[k] for k in _WEIGHT_ARRAYS}
+            data.update({k: z[k] for k in _OPTIONAL_ARRAYS if k in z.files})
+    except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:
+        raise InputError(f"not a readable NumPy archive ({exc.__class__.__name__}: {' '.join(str(exc).split())})",
+                         source=src, fix="run 'arrayplan plan' again to rewrite the folder") from None
+    for key, ndim in _WEIGHT_ARRAYS.items():
+        if data[key].ndim != ndim:
+            raise InputError(f"expected {ndim} dimensions, got shape {data[key].shape}", source=src, field=key)
+    n_f, n_c = data["singular_value"].shape
+    expected = {"frequency_hz": (n_f,), "drive": (n_f, len(data["speaker_names"]), n_c),
+                "combine": (n_f, len(data["mic_names"]), n_c)}
+    for key, shape in expected.items():
+        if data[key].shape != shape:
+            raise InputError(f"shape {data[key].shape} does not match the other arrays (expected {shape})",
+                             source=src, field=key)
+    return data
+
+
 def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
-    """Read ``weights.npz`` and ``weights.json`` from a plan folder, with checks."""
+    """Read ``weights.npz`` and ``weights.json`` from a plan folder, with checks.
+
+    The folder must match its checksums (:func:`arrayplan.fileio.check_folder`),
+    so weights of one run are never read beside a sidecar of another.
+
+    Raises
+    ------
+    InputError
+        A missing, damaged or mixed file, naming it.
+    """
     folder = Path(plan_dir)
     npz, side = folder / "weights.npz", folder / "weights.json"
     for p in (npz, side):
@@ -281,16 +421,15 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
             raise InputError("missing", source=str(p), fix="point at a folder written by 'arrayplan plan'")
     try:
         sidecar = json.loads(side.read_text(encoding="utf-8"))
-        with np.load(npz, allow_pickle=False) as z:
-            data = {k: z[k] for k in ("frequency_hz", "singular_value", "drive", "combine", "speaker_names",
-                                      "mic_names")}
-            optional = {k: z[k] for k in ("sum_rule", "computed_channels") if k in z.files}
-    except (ValueError, KeyError, OSError) as exc:
-        raise InputError(f"cannot read plan weights ({exc})", source=str(folder)) from None
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
+        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(side),
+                         fix="run 'arrayplan plan' again to rewrite the folder") from None
+    data = _weight_arrays(npz)
+    check_folder(folder, needed=("weights.*", "*.csv"))
     return PlanWeights(FrequencyAxis(data["frequency_hz"], source=str(npz)), data["singular_value"],
                        data["drive"], data["combine"], tuple(str(x) for x in data["speaker_names"]),
-                       tuple(str(x) for x in data["mic_names"]), sidecar, optional.get("sum_rule"),
-                       optional.get("computed_channels"))
+                       tuple(str(x) for x in data["mic_names"]), sidecar, data.get("sum_rule"),
+                       data.get("computed_channels"))
 
 
 def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None) -> Plan:

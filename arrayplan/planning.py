@@ -17,7 +17,7 @@ from .coupling import Kernel
 from .errors import InputError
 from .frequency import FrequencyAxis
 from .heuristics import ParaxialEstimate, paraxial_estimate
-from .kernels.freefield import FreeFieldKernel
+from .kernels import kernel_settings, rig_kernel
 from .rig import Rig
 
 __all__ = ["Plan", "plan_rig"]
@@ -35,6 +35,8 @@ class Plan:
     threshold_db, snr_db : float
         The settings the strong and usable counts were made with.
     kernel_name : str
+    kernel_settings : dict
+        The kernel and its settings (for a room: size, absorption, order).
     """
 
     rig: Rig
@@ -43,6 +45,7 @@ class Plan:
     threshold_db: float
     snr_db: float
     kernel_name: str = "free field"
+    kernel_settings: dict | None = None
 
     @property
     def strong_channels(self) -> np.ndarray:
@@ -66,7 +69,8 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
     axis : FrequencyAxis, optional
         Frequencies (default: the rig file's ``[frequencies]``).
     kernel : Kernel, optional
-        Source of the coupling matrices (default: the free field of `rig`).
+        Source of the coupling matrices (default: the rig's room when it has
+        one, else its free field).  It must pickle to run on workers.
     threshold_db, snr_db, track, chunk_size, workers, max_channels, memory_mb : optional
         Override the rig file's ``[planning]`` settings (see
         :func:`arrayplan.channels.decompose`; ``max_channels="auto"`` starts
@@ -85,9 +89,9 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
     axis = axis if axis is not None else rig.frequencies
     if axis is None:
         raise InputError("no frequencies to plan at", source=rig.source, field="frequencies",
-                         fix="add a [frequencies] table or give --freq")
+                         fix="add a [frequencies] table or give the frequencies to plan at")
     settings = rig.planning
-    kern = kernel if kernel is not None else FreeFieldKernel(rig)
+    kern = kernel if kernel is not None else rig_kernel(rig)
     estimate = paraxial_estimate(rig.speakers.positions, rig.mics.positions,
                                  axis.wavelengths(rig.medium.speed_of_sound))
     snr = settings.snr_db if snr_db is None else float(snr_db)
@@ -102,6 +106,7 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
         if exc.field != "max_channels" or max_channels is not None:
             raise
         raise InputError(exc.problem, source=rig.source, field="planning.max_channels", fix=exc.fix) from None
+    described = kernel_settings(kern)
     return Plan(rig, channels, estimate,
                 settings.threshold_db if threshold_db is None else float(threshold_db), snr,
-                "free field" if kernel is None else getattr(kernel, "name", type(kernel).__name__))
+                getattr(kern, "name", described["kernel"]), described)

@@ -1,7 +1,7 @@
 """Progress bars on stderr for long work, shown only on a terminal.
 
-A :class:`ProgressBar` draws one line, redrawn in place with a carriage
-return::
+A :class:`ProgressBar` draws one line, redrawn in place by tqdm (a
+maintained progress-bar library) with arrayplan's own text::
 
     planning [##########..............]  42%  20/48  0:03 elapsed, 0:04 left
 
@@ -25,6 +25,8 @@ import threading
 import time
 from contextlib import contextmanager
 from typing import Callable, Iterator, TextIO
+
+from tqdm import tqdm
 
 __all__ = ["ProgressBar", "progress_wanted", "format_duration", "mini_bar", "ticking",
            "PROGRESS_ENV", "CI_ENV"]
@@ -88,6 +90,27 @@ def _columns(stream: TextIO) -> int:
         return 80
 
 
+class _Line(tqdm):
+    """A tqdm bar that draws its owner's line (:meth:`ProgressBar.text`) instead of tqdm's meter.
+
+    tqdm does the drawing in place, the rate limiting, printing above the bar,
+    and ending or erasing the line; the owner supplies the text and the clock.
+    """
+
+    monitor_interval = 0  # no monitor thread: the owner decides when to redraw
+
+    def __init__(self, owner: "ProgressBar", initial: float) -> None:
+        self._owner = owner
+        super().__init__(total=owner.total, initial=initial, file=owner.stream, position=0, leave=True,
+                         mininterval=owner.min_interval_s, miniters=0, maxinterval=0, smoothing=0,
+                         dynamic_ncols=False, ncols=_columns(owner.stream))
+        self._time = owner._clock
+        self.last_print_t = self.start_t = owner._clock()
+
+    def format_meter(self, *args, **kwargs) -> str:  # type: ignore[override]
+        return self._owner._fitted(self._owner._clock())
+
+
 class ProgressBar:
     """A one-line progress bar: label, bar, percent, count, detail, elapsed and time left.
 
@@ -113,7 +136,8 @@ class ProgressBar:
 
     Notes
     -----
-    Call it as ``bar(done, total)`` (the callback form) or use
+    Drawn by tqdm (a maintained progress-bar library) with arrayplan's own
+    line.  Call it as ``bar(done, total)`` (the callback form) or use
     :meth:`update`; ``done`` may be fractional.  Reaching ``done >= total``
     draws the final state and ends the line.  Elapsed time counts from
     construction, or from a first update with ``done == 0``, or from the
@@ -137,8 +161,7 @@ class ProgressBar:
         self.done: float = 0.0
         self._clock = clock
         self._start: float = clock()
-        self._last_draw: float | None = None
-        self._shown = 0          # length of the line now on screen, 0 when none
+        self._line: _Line | None = None   # the tqdm bar on screen, None when none is
         self._finished = False
         self._lock = threading.RLock()
 
@@ -157,31 +180,31 @@ class ProgressBar:
                 self.label = label
             if detail is not None:
                 self.detail = detail
-            self.done = done
             if not self.enabled:
+                self.done = done
                 return
             now = self._clock()
             if self._finished:  # used again after it finished: a new run
-                self._start, self._last_draw, self._finished = now, None, False
-            elif done == 0 and self._last_draw is None:  # "starting now"
+                self._start, self._finished = now, False
+            elif done == 0 and self._line is None:  # "starting now"
                 self._start = now
-            complete = self.total is not None and done >= self.total
-            if complete:
-                self._draw(now)
-                self._end_line()
+            self.done = done
+            if self._line is None:
+                self._line = _Line(self, done)   # draws the first state
+            else:
+                self._line.total = self.total
+                self._line.update(done - self._line.n)
+                if force:
+                    self._line.refresh()
+            if self.total is not None and done >= self.total:
+                self._close(leave=True)
                 self._finished = True
-                return
-            if force or self._last_draw is None or now - self._last_draw >= self.min_interval_s:
-                self._draw(now)
 
     def print_above(self, text: str) -> None:
         """Print a line of text above the bar (or just print it when no bar is shown)."""
         with self._lock:
-            if self._shown:
-                self.stream.write("\r" + " " * self._shown + "\r")
-                self._shown = 0
-                self.stream.write(text + "\n")
-                self._draw(self._clock())
+            if self._line is not None:
+                self._line.write(text, file=self.stream)
             else:
                 self.stream.write(text + "\n")
             self.stream.flush()
@@ -190,19 +213,21 @@ class ProgressBar:
     def finish(self) -> None:
         """Draw the last state and end the line (nothing if no bar is on screen)."""
         with self._lock:
-            if self.enabled and self._shown and not self._finished:
-                self._draw(self._clock())
-                self._end_line()
+            self._close(leave=True)
             self._finished = True
 
     def clear(self) -> None:
         """Erase the bar's line, leaving the cursor at its start."""
         with self._lock:
-            if self._shown:
-                self.stream.write("\r" + " " * self._shown + "\r")
-                self.stream.flush()
-                self._shown = 0
+            self._close(leave=False)
             self._finished = True
+
+    def _close(self, leave: bool) -> None:
+        if self._line is not None:
+            self._line.leave = leave
+            self._line.close()
+            self.stream.flush()
+            self._line = None
 
     def __enter__(self) -> "ProgressBar":
         return self
@@ -213,7 +238,7 @@ class ProgressBar:
         else:
             self.clear()
 
-    # -- drawing --------------------------------------------------------------------------------
+    # -- the line -------------------------------------------------------------------------------
     def text(self, now: float | None = None) -> str:
         """The line as it would be drawn at clock time `now`."""
         now = self._clock() if now is None else now
@@ -222,8 +247,7 @@ class ProgressBar:
         total = self.total
         if total:
             frac = min(1.0, max(0.0, self.done / total))
-            filled = int(self.width * frac)
-            parts.append("[" + "#" * filled + "." * (self.width - filled) + f"] {int(100 * frac):3d}%")
+            parts.append(mini_bar(frac, self.width) + f" {int(100 * frac):3d}%")
             if self.show_count:
                 parts.append(f"{_count(self.done)}/{_count(total)}")
         elif self.show_count:
@@ -246,19 +270,6 @@ class ProgressBar:
             if keep < len(self.label):
                 line = self.label[:keep - 1] + "~" + line[len(self.label):]
         return line[:room]
-
-    def _draw(self, now: float) -> None:
-        line = self._fitted(now)
-        pad = " " * max(0, self._shown - len(line))
-        self.stream.write("\r" + line + pad)
-        self.stream.flush()
-        self._shown = len(line)
-        self._last_draw = now
-
-    def _end_line(self) -> None:
-        self.stream.write("\n")
-        self.stream.flush()
-        self._shown = 0
 
 
 def _count(x: float) -> str:

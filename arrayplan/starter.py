@@ -17,9 +17,12 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable
+
+import numpy as np
 
 from ._version import __version__
 from .errors import InputError
@@ -134,10 +137,10 @@ def _driver_radius(spacing: float, largest: float) -> float:
 # ------------------------------------------------------------ layouts
 
 def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    n_s, n_m = _count(o["speakers"], "--speakers"), _count(o["mics"], "--mics")
-    d_s = _positive(o["spacing"], "--spacing", "metres")
-    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "--mic-spacing", "metres")
-    dist = _positive(o["distance"], "--distance", "metres")
+    n_s, n_m = _count(o["speakers"], "speakers"), _count(o["mics"], "mics")
+    d_s = _positive(o["spacing"], "spacing", "metres")
+    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "mic_spacing", "metres")
+    dist = _positive(o["distance"], "distance", "metres")
     a = _driver_radius(d_s, 0.015)
     return [
         _table("speakers", "the transmitting line: small drivers on a bar", array=True),
@@ -164,10 +167,10 @@ def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
 
 
 def _facing_grids(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    (su, sv), (mu, mv) = parse_counts(o["speakers"], "--speakers"), parse_counts(o["mics"], "--mics")
-    d_s = _positive(o["spacing"], "--spacing", "metres")
-    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "--mic-spacing", "metres")
-    dist = _positive(o["distance"], "--distance", "metres")
+    (su, sv), (mu, mv) = parse_counts(o["speakers"], "speakers"), parse_counts(o["mics"], "mics")
+    d_s = _positive(o["spacing"], "spacing", "metres")
+    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "mic_spacing", "metres")
+    dist = _positive(o["distance"], "distance", "metres")
     a = _driver_radius(d_s, 0.015)
     return [
         _table("speakers", "a flat panel of drivers", array=True),
@@ -194,13 +197,13 @@ def _facing_grids(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
 
 
 def _ring_zone(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    n_s = _count(o["speakers"], "--speakers", minimum=3)
-    mu, mv = parse_counts(o["mics"], "--mics")
-    radius = _positive(o["radius"], "--radius", "metres")
-    d_m = _positive(o["mic_spacing"], "--mic-spacing", "metres")
+    n_s = _count(o["speakers"], "speakers", minimum=3)
+    mu, mv = parse_counts(o["mics"], "mics")
+    radius = _positive(o["radius"], "radius", "metres")
+    d_m = _positive(o["mic_spacing"], "mic_spacing", "metres")
     if max(mu - 1, mv - 1) * d_m * math.sqrt(2) / 2 >= 0.9 * radius:
         raise InputError(f"a {mu}x{mv} grid at {d_m:g} m does not fit well inside a ring of radius {radius:g} m",
-                         source="--mic-spacing", fix="use fewer microphones, closer spacing or a larger --radius")
+                         source="mic_spacing", fix="use fewer microphones, closer spacing or a larger `radius`")
     chord = 2.0 * radius * math.sin(math.pi / n_s)
     a = _driver_radius(chord, 0.05)
     return [
@@ -228,15 +231,15 @@ def _ring_zone(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
 
 
 def _two_zones(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    n_s = _count(o["speakers"], "--speakers")
-    mu, mv = parse_counts(o["mics"], "--mics")
-    d_s = _positive(o["spacing"], "--spacing", "metres")
-    d_m = _positive(o["mic_spacing"], "--mic-spacing", "metres")
-    dist = _positive(o["distance"], "--distance", "metres")
-    gap = _positive(o["zone_separation"], "--zone-separation", "metres")
+    n_s = _count(o["speakers"], "speakers")
+    mu, mv = parse_counts(o["mics"], "mics")
+    d_s = _positive(o["spacing"], "spacing", "metres")
+    d_m = _positive(o["mic_spacing"], "mic_spacing", "metres")
+    dist = _positive(o["distance"], "distance", "metres")
+    gap = _positive(o["zone_separation"], "zone_separation", "metres")
     if gap <= (mu - 1) * d_m:
         raise InputError(f"zones {gap:g} m apart overlap: each is {(mu - 1) * d_m:g} m wide",
-                         source="--zone-separation", fix="separate the zones further or use fewer microphones")
+                         source="zone_separation", fix="separate the zones further or use fewer microphones")
     a = _driver_radius(d_s, 0.04)
     lines = [
         _table("speakers", "a line array in front of both zones", array=True),
@@ -267,9 +270,9 @@ def _two_zones(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
 
 
 def _bench(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    n_s, n_m = _count(o["speakers"], "--speakers", minimum=1), _count(o["mics"], "--mics", minimum=1)
-    d = _positive(o["spacing"], "--spacing", "metres")
-    dist = _positive(o["distance"], "--distance", "metres")
+    n_s, n_m = _count(o["speakers"], "speakers", minimum=1), _count(o["mics"], "mics", minimum=1)
+    d = _positive(o["spacing"], "spacing", "metres")
+    dist = _positive(o["distance"], "distance", "metres")
     a = _driver_radius(d, 0.015)
     lines: list[str] = []
     for label, n, y, prefix, what in (("speakers", n_s, 0.0, "D", "driver"), ("microphones", n_m, dist, "K",
@@ -316,24 +319,26 @@ LAYOUTS: dict[str, Layout] = {lay.name: lay for lay in (
 
 #: Options every layout takes (besides its own).
 COMMON_DEFAULTS: dict[str, Any] = {"fmin": None, "fmax": None, "freq_count": 48, "temperature_c": 20.0,
-                                   "speed_of_sound": None, "name": None}
+                                   "speed_of_sound": None, "name": None, "room": None}
+#: Space kept between a starter layout placed in a room and the room's walls, m.
+ROOM_MARGIN_M = 0.1
 
 
 def option_flag(option: str) -> str:
-    """The command-line flag of a starter option (``temperature_c`` -> ``--temperature``)."""
-    return "--temperature" if option == "temperature_c" else "--" + option.replace("_", "-")
+    """A starter option as messages name it (```spacing```); the command line shows its own flag there."""
+    return f"`{option}`"
 
 
 def _resolve_options(layout: str, options: dict[str, Any]) -> tuple[Layout, dict[str, Any]]:
     if layout not in LAYOUTS:
         raise InputError(f"unknown layout {layout!r}", source="LAYOUT",
-                         fix=f"choose one of {', '.join(LAYOUTS)} (see 'arrayplan new-rig --list')")
+                         fix=f"choose one of {', '.join(LAYOUTS)} (the starter layouts)")
     lay = LAYOUTS[layout]
     allowed = dict(COMMON_DEFAULTS, **lay.defaults)
     given = {k: v for k, v in options.items() if v is not None}
     unknown = sorted(set(given) - set(allowed))
     if unknown:
-        raise InputError(f"does not apply to the {layout} layout", source=option_flag(unknown[0]),
+        raise InputError(f"does not apply to the {layout} layout", source=unknown[0],
                          fix=f"{layout} takes {', '.join(option_flag(k) for k in allowed)}")
     return lay, dict(allowed, **given)
 
@@ -353,7 +358,9 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
         distances in m (``spacing``, ``mic_spacing``, ``distance``,
         ``radius``, ``zone_separation``), and for every layout ``fmin``,
         ``fmax`` (Hz), ``freq_count``, ``temperature_c`` (°C) or
-        ``speed_of_sound`` (m/s), and ``name``.  None means the default.
+        ``speed_of_sound`` (m/s), ``name``, and ``room``: the size of a
+        rectangular room (Lx, Ly, Lz in m, or text ``"LxWxH"``) to centre the
+        layout in, written as a ``[room]`` table.  None means the default.
 
     Returns
     -------
@@ -369,20 +376,20 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
     lay, o = _resolve_options(layout, options)
     temp = o["temperature_c"]
     if isinstance(temp, bool) or not isinstance(temp, (int, float)) or not -60.0 <= temp <= 60.0:
-        raise InputError(f"expected an air temperature from -60 to 60 °C, got {temp!r}", source="--temperature")
+        raise InputError(f"expected an air temperature from -60 to 60 °C, got {temp!r}", source="temperature")
     if o["speed_of_sound"] is not None:
-        c = _positive(o["speed_of_sound"], "--speed-of-sound", "m/s")
+        c = _positive(o["speed_of_sound"], "speed_of_sound", "m/s")
         medium = [_kv("speed_of_sound", c, "m/s, as measured (or give temperature_c instead)")]
     else:
         c = speed_of_sound_air(float(temp))
         medium = [_kv("temperature_c", float(temp), f"air temperature, °C; sets c = {c:.1f} m/s")]
     body, spacings = lay.body(o, c)
     f_alias = c / (2.0 * max(spacings))
-    fmax = _positive(o["fmax"], "--fmax", "Hz") if o["fmax"] is not None else _round_down(f_alias)
-    fmin = _positive(o["fmin"], "--fmin", "Hz") if o["fmin"] is not None else _round_down(fmax / 8.0)
+    fmax = _positive(o["fmax"], "fmax", "Hz") if o["fmax"] is not None else _round_down(f_alias)
+    fmin = _positive(o["fmin"], "fmin", "Hz") if o["fmin"] is not None else _round_down(fmax / 8.0)
     if fmin >= fmax:
-        raise InputError(f"must be below the top frequency {fmax:g} Hz, got {fmin:g} Hz", source="--fmin")
-    count = _count(o["freq_count"], "--freq-count", minimum=2)
+        raise InputError(f"must be below the top frequency {fmax:g} Hz, got {fmin:g} Hz", source="fmin")
+    count = _count(o["freq_count"], "freq_count", minimum=2)
     name = o["name"] or layout
     lay_note = (f"the top frequency {fmax:g} Hz is the highest this spacing samples without grating lobes"
                 if o["fmax"] is None else f"top frequency as asked; spacing allows up to {f_alias:.0f} Hz")
@@ -424,7 +431,66 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
     ]
     while body and body[-1] == "":
         body = body[:-1]
-    return "\n".join(head + body + tail) + "\n"
+    text = "\n".join(head + body + tail) + "\n"
+    if o["room"] is None:
+        return text
+    size = parse_room_size(o["room"], option_flag("room"))
+    return _placed_in_room(head, body, tail, text, size, option_flag("room"))
+
+
+def parse_room_size(value: Any, source: str) -> tuple[float, float, float]:
+    """Room size from three numbers or text ``"LxWxH"`` (metres); InputError naming `source` otherwise."""
+    parts = value.lower().split("x") if isinstance(value, str) else value
+    try:
+        size = tuple(float(p) for p in parts)
+    except (TypeError, ValueError):
+        size = ()
+    if len(size) != 3 or not all(math.isfinite(x) and x > 0 for x in size):
+        raise InputError(f"expected the room's length, width and height in metres as LxWxH, got {value!r}",
+                         source=source, fix="for example 5x4x2.7")
+    return size  # type: ignore[return-value]
+
+
+def _placed_in_room(head: list[str], body: list[str], tail: list[str], text: str,
+                    size: tuple[float, float, float], source: str) -> str:
+    """The starter text with the layout centred on the room's floor plan and a [room] table added."""
+    import tempfile
+
+    from .rig import load_rig
+
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "rig.toml"
+        path.write_text(text, encoding="utf-8")
+        rig = load_rig(path)
+    pts = np.vstack([rig.speakers.positions, rig.mics.positions])
+    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    room = np.asarray(size)
+    shift = np.array([(room[0] - lo[0] - hi[0]) / 2, (room[1] - lo[1] - hi[1]) / 2, 0.0])
+    if np.any(lo + shift < ROOM_MARGIN_M) or np.any(hi + shift > room - ROOM_MARGIN_M):
+        span = hi - lo
+        raise InputError(f"the layout spans {span[0]:.2f} x {span[1]:.2f} m up to {hi[2]:.2f} m high, which does not "
+                         f"fit a {size[0]:g} x {size[1]:g} x {size[2]:g} m room with {ROOM_MARGIN_M:g} m to spare",
+                         source=source, fix="give a larger room or a smaller layout")
+
+    def moved(line: str) -> str:
+        m = re.match(r"^(center|position) = \[([^\]]*)\](.*)$", line)
+        if not m:
+            return line
+        xyz = np.array([float(v) for v in m.group(2).split(",")]) + shift
+        key = f"{m.group(1)} = {_value([round(float(v), 6) for v in xyz])}"
+        rest = m.group(3).strip()
+        return key.ljust(_COMMENT_COLUMN - 1) + " " + rest if rest else key
+
+    room_table = [
+        "",
+        _table("room", "a rectangular room, one corner at the origin, walls on the coordinate planes"),
+        _kv("size_m", [float(x) for x in size], "length (x), width (y), height (z), m"),
+        _kv("absorption", 0.2, "0 rigid .. 1 open; one number or a [room.absorption] table"),
+        _kv("reflection_order", 8, "highest number of reflections kept (image sources)"),
+        "# The room model is specular image sources with angle-independent reflection: a guide to",
+        "# what the room adds, not a measurement.  Measure the built rig ('arrayplan measure').",
+    ]
+    return "\n".join(head + [moved(b) for b in body] + room_table + tail) + "\n"
 
 
 def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = False, **options: Any) -> Path:
@@ -436,7 +502,7 @@ def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = Fal
     path = Path(path)
     if path.exists() and not force:
         raise InputError("already exists; not replaced", source=str(path),
-                         fix="choose another --out or add --force")
+                         fix="choose another `out` or add `force`")
     if path.is_dir():
         raise InputError("is a folder", source=str(path), fix="give a file name such as rig.toml")
     text = starter_rig_text(layout, file_name=path.name, **options)

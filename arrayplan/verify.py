@@ -7,6 +7,10 @@ shape (n_freq, n_chan, n_chan); row i is the output of channel i's combine
 weights, column j the input driven with channel j's drive weights.  For a
 perfect rig C = diag(planned singular values).
 
+Levels are always taken against the strongest channel at each frequency,
+never against channel 1: in a tracked plan (channels followed across
+frequency) channel 1 need not be the strongest everywhere.
+
 Wanted channels (:func:`wanted_channels`).  By default a channel is wanted
 when the plan calls it strong (within the plan's ``threshold_db`` of the
 strongest) at one or more planned frequencies, and it is *judged* only at
@@ -32,9 +36,11 @@ Per wanted channel j and judged frequency (NaN where not judged):
   never lost where it is judged.
 
 The measured G is also decomposed afresh (re-plan); the summary compares
-its singular values with the planned ones and gives the principal
-(subspace) angles between the planned and re-planned drive subspaces of
-the strong channels (scipy.linalg.subspace_angles).
+its singular values with the planned ones (paired by rank at each
+frequency) and gives the principal (subspace) angles between the drive
+subspace of the planned strong channels, whatever their numbers, and the
+re-planned drive subspace of the same dimension
+(scipy.linalg.subspace_angles).
 """
 
 from __future__ import annotations
@@ -49,7 +55,8 @@ from .coupling import Kernel
 from .errors import InputError
 from .plan_files import PlanWeights
 
-__all__ = ["Verification", "verify_plan", "align_kernel_names", "wanted_channels", "GAIN_REFERENCES"]
+__all__ = ["Verification", "verify_plan", "align_kernel_names", "wanted_channels", "GAIN_REFERENCES",
+           "level_re_strongest_db", "strong_mask", "replanned_in_plan_order"]
 
 #: How realised gains are referred: to the plan's singular values, or to the
 #: plan times one fitted common factor.
@@ -69,17 +76,21 @@ class Verification:
     channel_matrix : ndarray, complex, shape (n_freq, n_chan, n_chan)
         ``combine^T G_measured drive`` over all planned channels.
     planned_sv, measured_sv : ndarray, shape (n_freq, n_chan)
-        Planned singular values and those of the measured G.
+        Planned singular values, in the plan's channel order (a tracked
+        plan's need not be descending), and those of the measured G put in
+        the same order by rank (:func:`replanned_in_plan_order`).
     gain_db, crosstalk_db : ndarray, shape (n_freq, n_want)
         Gain against the reference (see `gain_reference`) and worst
         crosstalk re the diagonal, dB; NaN where the channel is not judged.
     lost : ndarray of bool, shape (n_freq, n_want)
         Isolation below the limit at a judged frequency.
     strong_planned, strong_measured : ndarray of int, shape (n_freq,)
-        Channels within `threshold_db` of the strongest.
+        Channels within `threshold_db` of the strongest at each frequency
+        (the strongest, not channel 1: a tracked plan's channel 1 need not be).
     max_angle_deg : ndarray, shape (n_freq,)
-        Largest principal angle between planned and re-planned drive
-        subspaces of the strong planned channels, degrees.
+        Largest principal angle between the drive subspace of the planned
+        strong channels (whatever their numbers) and the re-planned drive
+        subspace of the same dimension (its strongest channels), degrees.
     isolation_db, threshold_db : float
     judged : ndarray of bool, shape (n_freq, n_want)
         Where each wanted channel is judged.
@@ -147,7 +158,8 @@ def align_kernel_names(weights: PlanWeights, kernel: Kernel, *, plan_source: str
             raise InputError(f"{kind} differ: plan has {len(planned)}, IR set has {len(measured)}"
                              + (f" ({'; '.join(what)})" if what else ""), source=measured_source,
                              field=kind, fix=f"measure the rig planned in {plan_source or 'the plan'}, "
-                                             "with the same element names")
+                                             "with the same element names ('arrayplan deconvolve' takes them "
+                                             "from the rig file or plan folder given to it)")
         out_idx[kind] = [measured.index(n) for n in planned]
     if out_idx["speakers"] == list(range(len(out_idx["speakers"]))) and \
             out_idx["microphones"] == list(range(len(out_idx["microphones"]))):
@@ -170,6 +182,57 @@ def _ranges(numbers: list[int]) -> str:
         out.append(str(numbers[i]) if i == j else f"{numbers[i]}-{numbers[j]}")
         i = j + 1
     return ",".join(out)
+
+
+def level_re_strongest_db(sv: np.ndarray) -> np.ndarray:
+    """Each channel's level re the strongest channel at the same frequency, dB.
+
+    Parameters
+    ----------
+    sv : ndarray, shape (n_freq, n_chan)
+        Singular values in any channel order (a tracked plan is not
+        descending), unit of G.
+
+    Returns
+    -------
+    ndarray, shape (n_freq, n_chan)
+        ``20 log10(s_j / max_i s_i)`` dB, 0 for the strongest, -inf for a
+        zero channel.
+    """
+    sv = np.asarray(sv, dtype=float)
+    return _db(sv / sv.max(axis=1, keepdims=True))
+
+
+def strong_mask(sv: np.ndarray, threshold_db: float) -> np.ndarray:
+    """Where each channel is within `threshold_db` (dB) of the strongest, shape (n_freq, n_chan).
+
+    The same rule as the plan's strong count
+    (:meth:`arrayplan.channels.ChannelSet.strong_channels`), whatever the channel order.
+    """
+    return level_re_strongest_db(sv) >= -abs(threshold_db) - 1e-12
+
+
+def replanned_in_plan_order(planned_sv: np.ndarray, measured_sv: np.ndarray) -> np.ndarray:
+    """The re-planned singular values put in the plan's channel order by rank.
+
+    Parameters
+    ----------
+    planned_sv : ndarray, shape (n_freq, n_chan)
+        The plan's singular values, in its channel order (tracked or descending).
+    measured_sv : ndarray, shape (n_freq, n_chan)
+        The measured G's singular values, descending.
+
+    Returns
+    -------
+    ndarray, shape (n_freq, n_chan)
+        ``[f, j]`` = the measured singular value of the same rank at frequency
+        f as planned channel j (ties keep the plan's channel order); equal to
+        `measured_sv` for an untracked plan.
+    """
+    order = np.argsort(-np.asarray(planned_sv), axis=1, kind="stable")   # channel of each rank
+    out = np.empty_like(np.asarray(measured_sv, dtype=float))
+    np.put_along_axis(out, order, measured_sv, axis=1)
+    return out
 
 
 def wanted_channels(planned_sv: np.ndarray, threshold_db: float,
@@ -197,25 +260,23 @@ def wanted_channels(planned_sv: np.ndarray, threshold_db: float,
     n_freq, n_chan = planned_sv.shape
     if isinstance(channels, str):
         if channels != "all":
-            raise InputError(f"expected 'all' or channel numbers, got {channels!r}", source="--channels")
+            raise InputError(f"expected 'all' or channel numbers, got {channels!r}", source="channels")
         want = np.arange(n_chan)
         return want, np.ones((n_freq, n_chan), bool), \
-            f"all {n_chan} planned channels, each judged at every planned frequency (--channels all)"
+            f"all {n_chan} planned channels, each judged at every planned frequency (channels 'all')"
     if channels is not None:
         want = np.asarray(sorted(set(channels)), dtype=int)
         if want.size == 0 or want.min() < 0 or want.max() >= n_chan:
-            raise InputError(f"channels must lie in 1..{n_chan}", source="--channels")
+            raise InputError(f"channels must lie in 1..{n_chan}", source="channels")
         return want, np.ones((n_freq, want.size), bool), \
             f"channels {_ranges([int(j) + 1 for j in want])} as given, each judged at every planned frequency"
-    with np.errstate(divide="ignore", invalid="ignore"):
-        level = 20.0 * np.log10(planned_sv / planned_sv[:, :1])
-    strong = level >= -abs(threshold_db) - 1e-12                 # (n_freq, n_chan)
+    strong = strong_mask(planned_sv, threshold_db)                # (n_freq, n_chan)
     want = np.flatnonzero(strong.any(axis=0))
     never = [j + 1 for j in range(n_chan) if j not in set(want.tolist())]
     rule = (f"channels {_ranges([int(j) + 1 for j in want])}: strong in the plan (within {abs(threshold_db):g} dB "
             f"of the strongest) at one or more planned frequencies, each judged only where strong")
     if never:
-        rule += f"; channels {_ranges(never)} are never strong and not judged (--channels all judges every channel)"
+        rule += f"; channels {_ranges(never)} are never strong and not judged (channels 'all' judges every channel)"
     return want, strong[:, want], rule
 
 
@@ -253,7 +314,7 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
     kernel = align_kernel_names(weights, kernel, plan_source=plan_source, measured_source=measured_source)
     if gain_reference not in GAIN_REFERENCES:
         raise InputError(f"must be one of {', '.join(GAIN_REFERENCES)}, got {gain_reference!r}",
-                         source="--gain-reference")
+                         source="gain_reference")
     if threshold_db is None:
         threshold_db = float(weights.sidecar.get("threshold_db", 3.0)) if isinstance(weights.sidecar, dict) else 3.0
     want, judged, rule = wanted_channels(weights.singular_values, threshold_db, channels)
@@ -279,8 +340,8 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
     if gain_reference == "common":
         if not np.isfinite(common_db):
             raise InputError("no wanted channel reaches the microphones, so no common gain can be fitted",
-                             source=measured_source, field="--gain-reference",
-                             fix="check the IR set, or use --gain-reference plan")
+                             source=measured_source, field="gain_reference",
+                             fix="check the IR set, or use `gain_reference` plan")
         factor = 10.0 ** (common_db / 20.0)
         c = c / factor
         s_meas = s_meas / factor
@@ -288,14 +349,16 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
     else:
         gain = raw_gain
     lost = judged & ~(-crosstalk >= isolation_db)
-    level = _db(weights.singular_values / weights.singular_values[:, :1])
-    strong_p = np.sum(level >= -abs(threshold_db) - 1e-12, axis=1)
-    strong_m = np.sum(_db(s_meas / s_meas[:, :1]) >= -abs(threshold_db) - 1e-12, axis=1)
+    strong = strong_mask(weights.singular_values, threshold_db)     # (n_freq, n_chan), any channel order
+    strong_p = np.sum(strong, axis=1)
+    strong_m = np.sum(strong_mask(s_meas, threshold_db), axis=1)
     angles = np.empty(len(hz))
     for f in range(len(hz)):
         k = int(strong_p[f])
-        # the re-planned subspace of the same dimension, strongest first
-        angles[f] = np.degrees(np.max(subspace_angles(weights.drive[f][:, :k], drive_meas[f][:, :k])))
+        # the planned strong channels, whatever their numbers, against the re-planned subspace
+        # of the same dimension (s_meas is descending: its first k channels are its strongest)
+        angles[f] = np.degrees(np.max(subspace_angles(weights.drive[f][:, strong[f]], drive_meas[f][:, :k])))
+    s_meas = replanned_in_plan_order(weights.singular_values, s_meas)
     return Verification(hz, want, c, weights.singular_values, s_meas, gain, crosstalk, lost, strong_p, strong_m,
                         angles, float(isolation_db), float(threshold_db), judged=judged,
                         gain_reference=gain_reference, common_gain_db=common_db, wanted_rule=rule)

@@ -81,3 +81,25 @@ def test_field_panel_of_a_channel_silent_in_the_plane_is_not_blown_up():
     assert titles == ["channel 1", "channel 2 (silent in this plane)"]
     silent = np.asarray(fig.axes[1].collections[0].get_array())
     assert np.all(silent <= -40.0 + 1e-9)                  # drawn at the floor, not as speckle
+
+
+def test_coupling_levels_stop_at_the_noise_floor_of_the_plan():
+    # A small rig far from its sources has channels hundreds of dB down (rounding noise of the
+    # SVD, numpy.linalg.svd); the dB panel draws them at 10 dB below the plan's noise floor
+    # (snr_db below the strongest) and draws that floor, instead of plotting the noise as data.
+    import matplotlib
+    matplotlib.use("Agg")
+    from arrayplan.frequency import FrequencyAxis
+    from arrayplan.planning import plan_rig
+    from arrayplan.plots.channels import plot_couplings
+    from arrayplan.rig import Rig
+
+    spk = np.array([[x, 0.0, 0.0] for x in np.linspace(-0.05, 0.05, 6)])
+    rig = Rig.from_positions(spk, spk + [0.0, 3.0, 0.0], speed_of_sound=343.0)
+    plan = plan_rig(rig, FrequencyAxis([200.0, 400.0]), snr_db=30.0)
+    assert plan.channels.level_db().min() < -150          # the case this test is about
+    fig = plot_couplings(plan)
+    ax_db = fig.axes[1]
+    drawn = np.concatenate([ln.get_ydata() for ln in ax_db.lines if len(ln.get_ydata()) > 2])
+    assert drawn.min() == -40.0
+    assert any(np.allclose(ln.get_ydata(), -30.0) for ln in ax_db.lines)   # the noise floor line

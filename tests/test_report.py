@@ -250,6 +250,7 @@ def test_a_result_that_cannot_be_read_is_listed_not_fatal(project, tmp_path):
     del doc["speaker_positions_m"]                        # as written by an older version
     doc["rig"]["source"] = "gone.toml"
     side.write_text(json.dumps(doc))
+    (copy / "plan" / "SHA256SUMS").unlink()               # older versions wrote no checksums
     html = build_report(copy)
     assert "Results that could not be read" in html and "does not store element positions" in html
     assert "Verification: verify" in html
@@ -342,9 +343,43 @@ def test_degenerate_channels_of_a_symmetric_rig_are_named(tmp_path):
     rig = Rig.from_positions(g, g + [0.0, 0.5, 0.0], speed_of_sound=343.0)
     plan = plan_rig(rig, FrequencyAxis([2000.0, 4000.0]))
     pairs = dict(degenerate_pairs(plan.channels.singular_values, plan.channels.level_db()))
-    assert pairs.get(1) == 2                                    # channels 2 and 3 at both frequencies
+    assert pairs.get((1, 2)) == 2                               # channels 2 and 3 at both frequencies
     s = plan.channels.singular_values
     assert np.allclose(s[:, 1], s[:, 2], rtol=1e-9)
     write_plan(plan, tmp_path / "plan", figures=False)
     html = build_report(tmp_path)
     assert "Degenerate channels" in html and "channels 2 and 3 at 2 of 2 frequencies" in html
+
+
+def test_near_degenerate_pair_of_two_symmetric_zones_is_flagged(tmp_path):
+    # Two speakers serving two seats, mirror-symmetric about the x = 0 plane: G = [[a, b], [b, a]]
+    # is circulant, so its singular values are |a + b| and |a - b| (the sum and difference
+    # channels; R. M. Gray, Toeplitz and Circulant Matrices: A Review, 2006).  With the seats far
+    # apart the cross coupling b is small and the two channels lie well within 1 dB: the pair
+    # that mixes first under placement errors.  a and b are computed here from exp(-jkr)/(4 pi r).
+    from arrayplan.frequency import FrequencyAxis
+    from arrayplan.planning import plan_rig
+    from arrayplan.plan_files import write_plan
+    from arrayplan.report.build import degenerate_pairs
+    from arrayplan.rig import Rig
+
+    spk = np.array([[-3.0, 0.0, 1.2], [3.0, 0.0, 1.2]])
+    mic = np.array([[-3.0, 0.3, 1.2], [3.0, 0.3, 1.2]])
+    c, hz = 343.0, np.array([500.0, 1000.0, 2000.0])
+    k = 2 * np.pi * hz / c
+    r_direct, r_cross = 0.3, np.hypot(6.0, 0.3)
+    a = np.exp(-1j * k * r_direct) / (4 * np.pi * r_direct)
+    b = np.exp(-1j * k * r_cross) / (4 * np.pi * r_cross)
+    gap_db = np.abs(20 * np.log10(np.abs(a + b) / np.abs(a - b)))
+    assert np.all((gap_db > 0.01) & (gap_db < 1.0)), gap_db      # the case this test is about
+
+    rig = Rig.from_positions(spk, mic, speed_of_sound=c)
+    plan = plan_rig(rig, FrequencyAxis(hz))
+    s = plan.channels.singular_values
+    assert np.allclose(np.sort(s, axis=1), np.sort(np.c_[np.abs(a + b), np.abs(a - b)], axis=1), rtol=1e-9)
+    assert degenerate_pairs(s, plan.channels.level_db()) == []                # not degenerate at 0.01 dB
+    assert dict(degenerate_pairs(s, plan.channels.level_db(), 1.0)) == {(0, 1): 3}
+    write_plan(plan, tmp_path / "plan", figures=False)
+    html = build_report(tmp_path)
+    assert "Near-degenerate channels" in html and "channels 1 and 2 at 3 of 3 frequencies" in html
+    assert "Degenerate channels (" not in html

@@ -99,11 +99,11 @@ def test_starter_refuses_to_overwrite_and_bad_options_write_nothing(tmp_path):
     write_starter_rig(path, "bench", force=True)
     assert load_rig(path).name == "bench"
     other = tmp_path / "other.toml"
-    with pytest.raises(InputError, match="--fmin"):
+    with pytest.raises(InputError, match="fmin"):
         write_starter_rig(other, "bench", fmin=5000.0, fmax=1000.0)
-    with pytest.raises(InputError, match="--radius"):
+    with pytest.raises(InputError, match="radius"):
         write_starter_rig(other, "facing-lines", radius=1.0)
-    with pytest.raises(InputError, match="--speakers"):
+    with pytest.raises(InputError, match="speakers"):
         write_starter_rig(other, "facing-grids", speakers="4by4")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["rig.toml"]
 

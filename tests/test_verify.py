@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import json
 
+import matplotlib
 import numpy as np
 import pytest
 import soundfile as sf
@@ -14,10 +15,14 @@ from arrayplan.frequency import FrequencyAxis
 from arrayplan.irset import IRSet, read_irset, write_irset
 from arrayplan.kernels.measured import MeasuredKernel
 from arrayplan.plan_files import read_weights, write_plan
+from arrayplan.plots.verify import plot_singular_values
 from arrayplan.planning import plan_rig
 from arrayplan.rig import Rig
 from arrayplan.simulate import free_field_irset
 from arrayplan.verify import verify_plan
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
 
 FS = 48000.0
 N = 4096
@@ -276,3 +281,56 @@ def test_cli_bad_options_exit_2(plan_dir, tmp_path, capsys, flags, message):
         code, err = stop.code, capsys.readouterr().err
     assert code == 2 and message in err and len(err.strip().splitlines()) == 1, err
     assert not (tmp_path / "v").exists()
+
+
+class _ExactFreeField:
+    """The free-field coupling exp(-jkr) / (4 pi r), written here independently of arrayplan's kernels."""
+
+    def __init__(self, spk: np.ndarray, mic: np.ndarray, names_spk, names_mic, c: float) -> None:
+        self.speaker_names, self.mic_names = tuple(names_spk), tuple(names_mic)
+        self._r = np.linalg.norm(mic[:, None, :] - spk[None, :, :], axis=-1)     # (n_mic, n_spk), m
+        self._c = c
+
+    def evaluate(self, hz: np.ndarray) -> np.ndarray:
+        k = 2 * np.pi * np.asarray(hz, dtype=float)[:, None, None] / self._c
+        return np.exp(-1j * k * self._r) / (4 * np.pi * self._r)
+
+
+def test_tracked_plan_on_a_perfect_rig_passes_with_levels_re_the_strongest(tmp_path):
+    # Free-field Green's function exp(-jkr)/(4 pi r) and SVD channels (D. A. B. Miller, Applied Optics
+    # 39(11), 2000); singular values by numpy.linalg.svd (general-purpose reference library). A tracked
+    # plan keeps channel numbers across frequency, so channel 1 is not always the strongest: levels
+    # must be re the strongest at each frequency, and the re-planned strong subspace must match the
+    # planned strong channels whatever their numbers (principal angles ~0 on a perfect rig).
+    rng = np.random.default_rng(0)
+    spk = rng.uniform(-0.5, 0.5, (5, 3))
+    mic = rng.uniform(-0.5, 0.5, (6, 3)) + [0.0, 0.0, 1.0]
+    rig = Rig.from_positions(spk, mic, speed_of_sound=C)
+    hz = np.geomspace(100.0, 4000.0, 60)
+    plan = tmp_path / "plan"
+    write_plan(plan_rig(rig, FrequencyAxis(hz), track=True), plan, figures=False)
+    weights = read_weights(plan)
+    assert np.any(np.argmax(weights.singular_values, axis=1) != 0)    # channel 1 is not always the strongest
+    exact = _ExactFreeField(spk, mic, rig.speakers.names, rig.mics.names, C)
+    res = verify_plan(weights, exact)
+    # the independent count: numpy's singular values of the exact G within 3 dB of the largest
+    s_ref = np.linalg.svd(exact.evaluate(hz), compute_uv=False)
+    want_strong = np.sum(20 * np.log10(s_ref / s_ref[:, :1]) >= -3.0 - 1e-9, axis=1)
+    summary = [int(r["strong_channels"]) for r in csv.DictReader((plan / "summary.csv").open())]
+    np.testing.assert_array_equal(res.strong_planned, want_strong)
+    np.testing.assert_array_equal(res.strong_planned, summary)
+    np.testing.assert_array_equal(res.strong_measured, summary)
+    assert res.max_angle_deg.max() < 1e-4
+    np.testing.assert_allclose(np.sort(res.measured_sv, axis=1), np.sort(s_ref, axis=1), rtol=1e-9)
+    np.testing.assert_allclose(res.measured_sv, res.planned_sv, rtol=1e-9)   # paired with the same channel
+    # every judged channel is within 3 dB of numpy's largest singular value at that frequency
+    level = 20 * np.log10(weights.singular_values[:, res.channels] / s_ref[:, :1])
+    assert np.all(level[res.judged] >= -3.0 - 1e-9)
+    assert np.all(level[~res.judged] < -3.0)
+    np.testing.assert_allclose(res.gain_db[res.judged], 0.0, atol=1e-9)
+    assert np.all(res.passed)
+    # the singular-value plot: the strongest planned curve sits at 0 dB at every frequency
+    fig = plot_singular_values(res)
+    planned = np.array([ln.get_ydata() for ln in fig.axes[0].get_lines() if ln.get_linestyle() == "-"])
+    np.testing.assert_allclose(planned.max(axis=0), 0.0, atol=1e-9)
+    plt.close(fig)

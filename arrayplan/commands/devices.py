@@ -4,19 +4,22 @@ from __future__ import annotations
 
 import argparse
 
+from ._args import nonnegative_count, positive_float, MAX_CHANNEL_NUMBER
+
 __all__ = ["register", "run"]
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
-        "devices", help="list audio devices and host APIs (PortAudio)",
-        description="List the audio host APIs and devices PortAudio sees, with channel counts and default "
-                    "rates.  With --device, show the one device an index or name substring selects (an "
-                    "ambiguous name lists the candidates).")
+        "devices", description="List the audio host APIs and devices PortAudio sees, with channel counts and default "
+                               "rates.  With --device, show the one device an index or name substring selects (an "
+                               "ambiguous name lists the candidates).")
     p.add_argument("--device", metavar="INDEX|NAME", help="index or part of the name of one device")
-    p.add_argument("--inputs", type=int, default=0, metavar="N", help="check that it has at least N inputs")
-    p.add_argument("--outputs", type=int, default=0, metavar="N", help="check that it has at least N outputs")
-    p.add_argument("--rate", type=float, metavar="HZ", help="check that it runs at this sample rate")
+    p.add_argument("--inputs", type=nonnegative_count(MAX_CHANNEL_NUMBER), default=0, metavar="N",
+                   help="check that it has at least N inputs")
+    p.add_argument("--outputs", type=nonnegative_count(MAX_CHANNEL_NUMBER), default=0, metavar="N",
+                   help="check that it has at least N outputs")
+    p.add_argument("--rate", type=positive_float, metavar="HZ", help="check that it runs at this sample rate")
     p.set_defaults(run=run)
 
 

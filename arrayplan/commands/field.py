@@ -13,23 +13,26 @@ from ..channels import decompose_stack
 from ..errors import InputError
 from ..field import PlaneGrid, channel_field, default_plane
 from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic
-from ..kernels.freefield import FreeFieldKernel
+from ..kernels import rig_kernel
 from ..plots import plot_field
 from ..progress import ProgressBar
 from ..rig import Rig, load_rig
+from ._args import add_memory_limit, count, finite_float, positive_float
+from .plan import check_plan_size
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("field", help="map the pressure one channel produces over a plane (PNG + NPY)",
+    p = sub.add_parser("field",
                        description="Drive the speakers with one channel's weights at one frequency and map the "
                                    "free-field pressure magnitude over a plane.")
     p.add_argument("rig", help="rig file (TOML)")
-    p.add_argument("--freq", type=float, required=True, metavar="HZ", help="frequency")
-    p.add_argument("--channel", type=int, default=1, help="channel number, 1 = strongest (default 1)")
+    p.add_argument("--freq", type=positive_float, required=True, metavar="HZ", help="frequency")
+    p.add_argument("--channel", type=count(), default=1, help="channel number, 1 = strongest (default 1)")
     p.add_argument("--plane", default="xz", choices=("xy", "xz", "yz"), help="coordinate plane (default xz)")
-    p.add_argument("--at", type=float, metavar="M", help="the plane's third coordinate (default: rig centre)")
-    p.add_argument("--resolution", type=int, default=161, help="grid points along the first axis")
+    p.add_argument("--at", type=finite_float, metavar="M", help="the plane's third coordinate (default: rig centre)")
+    p.add_argument("--resolution", type=count(2000), default=161, help="grid points along the first axis")
     p.add_argument("--out", required=True, help="output folder")
+    add_memory_limit(p)
     p.set_defaults(run=run)
 
 
@@ -74,7 +77,8 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"must be positive, got {args.freq}", source="--freq")
     if not 8 <= args.resolution <= 2000:
         raise InputError(f"must be 8..2000, got {args.resolution}", source="--resolution")
-    g = FreeFieldKernel(rig).evaluate(np.array([args.freq]))
+    check_plan_size(rig, 1, 1)
+    g = rig_kernel(rig).evaluate(np.array([args.freq]))
     s, drive, _ = decompose_stack(g)
     n_chan = s.shape[1]
     if not 1 <= args.channel <= n_chan:

@@ -18,6 +18,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..progress import ProgressBar, mini_bar
+from ._args import (add_memory_limit, count, dbfs_level, finite_float, float_in,
+                    nonnegative_count, nonnegative_float, positive_float, say)
 
 if TYPE_CHECKING:
     from ..hardware.measure import TakeProgress
@@ -29,40 +31,86 @@ __all__ = ["register", "run", "confirm_before_playing", "add_level_options", "pr
 def add_level_options(p: argparse.ArgumentParser) -> None:
     """Options for the sound-level estimate printed before playing."""
     g = p.add_argument_group("sound-level estimate (printed before anything plays)")
-    g.add_argument("--speaker-sensitivity-db-spl", type=float, metavar="DB",
+    g.add_argument("--speaker-sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"), metavar="DB",
                    help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms volts")
-    g.add_argument("--sensitivity-vrms", type=float, default=2.83, metavar="V",
+    g.add_argument("--sensitivity-vrms", type=positive_float, default=2.83, metavar="V",
                    help="drive voltage of that rating, V RMS (default 2.83 V: 1 W into 8 ohm)")
-    g.add_argument("--amp-vrms", type=float, metavar="V",
+    g.add_argument("--amp-vrms", type=positive_float, metavar="V",
                    help="V RMS at the speaker terminals for a full-scale sine (default: from the "
                         "calibration record's outputs)")
-    g.add_argument("--listener-distance-m", type=float, nargs="+", default=[1.0], metavar="M",
+    g.add_argument("--listener-distance-m", type=positive_float, nargs="+", default=[1.0], metavar="M",
                    help="distance of each person in the room from the speaker playing (default 1 m)")
     g.add_argument("--allow-loud", action="store_true",
                    help="play even when the estimate exceeds the exposure caps (hearing protection on)")
+    g.add_argument("--allow-unknown-level", action="store_true",
+                   help="play hot outputs (a known voltage that could exceed the caps) although the speaker "
+                        "sensitivity, and so the level, is unknown (hearing protection on)")
     g.add_argument("--yes", action="store_true",
                    help="confirm without a prompt (needed when there is no terminal), after reading the caution")
 
 
+#: Option names for the messages of the level estimate.
+_LEVEL_OPTIONS = {"sensitivity_db_spl": "--speaker-sensitivity-db-spl", "sensitivity_vrms": "--sensitivity-vrms",
+                  "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
+                  "allow_loud": "--allow-loud"}
+
+
 def print_level_estimate(args: argparse.Namespace, signal: np.ndarray, sample_rate_hz: float,
                          amp_vrms_default: float | None, stream: Any = None) -> list[str]:
-    """Print the estimated level of `signal` (one speaker at a time) and return its warnings."""
-    from ..safety import check_exposure, estimate_exposure, format_exposure
+    """Print the estimated level of `signal` (one speaker at a time) and return its warnings.
+
+    With a known output voltage but no speaker sensitivity, the level is
+    bounded with a sensitive speaker
+    (:func:`arrayplan.safety.worst_case_unknown_speaker`); when that bound
+    exceeds a refusal cap, the outputs are hot and nothing plays without
+    ``--allow-unknown-level`` (a consent of its own, apart from ``--yes``).
+
+    Raises
+    ------
+    InputError
+        Above the caps without ``--allow-loud``; hot outputs at an unknown
+        level without ``--allow-unknown-level``; implausible inputs.
+    """
+    from ..safety import (ASSUMED_SENSITIVE_SPEAKER_DB_SPL, DEFAULT_MAX_DBA, DEFAULT_MAX_PEAK_DB_SPL,
+                          check_exposure, estimate_exposure, format_exposure, worst_case_unknown_speaker)
 
     stream = sys.stderr if stream is None else stream
     amp = args.amp_vrms if args.amp_vrms is not None else amp_vrms_default
+    x = np.asarray(signal, float).reshape(-1, 1)
+    if args.speaker_sensitivity_db_spl is None and amp is not None:
+        worst = worst_case_unknown_speaker(x, sample_rate_hz, amp_vrms_full_scale=amp,
+                                           distances_m=args.listener_distance_m, option_names=_LEVEL_OPTIONS)
+        i = int(np.argmax(np.where(np.isnan(worst.dba), np.inf, worst.dba)))
+        top, peak = float(worst.dba[i]), float(np.max(worst.peak_spl_db))
+        print(f"Estimated level: UNKNOWN (no --speaker-sensitivity-db-spl). The outputs give {amp:.3g} V RMS at "
+              f"full scale; through a sensitive speaker ({ASSUMED_SENSITIVE_SPEAKER_DB_SPL:g} dB SPL at 1 m for "
+              f"2.83 V) this sweep would reach {top:.1f} dBA, peak {peak:.1f} dB SPL, at "
+              f"{worst.distances_m[i]:g} m.", file=stream)
+        if top <= DEFAULT_MAX_DBA and peak <= DEFAULT_MAX_PEAK_DB_SPL:
+            return []
+        if not getattr(args, "allow_unknown_level", False):
+            raise InputError(f"HOT OUTPUTS AT AN UNKNOWN LEVEL: {amp:.3g} V RMS at full scale could give "
+                             f"{top:.1f} dBA (cap {DEFAULT_MAX_DBA:g}) or peak {peak:.1f} dB SPL (cap "
+                             f"{DEFAULT_MAX_PEAK_DB_SPL:g}) and the speaker sensitivity is not known",
+                             field="--speaker-sensitivity-db-spl",
+                             fix="give --speaker-sensitivity-db-spl for an estimate, lower the amplifier gain, or "
+                                 "pass --allow-unknown-level (apart from --yes) with hearing protection in place")
+        w = (f"playing hot outputs ({amp:.3g} V RMS at full scale) at an unknown level, allowed by "
+             "--allow-unknown-level: start with the amplifier gain low and raise it slowly")
+        print(f"warning: {w}", file=stream)
+        return [w]
     if args.speaker_sensitivity_db_spl is None or amp is None:
         missing = [name for name, v in (("--speaker-sensitivity-db-spl", args.speaker_sensitivity_db_spl),
                                         ("--amp-vrms", amp)) if v is None]
         print(f"Estimated level: UNKNOWN (give {' and '.join(missing)} for an estimate). Treat the level as "
               "unknown: start with the amplifier gain low and raise it slowly.", file=stream)
         return []
-    est = estimate_exposure(np.asarray(signal, float).reshape(-1, 1), sample_rate_hz,
-                            sensitivity_db_spl=args.speaker_sensitivity_db_spl, amp_vrms_full_scale=amp,
-                            distances_m=args.listener_distance_m, sensitivity_vrms=args.sensitivity_vrms,
-                            combine="one_at_a_time")
+    est = estimate_exposure(x, sample_rate_hz, sensitivity_db_spl=args.speaker_sensitivity_db_spl,
+                            amp_vrms_full_scale=amp, distances_m=args.listener_distance_m,
+                            sensitivity_vrms=args.sensitivity_vrms, combine="one_at_a_time",
+                            option_names=_LEVEL_OPTIONS)
     print(format_exposure(est), file=stream)
-    warnings = check_exposure(est, allow_loud=args.allow_loud)
+    warnings = [say(w, args) for w in check_exposure(est, allow_loud=args.allow_loud, option_names=_LEVEL_OPTIONS)]
     for w in warnings:
         print(f"warning: {w}", file=stream)
     return warnings
@@ -91,50 +139,65 @@ def confirm_before_playing(yes: bool, what: str, stream: Any = None) -> None:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
-        "measure", help="measure the rig's impulse responses through the audio interface",
-        description="Play a faded exponential sweep on each speaker's output in turn, record every "
-                    "microphone (and the loopback reference), and save each take as it ends: raw recording "
-                    "plus impulse responses.  Running again into the same --out folder measures only the "
-                    "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "
-                    "printed before anything plays.")
+        "measure", description="Play a faded exponential sweep on each speaker's output in turn, record every "
+                               "microphone (and the loopback reference), and save each take as it ends: raw recording "
+                               "plus impulse responses.  Running again into the same --out folder measures only the "
+                               "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "
+                               "printed before anything plays.")
     p.add_argument("rig", help="rig file (TOML); speakers' and microphones' 'channel' are 1-based")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (resumes when it exists)")
     p.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the rig's, else the system's)")
-    p.add_argument("--rate", type=float, metavar="HZ", help="sample rate (default: the rig's, else the device's)")
+    p.add_argument("--rate", type=positive_float, metavar="HZ",
+                   help="sample rate (default: the rig's, else the device's)")
     p.add_argument("--calibration", metavar="FILE", help="calibration record (default: the rig's, if any)")
-    p.add_argument("--latency-samples", type=int, metavar="N",
+    p.add_argument("--latency-samples", type=nonnegative_count(10_000_000), metavar="N",
                    help="latency to remove when there is neither a reference loop nor a calibrated latency")
     s = p.add_argument_group("sweep")
-    s.add_argument("--f1", type=float, default=40.0, metavar="HZ", help="start frequency (default 40 Hz)")
-    s.add_argument("--f2", type=float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
-    s.add_argument("--duration-s", type=float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
-    s.add_argument("--peak-dbfs", type=float, metavar="DB", help="sweep peak level (default: the peak cap, -12 dBFS)")
+    s.add_argument("--f1", type=positive_float, default=40.0, metavar="HZ", help="start frequency (default 40 Hz)")
+    s.add_argument("--f2", type=positive_float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
+    s.add_argument("--duration-s", type=positive_float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
+    s.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB",
+                   help="sweep true peak level, 4x oversampled (default: the peak cap, -12 dBFS)")
     s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
-    s.add_argument("--repeats", type=int, default=1, metavar="N", help="sweeps per take, averaged (default 1)")
-    s.add_argument("--ir-s", type=float, default=0.5, metavar="S",
+    s.add_argument("--repeats", type=count(), default=1, metavar="N", help="sweeps per take, averaged (default 1)")
+    s.add_argument("--ir-s", type=positive_float, default=0.5, metavar="S",
                    help="impulse-response length after zero lag (default 0.5 s)")
-    s.add_argument("--pre-ms", type=float, metavar="MS",
+    s.add_argument("--pre-ms", type=nonnegative_float, metavar="MS",
                    help="time kept before zero lag for the measurement pulse's pre-ringing (default: one Fresnel "
                         "time at f1, at most half-way to the 2nd harmonic; 110 ms for the default sweep)")
-    s.add_argument("--max-latency-s", type=float, default=0.25, metavar="S",
+    s.add_argument("--max-latency-s", type=positive_float, default=0.25, metavar="S",
                    help="longest interface latency expected (default 0.25 s)")
-    s.add_argument("--lead-in-s", type=float, default=0.2, metavar="S", help="silence before each sweep (default 0.2 s)")
+    s.add_argument("--lead-in-s", type=nonnegative_float, default=0.2, metavar="S",
+                   help="silence before each sweep (default 0.2 s)")
     c = p.add_argument_group("checks")
-    c.add_argument("--min-peak-to-noise-db", type=float, default=None, metavar="DB",
+    c.add_argument("--min-peak-to-noise-db", type=finite_float, default=None, metavar="DB",
                    help="mark takes whose responses fall below this peak-to-noise ratio (default 40 dB)")
     c.add_argument("--redo-marked", action="store_true", help="measure marked takes again when resuming")
     add_level_options(p)
     m = p.add_argument_group("simulated rig (nothing plays)")
     m.add_argument("--simulate", action="store_true",
-                   help="measure a simulated rig: the rig's free-field responses plus latency, noise, a mild "
-                        "nonlinearity and optional dropouts")
-    m.add_argument("--sim-latency-samples", type=int, default=300, metavar="N", help="default 300")
-    m.add_argument("--sim-noise-dbfs", type=float, default=-90.0, metavar="DB", help="RMS noise (default -90 dBFS)")
+                   help="measure a simulated rig: the rig's free-field (or [room]) responses plus latency, noise, "
+                        "a mild nonlinearity and optional dropouts")
+    m.add_argument("--sim-latency-samples", type=nonnegative_count(10_000_000), default=300, metavar="N",
+                   help="default 300")
+    m.add_argument("--sim-noise-dbfs", type=dbfs_level, default=-90.0, metavar="DB",
+                   help="RMS noise (default -90 dBFS)")
     m.add_argument("--sim-nonlinearity", default="0.01,0.005", metavar="A2,A3,...",
                    help="coefficients of x^2, x^3, ... (default 0.01,0.005; '' for linear)")
-    m.add_argument("--sim-dropouts", type=int, default=0, metavar="N", help="dropped input blocks per take")
-    m.add_argument("--sim-seed", type=int, default=0, metavar="N", help="noise seed")
-    p.set_defaults(run=run)
+    m.add_argument("--sim-dropouts", type=nonnegative_count(1000), default=0, metavar="N",
+                   help="dropped input blocks per take")
+    m.add_argument("--sim-seed", type=nonnegative_count(2 ** 32 - 1), default=0, metavar="N", help="noise seed")
+    add_memory_limit(p)
+    p.set_defaults(run=run, parameter_flags=PARAMETER_FLAGS)
+
+
+#: Library parameter names that this command spells differently.
+PARAMETER_FLAGS = {"f1_hz": "--f1", "f2_hz": "--f2", "sweep_s": "--duration-s", "pre_s": "--pre-ms",
+                   "sample_rate_hz": "--rate", "rate_hz": "--rate",
+                   "sensitivity_db_spl": "--speaker-sensitivity-db-spl",
+                   "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
+                   "latency_samples": "--latency-samples", "dropouts_per_take": "--sim-dropouts",
+                   "noise_rms_dbfs": "--sim-noise-dbfs", "nonlinearity": "--sim-nonlinearity"}
 
 
 def show_take_progress(bar: ProgressBar, p: "TakeProgress") -> None:
@@ -170,14 +233,39 @@ def _parse_coefficients(text: str) -> tuple[float, ...]:
     return vals
 
 
+def _check_take_size(args: argparse.Namespace, wiring: Any, fs: float) -> None:
+    """Refuse takes whose recordings would not fit the memory limit (estimated before anything plays)."""
+    from ..limits import check_memory
+
+    sweep_s = args.lead_in_s + args.duration_s + args.max_latency_s + args.ir_s
+    take_s = args.repeats * sweep_s
+    n_in = wiring.n_inputs_needed
+    check_memory(3 * 8.0 * take_s * fs * n_in, f"a take of {args.repeats} sweep(s), {take_s:.3g} s on {n_in} "
+                 f"input(s) at {fs:g} Hz", field="repeats")
+
+
+def _warn_above_cap(args: argparse.Namespace, sweep: Any) -> None:
+    """Print the warning ``signal`` prints when a sweep's true peak is above the cap (with consent)."""
+    from ..signals.levels import DEFAULT_PEAK_CAP_DBFS, true_peak_dbfs
+    from .signals import above_cap_warning
+
+    text = above_cap_warning(true_peak_dbfs(sweep.sweep), DEFAULT_PEAK_CAP_DBFS) if args.allow_above_cap else None
+    if text is not None:
+        print(f"warning: {text}", file=sys.stderr)
+
+
 def run(args: argparse.Namespace) -> int:
     from ..hardware.calibration import read_calibration
     from ..hardware.measure import MeasurementSettings, RigWiring, measure
     from ..rig import load_rig
     from ..safety import print_caution
     from ..signals.deconvolve import DEFAULT_MIN_PEAK_TO_NOISE_DB
+    from ..signals.levels import peak_dbfs, true_peak_dbfs
     from ..signals.sweeps import make_sweep
 
+    if Path(args.out).exists() and not Path(args.out).is_dir():
+        raise InputError("exists and is not a folder", source=args.out,
+                         fix="give a new folder, or the folder of an earlier run to resume it")
     rig = load_rig(args.rig)
     wiring = RigWiring.from_rig(rig)
     hw = rig.hardware
@@ -191,6 +279,7 @@ def run(args: argparse.Namespace) -> int:
         min_peak_to_noise_db=(DEFAULT_MIN_PEAK_TO_NOISE_DB if args.min_peak_to_noise_db is None
                               else args.min_peak_to_noise_db))
     rate = args.rate or hw.sample_rate_hz
+    _check_take_size(args, wiring, float(rate or 48000.0))
     if args.simulate:
         from ..hardware.simulated import SimulatedLink
 
@@ -199,8 +288,10 @@ def run(args: argparse.Namespace) -> int:
                                       latency_samples=args.sim_latency_samples, noise_rms_dbfs=args.sim_noise_dbfs,
                                       nonlinearity=_parse_coefficients(args.sim_nonlinearity),
                                       dropouts_per_take=args.sim_dropouts, seed=args.sim_seed)
-        settings.pre_roll_samples(make_sweep(settings.sweep_settings(fs)))  # refuse bad options before anything else
+        sweep = make_sweep(settings.sweep_settings(fs))
+        settings.pre_roll_samples(sweep)  # refuse bad options before anything else
         print(f"Simulated rig: nothing is played ({link.description}).", file=sys.stderr)
+        _warn_above_cap(args, sweep)
     else:
         from ..hardware.duplex import SoundDeviceLink
 
@@ -210,13 +301,15 @@ def run(args: argparse.Namespace) -> int:
         settings.pre_roll_samples(sweep)  # refuse a bad --pre-ms before anything plays
         print_caution()
         amp = None
-        if calibration is not None:
-            outs = [calibration.output(c + 1) for c in wiring.speaker_outputs]
-            if all(o is not None for o in outs):
+        if calibration is not None:  # the hottest calibrated output bounds what is known of the level
+            outs = [o for o in (calibration.output(c + 1) for c in wiring.speaker_outputs) if o is not None]
+            if outs:
                 amp = max(o.volts_per_full_scale for o in outs) / math.sqrt(2.0)
-        print(f"Sweep: {settings.f1_hz:g} Hz to {sweep.settings.f2_hz:g} Hz, {settings.sweep_s:g} s, peak "
-              f"{sweep.settings.level()['peak_dbfs']:+.1f} dBFS, {settings.repeats} per speaker, "
+        print(f"Sweep: {settings.f1_hz:g} Hz to {sweep.settings.f2_hz:g} Hz, {settings.sweep_s:g} s, true peak "
+              f"{true_peak_dbfs(sweep.sweep):+.1f} dBFS (sample peak {peak_dbfs(sweep.sweep):+.1f} dBFS), "
+              f"{settings.repeats} per speaker, "
               f"{len(wiring.speaker_names)} speakers, one at a time, faded in and out.", file=sys.stderr)
+        _warn_above_cap(args, sweep)
         print_level_estimate(args, sweep.signal, link.sample_rate_hz, amp)
         confirm_before_playing(args.yes, f"{len(wiring.speaker_names)} sweeps through {link.description}")
 
@@ -228,7 +321,7 @@ def run(args: argparse.Namespace) -> int:
             bar.print_above(text)
 
     def warn(text: str) -> None:
-        bar.print_above(f"warning: {text}")
+        bar.print_above(f"warning: {say(text, args)}")
 
     try:
         with bar:

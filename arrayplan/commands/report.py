@@ -12,7 +12,7 @@ from ..progress import ProgressBar
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("report", help="write one self-contained HTML report of a project folder",
+    p = sub.add_parser("report",
                        description="Find every plan, filter set, impulse-response set and verification under "
                                    "PROJECT_DIR and write one HTML file with the rig summary, tables, figures, "
                                    "the cautions and the provenance of every result. The file opens offline: "

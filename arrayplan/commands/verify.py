@@ -13,7 +13,7 @@ import numpy as np
 from ..errors import InputError
 from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..irset import read_irset
-from ._args import add_measured_kernel_options, measured_kernel_from_args
+from ._args import MAX_CHANNEL_NUMBER, add_measured_kernel_options, finite_float, measured_kernel_from_args
 from ..plan_files import read_weights
 from ..verify import GAIN_REFERENCES, Verification, verify_plan
 
@@ -25,20 +25,21 @@ def _channel_list(text: str) -> list[int] | str:
         vals = [int(v) for v in text.split(",")]
     except ValueError:
         raise argparse.ArgumentTypeError(f"expected 1-based channel numbers like 1,2,3, got {text!r}") from None
-    if any(v < 1 for v in vals):
-        raise argparse.ArgumentTypeError(f"channel numbers start at 1, got {text!r}")
+    if any(not 1 <= v <= MAX_CHANNEL_NUMBER for v in vals):
+        raise argparse.ArgumentTypeError(f"channels are numbered from 1 to at most {MAX_CHANNEL_NUMBER}, "
+                                         f"got {text!r}")
     return vals
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("verify", help="verify planned channels against measured impulse responses",
+    p = sub.add_parser("verify",
                        description="Apply a plan's drive and combine weights to impulse responses measured "
                                    "on the real rig; report gain, crosstalk and lost channels per frequency. "
                                    "Exit 0 when every wanted channel passes, 1 when some fail, 2 on bad input.")
     p.add_argument("plan_dir", metavar="PLAN_DIR", help="folder written by 'arrayplan plan'")
     p.add_argument("irset_dir", metavar="IRSET", help="IR-set folder (or AES69/SOFA file) measured on the rig")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
-    p.add_argument("--isolation-db", type=float, default=20.0,
+    p.add_argument("--isolation-db", type=finite_float, default=20.0,
                    help="a channel is lost where its isolation falls below this (dB, default 20)")
     p.add_argument("--channels", type=_channel_list,
                    help="wanted channels, 1-based, e.g. 1,2,3, judged at every frequency; 'all' for every planned "
@@ -180,7 +181,9 @@ def run(args: argparse.Namespace) -> int:
                           "mean offset, for information"),
             "files": {"verify.npz": "frequency_hz (n_freq,), channels (n_want,) 1-based, channel_matrix complex "
                                     "(n_freq, n_chan, n_chan) = combine^T G_measured drive, planned_singular_value "
-                                    "and measured_singular_value (n_freq, n_chan), judged (n_freq, n_want)"},
+                                    "and measured_singular_value (n_freq, n_chan; the measured value of the same "
+                                    "rank as the planned channel at that frequency), judged (n_freq, n_want)"},
+            "levels": "re the strongest channel at each frequency (a tracked plan's channel 1 need not be it)",
             "provenance": provenance(rig_sha256=_plan_rig_hash(weights.sidecar))})
         np.savez(stage / "verify.npz", frequency_hz=res.hz, channels=np.asarray(res.channels) + 1,
                  channel_matrix=res.channel_matrix, planned_singular_value=res.planned_sv,

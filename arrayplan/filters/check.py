@@ -1,31 +1,57 @@
-"""Time-domain check of channel filters: drive filters -> simulated rig -> combine filters.
+"""Check of channel filters: drive filters -> simulated free-field rig -> combine filters.
 
-The rig's free-field impulse responses (:func:`arrayplan.simulate.free_field_impulse_responses`)
-are convolved with the drive filters of each channel and then with the
-combine filters of every channel (``scipy.signal.fftconvolve``), giving the
-end-to-end channel-to-channel impulse responses t_ij[n] (output i, input j)
-and their transfer T_ij(f).  Per channel it reports the in-band gain error
-re the planned singular value (dB, worst over the planned bins) and the
-worst in-band crosstalk into it: max over the band of |T_ij| / |T_ii| for
-j != i (dB re its own diagonal), evaluated on a grid four times finer than
-the design bins so the response between them counts too.
+The realised filter taps are put through the rig, giving the end-to-end
+channel-to-channel transfer T_ij(f) (output i, input j) and impulse
+responses t_ij[n].  The chain is computed from the spectra
+(:func:`channel_transfer`): the zero-padded FFTs of the taps sample their
+Fourier transforms exactly, and the rig is the free-field coupling G(f)
+at every bin, the spectrum of the band-limited simulated impulse responses
+of :func:`arrayplan.simulate.free_field_impulse_responses` as long as the
+grid; so ``T = Cb^T G D`` at each bin is the FFT of the linear
+convolution of filters and rig (:func:`end_to_end_responses` computes the
+same in the time domain from given responses).
+
+Everything in band is evaluated on a fine grid, at least :data:`OVERSAMPLE`
+times finer than the design bins (fs / taps), so the response between the
+bins counts as much as on them; each figure is the worst case over it.  Per
+channel j the check reports
+
+* the gain error, ``|20 log10(|T_jj(f)| / g_j(f))|`` dB, against the planned
+  gain ``g_j(f) = |c_j^T G(f) d_j|``: the planned weights c_j, d_j of the
+  nearest design bin on the simulated rig's G at f.  On a design bin g_j is
+  the planned singular value s_j; between bins it differs from s_j(f) only
+  to second order in the weights' change, because a singular value is
+  stationary in its singular vectors.  Also reported on the design bins
+  alone (against s_j);
+* the energy error of its drive filters, ``|10 log10 sum_s |D_sj(f)|^2|`` dB
+  (their in-band energy against the planned 1), and of its combine filters;
+* the worst crosstalk into it: max over the band of |T_ji| / |T_jj| for
+  i != j (dB re its own diagonal);
+* its latency, the peak of t_jj in samples, with t_jj taken from its
+  spectrum over the filters' band and transitions (where the design window
+  is above zero; outside it the filters hold only the time window's
+  leakage).
 """
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
+import scipy.fft as sp_fft
 from scipy.signal import fftconvolve
 
+from ..kernels.freefield import FreeFieldKernel
 from ..rig import Rig
-from ..simulate import free_field_impulse_responses
-from .design import FilterSet, band_window
+from .design import FilterSet
 
-__all__ = ["FilterCheck", "check_filters", "end_to_end_responses", "plot_crosstalk"]
+__all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "free_field_at", "end_to_end_responses",
+           "plot_crosstalk"]
 
-#: Frequency grid of the check is this many times finer than the design bins.
-OVERSAMPLE = 4
+#: The check's frequency grid is at least this many times finer than the design bins.
+OVERSAMPLE = 8
 
 
 @dataclass(frozen=True)
@@ -37,14 +63,24 @@ class FilterCheck:
     channels : tuple of int
         0-based plan channel numbers, the order of every axis below.
     gain_error_db : ndarray, shape (n_kept,)
-        Worst |20 log10(|T_jj| / (s_j W^2))| over the planned in-band bins.
+        Worst |20 log10(|T_jj| / g_j)| over the fine in-band grid, dB
+        (g_j: the planned gain, see the module docstring).
     crosstalk_db : ndarray, shape (n_kept, n_kept)
         [i, j] = worst in-band 20 log10(|T_ij| / |T_ii|); diagonal NaN.
     latency_samples : ndarray, shape (n_kept,)
         Measured end-to-end delay (peak of t_jj) in samples.
     limit_db : float
+        Pass/fail limit of the worst crosstalk, dB.
     ir_samples : int
-        Length of the simulated rig impulse responses.
+        Length allowed for the rig's impulse responses (delays and their
+        tails) when sizing the end-to-end responses, samples.
+    bin_gain_error_db : ndarray, shape (n_kept,), optional
+        The gain error on the in-band design bins alone, dB.
+    drive_energy_error_db, combine_energy_error_db : ndarray, shape (n_kept,), optional
+        Worst |10 log10 sum_e |H_e(f)|^2| of the drive (combine) filters over
+        the fine in-band grid, dB.
+    grid_factor : float
+        How many times finer than the design bins the check's grid is.
     """
 
     channels: tuple[int, ...]
@@ -53,6 +89,10 @@ class FilterCheck:
     latency_samples: np.ndarray
     limit_db: float
     ir_samples: int
+    bin_gain_error_db: np.ndarray | None = None
+    drive_energy_error_db: np.ndarray | None = None
+    combine_energy_error_db: np.ndarray | None = None
+    grid_factor: float = float("nan")
 
     def worst_crosstalk_db(self) -> np.ndarray:
         """Worst crosstalk into each channel, shape (n_kept,)."""
@@ -98,33 +138,207 @@ def rig_ir_samples(rig: Rig, sample_rate_hz: float) -> int:
     return int(max(4096, 2 ** int(np.ceil(np.log2(8 * (delay + 64))))))
 
 
+#: Memory budget of the temporaries of one batch in :func:`channel_transfer`, bytes.
+BATCH_BYTES = 64 * 2 ** 20
+#: Threads of each FFT (scipy.fft ``workers``): every core this process may use.
+FFT_WORKERS = max(1, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1))
+
+
+def _spectra_at(x: np.ndarray, n_fft: int, *bins: np.ndarray | slice) -> list[np.ndarray]:
+    """Zero-padded real FFTs of x (n, a, b) along axis 0 at each set of `bins`, a few columns at a time.
+
+    The FFTs run along contiguous rows of one zero-padded buffer, reused
+    from batch to batch, which is faster than along the first axis of the
+    original layout.
+    """
+    n_bins = np.arange(n_fft // 2 + 1)
+    out = [np.empty((len(n_bins[b]),) + x.shape[1:], dtype=complex) for b in bins]
+    n = x.shape[0]
+    per_column = (n_fft // 2 + 1) * 16 * x.shape[1]
+    step = int(max(1, BATCH_BYTES // per_column))
+    padded = np.zeros((x.shape[1], min(step, x.shape[2]), n_fft))  # zero tail written once, reused
+    for c0 in range(0, x.shape[2], step):
+        cols = slice(c0, min(c0 + step, x.shape[2]))
+        width = cols.stop - cols.start
+        padded[:, :width, :n] = np.moveaxis(x[:, :, cols], 0, -1)
+        spec = sp_fft.rfft(padded[:, :width], axis=-1, workers=FFT_WORKERS)
+        for o, b in zip(out, bins):
+            o[:, :, cols] = np.moveaxis(spec[:, :, b], -1, 0)
+    return out
+
+
+def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarray, combine: np.ndarray,
+                     n_fft: int, fine: np.ndarray, diag_bins: np.ndarray, drive_ref: np.ndarray | None = None,
+                     combine_ref: np.ndarray | None = None, progress=None
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
+    """End-to-end transfer of drive filters -> rig -> combine filters, straight from the spectra.
+
+    The transfer is ``T(f) = Cb(f)^T R(f) D(f)`` (output i, input j), with R
+    the rig's coupling and D, Cb the discrete-time Fourier transforms of the
+    filter taps, sampled exactly by zero-padded real FFTs of length `n_fft`.
+    With R the FFT of impulse responses, T equals the FFT of the end-to-end
+    responses of :func:`end_to_end_responses` (zero-padded to `n_fft`).
+    Frequencies are taken in batches (:data:`BATCH_BYTES`).
+
+    Parameters
+    ----------
+    rig_at : callable
+        ``rig_at(bins)`` -> ndarray, complex, shape (len(bins), n_mic, n_spk): the
+        rig's coupling at those bins of the `n_fft` grid (bin k is k fs / n_fft).
+    drive : ndarray, shape (taps, n_spk, n_chan)
+    combine : ndarray, shape (taps_c, n_mic, n_chan)
+        The same channels as `drive`, in the same order.
+    n_fft : int
+        FFT length, at least `taps` and `taps_c`.
+    fine : ndarray of int, shape (n_fine,)
+        Bins where the whole matrix T is wanted (evenly spaced bins are read as views).
+    diag_bins : ndarray of int, shape (n_diag,)
+        Bins where only the diagonal T_jj is wanted.
+    drive_ref, combine_ref : ndarray, complex, shapes (n_fine, n_spk, n_chan) and (n_fine, n_mic, n_chan), optional
+        Reference weights at the `fine` bins; when given, the reference gains
+        ``|combine_ref_j^T R drive_ref_j|`` are returned too.
+    progress : callable, optional
+        ``progress(done, total)`` in bins.
+
+    Returns
+    -------
+    t_fine : ndarray, complex, shape (n_fine, n_chan, n_chan)
+        T at the `fine` bins.
+    t_diag : ndarray, complex, shape (n_diag, n_chan)
+        T_jj at the `diag_bins`.
+    drive_energy, combine_energy : ndarray, shape (n_fine, n_chan)
+        ``sum_s |D_sj|^2`` and ``sum_m |Cb_mj|^2`` at the `fine` bins.
+    ref_gain : ndarray, shape (n_fine, n_chan), or None
+        The reference gains, when reference weights are given.
+    """
+    n_fft = int(n_fft)
+    fine, diag_bins = np.asarray(fine, dtype=int), np.asarray(diag_bins, dtype=int)
+    # slices (views, no gather) where the bins are evenly spaced
+    picks = [slice(int(b[0]), int(b[-1]) + 1, int(b[1] - b[0])) if len(b) > 1 and np.all(np.diff(b) == b[1] - b[0])
+             else b for b in (fine, diag_bins)]
+    d_fine, d_diag = _spectra_at(drive, n_fft, *picks)             # (n_bins, n_spk, n_chan)
+    c_fine, c_diag = _spectra_at(combine, n_fft, *picks)           # (n_bins, n_mic, n_chan)
+    n_chan = drive.shape[2]
+    t_fine = np.empty((len(fine), n_chan, n_chan), dtype=complex)
+    ref = None if drive_ref is None else np.empty((len(fine), n_chan))
+    t_diag = np.empty((len(diag_bins), n_chan), dtype=complex)
+    per_bin = 16 * (drive.shape[1] + combine.shape[1] + 2 * n_chan) * max(drive.shape[1], n_chan)
+    batch = int(max(1, BATCH_BYTES // per_bin))
+    total, done = len(fine) + len(diag_bins), 0
+    for bins, whole in ((fine, True), (diag_bins, False)):
+        for b0 in range(0, len(bins), batch):
+            sl = slice(b0, min(b0 + batch, len(bins)))
+            r = rig_at(bins[sl])
+            if whole:
+                t_fine[sl] = np.matmul(np.swapaxes(c_fine[sl], 1, 2), np.matmul(r, d_fine[sl]))
+                if ref is not None:
+                    ref[sl] = np.abs(np.einsum("fmj,fmj->fj", combine_ref[sl], np.matmul(r, drive_ref[sl])))
+            else:
+                t_diag[sl] = np.einsum("fmj,fmj->fj", c_diag[sl], np.matmul(r, d_diag[sl]))
+            done += sl.stop - sl.start
+            if progress is not None:
+                progress(done, total)
+    drive_energy = np.sum(np.abs(d_fine) ** 2, axis=1)
+    combine_energy = np.sum(np.abs(c_fine) ** 2, axis=1)
+    return t_fine, t_diag, drive_energy, combine_energy, ref
+
+
+def free_field_at(rig: Rig, n_fft: int, sample_rate_hz: float) -> Callable[[np.ndarray], np.ndarray]:
+    """``rig_at(bins)`` for :func:`channel_transfer`: the free-field coupling at bins of an `n_fft` grid.
+
+    The same spectrum as :func:`arrayplan.simulate.free_field_impulse_responses`
+    of `n_fft` samples: the kernel at every bin, its real limit at DC, zero
+    at the Nyquist bin of an even grid.
+    """
+    kernel = FreeFieldKernel(rig)
+
+    def rig_at(bins: np.ndarray) -> np.ndarray:
+        hz = np.asarray(bins, dtype=float) * sample_rate_hz / n_fft
+        g = kernel.evaluate(np.where(hz > 0, hz, 1e-6))
+        g[hz == 0] = g[hz == 0].real
+        if n_fft % 2 == 0:
+            g[np.asarray(bins) == n_fft // 2] = 0.0
+        return g
+
+    return rig_at
+
+
+def check_grid(taps: int, n_out: int, sample_rate_hz: float, band_hz: tuple[float, float],
+               support_hz: tuple[float, float]) -> tuple[int, np.ndarray, np.ndarray, np.ndarray]:
+    """The check's grid: at least OVERSAMPLE times finer than the design bins, and long enough.
+
+    Parameters
+    ----------
+    taps : int
+        Filter length; the design bins are spaced sample_rate_hz / taps.
+    n_out : int
+        Length of the end-to-end responses, samples.
+    sample_rate_hz : float
+    band_hz : (low, high)
+        Band, Hz.
+    support_hz : (low, high)
+        Where the filters' band window is above zero (band plus transitions), Hz.
+
+    Returns
+    -------
+    n_fft : int
+        ``taps`` times a power of two, at least ``OVERSAMPLE * taps`` and `n_out`.
+    fine : ndarray of int, shape (n_fine,)
+        The bins inside the band.
+    fine_hz : ndarray, shape (n_fine,)
+        Their frequencies, Hz.
+    edges : ndarray of int, shape (n_edge,)
+        The bins of the transitions: inside `support_hz`, outside the band.
+    """
+    n_fft = taps * 2 ** int(np.ceil(np.log2(max(n_out / taps, OVERSAMPLE))))
+    hz = np.fft.rfftfreq(n_fft, 1.0 / sample_rate_hz)
+    lo, hi = band_hz
+    inside = (hz >= lo) & (hz <= hi)
+    edges = np.nonzero(~inside & (hz > support_hz[0]) & (hz < support_hz[1]))[0]
+    fine = np.nonzero(inside)[0]
+    return n_fft, fine, hz[fine], edges
+
+
+def _worst_db(x: np.ndarray, power: bool = False) -> np.ndarray:
+    """Worst |dB| of a ratio over axis 0 (10 log10 for power ratios, 20 log10 for amplitudes)."""
+    with np.errstate(divide="ignore"):
+        return np.max(np.abs((10.0 if power else 20.0) * np.log10(x)), axis=0)
+
+
 def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, progress=None) -> FilterCheck:
-    """Simulate the rig and measure each channel's gain and crosstalk (see module docstring)."""
+    """Simulate the rig and measure each channel's gain, energy and crosstalk (see module docstring)."""
     fs, taps = filters.sample_rate_hz, filters.taps
     n_ir = rig_ir_samples(rig, fs)
-    ir = free_field_impulse_responses(rig, fs, n_ir)
-    t = end_to_end_responses(ir, filters.drive, filters.combine, progress=progress)
-    n_fft = OVERSAMPLE * taps * int(np.ceil(t.shape[0] / taps))
-    spec = np.fft.rfft(t, n=n_fft, axis=0)
-    hz = np.fft.rfftfreq(n_fft, 1.0 / fs)
-    lo, hi = filters.band_hz
-    fine = np.nonzero((hz >= lo) & (hz <= hi))[0]
-    kept = list(filters.kept)
-    # planned bins: every OVERSAMPLE-th fine bin is a design bin (n_fft is a multiple of taps)
+    n_out = n_ir + filters.drive.shape[0] + filters.combine.shape[0] - 2
     plan_hz = filters.plan.axis.hz
+    bin_hz = fs / taps
+    support = (plan_hz[0] - bin_hz, plan_hz[-1] + bin_hz)          # the design window is 0 on the next bins
+    n_fft, fine, fine_hz, edges = check_grid(taps, n_out, fs, filters.band_hz, support)
+    kept = list(filters.kept)
+    # the planned weights of the nearest design bin at each fine frequency
+    nearest = np.clip(np.round((fine_hz - plan_hz[0]) / bin_hz).astype(int), 0, len(plan_hz) - 1)
+    spec, t_edges, e_drive, e_combine, ref_gain = channel_transfer(
+        free_field_at(rig, n_fft, fs), filters.drive, filters.combine, n_fft, fine, edges,
+        drive_ref=filters.plan.drive[:, :, kept][nearest], combine_ref=filters.plan.combine[:, :, kept][nearest],
+        progress=progress)
+    diag_c = np.einsum("fjj->fj", spec)
+    diag = np.abs(diag_c)
+    gain_err = _worst_db(diag / ref_gain)
+    # the design bins in band are every (n_fft / taps)-th fine bin (n_fft is a multiple of taps)
     band_mask = filters.in_band()
-    idx = np.round(plan_hz[band_mask] / (fs / n_fft)).astype(int)
-    s = filters.plan.singular_values[band_mask][:, kept]
-    w2 = band_window(plan_hz[band_mask], filters.band_hz, fs)[:, None] ** 2
-    diag = np.abs(np.einsum("fjj->fj", spec[idx]))
-    gain_err = np.max(np.abs(20 * np.log10(diag / (s * w2))), axis=0)
-    mag = np.abs(spec[fine])                                      # (n_fine, i, j)
-    own = np.einsum("fii->fi", mag)
+    on_bins = np.searchsorted(fine, np.round(plan_hz[band_mask] / (fs / n_fft)).astype(int))
+    bin_err = _worst_db(diag[on_bins] / filters.plan.singular_values[band_mask][:, kept])
+    mag = np.abs(spec)                                            # (n_fine, i, j)
     with np.errstate(divide="ignore"):
-        ratio = 20 * np.log10(np.max(mag / own[:, :, None], axis=0))
+        ratio = 20 * np.log10(np.max(mag / diag[:, :, None], axis=0))
     np.fill_diagonal(ratio, np.nan)
-    latency = np.array([np.argmax(np.abs(t[:, j, j])) for j in range(len(kept))])
-    return FilterCheck(tuple(kept), gain_err, ratio, latency, float(limit_db), n_ir)
+    # latency: peak of t_jj from its spectrum over the filters' band (band and transitions)
+    full = np.zeros((n_fft // 2 + 1, len(kept)), dtype=complex)
+    full[fine], full[edges] = diag_c, t_edges
+    latency = np.argmax(np.abs(sp_fft.irfft(full, n=n_fft, axis=0)[:n_out]), axis=0)
+    return FilterCheck(tuple(kept), gain_err, ratio, latency, float(limit_db), n_ir, bin_gain_error_db=bin_err,
+                       drive_energy_error_db=_worst_db(e_drive, power=True),
+                       combine_energy_error_db=_worst_db(e_combine, power=True), grid_factor=n_fft / taps)
 
 
 def plot_crosstalk(check: FilterCheck, ax=None):

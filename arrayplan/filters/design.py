@@ -7,8 +7,9 @@ frequency.  For channel j the drive filter of speaker s has the spectrum
     H_s(f) = drive[f, s, j] * W(f) * exp(-j 2 pi f (D - a_drive) / fs)
 
 and the combine filter of microphone m likewise uses combine[f, m, j] and
-a_combine.  W is the band window (raised-cosine transitions of 1/6 octave
-outside the band edges, zero at DC and at Nyquist), D = taps // 2 is the
+a_combine.  W is the band window (raised-cosine transitions outside the
+band edges, each 1/6 octave or :data:`TRANSITION_MIN_BINS` design bins wide,
+whichever is wider; zero at DC and at Nyquist), D = taps // 2 is the
 bulk delay, and a_side is the weights' own group delay (whole samples,
 estimated from their phase slope over frequency; usually an advance, so
 negative), removed so each filter's energy sits at D.  The taps are the
@@ -16,8 +17,18 @@ inverse real FFT, then a Tukey time window (alpha 0.2) reduces truncation
 ripple.
 
 Normalisation (unit drive energy in band): the planned weights are unit
-vectors, so at every in-band frequency sum_s |H_s(f)|^2 = 1 and likewise
-for the combine filters; channel j's end-to-end gain is then s_j in band.
+vectors, so on every in-band design bin the spectrum before the time
+window has sum_s |H_s(f)|^2 = 1, and likewise for the combine filters;
+channel j's end-to-end gain is then s_j there.  Between the bins, and
+after the time window, the realised taps hold this only approximately: a
+transition narrower than a few bins rings through the whole band (a
+1/6-octave edge at 100 Hz is a quarter of a 47 Hz bin), so each transition
+is at least :data:`TRANSITION_MIN_BINS` bins wide, which keeps that ringing
+out; what remains comes from weights that turn quickly with frequency
+(channels whose singular values come close), and shrinks with more taps.
+The check (:mod:`arrayplan.filters.check`) measures the realised in-band
+energy of every channel on a grid at least 8 times finer than the bins
+and reports its worst deviation from 1.
 The group delay estimate is known only modulo the filter length (the
 tracked phase per bin is), so the end-to-end latency is measured by the
 time-domain check (:mod:`arrayplan.filters.check`), not predicted here.
@@ -41,6 +52,9 @@ __all__ = ["FilterSet", "band_window", "design_filters", "minimum_taps", "valida
 
 #: Width of each raised-cosine transition outside the band, in octaves.
 TRANSITION_OCTAVES = 1.0 / 6.0
+#: Least width of each transition, in design bins (sample rate / taps); wins over
+#: TRANSITION_OCTAVES where that is narrower, so the band edges do not ring in band.
+TRANSITION_MIN_BINS = 4
 #: Tukey window taper fraction applied to the taps.
 TUKEY_ALPHA = 0.2
 #: Extra samples on top of twice the rig's delay spread in the minimum filter length.
@@ -97,7 +111,8 @@ class FilterSet:
         return (hz >= self.band_hz[0]) & (hz <= self.band_hz[1])
 
 
-def band_window(hz: np.ndarray, band_hz: tuple[float, float], sample_rate_hz: float) -> np.ndarray:
+def band_window(hz: np.ndarray, band_hz: tuple[float, float], sample_rate_hz: float,
+                min_transition_hz: float = 0.0) -> np.ndarray:
     """The band window W(f): 1 in band, raised-cosine transitions outside, 0 at DC and Nyquist.
 
     Parameters
@@ -105,7 +120,13 @@ def band_window(hz: np.ndarray, band_hz: tuple[float, float], sample_rate_hz: fl
     hz : ndarray, shape (n,)
         Frequencies in Hz.
     band_hz : (low, high)
+        Band edges, Hz.
     sample_rate_hz : float
+        Sample rate, Hz.
+    min_transition_hz : float
+        Least width of each transition, Hz (each is otherwise
+        :data:`TRANSITION_OCTAVES` wide); the lower one stops at 0 Hz and
+        the upper one at Nyquist.
 
     Returns
     -------
@@ -113,8 +134,8 @@ def band_window(hz: np.ndarray, band_hz: tuple[float, float], sample_rate_hz: fl
     """
     hz = np.asarray(hz, dtype=float)
     lo, hi = band_hz
-    lo0 = lo * 2.0 ** -TRANSITION_OCTAVES
-    hi1 = min(hi * 2.0 ** TRANSITION_OCTAVES, sample_rate_hz / 2.0)
+    lo0 = max(min(lo * 2.0 ** -TRANSITION_OCTAVES, lo - min_transition_hz), 0.0)
+    hi1 = min(max(hi * 2.0 ** TRANSITION_OCTAVES, hi + min_transition_hz), sample_rate_hz / 2.0)
     w = np.zeros_like(hz)
     w[(hz >= lo) & (hz <= hi)] = 1.0
     rise = (hz > lo0) & (hz < lo)
@@ -143,26 +164,26 @@ def validate_request(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[
     fs = float(sample_rate_hz)
     lo, hi = (float(b) for b in band_hz)
     if not (np.isfinite(fs) and fs > 0):
-        raise InputError(f"sample rate must be positive, got {sample_rate_hz!r}", source="--rate",
+        raise InputError(f"sample rate must be positive, got {sample_rate_hz!r}", source="sample_rate_hz",
                          fix="give the DSP's sample rate in Hz, e.g. 48000")
     if not (np.isfinite(lo) and np.isfinite(hi) and 0 < lo < hi):
-        raise InputError(f"band must satisfy 0 < low < high, got {lo:g} {hi:g} Hz", source="--band",
+        raise InputError(f"band must satisfy 0 < low < high, got {lo:g} {hi:g} Hz", source="band_hz",
                          fix="give two frequencies in Hz, low then high")
     if fs < 2.0 * hi:
-        raise InputError(f"rate {fs:g} Hz is below twice the band's top {hi:g} Hz", source="--rate",
+        raise InputError(f"rate {fs:g} Hz is below twice the band's top {hi:g} Hz", source="sample_rate_hz",
                          fix=f"use a rate of at least {2 * hi:g} Hz or lower the band's top")
     if hi >= fs / 2.0:
-        raise InputError(f"band top {hi:g} Hz is not below Nyquist {fs / 2:g} Hz", source="--band",
+        raise InputError(f"band top {hi:g} Hz is not below Nyquist {fs / 2:g} Hz", source="band_hz",
                          fix="lower the band's top below half the rate")
     if int(taps) != taps or taps < 16:
-        raise InputError(f"taps must be a whole number >= 16, got {taps!r}", source="--taps")
+        raise InputError(f"taps must be a whole number >= 16, got {taps!r}", source="taps")
     need = minimum_taps(rig, fs)
     if taps < need:
-        raise InputError(f"{int(taps)} taps cannot hold the rig's delay spread", source="--taps",
+        raise InputError(f"{int(taps)} taps cannot hold the rig's delay spread", source="taps",
                          fix=f"use at least {need} taps")
     if _bins_in_band(fs, int(taps), lo, hi) < 2:
-        raise InputError(f"{int(taps)} taps give fewer than 2 FFT bins in the band", source="--taps",
-                         fix="use more taps or widen --band")
+        raise InputError(f"{int(taps)} taps give fewer than 2 FFT bins in the band", source="taps",
+                         fix="use more taps or widen `band_hz`")
 
 
 def _bins_in_band(fs: float, taps: int, lo: float, hi: float) -> int:
@@ -239,7 +260,7 @@ def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[fl
     fs, taps = float(sample_rate_hz), int(taps)
     lo, hi = float(band_hz[0]), float(band_hz[1])
     hz_all = np.fft.rfftfreq(taps, 1.0 / fs)
-    window = band_window(hz_all, (lo, hi), fs)
+    window = band_window(hz_all, (lo, hi), fs, min_transition_hz=TRANSITION_MIN_BINS * fs / taps)
     design_idx = np.nonzero(window > 0)[0]
     axis = FrequencyAxis(hz_all[design_idx])
     plan = decompose(FreeFieldKernel(rig), axis, chunk_size=chunk_size, track=True, progress=plan_progress)

@@ -25,7 +25,7 @@ from ..fileio import provenance, staged_output_dir, write_json_atomic, write_tex
 from ..rig import Rig
 from ..safety import CAUTION_NOTE
 from .check import FilterCheck, plot_crosstalk
-from .design import TRANSITION_OCTAVES, TUKEY_ALPHA, FilterSet
+from .design import TRANSITION_MIN_BINS, TRANSITION_OCTAVES, TUKEY_ALPHA, FilterSet
 
 __all__ = ["write_filters", "sidecar"]
 
@@ -45,13 +45,17 @@ def sidecar(rig: Rig, filters: FilterSet, check: FilterCheck | None = None) -> d
         "drive_filter_delay_samples": filters.drive_delay_samples,
         "combine_filter_delay_samples": filters.combine_delay_samples,
         "band_hz": list(filters.band_hz),
-        "band_window": f"raised-cosine transitions of {TRANSITION_OCTAVES:.4f} octave outside the band, "
-                       "zero at DC and Nyquist",
+        "band_window": f"raised-cosine transitions outside the band, each {TRANSITION_OCTAVES:.4f} octave or "
+                       f"{TRANSITION_MIN_BINS} design bins ({TRANSITION_MIN_BINS * fs / filters.taps:.6g} Hz) wide, "
+                       "whichever is wider (narrower edges ring through the band); zero at DC and Nyquist",
         "time_window": f"Tukey, alpha {TUKEY_ALPHA}",
         "filter_spectrum": "H(f) = weight(f) * W(f) * exp(-j*2*pi*f*(bulk_delay - alignment)/fs), "
                            "alignment = the weights' own group delay in samples (per side)",
-        "normalisation": "unit drive energy in band: sum over speakers of |H(f)|^2 = 1 (same for mics), "
-                         "so a channel's end-to-end gain is its singular value s",
+        "normalisation": "unit drive energy in band: on every in-band design bin, before the time window, "
+                         "sum over speakers of |H(f)|^2 = 1 (same for mics), so a channel's end-to-end gain is "
+                         "its singular value s there; the realised taps hold it between and on the bins within "
+                         "check.drive_energy_error_db and check.combine_energy_error_db (worst over a grid "
+                         "check.grid_factor times finer than the bins), when the check was run",
         "channel_numbering": "1-based, channels tracked across frequency from the lowest design bin",
         "centre_hz": filters.centre_hz,
         "channels": [
@@ -71,7 +75,16 @@ def sidecar(rig: Rig, filters: FilterSet, check: FilterCheck | None = None) -> d
         doc["check"] = {
             "limit_db": check.limit_db, "rig_ir_samples": check.ir_samples,
             "channels": [c + 1 for c in check.channels],
+            "grid_factor": check.grid_factor,
             "gain_error_db": check.gain_error_db,
+            "gain_error_definition": "worst in-band |20 log10(|T_jj| / g_j)| in dB over a grid grid_factor times "
+                                     "finer than the design bins; g_j = |c_j^T G(f) d_j| with the planned weights of "
+                                     "the nearest design bin (= the singular value s_j on the bins)",
+            "gain_error_on_bins_db": check.bin_gain_error_db,
+            "drive_energy_error_db": check.drive_energy_error_db,
+            "combine_energy_error_db": check.combine_energy_error_db,
+            "energy_error_definition": "worst in-band |10 log10(sum over elements of |H(f)|^2)| in dB over the same "
+                                       "grid: the realised filters' departure from unit energy",
             "worst_crosstalk_db": [float(x) if np.isfinite(x) else None for x in check.worst_crosstalk_db()],
             "crosstalk_db": [[None if not np.isfinite(x) else float(x) for x in row] for row in check.crosstalk_db],
             "crosstalk_definition": "[i][j] = worst in-band |T_ij|/|T_ii| in dB, output i, input j",
@@ -100,12 +113,15 @@ def _weights_csv(rig: Rig, filters: FilterSet) -> str:
 def _check_csv(check: FilterCheck) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["channel", "gain_error_db", "worst_crosstalk_db", "worst_from_channel", "latency_samples", "verdict"])
+    w.writerow(["channel", "gain_error_db", "gain_error_on_bins_db", "drive_energy_error_db",
+                "combine_energy_error_db", "worst_crosstalk_db", "worst_from_channel", "latency_samples", "verdict"])
     worst = check.worst_crosstalk_db()
     for k, c in enumerate(check.channels):
         row = check.crosstalk_db[k]
         src = check.channels[int(np.nanargmax(row))] + 1 if len(check.channels) > 1 else ""
-        w.writerow([c + 1, f"{check.gain_error_db[k]:.3f}", f"{worst[k]:.1f}", src,
+        w.writerow([c + 1, f"{check.gain_error_db[k]:.3f}", f"{check.bin_gain_error_db[k]:.3f}",
+                    f"{check.drive_energy_error_db[k]:.3f}", f"{check.combine_energy_error_db[k]:.3f}",
+                    f"{worst[k]:.1f}", src,
                     int(check.latency_samples[k]), "pass" if check.passed()[k] else "fail"])
     return buf.getvalue()
 

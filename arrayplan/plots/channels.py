@@ -22,7 +22,10 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
 
     Drawn at up to three frequencies spread over the plan; the paraxial
     estimate of the channel count is marked with a dashed line of the same
-    colour where it applies.
+    colour where it applies.  The dB panel bottoms out 10 dB below the
+    plan's noise floor (its ``snr_db`` below the strongest channel), with the
+    floor drawn: what lies below it is unusable, and numerical noise far
+    below it is not drawn as data.
     """
     fig = fig or Figure(figsize=(11.0, 4.2), layout="constrained")
     ax_lin, ax_db = fig.subplots(1, 2)
@@ -31,17 +34,21 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
     level = ch.level_db()
     n = min(ch.n_channels, max_channels)
     idx_ch = np.arange(1, n + 1)
+    floor_db = -abs(plan.snr_db) - 10.0
     colours = ["#440154", "#21918c", "#e2a000"]
     for colour, f in zip(colours, representative_indices(len(ch.axis))):
         order = np.argsort(-ch.power_coupling[f])[:n]    # descending, also for tracked plans
         label = f"{ch.axis.hz[f]:.4g} Hz"
         ax_lin.plot(idx_ch, share[f, order], "o-", ms=3, color=colour, label=label)
-        ax_db.plot(idx_ch, np.maximum(level[f, order], -120.0), "o-", ms=3, color=colour, label=label)
+        ax_db.plot(idx_ch, np.maximum(level[f, order], floor_db), "o-", ms=3, color=colour, label=label)
         est = plan.estimate.counts[f]
         if np.isfinite(est):
             for ax in (ax_lin, ax_db):
                 ax.axvline(est + 0.5, color=colour, ls="--", lw=1)
     ax_db.axhline(-plan.threshold_db, color="grey", ls=":", lw=1, label=f"-{plan.threshold_db:g} dB (strong)")
+    ax_db.axhline(-abs(plan.snr_db), color="black", ls="-.", lw=1,
+                  label=f"-{abs(plan.snr_db):g} dB (noise floor at the plan's SNR)")
+    ax_db.set_ylim(floor_db - 2.0, 3.0)
     ax_lin.set_xlabel("channel, strongest first (no.)")
     ax_lin.set_ylabel("power coupling (% of sum rule)")
     ax_db.set_xlabel("channel, strongest first (no.)")
@@ -49,7 +56,7 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
     for ax in (ax_lin, ax_db):
         ax.xaxis.set_major_locator(MaxNLocator(integer=True))
         ax.grid(True, alpha=0.3)
-        ax.legend(fontsize=8)
+    fig.legend(*ax_db.get_legend_handles_labels(), loc="outside lower center", ncol=5, fontsize=8)
     title = "Channel strengths"
     if plan.estimate.kind:
         title += f"  (dashed: paraxial estimate, {plan.estimate.kind}s)"

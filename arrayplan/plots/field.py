@@ -8,15 +8,23 @@ from matplotlib.figure import Figure
 from ..field import _AXES, PlaneGrid
 from ..rig import Rig
 
-__all__ = ["plot_field", "plot_field_panels", "SILENT_RATIO"]
+__all__ = ["plot_field", "plot_field_panels", "draw_walls", "SILENT_RATIO"]
 
 #: A panel whose level is below this share of the loudest panel's (-200 dB) is silent in the plane.
 SILENT_RATIO = 1e-10
 
 
+def draw_walls(ax, rig: Rig, i: int, j: int) -> None:
+    """Draw the walls of the rig's room (if any) projected on the axes `i`, `j` (0, 1, 2 for x, y, z)."""
+    if rig.room is None:
+        return
+    li, lj = rig.room.size_m[i], rig.room.size_m[j]
+    ax.plot([0, li, li, 0, 0], [0, 0, lj, lj, 0], color="black", linewidth=2.0, label="walls")
+
+
 def plot_field(rig: Rig, grid: PlaneGrid, pressure: np.ndarray, title: str, fig: Figure | None = None,
                range_db: float = 40.0) -> Figure:
-    """|p| in dB over the plane, with speakers and microphones projected on it.
+    """|p| in dB over the plane, with speakers, microphones and the room's walls (if any) projected on it.
 
     0 dB is the 99th percentile of |p| over the plane, so that the near field
     of the speakers does not set the scale; louder points are drawn at 0 dB.
@@ -38,6 +46,7 @@ def plot_field(rig: Rig, grid: PlaneGrid, pressure: np.ndarray, title: str, fig:
                                       (rig.mics, "o", "white", "microphones")):
         ax.scatter(es.positions[:, i], es.positions[:, j], marker=marker, s=22, c=colour, edgecolors="black",
                    linewidths=0.5, label=label)
+    draw_walls(ax, rig, i, j)
     names = "xyz"
     ax.set_xlabel(f"{names[i]} (m)")
     ax.set_ylabel(f"{names[j]} (m)")
@@ -103,6 +112,7 @@ def plot_field_panels(rig: Rig, grid: PlaneGrid, pressures: list[np.ndarray], ti
         for es, marker, colour in ((rig.speakers, "^", "tab:red"), (rig.mics, "o", "white")):
             ax.scatter(es.positions[:, ia], es.positions[:, id_], marker=marker, s=12, c=colour,
                        edgecolors="black", linewidths=0.4)
+        draw_walls(ax, rig, ia, id_)
         ax.set_xlabel(f"{names[ia]} (m)")
         ax.set_ylabel(f"{names[id_]} (m)")
         ax.set_aspect("equal")

@@ -5,6 +5,7 @@ from __future__ import annotations
 from matplotlib.figure import Figure
 
 from ..rig import Rig
+from .field import draw_walls
 
 __all__ = ["plot_rig"]
 
@@ -14,6 +15,8 @@ _VIEWS = (("top view", 0, 1, "x (m)", "y (m)"), ("side view", 0, 2, "x (m)", "z 
 
 def plot_rig(rig: Rig, fig: Figure | None = None, label_limit: int = 8) -> Figure:
     """Speakers (triangles) and microphones (circles) seen from the top, the side and the front.
+
+    A rig in a room shows the room's walls as a black outline in each view.
 
     Element names are written when there are at most `label_limit` of a kind.
     """
@@ -28,14 +31,16 @@ def plot_rig(rig: Rig, fig: Figure | None = None, label_limit: int = 8) -> Figur
             if len(es) <= label_limit:
                 for name, row in zip(es.names, p):
                     ax.annotate(name, (row[i], row[j]), fontsize=7, xytext=(3, 3), textcoords="offset points")
+        draw_walls(ax, rig, i, j)
         ax.set_title(title)
         ax.set_xlabel(xl)
         ax.set_ylabel(yl)
         ax.set_aspect("equal", adjustable="datalim")
         ax.grid(True, alpha=0.3)
     handles, labels = axes[0].get_legend_handles_labels()
-    fig.legend(handles, labels, loc="outside lower center", ncol=2, fontsize=8, frameon=False)
-    fig.suptitle(f"Rig '{rig.name}': {len(rig.speakers)} speakers, {len(rig.mics)} microphones")
+    fig.legend(handles, labels, loc="outside lower center", ncol=len(handles), fontsize=8, frameon=False)
+    room = "" if rig.room is None else " in a {:g} x {:g} x {:g} m room".format(*rig.room.size_m)
+    fig.suptitle(f"Rig '{rig.name}': {len(rig.speakers)} speakers, {len(rig.mics)} microphones{room}")
     return fig
 
 

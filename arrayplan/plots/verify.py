@@ -84,7 +84,18 @@ def plot_channel_matrices(hz, channel_matrix, channels, judged=None, max_panels:
 def plot_singular_values(result, ax=None, floor_db: float = -120.0):
     """Planned and measured singular values (dB re the strongest planned) against frequency.
 
+    Levels are taken against the strongest planned channel at each
+    frequency, whichever its number (a tracked plan's channel 1 need not be
+    the strongest).  Measured values are drawn in the plan's channel order
+    by rank (``result.measured_sv``, see :class:`arrayplan.verify.Verification`).
     The axis stops at `floor_db` (dB), so channels far below any noise floor do not squeeze the rest.
+
+    Parameters
+    ----------
+    result : Verification or any object with ``hz`` (n_freq,), ``planned_sv`` and ``measured_sv`` (n_freq, n_chan)
+    ax : matplotlib Axes, optional
+    floor_db : float
+        Lowest level shown, dB.
 
     Returns
     -------
@@ -97,7 +108,8 @@ def plot_singular_values(result, ax=None, floor_db: float = -120.0):
     else:
         fig = ax.figure
     hz = result.hz
-    ref = result.planned_sv[:, :1]
+    # the strongest planned channel at each frequency (a tracked plan's channel 1 need not be it)
+    ref = np.max(result.planned_sv, axis=1, keepdims=True)
     n = result.planned_sv.shape[1]
     colours = plt.get_cmap("viridis")(np.linspace(0.0, 0.9, n))
     with np.errstate(divide="ignore"):

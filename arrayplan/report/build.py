@@ -14,11 +14,13 @@ from .._version import __version__
 from ..errors import InputError
 from ..fileio import SIGN_CONVENTION, write_text_atomic
 from ..irset import MANIFEST_NAME
+from ..planning import Plan
 from ..rig import Rig
 from ..safety import CAUTION_TEXT
-from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundVerification, ProjectResults, find_results
+from .discover import (FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification, ProjectResults,
+                       find_results)
 from .figures import (ReportFigure, filter_figures, irset_figures, plan_figures, png_bytes, report_style,
-                      verification_figures)
+                      study_figures, verification_figures)
 from .html import esc, figure_html, page, table
 
 __all__ = ["build_report", "write_report"]
@@ -58,30 +60,75 @@ def _figures_html(figs: list[ReportFigure], label: str) -> str:
 
 #: Two channels whose singular values differ by less than this (dB) are reported as degenerate.
 DEGENERATE_DB = 0.01
+#: Two channels closer than this (dB) are reported as near-degenerate: the pairs that mix first.
+NEAR_DEGENERATE_DB = 1.0
+#: Channels weaker than this re the strongest (dB) are left out of both checks.
+_DEGENERATE_FLOOR_DB = -60.0
 
 
-def degenerate_pairs(singular_values: np.ndarray, level_db: np.ndarray) -> list[tuple[int, int]]:
-    """Neighbouring channels (j, j + 1) with equal singular values, and at how many frequencies.
+def degenerate_pairs(singular_values: np.ndarray, level_db: np.ndarray,
+                     within_db: float = DEGENERATE_DB) -> list[tuple[tuple[int, int], int]]:
+    """Pairs of channels whose singular values lie within `within_db` of each other, and where.
+
+    At each frequency the channels are ranked by singular value, and each two
+    neighbours in that ranking closer than `within_db` form a pair; pairs are
+    named by their channel numbers, so a tracked plan (whose numbers do not
+    follow the ranking) is counted by the channels themselves.
 
     Parameters
     ----------
     singular_values : ndarray, shape (n_freq, n_chan)
     level_db : ndarray, shape (n_freq, n_chan)
         Levels re the strongest channel, dB; channels below -60 dB are ignored.
+    within_db : float
+        Largest gap 20 log10(s_a / s_b) of a pair, dB.
 
     Returns
     -------
-    list of (j, count)
-        0-based first channel of the pair and the number of frequencies where it is degenerate.
+    list of ((a, b), count)
+        0-based channel numbers a < b of each pair and the number of frequencies where they are
+        that close, in the order of a, then b.
     """
     s = np.asarray(singular_values, dtype=float)
-    if s.shape[1] < 2:
+    if s.ndim != 2 or s.shape[1] < 2:
         return []
+    order = np.argsort(-s, axis=1, kind="stable")
+    ranked = np.take_along_axis(s, order, axis=1)
+    loud = np.take_along_axis(np.asarray(level_db, dtype=float), order, axis=1) > _DEGENERATE_FLOOR_DB
     with np.errstate(divide="ignore", invalid="ignore"):
-        gap_db = np.abs(20.0 * np.log10(s[:, :-1] / s[:, 1:]))
-    loud = (level_db[:, :-1] > -60.0) & (level_db[:, 1:] > -60.0)
-    counts = np.sum((gap_db < DEGENERATE_DB) & loud, axis=0)
-    return [(int(j), int(n)) for j, n in enumerate(counts) if n]
+        gap_db = np.abs(20.0 * np.log10(ranked[:, :-1] / ranked[:, 1:]))
+    close = (gap_db < within_db) & loud[:, :-1] & loud[:, 1:]
+    counts: dict[tuple[int, int], int] = {}
+    for f, j in zip(*np.nonzero(close)):
+        a, b = sorted((int(order[f, j]), int(order[f, j + 1])))
+        counts[(a, b)] = counts.get((a, b), 0) + 1
+    return sorted(counts.items())
+
+
+def _pairs_text(pairs: list[tuple[tuple[int, int], int]], n_freq: int) -> str:
+    return "; ".join(f"channels {a + 1} and {b + 1} at {n} of {n_freq} frequencies" for (a, b), n in pairs[:6])
+
+
+def _degeneracy_notes(plan: Plan) -> list[str]:
+    """The report's notes on degenerate and near-degenerate channel pairs (HTML paragraphs)."""
+    ch = plan.channels
+    n_freq = len(ch.axis)
+    level = ch.level_db()
+    exact = degenerate_pairs(ch.singular_values, level, DEGENERATE_DB)
+    near = [p for p in degenerate_pairs(ch.singular_values, level, NEAR_DEGENERATE_DB)
+            if p[0] not in dict(exact)]
+    notes = []
+    if exact:
+        notes.append(f'<p class="note">Degenerate channels (singular values within {DEGENERATE_DB:g} dB, above '
+                     f'{_DEGENERATE_FLOOR_DB:g} dB): {esc(_pairs_text(exact, n_freq))}. Any orthonormal basis '
+                     "of such a pair is an equally valid plan, so their weights and field maps show one choice "
+                     "of many; a symmetric rig has them by symmetry.</p>")
+    if near:
+        notes.append(f'<p class="note">Near-degenerate channels (singular values within {NEAR_DEGENERATE_DB:g} dB): '
+                     f"{esc(_pairs_text(near, n_freq))}. Small placement or gain errors mix such a pair first, "
+                     "so their isolation is the most fragile on the real rig: verify them on the measured "
+                     "responses, or drive the pair as one two-channel group.</p>")
+    return notes
 
 
 def _element_rows(rig: Rig, with_directivity: bool) -> tuple[list[str], list[list[object]]]:
@@ -117,6 +164,22 @@ def _plan_numbers(found: FoundPlan) -> tuple[str, list[list[object]]]:
     return note, rows
 
 
+def _measurement_rows(side: dict) -> list[list[str]]:
+    """Rows naming the IR set a plan was made from (none for a free-field plan), from its ``weights.json``."""
+    m = side.get("measurement")
+    if not isinstance(m, dict) or not isinstance(m.get("irset"), dict):
+        return []
+    irs = m["irset"]
+    fmt = " ".join(str(v) for v in (irs.get("format"), irs.get("format_version")) if v is not None)
+    window = "whole response" if m.get("window_ms") is None else f"{m['window_ms']:g} ms after zero lag"
+    smooth = "none" if m.get("smoothing_octaves") is None else f"{m['smoothing_octaves']:.3g} octave"
+    return [["measured IR set", f"{irs.get('path', '')} ({fmt}; SHA-256 of {irs.get('hashed_file', '')}: "
+                                f"{irs.get('sha256', '')})"],
+            ["coupling units", str(m.get("units_meaning", m.get("units", "")))],
+            ["window, latency removed, smoothing",
+             f"{window}; {m.get('latency_samples', 0)} samples; {smooth}"]]
+
+
 def _plan_section(found: FoundPlan, root: Path) -> str:
     plan, side = found.plan, found.sidecar
     rig = plan.rig
@@ -131,6 +194,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
         ["speed of sound", f"{rig.medium.speed_of_sound:.2f} m/s"],
         ["air absorption", "ISO 9613-1" if rig_info.get("air_absorption") else "none"],
         ["kernel", plan.kernel_name],
+        *_measurement_rows(side),
         ["frequencies", f"{len(hz)} from {hz[0]:.5g} Hz to {hz[-1]:.5g} Hz"],
         ["strong channels", f"within {plan.threshold_db:g} dB of the strongest"],
         ["usable channels", f"above the noise floor at an SNR of {plan.snr_db:g} dB on the strongest"],
@@ -138,13 +202,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
     ], text_columns=(0, 1)))
     if plan.estimate.warning:
         parts.append(f'<p class="note">Paraxial estimate: {esc(plan.estimate.warning)}.</p>')
-    pairs = degenerate_pairs(plan.channels.singular_values, plan.channels.level_db())
-    if pairs:
-        text = "; ".join(f"channels {j + 1} and {j + 2} at {n} of {len(hz)} frequencies" for j, n in pairs[:6])
-        parts.append(f'<p class="note">Degenerate channels (singular values within {DEGENERATE_DB:g} dB, above '
-                     f'-60 dB): {esc(text)}. Any orthonormal basis of such a pair is an equally valid plan, so '
-                     "their weights and field maps show one choice of many; a symmetric rig has them by "
-                     "symmetry.</p>")
+    parts.extend(_degeneracy_notes(plan))
     header, rows = _element_rows(rig, with_directivity=found.rig_file is not None)
     parts.append("<h3>Elements</h3>" + table(header, rows, text_columns=(0, 1, 6)))
     note, rows = _plan_numbers(found)
@@ -296,6 +354,23 @@ def _verification_section(found: FoundVerification, root: Path) -> str:
     return "\n".join(parts)
 
 
+def _study_section(found: FoundStudy, root: Path) -> str:
+    if found.kind in ("zones", "layout", "comparison"):
+        return _design_study_section(found, root)
+    side = found.sidecar
+    title = {"capacity": "Capacity study", "tolerance": "Tolerance study"}[found.kind]
+    parts = [f'<section id="{_anchor("study", found.folder, root)}"><h2>{title}: {esc(_rel(found.folder, root))}</h2>',
+             f'<p class="verdict">{esc(str(side.get("verdict", "")))}</p>']
+    conventions = side.get("conventions", {})
+    rows = [[k.replace("_", " "), str(v)] for k, v in conventions.items()]
+    if found.kind == "tolerance":
+        rows = [[k.replace("_", " "), str(v)] for k, v in side.get("settings", {}).items()] + rows
+    parts.append(table(["item", "value"], [["plan", str(side.get("plan", ""))]] + rows, text_columns=(0, 1)))
+    parts.append(_figures_html(study_figures(found), f"{found.kind} study {_rel(found.folder, root)}"))
+    parts.append("</section>")
+    return "\n".join(parts)
+
+
 def _summary(results: ProjectResults, root: Path) -> str:
     items = []
     for fp in results.plans:
@@ -328,8 +403,22 @@ def _summary(results: ProjectResults, root: Path) -> str:
                    f'{esc(", ".join(str(c) for c in failed))})')
         items.append(f"Verification <b>{esc(_rel(fv.folder, root))}</b>: {sum(passed)} of {len(passed)} wanted "
                      f"channels pass at {esc(fv.doc.get('isolation_db'))} dB isolation; {verdict}.")
+    if results.studies:
+        from .studies import STUDY_NAMES, study_summary
+        items += [f"{STUDY_NAMES[fs.kind]} <b>{esc(_rel(fs.folder, root))}</b>: {esc(study_summary(fs))}."
+                  for fs in results.studies if fs.kind in STUDY_NAMES]
     body = "".join(f"<li>{i}</li>" for i in items)
     return f'<section id="summary"><h2>Summary</h2><div class="verdict"><ul>{body}</ul></div></section>'
+
+
+def _design_study_section(found, root: Path) -> str:
+    """A zones, layout or comparison study (tables and figures from :mod:`arrayplan.report.studies`)."""
+    from .studies import STUDY_NAMES, study_figures, study_section_html
+
+    figs = [ReportFigure(caption, fig) for caption, fig in study_figures(found)]
+    return "\n".join([f'<section id="{_anchor("study", found.folder, root)}"><h2>{STUDY_NAMES[found.kind]}: '
+                      f'{esc(_rel(found.folder, root))}</h2>', study_section_html(found),
+                      _figures_html(figs, f"study {_rel(found.folder, root)}"), "</section>"])
 
 
 def _provenance_of(path: Path) -> dict:
@@ -417,14 +506,16 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     if results.empty:
         detail = f" ({'; '.join(results.problems)})" if results.problems else ""
         raise InputError("no arrayplan results found" + detail, source=str(root),
-                         fix="run 'arrayplan plan RIG.toml --out DIR' (and filters, measure, verify) into this folder")
+                         fix="write results into this folder first ('arrayplan plan', then filters, measure, verify)")
     generated = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
     title = title or f"arrayplan report: {root.resolve().name}"
     steps = ([("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
-             + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications])
+             + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications]
+             + [("study", fs) for fs in results.studies])
     total = len(steps) + 1
     builders = {"plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
-                "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification")}
+                "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification"),
+                "study": (_study_section, "Study")}
     toc = []
     sections = []
     with report_style():

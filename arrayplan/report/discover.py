@@ -9,6 +9,7 @@ example::
       filters/       filters.json, channel-NN-*.wav, check.csv
       meas/          session.json, takes/, irset/ (an IR set)
       verify/        verify.json (kind arrayplan-verification), verify-*.csv
+      capacity/      capacity.json (kind arrayplan-capacity-study), tolerance/ tolerance.json (design studies)
 
 Each result is recognised by its sidecar, wherever it lies (up to
 :data:`MAX_DEPTH` folders down); AES69 (SOFA) files (``*.sofa``) count as IR
@@ -24,6 +25,7 @@ from __future__ import annotations
 import csv
 import json
 import os
+import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -31,14 +33,15 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
+from ..fileio import check_folder
 from ..filters.check import FilterCheck
 from ..irset import MANIFEST_NAME, IRSet, read_irset
 from ..plan_files import read_plan
 from ..planning import Plan
 from ..rig import Rig, load_rig
 
-__all__ = ["MAX_DEPTH", "FoundPlan", "FoundFilters", "FoundIRSet", "FoundVerification", "ProjectResults",
-           "find_results"]
+__all__ = ["MAX_DEPTH", "FoundPlan", "FoundFilters", "FoundIRSet", "FoundVerification", "FoundStudy",
+           "ProjectResults", "find_results"]
 
 #: How many folder levels below the project folder are searched.
 MAX_DEPTH = 4
@@ -103,6 +106,21 @@ class FoundVerification:
 
 
 @dataclass
+class FoundStudy:
+    """A design-study folder: `kind` ``capacity`` or ``tolerance``, the study read back and its sidecar."""
+
+    folder: Path
+    kind: str
+    study: Any
+    sidecar: dict
+
+
+#: Study sidecars by file name: (kind, reader module attribute).
+_STUDY_SIDECARS = {"capacity.json": ("capacity", "read_capacity_study"),
+                   "tolerance.json": ("tolerance", "read_tolerance_study")}
+
+
+@dataclass
 class ProjectResults:
     """Everything found under a project folder, each list sorted by path."""
 
@@ -112,10 +130,11 @@ class ProjectResults:
     irsets: list[FoundIRSet] = field(default_factory=list)
     verifications: list[FoundVerification] = field(default_factory=list)
     problems: list[str] = field(default_factory=list)
+    studies: list[FoundStudy] = field(default_factory=list)
 
     @property
     def empty(self) -> bool:
-        return not (self.plans or self.filters or self.irsets or self.verifications)
+        return not (self.plans or self.filters or self.irsets or self.verifications or self.studies)
 
 
 def _read_json(path: Path) -> Any:
@@ -179,6 +198,7 @@ def _load_plan(folder: Path, project: Path, rig: Rig | None) -> FoundPlan:
 
 
 def _load_filters(folder: Path) -> FoundFilters:
+    check_folder(folder, needed=("filters.json", "channel-*.wav", "*.csv"))
     doc = _read_json(folder / "filters.json")
     check = None
     c = doc.get("check")
@@ -214,6 +234,7 @@ def _load_irset(folder: Path) -> FoundIRSet:
 
 
 def _load_verification(folder: Path) -> FoundVerification:
+    check_folder(folder, needed=("verify*",))
     doc = _read_json(folder / "verify.json")
     arrays = None
     if (folder / "verify.npz").is_file():
@@ -228,6 +249,19 @@ def _load_verification(folder: Path) -> FoundVerification:
                              _read_csv(folder / "verify-summary.csv"), arrays)
 
 
+def _load_study(folder: Path) -> FoundStudy:
+    from ..studies import files as study_files
+
+    for name, (kind, reader) in _STUDY_SIDECARS.items():
+        if (folder / name).is_file():
+            study, side = getattr(study_files, reader)(folder)
+            return FoundStudy(folder, kind, study, side)
+    from .studies import load_study, study_kind
+    if study_kind(folder):
+        return load_study(folder)
+    raise InputError("no study sidecar", source=str(folder))
+
+
 def _kind(folder: Path) -> str | None:
     if (folder / "weights.json").is_file() and (folder / "weights.npz").is_file():
         return "plan"
@@ -235,6 +269,11 @@ def _kind(folder: Path) -> str | None:
         return "filters"
     if (folder / "verify.json").is_file():
         return "verification"
+    if any((folder / name).is_file() for name in _STUDY_SIDECARS):
+        return "study"
+    from .studies import study_kind       # zones, layout and comparison studies
+    if study_kind(folder):
+        return "study"
     if (folder / MANIFEST_NAME).is_file():
         parts = folder.parts
         if folder.name.startswith("harmonic-") or (len(parts) >= 3 and parts[-3] == "takes"):
@@ -270,7 +309,8 @@ def find_results(project_dir: str | os.PathLike, rig: Rig | None = None) -> Proj
     loaders = {"plan": (lambda f: _load_plan(f, root, rig), out.plans),
                "filters": (_load_filters, out.filters),
                "irset": (_load_irset, out.irsets),
-               "verification": (_load_verification, out.verifications)}
+               "verification": (_load_verification, out.verifications),
+               "study": (_load_study, out.studies)}
     for folder in _walk(root):
         found = [(_kind(folder), folder)] + [("irset", f) for f in sorted(folder.glob("*.sofa")) if f.is_file()]
         for kind, where in found:
@@ -280,6 +320,9 @@ def find_results(project_dir: str | os.PathLike, rig: Rig | None = None) -> Proj
             try:
                 bucket.append(load(where))
             except InputError as exc:
-                text = exc.one_line() if hasattr(exc, "one_line") else str(exc)
-                out.problems.append(f"{kind} in {where}: {text}")
+                out.problems.append(f"{kind} in {where}: {exc.one_line()}")
+            except (OSError, ValueError, KeyError, TypeError, EOFError, zipfile.BadZipFile) as exc:
+                # Any other fault of one result's files: listed, and the rest still comes out.
+                out.problems.append(f"{kind} in {where}: unreadable ({exc.__class__.__name__}: "
+                                    f"{' '.join(str(exc).split())})")
     return out

@@ -20,10 +20,10 @@ from ..field import best_plane, channel_field, default_plane
 from ..filters.check import plot_crosstalk as plot_filter_crosstalk
 from ..plots import (plot_channel_counts, plot_channel_matrices, plot_couplings, plot_field_panels,
                      plot_ir_overview, plot_isolation, plot_level_map, plot_rig, plot_singular_values)
-from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundVerification
+from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification
 
 __all__ = ["ReportFigure", "PAGE_WIDTH_IN", "MIN_FONT_PT", "report_style", "plan_figures", "filter_figures",
-           "irset_figures", "verification_figures", "png_bytes"]
+           "irset_figures", "verification_figures", "study_figures", "png_bytes"]
 
 #: A4 is 210 mm wide; with 15 mm margins the text is 180 mm = 7.09 in wide.
 PAGE_WIDTH_IN = 7.0
@@ -156,3 +156,26 @@ def verification_figures(found: FoundVerification) -> list[ReportFigure]:
         out.append(ReportFigure("Planned singular values (solid) and those of the measured coupling matrices "
                                 "(dashed), dB re the strongest planned.", plot_singular_values(sv, ax=_fig(3.6).subplots())))
     return out
+
+
+def study_figures(found: FoundStudy) -> list[ReportFigure]:
+    """The figures of a design study (capacity or tolerance), drawn again at report size."""
+    from ..plots.studies import (plot_active_channels, plot_capacity, plot_gain_spread, plot_survival,
+                                 plot_water_levels)
+
+    st = found.study
+    if found.kind == "capacity":
+        return [ReportFigure("Capacity against frequency at each SNR (SNR of the strongest channel with all power on "
+                             "it): water-filling (solid) and equal power on the strong channels (dashed).",
+                             plot_capacity(st, ax=_fig(3.4).subplots())),
+                ReportFigure("Channels given power by the water-filling against SNR, at up to four frequencies.",
+                             plot_active_channels(st, ax=_fig(3.0).subplots())),
+                ReportFigure("Water-filling at the middle planned frequency and the highest SNR: each channel's floor "
+                             "1/gamma and the power poured on it, as fractions of the total power.",
+                             plot_water_levels(st, ax=_fig(3.0).subplots()))]
+    rows = int(np.ceil(min(6, max(1, int(st.judged.any(axis=0).sum()))) / 3))
+    return [ReportFigure("Realised gain of each channel in use with the planned weights: median and 5-95 % of the "
+                         "trials; dashed: the first-order prediction (±1.645 standard deviations).",
+                         plot_gain_spread(st, fig=_fig(1.1 + 2.0 * rows))),
+            ReportFigure("Share of trials in which each channel in use keeps the isolation limit.",
+                         plot_survival(st, ax=_fig(3.2).subplots()))]

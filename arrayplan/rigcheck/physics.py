@@ -7,9 +7,12 @@ import re
 import numpy as np
 from scipy.spatial import cKDTree
 
+from ..errors import InputError
 from ..heuristics import PARAXIAL_RATIO, aperture_shape
+from ..limits import check_memory
 from ..medium import speed_of_sound_air
 from ..rig import Rig
+from ..room import eyring_t60_s, sabine_t60_s, schroeder_frequency_hz
 from .findings import Finding, SideGroup
 
 __all__ = ["physical_findings", "aliasing_findings", "paraxial_findings", "coupling_findings", "piston_findings",
@@ -276,6 +279,53 @@ def medium_findings(rig: Rig, raw_medium: dict) -> list[Finding]:
     return []
 
 
+#: Time per image path and frequency assumed for the room estimate, s (benchmarks/room_speed.py measures
+#: 20-80 ns on a 2-core machine: the low end on evenly spaced frequencies, the high end on others).
+ROOM_NS_PER_PATH = 80e-9
+#: A room plan estimated to take longer than this many seconds is warned about.
+ROOM_SLOW_S = 60.0
+
+
+def room_findings(rig: Rig, freqs_hz: np.ndarray | None) -> list[Finding]:
+    """The room's cost estimate (warning when slow) and its reverberation guides (notes)."""
+    room = rig.room
+    if room is None:
+        return []
+    out = []
+    n_img = room.n_images
+    paths = n_img * len(rig.speakers) * len(rig.mics)
+    n_f = 1 if freqs_hz is None else len(freqs_hz)
+    seconds = paths * n_f * ROOM_NS_PER_PATH
+    geometry_mb = min(paths, 4_000_000) * 16 / 1e6 + n_img * 72 / 1e6
+    estimate = (f"order {room.reflection_order} keeps {n_img:,} image sources, {paths:,} image paths per "
+                f"frequency; a plan at {n_f} frequencies takes about {seconds:.2g} s at "
+                f"{ROOM_NS_PER_PATH * 1e9:.0f} ns per path and frequency, and about {geometry_mb:.2g} MB for the "
+                f"image geometry (plus a working set bounded by the chunk size)")
+    if seconds > ROOM_SLOW_S:
+        out.append(Finding("warning", "room.reflection_order", estimate + f": more than {ROOM_SLOW_S:g} s",
+                           "lower reflection_order, set max_delay_ms, or plan at fewer frequencies"))
+    else:
+        out.append(Finding("note", "room.reflection_order", estimate))
+    c = rig.medium.speed_of_sound
+    sabine, eyring = sabine_t60_s(room, 1000.0, c), eyring_t60_s(room, 1000.0, c)
+    if np.isfinite(sabine) and sabine > 0:
+        f_s = schroeder_frequency_hz(sabine, room.volume_m3)
+        out.append(Finding("note", "room.absorption",
+                           f"at 1 kHz (mean absorption {room.mean_absorption(1000.0):.2f}) the Sabine reverberation "
+                           f"time is {sabine:.2f} s and the Eyring time {eyring:.2f} s; the Schroeder frequency "
+                           f"2000 sqrt(T60/V) is {f_s:.0f} Hz, below which single room modes dominate. These are "
+                           "guides from diffuse-field formulas, not what the image model will show"))
+        longest_s = (room.max_delay_ms / 1e3 if room.max_delay_ms is not None
+                     else room.reflection_order * min(room.size_m) / c)
+        decay_db = 60.0 * longest_s / sabine
+        if decay_db < 30.0:
+            out.append(Finding("note", "room.reflection_order",
+                               f"the image paths kept reach roughly {longest_s * 1e3:.0f} ms, about {decay_db:.0f} dB "
+                               f"into a {sabine:.2f} s decay: the room's late reflections are left out",
+                               "raise reflection_order (or max_delay_ms) to model more of the decay"))
+    return out
+
+
 def physical_findings(rig: Rig, groups: dict[str, list[SideGroup]], raw_medium: dict | None = None
                       ) -> list[Finding]:
     """Warnings and notes about a rig that loads: what will go wrong on the real rig.
@@ -294,18 +344,27 @@ def physical_findings(rig: Rig, groups: dict[str, list[SideGroup]], raw_medium: 
     list of Finding
     """
     out = medium_findings(rig, raw_medium or {})
+    out += room_findings(rig, None if rig.frequencies is None else rig.frequencies.hz)
     if rig.frequencies is None:
         out.append(Finding("note", "frequencies",
-                           "no [frequencies] table: 'arrayplan plan' will need --freq, and the checks that depend "
+                           "no [frequencies] table: 'arrayplan plan' will need frequencies on its command line, and "
+                           "the checks that depend "
                            "on frequency (spacing, near field, nulls, sample rate) were skipped",
                            "add [frequencies] with start, stop and count in Hz"))
         return out + paraxial_findings(rig) + hardware_findings(rig, None)
     hz = rig.frequencies.hz
     out += aliasing_findings(rig, groups)
     out += paraxial_findings(rig)
-    out += coupling_findings(rig, hz)
-    out += piston_findings(rig, float(hz[-1]))
-    out += proximity_findings(rig, float(hz[0]))
+    try:    # tables of every speaker-microphone path at every frequency: estimated before they are built
+        check_memory(8.0 * len(rig.mics) * len(rig.speakers) * (2 * len(hz) + 8),
+                     "checking every speaker-microphone path", source=rig.source)
+    except InputError as exc:
+        out.append(Finding("note", "speakers/microphones", "the checks of each speaker-microphone path (nulls, "
+                           f"baffles, pistons' near field, proximity) were skipped: {exc.problem}", exc.fix))
+    else:
+        out += coupling_findings(rig, hz)
+        out += piston_findings(rig, float(hz[-1]))
+        out += proximity_findings(rig, float(hz[0]))
     out += compact_findings(rig, float(hz[-1]))
     out += hardware_findings(rig, float(hz[-1]))
     return out

@@ -102,11 +102,14 @@ def _frequency_list(values: Any) -> list[Finding]:
 
 
 def _check_sides(doc: dict, r: FieldReader, base: Path, src: str
-                 ) -> tuple[list[Finding], dict[str, list[SideGroup]], dict[str, list[EntryElements]]]:
-    """Findings, the groups of each side, and every resolved entry of each side in file order."""
+                 ) -> tuple[list[Finding], dict[str, list[SideGroup]], dict[str, list[EntryElements]],
+                            dict[str, list[str]]]:
+    """Findings, the groups of each side, every resolved entry of each side in file order, and the names
+    of the point entries that did not resolve (so that a repeated name is found even there)."""
     findings: list[Finding] = []
     groups: dict[str, list[SideGroup]] = {"speakers": [], "microphones": []}
     resolved: dict[str, list[EntryElements]] = {"speakers": [], "microphones": []}
+    unresolved: dict[str, list[str]] = {"speakers": [], "microphones": []}
     for label in ("speakers", "microphones"):
         entries = doc.get(label)
         if entries is None:
@@ -138,6 +141,8 @@ def _check_sides(doc: dict, r: FieldReader, base: Path, src: str
             part, errs = _peel(resolve, clean, where, src, keep=frozenset({"shape", "csv"}))
             findings += errs
             if part is None:
+                if kind == "point" and isinstance(entry.get("name"), str) and entry["name"]:
+                    unresolved[label].append(entry["name"])
                 continue
             parts.append(part)
             next_channel = max(c for p in parts for c in p.channels) + 1
@@ -152,7 +157,21 @@ def _check_sides(doc: dict, r: FieldReader, base: Path, src: str
                                                                        joined.directivities, joined.channels),
                                            (len(joined.names),)))
         resolved[label] = parts
-    return findings, groups, resolved
+    return findings, groups, resolved, unresolved
+
+
+def _names_repeated_in_failed_entries(resolved: dict[str, list[EntryElements]],
+                                      unresolved: dict[str, list[str]]) -> list[Finding]:
+    """Repeated names that involve an entry with another error (the resolved ones are checked by the rig)."""
+    out = []
+    for label, failed in unresolved.items():
+        seen = {n for p in resolved[label] for n in p.names}
+        for name in failed:
+            if name in seen:
+                out.append(Finding("error", label, f"{label} names must be unique; {name!r} appears twice",
+                                   "give each element its own name"))
+            seen.add(name)
+    return out
 
 
 def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
@@ -173,7 +192,7 @@ def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
         findings.append(Finding("error", "rig", "must be a table [rig]", "write [rig] with name = \"...\""))
     else:
         findings += _unknown_keys(meta, TABLE_KEYS["rig"], "rig", "of [rig]")
-    side_findings, groups, resolved = _check_sides(doc, r, base, src)
+    side_findings, groups, resolved, unresolved = _check_sides(doc, r, base, src)
     findings += side_findings
     for name in ("medium", "frequencies", "hardware", "planning"):
         table = doc.get(name)
@@ -205,6 +224,7 @@ def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
                 f.field.startswith(str(exc.field)) for f in findings):
             continue
         findings.append(_from_error(exc, src))
+    findings += _names_repeated_in_failed_entries(resolved, unresolved)
     return findings, groups
 
 

@@ -38,6 +38,11 @@ Deconvolution (:mod:`.deconvolve`)
     impulse_responses([recording (n, n_mic) per speaker], inverse, ...) -> OfflineResult
         (.data (ir_length, n_mic, n_spk), .harmonics, .harmonic_db, .peak_to_noise_db, .warnings)
 
+Recordings made with any recorder (:mod:`.offline`, :mod:`.element_names`)
+    read_played_sweep(sidecar) -> PlayedSweep; read_takes(played, paths) -> Takes
+    deconvolve_takes(played, takes, speaker_names=, mic_names=, ...) -> OfflineIRs; write_offline_irs(folder, made)
+    names_from_rig_file(path), names_from_plan(folder) -> RigNames; fit_names(names, n_speakers, n_mics)
+
 Files (:mod:`.wavout`)
     write_signal_files(wav_path, signal, rate, sample_format, sidecar, extra_wavs) : WAV + JSON sidecar, atomic
     read_recording(path) -> (data (n, n_ch), rate)
@@ -50,7 +55,8 @@ from .deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, Deconvolu
                          peak_to_noise_db, split_schedule, total_harmonic_level_db)
 from .levels import (DEFAULT_PEAK_CAP_DBFS, amplitude_from_dbfs, block_dc, channel_rms_dbfs, check_peak,
                      condition, highpass, peak_dbfs, raised_cosine_fade, rms_dbfs, scale_to_level)
-from .sweeps import (SWEEP_KINDS, SweepRecord, SweepSettings, SweepSignal, check_sweep_band,
+from .sweep_record import SweepRecord
+from .sweeps import (SWEEP_KINDS, SweepSettings, SweepSignal, check_sweep_band,
                      exponential_inverse_filter, exponential_sweep, harmonic_offset_s, linear_inverse_filter,
                      linear_sweep, make_sweep, normalise_inverse)
 from .noise import NOISE_COLOURS, band_limited_noise

@@ -33,10 +33,13 @@ from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
+from .distortion_floor import MEASURED, harmonic_status, method_floor_db, noise_floor_db
+
 __all__ = [
     "CLIP_THRESHOLD",
     "DEFAULT_MIN_PEAK_TO_NOISE_DB",
     "Deconvolution",
+    "PreparedInverse",
     "deconvolve",
     "harmonic_windows",
     "harmonic_levels_db",
@@ -73,7 +76,7 @@ class Deconvolution:
         Index in `full` where each harmonic window starts.
     harmonic_zero_index : dict of int -> int
         Index inside each harmonic window of that order's nominal zero lag.
-    full : ndarray, shape (n_recording + n_inverse - 1, n_channels)
+    full : ndarray, float32, shape (n_recording + n_inverse - 1, n_channels)
         The whole deconvolved signal.
     linear_lag : int
         Index in `full` of the linear response's zero lag.
@@ -92,7 +95,9 @@ class Deconvolution:
 
 
 def _as_2d(x: np.ndarray, name: str) -> np.ndarray:
-    x = np.asarray(x, dtype=float)
+    x = np.asarray(x)
+    if not np.issubdtype(x.dtype, np.floating):
+        x = x.astype(float)
     if x.ndim == 1:
         x = x[:, None]
     if x.ndim != 2:
@@ -107,6 +112,53 @@ def _cut(full: np.ndarray, start: int, length: int) -> np.ndarray:
     if hi > lo:
         out[lo - start:hi - start] = full[lo:hi]
     return out
+
+
+class PreparedInverse:
+    """An inverse filter ready to convolve many recordings: its spectrum is computed once per length.
+
+    The convolution is done with real FFTs in single precision (scipy.fft,
+    several workers): its error, about 1e-7 of the response's peak, is far
+    below the float32 WAV files responses are stored in and below any
+    recording's noise.
+
+    Parameters
+    ----------
+    inverse : ndarray, shape (n_inverse,)
+        The sweep's normalised inverse filter.
+    workers : int
+        Threads for the FFTs (-1: all processors).
+    """
+
+    def __init__(self, inverse: np.ndarray, workers: int = -1) -> None:
+        self.taps = np.asarray(inverse, dtype=np.float32).reshape(-1)
+        if self.taps.size < 1:
+            raise ValueError("the inverse filter is empty")
+        self.workers = int(workers)
+        self._spectra: dict[int, np.ndarray] = {}
+
+    def convolve(self, recording: np.ndarray) -> np.ndarray:
+        """Full linear convolution of each column with the inverse.
+
+        Parameters
+        ----------
+        recording : ndarray, shape (n_samples, n_channels)
+
+        Returns
+        -------
+        ndarray, float32, shape (n_samples + n_inverse - 1, n_channels)
+        """
+        from scipy.fft import irfft, next_fast_len, rfft
+
+        rec = np.asarray(recording, dtype=np.float32)
+        n_full = rec.shape[0] + self.taps.size - 1
+        n_fft = next_fast_len(n_full, real=True)
+        spec = self._spectra.get(n_fft)
+        if spec is None:
+            spec = self._spectra[n_fft] = rfft(self.taps, n_fft, workers=self.workers)
+        x = rfft(rec, n_fft, axis=0, workers=self.workers)
+        x *= spec[:, None]
+        return irfft(x, n_fft, axis=0, workers=self.workers, overwrite_x=True)[:n_full]
 
 
 def harmonic_windows(linear_lag: int, harmonic_offsets: Mapping[int, float], ir_length: int,
@@ -156,7 +208,7 @@ def harmonic_windows(linear_lag: int, harmonic_offsets: Mapping[int, float], ir_
     return out
 
 
-def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, ir_length: int,
+def deconvolve(recording: np.ndarray, inverse: np.ndarray | PreparedInverse, *, linear_lag: int, ir_length: int,
                harmonic_offsets: Mapping[int, float] | None = None,
                pre_samples: int | None = None, pre_roll_samples: int = 0) -> Deconvolution:
     """Convolve a recording with a sweep's inverse filter and cut out the responses.
@@ -166,8 +218,8 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
     recording : ndarray, shape (n_samples,) or (n_samples, n_channels)
         What the microphones recorded while the sweep file played, starting
         at the file's first sample; full scale = 1.
-    inverse : ndarray, shape (n_inverse,)
-        The sweep's normalised inverse filter.
+    inverse : ndarray, shape (n_inverse,), or PreparedInverse
+        The sweep's normalised inverse filter (prepared once for many recordings).
     linear_lag : int
         Index of zero lag in the full deconvolution (``n_pad_before + n_sweep - 1``).
     ir_length : int
@@ -189,10 +241,8 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
         ``linear`` has ``pre_roll_samples + ir_length`` samples, zero lag at
         index ``pre_roll_samples``.
     """
-    from scipy.signal import fftconvolve
-
     rec = _as_2d(recording, "recording")
-    inv = np.asarray(inverse, dtype=float).reshape(-1)
+    inv = inverse if isinstance(inverse, PreparedInverse) else PreparedInverse(inverse)
     if ir_length < 1:
         raise ValueError(f"ir_length must be >= 1, got {ir_length}")
     pre_roll = int(pre_roll_samples)
@@ -202,7 +252,7 @@ def deconvolve(recording: np.ndarray, inverse: np.ndarray, *, linear_lag: int, i
     if second is not None and pre_roll > second / 2:
         raise ValueError(f"a pre-roll of {pre_roll} samples reaches past half-way to the 2nd harmonic "
                          f"({second / 2:.0f} samples)")
-    full = fftconvolve(rec, inv[:, None], axes=0)
+    full = inv.convolve(rec)
     linear = _cut(full, linear_lag - pre_roll, pre_roll + ir_length)
     windows = harmonic_windows(linear_lag, harmonic_offsets or {}, ir_length, pre_samples)
     harmonics = {n: _cut(full, start, length) for n, (start, length, _) in windows.items()}
@@ -317,9 +367,11 @@ class OfflineResult:
     harmonic_zero_index : dict of int -> int
         Index in each harmonic window of that order's nominal zero lag.
     harmonic_db : dict of int -> ndarray, shape (n_mic, n_spk)
-        Energy of each product relative to the linear response, dB.
+        Energy of each product relative to the linear response, dB, as read
+        (floors included: see `harmonic_status`).
     thd_db : ndarray, shape (n_mic, n_spk)
-        All products together relative to the linear response, dB (-inf if none).
+        The products reported as measured, together, relative to the linear
+        response, dB (-inf if none is above the floors).
     peak_to_noise_db : ndarray, shape (n_mic, n_spk)
     peak_dbfs : ndarray, shape (n_mic, n_spk)
         Peak of each linear response, dB re 1 (recorded full scale per played full scale).
@@ -330,6 +382,13 @@ class OfflineResult:
         Recorded samples at or above the clip threshold.
     warnings : list of str
         One line each: clipping, low peak-to-noise.
+    method_floor_db : dict of int -> float, or None
+        The method's own floor per order (:mod:`arrayplan.signals.distortion_floor`);
+        None when no clean recording was given.
+    noise_floor_db : dict of int -> ndarray, shape (n_mic, n_spk)
+        The noise floor per order and pair, dB.
+    harmonic_status : dict of int -> ndarray of str, shape (n_mic, n_spk)
+        "measured", "below the method's floor" or "below the noise floor".
     """
 
     data: np.ndarray
@@ -343,13 +402,20 @@ class OfflineResult:
     clipped_samples: np.ndarray
     warnings: list[str]
     zero_lag_index: int = 0
+    method_floor_db: dict[int, float] | None = None
+    noise_floor_db: dict[int, np.ndarray] = field(default_factory=dict)
+    harmonic_status: dict[int, np.ndarray] = field(default_factory=dict)
+
+    def reported_harmonic_db(self, order: int) -> np.ndarray:
+        """Level of `order` where it is measured, NaN where below a floor; shape (n_mic, n_spk), dB."""
+        return np.where(self.harmonic_status[order] == MEASURED, self.harmonic_db[order], np.nan)
 
 
 def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, linear_lag: int, ir_length: int,
                       harmonic_offsets: Mapping[int, float] | None = None, speaker_names: Sequence[str],
                       mic_names: Sequence[str], min_peak_to_noise_db: float = DEFAULT_MIN_PEAK_TO_NOISE_DB,
                       clip_threshold: float = CLIP_THRESHOLD, pre_samples: int | None = None,
-                      pre_roll_samples: int = 0,
+                      pre_roll_samples: int = 0, clean_recording: np.ndarray | None = None,
                       progress: Callable[[int, int], None] | None = None) -> OfflineResult:
     """Deconvolve one recording per speaker and gather responses, distortion and warnings.
 
@@ -367,6 +433,10 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
         A response with a lower peak-to-noise ratio raises a warning.
     clip_threshold : float
         Recorded magnitude counted as clipped.
+    clean_recording : ndarray, shape (n_file,), optional
+        The single-sweep file as played, for the method's own floor
+        (:func:`arrayplan.signals.distortion_floor.method_floor_db`); without
+        it only the noise floor is known.
     progress : callable, optional
         Called as ``progress(done, total)`` after each speaker.
 
@@ -377,11 +447,12 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
     if len(recordings) != len(speaker_names):
         raise ValueError(f"{len(recordings)} recordings for {len(speaker_names)} speakers")
     linear, harm, clipped, zero = [], {}, [], {}
+    prepared = inverse if isinstance(inverse, PreparedInverse) else PreparedInverse(inverse)
     for i_rec, rec in enumerate(recordings):
         rec = _as_2d(rec, "recording")
         if rec.shape[1] != len(mic_names):
             raise ValueError(f"recording has {rec.shape[1]} channels for {len(mic_names)} microphones")
-        d = deconvolve(rec, inverse, linear_lag=linear_lag, ir_length=ir_length,
+        d = deconvolve(rec, prepared, linear_lag=linear_lag, ir_length=ir_length,
                        harmonic_offsets=harmonic_offsets, pre_samples=pre_samples,
                        pre_roll_samples=pre_roll_samples)
         linear.append(d.linear)
@@ -397,7 +468,19 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
     pnr = np.stack([peak_to_noise_db(data[:, :, s]) for s in range(n_spk)], axis=1)
     levels = {n: np.stack([harmonic_levels_db(data[:, :, s], {n: h[:, :, s]})[n] for s in range(n_spk)], axis=1)
               for n, h in harmonics.items()}
-    thd = total_harmonic_level_db(levels) if levels else np.full((n_mic, n_spk), -math.inf)
+    method = None
+    if clean_recording is not None and harmonics:
+        method = method_floor_db(clean_recording, prepared, linear_lag=linear_lag, ir_length=ir_length,
+                                 harmonic_offsets=harmonic_offsets or {}, pre_samples=pre_samples,
+                                 pre_roll_samples=pre_roll_samples)
+    lengths = {n: h.shape[0] for n, h in harmonics.items()}
+    noise = {n: np.stack([noise_floor_db(data[:, :, s], {n: k})[n] for s in range(n_spk)], axis=1)
+             for n, k in lengths.items()}
+    status = {n: np.array([[harmonic_status(float(levels[n][m, s]), None if method is None else method[n],
+                                            float(noise[n][m, s])) for s in range(n_spk)] for m in range(n_mic)],
+                          dtype=object) for n in levels}
+    measured = {n: np.where(status[n] == MEASURED, v, -math.inf) for n, v in levels.items()}
+    thd = total_harmonic_level_db(measured) if levels else np.full((n_mic, n_spk), -math.inf)
     peak = np.max(np.abs(data), axis=0)
     with np.errstate(divide="ignore"):
         peak_db = 20.0 * np.log10(peak)
@@ -414,4 +497,5 @@ def impulse_responses(recordings: Sequence[np.ndarray], inverse: np.ndarray, *, 
                             "raise the level carefully, lengthen the sweep, or quieten the room")
     return OfflineResult(data=data, harmonics=harmonics, harmonic_zero_index=dict(zero), harmonic_db=levels, thd_db=np.asarray(thd),
                          peak_to_noise_db=pnr, peak_dbfs=peak_db, peak_index=np.argmax(np.abs(data), axis=0),
-                         clipped_samples=clip, warnings=warnings, zero_lag_index=int(pre_roll_samples))
+                         clipped_samples=clip, warnings=warnings, zero_lag_index=int(pre_roll_samples),
+                         method_floor_db=method, noise_floor_db=noise, harmonic_status=status)

@@ -71,8 +71,10 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
-from .levels import (DEFAULT_PEAK_CAP_DBFS, check_peak, condition, peak_dbfs, raised_cosine_fade,
-                     rms_dbfs, scale_to_level)
+from .unity import (FLAT_BAND_PHASE_TOLERANCE_DEG, FLAT_BAND_TOLERANCE_DB, compensate_highpass_phase,
+                    flat_band_hz, highpass_response, normalise_inverse, unity_response)
+from .levels import (DEFAULT_PEAK_CAP_DBFS, check_peak, condition, effective_cap_dbfs, peak_dbfs, raised_cosine_fade,
+                     rms_dbfs, scale_to_level, true_peak_dbfs)
 
 __all__ = [
     "SWEEP_KINDS",
@@ -95,7 +97,6 @@ __all__ = [
     "SweepSettings",
     "SweepSignal",
     "make_sweep",
-    "SweepRecord",
 ]
 
 SWEEP_KINDS = ("exponential", "linear")
@@ -108,10 +109,6 @@ MIN_CYCLES_LOWEST_OCTAVE = 2.0
 #: A linear sweep must have a time-bandwidth product T (f2 - f1) of at least
 #: this (common practice for pulse compression, no source).
 MIN_TIME_BANDWIDTH = 100.0
-
-#: Ripple allowed in the deconvolved response of a unity system inside the
-#: sweep's flat band (common practice for loudspeaker response work, no source).
-FLAT_BAND_TOLERANCE_DB = 0.1
 
 
 def _times(duration_s: float, sample_rate_hz: float) -> np.ndarray:
@@ -205,18 +202,18 @@ def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, s
         raise InputError(f"sweep kind must be one of {', '.join(SWEEP_KINDS)}, got {kind!r}", source=source)
     if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
         raise InputError(f"sample rate must be a positive number of Hz, got {sample_rate_hz!r}",
-                         source=source, field="--rate-hz")
+                         source=source, field="rate_hz")
     nyq = sample_rate_hz / 2.0
-    for name, f in (("--f1-hz", f1_hz), ("--f2-hz", f2_hz)):
+    for name, f in (("f1_hz", f1_hz), ("f2_hz", f2_hz)):
         if not (math.isfinite(f) and 0 < f < nyq):
             raise InputError(f"sweep limit {f:g} Hz is outside (0, {nyq:g}) Hz (half the sample rate)",
                              source=source, field=name, fix="choose limits between 0 Hz and fs/2")
     if not f1_hz < f2_hz:
         raise InputError(f"sweep must rise: f1 = {f1_hz:g} Hz is not below f2 = {f2_hz:g} Hz",
-                         source=source, field="--f1-hz", fix="swap the limits")
+                         source=source, field="f1_hz", fix="swap the limits")
     if not (math.isfinite(duration_s) and duration_s > 0):
         raise InputError(f"sweep duration must be positive, got {duration_s!r} s", source=source,
-                         field="--duration-s")
+                         field="duration_s")
     if kind == "exponential":
         rate = duration_s / math.log(f2_hz / f1_hz)
         cycles = f1_hz * rate
@@ -224,10 +221,10 @@ def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, s
             need = MIN_CYCLES_LOWEST_OCTAVE * math.log(f2_hz / f1_hz) / f1_hz
             raise InputError(f"a {duration_s:g} s sweep is too short for {f1_hz:g}-{f2_hz:g} Hz: it holds "
                              f"{cycles:.2f} periods of f1 in its lowest octave, at least "
-                             f"{MIN_CYCLES_LOWEST_OCTAVE:g} are needed", source=source, field="--duration-s",
-                             fix=f"use --duration-s {math.ceil(need * 100) / 100:g} or more, or raise --f1-hz")
+                             f"{MIN_CYCLES_LOWEST_OCTAVE:g} are needed", source=source, field="duration_s",
+                             fix=f"use `duration_s` {math.ceil(need * 100) / 100:g} or more, or raise `f1_hz`")
         octave_s = rate * math.log(2.0)
-        for name, fade in (("--fade-in-s", fade_in_s), ("--fade-out-s", fade_out_s)):
+        for name, fade in (("fade_in_s", fade_in_s), ("fade_out_s", fade_out_s)):
             if fade is not None and fade > octave_s / 2:
                 raise InputError(f"fade of {fade:g} s is longer than half the time the sweep spends in an "
                                  f"octave ({octave_s:.3g} s) and would cut into the band", source=source,
@@ -237,8 +234,8 @@ def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, s
         if tbw < MIN_TIME_BANDWIDTH:
             raise InputError(f"a {duration_s:g} s linear sweep over {f2_hz - f1_hz:g} Hz has a time-bandwidth "
                              f"product of {tbw:.3g}, below {MIN_TIME_BANDWIDTH:g}", source=source,
-                             field="--duration-s", fix="lengthen the sweep or widen the band")
-        for name, fade in (("--fade-in-s", fade_in_s), ("--fade-out-s", fade_out_s)):
+                             field="duration_s", fix="lengthen the sweep or widen the band")
+        for name, fade in (("fade_in_s", fade_in_s), ("fade_out_s", fade_out_s)):
             if fade is not None and fade > duration_s / 4:
                 raise InputError(f"fade of {fade:g} s is longer than a quarter of the sweep", source=source,
                                  field=name, fix="shorten the fade")
@@ -265,7 +262,8 @@ class SweepSettings:
         Silence before and after the sweep, s.  The silence after is the
         room's decay time the recording captures: the impulse-response length.
     peak_dbfs, rms_dbfs : float or None
-        Target level; exactly one is set (default: peak at the cap).
+        Target level, dBFS: true peak (4x oversampled) or RMS of the sweep
+        without its padding; at most one is set (default: true peak at the cap).
     peak_cap_dbfs : float
         Highest peak allowed unless `allow_above_cap`.
     highpass_hz : float or None
@@ -298,7 +296,8 @@ class SweepSettings:
 
     def level(self) -> dict[str, float | None]:
         if self.peak_dbfs is None and self.rms_dbfs is None:
-            return {"peak_dbfs": self.peak_cap_dbfs, "rms_dbfs": None}
+            cap = effective_cap_dbfs(self.peak_cap_dbfs, self.allow_above_cap)
+            return {"peak_dbfs": cap, "rms_dbfs": None}
         return {"peak_dbfs": self.peak_dbfs, "rms_dbfs": self.rms_dbfs}
 
 
@@ -392,13 +391,21 @@ class SweepSignal:
             "highpass_hz": s.highpass_hz,
             "highpass_order": s.highpass_order if s.highpass_hz is not None else None,
             "sweep_peak_dbfs": peak_dbfs(self.sweep),
+            "sweep_true_peak_dbfs": true_peak_dbfs(self.sweep),
             "sweep_rms_dbfs": rms_dbfs(self.sweep),
             "inverse_filter_file": inverse_file,
-            "inverse_normalisation": "|DFT(sweep * inverse)| = 1 at the band centre for the sweep as played "
-                                     "(deconvolved responses carry the system's in-band gain)",
+            "inverse_normalisation": ("|DFT(sweep * inverse)| = 1 at the band centre for the sweep as played "
+                                      "(deconvolved responses carry the system's in-band gain)"
+                                      if s.highpass_hz is None else
+                                      "|DFT(sweep * inverse)| = |H| of the high-pass at the band centre, so 1 "
+                                      "above the high-pass (deconvolved responses carry the system's in-band "
+                                      "gain and the high-pass's magnitude, not its phase)"),
             "unity_gain_at_hz": self.centre_hz,
             "flat_band_hz": list(self.flat_band_hz),
             "flat_band_tolerance_db": FLAT_BAND_TOLERANCE_DB,
+            "flat_band_phase_tolerance_deg": FLAT_BAND_PHASE_TOLERANCE_DEG,
+            "highpass_phase": ("compensated in the inverse filter (responses keep the high-pass's magnitude, "
+                               "not its phase)" if s.highpass_hz is not None else None),
             "linear_lag_samples": self.linear_lag,
             "pre_roll_samples": self.pre_roll_samples,
             "pre_roll_rule": "one Fresnel time at f1, at most half the time to the 2nd harmonic "
@@ -431,12 +438,12 @@ def make_sweep(settings: SweepSettings, *, source: str | None = None) -> SweepSi
                  "one Fresnel time at f1 (fade-in) and f2 (fade-out)"
                  + (f"; {given[0]} as given" if given else ""))
     s = s.with_fades()
-    n_before = _pad_samples(s.pad_before_s, s.sample_rate_hz, "--pad-before-s", source)
-    n_after = _pad_samples(s.pad_after_s, s.sample_rate_hz, "--pad-after-s", source)
+    n_before = _pad_samples(s.pad_before_s, s.sample_rate_hz, "pad_before_s", source)
+    n_after = _pad_samples(s.pad_after_s, s.sample_rate_hz, "pad_after_s", source)
     if n_after < 1:
         raise InputError("a sweep needs silence after it: that silence is the decay time the recording "
-                         "captures and the impulse-response length", source=source, field="--pad-after-s",
-                         fix="give the room's decay time, e.g. --pad-after-s 1")
+                         "captures and the impulse-response length", source=source, field="pad_after_s",
+                         fix="give the room's decay time, e.g. `pad_after_s` 1")
     make = exponential_sweep if s.kind == "exponential" else linear_sweep
     raw = make(s.f1_hz, s.f2_hz, s.duration_s, s.sample_rate_hz)
     played = condition(raw, s.sample_rate_hz, fade_in_s=s.fade_in_s, fade_out_s=s.fade_out_s,
@@ -448,7 +455,13 @@ def make_sweep(settings: SweepSettings, *, source: str | None = None) -> SweepSi
         inverse = exponential_inverse_filter(faded, s.f1_hz, s.f2_hz, s.duration_s, s.sample_rate_hz)
     else:
         inverse = linear_inverse_filter(faded)
-    inverse = normalise_inverse(played, inverse, band_centre_hz(s.kind, s.f1_hz, s.f2_hz), s.sample_rate_hz)
+    if s.highpass_hz is not None:
+        inverse = compensate_highpass_phase(inverse, s.highpass_hz, s.highpass_order, s.sample_rate_hz)
+    centre = band_centre_hz(s.kind, s.f1_hz, s.f2_hz)
+    inverse = normalise_inverse(played, inverse, centre, s.sample_rate_hz)
+    if s.highpass_hz is not None:
+        # Unit gain above the high-pass, not at the centre, where the high-pass may still attenuate.
+        inverse = inverse * abs(highpass_response(centre, s.highpass_hz, s.highpass_order, s.sample_rate_hz))
     signal = np.concatenate([np.zeros(n_before), played, np.zeros(n_after)])
     return SweepSignal(settings=s, sweep=played, signal=signal, inverse=inverse,
                        n_pad_before=n_before, n_pad_after=n_after, extra={"fade_rule": fade_rule})
@@ -539,184 +552,3 @@ def default_pre_roll_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float)
 def max_pre_roll_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float) -> float:
     """Longest pre-roll (s) that stays clear of the 2nd harmonic: half its offset (linear sweeps: T / 4)."""
     return _fade_limit_s(kind, f1_hz, f2_hz, duration_s)
-
-
-def _dtft(x: np.ndarray, freq_hz: float, sample_rate_hz: float) -> complex:
-    n = np.arange(x.size)
-    return complex(np.dot(x, np.exp(-2j * math.pi * freq_hz / sample_rate_hz * n)))
-
-
-def normalise_inverse(played: np.ndarray, inverse: np.ndarray, centre_hz: float,
-                      sample_rate_hz: float) -> np.ndarray:
-    """Scale `inverse` so that ``played * inverse`` has unit magnitude at `centre_hz`.
-
-    Parameters
-    ----------
-    played : ndarray, shape (n,)
-        The sweep as played (same scale as the file: full scale = 1).
-    inverse : ndarray, shape (m,)
-        Unnormalised inverse filter.
-    centre_hz : float
-        Frequency of unit gain, Hz (:func:`band_centre_hz`).
-    sample_rate_hz : float
-        Sample rate, Hz.
-
-    Returns
-    -------
-    ndarray, shape (m,)
-        ``inverse / |X(fc) Y(fc)|`` with X, Y the discrete-time Fourier
-        transforms of `played` and `inverse` at the centre: a unity system
-        then deconvolves to 0 dB there.
-    """
-    played = np.asarray(played, dtype=float).reshape(-1)
-    inverse = np.asarray(inverse, dtype=float).reshape(-1)
-    gain = abs(_dtft(played, centre_hz, sample_rate_hz) * _dtft(inverse, centre_hz, sample_rate_hz))
-    if not gain > 0:
-        raise ValueError(f"the sweep and its inverse have no energy at {centre_hz:g} Hz")
-    return inverse / gain
-
-
-def unity_response(played: np.ndarray, inverse: np.ndarray, sample_rate_hz: float,
-                   n_fft: int | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Spectrum of ``played * inverse``: what deconvolution makes of a unity system.
-
-    Parameters
-    ----------
-    played, inverse : ndarray, shape (n,) and (m,)
-    sample_rate_hz : float
-    n_fft : int, optional
-        DFT length (default: the next power of two >= n + m - 1, no time aliasing).
-
-    Returns
-    -------
-    freqs_hz : ndarray, shape (n_fft // 2 + 1,)
-    response : ndarray, complex, same shape
-        Linear-phase term of the lag ``n - 1`` included (magnitude is what matters).
-    """
-    played = np.asarray(played, dtype=float).reshape(-1)
-    inverse = np.asarray(inverse, dtype=float).reshape(-1)
-    if n_fft is None:
-        n_fft = 1 << int(math.ceil(math.log2(played.size + inverse.size - 1)))
-    resp = np.fft.rfft(played, n_fft) * np.fft.rfft(inverse, n_fft)
-    return np.fft.rfftfreq(n_fft, 1.0 / sample_rate_hz), resp
-
-
-def flat_band_hz(played: np.ndarray, inverse: np.ndarray, centre_hz: float, sample_rate_hz: float,
-                 tolerance_db: float = FLAT_BAND_TOLERANCE_DB) -> tuple[float, float]:
-    """Widest band around `centre_hz` where the unity response stays within `tolerance_db` of 0 dB.
-
-    Parameters
-    ----------
-    played, inverse : ndarray
-        The sweep as played and its normalised inverse filter.
-    centre_hz, sample_rate_hz : float
-        Band centre and sample rate, Hz.
-    tolerance_db : float
-        Allowed deviation from 0 dB, dB.
-
-    Returns
-    -------
-    (low_hz, high_hz) : tuple of float
-        The lowest and highest DFT frequencies of the contiguous run of bins,
-        containing the centre, whose magnitude is within the tolerance.
-    """
-    f, resp = unity_response(played, inverse, sample_rate_hz)
-    with np.errstate(divide="ignore"):
-        ok = np.abs(20.0 * np.log10(np.abs(resp))) <= tolerance_db
-    c = int(np.argmin(np.abs(f - centre_hz)))
-    if not ok[c]:
-        return (float(f[c]), float(f[c]))
-    bad_below = np.flatnonzero(~ok[:c])
-    bad_above = np.flatnonzero(~ok[c:])
-    lo = int(bad_below[-1]) + 1 if bad_below.size else 0
-    hi = c + int(bad_above[0]) - 1 if bad_above.size else f.size - 1
-    return (float(f[lo]), float(f[hi]))
-
-
-@dataclass(frozen=True)
-class SweepRecord:
-    """The sweep block of a sidecar, read back and checked (what deconvolution needs).
-
-    Attributes are those of :meth:`SweepSignal.sidecar`; `inverse_filter_file`
-    is resolved against the sidecar's folder by the caller.  Sidecars written
-    before ``pre_roll_samples`` existed get the default rule's value
-    (:func:`default_pre_roll_s`).
-    """
-
-    kind: str
-    f1_hz: float
-    f2_hz: float
-    duration_s: float
-    sample_rate_hz: float
-    n_sweep_samples: int
-    pad_before_samples: int
-    pad_after_samples: int
-    linear_lag_samples: int
-    inverse_filter_file: str
-    pre_roll_samples: int = 0
-
-    @property
-    def max_pre_roll_samples(self) -> int:
-        """Most samples a response may keep before zero lag (:func:`max_pre_roll_s`)."""
-        return int(math.floor(max_pre_roll_s(self.kind, self.f1_hz, self.f2_hz, self.duration_s)
-                              * self.sample_rate_hz))
-
-    @property
-    def n_file_samples(self) -> int:
-        return self.pad_before_samples + self.n_sweep_samples + self.pad_after_samples
-
-    def harmonic_offsets_samples(self, max_order: int) -> dict[int, float]:
-        if self.kind != "exponential":
-            return {}
-        return {n: harmonic_offset_s(n, self.f1_hz, self.f2_hz, self.duration_s) * self.sample_rate_hz
-                for n in range(2, max_order + 1)}
-
-    @classmethod
-    def from_json(cls, block: Any, *, source: str | None = None) -> "SweepRecord":
-        """Validate a sidecar's ``sweep`` block; InputError naming the field otherwise."""
-        if not isinstance(block, dict):
-            raise InputError("no 'sweep' block: this sidecar does not describe a sweep", source=source,
-                             field="sweep", fix="give the .json written beside a sweep, schedule or sweep probe")
-
-        def get(name: str, kinds: tuple, positive: bool = True) -> Any:
-            if name not in block:
-                raise InputError("missing field", source=source, field=f"sweep.{name}",
-                                 fix="use the sidecar exactly as arrayplan wrote it")
-            v = block[name]
-            if isinstance(v, bool) or not isinstance(v, kinds):
-                raise InputError(f"wrong type {type(v).__name__}", source=source, field=f"sweep.{name}")
-            if isinstance(v, (int, float)) and (not math.isfinite(v) or v < 0 or (positive and v == 0)):
-                raise InputError(f"must be {'positive' if positive else 'non-negative'}, got {v!r}",
-                                 source=source, field=f"sweep.{name}")
-            return v
-
-        kind = get("kind", (str,))
-        if kind not in SWEEP_KINDS:
-            raise InputError(f"unknown sweep kind {kind!r}", source=source, field="sweep.kind")
-        rec = cls(
-            kind=kind,
-            f1_hz=float(get("f1_hz", (int, float))),
-            f2_hz=float(get("f2_hz", (int, float))),
-            duration_s=float(get("duration_s", (int, float))),
-            sample_rate_hz=float(get("sample_rate_hz", (int, float))),
-            n_sweep_samples=int(get("n_sweep_samples", (int,))),
-            pad_before_samples=int(get("pad_before_samples", (int,), positive=False)),
-            pad_after_samples=int(get("pad_after_samples", (int,))),
-            linear_lag_samples=int(get("linear_lag_samples", (int,))),
-            inverse_filter_file=str(get("inverse_filter_file", (str,))),
-        )
-        check_sweep_band(rec.kind, rec.f1_hz, rec.f2_hz, rec.duration_s, rec.sample_rate_hz, source=source)
-        if "pre_roll_samples" in block:
-            pre = int(get("pre_roll_samples", (int,), positive=False))
-            if pre > rec.max_pre_roll_samples:
-                raise InputError(f"{pre} samples reach past half-way to the 2nd harmonic "
-                                 f"({rec.max_pre_roll_samples} samples)", source=source,
-                                 field="sweep.pre_roll_samples", fix="use the sidecar exactly as arrayplan wrote it")
-        else:
-            pre = int(math.floor(default_pre_roll_s(rec.kind, rec.f1_hz, rec.f2_hz, rec.duration_s)
-                                 * rec.sample_rate_hz))
-        rec = replace(rec, pre_roll_samples=pre)
-        if rec.linear_lag_samples != rec.pad_before_samples + rec.n_sweep_samples - 1:
-            raise InputError("linear_lag_samples does not equal pad_before_samples + n_sweep_samples - 1",
-                             source=source, field="sweep.linear_lag_samples")
-        return rec

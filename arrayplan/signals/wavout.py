@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import contextlib
 import os
 from pathlib import Path
 from typing import Any, Mapping
@@ -10,7 +9,9 @@ from typing import Any, Mapping
 import numpy as np
 
 from ..errors import InputError
-from ..fileio import atomic_path, write_json_atomic
+from ..fileio import atomic_paths
+from ..formats.signal_sidecar import write_signal_sidecar
+from .levels import true_peak_dbfs
 
 __all__ = ["SAMPLE_FORMATS", "sidecar_path", "inverse_path", "write_signal_files", "read_recording"]
 
@@ -42,15 +43,17 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
     wav_path : path
         The signal file (``.wav``).
     signal : ndarray, shape (n_samples,) or (n_samples, n_channels)
-        Full scale = 1; must not exceed it.
+        Full scale = 1; neither its samples nor its true peak (4x
+        oversampled, :func:`arrayplan.signals.levels.true_peak_dbfs`) may exceed it.
     sample_rate_hz : int
     sample_format : {"float32", "pcm24"}
     sidecar : mapping
-        Written as JSON to :func:`sidecar_path` of `wav_path`.
+        Written as JSON to :func:`sidecar_path` of `wav_path`
+        (:func:`arrayplan.formats.signal_sidecar.write_signal_sidecar`, which checks it).
     extra_wavs : mapping of path -> ndarray, optional
         Further files (e.g. an inverse filter), always float32.
     extra_sidecars : mapping of path -> mapping, optional
-        Further JSON files (e.g. the inverse filter's own sidecar).
+        Further sidecars (e.g. the inverse filter's own), written the same way.
 
     Returns
     -------
@@ -61,27 +64,29 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
 
     wav_path = Path(wav_path)
     if wav_path.suffix.lower() != ".wav":
-        raise InputError("output file must end in .wav", source=str(wav_path), field="--out")
+        raise InputError("output file must end in .wav", source=str(wav_path), field="out")
     if sample_format not in SAMPLE_FORMATS:
         raise InputError(f"sample format must be one of {', '.join(SAMPLE_FORMATS)}, got {sample_format!r}",
-                         field="--format")
+                         field="format")
     signal = np.asarray(signal, dtype=float)
     if not np.all(np.isfinite(signal)) or (signal.size and np.max(np.abs(signal)) > 1.0):
         raise InputError("signal exceeds full scale or is not finite; refusing to write it", source=str(wav_path))
+    if signal.size and true_peak_dbfs(signal) > 1e-9:
+        raise InputError(f"signal's true peak {true_peak_dbfs(signal):+.2f} dBFS would clip in a converter; "
+                         "refusing to write it", source=str(wav_path))
     targets: list[tuple[Path, Any]] = [(wav_path, ("wav", signal, SAMPLE_FORMATS[sample_format]))]
     for p, data in (extra_wavs or {}).items():
         targets.append((Path(p), ("wav", np.asarray(data, dtype=float), "FLOAT")))
     targets.append((sidecar_path(wav_path), ("json", dict(sidecar), None)))
     for p, obj in (extra_sidecars or {}).items():
         targets.append((Path(p), ("json", dict(obj), None)))
-    with contextlib.ExitStack() as stack:
-        for path, (kind, data, subtype) in targets:
-            tmp = stack.enter_context(atomic_path(path))
+    with atomic_paths([p for p, _ in targets]) as temps:
+        for tmp, (path, (kind, data, subtype)) in zip(temps, targets):
             if kind == "wav":
                 sf.write(tmp, data.astype(np.float32) if subtype == "FLOAT" else data, int(sample_rate_hz),
                          subtype=subtype, format="WAV")
             else:
-                write_json_atomic(tmp, data)
+                write_signal_sidecar(tmp, data)
     return [p for p, _ in targets]
 
 

@@ -1,0 +1,162 @@
+"""The layout study: greedy and swaps against exhaustive search, the relaxation's bound, the command."""
+
+from __future__ import annotations
+
+import itertools
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from arrayplan.cli import main
+from arrayplan.frequency import FrequencyAxis
+from arrayplan.rig import Rig, load_rig
+from arrayplan.studies.layout import choose_layout, layout_problem
+
+C = 343.0
+
+
+def _green(spk: np.ndarray, mic: np.ndarray, hz: np.ndarray) -> np.ndarray:
+    """Free-field coupling exp(-jkr) / (4 pi r), (n_f, n_mic, n_spk): written here, independent of arrayplan."""
+    r = np.linalg.norm(mic[:, None] - spk[None], axis=-1)
+    k = 2 * np.pi * hz[:, None, None] / C
+    return np.exp(-1j * k * r) / (4 * np.pi * r)
+
+
+def _capacity(g: np.ndarray, subset, snr_db: float, n_tx: int, g2: float) -> float:
+    """sum_f log2 det(I + rho G_S^H G_S / (n g2)): the log-det capacity with equal power per speaker."""
+    gs = g[:, :, list(subset)]
+    m = np.eye(len(subset)) + 10 ** (snr_db / 10) / (n_tx * g2) * np.conj(np.swapaxes(gs, 1, 2)) @ gs
+    return float(np.sum(np.linalg.slogdet(m)[1]) / np.log(2))
+
+
+def _scattered_rig(rng, n_cand: int) -> tuple[Rig, np.ndarray, np.ndarray]:
+    spk = np.column_stack([rng.uniform(-1.0, 1.0, n_cand), rng.uniform(-0.2, 0.2, n_cand),
+                           rng.uniform(-0.4, 0.4, n_cand)])
+    mic = np.column_stack([np.linspace(-0.6, 0.6, 5), np.full(5, 2.5), np.zeros(5)])
+    return Rig.from_positions(spk, mic, speed_of_sound=C), spk, mic
+
+
+@pytest.mark.parametrize("n_cand, count, seed", [(10, 3, 0), (12, 4, 1), (10, 3, 2)])
+def test_greedy_and_swaps_against_exhaustive_search_and_the_relaxation_bound(n_cand, count, seed):
+    rng = np.random.default_rng(seed)
+    rig, spk, mic = _scattered_rig(rng, n_cand)
+    hz = np.array([400.0, 900.0, 1700.0])
+    problem = layout_problem(rig, "speakers", count, FrequencyAxis(hz), snr_db=20.0)
+    choice = choose_layout(problem, "capacity")
+    g = _green(spk, mic, hz)
+    g2 = float(np.mean(np.abs(g) ** 2))
+    best = max(_capacity(g, s, 20.0, count, g2) for s in itertools.combinations(range(n_cand), count))
+    assert choice.value == pytest.approx(_capacity(g, choice.chosen, 20.0, count, g2), rel=1e-9)
+    # source: Nemhauser, Wolsey and Fisher, Math. Programming 14, 1978: greedy >= (1 - 1/e) of the optimum
+    assert choice.value >= (1 - 1 / np.e) * best
+    assert choice.value <= best * (1 + 1e-12)
+    # source: Joshi and Boyd, IEEE Trans. Signal Processing 57(2), 2009: the relaxation bounds the optimum
+    assert choice.bound >= best * (1 - 1e-12)
+    # the relaxation's solution satisfies its constraints (Joshi and Boyd 2009): 0 <= z <= 1, sum z = N
+    assert np.all(choice.relaxed >= -1e-8) and np.all(choice.relaxed <= 1 + 1e-8)
+    assert abs(choice.relaxed.sum() - count) < 1e-8
+
+
+def test_count_criteria_reach_the_exhaustive_optimum_within_the_greedy_guarantee():
+    rng = np.random.default_rng(7)
+    rig, spk, mic = _scattered_rig(rng, 10)
+    hz = np.array([600.0, 1500.0])
+    problem = layout_problem(rig, "speakers", 3, FrequencyAxis(hz), snr_db=30.0, threshold_db=6.0)
+    choice = choose_layout(problem, "strong")
+    g = _green(spk, mic, hz)
+
+    def strong(subset):
+        s = np.linalg.svd(g[:, :, list(subset)], compute_uv=False)
+        return int(np.sum(20 * np.log10(s / s[:, :1]) >= -6.0))   # channels within 6 dB of the strongest
+
+    best = max(strong(s) for s in itertools.combinations(range(10), 3))
+    assert strong(choice.chosen) == choice.value
+    assert choice.value >= (1 - 1 / np.e) * best and choice.bound is None
+
+
+def test_chosen_layout_on_facing_lines_beats_random_choices_for_every_seed():
+    cand = np.column_stack([np.linspace(-1.5, 1.5, 24), np.zeros(24), np.zeros(24)])
+    mic = np.column_stack([np.linspace(-0.8, 0.8, 8), np.full(8, 3.0), np.zeros(8)])
+    rig = Rig.from_positions(cand, mic, speed_of_sound=C)
+    hz = np.array([500.0, 1000.0, 2000.0])
+    choice = choose_layout(layout_problem(rig, "speakers", 6, FrequencyAxis(hz), snr_db=30.0))
+    g = _green(cand, mic, hz)
+    g2 = float(np.mean(np.abs(g) ** 2))
+    mine = _capacity(g, choice.chosen, 30.0, 6, g2)
+    for seed in range(10):
+        pick = np.random.default_rng(seed).choice(24, size=6, replace=False)
+        assert mine > _capacity(g, pick, 30.0, 6, g2)
+
+
+def test_choosing_microphones_uses_the_rows(tmp_path):
+    rng = np.random.default_rng(3)
+    spk = np.column_stack([np.linspace(-0.5, 0.5, 4), np.zeros(4), np.zeros(4)])
+    mic = np.column_stack([rng.uniform(-1, 1, 9), np.full(9, 2.0), rng.uniform(-0.3, 0.3, 9)])
+    rig = Rig.from_positions(spk, mic, speed_of_sound=C)
+    hz = np.array([700.0, 1400.0])
+    choice = choose_layout(layout_problem(rig, "microphones", 3, FrequencyAxis(hz), snr_db=20.0))
+    g = np.conj(np.swapaxes(_green(spk, mic, hz), 1, 2))          # candidates are rows of G
+    g2 = float(np.mean(np.abs(g) ** 2))
+    best = max(_capacity(g, s, 20.0, 4, g2) for s in itertools.combinations(range(9), 3))
+    assert best * (1 - 1 / np.e) <= choice.value <= best * (1 + 1e-12) <= choice.bound * (1 + 1e-12)
+
+
+RIG_TEXT = """
+[frequencies]
+list = [500.0, 1200.0]
+[[speakers]]
+shape = "line"
+count = 12
+spacing = 0.15
+[[microphones]]
+shape = "line"
+count = 4
+spacing = 0.2
+center = [0.0, 2.0, 0.0]
+"""
+
+
+def _run(capsys, *args):
+    status = main(["study", "layout", *map(str, args)])
+    got = capsys.readouterr()
+    return status, got.out, got.err
+
+
+def test_command_writes_a_rig_that_plans(tmp_path, capsys):
+    rig = tmp_path / "rig.toml"
+    rig.write_text(RIG_TEXT)
+    out = tmp_path / "lay"
+    status, text, err = _run(capsys, rig, "--choose", "4", "--out", out)
+    assert status == 0, err
+    assert "gap" in text and "upper bound" in text
+    chosen = load_rig(out / "chosen-rig.toml")
+    assert len(chosen.speakers) == 4 and len(chosen.mics) == 4
+    assert {p.name for p in out.iterdir()} >= {"chosen-rig.toml", "layout-steps.csv", "layout-candidates.csv",
+                                               "layout.json", "layout-rig.png", "layout-criterion.png"}
+    assert main(["plan", str(out / "chosen-rig.toml"), "--out", str(tmp_path / "plan"), "--no-figures"]) == 0
+
+
+@pytest.mark.parametrize("extra, csv_text, word", [
+    (["--choose", "13"], None, "13 of 12"),
+    (["--choose", "2", "--candidates", "cand.csv"], "x,y,z\n0.1,2.0,0.0\n0.5,0.0,0.0\n", "coincides"),
+    (["--choose", "1", "--candidates", "cand.csv"], "x,y\n0.1,2.0\n", "x,y,z"),
+])
+def test_bad_input_is_one_line_exit_2_and_nothing_written(tmp_path, capsys, monkeypatch, extra, csv_text, word):
+    monkeypatch.chdir(tmp_path)
+    Path("rig.toml").write_text(RIG_TEXT)
+    if csv_text is not None:
+        Path("cand.csv").write_text(csv_text)
+    status, _, err = _run(capsys, "rig.toml", "--out", "never", *extra)
+    assert status == 2 and len(err.strip().splitlines()) == 1 and word in err
+    assert not Path("never").exists()
+
+
+def test_unknown_criterion_is_a_usage_error(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    Path("rig.toml").write_text(RIG_TEXT)
+    with pytest.raises(SystemExit) as exc:
+        _run(capsys, "rig.toml", "--out", "never", "--choose", "2", "--criterion", "loudest")
+    err = capsys.readouterr().err
+    assert exc.value.code == 2 and "criterion" in err and len(err.strip().splitlines()) == 1
+    assert not Path("never").exists()
