@@ -104,14 +104,24 @@ class PlanSettings:
     track : bool
         Order and phase-align channels from bin to bin (see
         :func:`arrayplan.channels.track_channels`).
-    chunk_size : int
-        Frequencies evaluated and decomposed at once (bounds memory).
+    chunk_size : int, optional
+        Frequencies evaluated and decomposed at once; default from
+        `memory_mb`.
+    workers : int, optional
+        Worker processes; default every core for a large plan.
+    max_channels : int or "auto", optional
+        Compute only the strongest channels (see :mod:`arrayplan.topk`).
+    memory_mb : float
+        Working-memory budget per worker that sets the default chunk size, MB.
     """
 
     threshold_db: float = 3.0
     snr_db: float = 40.0
     track: bool = False
-    chunk_size: int = 64
+    chunk_size: int | None = None
+    workers: int | None = None
+    max_channels: int | str | None = None
+    memory_mb: float = 64.0
 
 
 @dataclass(frozen=True)
@@ -303,7 +313,7 @@ TABLE_KEYS = {
     "frequencies": {"list", "start", "stop", "count", "spacing"},
     "hardware": {"device", "sample_rate_hz", "reference", "calibration"},
     "hardware.reference": {"output_channel", "input_channel"},
-    "planning": {"threshold_db", "snr_db", "track", "chunk_size"},
+    "planning": {"threshold_db", "snr_db", "track", "chunk_size", "workers", "max_channels", "memory_mb"},
     "room": ROOM_KEYS,
 }
 
@@ -720,9 +730,14 @@ def _planning(table: Any, r: FieldReader) -> PlanSettings:
     track = table.get("track", False)
     if not isinstance(track, bool):
         raise r.fail("planning.track", f"expected true or false, got {track!r}")
+    top = table.get("max_channels")
+    if top is not None and top != "auto":
+        top = r.integer(table, "max_channels", "planning")
     return PlanSettings(r.number(table, "threshold_db", "planning", default=3.0, positive=True),
                         r.number(table, "snr_db", "planning", default=40.0, positive=True), track,
-                        r.integer(table, "chunk_size", "planning", default=64))
+                        r.integer(table, "chunk_size", "planning", default=None),
+                        r.integer(table, "workers", "planning", default=None), top,
+                        r.number(table, "memory_mb", "planning", default=64.0, positive=True))
 
 
 def resolve_section(name: str, table: Any, r: FieldReader, base: Path) -> Any:
