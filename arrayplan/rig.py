@@ -28,6 +28,7 @@ from .frequency import FrequencyAxis
 from .limits import MAX_CHANNEL_NUMBER, MAX_ELEMENTS_PER_SIDE, MAX_FREQUENCIES
 from .medium import Medium, speed_of_sound_air
 from .room import ROOM_KEYS, Room, parse_room
+from .tomlfields import FieldReader
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -36,7 +37,7 @@ else:  # pragma: no cover
 
 __all__ = ["ElementSet", "HardwareMap", "PlanSettings", "Rig", "load_rig", "read_positions_csv",
            "read_rig_document", "resolve_entry", "resolve_section", "join_entries", "EntryElements",
-           "FieldReader", "TABLE_KEYS", "ENTRY_KEYS"]
+           "FieldReader", "TABLE_KEYS", "ENTRY_KEYS", "rig_field_reader", "entry_kind"]
 
 #: Two elements closer than this (metres) are taken as coincident.
 COINCIDENT_M = 1e-6
@@ -308,79 +309,12 @@ TABLE_KEYS = {
 }
 
 
-class FieldReader:
-    """Typed access to a TOML table with errors that name the file and field.
-
-    Each method returns the value of `key` in `table` (or `default` when it is
-    absent) and raises :class:`InputError` with field ``"<where>.<key>"``.
-    """
-
-    def __init__(self, source: str) -> None:
-        self.source = source
-
-    def fail(self, field: str, problem: str, fix: str | None = None) -> InputError:
-        return InputError(problem, source=self.source, field=field, fix=fix)
-
-    def number(self, table: dict, key: str, where: str, default: Any = ..., positive: bool = False,
-               low: float = -MAX_COORDINATE_M, high: float = MAX_COORDINATE_M) -> float:
-        """A finite number in ``[low, high]`` (above 0 with `positive`)."""
-        if key not in table:
-            if default is ...:
-                raise self.fail(f"{where}.{key}", "missing", fix=f"add {key} = <number>")
-            return default
-        v = table[key]
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            raise self.fail(f"{where}.{key}", f"expected a finite number, got {v!r}")
-        if positive and v <= 0:
-            raise self.fail(f"{where}.{key}", f"must be positive, got {v!r}")
-        if not low <= v <= high:
-            raise self.fail(f"{where}.{key}", f"must be between {low:g} and {high:g}, got {v!r}")
-        return float(v)
-
-    def integer(self, table: dict, key: str, where: str, default: Any = ..., minimum: int = 1,
-                maximum: int = MAX_ELEMENTS_PER_SIDE) -> int:
-        """A whole number in ``[minimum, maximum]``."""
-        if key not in table:
-            if default is ...:
-                raise self.fail(f"{where}.{key}", "missing", fix=f"add {key} = <whole number>")
-            return default
-        v = table[key]
-        if isinstance(v, bool) or not isinstance(v, int) or v < minimum:
-            raise self.fail(f"{where}.{key}", f"expected a whole number >= {minimum}, got {v!r}")
-        if v > maximum:
-            raise self.fail(f"{where}.{key}", f"{v} is above the limit of {maximum}")
-        return int(v)
-
-    def vector(self, table: dict, key: str, where: str, n: int = 3, default: Any = ...) -> tuple:
-        """`n` finite numbers, each at most :data:`MAX_COORDINATE_M` in magnitude."""
-        if key not in table:
-            if default is ...:
-                raise self.fail(f"{where}.{key}", "missing", fix=f"add {key} = [{', '.join(['0'] * n)}]")
-            return default
-        v = table[key]
-        ok = (isinstance(v, list) and len(v) == n
-              and all(isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x) for x in v))
-        if not ok:
-            raise self.fail(f"{where}.{key}", f"expected {n} finite numbers, got {v!r}")
-        if any(abs(x) > MAX_COORDINATE_M for x in v):
-            raise self.fail(f"{where}.{key}", f"values must be at most {MAX_COORDINATE_M:g} in magnitude, got {v!r}")
-        return tuple(float(x) for x in v)
-
-    def string(self, table: dict, key: str, where: str, default: Any = ...) -> str:
-        if key not in table:
-            if default is ...:
-                raise self.fail(f"{where}.{key}", "missing")
-            return default
-        v = table[key]
-        if not isinstance(v, str) or not v:
-            raise self.fail(f"{where}.{key}", f"expected a non-empty string, got {v!r}")
-        return v
-
-    def keys(self, table: dict, allowed: set[str], where: str) -> None:
-        unknown = sorted(set(table) - allowed)
-        if unknown:
-            raise self.fail(where, f"unknown key(s) {', '.join(unknown)}",
-                            fix=f"allowed here: {', '.join(sorted(allowed))}")
+def rig_field_reader(source: str, *, collect: bool = False) -> FieldReader:
+    """The :class:`FieldReader` of a rig file: coordinates within :data:`MAX_COORDINATE_M`, counts within
+    :data:`MAX_ELEMENTS_PER_SIDE`; with `collect`, recoverable problems are recorded (see
+    :mod:`arrayplan.tomlfields`)."""
+    return FieldReader(source, collect=collect, number_range=(-MAX_COORDINATE_M, MAX_COORDINATE_M),
+                       integer_max=MAX_ELEMENTS_PER_SIDE)
 
 
 #: Key under which :class:`csv.DictReader` collects the values beyond the header's columns.
@@ -530,26 +464,31 @@ def resolve_entry(entry: Any, index: int, label: str, r: "FieldReader", base: Pa
     else:
         pos = np.array([r.vector(entry, "position", where)])
         nm = [r.string(entry, "name", where, default=f"{prefix}{n_before + 1}")]
-        ch = [r.integer(entry, "channel", where, maximum=MAX_CHANNEL_NUMBER)] if "channel" in entry else None
+        channel = r.integer(entry, "channel", where, default=None, maximum=MAX_CHANNEL_NUMBER)
+        ch = [channel] if channel is not None else None
         outward = None
-    spec = entry.get("directivity")
-    if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward") and outward is not None:
-        sign = 1.0 if spec["axis"] == "outward" else -1.0
-        base_spec = {k: v for k, v in spec.items() if k != "axis"}
-        group_dirs = [parse_directivity(dict(base_spec, axis=list(sign * o)), source=r.source,
-                                        field=f"{where}.directivity") for o in outward]
-    else:
-        if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward"):
-            raise r.fail(f"{where}.directivity.axis", "'outward'/'inward' needs a generated group",
-                         fix="give axis = [x, y, z]")
-        d = parse_directivity(spec, source=r.source, field=f"{where}.directivity")
-        group_dirs = [d] * len(pos)
+    group_dirs = r.recover(lambda: _directivities(entry.get("directivity"), outward, len(pos), where, r),
+                           [OMNI] * len(pos))
     if ch is None:
         first = r.integer(entry, "first_channel", where, default=next_channel,
                           maximum=MAX_CHANNEL_NUMBER - len(pos) + 1)
         ch = list(range(first, first + len(pos)))
     shape = entry["shape"] if kind == "group" else kind
     return EntryElements(shape, tuple(nm), pos, tuple(group_dirs), tuple(ch))
+
+
+def _directivities(spec: Any, outward: np.ndarray | None, n: int, where: str, r: FieldReader
+                   ) -> list[Directivity]:
+    """The directivity of each of the `n` elements of an entry; `outward` (n, 3) are a group's outward axes."""
+    if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward") and outward is not None:
+        sign = 1.0 if spec["axis"] == "outward" else -1.0
+        base_spec = {k: v for k, v in spec.items() if k != "axis"}
+        return [parse_directivity(dict(base_spec, axis=list(sign * o)), source=r.source,
+                                  field=f"{where}.directivity") for o in outward]
+    if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward"):
+        raise r.fail(f"{where}.directivity.axis", "'outward'/'inward' needs a generated group",
+                     fix="give axis = [x, y, z]")
+    return [parse_directivity(spec, source=r.source, field=f"{where}.directivity")] * n
 
 
 def join_entries(parts: Sequence[EntryElements]) -> ElementSet:
@@ -590,7 +529,7 @@ def _group(entry: dict, where: str, r: FieldReader, sole_prefix: str | None, off
         direction = r.vector(entry, "direction", where, default=(1.0, 0.0, 0.0))
         spacing = _spacing(entry, where, r, count)
         if np.linalg.norm(direction) == 0:
-            raise r.fail(f"{where}.direction", "has zero length")
+            direction = r.reject(f"{where}.direction", "has zero length", (1.0, 0.0, 0.0))
         facing = r.vector(entry, "facing", where, default=None)
         pos, out = geometry.line(count, spacing, center, direction, facing)
     elif shape == "grid":
@@ -612,7 +551,7 @@ def _group(entry: dict, where: str, r: FieldReader, sole_prefix: str | None, off
                        else (r.number(entry, "spacing", where, positive=True),) * 2)
         normal = r.vector(entry, "normal", where, default=(0.0, 0.0, 1.0))
         if np.linalg.norm(normal) == 0:
-            raise r.fail(f"{where}.normal", "has zero length")
+            normal = r.reject(f"{where}.normal", "has zero length", (0.0, 0.0, 1.0))
         pos, out = geometry.grid((nu, nv), spacing, center, normal)
     elif shape in ("arc", "circle"):
         count = r.integer(entry, "count", where)
@@ -629,7 +568,8 @@ def _group(entry: dict, where: str, r: FieldReader, sole_prefix: str | None, off
         raise r.fail(f"{where}.shape", f"unknown shape {shape!r}", fix="use line, grid, arc, circle or sphere")
     prefix = entry.get("name", sole_prefix if sole_prefix is not None else f"G{offset + 1}-")
     if not isinstance(prefix, str):
-        raise r.fail(f"{where}.name", "must be a string (the prefix of the element names)")
+        prefix = r.reject(f"{where}.name", "must be a string (the prefix of the element names)",
+                          sole_prefix if sole_prefix is not None else f"G{offset + 1}-")
     return [f"{prefix}{j + 1}" for j in range(len(pos))], pos, out
 
 
@@ -652,13 +592,10 @@ def _medium(table: Any, r: FieldReader) -> Medium:
     r.keys(table, TABLE_KEYS["medium"], "medium")
     temp = r.number(table, "temperature_c", "medium", default=20.0, low=TEMPERATURE_RANGE_C[0],
                     high=TEMPERATURE_RANGE_C[1])
-    if "speed_of_sound" in table:
-        c = r.number(table, "speed_of_sound", "medium", positive=True, high=10_000.0)
-    else:
+    c = r.number(table, "speed_of_sound", "medium", default=None, positive=True, high=10_000.0)
+    if c is None:
         c = speed_of_sound_air(temp)
-    absorb = table.get("air_absorption", False)
-    if not isinstance(absorb, bool):
-        raise r.fail("medium.air_absorption", f"expected true or false, got {absorb!r}")
+    absorb = r.boolean(table, "air_absorption", "medium", default=False)
     try:
         return Medium(c, temp, r.number(table, "relative_humidity_pct", "medium", default=50.0),
                       r.number(table, "pressure_kpa", "medium", default=101.325, positive=True), absorb)
@@ -695,20 +632,23 @@ def _hardware(table: Any, r: FieldReader, base: Path) -> HardwareMap:
     r.keys(table, TABLE_KEYS["hardware"], "hardware")
     device = table.get("device")
     if device is not None and (isinstance(device, bool) or not isinstance(device, (str, int))):
-        raise r.fail("hardware.device", "expected a device index or a name substring")
+        device = r.reject("hardware.device", "expected a device index or a name substring", None)
     rate = r.number(table, "sample_rate_hz", "hardware", default=None, positive=True, high=768_000.0)
-    ref_out = ref_in = None
-    if "reference" in table:
-        ref = table["reference"]
-        if not isinstance(ref, dict):
-            raise r.fail("hardware.reference", "must be a table { output_channel = N, input_channel = M }")
-        r.keys(ref, TABLE_KEYS["hardware.reference"], "hardware.reference")
-        ref_out = r.integer(ref, "output_channel", "hardware.reference", maximum=MAX_CHANNEL_NUMBER)
-        ref_in = r.integer(ref, "input_channel", "hardware.reference", maximum=MAX_CHANNEL_NUMBER)
+    ref_out, ref_in = (r.recover(lambda: _reference(table["reference"], r), (None, None))
+                       if "reference" in table else (None, None))
     cal = table.get("calibration")
     if cal is not None and not isinstance(cal, str):
-        raise r.fail("hardware.calibration", "expected a path (string)")
+        cal = r.reject("hardware.calibration", "expected a path (string)", None)
     return HardwareMap(device, rate, ref_out, ref_in, (base / cal) if cal else None)
+
+
+def _reference(ref: Any, r: FieldReader) -> tuple[int, int]:
+    """The 1-based (output, input) channels of ``[hardware.reference]``."""
+    if not isinstance(ref, dict):
+        raise r.fail("hardware.reference", "must be a table { output_channel = N, input_channel = M }")
+    r.keys(ref, TABLE_KEYS["hardware.reference"], "hardware.reference")
+    return (r.integer(ref, "output_channel", "hardware.reference", maximum=MAX_CHANNEL_NUMBER),
+            r.integer(ref, "input_channel", "hardware.reference", maximum=MAX_CHANNEL_NUMBER))
 
 
 def _planning(table: Any, r: FieldReader) -> PlanSettings:
@@ -717,9 +657,7 @@ def _planning(table: Any, r: FieldReader) -> PlanSettings:
     if not isinstance(table, dict):
         raise r.fail("planning", "must be a table")
     r.keys(table, TABLE_KEYS["planning"], "planning")
-    track = table.get("track", False)
-    if not isinstance(track, bool):
-        raise r.fail("planning.track", f"expected true or false, got {track!r}")
+    track = r.boolean(table, "track", "planning", default=False)
     return PlanSettings(r.number(table, "threshold_db", "planning", default=3.0, positive=True),
                         r.number(table, "snr_db", "planning", default=40.0, positive=True), track,
                         r.integer(table, "chunk_size", "planning", default=64))
@@ -782,7 +720,7 @@ def load_rig(path: str | Path) -> Rig:
     path = Path(path)
     src = str(path)
     doc = read_rig_document(path)
-    r = FieldReader(src)
+    r = rig_field_reader(src)
     r.keys(doc, _TOP_KEYS, "(top level)")
     base = path.parent
     meta = doc.get("rig", {})

@@ -43,7 +43,8 @@ from scipy.interpolate import PchipInterpolator
 from .errors import InputError
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .rig import ElementSet, FieldReader
+    from .rig import ElementSet
+    from .tomlfields import FieldReader
 
 __all__ = ["Room", "SURFACES", "BAND_CENTRES_HZ", "ROOM_KEYS", "IMAGE_LIMIT", "DEFAULT_ORDER", "WALL_CLEARANCE_M",
            "image_count", "parse_room", "sabine_t60_s", "eyring_t60_s", "schroeder_frequency_hz"]

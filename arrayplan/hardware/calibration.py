@@ -34,6 +34,7 @@ from .._version import __version__
 from ..errors import InputError
 from ..fileio import write_text_atomic
 from ..limits import MAX_CHANNEL_NUMBER
+from ..tomlfields import FieldReader
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -218,57 +219,6 @@ def now_utc() -> str:
 
 # ------------------------------------------------------------------ TOML reading
 
-class _Table:
-    def __init__(self, table: dict, where: str, source: str) -> None:
-        self.t, self.where, self.source = table, where, source
-
-    def fail(self, key: str, problem: str, fix: str | None = None) -> InputError:
-        return InputError(problem, source=self.source, field=f"{self.where}{key}", fix=fix)
-
-    def number(self, key: str, default: Any = ..., positive: bool = False) -> float:
-        """A finite number, within :data:`RANGES` for `key` where it has a range."""
-        if key not in self.t:
-            if default is ...:
-                raise self.fail(key, "missing", fix=f"add {key} = <number>")
-            return default
-        v = self.t[key]
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            raise self.fail(key, f"expected a finite number, got {v!r}")
-        if positive and v <= 0:
-            raise self.fail(key, f"must be positive, got {v!r}")
-        low, high = RANGES.get(key, (-math.inf, math.inf))
-        if not low <= v <= high:
-            raise self.fail(key, f"must be between {low:g} and {high:g}, got {v!r}")
-        return float(v)
-
-    def integer(self, key: str, default: Any = ..., minimum: int = 1, maximum: int = MAX_CHANNEL_NUMBER) -> int:
-        """A whole number in ``[minimum, maximum]``."""
-        if key not in self.t:
-            if default is ...:
-                raise self.fail(key, "missing", fix=f"add {key} = <whole number>")
-            return default
-        v = self.t[key]
-        if isinstance(v, bool) or not isinstance(v, int) or not minimum <= v <= maximum:
-            raise self.fail(key, f"expected a whole number from {minimum} to {maximum}, got {v!r}")
-        return int(v)
-
-    def string(self, key: str, default: Any = ...) -> str:
-        if key not in self.t:
-            if default is ...:
-                raise self.fail(key, "missing")
-            return default
-        v = self.t[key]
-        if not isinstance(v, str):
-            raise self.fail(key, f"expected a string, got {v!r}")
-        return v
-
-    def only(self, allowed: set[str]) -> None:
-        unknown = sorted(set(self.t) - allowed)
-        if unknown:
-            raise self.fail("", f"unknown key(s) {', '.join(unknown)}",
-                            fix=f"allowed: {', '.join(sorted(allowed))}")
-
-
 _MIC_KEYS = {"name", "input_channel", "sensitivity_mv_per_pa", "sensitivity_db_re_1v_per_pa",
              "input_full_scale_vrms", "calibrator_level_db_spl", "calibrator_frequency_hz",
              "calibrator_class", "recorded_rms_dbfs", "recording", "measured_utc"}
@@ -304,61 +254,70 @@ def parse_calibration(text: str, src: str = "<text>") -> CalibrationRecord:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML ({exc})", source=src) from None
-    top = _Table(doc, "", src)
-    top.only({"format", "format_version", "description", "microphones", "outputs", "latency"})
+    r = FieldReader(src, ranges=RANGES, integer_max=MAX_CHANNEL_NUMBER)
+    r.keys(doc, {"format", "format_version", "description", "microphones", "outputs", "latency"}, "")
     if doc.get("format") != FORMAT_NAME:
-        raise top.fail("format", f"expected format = \"{FORMAT_NAME}\", got {doc.get('format')!r}")
-    version = top.integer("format_version")
+        raise r.fail("format", f"expected format = \"{FORMAT_NAME}\", got {doc.get('format')!r}")
+    version = r.integer(doc, "format_version", "")
     if version > FORMAT_VERSION:
-        raise top.fail("format_version", f"version {version} is newer than this arrayplan reads "
-                                         f"({FORMAT_VERSION})", fix="upgrade arrayplan")
-    mics = []
+        raise r.fail("format_version", f"version {version} is newer than this arrayplan reads "
+                                       f"({FORMAT_VERSION})", fix="upgrade arrayplan")
+    mics: list[MicCalibration] = []
     for i, entry in enumerate(_array_of_tables(doc, "microphones", src)):
-        t = _Table(entry, f"microphones[{i}].", src)
-        t.only(_MIC_KEYS)
-        mic = MicCalibration(
-            name=t.string("name"), input_channel=t.integer("input_channel"),
-            sensitivity_mv_per_pa=t.number("sensitivity_mv_per_pa", positive=True),
-            input_full_scale_vrms=t.number("input_full_scale_vrms", positive=True),
-            calibrator_level_db_spl=t.number("calibrator_level_db_spl", 94.0, positive=True),
-            calibrator_frequency_hz=t.number("calibrator_frequency_hz", 1000.0, positive=True),
-            calibrator_class=t.string("calibrator_class", ""),
-            recorded_rms_dbfs=t.number("recorded_rms_dbfs", None),
-            recording=t.string("recording", ""), measured_utc=t.string("measured_utc", ""))
-        if "sensitivity_db_re_1v_per_pa" in entry:
-            stated = t.number("sensitivity_db_re_1v_per_pa")
-            implied = sensitivity_db_re_1v_per_pa(mic.sensitivity_mv_per_pa)
-            if abs(stated - implied) > 0.01:
-                raise t.fail("sensitivity_db_re_1v_per_pa",
-                             f"{stated:g} dB re 1 V/Pa disagrees with {mic.sensitivity_mv_per_pa:g} mV/Pa "
-                             f"({implied:.2f} dB)", fix="correct one of them, or delete the dB value")
+        mic = _mic(entry, f"microphones[{i}]", r)
         if any(m.name == mic.name for m in mics):
-            raise t.fail("name", f"microphone {mic.name!r} appears twice")
+            raise r.fail(f"microphones[{i}].name", f"microphone {mic.name!r} appears twice")
         mics.append(mic)
-    outs = []
+    outs: list[OutputCalibration] = []
     for i, entry in enumerate(_array_of_tables(doc, "outputs", src)):
-        t = _Table(entry, f"outputs[{i}].", src)
-        t.only(_OUT_KEYS)
-        out = OutputCalibration(channel=t.integer("channel"),
-                                full_scale_vrms=t.number("full_scale_vrms", positive=True),
-                                amplifier_gain_db=t.number("amplifier_gain_db", 0.0),
-                                method=t.string("method", ""), measured_utc=t.string("measured_utc", ""))
+        where = f"outputs[{i}]"
+        r.keys(entry, _OUT_KEYS, where)
+        out = OutputCalibration(channel=r.integer(entry, "channel", where),
+                                full_scale_vrms=r.number(entry, "full_scale_vrms", where, positive=True),
+                                amplifier_gain_db=r.number(entry, "amplifier_gain_db", where, 0.0),
+                                method=r.string(entry, "method", where, "", allow_empty=True),
+                                measured_utc=r.string(entry, "measured_utc", where, "", allow_empty=True))
         if any(o.channel == out.channel for o in outs):
-            raise t.fail("channel", f"output channel {out.channel} appears twice")
+            raise r.fail(f"{where}.channel", f"output channel {out.channel} appears twice")
         outs.append(out)
     latency = None
     if "latency" in doc:
-        if not isinstance(doc["latency"], dict):
-            raise top.fail("latency", "must be a table [latency]")
-        t = _Table(doc["latency"], "latency.", src)
-        t.only(_LAT_KEYS)
-        latency = LatencyCalibration(samples=t.integer("samples", minimum=0, maximum=MAX_LATENCY_SAMPLES),
-                                     sample_rate_hz=t.number("sample_rate_hz", positive=True),
-                                     output_channel=t.integer("output_channel", None),
-                                     input_channel=t.integer("input_channel", None),
-                                     device=t.string("device", ""), measured_utc=t.string("measured_utc", ""))
-    return CalibrationRecord(description=top.string("description", ""), microphones=tuple(mics),
-                             outputs=tuple(outs), latency=latency, source=src)
+        t = doc["latency"]
+        if not isinstance(t, dict):
+            raise r.fail("latency", "must be a table [latency]")
+        r.keys(t, _LAT_KEYS, "latency")
+        latency = LatencyCalibration(
+            samples=r.integer(t, "samples", "latency", minimum=0, maximum=MAX_LATENCY_SAMPLES),
+            sample_rate_hz=r.number(t, "sample_rate_hz", "latency", positive=True),
+            output_channel=r.integer(t, "output_channel", "latency", None),
+            input_channel=r.integer(t, "input_channel", "latency", None),
+            device=r.string(t, "device", "latency", "", allow_empty=True),
+            measured_utc=r.string(t, "measured_utc", "latency", "", allow_empty=True))
+    return CalibrationRecord(description=r.string(doc, "description", "", "", allow_empty=True),
+                             microphones=tuple(mics), outputs=tuple(outs), latency=latency, source=src)
+
+
+def _mic(entry: dict, where: str, r: FieldReader) -> MicCalibration:
+    """One ``[[microphones]]`` entry; a stated dB sensitivity must agree with the mV/Pa value."""
+    r.keys(entry, _MIC_KEYS, where)
+    mic = MicCalibration(
+        name=r.string(entry, "name", where, allow_empty=True), input_channel=r.integer(entry, "input_channel", where),
+        sensitivity_mv_per_pa=r.number(entry, "sensitivity_mv_per_pa", where, positive=True),
+        input_full_scale_vrms=r.number(entry, "input_full_scale_vrms", where, positive=True),
+        calibrator_level_db_spl=r.number(entry, "calibrator_level_db_spl", where, 94.0, positive=True),
+        calibrator_frequency_hz=r.number(entry, "calibrator_frequency_hz", where, 1000.0, positive=True),
+        calibrator_class=r.string(entry, "calibrator_class", where, "", allow_empty=True),
+        recorded_rms_dbfs=r.number(entry, "recorded_rms_dbfs", where, None),
+        recording=r.string(entry, "recording", where, "", allow_empty=True),
+        measured_utc=r.string(entry, "measured_utc", where, "", allow_empty=True))
+    if "sensitivity_db_re_1v_per_pa" in entry:
+        stated = r.number(entry, "sensitivity_db_re_1v_per_pa", where)
+        implied = sensitivity_db_re_1v_per_pa(mic.sensitivity_mv_per_pa)
+        if abs(stated - implied) > 0.01:
+            raise r.fail(f"{where}.sensitivity_db_re_1v_per_pa",
+                         f"{stated:g} dB re 1 V/Pa disagrees with {mic.sensitivity_mv_per_pa:g} mV/Pa "
+                         f"({implied:.2f} dB)", fix="correct one of them, or delete the dB value")
+    return mic
 
 
 def _array_of_tables(doc: dict, key: str, src: str) -> list[dict]:
