@@ -31,10 +31,14 @@ from typing import Any, Sequence
 import numpy as np
 
 from .._version import __version__
+from ..audiofiles import read_audio
 from ..errors import InputError
 from ..fileio import write_text_atomic
 from ..limits import MAX_CHANNEL_NUMBER
 from ..tomlfields import FieldReader
+from ..units import DBU_REFERENCE_VRMS, dbu_to_vrms, sensitivity_db_re_1v_per_pa
+from ..units import P_REF_PA as REFERENCE_PRESSURE_PA
+from ..units import pressure_from_spl as pressure_from_db_spl
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -50,10 +54,6 @@ __all__ = [
     "calibration_factors", "now_utc",
 ]
 
-#: Reference sound pressure for dB SPL, Pa (20 µPa).
-REFERENCE_PRESSURE_PA = 20e-6
-#: 0 dBu in volts RMS: sqrt(0.6) (1 mW into 600 ohm).
-DBU_REFERENCE_VRMS = math.sqrt(0.6)
 FORMAT_NAME = "arrayplan-calibration"
 FORMAT_VERSION = 1
 
@@ -72,21 +72,6 @@ RANGES: dict[str, tuple[float, float]] = {
 }
 #: Largest latency accepted, samples (over three minutes at 48 kHz).
 MAX_LATENCY_SAMPLES = 10_000_000
-
-
-def pressure_from_db_spl(level_db: float) -> float:
-    """RMS pressure in Pa of a level in dB SPL re 20 µPa (94 dB -> 1.002 Pa)."""
-    return REFERENCE_PRESSURE_PA * 10.0 ** (level_db / 20.0)
-
-
-def dbu_to_vrms(level_dbu: float) -> float:
-    """Volts RMS of a level in dBu (+4 dBu -> 1.228 V)."""
-    return DBU_REFERENCE_VRMS * 10.0 ** (level_dbu / 20.0)
-
-
-def sensitivity_db_re_1v_per_pa(mv_per_pa: float) -> float:
-    """Microphone sensitivity in dB re 1 V/Pa: ``20 log10(mV/Pa / 1000)``."""
-    return 20.0 * math.log10(mv_per_pa / 1000.0)
 
 
 @dataclass(frozen=True)
@@ -443,15 +428,10 @@ def read_or_new(path: str | os.PathLike, description: str = "") -> CalibrationRe
 def read_wav_channel(path: str | os.PathLike, channel: int, *, field: str = "channel"
                      ) -> tuple[np.ndarray, float]:
     """One channel (1-based) of a WAV file as float64, and its rate."""
-    import soundfile as sf
-
     src = str(path)
     if not Path(src).is_file():
         raise InputError("recording not found", source=src, fix="check the path")
-    try:
-        data, rate = sf.read(src, dtype="float64", always_2d=True)
-    except Exception as exc:  # soundfile raises several kinds
-        raise InputError(f"cannot read as audio ({exc})", source=src) from None
+    data, rate = read_audio(src, what="as audio")
     if not 1 <= channel <= data.shape[1]:
         raise InputError(f"channel {channel} asked for, the file has {data.shape[1]}", source=src, field=field,
                          fix=f"give a channel from 1 to {data.shape[1]}")
