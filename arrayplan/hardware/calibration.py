@@ -20,7 +20,6 @@ Conventions: a full-scale sine has peak 1.0, so a sample value x stands for
 from __future__ import annotations
 
 import datetime as _dt
-import json
 import math
 import os
 import sys
@@ -29,6 +28,7 @@ from pathlib import Path
 from typing import Any, Sequence
 
 import numpy as np
+import tomlkit
 
 from .._version import __version__
 from ..audiofiles import read_audio
@@ -314,49 +314,48 @@ def _array_of_tables(doc: dict, key: str, src: str) -> list[dict]:
 
 # ------------------------------------------------------------------ TOML writing
 
-def _toml_value(v: Any) -> str:
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, int):
-        return str(v)
-    if isinstance(v, float):
-        if not math.isfinite(v):
-            raise ValueError(f"cannot write {v!r} to TOML")
-        return repr(v)
-    if isinstance(v, str):
-        # JSON's string escapes are TOML's (\\ \" \n \t \uXXXX ...); TOML also wants DEL escaped
-        return json.dumps(v, ensure_ascii=False).replace("\x7f", "\\u007f")
-    raise TypeError(f"cannot write {type(v).__name__} to TOML")
+#: Column at which the comment after a value starts (as far as the value leaves room).
+_COMMENT_COLUMN = 45
 
 
-def _toml_pairs(pairs: Sequence[tuple[str, Any, str]]) -> list[str]:
-    lines = []
+def _add_pairs(table: Any, pairs: Sequence[tuple[str, Any, str]]) -> None:
+    """Add ``key = value  # comment`` lines to a tomlkit table, skipping None and empty strings."""
     for key, value, comment in pairs:
         if value is None or value == "":
             continue
-        try:
-            line = f"{key} = {_toml_value(value)}"
-        except ValueError:
-            raise InputError(f"cannot write {value!r}: not a finite number", field=key) from None
-        lines.append(f"{line:<44} # {comment}" if comment else line)
-    return lines
+        if isinstance(value, float) and not math.isfinite(value):
+            raise InputError(f"cannot write {value!r}: not a finite number", field=key)
+        item = tomlkit.item(value)
+        if comment:
+            item.comment(comment)
+            width = len(f"{key} = {item.as_string()}")
+            item.trivia.comment_ws = " " * max(1, _COMMENT_COLUMN - width)
+        table.add(key, item)
+
+
+def _array_of_tables_of(rows: Sequence[Sequence[tuple[str, Any, str]]]) -> Any:
+    out = tomlkit.aot()
+    for pairs in rows:
+        table = tomlkit.table()
+        _add_pairs(table, pairs)
+        out.append(table)
+    return out
 
 
 def format_calibration(rec: CalibrationRecord) -> str:
-    """The TOML text of `rec` (what :func:`write_calibration` writes)."""
-    lines = [
-        "# arrayplan calibration record (format: calibration/README.md).",
-        f"# Written by arrayplan {__version__} on {now_utc()}.",
-        "# A full-scale sine has peak 1.0; 0 dBu = 0.7746 V RMS; sensitivity in dB re 1 V/Pa",
-        "# = 20 log10(mV/Pa / 1000).  Calibrate with a calibrator of known class (IEC 60942)",
-        "# and follow its manual and local practice.",
-        "",
-    ]
-    lines += _toml_pairs([("format", FORMAT_NAME, ""), ("format_version", FORMAT_VERSION, ""),
-                          ("description", rec.description, "")])
-    for m in rec.microphones:
-        lines += ["", "[[microphones]]"]
-        lines += _toml_pairs([
+    """The TOML text of `rec` (what :func:`write_calibration` writes), commented, through tomlkit."""
+    doc = tomlkit.document()
+    for line in ("arrayplan calibration record (format: calibration/README.md).",
+                 f"Written by arrayplan {__version__} on {now_utc()}.",
+                 "A full-scale sine has peak 1.0; 0 dBu = 0.7746 V RMS; sensitivity in dB re 1 V/Pa",
+                 "= 20 log10(mV/Pa / 1000).  Calibrate with a calibrator of known class (IEC 60942)",
+                 "and follow its manual and local practice."):
+        doc.add(tomlkit.comment(line))
+    doc.add(tomlkit.nl())
+    _add_pairs(doc, [("format", FORMAT_NAME, ""), ("format_version", FORMAT_VERSION, ""),
+                     ("description", rec.description, "")])
+    if rec.microphones:
+        doc.append("microphones", _array_of_tables_of([[
             ("name", m.name, "as in the rig file"),
             ("input_channel", m.input_channel, "1-based input it was calibrated on"),
             ("sensitivity_mv_per_pa", _significant(m.sensitivity_mv_per_pa), "mV/Pa"),
@@ -369,23 +368,23 @@ def format_calibration(rec: CalibrationRecord) -> str:
             ("calibrator_class", m.calibrator_class, "IEC 60942 class"),
             ("recorded_rms_dbfs", None if m.recorded_rms_dbfs is None else round(m.recorded_rms_dbfs, 3),
              "RMS of the recorded tone"),
-            ("recording", m.recording, ""), ("measured_utc", m.measured_utc, "")])
-    for o in rec.outputs:
-        lines += ["", "[[outputs]]"]
-        lines += _toml_pairs([
+            ("recording", m.recording, ""), ("measured_utc", m.measured_utc, "")] for m in rec.microphones]))
+    if rec.outputs:
+        doc.append("outputs", _array_of_tables_of([[
             ("channel", o.channel, "1-based output channel"),
             ("full_scale_vrms", _significant(o.full_scale_vrms), "V RMS of a full-scale sine at the output"),
             ("amplifier_gain_db", o.amplifier_gain_db, "voltage gain after the output, dB"),
-            ("method", o.method, ""), ("measured_utc", o.measured_utc, "")])
+            ("method", o.method, ""), ("measured_utc", o.measured_utc, "")] for o in rec.outputs]))
     if rec.latency is not None:
         la = rec.latency
-        lines += ["", "[latency]"]
-        lines += _toml_pairs([
+        table = tomlkit.table()
+        _add_pairs(table, [
             ("samples", la.samples, "round trip, output to input"),
             ("sample_rate_hz", la.sample_rate_hz, "valid only at this rate"),
             ("output_channel", la.output_channel, "1-based"), ("input_channel", la.input_channel, "1-based"),
             ("device", la.device, ""), ("measured_utc", la.measured_utc, "")])
-    return "\n".join(lines) + "\n"
+        doc.append("latency", table)
+    return tomlkit.dumps(doc)
 
 
 def _in_range(key: str, value: float) -> bool:
