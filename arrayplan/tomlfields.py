@@ -87,6 +87,14 @@ class FieldReader:
             raise self.fail(field, problem, fix)
         return self.reject(field, problem, default, fix)
 
+    def _lookup(self, table: dict, key: str, field: str, default: Any, fix: str | None) -> tuple[bool, Any]:
+        """``(True, value)`` when `key` is in `table`, ``(False, default)`` when absent; "missing" when required."""
+        if key in table:
+            return True, table[key]
+        if default is MISSING:
+            raise self.fail(field, "missing", fix=fix)
+        return False, default
+
     @staticmethod
     def _field(where: str, key: str) -> str:
         return f"{where}.{key}" if where else key
@@ -118,13 +126,11 @@ class FieldReader:
             The value, or `default`.
         """
         field = self._field(where, key)
-        if key not in table:
-            if default is MISSING:
-                raise self.fail(field, "missing", fix=f"add {key} = <number>")
-            return default
+        found, v = self._lookup(table, key, field, default, f"add {key} = <number>")
+        if not found:
+            return v
         lo, hi = self.ranges.get(key, self.number_range)
         lo, hi = lo if low is None else low, hi if high is None else high
-        v = table[key]
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
             return self._bad(field, f"expected a finite number, got {v!r}", default)
         if positive and v <= 0:
@@ -137,12 +143,10 @@ class FieldReader:
                 maximum: int | None = None) -> int:
         """A whole number in ``[minimum, maximum]`` (`maximum` defaults to `integer_max`)."""
         field = self._field(where, key)
-        if key not in table:
-            if default is MISSING:
-                raise self.fail(field, "missing", fix=f"add {key} = <whole number>")
-            return default
+        found, v = self._lookup(table, key, field, default, f"add {key} = <whole number>")
+        if not found:
+            return v
         top = self.integer_max if maximum is None else maximum
-        v = table[key]
         if isinstance(v, bool) or not isinstance(v, int) or v < minimum:
             return self._bad(field, f"expected a whole number >= {minimum}, got {v!r}", default)
         if v > top:
@@ -152,11 +156,9 @@ class FieldReader:
     def vector(self, table: dict, key: str, where: str, n: int = 3, default: Any = MISSING) -> tuple:
         """`n` finite numbers, each at most the upper end of `number_range` in magnitude."""
         field = self._field(where, key)
-        if key not in table:
-            if default is MISSING:
-                raise self.fail(field, "missing", fix=f"add {key} = [{', '.join(['0'] * n)}]")
-            return default
-        v = table[key]
+        found, v = self._lookup(table, key, field, default, f"add {key} = [{', '.join(['0'] * n)}]")
+        if not found:
+            return v
         ok = (isinstance(v, list) and len(v) == n
               and all(isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x) for x in v))
         if not ok:
@@ -169,11 +171,9 @@ class FieldReader:
     def string(self, table: dict, key: str, where: str, default: Any = MISSING, allow_empty: bool = False) -> str:
         """A string (non-empty unless `allow_empty`)."""
         field = self._field(where, key)
-        if key not in table:
-            if default is MISSING:
-                raise self.fail(field, "missing")
-            return default
-        v = table[key]
+        found, v = self._lookup(table, key, field, default, None)
+        if not found:
+            return v
         if not isinstance(v, str) or not (v or allow_empty):
             kind = "a string" if allow_empty else "a non-empty string"
             return self._bad(field, f"expected {kind}, got {v!r}", default)
@@ -182,11 +182,9 @@ class FieldReader:
     def boolean(self, table: dict, key: str, where: str, default: Any = MISSING) -> bool:
         """``true`` or ``false``."""
         field = self._field(where, key)
-        if key not in table:
-            if default is MISSING:
-                raise self.fail(field, "missing", fix=f"add {key} = true (or false)")
-            return default
-        v = table[key]
+        found, v = self._lookup(table, key, field, default, f"add {key} = true (or false)")
+        if not found:
+            return v
         if not isinstance(v, bool):
             return self._bad(field, f"expected true or false, got {v!r}", default)
         return v

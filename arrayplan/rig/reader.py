@@ -43,12 +43,20 @@ TABLE_KEYS = {
 }
 
 
+def _checked_table(table: Any, r: FieldReader, name: str) -> dict | None:
+    """`table` as the rig file's ``[name]``: None when absent; InputError when not a table (or keys unknown)."""
+    if table is None:
+        return None
+    if not isinstance(table, dict):
+        raise r.fail(name, "must be a table")
+    r.keys(table, TABLE_KEYS[name], name)
+    return table
+
+
 def _medium(table: Any, r: FieldReader) -> Medium:
+    table = _checked_table(table, r, "medium")
     if table is None:
         return Medium()
-    if not isinstance(table, dict):
-        raise r.fail("medium", "must be a table")
-    r.keys(table, TABLE_KEYS["medium"], "medium")
     temp = r.number(table, "temperature_c", "medium", default=20.0, low=TEMPERATURE_RANGE_C[0],
                     high=TEMPERATURE_RANGE_C[1])
     c = r.number(table, "speed_of_sound", "medium", default=None, positive=True, high=10_000.0)
@@ -63,11 +71,9 @@ def _medium(table: Any, r: FieldReader) -> Medium:
 
 
 def _frequencies(table: Any, r: FieldReader) -> FrequencyAxis | None:
+    table = _checked_table(table, r, "frequencies")
     if table is None:
         return None
-    if not isinstance(table, dict):
-        raise r.fail("frequencies", "must be a table")
-    r.keys(table, TABLE_KEYS["frequencies"], "frequencies")
     if "list" in table:
         if set(table) - {"list"}:
             raise r.fail("frequencies", "give either list or start/stop/count, not both")
@@ -84,11 +90,9 @@ def _frequencies(table: Any, r: FieldReader) -> FrequencyAxis | None:
 
 
 def _hardware(table: Any, r: FieldReader, base: Path) -> HardwareMap:
+    table = _checked_table(table, r, "hardware")
     if table is None:
         return HardwareMap()
-    if not isinstance(table, dict):
-        raise r.fail("hardware", "must be a table")
-    r.keys(table, TABLE_KEYS["hardware"], "hardware")
     device = table.get("device")
     if device is not None and (isinstance(device, bool) or not isinstance(device, (str, int))):
         device = r.reject("hardware.device", "expected a device index or a name substring", None)
@@ -111,11 +115,9 @@ def _reference(ref: Any, r: FieldReader) -> tuple[int, int]:
 
 
 def _planning(table: Any, r: FieldReader) -> PlanSettings:
+    table = _checked_table(table, r, "planning")
     if table is None:
         return PlanSettings()
-    if not isinstance(table, dict):
-        raise r.fail("planning", "must be a table")
-    r.keys(table, TABLE_KEYS["planning"], "planning")
     track = r.boolean(table, "track", "planning", default=False)
     return PlanSettings(r.number(table, "threshold_db", "planning", default=3.0, positive=True),
                         r.number(table, "snr_db", "planning", default=40.0, positive=True), track,
