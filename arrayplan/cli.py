@@ -51,6 +51,8 @@ COMMANDS: tuple[tuple[str, str, str], ...] = (
      "verify planned channels against measured impulse responses"),
     ("study", "arrayplan.commands.study",
      "design studies: questions a plan alone does not answer"),
+    ("compare", "arrayplan.commands.compare",
+     "compare two or more layouts on the same frequencies (counts, capacity, figures)"),
     ("report", "arrayplan.commands.report",
      "write one self-contained HTML report of a project folder"),
 )

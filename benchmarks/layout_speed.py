@@ -43,7 +43,7 @@ def main() -> None:
     rig = make_rig()
     axis = FrequencyAxis.spaced(200.0, 4000.0, 32, "log")
     t_plan, _ = best_of(lambda: plan_rig(rig, axis), args.repeats)
-    t_setup, problem = best_of(lambda: layout_problem(rig, "speakers", 16, axis, snr_db=30.0), args.repeats)
+    t_setup, problem = best_of(lambda: layout_problem(rig, "speakers", 16, axis, reference_snr_db=30.0), args.repeats)
     t_greedy, (order, _) = best_of(lambda: greedy_select(problem, "capacity"), args.repeats)
     t_swap, (chosen, swaps) = best_of(lambda: swap_refine(problem, order, "capacity"), args.repeats)
     t_bound, (bound, _) = best_of(lambda: relaxation_bound(problem), args.repeats)

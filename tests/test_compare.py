@@ -41,11 +41,25 @@ def test_capacity_is_the_log_det_of_the_coupling():
     np.testing.assert_allclose(capacity_per_frequency(s, 5, rho_db), direct, rtol=1e-10)
 
 
+@pytest.mark.parametrize("rho_db", [0.0, 30.0])
+def test_reference_snr_is_one_speaker_at_one_metre(rho_db):
+    # one speaker, one microphone 1 m away: a single channel whose SNR is rho, so the capacity is
+    # log2(1 + rho) at every frequency (Telatar 1999, one channel); a second layout at 2 m gets
+    # log2(1 + rho / 4) (inverse-square law, 1/(4 pi r) spreading)
+    one = Rig.from_positions(np.zeros((1, 3)), np.array([[0.0, 1.0, 0.0]]), speed_of_sound=C, name="near")
+    two = Rig.from_positions(np.zeros((1, 3)), np.array([[0.0, 2.0, 0.0]]), speed_of_sound=C, name="far")
+    axis = FrequencyAxis(HZ)
+    cmp = compare_plans([(r.name, r.name, plan_rig(r, axis)) for r in (one, two)], reference_snr_db=rho_db)
+    rho = 10 ** (rho_db / 10)
+    np.testing.assert_allclose(cmp.layouts[0].capacity, np.log2(1 + rho), rtol=1e-12)
+    np.testing.assert_allclose(cmp.layouts[1].capacity, np.log2(1 + rho / 4), rtol=1e-12)
+
+
 def test_compare_counts_match_an_independent_svd_and_the_paraxial_formula():
     axis = FrequencyAxis(HZ)
     rigs = [Rig.from_positions(*_lines(n, d), speed_of_sound=C, name=f"r{n}") for n, d in ((4, 0.1), (8, 0.15))]
     cmp = compare_plans([(r.name, r.name, plan_rig(r, axis, threshold_db=3.0, snr_db=40.0)) for r in rigs],
-                        capacity_snr_db=20.0)
+                        reference_snr_db=20.0)
     for rig, (n, d), row in zip(rigs, ((4, 0.1), (8, 0.15)), cmp.layouts):
         s = np.linalg.svd(_green(*_lines(n, d), HZ), compute_uv=False)
         level = 20 * np.log10(s / s[:, :1])
@@ -85,14 +99,16 @@ def test_command_compares_a_rig_and_a_plan_folder_on_one_table(tmp_path, capsys)
     capsys.readouterr()
     out = tmp_path / "cmp"
     status = main(["compare", str(tmp_path / "a.toml"), str(tmp_path / "planb"), "--out", str(out),
-                   "--capacity-snr-db", "30"])
+                   "--reference-snr-db", "30"])
     text = capsys.readouterr().out
     assert status == 0
-    assert "small" in text and "planb" in text and "capacity at 30 dB" in text
+    assert "small" in text and "planb" in text and "capacity at reference SNR 30 dB" in text
     doc = json.loads((out / "compare.json").read_text())
+    assert doc["reference_snr_db"] == 30.0 and "1 m from one speaker" in doc["reference_snr"]
+    assert "strongest channel" in doc["usable_snr"]
     assert doc["kind"] == "arrayplan-comparison" and doc["frequencies_hz"] == [500.0, 1000.0]
     assert {p.name for p in out.iterdir()} == {"compare.csv", "compare-by-frequency.csv", "compare.json",
-                                               "compare.png"}
+                                               "compare.png", "SHA256SUMS"}
 
 
 @pytest.mark.parametrize("layouts, word", [(["a.toml"], "at least two"), (["a.toml", "missing.toml"], "not found")])

@@ -164,6 +164,22 @@ def test_bad_input_is_one_line_exit_2_and_nothing_written(tmp_path, capsys, extr
     assert not out.exists()
 
 
+def test_filters_too_short_for_the_delay_spread_to_the_zone_points_are_refused(tmp_path, capsys):
+    # a FIR drive filter must hold the spread of arrival times from the speakers to the points it serves,
+    # (max r - min r) / c in samples, or the far arrivals wrap around (common practice, no source);
+    # the spread is computed here from the rig's positions with numpy
+    rig = load_rig(DEMO)
+    pts = np.vstack([z.positions for z in rig.zones if z.name in ("seat-A", "seat-B")])
+    r = np.linalg.norm(pts[:, None] - rig.speakers.positions[None], axis=-1)
+    spread = (r.max() - r.min()) / rig.medium.speed_of_sound * 48000.0
+    taps = int(np.floor(spread))                     # shorter than the spread itself
+    out = tmp_path / "never"
+    got = _cli(capsys, DEMO, "--bright", "seat-A", "--dark", "seat-B", "--out", out, "--freq", "500",
+               "--filters", "contrast", "--rate", "48000", "--taps", max(taps, 16), "--band", "300", "900")
+    assert got.returncode == 2 and "--taps" in got.stderr and "delay spread" in got.stderr
+    assert len(got.stderr.strip().splitlines()) == 1 and not out.exists()
+
+
 def test_measured_responses_give_the_free_field_design_when_they_are_the_free_field(tmp_path, capsys):
     from arrayplan.irset import write_irset
     from arrayplan.simulate import free_field_irset
@@ -190,3 +206,74 @@ def test_measured_responses_give_the_free_field_design_when_they_are_the_free_fi
     r = _cli(capsys, rig_path, "--bright", "seat-A", "--dark", "mics-B", "--out", tmp_path / "never",
              "--irset", tmp_path / "irs")
     assert r.returncode == 2 and "control points" in r.stderr and not (tmp_path / "never").exists()
+
+
+ROOM_ZONES = """
+[frequencies]
+list = [250.0, 500.0]
+[[speakers]]
+shape = "line"
+count = 4
+spacing = 0.25
+center = [2.0, 0.6, 1.2]
+direction = [1.0, 0.0, 0.0]
+[[microphones]]
+name = "M"
+position = [2.0, 2.0, 1.2]
+[[zones]]
+name = "left"
+role = "bright"
+shape = "line"
+count = 3
+spacing = 0.1
+center = [1.4, 2.4, 1.2]
+direction = [1.0, 0.0, 0.0]
+[[zones]]
+name = "right"
+role = "dark"
+shape = "line"
+count = 3
+spacing = 0.1
+center = [2.6, 2.4, 1.2]
+direction = [1.0, 0.0, 0.0]
+[room]
+size_m = [4.0, 3.5, 2.6]
+absorption = 0.5
+reflection_order = 1
+"""
+
+
+def test_zones_in_a_room_use_the_room(tmp_path):
+    # first-order image sources written here with numpy (J. B. Allen and D. A. Berkley, JASA 65(4), 1979):
+    # the direct path and the six mirror images across the walls of the box [0, L], each
+    # exp(-jkr) / (4 pi r) times the reflection coefficient beta = sqrt(1 - alpha); the acoustic contrast
+    # of the study's weights is then mean |p_bright|^2 / mean |p_dark|^2 (Choi and Kim, JASA 111(4), 2002)
+    path = tmp_path / "rig.toml"
+    path.write_text(ROOM_ZONES)
+    rig = load_rig(path)
+    axis = FrequencyAxis([250.0, 500.0])
+    bright, dark = select_zones(rig.zones, ["left"], "bright", "t"), select_zones(rig.zones, ["right"], "dark", "t")
+    study = study_zones(rig, bright, dark, axis, target=ZoneTarget.plane([0.0, 1.0, 0.0]), regularisation=[0.01])
+    assert study.kernel_name == "room"
+    size, beta, c = np.array([4.0, 3.5, 2.6]), np.sqrt(1 - 0.5), rig.medium.speed_of_sound
+    spk = rig.speakers.positions
+    images = [(spk, 1.0)]
+    for axis_i in range(3):
+        for wall in (0.0, size[axis_i]):
+            img = spk.copy()
+            img[:, axis_i] = 2 * wall - spk[:, axis_i]
+            images.append((img, beta))
+
+    def g(points):
+        out = 0
+        for img, amp in images:
+            r = np.linalg.norm(points[:, None] - img[None], axis=-1)
+            out = out + amp * np.exp(-2j * np.pi * axis.hz[:, None, None] / c * r) / (4 * np.pi * r)
+        return out
+
+    g_b, g_d = g(bright[0].positions), g(dark[0].positions)
+    for key, res in study.results.items():
+        w = res.weights[0]
+        e_b = np.mean(np.abs(np.einsum("fps,fs->fp", g_b, w)) ** 2, axis=1)
+        e_d = np.mean(np.abs(np.einsum("fps,fs->fp", g_d, w)) ** 2, axis=1)
+        np.testing.assert_allclose(res.contrast_db[0], 10 * np.log10(e_b / e_d), atol=1e-9, err_msg=key)

@@ -15,6 +15,7 @@ from ..planning import plan_rig
 from ..plan_files import read_plan
 from ..progress import ProgressBar
 from ..rig import load_rig
+from ..studies._common import REFERENCE_SNR_MEANING, STRONGEST_SNR_MEANING
 from ..studies._tables import csv_text as _csv
 
 
@@ -28,11 +29,13 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--freq", type=float, action="append", metavar="HZ",
                    help="compare at this frequency (repeatable); default the first layout's frequencies")
-    p.add_argument("--capacity-snr-db", type=float, metavar="DB",
-                   help="also give the capacity at this SNR (one speaker at full drive, 1 m, free field; power "
-                        "shared among the speakers)")
+    p.add_argument("--reference-snr-db", type=float, metavar="DB",
+                   help="also give the capacity at this reference SNR: at a microphone 1 m from one speaker in "
+                        "free field with all the drive power on it; each layout's speakers share the power (the "
+                        "same reference as 'arrayplan study layout')")
     p.add_argument("--threshold-db", type=float, help="strong-channel threshold for rigs planned here, dB")
-    p.add_argument("--snr-db", type=float, help="SNR of the strongest channel for rigs planned here, dB")
+    p.add_argument("--snr-db", type=float, help="SNR of the strongest channel for the usable count of rigs planned "
+                                                "here, dB (as in 'arrayplan plan'; not the reference SNR)")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)
 
@@ -62,7 +65,7 @@ def run(args: argparse.Namespace) -> int:
     matplotlib.use("Agg")
     if len(args.layouts) < 2:
         raise InputError(f"give at least two layouts, got {len(args.layouts)}", source="RIG_OR_PLAN")
-    for flag, value in (("--capacity-snr-db", args.capacity_snr_db), ("--threshold-db", args.threshold_db),
+    for flag, value in (("--reference-snr-db", args.reference_snr_db), ("--threshold-db", args.threshold_db),
                         ("--snr-db", args.snr_db)):
         if value is not None and not np.isfinite(value):
             raise InputError(f"must be a finite number of dB, got {value}", source=flag)
@@ -79,7 +82,7 @@ def run(args: argparse.Namespace) -> int:
             taken = {n for n, _, _ in named}
             named.append((name if name not in taken else f"{name} ({i + 1})", path, plan))
             bar(i + 1, len(args.layouts))
-    comparison = compare_plans(named, args.capacity_snr_db)
+    comparison = compare_plans(named, args.reference_snr_db)
     head, rows = comparison.table()
     hz = comparison.axis.hz
     per_f = []
@@ -91,10 +94,11 @@ def run(args: argparse.Namespace) -> int:
     series = {"strong channels": np.array([s.strong for s in comparison.layouts]),
               "usable channels": np.array([s.usable for s in comparison.layouts]),
               "effective channels": np.array([s.effective for s in comparison.layouts])}
-    if args.capacity_snr_db is not None:
+    if args.reference_snr_db is not None:
         series["capacity (bit/s/Hz)"] = np.array([s.capacity for s in comparison.layouts])
     doc = {"kind": "arrayplan-comparison", "provenance": provenance(), "frequencies_hz": hz,
-           "capacity_snr_db": args.capacity_snr_db, "header": head, "rows": rows,
+           "reference_snr_db": args.reference_snr_db, "reference_snr": REFERENCE_SNR_MEANING,
+           "usable_snr": STRONGEST_SNR_MEANING, "header": head, "rows": rows,
            "layouts": [{"name": s.name, "source": s.source, "kernel": s.kernel} for s in comparison.layouts]}
     with staged_output_dir(args.out) as stage:
         write_text_atomic(stage / "compare.csv", _csv(head, rows))

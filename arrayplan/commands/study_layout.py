@@ -11,6 +11,7 @@ from ..errors import InputError
 from ..frequency import FrequencyAxis
 from ..progress import ProgressBar
 from ..rig import ElementSet, load_rig, read_positions_csv
+from ..studies._common import DEFAULT_REFERENCE_SNR_DB
 
 
 def register(actions: argparse._SubParsersAction) -> None:
@@ -28,10 +29,12 @@ def register(actions: argparse._SubParsersAction) -> None:
                    help="CSV of candidate positions (header x,y,z[,name]) in metres; default: the rig's own "
                         "elements on --side are the candidates")
     p.add_argument("--criterion", choices=("capacity", "strong", "usable"), default="capacity",
-                   help="capacity: sum over frequencies of log2 det(I + rho G^H G / n); strong: channels within "
-                        "the threshold of the strongest; usable: channels whose own SNR reaches 0 dB")
-    p.add_argument("--snr-db", type=float, help="SNR rho of one average candidate at full drive, dB "
-                                                "(default the rig's [planning] snr_db)")
+                   help="capacity: sum over frequencies of log2 det(I + rho (4 pi)^2 G^H G / n); strong: channels "
+                        "within the threshold of the strongest; usable: channels whose own SNR reaches 0 dB")
+    p.add_argument("--reference-snr-db", type=float, default=DEFAULT_REFERENCE_SNR_DB, metavar="DB",
+                   help="reference SNR rho, dB: at a microphone 1 m from one speaker in free field with all the "
+                        "drive power on it; the speakers share the power (default %(default)g; the same "
+                        "reference as 'arrayplan compare', not the plan's SNR of the strongest channel)")
     p.add_argument("--threshold-db", type=float, help="strong-channel threshold, dB (default the rig's)")
     p.add_argument("--freq", type=float, action="append", metavar="HZ",
                    help="score at this frequency (repeatable); default the rig file's [frequencies]")
@@ -61,11 +64,13 @@ def run(args: argparse.Namespace) -> int:
     if axis is None:
         raise InputError("no frequencies to score at", source=args.rig, field="frequencies",
                          fix="add a [frequencies] table or give --freq")
-    for flag, value in (("--snr-db", args.snr_db), ("--threshold-db", args.threshold_db)):
-        if value is not None and not (np.isfinite(value) and value > 0):
-            raise InputError(f"must be a positive number of dB, got {value}", source=flag)
+    if not np.isfinite(args.reference_snr_db):
+        raise InputError(f"must be a finite number of dB, got {args.reference_snr_db}", source="--reference-snr-db")
+    if args.threshold_db is not None and not (np.isfinite(args.threshold_db) and args.threshold_db > 0):
+        raise InputError(f"must be a positive number of dB, got {args.threshold_db}", source="--threshold-db")
     cand = _candidates(args, rig)
-    problem = layout_problem(rig, args.side, args.choose, axis, candidates=cand, snr_db=args.snr_db,
+    problem = layout_problem(rig, args.side, args.choose, axis, candidates=cand,
+                             reference_snr_db=args.reference_snr_db,
                              threshold_db=args.threshold_db,
                              source=args.candidates or f"{args.rig} ({args.side} as candidates)")
     with ProgressBar("choosing") as bar:

@@ -78,7 +78,8 @@ def register(actions: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from ..studies.zone_files import ZoneTolerance, summary_lines, write_zone_study
-    from ..studies.zone_filters import check_zone_filters, zone_filter_taps
+    from ..filters import validate_request
+    from ..studies.zone_filters import check_zone_filters, zone_filter_taps, zone_points_rig
     from ..studies.zones import (AUTO_REGULARISATION, ZoneTarget, contrast_db, perturbed_contrast, study_zones,
                                  zone_coupling)
 
@@ -117,13 +118,7 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"must be a positive frequency, got {args.map_hz}", source="--map-hz")
     band = tuple(args.band) if args.band else (float(axis.hz[0]), float(axis.hz[-1]))
     if args.filters:
-        if not (np.isfinite(args.rate) and args.rate > 0):
-            raise InputError(f"must be a positive sample rate in Hz, got {args.rate}", source="--rate")
-        if not (np.all(np.isfinite(band)) and 0 < band[0] < band[1] < args.rate / 2):
-            raise InputError(f"band must satisfy 0 < low < high < rate/2, got {band[0]:g} {band[1]:g} Hz",
-                             source="--band")
-        if args.taps < 16:
-            raise InputError(f"must be at least 16, got {args.taps}", source="--taps")
+        validate_request(zone_points_rig(rig, [*bright, *dark]), args.rate, args.taps, band)
 
     kernel, measured_ir = None, None
     if args.irset:
@@ -170,7 +165,7 @@ def run(args: argparse.Namespace) -> int:
 
         with ProgressBar("zone filters") as bar:
             bar(0, 2)
-            taps = zone_filter_taps(weights_at, len(rig.speakers), args.rate, args.taps, band)
+            taps = zone_filter_taps(weights_at, zone_points_rig(rig, [*bright, *dark]), args.rate, args.taps, band)
             bar(1, 2)
             filters = check_zone_filters(rig, bright, dark, taps, args.rate, band, designed,
                                          impulse_responses=measured_ir)

@@ -120,7 +120,7 @@ def study_figures(found) -> list[tuple[str, Figure]]:
     names = [lay["name"] for lay in found.sidecar["layouts"]]
     hz = np.array(found.sidecar["frequencies_hz"], dtype=float)
     keys = {"strong channels": "strong", "usable channels": "usable", "effective channels": "effective"}
-    if found.sidecar.get("capacity_snr_db") is not None:
+    if found.sidecar.get("reference_snr_db", found.sidecar.get("capacity_snr_db")) is not None:
         keys["capacity (bit/s/Hz)"] = "capacity_bit_per_s_hz"
     series = {title: np.array([[float(r[col]) for r in found.study if r["layout"] == n] for n in names])
               for title, col in keys.items()}
@@ -157,7 +157,8 @@ def study_section_html(found) -> str:
         gap = "-" if d.get("gap_percent") is None else f"{d['gap_percent']:.2f} %"
         return table(["item", "value"], [
             ["chosen", f"{d['count']} of {d['candidates']} candidate {d['side']}"],
-            ["criterion", f"{d['criterion']} ({d['unit']}), SNR {d['snr_db']:g} dB"],
+            ["criterion", f"{d['criterion']} ({d['unit']}), reference SNR "
+                          f"{d.get('reference_snr_db', d.get('snr_db')):g} dB at 1 m from one speaker"],
             ["value", f"{d['value']:.6g}"], ["upper bound", bound], ["gap", gap],
             ["elements", ", ".join(d["chosen"])]], text_columns=(0, 1))
     return table(list(d["header"]), [list(r) for r in d["rows"]], text_columns=(0, 3, 4))

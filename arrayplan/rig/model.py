@@ -89,14 +89,24 @@ class PlanSettings:
     track : bool
         Order and phase-align channels from bin to bin (see
         :func:`arrayplan.channels.track_channels`).
-    chunk_size : int
-        Frequencies evaluated and decomposed at once (bounds memory).
+    chunk_size : int, optional
+        Frequencies evaluated and decomposed at once; default from
+        `memory_mb`.
+    workers : int, optional
+        Worker processes; default every core for a large plan.
+    max_channels : int or "auto", optional
+        Compute only the strongest channels (see :mod:`arrayplan.topk`).
+    memory_mb : float
+        Working-memory budget per worker that sets the default chunk size, MB.
     """
 
     threshold_db: float = 3.0
     snr_db: float = 40.0
     track: bool = False
-    chunk_size: int = 64
+    chunk_size: int | None = None
+    workers: int | None = None
+    max_channels: int | str | None = None
+    memory_mb: float = 64.0
 
 
 @dataclass(frozen=True)

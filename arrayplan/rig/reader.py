@@ -38,7 +38,7 @@ TABLE_KEYS = {
     "frequencies": {"list", "start", "stop", "count", "spacing"},
     "hardware": {"device", "sample_rate_hz", "reference", "calibration"},
     "hardware.reference": {"output_channel", "input_channel"},
-    "planning": {"threshold_db", "snr_db", "track", "chunk_size"},
+    "planning": {"threshold_db", "snr_db", "track", "chunk_size", "workers", "max_channels", "memory_mb"},
     "room": ROOM_KEYS,
 }
 
@@ -119,9 +119,14 @@ def _planning(table: Any, r: FieldReader) -> PlanSettings:
     if table is None:
         return PlanSettings()
     track = r.boolean(table, "track", "planning", default=False)
+    top = table.get("max_channels")
+    if top is not None and top != "auto":
+        top = r.integer(table, "max_channels", "planning", default=None)
     return PlanSettings(r.number(table, "threshold_db", "planning", default=3.0, positive=True),
                         r.number(table, "snr_db", "planning", default=40.0, positive=True), track,
-                        r.integer(table, "chunk_size", "planning", default=64))
+                        r.integer(table, "chunk_size", "planning", default=None),
+                        r.integer(table, "workers", "planning", default=None), top,
+                        r.number(table, "memory_mb", "planning", default=64.0, positive=True))
 
 
 def resolve_section(name: str, table: Any, r: FieldReader, base: Path) -> Any:

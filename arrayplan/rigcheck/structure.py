@@ -1,4 +1,8 @@
-"""Structural checks of a rig file: everything :func:`arrayplan.rig.load_rig` would refuse, all at once."""
+"""Structural checks of a rig file: everything :func:`arrayplan.rig.load_rig` would refuse, all at once.
+
+With a ``[room]`` table this includes every element outside the room or
+nearer than :data:`arrayplan.room.WALL_CLEARANCE_M` to a wall, each named.
+"""
 
 from __future__ import annotations
 
@@ -9,6 +13,7 @@ from typing import Any, Callable
 from ..errors import InputError
 from ..rig import (ENTRY_KEYS, TABLE_KEYS, EntryElements, Rig, entry_kind, join_entries, load_rig, read_rig_document,
                    resolve_entry, resolve_section, rig_field_reader)
+from ..room import Room, parse_room
 from ..tomlfields import FieldReader
 from .findings import SEVERITIES, Finding, SideGroup
 from .physics import physical_findings
@@ -194,9 +199,11 @@ def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
                                   if k in TABLE_KEYS["hardware.reference"]}
         _, errs = _collected(lambda: resolve_section(name, clean, r, base), r, name, src)
         findings += errs
-    # the entries that resolved: now the clashes between elements (names, channels, positions);
-    # a side whose entries all failed is already reported, so its emptiness is not repeated
-    rig = Rig(join_entries(resolved["speakers"]), join_entries(resolved["microphones"]), source=src)
+    room = _room(doc.get("room"), r, src, findings)
+    # the entries that resolved: now the clashes between elements (names, channels, positions) and,
+    # with a room, every element outside it or too near a wall; a side whose entries all failed is
+    # already reported, so its emptiness is not repeated
+    rig = Rig(join_entries(resolved["speakers"]), join_entries(resolved["microphones"]), source=src, room=room)
     for exc in rig.problems():
         if exc.problem.startswith("the rig has no ") and any(
                 f.field.startswith(str(exc.field)) for f in findings):
@@ -204,6 +211,20 @@ def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
         findings.append(_from_error(exc, src))
     findings += _names_repeated_in_failed_entries(resolved, unresolved)
     return findings, groups
+
+
+def _room(table: Any, r: FieldReader, src: str, findings: list[Finding]) -> Room | None:
+    """The ``[room]`` table resolved (None when absent or wrong), its problems appended to `findings`."""
+    if table is None:
+        return None
+    if not isinstance(table, dict):
+        findings.append(Finding("error", "room", "must be a table [room]", "write [room] above its keys"))
+        return None
+    findings += _unknown_keys(table, TABLE_KEYS["room"], "room", "of [room]")
+    clean = {k: v for k, v in table.items() if k in TABLE_KEYS["room"]}
+    room, errs = _collected(lambda: parse_room(clean, r), r, "room", src)
+    findings += errs
+    return room
 
 
 def check_rig_file(path: str | Path) -> list[Finding]:

@@ -4,9 +4,13 @@ For each layout (a plan, or a rig planned here): element counts, aperture
 shapes and sizes, and per frequency the strong, usable and effective channel
 counts (as in the plan), the paraxial estimate and, when an SNR is stated,
 the capacity sum_j log2(1 + c s_j^2) with c = rho (4 pi)^2 / n_spk: rho is
-the SNR a microphone has 1 m from one speaker at full drive in free field
-(|G| = 1 / (4 pi) there), with the drive power shared equally among the
-layout's speakers, so layouts of different sizes compare at equal total power.
+the *reference SNR*, the SNR a microphone has 1 m from one speaker at full
+drive in free field (|G| = 1 / (4 pi) there), with the drive power shared
+equally among the layout's speakers, so layouts of different sizes and
+coupling strengths compare at equal total power and noise.  The layout study
+(:mod:`arrayplan.studies.layout`) scores by the same reference; the plan's
+own SNR (of the strongest channel) would give every layout the same strongest
+channel and cannot compare them.
 
 Notes
 -----
@@ -24,6 +28,7 @@ from ..errors import InputError
 from ..frequency import FrequencyAxis
 from ..heuristics import aperture_shape
 from ..planning import Plan
+from ._common import reference_snr_scale
 
 __all__ = ["LayoutSummary", "Comparison", "compare_plans", "capacity_per_frequency"]
 
@@ -68,19 +73,20 @@ class Comparison:
     ----------
     axis : FrequencyAxis
     layouts : tuple of LayoutSummary
-    capacity_snr_db : float or None
+    reference_snr_db : float or None
+        The reference SNR of the capacity, dB (module docstring).
     """
 
     axis: FrequencyAxis
     layouts: tuple[LayoutSummary, ...]
-    capacity_snr_db: float | None
+    reference_snr_db: float | None
 
     def table(self) -> tuple[list[str], list[list]]:
         """Header and rows of the client table: one row per layout, band means and totals."""
         head = ["layout", "speakers", "microphones", "speaker aperture", "microphone aperture", "distance (m)",
                 "strong (mean)", "usable (mean)", "effective (mean)", "paraxial estimate (mean)"]
-        if self.capacity_snr_db is not None:
-            head.append(f"capacity at {self.capacity_snr_db:g} dB (bit/s/Hz, mean)")
+        if self.reference_snr_db is not None:
+            head.append(f"capacity at reference SNR {self.reference_snr_db:g} dB (bit/s/Hz, mean)")
         rows = []
         for s in self.layouts:
             row = [s.name, s.n_speakers, s.n_mics, s.speaker_aperture, s.mic_aperture, round(s.distance_m, 3),
@@ -93,9 +99,24 @@ class Comparison:
         return head, rows
 
 
-def capacity_per_frequency(singular_values: np.ndarray, n_speakers: int, snr_db: float) -> np.ndarray:
-    """sum_j log2(1 + rho (4 pi)^2 s_j^2 / n_spk) per frequency (module docstring), shape (n_freq,)."""
-    c = 10 ** (snr_db / 10) * (4 * np.pi) ** 2 / n_speakers
+def capacity_per_frequency(singular_values: np.ndarray, n_speakers: int, reference_snr_db: float) -> np.ndarray:
+    """Capacity at a reference SNR, bit/s/Hz per frequency.
+
+    Parameters
+    ----------
+    singular_values : ndarray, shape (n_freq, n_chan)
+        Of G, in 1/m (free field or room).
+    n_speakers : int
+        Speakers sharing the drive power equally.
+    reference_snr_db : float
+        rho, dB (module docstring).
+
+    Returns
+    -------
+    ndarray, shape (n_freq,)
+        sum_j log2(1 + rho (4 pi)^2 s_j^2 / n_spk).
+    """
+    c = reference_snr_scale(reference_snr_db, n_speakers)
     return np.sum(np.log2(1.0 + c * np.asarray(singular_values) ** 2), axis=1)
 
 
@@ -110,15 +131,15 @@ def _aperture(positions: np.ndarray) -> str:
     return "point"
 
 
-def compare_plans(named: list[tuple[str, str, Plan]], capacity_snr_db: float | None = None) -> Comparison:
+def compare_plans(named: list[tuple[str, str, Plan]], reference_snr_db: float | None = None) -> Comparison:
     """Compare plans made on the same frequencies.
 
     Parameters
     ----------
     named : list of (name, source, Plan)
         At least two.
-    capacity_snr_db : float, optional
-        rho in dB for the capacity (module docstring).
+    reference_snr_db : float, optional
+        rho in dB for the capacity (module docstring); no capacity without it.
 
     Raises
     ------
@@ -134,11 +155,11 @@ def compare_plans(named: list[tuple[str, str, Plan]], capacity_snr_db: float | N
             raise InputError(f"planned on other frequencies than {named[0][0]!r}", source=source,
                              field="frequencies", fix="plan both on the same frequencies")
         rig, ch = plan.rig, plan.channels
-        cap = (capacity_per_frequency(ch.singular_values, len(rig.speakers), capacity_snr_db)
-               if capacity_snr_db is not None else None)
+        cap = (capacity_per_frequency(ch.singular_values, len(rig.speakers), reference_snr_db)
+               if reference_snr_db is not None else None)
         dist = float(np.linalg.norm(rig.speakers.positions.mean(axis=0) - rig.mics.positions.mean(axis=0)))
         out.append(LayoutSummary(name, source, plan.kernel_name, len(rig.speakers), len(rig.mics),
                                  _aperture(rig.speakers.positions), _aperture(rig.mics.positions), dist,
                                  np.asarray(plan.strong_channels), np.asarray(plan.usable_channels),
                                  ch.effective_channels(), np.asarray(plan.estimate.counts, dtype=float), cap))
-    return Comparison(axis, tuple(out), capacity_snr_db)
+    return Comparison(axis, tuple(out), reference_snr_db)

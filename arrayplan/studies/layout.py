@@ -8,11 +8,14 @@ candidates gives the matrix A_S(f) = [a_i(f)], i in S, and is scored by a
 criterion summed over the planned frequencies:
 
 * ``capacity``: sum_f log2 det(I + c A_S^H A_S) in bit/s/Hz summed over
-  frequencies, with c = rho / (n_tx g2): rho the stated SNR (linear), n_tx
-  the number of transmitting speakers (N when choosing speakers, the rig's
-  speakers when choosing microphones: power shared equally) and g2 the mean
-  |a_i(f)|^2 / n_other over all candidates and frequencies, so rho is the SNR
-  one microphone sees from one candidate of average coupling at full drive;
+  frequencies, with c = rho (4 pi)^2 / n_tx: n_tx the number of transmitting
+  speakers (N when choosing speakers, the rig's speakers when choosing
+  microphones), which share the drive power equally, and rho the *reference
+  SNR*: the SNR at a microphone 1 m from one speaker in free field with all
+  the drive power on that speaker (|G| = 1 / (4 pi) there).  The reference
+  does not depend on the layout, so layouts of different coupling strength
+  are scored at the same power and noise; ``arrayplan compare`` uses the same
+  reference, so its capacity of the chosen rig is this value per frequency;
 * ``strong``: the number of channels within ``threshold_db`` of the
   strongest, summed over frequencies;
 * ``usable``: the number of channels whose own SNR c s_j^2 reaches 1 (0 dB),
@@ -39,7 +42,7 @@ frequency, summed.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Callable
 
 import numpy as np
@@ -48,7 +51,9 @@ import scipy.linalg
 from ..errors import InputError
 from ..frequency import FrequencyAxis
 from ..kernels.freefield import FreeFieldKernel
+from ..kernels.room import RoomKernel
 from ..rig import COINCIDENT_M, ElementSet, Rig
+from ._common import DEFAULT_REFERENCE_SNR_DB, reference_snr_scale
 
 __all__ = ["CRITERIA", "LayoutProblem", "LayoutChoice", "layout_problem", "criterion_values", "greedy_select",
            "swap_refine", "relaxation_bound", "choose_layout", "chosen_rig"]
@@ -74,8 +79,9 @@ class LayoutProblem:
         N, the number to choose.
     scale : float
         c of the module docstring (1 / unit of G squared).
-    snr_db : float
-        The stated SNR rho in dB.
+    reference_snr_db : float
+        The reference SNR rho in dB (module docstring: 1 m, one speaker,
+        full drive, free field).
     threshold_db : float
         Strong-channel threshold, dB.
     """
@@ -86,7 +92,7 @@ class LayoutProblem:
     axis: FrequencyAxis
     count: int
     scale: float
-    snr_db: float
+    reference_snr_db: float
     threshold_db: float
 
 
@@ -130,7 +136,7 @@ class LayoutChoice:
 
 
 def layout_problem(rig: Rig, side: str, count: int, axis: FrequencyAxis, *, candidates: ElementSet | None = None,
-                   snr_db: float | None = None, threshold_db: float | None = None,
+                   reference_snr_db: float = DEFAULT_REFERENCE_SNR_DB, threshold_db: float | None = None,
                    kernel_for: Callable[[ElementSet, ElementSet], Any] | None = None,
                    source: str = "candidates") -> LayoutProblem:
     """Set up the choice of `count` elements of `side` from `candidates`.
@@ -146,11 +152,16 @@ def layout_problem(rig: Rig, side: str, count: int, axis: FrequencyAxis, *, cand
         N, 1 <= N <= number of candidates.
     axis : FrequencyAxis
     candidates : ElementSet, optional
-    snr_db, threshold_db : float, optional
-        Default: the rig's ``[planning]`` values.
+    reference_snr_db : float
+        rho in dB, the reference SNR of the module docstring (1 m, one
+        speaker, full drive, free field); not the plan's SNR of the strongest
+        channel.
+    threshold_db : float, optional
+        Strong-channel threshold, dB (default: the rig's ``[planning]`` value).
     kernel_for : callable, optional
         ``kernel_for(speakers, microphones)`` returns a kernel (``evaluate(hz)
-        -> (n, n_mic, n_spk)``); default free field in the rig's medium.
+        -> (n, n_mic, n_spk)``); default the rig's room when it has one, else
+        the free field, in the rig's medium.
     source : str
         Names the candidates in error messages.
     """
@@ -172,16 +183,25 @@ def layout_problem(rig: Rig, side: str, count: int, axis: FrequencyAxis, *, cand
     if dd[i, j] < COINCIDENT_M:
         raise InputError(f"candidates {cand.names[i]!r} and {cand.names[j]!r} are at the same position",
                          source=source, fix="list each position once")
+    if rig.room is not None:
+        outside = rig.room.element_problems(cand, "candidates", source)
+        if outside:
+            raise outside[0]
     spk, mic = (cand, fixed) if side == "speakers" else (fixed, cand)
-    kern = kernel_for(spk, mic) if kernel_for is not None else FreeFieldKernel.between(spk, mic, rig.medium, 0.0)
+    if kernel_for is not None:
+        kern = kernel_for(spk, mic)
+    elif rig.room is not None:
+        kern = RoomKernel.between(spk, mic, rig.medium, rig.room, 0.0)
+    else:
+        kern = FreeFieldKernel.between(spk, mic, rig.medium, 0.0)
     g = kern.evaluate(axis.hz)                                            # (n_f, n_mic, n_spk)
     cols = g if side == "speakers" else np.conj(np.swapaxes(g, 1, 2))     # (n_f, n_other, n_cand)
-    snr = rig.planning.snr_db if snr_db is None else float(snr_db)
+    rho = float(reference_snr_db)
+    if not np.isfinite(rho):
+        raise InputError(f"must be a finite number of dB, got {reference_snr_db}", source="reference_snr_db")
     thr = rig.planning.threshold_db if threshold_db is None else float(threshold_db)
-    g2 = float(np.mean(np.abs(cols) ** 2))
     n_tx = int(count) if side == "speakers" else len(rig.speakers)
-    scale = 10 ** (snr / 10) / (n_tx * g2)
-    return LayoutProblem(side, cand, cols, axis, int(count), scale, snr, thr)
+    return LayoutProblem(side, cand, cols, axis, int(count), reference_snr_scale(rho, n_tx), rho, thr)
 
 
 def criterion_values(problem: LayoutProblem, sets: np.ndarray, criterion: str) -> np.ndarray:
@@ -459,15 +479,36 @@ def choose_layout(problem: LayoutProblem, criterion: str = "capacity",
 
 
 def chosen_rig(rig: Rig, choice: LayoutChoice) -> Rig:
-    """The rig with the chosen elements on the chosen side (hardware channels 1..N in choice order)."""
+    """The rig with the chosen elements on the chosen side (hardware channels 1..N in choice order).
+
+    The room and the zones come along.  When microphones are chosen, a zone
+    made of microphones keeps those of its members that were chosen (its
+    indices re-pointed at the new microphones) and is dropped when none was;
+    zones of generated control points stay as they are.
+    """
     cand = choice.problem.candidates
     idx = sorted(choice.chosen)
     pos = cand.positions[idx].copy()
     pos.setflags(write=False)
     es = ElementSet(tuple(cand.names[i] for i in idx), pos, tuple(cand.directivities[i] for i in idx),
                     tuple(range(1, len(idx) + 1)))
-    if choice.problem.side == "speakers":
-        return Rig(es, rig.mics, rig.medium, choice.problem.axis, rig.hardware, rig.planning,
-                   f"{rig.name}-chosen", rig.description, rig.source)
-    return Rig(rig.speakers, es, rig.medium, choice.problem.axis, rig.hardware, rig.planning,
-               f"{rig.name}-chosen", rig.description, rig.source)
+    spk, mic = (es, rig.mics) if choice.problem.side == "speakers" else (rig.speakers, es)
+    return Rig(spk, mic, rig.medium, choice.problem.axis, rig.hardware, rig.planning, f"{rig.name}-chosen",
+               rig.description, rig.source, rig.room, _zones_for(rig.zones, mic))
+
+
+def _zones_for(zones: tuple, mics: ElementSet) -> tuple:
+    """`zones` re-pointed at the microphones `mics` (see :func:`chosen_rig`)."""
+    index = {n: i for i, n in enumerate(mics.names)}
+    out = []
+    for z in zones:
+        if z.mic_indices is None:
+            out.append(z)
+            continue
+        kept = [n for n in z.point_names if n in index]
+        if kept:
+            pos = np.asarray(mics.positions)[[index[n] for n in kept]].copy()
+            pos.setflags(write=False)
+            out.append(replace(z, point_names=tuple(kept), positions=pos,
+                               mic_indices=tuple(index[n] for n in kept)))
+    return tuple(out)

@@ -176,7 +176,7 @@ def _figures(rig: Rig, study: ZoneStudy, stage: Path, map_hz: float, tolerance: 
     for ax, (key, res) in zip(np.atleast_1d(axes), study.results.items()):
         w = res.weights[res.chosen, f]
         p = channel_field(rig, w, float(study.axis.hz[f]), grid)
-        g_b = zone_coupling(rig, study.bright, study.axis.hz[f:f + 1])[0]       # free field, as the map
+        g_b = zone_coupling(rig, study.bright, study.axis.hz[f:f + 1])[0]       # room or free field, as the map
         ref = float(np.sqrt(np.mean(np.abs(g_b @ w) ** 2)))
         plot_zone_field(rig, grid, p, zones, f"{METHOD_LABELS[key]}\n{study.axis.hz[f]:.0f} Hz, contrast "
                         f"{res.contrast_db[res.chosen, f]:.1f} dB", ax=ax, reference=ref)

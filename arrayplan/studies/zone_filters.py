@@ -2,11 +2,14 @@
 
 The zone weights are evaluated on the FFT bins of the filter length; speaker
 s gets the spectrum ``H_s(f) = w_s(f) W(f) exp(-j 2 pi f D / fs)`` with W the
-band window of :func:`arrayplan.filters.design.band_window` and D = taps // 2
-the bulk delay; the taps are its inverse real FFT with a Tukey (alpha 0.2)
-time window.  The check convolves the taps with the free-field impulse
-responses from the speakers to every zone point (in the time domain) and
-measures the contrast the filters realise in each FFT bin of the band and
+band window of :func:`arrayplan.filters.band_window` and D = taps // 2
+the bulk delay; the taps are its inverse real FFT with the channel filters'
+Tukey time window (:data:`arrayplan.filters.design.TUKEY_ALPHA`).  The request
+(rate, band, taps, and taps enough for the delay spread from the speakers to
+the zone points) is checked by :func:`arrayplan.filters.validate_request`.
+The check convolves the taps with the simulated impulse responses (the
+rig's room when it has one, else the free field) from the speakers to every
+zone point (in the time domain) and measures the contrast the filters realise in each FFT bin of the band and
 over the whole band (or, when given, with measured responses instead).
 
 Notes
@@ -27,15 +30,16 @@ from scipy.signal.windows import tukey
 
 from ..directivity import OMNI
 from ..errors import InputError
-from ..filters.design import band_window
+from ..filters import band_window, validate_request
+from ..filters.design import TUKEY_ALPHA
 from ..frequency import FrequencyAxis
 from ..rig import ElementSet, Rig
-from ..simulate import free_field_impulse_responses
+from ..simulate import kernel_impulse_responses, required_samples
 from ..zones import Zone
+from .zones import points_model_kernel
 
-__all__ = ["ZoneFilters", "zone_filter_taps", "check_zone_filters"]
+__all__ = ["ZoneFilters", "zone_filter_taps", "check_zone_filters", "zone_points_rig"]
 
-_TUKEY_ALPHA = 0.2
 #: Bins of the band listed in the check (evenly spread); the band's contrast uses every bin.
 MAX_CHECK_BINS = 64
 
@@ -66,43 +70,49 @@ class ZoneFilters:
     band_contrast_db: float
 
 
-def zone_filter_taps(weights_at: Callable[[FrequencyAxis], np.ndarray], n_spk: int, sample_rate_hz: float,
+def zone_filter_taps(weights_at: Callable[[FrequencyAxis], np.ndarray], points: Rig, sample_rate_hz: float,
                      taps: int, band_hz: tuple[float, float]) -> np.ndarray:
-    """FIR taps (n_taps, n_spk) realising the weights ``weights_at(axis)`` -> (n_freq, n_spk) in the band.
+    """FIR taps realising the weights ``weights_at(axis)`` -> (n_freq, n_spk) in the band.
 
     Parameters
     ----------
     weights_at : callable
         Weights of the design at the given frequencies.
-    n_spk : int
+    points : Rig
+        The speakers and the zone points (:func:`zone_points_rig`): the
+        request must hold their delay spread.
     sample_rate_hz : float
+        Hz.
     taps : int
         Filter length (>= 16); the bulk delay is taps // 2 samples.
     band_hz : (low, high)
         Hz, 0 < low < high < fs / 2.
+
+    Returns
+    -------
+    ndarray, shape (n_taps, n_spk)
+        Dimensionless taps.
+
+    Raises
+    ------
+    InputError
+        From :func:`arrayplan.filters.validate_request` when rate, band or
+        taps cannot work.
     """
+    validate_request(points, sample_rate_hz, taps, band_hz)
     fs, taps = float(sample_rate_hz), int(taps)
-    lo, hi = float(band_hz[0]), float(band_hz[1])
-    if not (np.isfinite(fs) and fs > 0):
-        raise InputError(f"sample rate must be positive, got {sample_rate_hz!r}", source="sample_rate_hz")
-    if not (0 < lo < hi < fs / 2):
-        raise InputError(f"band must satisfy 0 < low < high < fs/2 = {fs / 2:g} Hz, got {lo:g}, {hi:g} Hz",
-                         source="band_hz")
-    if taps < 16:
-        raise InputError(f"filters need at least 16 taps, got {taps}", source="taps")
     hz = np.fft.rfftfreq(taps, 1.0 / fs)
-    window = band_window(hz, (lo, hi), fs)
+    window = band_window(hz, (float(band_hz[0]), float(band_hz[1])), fs)
     idx = np.flatnonzero(window > 0)
-    if idx.size < 2:
-        raise InputError(f"{taps} taps give fewer than 2 FFT bins in the band", source="taps",
-                         fix="use more taps or a wider band")
+    n_spk = len(points.speakers)
     w = weights_at(FrequencyAxis(hz[idx]))
     spec = np.zeros((hz.size, n_spk), dtype=complex)
     spec[idx] = w * (window[idx] * np.exp(-2j * np.pi * hz[idx] * (taps // 2) / fs))[:, None]
-    return np.fft.irfft(spec, n=taps, axis=0) * tukey(taps, _TUKEY_ALPHA)[:, None]
+    return np.fft.irfft(spec, n=taps, axis=0) * tukey(taps, TUKEY_ALPHA)[:, None]
 
 
-def _points_rig(rig: Rig, zones: list[Zone]) -> Rig:
+def zone_points_rig(rig: Rig, zones: list[Zone]) -> Rig:
+    """The rig's speakers with the points of `zones` (in zone order) as its microphones."""
     pos = np.vstack([z.positions for z in zones])
     names = tuple(f"{z.name}:{n}" for z in zones for n in z.point_names)
     es = ElementSet(names, pos, (OMNI,) * len(pos), tuple(range(1, len(pos) + 1)))
@@ -126,8 +136,8 @@ def check_zone_filters(rig: Rig, bright: list[Zone], dark: list[Zone], taps: np.
         frequencies, shape (n_freq,).
     impulse_responses : ndarray, shape (n_samples, n_points, n_spk), optional
         Responses to the bright then the dark points, from zero lag, at
-        `sample_rate_hz` (for example measured ones); default the free-field
-        responses simulated here.
+        `sample_rate_hz` (for example measured ones); default the responses
+        of the rig's room (or free field) simulated here.
 
     Returns
     -------
@@ -141,10 +151,10 @@ def check_zone_filters(rig: Rig, bright: list[Zone], dark: list[Zone], taps: np.
             raise InputError(f"responses of shape {ir.shape} do not match the zones' points and the speakers",
                              source="impulse_responses")
     else:
-        pts = _points_rig(rig, list(bright) + list(dark))
-        r = np.linalg.norm(pts.mics.positions[:, None] - rig.speakers.positions[None], axis=-1)
-        n_ir = int(max(1024, 2 ** int(np.ceil(np.log2(r.max() / rig.medium.speed_of_sound * fs + 256)))))
-        ir = free_field_impulse_responses(pts, fs, n_ir)                  # (n_ir, n_points, n_spk)
+        pts = zone_points_rig(rig, list(bright) + list(dark))
+        kern = points_model_kernel(rig, pts.mics)
+        n_ir = int(max(1024, 2 ** int(np.ceil(np.log2(required_samples(kern, fs) + 192)))))
+        ir = kernel_impulse_responses(kern, fs, n_ir)                     # (n_ir, n_points, n_spk)
     y = fftconvolve(ir, taps[:, None, :], axes=0).sum(axis=2)             # (n_out, n_points)
     n_fft = 2 ** int(np.ceil(np.log2(y.shape[0])))
     spec = np.fft.rfft(y, n=n_fft, axis=0)

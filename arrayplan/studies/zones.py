@@ -47,6 +47,7 @@ convention exp(-jkr); weights are complex source strengths per unit input.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 from typing import Any, Callable, Sequence
 
 import numpy as np
@@ -54,14 +55,16 @@ import scipy.linalg
 
 from ..errors import InputError
 from ..frequency import FrequencyAxis
+from ..kernels import rig_kernel
 from ..kernels.freefield import FreeFieldKernel
+from ..kernels.room import RoomKernel
 from ..rig import ElementSet, Rig
 from ..directivity import OMNI
 from ..zones import Zone, zones_overlap
 
 __all__ = ["ZoneTarget", "MethodResult", "ZoneStudy", "zone_coupling", "contrast_weights", "matching_weights",
            "target_pressure", "contrast_db", "effort_db", "matching_error_db", "reference_speaker",
-           "align_to_reference", "study_zones", "perturbed_contrast", "AUTO_REGULARISATION"]
+           "align_to_reference", "study_zones", "perturbed_contrast", "points_model_kernel", "AUTO_REGULARISATION"]
 
 #: The relative regularisation values swept when none are given.
 AUTO_REGULARISATION = (1e-4, 1e-3, 1e-2, 1e-1, 1.0)
@@ -179,11 +182,12 @@ def zone_coupling(rig: Rig, zones: Sequence[Zone], hz: np.ndarray, kernel: Any =
         Frequencies in Hz.
     kernel : object with ``evaluate(hz) -> (n_freq, n_mic, n_spk)``, optional
         The rig's kernel (free field, room or measured) for zones made of
-        microphones; default the free field of `rig`.
+        microphones; default the rig's model kernel (its room when it has a
+        ``[room]``, else the free field).
     points_kernel : callable, optional
         ``points_kernel(receivers)`` returns a kernel from the rig's speakers
-        to generated control points; default
-        ``FreeFieldKernel.between(rig.speakers, receivers, rig.medium)``.
+        to generated control points; default the rig's room or free field
+        between the speakers and those points.
 
     Returns
     -------
@@ -196,14 +200,19 @@ def zone_coupling(rig: Rig, zones: Sequence[Zone], hz: np.ndarray, kernel: Any =
     for z in zones:
         if z.mic_indices is not None:
             if g_rig is None:
-                g_rig = (kernel if kernel is not None else FreeFieldKernel(rig)).evaluate(hz)
+                g_rig = (kernel if kernel is not None else rig_kernel(rig)).evaluate(hz)
             parts.append(g_rig[:, list(z.mic_indices), :])
         else:
             es = ElementSet(z.point_names, z.positions, (OMNI,) * len(z), tuple(range(1, len(z) + 1)))
-            k = (points_kernel(es) if points_kernel is not None
-                 else FreeFieldKernel.between(rig.speakers, es, rig.medium))
-            parts.append(k.evaluate(hz))
+            parts.append((points_kernel or partial(points_model_kernel, rig))(es).evaluate(hz))
     return np.concatenate(parts, axis=1)
+
+
+def points_model_kernel(rig: Rig, receivers: ElementSet) -> Any:
+    """The rig's model kernel (room when it has one, else free field) from its speakers to `receivers`."""
+    if rig.room is not None:
+        return RoomKernel.between(rig.speakers, receivers, rig.medium, rig.room)
+    return FreeFieldKernel.between(rig.speakers, receivers, rig.medium)
 
 
 def _correlation(g: np.ndarray) -> np.ndarray:
@@ -430,7 +439,7 @@ def study_zones(rig: Rig, bright: Sequence[Zone], dark: Sequence[Zone], axis: Fr
         results[method] = MethodResult(method, betas, np.array(cs), effort, np.array(ers), np.array(ws),
                                        _pick(effort, max_effort_db))
     # the plan's channels: SVD of the rig's own coupling; the channel with the highest contrast
-    g_rig = (kernel if kernel is not None else FreeFieldKernel(rig)).evaluate(hz)
+    g_rig = (kernel if kernel is not None else rig_kernel(rig)).evaluate(hz)
     _, sv, vh = np.linalg.svd(g_rig, full_matrices=False)
     v = np.conj(np.swapaxes(vh, -1, -2))                              # (n_f, n_spk, n_chan)
     per_chan = np.stack([contrast_db(v[:, :, j], g_b, g_d) for j in range(v.shape[2])], axis=1)
@@ -441,13 +450,16 @@ def study_zones(rig: Rig, bright: Sequence[Zone], dark: Sequence[Zone], axis: Fr
     c, e, er = metrics(w_ch)
     results["channel"] = MethodResult("channel", np.array([np.nan]), c[None], e[None], er[None], w_ch[None], 0,
                                       best)
-    name = "free field" if kernel is None else getattr(kernel, "name", type(kernel).__name__)
+    if kernel is None:
+        name = "room" if rig.room is not None else "free field"
+    else:
+        name = getattr(kernel, "name", type(kernel).__name__)
     return ZoneStudy(axis, tuple(bright), tuple(dark), target, results, ref, float(max_effort_db), name)
 
 
 def perturbed_contrast(rig: Rig, bright: Sequence[Zone], dark: Sequence[Zone], weights: np.ndarray,
                        axis: FrequencyAxis, *, sigma_m: float, trials: int = 20, seed: int = 0) -> np.ndarray:
-    """Contrast of fixed weights on rigs with Gaussian position errors (free field).
+    """Contrast of fixed weights on rigs with Gaussian position errors (the rig's room or free field).
 
     Every speaker and zone point moves by an independent N(0, sigma_m^2)
     error on each coordinate; the weights stay as designed.
@@ -483,7 +495,8 @@ def perturbed_contrast(rig: Rig, bright: Sequence[Zone], dark: Sequence[Zone], w
 
     for t in range(trials):
         s_pos = spk.positions + rng.normal(0.0, sigma_m, spk.positions.shape)
-        rig_t = Rig(ElementSet(spk.names, s_pos, spk.directivities, spk.channels), rig.mics, rig.medium)
+        rig_t = Rig(ElementSet(spk.names, s_pos, spk.directivities, spk.channels), rig.mics, rig.medium,
+                    room=rig.room)
         b = [moved(z) for z in bright]
         d = [moved(z) for z in dark]
         out[t] = contrast_db(weights, zone_coupling(rig_t, b, axis.hz), zone_coupling(rig_t, d, axis.hz))
