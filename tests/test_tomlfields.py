@@ -72,3 +72,14 @@ def test_check_rig_lists_problems_of_one_entry_and_of_several_tables_at_once(tmp
     for expected in ("medium.temperature_c", "medium.air_absorption", "planning.track", "planning.snr_db",
                      "speakers[0].direction", "speakers[0].name"):
         assert expected in fields, fields
+
+
+def test_check_rig_goes_on_past_a_bad_room_setting_to_the_elements_outside_the_room(tmp_path):
+    path = tmp_path / "room.toml"
+    path.write_text(
+        "[room]\nsize_m = [5.0, 4.0, 3.0]\nabsorption = 0.2\nreflection_order = -1\n"
+        "[[speakers]]\nname = 'S1'\nposition = [1.0, 1.0, 1.0]\n"
+        "[[microphones]]\nname = 'far-mic'\nposition = [40.0, 1.0, 1.0]\n", encoding="utf-8")
+    errors = [f for f in check_rig_file(path) if f.severity == "error"]
+    assert any(f.field == "room.reflection_order" for f in errors), errors
+    assert any("far-mic" in f.explanation or "far-mic" in f.field for f in errors), errors
