@@ -28,7 +28,7 @@ from .errors import InputError
 from .fileio import write_text_atomic
 from .medium import speed_of_sound_air
 
-__all__ = ["Layout", "LAYOUTS", "starter_rig_text", "write_starter_rig", "parse_counts"]
+__all__ = ["Layout", "LAYOUTS", "starter_rig_text", "write_starter_rig", "parse_counts", "toml_value"]
 
 #: Column at which the comment after a value or table header starts (as far as the value leaves room).
 _COMMENT_COLUMN = 34
@@ -70,13 +70,35 @@ def _tidy(v: Any) -> Any:
 
 
 def _item(value: Any) -> Any:
-    """A tomlkit item of `value`; dicts become inline tables ``{ k = v }``."""
+    """A tomlkit item of `value`; dicts (also inside lists and dicts) become inline tables ``{k = v}``."""
     value = _tidy(value)
     if isinstance(value, dict):
         table = tomlkit.inline_table()
-        table.update(value)
+        for k, x in value.items():
+            table.append(k, _item(x))
         return table
+    if isinstance(value, list) and any(isinstance(x, (dict, list)) for x in value):
+        array = tomlkit.array()
+        for x in value:
+            array.append(_item(x))
+        return array
     return tomlkit.item(value)
+
+
+def toml_value(value: Any) -> str:
+    """`value` (number, bool, string, list or dict) as TOML text, floats to 10 significant digits.
+
+    Parameters
+    ----------
+    value : Any
+        What to write; dicts become inline tables.
+
+    Returns
+    -------
+    str
+        The value's TOML text (``0.04``, ``[1.0, 2.0]``, ``{type = "omni"}``).
+    """
+    return _item(value).as_string()
 
 
 def _commented(item: Any, text: str, comment: str) -> Any:
