@@ -57,6 +57,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from .audiofiles import read_audio
 from .errors import InputError
 from .fileio import check_folder, provenance as _provenance, staged_output_dir, write_json_atomic
 
@@ -239,8 +240,6 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
     InputError
         With the file and field, for any malformed or inconsistent content.
     """
-    import soundfile as sf
-
     path = Path(folder)
     if path.suffix.lower() == ".sofa":
         from .irset_sofa import read_irset_sofa
@@ -294,10 +293,7 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
         if not wav.exists():
             raise InputError("file listed in the manifest is missing", source=str(wav),
                              field=f"speakers[{i}].file")
-        try:
-            data, wav_rate = sf.read(wav, dtype="float64", always_2d=True)
-        except Exception as exc:  # soundfile raises several types
-            raise InputError(f"cannot read WAV ({exc})", source=str(wav)) from None
+        data, wav_rate = read_audio(wav, what="WAV")
         if wav_rate != round(rate):
             raise InputError(f"sample rate {wav_rate} Hz differs from the manifest's {rate:g} Hz",
                              source=str(wav), fix="re-export all files at one rate")

@@ -43,7 +43,8 @@ from scipy.interpolate import PchipInterpolator
 from .errors import InputError
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .rig import ElementSet, FieldReader
+    from .rig import ElementSet
+    from .tomlfields import FieldReader
 
 __all__ = ["Room", "SURFACES", "BAND_CENTRES_HZ", "ROOM_KEYS", "IMAGE_LIMIT", "DEFAULT_ORDER", "WALL_CLEARANCE_M",
            "image_count", "parse_room", "sabine_t60_s", "eyring_t60_s", "schroeder_frequency_hz"]
@@ -247,13 +248,11 @@ def parse_room(table: Any, r: "FieldReader") -> Room | None:
         absorption = np.tile(_absorption_value(spec, "room.absorption", r), (6, 1))
     order = table.get("reflection_order", DEFAULT_ORDER)
     if isinstance(order, bool) or not isinstance(order, int) or order < 0:
-        raise r.fail("room.reflection_order", f"expected a whole number >= 0, got {order!r}")
-    allow = table.get("allow_large_order", False)
-    if not isinstance(allow, bool):
-        raise r.fail("room.allow_large_order", f"expected true or false, got {allow!r}")
+        order = r.reject("room.reflection_order", f"expected a whole number >= 0, got {order!r}", DEFAULT_ORDER)
+    allow = r.boolean(table, "allow_large_order", "room", default=False)
     if image_count(order) > IMAGE_LIMIT and not allow:
-        raise r.fail("room.reflection_order", f"order {order} makes {image_count(order):,} image sources, more "
-                                              f"than the limit of {IMAGE_LIMIT:,}",
-                     fix="lower the order, set max_delay_ms, or add allow_large_order = true")
+        order = r.reject("room.reflection_order", f"order {order} makes {image_count(order):,} image sources, "
+                                                  f"more than the limit of {IMAGE_LIMIT:,}", DEFAULT_ORDER,
+                         fix="lower the order, set max_delay_ms, or add allow_large_order = true")
     max_delay = r.number(table, "max_delay_ms", "room", default=None, positive=True)
     return Room(size, absorption, order, max_delay)

@@ -32,6 +32,7 @@ from typing import Mapping, Sequence, TextIO
 import numpy as np
 
 from .errors import InputError
+from .units import P_REF_PA, pressure_from_spl, spl_from_pressure
 
 __all__ = [
     "CAUTION_TEXT",
@@ -99,9 +100,6 @@ def print_caution(stream: TextIO | None = None) -> None:
     stream.flush()
 
 
-#: Reference sound pressure in air, Pa (20 µPa; 1 Pa = 93.98 dB SPL).
-P_REF_PA = 20e-6
-
 NIOSH_CRITERION_DBA = 85.0   # NIOSH Publication 98-126 (1998): 85 dBA for 8 h
 NIOSH_EXCHANGE_RATE_DB = 3.0
 OSHA_CRITERION_DBA = 90.0    # OSHA 29 CFR 1910.95, Table G-16: 90 dBA for 8 h
@@ -123,17 +121,6 @@ DEFAULT_LISTENER_DISTANCE_M = 1.0
 #: Window of the running RMS level, s (a sound level meter's "fast" time
 #: weighting is 125 ms, IEC 61672-1; value from memory).
 LEVEL_WINDOW_S = 0.125
-
-
-def spl_from_pressure(p_pa: float | np.ndarray) -> float | np.ndarray:
-    """Sound pressure level in dB re 20 µPa of an RMS (or peak) pressure in Pa."""
-    with np.errstate(divide="ignore"):
-        return 20.0 * np.log10(np.asarray(p_pa, dtype=float) / P_REF_PA)
-
-
-def pressure_from_spl(spl_db: float | np.ndarray) -> float | np.ndarray:
-    """Pressure in Pa of a sound pressure level in dB re 20 µPa."""
-    return P_REF_PA * 10.0 ** (np.asarray(spl_db, dtype=float) / 20.0)
 
 
 def _permitted(dba: float, criterion: float, exchange: float) -> float:

@@ -14,57 +14,135 @@ significant digits), and the band spans three octaves below it.
 
 from __future__ import annotations
 
-import json
 import math
 import os
-import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable
 
 import numpy as np
+import tomlkit
 
 from ._version import __version__
 from .errors import InputError
 from .fileio import write_text_atomic
 from .medium import speed_of_sound_air
 
-__all__ = ["Layout", "LAYOUTS", "starter_rig_text", "write_starter_rig", "parse_counts"]
+__all__ = ["Layout", "LAYOUTS", "starter_rig_text", "write_starter_rig", "parse_counts", "toml_value"]
 
+#: Column at which the comment after a value or table header starts (as far as the value leaves room).
 _COMMENT_COLUMN = 34
 
 
-# ------------------------------------------------------------ TOML writing
+# ------------------------------------------------------------ TOML writing (through tomlkit)
 
-def _num(x: float) -> str:
-    """A float as TOML (always with a decimal point)."""
-    text = f"{round(float(x), 9):.10g}"
-    return text if any(ch in text for ch in ".en") else text + ".0"
+@dataclass(frozen=True)
+class _Pair:
+    """``key = value  # comment`` in a starter file."""
+
+    key: str
+    value: Any
+    comment: str
 
 
-def _value(v: Any) -> str:
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, int):
-        return str(v)
+@dataclass(frozen=True)
+class _Head:
+    """A table header ``[name]`` (or ``[[name]]``) with its comment."""
+
+    name: str
+    comment: str
+    array: bool = False
+
+
+#: One part of a starter file: a pair, a table header, a comment line ("# ...") or a blank line ("").
+Part = Any
+
+
+def _tidy(v: Any) -> Any:
+    """`v` with floats rounded to 10 significant digits (and 1e-9), so the file shows 0.04, not 0.04000000001."""
     if isinstance(v, float):
-        return _num(v)
-    if isinstance(v, str):
-        return json.dumps(v, ensure_ascii=False)
+        return float(f"{round(v, 9):.10g}")
     if isinstance(v, (list, tuple)):
-        return "[" + ", ".join(_value(x) for x in v) + "]"
+        return [_tidy(x) for x in v]
     if isinstance(v, dict):
-        return "{ " + ", ".join(f"{k} = {_value(x)}" for k, x in v.items()) + " }"
-    raise TypeError(f"cannot write {type(v).__name__} to TOML")
+        return {k: _tidy(x) for k, x in v.items()}
+    return v
 
 
-def _kv(key: str, value: Any, comment: str) -> str:
-    return f"{key} = {_value(value)}".ljust(_COMMENT_COLUMN - 1) + f" # {comment}"
+def _item(value: Any) -> Any:
+    """A tomlkit item of `value`; dicts (also inside lists and dicts) become inline tables ``{k = v}``."""
+    value = _tidy(value)
+    if isinstance(value, dict):
+        table = tomlkit.inline_table()
+        for k, x in value.items():
+            table.append(k, _item(x))
+        return table
+    if isinstance(value, list) and any(isinstance(x, (dict, list)) for x in value):
+        array = tomlkit.array()
+        for x in value:
+            array.append(_item(x))
+        return array
+    return tomlkit.item(value)
 
 
-def _table(name: str, comment: str, array: bool = False) -> str:
-    head = f"[[{name}]]" if array else f"[{name}]"
-    return head.ljust(_COMMENT_COLUMN - 1) + f" # {comment}"
+def toml_value(value: Any) -> str:
+    """`value` (number, bool, string, list or dict) as TOML text, floats to 10 significant digits.
+
+    Parameters
+    ----------
+    value : Any
+        What to write; dicts become inline tables.
+
+    Returns
+    -------
+    str
+        The value's TOML text (``0.04``, ``[1.0, 2.0]``, ``{type = "omni"}``).
+    """
+    return _item(value).as_string()
+
+
+def _commented(item: Any, text: str, comment: str) -> Any:
+    """`item` with `comment` after it, starting at :data:`_COMMENT_COLUMN` where `text` leaves room."""
+    item.comment(comment)
+    item.trivia.comment_ws = " " * max(1, _COMMENT_COLUMN - len(text))
+    return item
+
+
+def _kv(key: str, value: Any, comment: str) -> _Pair:
+    return _Pair(key, value, comment)
+
+
+def _table(name: str, comment: str, array: bool = False) -> _Head:
+    return _Head(name, comment, array)
+
+
+def _document(parts: list[Part]) -> tomlkit.TOMLDocument:
+    """The tomlkit document of a starter file's parts, in order."""
+    doc = tomlkit.document()
+    container: Any = doc
+    arrays: dict[str, Any] = {}
+    for i, part in enumerate(parts):
+        following = parts[i + 1] if i + 1 < len(parts) else None
+        if part == "" and isinstance(following, _Head) and following.name in arrays:
+            continue    # tomlkit puts a blank line between the tables of an array itself
+        if isinstance(part, _Head):
+            container = _commented(tomlkit.table(), f"[[{part.name}]]" if part.array else f"[{part.name}]",
+                                   part.comment)
+            if part.array:
+                if part.name not in arrays:
+                    arrays[part.name] = tomlkit.aot()
+                    doc.append(part.name, arrays[part.name])
+                arrays[part.name].append(container)
+            else:
+                doc.append(part.name, container)
+        elif isinstance(part, _Pair):
+            item = _item(part.value)
+            container.add(part.key, _commented(item, f"{part.key} = {item.as_string()}", part.comment))
+        elif part == "":
+            container.add(tomlkit.nl())
+        else:
+            container.add(tomlkit.comment(part.removeprefix("#").removeprefix(" ")))
+    return doc
 
 
 # ------------------------------------------------------------ options
@@ -90,7 +168,7 @@ class Layout:
     name: str
     summary: str
     defaults: dict[str, Any]
-    body: Callable[[dict[str, Any], float], tuple[list[str], list[float]]]
+    body: Callable[[dict[str, Any], float], tuple[list[Part], list[float]]]
 
 
 def parse_counts(value: Any, option: str) -> tuple[int, int]:
@@ -136,7 +214,7 @@ def _driver_radius(spacing: float, largest: float) -> float:
 
 # ------------------------------------------------------------ layouts
 
-def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
     n_s, n_m = _count(o["speakers"], "speakers"), _count(o["mics"], "mics")
     d_s = _positive(o["spacing"], "spacing", "metres")
     d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "mic_spacing", "metres")
@@ -166,7 +244,7 @@ def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
     ], [d_s, d_m]
 
 
-def _facing_grids(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+def _facing_grids(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
     (su, sv), (mu, mv) = parse_counts(o["speakers"], "speakers"), parse_counts(o["mics"], "mics")
     d_s = _positive(o["spacing"], "spacing", "metres")
     d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "mic_spacing", "metres")
@@ -196,7 +274,7 @@ def _facing_grids(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
     ], [d_s, d_m]
 
 
-def _ring_zone(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+def _ring_zone(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
     n_s = _count(o["speakers"], "speakers", minimum=3)
     mu, mv = parse_counts(o["mics"], "mics")
     radius = _positive(o["radius"], "radius", "metres")
@@ -230,7 +308,7 @@ def _ring_zone(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
     ], [chord, d_m]
 
 
-def _two_zones(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+def _two_zones(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
     n_s = _count(o["speakers"], "speakers")
     mu, mv = parse_counts(o["mics"], "mics")
     d_s = _positive(o["spacing"], "spacing", "metres")
@@ -269,12 +347,12 @@ def _two_zones(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
     return lines, [d_s, d_m]
 
 
-def _bench(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
+def _bench(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
     n_s, n_m = _count(o["speakers"], "speakers", minimum=1), _count(o["mics"], "mics", minimum=1)
     d = _positive(o["spacing"], "spacing", "metres")
     dist = _positive(o["distance"], "distance", "metres")
     a = _driver_radius(d, 0.015)
-    lines: list[str] = []
+    lines: list[Part] = []
     for label, n, y, prefix, what in (("speakers", n_s, 0.0, "D", "driver"), ("microphones", n_m, dist, "K",
                                                                                  "microphone")):
         for i in range(n):
@@ -431,7 +509,7 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
     ]
     while body and body[-1] == "":
         body = body[:-1]
-    text = "\n".join(head + body + tail) + "\n"
+    text = tomlkit.dumps(_document(head + body + tail))
     if o["room"] is None:
         return text
     size = parse_room_size(o["room"], option_flag("room"))
@@ -451,7 +529,7 @@ def parse_room_size(value: Any, source: str) -> tuple[float, float, float]:
     return size  # type: ignore[return-value]
 
 
-def _placed_in_room(head: list[str], body: list[str], tail: list[str], text: str,
+def _placed_in_room(head: list[Part], body: list[Part], tail: list[Part], text: str,
                     size: tuple[float, float, float], source: str) -> str:
     """The starter text with the layout centred on the room's floor plan and a [room] table added."""
     import tempfile
@@ -472,14 +550,11 @@ def _placed_in_room(head: list[str], body: list[str], tail: list[str], text: str
                          f"fit a {size[0]:g} x {size[1]:g} x {size[2]:g} m room with {ROOM_MARGIN_M:g} m to spare",
                          source=source, fix="give a larger room or a smaller layout")
 
-    def moved(line: str) -> str:
-        m = re.match(r"^(center|position) = \[([^\]]*)\](.*)$", line)
-        if not m:
-            return line
-        xyz = np.array([float(v) for v in m.group(2).split(",")]) + shift
-        key = f"{m.group(1)} = {_value([round(float(v), 6) for v in xyz])}"
-        rest = m.group(3).strip()
-        return key.ljust(_COMMENT_COLUMN - 1) + " " + rest if rest else key
+    def moved(part: Part) -> Part:
+        if not (isinstance(part, _Pair) and part.key in ("center", "position")):
+            return part
+        xyz = np.asarray(part.value, dtype=float) + shift
+        return _Pair(part.key, [round(float(v), 6) for v in xyz], part.comment)
 
     room_table = [
         "",
@@ -490,7 +565,7 @@ def _placed_in_room(head: list[str], body: list[str], tail: list[str], text: str
         "# The room model is specular image sources with angle-independent reflection: a guide to",
         "# what the room adds, not a measurement.  Measure the built rig ('arrayplan measure').",
     ]
-    return "\n".join(head + [moved(b) for b in body] + room_table + tail) + "\n"
+    return tomlkit.dumps(_document(head + [moved(b) for b in body] + room_table + tail))
 
 
 def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = False, **options: Any) -> Path:

@@ -90,7 +90,7 @@ def resolve_zones(entries: Any, mic_names: Sequence[str], mic_positions: np.ndar
     InputError
         Naming the file and the field (``zones[i].members`` ...).
     """
-    from .rig import _group  # the generator of element groups; imported here (rig.py imports this module)
+    from .rig.entries import group_elements  # imported here: the rig reader imports this module
 
     if not isinstance(entries, list):
         raise r.fail("zones", "must be an array of tables ([[zones]])")
@@ -125,7 +125,7 @@ def resolve_zones(entries: Any, mic_names: Sequence[str], mic_positions: np.ndar
         elif "shape" in entry:
             r.keys(entry, _GROUP_KEYS, where)
             group = {k: v for k, v in entry.items() if k != "role"}
-            names, pos, _ = _group(group, where, r, name, 0)
+            names, pos, _ = group_elements(group, where, r, name, 0)
             pos = np.asarray(pos, dtype=float)
             pos.setflags(write=False)
             out.append(Zone(name, role, tuple(names), pos, None))

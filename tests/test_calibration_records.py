@@ -114,7 +114,7 @@ class TestRecordFiles:
          r"disagrees with 12.5 mV/Pa"),
         (lambda t: t.replace("samples = 1234", "samples = 1.5"), r"latency\.samples: expected a whole number"),
         (lambda t: t + "\n[[outputs]]\nchannel = 1\nfull_scale_vrms = 1.0\n", r"output channel 1 appears twice"),
-        (lambda t: t.replace("[latency]", "[latency]\ncolour = 3"), r"latency\.: unknown key\(s\) colour"),
+        (lambda t: t.replace("[latency]", "[latency]\ncolour = 3"), r"latency: unknown key\(s\) colour"),
         (lambda t: t + "\n[[[", r"not valid TOML"),
     ])
     def test_malformed_records_name_the_field(self, tmp_path, edit, message):

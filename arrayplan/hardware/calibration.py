@@ -19,21 +19,26 @@ Conventions: a full-scale sine has peak 1.0, so a sample value x stands for
 
 from __future__ import annotations
 
-import datetime as _dt
-import json
 import math
 import os
 import sys
-from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any, Sequence
 
 import numpy as np
+import tomlkit
 
 from .._version import __version__
+from ..audiofiles import read_audio
 from ..errors import InputError
 from ..fileio import write_text_atomic
 from ..limits import MAX_CHANNEL_NUMBER
+from ..tomlfields import FieldReader
+from ..units import DBU_REFERENCE_VRMS, dbu_to_vrms, sensitivity_db_re_1v_per_pa
+from ..units import P_REF_PA as REFERENCE_PRESSURE_PA
+from ..units import pressure_from_spl as pressure_from_db_spl
+from .calibration_record import (FORMAT_NAME, FORMAT_VERSION, MAX_LATENCY_SAMPLES, RANGES, CalibrationRecord,
+                                 LatencyCalibration, MicCalibration, OutputCalibration, now_utc)
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -49,225 +54,7 @@ __all__ = [
     "calibration_factors", "now_utc",
 ]
 
-#: Reference sound pressure for dB SPL, Pa (20 µPa).
-REFERENCE_PRESSURE_PA = 20e-6
-#: 0 dBu in volts RMS: sqrt(0.6) (1 mW into 600 ohm).
-DBU_REFERENCE_VRMS = math.sqrt(0.6)
-FORMAT_NAME = "arrayplan-calibration"
-FORMAT_VERSION = 1
-
-#: Accepted range of each number in a record (low, high): what is written must be readable, so the
-#: reader and :func:`write_calibration` check the same ranges.
-RANGES: dict[str, tuple[float, float]] = {
-    "sensitivity_mv_per_pa": (1e-4, 1e5),            # mV/Pa
-    "sensitivity_db_re_1v_per_pa": (-200.0, 100.0),  # dB re 1 V/Pa
-    "input_full_scale_vrms": (1e-6, 1000.0),         # V RMS
-    "full_scale_vrms": (1e-6, 1000.0),               # V RMS at an interface output
-    "calibrator_level_db_spl": (40.0, 180.0),        # dB re 20 µPa
-    "calibrator_frequency_hz": (1.0, 100_000.0),     # Hz
-    "recorded_rms_dbfs": (-400.0, 1.0),              # dBFS
-    "amplifier_gain_db": (-100.0, 100.0),            # dB voltage gain
-    "sample_rate_hz": (1.0, 768_000.0),              # Hz
-}
-#: Largest latency accepted, samples (over three minutes at 48 kHz).
-MAX_LATENCY_SAMPLES = 10_000_000
-
-
-def pressure_from_db_spl(level_db: float) -> float:
-    """RMS pressure in Pa of a level in dB SPL re 20 µPa (94 dB -> 1.002 Pa)."""
-    return REFERENCE_PRESSURE_PA * 10.0 ** (level_db / 20.0)
-
-
-def dbu_to_vrms(level_dbu: float) -> float:
-    """Volts RMS of a level in dBu (+4 dBu -> 1.228 V)."""
-    return DBU_REFERENCE_VRMS * 10.0 ** (level_dbu / 20.0)
-
-
-def sensitivity_db_re_1v_per_pa(mv_per_pa: float) -> float:
-    """Microphone sensitivity in dB re 1 V/Pa: ``20 log10(mV/Pa / 1000)``."""
-    return 20.0 * math.log10(mv_per_pa / 1000.0)
-
-
-@dataclass(frozen=True)
-class MicCalibration:
-    """One microphone on one input.
-
-    Attributes
-    ----------
-    name : str
-        The microphone's name in the rig file.
-    input_channel : int
-        1-based input it was calibrated on.
-    sensitivity_mv_per_pa : float
-        Output voltage per pascal, mV/Pa.
-    input_full_scale_vrms : float
-        RMS voltage of a full-scale sine at that input, V.
-    calibrator_level_db_spl, calibrator_frequency_hz : float
-        The calibrator's level and frequency.
-    calibrator_class : str
-        IEC 60942 class of the calibrator ("1", "2", "LS" ...), or "".
-    recorded_rms_dbfs : float
-        RMS of the recorded tone, dBFS (20 log10 of the RMS sample value).
-    recording : str
-        File the value came from (for provenance).
-    measured_utc : str
-    """
-
-    name: str
-    input_channel: int
-    sensitivity_mv_per_pa: float
-    input_full_scale_vrms: float
-    calibrator_level_db_spl: float = 94.0
-    calibrator_frequency_hz: float = 1000.0
-    calibrator_class: str = ""
-    recorded_rms_dbfs: float | None = None
-    recording: str = ""
-    measured_utc: str = ""
-
-    @property
-    def pascal_per_full_scale(self) -> float:
-        """Pressure (Pa) that a sample value of 1.0 at this input stands for."""
-        return math.sqrt(2.0) * self.input_full_scale_vrms / (self.sensitivity_mv_per_pa / 1000.0)
-
-
-@dataclass(frozen=True)
-class OutputCalibration:
-    """One output channel (interface output, optionally an amplifier after it).
-
-    Attributes
-    ----------
-    channel : int
-        1-based output channel.
-    full_scale_vrms : float
-        RMS voltage of a full-scale sine at the interface output, V.
-    amplifier_gain_db : float
-        Voltage gain of the amplifier after the output, dB (0 for none).
-    method : str
-        How the value was found.
-    measured_utc : str
-    """
-
-    channel: int
-    full_scale_vrms: float
-    amplifier_gain_db: float = 0.0
-    method: str = ""
-    measured_utc: str = ""
-
-    @property
-    def volts_per_full_scale(self) -> float:
-        """Voltage at the speaker terminals that a sample value of 1.0 stands for."""
-        return math.sqrt(2.0) * self.full_scale_vrms * 10.0 ** (self.amplifier_gain_db / 20.0)
-
-
-@dataclass(frozen=True)
-class LatencyCalibration:
-    """Round-trip latency of the interface (output to input), in samples at a rate."""
-
-    samples: int
-    sample_rate_hz: float
-    output_channel: int | None = None
-    input_channel: int | None = None
-    device: str = ""
-    measured_utc: str = ""
-
-
-@dataclass(frozen=True)
-class CalibrationRecord:
-    """A whole calibration record (see the module docstring)."""
-
-    description: str = ""
-    microphones: tuple[MicCalibration, ...] = ()
-    outputs: tuple[OutputCalibration, ...] = ()
-    latency: LatencyCalibration | None = None
-    source: str = "<memory>"
-
-    def mic(self, name: str) -> MicCalibration | None:
-        return next((m for m in self.microphones if m.name == name), None)
-
-    def output(self, channel: int) -> OutputCalibration | None:
-        return next((o for o in self.outputs if o.channel == channel), None)
-
-    def with_mic(self, mic: MicCalibration) -> "CalibrationRecord":
-        """A copy with `mic` added or replacing the entry of the same name."""
-        mics = tuple(m for m in self.microphones if m.name != mic.name) + (mic,)
-        return replace(self, microphones=tuple(sorted(mics, key=lambda m: m.input_channel)))
-
-    def with_output(self, out: OutputCalibration) -> "CalibrationRecord":
-        """A copy with `out` added or replacing the entry of the same channel."""
-        outs = tuple(o for o in self.outputs if o.channel != out.channel) + (out,)
-        return replace(self, outputs=tuple(sorted(outs, key=lambda o: o.channel)))
-
-    def with_latency(self, latency: LatencyCalibration) -> "CalibrationRecord":
-        return replace(self, latency=latency)
-
-    def latency_samples_at(self, sample_rate_hz: float) -> int:
-        """The stored latency, refusing a record made at another rate."""
-        if self.latency is None:
-            raise InputError("the calibration record holds no latency", source=self.source, field="latency",
-                             fix="run 'arrayplan calibrate latency' or name a reference loop in the rig")
-        if abs(self.latency.sample_rate_hz - sample_rate_hz) > 1e-6:
-            raise InputError(f"latency was measured at {self.latency.sample_rate_hz:g} Hz, the measurement "
-                             f"runs at {sample_rate_hz:g} Hz", source=self.source, field="latency.sample_rate_hz",
-                             fix="measure the latency again at this rate")
-        return self.latency.samples
-
-
-def now_utc() -> str:
-    return _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
-
-
 # ------------------------------------------------------------------ TOML reading
-
-class _Table:
-    def __init__(self, table: dict, where: str, source: str) -> None:
-        self.t, self.where, self.source = table, where, source
-
-    def fail(self, key: str, problem: str, fix: str | None = None) -> InputError:
-        return InputError(problem, source=self.source, field=f"{self.where}{key}", fix=fix)
-
-    def number(self, key: str, default: Any = ..., positive: bool = False) -> float:
-        """A finite number, within :data:`RANGES` for `key` where it has a range."""
-        if key not in self.t:
-            if default is ...:
-                raise self.fail(key, "missing", fix=f"add {key} = <number>")
-            return default
-        v = self.t[key]
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            raise self.fail(key, f"expected a finite number, got {v!r}")
-        if positive and v <= 0:
-            raise self.fail(key, f"must be positive, got {v!r}")
-        low, high = RANGES.get(key, (-math.inf, math.inf))
-        if not low <= v <= high:
-            raise self.fail(key, f"must be between {low:g} and {high:g}, got {v!r}")
-        return float(v)
-
-    def integer(self, key: str, default: Any = ..., minimum: int = 1, maximum: int = MAX_CHANNEL_NUMBER) -> int:
-        """A whole number in ``[minimum, maximum]``."""
-        if key not in self.t:
-            if default is ...:
-                raise self.fail(key, "missing", fix=f"add {key} = <whole number>")
-            return default
-        v = self.t[key]
-        if isinstance(v, bool) or not isinstance(v, int) or not minimum <= v <= maximum:
-            raise self.fail(key, f"expected a whole number from {minimum} to {maximum}, got {v!r}")
-        return int(v)
-
-    def string(self, key: str, default: Any = ...) -> str:
-        if key not in self.t:
-            if default is ...:
-                raise self.fail(key, "missing")
-            return default
-        v = self.t[key]
-        if not isinstance(v, str):
-            raise self.fail(key, f"expected a string, got {v!r}")
-        return v
-
-    def only(self, allowed: set[str]) -> None:
-        unknown = sorted(set(self.t) - allowed)
-        if unknown:
-            raise self.fail("", f"unknown key(s) {', '.join(unknown)}",
-                            fix=f"allowed: {', '.join(sorted(allowed))}")
-
 
 _MIC_KEYS = {"name", "input_channel", "sensitivity_mv_per_pa", "sensitivity_db_re_1v_per_pa",
              "input_full_scale_vrms", "calibrator_level_db_spl", "calibrator_frequency_hz",
@@ -304,61 +91,70 @@ def parse_calibration(text: str, src: str = "<text>") -> CalibrationRecord:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML ({exc})", source=src) from None
-    top = _Table(doc, "", src)
-    top.only({"format", "format_version", "description", "microphones", "outputs", "latency"})
+    r = FieldReader(src, ranges=RANGES, integer_max=MAX_CHANNEL_NUMBER)
+    r.keys(doc, {"format", "format_version", "description", "microphones", "outputs", "latency"}, "")
     if doc.get("format") != FORMAT_NAME:
-        raise top.fail("format", f"expected format = \"{FORMAT_NAME}\", got {doc.get('format')!r}")
-    version = top.integer("format_version")
+        raise r.fail("format", f"expected format = \"{FORMAT_NAME}\", got {doc.get('format')!r}")
+    version = r.integer(doc, "format_version", "")
     if version > FORMAT_VERSION:
-        raise top.fail("format_version", f"version {version} is newer than this arrayplan reads "
-                                         f"({FORMAT_VERSION})", fix="upgrade arrayplan")
-    mics = []
+        raise r.fail("format_version", f"version {version} is newer than this arrayplan reads "
+                                       f"({FORMAT_VERSION})", fix="upgrade arrayplan")
+    mics: list[MicCalibration] = []
     for i, entry in enumerate(_array_of_tables(doc, "microphones", src)):
-        t = _Table(entry, f"microphones[{i}].", src)
-        t.only(_MIC_KEYS)
-        mic = MicCalibration(
-            name=t.string("name"), input_channel=t.integer("input_channel"),
-            sensitivity_mv_per_pa=t.number("sensitivity_mv_per_pa", positive=True),
-            input_full_scale_vrms=t.number("input_full_scale_vrms", positive=True),
-            calibrator_level_db_spl=t.number("calibrator_level_db_spl", 94.0, positive=True),
-            calibrator_frequency_hz=t.number("calibrator_frequency_hz", 1000.0, positive=True),
-            calibrator_class=t.string("calibrator_class", ""),
-            recorded_rms_dbfs=t.number("recorded_rms_dbfs", None),
-            recording=t.string("recording", ""), measured_utc=t.string("measured_utc", ""))
-        if "sensitivity_db_re_1v_per_pa" in entry:
-            stated = t.number("sensitivity_db_re_1v_per_pa")
-            implied = sensitivity_db_re_1v_per_pa(mic.sensitivity_mv_per_pa)
-            if abs(stated - implied) > 0.01:
-                raise t.fail("sensitivity_db_re_1v_per_pa",
-                             f"{stated:g} dB re 1 V/Pa disagrees with {mic.sensitivity_mv_per_pa:g} mV/Pa "
-                             f"({implied:.2f} dB)", fix="correct one of them, or delete the dB value")
+        mic = _mic(entry, f"microphones[{i}]", r)
         if any(m.name == mic.name for m in mics):
-            raise t.fail("name", f"microphone {mic.name!r} appears twice")
+            raise r.fail(f"microphones[{i}].name", f"microphone {mic.name!r} appears twice")
         mics.append(mic)
-    outs = []
+    outs: list[OutputCalibration] = []
     for i, entry in enumerate(_array_of_tables(doc, "outputs", src)):
-        t = _Table(entry, f"outputs[{i}].", src)
-        t.only(_OUT_KEYS)
-        out = OutputCalibration(channel=t.integer("channel"),
-                                full_scale_vrms=t.number("full_scale_vrms", positive=True),
-                                amplifier_gain_db=t.number("amplifier_gain_db", 0.0),
-                                method=t.string("method", ""), measured_utc=t.string("measured_utc", ""))
+        where = f"outputs[{i}]"
+        r.keys(entry, _OUT_KEYS, where)
+        out = OutputCalibration(channel=r.integer(entry, "channel", where),
+                                full_scale_vrms=r.number(entry, "full_scale_vrms", where, positive=True),
+                                amplifier_gain_db=r.number(entry, "amplifier_gain_db", where, 0.0),
+                                method=r.string(entry, "method", where, "", allow_empty=True),
+                                measured_utc=r.string(entry, "measured_utc", where, "", allow_empty=True))
         if any(o.channel == out.channel for o in outs):
-            raise t.fail("channel", f"output channel {out.channel} appears twice")
+            raise r.fail(f"{where}.channel", f"output channel {out.channel} appears twice")
         outs.append(out)
     latency = None
     if "latency" in doc:
-        if not isinstance(doc["latency"], dict):
-            raise top.fail("latency", "must be a table [latency]")
-        t = _Table(doc["latency"], "latency.", src)
-        t.only(_LAT_KEYS)
-        latency = LatencyCalibration(samples=t.integer("samples", minimum=0, maximum=MAX_LATENCY_SAMPLES),
-                                     sample_rate_hz=t.number("sample_rate_hz", positive=True),
-                                     output_channel=t.integer("output_channel", None),
-                                     input_channel=t.integer("input_channel", None),
-                                     device=t.string("device", ""), measured_utc=t.string("measured_utc", ""))
-    return CalibrationRecord(description=top.string("description", ""), microphones=tuple(mics),
-                             outputs=tuple(outs), latency=latency, source=src)
+        t = doc["latency"]
+        if not isinstance(t, dict):
+            raise r.fail("latency", "must be a table [latency]")
+        r.keys(t, _LAT_KEYS, "latency")
+        latency = LatencyCalibration(
+            samples=r.integer(t, "samples", "latency", minimum=0, maximum=MAX_LATENCY_SAMPLES),
+            sample_rate_hz=r.number(t, "sample_rate_hz", "latency", positive=True),
+            output_channel=r.integer(t, "output_channel", "latency", None),
+            input_channel=r.integer(t, "input_channel", "latency", None),
+            device=r.string(t, "device", "latency", "", allow_empty=True),
+            measured_utc=r.string(t, "measured_utc", "latency", "", allow_empty=True))
+    return CalibrationRecord(description=r.string(doc, "description", "", "", allow_empty=True),
+                             microphones=tuple(mics), outputs=tuple(outs), latency=latency, source=src)
+
+
+def _mic(entry: dict, where: str, r: FieldReader) -> MicCalibration:
+    """One ``[[microphones]]`` entry; a stated dB sensitivity must agree with the mV/Pa value."""
+    r.keys(entry, _MIC_KEYS, where)
+    mic = MicCalibration(
+        name=r.string(entry, "name", where, allow_empty=True), input_channel=r.integer(entry, "input_channel", where),
+        sensitivity_mv_per_pa=r.number(entry, "sensitivity_mv_per_pa", where, positive=True),
+        input_full_scale_vrms=r.number(entry, "input_full_scale_vrms", where, positive=True),
+        calibrator_level_db_spl=r.number(entry, "calibrator_level_db_spl", where, 94.0, positive=True),
+        calibrator_frequency_hz=r.number(entry, "calibrator_frequency_hz", where, 1000.0, positive=True),
+        calibrator_class=r.string(entry, "calibrator_class", where, "", allow_empty=True),
+        recorded_rms_dbfs=r.number(entry, "recorded_rms_dbfs", where, None),
+        recording=r.string(entry, "recording", where, "", allow_empty=True),
+        measured_utc=r.string(entry, "measured_utc", where, "", allow_empty=True))
+    if "sensitivity_db_re_1v_per_pa" in entry:
+        stated = r.number(entry, "sensitivity_db_re_1v_per_pa", where)
+        implied = sensitivity_db_re_1v_per_pa(mic.sensitivity_mv_per_pa)
+        if abs(stated - implied) > 0.01:
+            raise r.fail(f"{where}.sensitivity_db_re_1v_per_pa",
+                         f"{stated:g} dB re 1 V/Pa disagrees with {mic.sensitivity_mv_per_pa:g} mV/Pa "
+                         f"({implied:.2f} dB)", fix="correct one of them, or delete the dB value")
+    return mic
 
 
 def _array_of_tables(doc: dict, key: str, src: str) -> list[dict]:
@@ -370,49 +166,48 @@ def _array_of_tables(doc: dict, key: str, src: str) -> list[dict]:
 
 # ------------------------------------------------------------------ TOML writing
 
-def _toml_value(v: Any) -> str:
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, int):
-        return str(v)
-    if isinstance(v, float):
-        if not math.isfinite(v):
-            raise ValueError(f"cannot write {v!r} to TOML")
-        return repr(v)
-    if isinstance(v, str):
-        # JSON's string escapes are TOML's (\\ \" \n \t \uXXXX ...); TOML also wants DEL escaped
-        return json.dumps(v, ensure_ascii=False).replace("\x7f", "\\u007f")
-    raise TypeError(f"cannot write {type(v).__name__} to TOML")
+#: Column at which the comment after a value starts (as far as the value leaves room).
+_COMMENT_COLUMN = 45
 
 
-def _toml_pairs(pairs: Sequence[tuple[str, Any, str]]) -> list[str]:
-    lines = []
+def _add_pairs(table: Any, pairs: Sequence[tuple[str, Any, str]]) -> None:
+    """Add ``key = value  # comment`` lines to a tomlkit table, skipping None and empty strings."""
     for key, value, comment in pairs:
         if value is None or value == "":
             continue
-        try:
-            line = f"{key} = {_toml_value(value)}"
-        except ValueError:
-            raise InputError(f"cannot write {value!r}: not a finite number", field=key) from None
-        lines.append(f"{line:<44} # {comment}" if comment else line)
-    return lines
+        if isinstance(value, float) and not math.isfinite(value):
+            raise InputError(f"cannot write {value!r}: not a finite number", field=key)
+        item = tomlkit.item(value)
+        if comment:
+            item.comment(comment)
+            width = len(f"{key} = {item.as_string()}")
+            item.trivia.comment_ws = " " * max(1, _COMMENT_COLUMN - width)
+        table.add(key, item)
+
+
+def _array_of_tables_of(rows: Sequence[Sequence[tuple[str, Any, str]]]) -> Any:
+    out = tomlkit.aot()
+    for pairs in rows:
+        table = tomlkit.table()
+        _add_pairs(table, pairs)
+        out.append(table)
+    return out
 
 
 def format_calibration(rec: CalibrationRecord) -> str:
-    """The TOML text of `rec` (what :func:`write_calibration` writes)."""
-    lines = [
-        "# arrayplan calibration record (format: calibration/README.md).",
-        f"# Written by arrayplan {__version__} on {now_utc()}.",
-        "# A full-scale sine has peak 1.0; 0 dBu = 0.7746 V RMS; sensitivity in dB re 1 V/Pa",
-        "# = 20 log10(mV/Pa / 1000).  Calibrate with a calibrator of known class (IEC 60942)",
-        "# and follow its manual and local practice.",
-        "",
-    ]
-    lines += _toml_pairs([("format", FORMAT_NAME, ""), ("format_version", FORMAT_VERSION, ""),
-                          ("description", rec.description, "")])
-    for m in rec.microphones:
-        lines += ["", "[[microphones]]"]
-        lines += _toml_pairs([
+    """The TOML text of `rec` (what :func:`write_calibration` writes), commented, through tomlkit."""
+    doc = tomlkit.document()
+    for line in ("arrayplan calibration record (format: calibration/README.md).",
+                 f"Written by arrayplan {__version__} on {now_utc()}.",
+                 "A full-scale sine has peak 1.0; 0 dBu = 0.7746 V RMS; sensitivity in dB re 1 V/Pa",
+                 "= 20 log10(mV/Pa / 1000).  Calibrate with a calibrator of known class (IEC 60942)",
+                 "and follow its manual and local practice."):
+        doc.add(tomlkit.comment(line))
+    doc.add(tomlkit.nl())
+    _add_pairs(doc, [("format", FORMAT_NAME, ""), ("format_version", FORMAT_VERSION, ""),
+                     ("description", rec.description, "")])
+    if rec.microphones:
+        doc.append("microphones", _array_of_tables_of([[
             ("name", m.name, "as in the rig file"),
             ("input_channel", m.input_channel, "1-based input it was calibrated on"),
             ("sensitivity_mv_per_pa", _significant(m.sensitivity_mv_per_pa), "mV/Pa"),
@@ -425,23 +220,23 @@ def format_calibration(rec: CalibrationRecord) -> str:
             ("calibrator_class", m.calibrator_class, "IEC 60942 class"),
             ("recorded_rms_dbfs", None if m.recorded_rms_dbfs is None else round(m.recorded_rms_dbfs, 3),
              "RMS of the recorded tone"),
-            ("recording", m.recording, ""), ("measured_utc", m.measured_utc, "")])
-    for o in rec.outputs:
-        lines += ["", "[[outputs]]"]
-        lines += _toml_pairs([
+            ("recording", m.recording, ""), ("measured_utc", m.measured_utc, "")] for m in rec.microphones]))
+    if rec.outputs:
+        doc.append("outputs", _array_of_tables_of([[
             ("channel", o.channel, "1-based output channel"),
             ("full_scale_vrms", _significant(o.full_scale_vrms), "V RMS of a full-scale sine at the output"),
             ("amplifier_gain_db", o.amplifier_gain_db, "voltage gain after the output, dB"),
-            ("method", o.method, ""), ("measured_utc", o.measured_utc, "")])
+            ("method", o.method, ""), ("measured_utc", o.measured_utc, "")] for o in rec.outputs]))
     if rec.latency is not None:
         la = rec.latency
-        lines += ["", "[latency]"]
-        lines += _toml_pairs([
+        table = tomlkit.table()
+        _add_pairs(table, [
             ("samples", la.samples, "round trip, output to input"),
             ("sample_rate_hz", la.sample_rate_hz, "valid only at this rate"),
             ("output_channel", la.output_channel, "1-based"), ("input_channel", la.input_channel, "1-based"),
             ("device", la.device, ""), ("measured_utc", la.measured_utc, "")])
-    return "\n".join(lines) + "\n"
+        doc.append("latency", table)
+    return tomlkit.dumps(doc)
 
 
 def _in_range(key: str, value: float) -> bool:
@@ -484,15 +279,10 @@ def read_or_new(path: str | os.PathLike, description: str = "") -> CalibrationRe
 def read_wav_channel(path: str | os.PathLike, channel: int, *, field: str = "channel"
                      ) -> tuple[np.ndarray, float]:
     """One channel (1-based) of a WAV file as float64, and its rate."""
-    import soundfile as sf
-
     src = str(path)
     if not Path(src).is_file():
         raise InputError("recording not found", source=src, fix="check the path")
-    try:
-        data, rate = sf.read(src, dtype="float64", always_2d=True)
-    except Exception as exc:  # soundfile raises several kinds
-        raise InputError(f"cannot read as audio ({exc})", source=src) from None
+    data, rate = read_audio(src, what="as audio")
     if not 1 <= channel <= data.shape[1]:
         raise InputError(f"channel {channel} asked for, the file has {data.shape[1]}", source=src, field=field,
                          fix=f"give a channel from 1 to {data.shape[1]}")

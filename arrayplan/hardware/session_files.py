@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
 
+from ..audiofiles import read_audio
 from ..errors import InputError
 from ..fileio import (check_folder, clean_stale_staging, new_staging_folder, provenance, publish_folder,
                       write_checksums, write_json_atomic)
@@ -197,8 +198,6 @@ def _write_combined(out_dir: Path, takes: Sequence[TakeResult], wiring: RigWirin
     `zero_lag` is the session's pre-roll (the same for every take: resumed
     takes were measured with the same settings, which session.json checks).
     """
-    import soundfile as sf
-
     if len(takes) != len(wiring.speaker_names):
         return None
     blocks = []
@@ -209,11 +208,8 @@ def _write_combined(out_dir: Path, takes: Sequence[TakeResult], wiring: RigWirin
             raise InputError(exc.problem, source=exc.source,
                              fix="delete this take's folder to measure it again") from None
         wav = t.folder / "irset" / "spk-001.wav"
-        try:
-            data, rate = sf.read(wav, dtype="float64", always_2d=True)
-        except Exception as exc:  # soundfile raises several kinds
-            raise InputError(f"cannot read a finished take's responses ({exc})", source=str(wav),
-                             fix="delete this take's folder to measure it again") from None
+        data, rate = read_audio(wav, what="a finished take's responses",
+                                fix="delete this take's folder to measure it again")
         if rate != round(fs) or data.shape[1] != len(wiring.mic_names):
             raise InputError(f"take does not match the session ({data.shape[1]} channels at {rate} Hz)",
                              source=str(wav), fix="delete this take's folder to measure it again")

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from ..rig import EntryElements
+from ..rig.model import EntryElements
 
 __all__ = ["SEVERITIES", "Finding", "SideGroup", "count_by_severity"]
 

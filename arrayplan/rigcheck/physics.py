@@ -11,7 +11,7 @@ from ..errors import InputError
 from ..heuristics import PARAXIAL_RATIO, aperture_shape
 from ..limits import check_memory
 from ..medium import speed_of_sound_air
-from ..rig import Rig
+from ..rig.model import Rig
 from ..room import eyring_t60_s, sabine_t60_s, schroeder_frequency_hz
 from .findings import Finding, SideGroup
 

@@ -11,9 +11,10 @@ from pathlib import Path
 from typing import Any, Callable
 
 from ..errors import InputError
-from ..rig import (ENTRY_KEYS, TABLE_KEYS, EntryElements, FieldReader, Rig, entry_kind, join_entries, load_rig,
-                   read_rig_document, resolve_entry, resolve_section)
+from ..rig import (ENTRY_KEYS, TABLE_KEYS, EntryElements, Rig, entry_kind, join_entries, load_rig, read_rig_document,
+                   resolve_entry, resolve_section, rig_field_reader)
 from ..room import Room, parse_room
+from ..tomlfields import FieldReader
 from .findings import SEVERITIES, Finding, SideGroup
 from .physics import physical_findings
 
@@ -32,37 +33,14 @@ def _from_error(exc: InputError, rig_source: str, where: str | None = None) -> F
     return Finding("error", field, problem, exc.fix)
 
 
-def _key_of(field: str | None, where: str) -> str | None:
-    """The key of table `where` an error's field points at ('speakers[0].directivity.axis' -> 'directivity')."""
-    if not field or not field.startswith(where + ".") or field == where:
-        return None
-    return field[len(where) + 1:].split(".", 1)[0]
-
-
-def _peel(resolve: Callable[[dict], Any], table: dict, where: str, rig_source: str,
-          keep: frozenset[str] = frozenset()) -> tuple[Any, list[Finding]]:
-    """Resolve `table`; after each error, drop the offending key and try again, to find them all.
-
-    Returns the resolved value (with defaults in place of dropped keys) or
-    None when some error could not be peeled off, and the findings.
-    """
-    t = dict(table)
-    found: list[Finding] = []
-    seen: set[str] = set()
-    for _ in range(len(table) + 2):
-        try:
-            return resolve(t), found
-        except InputError as exc:
-            f = _from_error(exc, rig_source, where)
-            if exc.field in seen:
-                return None, found
-            seen.add(str(exc.field))
-            found.append(f)
-            key = _key_of(exc.field, where) if not exc.source or exc.source == rig_source else None
-            if key is None or key not in t or key in keep:
-                return None, found
-            del t[key]
-    return None, found
+def _collected(resolve: Callable[[], Any], r: FieldReader, where: str, rig_source: str
+               ) -> tuple[Any, list[Finding]]:
+    """Resolve with the collecting reader `r`: the value (None when a problem stopped it) and every finding."""
+    try:
+        value, stop = resolve(), []
+    except InputError as exc:
+        value, stop = None, [exc]
+    return value, [_from_error(exc, rig_source, where) for exc in r.take() + stop]
 
 
 def _unknown_keys(table: dict, allowed: set[str], where: str, what: str) -> list[Finding]:
@@ -138,12 +116,12 @@ def _check_sides(doc: dict, r: FieldReader, base: Path, src: str
             findings += _unknown_keys(entry, allowed, where, f"of a {kind} entry")
             clean = {k: v for k, v in entry.items() if k in allowed}
 
-            def resolve(t: dict, i: int = i, before: int = sum(len(p.names) for p in parts),
+            def resolve(i: int = i, before: int = sum(len(p.names) for p in parts),
                         nxt: int = next_channel) -> EntryElements:
-                return resolve_entry(t, i, label, r, base, n_entries=len(entries), n_before=before,
+                return resolve_entry(clean, i, label, r, base, n_entries=len(entries), n_before=before,
                                      next_channel=nxt)
 
-            part, errs = _peel(resolve, clean, where, src, keep=frozenset({"shape", "csv"}))
+            part, errs = _collected(resolve, r, where, src)
             findings += errs
             if part is None:
                 if kind == "point" and isinstance(entry.get("name"), str) and entry["name"]:
@@ -189,7 +167,7 @@ def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
         fix = exc.fix or ("TOML wants key = value, text in \"double quotes\", tables in [brackets] and "
                           "repeated entries in [[double brackets]]" if m else None)
         return [Finding("error", field, exc.problem, fix)], {}
-    r = FieldReader(src)
+    r = rig_field_reader(src, collect=True)
     base = path.parent
     findings = _unknown_keys(doc, TABLE_KEYS[""], "", "a rig file knows at the top level")
     meta = doc.get("rig", {})
@@ -219,7 +197,7 @@ def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
                                       "hardware.reference", "of hardware.reference")
             clean["reference"] = {k: v for k, v in clean["reference"].items()
                                   if k in TABLE_KEYS["hardware.reference"]}
-        _, errs = _peel(lambda t, name=name: resolve_section(name, t, r, base), clean, name, src)
+        _, errs = _collected(lambda: resolve_section(name, clean, r, base), r, name, src)
         findings += errs
     room = _room(doc.get("room"), r, src, findings)
     # the entries that resolved: now the clashes between elements (names, channels, positions) and,
@@ -244,7 +222,7 @@ def _room(table: Any, r: FieldReader, src: str, findings: list[Finding]) -> Room
         return None
     findings += _unknown_keys(table, TABLE_KEYS["room"], "room", "of [room]")
     clean = {k: v for k, v in table.items() if k in TABLE_KEYS["room"]}
-    room, errs = _peel(lambda t: parse_room(t, r), clean, "room", src, keep=frozenset({"size_m", "absorption"}))
+    room, errs = _collected(lambda: parse_room(clean, r), r, "room", src)
     findings += errs
     return room
 

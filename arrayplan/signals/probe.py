@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..audiofiles import read_audio
 from ..errors import InputError
 from ..fileio import check_folder
 
@@ -136,16 +137,11 @@ def read_filter_wav(path: str | Path, *, sample_rate_hz: float | None = None) ->
         Speaker names from the file's own sidecar (``<stem>.json``), else from
         the ``filters.json`` of the filter set it belongs to, else ``S1, S2, ...``.
     """
-    import soundfile as sf
-
     path = Path(path)
     if not path.exists():
         raise InputError("filter file not found", source=str(path), field="filters")
     check_folder(path.parent, needed=(path.name,))  # a filter set's file must be the one written with it
-    try:
-        data, rate = sf.read(path, dtype="float64", always_2d=True)
-    except Exception as exc:  # soundfile raises several types
-        raise InputError(f"cannot read WAV ({exc})", source=str(path), field="filters") from None
+    data, rate = read_audio(path, what="WAV", field="filters")
     if data.shape[0] == 0:
         raise InputError("filter file has no samples", source=str(path), field="filters")
     if not np.all(np.isfinite(data)):

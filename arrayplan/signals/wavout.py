@@ -8,6 +8,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from ..audiofiles import read_audio
 from ..errors import InputError
 from ..fileio import atomic_paths
 from ..formats.signal_sidecar import write_signal_sidecar
@@ -99,16 +100,10 @@ def read_recording(path: str | os.PathLike, *, field: str | None = None) -> tupl
     rate : int
         Sample rate, Hz.
     """
-    import soundfile as sf
-
     path = Path(path)
     if not path.exists():
         raise InputError("recording not found", source=str(path), field=field)
-    try:
-        data, rate = sf.read(path, dtype="float64", always_2d=True)
-    except Exception as exc:  # soundfile raises several types
-        raise InputError(f"cannot read audio file ({' '.join(str(exc).split())})", source=str(path),
-                         field=field) from None
+    data, rate = read_audio(path, field=field)
     if data.shape[0] == 0:
         raise InputError("recording has no samples", source=str(path), field=field)
     if not np.all(np.isfinite(data)):
