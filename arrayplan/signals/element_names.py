@@ -1,7 +1,7 @@
 """Names (and positions) of a rig's speakers and microphones for an IR set made from recordings.
 
 An IR set made from recordings names its elements as the rig does, so that
-``plan --irset`` and ``verify`` match them to the plan without renaming.
+a plan made from the set and a verification match them to the plan without renaming.
 The names come from a rig file or from a plan folder (whose ``weights.json``
 lists them with their positions); :func:`fit_names` checks that the
 recordings hold as many speakers and microphones as the rig has.
