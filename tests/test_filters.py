@@ -143,7 +143,7 @@ def test_cli_writes_filters_and_check(tmp_path, capsys):
     assert main(["filters", str(rig), "--rate", "16000", "--taps", "512", "--band", "500", "4000",
                  "--out", str(out), "--min-level-db", "-60"]) == 0
     text = capsys.readouterr().out
-    assert "pass" in text and "bulk delay 256 samples" in text
+    assert "PASS" in text and "verdict: PASS, 2 of 2" in text and "bulk delay 256 samples" in text
     assert (out / "check.csv").read_text().count(",pass\n") == 2
 
 
