@@ -68,6 +68,17 @@ def _measured_settings_given(args: argparse.Namespace) -> bool:
     return args.window_ms is not None or bool(args.latency_samples) or args.smooth_octaves is not None
 
 
+def _agree_with_record(measurement: dict, args: argparse.Namespace, source: str) -> None:
+    """Refuse measured-kernel options that differ from the settings the plan records."""
+    for key, flag, given in (("window_ms", "--window-ms", args.window_ms),
+                             ("latency_samples", "--latency-samples", args.latency_samples or 0),
+                             ("smoothing_octaves", "--smooth-octaves", args.smooth_octaves)):
+        recorded = measurement.get(key) if key != "latency_samples" else measurement.get(key) or 0
+        if (given is None) != (recorded is None) or (given is not None and abs(float(given) - float(recorded)) > 1e-9):
+            raise InputError(f"{flag} {given} differs from the plan's {key} {recorded}", source=source,
+                             field=f"measurement.{key}", fix=f"drop {flag}: the plan's own setting applies")
+
+
 def design_source(args: argparse.Namespace) -> DesignSource:
     """What to design from: a rig's model, a rig's measured responses, or a plan folder's kernel."""
     path = Path(args.source)
@@ -87,8 +98,7 @@ def design_source(args: argparse.Namespace) -> DesignSource:
             raise InputError(f"the plan's IR set {irset_path} is not there", source=str(path / "weights.json"),
                              field="measurement.irset.path", fix="give the IR set with --irset")
         if record.measurement and _measured_settings_given(args):
-            raise InputError("the plan records its window, latency and smoothing; they apply as recorded",
-                             source="--window-ms/--latency-samples/--smooth-octaves", fix="drop these options")
+            _agree_with_record(record.measurement, args, str(path / "weights.json"))
         return source_from_plan(record, irset=read_irset(irset_path), irset_path=irset_path,
                                 window_s=None if args.window_ms is None else args.window_ms / 1000.0,
                                 latency_samples=args.latency_samples, smoothing_octaves=args.smooth_octaves)
@@ -114,8 +124,11 @@ def _check_rate(source: DesignSource, rate: float) -> None:
                          source="--rate", fix=f"use --rate {fs_kernel:g} (the rate the rig was measured at)")
 
 
-def _ranges_text(ranges: list[tuple[float, float]]) -> str:
-    return ", ".join(f"{lo:.0f} Hz" if lo == hi else f"{lo:.0f}-{hi:.0f} Hz" for lo, hi in ranges) or "nowhere"
+def _ranges_text(ranges: list[tuple[float, float]], most: int = 3) -> str:
+    """The widest `most` runs, in frequency order, and how many more (filters.json lists them all)."""
+    widest = sorted(sorted(ranges, key=lambda r: r[1] - r[0], reverse=True)[:most])
+    text = ", ".join(f"{lo:.0f} Hz" if lo == hi else f"{lo:.0f}-{hi:.0f} Hz" for lo, hi in widest) or "nowhere"
+    return text + (f" and {len(ranges) - most} narrower bands (filters.json)" if len(ranges) > most else "")
 
 
 def _print_trial(trial: TapsTrial, limit_db: float) -> None:

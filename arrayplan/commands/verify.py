@@ -187,8 +187,9 @@ def _gain_reference(args: argparse.Namespace, irs, plan_kernel: str) -> tuple[st
     return args.gain_reference, "as given by --gain-reference"
 
 
-def _ranges(runs: list[tuple[float, float]]) -> str:
-    return ", ".join(f"{lo:.5g} Hz" if lo == hi else f"{lo:.5g}-{hi:.5g} Hz" for lo, hi in runs)
+def _ranges(runs: list[tuple[float, float]], most: int = 3) -> str:
+    text = ", ".join(f"{lo:.5g} Hz" if lo == hi else f"{lo:.5g}-{hi:.5g} Hz" for lo, hi in runs[:most])
+    return text + (f" and {len(runs) - most} more bands (verify.json)" if len(runs) > most else "")
 
 
 def run(args: argparse.Namespace) -> int:

@@ -12,6 +12,13 @@ Files (channel numbers NN are 1-based, the plan's tracked numbering):
 * ``filters.json`` also holds the plan on the in-band design bins
   (``plan_on_bins``: frequencies and every channel's singular value), the
   reference ``arrayplan verify`` measures realised gains against.
+* ``filters-matrix.txt``: the whole filter matrix as plain text: a header
+  (``#`` lines: rate, taps, delays, band, element order, caution), then one
+  block per channel and element, a ``[channel NN drive NAME]`` line followed
+  by its taps on one line, separated by spaces (the WAV files' float32
+  values, written exactly).
+* ``channel-NN-response.png``: magnitude and phase of the channel's drive
+  and combine filters.
 * With a check: ``check.csv`` and ``crosstalk.png``.
 """
 
@@ -152,6 +159,49 @@ def _check_csv(check: FilterCheck) -> str:
     return buf.getvalue()
 
 
+def _matrix_text(source: DesignSource, filters: FilterSet) -> str:
+    """``filters-matrix.txt``: header, then each channel's and element's taps on one line."""
+    fs = filters.sample_rate_hz
+    head = [f"arrayplan FIR filter matrix, {len(filters.kept)} channels ({source.name})",
+            f"sample_rate_hz {fs:g}", f"taps {filters.taps}",
+            f"bulk_delay_samples {filters.bulk_delay_samples}",
+            f"drive_filter_delay_samples {filters.drive_delay_samples}",
+            f"combine_filter_delay_samples {filters.combine_delay_samples}",
+            f"band_hz {filters.band_hz[0]:g} {filters.band_hz[1]:g}",
+            f"channels {' '.join(str(j + 1) for j in filters.kept)}",
+            f"speakers {' '.join(source.speaker_names)}", f"microphones {' '.join(source.mic_names)}",
+            "layout: a [channel NN drive|combine ELEMENT] line, then that filter's taps (float32) on one line",
+            CAUTION_NOTE]
+    lines = [f"# {h}" for h in head]
+    for k, j in enumerate(filters.kept):
+        for side, names, taps in (("drive", source.speaker_names, filters.drive[:, :, k]),
+                                  ("combine", source.mic_names, filters.combine[:, :, k])):
+            for e, name in enumerate(names):
+                lines.append(f"[channel {j + 1:02d} {side} {name}]")
+                lines.append(" ".join(f"{float(v) + 0.0:.9g}" for v in taps[:, e].astype(np.float32)))
+    return "\n".join(lines) + "\n"
+
+
+def _write_responses(source: DesignSource, filters: FilterSet, stage: Path) -> list[str]:
+    import matplotlib.pyplot as plt
+
+    from ..fileio import atomic_path
+    from ..plots.filter_responses import plot_filter_responses
+
+    names = []
+    for k, j in enumerate(filters.kept):
+        fig = plot_filter_responses(filters.drive[:, :, k], filters.combine[:, :, k], filters.sample_rate_hz,
+                                    filters.band_hz, drive_delay_samples=filters.drive_delay_samples,
+                                    combine_delay_samples=filters.combine_delay_samples, channel=j + 1,
+                                    speaker_names=source.speaker_names, mic_names=source.mic_names)
+        name = f"channel-{j + 1:02d}-response.png"
+        with atomic_path(stage / name) as tmp:
+            fig.savefig(tmp, dpi=110)
+        plt.close(fig)
+        names.append(name)
+    return names
+
+
 def write_filters(source: DesignSource | Rig, filters: FilterSet, out_dir: str | Path,
                   check: FilterCheck | None = None) -> list[Path]:
     """Write every filter file (and the check, if given) to `out_dir` atomically; return the paths.
@@ -183,7 +233,9 @@ def write_filters(source: DesignSource | Rig, filters: FilterSet, out_dir: str |
                 names.append(name)
         write_json_atomic(stage / "filters.json", sidecar(source, filters, check))
         write_text_atomic(stage / "weights.csv", _weights_csv(source, filters))
-        names += ["filters.json", "weights.csv"]
+        write_text_atomic(stage / "filters-matrix.txt", _matrix_text(source, filters))
+        names += ["filters.json", "weights.csv", "filters-matrix.txt"]
+        names += _write_responses(source, filters, stage)
         if check is not None:
             write_text_atomic(stage / "check.csv", _check_csv(check))
             ax = plot_crosstalk(check)
