@@ -26,7 +26,6 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -39,7 +38,7 @@ from ..rig import Rig
 from ..safety import CAUTION_NOTE
 from .check import FilterCheck, plot_crosstalk
 from .design import TRANSITION_MIN_BINS, TRANSITION_OCTAVES, TUKEY_ALPHA, FilterSet
-from .source import DesignSource, source_from_rig
+from .source import DesignSource, read_json_object, source_from_rig
 
 __all__ = ["FilterFiles", "read_filter_set", "write_filters", "sidecar"]
 
@@ -307,13 +306,7 @@ def read_filter_set(folder: str | Path) -> FilterFiles:
     """
     folder = Path(folder)
     path = folder / "filters.json"
-    try:
-        doc = json.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(path),
-                         fix="point at a folder written by the filters command") from None
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(path)) from None
+    doc = read_json_object(path, "point at a folder written by the filters command")
     field = "plan_on_bins"
     try:
         rate, taps = float(doc["sample_rate_hz"]), int(doc["taps"])

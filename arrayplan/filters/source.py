@@ -124,19 +124,24 @@ class PlanRecord:
         return str(irset["path"]) if isinstance(irset, dict) and irset.get("path") else None
 
 
+def read_json_object(path: Path, fix: str) -> dict:
+    """A JSON object from `path`, or InputError naming the file (`fix` says what to point at)."""
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except OSError as exc:
+        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(path), fix=fix) from None
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(path)) from None
+    if not isinstance(doc, dict):
+        raise InputError("not a JSON object", source=str(path), fix=fix)
+    return doc
+
+
 def read_plan_record(plan_dir: str | Path) -> PlanRecord:
     """Read a plan folder's ``weights.json`` for its kernel, rig and IR-set record."""
     folder = Path(plan_dir)
     path = folder / "weights.json"
-    try:
-        doc = json.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(path),
-                         fix="point at a folder written by the plan command") from None
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(path)) from None
-    if not isinstance(doc, dict):
-        raise InputError("not a JSON object", source=str(path))
+    doc = read_json_object(path, "point at a folder written by the plan command")
     rig = doc.get("rig") if isinstance(doc.get("rig"), dict) else {}
     names = []
     for key in ("speaker_names", "mic_names"):
