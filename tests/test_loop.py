@@ -216,3 +216,40 @@ def test_verify_refuses_channels_on_a_filter_folder(loop, capsys):
                  "--channels", "1"]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "--channels" in err[0] and not (loop / "v-bad").exists()
+
+
+def test_filters_of_a_rig_with_a_room_use_the_room_kernel(tmp_path, capsys):
+    # A floor-only room (the other five sides open, absorption 1) against the image method written here
+    # (Allen and Berkley, JASA 65(4), 1979): filters designed on the rig's [room] keep the channels
+    # apart on those responses; filters from a --free-field plan of the same rig do not.
+    alpha = 1 - 0.7 ** 2                       # beta = sqrt(1 - alpha) = 0.7
+    shift = np.array([1.0, 0.5, 0.0])          # the room's corner is the origin
+    text = rig_toml().replace("[frequencies]", f"[room]\nsize_m = [3.0, 3.0, 3.0]\nreflection_order = 1\n"
+                                               f"[room.absorption]\nx_min = 1.0\nx_max = 1.0\ny_min = 1.0\n"
+                                               f"y_max = 1.0\nfloor = {alpha}\nceiling = 1.0\n\n[frequencies]")
+    for x in SPK_X:
+        text = text.replace(f"position = [{x}, 0.0, {HEIGHT}]", f"position = [{x + 1.0}, 0.5, {HEIGHT}]")
+    for x in MIC_X:
+        text = text.replace(f"position = [{x}, {DISTANCE}, {HEIGHT}]",
+                            f"position = [{x + 1.0}, {DISTANCE + 0.5}, {HEIGHT}]")
+    rig = tmp_path / "rig.toml"
+    rig.write_text(text)
+    assert np.allclose(load_rig(rig).speakers.positions - shift, [[x, 0, HEIGHT] for x in SPK_X])
+    assert main(["plan", str(rig), "--free-field", "--out", str(tmp_path / "ff"), "--no-figures"]) == 0
+    h = as_built_responses(beta=0.7, error_m=0.0)
+    worst = {}
+    for name, source in (("room", rig), ("free", tmp_path / "ff")):
+        assert _filters(tmp_path, source, name, "--taps", 1024, "--min-level-db", "-6") in (0, 1)
+        doc, drive, combine = _read_filters(tmp_path / name)
+        assert doc["kernel"] == ("room" if name == "room" else "free field")
+        spec = np.abs(np.fft.rfft(_chain(drive, combine, h), n=8 * 4096, axis=0))
+        hz = np.fft.rfftfreq(8 * 4096, 1 / FS)
+        band = spec[(hz >= 700) & (hz <= 3500)]
+        diag = np.einsum("fii->fi", band)
+        # judged where both channels are within 6 dB of the strongest (the --min-level-db rule)
+        used = diag >= diag.max(axis=1, keepdims=True) * 10 ** (-6 / 20)
+        off = np.where(used[:, :, None] & used[:, None, :], band / diag[:, :, None], 0.0)
+        off[:, np.arange(off.shape[1]), np.arange(off.shape[1])] = 0
+        worst[name] = 20 * np.log10(off.max())
+    assert worst["room"] < -20.0 < worst["free"], worst
+    assert "designed on the room kernel" in capsys.readouterr().out
