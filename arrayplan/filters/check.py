@@ -153,6 +153,19 @@ def kernel_ir_samples(kernel: Kernel, sample_rate_hz: float) -> int:
     path's delay + 64 samples), at least 4096.  A measured kernel: a power of
     two holding its responses (``n_samples`` at its own rate, converted to
     `sample_rate_hz`) plus 64 samples, at least 4096.
+
+    Parameters
+    ----------
+    kernel : Kernel
+        Free-field (``distances_m``), room (``longest_path_m``) or measured
+        (``n_samples``, ``sample_rate_hz``) kernel.
+    sample_rate_hz : float
+        The filters' rate, Hz.
+
+    Returns
+    -------
+    int
+        Samples.
     """
     if hasattr(kernel, "n_samples") and hasattr(kernel, "sample_rate_hz"):
         n = kernel.n_samples * sample_rate_hz / kernel.sample_rate_hz + 64
