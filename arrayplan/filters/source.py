@@ -181,10 +181,13 @@ def source_from_plan(record: PlanRecord, *, irset: IRSet | None = None, irset_pa
     """
     src = str(record.folder / "weights.json")
     if not record.measured:
-        if not record.rig_source or not Path(record.rig_source).is_file():
+        # a relative path is tried from here, then from the plan folder's parent and the folder itself
+        found = [p for p in ([Path(record.rig_source), record.folder.parent / record.rig_source,
+                              record.folder / record.rig_source] if record.rig_source else []) if p.is_file()]
+        if not found:
             raise InputError(f"the rig file the plan was made from ({record.rig_source}) is not there", source=src,
                              field="rig.source", fix="give the rig file instead of the plan folder")
-        rig = load_rig(record.rig_source)
+        rig = load_rig(found[0])
         if record.rig_sha256 and rig.sha256 != record.rig_sha256:
             raise InputError(f"the rig file {record.rig_source} has changed since the plan was made (hash differs)",
                              source=src, field="rig.sha256", fix="plan again, or give the rig file itself")
