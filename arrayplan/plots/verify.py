@@ -55,8 +55,8 @@ def plot_channel_matrices(hz, channel_matrix, channels, judged=None, max_panels:
         usable = np.arange(len(hz))
     picks = usable[np.unique(np.linspace(0, len(usable) - 1, min(max_panels, len(usable))).round().astype(int))]
     if fig is None:
-        fig = Figure(figsize=(min(2.6 * len(picks) + 1.6, 10.0), 3.6), layout="constrained")
-    axes = fig.subplots(1, len(picks), squeeze=False, sharey=True)[0]
+        fig = Figure(figsize=(min(2.8 * len(picks) + 1.6, 10.0), 3.6), layout="constrained")
+    axes = fig.subplots(1, len(picks), squeeze=False)[0]
     labels = [str(j + 1) for j in want]
     step = max(1, int(np.ceil(len(want) / 8)))
     im = None
@@ -74,9 +74,9 @@ def plot_channel_matrices(hz, channel_matrix, channels, judged=None, max_panels:
         ax.set_xticks(ticks, [labels[t] for t in ticks])
         ax.set_yticks(ticks, [labels[t] for t in ticks])
         ax.set_title(f"{hz[f]:.4g} Hz", fontsize="medium")
-    # one label per axis for the whole row: per-panel labels overlap their neighbours
-    axes[0].set_ylabel("received channel i (no.)")
-    fig.supxlabel("driven channel j (no.)", fontsize="medium")
+        # short labels on every panel (long ones overlapped the neighbouring panel)
+        ax.set_xlabel("driven j (no.)", fontsize="small")
+        ax.set_ylabel("received i (no.)", fontsize="small")
     fig.colorbar(im, ax=list(axes), label="|C_ij| re strongest diagonal (dB)", shrink=0.9)
     fig.suptitle("Realised channel matrix combine^T G_measured drive (blank: channel not judged there)",
                  fontsize="medium")
