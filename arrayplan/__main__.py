@@ -2,6 +2,10 @@
 
 import sys
 
-from .cli import main
+try:
+    from .cli import main
+except KeyboardInterrupt:           # Ctrl-C while the interpreter loads the package: no traceback
+    sys.stderr.write("arrayplan: interrupted\n")
+    sys.exit(130)
 
 sys.exit(main())

@@ -25,19 +25,32 @@ u_prev^H u_new is real and positive.  Where two singular values cross, the
 weights stay continuous and the channel keeps its number, so a tracked
 channel's singular value need not be descending across channels.
 Strong/effective counts never depend on tracking.
+
+Truncation.  With ``max_channels`` only the strongest channels are computed
+(:mod:`arrayplan.topk`); ``ChannelSet.computed`` then gives their number per
+frequency, the columns beyond it hold zeros, the sum rule is still
+sum |G|^2 from G itself, and :meth:`ChannelSet.share_not_computed` is the
+part of it in the channels not computed.  The effective count of a
+truncated plan is that of the computed channels.
+
+Where the work runs.  :func:`decompose` evaluates the kernel and decomposes
+chunk by chunk, here or on worker processes or a Dask cluster
+(:mod:`arrayplan.parallel`); each worker builds its own coupling matrices,
+and the result does not depend on where it was computed.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
 from .coupling import CouplingStack, Kernel
+from .errors import InputError
 from .frequency import FrequencyAxis
 
-__all__ = ["ChannelSet", "decompose", "decompose_stack", "fix_phase", "track_channels"]
+__all__ = ["ChannelSet", "decompose", "decompose_stack", "fix_phase", "track_channels", "chunk_for_budget",
+           "bytes_per_frequency", "workers_for"]
 
 _TIE_RTOL = 1e-6
 
@@ -60,6 +73,10 @@ class ChannelSet:
     speaker_names, mic_names : tuple of str
     tracked : bool
         True when the channels were tracked across frequency.
+    computed : ndarray of int, shape (n_freq,), optional
+        With a truncated plan (only the strongest channels computed), the
+        number of channels computed at each frequency; the columns beyond
+        it hold zeros.  None when every channel was computed.
     """
 
     axis: FrequencyAxis
@@ -70,10 +87,29 @@ class ChannelSet:
     speaker_names: tuple[str, ...]
     mic_names: tuple[str, ...]
     tracked: bool = False
+    computed: np.ndarray | None = None
 
     @property
     def n_channels(self) -> int:
         return int(self.singular_values.shape[1])
+
+    @property
+    def truncated(self) -> bool:
+        """True when only the strongest channels were computed (see ``computed``)."""
+        return self.computed is not None
+
+    def channels_computed(self) -> np.ndarray:
+        """Channels computed at each frequency, shape (n_freq,) (all of them unless truncated)."""
+        if self.computed is None:
+            return np.full(len(self.axis), self.n_channels)
+        return np.asarray(self.computed)
+
+    def share_not_computed(self) -> np.ndarray:
+        """Share of the sum rule in the channels not computed, 1 - sum s^2 / sum |G|^2, shape (n_freq,).
+
+        Zero up to rounding (about 1e-15) for a complete plan.
+        """
+        return np.clip(1.0 - np.sum(self.power_coupling, axis=1) / self.sum_rule, 0.0, 1.0)
 
     @property
     def power_coupling(self) -> np.ndarray:
@@ -128,6 +164,37 @@ def fix_phase(u: np.ndarray, v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return u * rot, v * rot
 
 
+def _phase_fixed_into(u: np.ndarray, vh: np.ndarray, drive: np.ndarray, combine: np.ndarray) -> None:
+    """The phase convention applied to an SVD's ``u`` and ``vh``, written into `drive` and `combine`.
+
+    Parameters
+    ----------
+    u : ndarray, complex, shape (n_freq, n_mic, n_chan)
+        Overwritten (rotated in place).
+    vh : ndarray, complex, shape (n_freq, n_chan, n_spk)
+    drive : ndarray, complex, shape (n_freq, n_spk, n_chan)
+        Receives V with the convention applied.
+    combine : ndarray, complex, shape (n_freq, n_mic, n_chan)
+        Receives conj(U) with the convention applied.
+
+    Notes
+    -----
+    The same arithmetic as :func:`fix_phase` on ``v = conj(vh^T)`` (|conj z|
+    = |z| and conj(a b) = conj(a) conj(b) hold exactly in IEEE arithmetic),
+    so the result is bit-identical, without the copies of a transposed view.
+    """
+    mag = np.abs(vh)                                            # (F, K, n_spk)
+    near_max = mag >= mag.max(axis=-1, keepdims=True) * (1.0 - _TIE_RTOL)
+    pivot = np.argmax(near_max, axis=-1)                        # (F, K)
+    ref_conj = np.take_along_axis(vh, pivot[..., None], axis=-1)[..., 0]   # conj of v's pivot entry
+    size = np.abs(ref_conj)
+    rot = ref_conj / np.where(size > 0, size, 1.0)             # (F, K)
+    np.conjugate(np.swapaxes(vh, -1, -2), out=drive)
+    drive *= rot[..., None, :]
+    u *= rot[..., None, :]
+    np.conjugate(u, out=combine)
+
+
 def decompose_stack(g: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Batched SVD with the phase convention.
 
@@ -142,55 +209,237 @@ def decompose_stack(g: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     combine : ndarray, shape (n_freq, n_mic, n_chan)  (conj U)
     """
     u, s, vh = np.linalg.svd(g, full_matrices=False)
-    v = np.conj(np.swapaxes(vh, -1, -2))
-    u, v = fix_phase(u, v)
-    return s, v, np.conj(u)
+    drive = np.empty(g.shape[:-2] + (g.shape[-1], s.shape[-1]), dtype=vh.dtype)
+    combine = np.empty_like(u)
+    _phase_fixed_into(u, vh, drive, combine)
+    return s, drive, combine
 
 
-def track_channels(channels: ChannelSet) -> ChannelSet:
-    """Order and phase-align channels from bin to bin (see module Notes)."""
-    s = channels.singular_values.copy()
-    drive = channels.drive.copy()
-    combine = channels.combine.copy()
+def _overlap_costs(drive: np.ndarray, combine: np.ndarray, block: int = 64) -> np.ndarray:
+    """|v_{f-1}^H v_f| + |u_{f-1}^H u_f| between consecutive bins as found, shape (n_freq - 1, K, K)."""
+    n_freq, _, k = drive.shape
+    out = np.empty((max(0, n_freq - 1), k, k))
+    for a in range(1, n_freq, block):
+        b = min(a + block, n_freq)
+        # contiguous operands, so that matmul hands each product to BLAS
+        ov_v = np.abs(np.matmul(np.ascontiguousarray(np.conj(np.swapaxes(drive[a - 1:b - 1], -1, -2))), drive[a:b]))
+        ov_u = np.abs(np.matmul(np.ascontiguousarray(np.swapaxes(combine[a - 1:b - 1], -1, -2)), np.conj(combine[a:b])))
+        np.add(ov_u, ov_v, out=out[a - 1:b - 1])
+    return out
+
+
+def _track_in_place(s: np.ndarray, drive: np.ndarray, combine: np.ndarray, costs: np.ndarray | None = None) -> None:
+    """Tracking (module Notes) applied to the arrays themselves.
+
+    `costs` are the overlaps of :func:`_overlap_costs` of the arrays as
+    found, when already computed (on the workers, chunk by chunk).
+    """
+    from scipy.optimize import linear_sum_assignment   # imported here: scipy.optimize is slow to import
+
+    from .parallel import one_blas_thread
+
+    if costs is None:
+        with one_blas_thread():   # small products: threaded BLAS only loses time here, badly on a busy machine
+            costs = _overlap_costs(drive, combine)    # rows: channels of bin f-1 as found
+    same = np.arange(s.shape[1])
+    found = same                                  # found[i]: bin f-1's index of tracked channel i
     for f in range(1, s.shape[0]):
-        ov_v = np.abs(np.einsum("si,sj->ij", np.conj(drive[f - 1]), drive[f]))
-        ov_u = np.abs(np.einsum("mi,mj->ij", combine[f - 1], np.conj(combine[f])))
-        rows, cols = linear_sum_assignment(-(ov_u + ov_v))
+        rows, cols = linear_sum_assignment(-costs[f - 1][found])
         order = cols[np.argsort(rows)]
-        s[f] = s[f, order]
-        drive[f] = drive[f][:, order]
-        combine[f] = combine[f][:, order]
+        if not np.array_equal(order, same):       # most bins keep their order: no copies then
+            s[f] = s[f, order]
+            drive[f] = drive[f][:, order]
+            combine[f] = combine[f][:, order]
         # inner products of previous and new weights, per channel
         c = (np.sum(np.conj(drive[f - 1]) * drive[f], axis=0)
              + np.sum(combine[f - 1] * np.conj(combine[f]), axis=0))
         rot = np.conj(c) / np.where(np.abs(c) > 0, np.abs(c), 1.0)
         drive[f] *= rot
         combine[f] *= np.conj(rot)  # combine = conj(u): u gets rot, so conj(u) gets conj(rot)
-    return ChannelSet(channels.axis, s, drive, combine, channels.sum_rule, channels.speaker_names,
-                      channels.mic_names, tracked=True)
+        found = order
 
 
-def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None, *, chunk_size: int = 64,
-              track: bool = False, progress=None) -> ChannelSet:
+def track_channels(channels: ChannelSet) -> ChannelSet:
+    """Order and phase-align channels from bin to bin (see module Notes).
+
+    Notes
+    -----
+    The overlaps of every pair of consecutive bins are computed at once, on
+    the channels as the SVD found them (a batched matrix product), and each
+    bin's assignment reads them in the order the tracking has reached; only
+    the assignment and the phase rotation run bin by bin.  The magnitudes
+    of the overlaps do not depend on the phases applied to earlier bins,
+    so the assignment is the one made against the rotated weights up to
+    rounding in the last bits (which could only matter for an exact tie).
+    """
+    s = channels.singular_values.copy()
+    drive = channels.drive.copy()
+    combine = channels.combine.copy()
+    _track_in_place(s, drive, combine)
+    return replace(channels, singular_values=s, drive=drive, combine=combine, tracked=True)
+
+
+# --- decomposing chunk by chunk, here or on workers -----------------------------------------------
+
+@dataclass(frozen=True)
+class _ChunkJob:
+    """What every chunk needs: the kernel and the truncation settings (sent once per worker)."""
+
+    kernel: Kernel
+    max_channels: int | None       # fixed K, or None (all, or auto with first guesses)
+    auto: bool
+    floor_ratio: float
+    single: bool = False           # decompose in complex64 (the full SVD only)
+    track: bool = False            # also return the overlaps of consecutive bins (for tracking)
+
+
+def _channels_of_chunk(job: _ChunkJob, item: tuple[np.ndarray, np.ndarray | None]):
+    """Coupling matrices of one chunk of frequencies, built here, and their channels.
+
+    Returns (s, drive, combine, sum_rule, computed, costs) for the chunk;
+    with truncation, unused columns are zero and ``computed`` counts the
+    rest; ``costs`` are the tracking overlaps within the chunk (or None).
+    """
+    hz, k_first = item
+    g = job.kernel.evaluate(hz)
+    sum_rule = np.einsum("fms,fms->f", g.real, g.real) + np.einsum("fms,fms->f", g.imag, g.imag)
+    if job.max_channels is None and not job.auto:
+        s, drive, combine = decompose_stack(g.astype(np.complex64) if job.single else g)
+        del g
+        return s, drive, combine, sum_rule, None, _overlap_costs(drive, combine) if job.track else None
+    from .topk import leading_triplets, triplets_above_floor
+
+    parts = [triplets_above_floor(g[f], int(k_first[f]), job.floor_ratio) if job.auto
+             else leading_triplets(g[f], job.max_channels) for f in range(len(hz))]
+    del g
+    computed = np.array([p[1].size for p in parts])
+    k = int(computed.max())
+    u = np.zeros((len(hz), parts[0][0].shape[0], k), dtype=complex)
+    vh = np.zeros((len(hz), k, parts[0][2].shape[1]), dtype=complex)
+    s = np.zeros((len(hz), k))
+    for f, (uf, sf, vhf) in enumerate(parts):
+        u[f, :, :sf.size], s[f, :sf.size], vh[f, :sf.size] = uf, sf, vhf
+    drive = np.empty((len(hz), vh.shape[2], k), dtype=complex)
+    combine = np.empty_like(u)
+    _phase_fixed_into(u, vh, drive, combine)
+    return s, drive, combine, sum_rule, computed, None
+
+
+def bytes_per_frequency(n_mic: int, n_spk: int, n_chan: int | None = None) -> int:
+    """Working memory of one frequency's coupling matrix and SVD, bytes (an estimate).
+
+    Parameters
+    ----------
+    n_mic, n_spk : int
+    n_chan : int, optional
+        Channels computed (default min(n_mic, n_spk)).
+
+    Returns
+    -------
+    int
+        16 bytes per complex entry of G and a copy of it (LAPACK works on
+        one), U, V^H, the phase-fixed weights and the k x k workspace.
+    """
+    k = min(n_mic, n_spk) if n_chan is None else int(n_chan)
+    return 16 * (2 * n_mic * n_spk + 2 * (n_mic + n_spk) * k + 4 * k * k)
+
+
+#: The default chunk leaves at least this many chunks (to share the work among workers evenly).
+MIN_CHUNKS = 8
+
+
+def chunk_for_budget(n_freq: int, n_mic: int, n_spk: int, memory_mb: float, n_chan: int | None = None) -> int:
+    """Frequencies per chunk so that one chunk's working memory stays within `memory_mb`.
+
+    Parameters
+    ----------
+    n_freq, n_mic, n_spk : int
+    memory_mb : float
+        Budget per worker, MB (10^6 bytes).
+    n_chan : int, optional
+        Channels computed per frequency (default all).
+
+    Returns
+    -------
+    int
+        At least 1 (a single frequency may exceed the budget), and small
+        enough to make :data:`MIN_CHUNKS` chunks.  It does not depend on
+        the number of workers, so neither do the results (see
+        :func:`decompose`).
+    """
+    by_memory = int(memory_mb * 1e6 // bytes_per_frequency(n_mic, n_spk, n_chan))
+    return max(1, min(by_memory, -(-n_freq // MIN_CHUNKS)))
+
+
+#: Below this many multiply-adds (n_freq * n_mic * n_spk * min(n_mic, n_spk); 1e8 is about 0.3 s of SVD on
+#: one core of the test machine, a 64 x 64 rig at 400 frequencies) "auto" stays in one
+#: process: starting worker processes takes longer than the work.
+AUTO_PARALLEL_WORK = 1e8
+
+
+def workers_for(n_freq: int, n_mic: int, n_spk: int, workers: int | None) -> int:
+    """The worker count to use: `workers`, or for None all cores when the job is large enough."""
+    if workers is not None:
+        return int(workers)
+    from .parallel import available_cores
+
+    work = float(n_freq) * n_mic * n_spk * min(n_mic, n_spk)
+    return available_cores() if work >= AUTO_PARALLEL_WORK else 1
+
+
+def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None, *, chunk_size: int | None = None,
+              track: bool = False, progress=None, workers: int | None = 1, scheduler: str | None = None,
+              max_channels: int | str | None = None, floor_db: float = 40.0,
+              first_guess: np.ndarray | None = None, memory_mb: float = 64.0,
+              precision: str = "double") -> ChannelSet:
     """The channels of a kernel (evaluated chunk by chunk) or of a coupling stack.
 
     Parameters
     ----------
     source : Kernel or CouplingStack
         With a kernel, `axis` is required and at most `chunk_size`
-        coupling matrices are held at a time.
+        coupling matrices are held at a time per worker.  The kernel must
+        pickle when it runs on workers.
     axis : FrequencyAxis, optional
         Frequencies to plan at (default: the stack's own axis).
-    chunk_size : int
-        Frequencies per batch.
+    chunk_size : int, optional
+        Frequencies per batch (default: from `memory_mb`).
     track : bool
         Track channels across frequency (:func:`track_channels`).
     progress : callable, optional
         Called as ``progress(done, total)`` after each chunk.
+    workers : int or None
+        Worker processes (see :mod:`arrayplan.parallel`); 1 is serial; None
+        uses every core when the job is large (:func:`workers_for`).
+    scheduler : str, optional
+        ``"local:N"`` or a dask.distributed address (:mod:`arrayplan.parallel`).
+    max_channels : int, "auto" or None
+        Compute only the K strongest channels per frequency
+        (:mod:`arrayplan.topk`); "auto" starts from `first_guess` and grows
+        until the weakest computed channel is `floor_db` below the
+        strongest; None computes all.
+    floor_db : float
+        The floor for "auto", dB below the strongest channel (the SNR).
+    first_guess : ndarray, shape (n_freq,), optional
+        Channels to try first per frequency with "auto" (NaN: 16).
+    memory_mb : float
+        Working-memory budget per worker for the default chunk size, MB.
+    precision : {"double", "single"}
+        "single" decomposes complex64 matrices (LAPACK cgesdd): faster, with
+        relative errors near 1e-7 on the strong channels; singular values
+        and weights are then float32/complex64.  The sum rule is always
+        computed in double from G.  Top-k channels are always computed in
+        double.
 
     Returns
     -------
     ChannelSet
+        Identical, bit for bit, for every `workers` and `scheduler`: each
+        matrix is decomposed alone, with one LAPACK thread, and the default
+        chunk size does not depend on the workers.  Between different chunk
+        sizes the free-field plan is identical too; a kernel that builds its
+        matrices by a matrix product (the measured kernel's DFT) may differ
+        in the last bits, as BLAS blocks a product by its size.
     """
     if isinstance(source, CouplingStack):
         axis = source.axis if axis is None else axis
@@ -198,18 +447,84 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
         raise ValueError("decompose(kernel) needs the frequency axis")
     hz = axis.hz
     n_mic, n_spk = len(source.mic_names), len(source.speaker_names)
-    k = min(n_mic, n_spk)
-    s = np.empty((len(hz), k))
-    drive = np.empty((len(hz), n_spk, k), dtype=complex)
-    combine = np.empty((len(hz), n_mic, k), dtype=complex)
-    sum_rule = np.empty(len(hz))
+    n_all = min(n_mic, n_spk)
+    auto = isinstance(max_channels, str)
+    if auto and max_channels != "auto":
+        raise InputError(f"expected a whole number or 'auto', got {max_channels!r}", field="max_channels")
+    fixed = None if (auto or max_channels is None) else int(max_channels)
+    if fixed is not None and not 1 <= fixed <= n_all:
+        raise InputError(f"{fixed} channels asked for, but the rig has at most {n_all} "
+                         f"({n_spk} speakers, {n_mic} microphones)", field="max_channels",
+                         fix=f"give at most {n_all}, or 'auto'")
+    if fixed == n_all:
+        fixed = None
+    n_workers = workers_for(len(hz), n_mic, n_spk, workers)
+    if chunk_size is None:
+        chunk_size = chunk_for_budget(len(hz), n_mic, n_spk, memory_mb, fixed)
     chunk_size = max(1, int(chunk_size))
-    for start in range(0, len(hz), chunk_size):
-        sl = slice(start, start + chunk_size)
-        g = source.evaluate(hz[sl])
-        sum_rule[sl] = np.einsum("fms,fms->f", g.real, g.real) + np.einsum("fms,fms->f", g.imag, g.imag)
-        s[sl], drive[sl], combine[sl] = decompose_stack(g)
+    guess = None
+    if auto:
+        first = np.full(len(hz), np.nan) if first_guess is None else np.asarray(first_guess, dtype=float)
+        guess = np.where(np.isfinite(first), np.ceil(1.5 * np.nan_to_num(first) + 8), 16).astype(int)
+    starts = range(0, len(hz), chunk_size)
+    items = [(hz[a:a + chunk_size], None if guess is None else guess[a:a + chunk_size]) for a in starts]
+    if precision not in ("double", "single"):
+        raise InputError(f"expected 'double' or 'single', got {precision!r}", field="precision")
+    single = precision == "single" and fixed is None and not auto
+    job = _ChunkJob(source, fixed, auto, 10.0 ** (-abs(floor_db) / 20.0), single, track and not auto)
+    results = _gather(job, items, len(hz), n_mic, n_spk, n_all if fixed is None else fixed, auto,
+                      n_workers, scheduler, progress)
+    s, drive, combine, sum_rule, computed, costs = results
+    if track:
+        _track_in_place(s, drive, combine, costs)
+    return ChannelSet(axis, s, drive, combine, sum_rule, tuple(source.speaker_names), tuple(source.mic_names),
+                      tracked=track, computed=computed)
+
+
+def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progress):
+    """Run the chunks and put their results in frequency order (see :func:`decompose`)."""
+    from .parallel import iter_chunks, one_blas_thread
+
+    starts = np.cumsum([0] + [len(it[0]) for it in items])
+    sum_rule = np.empty(n_freq)
+    costs = None
+    if auto:  # the channel count is known only at the end: keep the chunks, then pad
+        parts: list = [None] * len(items)
+    else:
+        real, cplx = (np.float32, np.complex64) if job.single else (float, complex)
+        s = np.empty((n_freq, k), dtype=real)
+        drive = np.empty((n_freq, n_spk, k), dtype=cplx)
+        combine = np.empty((n_freq, n_mic, k), dtype=cplx)
+        computed = None if job.max_channels is None else np.full(n_freq, k)
+        if job.track:
+            costs = np.empty((max(0, n_freq - 1), k, k))
+    freq_done = 0
+    for i, (s_c, d_c, c_c, sr_c, comp_c, cost_c) in iter_chunks(_channels_of_chunk, items, shared=job,
+                                                                workers=workers, scheduler=scheduler):
+        a, b = starts[i], starts[i + 1]
+        sum_rule[a:b] = sr_c
+        freq_done += len(sr_c)
+        if auto:
+            parts[i] = (s_c, d_c, c_c, comp_c)
+        else:
+            s[a:b], drive[a:b], combine[a:b] = s_c, d_c, c_c
+            if costs is not None:
+                costs[a:b - 1] = cost_c
         if progress is not None:
-            progress(min(start + chunk_size, len(hz)), len(hz))
-    out = ChannelSet(axis, s, drive, combine, sum_rule, tuple(source.speaker_names), tuple(source.mic_names))
-    return track_channels(out) if track else out
+            progress(freq_done, n_freq)
+    if not auto:
+        if costs is not None:   # the seams between chunks
+            with one_blas_thread():
+                for a in starts[1:-1]:
+                    costs[a - 1] = _overlap_costs(drive[a - 1:a + 1], combine[a - 1:a + 1])[0]
+        return s, drive, combine, sum_rule, computed, costs
+    k = max(p[0].shape[1] for p in parts)
+    s = np.zeros((n_freq, k))
+    drive = np.zeros((n_freq, n_spk, k), dtype=complex)
+    combine = np.zeros((n_freq, n_mic, k), dtype=complex)
+    computed = np.empty(n_freq, dtype=int)
+    for i, (s_c, d_c, c_c, comp_c) in enumerate(parts):
+        sl, kc = slice(starts[i], starts[i + 1]), s_c.shape[1]
+        s[sl, :kc], drive[sl, :, :kc], combine[sl, :, :kc], computed[sl] = s_c, d_c, c_c, comp_c
+        parts[i] = None
+    return s, drive, combine, sum_rule, computed, None

@@ -62,7 +62,7 @@ def default_plane(rig: Rig, plane: str = "xz", offset: float | None = None, reso
     included) instead, and the plane's offset is kept inside the room.
     """
     if plane not in _AXES:
-        raise InputError(f"plane must be one of {', '.join(_AXES)}, got {plane!r}", field="--plane")
+        raise InputError(f"plane must be one of {', '.join(_AXES)}, got {plane!r}", field="plane")
     i, j, k = _AXES[plane]
     pts = np.vstack([rig.speakers.positions, rig.mics.positions])
     lo, hi = pts.min(axis=0), pts.max(axis=0)

@@ -60,7 +60,7 @@ def aperture_shape(positions: np.ndarray) -> ApertureShape:
     centre = pos.mean(axis=0)
     if len(pos) < 2:
         return ApertureShape("point", centre, np.zeros(3), 0.0, 0.0)
-    _, _, axes = np.linalg.svd(pos - centre, full_matrices=True)   # rows: principal axes
+    _, _, axes = np.linalg.svd(pos - centre, full_matrices=False)  # rows: principal axes (3 x 3; U is n x 3)
     proj = (pos - centre) @ axes.T
     extents = proj.max(axis=0) - proj.min(axis=0)
     d = float(np.median(cKDTree(pos).query(pos, k=2)[0][:, 1]))

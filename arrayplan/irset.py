@@ -39,7 +39,10 @@ present they are in metres.
 
 The loader checks every field, the rates, channel counts and lengths of every
 WAV file, and rejects non-finite samples, each with a one-line message naming
-the file and field.  :func:`read_irset` also reads AES69 (SOFA) files
+the file and field.  A set arrayplan wrote also holds ``SHA256SUMS``
+(every file's size and SHA-256, :func:`arrayplan.fileio.check_folder`); the
+loader refuses a set whose files differ from it, so a folder mixing files of
+two runs is never read.  Sets made by other programs need not have one.  :func:`read_irset` also reads AES69 (SOFA) files
 (:mod:`arrayplan.irset_sofa`).
 """
 
@@ -55,7 +58,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from .errors import InputError
-from .fileio import provenance as _provenance, staged_output_dir, write_json_atomic
+from .fileio import check_folder, provenance as _provenance, staged_output_dir, write_json_atomic
 
 __all__ = ["IRSet", "read_irset", "write_irset", "MANIFEST_NAME", "UNITS", "zero_lag_problem", "format_version_for"]
 
@@ -314,10 +317,20 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
                              fix="check the wiring of this speaker and measure again")
         blocks.append(data)
     zero_lag = manifest.get("zero_lag_samples", 0)
-    problem = zero_lag_problem(zero_lag, blocks[0].shape[0])
+    problem = (f"expected a whole number, got {zero_lag!r}" if isinstance(zero_lag, bool) or
+               not isinstance(zero_lag, int) else zero_lag_problem(zero_lag, blocks[0].shape[0]))
     if problem:
         raise InputError(problem, source=src, field="zero_lag_samples",
                          fix="give the index of zero lag in the responses (0 when none was kept before it)")
+    latency = manifest.get("latency_removed_samples", 0)
+    if isinstance(latency, bool) or not isinstance(latency, int) or latency < 0:
+        raise InputError(f"expected a whole number of samples >= 0, got {latency!r}", source=src,
+                         field="latency_removed_samples")
+    for key, kind in (("warnings", list), ("extra", dict)):
+        if not isinstance(manifest.get(key, kind()), kind):
+            raise InputError(f"must be a{'n array' if kind is list else 'n object'}", source=src, field=key)
+    # A folder arrayplan wrote carries checksums: refuse one whose files come from different runs.
+    check_folder(folder, needed=(MANIFEST_NAME, "*.wav"))
     return IRSet(
         data=np.stack(blocks, axis=2),
         sample_rate_hz=rate,

@@ -9,7 +9,8 @@ Files (all written together, atomically, by :func:`write_plan`):
 ``summary.csv``
     One row per frequency: ``frequency_hz, sum_rule, strong_channels,
     usable_channels, effective_channels, heuristic_channels`` (empty where
-    the paraxial estimate does not apply).
+    the paraxial estimate does not apply); a truncated plan adds
+    ``channels_computed, share_not_computed``.
 ``weights.npz``
     ``frequency_hz`` (n_freq,), ``singular_value`` (n_freq, n_chan),
     ``drive`` (n_freq, n_spk, n_chan) and ``combine`` (n_freq, n_mic, n_chan),
@@ -19,7 +20,9 @@ Files (all written together, atomically, by :func:`write_plan`):
     re, im`` with side ``drive`` or ``combine``.
 ``weights.json``
     The sidecar: conventions, normalisation, units, element names and
-    order, settings, tool version and the rig's hash.
+    order, settings, tool version and the rig's hash; for a plan made from
+    measured responses, the ``measurement`` it was made from
+    (:func:`measurement_record`) and the coupling's units in that set's units.
 ``rig.png``, ``couplings.png``, ``channel-counts.png``
     Figures.
 """
@@ -27,23 +30,29 @@ Files (all written together, atomically, by :func:`write_plan`):
 from __future__ import annotations
 
 import csv
-import io
 import json
+import math
 import os
 from pathlib import Path
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 
 from .channels import ChannelSet
 from .errors import InputError
-from .fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from .fileio import atomic_path, check_folder, provenance, staged_output_dir, write_json_atomic
 from .frequency import FrequencyAxis
 from .heuristics import paraxial_estimate
 from .planning import Plan
 from .rig import Rig
 
-__all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines"]
+__all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
+           "coupling_text", "long_table_rows", "LONG_TABLE_MAX_ROWS"]
+
+#: What one unit of a measured coupling means, by the IR set's units (see :data:`arrayplan.irset.UNITS`).
+MEASURED_UNITS = {"full_scale": "input full scale per output full scale (uncalibrated)",
+                  "pascal_per_full_scale": "Pa per output full scale",
+                  "pascal_per_volt": "Pa per V at the speaker terminals"}
 
 NORMALISATION = ("drive and combine weight vectors have unit Euclidean norm per channel and frequency; "
                  "combine^T G drive = diag(singular_value)")
@@ -51,73 +60,176 @@ PHASE = ("the speaker entry of largest magnitude in each drive vector is real an
          "(tracked plans: phase follows the previous bin instead)")
 
 
-def _csv_text(header: list[str], rows: list[list[Any]]) -> str:
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(header)
-    w.writerows(rows)
-    return buf.getvalue()
+#: Below this many rows ``weights.csv`` (the long weight table) is written by default; above it only
+#: on request, since its text is about 20 times the size of the same weights in ``weights.npz``.
+LONG_TABLE_MAX_ROWS = 500_000
+
+_CHANNEL_HEADER = "frequency_hz,channel,singular_value,power_coupling,share_of_sum_rule,level_db\n"
+_SUMMARY_HEADER = ["frequency_hz", "sum_rule", "strong_channels", "usable_channels", "effective_channels",
+                   "heuristic_channels"]
+_TRUNCATED_HEADER = ["channels_computed", "share_not_computed"]
 
 
 def _fmt(x: float) -> str:
-    return "" if not np.isfinite(x) else f"{x:.10g}"
+    """Ten significant digits; empty for NaN or infinity.  Takes Python floats (fast) or numpy scalars."""
+    x = float(x)
+    return f"{x:.10g}" if math.isfinite(x) else ""
 
 
-def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True) -> list[Path]:
-    """Write every plan file into `out_dir` (created if needed); return their paths."""
+def _fmt_level(x: float) -> str:
+    return f"{x:.10g}" if math.isfinite(x) else "-inf"
+
+
+def long_table_rows(plan: Plan) -> int:
+    """Rows of the long weight table ``weights.csv``: one per computed channel, side and element."""
     ch = plan.channels
-    hz = ch.axis.hz
-    share, level = ch.share_of_sum_rule(), ch.level_db()
-    strong, usable, eff = plan.strong_channels, plan.usable_channels, ch.effective_channels()
-    rows = [[_fmt(hz[f]), j + 1, _fmt(ch.singular_values[f, j]), _fmt(ch.power_coupling[f, j]),
-             _fmt(share[f, j]), _fmt(level[f, j]) if np.isfinite(level[f, j]) else "-inf"]
-            for f in range(len(hz)) for j in range(ch.n_channels)]
-    summary = [[_fmt(hz[f]), _fmt(ch.sum_rule[f]), int(strong[f]), int(usable[f]), _fmt(eff[f]),
-                _fmt(plan.estimate.counts[f])] for f in range(len(hz))]
-    written = []
+    return int(np.sum(ch.channels_computed())) * (len(ch.speaker_names) + len(ch.mic_names))
+
+
+def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *,
+               measurement: dict[str, Any] | None = None, long_weights: bool | None = None,
+               progress: Callable[[float, float], None] | None = None) -> list[Path]:
+    """Write every plan file into `out_dir` (created if needed); return their paths.
+
+    Parameters
+    ----------
+    plan : Plan
+    out_dir : path
+    figures : bool
+        Draw the figures too.
+    measurement : dict, optional
+        For a plan made from measured responses: :func:`measurement_record`
+        of the IR set and kernel, stored in ``weights.json``.
+    long_weights : bool, optional
+        Write the long table ``weights.csv``: True always, False never,
+        None (default) when it has at most :data:`LONG_TABLE_MAX_ROWS` rows.
+        ``weights.npz`` always holds every weight.
+    progress : callable, optional
+        ``progress(done, total)`` while the files are written (in units of
+        table rows).
+
+    Returns
+    -------
+    list of Path
+
+    Notes
+    -----
+    Every table is streamed to its file a frequency at a time (never held
+    whole in memory) and costs time in proportion to its size; the NPZ
+    archive is written from the plan's arrays without a copy.
+    """
+    ch = plan.channels
+    n_freq, n_elem = len(ch.axis), len(ch.speaker_names) + len(ch.mic_names)
+    rows = int(np.sum(ch.channels_computed()))
+    with_long = long_table_rows(plan) <= LONG_TABLE_MAX_ROWS if long_weights is None else bool(long_weights)
+    # work in units of text rows; binary weights and figures counted as rough equivalents
+    steps = [rows, n_freq, rows * n_elem // 8 + 1, rows * n_elem if with_long else 0, 1, 2000 if figures else 0]
+    total, done = float(sum(steps)), [0.0]
+
+    def advance(amount: float) -> None:
+        done[0] += amount
+        if progress is not None:
+            progress(min(done[0], total), total)
+
     with staged_output_dir(out_dir) as stage:
-        write_text_atomic(stage / "channels.csv", _csv_text(
-            ["frequency_hz", "channel", "singular_value", "power_coupling", "share_of_sum_rule", "level_db"], rows))
-        write_text_atomic(stage / "summary.csv", _csv_text(
-            ["frequency_hz", "sum_rule", "strong_channels", "usable_channels", "effective_channels",
-             "heuristic_channels"], summary))
-        np.savez(stage / "weights.npz", frequency_hz=hz, singular_value=ch.singular_values, drive=ch.drive,
-                 combine=ch.combine, speaker_names=np.array(ch.speaker_names), mic_names=np.array(ch.mic_names))
-        write_text_atomic(stage / "weights.csv", _weights_csv(plan))
-        write_json_atomic(stage / "weights.json", _sidecar(plan))
+        _write_channels_csv(plan, stage / "channels.csv", lambda f: advance(steps[0] / max(1, n_freq)))
+        _write_summary_csv(plan, stage / "summary.csv")
+        advance(steps[1])
+        with atomic_path(stage / "weights.npz") as tmp:
+            extra = {} if ch.computed is None else {"computed_channels": np.asarray(ch.computed)}
+            np.savez(tmp, frequency_hz=ch.axis.hz, singular_value=ch.singular_values, drive=ch.drive,
+                     combine=ch.combine, sum_rule=ch.sum_rule, speaker_names=np.array(ch.speaker_names),
+                     mic_names=np.array(ch.mic_names), **extra)
+        advance(steps[2])
+        if with_long:
+            _write_weights_csv(plan, stage / "weights.csv", lambda f: advance(steps[3] / max(1, n_freq)))
+        write_json_atomic(stage / "weights.json", _sidecar(plan, with_long) | _measurement_fields(measurement))
+        advance(steps[4])
         if figures:
             _write_figures(plan, stage)
+        advance(steps[5])
         written = sorted(p.name for p in stage.iterdir())
     return [Path(out_dir) / name for name in written]
 
 
-def _weights_csv(plan: Plan) -> str:
+def _write_channels_csv(plan: Plan, path: Path, each_frequency: Callable[[int], None]) -> None:
+    """``channels.csv`` streamed a frequency at a time; every derived column computed once."""
     ch = plan.channels
-    buf = io.StringIO()
-    buf.write("frequency_hz,channel,side,element,re,im\n")
-    for f, hz in enumerate(ch.axis.hz):
-        for j in range(ch.n_channels):
-            for side, names, w in (("drive", ch.speaker_names, ch.drive), ("combine", ch.mic_names, ch.combine)):
-                for e, name in enumerate(names):
-                    z = w[f, e, j]
-                    buf.write(f"{hz:.10g},{j + 1},{side},{name},{z.real:.12g},{z.imag:.12g}\n")
-    return buf.getvalue()
+    hz, s, power = ch.axis.hz, ch.singular_values, ch.power_coupling
+    share, level, computed = ch.share_of_sum_rule(), ch.level_db(), ch.channels_computed()
+    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+        fh.write(_CHANNEL_HEADER)
+        for f in range(len(hz)):
+            f_text, n = _fmt(hz[f]), int(computed[f])
+            rows = zip(range(1, n + 1), s[f, :n].tolist(), power[f, :n].tolist(), share[f, :n].tolist(),
+                       level[f, :n].tolist())
+            if np.all(np.isfinite(share[f, :n])) and np.all(np.isfinite(power[f, :n])) \
+                    and not np.any(np.isnan(level[f, :n])):
+                # all finite (level may be -inf, which %g writes as -inf): one format per row
+                line = f_text + ",%d,%.10g,%.10g,%.10g,%.10g\n"
+                fh.write("".join([line % row for row in rows]))
+            else:
+                fh.write("".join(f"{f_text},{j},{_fmt(a)},{_fmt(b)},{_fmt(c)},{_fmt_level(d)}\n"
+                                 for j, a, b, c, d in rows))
+            each_frequency(f)
 
 
-def _sidecar(plan: Plan) -> dict[str, Any]:
+def _write_summary_csv(plan: Plan, path: Path) -> None:
+    ch = plan.channels
+    hz = ch.axis.hz
+    strong, usable, eff = plan.strong_channels, plan.usable_channels, ch.effective_channels()
+    header = _SUMMARY_HEADER + (_TRUNCATED_HEADER if ch.truncated else [])
+    computed, left = ch.channels_computed(), ch.share_not_computed()
+    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(header)
+        for f in range(len(hz)):
+            row = [_fmt(hz[f]), _fmt(ch.sum_rule[f]), int(strong[f]), int(usable[f]), _fmt(eff[f]),
+                   _fmt(plan.estimate.counts[f])]
+            w.writerow(row + ([int(computed[f]), _fmt(left[f])] if ch.truncated else []))
+
+
+def _write_weights_csv(plan: Plan, path: Path, each_frequency: Callable[[int], None]) -> None:
+    """The long table, streamed a frequency and channel at a time."""
+    ch = plan.channels
+    computed = ch.channels_computed()
+    sides = (("drive", ch.speaker_names, ch.drive), ("combine", ch.mic_names, ch.combine))
+    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+        fh.write("frequency_hz,channel,side,element,re,im\n")
+        for f, hz in enumerate(ch.axis.hz):
+            for j in range(int(computed[f])):
+                for side, names, w in sides:
+                    head = f"{hz:.10g},{j + 1},{side},"
+                    col = w[f, :, j]
+                    fh.write("".join(f"{head}{name},{z.real:.12g},{z.imag:.12g}\n"
+                                     for name, z in zip(names, col.tolist())))
+            each_frequency(f)
+
+
+def _sidecar(plan: Plan, with_long: bool = True) -> dict[str, Any]:
     ch, rig = plan.channels, plan.rig
-    return {
+    truncation = None
+    if ch.truncated:
+        truncation = {"channels_computed_max": int(np.max(ch.channels_computed())),
+                      "channels_computed_min": int(np.min(ch.channels_computed())),
+                      "largest_share_not_computed": float(np.max(ch.share_not_computed())),
+                      "note": "only the strongest channels were computed at each frequency (computed_channels "
+                              "in weights.npz, channels_computed in summary.csv); the sum rule comes from G, "
+                              "and share_not_computed is the part of it in the channels not computed"}
+    doc = {
         "kind": "arrayplan-plan",
         "format_version": 1,
         "rig": {"name": rig.name, "source": rig.source, "sha256": rig.sha256,
                 "speed_of_sound_m_per_s": rig.medium.speed_of_sound, "air_absorption": rig.medium.air_absorption},
         "kernel": plan.kernel_name,
         "kernel_settings": plan.kernel_settings,
-        "coupling": "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)",
+        "coupling": coupling_text(),
         "channels": "G = U S V^H per frequency; drive = V, combine = conj(U); power coupling = s^2",
         "normalisation": NORMALISATION,
         "phase_convention": PHASE,
         "tracked": ch.tracked,
+        "precision": "single (complex64 SVD)" if ch.drive.dtype == np.complex64 else "double (complex128)",
+        "truncated": truncation,
         "speaker_names": list(ch.speaker_names),
         "mic_names": list(ch.mic_names),
         "speaker_positions_m": rig.speakers.positions.tolist(),
@@ -130,11 +242,16 @@ def _sidecar(plan: Plan) -> dict[str, Any]:
                       "speaker_aperture": plan.estimate.speaker_size, "mic_aperture": plan.estimate.mic_size,
                       "warning": plan.estimate.warning},
         "files": {"weights.npz": "frequency_hz (n_freq,), singular_value (n_freq, n_chan), drive (n_freq, n_spk, "
-                                 "n_chan), combine (n_freq, n_mic, n_chan)",
-                  "weights.csv": "frequency_hz, channel (1-based), side (drive|combine), element, re, im"},
+                                 "n_chan), combine (n_freq, n_mic, n_chan), sum_rule (n_freq,)"
+                                 + (", computed_channels (n_freq,)" if ch.truncated else ""),
+                  "weights.csv": ("frequency_hz, channel (1-based), side (drive|combine), element, re, im"
+                                  if with_long else
+                                  f"not written: {long_table_rows(plan)} rows exceed {LONG_TABLE_MAX_ROWS}; "
+                                  "weights.npz holds every weight (ask for the long table to write it)")},
         "provenance": provenance(rig_sha256=rig.sha256),
         **_piston_note(rig),
     }
+    return doc
 
 
 def _piston_note(rig) -> dict[str, str]:
@@ -153,8 +270,67 @@ def _piston_note(rig) -> dict[str, str]:
     return {"level_convention": note + "; valid beyond the Rayleigh distance pi a^2 / lambda"}
 
 
+def coupling_text(units: str | None = None) -> str:
+    """The ``coupling`` line of ``weights.json``: free field (`units` None) or an IR set's `units`."""
+    if units is None:
+        return "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)"
+    return (f"G[f, m, s]: measured transfer function from speaker s's drive to microphone m, in the IR set's "
+            f"units: {MEASURED_UNITS.get(units, units)}")
+
+
+def measurement_record(irset_path: str | os.PathLike, kernel: Any) -> dict[str, Any]:
+    """What ``weights.json`` records of the IR set a plan was made from.
+
+    Parameters
+    ----------
+    irset_path : path
+        The IR-set folder (its ``irset.json`` is hashed) or AES69 (SOFA) file
+        (the file is hashed).
+    kernel : MeasuredKernel
+        The kernel planned from (:class:`arrayplan.kernels.measured.MeasuredKernel`):
+        its units, window (s), latency (samples) and smoothing (octaves).
+
+    Returns
+    -------
+    dict
+        ``irset`` (``path``, ``sha256`` and ``hashed_file``, ``format``,
+        ``format_version``), ``units``, ``units_meaning``, ``sample_rate_hz``,
+        ``zero_lag_samples``, ``window_ms``, ``latency_samples`` and
+        ``smoothing_octaves`` (None where not used).
+    """
+    import hashlib
+
+    path = Path(irset_path)
+    hashed = path if path.suffix.lower() == ".sofa" else path / "irset.json"
+    try:
+        raw = hashed.read_bytes()
+    except OSError as exc:
+        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(hashed)) from None
+    if hashed.suffix.lower() == ".sofa":
+        fmt, version = "AES69 (SOFA)", None
+    else:
+        try:
+            manifest = json.loads(raw.decode("utf-8"))
+        except (UnicodeDecodeError, json.JSONDecodeError):
+            manifest = {}
+        fmt, version = manifest.get("format"), manifest.get("format_version")
+    return {"irset": {"path": str(path), "hashed_file": hashed.name, "sha256": hashlib.sha256(raw).hexdigest(),
+                      "format": fmt, "format_version": version},
+            "units": kernel.units, "units_meaning": MEASURED_UNITS.get(kernel.units, kernel.units),
+            "sample_rate_hz": float(kernel.sample_rate_hz), "zero_lag_samples": int(kernel.zero_lag_samples),
+            "window_ms": None if kernel.window_s is None else 1e3 * float(kernel.window_s),
+            "latency_samples": int(kernel.latency_samples),
+            "smoothing_octaves": kernel.smoothing_octaves}
+
+
+def _measurement_fields(measurement: dict[str, Any] | None) -> dict[str, Any]:
+    """The ``weights.json`` fields of a plan made from measured responses (none for a free-field plan)."""
+    if measurement is None:
+        return {}
+    return {"coupling": coupling_text(measurement["units"]), "measurement": measurement}
+
+
 def _write_figures(plan: Plan, folder: Path) -> None:
-    from .fileio import atomic_path
     from .plots import plot_channel_counts, plot_couplings, plot_rig
 
     for name, fig in (("rig.png", plot_rig(plan.rig)), ("couplings.png", plot_couplings(plan)),
@@ -176,7 +352,8 @@ class PlanWeights:
     sidecar : dict
     """
 
-    def __init__(self, axis, singular_values, drive, combine, speaker_names, mic_names, sidecar) -> None:
+    def __init__(self, axis, singular_values, drive, combine, speaker_names, mic_names, sidecar, sum_rule=None,
+                 computed=None) -> None:
         self.axis = axis
         self.singular_values = singular_values
         self.drive = drive
@@ -184,10 +361,59 @@ class PlanWeights:
         self.speaker_names = speaker_names
         self.mic_names = mic_names
         self.sidecar = sidecar
+        self.sum_rule = sum_rule      # (n_freq,), None from plans written before it was stored
+        self.computed = computed      # (n_freq,) channels computed in a truncated plan, else None
+
+
+#: Arrays of ``weights.npz`` and the number of dimensions of each.
+_WEIGHT_ARRAYS = {"frequency_hz": 1, "singular_value": 2, "drive": 3, "combine": 3, "speaker_names": 1,
+                  "mic_names": 1}
+
+
+#: Arrays that newer plans add: the sum rule from G, and the channels computed of a truncated plan.
+_OPTIONAL_ARRAYS = ("sum_rule", "computed_channels")
+
+
+def _weight_arrays(npz: Path) -> dict[str, np.ndarray]:
+    """The arrays of a plan's ``weights.npz``, with their shapes checked against each other."""
+    import zipfile
+
+    src = str(npz)
+    try:
+        with np.load(npz, allow_pickle=False) as z:
+            missing = sorted(set(_WEIGHT_ARRAYS) - set(z.files))
+            if missing:
+                raise InputError(f"has no array {', '.join(missing)}", source=src,
+                                 fix="run 'arrayplan plan' again to rewrite the folder")
+            data = {k: z[k] for k in _WEIGHT_ARRAYS}
+            data.update({k: z[k] for k in _OPTIONAL_ARRAYS if k in z.files})
+    except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:
+        raise InputError(f"not a readable NumPy archive ({exc.__class__.__name__}: {' '.join(str(exc).split())})",
+                         source=src, fix="run 'arrayplan plan' again to rewrite the folder") from None
+    for key, ndim in _WEIGHT_ARRAYS.items():
+        if data[key].ndim != ndim:
+            raise InputError(f"expected {ndim} dimensions, got shape {data[key].shape}", source=src, field=key)
+    n_f, n_c = data["singular_value"].shape
+    expected = {"frequency_hz": (n_f,), "drive": (n_f, len(data["speaker_names"]), n_c),
+                "combine": (n_f, len(data["mic_names"]), n_c)}
+    for key, shape in expected.items():
+        if data[key].shape != shape:
+            raise InputError(f"shape {data[key].shape} does not match the other arrays (expected {shape})",
+                             source=src, field=key)
+    return data
 
 
 def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
-    """Read ``weights.npz`` and ``weights.json`` from a plan folder, with checks."""
+    """Read ``weights.npz`` and ``weights.json`` from a plan folder, with checks.
+
+    The folder must match its checksums (:func:`arrayplan.fileio.check_folder`),
+    so weights of one run are never read beside a sidecar of another.
+
+    Raises
+    ------
+    InputError
+        A missing, damaged or mixed file, naming it.
+    """
     folder = Path(plan_dir)
     npz, side = folder / "weights.npz", folder / "weights.json"
     for p in (npz, side):
@@ -195,17 +421,18 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
             raise InputError("missing", source=str(p), fix="point at a folder written by 'arrayplan plan'")
     try:
         sidecar = json.loads(side.read_text(encoding="utf-8"))
-        with np.load(npz, allow_pickle=False) as z:
-            data = {k: z[k] for k in ("frequency_hz", "singular_value", "drive", "combine", "speaker_names",
-                                      "mic_names")}
-    except (ValueError, KeyError, OSError) as exc:
-        raise InputError(f"cannot read plan weights ({exc})", source=str(folder)) from None
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
+        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(side),
+                         fix="run 'arrayplan plan' again to rewrite the folder") from None
+    data = _weight_arrays(npz)
+    check_folder(folder, needed=("weights.*", "*.csv"))
     return PlanWeights(FrequencyAxis(data["frequency_hz"], source=str(npz)), data["singular_value"],
                        data["drive"], data["combine"], tuple(str(x) for x in data["speaker_names"]),
-                       tuple(str(x) for x in data["mic_names"]), sidecar)
+                       tuple(str(x) for x in data["mic_names"]), sidecar, data.get("sum_rule"),
+                       data.get("computed_channels"))
 
 
-def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None) -> Plan:
+def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None, weights: PlanWeights | None = None) -> Plan:
     """Rebuild the :class:`Plan` a plan folder was written from.
 
     Parameters
@@ -216,12 +443,15 @@ def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None) -> Plan:
         The rig the plan was made for (it must have the plan's element names,
         in order).  Default: a rig of omnidirectional elements at the
         positions stored in ``weights.json``, with its speed of sound.
+    weights : PlanWeights, optional
+        The folder's weights when the caller has read them already (for
+        example memory-mapped); default: :func:`read_weights`.
 
     Returns
     -------
     Plan
         Channels, counts and the paraxial estimate as planned; the sum rule
-        is taken as the sum of s^2 (equal to sum |G|^2 by the SVD).
+        as stored (older plans: the sum of s^2, equal to sum |G|^2 by the SVD).
 
     Raises
     ------
@@ -229,7 +459,7 @@ def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None) -> Plan:
         When the folder lacks its files, or (without `rig`) was written by a
         version that did not store positions.
     """
-    w = read_weights(plan_dir)
+    w = weights if weights is not None else read_weights(plan_dir)
     side = w.sidecar
     src = str(Path(plan_dir) / "weights.json")
     if rig is None:
@@ -249,8 +479,9 @@ def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None) -> Plan:
         raise InputError("the rig's element names differ from the plan's", source=src, field="speaker_names",
                          fix="give the rig file the plan was made from")
     sv = np.asarray(w.singular_values, dtype=float)
-    channels = ChannelSet(w.axis, sv, w.drive, w.combine, np.sum(sv ** 2, axis=1), w.speaker_names,
-                          w.mic_names, bool(side.get("tracked", False)))
+    sum_rule = np.sum(sv ** 2, axis=1) if w.sum_rule is None else np.asarray(w.sum_rule, dtype=float)
+    channels = ChannelSet(w.axis, sv, w.drive, w.combine, sum_rule, w.speaker_names,
+                          w.mic_names, bool(side.get("tracked", False)), w.computed)
     estimate = paraxial_estimate(rig.speakers.positions, rig.mics.positions,
                                  w.axis.wavelengths(rig.medium.speed_of_sound))
     return Plan(rig, channels, estimate, float(side.get("threshold_db", 3.0)), float(side.get("snr_db", 40.0)),
@@ -278,6 +509,16 @@ def summary_lines(plan: Plan, max_rows: int = 12) -> list[str]:
                      f"{100 * share[f].max():18.1f}")
     if len(picks) < len(hz):
         lines.append(f"({len(hz) - len(picks)} more frequencies in summary.csv)")
+    if ch.truncated:
+        n = ch.channels_computed()
+        lines.append(f"truncated plan: only the strongest {n.min()}..{n.max()} of {min(len(rig.speakers), len(rig.mics))} "
+                     f"channels computed per frequency; at most {100 * ch.share_not_computed().max():.3g} % of "
+                     f"the sum rule lies in the channels not computed")
+        weakest = ch.level_db()[np.arange(len(hz)), np.maximum(n - 1, 0)]
+        short = int(np.sum(weakest > -abs(plan.snr_db)))
+        if short:
+            lines.append(f"note: at {short} of {len(hz)} frequencies the weakest computed channel is still above "
+                         f"the noise floor, so the usable count there is a lower bound; compute more channels")
     lines.append(f"strong: within {plan.threshold_db:g} dB of the strongest channel; usable: above the noise "
                  f"floor at an SNR of {plan.snr_db:g} dB on the strongest channel")
     return lines

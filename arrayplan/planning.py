@@ -58,7 +58,9 @@ class Plan:
 
 def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | None = None,
              threshold_db: float | None = None, snr_db: float | None = None, track: bool | None = None,
-             chunk_size: int | None = None, progress: Callable[[int, int], None] | None = None) -> Plan:
+             chunk_size: int | None = None, progress: Callable[[int, int], None] | None = None,
+             workers: int | None = None, scheduler: str | None = None, max_channels: int | str | None = None,
+             memory_mb: float | None = None, precision: str = "double") -> Plan:
     """Plan the channels of `rig`.
 
     Parameters
@@ -68,11 +70,17 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
         Frequencies (default: the rig file's ``[frequencies]``).
     kernel : Kernel, optional
         Source of the coupling matrices (default: the rig's room when it has
-        one, else its free field).
-    threshold_db, snr_db, track, chunk_size : optional
-        Override the rig file's ``[planning]`` settings.
+        one, else its free field).  It must pickle to run on workers.
+    threshold_db, snr_db, track, chunk_size, workers, max_channels, memory_mb : optional
+        Override the rig file's ``[planning]`` settings (see
+        :func:`arrayplan.channels.decompose`; ``max_channels="auto"`` starts
+        from the paraxial estimate and grows to below the `snr_db` floor).
     progress : callable, optional
         ``progress(done, total)`` after each chunk.
+    scheduler : str, optional
+        ``"local:N"`` or a Dask scheduler address (:mod:`arrayplan.parallel`).
+    precision : {"double", "single"}
+        Arithmetic of the SVD (see :func:`arrayplan.channels.decompose`).
 
     Returns
     -------
@@ -81,15 +89,24 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
     axis = axis if axis is not None else rig.frequencies
     if axis is None:
         raise InputError("no frequencies to plan at", source=rig.source, field="frequencies",
-                         fix="add a [frequencies] table or give --freq")
+                         fix="add a [frequencies] table or give the frequencies to plan at")
     settings = rig.planning
     kern = kernel if kernel is not None else rig_kernel(rig)
-    channels: ChannelSet = decompose(kern, axis, chunk_size=chunk_size or settings.chunk_size,
-                                     track=settings.track if track is None else track, progress=progress)
-    described = kernel_settings(kern)
     estimate = paraxial_estimate(rig.speakers.positions, rig.mics.positions,
                                  axis.wavelengths(rig.medium.speed_of_sound))
+    snr = settings.snr_db if snr_db is None else float(snr_db)
+    top = settings.max_channels if max_channels is None else max_channels
+    try:
+        channels: ChannelSet = decompose(
+            kern, axis, chunk_size=chunk_size or settings.chunk_size, track=settings.track if track is None else track,
+            progress=progress, workers=settings.workers if workers is None else workers, scheduler=scheduler,
+            max_channels=top, floor_db=snr, first_guess=estimate.counts,
+            memory_mb=settings.memory_mb if memory_mb is None else memory_mb, precision=precision)
+    except InputError as exc:
+        if exc.field != "max_channels" or max_channels is not None:
+            raise
+        raise InputError(exc.problem, source=rig.source, field="planning.max_channels", fix=exc.fix) from None
+    described = kernel_settings(kern)
     return Plan(rig, channels, estimate,
-                settings.threshold_db if threshold_db is None else float(threshold_db),
-                settings.snr_db if snr_db is None else float(snr_db),
+                settings.threshold_db if threshold_db is None else float(threshold_db), snr,
                 getattr(kern, "name", described["kernel"]), described)

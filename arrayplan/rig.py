@@ -14,7 +14,7 @@ import io
 import json
 import math
 import sys
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Sequence
 
@@ -25,6 +25,7 @@ from .directivity import OMNI, Directivity, parse_directivity
 from .errors import InputError
 from .fileio import sha256_of_text
 from .frequency import FrequencyAxis
+from .limits import MAX_CHANNEL_NUMBER, MAX_ELEMENTS_PER_SIDE, MAX_FREQUENCIES
 from .medium import Medium, speed_of_sound_air
 from .room import ROOM_KEYS, Room, parse_room
 
@@ -39,6 +40,12 @@ __all__ = ["ElementSet", "HardwareMap", "PlanSettings", "Rig", "load_rig", "read
 
 #: Two elements closer than this (metres) are taken as coincident.
 COINCIDENT_M = 1e-6
+#: Largest coordinate accepted in a rig, m (1000 km: distances between elements stay far from overflow).
+MAX_COORDINATE_M = 1e6
+#: Coincident pairs listed at most (a rig with every element at one point would have n^2 / 2).
+MAX_COINCIDENT_LISTED = 100
+#: Air temperatures accepted, °C.
+TEMPERATURE_RANGE_C = (-100.0, 100.0)
 
 
 @dataclass(frozen=True)
@@ -97,14 +104,24 @@ class PlanSettings:
     track : bool
         Order and phase-align channels from bin to bin (see
         :func:`arrayplan.channels.track_channels`).
-    chunk_size : int
-        Frequencies evaluated and decomposed at once (bounds memory).
+    chunk_size : int, optional
+        Frequencies evaluated and decomposed at once; default from
+        `memory_mb`.
+    workers : int, optional
+        Worker processes; default every core for a large plan.
+    max_channels : int or "auto", optional
+        Compute only the strongest channels (see :mod:`arrayplan.topk`).
+    memory_mb : float
+        Working-memory budget per worker that sets the default chunk size, MB.
     """
 
     threshold_db: float = 3.0
     snr_db: float = 40.0
     track: bool = False
-    chunk_size: int = 64
+    chunk_size: int | None = None
+    workers: int | None = None
+    max_channels: int | str | None = None
+    memory_mb: float = 64.0
 
 
 @dataclass(frozen=True)
@@ -121,6 +138,7 @@ class Rig:
     description: str = ""
     source: str = "<arrays>"
     room: Room | None = None
+    zones: tuple = ()  # of arrayplan.zones.Zone, from [[zones]]
 
     @property
     def sha256(self) -> str:
@@ -231,14 +249,50 @@ def _repeats(values: Sequence[str], what: str, source: str, label: str) -> list[
     return out
 
 
+def coincident_pairs(a: np.ndarray, b: np.ndarray | None = None, radius_m: float = COINCIDENT_M,
+                     limit: int = MAX_COINCIDENT_LISTED) -> list[tuple[int, int]]:
+    """Pairs of points closer than `radius_m`, found with a KD-tree (n log n time, linear memory).
+
+    Parameters
+    ----------
+    a : ndarray, shape (n, 3)
+        Positions, m; rows that are not finite are skipped.
+    b : ndarray, shape (m, 3), optional
+        Second set; None pairs `a` with itself (each pair once, ``i < j``).
+    radius_m : float
+        Pairs strictly closer than this are returned, m.
+    limit : int
+        Stop after this many pairs.
+
+    Returns
+    -------
+    list of (int, int)
+        Row indices into `a` and `b` (or `a`), ordered by the first index, then the second.
+    """
+    from scipy.spatial import cKDTree
+
+    same = b is None
+    b = a if same else b
+    ia = np.flatnonzero(np.all(np.isfinite(a), axis=1))
+    ib = np.flatnonzero(np.all(np.isfinite(b), axis=1))
+    if not len(ia) or not len(ib):
+        return []
+    r = float(np.nextafter(radius_m, 0.0))            # strictly closer than radius_m
+    tree_b = cKDTree(b[ib])
+    counts = tree_b.query_ball_point(a[ia], r, return_length=True)
+    out: list[tuple[int, int]] = []
+    for k in np.flatnonzero(counts > (1 if same else 0)):
+        i = int(ia[k])
+        for j in sorted(int(ib[m]) for m in tree_b.query_ball_point(a[i], r)):
+            if not same or j > i:
+                out.append((i, j))
+                if len(out) >= limit:
+                    return out
+    return out
+
+
 def _coincident(a: ElementSet, b: ElementSet, source: str, label: str, same: bool) -> list[InputError]:
-    with np.errstate(invalid="ignore"):
-        d = np.linalg.norm(a.positions[:, None, :] - b.positions[None, :, :], axis=-1)
-    if same:
-        d = d + np.diag(np.full(len(a), np.inf))
-    close = np.argwhere(d < COINCIDENT_M)
-    if same:
-        close = close[close[:, 0] < close[:, 1]]
+    close = coincident_pairs(a.positions, None if same else b.positions)
     return [InputError(f"{a.names[i]!r} and {b.names[j]!r} are at the same position "
                        f"{[float(x) for x in np.round(a.positions[i], 6)]}", source=source, field=label,
                        fix="move one of them; elements must be at least 1 µm apart") for i, j in close]
@@ -246,7 +300,7 @@ def _coincident(a: ElementSet, b: ElementSet, source: str, label: str, same: boo
 
 # ---------------------------------------------------------------- rig files
 
-_TOP_KEYS = {"rig", "medium", "frequencies", "speakers", "microphones", "hardware", "planning", "room"}
+_TOP_KEYS = {"rig", "medium", "frequencies", "speakers", "microphones", "hardware", "planning", "room", "zones"}
 _POINT_KEYS = {"name", "position", "directivity", "channel"}
 _GROUP_KEYS = {"name", "shape", "count", "counts", "spacing", "length", "size", "center", "direction",
                "normal", "facing", "radius", "start_deg", "stop_deg", "directivity", "first_channel"}
@@ -259,7 +313,7 @@ TABLE_KEYS = {
     "frequencies": {"list", "start", "stop", "count", "spacing"},
     "hardware": {"device", "sample_rate_hz", "reference", "calibration"},
     "hardware.reference": {"output_channel", "input_channel"},
-    "planning": {"threshold_db", "snr_db", "track", "chunk_size"},
+    "planning": {"threshold_db", "snr_db", "track", "chunk_size", "workers", "max_channels", "memory_mb"},
     "room": ROOM_KEYS,
 }
 
@@ -277,7 +331,9 @@ class FieldReader:
     def fail(self, field: str, problem: str, fix: str | None = None) -> InputError:
         return InputError(problem, source=self.source, field=field, fix=fix)
 
-    def number(self, table: dict, key: str, where: str, default: Any = ..., positive: bool = False) -> float:
+    def number(self, table: dict, key: str, where: str, default: Any = ..., positive: bool = False,
+               low: float = -MAX_COORDINATE_M, high: float = MAX_COORDINATE_M) -> float:
+        """A finite number in ``[low, high]`` (above 0 with `positive`)."""
         if key not in table:
             if default is ...:
                 raise self.fail(f"{where}.{key}", "missing", fix=f"add {key} = <number>")
@@ -287,9 +343,13 @@ class FieldReader:
             raise self.fail(f"{where}.{key}", f"expected a finite number, got {v!r}")
         if positive and v <= 0:
             raise self.fail(f"{where}.{key}", f"must be positive, got {v!r}")
+        if not low <= v <= high:
+            raise self.fail(f"{where}.{key}", f"must be between {low:g} and {high:g}, got {v!r}")
         return float(v)
 
-    def integer(self, table: dict, key: str, where: str, default: Any = ..., minimum: int = 1) -> int:
+    def integer(self, table: dict, key: str, where: str, default: Any = ..., minimum: int = 1,
+                maximum: int = MAX_ELEMENTS_PER_SIDE) -> int:
+        """A whole number in ``[minimum, maximum]``."""
         if key not in table:
             if default is ...:
                 raise self.fail(f"{where}.{key}", "missing", fix=f"add {key} = <whole number>")
@@ -297,9 +357,12 @@ class FieldReader:
         v = table[key]
         if isinstance(v, bool) or not isinstance(v, int) or v < minimum:
             raise self.fail(f"{where}.{key}", f"expected a whole number >= {minimum}, got {v!r}")
+        if v > maximum:
+            raise self.fail(f"{where}.{key}", f"{v} is above the limit of {maximum}")
         return int(v)
 
     def vector(self, table: dict, key: str, where: str, n: int = 3, default: Any = ...) -> tuple:
+        """`n` finite numbers, each at most :data:`MAX_COORDINATE_M` in magnitude."""
         if key not in table:
             if default is ...:
                 raise self.fail(f"{where}.{key}", "missing", fix=f"add {key} = [{', '.join(['0'] * n)}]")
@@ -309,6 +372,8 @@ class FieldReader:
               and all(isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x) for x in v))
         if not ok:
             raise self.fail(f"{where}.{key}", f"expected {n} finite numbers, got {v!r}")
+        if any(abs(x) > MAX_COORDINATE_M for x in v):
+            raise self.fail(f"{where}.{key}", f"values must be at most {MAX_COORDINATE_M:g} in magnitude, got {v!r}")
         return tuple(float(x) for x in v)
 
     def string(self, table: dict, key: str, where: str, default: Any = ...) -> str:
@@ -326,6 +391,10 @@ class FieldReader:
         if unknown:
             raise self.fail(where, f"unknown key(s) {', '.join(unknown)}",
                             fix=f"allowed here: {', '.join(sorted(allowed))}")
+
+
+#: Key under which :class:`csv.DictReader` collects the values beyond the header's columns.
+_EXTRA_VALUES = "\0extra"
 
 
 def read_positions_csv(path: str | Path, *, field: str = "csv") -> tuple[list[str] | None, np.ndarray,
@@ -348,7 +417,7 @@ def read_positions_csv(path: str | Path, *, field: str = "csv") -> tuple[list[st
         raise InputError("file not found", source=src, field=field) from None
     except (UnicodeDecodeError, IsADirectoryError) as exc:
         raise InputError(f"cannot read as UTF-8 text ({exc.__class__.__name__})", source=src) from None
-    reader = csv.DictReader(io.StringIO(text))
+    reader = csv.DictReader(io.StringIO(text), restkey=_EXTRA_VALUES)
     header = [h.strip().lower() for h in (reader.fieldnames or [])]
     if not {"x", "y", "z"} <= set(header):
         raise InputError(f"header must contain x,y,z (found {','.join(header) or 'nothing'})", source=src,
@@ -356,6 +425,15 @@ def read_positions_csv(path: str | Path, *, field: str = "csv") -> tuple[list[st
     reader.fieldnames = header
     names, rows, channels = [], [], []
     for line_no, row in enumerate(reader, start=2):
+        if row.get(_EXTRA_VALUES):
+            n_values = len(header) + len(row[_EXTRA_VALUES])
+            raise InputError(f"{n_values} values under a header of {len(header)} columns",
+                             source=src, field=f"line {line_no}", fix=f"one value per column: {','.join(header)}")
+        if any(row.get(c) is None for c in header):
+            raise InputError(f"fewer values than the {len(header)} columns of the header", source=src,
+                             field=f"line {line_no}", fix=f"one value per column: {','.join(header)}")
+        if line_no - 1 > MAX_ELEMENTS_PER_SIDE:
+            raise InputError(f"more than {MAX_ELEMENTS_PER_SIDE} positions", source=src, field=f"line {line_no}")
         try:
             xyz = [float(row[c]) for c in ("x", "y", "z")]
         except (TypeError, ValueError):
@@ -363,6 +441,9 @@ def read_positions_csv(path: str | Path, *, field: str = "csv") -> tuple[list[st
                              field=f"line {line_no}") from None
         if not all(math.isfinite(v) for v in xyz):
             raise InputError("position is not finite", source=src, field=f"line {line_no}")
+        if any(abs(v) > MAX_COORDINATE_M for v in xyz):
+            raise InputError(f"coordinates must be at most {MAX_COORDINATE_M:g} m in magnitude, got {xyz}",
+                             source=src, field=f"line {line_no}")
         rows.append(xyz)
         if "name" in header:
             nm = (row.get("name") or "").strip()
@@ -375,8 +456,9 @@ def read_positions_csv(path: str | Path, *, field: str = "csv") -> tuple[list[st
             except (TypeError, ValueError):
                 raise InputError(f"channel must be a whole number, got {row.get('channel')!r}", source=src,
                                  field=f"line {line_no}") from None
-            if ch < 1:
-                raise InputError("channels are numbered from 1", source=src, field=f"line {line_no}")
+            if not 1 <= ch <= MAX_CHANNEL_NUMBER:
+                raise InputError(f"channels are numbered from 1 to at most {MAX_CHANNEL_NUMBER}, got {ch}",
+                                 source=src, field=f"line {line_no}")
             channels.append(ch)
     if not rows:
         raise InputError("no positions", source=src, fix="add one line per element below the header")
@@ -458,7 +540,7 @@ def resolve_entry(entry: Any, index: int, label: str, r: "FieldReader", base: Pa
     else:
         pos = np.array([r.vector(entry, "position", where)])
         nm = [r.string(entry, "name", where, default=f"{prefix}{n_before + 1}")]
-        ch = [r.integer(entry, "channel", where)] if "channel" in entry else None
+        ch = [r.integer(entry, "channel", where, maximum=MAX_CHANNEL_NUMBER)] if "channel" in entry else None
         outward = None
     spec = entry.get("directivity")
     if isinstance(spec, dict) and spec.get("axis") in ("outward", "inward") and outward is not None:
@@ -473,7 +555,8 @@ def resolve_entry(entry: Any, index: int, label: str, r: "FieldReader", base: Pa
         d = parse_directivity(spec, source=r.source, field=f"{where}.directivity")
         group_dirs = [d] * len(pos)
     if ch is None:
-        first = r.integer(entry, "first_channel", where, default=next_channel)
+        first = r.integer(entry, "first_channel", where, default=next_channel,
+                          maximum=MAX_CHANNEL_NUMBER - len(pos) + 1)
         ch = list(range(first, first + len(pos)))
     shape = entry["shape"] if kind == "group" else kind
     return EntryElements(shape, tuple(nm), pos, tuple(group_dirs), tuple(ch))
@@ -501,6 +584,9 @@ def _resolve_side(entries: Any, label: str, prefix: str, r: FieldReader, base: P
         part = resolve_entry(entry, i, label, r, base, n_entries=len(entries),
                              n_before=sum(len(p.names) for p in parts), next_channel=next_channel)
         parts.append(part)
+        total = sum(len(p.names) for p in parts)
+        if total > MAX_ELEMENTS_PER_SIDE:
+            raise r.fail(f"{label}[{i}]", f"{total} {label} in all, above the limit of {MAX_ELEMENTS_PER_SIDE}")
         next_channel = max(c for p in parts for c in p.channels) + 1
     return join_entries(parts)
 
@@ -521,6 +607,9 @@ def _group(entry: dict, where: str, r: FieldReader, sole_prefix: str | None, off
         counts = r.vector(entry, "counts", where, n=2)
         if any(c != int(c) or c < 1 for c in counts):
             raise r.fail(f"{where}.counts", f"expected two whole numbers >= 1, got {list(counts)}")
+        if counts[0] * counts[1] > MAX_ELEMENTS_PER_SIDE:
+            raise r.fail(f"{where}.counts", f"{int(counts[0] * counts[1])} elements, above the limit of "
+                                            f"{MAX_ELEMENTS_PER_SIDE}")
         nu, nv = int(counts[0]), int(counts[1])
         if "spacing" in entry and "size" in entry:
             raise r.fail(where, "give spacing or size, not both")
@@ -571,9 +660,10 @@ def _medium(table: Any, r: FieldReader) -> Medium:
     if not isinstance(table, dict):
         raise r.fail("medium", "must be a table")
     r.keys(table, TABLE_KEYS["medium"], "medium")
-    temp = r.number(table, "temperature_c", "medium", default=20.0)
+    temp = r.number(table, "temperature_c", "medium", default=20.0, low=TEMPERATURE_RANGE_C[0],
+                    high=TEMPERATURE_RANGE_C[1])
     if "speed_of_sound" in table:
-        c = r.number(table, "speed_of_sound", "medium", positive=True)
+        c = r.number(table, "speed_of_sound", "medium", positive=True, high=10_000.0)
     else:
         c = speed_of_sound_air(temp)
     absorb = table.get("air_absorption", False)
@@ -602,7 +692,7 @@ def _frequencies(table: Any, r: FieldReader) -> FrequencyAxis | None:
         return FrequencyAxis(vals, source=r.source, field="frequencies.list")
     start = r.number(table, "start", "frequencies", positive=True)
     stop = r.number(table, "stop", "frequencies", positive=True)
-    count = r.integer(table, "count", "frequencies")
+    count = r.integer(table, "count", "frequencies", maximum=MAX_FREQUENCIES)
     spacing = table.get("spacing", "log")
     return FrequencyAxis.spaced(start, stop, count, spacing, source=r.source, field="frequencies")
 
@@ -616,15 +706,15 @@ def _hardware(table: Any, r: FieldReader, base: Path) -> HardwareMap:
     device = table.get("device")
     if device is not None and (isinstance(device, bool) or not isinstance(device, (str, int))):
         raise r.fail("hardware.device", "expected a device index or a name substring")
-    rate = r.number(table, "sample_rate_hz", "hardware", default=None, positive=True)
+    rate = r.number(table, "sample_rate_hz", "hardware", default=None, positive=True, high=768_000.0)
     ref_out = ref_in = None
     if "reference" in table:
         ref = table["reference"]
         if not isinstance(ref, dict):
             raise r.fail("hardware.reference", "must be a table { output_channel = N, input_channel = M }")
         r.keys(ref, TABLE_KEYS["hardware.reference"], "hardware.reference")
-        ref_out = r.integer(ref, "output_channel", "hardware.reference")
-        ref_in = r.integer(ref, "input_channel", "hardware.reference")
+        ref_out = r.integer(ref, "output_channel", "hardware.reference", maximum=MAX_CHANNEL_NUMBER)
+        ref_in = r.integer(ref, "input_channel", "hardware.reference", maximum=MAX_CHANNEL_NUMBER)
     cal = table.get("calibration")
     if cal is not None and not isinstance(cal, str):
         raise r.fail("hardware.calibration", "expected a path (string)")
@@ -640,9 +730,14 @@ def _planning(table: Any, r: FieldReader) -> PlanSettings:
     track = table.get("track", False)
     if not isinstance(track, bool):
         raise r.fail("planning.track", f"expected true or false, got {track!r}")
+    top = table.get("max_channels")
+    if top is not None and top != "auto":
+        top = r.integer(table, "max_channels", "planning")
     return PlanSettings(r.number(table, "threshold_db", "planning", default=3.0, positive=True),
                         r.number(table, "snr_db", "planning", default=40.0, positive=True), track,
-                        r.integer(table, "chunk_size", "planning", default=64))
+                        r.integer(table, "chunk_size", "planning", default=None),
+                        r.integer(table, "workers", "planning", default=None), top,
+                        r.number(table, "memory_mb", "planning", default=64.0, positive=True))
 
 
 def resolve_section(name: str, table: Any, r: FieldReader, base: Path) -> Any:
@@ -722,4 +817,7 @@ def load_rig(path: str | Path) -> Rig:
         room=parse_room(doc.get("room"), r),
     )
     rig.validate()
+    if "zones" in doc:
+        from .zones import resolve_zones
+        rig = replace(rig, zones=resolve_zones(doc["zones"], rig.mics.names, rig.mics.positions, r, base))
     return rig

@@ -137,10 +137,10 @@ def _driver_radius(spacing: float, largest: float) -> float:
 # ------------------------------------------------------------ layouts
 
 def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    n_s, n_m = _count(o["speakers"], "--speakers"), _count(o["mics"], "--mics")
-    d_s = _positive(o["spacing"], "--spacing", "metres")
-    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "--mic-spacing", "metres")
-    dist = _positive(o["distance"], "--distance", "metres")
+    n_s, n_m = _count(o["speakers"], "speakers"), _count(o["mics"], "mics")
+    d_s = _positive(o["spacing"], "spacing", "metres")
+    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "mic_spacing", "metres")
+    dist = _positive(o["distance"], "distance", "metres")
     a = _driver_radius(d_s, 0.015)
     return [
         _table("speakers", "the transmitting line: small drivers on a bar", array=True),
@@ -167,10 +167,10 @@ def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
 
 
 def _facing_grids(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    (su, sv), (mu, mv) = parse_counts(o["speakers"], "--speakers"), parse_counts(o["mics"], "--mics")
-    d_s = _positive(o["spacing"], "--spacing", "metres")
-    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "--mic-spacing", "metres")
-    dist = _positive(o["distance"], "--distance", "metres")
+    (su, sv), (mu, mv) = parse_counts(o["speakers"], "speakers"), parse_counts(o["mics"], "mics")
+    d_s = _positive(o["spacing"], "spacing", "metres")
+    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "mic_spacing", "metres")
+    dist = _positive(o["distance"], "distance", "metres")
     a = _driver_radius(d_s, 0.015)
     return [
         _table("speakers", "a flat panel of drivers", array=True),
@@ -197,13 +197,13 @@ def _facing_grids(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
 
 
 def _ring_zone(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    n_s = _count(o["speakers"], "--speakers", minimum=3)
-    mu, mv = parse_counts(o["mics"], "--mics")
-    radius = _positive(o["radius"], "--radius", "metres")
-    d_m = _positive(o["mic_spacing"], "--mic-spacing", "metres")
+    n_s = _count(o["speakers"], "speakers", minimum=3)
+    mu, mv = parse_counts(o["mics"], "mics")
+    radius = _positive(o["radius"], "radius", "metres")
+    d_m = _positive(o["mic_spacing"], "mic_spacing", "metres")
     if max(mu - 1, mv - 1) * d_m * math.sqrt(2) / 2 >= 0.9 * radius:
         raise InputError(f"a {mu}x{mv} grid at {d_m:g} m does not fit well inside a ring of radius {radius:g} m",
-                         source="--mic-spacing", fix="use fewer microphones, closer spacing or a larger --radius")
+                         source="mic_spacing", fix="use fewer microphones, closer spacing or a larger `radius`")
     chord = 2.0 * radius * math.sin(math.pi / n_s)
     a = _driver_radius(chord, 0.05)
     return [
@@ -231,15 +231,15 @@ def _ring_zone(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
 
 
 def _two_zones(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    n_s = _count(o["speakers"], "--speakers")
-    mu, mv = parse_counts(o["mics"], "--mics")
-    d_s = _positive(o["spacing"], "--spacing", "metres")
-    d_m = _positive(o["mic_spacing"], "--mic-spacing", "metres")
-    dist = _positive(o["distance"], "--distance", "metres")
-    gap = _positive(o["zone_separation"], "--zone-separation", "metres")
+    n_s = _count(o["speakers"], "speakers")
+    mu, mv = parse_counts(o["mics"], "mics")
+    d_s = _positive(o["spacing"], "spacing", "metres")
+    d_m = _positive(o["mic_spacing"], "mic_spacing", "metres")
+    dist = _positive(o["distance"], "distance", "metres")
+    gap = _positive(o["zone_separation"], "zone_separation", "metres")
     if gap <= (mu - 1) * d_m:
         raise InputError(f"zones {gap:g} m apart overlap: each is {(mu - 1) * d_m:g} m wide",
-                         source="--zone-separation", fix="separate the zones further or use fewer microphones")
+                         source="zone_separation", fix="separate the zones further or use fewer microphones")
     a = _driver_radius(d_s, 0.04)
     lines = [
         _table("speakers", "a line array in front of both zones", array=True),
@@ -270,9 +270,9 @@ def _two_zones(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
 
 
 def _bench(o: dict[str, Any], c: float) -> tuple[list[str], list[float]]:
-    n_s, n_m = _count(o["speakers"], "--speakers", minimum=1), _count(o["mics"], "--mics", minimum=1)
-    d = _positive(o["spacing"], "--spacing", "metres")
-    dist = _positive(o["distance"], "--distance", "metres")
+    n_s, n_m = _count(o["speakers"], "speakers", minimum=1), _count(o["mics"], "mics", minimum=1)
+    d = _positive(o["spacing"], "spacing", "metres")
+    dist = _positive(o["distance"], "distance", "metres")
     a = _driver_radius(d, 0.015)
     lines: list[str] = []
     for label, n, y, prefix, what in (("speakers", n_s, 0.0, "D", "driver"), ("microphones", n_m, dist, "K",
@@ -325,20 +325,20 @@ ROOM_MARGIN_M = 0.1
 
 
 def option_flag(option: str) -> str:
-    """The command-line flag of a starter option (``temperature_c`` -> ``--temperature``)."""
-    return "--temperature" if option == "temperature_c" else "--" + option.replace("_", "-")
+    """A starter option as messages name it (```spacing```); the command line shows its own flag there."""
+    return f"`{option}`"
 
 
 def _resolve_options(layout: str, options: dict[str, Any]) -> tuple[Layout, dict[str, Any]]:
     if layout not in LAYOUTS:
         raise InputError(f"unknown layout {layout!r}", source="LAYOUT",
-                         fix=f"choose one of {', '.join(LAYOUTS)} (see 'arrayplan new-rig --list')")
+                         fix=f"choose one of {', '.join(LAYOUTS)} (the starter layouts)")
     lay = LAYOUTS[layout]
     allowed = dict(COMMON_DEFAULTS, **lay.defaults)
     given = {k: v for k, v in options.items() if v is not None}
     unknown = sorted(set(given) - set(allowed))
     if unknown:
-        raise InputError(f"does not apply to the {layout} layout", source=option_flag(unknown[0]),
+        raise InputError(f"does not apply to the {layout} layout", source=unknown[0],
                          fix=f"{layout} takes {', '.join(option_flag(k) for k in allowed)}")
     return lay, dict(allowed, **given)
 
@@ -376,20 +376,20 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
     lay, o = _resolve_options(layout, options)
     temp = o["temperature_c"]
     if isinstance(temp, bool) or not isinstance(temp, (int, float)) or not -60.0 <= temp <= 60.0:
-        raise InputError(f"expected an air temperature from -60 to 60 °C, got {temp!r}", source="--temperature")
+        raise InputError(f"expected an air temperature from -60 to 60 °C, got {temp!r}", source="temperature")
     if o["speed_of_sound"] is not None:
-        c = _positive(o["speed_of_sound"], "--speed-of-sound", "m/s")
+        c = _positive(o["speed_of_sound"], "speed_of_sound", "m/s")
         medium = [_kv("speed_of_sound", c, "m/s, as measured (or give temperature_c instead)")]
     else:
         c = speed_of_sound_air(float(temp))
         medium = [_kv("temperature_c", float(temp), f"air temperature, °C; sets c = {c:.1f} m/s")]
     body, spacings = lay.body(o, c)
     f_alias = c / (2.0 * max(spacings))
-    fmax = _positive(o["fmax"], "--fmax", "Hz") if o["fmax"] is not None else _round_down(f_alias)
-    fmin = _positive(o["fmin"], "--fmin", "Hz") if o["fmin"] is not None else _round_down(fmax / 8.0)
+    fmax = _positive(o["fmax"], "fmax", "Hz") if o["fmax"] is not None else _round_down(f_alias)
+    fmin = _positive(o["fmin"], "fmin", "Hz") if o["fmin"] is not None else _round_down(fmax / 8.0)
     if fmin >= fmax:
-        raise InputError(f"must be below the top frequency {fmax:g} Hz, got {fmin:g} Hz", source="--fmin")
-    count = _count(o["freq_count"], "--freq-count", minimum=2)
+        raise InputError(f"must be below the top frequency {fmax:g} Hz, got {fmin:g} Hz", source="fmin")
+    count = _count(o["freq_count"], "freq_count", minimum=2)
     name = o["name"] or layout
     lay_note = (f"the top frequency {fmax:g} Hz is the highest this spacing samples without grating lobes"
                 if o["fmax"] is None else f"top frequency as asked; spacing allows up to {f_alias:.0f} Hz")
@@ -502,7 +502,7 @@ def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = Fal
     path = Path(path)
     if path.exists() and not force:
         raise InputError("already exists; not replaced", source=str(path),
-                         fix="choose another --out or add --force")
+                         fix="choose another `out` or add `force`")
     if path.is_dir():
         raise InputError("is a folder", source=str(path), fix="give a file name such as rig.toml")
     text = starter_rig_text(layout, file_name=path.name, **options)

@@ -159,7 +159,8 @@ def align_kernel_names(weights: PlanWeights, kernel: Kernel, *, plan_source: str
             raise InputError(f"{kind} differ: plan has {len(planned)}, IR set has {len(measured)}"
                              + (f" ({'; '.join(what)})" if what else ""), source=measured_source,
                              field=kind, fix=f"measure the rig planned in {plan_source or 'the plan'}, "
-                                             "with the same element names")
+                                             "with the same element names ('arrayplan deconvolve' takes them "
+                                             "from the rig file or plan folder given to it)")
         out_idx[kind] = [measured.index(n) for n in planned]
     if out_idx["speakers"] == list(range(len(out_idx["speakers"]))) and \
             out_idx["microphones"] == list(range(len(out_idx["microphones"]))):
@@ -260,14 +261,14 @@ def wanted_channels(planned_sv: np.ndarray, threshold_db: float,
     n_freq, n_chan = planned_sv.shape
     if isinstance(channels, str):
         if channels != "all":
-            raise InputError(f"expected 'all' or channel numbers, got {channels!r}", source="--channels")
+            raise InputError(f"expected 'all' or channel numbers, got {channels!r}", source="channels")
         want = np.arange(n_chan)
         return want, np.ones((n_freq, n_chan), bool), \
-            f"all {n_chan} planned channels, each judged at every planned frequency (--channels all)"
+            f"all {n_chan} planned channels, each judged at every planned frequency (channels 'all')"
     if channels is not None:
         want = np.asarray(sorted(set(channels)), dtype=int)
         if want.size == 0 or want.min() < 0 or want.max() >= n_chan:
-            raise InputError(f"channels must lie in 1..{n_chan}", source="--channels")
+            raise InputError(f"channels must lie in 1..{n_chan}", source="channels")
         return want, np.ones((n_freq, want.size), bool), \
             f"channels {_ranges([int(j) + 1 for j in want])} as given, each judged at every planned frequency"
     strong = strong_mask(planned_sv, threshold_db)                # (n_freq, n_chan)
@@ -276,7 +277,7 @@ def wanted_channels(planned_sv: np.ndarray, threshold_db: float,
     rule = (f"channels {_ranges([int(j) + 1 for j in want])}: strong in the plan (within {abs(threshold_db):g} dB "
             f"of the strongest) at one or more planned frequencies, each judged only where strong")
     if never:
-        rule += f"; channels {_ranges(never)} are never strong and not judged (--channels all judges every channel)"
+        rule += f"; channels {_ranges(never)} are never strong and not judged (channels 'all' judges every channel)"
     return want, strong[:, want], rule
 
 
@@ -314,7 +315,7 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
     kernel = align_kernel_names(weights, kernel, plan_source=plan_source, measured_source=measured_source)
     if gain_reference not in GAIN_REFERENCES:
         raise InputError(f"must be one of {', '.join(GAIN_REFERENCES)}, got {gain_reference!r}",
-                         source="--gain-reference")
+                         source="gain_reference")
     if threshold_db is None:
         threshold_db = float(weights.sidecar.get("threshold_db", 3.0)) if isinstance(weights.sidecar, dict) else 3.0
     want, judged, rule = wanted_channels(weights.singular_values, threshold_db, channels)
@@ -380,8 +381,8 @@ def judge_channels(hz: np.ndarray, channel_matrix: np.ndarray, g: np.ndarray, pl
     if gain_reference == "common":
         if not np.isfinite(common_db):
             raise InputError("no wanted channel reaches the microphones, so no common gain can be fitted",
-                             source=measured_source, field="--gain-reference",
-                             fix="check the IR set, or use --gain-reference plan")
+                             source=measured_source, field="gain_reference",
+                             fix="check the IR set, or use `gain_reference` plan")
         factor = 10.0 ** (common_db / 20.0)
         c = c / factor
         s_meas = s_meas / factor

@@ -1,6 +1,6 @@
 """Build the report of a large project; print time and memory against bare figure rendering.
 
-Run: python benchmarks/report_speed.py [--n 64] [--freqs 256]
+Run: python benchmarks/report_speed.py [--n 64] [--freqs 256] [--repeats 3]
 
 The project (made beforehand, not counted): a plan of an n x n rig at the
 given number of frequencies, written with write_plan, and the rig's
@@ -11,8 +11,11 @@ free-field IR set (simulated).  Both runs happen in this process:
   does not depend on the data;
 * report: arrayplan.report.build_report on the project folder.
 
-The ratio shows what finding, reading, plotting and encoding the data cost
-beyond matplotlib's own rendering.  Peak memory is measured with tracemalloc,
+The two runs alternate (--repeats times each) and the medians are compared,
+so a busy machine slows both alike; the CPU time of this process
+(time.process_time) is printed beside the wall time, since on a shared
+machine it depends far less on what else runs.  The ratio shows what finding, reading,
+plotting and encoding the data cost beyond matplotlib's own rendering.  Peak memory is measured with tracemalloc,
 in runs of their own (it slows allocation, so it stays out of the timings).
 """
 
@@ -51,6 +54,7 @@ def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--n", type=int, default=64, help="speakers = microphones")
     ap.add_argument("--freqs", type=int, default=256)
+    ap.add_argument("--repeats", type=int, default=3, help="alternating runs of each (median reported)")
     args = ap.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
@@ -61,13 +65,16 @@ def main() -> None:
             for _ in range(n_figs):
                 png_bytes(Figure(figsize=(PAGE_WIDTH_IN, 3.5)).add_subplot().figure)
 
-        t0 = time.perf_counter()
-        html = build_report(folder)
-        t_report = time.perf_counter() - t0
+        html = build_report(folder)                                      # warm-up, and the figure count
         n_figs = html.count("<img ")
-        t0 = time.perf_counter()
-        baseline(n_figs)
-        t_base = time.perf_counter() - t0
+        runs: dict[str, list[tuple[float, float]]] = {"report": [], "baseline": []}
+        for _ in range(max(1, args.repeats)):
+            for name, job in (("report", lambda: build_report(folder)), ("baseline", lambda: baseline(n_figs))):
+                w0, c0 = time.perf_counter(), time.process_time()
+                job()
+                runs[name].append((time.perf_counter() - w0, time.process_time() - c0))
+        (t_report, c_report), (t_base, c_base) = (tuple(np.median(np.array(runs[k]), axis=0))
+                                                  for k in ("report", "baseline"))
         # memory in separate runs: tracemalloc slows allocation, so it stays out of the timings
         peaks = []
         for job in (lambda: build_report(folder), lambda: baseline(n_figs)):
@@ -79,9 +86,13 @@ def main() -> None:
 
     print(f"project: {args.n} speakers x {args.n} microphones, {args.freqs} frequencies, IR set of 2048 samples")
     print(f"report: {n_figs} figures, {len(html) / 2**20:.1f} MiB of HTML")
-    print(f"baseline ({n_figs} empty figures to PNG): {t_base:.2f} s, peak {peak_base / 2**20:.0f} MiB")
-    print(f"report:                              {t_report:.2f} s, peak {peak_report / 2**20:.0f} MiB")
-    print(f"ratio report / baseline: time {t_report / t_base:.1f}x, memory {peak_report / max(peak_base, 1):.1f}x")
+    k = len(runs["report"])
+    print(f"baseline ({n_figs} empty figures to PNG): {t_base:.2f} s wall, {c_base:.2f} s CPU (medians of {k}), "
+          f"peak {peak_base / 2**20:.0f} MiB")
+    print(f"report:                              {t_report:.2f} s wall, {c_report:.2f} s CPU (medians of {k}), "
+          f"peak {peak_report / 2**20:.0f} MiB")
+    print(f"ratio report / baseline: wall time {t_report / t_base:.1f}x, CPU time {c_report / c_base:.1f}x, "
+          f"memory {peak_report / max(peak_base, 1):.1f}x")
 
 
 if __name__ == "__main__":

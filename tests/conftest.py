@@ -92,7 +92,7 @@ def bench_rig(tmp_path):
 
 
 #: Short sweep options for the measure command in tests (keep the suite fast).
-FAST_MEASURE_ARGS = ["--f1", "100", "--duration-s", "0.5", "--ir-s", "0.05", "--max-latency-s", "0.1",
+FAST_MEASURE_ARGS = ["--f1-hz", "100", "--duration-s", "0.5", "--ir-length-s", "0.05", "--max-latency-s", "0.1",
                      "--lead-in-s", "0.1"]
 
 #: How the tests run the command line in a child process.

@@ -211,7 +211,7 @@ def test_calibrate_latency_through_real_audio(audio_server, bench_rig, tmp_path)
         # A software audio server can drop a block under load; the command then refuses to write and
         # says "run it again", as a user would: the test does the same, at most three times.
         done = _cli("calibrate", "latency", str(record), "--output-channel", "4", "--input-channel", "4",
-                    "--device", "pulse", "--rate", "48000", "--yes")
+                    "--device", "pulse", "--rate-hz", "48000", "--yes")
         if "the stream lost samples" not in done.stderr:
             break
         assert not record.exists()                  # nothing written after a lost block

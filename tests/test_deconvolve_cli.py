@@ -10,6 +10,7 @@ import soundfile as sf
 
 import arrayplan.cli as cli
 from arrayplan.irset import read_irset
+from cli_flags import assert_flags_exist
 
 FS = 16000
 SWEEP = ["--f1-hz", "50", "--f2-hz", "3000", "--duration-s", "0.8", "--pad-after-s", "0.25",
@@ -310,5 +311,6 @@ def test_bad_input_is_one_line_and_writes_nothing(tmp_path, capsys, sweep_and_re
     out = tmp_path / "irs"
     rc, _, err = _run(capsys, "deconvolve", *args, "--out", out)
     _one_line_error(rc, err, *words)
+    assert_flags_exist(capsys, err, "deconvolve")
     assert not out.exists()
     assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]

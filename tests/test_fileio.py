@@ -65,3 +65,32 @@ def test_atomic_files_get_the_usual_permissions(tmp_path):
     finally:
         os.umask(old)
     assert path.stat().st_mode & 0o777 == 0o644
+
+
+def _dead_pid() -> int:
+    import subprocess
+    import sys
+
+    child = subprocess.Popen([sys.executable, "-c", "pass"])
+    child.wait()
+    return child.pid
+
+
+def test_a_killed_writers_temporary_file_is_removed_by_the_next_write(tmp_path):
+    dead = _dead_pid()
+    left = tmp_path / f".r.html.staging.{dead}.abc123.html"
+    left.write_text("half a report")
+    mine = tmp_path / f".r.html.staging.{os.getpid()}.def456.html"     # a live writer's: left alone
+    mine.write_text("being written")
+    write_text_atomic(tmp_path / "r.html", "<html></html>")
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted([mine.name, "r.html"])
+
+
+def test_names_up_to_the_file_system_limit_still_stage(tmp_path):
+    # NAME_MAX is 255 bytes on Linux file systems (POSIX <limits.h>; value from memory).
+    long = "p" * 250
+    with staged_output_dir(tmp_path / long) as stage:
+        (stage / "a.csv").write_text("1\n")
+    assert (tmp_path / long / "a.csv").read_text() == "1\n"
+    write_text_atomic(tmp_path / ("f" * 250), "x")
+    assert sorted(len(p.name) for p in tmp_path.iterdir()) == [250, 250]

@@ -121,10 +121,10 @@ position = [0.15, 0, 1]
 
 
 @pytest.mark.parametrize("extra, flag", [
-    (["--rate", "6000", "--band", "500", "4000"], "--rate"),
-    (["--rate", "16000", "--band", "500", "9000"], "--rate"),
-    (["--rate", "16000", "--band", "0", "4000"], "--band"),
-    (["--rate", "16000", "--band", "500", "4000", "--taps", "20"], "--taps"),
+    (["--rate-hz", "6000", "--band-hz", "500", "4000"], "--rate-hz"),
+    (["--rate-hz", "16000", "--band-hz", "500", "9000"], "--rate-hz"),
+    (["--rate-hz", "16000", "--band-hz", "4000", "500"], "--band-hz"),
+    (["--rate-hz", "16000", "--band-hz", "500", "4000", "--taps", "20"], "--taps"),
 ])
 def test_cli_bad_input_exits_2_one_line_nothing_written(tmp_path, capsys, extra, flag):
     rig = tmp_path / "rig.toml"
@@ -140,7 +140,7 @@ def test_cli_writes_filters_and_check(tmp_path, capsys):
     rig = tmp_path / "rig.toml"
     rig.write_text(RIG_TOML)
     out = tmp_path / "out"
-    assert main(["filters", str(rig), "--rate", "16000", "--taps", "512", "--band", "500", "4000",
+    assert main(["filters", str(rig), "--rate-hz", "16000", "--taps", "512", "--band-hz", "500", "4000",
                  "--out", str(out), "--min-level-db", "-60"]) == 0
     text = capsys.readouterr().out
     assert "PASS" in text and "verdict: PASS, 2 of 2" in text and "bulk delay 256 samples" in text

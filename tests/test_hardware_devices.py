@@ -103,7 +103,7 @@ class TestRealPortAudio:
         assert main(["devices"]) == 0
         out = capsys.readouterr().out
         assert "Host APIs:" in out and "pulse" in out and " in " in out
-        assert main(["devices", "--device", "pulse", "--outputs", "4", "--inputs", "4", "--rate", "48000"]) == 0
+        assert main(["devices", "--device", "pulse", "--outputs", "4", "--inputs", "4", "--rate-hz", "48000"]) == 0
         assert "pulse (ALSA" in capsys.readouterr().out
         assert main(["devices", "--device", "ul"]) == 2
         err = capsys.readouterr().err

@@ -280,7 +280,7 @@ def test_plan_and_verify_accept_a_sofa_file(tmp_path, capsys):
     rig = _rig()
     sofa_path = write_irset_sofa(tmp_path / "rig.sofa", free_field_irset(rig, FS, N))
     hz = np.array([100, 200]) * FS / N                  # FFT bins
-    assert main(["plan", "--irset", str(sofa_path), "--freq", str(hz[0]), "--freq", str(hz[1]),
+    assert main(["plan", "--irset", str(sofa_path), "--freq-hz", str(hz[0]), "--freq-hz", str(hz[1]),
                  "--out", str(tmp_path / "p"), "--no-figures"]) == 0
     plan_dir = tmp_path / "plan"
     write_plan(plan_rig(rig, FrequencyAxis(hz)), plan_dir, figures=False)

@@ -74,7 +74,7 @@ def loop(tmp_path_factory):
 
 
 def _filters(root, source, out, *extra):
-    return main(["filters", str(source), "--rate", str(int(FS)), "--band", "500", "4000", "--out", str(root / out),
+    return main(["filters", str(source), "--rate-hz", str(int(FS)), "--band-hz", "500", "4000", "--out", str(root / out),
                  "--crosstalk-limit-db", "-20"] + [str(e) for e in extra])
 
 
@@ -154,12 +154,12 @@ def test_verify_filter_folder_matches_numpy_convolution_and_fft(loop, capsys):
 
 def test_filters_verdict_exit_status_and_remedy(loop, capsys):
     # An unreachable limit makes every channel fail: exit 1, a FAIL verdict and a remedy naming an option.
-    rc = main(["filters", str(loop / "rig.toml"), "--rate", "16000", "--band", "500", "4000", "--taps", "512",
+    rc = main(["filters", str(loop / "rig.toml"), "--rate-hz", "16000", "--band-hz", "500", "4000", "--taps", "512",
                "--out", str(loop / "strict"), "--crosstalk-limit-db", "-400", "--min-level-db", "-6"])
     out = capsys.readouterr().out
     assert rc == 1 and "verdict: FAIL" in out and "remedy:" in out and "--taps auto" in out
     # a lenient limit: --taps auto keeps the first length it tries, and says so
-    rc = main(["filters", str(loop / "rig.toml"), "--rate", "16000", "--band", "500", "4000", "--taps", "auto",
+    rc = main(["filters", str(loop / "rig.toml"), "--rate-hz", "16000", "--band-hz", "500", "4000", "--taps", "auto",
                "--out", str(loop / "auto"), "--crosstalk-limit-db", "-20"])
     out = capsys.readouterr().out
     assert rc == 0 and "512 taps: worst crosstalk" in out and "meets" in out

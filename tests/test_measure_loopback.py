@@ -24,7 +24,7 @@ FS = 48000.0
 
 
 def _measure_cmd(rig, out, *extra):
-    return ARRAYPLAN_COMMAND + ["measure", str(rig), "--out", str(out), "--device", "pulse", "--rate", "48000",
+    return ARRAYPLAN_COMMAND + ["measure", str(rig), "--out", str(out), "--device", "pulse", "--rate-hz", "48000",
                                 "--yes", *FAST_MEASURE_ARGS, *extra]
 
 

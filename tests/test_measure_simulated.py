@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -271,7 +272,7 @@ def test_pre_roll_past_half_way_to_the_second_harmonic_is_refused(rig, tmp_path)
     with pytest.raises(InputError, match="half-way to the 2nd harmonic") as err:
         measure(link, RigWiring.from_rig(rig), tmp_path / "p", MeasurementSettings(**{**FAST.__dict__,
                                                                                       "pre_s": 0.05}))
-    assert err.value.field == "--pre-ms"
+    assert err.value.field == "pre_s"
     assert not (tmp_path / "p").exists()
 
 
@@ -293,3 +294,83 @@ def test_pre_ms_option_of_the_command(bench_rig, tmp_path, capsys):
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "--pre-ms" in err[0] and "half-way to the 2nd harmonic" in err[0], err
     assert not (tmp_path / "b").exists()
+
+
+class _StopAt(SimulatedLink):
+    """A simulated link that raises KeyboardInterrupt (as Ctrl-C would) on its `stop_at`-th call (1-based)."""
+
+    def __init__(self, *a, stop_at: int, **k):
+        super().__init__(*a, **k)
+        self.stop_at, self.calls = stop_at, 0
+
+    def play_record(self, *a, **k):
+        self.calls += 1
+        if self.calls == self.stop_at:
+            raise KeyboardInterrupt
+        return super().play_record(*a, **k)
+
+
+def _resumed_and_uninterrupted(rig, tmp_path, *, stop_at: int, seed: int, fs: float = FS,
+                               settings: MeasurementSettings = FAST):
+    """Measure once without a stop and once stopped at call `stop_at` then resumed by a new link."""
+    wiring = RigWiring.from_rig(rig)
+    n_ir = int(round(settings.ir_s * fs))
+    opts = dict(noise_rms_dbfs=-50.0, dropouts_per_take=1, seed=seed)
+    import tempfile
+
+    base = Path(tempfile.mkdtemp(prefix=f"resume-{seed}-{stop_at}-", dir=tmp_path))  # unique per call
+    whole, parts = base / "whole", base / "parts"
+    measure(SimulatedLink.from_rig(rig, fs, n_ir, **opts), wiring, whole, settings)
+    truth = SimulatedLink.from_rig(rig, fs, n_ir).truth
+    with pytest.raises(KeyboardInterrupt):
+        measure(_StopAt(truth, [0, 1, 2], [0, 1, 2], reference=(3, 3), stop_at=stop_at, **opts), wiring, parts,
+                settings)
+    assert len(completed_takes(parts)) == stop_at - 1
+    again = measure(SimulatedLink.from_rig(rig, fs, n_ir, **opts), wiring, parts, settings)
+    assert len(again.resumed) == stop_at - 1
+    return whole, parts
+
+
+def test_a_resumed_measurement_equals_an_uninterrupted_one_bit_for_bit(rig, tmp_path):
+    whole, parts = _resumed_and_uninterrupted(rig, tmp_path, stop_at=2, seed=7)
+    import soundfile as sf
+
+    for take in ("001-S1", "002-S2", "003-S3"):   # samples, not bytes: a float WAV's PEAK chunk holds a time
+        a, _ = sf.read(whole / "takes" / take / "recording.wav", dtype="float32")
+        b, _ = sf.read(parts / "takes" / take / "recording.wav", dtype="float32")
+        assert np.array_equal(a, b), take
+    a, b = read_irset(whole / "irset"), read_irset(parts / "irset")
+    assert np.array_equal(a.data, b.data)
+    # Noise is on: the takes' recordings differ from a noiseless run.
+    quiet = measure(SimulatedLink.from_rig(rig, FS, N_IR, noise_rms_dbfs=None), RigWiring.from_rig(rig),
+                    tmp_path / "quiet", FAST)
+    assert quiet.irset_path is not None
+    assert not np.array_equal(read_irset(tmp_path / "quiet" / "irset").data, a.data)
+
+
+def test_each_take_has_its_own_noise(rig):
+    link = SimulatedLink.from_rig(rig, FS, N_IR, noise_rms_dbfs=-40.0, nonlinearity=())
+    silence = np.zeros((48000, 2))
+    takes = [link.play_record(silence, [s, 3], [0, 1, 2, 3]).recording for s in range(3)]
+    # Independent white noise of N samples: correlation about N**-0.5 (common practice, no source).
+    limit = 5 / math.sqrt(silence.shape[0])
+    for i in range(3):
+        for j in range(i + 1, 3):
+            r = np.corrcoef(takes[i][:, 0], takes[j][:, 0])[0, 1]
+            assert abs(r) < limit, (i, j, r)
+    # The same take played again by a new link (a resumed run) gets the same noise.
+    fresh = SimulatedLink.from_rig(rig, FS, N_IR, noise_rms_dbfs=-40.0, nonlinearity=())
+    assert np.array_equal(fresh.play_record(silence, [1, 3], [0, 1, 2, 3]).recording, takes[1])
+
+
+def test_a_take_changed_after_it_was_saved_is_refused_when_resuming(rig, tmp_path):
+    wiring = RigWiring.from_rig(rig)
+    out = tmp_path / "m"
+    truth = SimulatedLink.from_rig(rig, FS, N_IR).truth
+    with pytest.raises(KeyboardInterrupt):
+        measure(_StopAt(truth, [0, 1, 2], [0, 1, 2], reference=(3, 3), stop_at=3), wiring, out, FAST)
+    wav = out / "takes" / "002-S2" / "irset" / "spk-001.wav"
+    wav.write_bytes((out / "takes" / "001-S1" / "irset" / "spk-001.wav").read_bytes())   # a take of another speaker
+    with pytest.raises(InputError, match="differs") as err:
+        measure(SimulatedLink.from_rig(rig, FS, N_IR), wiring, out, FAST)
+    assert err.value.source == str(wav) and "measure it again" in err.value.one_line()

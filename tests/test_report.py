@@ -25,7 +25,7 @@ from arrayplan.cli import main
 from arrayplan.plan_files import read_plan
 from arrayplan.report import build_report, find_results
 from arrayplan.report.figures import (MIN_FONT_PT, filter_figures, irset_figures, plan_figures, report_style,
-                                      verification_figures)
+                                      rig_figures, verification_figures)
 from arrayplan.rig import load_rig
 from arrayplan.safety import CAUTION_TEXT
 
@@ -60,6 +60,9 @@ center = [0.0, 1.2, 1.0]
 direction = [1.0, 0.0, 0.0]
 """
 
+#: Exit status of each step of the fixture's pipeline, by command.
+EXIT_CODES: dict[str, int] = {}
+
 VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
 
 
@@ -70,13 +73,14 @@ def project(tmp_path_factory) -> Path:
     rig = root / "rig.toml"
     rig.write_text(RIG_TOML, encoding="utf-8")
     steps = [["plan", str(rig), "--out", str(root / "plan")],
-             ["filters", str(rig), "--rate", "16000", "--band", "400", "4000", "--taps", "512", "--out",
+             ["filters", str(rig), "--rate-hz", "16000", "--band-hz", "400", "4000", "--taps", "512", "--out",
               str(root / "filters")],
-             ["measure", str(rig), "--out", str(root / "meas"), "--simulate", "--yes", "--rate", "16000",
-              "--duration-s", "0.5", "--f1", "100", "--ir-s", "0.1", "--latency-samples", "0"],
+             ["measure", str(rig), "--out", str(root / "meas"), "--simulate", "--yes", "--rate-hz", "16000",
+              "--duration-s", "0.5", "--f1-hz", "100", "--ir-length-s", "0.1", "--latency-samples", "0"],
              ["verify", str(root / "plan"), str(root / "meas" / "irset"), "--out", str(root / "verify")]]
     for argv in steps:
-        assert main(argv) in (0, 1), argv          # verify exits 1 when a channel is lost
+        EXIT_CODES[argv[0]] = main(argv)
+        assert EXIT_CODES[argv[0]] in (0, 1), argv          # verify exits 1 when a channel is lost
     return root
 
 
@@ -181,7 +185,7 @@ def _report_figures(project):
     figs = []
     with report_style():
         for fp in res.plans:
-            figs += plan_figures(fp)
+            figs += rig_figures(fp) + plan_figures(fp)
         for ff in res.filters:
             figs += filter_figures(ff)
         for fi in res.irsets:
@@ -250,6 +254,7 @@ def test_a_result_that_cannot_be_read_is_listed_not_fatal(project, tmp_path):
     del doc["speaker_positions_m"]                        # as written by an older version
     doc["rig"]["source"] = "gone.toml"
     side.write_text(json.dumps(doc))
+    (copy / "plan" / "SHA256SUMS").unlink()               # older versions wrote no checksums
     html = build_report(copy)
     assert "Results that could not be read" in html and "does not store element positions" in html
     assert "Verification: verify" in html
@@ -382,3 +387,171 @@ def test_near_degenerate_pair_of_two_symmetric_zones_is_flagged(tmp_path):
     html = build_report(tmp_path)
     assert "Near-degenerate channels" in html and "channels 1 and 2 at 3 of 3 frequencies" in html
     assert "Degenerate channels (" not in html
+
+
+def _badges(html: str) -> list[tuple[str, str]]:
+    """(status, href) of every line of the conclusions, in order."""
+    block = html[html.index('id="summary"'):html.index("</section>", html.index('id="summary"'))]
+    return re.findall(r'<li><span class="badge (\w+)">[^<]*</span> <a href="#([^"]+)">', block)
+
+
+def _section(html: str, anchor: str) -> str:
+    start = html.index(f'<section id="{anchor}">')
+    return html[start:html.index("</section>", start)]
+
+
+def test_report_opens_with_conclusions_then_contents_then_caution(report_html):
+    p = _parse(report_html)
+    order = [i for i in p.ids if i in ("summary", "contents", "caution")]
+    assert order == ["summary", "contents", "caution"]
+    first_result = min(report_html.index(f'<section id="{k}') for k in ("rig-", "plan-"))
+    assert report_html.index('id="caution"') < first_result
+    badges = _badges(report_html)
+    # one line per result: plan, filters, IR set, verification (the rig has no verdict)
+    assert sorted(a.split("-")[0] for _, a in badges) == ["filters", "irset", "plan", "verify"]
+    nav = report_html[report_html.index('<nav id="contents">'):report_html.index("</nav>")]
+    links = re.findall(r'href="#([^"]+)"', nav)
+    for _, anchor in badges:                        # every result is in the contents and has its section
+        assert anchor in links and anchor in p.ids
+    assert {"summary", "caution", "provenance"} <= set(links)
+    assert any(a.startswith("rig-") for a in links)
+
+
+def test_each_result_has_one_verdict_by_the_commands_exit_rule(project, report_html):
+    # The rule of the commands: exit 0 when every checked channel passes, 1 when some fail.
+    badges = dict((a, st) for st, a in _badges(report_html))
+    for anchor, status in badges.items():
+        section = _section(report_html, anchor)
+        opening = re.findall(r'<p class="verdict"><span class="badge (\w+)">', section)
+        assert opening == [status], anchor          # the section repeats the one verdict, no other
+    doc = json.loads((project / "verify" / "verify.json").read_text())
+    verify_status = badges["verify-verify"]
+    assert verify_status == ("pass" if EXIT_CODES["verify"] == 0 else "fail")
+    assert verify_status == ("pass" if all(doc["passed"]) else "fail")
+    assert f"verified on the rig: {sum(doc['passed'])} of {len(doc['passed'])} pass" in report_html
+    check = json.loads((project / "filters" / "filters.json").read_text())["check"]
+    n_pass, n = sum(check["passed"]), len(check["passed"])
+    assert f"filters pass on {n_pass} of {n}" in report_html
+    remedy = "Remedy: design them again with more taps (for example 1024 or 2048 instead of 512)"
+    if n_pass < n:
+        assert badges["filters-filters"] == "fail" and remedy in report_html
+    else:
+        assert badges["filters-filters"] == "pass" and remedy not in report_html
+    assert badges["plan-plan"] == "info" and badges["irset-meas-irset"] == "info"   # nothing to pass or fail
+    overall = re.search(r'<p class="overall">(\d+) of (\d+) checked results pass', report_html)
+    statuses = list(badges.values())
+    assert overall and int(overall.group(2)) == len([s for s in statuses if s != "info"])
+    assert int(overall.group(1)) == statuses.count("pass")
+
+
+def test_element_table_once_per_rig(project, tmp_path):
+    copy = tmp_path / "proj"
+    shutil.copytree(project, copy)
+    (copy / "report.html").unlink(missing_ok=True)
+    # a second plan of the same rig, and a plan of another rig (one speaker fewer)
+    assert main(["plan", str(copy / "rig.toml"), "--out", str(copy / "plan-b"), "--snr-db", "30"]) == 0
+    other = copy / "other.toml"
+    other.write_text(RIG_TOML.replace('name = "bench-link"', 'name = "bench-link-4"').replace("count = 5", "count = 4"),
+                     encoding="utf-8")
+    assert main(["plan", str(other), "--out", str(copy / "plan-other")]) == 0
+    html = build_report(copy)
+    assert _parse(html).errors == []
+    assert html.count("<h3>Elements</h3>") == 2
+    hashes = {load_rig(copy / "rig.toml").sha256, load_rig(other).sha256}
+    assert len(hashes) == 2
+    for h in hashes:
+        assert html.count(f'<section id="rig-{h[:16]}">') == 1
+    same = f'href="#rig-{load_rig(copy / "rig.toml").sha256[:16]}"'
+    for plan in ("plan", "plan-b"):
+        assert same in _section(html, f"plan-{plan}")
+    assert same not in _section(html, "plan-plan-other")
+
+
+def test_print_rules_keep_captions_with_their_figures(report_html):
+    # CSS Fragmentation Module Level 3 (W3C Candidate Recommendation, 2018): break-inside: avoid keeps
+    # a box on one page; break-before / break-after: avoid forbid a page break at that edge.
+    css = re.search(r"<style>(.*?)</style>", report_html, re.S).group(1)
+    media = css[css.index("@media print"):]
+    rules = {sel.strip(): body for sel, body in re.findall(r"([^{}]+)\{([^{}]*)\}", media.split("{", 1)[1])}
+
+    def rule(selector: str) -> str:
+        return next(body for sel, body in rules.items() if selector in [x.strip() for x in sel.split(",")])
+
+    assert "break-inside: avoid" in rule("figure")
+    assert "break-before: avoid" in rule("figcaption")
+    assert "break-after: avoid" in rule("figure img")
+    assert "break-after: avoid" in rule("h2") and "break-after: avoid" in rule("h3")
+    # every caption sits inside its figure, right after the image
+    assert report_html.count("<figcaption>") == report_html.count("<figure>")
+    assert len(re.findall(r'<figure><img [^>]*><figcaption>', report_html)) == report_html.count("<figure>")
+
+
+def test_one_centre_frequency_and_drive_effort_against_numpy(project, report_html):
+    # The rig file plans 10 log-spaced frequencies from 400 Hz to 4 kHz; the centre is the one
+    # nearest the geometric mean sqrt(400 * 4000) (common practice for a log band, no source).
+    hz = np.geomspace(400.0, 4000.0, 10)
+    f = int(np.argmin(np.abs(np.log(hz / np.sqrt(400.0 * 4000.0)))))
+    note = report_html[report_html.index('id="centre"'):]
+    note = note[:note.index("</p>")]
+    assert f"plan plan: {hz[f]:.5g} Hz" in note and "geometric centre" in note
+    plan = _section(report_html, "plan-plan")
+    assert f"the centre ({hz[f]:.4g} Hz)" in plan and f"at {hz[f]:.4g} Hz" in plan    # couplings, field maps
+    # Drive effort: unit-norm drive gives output s_j, so equal output takes 20 log10(s_max / s_j) dB more
+    # drive (definition of the decibel for amplitude ratios).  s_j and |v_sj| from numpy's SVD of
+    # G = exp(-jkr)/(4 pi r) computed here (D. A. B. Miller, Applied Optics 39(11), 2000).
+    rig = load_rig(project / "rig.toml")
+    r = np.linalg.norm(rig.mics.positions[:, None, :] - rig.speakers.positions[None, :, :], axis=2)
+    k = 2 * np.pi * hz[f] / 343.0
+    _, sv, vh = np.linalg.svd(np.exp(-1j * k * r) / (4 * np.pi * r))
+    table_html = plan[plan.index("<h3>Drive effort per channel</h3>"):]
+    table_html = table_html[:table_html.index("</table>")]
+    rows = re.findall(r"<tr><td>(\d+)</td><td>([^<]+)</td><td>([^<]+)</td><td>([^<]+)</td></tr>", table_html)
+    assert len(rows) == len(sv)
+    for rank, (_chan, level, effort, loudest) in enumerate(rows):
+        want = 20 * np.log10(sv[0] / sv[rank])
+        if want > 60:                                    # numerical noise far below the plan's floor
+            continue
+        assert float(effort) == pytest.approx(want, abs=0.051)
+        assert float(level) == pytest.approx(-want, abs=0.051)
+        assert float(loudest) == pytest.approx(20 * np.log10(np.abs(vh[rank]).max()), abs=0.051)
+
+
+def test_drive_effort_figure_and_a_channel_20_db_down():
+    # 20 dB = a factor 10 in amplitude (definition of the decibel): a channel with a tenth of the
+    # strongest one's singular value needs 20 dB more drive for the same output.
+    from arrayplan.frequency import FrequencyAxis
+    from arrayplan.planning import plan_rig
+    from arrayplan.plots.effort import drive_effort_db, plot_drive_effort
+    from arrayplan.rig import Rig
+
+    assert drive_effort_db(np.array([[2.0, 0.2, 0.02]])) == pytest.approx(np.array([[0.0, 20.0, 40.0]]))
+    spk = np.array([[x, 0.0, 0.0] for x in (-0.2, 0.0, 0.2)])
+    rig = Rig.from_positions(spk, spk + [0.0, 1.0, 0.0], speed_of_sound=343.0)
+    plan = plan_rig(rig, FrequencyAxis([500.0, 1000.0, 2000.0]))
+    fig = plot_drive_effort(plan)
+    ax = fig.axes[0]
+    assert UNIT.search(ax.get_xlabel()) and UNIT.search(ax.get_ylabel())
+    drawn = np.array([line.get_ydata() for line in ax.get_lines()[:3]])     # channels, strongest first
+    s = np.sort(plan.channels.singular_values, axis=1)[:, ::-1]
+    want = np.minimum(20 * np.log10(s[:, :1] / s), abs(plan.snr_db) + 10).T
+    assert drawn == pytest.approx(want, abs=1e-9)
+
+
+def test_plan_weights_are_mapped_lazily_and_equal_numpys_reading(project, tmp_path):
+    # Reference: numpy's own np.load of the same members (ZIP layout: PKWARE APPNOTE.TXT, section 4.3.7).
+    from arrayplan.report.discover import _mapped_npz
+
+    npz = project / "plan" / "weights.npz"
+    mapped = _mapped_npz(npz, ("drive", "combine", "singular_value"))
+    with np.load(npz) as z:
+        for key, arr in mapped.items():
+            assert isinstance(arr, np.memmap) and not arr.flags.writeable
+            assert arr.dtype == z[key].dtype and np.array_equal(arr, z[key]), key
+    # a compressed archive (invented fixture data, Fortran order too) is read in full instead
+    rng = np.random.default_rng(3)
+    a = rng.standard_normal((4, 3, 2)) + 1j * rng.standard_normal((4, 3, 2))
+    np.savez_compressed(tmp_path / "c.npz", a=a)
+    np.savez(tmp_path / "f.npz", a=np.asfortranarray(a))
+    assert np.array_equal(_mapped_npz(tmp_path / "c.npz", ("a",))["a"], np.load(tmp_path / "c.npz")["a"])
+    fortran = _mapped_npz(tmp_path / "f.npz", ("a",))["a"]
+    assert isinstance(fortran, np.memmap) and np.array_equal(fortran, np.load(tmp_path / "f.npz")["a"])

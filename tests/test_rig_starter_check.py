@@ -99,11 +99,11 @@ def test_starter_refuses_to_overwrite_and_bad_options_write_nothing(tmp_path):
     write_starter_rig(path, "bench", force=True)
     assert load_rig(path).name == "bench"
     other = tmp_path / "other.toml"
-    with pytest.raises(InputError, match="--fmin"):
+    with pytest.raises(InputError, match="fmin"):
         write_starter_rig(other, "bench", fmin=5000.0, fmax=1000.0)
-    with pytest.raises(InputError, match="--radius"):
+    with pytest.raises(InputError, match="radius"):
         write_starter_rig(other, "facing-lines", radius=1.0)
-    with pytest.raises(InputError, match="--speakers"):
+    with pytest.raises(InputError, match="speakers"):
         write_starter_rig(other, "facing-grids", speakers="4by4")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["rig.toml"]
 
@@ -288,7 +288,7 @@ def test_new_rig_cli(tmp_path, capsys):
     listed = capsys.readouterr().out.splitlines()
     assert [ln.split()[0] for ln in listed] == list(LAYOUTS)
     out = tmp_path / "link.toml"
-    assert main(["new-rig", "facing-lines", "--out", str(out), "--speakers", "12", "--spacing", "0.03"]) == 0
+    assert main(["new-rig", "facing-lines", "--out", str(out), "--speakers", "12", "--spacing-m", "0.03"]) == 0
     assert len(load_rig(out).speakers) == 12
     before = out.read_bytes()
     assert main(["new-rig", "bench", "--out", str(out)]) == 2
@@ -297,8 +297,8 @@ def test_new_rig_cli(tmp_path, capsys):
     assert main(["new-rig", "bench", "--out", str(out), "--force"]) == 0
     assert load_rig(out).name == "bench"
     missing = tmp_path / "never.toml"
-    assert main(["new-rig", "ring-zone", "--out", str(missing), "--spacing", "0.1"]) == 2
+    assert main(["new-rig", "ring-zone", "--out", str(missing), "--spacing-m", "0.1"]) == 2
     err = capsys.readouterr().err
-    assert err.count("\n") == 1 and "--spacing" in err and "Traceback" not in err
+    assert err.count("\n") == 1 and "--spacing-m" in err and "Traceback" not in err
     assert not missing.exists()
     assert sorted(p.name for p in tmp_path.iterdir()) == ["link.toml"]

@@ -49,6 +49,22 @@ def test_elements_at_or_beyond_a_wall_are_errors(tmp_path, sx, words):
     assert len(errors) == 1 and words in errors[0].explanation and errors[0].field == "speakers[S1].position"
 
 
+def test_every_element_outside_or_near_a_wall_is_listed_in_one_pass(tmp_path):
+    # room 4 x 3 x 2.5 m with a corner at the origin: a point is inside when 0 <= x <= Lx etc., and its
+    # distance to the nearest wall is min(x, Lx - x, y, Ly - y, z, Lz - z) (geometry, no source)
+    text = RIG.format(sx=-0.3, order=2, count=4).replace("[1.4, 1.0, 1.2]", "[1.4, 3.2, 1.2]")
+    text = text.replace("[2.0, 2.5, 1.3]", "[2.0, 2.5, 2.497]")
+    text += "\n[[microphones]]\nname = \"M2\"\nposition = [1.0, 1.5, 1.0]\n"
+    path = tmp_path / "rig.toml"
+    path.write_text(text)
+    errors = [f for f in check_rig_file(path) if f.severity == "error"]
+    by_field = {f.field: f.explanation for f in errors}
+    assert set(by_field) == {"speakers[S1].position", "speakers[S2].position", "microphones[M1].position"}
+    assert "'S1'" in by_field["speakers[S1].position"] and "outside the room" in by_field["speakers[S1].position"]
+    assert "'S2'" in by_field["speakers[S2].position"] and "outside the room" in by_field["speakers[S2].position"]
+    assert "3.0 mm from a wall" in by_field["microphones[M1].position"]
+
+
 def test_reverberation_guides_follow_the_diffuse_field_formulas(tmp_path):
     # Sabine T60 = 0.161 V / (S alpha), Eyring T60 = 0.161 V / (-S ln(1 - alpha)) (H. Kuttruff, Room
     # Acoustics; 0.161 s/m for c = 343 m/s) and the Schroeder frequency 2000 sqrt(T60 / V)

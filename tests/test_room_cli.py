@@ -115,8 +115,8 @@ def test_free_field_plan_loses_isolation_in_the_room_a_room_plan_keeps_it(tmp_pa
     # simulated responses through the command line, the free-field plan fails the 20 dB isolation
     # requirement and the room plan passes it.
     rig = _write(tmp_path, RIG + ROOM)
-    _run("measure", rig, "--simulate", "--out", tmp_path / "m", "--rate", "16000", "--f1", "100",
-         "--duration-s", "0.5", "--ir-s", "0.12", "--max-latency-s", "0.1", "--lead-in-s", "0.1")
+    _run("measure", rig, "--simulate", "--out", tmp_path / "m", "--rate-hz", "16000", "--f1-hz", "100",
+         "--duration-s", "0.5", "--ir-length-s", "0.12", "--max-latency-s", "0.1", "--lead-in-s", "0.1")
     irset = tmp_path / "m" / "irset"
     _run("plan", rig, "--out", tmp_path / "room-plan", "--no-figures")
     _run("plan", rig, "--free-field", "--out", tmp_path / "free-plan", "--no-figures")

@@ -9,6 +9,8 @@ import soundfile as sf
 
 import arrayplan.cli as cli
 from arrayplan.safety import CAUTION_NOTE
+from arrayplan.errors import InputError
+from arrayplan.formats.signal_sidecar import signal_sidecar
 from arrayplan.signals import wavout
 
 SWEEP = ["--f1-hz", "50", "--f2-hz", "5000", "--duration-s", "0.5", "--pad-after-s", "0.2", "--rate-hz", "16000"]
@@ -99,7 +101,7 @@ def test_sweep_fades_default_to_one_fresnel_time_and_given_ones_are_kept(tmp_pat
 def test_other_signals_round_trip(tmp_path, capsys):
     cases = {
         "noise.wav": ["noise", "--colour", "white", "--duration-s", "1", "--seed", "3", "--rms-dbfs", "-30"],
-        "tones.wav": ["tones", "--freqs-hz", "250,1000", "--tone-s", "0.3", "--gap-s", "0.1"],
+        "tones.wav": ["tones", "--freqs-hz", "250", "1000", "--tone-s", "0.3", "--gap-s", "0.1"],
         "bursts.wav": ["bursts", "--freq-hz", "1000", "--cycles", "8", "--count", "3", "--period-s", "0.1"],
         "silence.wav": ["silence", "--duration-s", "0.5", "--channels", "2"],
         "sched.wav": ["schedule", "--speaker-names", "L,R,Sub", *SWEEP],
@@ -125,7 +127,7 @@ def test_other_signals_round_trip(tmp_path, capsys):
 
 def test_exposure_estimate_warns_refuses_and_overrides(tmp_path, capsys):
     out = tmp_path / "loud.wav"
-    expo = ["--sensitivity-db-spl", "95", "--amp-vrms", "20", "--listener-distance-m", "1"]
+    expo = ["--speaker-sensitivity-db-spl", "95", "--amp-vrms", "20", "--listener-distance-m", "1"]
     rc, _, err = _run(capsys, "signal", "sweep", "--out", str(out), *SWEEP, *expo)
     _assert_one_line_error(rc, err, "exceeds the cap of 100 dBA", "--allow-loud")
     assert list(tmp_path.iterdir()) == []
@@ -135,8 +137,13 @@ def test_exposure_estimate_warns_refuses_and_overrides(tmp_path, capsys):
     assert side["exposure"]["dba"][0] > 100
     assert any("above 85 dBA" in w for w in side["warnings"])
     rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "x.wav"), *SWEEP,
-                      "--sensitivity-db-spl", "95")
-    _assert_one_line_error(rc, err, "needs all of")
+                      "--speaker-sensitivity-db-spl", "95")
+    _assert_one_line_error(rc, err, "needs both", "--amp-vrms")
+    # without distances the estimate is made for a listener 1 m away, as in 'measure'
+    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "near.wav"), *SWEEP, *expo[:4],
+                      "--allow-loud")
+    assert rc == 0, err
+    assert json.loads((tmp_path / "near.json").read_text())["exposure"]["listener_distances_m"] == [1.0]
 
 
 @pytest.mark.parametrize("extra, words", [
@@ -150,14 +157,13 @@ def test_exposure_estimate_warns_refuses_and_overrides(tmp_path, capsys):
 ])
 def test_bad_sweep_input_is_one_line_and_writes_nothing(tmp_path, capsys, extra, words):
     rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, *extra)
-    _assert_one_line_error(rc, err, *words)
+    assert rc == 2 and len(err.strip().splitlines()) == 1 and "Traceback" not in err, err
+    assert all(w in err for w in words), err
     assert list(tmp_path.iterdir()) == []
 
 
 def test_usage_errors_exit_2(tmp_path, capsys):
-    with pytest.raises(SystemExit) as exc:
-        cli.main(["signal", "sweep", "--out", str(tmp_path / "s.wav"), "--format", "pcm8"])
-    assert exc.value.code == 2
+    assert cli.main(["signal", "sweep", "--out", str(tmp_path / "s.wav"), "--format", "pcm8"]) == 2
     assert len(capsys.readouterr().err.strip().splitlines()) == 1
     (tmp_path / "notes").write_text("a file where a folder is wanted")
     rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "notes" / "s.wav"), *SWEEP)
@@ -205,10 +211,23 @@ def test_nothing_half_written_when_a_later_file_fails(tmp_path, monkeypatch):
     def boom(*a, **k):
         raise OSError("disk full")
 
-    monkeypatch.setattr(wavout, "write_json_atomic", boom)
+    monkeypatch.setattr(wavout, "write_signal_sidecar", boom)
     x = np.zeros(100)
     x[50] = 0.1
+    side = signal_sidecar(signal="silence", file="a.wav", sample_rate_hz=16000, n_samples=100, n_channels=1,
+                          channel_names=["S1"], sample_format="float32", level=None, conditioning=None,
+                          parameters={})
     with pytest.raises(OSError):
-        wavout.write_signal_files(tmp_path / "a.wav", x, 16000, "float32", {"k": 1},
-                                  {tmp_path / "a.inverse.wav": x})
+        wavout.write_signal_files(tmp_path / "a.wav", x, 16000, "float32", side, {tmp_path / "a.inverse.wav": x})
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_a_sidecar_that_breaks_its_schema_writes_nothing(tmp_path):
+    x = np.zeros(100)
+    x[50] = 0.1
+    with pytest.raises(InputError, match="channel_names"):
+        wavout.write_signal_files(tmp_path / "a.wav", x, 16000, "float32",
+                                  {"format": "arrayplan-signal", "format_version": 1, "signal": "silence",
+                                   "file": "a.wav", "sample_rate_hz": 16000.0, "n_samples": 100, "n_channels": 1,
+                                   "channel_names": ["S1", "S2"]})
     assert list(tmp_path.iterdir()) == []

@@ -220,15 +220,15 @@ def test_harmonic_offset_formula_values():
 
 
 @pytest.mark.parametrize("kw, field", [
-    (dict(f2_hz=24000.0), "--f2-hz"),         # at fs/2
-    (dict(f2_hz=30000.0), "--f2-hz"),         # above fs/2
-    (dict(f1_hz=0.0), "--f1-hz"),             # not above 0
-    (dict(f1_hz=-5.0), "--f1-hz"),
-    (dict(f1_hz=6000.0), "--f1-hz"),          # not below f2
-    (dict(duration_s=0.05), "--duration-s"),  # too short for 50-5000 Hz
-    (dict(kind="linear", duration_s=0.01), "--duration-s"),
-    (dict(fade_in_s=0.2), "--fade-in-s"),     # fade eats the lowest octave
-    (dict(pad_after_s=0.0), "--pad-after-s"),
+    (dict(f2_hz=24000.0), "f2_hz"),         # at fs/2
+    (dict(f2_hz=30000.0), "f2_hz"),         # above fs/2
+    (dict(f1_hz=0.0), "f1_hz"),             # not above 0
+    (dict(f1_hz=-5.0), "f1_hz"),
+    (dict(f1_hz=6000.0), "f1_hz"),          # not below f2
+    (dict(duration_s=0.05), "duration_s"),  # too short for 50-5000 Hz
+    (dict(kind="linear", duration_s=0.01), "duration_s"),
+    (dict(fade_in_s=0.2), "fade_in_s"),     # fade eats the lowest octave
+    (dict(pad_after_s=0.0), "pad_after_s"),
 ])
 def test_bad_sweep_settings_are_refused_with_the_field(kw, field):
     with pytest.raises(InputError) as err:
@@ -238,7 +238,7 @@ def test_bad_sweep_settings_are_refused_with_the_field(kw, field):
 
 
 def test_too_short_message_says_how_long():
-    with pytest.raises(InputError, match=r"too short.*use --duration-s"):
+    with pytest.raises(InputError, match=r"too short.*use `duration_s`"):
         _sweep(f1_hz=20.0, f2_hz=20000.0, duration_s=0.3)
 
 

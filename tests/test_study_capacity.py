@@ -57,6 +57,29 @@ def test_one_channel_gives_log2_one_plus_snr(snr_db):
     assert np.all(study.active == 1)
 
 
+@pytest.mark.parametrize("snr_db", [5.0, 30.0])
+def test_snr_is_that_of_the_strongest_channel_with_all_power_on_it(snr_db):
+    # a 4 x 5 free-field rig; G = exp(-jkr) / (4 pi r) and its eigenvalues written here with numpy. The
+    # plan's SNR convention: P s_1^2 / N0 = SNR, so the noise is N0 = P s_1^2 / SNR. Water-filling over
+    # the eigenvalues of G^H G by bisection on the water level (Telatar 1999), independent of arrayplan.
+    spk = np.column_stack([np.linspace(-0.6, 0.6, 4), np.zeros(4), np.zeros(4)])
+    mic = np.column_stack([np.linspace(-0.5, 0.5, 5), np.full(5, 1.5), np.full(5, 0.2)])
+    hz = np.array([400.0, 1500.0])
+    rig = Rig.from_positions(spk, mic, speed_of_sound=343.0)
+    r = np.linalg.norm(mic[:, None] - spk[None], axis=-1)
+    g = np.exp(-2j * np.pi * hz[:, None, None] / 343.0 * r) / (4 * np.pi * r)
+    study = capacity_study(plan_rig(rig, FrequencyAxis(hz)), snr_db)
+    for f in range(hz.size):
+        lam = np.sort(np.linalg.eigvalsh(np.conj(g[f].T) @ g[f]))[::-1]
+        n0 = lam[0] / 10 ** (snr_db / 10)                         # total power P = 1
+        lo, hi = 0.0, 1.0 + n0 / lam[-1]
+        for _ in range(200):
+            mu = (lo + hi) / 2
+            lo, hi = (mu, hi) if np.sum(np.maximum(mu - n0 / lam, 0.0)) < 1.0 else (lo, mu)
+        p = np.maximum(mu - n0 / lam, 0.0)
+        assert study.capacity[0, f] == pytest.approx(np.sum(np.log2(1 + p * lam / n0)), rel=1e-9)
+
+
 @pytest.mark.parametrize("n", [2, 4, 7])
 def test_n_equal_channels_split_the_power(n):
     snr_db = 20.0

@@ -185,7 +185,33 @@ def test_cli_writes_tables_sidecar_and_figures(tmp_path, capsys):
     assert len(rows) == 1 + len(HZ) * 5
 
 
+@pytest.mark.parametrize("threshold", [None, 3.0, 25.0])
+def test_cli_threshold_decides_the_channels_in_use(tmp_path, capsys, threshold):
+    # channels in use: singular values within the threshold of the strongest, from numpy's SVD of
+    # G = exp(-jkr) / (4 pi r) written here (D. A. B. Miller, Applied Optics 39(11), 2000: the
+    # channels are the SVD of G); without the option the plan's own threshold applies
+    rig = _scattered()
+    plan = tmp_path / "plan"
+    write_plan(plan_rig(rig, FrequencyAxis(HZ), threshold_db=6.0), plan, figures=False)
+    out = tmp_path / "tol"
+    extra = [] if threshold is None else ["--threshold-db", str(threshold)]
+    assert main(["study", "tolerance", str(plan), "--out", str(out), "--gain-db", "0.5", "--trials", "4",
+                 "--no-figures", *extra]) == 0
+    spk, mic = rig.speakers.positions, rig.mics.positions
+    r = np.linalg.norm(mic[:, None] - spk[None], axis=-1)
+    hz = np.array(HZ)
+    g = np.exp(-2j * np.pi * hz[:, None, None] / rig.medium.speed_of_sound * r) / (4 * np.pi * r)
+    s = np.linalg.svd(g, compute_uv=False)
+    strong = 20 * np.log10(s / s[:, :1]) >= -(6.0 if threshold is None else threshold)
+    rows = [line.split(",") for line in (out / "tolerance.csv").read_text().splitlines()[1:]]
+    in_use = np.array([int(row[2]) for row in rows]).reshape(len(HZ), -1).astype(bool)
+    np.testing.assert_array_equal(in_use, strong)
+    side = json.loads((out / "tolerance.json").read_text())
+    assert side["settings"]["threshold_db"] == (6.0 if threshold is None else threshold)
+
+
 @pytest.mark.parametrize("args, flag", [(["--trials", "-5", "--position-mm", "1"], "--trials"),
+                                        (["--threshold-db", "-3", "--gain-db", "1"], "--threshold-db"),
                                         (["--position-mm", "-1"], "--position-mm"),
                                         (["--gain-db", "nan"], "--gain-db"),
                                         (["--phase-deg", "x"], "--phase-deg")])
@@ -204,6 +230,7 @@ def test_cli_measured_plan_without_positions_says_what_it_needs(tmp_path, capsys
     side["kernel"] = "measured impulse responses"
     del side["speaker_positions_m"], side["mic_positions_m"]
     (plan / "weights.json").write_text(json.dumps(side))
+    (plan / "SHA256SUMS").unlink()          # a folder edited by hand carries no checksums
     out = tmp_path / "tol"
     assert main(["study", "tolerance", str(plan), "--out", str(out), "--position-mm", "1"]) == 2
     err = capsys.readouterr().err.strip()
@@ -232,3 +259,31 @@ def test_trial_chunks_can_run_in_worker_processes():
     with ProcessPoolExecutor(max_workers=1) as pool:
         spread = tolerance_study(plan, map_chunks=pool.map, **kw)
     assert np.array_equal(here.trials.gain_db, spread.trials.gain_db)
+
+
+def test_a_room_plan_perturbs_the_room():
+    # with no error the trial's coupling is the room's: the direct path and the six first-order images
+    # across the walls of the box [0, L], each exp(-jkr) / (4 pi r) times beta = sqrt(1 - alpha), written
+    # here with numpy (J. B. Allen and D. A. Berkley, JASA 65(4), 1979); and the planned weights see it
+    from dataclasses import replace
+    from arrayplan.room import Room
+
+    spk = np.array([[1.0, 0.8, 1.1], [1.6, 0.8, 1.2], [2.2, 0.9, 1.0]])
+    mic = np.array([[1.2, 2.5, 1.3], [1.9, 2.6, 1.2], [2.4, 2.4, 1.4], [1.5, 2.2, 1.0]])
+    rig = replace(Rig.from_positions(spk, mic, speed_of_sound=343.0),
+                  room=Room.uniform((3.5, 3.2, 2.5), 0.4, reflection_order=1))
+    plan = plan_rig(rig, FrequencyAxis(HZ))
+    assert plan.kernel_name == "room"
+    problem = tolerance_problem(plan, gain_sd_db=0.0)
+    assert problem.model == "direct"
+    size, beta, hz = np.array([3.5, 3.2, 2.5]), np.sqrt(1 - 0.4), np.array(HZ)
+    g = 0
+    for axis_i in (None, 0, 1, 2):
+        for wall in ((None,) if axis_i is None else (0.0, size[axis_i])):
+            img = spk.copy()
+            if axis_i is not None:
+                img[:, axis_i] = 2 * wall - spk[:, axis_i]
+            r = np.linalg.norm(mic[:, None] - img[None], axis=-1)
+            g = g + (1.0 if axis_i is None else beta) * np.exp(-2j * np.pi * hz[:, None, None] / 343.0 * r) / (
+                4 * np.pi * r)
+    np.testing.assert_allclose(perturbed_couplings(problem, 0), g, rtol=1e-9)

@@ -13,6 +13,7 @@ import math
 import sys
 
 from ..errors import InputError
+from ._args import accept_old_spelling, channel_number, dbfs_level, float_in, positive_float
 
 __all__ = ["register", "run_mic", "run_output", "run_latency", "run_show"]
 
@@ -33,15 +34,15 @@ def _full_scale(args: argparse.Namespace, dbu_name: str, vrms_name: str) -> floa
 
 def _add_full_scale(p: argparse.ArgumentParser, what: str) -> None:
     g = p.add_mutually_exclusive_group()
-    g.add_argument("--input-full-scale-dbu", type=float, metavar="DBU",
+    g.add_argument("--input-full-scale-dbu", type=float_in(-60.0, 60.0, "dBu"), metavar="DBU",
                    help=f"level of a full-scale sine at {what}, dBu (0 dBu = 0.7746 V RMS)")
-    g.add_argument("--input-full-scale-vrms", type=float, metavar="V",
+    g.add_argument("--input-full-scale-vrms", type=float_in(1e-6, 1000.0, "V RMS"), metavar="V",
                    help="the same in V RMS")
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
-        "calibrate", help="create or show calibration records (mic sensitivity, output gain, latency)",
+        "calibrate",
         description="Calibration records (TOML, documented in calibration/README.md) give measured impulse "
                     "responses physical units and supply the interface latency.")
     sub = p.add_subparsers(dest="calibrate_command", metavar="WHAT", parser_class=type(p))
@@ -53,13 +54,16 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                                    "1 Pa re 20 µPa; IEC 60942 defines calibrator classes.")
     m.add_argument("record", help="calibration record to create or update (TOML)")
     m.add_argument("--recording", required=True, metavar="WAV", help="recording of the calibrator")
-    m.add_argument("--channel", type=int, default=1, metavar="N", help="1-based channel of the file (default 1)")
+    m.add_argument("--channel", type=channel_number, default=1, metavar="N",
+                   help="1-based channel of the file (default: 1)")
     m.add_argument("--mic", required=True, metavar="NAME", help="the microphone's name in the rig file")
-    m.add_argument("--input-channel", type=int, metavar="N",
+    m.add_argument("--input-channel", type=channel_number, metavar="N",
                    help="1-based interface input the mic is on (default: --channel)")
     _add_full_scale(m, "the interface input")
-    m.add_argument("--calibrator-db-spl", type=float, default=94.0, metavar="DB", help="default 94 dB SPL")
-    m.add_argument("--calibrator-hz", type=float, default=1000.0, metavar="HZ", help="default 1000 Hz")
+    m.add_argument("--calibrator-db-spl", type=float_in(40.0, 180.0, "dB SPL"), default=94.0, metavar="DB",
+                   help="default 94 dB SPL")
+    m.add_argument("--calibrator-hz", type=float_in(1.0, 100_000.0, "Hz"), default=1000.0, metavar="HZ",
+                   help="default 1000 Hz")
     m.add_argument("--calibrator-class", default="", metavar="CLASS", help="IEC 60942 class, for the record")
     m.add_argument("--description", default="", help="description for a new record")
     m.set_defaults(run=run_mic)
@@ -68,13 +72,17 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                        description="Wire the output (without amplifier) to an input of known full-scale level, "
                                    "play a sine of known peak level, record it, and give the recording here.")
     o.add_argument("record", help="calibration record to create or update (TOML)")
-    o.add_argument("--output-channel", type=int, required=True, metavar="N", help="1-based output calibrated")
+    o.add_argument("--output-channel", type=channel_number, required=True, metavar="N",
+                   help="1-based output calibrated")
     o.add_argument("--recording", required=True, metavar="WAV", help="recording of the tone")
-    o.add_argument("--channel", type=int, default=1, metavar="N", help="1-based channel of the file (default 1)")
-    o.add_argument("--played-peak-dbfs", type=float, required=True, metavar="DB", help="peak level of the played sine")
-    o.add_argument("--tone-hz", type=float, default=1000.0, metavar="HZ", help="frequency of the sine (default 1000)")
-    o.add_argument("--amplifier-gain-db", type=float, default=0.0, metavar="DB",
-                   help="voltage gain of the amplifier after this output (default 0)")
+    o.add_argument("--channel", type=channel_number, default=1, metavar="N",
+                   help="1-based channel of the file (default: 1)")
+    o.add_argument("--played-peak-dbfs", type=float_in(-120.0, 0.0, "dBFS"), required=True, metavar="DB",
+                   help="peak level of the played sine")
+    o.add_argument("--tone-hz", type=float_in(1.0, 100_000.0, "Hz"), default=1000.0, metavar="HZ",
+                   help="frequency of the sine (default: 1000)")
+    o.add_argument("--amplifier-gain-db", type=float_in(-100.0, 100.0, "dB"), default=0.0, metavar="DB",
+                   help="voltage gain of the amplifier after this output (default: 0)")
     _add_full_scale(o, "the input that recorded it")
     o.add_argument("--description", default="", help="description for a new record")
     o.set_defaults(run=run_output)
@@ -83,12 +91,16 @@ def register(subparsers: argparse._SubParsersAction) -> None:
                         description="Plays a short quiet sweep on --output-channel and records --input-channel, "
                                     "which must be wired to it; stores the latency in samples at the stream's rate.")
     la.add_argument("record", help="calibration record to create or update (TOML)")
-    la.add_argument("--output-channel", type=int, required=True, metavar="N", help="1-based output of the loop")
-    la.add_argument("--input-channel", type=int, required=True, metavar="N", help="1-based input of the loop")
+    la.add_argument("--output-channel", type=channel_number, required=True, metavar="N",
+                    help="1-based output of the loop")
+    la.add_argument("--input-channel", type=channel_number, required=True, metavar="N",
+                    help="1-based input of the loop")
     la.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the system's)")
-    la.add_argument("--rate", type=float, metavar="HZ", help="sample rate (default: the device's)")
-    la.add_argument("--peak-dbfs", type=float, default=-20.0, metavar="DB", help="sweep peak (default -20 dBFS)")
-    la.add_argument("--max-latency-s", type=float, default=0.25, metavar="S", help="default 0.25 s")
+    la.add_argument("--rate-hz", type=positive_float, metavar="HZ", help="sample rate, Hz (default: the device's)")
+    accept_old_spelling(la, "--rate-hz", "--rate")
+    la.add_argument("--peak-dbfs", type=dbfs_level, default=-20.0, metavar="DB", help="sweep peak (default: -20 dBFS)")
+    la.add_argument("--max-latency-s", type=float_in(0.001, 10.0, "s"), default=0.25, metavar="S",
+                    help="default 0.25 s")
     la.add_argument("--yes", action="store_true", help="confirm without a prompt, after reading the caution")
     la.add_argument("--description", default="", help="description for a new record")
     la.set_defaults(run=run_latency)
@@ -137,11 +149,8 @@ def run_latency(args: argparse.Namespace) -> int:
     from ..signals.sweeps import SweepSettings, make_sweep
     from .measure import confirm_before_playing
 
-    for flag, ch in (("--output-channel", args.output_channel), ("--input-channel", args.input_channel)):
-        if ch < 1:
-            raise InputError(f"channels are numbered from 1, got {ch}", field=flag)
     rec = read_or_new(args.record, args.description)
-    link = SoundDeviceLink(args.device, args.rate, n_outputs=args.output_channel, n_inputs=args.input_channel)
+    link = SoundDeviceLink(args.device, args.rate_hz, n_outputs=args.output_channel, n_inputs=args.input_channel)
     fs = link.sample_rate_hz
     sweep = make_sweep(SweepSettings(f1_hz=100.0, f2_hz=min(20000.0, 0.45 * fs), duration_s=0.5,
                                      sample_rate_hz=fs, pad_before_s=0.2, pad_after_s=args.max_latency_s + 0.05,

@@ -5,10 +5,11 @@ from __future__ import annotations
 import argparse
 
 from ..rigcheck import check_rig_file, count_by_severity
+from ._args import add_memory_limit, say
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("check-rig", help="check a rig file and explain every problem in plain words",
+    p = sub.add_parser("check-rig",
                        description="List every problem in a rig file at once (syntax, keys, values, positions, "
                                    "CSV files), then what will go wrong physically (spacing against the "
                                    "wavelength, near field, elements facing away, sample rate, missing "
@@ -16,6 +17,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "2: errors.")
     p.add_argument("rig", metavar="RIG.toml", help="rig file (TOML)")
     p.add_argument("--strict", action="store_true", help="exit with status 1 when there are warnings")
+    add_memory_limit(p)
     p.set_defaults(run=run)
 
 
@@ -26,7 +28,7 @@ def _plural(n: int, word: str) -> str:
 def run(args: argparse.Namespace) -> int:
     findings = check_rig_file(args.rig)
     for finding in findings:
-        print(finding.one_line())
+        print(say(finding.one_line(), args))
     n = count_by_severity(findings)
     counts = f"{_plural(n['error'], 'error')}, {_plural(n['warning'], 'warning')}, {_plural(n['note'], 'note')}"
     if n["error"]:

@@ -17,19 +17,25 @@ from ..kernels import rig_kernel
 from ..plots import plot_field
 from ..progress import ProgressBar
 from ..rig import Rig, load_rig
+from ._args import accept_old_spelling, add_memory_limit, count, finite_float, positive_float
+from .plan import check_plan_size
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("field", help="map the pressure one channel produces over a plane (PNG + NPY)",
+    p = sub.add_parser("field",
                        description="Drive the speakers with one channel's weights at one frequency and map the "
                                    "free-field pressure magnitude over a plane.")
     p.add_argument("rig", help="rig file (TOML)")
-    p.add_argument("--freq", type=float, required=True, metavar="HZ", help="frequency")
-    p.add_argument("--channel", type=int, default=1, help="channel number, 1 = strongest (default 1)")
-    p.add_argument("--plane", default="xz", choices=("xy", "xz", "yz"), help="coordinate plane (default xz)")
-    p.add_argument("--at", type=float, metavar="M", help="the plane's third coordinate (default: rig centre)")
-    p.add_argument("--resolution", type=int, default=161, help="grid points along the first axis")
+    p.add_argument("--freq-hz", dest="freq", type=positive_float, required=True, metavar="HZ", help="frequency")
+    p.add_argument("--channel", type=count(), default=1, help="channel number, 1 = strongest (default: 1)")
+    p.add_argument("--plane", default="xz", choices=("xy", "xz", "yz"), help="coordinate plane (default: xz)")
+    p.add_argument("--at-m", dest="at", type=finite_float, metavar="M",
+                   help="the plane's third coordinate, m (default: rig centre)")
+    p.add_argument("--resolution", type=count(2000), default=161, help="grid points along the first axis")
     p.add_argument("--out", required=True, help="output folder")
+    add_memory_limit(p)
+    accept_old_spelling(p, "--freq-hz", "--freq")
+    accept_old_spelling(p, "--at-m", "--at")
     p.set_defaults(run=run)
 
 
@@ -71,9 +77,10 @@ def run(args: argparse.Namespace) -> int:
     matplotlib.use("Agg")
     rig = load_rig(args.rig)
     if not (args.freq > 0):
-        raise InputError(f"must be positive, got {args.freq}", source="--freq")
+        raise InputError(f"must be positive, got {args.freq}", source="--freq-hz")
     if not 8 <= args.resolution <= 2000:
         raise InputError(f"must be 8..2000, got {args.resolution}", source="--resolution")
+    check_plan_size(rig, 1, 1)
     g = rig_kernel(rig).evaluate(np.array([args.freq]))
     s, drive, _ = decompose_stack(g)
     n_chan = s.shape[1]
@@ -92,7 +99,7 @@ def run(args: argparse.Namespace) -> int:
         title += ": silent in this plane (a nodal plane), rounding error shown"
         print(f"arrayplan field: note: channel {args.channel} is silent in the {args.plane} plane at "
               f"{grid.offset:g} m (a nodal plane of its symmetry); the map shows rounding error only. "
-              "Choose another --at to see its field.", file=sys.stderr)
+              "Choose another --at-m to see its field.", file=sys.stderr)
     fig = plot_field(rig, grid, p, title)
     with staged_output_dir(args.out) as stage:
         with atomic_path(stage / f"{stem}.png") as tmp:

@@ -16,7 +16,8 @@ from ..filters.taps_search import MAX_AUTO_TAPS, TapsTrial, first_taps, search_t
 from ..irset import read_irset
 from ..progress import ProgressBar
 from ..rig import load_rig
-from ._args import add_measured_kernel_options, measured_kernel_from_args
+from ._args import (accept_old_spelling, add_measured_kernel_options, add_memory_limit, count, finite_float,
+                    measured_kernel_from_args, positive_float)
 
 CAUTION = ("caution: these filters feed loudspeakers; start any playback at a low level, protect hearing "
            "and drivers, and follow local codes and licensed practice")
@@ -35,7 +36,7 @@ def _taps(text: str) -> int | str:
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("filters", help="write each channel's drive and combine weights as FIR filter files",
+    p = sub.add_parser("filters",
                        description="Design FIR drive filters (per speaker) and combine filters (per "
                                    "microphone) for each planned channel, from a rig's model (free field, or its "
                                    "[room]) or from the kernel a plan folder was made with (also a plan made from "
@@ -44,24 +45,41 @@ def register(sub: argparse._SubParsersAction) -> None:
                        epilog=EXIT_STATUS + ". " + CAUTION + ".")
     p.add_argument("source", metavar="RIG_OR_PLAN",
                    help="rig file (TOML), or a folder written by 'arrayplan plan' (its kernel is used)")
-    p.add_argument("--rate", type=float, required=True, metavar="HZ", help="DSP sample rate in Hz")
+    p.add_argument("--rate-hz", type=positive_float, required=True, metavar="HZ", help="DSP sample rate, Hz")
     p.add_argument("--taps", type=_taps, default=2048, metavar="N|auto",
                    help="filter length in samples (default 2048); 'auto' designs and checks at doubling lengths "
                         f"up to {MAX_AUTO_TAPS} and keeps the first that meets the crosstalk limit")
-    p.add_argument("--band", type=float, nargs=2, required=True, metavar=("LOW_HZ", "HIGH_HZ"),
+    p.add_argument("--band-hz", type=positive_float, nargs=2, required=True, metavar=("LOW_HZ", "HIGH_HZ"),
                    help="band where the filters realise the planned weights")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
-    p.add_argument("--min-level-db", type=float, default=-30.0,
+    p.add_argument("--min-level-db", type=finite_float, default=-30.0,
                    help="a channel gets filters when it comes within this of the strongest channel somewhere in "
                         "the band (default -30)")
-    p.add_argument("--crosstalk-limit-db", type=float, default=-40.0,
+    p.add_argument("--crosstalk-limit-db", type=finite_float, default=-40.0,
                    help="pass/fail limit of the worst in-band crosstalk (default -40)")
     p.add_argument("--irset", metavar="DIR|FILE.sofa",
                    help="the IR set of a plan made from measured responses (default: the one the plan records), "
                         "or, with a rig file, design from these measured responses")
     add_measured_kernel_options(p, prefix="with --irset when the plan records no settings: ")
     p.add_argument("--no-check", action="store_true", help="skip the check")
-    p.set_defaults(run=run)
+    add_memory_limit(p)
+    accept_old_spelling(p, "--rate-hz", "--rate")
+    accept_old_spelling(p, "--band-hz", "--band")
+    p.set_defaults(run=run, parameter_flags={"sample_rate_hz": "--rate-hz", "band_hz": "--band-hz", "taps": "--taps"})
+
+
+def _check_filter_size(n_s: int, n_m: int, taps: int) -> None:
+    """Refuse filter sets whose design would not fit the memory limit (estimated before designing).
+
+    The design holds a coupling matrix per FFT bin (``taps / 2 + 1`` of them,
+    about three working copies for the SVD) and real filters of `taps`
+    samples per element and channel (with the time-domain check, twice).
+    """
+    from ..limits import check_memory
+
+    n_bins = taps // 2 + 1
+    n_bytes = 3 * 16.0 * n_bins * n_s * n_m + 2 * 8.0 * taps * (n_s + n_m) * min(n_s, n_m)
+    check_memory(n_bytes, f"{taps}-tap filters for {n_s} speakers x {n_m} microphones", field="taps")
 
 
 def _measured_settings_given(args: argparse.Namespace) -> bool:
@@ -121,7 +139,7 @@ def _check_rate(source: DesignSource, rate: float) -> None:
     fs_kernel = getattr(source.kernel, "sample_rate_hz", None)
     if fs_kernel is not None and abs(float(fs_kernel) - float(rate)) > 1e-6:
         raise InputError(f"the filters' rate {rate:g} Hz differs from the measured responses' {fs_kernel:g} Hz",
-                         source="--rate", fix=f"use --rate {fs_kernel:g} (the rate the rig was measured at)")
+                         source="--rate-hz", fix=f"use --rate-hz {fs_kernel:g} (the rate the rig was measured at)")
 
 
 def _ranges_text(ranges: list[tuple[float, float]], most: int = 3) -> str:
@@ -160,21 +178,23 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--taps auto chooses the length by the check", source="--no-check",
                          fix="drop --no-check or give a tap count")
     source = design_source(args)
-    _check_rate(source, args.rate)
+    _check_rate(source, args.rate_hz)
+    n_s, n_m = len(source.speaker_names), len(source.mic_names)
+    _check_filter_size(n_s, n_m, MAX_AUTO_TAPS if args.taps == "auto" else args.taps)
     limit = args.crosstalk_limit_db
     if args.taps == "auto":
-        start = first_taps(source.spread, args.rate)
-        validate_request(source.spread, args.rate, start, tuple(args.band))
+        start = first_taps(source.spread, args.rate_hz)
+        validate_request(source.spread, args.rate_hz, start, tuple(args.band_hz))
         print(f"choosing the filter length: {start} taps, then doubling up to {MAX_AUTO_TAPS}")
-        trials = search_taps(source.kernel, args.rate, tuple(args.band), start, limit_db=limit,
+        trials = search_taps(source.kernel, args.rate_hz, tuple(args.band_hz), start, limit_db=limit,
                              min_level_db=args.min_level_db, spread=source.spread,
                              on_trial=lambda t: _print_trial(t, limit))
         filters, check = trials[-1].filters, trials[-1].check
     else:
-        validate_request(source.spread, args.rate, args.taps, tuple(args.band))
+        validate_request(source.spread, args.rate_hz, args.taps, tuple(args.band_hz))
         with ProgressBar("filter plan") as plan_bar, \
                 ProgressBar("filter taps") as taps_bar:
-            filters = design_filters(source.kernel, args.rate, args.taps, tuple(args.band),
+            filters = design_filters(source.kernel, args.rate_hz, args.taps, tuple(args.band_hz),
                                      min_level_db=args.min_level_db, plan_progress=plan_bar, taps_progress=taps_bar)
         check = None
         if not args.no_check:

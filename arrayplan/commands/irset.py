@@ -18,7 +18,7 @@ MAX_LISTED_NAMES = 12
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("irset", help="convert impulse-response sets to and from AES69 (SOFA) files; summarise one",
+    p = sub.add_parser("irset",
                        description="Work with impulse-response sets: IR-set folders (irset.json plus one WAV "
                                    "per speaker) and AES69 (SOFA) files, told apart by the '.sofa' ending.")
     actions = p.add_subparsers(dest="irset_action", metavar="ACTION", parser_class=type(p))

@@ -18,6 +18,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..progress import ProgressBar, mini_bar
+from ._args import (accept_old_spelling, add_exposure_options, add_memory_limit, add_sweep_options, count,
+                    dbfs_level, finite_float, nonnegative_count, nonnegative_float, positive_float, say)
 
 if TYPE_CHECKING:
     from ..hardware.measure import TakeProgress
@@ -28,41 +30,78 @@ __all__ = ["register", "run", "confirm_before_playing", "add_level_options", "pr
 
 def add_level_options(p: argparse.ArgumentParser) -> None:
     """Options for the sound-level estimate printed before playing."""
-    g = p.add_argument_group("sound-level estimate (printed before anything plays)")
-    g.add_argument("--speaker-sensitivity-db-spl", type=float, metavar="DB",
-                   help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms volts")
-    g.add_argument("--sensitivity-vrms", type=float, default=2.83, metavar="V",
-                   help="drive voltage of that rating, V RMS (default 2.83 V: 1 W into 8 ohm)")
-    g.add_argument("--amp-vrms", type=float, metavar="V",
-                   help="V RMS at the speaker terminals for a full-scale sine (default: from the "
-                        "calibration record's outputs)")
-    g.add_argument("--listener-distance-m", type=float, nargs="+", default=[1.0], metavar="M",
-                   help="distance of each person in the room from the speaker playing (default 1 m)")
-    g.add_argument("--allow-loud", action="store_true",
-                   help="play even when the estimate exceeds the exposure caps (hearing protection on)")
+    g = add_exposure_options(p, "sound-level estimate (printed before anything plays)",
+                             amp_help="V RMS at the speaker terminals for a full-scale sine (default: from the "
+                                      "calibration record's outputs)")
+    g.add_argument("--allow-unknown-level", action="store_true",
+                   help="play hot outputs (a known voltage that could exceed the caps) although the speaker "
+                        "sensitivity, and so the level, is unknown (hearing protection on)")
     g.add_argument("--yes", action="store_true",
                    help="confirm without a prompt (needed when there is no terminal), after reading the caution")
 
 
+#: Option names for the messages of the level estimate.
+_LEVEL_OPTIONS = {"sensitivity_db_spl": "--speaker-sensitivity-db-spl", "sensitivity_vrms": "--sensitivity-vrms",
+                  "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
+                  "allow_loud": "--allow-loud"}
+
+
 def print_level_estimate(args: argparse.Namespace, signal: np.ndarray, sample_rate_hz: float,
                          amp_vrms_default: float | None, stream: Any = None) -> list[str]:
-    """Print the estimated level of `signal` (one speaker at a time) and return its warnings."""
-    from ..safety import check_exposure, estimate_exposure, format_exposure
+    """Print the estimated level of `signal` (one speaker at a time) and return its warnings.
+
+    With a known output voltage but no speaker sensitivity, the level is
+    bounded with a sensitive speaker
+    (:func:`arrayplan.safety.worst_case_unknown_speaker`); when that bound
+    exceeds a refusal cap, the outputs are hot and nothing plays without
+    ``--allow-unknown-level`` (a consent of its own, apart from ``--yes``).
+
+    Raises
+    ------
+    InputError
+        Above the caps without ``--allow-loud``; hot outputs at an unknown
+        level without ``--allow-unknown-level``; implausible inputs.
+    """
+    from ..safety import (ASSUMED_SENSITIVE_SPEAKER_DB_SPL, DEFAULT_MAX_DBA, DEFAULT_MAX_PEAK_DB_SPL,
+                          check_exposure, estimate_exposure, format_exposure, worst_case_unknown_speaker)
 
     stream = sys.stderr if stream is None else stream
     amp = args.amp_vrms if args.amp_vrms is not None else amp_vrms_default
+    x = np.asarray(signal, float).reshape(-1, 1)
+    if args.speaker_sensitivity_db_spl is None and amp is not None:
+        worst = worst_case_unknown_speaker(x, sample_rate_hz, amp_vrms_full_scale=amp,
+                                           distances_m=args.listener_distance_m, option_names=_LEVEL_OPTIONS)
+        i = int(np.argmax(np.where(np.isnan(worst.dba), np.inf, worst.dba)))
+        top, peak = float(worst.dba[i]), float(np.max(worst.peak_spl_db))
+        print(f"Estimated level: UNKNOWN (no --speaker-sensitivity-db-spl). The outputs give {amp:.3g} V RMS at "
+              f"full scale; through a sensitive speaker ({ASSUMED_SENSITIVE_SPEAKER_DB_SPL:g} dB SPL at 1 m for "
+              f"2.83 V) this sweep would reach {top:.1f} dBA, peak {peak:.1f} dB SPL, at "
+              f"{worst.distances_m[i]:g} m.", file=stream)
+        if top <= DEFAULT_MAX_DBA and peak <= DEFAULT_MAX_PEAK_DB_SPL:
+            return []
+        if not getattr(args, "allow_unknown_level", False):
+            raise InputError(f"HOT OUTPUTS AT AN UNKNOWN LEVEL: {amp:.3g} V RMS at full scale could give "
+                             f"{top:.1f} dBA (cap {DEFAULT_MAX_DBA:g}) or peak {peak:.1f} dB SPL (cap "
+                             f"{DEFAULT_MAX_PEAK_DB_SPL:g}) and the speaker sensitivity is not known",
+                             field="--speaker-sensitivity-db-spl",
+                             fix="give --speaker-sensitivity-db-spl for an estimate, lower the amplifier gain, or "
+                                 "pass --allow-unknown-level (apart from --yes) with hearing protection in place")
+        w = (f"playing hot outputs ({amp:.3g} V RMS at full scale) at an unknown level, allowed by "
+             "--allow-unknown-level: start with the amplifier gain low and raise it slowly")
+        print(f"warning: {w}", file=stream)
+        return [w]
     if args.speaker_sensitivity_db_spl is None or amp is None:
         missing = [name for name, v in (("--speaker-sensitivity-db-spl", args.speaker_sensitivity_db_spl),
                                         ("--amp-vrms", amp)) if v is None]
         print(f"Estimated level: UNKNOWN (give {' and '.join(missing)} for an estimate). Treat the level as "
               "unknown: start with the amplifier gain low and raise it slowly.", file=stream)
         return []
-    est = estimate_exposure(np.asarray(signal, float).reshape(-1, 1), sample_rate_hz,
-                            sensitivity_db_spl=args.speaker_sensitivity_db_spl, amp_vrms_full_scale=amp,
-                            distances_m=args.listener_distance_m, sensitivity_vrms=args.sensitivity_vrms,
-                            combine="one_at_a_time")
+    est = estimate_exposure(x, sample_rate_hz, sensitivity_db_spl=args.speaker_sensitivity_db_spl,
+                            amp_vrms_full_scale=amp, distances_m=args.listener_distance_m,
+                            sensitivity_vrms=args.sensitivity_vrms, combine="one_at_a_time",
+                            option_names=_LEVEL_OPTIONS)
     print(format_exposure(est), file=stream)
-    warnings = check_exposure(est, allow_loud=args.allow_loud)
+    warnings = [say(w, args) for w in check_exposure(est, allow_loud=args.allow_loud, option_names=_LEVEL_OPTIONS)]
     for w in warnings:
         print(f"warning: {w}", file=stream)
     return warnings
@@ -91,63 +130,82 @@ def confirm_before_playing(yes: bool, what: str, stream: Any = None) -> None:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
-        "measure", help="measure the rig's impulse responses through the audio interface",
-        description="Play a faded exponential sweep on each speaker's output in turn, record every "
-                    "microphone (and the loopback reference), and save each take as it ends: raw recording "
-                    "plus impulse responses.  Running again into the same --out folder measures only the "
-                    "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "
-                    "printed before anything plays.")
+        "measure", description="Play a faded exponential sweep on each speaker's output in turn, record every "
+                               "microphone (and the loopback reference), and save each take as it ends: raw recording "
+                               "plus impulse responses.  Running again into the same --out folder measures only the "
+                               "missing takes.  Loud signals can harm hearing and loudspeakers: read the caution "
+                               "printed before anything plays.")
     p.add_argument("rig", help="rig file (TOML); speakers' and microphones' 'channel' are 1-based")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (resumes when it exists)")
     p.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the rig's, else the system's)")
-    p.add_argument("--rate", type=float, metavar="HZ", help="sample rate (default: the rig's, else the device's)")
+    p.add_argument("--rate-hz", type=positive_float, metavar="HZ",
+                   help="sample rate, Hz (default: the rig's, else the device's)")
     p.add_argument("--calibration", metavar="FILE", help="calibration record (default: the rig's, if any)")
-    p.add_argument("--latency-samples", type=int, metavar="N",
+    p.add_argument("--latency-samples", type=nonnegative_count(10_000_000), metavar="N",
                    help="latency to remove when there is neither a reference loop nor a calibrated latency")
-    s = p.add_argument_group("sweep")
-    s.add_argument("--f1", type=float, default=40.0, metavar="HZ", help="start frequency (default 40 Hz)")
-    s.add_argument("--f2", type=float, metavar="HZ", help="end frequency (default: 20 kHz or 0.45 fs)")
-    s.add_argument("--duration-s", type=float, default=3.0, metavar="S", help="sweep duration (default 3 s)")
-    s.add_argument("--peak-dbfs", type=float, metavar="DB",
-                   help="sweep true peak level, 4x oversampled (default: the peak cap, -12 dBFS)")
+    from ..hardware.measure import MeasurementSettings
+    from ..signals.levels import DEFAULT_PEAK_CAP_DBFS
+
+    settings = MeasurementSettings()            # the library's defaults, shown in --help
+    s = add_sweep_options(p, f1_hz=settings.f1_hz, duration_s=settings.sweep_s)
+    s.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB",
+                   help="sweep true peak level, 4x oversampled (default: the peak cap, "
+                        f"{DEFAULT_PEAK_CAP_DBFS:g} dBFS)")
     s.add_argument("--allow-above-cap", action="store_true", help="allow a peak above the cap")
-    s.add_argument("--repeats", type=int, default=1, metavar="N", help="sweeps per take, averaged (default 1)")
-    s.add_argument("--ir-s", type=float, default=0.5, metavar="S",
-                   help="impulse-response length after zero lag (default 0.5 s)")
-    s.add_argument("--pre-ms", type=float, metavar="MS",
+    s.add_argument("--repeats", type=count(), default=settings.repeats, metavar="N",
+                   help="sweeps per take, averaged")
+    s.add_argument("--ir-length-s", type=positive_float, default=settings.ir_s, metavar="S",
+                   help="impulse-response length after zero lag, s")
+    s.add_argument("--pre-ms", type=nonnegative_float, metavar="MS",
                    help="time kept before zero lag for the measurement pulse's pre-ringing (default: one Fresnel "
                         "time at f1, at most half-way to the 2nd harmonic; 110 ms for the default sweep)")
-    s.add_argument("--max-latency-s", type=float, default=0.25, metavar="S",
-                   help="longest interface latency expected (default 0.25 s)")
-    s.add_argument("--lead-in-s", type=float, default=0.2, metavar="S", help="silence before each sweep (default 0.2 s)")
+    s.add_argument("--max-latency-s", type=positive_float, default=settings.max_latency_s, metavar="S",
+                   help="longest interface latency expected, s")
+    s.add_argument("--lead-in-s", type=nonnegative_float, default=settings.lead_in_s, metavar="S",
+                   help="silence before each sweep, s")
     c = p.add_argument_group("checks")
-    c.add_argument("--min-peak-to-noise-db", type=float, default=None, metavar="DB",
-                   help="mark takes whose responses fall below this peak-to-noise ratio (default 40 dB)")
+    c.add_argument("--min-peak-to-noise-db", type=finite_float, default=settings.min_peak_to_noise_db, metavar="DB",
+                   help="mark takes whose responses fall below this peak-to-noise ratio, dB")
     c.add_argument("--redo-marked", action="store_true", help="measure marked takes again when resuming")
     add_level_options(p)
     m = p.add_argument_group("simulated rig (nothing plays)")
     m.add_argument("--simulate", action="store_true",
                    help="measure a simulated rig: the rig's free-field (or [room]) responses plus latency, noise, "
                         "a mild nonlinearity and optional dropouts")
-    m.add_argument("--sim-latency-samples", type=int, default=300, metavar="N", help="default 300")
-    m.add_argument("--sim-noise-dbfs", type=float, default=-90.0, metavar="DB", help="RMS noise (default -90 dBFS)")
+    m.add_argument("--sim-latency-samples", type=nonnegative_count(10_000_000), default=300, metavar="N",
+                   help="default 300")
+    m.add_argument("--sim-noise-dbfs", type=dbfs_level, default=-90.0, metavar="DB",
+                   help="RMS noise (default: -90 dBFS)")
     m.add_argument("--sim-nonlinearity", default="0.01,0.005", metavar="A2,A3,...",
-                   help="coefficients of x^2, x^3, ... (default 0.01,0.005; '' for linear)")
-    m.add_argument("--sim-dropouts", type=int, default=0, metavar="N", help="dropped input blocks per take")
-    m.add_argument("--sim-seed", type=int, default=0, metavar="N", help="noise seed")
-    m.add_argument("--sim-placement-error-mm", type=float, default=0.0, metavar="MM",
+                   help="coefficients of x^2, x^3, ... (default: 0.01,0.005; '' for linear)")
+    m.add_argument("--sim-dropouts", type=nonnegative_count(1000), default=0, metavar="N",
+                   help="dropped input blocks per take")
+    m.add_argument("--sim-seed", type=nonnegative_count(2 ** 32 - 1), default=0, metavar="N", help="noise seed")
+    m.add_argument("--sim-placement-error-mm", type=finite_float, default=0.0, metavar="MM",
                    help="place every simulated element off its rig-file position by a Gaussian error of this standard "
                         "deviation per coordinate (mm, default 0)")
-    m.add_argument("--sim-gain-error-db", type=float, default=0.0, metavar="DB",
+    m.add_argument("--sim-gain-error-db", type=finite_float, default=0.0, metavar="DB",
                    help="Gaussian gain error of each simulated element, standard deviation in dB (default 0)")
-    m.add_argument("--sim-phase-error-deg", type=float, default=0.0, metavar="DEG",
+    m.add_argument("--sim-phase-error-deg", type=finite_float, default=0.0, metavar="DEG",
                    help="Gaussian phase error of each simulated element, standard deviation in degrees (default 0)")
-    m.add_argument("--sim-floor-absorption", type=float, default=None, metavar="ALPHA",
+    m.add_argument("--sim-floor-absorption", type=finite_float, default=None, metavar="ALPHA",
                    help="add a reflecting floor at z = 0 with this absorption (0 rigid .. 1 none; default: no "
                         "floor; a rig with a [room] already has its floor)")
-    m.add_argument("--sim-error-seed", type=int, default=1, metavar="N",
+    m.add_argument("--sim-error-seed", type=nonnegative_count(2 ** 32 - 1), default=1, metavar="N",
                    help="seed of the placement, gain and phase errors (default 1)")
-    p.set_defaults(run=run)
+    add_memory_limit(p)
+    for new, old in (("--rate-hz", "--rate"), ("--f1-hz", "--f1"), ("--f2-hz", "--f2"), ("--ir-length-s", "--ir-s")):
+        accept_old_spelling(p, new, old)
+    p.set_defaults(run=run, parameter_flags=PARAMETER_FLAGS)
+
+
+#: Library parameter names that this command spells differently.
+PARAMETER_FLAGS = {"sweep_s": "--duration-s", "pre_s": "--pre-ms", "ir_s": "--ir-length-s",
+                   "sample_rate_hz": "--rate-hz",
+                   "sensitivity_db_spl": "--speaker-sensitivity-db-spl",
+                   "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
+                   "latency_samples": "--latency-samples", "dropouts_per_take": "--sim-dropouts",
+                   "noise_rms_dbfs": "--sim-noise-dbfs", "nonlinearity": "--sim-nonlinearity"}
 
 
 def show_take_progress(bar: ProgressBar, p: "TakeProgress") -> None:
@@ -183,6 +241,17 @@ def _parse_coefficients(text: str) -> tuple[float, ...]:
     return vals
 
 
+def _check_take_size(args: argparse.Namespace, wiring: Any, fs: float) -> None:
+    """Refuse takes whose recordings would not fit the memory limit (estimated before anything plays)."""
+    from ..limits import check_memory
+
+    sweep_s = args.lead_in_s + args.duration_s + args.max_latency_s + args.ir_length_s
+    take_s = args.repeats * sweep_s
+    n_in = wiring.n_inputs_needed
+    check_memory(3 * 8.0 * take_s * fs * n_in, f"a take of {args.repeats} sweep(s), {take_s:.3g} s on {n_in} "
+                 f"input(s) at {fs:g} Hz", field="repeats")
+
+
 def _warn_above_cap(args: argparse.Namespace, sweep: Any) -> None:
     """Print the warning ``signal`` prints when a sweep's true peak is above the cap (with consent)."""
     from ..signals.levels import DEFAULT_PEAK_CAP_DBFS, true_peak_dbfs
@@ -214,23 +283,25 @@ def run(args: argparse.Namespace) -> int:
     from ..hardware.measure import MeasurementSettings, RigWiring, measure
     from ..rig import load_rig
     from ..safety import print_caution
-    from ..signals.deconvolve import DEFAULT_MIN_PEAK_TO_NOISE_DB
     from ..signals.levels import peak_dbfs, true_peak_dbfs
     from ..signals.sweeps import make_sweep
 
+    if Path(args.out).exists() and not Path(args.out).is_dir():
+        raise InputError("exists and is not a folder", source=args.out,
+                         fix="give a new folder, or the folder of an earlier run to resume it")
     rig = load_rig(args.rig)
     wiring = RigWiring.from_rig(rig)
     hw = rig.hardware
     cal_path = args.calibration or hw.calibration
     calibration = read_calibration(cal_path) if cal_path else None
     settings = MeasurementSettings(
-        f1_hz=args.f1, f2_hz=args.f2, sweep_s=args.duration_s, peak_dbfs=args.peak_dbfs,
-        allow_above_cap=args.allow_above_cap, ir_s=args.ir_s,
+        f1_hz=args.f1_hz, f2_hz=args.f2_hz, sweep_s=args.duration_s, peak_dbfs=args.peak_dbfs,
+        allow_above_cap=args.allow_above_cap, ir_s=args.ir_length_s,
         pre_s=None if args.pre_ms is None else args.pre_ms * 1e-3, lead_in_s=args.lead_in_s,
         max_latency_s=args.max_latency_s, repeats=args.repeats,
-        min_peak_to_noise_db=(DEFAULT_MIN_PEAK_TO_NOISE_DB if args.min_peak_to_noise_db is None
-                              else args.min_peak_to_noise_db))
-    rate = args.rate or hw.sample_rate_hz
+        min_peak_to_noise_db=args.min_peak_to_noise_db)
+    rate = args.rate_hz or hw.sample_rate_hz
+    _check_take_size(args, wiring, float(rate or 48000.0))
     if args.simulate:
         from ..hardware.simulated import SimulatedLink
 
@@ -258,9 +329,9 @@ def run(args: argparse.Namespace) -> int:
         settings.pre_roll_samples(sweep)  # refuse a bad --pre-ms before anything plays
         print_caution()
         amp = None
-        if calibration is not None:
-            outs = [calibration.output(c + 1) for c in wiring.speaker_outputs]
-            if all(o is not None for o in outs):
+        if calibration is not None:  # the hottest calibrated output bounds what is known of the level
+            outs = [o for o in (calibration.output(c + 1) for c in wiring.speaker_outputs) if o is not None]
+            if outs:
                 amp = max(o.volts_per_full_scale for o in outs) / math.sqrt(2.0)
         print(f"Sweep: {settings.f1_hz:g} Hz to {sweep.settings.f2_hz:g} Hz, {settings.sweep_s:g} s, true peak "
               f"{true_peak_dbfs(sweep.sweep):+.1f} dBFS (sample peak {peak_dbfs(sweep.sweep):+.1f} dBFS), "
@@ -278,7 +349,7 @@ def run(args: argparse.Namespace) -> int:
             bar.print_above(text)
 
     def warn(text: str) -> None:
-        bar.print_above(f"warning: {text}")
+        bar.print_above(f"warning: {say(text, args)}")
 
     try:
         with bar:

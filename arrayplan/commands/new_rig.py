@@ -5,18 +5,24 @@ from __future__ import annotations
 import argparse
 
 from ..errors import InputError
+from ._args import accept_old_spelling, count, float_in, positive_float
 from ..rig import load_rig
 from ..rigcheck import check_rig_file
 from ..starter import LAYOUTS, write_starter_rig
 
 
 def _count_or_grid(text: str) -> int | str:
-    """A whole number ("8") or grid counts ("4x6")."""
-    return int(text) if text.strip().isdigit() else text.strip()
+    """A whole number ("8") or grid counts ("4x6"), each at most 100000 (argparse type)."""
+    parts = text.strip().lower().split("x")
+    if not (1 <= len(parts) <= 2 and all(p.strip().isdigit() for p in parts)):
+        raise argparse.ArgumentTypeError(f"expected a count like 8 or grid counts like 4x6, got {text!r}")
+    if not all(1 <= int(p) <= 100_000 for p in parts):
+        raise argparse.ArgumentTypeError(f"counts must be 1 to 100000, got {text!r}")
+    return int(parts[0]) if len(parts) == 1 else text.strip()
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("new-rig", help="write a commented starter rig file for a chosen layout",
+    p = sub.add_parser("new-rig",
                        description="Write a rig file (TOML) for one of the starter layouts, every key commented, "
                                    "ready for 'arrayplan check-rig' and 'arrayplan plan'. Options a layout does "
                                    "not take are refused; see --list.")
@@ -27,27 +33,44 @@ def register(sub: argparse._SubParsersAction) -> None:
     g = p.add_argument_group("layout options (defaults depend on the layout; see --list)")
     g.add_argument("--speakers", type=_count_or_grid, metavar="N|NxM", help="number of speakers (grids: 4x4)")
     g.add_argument("--mics", type=_count_or_grid, metavar="N|NxM", help="number of microphones (grids: 4x4)")
-    g.add_argument("--spacing", type=float, metavar="M", help="speaker spacing, m")
-    g.add_argument("--mic-spacing", type=float, metavar="M", help="microphone spacing, m")
-    g.add_argument("--distance", type=float, metavar="M", help="distance from speakers to microphones, m")
-    g.add_argument("--radius", type=float, metavar="M", help="radius of a ring of speakers, m")
-    g.add_argument("--zone-separation", type=float, metavar="M", help="centre-to-centre distance of two zones, m")
-    g.add_argument("--fmin", type=float, metavar="HZ", help="lowest planned frequency (default: top / 8)")
-    g.add_argument("--fmax", type=float, metavar="HZ",
-                   help="highest planned frequency (default: the highest the spacing samples, d <= lambda/2)")
-    g.add_argument("--freq-count", type=int, metavar="N", help="number of planned frequencies (default 48)")
-    g.add_argument("--temperature", type=float, metavar="C", help="air temperature, °C (default 20)")
-    g.add_argument("--speed-of-sound", type=float, metavar="M_PER_S", help="speed of sound instead of temperature")
+    for key, flag, kind, metavar, text in _LAYOUT_OPTIONS:
+        g.add_argument(flag, dest=key, type=kind, metavar=metavar, help=text)
     g.add_argument("--name", help="rig name (default: the layout's)")
     g.add_argument("--room", metavar="LxWxH",
                    help="centre the layout in a rectangular room of this size, m (adds a [room] table)")
-    p.set_defaults(run=run)
+    for key, old in _OLD_FLAGS.items():
+        accept_old_spelling(p, _FLAGS[key], old)
+    p.set_defaults(run=run, parameter_flags={"temperature": "--temperature-c"})   # the starter's name in its messages
+
+
+#: The layout options that take a number: the starter's parameter, its flag, type, metavar and help.
+_LAYOUT_OPTIONS = (
+    ("spacing", "--spacing-m", positive_float, "M", "speaker spacing, m"),
+    ("mic_spacing", "--mic-spacing-m", positive_float, "M", "microphone spacing, m"),
+    ("distance", "--distance-m", positive_float, "M", "distance from speakers to microphones, m"),
+    ("radius", "--radius-m", positive_float, "M", "radius of a ring of speakers, m"),
+    ("zone_separation", "--zone-separation-m", positive_float, "M", "centre-to-centre distance of two zones, m"),
+    ("fmin", "--fmin-hz", positive_float, "HZ", "lowest planned frequency, Hz (default: top / 8)"),
+    ("fmax", "--fmax-hz", positive_float, "HZ",
+     "highest planned frequency, Hz (default: the highest the spacing samples, d <= lambda/2)"),
+    ("freq_count", "--freq-count", count(100_000), "N", "number of planned frequencies (default: 48)"),
+    ("temperature_c", "--temperature-c", float_in(-100.0, 100.0, "°C"), "C", "air temperature, °C (default: 20)"),
+    ("speed_of_sound", "--speed-of-sound-m-s", float_in(1.0, 10000.0, "m/s"), "M_PER_S",
+     "speed of sound instead of temperature, m/s"),
+)
+#: Flag of each layout option, by the starter's parameter name (for --list and messages).
+_FLAGS = {key: flag for key, flag, *_ in _LAYOUT_OPTIONS}
+#: Spellings of earlier releases, accepted for one more with a note.
+_OLD_FLAGS = {"spacing": "--spacing", "mic_spacing": "--mic-spacing", "distance": "--distance", "radius": "--radius",
+              "zone_separation": "--zone-separation", "fmin": "--fmin", "fmax": "--fmax",
+              "temperature_c": "--temperature", "speed_of_sound": "--speed-of-sound"}
 
 
 def _list() -> int:
     width = max(len(n) for n in LAYOUTS)
     for name, lay in LAYOUTS.items():
-        opts = ", ".join(f"--{k.replace('_', '-')} {v}" for k, v in lay.defaults.items() if v is not None)
+        opts = ", ".join(f"{_FLAGS.get(k, '--' + k.replace('_', '-'))} {v}" for k, v in lay.defaults.items()
+                         if v is not None)
         print(f"{name.ljust(width)}  {lay.summary} [{opts}]")
     return 0
 
@@ -60,11 +83,7 @@ def run(args: argparse.Namespace) -> int:
                          fix=f"choose one of {', '.join(LAYOUTS)} (see 'arrayplan new-rig --list')")
     if not args.out:
         raise InputError("no output file given", source="--out", fix="add --out rig.toml")
-    options = {"speakers": args.speakers, "mics": args.mics, "spacing": args.spacing,
-               "mic_spacing": args.mic_spacing, "distance": args.distance, "radius": args.radius,
-               "zone_separation": args.zone_separation, "fmin": args.fmin, "fmax": args.fmax,
-               "freq_count": args.freq_count, "temperature_c": args.temperature,
-               "speed_of_sound": args.speed_of_sound, "name": args.name, "room": args.room}
+    options = {key: getattr(args, key) for key in ("speakers", "mics", *_FLAGS, "name", "room")}
     path = write_starter_rig(args.out, args.layout, force=args.force, **options)
     rig = load_rig(path)
     hz = rig.frequencies.hz if rig.frequencies is not None else None

@@ -12,13 +12,13 @@ from ..progress import ProgressBar
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("report", help="write one self-contained HTML report of a project folder",
+    p = sub.add_parser("report",
                        description="Find every plan, filter set, impulse-response set and verification under "
                                    "PROJECT_DIR and write one HTML file with the rig summary, tables, figures, "
                                    "the cautions and the provenance of every result. The file opens offline: "
                                    "no scripts, fonts or styles from elsewhere.")
     p.add_argument("project_dir", metavar="PROJECT_DIR", help="folder holding arrayplan results (searched 4 deep)")
-    p.add_argument("--out", help="report file (default PROJECT_DIR/report.html; written atomically)")
+    p.add_argument("--out", help="report file (default: PROJECT_DIR/report.html; written atomically)")
     p.add_argument("--rig", metavar="RIG.toml",
                    help="the rig file, when the plans' sidecars no longer point to it (used where its geometry "
                         "hash matches)")

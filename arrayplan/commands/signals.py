@@ -22,9 +22,14 @@ from typing import Any
 
 import numpy as np
 
+from ._args import (MAX_CHANNEL_NUMBER, FlatList, accept_old_spelling, add_exposure_options, add_memory_limit,
+                    add_sweep_options, count, dbfs_level, finite_float, nonnegative_count, nonnegative_float,
+                    positive_float, positive_floats, say)
 from ._args import csv_names as _csv_names
+from ..limits import check_memory
 from ..errors import InputError
 from ..fileio import provenance
+from ..formats.signal_sidecar import inverse_filter_sidecar, signal_sidecar
 from ..safety import (CAUTION_NOTE, DEFAULT_MAX_DBA, check_exposure, estimate_exposure, format_exposure,
                       print_caution)
 from ..signals.levels import (DEFAULT_PEAK_CAP_DBFS, block_dc, channel_rms_dbfs, check_peak, condition,
@@ -36,40 +41,44 @@ from ..signals.sweeps import SWEEP_KINDS, SweepSettings, make_sweep
 from ..signals.tones import stepped_tones, tone_bursts
 from ..signals.wavout import SAMPLE_FORMATS, inverse_path, sidecar_path, write_signal_files
 
-__all__ = ["register", "SIGNAL_FORMAT", "above_cap_warning"]
-
-SIGNAL_FORMAT = "arrayplan-signal"
+__all__ = ["register", "above_cap_warning"]
 
 
 # ----------------------------------------------------------------------------- options
 
-def _csv_floats(text: str) -> list[float]:
-    try:
-        vals = [float(v) for v in text.split(",") if v.strip()]
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected comma-separated numbers, got {text!r}") from None
-    if not vals:
-        raise argparse.ArgumentTypeError("expected at least one number")
-    return vals
+#: Sweep settings whose defaults the options show (the library's).
+_SWEEP = SweepSettings()
+#: Highest sample rate accepted, Hz.
+MAX_RATE_HZ = 768_000
+#: Working copies of a signal held at once while it is built, conditioned and written (estimate).
+_COPIES = 6
 
 
-def _positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-    if v <= 0:
-        raise argparse.ArgumentTypeError(f"must be positive, got {v}")
-    return v
+def _signal_size(args: argparse.Namespace) -> tuple[float, int]:
+    """Estimated length (s) and channel count of the signal the options ask for, before building it."""
+    pads = getattr(args, "pad_before_s", 0.0) + getattr(args, "pad_after_s", 0.0)
+    kind = args.signal
+    if kind == "tones":
+        return len(args.freqs_hz) * (args.tone_s + args.gap_s) + pads, 1
+    if kind == "bursts":
+        return args.count * args.period_s + pads, 1
+    if kind == "silence":
+        return args.duration_s, args.channels
+    if kind == "schedule":
+        n = args.speakers or len(args.speaker_names or ()) or 1
+        return n * (args.duration_s + pads), n
+    return args.duration_s + pads, 1
 
 
 def _add_output(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("output")
     g.add_argument("--out", required=True, type=Path, metavar="FILE.wav",
                    help="signal file; its sidecar FILE.json (and FILE.inverse.wav for sweeps) go beside it")
-    g.add_argument("--rate-hz", type=_positive_int, default=48000, help="sample rate in Hz (default 48000)")
+    g.add_argument("--rate-hz", type=count(MAX_RATE_HZ), default=int(_SWEEP.sample_rate_hz), metavar="HZ",
+                   help="sample rate, Hz")
     g.add_argument("--format", choices=tuple(SAMPLE_FORMATS), default="float32",
-                   help="sample format of the signal file (default float32)")
+                   help="sample format of the signal file")
+    add_memory_limit(p)
 
 
 #: Help text of the fade options of sweeps, schedules and probes (default: the sweep's Fresnel-length fades).
@@ -82,50 +91,51 @@ _NOISE_PROBE_FADES = (0.02, 0.005)
 def _add_level(p: argparse.ArgumentParser, fade_in: float | None, fade_out: float | None) -> None:
     g = p.add_argument_group("level and conditioning")
     m = g.add_mutually_exclusive_group()
-    m.add_argument("--peak-dbfs", type=float,
+    m.add_argument("--peak-dbfs", type=dbfs_level, metavar="DB",
                    help="true peak level in dBFS, 4x oversampled (default: the peak cap)")
-    m.add_argument("--rms-dbfs", type=float, help="RMS level of the signal without its padding, in dBFS instead "
-                                                  "(20 log10 rms; full-scale sine = -3.01)")
-    g.add_argument("--peak-cap-dbfs", type=float, default=DEFAULT_PEAK_CAP_DBFS,
-                   help=f"highest true peak allowed (default {DEFAULT_PEAK_CAP_DBFS:g}); lowering it needs "
-                        "nothing, raising it needs --allow-above-cap")
+    m.add_argument("--rms-dbfs", type=dbfs_level, metavar="DB",
+                   help="RMS level of the signal without its padding, in dBFS instead (20 log10 rms; full-scale "
+                        "sine = -3.01)")
+    g.add_argument("--peak-cap-dbfs", type=dbfs_level, default=DEFAULT_PEAK_CAP_DBFS, metavar="DB",
+                   help="highest true peak allowed; lowering it needs nothing, raising it needs --allow-above-cap")
     g.add_argument("--allow-above-cap", action="store_true",
                    help="allow a true peak above the default cap or the cap given (never above 0 dBFS: "
                         "clipping is always refused)")
-    g.add_argument("--fade-in-s", type=float, default=fade_in,
-                   help=f"raised-cosine fade-in, s (default {_FRESNEL_FADES if fade_in is None else f'{fade_in:g}'})")
-    g.add_argument("--fade-out-s", type=float, default=fade_out,
-                   help=f"raised-cosine fade-out, s (default {'the same rule' if fade_out is None else f'{fade_out:g}'})")
-    g.add_argument("--highpass-hz", type=float, help="Butterworth high-pass for small drivers, Hz (default none)")
-    g.add_argument("--highpass-order", type=int, default=2, help="its order (default 2, 12 dB per octave)")
-    g.add_argument("--pad-before-s", type=float, default=0.1, help="silence before the signal, s (default 0.1)")
+    g.add_argument("--fade-in-s", type=nonnegative_float, default=fade_in, metavar="S",
+                   help=f"raised-cosine fade-in, s (default: {_FRESNEL_FADES if fade_in is None else f'{fade_in:g}'})")
+    g.add_argument("--fade-out-s", type=nonnegative_float, default=fade_out, metavar="S",
+                   help="raised-cosine fade-out, s "
+                        f"(default: {'the same rule' if fade_out is None else f'{fade_out:g}'})")
+    g.add_argument("--highpass-hz", type=positive_float, metavar="HZ",
+                   help="Butterworth high-pass for small drivers, Hz (default: none)")
+    g.add_argument("--highpass-order", type=count(12), default=_SWEEP.highpass_order, metavar="N",
+                   help="its order (2: 12 dB per octave)")
+    g.add_argument("--pad-before-s", type=nonnegative_float, default=_SWEEP.pad_before_s, metavar="S",
+                   help="silence before the signal, s")
 
 
 def _add_exposure(p: argparse.ArgumentParser) -> None:
-    g = p.add_argument_group("exposure estimate (give the first three to get one)")
-    g.add_argument("--sensitivity-db-spl", type=float, help="speaker sensitivity, dB SPL at 1 m for --sensitivity-vrms")
-    g.add_argument("--amp-vrms", type=float,
-                   help="volts RMS at the speaker terminals for a 0 dBFS sine (meter it, or DAC full scale x gain)")
-    g.add_argument("--listener-distance-m", type=_csv_floats,
-                   help="distances of the people present from the speakers, m, comma-separated")
-    g.add_argument("--sensitivity-vrms", type=float, default=2.83,
-                   help="drive voltage of the sensitivity rating, V RMS (default 2.83: 1 W into 8 ohm)")
-    g.add_argument("--max-dba", type=float, default=DEFAULT_MAX_DBA,
-                   help=f"refuse above this estimated level at a listener, dBA (default {DEFAULT_MAX_DBA:g})")
-    g.add_argument("--allow-loud", action="store_true",
-                   help="write the file even above --max-dba or 140 dB SPL peak (hearing protection in place)")
+    g = add_exposure_options(p, "exposure estimate (give the speaker's sensitivity and the amplifier's voltage "
+                                "to get one)",
+                             amp_help="volts RMS at the speaker terminals for a 0 dBFS sine (meter it, or DAC full "
+                                      "scale x gain)")
+    g.add_argument("--max-dba", type=finite_float, default=DEFAULT_MAX_DBA, metavar="DBA",
+                   help="refuse above this estimated level at a listener, dBA")
+    accept_old_spelling(p, "--speaker-sensitivity-db-spl", "--sensitivity-db-spl")
 
 
-def _add_sweep(p: argparse.ArgumentParser, *, kind: bool = True) -> None:
-    g = p.add_argument_group("sweep")
+#: Duration of a noise signal when none is given, s (long enough for a stable spectrum; common practice, no source).
+NOISE_DURATION_S = 10.0
+
+
+def _add_sweep(p: argparse.ArgumentParser, *, kind: bool = True, what: str = "sweep") -> None:
+    g = add_sweep_options(p, f1_hz=_SWEEP.f1_hz, duration_s=NOISE_DURATION_S if what == "noise" else _SWEEP.duration_s,
+                          what=what)
     if kind:
-        g.add_argument("--kind", choices=SWEEP_KINDS, default="exponential", help="sweep law (default exponential)")
-    g.add_argument("--f1-hz", type=float, default=20.0, help="start frequency (noise: lower band edge), Hz (default 20)")
-    g.add_argument("--f2-hz", type=float, help="end frequency (noise: upper band edge), Hz "
-                                               "(default 20000 or 0.45 x rate if lower)")
-    g.add_argument("--duration-s", type=float, default=4.0, help="sweep duration, s, without padding (default 4)")
-    g.add_argument("--pad-after-s", type=float, default=1.0,
-                   help="silence after each sweep: the room's decay time and the response length, s (default 1)")
+        g.add_argument("--kind", choices=SWEEP_KINDS, default=_SWEEP.kind, help="sweep law")
+    g.add_argument("--pad-after-s", type=nonnegative_float, default=_SWEEP.pad_after_s, metavar="S",
+                   help="silence after each sweep: the room's decay time and the response length, s"
+                   if what == "sweep" else f"silence after the {what}, s")
 
 
 # ----------------------------------------------------------------------------- building
@@ -338,17 +348,24 @@ def _finite(v: float) -> float | None:
     return float(v) if math.isfinite(v) else None
 
 
+#: Option names for the messages of the exposure estimate and check.
+_EXPOSURE_OPTIONS = {"sensitivity_db_spl": "--speaker-sensitivity-db-spl", "sensitivity_vrms": "--sensitivity-vrms",
+                     "amp_vrms_full_scale": "--amp-vrms", "distances_m": "--listener-distance-m",
+                     "max_dba": "--max-dba", "allow_loud": "--allow-loud"}
+
+
 def _exposure(args: argparse.Namespace, x: np.ndarray, combine: str, src: str):
-    given = [args.sensitivity_db_spl is not None, args.amp_vrms is not None, args.listener_distance_m is not None]
+    given = [args.speaker_sensitivity_db_spl is not None, args.amp_vrms is not None]
     if not any(given):
         return None
     if not all(given):
-        raise InputError("the exposure estimate needs all of --sensitivity-db-spl, --amp-vrms and "
-                         "--listener-distance-m", source=src, field="--sensitivity-db-spl",
-                         fix="give all three, or none to skip the estimate")
-    return estimate_exposure(x, args.rate_hz, sensitivity_db_spl=args.sensitivity_db_spl,
+        raise InputError("the exposure estimate needs both --speaker-sensitivity-db-spl and --amp-vrms",
+                         source=src, field="--speaker-sensitivity-db-spl" if given[1] else "--amp-vrms",
+                         fix="give both, or neither to skip the estimate")
+    return estimate_exposure(x, args.rate_hz, sensitivity_db_spl=args.speaker_sensitivity_db_spl,
                              amp_vrms_full_scale=args.amp_vrms, distances_m=args.listener_distance_m,
-                             sensitivity_vrms=args.sensitivity_vrms, combine=combine)
+                             sensitivity_vrms=args.sensitivity_vrms, combine=combine,
+                             option_names=_EXPOSURE_OPTIONS)
 
 
 _DBFS_CONVENTION = ("20 log10 of peak or RMS, full scale = 1 (full-scale sine: -3.01 dBFS RMS); true peak: "
@@ -389,6 +406,9 @@ def _level_text(level: dict[str, Any]) -> str:
 
 def _run(args: argparse.Namespace) -> int:
     src = f"signal {args.signal}"
+    seconds, channels = _signal_size(args)
+    check_memory(_COPIES * 8.0 * seconds * args.rate_hz * channels,
+                 f"a {seconds:.3g} s signal of {channels} channel(s) at {args.rate_hz} Hz", source=src)
     if hasattr(args, "peak_cap_dbfs"):
         _check_cap_option(args, src)
     built = _BUILDERS[args.signal](args, src)
@@ -397,44 +417,29 @@ def _run(args: argparse.Namespace) -> int:
     warnings: list[str] = []
     estimate = _exposure(args, x, built["combine"], src) if playable else None
     if estimate is not None:
-        warnings += check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud, source=src)
+        warnings += [say(w, args) for w in check_exposure(estimate, max_dba=args.max_dba, allow_loud=args.allow_loud,
+                                                          source=src, option_names=_EXPOSURE_OPTIONS)]
     elif playable:
-        warnings.append("no exposure estimate: give --sensitivity-db-spl, --amp-vrms and --listener-distance-m "
-                        "to check the level at the listeners")
+        warnings.append("no exposure estimate: give --speaker-sensitivity-db-spl and --amp-vrms (and "
+                        "--listener-distance-m) to check the level at the listeners")
     level = _level_block(args, x, built)
     above = above_cap_warning(level["true_peak_dbfs"], args.peak_cap_dbfs) if playable else None
     if above is not None:
         warnings.append(above)
-    sidecar = {
-        "format": SIGNAL_FORMAT,
-        "format_version": 1,
-        "signal": built["kind"],
-        "file": args.out.name,
-        "sample_rate_hz": float(args.rate_hz),
-        "n_samples": int(x.shape[0]),
-        "n_channels": int(x.shape[1]),
-        "channel_names": built["channel_names"],
-        "sample_format": args.format,
-        "level": {k: (_finite(v) if isinstance(v, float) else v) for k, v in level.items()},
-        "conditioning": _conditioning(args, built.get("fades")) if playable else None,
-        "parameters": built["parameters"],
-        "sweep": built.get("sweep"),
-        "schedule": built.get("schedule"),
-        "probe": built.get("probe"),
-        "exposure": estimate.to_json() if estimate is not None else None,
-        "warnings": warnings,
-        "caution": CAUTION_NOTE,
-        "provenance": provenance(command=f"arrayplan signal {args.signal}"),
-    }
-    extra_sidecars = {}
-    for path, inv in (built.get("extra_wavs") or {}).items():
-        extra_sidecars[sidecar_path(path)] = {
-            "format": SIGNAL_FORMAT, "format_version": 1, "signal": "inverse_filter", "file": Path(path).name,
-            "inverse_of": args.out.name, "parameters_in": sidecar_path(args.out).name,
-            "sample_rate_hz": float(args.rate_hz), "n_samples": int(np.asarray(inv).shape[0]), "n_channels": 1,
-            "sample_format": "float32", "sweep": built.get("sweep"),
-            "note": "inverse filter for deconvolution: not a signal to play",
-            "caution": CAUTION_NOTE, "provenance": provenance(command=f"arrayplan signal {args.signal}")}
+    sidecar = signal_sidecar(
+        signal=built["kind"], file=args.out.name, sample_rate_hz=args.rate_hz, n_samples=x.shape[0],
+        n_channels=x.shape[1], channel_names=built["channel_names"], sample_format=args.format,
+        level={k: (_finite(v) if isinstance(v, float) else v) for k, v in level.items()},
+        conditioning=_conditioning(args, built.get("fades")) if playable else None,
+        parameters=built["parameters"], sweep=built.get("sweep"), schedule=built.get("schedule"),
+        probe=built.get("probe"), exposure=estimate.to_json() if estimate is not None else None,
+        warnings=warnings, caution=CAUTION_NOTE, provenance=provenance(command=f"arrayplan signal {args.signal}"))
+    extra_sidecars = {
+        sidecar_path(path): inverse_filter_sidecar(
+            file=Path(path).name, signal_file=args.out.name, sample_rate_hz=args.rate_hz,
+            n_samples=np.asarray(inv).shape[0], sweep=built.get("sweep"), caution=CAUTION_NOTE,
+            provenance=provenance(command=f"arrayplan signal {args.signal}"))
+        for path, inv in (built.get("extra_wavs") or {}).items()}
     written = write_signal_files(args.out, x, args.rate_hz, args.format, sidecar, built.get("extra_wavs"),
                                  extra_sidecars)
     if playable:
@@ -452,7 +457,7 @@ def _run(args: argparse.Namespace) -> int:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add the ``signal`` command and its sub-commands."""
-    p = subparsers.add_parser("signal", help="write safe test signals (sweeps, noise, tones, schedules, probes)",
+    p = subparsers.add_parser("signal",
                               description=__doc__.split("\n\n")[1].replace("\n", " "))
     sub = p.add_subparsers(dest="signal", metavar="KIND")
     sub.required = True
@@ -464,42 +469,46 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     _add_exposure(s)
 
     s = sub.add_parser("noise", help="band-limited pink or white noise")
-    s.add_argument("--colour", choices=NOISE_COLOURS, default="pink", help="spectrum (default pink)")
-    s.add_argument("--seed", type=int, help="random seed, for a reproducible file")
-    _add_sweep(s, kind=False)
-    s.set_defaults(duration_s=10.0)
+    s.add_argument("--colour", choices=NOISE_COLOURS, default="pink", help="spectrum (default: pink)")
+    s.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), help="random seed, for a reproducible file")
+    _add_sweep(s, kind=False, what="noise")
     _add_level(s, 0.05, 0.05)
     _add_output(s)
     _add_exposure(s)
 
     s = sub.add_parser("tones", help="stepped steady tones separated by silence")
-    s.add_argument("--freqs-hz", type=_csv_floats, required=True, help="tone frequencies, Hz, comma-separated")
-    s.add_argument("--tone-s", type=float, default=1.0, help="duration of each tone, s (default 1)")
-    s.add_argument("--gap-s", type=float, default=0.5, help="silence between tones, s (default 0.5)")
-    s.add_argument("--pad-after-s", type=float, default=0.1, help="silence after the last tone, s (default 0.1)")
+    s.add_argument("--freqs-hz", type=positive_floats, nargs="+", action=FlatList, required=True, metavar="HZ",
+                   help="tone frequencies, Hz, space-separated")
+    s.add_argument("--tone-s", type=positive_float, default=1.0, help="duration of each tone, s (default: 1)")
+    s.add_argument("--gap-s", type=nonnegative_float, default=0.5, help="silence between tones, s (default: 0.5)")
+    s.add_argument("--pad-after-s", type=nonnegative_float, default=0.1,
+                   help="silence after the last tone, s (default: 0.1)")
     _add_level(s, 0.01, 0.01)
     _add_output(s)
     _add_exposure(s)
 
     s = sub.add_parser("bursts", help="tone bursts: a few periods of a tone, repeated")
-    s.add_argument("--freq-hz", type=float, required=True, help="tone frequency, Hz")
-    s.add_argument("--cycles", type=float, default=10.0, help="periods per burst, fades included (default 10)")
-    s.add_argument("--fade-cycles", type=float, default=2.0, help="fade at each end of a burst, periods (default 2)")
-    s.add_argument("--period-s", type=float, default=0.5, help="time from burst to burst, s (default 0.5)")
-    s.add_argument("--count", type=_positive_int, default=8, help="number of bursts (default 8)")
-    s.add_argument("--pad-after-s", type=float, default=0.1, help="silence after the last burst, s (default 0.1)")
+    s.add_argument("--freq-hz", type=positive_float, required=True, help="tone frequency, Hz")
+    s.add_argument("--cycles", type=positive_float, default=10.0,
+                   help="periods per burst, fades included (default: 10)")
+    s.add_argument("--fade-cycles", type=nonnegative_float, default=2.0,
+                   help="fade at each end of a burst, periods (default: 2)")
+    s.add_argument("--period-s", type=positive_float, default=0.5, help="time from burst to burst, s (default: 0.5)")
+    s.add_argument("--count", type=count(), default=8, help="number of bursts (default: 8)")
+    s.add_argument("--pad-after-s", type=nonnegative_float, default=0.1,
+                   help="silence after the last burst, s (default: 0.1)")
     _add_level(s, 0.001, 0.001)
     _add_output(s)
     _add_exposure(s)
 
     s = sub.add_parser("silence", help="silence, for padding a playlist or recording the noise floor")
-    s.add_argument("--duration-s", type=float, default=1.0, help="duration, s (default 1)")
-    s.add_argument("--channels", type=_positive_int, default=1, help="number of channels (default 1)")
+    s.add_argument("--duration-s", type=positive_float, default=1.0, help="duration, s (default: 1)")
+    s.add_argument("--channels", type=count(MAX_CHANNEL_NUMBER), default=1, help="number of channels (default: 1)")
     _add_output(s)
 
     s = sub.add_parser("schedule", help="each speaker plays the sweep in turn, with a decay gap between")
-    s.add_argument("--speakers", type=_positive_int, help="number of speakers (channels, rig order)")
-    s.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated (default S1, S2, ...)")
+    s.add_argument("--speakers", type=count(MAX_CHANNEL_NUMBER), help="number of speakers (channels, rig order)")
+    s.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated (default: S1, S2, ...)")
     _add_sweep(s)
     _add_level(s, None, None)
     _add_output(s)
@@ -508,16 +517,18 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s = sub.add_parser("probe", help="one planned channel: a sweep or noise through its drive filters, "
                                      "all speakers at once")
     s.add_argument("--filters", type=Path, required=True, metavar="FILTERS.wav",
-                   help="the channel's drive filters: float WAV, one channel per speaker in rig order "
-                        "(speaker names are taken from FILTERS.json if it exists)")
+                   help="the channel's drive filters: float WAV, one channel per speaker in rig order, such "
+                        "as channel-NN-drive.wav written by 'arrayplan filters' (speaker names from FILTERS.json "
+                        "beside it if it exists, else from that folder's filters.json)")
     s.add_argument("--source", choices=("sweep",) + NOISE_COLOURS, default="sweep",
-                   help="probe signal before the filters (default sweep; its inverse filter is written too; "
+                   help="probe signal before the filters (default: sweep; its inverse filter is written too; "
                         "noise is faded 0.02 s in and 0.005 s out unless the fades are given)")
     s.add_argument("--channel-name", help="name of the channel in the sidecar (default: the filter file's stem)")
-    s.add_argument("--seed", type=int, help="random seed for a noise source")
+    s.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), help="random seed for a noise source")
     _add_sweep(s)
     _add_level(s, None, None)
     _add_output(s)
     _add_exposure(s)
 
-    p.set_defaults(run=_run)
+    p.set_defaults(run=_run, parameter_flags={"sample_rate_hz": "--rate-hz", "amp_vrms_full_scale": "--amp-vrms",
+                                              "distances_m": "--listener-distance-m", "fade_s": "--fade-in-s"})

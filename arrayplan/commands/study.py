@@ -13,11 +13,13 @@ import importlib
 STUDY_MODULES: tuple[str, ...] = (
     "arrayplan.commands.study_capacity",
     "arrayplan.commands.study_tolerance",
+    "arrayplan.commands.study_zones",
+    "arrayplan.commands.study_layout",
 )
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("study", help="design studies: questions a plan alone does not answer",
+    p = sub.add_parser("study",
                        description="Design studies of a plan or rig. Each writes tables, a JSON sidecar and "
                                    "figures to its --out folder.")
     actions = p.add_subparsers(dest="study_action", metavar="STUDY", parser_class=type(p))

@@ -6,6 +6,7 @@ import argparse
 
 import matplotlib
 
+from ._args import add_frequencies_option, positive_float
 from ..errors import InputError
 from ..studies._common import load_study_source
 from ..studies.capacity import capacity_study, check_snr_list
@@ -22,11 +23,10 @@ def register(actions: argparse._SubParsersAction) -> None:
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--snr-db", nargs="+", metavar="DB",
                    help="SNR of the strongest channel, dB, one or more values (default: the plan's)")
-    p.add_argument("--threshold-db", type=float, metavar="DB",
+    p.add_argument("--threshold-db", type=positive_float, metavar="DB",
                    help="strong channels (equal-power comparison) within this of the strongest (default: the plan's)")
-    p.add_argument("--freq", type=float, action="append", metavar="HZ",
-                   help="with a rig file: plan at this frequency (repeatable; default the rig's [frequencies])")
-    p.add_argument("--water-hz", type=float, metavar="HZ",
+    add_frequencies_option(p, "with a rig file: plan", "the rig's [frequencies]")
+    p.add_argument("--water-hz", type=positive_float, metavar="HZ",
                    help="frequency of the water-level figure (nearest planned; default the middle one)")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)

@@ -7,6 +7,7 @@ import argparse
 import matplotlib
 import numpy as np
 
+from ._args import add_frequencies_option, count, nonnegative_count
 from ..errors import InputError
 from ..progress import ProgressBar
 from ..studies._common import load_study_source
@@ -35,14 +36,16 @@ def register(actions: argparse._SubParsersAction) -> None:
                    help="standard deviation of each element's gain, dB (default 0)")
     p.add_argument("--phase-deg", type=_number, default=0.0, metavar="DEG",
                    help="standard deviation of each element's phase, degrees (default 0)")
-    p.add_argument("--trials", type=_number, default=200, metavar="N", help="Monte Carlo trials (default 200)")
-    p.add_argument("--seed", type=_number, default=0, metavar="N", help="random seed (default 0)")
+    p.add_argument("--trials", type=count(100_000), default=200, metavar="N", help="Monte Carlo trials (default 200)")
+    p.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), default=0, metavar="N", help="random seed (default 0)")
     p.add_argument("--isolation-db", type=_number, default=20.0, metavar="DB",
                    help="a channel keeps its isolation when its worst crosstalk is at least this far below it "
                         "(default 20, as in verify)")
+    p.add_argument("--threshold-db", type=_number, metavar="DB",
+                   help="channels in use are those within this of the strongest, dB, each judged where it is "
+                        "(default: the plan's strong threshold)")
     p.add_argument("--rig", metavar="RIG", help="the rig file a plan folder was made for (positions, directivities)")
-    p.add_argument("--freq", type=float, action="append", metavar="HZ",
-                   help="with a rig file: plan at this frequency (repeatable; default the rig's [frequencies])")
+    add_frequencies_option(p, "with a rig file: plan", "the rig's [frequencies]")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)
 
@@ -58,6 +61,8 @@ def _checked(args: argparse.Namespace) -> None:
         raise InputError(f"must be a whole number >= 0, got {args.seed:g}", source="--seed")
     if not (np.isfinite(args.isolation_db) and args.isolation_db > 0):
         raise InputError(f"must be a positive number of dB, got {args.isolation_db:g}", source="--isolation-db")
+    if args.threshold_db is not None and not (np.isfinite(args.threshold_db) and args.threshold_db > 0):
+        raise InputError(f"must be a positive number of dB, got {args.threshold_db:g}", source="--threshold-db")
     if args.position_mm == 0 and args.gain_db == 0 and args.phase_deg == 0:
         raise InputError("no errors to study", source="--position-mm/--gain-db/--phase-deg",
                          fix="give at least one standard deviation, e.g. --position-mm 1 --gain-db 0.5")
@@ -70,7 +75,7 @@ def run(args: argparse.Namespace) -> int:
     with ProgressBar("tolerance trials") as bar:
         study = tolerance_study(plan, position_sd_m=args.position_mm / 1000.0, gain_sd_db=args.gain_db,
                                 phase_sd_deg=args.phase_deg, n_trials=int(args.trials), seed=int(args.seed),
-                                isolation_db=args.isolation_db, progress=bar)
+                                isolation_db=args.isolation_db, threshold_db=args.threshold_db, progress=bar)
     files = write_tolerance_study(study, args.out, plan_source=str(args.source), figures=not args.no_figures)
     used = np.flatnonzero(study.judged.any(axis=0))
     print(f"{'channel':>8} {'gain 5..95 % (dB)':>20} {'first order (dB)':>17} {'keeps isolation':>16} "

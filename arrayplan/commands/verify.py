@@ -14,7 +14,7 @@ from ..errors import InputError
 from ..filters.design import strong_ranges_hz
 from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..irset import read_irset
-from ._args import add_measured_kernel_options, measured_kernel_from_args
+from ._args import MAX_CHANNEL_NUMBER, add_measured_kernel_options, finite_float, measured_kernel_from_args
 from ..plan_files import read_weights
 from ..progress import ProgressBar
 from ..verify import GAIN_REFERENCES, Verification, lost_bands_hz, verify_plan
@@ -30,13 +30,14 @@ def _channel_list(text: str) -> list[int] | str:
         vals = [int(v) for v in text.split(",")]
     except ValueError:
         raise argparse.ArgumentTypeError(f"expected 1-based channel numbers like 1,2,3, got {text!r}") from None
-    if any(v < 1 for v in vals):
-        raise argparse.ArgumentTypeError(f"channel numbers start at 1, got {text!r}")
+    if any(not 1 <= v <= MAX_CHANNEL_NUMBER for v in vals):
+        raise argparse.ArgumentTypeError(f"channels are numbered from 1 to at most {MAX_CHANNEL_NUMBER}, "
+                                         f"got {text!r}")
     return vals
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("verify", help="verify planned channels or FIR filters against measured impulse responses",
+    p = sub.add_parser("verify",
                        description="Apply a plan's drive and combine weights to impulse responses measured "
                                    "on the real rig, or convolve the FIR filters written by 'arrayplan filters' "
                                    "with them (a folder holding filters.json); report gain against the plan, "
@@ -47,7 +48,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="folder written by 'arrayplan plan', or by 'arrayplan filters' (detected by its filters.json)")
     p.add_argument("irset_dir", metavar="IRSET", help="IR-set folder (or AES69/SOFA file) measured on the rig")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
-    p.add_argument("--isolation-db", type=float, default=20.0,
+    p.add_argument("--isolation-db", type=finite_float, default=20.0,
                    help="a channel is lost where its isolation falls below this (dB, default 20)")
     p.add_argument("--channels", type=_channel_list,
                    help="wanted channels, 1-based, e.g. 1,2,3, judged at every frequency; 'all' for every planned "

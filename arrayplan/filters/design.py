@@ -239,26 +239,26 @@ def validate_request(source: Rig | IRSet | float, sample_rate_hz: float, taps: i
     fs = float(sample_rate_hz)
     lo, hi = (float(b) for b in band_hz)
     if not (np.isfinite(fs) and fs > 0):
-        raise InputError(f"sample rate must be positive, got {sample_rate_hz!r}", source="--rate",
+        raise InputError(f"sample rate must be positive, got {sample_rate_hz!r}", source="sample_rate_hz",
                          fix="give the DSP's sample rate in Hz, e.g. 48000")
     if not (np.isfinite(lo) and np.isfinite(hi) and 0 < lo < hi):
-        raise InputError(f"band must satisfy 0 < low < high, got {lo:g} {hi:g} Hz", source="--band",
+        raise InputError(f"band must satisfy 0 < low < high, got {lo:g} {hi:g} Hz", source="band_hz",
                          fix="give two frequencies in Hz, low then high")
     if fs < 2.0 * hi:
-        raise InputError(f"rate {fs:g} Hz is below twice the band's top {hi:g} Hz", source="--rate",
+        raise InputError(f"rate {fs:g} Hz is below twice the band's top {hi:g} Hz", source="sample_rate_hz",
                          fix=f"use a rate of at least {2 * hi:g} Hz or lower the band's top")
     if hi >= fs / 2.0:
-        raise InputError(f"band top {hi:g} Hz is not below Nyquist {fs / 2:g} Hz", source="--band",
+        raise InputError(f"band top {hi:g} Hz is not below Nyquist {fs / 2:g} Hz", source="band_hz",
                          fix="lower the band's top below half the rate")
     if int(taps) != taps or taps < 16:
-        raise InputError(f"taps must be a whole number >= 16, got {taps!r}", source="--taps")
+        raise InputError(f"taps must be a whole number >= 16, got {taps!r}", source="taps")
     need = minimum_taps(source, fs)
     if taps < need:
-        raise InputError(f"{int(taps)} taps cannot hold the rig's delay spread", source="--taps",
+        raise InputError(f"{int(taps)} taps cannot hold the rig's delay spread", source="taps",
                          fix=f"use at least {need} taps")
     if _bins_in_band(fs, int(taps), lo, hi) < 2:
-        raise InputError(f"{int(taps)} taps give fewer than 2 FFT bins in the band", source="--taps",
-                         fix="use more taps or widen --band")
+        raise InputError(f"{int(taps)} taps give fewer than 2 FFT bins in the band", source="taps",
+                         fix="use more taps or widen `band_hz`")
 
 
 def _bins_in_band(fs: float, taps: int, lo: float, hi: float) -> int:

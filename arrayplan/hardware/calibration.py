@@ -20,6 +20,7 @@ Conventions: a full-scale sine has peak 1.0, so a sample value x stands for
 from __future__ import annotations
 
 import datetime as _dt
+import json
 import math
 import os
 import sys
@@ -32,6 +33,7 @@ import numpy as np
 from .._version import __version__
 from ..errors import InputError
 from ..fileio import write_text_atomic
+from ..limits import MAX_CHANNEL_NUMBER
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -42,7 +44,7 @@ __all__ = [
     "REFERENCE_PRESSURE_PA", "DBU_REFERENCE_VRMS", "FORMAT_NAME",
     "pressure_from_db_spl", "dbu_to_vrms", "sensitivity_db_re_1v_per_pa",
     "MicCalibration", "OutputCalibration", "LatencyCalibration", "CalibrationRecord",
-    "read_calibration", "write_calibration", "tone_rms", "mic_from_calibrator_recording",
+    "read_calibration", "parse_calibration", "write_calibration", "tone_rms", "RANGES", "mic_from_calibrator_recording",
     "output_from_loopback_recording", "read_wav_channel", "format_calibration", "read_or_new",
     "calibration_factors", "now_utc",
 ]
@@ -53,6 +55,22 @@ REFERENCE_PRESSURE_PA = 20e-6
 DBU_REFERENCE_VRMS = math.sqrt(0.6)
 FORMAT_NAME = "arrayplan-calibration"
 FORMAT_VERSION = 1
+
+#: Accepted range of each number in a record (low, high): what is written must be readable, so the
+#: reader and :func:`write_calibration` check the same ranges.
+RANGES: dict[str, tuple[float, float]] = {
+    "sensitivity_mv_per_pa": (1e-4, 1e5),            # mV/Pa
+    "sensitivity_db_re_1v_per_pa": (-200.0, 100.0),  # dB re 1 V/Pa
+    "input_full_scale_vrms": (1e-6, 1000.0),         # V RMS
+    "full_scale_vrms": (1e-6, 1000.0),               # V RMS at an interface output
+    "calibrator_level_db_spl": (40.0, 180.0),        # dB re 20 µPa
+    "calibrator_frequency_hz": (1.0, 100_000.0),     # Hz
+    "recorded_rms_dbfs": (-400.0, 1.0),              # dBFS
+    "amplifier_gain_db": (-100.0, 100.0),            # dB voltage gain
+    "sample_rate_hz": (1.0, 768_000.0),              # Hz
+}
+#: Largest latency accepted, samples (over three minutes at 48 kHz).
+MAX_LATENCY_SAMPLES = 10_000_000
 
 
 def pressure_from_db_spl(level_db: float) -> float:
@@ -208,6 +226,7 @@ class _Table:
         return InputError(problem, source=self.source, field=f"{self.where}{key}", fix=fix)
 
     def number(self, key: str, default: Any = ..., positive: bool = False) -> float:
+        """A finite number, within :data:`RANGES` for `key` where it has a range."""
         if key not in self.t:
             if default is ...:
                 raise self.fail(key, "missing", fix=f"add {key} = <number>")
@@ -217,16 +236,20 @@ class _Table:
             raise self.fail(key, f"expected a finite number, got {v!r}")
         if positive and v <= 0:
             raise self.fail(key, f"must be positive, got {v!r}")
+        low, high = RANGES.get(key, (-math.inf, math.inf))
+        if not low <= v <= high:
+            raise self.fail(key, f"must be between {low:g} and {high:g}, got {v!r}")
         return float(v)
 
-    def integer(self, key: str, default: Any = ..., minimum: int = 1) -> int:
+    def integer(self, key: str, default: Any = ..., minimum: int = 1, maximum: int = MAX_CHANNEL_NUMBER) -> int:
+        """A whole number in ``[minimum, maximum]``."""
         if key not in self.t:
             if default is ...:
                 raise self.fail(key, "missing", fix=f"add {key} = <whole number>")
             return default
         v = self.t[key]
-        if isinstance(v, bool) or not isinstance(v, int) or v < minimum:
-            raise self.fail(key, f"expected a whole number >= {minimum}, got {v!r}")
+        if isinstance(v, bool) or not isinstance(v, int) or not minimum <= v <= maximum:
+            raise self.fail(key, f"expected a whole number from {minimum} to {maximum}, got {v!r}")
         return int(v)
 
     def string(self, key: str, default: Any = ...) -> str:
@@ -260,18 +283,25 @@ def read_calibration(path: str | os.PathLike) -> CalibrationRecord:
     ------
     InputError
         Missing file, malformed TOML, a missing or wrong field (named), a
-        duplicated microphone or output, or a stated dB sensitivity that
-        disagrees with the mV/Pa value.
+        number outside its range (:data:`RANGES`), a duplicated microphone or
+        output, or a stated dB sensitivity that disagrees with the mV/Pa value.
     """
     path = Path(path)
     src = str(path)
     try:
-        doc = tomllib.loads(path.read_text(encoding="utf-8"))
+        text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise InputError("calibration record not found", source=src,
                          fix="create it with 'arrayplan calibrate mic/output/latency'") from None
     except (UnicodeDecodeError, IsADirectoryError) as exc:
         raise InputError(f"cannot read as UTF-8 text ({exc.__class__.__name__})", source=src) from None
+    return parse_calibration(text, src)
+
+
+def parse_calibration(text: str, src: str = "<text>") -> CalibrationRecord:
+    """Check and parse the TOML text of a calibration record (see :func:`read_calibration`)."""
+    try:
+        doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML ({exc})", source=src) from None
     top = _Table(doc, "", src)
@@ -322,7 +352,7 @@ def read_calibration(path: str | os.PathLike) -> CalibrationRecord:
             raise top.fail("latency", "must be a table [latency]")
         t = _Table(doc["latency"], "latency.", src)
         t.only(_LAT_KEYS)
-        latency = LatencyCalibration(samples=t.integer("samples", minimum=0),
+        latency = LatencyCalibration(samples=t.integer("samples", minimum=0, maximum=MAX_LATENCY_SAMPLES),
                                      sample_rate_hz=t.number("sample_rate_hz", positive=True),
                                      output_channel=t.integer("output_channel", None),
                                      input_channel=t.integer("input_channel", None),
@@ -350,7 +380,8 @@ def _toml_value(v: Any) -> str:
             raise ValueError(f"cannot write {v!r} to TOML")
         return repr(v)
     if isinstance(v, str):
-        return '"' + v.replace("\\", "\\\\").replace('"', '\\"').replace("\n", "\\n") + '"'
+        # JSON's string escapes are TOML's (\\ \" \n \t \uXXXX ...); TOML also wants DEL escaped
+        return json.dumps(v, ensure_ascii=False).replace("\x7f", "\\u007f")
     raise TypeError(f"cannot write {type(v).__name__} to TOML")
 
 
@@ -359,7 +390,10 @@ def _toml_pairs(pairs: Sequence[tuple[str, Any, str]]) -> list[str]:
     for key, value, comment in pairs:
         if value is None or value == "":
             continue
-        line = f"{key} = {_toml_value(value)}"
+        try:
+            line = f"{key} = {_toml_value(value)}"
+        except ValueError:
+            raise InputError(f"cannot write {value!r}: not a finite number", field=key) from None
         lines.append(f"{line:<44} # {comment}" if comment else line)
     return lines
 
@@ -381,10 +415,11 @@ def format_calibration(rec: CalibrationRecord) -> str:
         lines += _toml_pairs([
             ("name", m.name, "as in the rig file"),
             ("input_channel", m.input_channel, "1-based input it was calibrated on"),
-            ("sensitivity_mv_per_pa", round(m.sensitivity_mv_per_pa, 6), "mV/Pa"),
-            ("sensitivity_db_re_1v_per_pa", round(sensitivity_db_re_1v_per_pa(m.sensitivity_mv_per_pa), 3),
+            ("sensitivity_mv_per_pa", _significant(m.sensitivity_mv_per_pa), "mV/Pa"),
+            ("sensitivity_db_re_1v_per_pa", round(sensitivity_db_re_1v_per_pa(m.sensitivity_mv_per_pa), 3)
+             if _in_range("sensitivity_mv_per_pa", m.sensitivity_mv_per_pa) else None,
              "derived, checked on reading"),
-            ("input_full_scale_vrms", round(m.input_full_scale_vrms, 6), "V RMS of a full-scale sine"),
+            ("input_full_scale_vrms", _significant(m.input_full_scale_vrms), "V RMS of a full-scale sine"),
             ("calibrator_level_db_spl", m.calibrator_level_db_spl, "dB re 20 uPa"),
             ("calibrator_frequency_hz", m.calibrator_frequency_hz, "Hz"),
             ("calibrator_class", m.calibrator_class, "IEC 60942 class"),
@@ -395,7 +430,7 @@ def format_calibration(rec: CalibrationRecord) -> str:
         lines += ["", "[[outputs]]"]
         lines += _toml_pairs([
             ("channel", o.channel, "1-based output channel"),
-            ("full_scale_vrms", round(o.full_scale_vrms, 6), "V RMS of a full-scale sine at the output"),
+            ("full_scale_vrms", _significant(o.full_scale_vrms), "V RMS of a full-scale sine at the output"),
             ("amplifier_gain_db", o.amplifier_gain_db, "voltage gain after the output, dB"),
             ("method", o.method, ""), ("measured_utc", o.measured_utc, "")])
     if rec.latency is not None:
@@ -409,9 +444,31 @@ def format_calibration(rec: CalibrationRecord) -> str:
     return "\n".join(lines) + "\n"
 
 
+def _in_range(key: str, value: float) -> bool:
+    low, high = RANGES[key]
+    return isinstance(value, (int, float)) and low <= value <= high
+
+
+def _significant(x: float, digits: int = 7) -> float:
+    """`x` rounded to `digits` significant digits (readable, and relative error below 1e-6)."""
+    return float(f"{x:.{digits}g}")
+
+
 def write_calibration(path: str | os.PathLike, rec: CalibrationRecord) -> Path:
-    """Write `rec` to `path` as TOML, atomically; returns the path."""
-    return write_text_atomic(path, format_calibration(rec))
+    """Write `rec` to `path` as TOML, atomically; returns the path.
+
+    The text is read back with :func:`parse_calibration` first, so a record
+    that could not be read (a value out of range, a repeated name) is refused
+    with an :class:`InputError` naming the field, and nothing is written.
+    """
+    text = format_calibration(rec)
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        raise InputError("a name or description holds characters that cannot be written as UTF-8",
+                         source=str(path)) from None
+    parse_calibration(text, str(path))
+    return write_text_atomic(path, text)
 
 
 def read_or_new(path: str | os.PathLike, description: str = "") -> CalibrationRecord:
@@ -424,7 +481,7 @@ def read_or_new(path: str | os.PathLike, description: str = "") -> CalibrationRe
 
 # ------------------------------------------------------------------ from recordings
 
-def read_wav_channel(path: str | os.PathLike, channel: int, *, field: str = "--channel"
+def read_wav_channel(path: str | os.PathLike, channel: int, *, field: str = "channel"
                      ) -> tuple[np.ndarray, float]:
     """One channel (1-based) of a WAV file as float64, and its rate."""
     import soundfile as sf
@@ -526,7 +583,7 @@ def mic_from_calibrator_recording(path: str | os.PathLike, channel: int, name: s
     """
     if not (math.isfinite(input_full_scale_vrms) and input_full_scale_vrms > 0):
         raise InputError(f"input full scale must be a positive voltage, got {input_full_scale_vrms!r}",
-                         field="--input-full-scale")
+                         field="input_full_scale_vrms")
     x, rate = read_wav_channel(path, channel)
     rms = tone_rms(x, rate, calibrator_frequency_hz, source=str(path))
     volts_rms = rms * math.sqrt(2.0) * input_full_scale_vrms
@@ -556,7 +613,7 @@ def output_from_loopback_recording(path: str | os.PathLike, channel: int, output
     """
     if not 0 < played_peak <= 1:
         raise InputError(f"played peak must be in (0, 1] full scale, got {played_peak!r}",
-                         field="--played-peak-dbfs")
+                         field="played_peak")
     x, rate = read_wav_channel(path, channel)
     rms = tone_rms(x, rate, tone_frequency_hz, source=str(path))
     volts_rms = rms * math.sqrt(2.0) * input_full_scale_vrms
@@ -604,7 +661,7 @@ def calibration_factors(rec: CalibrationRecord, mic_names: Sequence[str], mic_ch
         if m is None:
             raise InputError(f"microphone {name!r} is not in the calibration record", source=rec.source,
                              field="microphones", fix="calibrate it with 'arrayplan calibrate mic' "
-                                                      "or measure without --calibration")
+                                                      "or measure without `calibration`")
         if m.input_channel != ch:
             notes.append(f"microphone {name} was calibrated on input {m.input_channel} but is on input {ch}: "
                          "the input gain may differ")

@@ -139,7 +139,7 @@ def choose_device(spec: str | int | None, *, n_inputs: int = 0, n_outputs: int =
     if spec is None:
         if default_index is None:
             raise DeviceError("there is no default audio device", field="device",
-                              fix="name one with --device (see 'arrayplan devices')")
+                              fix="name one with `device` (see 'arrayplan devices')")
         spec = default_index
     if isinstance(spec, str) and spec.strip().isdigit():
         spec = int(spec.strip())

@@ -13,7 +13,7 @@ warning and marks the take; nothing fails silently.
 An output folder looks like::
 
     session.json              what was measured and how (checked on resume)
-    takes/001-S1/             one folder per finished take, renamed into place
+    takes/001-S1/             one folder per finished take, renamed into place, with SHA256SUMS
         recording.wav         raw inputs (mics in rig order, then the reference),
                               every repeat, float32
         irset/                the take's impulse responses (arrayplan.irset); each
@@ -29,32 +29,29 @@ same folder measures only the missing takes.
 
 from __future__ import annotations
 
-import io
 import math
 import os
-import shutil
-import tempfile
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable, Sequence
 
 import numpy as np
 
 from ..errors import DeviceError, InputError
-from ..fileio import provenance, write_json_atomic
+from ..fileio import make_folders
 from ..progress import ticking
-from ..irset import IRSet, write_irset
 from ..signals.deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, clipped_sample_counts,
                                   deconvolve, harmonic_levels_db, peak_to_noise_db)
 from ..signals.sweeps import SweepSettings, SweepSignal, make_sweep, max_pre_roll_s
 from .calibration import CalibrationRecord, calibration_factors
 from .duplex import AudioLink, DuplexResult
+from .session_files import (SESSION_FILE, TakeResult, _cleanup_staging, _load_take, _open_session, _save_take,
+                            _session_record, _undo_fresh_session, _write_combined, completed_takes,
+                            take_folder_name)
 
 __all__ = ["MeasurementSettings", "RigWiring", "TakeResult", "TakeProgress", "MeasurementSummary", "measure",
            "estimate_latency", "take_folder_name", "completed_takes", "SESSION_FILE",
            "NOT_DETECTED_DB", "REFERENCE_MIN_DB"]
-
-SESSION_FILE = "session.json"
 
 #: A speaker whose best peak-to-noise ratio over all microphones is below
 #: this (dB) "shows up on no microphone".  The largest of N samples of white
@@ -66,9 +63,6 @@ NOT_DETECTED_DB = 20.0
 #: The loopback reference must stand this far (dB) above the rest of its
 #: deconvolved window to be trusted for the latency (common practice, no source).
 REFERENCE_MIN_DB = 30.0
-
-_STAGING_PREFIX = ".staging-"
-
 
 @dataclass(frozen=True)
 class MeasurementSettings:
@@ -126,9 +120,9 @@ class MeasurementSettings:
     def sweep_settings(self, sample_rate_hz: float) -> SweepSettings:
         """The sweep of one repeat, at `sample_rate_hz`."""
         if self.repeats < 1:
-            raise InputError(f"repeats must be at least 1, got {self.repeats}", field="--repeats")
-        for name, v in (("--ir-s", self.ir_s), ("--max-latency-s", self.max_latency_s),
-                        ("--lead-in-s", self.lead_in_s)):
+            raise InputError(f"repeats must be at least 1, got {self.repeats}", field="repeats")
+        for name, v in (("ir_s", self.ir_s), ("max_latency_s", self.max_latency_s),
+                        ("lead_in_s", self.lead_in_s)):
             if not (math.isfinite(v) and v > 0):
                 raise InputError(f"must be a positive number of seconds, got {v!r}", field=name)
         f2 = self.f2_hz if self.f2_hz is not None else min(20000.0, 0.45 * sample_rate_hz)
@@ -152,13 +146,13 @@ class MeasurementSettings:
             return sweep.pre_roll_samples
         fs = sweep.settings.sample_rate_hz
         if not (math.isfinite(self.pre_s) and self.pre_s >= 0):
-            raise InputError(f"must be zero or a positive time, got {self.pre_s * 1e3!r} ms", field="--pre-ms")
+            raise InputError(f"must be zero or a positive time, got {self.pre_s * 1e3!r} ms", field="pre_s")
         n = int(round(self.pre_s * fs))
         s = sweep.settings
         top = int(math.floor(max_pre_roll_s(s.kind, s.f1_hz, s.f2_hz, s.duration_s) * fs))
         if n > top:
             raise InputError(f"{self.pre_s * 1e3:g} ms reaches past half-way to the 2nd harmonic's response "
-                             f"({math.floor(1e4 * top / fs) / 10:g} ms)", field="--pre-ms",
+                             f"({math.floor(1e4 * top / fs) / 10:g} ms)", field="pre_s",
                              fix="use a shorter pre-roll, or a longer sweep")
         return n
 
@@ -247,22 +241,6 @@ class RigWiring:
         }
 
 
-@dataclass
-class TakeResult:
-    """One speaker's take, as saved in its take.json."""
-
-    index: int
-    speaker: str
-    folder: Path
-    status: str
-    warnings: list[str]
-    latency_samples: int | None
-    latency_source: str
-    peak_to_noise_db: list[float | None]
-    resumed: bool = False
-    details: dict[str, Any] = field(default_factory=dict)
-
-
 @dataclass(frozen=True)
 class TakeProgress:
     """Where the take loop is, for progress displays (see ``on_progress`` of :func:`measure`).
@@ -302,12 +280,6 @@ class MeasurementSummary:
     resumed: list[str]
     irset_path: Path | None
     warnings: list[str]
-
-
-def take_folder_name(index: int, speaker: str) -> str:
-    """``"003-S3"``: 1-based index and the speaker's name made safe for file systems."""
-    safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in speaker)
-    return f"{index + 1:03d}-{safe}"
 
 
 def estimate_latency(reference: np.ndarray, sweep: SweepSignal, max_latency_samples: int,
@@ -354,7 +326,7 @@ def estimate_latency(reference: np.ndarray, sweep: SweepSignal, max_latency_samp
         raise DeviceError(f"the loopback reference shows no clear impulse within {max_latency_samples} samples "
                           f"(peak {abs(peak):.3g} full scale, {ratio_db:.1f} dB above the rest)", source=source,
                           fix="check the loopback cable from the reference output to the reference input, "
-                              "or raise --max-latency-s")
+                              "or raise `max_latency_s`")
     frac = float(i)
     if 0 < i < h.size - 1:
         a, b, c = abs(h[i - 1]), abs(h[i]), abs(h[i + 1])
@@ -362,62 +334,6 @@ def estimate_latency(reference: np.ndarray, sweep: SweepSignal, max_latency_samp
         if denom != 0:
             frac = i + 0.5 * (a - c) / denom
     return i, frac, peak
-
-
-def completed_takes(out_dir: Path) -> dict[str, Path]:
-    """Finished take folders in `out_dir` by folder name (those holding a take.json)."""
-    takes = Path(out_dir) / "takes"
-    if not takes.is_dir():
-        return {}
-    return {p.name: p for p in sorted(takes.iterdir())
-            if p.is_dir() and not p.name.startswith(".") and (p / "take.json").is_file()}
-
-
-def _session_record(link: AudioLink, wiring: RigWiring, settings: MeasurementSettings,
-                    sweep: SweepSignal, latency_source: str, units: str) -> dict[str, Any]:
-    return {
-        "format": "arrayplan-measurement",
-        "format_version": 1,
-        "sample_rate_hz": float(link.sample_rate_hz),
-        "wiring": wiring.to_json(),
-        "settings": asdict(settings),
-        "sweep": sweep.sidecar(None),
-        "latency_source": latency_source,
-        "units": units,
-    }
-
-
-_SESSION_KEYS_THAT_MUST_MATCH = ("sample_rate_hz", "wiring", "settings", "latency_source", "units")
-
-
-def _open_session(out_dir: Path, record: dict[str, Any], device: str) -> None:
-    """Create the folder's session.json, or check that it matches a resumed run."""
-    path = out_dir / SESSION_FILE
-    if path.exists():
-        import json
-
-        try:
-            old = json.loads(path.read_text(encoding="utf-8"))
-        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-            raise InputError(f"not valid JSON ({exc})", source=str(path),
-                             fix="measure into a new --out folder") from None
-        for key in _SESSION_KEYS_THAT_MUST_MATCH:
-            if json.loads(json.dumps(old.get(key), default=str)) != json.loads(json.dumps(record[key], default=str)):
-                raise InputError(f"this folder holds a measurement with other '{key}' than asked for now",
-                                 source=str(path), field=key,
-                                 fix="resume with the same rig and options as before, or use a new --out folder")
-        return
-    write_json_atomic(path, dict(record, device=device, provenance=provenance(rig_sha256=record["wiring"]["rig_sha256"])))
-
-
-def _cleanup_staging(takes_dir: Path) -> list[str]:
-    removed = []
-    if takes_dir.is_dir():
-        for p in takes_dir.iterdir():
-            if p.name.startswith(_STAGING_PREFIX) or p.name.startswith(".replaced-"):
-                shutil.rmtree(p, ignore_errors=True)
-                removed.append(p.name)
-    return removed
 
 
 def _check_take(result: DuplexResult, ir: np.ndarray, wiring: RigWiring, settings: MeasurementSettings,
@@ -445,7 +361,7 @@ def _check_take(result: DuplexResult, ir: np.ndarray, wiring: RigWiring, setting
         if low:
             where = ", ".join(f"{n} {p:.1f} dB" for n, p in low)
             warnings.append(f"peak-to-noise below {settings.min_peak_to_noise_db:g} dB at {where}: raise the "
-                            "level (within the caution limits), add --repeats, or reduce background noise")
+                            "level (within the caution limits), add `repeats`, or reduce background noise")
     details = {
         "clipped_samples": {n: int(c) for n, c in zip(in_names, clipped)},
         "stream_flags": {"input_overflows": result.input_overflows, "input_underflows": result.input_underflows,
@@ -507,8 +423,6 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
     KeyboardInterrupt
         Passed on after the takes already done are safe.
     """
-    import soundfile as sf
-
     out_dir = Path(out_dir)
     fs = float(link.sample_rate_hz)
     sweep = make_sweep(settings.sweep_settings(fs))
@@ -542,13 +456,36 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
     pre_roll = settings.pre_roll_samples(sweep)
     max_lat = int(round(settings.max_latency_s * fs))
     if latency_samples is not None and latency_source != "reference" and latency_samples > max_lat:
-        raise InputError(f"latency of {latency_samples} samples exceeds --max-latency-s ({max_lat} samples)",
-                         field="--max-latency-s", fix="raise --max-latency-s")
-    out_dir.mkdir(parents=True, exist_ok=True)
+        raise InputError(f"latency of {latency_samples} samples exceeds `max_latency_s` ({max_lat} samples)",
+                         field="max_latency_s", fix="raise `max_latency_s`")
+    fresh = not (out_dir / SESSION_FILE).exists()
+    created = make_folders(out_dir, str(out_dir))
+    takes_dir = out_dir / "takes"
+    made_takes_dir = not takes_dir.exists()
+    try:
+        return _measure_into(link, wiring, out_dir, settings, sweep, pre_roll, ir_len, max_lat, latency_source,
+                             latency_samples, units, pa_per_fs, v_per_fs, session_warnings, redo_marked, on_event,
+                             on_warning, on_progress)
+    except BaseException:
+        if fresh and not completed_takes(out_dir):
+            _undo_fresh_session(out_dir, takes_dir if made_takes_dir else None, created)
+        raise
+
+
+def _measure_into(link: AudioLink, wiring: RigWiring, out_dir: Path, settings: MeasurementSettings,
+                  sweep: SweepSignal, pre_roll: int, ir_len: int, max_lat: int, latency_source: str,
+                  latency_samples: int | None, units: str, pa_per_fs: np.ndarray | None,
+                  v_per_fs: np.ndarray | None, session_warnings: list[str], redo_marked: bool,
+                  on_event: Callable[[str], None], on_warning: Callable[[str], None],
+                  on_progress: Callable[[TakeProgress], None] | None) -> MeasurementSummary:
+    """The take loop of :func:`measure` once its settings are checked."""
+    import soundfile as sf
+
+    fs = float(link.sample_rate_hz)
     _open_session(out_dir, _session_record(link, wiring, settings, sweep, latency_source, units), link.description)
     takes_dir = out_dir / "takes"
     takes_dir.mkdir(exist_ok=True)
-    for name in _cleanup_staging(takes_dir):
+    for name in _cleanup_staging(takes_dir, wiring):
         on_event(f"removed an unfinished take left by an earlier run ({name})")
 
     done = completed_takes(out_dir)
@@ -643,112 +580,3 @@ def _play_reporting(link: AudioLink, drive: np.ndarray, out_channels: Sequence[i
     return result
 
 
-def _load_take(folder: Path, index: int, speaker: str) -> TakeResult:
-    import json
-
-    path = folder / "take.json"
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-        return TakeResult(index=index, speaker=speaker, folder=folder, status=str(data["status"]),
-                          warnings=[str(w) for w in data["warnings"]], latency_samples=data["latency_samples"],
-                          latency_source=str(data["latency_source"]),
-                          peak_to_noise_db=list(data["peak_to_noise_db"]), details=dict(data.get("details", {})))
-    except (OSError, ValueError, KeyError, TypeError) as exc:
-        raise InputError(f"cannot read a finished take ({exc})", source=str(path),
-                         fix="delete this take's folder to measure it again") from None
-
-
-def _save_take(take: TakeResult, result: DuplexResult, ir: np.ndarray, units: str, wiring: RigWiring,
-               sweep: SweepSignal, settings: MeasurementSettings, latency_source: str, sf: Any,
-               out_dir: Path, n_kept: int) -> None:
-    """Write the take under a staging name and rename it into place."""
-    takes_dir = take.folder.parent
-    s = take.index
-    stage = Path(tempfile.mkdtemp(prefix=_STAGING_PREFIX + take.folder.name + ".", dir=takes_dir))
-    try:
-        # Encoded in memory and written with plain file I/O, so a full disk is an OSError.
-        wav = io.BytesIO()
-        sf.write(wav, result.recording.astype(np.float32), int(round(result.sample_rate_hz)),
-                 subtype="FLOAT", format="WAV")
-        (stage / "recording.wav").write_bytes(wav.getvalue())
-        pos_s = None if wiring.speaker_positions is None else wiring.speaker_positions[[s]]
-        irs = IRSet(data=ir[:, :, None], sample_rate_hz=result.sample_rate_hz, speaker_names=[take.speaker],
-                    mic_names=list(wiring.mic_names), speaker_positions=pos_s, mic_positions=wiring.mic_positions,
-                    units=units, latency_removed_samples=int(take.latency_samples or 0), warnings=take.warnings,
-                    extra={"take": take.folder.name, "status": take.status},
-                    zero_lag_samples=int(take.details.get("zero_lag_samples", 0)))
-        write_irset(stage / "irset", irs, rig_sha256=wiring.rig_sha256)
-        in_names = list(wiring.mic_names) + (["reference"] if wiring.reference else [])
-        write_json_atomic(stage / "take.json", {
-            "speaker": take.speaker, "index": s + 1, "output_channel": wiring.speaker_outputs[s] + 1,
-            "status": take.status, "warnings": take.warnings,
-            "latency_samples": take.latency_samples, "latency_source": latency_source,
-            "peak_to_noise_db": take.peak_to_noise_db, "microphones": list(wiring.mic_names),
-            "recording": {"file": "recording.wav", "channels": in_names, "repeats": settings.repeats,
-                          "samples_per_repeat": sweep.signal.size},
-            "details": take.details,
-            "provenance": provenance(rig_sha256=wiring.rig_sha256),
-        })
-        if take.folder.exists():  # a marked take measured again: swap it out
-            old = takes_dir / f".replaced-{take.folder.name}"
-            shutil.rmtree(old, ignore_errors=True)
-            os.rename(take.folder, old)
-            os.rename(stage, take.folder)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.rename(stage, take.folder)
-    except (OSError, sf.SoundFileError) as exc:
-        shutil.rmtree(stage, ignore_errors=True)
-        reason = getattr(exc, "strerror", None) or " ".join(str(exc).split())
-        raise InputError(f"could not save the take of speaker {take.speaker} ({reason})",
-                         source=str(out_dir),
-                         fix=f"free disk space or choose another folder; the {n_kept} finished take(s) are "
-                             "intact and running the same command again resumes") from None
-    except BaseException:
-        shutil.rmtree(stage, ignore_errors=True)
-        raise
-
-
-def _write_combined(out_dir: Path, takes: Sequence[TakeResult], wiring: RigWiring, fs: float, units: str,
-                    session_warnings: list[str], latency_source: str, zero_lag: int) -> Path | None:
-    """Stack every take's responses into out_dir/irset once all takes are there.
-
-    `zero_lag` is the session's pre-roll (the same for every take: resumed
-    takes were measured with the same settings, which session.json checks).
-    """
-    import soundfile as sf
-
-    if len(takes) != len(wiring.speaker_names):
-        return None
-    blocks = []
-    for t in takes:
-        wav = t.folder / "irset" / "spk-001.wav"
-        try:
-            data, rate = sf.read(wav, dtype="float64", always_2d=True)
-        except Exception as exc:  # soundfile raises several kinds
-            raise InputError(f"cannot read a finished take's responses ({exc})", source=str(wav),
-                             fix="delete this take's folder to measure it again") from None
-        if rate != round(fs) or data.shape[1] != len(wiring.mic_names):
-            raise InputError(f"take does not match the session ({data.shape[1]} channels at {rate} Hz)",
-                             source=str(wav), fix="delete this take's folder to measure it again")
-        blocks.append(data)
-    lengths = {b.shape[0] for b in blocks}
-    if len(lengths) != 1:
-        raise InputError(f"takes have different lengths {sorted(lengths)}", source=str(out_dir))
-    for t in takes:
-        if int(t.details.get("zero_lag_samples", 0)) != zero_lag:
-            raise InputError(f"take of speaker {t.speaker} keeps {t.details.get('zero_lag_samples', 0)} samples "
-                             f"before zero lag, this session {zero_lag}", source=str(t.folder / "take.json"),
-                             fix="delete this take's folder to measure it again")
-    lat = [t.latency_samples for t in takes]
-    irs = IRSet(data=np.stack(blocks, axis=2), sample_rate_hz=fs, speaker_names=list(wiring.speaker_names),
-                mic_names=list(wiring.mic_names), speaker_positions=wiring.speaker_positions,
-                mic_positions=wiring.mic_positions, units=units,
-                latency_removed_samples=int(round(float(np.median(lat)))) if latency_source != "none" else 0,
-                warnings=session_warnings + [f"speaker {t.speaker}: {w}" for t in takes for w in t.warnings],
-                zero_lag_samples=zero_lag,
-                extra={"measurement": {
-                    "latency_source": latency_source,
-                    "takes": [{"speaker": t.speaker, "status": t.status, "latency_samples": t.latency_samples,
-                               "peak_to_noise_db": t.peak_to_noise_db} for t in takes]}})
-    return write_irset(out_dir / "irset", irs, rig_sha256=wiring.rig_sha256)

@@ -80,7 +80,12 @@ class SimulatedLink:
     n_outputs, n_inputs : int, optional
         Channels the simulated interface has (default: just enough).
     seed : int
-        Seed of the noise and dropout generator.
+        Seed of the noise and dropouts.  Each call draws them from a
+        generator of its own, seeded by `seed`, the channels played and
+        recorded and how many times this link has played to those channels
+        before (:meth:`noise_generator`); so a take's noise depends on the
+        take, not on the calls before it, and a measurement resumed in a
+        new process gets the same noise as one run without a stop.
     """
 
     def __init__(self, truth: IRSet, speaker_outputs: Sequence[int], mic_inputs: Sequence[int], *,
@@ -107,7 +112,8 @@ class SimulatedLink:
         self.n_outputs = int(n_outputs) if n_outputs is not None else max(outs) + 1
         self.n_inputs = int(n_inputs) if n_inputs is not None else max(ins) + 1
         self.sample_rate_hz = float(truth.sample_rate_hz)
-        self._rng = np.random.default_rng(seed)
+        self.seed = int(seed)
+        self._plays: dict[tuple[tuple[int, ...], tuple[int, ...]], int] = {}
         self.description = (f"simulated rig ({truth.n_spk} speakers, {truth.n_mic} mics, "
                             f"latency {self.latency_samples} samples) at {self.sample_rate_hz:g} Hz")
 
@@ -139,6 +145,20 @@ class SimulatedLink:
         return cls(truth, [c - 1 for c in rig.speakers.channels], [c - 1 for c in rig.mics.channels],
                    **options)
 
+    def noise_generator(self, out_channels: Sequence[int], in_channels: Sequence[int]) -> np.random.Generator:
+        """The noise and dropout generator of the next call with these channels.
+
+        Seeded by ``(seed, out channels, in channels, n)`` where ``n`` counts
+        earlier calls of this link with the same channels (0 for the first
+        take of each speaker).  Calls with other channels do not shift it.
+        """
+        key = (tuple(int(c) for c in out_channels), tuple(int(c) for c in in_channels))
+        n = self._plays.get(key, 0)
+        self._plays[key] = n + 1
+        words = [self.seed, len(key[0]), *key[0], len(key[1]), *key[1], n]
+        return np.random.default_rng(np.random.SeedSequence([w & 0xFFFFFFFF for w in words]
+                                                            + [(self.seed >> 32) & 0xFFFFFFFF]))
+
     def play_record(self, signal: np.ndarray, out_channels: Sequence[int],
                     in_channels: Sequence[int]) -> DuplexResult:
         """Simulate playing `signal` and recording (see :class:`arrayplan.hardware.duplex.AudioLink`)."""
@@ -146,6 +166,7 @@ class SimulatedLink:
 
         sig = _check_channels(signal, out_channels, in_channels, self.n_outputs, self.n_inputs,
                               "the simulated interface")
+        rng = self.noise_generator(out_channels, in_channels)
         n = sig.shape[0]
         inputs = np.zeros((n, self.n_inputs))
         for k, out in enumerate(out_channels):
@@ -165,11 +186,11 @@ class SimulatedLink:
         if lat < n:
             delayed[lat:] = inputs[:n - lat]
         if self.noise_rms_dbfs is not None:
-            delayed += self._rng.normal(0.0, 10.0 ** (self.noise_rms_dbfs / 20.0), delayed.shape)
+            delayed += rng.normal(0.0, 10.0 ** (self.noise_rms_dbfs / 20.0), delayed.shape)
         start = first_sound_index(sig)
         dropouts = 0
         if self.dropouts_per_take and n - start > self.dropout_block:
-            for at in self._rng.integers(start, n - self.dropout_block, self.dropouts_per_take):
+            for at in rng.integers(start, n - self.dropout_block, self.dropouts_per_take):
                 delayed[at:at + self.dropout_block] = 0.0
                 dropouts += 1
         np.clip(delayed, -1.0, 1.0, out=delayed)

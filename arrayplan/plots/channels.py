@@ -9,12 +9,44 @@ from matplotlib.ticker import MaxNLocator
 from ..planning import Plan
 from ._axes import frequency_axis
 
-__all__ = ["plot_couplings", "plot_channel_counts", "representative_indices"]
+__all__ = ["plot_couplings", "plot_channel_counts", "representative_indices", "centre_index"]
 
 
-def representative_indices(n_freq: int, count: int = 3) -> list[int]:
-    """Up to `count` frequency indices spread over the axis (lowest, middle, highest)."""
-    return sorted(set(np.linspace(0, n_freq - 1, min(count, n_freq)).round().astype(int).tolist()))
+def centre_index(hz: np.ndarray) -> int:
+    """Index of the frequency nearest the geometric centre sqrt(f_low * f_high) of the band `hz` spans.
+
+    Parameters
+    ----------
+    hz : ndarray, shape (n_freq,)
+        Ascending frequencies, Hz.
+
+    Returns
+    -------
+    int
+        Nearest on a log scale; on the arithmetic centre when the band starts at 0 Hz.
+
+    Notes
+    -----
+    The report calls this "the centre" everywhere (field maps, couplings,
+    drive effort), so that one frequency is meant throughout.
+    """
+    hz = np.asarray(hz, dtype=float)
+    if hz[0] <= 0:
+        return int(np.argmin(np.abs(hz - 0.5 * (hz[0] + hz[-1]))))
+    return int(np.argmin(np.abs(np.log(hz) - 0.5 * (np.log(hz[0]) + np.log(hz[-1])))))
+
+
+def representative_indices(n_freq: int, count: int = 3, hz: np.ndarray | None = None) -> list[int]:
+    """Up to `count` frequency indices spread over the axis (lowest, middle, highest).
+
+    With `hz` (Hz, ascending) and ``count == 3`` the middle index is the
+    centre of :func:`centre_index` instead of the middle of the list.
+    """
+    idx = sorted(set(np.linspace(0, n_freq - 1, min(count, n_freq)).round().astype(int).tolist()))
+    if hz is not None and len(idx) == 3:
+        idx[1] = centre_index(hz)
+        idx = sorted(set(idx))
+    return idx
 
 
 def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40) -> Figure:
@@ -25,7 +57,19 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
     colour where it applies.  The dB panel bottoms out 10 dB below the
     plan's noise floor (its ``snr_db`` below the strongest channel), with the
     floor drawn: what lies below it is unusable, and numerical noise far
-    below it is not drawn as data.
+    below it is not drawn as data.  The middle frequency is the band's
+    geometric centre (:func:`centre_index`).
+
+    Parameters
+    ----------
+    plan : Plan
+    fig : Figure, optional
+    max_channels : int
+        Channels drawn at each frequency, strongest first.
+
+    Returns
+    -------
+    Figure
     """
     fig = fig or Figure(figsize=(11.0, 4.2), layout="constrained")
     ax_lin, ax_db = fig.subplots(1, 2)
@@ -36,7 +80,7 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
     idx_ch = np.arange(1, n + 1)
     floor_db = -abs(plan.snr_db) - 10.0
     colours = ["#440154", "#21918c", "#e2a000"]
-    for colour, f in zip(colours, representative_indices(len(ch.axis))):
+    for colour, f in zip(colours, representative_indices(len(ch.axis), hz=ch.axis.hz)):
         order = np.argsort(-ch.power_coupling[f])[:n]    # descending, also for tracked plans
         label = f"{ch.axis.hz[f]:.4g} Hz"
         ax_lin.plot(idx_ch, share[f, order], "o-", ms=3, color=colour, label=label)

@@ -57,13 +57,14 @@ def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80
     """
     fig = fig or Figure(figsize=(7.2, 3.8), layout="constrained")
     ax_env, ax_peak = fig.subplots(1, 2, width_ratios=[1.6, 1.0])
-    data = np.abs(irs.data)
-    ref = float(data.max()) or 1.0
+    data = irs.data
+    flat = data.reshape(data.shape[0], -1)
+    loudest = np.maximum(flat.max(axis=1), -flat.min(axis=1))        # max |h| over pairs, without a copy of |h|
+    ref = float(loudest.max()) or 1.0
     n0 = int(irs.zero_lag_samples)
     if max_time_s is None:
         # until the loudest pair has decayed by 60 dB or into the noise (4x the median of the
         # last fifth of the set), plus a quarter
-        loudest = np.max(data, axis=(1, 2))
         tail = loudest[int(0.8 * len(loudest)):]
         floor = 4.0 * float(np.median(tail)) if tail.size else 0.0
         above = np.flatnonzero(loudest > max(ref * 1e-3, floor))
@@ -73,11 +74,16 @@ def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80
         n_show = min(irs.n_samples, n0 + int(max_time_s * irs.sample_rate_hz) + 1)
     # start a little before zero lag, so the pre-ringing kept before it shows too
     start = max(0, n0 - max((n_show - n0) // 5, 1))
-    pairs = data[start:n_show].transpose(2, 1, 0).reshape(irs.n_spk * irs.n_mic, n_show - start)  # (pair, time)
-    pairs = _max_pool(_max_pool(pairs, 0, MAX_ROWS), 1, MAX_COLUMNS)     # big sets: keep every peak visible
+    # pool time first, on the (time, mic, spk) layout as stored, then pairs: the same maxima as pooling
+    # the (pair, time) image, with the large copies made only of the pooled data
+    window = np.abs(data[start:n_show].reshape(n_show - start, -1))        # (time, mic * spk)
+    window = _max_pool(window, 0, MAX_COLUMNS)
+    pairs = window.reshape(-1, irs.n_mic, irs.n_spk).transpose(2, 1, 0).reshape(irs.n_spk * irs.n_mic, -1)
+    pairs = _max_pool(pairs, 0, MAX_ROWS)                                  # big sets: keep every peak visible
+    peak = np.maximum(data.max(axis=0), -data.min(axis=0))                 # (mic, spk)
     with np.errstate(divide="ignore"):
         env_db = np.maximum(20.0 * np.log10(pairs / ref), -range_db)
-        peak_db = np.maximum(20.0 * np.log10(data.max(axis=0) / ref), -range_db)       # (mic, spk)
+        peak_db = np.maximum(20.0 * np.log10(peak / ref), -range_db)
     t_ms = (np.arange(start, n_show) - n0) / irs.sample_rate_hz * 1e3
     im = ax_env.imshow(env_db, aspect="auto", cmap="cividis", vmin=-range_db, vmax=0.0, interpolation="nearest",
                        extent=(t_ms[0], t_ms[-1], irs.n_spk * irs.n_mic + 0.5, 0.5))

@@ -15,47 +15,24 @@ from ..errors import InputError
 from ..fileio import SIGN_CONVENTION, write_text_atomic
 from ..irset import MANIFEST_NAME
 from ..planning import Plan
+from ..plots.channels import centre_index
+from ..plots.effort import drive_effort_db, loudest_speaker_db
 from ..rig import Rig
 from ..safety import CAUTION_TEXT
 from .discover import (FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification, ProjectResults,
                        find_results)
 from .figures import (ReportFigure, filter_figures, irset_figures, plan_figures, png_bytes, report_style,
                       study_figures, verification_figures)
-from .html import esc, figure_html, page, table
+from ._util import _anchor, _figures_html, _fmt, _rel
+from .conclusions import centre_note, conclusions, verdict_html, verdict_of
+from .html import esc, page, table
+from .rigs import RigGroup, rig_anchor, rig_groups, rig_section
+from .verdicts import filters_verdict, irset_verdict, plan_verdict, study_verdict, verification_verdict
 
 __all__ = ["build_report", "write_report"]
 
-_MAX_ELEMENT_ROWS = 48
 _MAX_FREQ_ROWS = 12
 
-
-def _rel(path: Path, root: Path) -> str:
-    try:
-        rel = path.relative_to(root)
-        return "." if str(rel) == "." else str(rel)
-    except ValueError:
-        return str(path)
-
-
-def _anchor(kind: str, path: Path, root: Path) -> str:
-    return kind + "-" + "".join(c if c.isalnum() else "-" for c in _rel(path, root)).strip("-")
-
-
-def _fmt(x: float, spec: str = ".3g") -> str:
-    if x is None or not np.isfinite(x):
-        return "-"
-    text = format(x, spec)
-    return text[1:] if text.startswith("-") and not text.strip("-0.") else text     # no "-0.0"
-
-
-def _figures_html(figs: list[ReportFigure], label: str) -> str:
-    import matplotlib.pyplot as plt
-
-    parts = []
-    for k, rf in enumerate(figs, 1):
-        parts.append(figure_html(png_bytes(rf.figure), rf.caption, f"{label}, figure {k}"))
-        plt.close(rf.figure)
-    return "\n".join(parts)
 
 
 #: Two channels whose singular values differ by less than this (dB) are reported as degenerate.
@@ -131,25 +108,6 @@ def _degeneracy_notes(plan: Plan) -> list[str]:
     return notes
 
 
-def _element_rows(rig: Rig, with_directivity: bool) -> tuple[list[str], list[list[object]]]:
-    header = ["kind", "name", "x (m)", "y (m)", "z (m)", "channel"] + (["directivity"] if with_directivity else [])
-    rows: list[list[object]] = []
-    for kind, es in (("speaker", rig.speakers), ("microphone", rig.mics)):
-        for i, name in enumerate(es.names[:_MAX_ELEMENT_ROWS]):
-            row: list[object] = [kind, name, *(f"{v:.3f}" for v in es.positions[i]), es.channels[i]]
-            if with_directivity:
-                d = es.directivities[i]
-                desc = d.kind + (f", radius {d.radius:g} m" if d.kind == "piston" else "")
-                if d.kind != "omni":
-                    desc += ", axis (" + ", ".join(f"{a:.2g}" for a in d.axis) + ")"
-                row.append(desc)
-            rows.append(row)
-        if len(es) > _MAX_ELEMENT_ROWS:
-            rows.append([kind, f"... {len(es) - _MAX_ELEMENT_ROWS} more", "", "", "", ""]
-                        + ([""] if with_directivity else []))
-    return header, rows
-
-
 def _plan_numbers(found: FoundPlan) -> tuple[str, list[list[object]]]:
     plan = found.plan
     ch = plan.channels
@@ -164,11 +122,56 @@ def _plan_numbers(found: FoundPlan) -> tuple[str, list[list[object]]]:
     return note, rows
 
 
+def _measurement_rows(side: dict) -> list[list[str]]:
+    """Rows naming the IR set a plan was made from (none for a free-field plan), from its ``weights.json``."""
+    m = side.get("measurement")
+    if not isinstance(m, dict) or not isinstance(m.get("irset"), dict):
+        return []
+    irs = m["irset"]
+    fmt = " ".join(str(v) for v in (irs.get("format"), irs.get("format_version")) if v is not None)
+    window = "whole response" if m.get("window_ms") is None else f"{m['window_ms']:g} ms after zero lag"
+    smooth = "none" if m.get("smoothing_octaves") is None else f"{m['smoothing_octaves']:.3g} octave"
+    return [["measured IR set", f"{irs.get('path', '')} ({fmt}; SHA-256 of {irs.get('hashed_file', '')}: "
+                                f"{irs.get('sha256', '')})"],
+            ["coupling units", str(m.get("units_meaning", m.get("units", "")))],
+            ["window, latency removed, smoothing",
+             f"{window}; {m.get('latency_samples', 0)} samples; {smooth}"]]
+
+
+def _step_anchor(kind: str, found: object, root: Path) -> str:
+    """The id of a result's section (a rig by its hash, everything else by its folder)."""
+    return rig_anchor(found.sha256) if isinstance(found, RigGroup) else _anchor(kind, found.folder, root)
+
+
+def _step_label(kind: str, found: object, root: Path) -> str:
+    return found.shown.plan.rig.name if isinstance(found, RigGroup) else _rel(found.folder, root)
+
+
+def _effort_table(plan: Plan, max_rows: int = 12) -> str:
+    """Level, drive effort and loudest speaker of each channel at the centre frequency (HTML)."""
+    ch = plan.channels
+    f = centre_index(ch.axis.hz)
+    effort = drive_effort_db(ch.singular_values[f:f + 1])[0]
+    loudest = loudest_speaker_db(ch.drive[f])
+    order = np.argsort(effort, kind="stable")[:max_rows]
+    rows = [[int(j) + 1, _fmt(-effort[j], ".1f"), _fmt(effort[j], ".1f"), _fmt(loudest[j], ".1f")] for j in order]
+    more = ch.n_channels - len(order)
+    note = (f"Drive effort at the centre, {ch.axis.hz[f]:.5g} Hz: the extra drive a channel needs for the same output as "
+            "the strongest, 20 log10(s_max / s_j), and the share of its drive on its loudest speaker, "
+            "20 log10 max |v_sj| (unit-norm drive weights; the full weights are in weights.npz and weights.csv)."
+            + (f" {more} weaker channel(s) not shown." if more > 0 else ""))
+    return ("<h3>Drive effort per channel</h3>"
+            + table(["channel", "level re strongest (dB)", "extra drive for equal output (dB)",
+                     "loudest speaker's share (dB)"], rows, text_columns=())
+            + f'<p class="note">{esc(note)}</p>')
+
+
 def _plan_section(found: FoundPlan, root: Path) -> str:
     plan, side = found.plan, found.sidecar
     rig = plan.rig
     hz = plan.channels.axis.hz
-    parts = [f'<section id="{_anchor("plan", found.folder, root)}"><h2>Plan: {esc(_rel(found.folder, root))}</h2>']
+    parts = [f'<section id="{_anchor("plan", found.folder, root)}"><h2>Plan: {esc(_rel(found.folder, root))}</h2>',
+             verdict_html(plan_verdict(found))]
     rig_info = side.get("rig", {})
     parts.append(table(["item", "value"], [
         ["rig", rig_info.get("name", rig.name)],
@@ -178,6 +181,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
         ["speed of sound", f"{rig.medium.speed_of_sound:.2f} m/s"],
         ["air absorption", "ISO 9613-1" if rig_info.get("air_absorption") else "none"],
         ["kernel", plan.kernel_name],
+        *_measurement_rows(side),
         ["frequencies", f"{len(hz)} from {hz[0]:.5g} Hz to {hz[-1]:.5g} Hz"],
         ["strong channels", f"within {plan.threshold_db:g} dB of the strongest"],
         ["usable channels", f"above the noise floor at an SNR of {plan.snr_db:g} dB on the strongest"],
@@ -186,13 +190,14 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
     if plan.estimate.warning:
         parts.append(f'<p class="note">Paraxial estimate: {esc(plan.estimate.warning)}.</p>')
     parts.extend(_degeneracy_notes(plan))
-    header, rows = _element_rows(rig, with_directivity=found.rig_file is not None)
-    parts.append("<h3>Elements</h3>" + table(header, rows, text_columns=(0, 1, 6)))
+    key = str(side.get("rig", {}).get("sha256") or rig.sha256)
+    parts.append(f'<p>Elements and geometry: <a href="#{rig_anchor(key)}">rig {esc(rig.name)}</a>.</p>')
     note, rows = _plan_numbers(found)
     parts.append("<h3>Channels per frequency</h3>")
     parts.append(table(["frequency (Hz)", "strong", "usable", "effective", "paraxial estimate",
                         "strongest s² (% of sum rule)"], rows, text_columns=()))
     parts.append(f'<p class="note">{esc(note)}</p>')
+    parts.append(_effort_table(plan))
     parts.append(_figures_html(plan_figures(found), f"plan {_rel(found.folder, root)}"))
     parts.append("</section>")
     return "\n".join(parts)
@@ -201,7 +206,7 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
 def _filters_section(found: FoundFilters, root: Path) -> str:
     d = found.sidecar
     parts = [f'<section id="{_anchor("filters", found.folder, root)}"><h2>Filters: '
-             f'{esc(_rel(found.folder, root))}</h2>']
+             f'{esc(_rel(found.folder, root))}</h2>', verdict_html(filters_verdict(found))]
     band = d.get("band_hz", [np.nan, np.nan])
     parts.append(table(["item", "value"], [
         ["sample rate", f"{d.get('sample_rate_hz', float('nan')):g} Hz"],
@@ -225,7 +230,7 @@ def _filters_section(found: FoundFilters, root: Path) -> str:
                      _fmt(worst, ".1f") if worst is not None else "-", verdict,
                      "skipped: " + skipped[j].rsplit(", ", 1)[-1] if j in skipped else ""])
     parts.append("<h3>Channels</h3>" + table(
-        ["channel", "level at band centre (dB)", "filters written", "worst planned crosstalk (dB)", "check", "note"],
+        ["channel", f"level at {_fmt(d.get('centre_hz'), '.5g')} Hz (dB)", "filters written", "worst planned crosstalk (dB)", "check", "note"],
         rows, text_columns=(5,), cell_classes=classes))
     if check:
         parts.append(f'<p class="note">Check limit {esc(check.get("limit_db"))} dB: the kept channels\' filters '
@@ -254,7 +259,7 @@ def _sweep_text(session: dict) -> str:
 def _irset_section(found: FoundIRSet, root: Path) -> str:
     irs = found.irs
     parts = [f'<section id="{_anchor("irset", found.folder, root)}"><h2>Impulse responses: '
-             f'{esc(_rel(found.folder, root))}</h2>']
+             f'{esc(_rel(found.folder, root))}</h2>', verdict_html(irset_verdict(found))]
     rows = [["written by", found.role],
             ["speakers / microphones", f"{irs.n_spk} / {irs.n_mic}"],
             ["sample rate", f"{irs.sample_rate_hz:g} Hz"],
@@ -315,7 +320,7 @@ def _gain_reference_text(doc: dict) -> str:
 def _verification_section(found: FoundVerification, root: Path) -> str:
     d = found.doc
     parts = [f'<section id="{_anchor("verify", found.folder, root)}"><h2>Verification: '
-             f'{esc(_rel(found.folder, root))}</h2>']
+             f'{esc(_rel(found.folder, root))}</h2>', verdict_html(verification_verdict(found))]
     parts.append(table(["item", "value"], [
         ["plan", d.get("plan_dir", "")], ["measured impulse responses", d.get("irset_dir", "")],
         ["isolation limit", f"{d.get('isolation_db', '')} dB"], ["measured units", d.get("irset_units", "")],
@@ -338,10 +343,12 @@ def _verification_section(found: FoundVerification, root: Path) -> str:
 
 
 def _study_section(found: FoundStudy, root: Path) -> str:
+    if found.kind in ("zones", "layout", "comparison"):
+        return _design_study_section(found, root)
     side = found.sidecar
     title = {"capacity": "Capacity study", "tolerance": "Tolerance study"}[found.kind]
     parts = [f'<section id="{_anchor("study", found.folder, root)}"><h2>{title}: {esc(_rel(found.folder, root))}</h2>',
-             f'<p class="verdict">{esc(str(side.get("verdict", "")))}</p>']
+             verdict_html(study_verdict(found))]
     conventions = side.get("conventions", {})
     rows = [[k.replace("_", " "), str(v)] for k, v in conventions.items()]
     if found.kind == "tolerance":
@@ -352,40 +359,15 @@ def _study_section(found: FoundStudy, root: Path) -> str:
     return "\n".join(parts)
 
 
-def _summary(results: ProjectResults, root: Path) -> str:
-    items = []
-    for fp in results.plans:
-        plan = fp.plan
-        hz = plan.channels.axis.hz
-        strong = plan.strong_channels
-        items.append(f"Plan <b>{esc(_rel(fp.folder, root))}</b> ({esc(plan.rig.name)}, {len(plan.rig.speakers)} "
-                     f"speakers, {len(plan.rig.mics)} microphones): {int(strong[0])} strong channel(s) at "
-                     f"{hz[0]:.4g} Hz, {int(strong[-1])} at {hz[-1]:.4g} Hz, at most {int(strong.max())}; "
-                     f"{int(plan.usable_channels.max())} above a {plan.snr_db:g} dB noise floor.")
-    for ff in results.filters:
-        ch = ff.sidecar.get("channels", [])
-        kept = sum(1 for c in ch if c.get("filters"))
-        check = ff.sidecar.get("check") or {}
-        tail = ""
-        if check:
-            tail = f"; {sum(check.get('passed', []))} of {len(check.get('passed', []))} pass the planned crosstalk check"
-        items.append(f"Filters <b>{esc(_rel(ff.folder, root))}</b>: {kept} of {len(ch)} channels written{tail}.")
-    for fi in results.irsets:
-        w = len(fi.irs.warnings)
-        items.append(f"Impulse responses <b>{esc(_rel(fi.folder, root))}</b> ({fi.role}): {fi.irs.n_spk} x "
-                     f"{fi.irs.n_mic}, {w} warning(s)" + (f", {len(fi.marked_takes)} marked take(s)"
-                                                         if fi.marked_takes else "") + ".")
-    for fv in results.verifications:
-        passed = fv.doc.get("passed", [])
-        chans = fv.doc.get("channels", [])
-        failed = [c for c, p in zip(chans, passed) if not p]
-        verdict = ('<span class="pass">all pass</span>' if not failed else
-                   f'<span class="fail">{len(failed)} lost</span> (channel{"s" if len(failed) > 1 else ""} '
-                   f'{esc(", ".join(str(c) for c in failed))})')
-        items.append(f"Verification <b>{esc(_rel(fv.folder, root))}</b>: {sum(passed)} of {len(passed)} wanted "
-                     f"channels pass at {esc(fv.doc.get('isolation_db'))} dB isolation; {verdict}.")
-    body = "".join(f"<li>{i}</li>" for i in items)
-    return f'<section id="summary"><h2>Summary</h2><div class="verdict"><ul>{body}</ul></div></section>'
+def _design_study_section(found, root: Path) -> str:
+    """A zones, layout or comparison study (tables and figures from :mod:`arrayplan.report.studies`)."""
+    from .studies import STUDY_NAMES, study_figures, study_section_html
+
+    figs = [ReportFigure(caption, fig) for caption, fig in study_figures(found)]
+    return "\n".join([f'<section id="{_anchor("study", found.folder, root)}"><h2>{STUDY_NAMES[found.kind]}: '
+                      f'{esc(_rel(found.folder, root))}</h2>', verdict_html(study_verdict(found)),
+                      study_section_html(found),
+                      _figures_html(figs, f"study {_rel(found.folder, root)}"), "</section>"])
 
 
 def _provenance_of(path: Path) -> dict:
@@ -473,24 +455,29 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     if results.empty:
         detail = f" ({'; '.join(results.problems)})" if results.problems else ""
         raise InputError("no arrayplan results found" + detail, source=str(root),
-                         fix="run 'arrayplan plan RIG.toml --out DIR' (and filters, measure, verify) into this folder")
+                         fix="write results into this folder first ('arrayplan plan', then filters, measure, verify)")
     generated = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
     title = title or f"arrayplan report: {root.resolve().name}"
-    steps = ([("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
+    steps = ([("rig", g) for g in rig_groups(results.plans)]
+             + [("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
              + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications]
              + [("study", fs) for fs in results.studies])
     total = len(steps) + 1
-    builders = {"plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
+    builders = {"rig": (rig_section, "Rig"), "plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
                 "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification"),
                 "study": (_study_section, "Study")}
     toc = []
     sections = []
+    entries = []
     with report_style():
         for done, (kind, found) in enumerate(steps, 1):
             build, name = builders[kind]
             sections.append(build(found, root))
-            toc.append(f'<li><a href="#{_anchor(kind, found.folder, root)}">{name}: '
-                       f'{esc(_rel(found.folder, root))}</a></li>')
+            anchor, label = _step_anchor(kind, found, root), f"{name}: {_step_label(kind, found, root)}"
+            toc.append(f'<li><a href="#{anchor}">{esc(label)}</a></li>')
+            verdict = verdict_of(kind, found)
+            if verdict is not None:
+                entries.append((kind, anchor, label, verdict))
             if progress is not None:
                 progress(done, total)
     header = (f"<header><h1>{esc(title)}</h1><p class=\"meta\">Generated {esc(generated)} UTC by arrayplan "
@@ -499,9 +486,10 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
                "<p>Measuring and verifying a rig plays loud test signals through real loudspeakers. "
                "The drive filters in this project feed loudspeakers too.</p>"
                f"<pre>{esc(CAUTION_TEXT.strip())}</pre></section>")
-    nav = ('<nav><h2>Contents</h2><ol><li><a href="#summary">Summary</a></li>' + "".join(toc)
+    nav = ('<nav id="contents"><h2>Contents</h2><ol><li><a href="#summary">Conclusions</a></li>'
+           '<li><a href="#caution">Caution</a></li>' + "".join(toc)
            + '<li><a href="#provenance">Provenance</a></li></ol></nav>')
-    body = "\n".join([header, _summary(results, root), caution, nav, *sections,
+    body = "\n".join([header, conclusions(entries, centre_note(results, root)), nav, caution, *sections,
                       _provenance_section(results, root, generated)])
     if progress is not None:
         progress(total, total)

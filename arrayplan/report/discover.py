@@ -25,6 +25,8 @@ from __future__ import annotations
 import csv
 import json
 import os
+import struct
+import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -32,9 +34,11 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
+from ..fileio import check_folder
 from ..filters.check import FilterCheck
 from ..irset import MANIFEST_NAME, IRSet, read_irset
-from ..plan_files import read_plan
+from ..frequency import FrequencyAxis
+from ..plan_files import PlanWeights, read_plan
 from ..planning import Plan
 from ..rig import Rig, load_rig
 
@@ -188,14 +192,70 @@ def _rig_for_plan(sidecar: dict, plan_dir: Path, project: Path, given: Rig | Non
                         "directivity unknown, so no field maps)")
 
 
+#: Size of a ZIP local file header before its name and extra field (PKWARE APPNOTE.TXT, section 4.3.7).
+_ZIP_LOCAL_HEADER = struct.Struct("<4s5H3L2H")
+
+
+def _mapped_npz(path: Path, keys: tuple[str, ...]) -> dict[str, np.ndarray]:
+    """Members of an uncompressed ``.npz`` as read-only memory maps; nothing is read until it is used.
+
+    ``np.savez`` stores each array as an uncompressed ``.npy`` member, so the
+    array's bytes lie in the file as they are: a map of them reads only the
+    pages a figure or table touches (the report needs the drive weights at
+    one frequency, not the whole (n_freq, n_spk, n_chan) stack).  A
+    compressed member is read in full instead.
+    """
+    out: dict[str, np.ndarray] = {}
+    with zipfile.ZipFile(path) as zf, open(path, "rb") as fh:
+        for key in keys:
+            info = zf.getinfo(key + ".npy")
+            if info.compress_type != zipfile.ZIP_STORED:
+                with zf.open(info) as member:
+                    out[key] = np.lib.format.read_array(member, allow_pickle=False)
+                continue
+            fh.seek(info.header_offset)
+            head = _ZIP_LOCAL_HEADER.unpack(fh.read(_ZIP_LOCAL_HEADER.size))
+            if head[0] != b"PK\x03\x04":
+                raise ValueError(f"bad ZIP member header for {key}")
+            fh.seek(info.header_offset + _ZIP_LOCAL_HEADER.size + head[-2] + head[-1])
+            version = np.lib.format.read_magic(fh)
+            shape, fortran, dtype = (np.lib.format.read_array_header_1_0(fh) if version == (1, 0)
+                                     else np.lib.format.read_array_header_2_0(fh))
+            if dtype.hasobject:
+                raise ValueError(f"{key} holds Python objects")
+            if 0 in shape:
+                out[key] = np.empty(shape, dtype=dtype)
+                continue
+            out[key] = np.memmap(path, dtype=dtype, mode="r", offset=fh.tell(), shape=shape,
+                                 order="F" if fortran else "C")
+    return out
+
+
+def _plan_weights(folder: Path, sidecar: dict) -> PlanWeights:
+    """The plan's weights with the large drive and combine stacks memory-mapped (see :func:`_mapped_npz`)."""
+    npz = folder / "weights.npz"
+    check_folder(folder, needed=("weights.*", "*.csv"))   # a mixed or damaged folder is refused, naming the file
+    try:
+        with np.load(npz, allow_pickle=False) as z:
+            small = {k: z[k] for k in ("frequency_hz", "singular_value", "speaker_names", "mic_names")}
+        big = _mapped_npz(npz, ("drive", "combine"))
+    except (ValueError, KeyError, OSError, zipfile.BadZipFile) as exc:
+        raise InputError(f"cannot read plan weights ({exc.__class__.__name__}: {' '.join(str(exc).split())})",
+                         source=str(npz)) from None
+    return PlanWeights(FrequencyAxis(small["frequency_hz"], source=str(npz)), small["singular_value"], big["drive"],
+                       big["combine"], tuple(str(x) for x in small["speaker_names"]),
+                       tuple(str(x) for x in small["mic_names"]), sidecar)
+
+
 def _load_plan(folder: Path, project: Path, rig: Rig | None) -> FoundPlan:
     sidecar = _read_json(folder / "weights.json")
     full_rig, rig_file, note = _rig_for_plan(sidecar, folder, project, rig)
-    plan = read_plan(folder, full_rig)
+    plan = read_plan(folder, full_rig, weights=_plan_weights(folder, sidecar))
     return FoundPlan(folder, plan, sidecar, rig_file, note)
 
 
 def _load_filters(folder: Path) -> FoundFilters:
+    check_folder(folder, needed=("filters.json", "channel-*.wav", "*.csv"))
     doc = _read_json(folder / "filters.json")
     check = None
     c = doc.get("check")
@@ -231,6 +291,7 @@ def _load_irset(folder: Path) -> FoundIRSet:
 
 
 def _load_verification(folder: Path) -> FoundVerification:
+    check_folder(folder, needed=("verify*",))
     doc = _read_json(folder / "verify.json")
     arrays = None
     if (folder / "verify.npz").is_file():
@@ -252,6 +313,9 @@ def _load_study(folder: Path) -> FoundStudy:
         if (folder / name).is_file():
             study, side = getattr(study_files, reader)(folder)
             return FoundStudy(folder, kind, study, side)
+    from .studies import load_study, study_kind
+    if study_kind(folder):
+        return load_study(folder)
     raise InputError("no study sidecar", source=str(folder))
 
 
@@ -263,6 +327,9 @@ def _kind(folder: Path) -> str | None:
     if (folder / "verify.json").is_file():
         return "verification"
     if any((folder / name).is_file() for name in _STUDY_SIDECARS):
+        return "study"
+    from .studies import study_kind       # zones, layout and comparison studies
+    if study_kind(folder):
         return "study"
     if (folder / MANIFEST_NAME).is_file():
         parts = folder.parts
@@ -310,6 +377,9 @@ def find_results(project_dir: str | os.PathLike, rig: Rig | None = None) -> Proj
             try:
                 bucket.append(load(where))
             except InputError as exc:
-                text = exc.one_line() if hasattr(exc, "one_line") else str(exc)
-                out.problems.append(f"{kind} in {where}: {text}")
+                out.problems.append(f"{kind} in {where}: {exc.one_line()}")
+            except (OSError, ValueError, KeyError, TypeError, EOFError, zipfile.BadZipFile) as exc:
+                # Any other fault of one result's files: listed, and the rest still comes out.
+                out.problems.append(f"{kind} in {where}: unreadable ({exc.__class__.__name__}: "
+                                    f"{' '.join(str(exc).split())})")
     return out

@@ -20,9 +20,12 @@ from ..field import best_plane, channel_field, default_plane
 from ..filters.check import plot_crosstalk as plot_filter_crosstalk
 from ..plots import (plot_channel_counts, plot_channel_matrices, plot_couplings, plot_field_panels,
                      plot_ir_overview, plot_isolation, plot_level_map, plot_rig, plot_singular_values)
+from ..plots.channels import centre_index
+from ..plots.effort import plot_drive_effort
 from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification
 
-__all__ = ["ReportFigure", "PAGE_WIDTH_IN", "MIN_FONT_PT", "report_style", "plan_figures", "filter_figures",
+__all__ = ["ReportFigure", "PAGE_WIDTH_IN", "MIN_FONT_PT", "report_style", "rig_figures", "plan_figures",
+           "filter_figures",
            "irset_figures", "verification_figures", "study_figures", "png_bytes"]
 
 #: A4 is 210 mm wide; with 15 mm margins the text is 180 mm = 7.09 in wide.
@@ -59,9 +62,23 @@ def _fig(height_in: float) -> Figure:
 
 
 def png_bytes(fig: Figure, dpi: int = 150) -> bytes:
-    """The figure as PNG bytes."""
+    """The figure as PNG bytes, drawn once.
+
+    A figure with a layout engine is laid out once at the output resolution
+    and then frozen, and the canvas prints it directly: ``savefig`` would
+    draw such a figure twice (a dry draw for the layout, then the real one).
+    The picture is the same, pixel for pixel, for about half the work.
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    fig.set_dpi(dpi)
+    canvas = FigureCanvasAgg(fig)
+    engine = fig.get_layout_engine()
+    if engine is not None:
+        engine.execute(fig)
+        fig.set_layout_engine("none")
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi)
+    canvas.print_png(buf)
     return buf.getvalue()
 
 
@@ -71,7 +88,7 @@ def _field_figure(found: FoundPlan) -> ReportFigure | None:
         return None
     rig = plan.rig
     ch = plan.channels
-    f = int(np.argmin(np.abs(np.log(ch.axis.hz) - np.log(ch.axis.hz).mean())))    # geometric centre
+    f = centre_index(ch.axis.hz)                                                 # the report's one centre
     n = min(FIELD_CHANNELS, ch.n_channels)
     plane = best_plane(rig)
     grid = default_plane(rig, plane, resolution=121)
@@ -86,17 +103,29 @@ def _field_figure(found: FoundPlan) -> ReportFigure | None:
                         "Speakers: red triangles; microphones: white circles.", fig)
 
 
+def rig_figures(found: FoundPlan) -> list[ReportFigure]:
+    """The rig geometry of a plan, in three views."""
+    return [ReportFigure(f"The rig in three views ({found.rig_note}).", plot_rig(found.plan.rig, fig=_fig(2.9)))]
+
+
 def plan_figures(found: FoundPlan) -> list[ReportFigure]:
-    """Rig geometry, channel strengths, counts, level map and field maps of one plan."""
+    """Channel strengths, counts, level map, drive effort and field maps of one plan (the rig: :func:`rig_figures`)."""
     plan = found.plan
-    out = [ReportFigure(f"The rig in three views ({found.rig_note}).", plot_rig(plan.rig, fig=_fig(2.9))),
-           ReportFigure("Each channel's power coupling s^2 as a share of the sum rule (left) and in dB re the "
-                        "strongest channel (right), at three frequencies; dashed: paraxial estimate of the count.",
+    hz = plan.channels.axis.hz
+    out = [ReportFigure("Each channel's power coupling s^2 as a share of the sum rule (left) and in dB re the "
+                        f"strongest channel (right), at the lowest, the centre ({hz[centre_index(hz)]:.4g} Hz) and "
+                        "the highest planned frequency; dashed: paraxial estimate of the count.",
                         plot_couplings(plan, fig=_fig(3.3))),
            ReportFigure("Strong, usable and effective channel counts against frequency, with the paraxial estimate.",
                         plot_channel_counts(plan, fig=_fig(3.4))),
            ReportFigure("Level of every channel (strongest first) over frequency; white: the strong count; "
-                        "dashed: the paraxial estimate.", plot_level_map(plan, fig=_fig(3.6)))]
+                        "dashed: the paraxial estimate.", plot_level_map(plan, fig=_fig(3.6))),
+           ReportFigure("Drive effort: the extra drive (dB) each channel needs to give the same output as the "
+                        "strongest channel at that frequency, 20 log10(s_max / s_j): a channel 20 dB down needs "
+                        "20 dB more drive; dotted: the strong threshold; dash-dotted: the noise floor at the plan's "
+                        "SNR, above which the channel cannot match the strongest one's output; lines at the top "
+                        f"edge need more than {abs(plan.snr_db) + 10:g} dB.",
+                        plot_drive_effort(plan, ax=_fig(3.2).subplots()))]
     field = _field_figure(found)
     if field is not None:
         out.append(field)
@@ -118,7 +147,7 @@ def irset_figures(found: FoundIRSet) -> list[ReportFigure]:
     """Envelopes and peak levels of an IR set."""
     irs = found.irs
     fig = plot_ir_overview(irs, fig=_fig(3.8))
-    peak = float(np.max(np.abs(irs.data)))
+    peak = float(max(irs.data.max(), -irs.data.min()))          # max |h| without a copy of |h|
     return [ReportFigure(f"Impulse responses in {found.folder.name}: envelope of every speaker/microphone pair "
                          f"(left) and each pair's peak (right), dB re the largest sample ({peak:.3g}, unit "
                          f"{irs.units}).", fig)]

@@ -30,13 +30,28 @@ figcaption { font-size: 9pt; color: #333; margin-top: 3pt; }
 .caution { border: 1.5pt solid #b35806; background: #fff4e6; padding: 6pt 10pt; margin: 12pt 0; }
 .caution pre { white-space: pre-wrap; font-size: 9pt; margin: 4pt 0; }
 .verdict { border-left: 4pt solid #3b528b; background: #f4f6fb; padding: 4pt 10pt; }
+ul.conclusions { list-style: none; padding-left: 0; }
+ul.conclusions li { margin: 3pt 0; }
+.badge { display: inline-block; min-width: 5.5em; text-align: center; font-size: 8.5pt; font-weight: bold;
+         border-radius: 2pt; padding: 0 4pt; margin-right: 4pt; border: 0.8pt solid #888; color: #333; }
+.badge.pass { color: #1b7837; border-color: #1b7837; }
+.badge.fail { color: #b2182b; border-color: #b2182b; }
+.remedy { color: #7a3b00; }
+p.overall { font-weight: bold; }
 .pass { color: #1b7837; font-weight: bold; }
 .fail { color: #b2182b; font-weight: bold; }
 .note { color: #555; font-size: 9pt; }
 code { font-size: 9pt; background: #f2f2f2; padding: 0 2pt; }
 nav ol { margin-top: 2pt; }
 @page { size: A4; margin: 15mm; }
-@media print { body { max-width: none; margin: 0; padding: 0; } h2 { break-after: avoid; } }
+@media print {
+  body { max-width: none; margin: 0; padding: 0; }
+  h2, h3 { break-after: avoid; page-break-after: avoid; }
+  figure, table, .verdict, .caution { break-inside: avoid; page-break-inside: avoid; }
+  figure img { break-after: avoid; page-break-after: avoid; }
+  figcaption { break-before: avoid; page-break-before: avoid; }
+  tr { break-inside: avoid; page-break-inside: avoid; }
+}
 """
 
 

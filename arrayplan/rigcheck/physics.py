@@ -7,7 +7,9 @@ import re
 import numpy as np
 from scipy.spatial import cKDTree
 
+from ..errors import InputError
 from ..heuristics import PARAXIAL_RATIO, aperture_shape
+from ..limits import check_memory
 from ..medium import speed_of_sound_air
 from ..rig import Rig
 from ..room import eyring_t60_s, sabine_t60_s, schroeder_frequency_hz
@@ -345,16 +347,24 @@ def physical_findings(rig: Rig, groups: dict[str, list[SideGroup]], raw_medium: 
     out += room_findings(rig, None if rig.frequencies is None else rig.frequencies.hz)
     if rig.frequencies is None:
         out.append(Finding("note", "frequencies",
-                           "no [frequencies] table: 'arrayplan plan' will need --freq, and the checks that depend "
+                           "no [frequencies] table: 'arrayplan plan' will need frequencies on its command line, and "
+                           "the checks that depend "
                            "on frequency (spacing, near field, nulls, sample rate) were skipped",
                            "add [frequencies] with start, stop and count in Hz"))
         return out + paraxial_findings(rig) + hardware_findings(rig, None)
     hz = rig.frequencies.hz
     out += aliasing_findings(rig, groups)
     out += paraxial_findings(rig)
-    out += coupling_findings(rig, hz)
-    out += piston_findings(rig, float(hz[-1]))
-    out += proximity_findings(rig, float(hz[0]))
+    try:    # tables of every speaker-microphone path at every frequency: estimated before they are built
+        check_memory(8.0 * len(rig.mics) * len(rig.speakers) * (2 * len(hz) + 8),
+                     "checking every speaker-microphone path", source=rig.source)
+    except InputError as exc:
+        out.append(Finding("note", "speakers/microphones", "the checks of each speaker-microphone path (nulls, "
+                           f"baffles, pistons' near field, proximity) were skipped: {exc.problem}", exc.fix))
+    else:
+        out += coupling_findings(rig, hz)
+        out += piston_findings(rig, float(hz[-1]))
+        out += proximity_findings(rig, float(hz[0]))
     out += compact_findings(rig, float(hz[-1]))
     out += hardware_findings(rig, float(hz[-1]))
     return out

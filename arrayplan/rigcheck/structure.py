@@ -1,4 +1,8 @@
-"""Structural checks of a rig file: everything :func:`arrayplan.rig.load_rig` would refuse, all at once."""
+"""Structural checks of a rig file: everything :func:`arrayplan.rig.load_rig` would refuse, all at once.
+
+With a ``[room]`` table this includes every element outside the room or
+nearer than :data:`arrayplan.room.WALL_CLEARANCE_M` to a wall, each named.
+"""
 
 from __future__ import annotations
 
@@ -9,6 +13,7 @@ from typing import Any, Callable
 from ..errors import InputError
 from ..rig import (ENTRY_KEYS, TABLE_KEYS, EntryElements, FieldReader, Rig, entry_kind, join_entries, load_rig,
                    read_rig_document, resolve_entry, resolve_section)
+from ..room import Room, parse_room
 from .findings import SEVERITIES, Finding, SideGroup
 from .physics import physical_findings
 
@@ -102,11 +107,14 @@ def _frequency_list(values: Any) -> list[Finding]:
 
 
 def _check_sides(doc: dict, r: FieldReader, base: Path, src: str
-                 ) -> tuple[list[Finding], dict[str, list[SideGroup]], dict[str, list[EntryElements]]]:
-    """Findings, the groups of each side, and every resolved entry of each side in file order."""
+                 ) -> tuple[list[Finding], dict[str, list[SideGroup]], dict[str, list[EntryElements]],
+                            dict[str, list[str]]]:
+    """Findings, the groups of each side, every resolved entry of each side in file order, and the names
+    of the point entries that did not resolve (so that a repeated name is found even there)."""
     findings: list[Finding] = []
     groups: dict[str, list[SideGroup]] = {"speakers": [], "microphones": []}
     resolved: dict[str, list[EntryElements]] = {"speakers": [], "microphones": []}
+    unresolved: dict[str, list[str]] = {"speakers": [], "microphones": []}
     for label in ("speakers", "microphones"):
         entries = doc.get(label)
         if entries is None:
@@ -138,6 +146,8 @@ def _check_sides(doc: dict, r: FieldReader, base: Path, src: str
             part, errs = _peel(resolve, clean, where, src, keep=frozenset({"shape", "csv"}))
             findings += errs
             if part is None:
+                if kind == "point" and isinstance(entry.get("name"), str) and entry["name"]:
+                    unresolved[label].append(entry["name"])
                 continue
             parts.append(part)
             next_channel = max(c for p in parts for c in p.channels) + 1
@@ -152,7 +162,21 @@ def _check_sides(doc: dict, r: FieldReader, base: Path, src: str
                                                                        joined.directivities, joined.channels),
                                            (len(joined.names),)))
         resolved[label] = parts
-    return findings, groups, resolved
+    return findings, groups, resolved, unresolved
+
+
+def _names_repeated_in_failed_entries(resolved: dict[str, list[EntryElements]],
+                                      unresolved: dict[str, list[str]]) -> list[Finding]:
+    """Repeated names that involve an entry with another error (the resolved ones are checked by the rig)."""
+    out = []
+    for label, failed in unresolved.items():
+        seen = {n for p in resolved[label] for n in p.names}
+        for name in failed:
+            if name in seen:
+                out.append(Finding("error", label, f"{label} names must be unique; {name!r} appears twice",
+                                   "give each element its own name"))
+            seen.add(name)
+    return out
 
 
 def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
@@ -173,7 +197,7 @@ def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
         findings.append(Finding("error", "rig", "must be a table [rig]", "write [rig] with name = \"...\""))
     else:
         findings += _unknown_keys(meta, TABLE_KEYS["rig"], "rig", "of [rig]")
-    side_findings, groups, resolved = _check_sides(doc, r, base, src)
+    side_findings, groups, resolved, unresolved = _check_sides(doc, r, base, src)
     findings += side_findings
     for name in ("medium", "frequencies", "hardware", "planning"):
         table = doc.get(name)
@@ -197,15 +221,32 @@ def _structure(path: Path) -> tuple[list[Finding], dict[str, list[SideGroup]]]:
                                   if k in TABLE_KEYS["hardware.reference"]}
         _, errs = _peel(lambda t, name=name: resolve_section(name, t, r, base), clean, name, src)
         findings += errs
-    # the entries that resolved: now the clashes between elements (names, channels, positions);
-    # a side whose entries all failed is already reported, so its emptiness is not repeated
-    rig = Rig(join_entries(resolved["speakers"]), join_entries(resolved["microphones"]), source=src)
+    room = _room(doc.get("room"), r, src, findings)
+    # the entries that resolved: now the clashes between elements (names, channels, positions) and,
+    # with a room, every element outside it or too near a wall; a side whose entries all failed is
+    # already reported, so its emptiness is not repeated
+    rig = Rig(join_entries(resolved["speakers"]), join_entries(resolved["microphones"]), source=src, room=room)
     for exc in rig.problems():
         if exc.problem.startswith("the rig has no ") and any(
                 f.field.startswith(str(exc.field)) for f in findings):
             continue
         findings.append(_from_error(exc, src))
+    findings += _names_repeated_in_failed_entries(resolved, unresolved)
     return findings, groups
+
+
+def _room(table: Any, r: FieldReader, src: str, findings: list[Finding]) -> Room | None:
+    """The ``[room]`` table resolved (None when absent or wrong), its problems appended to `findings`."""
+    if table is None:
+        return None
+    if not isinstance(table, dict):
+        findings.append(Finding("error", "room", "must be a table [room]", "write [room] above its keys"))
+        return None
+    findings += _unknown_keys(table, TABLE_KEYS["room"], "room", "of [room]")
+    clean = {k: v for k, v in table.items() if k in TABLE_KEYS["room"]}
+    room, errs = _peel(lambda t: parse_room(t, r), clean, "room", src, keep=frozenset({"size_m", "absorption"}))
+    findings += errs
+    return room
 
 
 def check_rig_file(path: str | Path) -> list[Finding]:

@@ -38,6 +38,11 @@ Deconvolution (:mod:`.deconvolve`)
     impulse_responses([recording (n, n_mic) per speaker], inverse, ...) -> OfflineResult
         (.data (ir_length, n_mic, n_spk), .harmonics, .harmonic_db, .peak_to_noise_db, .warnings)
 
+Recordings made with any recorder (:mod:`.offline`, :mod:`.element_names`)
+    read_played_sweep(sidecar) -> PlayedSweep; read_takes(played, paths) -> Takes
+    deconvolve_takes(played, takes, speaker_names=, mic_names=, ...) -> OfflineIRs; write_offline_irs(folder, made)
+    names_from_rig_file(path), names_from_plan(folder) -> RigNames; fit_names(names, n_speakers, n_mics)
+
 Files (:mod:`.wavout`)
     write_signal_files(wav_path, signal, rate, sample_format, sidecar, extra_wavs) : WAV + JSON sidecar, atomic
     read_recording(path) -> (data (n, n_ch), rate)

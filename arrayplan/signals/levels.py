@@ -139,7 +139,7 @@ def channel_rms_dbfs(x: np.ndarray) -> np.ndarray:
 
 def _fade_lengths(n: int, sample_rate_hz: float, fade_in_s: float, fade_out_s: float,
                   source: str | None) -> tuple[int, int]:
-    for name, value in (("--fade-in-s", fade_in_s), ("--fade-out-s", fade_out_s)):
+    for name, value in (("fade_in_s", fade_in_s), ("fade_out_s", fade_out_s)):
         if not (math.isfinite(value) and value > 0):
             raise InputError(f"fade must be a positive duration in seconds, got {value!r}",
                              source=source, field=name, fix="fades are always applied; give e.g. 0.01")
@@ -147,7 +147,7 @@ def _fade_lengths(n: int, sample_rate_hz: float, fade_in_s: float, fade_out_s: f
     n_out = max(2, int(round(fade_out_s * sample_rate_hz)))
     if n_in + n_out > n:
         raise InputError(f"fades ({fade_in_s:g} s + {fade_out_s:g} s) are longer than the signal "
-                         f"({n / sample_rate_hz:g} s)", source=source, field="--fade-in-s",
+                         f"({n / sample_rate_hz:g} s)", source=source, field="fade_in_s",
                          fix="shorten the fades or lengthen the signal")
     return n_in, n_out
 
@@ -225,10 +225,10 @@ def highpass(x: np.ndarray, sample_rate_hz: float, cutoff_hz: float, order: int 
     nyq = sample_rate_hz / 2.0
     if not (math.isfinite(cutoff_hz) and 0 < cutoff_hz < nyq):
         raise InputError(f"high-pass cutoff {cutoff_hz:g} Hz is outside (0, {nyq:g}) Hz",
-                         source=source, field="--highpass-hz", fix="choose a cutoff below half the sample rate")
+                         source=source, field="highpass_hz", fix="choose a cutoff below half the sample rate")
     if not 1 <= int(order) <= 8:
         raise InputError(f"high-pass order must be 1 to 8, got {order}", source=source,
-                         field="--highpass-order")
+                         field="highpass_order")
     sos = butter(int(order), cutoff_hz, btype="highpass", fs=sample_rate_hz, output="sos")
     return sosfilt(sos, np.asarray(x, dtype=float), axis=0)
 
@@ -282,12 +282,12 @@ def scale_to_level(x: np.ndarray, *, peak_dbfs: float | None = None,
     """
     if (peak_dbfs is None) == (rms_dbfs is None):
         raise InputError("give exactly one of a peak level and an RMS level", source=source,
-                         field="--peak-dbfs/--rms-dbfs")
+                         field="peak_dbfs/rms_dbfs")
     x = np.asarray(x, dtype=float)
     target = peak_dbfs if peak_dbfs is not None else rms_dbfs
     if not math.isfinite(target):
         raise InputError(f"level must be a finite number of dBFS, got {target!r}", source=source,
-                         field="--peak-dbfs" if peak_dbfs is not None else "--rms-dbfs")
+                         field="peak_dbfs" if peak_dbfs is not None else "rms_dbfs")
     if peak_dbfs is not None:
         now = amplitude_from_dbfs(true_peak_dbfs(x)) if np.any(x) else 0.0
     else:
@@ -351,13 +351,13 @@ def check_peak(x: np.ndarray, *, cap_dbfs: float = DEFAULT_PEAK_CAP_DBFS,
     peak = true_peak_dbfs(x)
     if peak > 1e-9:
         raise InputError(f"true peak {peak:+.2f} dBFS (sample peak {peak_dbfs(x):+.2f} dBFS) would clip in a "
-                         "converter", source=source, field="--peak-dbfs",
+                         "converter", source=source, field="peak_dbfs",
                          fix="lower the level (an RMS target on noise implies a peak about 12 dB higher)")
     if peak > limit + 1e-9 and not allow_above_cap:
         what = ("the cap" if limit == cap_dbfs else
                 f"the default cap (a cap raised to {cap_dbfs:+.1f} dBFS is lifted and needs consent)")
         raise InputError(f"true peak {peak:+.2f} dBFS is above {what} of {limit:+.1f} dBFS",
-                         source=source, field="--peak-dbfs",
+                         source=source, field="peak_dbfs",
                          fix="lower the level (an RMS target puts the peak higher by the signal's crest "
-                             "factor), or pass --allow-above-cap if you really need it")
+                             "factor), or pass `allow_above_cap` if you really need it")
     return peak

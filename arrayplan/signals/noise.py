@@ -28,19 +28,19 @@ def check_noise_band(duration_s: float, sample_rate_hz: float, f_lo_hz: float, f
                      *, source: str | None = None) -> None:
     """Refuse band limits outside (0, fs/2] and durations too short for the band."""
     nyq = sample_rate_hz / 2.0
-    for name, f in (("--f1-hz", f_lo_hz), ("--f2-hz", f_hi_hz)):
+    for name, f in (("f1_hz", f_lo_hz), ("f2_hz", f_hi_hz)):
         if not (math.isfinite(f) and 0 < f <= nyq):
             raise InputError(f"band limit {f:g} Hz is outside (0, {nyq:g}] Hz (half the sample rate)",
                              source=source, field=name, fix="choose limits between 0 Hz and fs/2")
     if not f_lo_hz < f_hi_hz:
         raise InputError(f"band is empty: lower limit {f_lo_hz:g} Hz is not below the upper limit {f_hi_hz:g} Hz",
-                         source=source, field="--f1-hz")
+                         source=source, field="f1_hz")
     if not (math.isfinite(duration_s) and duration_s > 0):
-        raise InputError(f"duration must be positive, got {duration_s!r} s", source=source, field="--duration-s")
+        raise InputError(f"duration must be positive, got {duration_s!r} s", source=source, field="duration_s")
     need = MIN_PERIODS_OF_LOWEST / f_lo_hz
     if duration_s < need:
         raise InputError(f"{duration_s:g} s of noise is too short for a band starting at {f_lo_hz:g} Hz",
-                         source=source, field="--duration-s", fix=f"use at least {need:.3g} s or raise --f1-hz")
+                         source=source, field="duration_s", fix=f"use at least {need:.3g} s or raise `f1_hz`")
 
 
 def band_limited_noise(colour: str, duration_s: float, sample_rate_hz: float, f_lo_hz: float,
@@ -68,7 +68,7 @@ def band_limited_noise(colour: str, duration_s: float, sample_rate_hz: float, f_
     """
     if colour not in NOISE_COLOURS:
         raise InputError(f"noise colour must be one of {', '.join(NOISE_COLOURS)}, got {colour!r}",
-                         source=source, field="--colour")
+                         source=source, field="colour")
     check_noise_band(duration_s, sample_rate_hz, f_lo_hz, f_hi_hz, source=source)
     n = int(round(duration_s * sample_rate_hz))
     rng = np.random.default_rng(seed)

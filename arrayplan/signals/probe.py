@@ -1,10 +1,12 @@
 """The channel probe: one planned channel's drive filters applied to a probe signal.
 
 A channel's drive filters are a multichannel WAV file (float, one audio
-channel per speaker, in rig speaker order), optionally with a JSON sidecar
-of the same stem naming the speakers.  Convolving the probe signal (a sweep
-or noise) with every filter gives a file with one channel per speaker: all
-speakers play that channel at once.
+channel per speaker, in rig speaker order), as ``arrayplan filters`` writes
+them (``channel-NN-drive.wav``, named in the folder's ``filters.json`` with
+the rig's speaker names), or a hand-made file with a JSON sidecar of the same
+stem naming the speakers.  Convolving the probe signal (a sweep or noise)
+with every filter gives a file with one channel per speaker: all speakers
+play that channel at once.
 """
 
 from __future__ import annotations
@@ -15,8 +17,70 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
+from ..fileio import check_folder
 
-__all__ = ["read_filter_wav", "filter_names_from_sidecar", "channel_probe"]
+__all__ = ["read_filter_wav", "filter_names_from_sidecar", "filter_names_from_filter_set", "channel_probe",
+           "FILTER_SET_SIDECAR"]
+
+#: The sidecar ``arrayplan filters`` writes beside its channel files (see :mod:`arrayplan.filters.files`).
+FILTER_SET_SIDECAR = "filters.json"
+
+
+def _read_json(path: Path) -> object:
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(path)) from None
+
+
+def filter_names_from_filter_set(wav_path: str | Path, n_channels: int) -> list[str] | None:
+    """Speaker names for a drive-filter WAV that ``arrayplan filters`` wrote, from its folder's ``filters.json``.
+
+    Parameters
+    ----------
+    wav_path : str or Path
+        A channel's drive filter file (``channel-NN-drive.wav``).
+    n_channels : int
+        Audio channels in the file (one per speaker).
+
+    Returns
+    -------
+    list of str or None
+        The rig's speaker names (``speakers`` in ``filters.json``), or None
+        when the folder holds no ``filters.json`` or it does not list the file.
+
+    Raises
+    ------
+    InputError
+        When the file is a combine filter (one channel per microphone, not
+        something to play), or ``filters.json`` is not valid JSON or lists a
+        different number of speakers than the file has channels.
+    """
+    wav = Path(wav_path)
+    doc_path = wav.parent / FILTER_SET_SIDECAR
+    if not doc_path.is_file():
+        return None
+    doc = _read_json(doc_path)
+    channels = doc.get("channels") if isinstance(doc, dict) else None
+    if not isinstance(channels, list):
+        return None
+    entries = [c for c in channels if isinstance(c, dict)]
+    for c in entries:
+        if c.get("combine_file") == wav.name:
+            drive = c.get("drive_file") or "the channel's drive file"
+            raise InputError("is a combine filter file (one channel per microphone): the probe plays drive "
+                             "filters", source=str(wav), fix=f"give {drive} from the same folder")
+    if not any(c.get("drive_file") == wav.name for c in entries):
+        return None
+    names = doc.get("speakers")
+    if not (isinstance(names, list) and names and all(isinstance(n, str) and n for n in names)):
+        raise InputError("does not list the speakers' names", source=str(doc_path), field="speakers",
+                         fix="use the folder exactly as 'arrayplan filters' wrote it")
+    if len(names) != n_channels:
+        raise InputError(f"lists {len(names)} speakers but {wav.name} has {n_channels} channels",
+                         source=str(doc_path), field="speakers", fix="use the folder exactly as 'arrayplan filters' "
+                                                                     "wrote it")
+    return [str(n) for n in names]
 
 
 def filter_names_from_sidecar(wav_path: str | Path, n_channels: int) -> list[str] | None:
@@ -36,10 +100,7 @@ def filter_names_from_sidecar(wav_path: str | Path, n_channels: int) -> list[str
     side = Path(wav_path).with_suffix(".json")
     if not side.exists():
         return None
-    try:
-        obj = json.loads(side.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"not valid JSON ({exc})", source=str(side)) from None
+    obj = _read_json(side)
     if not isinstance(obj, dict):
         return None
     for key in ("speaker_names", "speakers", "element_names", "channel_names"):
@@ -72,27 +133,31 @@ def read_filter_wav(path: str | Path, *, sample_rate_hz: float | None = None) ->
     rate : int
         The file's sample rate, Hz.
     names : list of str
-        Speaker names from the sidecar, else ``S1, S2, ...``.
+        Speaker names from the file's own sidecar (``<stem>.json``), else from
+        the ``filters.json`` of the filter set it belongs to, else ``S1, S2, ...``.
     """
     import soundfile as sf
 
     path = Path(path)
     if not path.exists():
-        raise InputError("filter file not found", source=str(path), field="--filters")
+        raise InputError("filter file not found", source=str(path), field="filters")
+    check_folder(path.parent, needed=(path.name,))  # a filter set's file must be the one written with it
     try:
         data, rate = sf.read(path, dtype="float64", always_2d=True)
     except Exception as exc:  # soundfile raises several types
-        raise InputError(f"cannot read WAV ({exc})", source=str(path), field="--filters") from None
+        raise InputError(f"cannot read WAV ({exc})", source=str(path), field="filters") from None
     if data.shape[0] == 0:
-        raise InputError("filter file has no samples", source=str(path), field="--filters")
+        raise InputError("filter file has no samples", source=str(path), field="filters")
     if not np.all(np.isfinite(data)):
-        raise InputError("filter file contains NaN or infinite samples", source=str(path), field="--filters")
+        raise InputError("filter file contains NaN or infinite samples", source=str(path), field="filters")
     if not np.any(data):
-        raise InputError("every filter in the file is zero", source=str(path), field="--filters")
+        raise InputError("every filter in the file is zero", source=str(path), field="filters")
     if sample_rate_hz is not None and rate != int(round(sample_rate_hz)):
         raise InputError(f"filter file is at {rate} Hz, the probe at {sample_rate_hz:g} Hz", source=str(path),
-                         field="--rate", fix=f"use --rate {rate} or design the filters at the probe's rate")
-    names = filter_names_from_sidecar(path, data.shape[1]) or [f"S{i + 1}" for i in range(data.shape[1])]
+                         field="sample_rate_hz", fix=f"make the probe at {rate} Hz, or design the filters at the "
+                                                     "probe's rate")
+    names = (filter_names_from_sidecar(path, data.shape[1]) or filter_names_from_filter_set(path, data.shape[1])
+             or [f"S{i + 1}" for i in range(data.shape[1])])
     return data, int(rate), names
 
 

@@ -59,7 +59,7 @@ def measurement_schedule(sweep: SweepSignal, n_speakers: int, *, source: str | N
     """
     if int(n_speakers) < 1:
         raise InputError(f"a schedule needs at least one speaker, got {n_speakers}", source=source,
-                         field="--speakers")
+                         field="speakers")
     n_spk = int(n_speakers)
     step = sweep.n_sweep + sweep.n_pad_after
     total = sweep.n_pad_before + n_spk * step

@@ -202,18 +202,18 @@ def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, s
         raise InputError(f"sweep kind must be one of {', '.join(SWEEP_KINDS)}, got {kind!r}", source=source)
     if not (math.isfinite(sample_rate_hz) and sample_rate_hz > 0):
         raise InputError(f"sample rate must be a positive number of Hz, got {sample_rate_hz!r}",
-                         source=source, field="--rate-hz")
+                         source=source, field="rate_hz")
     nyq = sample_rate_hz / 2.0
-    for name, f in (("--f1-hz", f1_hz), ("--f2-hz", f2_hz)):
+    for name, f in (("f1_hz", f1_hz), ("f2_hz", f2_hz)):
         if not (math.isfinite(f) and 0 < f < nyq):
             raise InputError(f"sweep limit {f:g} Hz is outside (0, {nyq:g}) Hz (half the sample rate)",
                              source=source, field=name, fix="choose limits between 0 Hz and fs/2")
     if not f1_hz < f2_hz:
         raise InputError(f"sweep must rise: f1 = {f1_hz:g} Hz is not below f2 = {f2_hz:g} Hz",
-                         source=source, field="--f1-hz", fix="swap the limits")
+                         source=source, field="f1_hz", fix="swap the limits")
     if not (math.isfinite(duration_s) and duration_s > 0):
         raise InputError(f"sweep duration must be positive, got {duration_s!r} s", source=source,
-                         field="--duration-s")
+                         field="duration_s")
     if kind == "exponential":
         rate = duration_s / math.log(f2_hz / f1_hz)
         cycles = f1_hz * rate
@@ -221,10 +221,10 @@ def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, s
             need = MIN_CYCLES_LOWEST_OCTAVE * math.log(f2_hz / f1_hz) / f1_hz
             raise InputError(f"a {duration_s:g} s sweep is too short for {f1_hz:g}-{f2_hz:g} Hz: it holds "
                              f"{cycles:.2f} periods of f1 in its lowest octave, at least "
-                             f"{MIN_CYCLES_LOWEST_OCTAVE:g} are needed", source=source, field="--duration-s",
-                             fix=f"use --duration-s {math.ceil(need * 100) / 100:g} or more, or raise --f1-hz")
+                             f"{MIN_CYCLES_LOWEST_OCTAVE:g} are needed", source=source, field="duration_s",
+                             fix=f"use `duration_s` {math.ceil(need * 100) / 100:g} or more, or raise `f1_hz`")
         octave_s = rate * math.log(2.0)
-        for name, fade in (("--fade-in-s", fade_in_s), ("--fade-out-s", fade_out_s)):
+        for name, fade in (("fade_in_s", fade_in_s), ("fade_out_s", fade_out_s)):
             if fade is not None and fade > octave_s / 2:
                 raise InputError(f"fade of {fade:g} s is longer than half the time the sweep spends in an "
                                  f"octave ({octave_s:.3g} s) and would cut into the band", source=source,
@@ -234,8 +234,8 @@ def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, s
         if tbw < MIN_TIME_BANDWIDTH:
             raise InputError(f"a {duration_s:g} s linear sweep over {f2_hz - f1_hz:g} Hz has a time-bandwidth "
                              f"product of {tbw:.3g}, below {MIN_TIME_BANDWIDTH:g}", source=source,
-                             field="--duration-s", fix="lengthen the sweep or widen the band")
-        for name, fade in (("--fade-in-s", fade_in_s), ("--fade-out-s", fade_out_s)):
+                             field="duration_s", fix="lengthen the sweep or widen the band")
+        for name, fade in (("fade_in_s", fade_in_s), ("fade_out_s", fade_out_s)):
             if fade is not None and fade > duration_s / 4:
                 raise InputError(f"fade of {fade:g} s is longer than a quarter of the sweep", source=source,
                                  field=name, fix="shorten the fade")
@@ -438,12 +438,12 @@ def make_sweep(settings: SweepSettings, *, source: str | None = None) -> SweepSi
                  "one Fresnel time at f1 (fade-in) and f2 (fade-out)"
                  + (f"; {given[0]} as given" if given else ""))
     s = s.with_fades()
-    n_before = _pad_samples(s.pad_before_s, s.sample_rate_hz, "--pad-before-s", source)
-    n_after = _pad_samples(s.pad_after_s, s.sample_rate_hz, "--pad-after-s", source)
+    n_before = _pad_samples(s.pad_before_s, s.sample_rate_hz, "pad_before_s", source)
+    n_after = _pad_samples(s.pad_after_s, s.sample_rate_hz, "pad_after_s", source)
     if n_after < 1:
         raise InputError("a sweep needs silence after it: that silence is the decay time the recording "
-                         "captures and the impulse-response length", source=source, field="--pad-after-s",
-                         fix="give the room's decay time, e.g. --pad-after-s 1")
+                         "captures and the impulse-response length", source=source, field="pad_after_s",
+                         fix="give the room's decay time, e.g. `pad_after_s` 1")
     make = exponential_sweep if s.kind == "exponential" else linear_sweep
     raw = make(s.f1_hz, s.f2_hz, s.duration_s, s.sample_rate_hz)
     played = condition(raw, s.sample_rate_hz, fade_in_s=s.fade_in_s, fade_out_s=s.fade_out_s,

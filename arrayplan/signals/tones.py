@@ -54,28 +54,28 @@ def stepped_tones(freqs_hz: Sequence[float], tone_s: float, gap_s: float, sample
     """
     freqs = [float(f) for f in freqs_hz]
     if not freqs:
-        raise InputError("no tone frequencies given", source=source, field="--freqs-hz",
+        raise InputError("no tone frequencies given", source=source, field="freqs_hz",
                          fix="give a comma-separated list, e.g. 250,1000,4000")
     if not (math.isfinite(fade_s) and fade_s > 0):
-        raise InputError(f"fade must be positive, got {fade_s!r} s", source=source, field="--fade-in-s")
+        raise InputError(f"fade must be positive, got {fade_s!r} s", source=source, field="fade_in_s")
     if not (math.isfinite(gap_s) and gap_s >= 0):
-        raise InputError(f"gap must be zero or positive, got {gap_s!r} s", source=source, field="--gap-s")
+        raise InputError(f"gap must be zero or positive, got {gap_s!r} s", source=source, field="gap_s")
     n_tone = int(round(tone_s * sample_rate_hz)) if math.isfinite(tone_s) and tone_s > 0 else 0
     n_fade = max(2, int(round(fade_s * sample_rate_hz)))
     if n_tone < 2 * n_fade:
         raise InputError(f"tones of {tone_s!r} s are shorter than their two fades ({2 * fade_s:g} s)",
-                         source=source, field="--tone-s", fix="lengthen the tones or shorten the fades")
+                         source=source, field="tone_s", fix="lengthen the tones or shorten the fades")
     steady_s = (n_tone - 2 * n_fade) / sample_rate_hz
     parts = []
     gap = np.zeros(int(round(gap_s * sample_rate_hz)))
     t = np.arange(n_tone) / sample_rate_hz
     window = _fade_window(n_tone, n_fade)
     for i, f in enumerate(freqs):
-        _check_freq(f, sample_rate_hz, f"--freqs-hz[{i + 1}]", source)
+        _check_freq(f, sample_rate_hz, f"freqs_hz[{i + 1}]", source)
         if steady_s * f < MIN_TONE_PERIODS:
             raise InputError(f"a {tone_s:g} s tone at {f:g} Hz holds {steady_s * f:.2f} periods between its "
                              f"fades, at least {MIN_TONE_PERIODS:g} are needed", source=source,
-                             field="--tone-s", fix="lengthen the tones")
+                             field="tone_s", fix="lengthen the tones")
         if i:
             parts.append(gap)
         parts.append(np.sin(2 * np.pi * f * t) * window)
@@ -105,20 +105,20 @@ def tone_bursts(freq_hz: float, cycles: float, period_s: float, count: int, samp
     ndarray, shape ((count - 1) * n_period + n_burst,)
         Unit amplitude; the first and last samples are zero.
     """
-    _check_freq(freq_hz, sample_rate_hz, "--freq-hz", source)
+    _check_freq(freq_hz, sample_rate_hz, "freq_hz", source)
     if not (math.isfinite(fade_cycles) and fade_cycles > 0):
         raise InputError(f"fade must be a positive number of periods, got {fade_cycles!r}", source=source,
-                         field="--fade-cycles")
+                         field="fade_cycles")
     if not (math.isfinite(cycles) and cycles >= 2 * fade_cycles):
         raise InputError(f"a burst of {cycles!r} periods is shorter than its two fades ({2 * fade_cycles:g} "
-                         "periods)", source=source, field="--cycles", fix="give more cycles per burst")
+                         "periods)", source=source, field="cycles", fix="give more cycles per burst")
     if int(count) < 1:
-        raise InputError(f"burst count must be at least 1, got {count}", source=source, field="--count")
+        raise InputError(f"burst count must be at least 1, got {count}", source=source, field="count")
     n_burst = int(round(cycles / freq_hz * sample_rate_hz))
     n_period = int(round(period_s * sample_rate_hz)) if math.isfinite(period_s) else -1
     if n_period < n_burst:
         raise InputError(f"burst period {period_s!r} s is shorter than a burst ({n_burst / sample_rate_hz:.4g} s)",
-                         source=source, field="--period-s", fix="lengthen the period or shorten the bursts")
+                         source=source, field="period_s", fix="lengthen the period or shorten the bursts")
     n_fade = max(2, int(round(fade_cycles / freq_hz * sample_rate_hz)))
     t = np.arange(n_burst) / sample_rate_hz
     burst = np.sin(2 * np.pi * freq_hz * t) * _fade_window(n_burst, n_fade)

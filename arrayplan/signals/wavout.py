@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import contextlib
 import os
 from pathlib import Path
 from typing import Any, Mapping
@@ -10,7 +9,8 @@ from typing import Any, Mapping
 import numpy as np
 
 from ..errors import InputError
-from ..fileio import atomic_path, write_json_atomic
+from ..fileio import atomic_paths
+from ..formats.signal_sidecar import write_signal_sidecar
 from .levels import true_peak_dbfs
 
 __all__ = ["SAMPLE_FORMATS", "sidecar_path", "inverse_path", "write_signal_files", "read_recording"]
@@ -48,11 +48,12 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
     sample_rate_hz : int
     sample_format : {"float32", "pcm24"}
     sidecar : mapping
-        Written as JSON to :func:`sidecar_path` of `wav_path`.
+        Written as JSON to :func:`sidecar_path` of `wav_path`
+        (:func:`arrayplan.formats.signal_sidecar.write_signal_sidecar`, which checks it).
     extra_wavs : mapping of path -> ndarray, optional
         Further files (e.g. an inverse filter), always float32.
     extra_sidecars : mapping of path -> mapping, optional
-        Further JSON files (e.g. the inverse filter's own sidecar).
+        Further sidecars (e.g. the inverse filter's own), written the same way.
 
     Returns
     -------
@@ -63,10 +64,10 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
 
     wav_path = Path(wav_path)
     if wav_path.suffix.lower() != ".wav":
-        raise InputError("output file must end in .wav", source=str(wav_path), field="--out")
+        raise InputError("output file must end in .wav", source=str(wav_path), field="out")
     if sample_format not in SAMPLE_FORMATS:
         raise InputError(f"sample format must be one of {', '.join(SAMPLE_FORMATS)}, got {sample_format!r}",
-                         field="--format")
+                         field="format")
     signal = np.asarray(signal, dtype=float)
     if not np.all(np.isfinite(signal)) or (signal.size and np.max(np.abs(signal)) > 1.0):
         raise InputError("signal exceeds full scale or is not finite; refusing to write it", source=str(wav_path))
@@ -79,14 +80,13 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
     targets.append((sidecar_path(wav_path), ("json", dict(sidecar), None)))
     for p, obj in (extra_sidecars or {}).items():
         targets.append((Path(p), ("json", dict(obj), None)))
-    with contextlib.ExitStack() as stack:
-        for path, (kind, data, subtype) in targets:
-            tmp = stack.enter_context(atomic_path(path))
+    with atomic_paths([p for p, _ in targets]) as temps:
+        for tmp, (path, (kind, data, subtype)) in zip(temps, targets):
             if kind == "wav":
                 sf.write(tmp, data.astype(np.float32) if subtype == "FLOAT" else data, int(sample_rate_hz),
                          subtype=subtype, format="WAV")
             else:
-                write_json_atomic(tmp, data)
+                write_signal_sidecar(tmp, data)
     return [p for p, _ in targets]
 
 

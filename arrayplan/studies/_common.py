@@ -13,7 +13,37 @@ from ..plan_files import PlanWeights, read_plan, read_weights
 from ..planning import Plan, plan_rig
 from ..rig import Rig, load_rig
 
-__all__ = ["is_measured_plan", "plan_channels", "load_study_source"]
+__all__ = ["is_measured_plan", "plan_channels", "load_study_source", "DEFAULT_REFERENCE_SNR_DB",
+           "REFERENCE_SNR_MEANING", "STRONGEST_SNR_MEANING", "reference_snr_scale"]
+
+#: Reference SNR used by the layout study when none is given, dB.
+DEFAULT_REFERENCE_SNR_DB = 40.0
+#: What a reference SNR (layout study, compare) refers to; written beside it in sidecars.
+REFERENCE_SNR_MEANING = ("reference SNR: the SNR at a microphone 1 m from one speaker in free field with all the "
+                         "drive power on that speaker (|G| = 1/(4 pi) there); in the capacity the drive power is "
+                         "shared equally among the transmitting speakers, so layouts compare at equal total power")
+#: What the plan's SNR (plan, capacity study) refers to; written beside it in sidecars.
+STRONGEST_SNR_MEANING = ("SNR of the strongest channel with all the drive power on it (as in 'plan'); it scales "
+                         "with the layout's own strongest coupling, so it does not compare layouts")
+
+
+def reference_snr_scale(reference_snr_db: float, n_transmitting: int) -> float:
+    """The factor c in log2 det(I + c G^H G) for a reference SNR (:data:`REFERENCE_SNR_MEANING`).
+
+    Parameters
+    ----------
+    reference_snr_db : float
+        rho, dB.
+    n_transmitting : int
+        Speakers sharing the drive power equally.
+
+    Returns
+    -------
+    float
+        c = rho (4 pi)^2 / n_transmitting, in 1 / (unit of G)^2 (G in 1/m for the
+        free-field and room kernels).
+    """
+    return float(10.0 ** (float(reference_snr_db) / 10.0) * (4.0 * np.pi) ** 2 / int(n_transmitting))
 
 
 def is_measured_plan(plan: Plan) -> bool:

@@ -25,6 +25,7 @@ import numpy as np
 from ..errors import InputError
 from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..verify import _ranges as channel_ranges
+from ._common import STRONGEST_SNR_MEANING
 from .capacity import CapacityStudy
 from .tolerance import KR_LIMIT, ToleranceStudy
 from .trials import TrialChunk
@@ -86,7 +87,7 @@ def write_capacity_study(study: CapacityStudy, out_dir: str | os.PathLike, *, pl
     side = {"kind": CAPACITY_KIND, "format_version": 1, "plan": plan_source, "verdict": capacity_verdict(study),
             "snr_db": study.snr_db.tolist(), "threshold_db": study.threshold_db, "measured_plan": study.measured,
             "conventions": {
-                "snr": "SNR of the strongest channel with all the power on it (as 'arrayplan plan'): P s_1^2 / N0",
+                "snr": STRONGEST_SNR_MEANING + ": P s_1^2 / N0",
                 "capacity": "C = sum_j log2(1 + p_j s_j^2 / N0), bit/s/Hz; p_j water-filling fractions of P "
                             "(Telatar 1999)",
                 "equal_power": "p_j = 1 / n_strong on the channels within threshold_db of the strongest",

@@ -49,7 +49,8 @@ from ..errors import InputError
 from ..planning import Plan
 from ..verify import wanted_channels
 from ._common import is_measured_plan
-from .trials import KernelBuilder, TrialChunk, TrialProblem, free_field_builder, run_trial_chunk, trial_chunks
+from .trials import (KernelBuilder, TrialChunk, TrialProblem, free_field_builder, room_builder, run_trial_chunk,
+                     trial_chunks)
 
 __all__ = ["ToleranceStudy", "tolerance_study", "tolerance_problem", "first_order_gain_sd_db", "white_noise_gain_db",
            "KR_LIMIT", "PERCENTILES"]
@@ -82,7 +83,11 @@ def tolerance_problem(plan: Plan, *, position_sd_m: float = 0.0, gain_sd_db: flo
     want, judged_w, _ = wanted_channels(ch.singular_values, thr)
     judged = np.zeros(ch.singular_values.shape, bool)
     judged[:, want] = judged_w
-    builder = kernel_builder or free_field_builder
+    if kernel_builder is not None:
+        builder = kernel_builder
+    else:
+        in_room = plan.rig.room is not None and plan.kernel_name == "room"
+        builder = partial(room_builder, plan.rig.room) if in_room else free_field_builder
     nominal = builder(plan.rig.speakers, plan.rig.mics, plan.rig.medium).evaluate(ch.axis.hz)
     planned = np.conj(ch.combine) @ (ch.singular_values[:, :, None] * np.conj(np.swapaxes(ch.drive, 1, 2)))
     scale = np.linalg.norm(planned)
@@ -237,7 +242,7 @@ def tolerance_study(plan: Plan, *, position_sd_m: float = 0.0, gain_sd_db: float
         below minus this, dB.
     kernel_builder : callable, optional
         ``builder(speakers, mics, medium) -> Kernel`` for the perturbed rig
-        (default: the free field); a room kernel drops in here.
+        (default: the rig's room when the plan was made in it, else the free field).
     threshold_db : float, optional
         Channels in use are within this of the strongest, dB (default: the plan's).
     chunk_size : int

@@ -17,7 +17,7 @@ Perturbed couplings, shape (n_freq, n_mic, n_spk)::
     G_t[f, m, s] = a_m a_s * G_0[f, m, s] * K(p + e) / K(p)          (model "ratio")
 
 with ``a = 10**(gain_db / 20) * exp(1j * phase)`` and K the kernel built by
-the kernel builder (default: the free field).  "direct" is used when K at
+the kernel builder (default: the rig's room when it has one, else the free field).  "direct" is used when K at
 the nominal positions reproduces the plan's own couplings
 ``G_0 = conj(combine) diag(s) drive^H``; otherwise (a measured plan, or a
 plan whose directivities were not stored) each path's coupling is scaled by
@@ -36,10 +36,12 @@ import numpy as np
 
 from ..coupling import Kernel
 from ..kernels.freefield import FreeFieldKernel
+from ..kernels.room import RoomKernel
 from ..medium import Medium
 from ..rig import ElementSet, Rig
+from ..room import Room
 
-__all__ = ["KernelBuilder", "free_field_builder", "TrialProblem", "TrialChunk", "trial_errors",
+__all__ = ["KernelBuilder", "free_field_builder", "room_builder", "TrialProblem", "TrialChunk", "trial_errors",
            "perturbed_couplings", "run_trial_chunk", "trial_chunks", "DEGENERATE_RTOL", "clusters",
            "degenerate_blocks", "block_prediction"]
 
@@ -53,6 +55,11 @@ DEGENERATE_RTOL = 1e-6
 def free_field_builder(speakers: ElementSet, mics: ElementSet, medium: Medium) -> Kernel:
     """The free-field kernel between `speakers` and `mics` (the default kernel builder)."""
     return FreeFieldKernel.between(speakers, mics, medium, min_distance_m=1e-6)
+
+
+def room_builder(room: Room, speakers: ElementSet, mics: ElementSet, medium: Medium) -> Kernel:
+    """The image-source kernel of `room` between `speakers` and `mics`; bind `room` with functools.partial."""
+    return RoomKernel.between(speakers, mics, medium, room, min_distance_m=1e-6)
 
 
 @dataclass(frozen=True)

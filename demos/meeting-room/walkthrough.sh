@@ -22,8 +22,8 @@ echo "== 2. plan in the room (the rig file's [room] table) and, for comparison, 
 "$ap" plan "$rig" --free-field --out "$out/plan-free-field" --no-figures
 
 echo "== 3. measure the rig: SIMULATED here (nothing plays); the room's responses stand in for it"
-"$ap" measure "$rig" --simulate --yes --out "$out/meas" --rate 48000 --duration-s 1 --f1 100 \
-    --ir-s 0.25 --sim-latency-samples 0 --latency-samples 0 --sim-noise-dbfs -90
+"$ap" measure "$rig" --simulate --yes --out "$out/meas" --rate-hz 48000 --duration-s 1 --f1-hz 100 \
+    --ir-length-s 0.25 --sim-latency-samples 0 --latency-samples 0 --sim-noise-dbfs -90
 
 echo "== 4. verify both plans on the room's responses (exit status 1 = channels lost)"
 for plan in plan plan-free-field; do
@@ -45,4 +45,4 @@ awk -F, 'FNR == 1 { plan = (FILENAME ~ /free-field/) ? "free" : "room"; next }
     "$out/plan-free-field/summary.csv" "$out/plan-free-field/channels.csv"
 
 echo "== 6. a field map of channel 1 at 500 Hz in the room (walls drawn)"
-"$ap" field "$rig" --freq 500 --channel 1 --plane xy --out "$out/field"
+"$ap" field "$rig" --freq-hz 500 --channel 1 --plane xy --out "$out/field"

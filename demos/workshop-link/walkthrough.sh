@@ -29,7 +29,7 @@ allow_fail() { local s=0; "$@" || s=$?; if [ "$s" -gt 1 ]; then exit "$s"; fi; r
 # phase errors per element (seed 7), and a floor at z = 0 absorbing 30 % of the sound energy.
 as_built=(--sim-placement-error-mm 5 --sim-gain-error-db 0.5 --sim-phase-error-deg 3
           --sim-floor-absorption 0.3 --sim-error-seed 7)
-measure_opts=(--simulate --yes --rate 48000 --duration-s 1 --f1 200 --sim-latency-samples 0 --latency-samples 0
+measure_opts=(--simulate --yes --rate-hz 48000 --duration-s 1 --f1-hz 200 --sim-latency-samples 0 --latency-samples 0
               --sim-noise-dbfs -90)
 
 echo "== 1. check the rig file"
@@ -39,7 +39,7 @@ echo "== 2. plan the channels in the free field (tables, weights, figures)"
 "$ap" plan "$rig" --out "$out/plan"
 
 echo "== 3. FIR filters from that plan, checked through its own (free-field) kernel"
-allow_fail "$ap" filters "$out/plan" --rate 48000 --band 500 8000 --crosstalk-limit-db -20 --out "$out/filters"
+allow_fail "$ap" filters "$out/plan" --rate-hz 48000 --band-hz 500 8000 --crosstalk-limit-db -20 --out "$out/filters"
 
 echo "== 4. measure the rig: SIMULATED here (nothing plays), the rig as built"
 "$ap" measure "$rig" "${measure_opts[@]}" "${as_built[@]}" --sim-seed 1 --out "$out/meas"
@@ -51,7 +51,7 @@ echo "== 6. plan again from the measured responses"
 "$ap" plan "$rig" --irset "$out/meas/irset" --window-ms 30 --out "$out/replan"
 
 echo "== 7. filters from the measured plan; --taps auto doubles the length until the check meets the limit"
-allow_fail "$ap" filters "$out/replan" --irset "$out/meas/irset" --window-ms 30 --rate 48000 --band 500 8000 \
+allow_fail "$ap" filters "$out/replan" --irset "$out/meas/irset" --window-ms 30 --rate-hz 48000 --band-hz 500 8000 \
     --taps auto --crosstalk-limit-db -20 --out "$out/refilters"
 
 echo "== 8. a second simulated measurement of the same rig (new noise), and the filters verified on it"

@@ -1,0 +1,41 @@
+"""Small helpers shared by the report's section builders: relative paths, anchors, numbers, figures."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from .figures import ReportFigure, png_bytes
+from .html import figure_html
+
+__all__ = ["_rel", "_anchor", "_fmt", "_figures_html"]
+
+
+def _rel(path: Path, root: Path) -> str:
+    try:
+        rel = path.relative_to(root)
+        return "." if str(rel) == "." else str(rel)
+    except ValueError:
+        return str(path)
+
+
+def _anchor(kind: str, path: Path, root: Path) -> str:
+    return kind + "-" + "".join(c if c.isalnum() else "-" for c in _rel(path, root)).strip("-")
+
+
+def _fmt(x: float, spec: str = ".3g") -> str:
+    if x is None or not np.isfinite(x):
+        return "-"
+    text = format(x, spec)
+    return text[1:] if text.startswith("-") and not text.strip("-0.") else text     # no "-0.0"
+
+
+def _figures_html(figs: list[ReportFigure], label: str) -> str:
+    import matplotlib.pyplot as plt
+
+    parts = []
+    for k, rf in enumerate(figs, 1):
+        parts.append(figure_html(png_bytes(rf.figure), rf.caption, f"{label}, figure {k}"))
+        plt.close(rf.figure)
+    return "\n".join(parts)
