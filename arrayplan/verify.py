@@ -53,10 +53,11 @@ from scipy.linalg import subspace_angles
 from .channels import decompose_stack
 from .coupling import Kernel
 from .errors import InputError
+from .filters.design import strong_ranges_hz
 from .plan_files import PlanWeights
 
-__all__ = ["Verification", "verify_plan", "align_kernel_names", "wanted_channels", "GAIN_REFERENCES",
-           "level_re_strongest_db", "strong_mask", "replanned_in_plan_order"]
+__all__ = ["Verification", "verify_plan", "judge_channels", "align_kernel_names", "wanted_channels",
+           "GAIN_REFERENCES", "level_re_strongest_db", "strong_mask", "replanned_in_plan_order", "lost_bands_hz"]
 
 #: How realised gains are referred: to the plan's singular values, or to the
 #: plan times one fitted common factor.
@@ -321,6 +322,46 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
     hz = weights.axis.hz
     g = kernel.evaluate(hz)                                         # (n_freq, n_mic, n_spk)
     c = np.einsum("fmi,fms,fsj->fij", weights.combine, g, weights.drive)
+    return judge_channels(hz, c, g, weights.singular_values, weights.drive, want, judged, rule,
+                          isolation_db=isolation_db, threshold_db=threshold_db, gain_reference=gain_reference,
+                          measured_source=measured_source)
+
+
+def judge_channels(hz: np.ndarray, channel_matrix: np.ndarray, g: np.ndarray, planned_sv: np.ndarray,
+                   planned_drive: np.ndarray, want: np.ndarray, judged: np.ndarray, rule: str, *,
+                   isolation_db: float, threshold_db: float, gain_reference: str = "plan",
+                   measured_source: str | None = None) -> Verification:
+    """The verdict on a realised channel matrix: gains, crosstalk, lost channels, re-plan comparison.
+
+    Shared by the verification of a plan's weights (:func:`verify_plan`) and
+    of FIR filters (:func:`verify_filters`); the rules are in the module docstring.
+
+    Parameters
+    ----------
+    hz : ndarray, shape (n_freq,)
+        Frequencies, Hz.
+    channel_matrix : ndarray, complex, shape (n_freq, n_chan, n_chan)
+        Realised ``combine^T G drive`` (output i, input j).
+    g : ndarray, complex, shape (n_freq, n_mic, n_spk)
+        The measured coupling, for the re-plan.
+    planned_sv : ndarray, shape (n_freq, n_chan)
+        Planned singular values, plan's channel order.
+    planned_drive : ndarray, complex, shape (n_freq, n_spk, n_chan)
+        Planned (or realised) drive weights, for the subspace angles.
+    want : ndarray of int, shape (n_want,)
+    judged : ndarray of bool, shape (n_freq, n_want)
+    rule : str
+        Which channels are wanted and why (one line).
+    isolation_db, threshold_db : float
+    gain_reference : {"plan", "common"}
+    measured_source : str, optional
+        Name for error messages.
+
+    Returns
+    -------
+    Verification
+    """
+    c = channel_matrix
     s_meas, drive_meas, _ = decompose_stack(g)
     sub = np.abs(c[:, want][:, :, want])                            # (n_freq, n_want, n_want)
     diag = np.diagonal(sub, axis1=1, axis2=2).copy()
@@ -331,7 +372,7 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
     worst = np.maximum(off.max(axis=1), off.max(axis=2))
     with np.errstate(divide="ignore", invalid="ignore"):
         crosstalk = _db(worst / diag)
-        raw_gain = _db(diag / weights.singular_values[:, want])
+        raw_gain = _db(diag / planned_sv[:, want])
     crosstalk = np.where(diag > 0, crosstalk, np.inf)
     crosstalk = np.where(judged, crosstalk, np.nan)
     raw_gain = np.where(judged, raw_gain, np.nan)
@@ -349,7 +390,7 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
     else:
         gain = raw_gain
     lost = judged & ~(-crosstalk >= isolation_db)
-    strong = strong_mask(weights.singular_values, threshold_db)     # (n_freq, n_chan), any channel order
+    strong = strong_mask(planned_sv, threshold_db)                  # (n_freq, n_chan), any channel order
     strong_p = np.sum(strong, axis=1)
     strong_m = np.sum(strong_mask(s_meas, threshold_db), axis=1)
     angles = np.empty(len(hz))
@@ -357,8 +398,13 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
         k = int(strong_p[f])
         # the planned strong channels, whatever their numbers, against the re-planned subspace
         # of the same dimension (s_meas is descending: its first k channels are its strongest)
-        angles[f] = np.degrees(np.max(subspace_angles(weights.drive[f][:, strong[f]], drive_meas[f][:, :k])))
-    s_meas = replanned_in_plan_order(weights.singular_values, s_meas)
-    return Verification(hz, want, c, weights.singular_values, s_meas, gain, crosstalk, lost, strong_p, strong_m,
+        angles[f] = np.degrees(np.max(subspace_angles(planned_drive[f][:, strong[f]], drive_meas[f][:, :k])))
+    s_meas = replanned_in_plan_order(planned_sv, s_meas)
+    return Verification(hz, want, c, planned_sv, s_meas, gain, crosstalk, lost, strong_p, strong_m,
                         angles, float(isolation_db), float(threshold_db), judged=judged,
                         gain_reference=gain_reference, common_gain_db=common_db, wanted_rule=rule)
+
+
+def lost_bands_hz(res: Verification) -> list[list[tuple[float, float]]]:
+    """Per wanted channel, the runs of consecutive frequencies where it is lost, as (low, high) Hz."""
+    return [strong_ranges_hz(res.hz, res.lost[:, k]) for k in range(len(res.channels))]

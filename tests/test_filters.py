@@ -96,7 +96,7 @@ def test_weak_channel_is_listed_as_skipped_and_files_are_complete(tmp_path):
     files = write_filters(rig, f, tmp_path / "out", chk)
     names = sorted(p.name for p in files)
     assert names == sorted(["channel-01-drive.wav", "channel-01-combine.wav", "filters.json", "weights.csv",
-                            "check.csv", "crosstalk.png"])
+                            "check.csv", "crosstalk.png", "filters-matrix.txt", "channel-01-response.png"])
     data, rate = sf.read(tmp_path / "out" / "channel-01-drive.wav", dtype="float32")
     assert rate == 16000 and data.shape == (TAPS, 2)
     np.testing.assert_allclose(data, f.drive[:, :, 0], atol=1e-6)
@@ -143,7 +143,7 @@ def test_cli_writes_filters_and_check(tmp_path, capsys):
     assert main(["filters", str(rig), "--rate-hz", "16000", "--taps", "512", "--band-hz", "500", "4000",
                  "--out", str(out), "--min-level-db", "-60"]) == 0
     text = capsys.readouterr().out
-    assert "pass" in text and "bulk delay 256 samples" in text
+    assert "PASS" in text and "verdict: PASS, 2 of 2" in text and "bulk delay 256 samples" in text
     assert (out / "check.csv").read_text().count(",pass\n") == 2
 
 

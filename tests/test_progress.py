@@ -352,7 +352,7 @@ def test_filters_on_a_terminal_show_plan_taps_and_check(tmp_path):
     for label in ("filter plan  [", "filter taps  [", "checking crosstalk  ["):
         shown = [ln for ln in lines if ln.startswith(label)]
         assert len(shown) == 1 and "100%" in shown[0], (label, lines)
-    n_kept = len([ln for ln in out.splitlines() if ln.strip().endswith(("pass", "FAIL"))])
+    n_kept = len([ln for ln in out.splitlines() if ln.strip().endswith(("PASS", "FAIL"))])
     # the check counts frequency bins of its grid: it must end at total/total
     check = [re.search(r"(\d+)/(\d+)", ln) for ln in lines if ln.startswith("checking crosstalk")]
     assert check and check[0] and check[0].group(1) == check[0].group(2), lines

@@ -181,6 +181,18 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     m.add_argument("--sim-dropouts", type=nonnegative_count(1000), default=0, metavar="N",
                    help="dropped input blocks per take")
     m.add_argument("--sim-seed", type=nonnegative_count(2 ** 32 - 1), default=0, metavar="N", help="noise seed")
+    m.add_argument("--sim-placement-error-mm", type=finite_float, default=0.0, metavar="MM",
+                   help="place every simulated element off its rig-file position by a Gaussian error of this standard "
+                        "deviation per coordinate (mm, default 0)")
+    m.add_argument("--sim-gain-error-db", type=finite_float, default=0.0, metavar="DB",
+                   help="Gaussian gain error of each simulated element, standard deviation in dB (default 0)")
+    m.add_argument("--sim-phase-error-deg", type=finite_float, default=0.0, metavar="DEG",
+                   help="Gaussian phase error of each simulated element, standard deviation in degrees (default 0)")
+    m.add_argument("--sim-floor-absorption", type=finite_float, default=None, metavar="ALPHA",
+                   help="add a reflecting floor at z = 0 with this absorption (0 rigid .. 1 none; default: no "
+                        "floor; a rig with a [room] already has its floor)")
+    m.add_argument("--sim-error-seed", type=nonnegative_count(2 ** 32 - 1), default=1, metavar="N",
+                   help="seed of the placement, gain and phase errors (default 1)")
     add_memory_limit(p)
     for new, old in (("--rate-hz", "--rate"), ("--f1-hz", "--f1"), ("--f2-hz", "--f2"), ("--ir-length-s", "--ir-s")):
         accept_old_spelling(p, new, old)
@@ -250,6 +262,22 @@ def _warn_above_cap(args: argparse.Namespace, sweep: Any) -> None:
         print(f"warning: {text}", file=sys.stderr)
 
 
+def _truth_errors(args: argparse.Namespace):
+    """The simulated truth's errors from the --sim-* options, each checked."""
+    from ..simulate import TruthErrors
+
+    for flag, value in (("--sim-placement-error-mm", args.sim_placement_error_mm),
+                        ("--sim-gain-error-db", args.sim_gain_error_db),
+                        ("--sim-phase-error-deg", args.sim_phase_error_deg)):
+        if not (np.isfinite(value) and value >= 0):
+            raise InputError(f"must be a finite standard deviation >= 0, got {value:g}", source=flag)
+    a = args.sim_floor_absorption
+    if a is not None and not (np.isfinite(a) and 0 <= a <= 1):
+        raise InputError(f"must lie in 0..1, got {a:g}", source="--sim-floor-absorption")
+    return TruthErrors(args.sim_placement_error_mm, args.sim_gain_error_db, args.sim_phase_error_deg, a,
+                       args.sim_error_seed)
+
+
 def run(args: argparse.Namespace) -> int:
     from ..hardware.calibration import read_calibration
     from ..hardware.measure import MeasurementSettings, RigWiring, measure
@@ -278,13 +306,19 @@ def run(args: argparse.Namespace) -> int:
         from ..hardware.simulated import SimulatedLink
 
         fs = float(rate or 48000.0)
-        link = SimulatedLink.from_rig(rig, fs, int(round(settings.ir_s * fs)),
+        errors = _truth_errors(args)
+        link = SimulatedLink.from_rig(rig, fs, int(round(settings.ir_s * fs)), truth_errors=errors,
                                       latency_samples=args.sim_latency_samples, noise_rms_dbfs=args.sim_noise_dbfs,
                                       nonlinearity=_parse_coefficients(args.sim_nonlinearity),
                                       dropouts_per_take=args.sim_dropouts, seed=args.sim_seed)
         sweep = make_sweep(settings.sweep_settings(fs))
         settings.pre_roll_samples(sweep)  # refuse bad options before anything else
         print(f"Simulated rig: nothing is played ({link.description}).", file=sys.stderr)
+        if errors.any:
+            print(f"Simulated truth differs from the rig file: {errors.placement_mm:g} mm placement, "
+                  f"{errors.gain_db:g} dB gain, {errors.phase_deg:g} deg phase errors (seed {errors.seed})"
+                  + ("" if errors.floor_absorption is None else
+                     f", floor at z = 0 with absorption {errors.floor_absorption:g}"), file=sys.stderr)
         _warn_above_cap(args, sweep)
     else:
         from ..hardware.duplex import SoundDeviceLink

@@ -1,4 +1,4 @@
-"""``arrayplan verify``: check planned channels against impulse responses of the real rig."""
+"""``arrayplan verify``: check planned channels, or the FIR filters that will run, against measured responses."""
 
 from __future__ import annotations
 
@@ -11,11 +11,16 @@ import matplotlib
 import numpy as np
 
 from ..errors import InputError
+from ..filters.design import strong_ranges_hz
 from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..irset import read_irset
 from ._args import MAX_CHANNEL_NUMBER, add_measured_kernel_options, finite_float, measured_kernel_from_args
 from ..plan_files import read_weights
-from ..verify import GAIN_REFERENCES, Verification, verify_plan
+from ..progress import ProgressBar
+from ..verify import GAIN_REFERENCES, Verification, lost_bands_hz, verify_plan
+
+EXIT_STATUS = ("exit status: 0 when every wanted channel passes, 1 when some fail, 2 on bad input (nothing is "
+               "written then)")
 
 
 def _channel_list(text: str) -> list[int] | str:
@@ -34,9 +39,13 @@ def _channel_list(text: str) -> list[int] | str:
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("verify",
                        description="Apply a plan's drive and combine weights to impulse responses measured "
-                                   "on the real rig; report gain, crosstalk and lost channels per frequency. "
-                                   "Exit 0 when every wanted channel passes, 1 when some fail, 2 on bad input.")
-    p.add_argument("plan_dir", metavar="PLAN_DIR", help="folder written by 'arrayplan plan'")
+                                   "on the real rig, or convolve the FIR filters written by 'arrayplan filters' "
+                                   "with them (a folder holding filters.json); report gain against the plan, "
+                                   "crosstalk and lost channels per frequency (for filters on a grid finer than "
+                                   "their design bins, with the band where each channel is lost).",
+                       epilog=EXIT_STATUS + ".")
+    p.add_argument("plan_dir", metavar="PLAN_OR_FILTERS_DIR",
+                   help="folder written by 'arrayplan plan', or by 'arrayplan filters' (detected by its filters.json)")
     p.add_argument("irset_dir", metavar="IRSET", help="IR-set folder (or AES69/SOFA file) measured on the rig")
     p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
     p.add_argument("--isolation-db", type=finite_float, default=20.0,
@@ -129,30 +138,70 @@ def _plan_rig_hash(sidecar: object) -> str | None:
     return rig.get("sha256") if isinstance(rig, dict) else None
 
 
-def run(args: argparse.Namespace) -> int:
-    matplotlib.use("Agg")
+def _plan_result(args: argparse.Namespace, irs, kernel) -> tuple[Verification, str, dict]:
+    """Verify a plan folder's weights at its planned frequencies."""
     weights = read_weights(args.plan_dir)
-    irs = read_irset(args.irset_dir)
-    if not (args.isolation_db > 0):
-        raise InputError(f"must be positive, got {args.isolation_db}", source="--isolation-db")
     nyquist = irs.sample_rate_hz / 2
     if weights.axis.hz[-1] >= nyquist:
         raise InputError(f"plan goes up to {weights.axis.hz[-1]:g} Hz, at or above the IR set's Nyquist "
                          f"frequency {nyquist:g} Hz", source=str(args.irset_dir),
                          fix="measure at a higher sample rate or plan lower")
-    kernel = measured_kernel_from_args(irs, args)
     n_chan = weights.drive.shape[2]
     if isinstance(args.channels, list) and max(args.channels) > n_chan:
         raise InputError(f"the plan has {n_chan} channels, asked for {max(args.channels)}", source="--channels")
     plan_kernel = weights.sidecar.get("kernel", "free field") if isinstance(weights.sidecar, dict) else "free field"
-    if args.gain_reference is None:
-        gain_reference, reason = default_gain_reference(irs.units, plan_kernel)
-    else:
-        gain_reference, reason = args.gain_reference, "as given by --gain-reference"
+    gain_reference, reason = _gain_reference(args, irs, plan_kernel)
     channels = args.channels if args.channels in (None, "all") else [c - 1 for c in args.channels]
     res = verify_plan(weights, kernel, isolation_db=args.isolation_db, channels=channels,
                       gain_reference=gain_reference,
                       plan_source=str(args.plan_dir), measured_source=str(Path(args.irset_dir)))
+    return res, reason, {"plan_dir": str(args.plan_dir), "rig_sha256": _plan_rig_hash(weights.sidecar),
+                         "verified": "the plan's drive and combine weights at its planned frequencies"}
+
+
+def _filters_result(args: argparse.Namespace, irs, kernel) -> tuple[Verification, str, dict]:
+    """Verify a filter folder's WAV taps on a fine grid over their band."""
+    from ..filters.files import read_filter_set
+    from ..verify_filters import verify_filters
+
+    if args.channels is not None:
+        raise InputError("a filter folder is verified on the channels it has filters for", source="--channels",
+                         fix="drop --channels (or write filters for other channels with --min-level-db)")
+    filters = read_filter_set(args.plan_dir)
+    if abs(filters.sample_rate_hz - irs.sample_rate_hz) > 0.5:
+        raise InputError(f"the filters run at {filters.sample_rate_hz:g} Hz but the IR set was measured at "
+                         f"{irs.sample_rate_hz:g} Hz", source=str(args.irset_dir),
+                         fix="measure at the filters' rate, or write filters at the IR set's rate (filters --rate)")
+    gain_reference, reason = _gain_reference(args, irs, filters.kernel)
+    with ProgressBar("verifying filters") as bar:
+        res = verify_filters(filters, kernel, isolation_db=args.isolation_db, gain_reference=gain_reference,
+                             progress=bar, measured_source=str(Path(args.irset_dir)))
+    return res, reason, {"filters_dir": str(args.plan_dir), "taps": filters.taps,
+                         "sample_rate_hz": filters.sample_rate_hz, "band_hz": list(filters.band_hz),
+                         "verified": "the exported FIR filters (WAV taps) convolved with the measured responses, "
+                                     "on a frequency grid finer than the filters' design bins"}
+
+
+def _gain_reference(args: argparse.Namespace, irs, plan_kernel: str) -> tuple[str, str]:
+    if args.gain_reference is None:
+        return default_gain_reference(irs.units, plan_kernel)
+    return args.gain_reference, "as given by --gain-reference"
+
+
+def _ranges(runs: list[tuple[float, float]], most: int = 3) -> str:
+    text = ", ".join(f"{lo:.5g} Hz" if lo == hi else f"{lo:.5g}-{hi:.5g} Hz" for lo, hi in runs[:most])
+    return text + (f" and {len(runs) - most} more bands (verify.json)" if len(runs) > most else "")
+
+
+def run(args: argparse.Namespace) -> int:
+    matplotlib.use("Agg")
+    irs = read_irset(args.irset_dir)
+    if not (args.isolation_db > 0):
+        raise InputError(f"must be positive, got {args.isolation_db}", source="--isolation-db")
+    kernel = measured_kernel_from_args(irs, args)
+    is_filters = (Path(args.plan_dir) / "filters.json").is_file()
+    res, reason, origin = (_filters_result if is_filters else _plan_result)(args, irs, kernel)
+    lost_bands = lost_bands_hz(res)
     with staged_output_dir(args.out) as stage:
         write_text_atomic(stage / "verify-channels.csv", _csv(
             ["frequency_hz", "channel", "planned_singular_value", "realised_gain", "gain_db", "worst_crosstalk_db",
@@ -160,15 +209,19 @@ def run(args: argparse.Namespace) -> int:
         write_text_atomic(stage / "verify-summary.csv", _csv(
             ["frequency_hz", "wanted_channels", "lost_channels", "strong_planned", "strong_measured",
              "max_subspace_angle_deg", "worst_crosstalk_db"], summary_rows(res)))
+        rig_sha256 = origin.pop("rig_sha256", None)
         write_json_atomic(stage / "verify.json", {
-            "kind": "arrayplan-verification", "plan_dir": str(args.plan_dir), "irset_dir": str(args.irset_dir),
+            "kind": "arrayplan-verification", **origin, "irset_dir": str(args.irset_dir),
             "irset_units": irs.units, "isolation_db": res.isolation_db, "threshold_db": res.threshold_db,
             "window_ms": args.window_ms, "latency_samples": args.latency_samples,
             "smoothing_octaves": args.smooth_octaves,
             "channels": [int(j) + 1 for j in res.channels], "passed": [bool(p) for p in res.passed],
+            "lost_bands_hz": {str(int(j) + 1): [list(r) for r in lost_bands[k]] for k, j in enumerate(res.channels)},
             "wanted_channels_rule": res.wanted_rule,
-            "judged_frequencies_hz": {str(int(j) + 1): [float(h) for h in res.hz[res.judged[:, k]]]
-                                      for k, j in enumerate(res.channels)},
+            **({"judged_bands_hz": {str(int(j) + 1): [list(r) for r in strong_ranges_hz(res.hz, res.judged[:, k])]
+                                    for k, j in enumerate(res.channels)}} if is_filters else
+               {"judged_frequencies_hz": {str(int(j) + 1): [float(h) for h in res.hz[res.judged[:, k]]]
+                                          for k, j in enumerate(res.channels)}}),
             "gain_reference": res.gain_reference, "gain_reference_reason": reason,
             "common_gain_db": _finite_or_none(res.common_gain_db),
             "gain_note": ("gain_db is re the plan times the common factor common_gain_db (one real positive "
@@ -184,7 +237,7 @@ def run(args: argparse.Namespace) -> int:
                                     "and measured_singular_value (n_freq, n_chan; the measured value of the same "
                                     "rank as the planned channel at that frequency), judged (n_freq, n_want)"},
             "levels": "re the strongest channel at each frequency (a tracked plan's channel 1 need not be it)",
-            "provenance": provenance(rig_sha256=_plan_rig_hash(weights.sidecar))})
+            "provenance": provenance(rig_sha256=rig_sha256)})
         np.savez(stage / "verify.npz", frequency_hz=res.hz, channels=np.asarray(res.channels) + 1,
                  channel_matrix=res.channel_matrix, planned_singular_value=res.planned_sv,
                  measured_singular_value=res.measured_sv, judged=res.judged)
@@ -209,8 +262,12 @@ def run(args: argparse.Namespace) -> int:
         gains = res.gain_db[where, k]
         gains = gains[np.isfinite(gains)]
         gain_text = f"median gain {_signed(np.median(gains))} dB {ref}" if gains.size else "no gain (silent)"
+        lost = f"; lost at {_ranges(lost_bands[k])}" if lost_bands[k] else ""
         print(f"channel {j + 1}: {verdict}  worst isolation {iso[worst]:.1f} dB at {res.hz[worst]:.5g} Hz "
               f"(need {res.isolation_db:g} dB), lost at {int(res.lost[:, k].sum())} of {int(where.sum())} judged "
-              f"frequencies (of {len(res.hz)}), {gain_text}")
+              f"frequencies (of {len(res.hz)}), {gain_text}{lost}")
+    n_pass = int(np.sum(res.passed))
+    print(f"verdict: {'PASS' if n_pass == len(res.channels) else 'FAIL'}, {n_pass} of {len(res.channels)} wanted "
+          f"channels keep {res.isolation_db:g} dB isolation wherever they are judged")
     print(f"wrote verification to {args.out}")
     return 0 if bool(np.all(res.passed)) else 1

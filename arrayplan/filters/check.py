@@ -1,14 +1,16 @@
-"""Check of channel filters: drive filters -> simulated free-field rig -> combine filters.
+"""Check of channel filters: drive filters -> the rig's kernel -> combine filters.
 
 The realised filter taps are put through the rig, giving the end-to-end
 channel-to-channel transfer T_ij(f) (output i, input j) and impulse
 responses t_ij[n].  The chain is computed from the spectra
 (:func:`channel_transfer`): the zero-padded FFTs of the taps sample their
-Fourier transforms exactly, and the rig is the free-field coupling G(f)
-at every bin, the spectrum of the band-limited simulated impulse responses
-of :func:`arrayplan.simulate.free_field_impulse_responses` as long as the
-grid; so ``T = Cb^T G D`` at each bin is the FFT of the linear
-convolution of filters and rig (:func:`end_to_end_responses` computes the
+Fourier transforms exactly, and the rig is a kernel's coupling G(f) at
+every bin (free field, room or measured: the same kernel the filters were
+designed on, or another one to check them against), the spectrum of the
+kernel's band-limited impulse responses as long as the grid (for a free
+field, :func:`arrayplan.simulate.free_field_impulse_responses`); so
+``T = Cb^T G D`` at each bin is the FFT of the linear convolution of
+filters and rig (:func:`end_to_end_responses` computes the
 same in the time domain from given responses).
 
 Everything in band is evaluated on a fine grid, at least :data:`OVERSAMPLE`
@@ -25,8 +27,13 @@ channel j the check reports
   alone (against s_j);
 * the energy error of its drive filters, ``|10 log10 sum_s |D_sj(f)|^2|`` dB
   (their in-band energy against the planned 1), and of its combine filters;
-* the worst crosstalk into it: max over the band of |T_ji| / |T_jj| for
-  i != j (dB re its own diagonal);
+* the worst crosstalk into it: max of |T_ji| / |T_jj| for i != j (dB re
+  its own diagonal) over the frequencies where both channels are in use:
+  where each comes within the filters' ``min_level_db`` of the strongest
+  channel (at the nearest design bin), the same rule that chose them; a
+  channel strong only at the top of the band is not judged at its foot,
+  where the plan itself says it carries nothing (as in
+  :mod:`arrayplan.verify`);
 * its latency, the peak of t_jj in samples, with t_jj taken from its
   spectrum over the filters' band and transitions (where the design window
   is above zero; outside it the filters hold only the time window's
@@ -43,12 +50,14 @@ import numpy as np
 import scipy.fft as sp_fft
 from scipy.signal import fftconvolve
 
+from ..coupling import Kernel
+from ..kernels import rig_kernel
 from ..kernels.freefield import FreeFieldKernel
 from ..rig import Rig
 from .design import FilterSet
 
-__all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "free_field_at", "end_to_end_responses",
-           "plot_crosstalk"]
+__all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "free_field_at", "kernel_at",
+           "kernel_ir_samples", "end_to_end_responses", "plot_crosstalk"]
 
 #: The check's frequency grid is at least this many times finer than the design bins.
 OVERSAMPLE = 8
@@ -66,7 +75,8 @@ class FilterCheck:
         Worst |20 log10(|T_jj| / g_j)| over the fine in-band grid, dB
         (g_j: the planned gain, see the module docstring).
     crosstalk_db : ndarray, shape (n_kept, n_kept)
-        [i, j] = worst in-band 20 log10(|T_ij| / |T_ii|); diagonal NaN.
+        [i, j] = worst in-band 20 log10(|T_ij| / |T_ii|) where both are in use
+        (see the module docstring); -inf where they never are; diagonal NaN.
     latency_samples : ndarray, shape (n_kept,)
         Measured end-to-end delay (peak of t_jj) in samples.
     limit_db : float
@@ -132,10 +142,37 @@ def end_to_end_responses(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndar
 
 
 def rig_ir_samples(rig: Rig, sample_rate_hz: float) -> int:
-    """Length of the simulated impulse responses: a power of two >= 8 x (longest delay + 64), >= 4096."""
-    r = np.linalg.norm(rig.mics.positions[:, None, :] - rig.speakers.positions[None, :, :], axis=-1)
-    delay = r.max() / rig.medium.speed_of_sound * sample_rate_hz
-    return int(max(4096, 2 ** int(np.ceil(np.log2(8 * (delay + 64))))))
+    """Length of the rig's free-field impulse responses: a power of two >= 8 x (longest delay + 64), >= 4096."""
+    return kernel_ir_samples(FreeFieldKernel(rig), sample_rate_hz)
+
+
+def kernel_ir_samples(kernel: Kernel, sample_rate_hz: float) -> int:
+    """Length allowed for a kernel's impulse responses at `sample_rate_hz`, samples.
+
+    A model kernel (free field, room): a power of two >= 8 x (its longest
+    path's delay + 64 samples), at least 4096.  A measured kernel: a power of
+    two holding its responses (``n_samples`` at its own rate, converted to
+    `sample_rate_hz`) plus 64 samples, at least 4096.
+
+    Parameters
+    ----------
+    kernel : Kernel
+        Free-field (``distances_m``), room (``longest_path_m``) or measured
+        (``n_samples``, ``sample_rate_hz``) kernel.
+    sample_rate_hz : float
+        The filters' rate, Hz.
+
+    Returns
+    -------
+    int
+        Samples.
+    """
+    if hasattr(kernel, "n_samples") and hasattr(kernel, "sample_rate_hz"):
+        n = kernel.n_samples * sample_rate_hz / kernel.sample_rate_hz + 64
+    else:
+        longest = kernel.longest_path_m if hasattr(kernel, "longest_path_m") else np.max(kernel.distances_m)
+        n = 8 * (longest / kernel.medium.speed_of_sound * sample_rate_hz + 64)
+    return int(max(4096, 2 ** int(np.ceil(np.log2(n)))))
 
 
 #: Memory budget of the temporaries of one batch in :func:`channel_transfer`, bytes.
@@ -250,7 +287,25 @@ def free_field_at(rig: Rig, n_fft: int, sample_rate_hz: float) -> Callable[[np.n
     of `n_fft` samples: the kernel at every bin, its real limit at DC, zero
     at the Nyquist bin of an even grid.
     """
-    kernel = FreeFieldKernel(rig)
+    return kernel_at(FreeFieldKernel(rig), n_fft, sample_rate_hz)
+
+
+def kernel_at(kernel: Kernel, n_fft: int, sample_rate_hz: float) -> Callable[[np.ndarray], np.ndarray]:
+    """``rig_at(bins)`` for :func:`channel_transfer`: any kernel's coupling at bins of an `n_fft` grid.
+
+    Parameters
+    ----------
+    kernel : Kernel
+    n_fft : int
+        FFT length; bin k is k fs / n_fft.
+    sample_rate_hz : float
+
+    Returns
+    -------
+    callable
+        ``rig_at(bins)`` -> complex (len(bins), n_mic, n_spk): the kernel at
+        each bin, its real limit at DC, zero at the Nyquist bin of an even grid.
+    """
 
     def rig_at(bins: np.ndarray) -> np.ndarray:
         hz = np.asarray(bins, dtype=float) * sample_rate_hz / n_fft
@@ -305,10 +360,31 @@ def _worst_db(x: np.ndarray, power: bool = False) -> np.ndarray:
         return np.max(np.abs((10.0 if power else 20.0) * np.log10(x)), axis=0)
 
 
-def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, progress=None) -> FilterCheck:
-    """Simulate the rig and measure each channel's gain, energy and crosstalk (see module docstring)."""
+def check_filters(kernel: Kernel | Rig, filters: FilterSet, *, limit_db: float = -40.0,
+                  progress=None) -> FilterCheck:
+    """Put the filters through a kernel and measure each channel's gain, energy and crosstalk.
+
+    Parameters
+    ----------
+    kernel : Kernel or Rig
+        The rig's coupling (see the module docstring); normally the kernel
+        the filters were designed on.  A rig stands for its model kernel
+        (:func:`arrayplan.kernels.rig_kernel`).  Element order must be the
+        filters'.
+    filters : FilterSet
+    limit_db : float
+        Pass/fail limit of the worst in-band crosstalk, dB.
+    progress : callable, optional
+        ``progress(done, total)`` in bins of the check's grid.
+
+    Returns
+    -------
+    FilterCheck
+    """
+    if isinstance(kernel, Rig):
+        kernel = rig_kernel(kernel)
     fs, taps = filters.sample_rate_hz, filters.taps
-    n_ir = rig_ir_samples(rig, fs)
+    n_ir = kernel_ir_samples(kernel, fs)
     n_out = n_ir + filters.drive.shape[0] + filters.combine.shape[0] - 2
     plan_hz = filters.plan.axis.hz
     bin_hz = fs / taps
@@ -318,7 +394,7 @@ def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, prog
     # the planned weights of the nearest design bin at each fine frequency
     nearest = np.clip(np.round((fine_hz - plan_hz[0]) / bin_hz).astype(int), 0, len(plan_hz) - 1)
     spec, t_edges, e_drive, e_combine, ref_gain = channel_transfer(
-        free_field_at(rig, n_fft, fs), filters.drive, filters.combine, n_fft, fine, edges,
+        kernel_at(kernel, n_fft, fs), filters.drive, filters.combine, n_fft, fine, edges,
         drive_ref=filters.plan.drive[:, :, kept][nearest], combine_ref=filters.plan.combine[:, :, kept][nearest],
         progress=progress)
     diag_c = np.einsum("fjj->fj", spec)
@@ -329,8 +405,10 @@ def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, prog
     on_bins = np.searchsorted(fine, np.round(plan_hz[band_mask] / (fs / n_fft)).astype(int))
     bin_err = _worst_db(diag[on_bins] / filters.plan.singular_values[band_mask][:, kept])
     mag = np.abs(spec)                                            # (n_fine, i, j)
-    with np.errstate(divide="ignore"):
-        ratio = 20 * np.log10(np.max(mag / diag[:, :, None], axis=0))
+    used = _in_use(filters, nearest)                              # (n_fine, n_kept)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = 20 * np.log10(np.max(np.where(used[:, :, None] & used[:, None, :], mag / diag[:, :, None], 0.0),
+                                     axis=0))
     np.fill_diagonal(ratio, np.nan)
     # latency: peak of t_jj from its spectrum over the filters' band (band and transitions)
     full = np.zeros((n_fft // 2 + 1, len(kept)), dtype=complex)
@@ -339,6 +417,19 @@ def check_filters(rig: Rig, filters: FilterSet, *, limit_db: float = -40.0, prog
     return FilterCheck(tuple(kept), gain_err, ratio, latency, float(limit_db), n_ir, bin_gain_error_db=bin_err,
                        drive_energy_error_db=_worst_db(e_drive, power=True),
                        combine_energy_error_db=_worst_db(e_combine, power=True), grid_factor=n_fft / taps)
+
+
+def _in_use(filters: FilterSet, nearest: np.ndarray) -> np.ndarray:
+    """Where each kept channel is within ``min_level_db`` of the strongest, at design bins `nearest`.
+
+    Returns
+    -------
+    ndarray of bool, shape (len(nearest), n_kept)
+    """
+    p = filters.plan.power_coupling[nearest]                       # (n, n_chan)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        level = 10.0 * np.log10(p / p.max(axis=1, keepdims=True))
+    return level[:, list(filters.kept)] >= filters.min_level_db
 
 
 def plot_crosstalk(check: FilterCheck, ax=None):

@@ -43,12 +43,15 @@ import numpy as np
 from scipy.signal.windows import tukey
 
 from ..channels import ChannelSet, decompose
+from ..coupling import Kernel
 from ..errors import InputError
 from ..frequency import FrequencyAxis
-from ..kernels.freefield import FreeFieldKernel
+from ..irset import IRSet
+from ..kernels import rig_kernel
 from ..rig import Rig
 
-__all__ = ["FilterSet", "band_window", "design_filters", "minimum_taps", "validate_request"]
+__all__ = ["FilterSet", "band_window", "delay_spread_s", "design_filters", "minimum_taps", "strong_ranges_hz",
+           "validate_request"]
 
 #: Width of each raised-cosine transition outside the band, in octaves.
 TRANSITION_OCTAVES = 1.0 / 6.0
@@ -79,6 +82,15 @@ class FilterSet:
         The tracked plan on the design bins (band plus transitions).
     level_db : ndarray, shape (n_chan,)
         10 log10(s_j^2 / s_max^2) at the band centre bin, every channel.
+    centre_hz : float
+        The design bin nearest the band's geometric centre, Hz.
+    band_level_db : ndarray, shape (n_band, n_chan), optional
+        10 log10(s_j^2 / s_max^2) on every in-band design bin (the strongest
+        channel of that bin is 0 dB), every channel.
+    min_level_db : float
+        The level a channel must reach somewhere in band to get filters, dB.
+    kernel_name : str
+        The kernel the channels were planned on.
     """
 
     sample_rate_hz: float
@@ -94,6 +106,9 @@ class FilterSet:
     plan: ChannelSet
     level_db: np.ndarray
     centre_hz: float
+    band_level_db: np.ndarray | None = None
+    min_level_db: float = -30.0
+    kernel_name: str = "free field"
 
     @property
     def drive_delay_samples(self) -> int:
@@ -109,6 +124,35 @@ class FilterSet:
         """Boolean mask over ``plan.axis`` of the bins inside the band."""
         hz = self.plan.axis.hz
         return (hz >= self.band_hz[0]) & (hz <= self.band_hz[1])
+
+    def strong_ranges_hz(self, channel: int) -> list[tuple[float, float]]:
+        """Where channel `channel` (0-based) reaches :attr:`min_level_db` in band, as (low, high) Hz runs."""
+        return strong_ranges_hz(self.plan.axis.hz[self.in_band()], self.band_level_db[:, channel] >= self.min_level_db)
+
+
+def strong_ranges_hz(hz: np.ndarray, strong: np.ndarray) -> list[tuple[float, float]]:
+    """Runs of consecutive True in `strong` as (first, last) frequencies.
+
+    Parameters
+    ----------
+    hz : ndarray, shape (n,)
+        Ascending frequencies, Hz.
+    strong : ndarray of bool, shape (n,)
+
+    Returns
+    -------
+    list of (float, float)
+        (low, high) Hz of each run, ascending.
+    """
+    out, start = [], None
+    for i, ok in enumerate(np.asarray(strong, dtype=bool)):
+        if ok and start is None:
+            start = i
+        if start is not None and (not ok or i == len(hz) - 1):
+            end = i if ok else i - 1
+            out.append((float(hz[start]), float(hz[end])))
+            start = None
+    return out
 
 
 def band_window(hz: np.ndarray, band_hz: tuple[float, float], sample_rate_hz: float,
@@ -147,20 +191,51 @@ def band_window(hz: np.ndarray, band_hz: tuple[float, float], sample_rate_hz: fl
     return w
 
 
-def _distances(rig: Rig) -> np.ndarray:
-    d = rig.mics.positions[:, None, :] - rig.speakers.positions[None, :, :]
-    return np.linalg.norm(d, axis=-1)
+def delay_spread_s(source: Rig | IRSet) -> float:
+    """Spread of the direct delays between every speaker and microphone, seconds.
+
+    Parameters
+    ----------
+    source : Rig or IRSet
+        A rig: (max r - min r) / c over the direct distances.  An IR set:
+        the spread of the responses' peaks (the strongest arrival of each
+        pair, whole samples), for plans made from measurements.
+
+    Returns
+    -------
+    float
+    """
+    if isinstance(source, IRSet):
+        peaks = np.argmax(np.abs(source.data.reshape(source.n_samples, -1)), axis=0)
+        return float(peaks.max() - peaks.min()) / source.sample_rate_hz
+    d = source.mics.positions[:, None, :] - source.speakers.positions[None, :, :]
+    r = np.linalg.norm(d, axis=-1)
+    return float(r.max() - r.min()) / source.medium.speed_of_sound
 
 
-def minimum_taps(rig: Rig, sample_rate_hz: float) -> int:
-    """Shortest filter length: twice the delay spread (max r - min r) / c in samples, plus a margin."""
-    r = _distances(rig)
-    spread = (r.max() - r.min()) / rig.medium.speed_of_sound * sample_rate_hz
-    return int(2 * np.ceil(spread) + TAPS_MARGIN)
+def minimum_taps(source: Rig | IRSet | float, sample_rate_hz: float) -> int:
+    """Shortest filter length: twice the delay spread in samples, plus a margin.
+
+    Parameters
+    ----------
+    source : Rig, IRSet or float
+        Where the delay spread comes from (:func:`delay_spread_s`), or the spread itself in seconds.
+    sample_rate_hz : float
+
+    Returns
+    -------
+    int
+    """
+    spread_s = float(source) if isinstance(source, (int, float)) else delay_spread_s(source)
+    return int(2 * np.ceil(spread_s * sample_rate_hz) + TAPS_MARGIN)
 
 
-def validate_request(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[float, float]) -> None:
-    """Raise InputError (naming the flag) when rate, taps or band cannot work for `rig`."""
+def validate_request(source: Rig | IRSet | float, sample_rate_hz: float, taps: int,
+                     band_hz: tuple[float, float]) -> None:
+    """Raise InputError (naming the flag) when rate, taps or band cannot work.
+
+    `source` gives the delay spread the taps must hold (see :func:`minimum_taps`).
+    """
     fs = float(sample_rate_hz)
     lo, hi = (float(b) for b in band_hz)
     if not (np.isfinite(fs) and fs > 0):
@@ -177,7 +252,7 @@ def validate_request(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[
                          fix="lower the band's top below half the rate")
     if int(taps) != taps or taps < 16:
         raise InputError(f"taps must be a whole number >= 16, got {taps!r}", source="taps")
-    need = minimum_taps(rig, fs)
+    need = minimum_taps(source, fs)
     if taps < need:
         raise InputError(f"{int(taps)} taps cannot hold the rig's delay spread", source="taps",
                          fix=f"use at least {need} taps")
@@ -226,15 +301,20 @@ def _taps(weights: np.ndarray, window: np.ndarray, design_idx: np.ndarray, taps:
     return out
 
 
-def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[float, float], *,
-                   min_level_db: float = -30.0, chunk_size: int = 64,
+def design_filters(kernel: Kernel | Rig, sample_rate_hz: float, taps: int, band_hz: tuple[float, float], *,
+                   min_level_db: float = -30.0, chunk_size: int = 64, spread: Rig | IRSet | float | None = None,
                    plan_progress: Callable[[int, int], None] | None = None,
                    taps_progress: Callable[[int, int], None] | None = None) -> FilterSet:
-    """Design drive and combine FIR filters for the channels of `rig` (see module docstring).
+    """Design drive and combine FIR filters for the channels of a kernel (see module docstring).
 
     Parameters
     ----------
-    rig : Rig
+    kernel : Kernel or Rig
+        The coupling the channels are planned on, on the filter's bin grid:
+        a free-field, room or measured kernel (anything with ``evaluate(hz)``
+        returning (n, n_mic, n_spk) and ``speaker_names``/``mic_names``).  A
+        rig stands for its model kernel (:func:`arrayplan.kernels.rig_kernel`:
+        its room when it has one, else the free field).
     sample_rate_hz : float
         DSP sample rate in Hz.
     taps : int
@@ -242,10 +322,15 @@ def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[fl
     band_hz : (low, high)
         Band in Hz where the filters realise the planned weights.
     min_level_db : float
-        Channels whose power coupling at the band centre is more than this
-        many dB below the strongest are skipped (listed in ``skipped``).
+        A channel gets filters when its power coupling comes within this
+        many dB of the strongest channel on one or more in-band design bins
+        (its strength across the band, not at one frequency); the others are
+        listed in ``skipped`` with their best level.
     chunk_size : int
         Design bins planned per batch.
+    spread : Rig, IRSet or float, optional
+        Source of the delay spread the taps must hold (:func:`minimum_taps`);
+        default: `kernel` when it is a rig, else no check.
     plan_progress : callable, optional
         ``plan_progress(done, total)`` in design bins, after each batch of the plan.
     taps_progress : callable, optional
@@ -256,24 +341,32 @@ def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[fl
     -------
     FilterSet
     """
-    validate_request(rig, sample_rate_hz, taps, band_hz)
+    if isinstance(kernel, Rig):
+        spread = kernel if spread is None else spread
+        kernel = rig_kernel(kernel)
+    if spread is not None:
+        validate_request(spread, sample_rate_hz, taps, band_hz)
     fs, taps = float(sample_rate_hz), int(taps)
     lo, hi = float(band_hz[0]), float(band_hz[1])
     hz_all = np.fft.rfftfreq(taps, 1.0 / fs)
     window = band_window(hz_all, (lo, hi), fs, min_transition_hz=TRANSITION_MIN_BINS * fs / taps)
     design_idx = np.nonzero(window > 0)[0]
     axis = FrequencyAxis(hz_all[design_idx])
-    plan = decompose(FreeFieldKernel(rig), axis, chunk_size=chunk_size, track=True, progress=plan_progress)
+    plan = decompose(kernel, axis, chunk_size=chunk_size, track=True, progress=plan_progress)
     centre = float(np.sqrt(lo * hi))
     in_band = (axis.hz >= lo) & (axis.hz <= hi)
     band_idx = np.nonzero(in_band)[0]
     ci = band_idx[np.argmin(np.abs(axis.hz[band_idx] - centre))]
-    p = plan.power_coupling[ci]
-    with np.errstate(divide="ignore"):
-        level = 10.0 * np.log10(p / p.max())
-    kept = tuple(int(j) for j in np.nonzero(level >= min_level_db)[0])
-    skipped = tuple((int(j), f"{level[j]:.1f} dB re the strongest channel at {axis.hz[ci]:.0f} Hz, "
-                     f"below the {min_level_db:g} dB limit") for j in range(len(level)) if j not in kept)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        p = plan.power_coupling[band_idx]                                  # (n_band, n_chan)
+        band_level = 10.0 * np.log10(p / p.max(axis=1, keepdims=True))
+    band_level = np.where(np.isnan(band_level), -np.inf, band_level)
+    level = band_level[int(np.searchsorted(band_idx, ci))]
+    best = band_level.max(axis=0)
+    kept = tuple(int(j) for j in np.nonzero(best >= min_level_db)[0])
+    skipped = tuple((int(j), f"never within {-min_level_db:g} dB of the strongest channel in band (best "
+                             f"{best[j]:.1f} dB at {axis.hz[band_idx[int(np.argmax(band_level[:, j]))]]:.0f} Hz)")
+                    for j in range(len(best)) if j not in kept)
     bin_hz = fs / taps
     drive_w = plan.drive[:, :, list(kept)]
     combine_w = plan.combine[:, :, list(kept)]
@@ -284,4 +377,5 @@ def design_filters(rig: Rig, sample_rate_hz: float, taps: int, band_hz: tuple[fl
     drive = _taps(drive_w, window, design_idx, taps, bulk - a_drive, fs, taps_progress, 0, n_sets)
     combine = _taps(combine_w, window, design_idx, taps, bulk - a_combine, fs, taps_progress, len(kept), n_sets)
     return FilterSet(fs, taps, (lo, hi), bulk, a_drive, a_combine, drive, combine, kept, skipped, plan,
-                     level, float(axis.hz[ci]))
+                     level, float(axis.hz[ci]), band_level_db=band_level, min_level_db=float(min_level_db),
+                     kernel_name=str(getattr(kernel, "name", "free field")))

@@ -9,6 +9,16 @@ Files (channel numbers NN are 1-based, the plan's tracked numbering):
   channels with reasons, element names by order, provenance and rig hash.
 * ``weights.csv``: the planned weights on the in-band design bins
   (frequency_hz, channel, side, element, re, im).
+* ``filters.json`` also holds the plan on the in-band design bins
+  (``plan_on_bins``: frequencies and every channel's singular value), the
+  reference ``arrayplan verify`` measures realised gains against.
+* ``filters-matrix.txt``: the whole filter matrix as plain text: a header
+  (``#`` lines: rate, taps, delays, band, element order, caution), then one
+  block per channel and element, a ``[channel NN drive NAME]`` line followed
+  by its taps on one line, separated by spaces (the WAV files' float32
+  values, written exactly).
+* ``channel-NN-response.png``: magnitude and phase of the channel's drive
+  and combine filters.
 * With a check: ``check.csv`` and ``crosstalk.png``.
 """
 
@@ -16,26 +26,39 @@ from __future__ import annotations
 
 import csv
 import io
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 import soundfile as sf
 
+from ..errors import InputError
 from ..fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..rig import Rig
 from ..safety import CAUTION_NOTE
 from .check import FilterCheck, plot_crosstalk
 from .design import TRANSITION_MIN_BINS, TRANSITION_OCTAVES, TUKEY_ALPHA, FilterSet
+from .source import DesignSource, read_json_object, source_from_rig
 
-__all__ = ["write_filters", "sidecar"]
+__all__ = ["FilterFiles", "read_filter_set", "write_filters", "sidecar"]
 
 
-def sidecar(rig: Rig, filters: FilterSet, check: FilterCheck | None = None) -> dict:
-    """The content of ``filters.json``."""
+def _finite(x: float) -> float | None:
+    return float(x) if np.isfinite(x) else None
+
+
+def sidecar(source: DesignSource | Rig, filters: FilterSet, check: FilterCheck | None = None) -> dict:
+    """The content of ``filters.json`` (`source`: what the filters were designed from, or a rig for its model)."""
+    if isinstance(source, Rig):
+        source = source_from_rig(source)
     fs = filters.sample_rate_hz
     s_centre = filters.plan.singular_values[filters.plan.axis.index_of(filters.centre_hz)]
+    band = filters.in_band()
     doc = {
-        "provenance": provenance(command="arrayplan filters", rig_sha256=rig.sha256, rig=rig.source),
+        "provenance": provenance(command="arrayplan filters", rig_sha256=source.origin.get("rig_sha256"),
+                                 rig=source.origin.get("rig")),
+        "designed_from": source.origin,
+        "kernel": filters.kernel_name,
         "sample_rate_hz": fs,
         "taps": filters.taps,
         "bulk_delay_samples": filters.bulk_delay_samples,
@@ -58,16 +81,25 @@ def sidecar(rig: Rig, filters: FilterSet, check: FilterCheck | None = None) -> d
                          "check.grid_factor times finer than the bins), when the check was run",
         "channel_numbering": "1-based, channels tracked across frequency from the lowest design bin",
         "centre_hz": filters.centre_hz,
+        "min_level_db": filters.min_level_db,
+        "channel_choice": "a channel gets filters when its power coupling comes within min_level_db of the "
+                          "strongest channel on one or more in-band design bins; strong_hz lists where it does",
+        "plan_on_bins": {"frequency_hz": filters.plan.axis.hz[band].tolist(),
+                         "singular_value": filters.plan.singular_values[band].tolist(),
+                         "definition": "the planned singular value of every channel (columns, 1-based order) on "
+                                       "each in-band design bin (rows), unit of the kernel's coupling"},
         "channels": [
             {"channel": j + 1, "singular_value_at_centre": float(s_centre[j]),
-             "level_db_at_centre": float(filters.level_db[j]) if np.isfinite(filters.level_db[j]) else None,
+             "level_db_at_centre": _finite(filters.level_db[j]),
+             "best_level_db": _finite(np.max(filters.band_level_db[:, j])),
+             "strong_hz": [list(r) for r in filters.strong_ranges_hz(j)],
              "filters": j in filters.kept,
              "drive_file": f"channel-{j + 1:02d}-drive.wav" if j in filters.kept else None,
              "combine_file": f"channel-{j + 1:02d}-combine.wav" if j in filters.kept else None}
             for j in range(filters.plan.n_channels)],
         "skipped": [{"channel": j + 1, "reason": why} for j, why in filters.skipped],
-        "speakers": list(rig.speakers.names),
-        "microphones": list(rig.mics.names),
+        "speakers": list(source.speaker_names),
+        "microphones": list(source.mic_names),
         "sign_convention": provenance()["sign_convention"],
         "caution": CAUTION_NOTE,
     }
@@ -94,14 +126,14 @@ def sidecar(rig: Rig, filters: FilterSet, check: FilterCheck | None = None) -> d
     return doc
 
 
-def _weights_csv(rig: Rig, filters: FilterSet) -> str:
+def _weights_csv(source: DesignSource, filters: FilterSet) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["frequency_hz", "channel", "side", "element", "re", "im"])
     mask = filters.in_band()
     hz = filters.plan.axis.hz[mask]
-    for side, names, weights in (("drive", rig.speakers.names, filters.plan.drive[mask]),
-                                 ("combine", rig.mics.names, filters.plan.combine[mask])):
+    for side, names, weights in (("drive", source.speaker_names, filters.plan.drive[mask]),
+                                 ("combine", source.mic_names, filters.plan.combine[mask])):
         for fi, f in enumerate(hz):
             for j in filters.kept:
                 for e, name in enumerate(names):
@@ -126,11 +158,69 @@ def _check_csv(check: FilterCheck) -> str:
     return buf.getvalue()
 
 
-def write_filters(rig: Rig, filters: FilterSet, out_dir: str | Path, check: FilterCheck | None = None
-                  ) -> list[Path]:
-    """Write every filter file (and the check, if given) to `out_dir` atomically; return the paths."""
+def _matrix_text(source: DesignSource, filters: FilterSet) -> str:
+    """``filters-matrix.txt``: header, then each channel's and element's taps on one line."""
+    fs = filters.sample_rate_hz
+    head = [f"arrayplan FIR filter matrix, {len(filters.kept)} channels ({source.name})",
+            f"sample_rate_hz {fs:g}", f"taps {filters.taps}",
+            f"bulk_delay_samples {filters.bulk_delay_samples}",
+            f"drive_filter_delay_samples {filters.drive_delay_samples}",
+            f"combine_filter_delay_samples {filters.combine_delay_samples}",
+            f"band_hz {filters.band_hz[0]:g} {filters.band_hz[1]:g}",
+            f"channels {' '.join(str(j + 1) for j in filters.kept)}",
+            f"speakers {' '.join(source.speaker_names)}", f"microphones {' '.join(source.mic_names)}",
+            "layout: a [channel NN drive|combine ELEMENT] line, then that filter's taps (float32) on one line",
+            CAUTION_NOTE]
+    lines = [f"# {h}" for h in head]
+    for k, j in enumerate(filters.kept):
+        for side, names, taps in (("drive", source.speaker_names, filters.drive[:, :, k]),
+                                  ("combine", source.mic_names, filters.combine[:, :, k])):
+            for e, name in enumerate(names):
+                lines.append(f"[channel {j + 1:02d} {side} {name}]")
+                lines.append(" ".join(f"{float(v) + 0.0:.9g}" for v in taps[:, e].astype(np.float32)))
+    return "\n".join(lines) + "\n"
+
+
+def _write_responses(source: DesignSource, filters: FilterSet, stage: Path) -> list[str]:
     import matplotlib.pyplot as plt
 
+    from ..fileio import atomic_path
+    from ..plots.filter_responses import plot_filter_responses
+
+    names = []
+    for k, j in enumerate(filters.kept):
+        fig = plot_filter_responses(filters.drive[:, :, k], filters.combine[:, :, k], filters.sample_rate_hz,
+                                    filters.band_hz, drive_delay_samples=filters.drive_delay_samples,
+                                    combine_delay_samples=filters.combine_delay_samples, channel=j + 1,
+                                    speaker_names=source.speaker_names, mic_names=source.mic_names)
+        name = f"channel-{j + 1:02d}-response.png"
+        with atomic_path(stage / name) as tmp:
+            fig.savefig(tmp, dpi=110)
+        plt.close(fig)
+        names.append(name)
+    return names
+
+
+def write_filters(source: DesignSource | Rig, filters: FilterSet, out_dir: str | Path,
+                  check: FilterCheck | None = None) -> list[Path]:
+    """Write every filter file (and the check, if given) to `out_dir` atomically; return the paths.
+
+    Parameters
+    ----------
+    source : DesignSource or Rig
+        What the filters were designed from (names and provenance); a rig for its model kernel.
+    filters : FilterSet
+    out_dir : path
+    check : FilterCheck, optional
+
+    Returns
+    -------
+    list of Path
+    """
+    import matplotlib.pyplot as plt
+
+    if isinstance(source, Rig):
+        source = source_from_rig(source)
     out_dir = Path(out_dir)
     names: list[str] = []
     with staged_output_dir(out_dir) as stage:
@@ -140,9 +230,11 @@ def write_filters(rig: Rig, filters: FilterSet, out_dir: str | Path, check: Filt
                 name = f"channel-{j + 1:02d}-{side}.wav"
                 sf.write(stage / name, taps.astype(np.float32), fs, subtype="FLOAT")
                 names.append(name)
-        write_json_atomic(stage / "filters.json", sidecar(rig, filters, check))
-        write_text_atomic(stage / "weights.csv", _weights_csv(rig, filters))
-        names += ["filters.json", "weights.csv"]
+        write_json_atomic(stage / "filters.json", sidecar(source, filters, check))
+        write_text_atomic(stage / "weights.csv", _weights_csv(source, filters))
+        write_text_atomic(stage / "filters-matrix.txt", _matrix_text(source, filters))
+        names += ["filters.json", "weights.csv", "filters-matrix.txt"]
+        names += _write_responses(source, filters, stage)
         if check is not None:
             write_text_atomic(stage / "check.csv", _check_csv(check))
             ax = plot_crosstalk(check)
@@ -150,3 +242,90 @@ def write_filters(rig: Rig, filters: FilterSet, out_dir: str | Path, check: Filt
             plt.close(ax.figure)
             names += ["check.csv", "crosstalk.png"]
     return [out_dir / n for n in names]
+
+
+@dataclass(frozen=True)
+class FilterFiles:
+    """A filter folder read back (:func:`read_filter_set`).
+
+    Attributes
+    ----------
+    folder : Path
+    sample_rate_hz : float
+    taps : int
+    band_hz : (float, float)
+    kept : tuple of int
+        0-based plan channels with filters, the order of the last axis below.
+    drive : ndarray, shape (taps, n_spk, n_kept)
+    combine : ndarray, shape (taps, n_mic, n_kept)
+    speaker_names, mic_names : tuple of str
+    plan_hz : ndarray, shape (n_bins,)
+        The in-band design bins, Hz.
+    plan_sv : ndarray, shape (n_bins, n_chan)
+        Every planned channel's singular value there.
+    min_level_db : float
+        The filters' channel choice (a channel is in use where it comes within this of the strongest).
+    kernel : str
+        The kernel the filters were designed on.
+    """
+
+    folder: Path
+    sample_rate_hz: float
+    taps: int
+    band_hz: tuple[float, float]
+    kept: tuple[int, ...]
+    drive: np.ndarray
+    combine: np.ndarray
+    speaker_names: tuple[str, ...]
+    mic_names: tuple[str, ...]
+    plan_hz: np.ndarray
+    plan_sv: np.ndarray
+    min_level_db: float
+    kernel: str
+
+
+def _read_wav(path: Path, n_channels: int, taps: int, rate: float) -> np.ndarray:
+    try:
+        data, fs = sf.read(path, dtype="float64", always_2d=True)
+    except (OSError, RuntimeError, sf.LibsndfileError) as exc:
+        raise InputError(f"cannot read filter ({' '.join(str(exc).split())})", source=str(path)) from None
+    if data.shape != (taps, n_channels) or abs(fs - rate) > 0.5 or not np.all(np.isfinite(data)):
+        raise InputError(f"expected {n_channels} channels of {taps} finite taps at {rate:g} Hz, got "
+                         f"{data.shape[1]} of {data.shape[0]} at {fs:g} Hz", source=str(path),
+                         fix="write the filters again with the filters command")
+    return data
+
+
+def read_filter_set(folder: str | Path) -> FilterFiles:
+    """Read a folder written by :func:`write_filters`: its ``filters.json`` and every channel's WAV taps.
+
+    Raises
+    ------
+    InputError
+        Naming the file and field when the folder is not a complete filter set.
+    """
+    folder = Path(folder)
+    path = folder / "filters.json"
+    doc = read_json_object(path, "point at a folder written by the filters command")
+    field = "plan_on_bins"
+    try:
+        rate, taps = float(doc["sample_rate_hz"]), int(doc["taps"])
+        band = (float(doc["band_hz"][0]), float(doc["band_hz"][1]))
+        spk, mic = tuple(str(n) for n in doc["speakers"]), tuple(str(n) for n in doc["microphones"])
+        entries = [c for c in doc["channels"] if c.get("filters")]
+        field = "plan_on_bins"
+        bins = doc[field]
+        plan_hz = np.asarray(bins["frequency_hz"], dtype=float)
+        plan_sv = np.asarray(bins["singular_value"], dtype=float).reshape(len(plan_hz), -1)
+    except (KeyError, TypeError, ValueError, IndexError, AttributeError) as exc:
+        raise InputError(f"missing or malformed ({exc})", source=str(path), field=field,
+                         fix="write the filters again with this version of the filters command") from None
+    if not entries:
+        raise InputError("no channel has filters", source=str(path), field="channels")
+    drive, combine = [], []
+    for c in entries:
+        drive.append(_read_wav(folder / str(c["drive_file"]), len(spk), taps, rate))
+        combine.append(_read_wav(folder / str(c["combine_file"]), len(mic), taps, rate))
+    return FilterFiles(folder, rate, taps, band, tuple(int(c["channel"]) - 1 for c in entries),
+                       np.stack(drive, axis=-1), np.stack(combine, axis=-1), spk, mic, plan_hz, plan_sv,
+                       float(doc.get("min_level_db", -30.0)), str(doc.get("kernel", "free field")))

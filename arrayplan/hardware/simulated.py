@@ -118,20 +118,27 @@ class SimulatedLink:
                             f"latency {self.latency_samples} samples) at {self.sample_rate_hz:g} Hz")
 
     @classmethod
-    def from_rig(cls, rig, sample_rate_hz: float, n_ir_samples: int, **options) -> "SimulatedLink":
+    def from_rig(cls, rig, sample_rate_hz: float, n_ir_samples: int, truth_errors=None,
+                 **options) -> "SimulatedLink":
         """A simulated link whose truth is the rig's model responses: its room when it has one, else the free field.
 
         A room's responses are made at least as long as its longest image
-        path, whatever `n_ir_samples` asks for.
+        path, whatever `n_ir_samples` asks for.  With `truth_errors` (a
+        :class:`arrayplan.simulate.TruthErrors`) the truth is the rig as
+        built, not as drawn: elements off their positions, gain and phase
+        errors, a reflecting floor (:func:`arrayplan.simulate.truth_irset`).
 
         Channels come from the rig (its 1-based numbers become 0-based here),
         and so does the loopback reference when the rig names one.  Keyword
         options are those of the constructor.
         """
-        from ..simulate import free_field_irset, rig_irset
+        from ..simulate import free_field_irset, rig_irset, truth_irset
 
-        truth = (rig_irset(rig, sample_rate_hz, n_ir_samples) if rig.room is not None
-                 else free_field_irset(rig, sample_rate_hz, n_ir_samples))
+        if truth_errors is not None and truth_errors.any:
+            truth = truth_irset(rig, sample_rate_hz, n_ir_samples, truth_errors)
+        else:
+            truth = (rig_irset(rig, sample_rate_hz, n_ir_samples) if rig.room is not None
+                     else free_field_irset(rig, sample_rate_hz, n_ir_samples))
         hw = rig.hardware
         if "reference" not in options and hw.reference_output and hw.reference_input:
             options["reference"] = (hw.reference_output - 1, hw.reference_input - 1)

@@ -55,7 +55,7 @@ def plot_channel_matrices(hz, channel_matrix, channels, judged=None, max_panels:
         usable = np.arange(len(hz))
     picks = usable[np.unique(np.linspace(0, len(usable) - 1, min(max_panels, len(usable))).round().astype(int))]
     if fig is None:
-        fig = Figure(figsize=(min(3.0 * len(picks) + 1.0, 7.0), 3.2), layout="constrained")
+        fig = Figure(figsize=(min(2.8 * len(picks) + 1.6, 10.0), 3.6), layout="constrained")
     axes = fig.subplots(1, len(picks), squeeze=False)[0]
     labels = [str(j + 1) for j in want]
     step = max(1, int(np.ceil(len(want) / 8)))
@@ -73,11 +73,13 @@ def plot_channel_matrices(hz, channel_matrix, channels, judged=None, max_panels:
         ticks = np.arange(0, len(want), step)
         ax.set_xticks(ticks, [labels[t] for t in ticks])
         ax.set_yticks(ticks, [labels[t] for t in ticks])
-        ax.set_xlabel("driven channel j (no.)")
-        ax.set_ylabel("received channel i (no.)")
-        ax.set_title(f"{hz[f]:.4g} Hz")
-    fig.colorbar(im, ax=list(axes), label="|C_ij| re strongest diagonal (dB)")
-    fig.suptitle("Realised channel matrix combine^T G_measured drive")
+        ax.set_title(f"{hz[f]:.4g} Hz", fontsize="medium")
+        # short labels on every panel (long ones overlapped the neighbouring panel)
+        ax.set_xlabel("driven j (no.)", fontsize="small")
+        ax.set_ylabel("received i (no.)", fontsize="small")
+    fig.colorbar(im, ax=list(axes), label="|C_ij| re strongest diagonal (dB)", shrink=0.9)
+    fig.suptitle("Realised channel matrix combine^T G_measured drive (blank: channel not judged there)",
+                 fontsize="medium")
     return fig
 
 
@@ -131,6 +133,21 @@ def plot_singular_values(result, ax=None, floor_db: float = -120.0):
     ax.grid(True, alpha=0.3)
     if n <= 8:
         ax.legend(fontsize="small", ncol=2)
+    else:
+        # line styles in a legend, channel numbers on a colour bar (too many for a legend)
+        from matplotlib.cm import ScalarMappable
+        from matplotlib.colors import BoundaryNorm, ListedColormap
+        from matplotlib.lines import Line2D
+
+        ax.legend(handles=[Line2D([], [], color="0.3", ls="-", label="planned"),
+                           Line2D([], [], color="0.3", ls="--", label="measured (re-plan)")],
+                  fontsize="small", loc="lower left")
+        bounds = np.arange(n + 1) + 0.5
+        sm = ScalarMappable(BoundaryNorm(bounds, n), ListedColormap(colours))
+        cbar = fig.colorbar(sm, ax=ax)
+        ticks = np.unique(np.linspace(1, n, min(n, 12)).round().astype(int))
+        cbar.set_ticks(ticks.astype(float), labels=[str(t) for t in ticks])
+        cbar.set_label("channel (no., plan order)")
     return fig
 
 

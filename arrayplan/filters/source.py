@@ -1,0 +1,223 @@
+"""Where filters are designed from: a rig's model kernel, or the kernel a plan folder was made with.
+
+A plan folder's ``weights.json`` names its kernel (``kernel``) and the rig
+it was made for (``rig.source`` and ``rig.sha256``).  A free-field or room
+plan is designed again from that rig file (its hash must match); a plan
+made from measured impulse responses needs the IR set, which its
+``measurement`` record names (path, SHA-256 of the hashed file, window,
+latency and smoothing) when the plan has one.  The filters are then
+designed on the filter's own bin grid from the same kernel, not from the
+plan's frequencies.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from ..coupling import Kernel
+from ..errors import InputError
+from ..irset import IRSet
+from ..kernels import rig_kernel
+from ..kernels.measured import MeasuredKernel
+from ..rig import Rig, load_rig
+
+__all__ = ["DesignSource", "PlanRecord", "read_plan_record", "source_from_rig", "source_from_plan",
+           "irset_sha256"]
+
+
+@dataclass(frozen=True)
+class DesignSource:
+    """A kernel to design filters from, with the names and provenance the filter files carry.
+
+    Attributes
+    ----------
+    kernel : Kernel
+        Coupling (n_freq, n_mic, n_spk) at any frequency.
+    speaker_names, mic_names : tuple of str
+        Element names in the kernel's order.
+    spread : Rig or IRSet
+        Where the delay spread the taps must hold comes from
+        (:func:`arrayplan.filters.design.minimum_taps`).
+    name : str
+        A name for people (the rig's).
+    origin : dict
+        What ``filters.json`` records of the source: the rig file and hash,
+        or the plan folder, its kernel and IR set.
+    """
+
+    kernel: Kernel
+    speaker_names: tuple[str, ...]
+    mic_names: tuple[str, ...]
+    spread: Rig | IRSet
+    name: str
+    origin: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def kernel_name(self) -> str:
+        """The kernel's name (``"free field"`` when it has none)."""
+        return str(getattr(self.kernel, "name", "free field"))
+
+
+def source_from_rig(rig: Rig, *, free_field: bool = False) -> DesignSource:
+    """The rig's model kernel: its room when it has a ``[room]`` table (unless `free_field`), else the free field."""
+    kernel = rig_kernel(rig, free_field=free_field)
+    return DesignSource(kernel, tuple(rig.speakers.names), tuple(rig.mics.names), rig, rig.name,
+                        {"rig": rig.source, "rig_sha256": rig.sha256,
+                         "kernel": str(getattr(kernel, "name", "free field"))})
+
+
+def irset_sha256(path: str | Path) -> tuple[str, str]:
+    """SHA-256 of an IR set as a plan records it: of ``irset.json`` in a folder, or of a ``.sofa`` file.
+
+    Returns
+    -------
+    (str, str)
+        The hex digest and the name of the hashed file.
+    """
+    p = Path(path)
+    hashed = p if p.suffix.lower() == ".sofa" else (p if p.name == "irset.json" else p / "irset.json")
+    try:
+        return hashlib.sha256(hashed.read_bytes()).hexdigest(), hashed.name
+    except OSError as exc:
+        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(hashed)) from None
+
+
+@dataclass(frozen=True)
+class PlanRecord:
+    """What a plan folder says about its kernel.
+
+    Attributes
+    ----------
+    folder : Path
+    kernel : str
+        The plan's kernel name (``free field``, ``room``, ``measured ...``).
+    speaker_names, mic_names : tuple of str
+    rig_source : str or None
+        The rig file the plan was made from.
+    rig_sha256 : str or None
+    measurement : dict or None
+        The plan's record of its IR set (``irset.path``, ``irset.sha256``,
+        ``window_ms``, ``latency_samples``, ``smoothing_octaves``), when it has one.
+    """
+
+    folder: Path
+    kernel: str
+    speaker_names: tuple[str, ...]
+    mic_names: tuple[str, ...]
+    rig_source: str | None
+    rig_sha256: str | None
+    measurement: dict[str, Any] | None
+
+    @property
+    def measured(self) -> bool:
+        """Made from measured impulse responses."""
+        return self.kernel.startswith("measured") or self.measurement is not None
+
+    @property
+    def recorded_irset(self) -> str | None:
+        """The IR set's path as the plan recorded it, or None."""
+        irset = (self.measurement or {}).get("irset")
+        return str(irset["path"]) if isinstance(irset, dict) and irset.get("path") else None
+
+
+def read_json_object(path: Path, fix: str) -> dict:
+    """A JSON object from `path`, or InputError naming the file (`fix` says what to point at)."""
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except OSError as exc:
+        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(path), fix=fix) from None
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(path)) from None
+    if not isinstance(doc, dict):
+        raise InputError("not a JSON object", source=str(path), fix=fix)
+    return doc
+
+
+def read_plan_record(plan_dir: str | Path) -> PlanRecord:
+    """Read a plan folder's ``weights.json`` for its kernel, rig and IR-set record."""
+    folder = Path(plan_dir)
+    path = folder / "weights.json"
+    doc = read_json_object(path, "point at a folder written by the plan command")
+    rig = doc.get("rig") if isinstance(doc.get("rig"), dict) else {}
+    names = []
+    for key in ("speaker_names", "mic_names"):
+        value = doc.get(key)
+        if not (isinstance(value, list) and value and all(isinstance(v, str) for v in value)):
+            raise InputError("missing or not a list of names", source=str(path), field=key,
+                             fix="plan again with this version")
+        names.append(tuple(value))
+    measurement = doc.get("measurement") if isinstance(doc.get("measurement"), dict) else None
+    return PlanRecord(folder, str(doc.get("kernel", "free field")), names[0], names[1],
+                      rig.get("source"), rig.get("sha256"), measurement)
+
+
+def source_from_plan(record: PlanRecord, *, irset: IRSet | None = None, irset_path: str | Path | None = None,
+                     window_s: float | None = None, latency_samples: int = 0,
+                     smoothing_octaves: float | None = None) -> DesignSource:
+    """The kernel a plan folder was made with.
+
+    Parameters
+    ----------
+    record : PlanRecord
+        From :func:`read_plan_record`.
+    irset : IRSet, optional
+        For a plan made from measurements: the IR set (read from the plan's
+        record or given by the caller).  Its element names must be the plan's.
+    irset_path : path, optional
+        Where `irset` was read from; when the plan records the set's hash, the
+        file there must have the same hash.
+    window_s, latency_samples, smoothing_octaves
+        The measured kernel's settings when the plan records none (see
+        :class:`arrayplan.kernels.measured.MeasuredKernel`); a plan's own
+        record wins.
+
+    Returns
+    -------
+    DesignSource
+    """
+    src = str(record.folder / "weights.json")
+    if not record.measured:
+        # a relative path is tried from here, then from the plan folder's parent and the folder itself
+        found = [p for p in ([Path(record.rig_source), record.folder.parent / record.rig_source,
+                              record.folder / record.rig_source] if record.rig_source else []) if p.is_file()]
+        if not found:
+            raise InputError(f"the rig file the plan was made from ({record.rig_source}) is not there", source=src,
+                             field="rig.source", fix="give the rig file instead of the plan folder")
+        rig = load_rig(found[0])
+        if record.rig_sha256 and rig.sha256 != record.rig_sha256:
+            raise InputError(f"the rig file {record.rig_source} has changed since the plan was made (hash differs)",
+                             source=src, field="rig.sha256", fix="plan again, or give the rig file itself")
+        out = source_from_rig(rig, free_field=record.kernel == "free field")
+        return DesignSource(out.kernel, out.speaker_names, out.mic_names, rig, rig.name,
+                            {"plan": str(record.folder), "kernel": record.kernel, "rig": rig.source,
+                             "rig_sha256": rig.sha256})
+    if irset is None:
+        raise InputError("the plan was made from measured impulse responses; the IR set is needed", source=src,
+                         field="measurement.irset", fix="give the IR set the plan was made from")
+    m = record.measurement or {}
+    recorded_hash = (m.get("irset") or {}).get("sha256") if isinstance(m.get("irset"), dict) else None
+    if recorded_hash and irset_path is not None:
+        got, hashed = irset_sha256(irset_path)
+        if got != recorded_hash:
+            raise InputError(f"the IR set at {irset_path} is not the one the plan was made from ({hashed} hash "
+                             f"{got[:12]}..., plan records {recorded_hash[:12]}...)", source=src,
+                             field="measurement.irset.sha256", fix="give the IR set the plan was made from")
+    if tuple(irset.speaker_names) != record.speaker_names or tuple(irset.mic_names) != record.mic_names:
+        raise InputError("the IR set's element names or order differ from the plan's", source=str(irset_path or src),
+                         field="speaker_names", fix="give the IR set the plan was made from")
+    if m:
+        window_s = None if m.get("window_ms") is None else float(m["window_ms"]) / 1000.0
+        latency_samples = int(m.get("latency_samples") or 0)
+        smoothing_octaves = None if m.get("smoothing_octaves") is None else float(m["smoothing_octaves"])
+    kernel = MeasuredKernel(irset, window_s=window_s, latency_samples=latency_samples,
+                            smoothing_octaves=smoothing_octaves)
+    return DesignSource(kernel, record.speaker_names, record.mic_names, irset, record.folder.name,
+                        {"plan": str(record.folder), "kernel": kernel.name, "rig_sha256": record.rig_sha256,
+                         "irset": str(irset_path) if irset_path is not None else None,
+                         "irset_sha256": irset_sha256(irset_path)[0] if irset_path is not None else None,
+                         "window_ms": None if window_s is None else 1e3 * window_s,
+                         "latency_samples": latency_samples, "smoothing_octaves": smoothing_octaves})
