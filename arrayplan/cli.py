@@ -48,7 +48,7 @@ COMMANDS: tuple[tuple[str, str, str], ...] = (
     ("irset", "arrayplan.commands.irset",
      "convert impulse-response sets to and from AES69 (SOFA) files; summarise one"),
     ("verify", "arrayplan.commands.verify",
-     "verify planned channels against measured impulse responses"),
+     "verify a plan, or the FIR filters made from it, against measured impulse responses"),
     ("study", "arrayplan.commands.study",
      "design studies: questions a plan alone does not answer"),
     ("compare", "arrayplan.commands.compare",
