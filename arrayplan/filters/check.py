@@ -432,21 +432,37 @@ def _in_use(filters: FilterSet, nearest: np.ndarray) -> np.ndarray:
     return level[:, list(filters.kept)] >= filters.min_level_db
 
 
-def plot_crosstalk(check: FilterCheck, ax=None):
-    """Heat map of worst in-band crosstalk (dB re each output's own gain); returns the axes."""
+def plot_crosstalk(check: FilterCheck, ax=None, margin_db: float = 40.0):
+    """Heat map of worst in-band crosstalk (dB re each output's own gain); returns the axes.
+
+    The colour scale runs from `margin_db` below the crosstalk limit (weaker
+    crosstalk is drawn at that floor: far below the limit it does not matter)
+    to 10 dB above the limit or the worst cell, the limit is marked on the
+    colour bar, and every cell over the limit carries its value.
+    """
     import matplotlib.pyplot as plt
 
     if ax is None:
         _, ax = plt.subplots(figsize=(6.4, 5.2))
     n = len(check.channels)
     labels = [str(c + 1) for c in check.channels]
-    data = np.where(np.isnan(check.crosstalk_db), np.nan, np.maximum(check.crosstalk_db, -160.0))
-    im = ax.imshow(data, cmap="viridis", origin="upper", interpolation="nearest")
+    limit = float(check.limit_db)
+    floor = limit - abs(margin_db)
+    worst = float(np.nanmax(check.crosstalk_db)) if np.any(np.isfinite(check.crosstalk_db)) else limit
+    top = max(limit + 10.0, worst)
+    data = np.where(np.isnan(check.crosstalk_db), np.nan, np.clip(check.crosstalk_db, floor, top))
+    im = ax.imshow(data, cmap="viridis", origin="upper", interpolation="nearest", vmin=floor, vmax=top)
+    for i, j in zip(*np.nonzero(np.nan_to_num(check.crosstalk_db, nan=-np.inf) > limit)):
+        bright = data[i, j] > floor + 0.6 * (top - floor)            # viridis is light at its top end
+        ax.text(j, i, f"{check.crosstalk_db[i, j]:.0f}", ha="center", va="center", fontsize=7,
+                color="black" if bright else "white", fontweight="bold")
     ax.set_xticks(range(n), labels)
     ax.set_yticks(range(n), labels)
     ax.set_xlabel("input channel j, drive filters (no.)")
     ax.set_ylabel("output channel i, combine filters (no.)")
-    ax.set_title(f"Worst in-band crosstalk, limit {check.limit_db:g} dB (diagonal blank)")
+    ax.set_title(f"Worst in-band crosstalk, limit {limit:g} dB (diagonal blank; cells over it show their dB)",
+                 fontsize=9)
     cbar = ax.figure.colorbar(im, ax=ax)
-    cbar.set_label("|T_ij| / |T_ii|, worst over the band (dB, floor -160)")
+    cbar.ax.axhline(limit, color="red", lw=2)
+    cbar.set_label(f"|T_ij| / |T_ii|, worst over the band (dB; red: limit; floor {floor:g})")
     return ax
