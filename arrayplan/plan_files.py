@@ -44,7 +44,7 @@ from .fileio import atomic_path, check_folder, provenance, staged_output_dir, wr
 from .frequency import FrequencyAxis
 from .heuristics import paraxial_estimate
 from .planning import Plan
-from .rig import Rig
+from .rig import Rig, load_rig
 
 __all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
            "coupling_text", "long_table_rows", "LONG_TABLE_MAX_ROWS"]
@@ -278,6 +278,57 @@ def coupling_text(units: str | None = None) -> str:
             f"units: {MEASURED_UNITS.get(units, units)}")
 
 
+
+def irset_sha256(path: str | os.PathLike) -> tuple[str, str]:
+    """SHA-256 of an IR set as a plan records it: of ``irset.json`` in a folder, or of a ``.sofa`` file.
+
+    Returns
+    -------
+    (str, str)
+        The hex digest and the name of the hashed file.
+    """
+    import hashlib
+
+    p = Path(path)
+    hashed = p if p.suffix.lower() == ".sofa" else (p if p.name == "irset.json" else p / "irset.json")
+    try:
+        return hashlib.sha256(hashed.read_bytes()).hexdigest(), hashed.name
+    except OSError as exc:
+        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(hashed)) from None
+
+
+def planned_rig_file(sidecar: dict, plan_dir: str | os.PathLike,
+                     project: str | os.PathLike | None = None) -> tuple[Rig | None, Path | None, str]:
+    """The rig file a plan's ``weights.json`` names, when it is still there with the plan's geometry hash.
+
+    A relative path is tried from the working folder, the project folder (if
+    given), the plan folder's parent and the plan folder itself.
+
+    Returns
+    -------
+    (Rig or None, Path or None, str)
+        The rig and its file, or None and None with the reason in words.
+    """
+    rig_info = sidecar.get("rig") if isinstance(sidecar.get("rig"), dict) else {}
+    source, want = str(rig_info.get("source", "")), str(rig_info.get("sha256", ""))
+    if not source or source.startswith("<") or source == "command line":
+        return None, None, "the plan was not made from a rig file"
+    folder, p = Path(plan_dir), Path(source)
+    roots = [Path.cwd()] + ([Path(project)] if project is not None else []) + [folder.parent, folder]
+    candidates = [p] if p.is_absolute() else [r / p for r in roots] + ([Path(project) / p.name] if project else [])
+    changed = False
+    for cand in candidates:
+        if cand.is_file():
+            try:
+                rig = load_rig(cand)
+            except InputError:
+                continue
+            if rig.sha256 == want:
+                return rig, cand, ""
+            changed = True
+    return None, None, (f"the rig file {source} has changed since the plan was made (hash differs)" if changed
+                        else f"the rig file the plan was made from ({source}) is not there")
+
 def measurement_record(irset_path: str | os.PathLike, kernel: Any) -> dict[str, Any]:
     """What ``weights.json`` records of the IR set a plan was made from.
 
@@ -298,14 +349,10 @@ def measurement_record(irset_path: str | os.PathLike, kernel: Any) -> dict[str, 
         ``zero_lag_samples``, ``window_ms``, ``latency_samples`` and
         ``smoothing_octaves`` (None where not used).
     """
-    import hashlib
-
     path = Path(irset_path)
-    hashed = path if path.suffix.lower() == ".sofa" else path / "irset.json"
-    try:
-        raw = hashed.read_bytes()
-    except OSError as exc:
-        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(hashed)) from None
+    digest, hashed_name = irset_sha256(path)
+    hashed = path if path.suffix.lower() == ".sofa" else path / hashed_name
+    raw = hashed.read_bytes()
     if hashed.suffix.lower() == ".sofa":
         fmt, version = "AES69 (SOFA)", None
     else:
@@ -314,7 +361,7 @@ def measurement_record(irset_path: str | os.PathLike, kernel: Any) -> dict[str, 
         except (UnicodeDecodeError, json.JSONDecodeError):
             manifest = {}
         fmt, version = manifest.get("format"), manifest.get("format_version")
-    return {"irset": {"path": str(path), "hashed_file": hashed.name, "sha256": hashlib.sha256(raw).hexdigest(),
+    return {"irset": {"path": str(path), "hashed_file": hashed.name, "sha256": digest,
                       "format": fmt, "format_version": version},
             "units": kernel.units, "units_meaning": MEASURED_UNITS.get(kernel.units, kernel.units),
             "sample_rate_hz": float(kernel.sample_rate_hz), "zero_lag_samples": int(kernel.zero_lag_samples),

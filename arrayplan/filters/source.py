@@ -12,7 +12,6 @@ plan's frequencies.
 
 from __future__ import annotations
 
-import hashlib
 import json
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -23,7 +22,8 @@ from ..errors import InputError
 from ..irset import IRSet
 from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
-from ..rig import Rig, load_rig
+from ..plan_files import irset_sha256, planned_rig_file
+from ..rig import Rig
 
 __all__ = ["DesignSource", "PlanRecord", "read_plan_record", "source_from_rig", "source_from_plan",
            "irset_sha256"]
@@ -68,22 +68,6 @@ def source_from_rig(rig: Rig, *, free_field: bool = False) -> DesignSource:
     return DesignSource(kernel, tuple(rig.speakers.names), tuple(rig.mics.names), rig, rig.name,
                         {"rig": rig.source, "rig_sha256": rig.sha256,
                          "kernel": str(getattr(kernel, "name", "free field"))})
-
-
-def irset_sha256(path: str | Path) -> tuple[str, str]:
-    """SHA-256 of an IR set as a plan records it: of ``irset.json`` in a folder, or of a ``.sofa`` file.
-
-    Returns
-    -------
-    (str, str)
-        The hex digest and the name of the hashed file.
-    """
-    p = Path(path)
-    hashed = p if p.suffix.lower() == ".sofa" else (p if p.name == "irset.json" else p / "irset.json")
-    try:
-        return hashlib.sha256(hashed.read_bytes()).hexdigest(), hashed.name
-    except OSError as exc:
-        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(hashed)) from None
 
 
 @dataclass(frozen=True)
@@ -181,16 +165,10 @@ def source_from_plan(record: PlanRecord, *, irset: IRSet | None = None, irset_pa
     """
     src = str(record.folder / "weights.json")
     if not record.measured:
-        # a relative path is tried from here, then from the plan folder's parent and the folder itself
-        found = [p for p in ([Path(record.rig_source), record.folder.parent / record.rig_source,
-                              record.folder / record.rig_source] if record.rig_source else []) if p.is_file()]
-        if not found:
-            raise InputError(f"the rig file the plan was made from ({record.rig_source}) is not there", source=src,
-                             field="rig.source", fix="give the rig file instead of the plan folder")
-        rig = load_rig(found[0])
-        if record.rig_sha256 and rig.sha256 != record.rig_sha256:
-            raise InputError(f"the rig file {record.rig_source} has changed since the plan was made (hash differs)",
-                             source=src, field="rig.sha256", fix="plan again, or give the rig file itself")
+        rig, _, why = planned_rig_file({"rig": {"source": record.rig_source or "", "sha256": record.rig_sha256 or ""}},
+                                       record.folder)
+        if rig is None:
+            raise InputError(why, source=src, field="rig.source", fix="give the rig file instead of the plan folder")
         out = source_from_rig(rig, free_field=record.kernel == "free field")
         return DesignSource(out.kernel, out.speaker_names, out.mic_names, rig, rig.name,
                             {"plan": str(record.folder), "kernel": record.kernel, "rig": rig.source,

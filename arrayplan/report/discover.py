@@ -38,7 +38,7 @@ from ..fileio import check_folder
 from ..filters.check import FilterCheck
 from ..irset import MANIFEST_NAME, IRSet, read_irset
 from ..frequency import FrequencyAxis
-from ..plan_files import PlanWeights, read_plan
+from ..plan_files import PlanWeights, planned_rig_file, read_plan
 from ..planning import Plan
 from ..rig import Rig, load_rig
 
@@ -165,29 +165,14 @@ def _walk(root: Path) -> list[Path]:
     return sorted(found)
 
 
-def _candidate_rig_paths(source: str, plan_dir: Path, project: Path) -> list[Path]:
-    p = Path(source)
-    if p.is_absolute():
-        return [p]
-    return [Path.cwd() / p, project / p, plan_dir.parent / p, plan_dir / p, project / p.name]
-
-
 def _rig_for_plan(sidecar: dict, plan_dir: Path, project: Path, given: Rig | None) -> tuple[Rig | None, Path | None,
                                                                                           str]:
     want = str(sidecar.get("rig", {}).get("sha256", ""))
-    if given is not None:
-        if given.sha256 == want:
-            return given, Path(given.source), f"rig file {given.source} (geometry hash matches the plan)"
-    source = str(sidecar.get("rig", {}).get("source", ""))
-    if source and not source.startswith("<") and source != "command line":
-        for cand in _candidate_rig_paths(source, plan_dir, project):
-            if cand.is_file():
-                try:
-                    rig = load_rig(cand)
-                except InputError:
-                    continue
-                if rig.sha256 == want:
-                    return rig, cand, f"rig file {cand} (geometry hash matches the plan)"
+    if given is not None and given.sha256 == want:
+        return given, Path(given.source), f"rig file {given.source} (geometry hash matches the plan)"
+    rig, path, _ = planned_rig_file(sidecar, plan_dir, project)
+    if rig is not None:
+        return rig, path, f"rig file {path} (geometry hash matches the plan)"
     return None, None, ("element positions stored in the plan (rig file not found or changed since planning; "
                         "directivity unknown, so no field maps)")
 

@@ -9,7 +9,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..frequency import FrequencyAxis
-from ..plan_files import PlanWeights, read_plan, read_weights
+from ..plan_files import PlanWeights, planned_rig_file, read_plan, read_weights
 from ..planning import Plan, plan_rig
 from ..rig import Rig, load_rig
 
@@ -60,23 +60,6 @@ def plan_channels(plan: Plan | PlanWeights) -> tuple[np.ndarray, np.ndarray, flo
             str(side.get("kernel", "free field")))
 
 
-def _planned_rig(side: dict, plan_dir: Path) -> Rig | None:
-    """The rig file named in a plan's sidecar, when it is still there with the same geometry hash."""
-    rig_info = side.get("rig") if isinstance(side.get("rig"), dict) else {}
-    source, want = str(rig_info.get("source", "")), str(rig_info.get("sha256", ""))
-    if not source or source.startswith("<") or source == "command line":
-        return None
-    for cand in (Path(source), plan_dir.parent / source, plan_dir / source):
-        if cand.is_file():
-            try:
-                rig = load_rig(cand)
-            except InputError:
-                continue
-            if rig.sha256 == want:
-                return rig
-    return None
-
-
 def load_study_source(source: str | os.PathLike, *, rig_file: str | os.PathLike | None = None,
                       hz: list[float] | None = None, need_positions: bool = True) -> Plan | PlanWeights:
     """What a study starts from: a plan folder, or a rig file planned here in the free field.
@@ -111,7 +94,7 @@ def load_study_source(source: str | os.PathLike, *, rig_file: str | os.PathLike 
         raise InputError("frequencies come from the plan; they can be chosen only for a rig file", source=str(path))
     weights = read_weights(path)            # fails, naming the file, when the folder has no weights
     side = weights.sidecar if isinstance(weights.sidecar, dict) else {}
-    rig = load_rig(rig_file) if rig_file is not None else _planned_rig(side, path)
+    rig = load_rig(rig_file) if rig_file is not None else planned_rig_file(side, path)[0]
     if rig is None and (side.get("speaker_positions_m") is None or side.get("mic_positions_m") is None):
         if not need_positions:
             return weights
