@@ -55,11 +55,21 @@ class PlaneGrid:
 
 
 def default_plane(rig: Rig, plane: str = "xz", offset: float | None = None, resolution: int = 161,
-                  margin: float = 0.25) -> PlaneGrid:
+                  margin: float = 0.25, extent_m: tuple[float, float, float, float] | None = None) -> PlaneGrid:
     """A grid over the rig's bounding box in `plane`, grown by `margin` of its size on each side.
 
     For a rig in a room the grid spans the room's cross-section (walls
     included) instead, and the plane's offset is kept inside the room.
+
+    Parameters
+    ----------
+    margin : float
+        Growth of the bounding box on each side, as a fraction of its size
+        (0.25 by default; larger values show spill and grating lobes beyond
+        the rig).
+    extent_m : (u_min, u_max, v_min, v_max), optional
+        The grid's extent along the plane's two axes, m (for ``"xz"``: x then
+        z); replaces the bounding box when given.
     """
     if plane not in _AXES:
         raise InputError(f"plane must be one of {', '.join(_AXES)}, got {plane!r}", field="plane")
@@ -73,6 +83,14 @@ def default_plane(rig: Rig, plane: str = "xz", offset: float | None = None, reso
         if offset is not None and not 0.0 <= offset <= hi[k]:
             raise InputError(f"the plane at {offset:g} m lies outside the room (0..{hi[k]:g} m along "
                              f"{'xyz'[k]})", field="offset")
+    if extent_m is not None:
+        u0, u1, v0, v1 = (float(x) for x in extent_m)
+        if not (np.isfinite([u0, u1, v0, v1]).all() and u1 > u0 and v1 > v0):
+            raise InputError(f"must be finite with u_min < u_max and v_min < v_max, got {list(extent_m)}",
+                             field="extent_m")
+        lo[[i, j]], hi[[i, j]] = (u0, v0), (u1, v1)
+    if not (np.isfinite(margin) and margin >= 0):
+        raise InputError(f"must be a finite number >= 0, got {margin!r}", field="margin")
     if offset is None:
         offset = float(pts[:, k].mean())
     u = np.linspace(lo[i], hi[i], resolution)

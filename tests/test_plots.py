@@ -103,3 +103,42 @@ def test_coupling_levels_stop_at_the_noise_floor_of_the_plan():
     drawn = np.concatenate([ln.get_ydata() for ln in ax_db.lines if len(ln.get_ydata()) > 2])
     assert drawn.min() == -40.0
     assert any(np.allclose(ln.get_ydata(), -30.0) for ln in ax_db.lines)   # the noise floor line
+
+
+def test_rig_views_are_named_by_their_axes_and_show_both_kinds_where_they_overlap():
+    # Right-handed axes (common practice, no source): with u to the right and v up, the viewer sits on
+    # the +(u x v) side: x-y from +z, x-z from -y, y-z from +x.
+    from arrayplan.plots.rig import plot_rig
+    from arrayplan.rig import Rig
+
+    pts = np.array([[x, 0.0, 1.0] for x in (-0.1, 0.0, 0.1)])
+    rig = Rig.from_positions(pts, pts + [0.0, 2.0, 0.0], speed_of_sound=343.0)   # mics behind speakers along y
+    fig = plot_rig(rig)
+    titles = [ax.get_title() for ax in fig.axes[:3]]
+    assert titles == ["x-y plane, seen from +z", "x-z plane, seen from -y", "y-z plane, seen from +x"]
+    xz = fig.axes[1]
+    spk, mic = xz.collections[:2]
+    assert np.allclose(spk.get_offsets(), mic.get_offsets())         # the same points in the x-z view ...
+    assert mic.get_zorder() > spk.get_zorder() and len(mic.get_facecolors()) == 0   # ... open circles on top
+
+
+def test_field_extent_option_sets_the_grid_and_an_empty_extent_is_refused(tmp_path, capsys):
+    import json
+
+    from arrayplan.cli import main
+
+    rig = tmp_path / "rig.toml"
+    rig.write_text('[rig]\nname = "t"\n[medium]\nspeed_of_sound = 343.0\n'
+                   '[[speakers]]\nshape = "line"\nname = "S"\ncount = 4\nspacing = 0.1\ncenter = [0, 0, 0]\n'
+                   'direction = [1, 0, 0]\n'
+                   '[[microphones]]\nshape = "line"\nname = "M"\ncount = 4\nspacing = 0.1\ncenter = [0, 1, 0]\n'
+                   'direction = [1, 0, 0]\n')
+    out = tmp_path / "f"
+    assert main(["field", str(rig), "--freq-hz", "2000", "--plane", "xy", "--at-m", "0",
+                 "--extent-m", "-2", "2", "-0.5", "3", "--resolution", "41", "--out", str(out)]) == 0
+    doc = json.loads(next(out.glob("*.json")).read_text())
+    assert doc["u_m"][0] == -2.0 and doc["u_m"][-1] == 2.0 and doc["v_m"][0] == -0.5 and doc["v_m"][-1] == 3.0
+    assert main(["field", str(rig), "--freq-hz", "2000", "--extent-m", "2", "-2", "0", "1",
+                 "--out", str(tmp_path / "g")]) == 2
+    err = capsys.readouterr().err
+    assert "--extent-m" in err and not (tmp_path / "g").exists()

@@ -17,7 +17,7 @@ from ..kernels import rig_kernel
 from ..plots import plot_field
 from ..progress import ProgressBar
 from ..rig import Rig, load_rig
-from ._args import accept_old_spelling, add_memory_limit, count, finite_float, positive_float
+from ._args import accept_old_spelling, add_memory_limit, count, finite_float, nonnegative_float, positive_float
 from .plan import check_plan_size
 
 
@@ -31,12 +31,18 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--plane", default="xz", choices=("xy", "xz", "yz"), help="coordinate plane (default: xz)")
     p.add_argument("--at-m", dest="at", type=finite_float, metavar="M",
                    help="the plane's third coordinate, m (default: rig centre)")
+    p.add_argument("--margin", type=nonnegative_float, default=0.25,
+                   help="grow the rig's bounding box by this fraction of its size on each side, to show spill "
+                        "and grating lobes beyond the rig (default: 0.25)")
+    p.add_argument("--extent-m", type=finite_float, nargs=4, metavar=("U_MIN", "U_MAX", "V_MIN", "V_MAX"),
+                   help="the map's extent along the plane's two axes, m (for xz: x then z); replaces the "
+                        "bounding box")
     p.add_argument("--resolution", type=count(2000), default=161, help="grid points along the first axis")
     p.add_argument("--out", required=True, help="output folder")
     add_memory_limit(p)
     accept_old_spelling(p, "--freq-hz", "--freq")
     accept_old_spelling(p, "--at-m", "--at")
-    p.set_defaults(run=run)
+    p.set_defaults(run=run, parameter_flags={"extent_m": "--extent-m", "margin": "--margin", "offset": "--at-m"})
 
 
 #: Grid points computed between two progress updates.
@@ -88,12 +94,14 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"channel {args.channel} does not exist; this rig has {n_chan}", source="--channel",
                          fix=f"choose 1..{n_chan}")
     j = args.channel - 1
-    grid = default_plane(rig, args.plane, args.at, args.resolution)
+    grid = default_plane(rig, args.plane, args.at, args.resolution, margin=args.margin, extent_m=args.extent_m)
     p = _field_with_progress(rig, drive[0, :, j], args.freq, grid)
     level = 20 * np.log10(s[0, j] / s[0, 0]) if s[0, 0] > 0 else float("nan")
     stem = f"field-ch{args.channel}-{args.freq:g}Hz-{args.plane}"
     silent = _silent_in_plane(rig, drive[0], j, args.freq, grid, p)
-    title = (f"Channel {args.channel} at {args.freq:g} Hz ({abs(level):.1f} dB below the strongest)\n"
+    below = ("the strongest" if j == 0 else
+             f"{abs(level):.2f} dB below the strongest" if abs(level) < 1 else f"{abs(level):.1f} dB below the strongest")
+    title = (f"Channel {args.channel} at {args.freq:g} Hz ({below})\n"
              f"{args.plane} plane at {grid.offset:g} m")
     if silent:
         title += ": silent in this plane (a nodal plane), rounding error shown"

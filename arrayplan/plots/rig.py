@@ -9,25 +9,28 @@ from .field import draw_walls
 
 __all__ = ["plot_rig"]
 
-_VIEWS = (("top view", 0, 1, "x (m)", "y (m)"), ("side view", 0, 2, "x (m)", "z (m)"),
-          ("front view", 1, 2, "y (m)", "z (m)"))
+#: The three views, named by the axes they show (no "front" or "side": which is which depends on the rig).
+_VIEWS = (("x-y plane, seen from +z", 0, 1, "x (m)", "y (m)"), ("x-z plane, seen from -y", 0, 2, "x (m)", "z (m)"),
+          ("y-z plane, seen from +x", 1, 2, "y (m)", "z (m)"))
 
 
 def plot_rig(rig: Rig, fig: Figure | None = None, label_limit: int = 8) -> Figure:
-    """Speakers (triangles) and microphones (circles) seen from the top, the side and the front.
+    """Speakers (filled triangles) and microphones (open circles) in the three coordinate planes.
 
-    A rig in a room shows the room's walls as a black outline in each view.
-
-    Element names are written when there are at most `label_limit` of a kind.
+    Each view is named by its axes.  Microphones are drawn as open circles on
+    top of filled speaker triangles, so an element hidden behind one of the
+    other kind in a view still shows.  A rig in a room shows the room's walls
+    as a black outline in each view.  Element names are written when there
+    are at most `label_limit` of a kind.
     """
     fig = fig or Figure(figsize=(11.0, 3.9), layout="constrained")
     axes = fig.subplots(1, 3)
     for ax, (title, i, j, xl, yl) in zip(axes, _VIEWS):
-        for es, marker, colour, label in ((rig.speakers, "^", "tab:red", "speakers"),
-                                          (rig.mics, "o", "tab:blue", "microphones")):
+        for es, marker, size, face, edge, label, z in ((rig.speakers, "^", 46, "tab:red", "black", "speakers", 3),
+                                                       (rig.mics, "o", 30, "none", "tab:blue", "microphones", 4)):
             p = es.positions
-            ax.scatter(p[:, i], p[:, j], marker=marker, s=28, c=colour, label=f"{label} ({len(es)})",
-                       edgecolors="black", linewidths=0.4, zorder=3)
+            ax.scatter(p[:, i], p[:, j], marker=marker, s=size, facecolors=face, edgecolors=edge,
+                       linewidths=0.5 if face != "none" else 1.2, label=f"{label} ({len(es)})", zorder=z)
             if len(es) <= label_limit:
                 for name, row in zip(es.names, p):
                     ax.annotate(name, (row[i], row[j]), fontsize=7, xytext=(3, 3), textcoords="offset points")
