@@ -555,3 +555,17 @@ def test_plan_weights_are_mapped_lazily_and_equal_numpys_reading(project, tmp_pa
     assert np.array_equal(_mapped_npz(tmp_path / "c.npz", ("a",))["a"], np.load(tmp_path / "c.npz")["a"])
     fortran = _mapped_npz(tmp_path / "f.npz", ("a",))["a"]
     assert isinstance(fortran, np.memmap) and np.array_equal(fortran, np.load(tmp_path / "f.npz")["a"])
+
+
+def test_a_plan_folder_reported_on_its_own_is_named_by_its_folder(tmp_path):
+    # common practice, no source: a result is named by its folder, never by "." (the report's own folder)
+    from arrayplan.frequency import FrequencyAxis
+    from arrayplan.planning import plan_rig
+    from arrayplan.plan_files import write_plan
+    from arrayplan.rig import Rig
+
+    pts = np.array([[x, 0.0, 0.0] for x in (-0.1, 0.0, 0.1)])
+    rig = Rig.from_positions(pts, pts + [0.0, 1.0, 0.0], speed_of_sound=343.0)
+    write_plan(plan_rig(rig, FrequencyAxis([1000.0, 2000.0])), tmp_path / "lone-plan", figures=False)
+    html = build_report(tmp_path / "lone-plan")
+    assert "Plan: lone-plan" in html and "Plan: .<" not in html and "Plan: .:" not in html

@@ -13,11 +13,12 @@ __all__ = ["_rel", "_anchor", "_fmt", "_figures_html"]
 
 
 def _rel(path: Path, root: Path) -> str:
+    """`path` relative to the project folder; the folder's own name when it is the project folder itself."""
     try:
         rel = path.relative_to(root)
-        return "." if str(rel) == "." else str(rel)
     except ValueError:
         return str(path)
+    return (Path(root).resolve().name or str(root)) if str(rel) == "." else str(rel)
 
 
 def _anchor(kind: str, path: Path, root: Path) -> str:
