@@ -57,7 +57,7 @@ from ._version import __version__  # noqa: E402
 from .errors import ArrayplanError, InputError  # noqa: E402
 
 #: Public names imported on first use (PEP 562), so that ``import arrayplan`` and the command line's
-#: ``--help`` and ``--version`` stay light: numpy and scipy load only when a name below is used.
+#: help and version output stay light: numpy and scipy load only when a name below is used.
 _LAZY = {
     "ChannelSet": ".channels", "decompose": ".channels", "CouplingStack": ".coupling",
     "channel_field": ".field", "FrequencyAxis": ".frequency", "paraxial_estimate": ".heuristics",

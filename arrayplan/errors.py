@@ -23,7 +23,7 @@ class InputError(ArrayplanError, ValueError):
     problem : str
         What is wrong, quoting the bad value where that helps.
     source : str, optional
-        The file (or ``"--flag"``) the bad value came from.
+        The file (or the parameter, which a command shows as its own option) the bad value came from.
     field : str, optional
         Where inside the source, for example ``"speakers[2].position"``.
     fix : str, optional

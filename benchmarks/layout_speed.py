@@ -16,6 +16,8 @@ import time
 
 import numpy as np
 
+from _timing import best_of
+
 from arrayplan import FrequencyAxis, Rig, plan_rig
 from arrayplan.studies.layout import greedy_select, layout_problem, relaxation_bound, swap_refine
 
@@ -25,15 +27,6 @@ def make_rig() -> Rig:
     spk = np.column_stack([np.linspace(-2.0, 2.0, 128), rng.uniform(-0.02, 0.02, 128), rng.uniform(-0.3, 0.3, 128)])
     mic = np.column_stack([np.linspace(-1.0, 1.0, 16), np.full(16, 3.0), np.zeros(16)])
     return Rig.from_positions(spk, mic, speed_of_sound=343.2)
-
-
-def best_of(fn, repeats: int) -> tuple[float, object]:
-    times, out = [], None
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - t0)
-    return min(times), out
 
 
 def main() -> None:

@@ -19,6 +19,8 @@ import tracemalloc
 
 import numpy as np
 
+from _timing import best_of
+
 from arrayplan import FreeFieldKernel, Rig
 from arrayplan.kernels import RoomKernel
 from arrayplan.room import Room
@@ -29,15 +31,6 @@ def make_rig(n: int = 16) -> Rig:
     spk = np.column_stack([x, np.full(n, 0.6), np.full(n, 1.2)])
     mic = np.column_stack([x + 0.05, np.full(n, 3.1), np.full(n, 1.3)])
     return Rig.from_positions(spk, mic, speed_of_sound=343.2)
-
-
-def best(fn, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 def main() -> None:
@@ -53,8 +46,8 @@ def main() -> None:
                       ("log spaced 100..8000 Hz", np.geomspace(100.0, 8000.0, 256))):
         kern = RoomKernel(rig, room)
         kern.evaluate(hz[:8])                               # geometry built and cached before timing
-        t_free = best(lambda: free.evaluate(hz), max(args.repeats, 5))
-        t_room = best(lambda: kern.evaluate(hz), args.repeats)
+        t_free = best_of(lambda: free.evaluate(hz), max(args.repeats, 5))[0]
+        t_room = best_of(lambda: kern.evaluate(hz), args.repeats)[0]
         per_free = t_free / (pairs * hz.size)
         per_room = t_room / (kern.n_images * pairs * hz.size)
         print(f"{label}: {kern.n_images} images; free field {per_free * 1e9:.1f} ns per path and frequency "

@@ -21,6 +21,8 @@ import time
 
 import numpy as np
 
+from _timing import best_of
+
 from arrayplan import FrequencyAxis, FreeFieldKernel, Rig, plan_rig
 from arrayplan.studies.capacity import capacity_study
 from arrayplan.studies.tolerance import tolerance_study
@@ -33,15 +35,6 @@ def make_rig(n: int = 32) -> Rig:
     return Rig.from_positions(spk, mic, speed_of_sound=343.2)
 
 
-def best(fn, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
-
-
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--trials", type=int, default=1000)
@@ -51,10 +44,10 @@ def main() -> None:
     axis = FrequencyAxis.spaced(200.0, 4000.0, 64, "log")
     stack = FreeFieldKernel(rig).evaluate(axis.hz)
 
-    t_svd = best(lambda: np.linalg.svd(stack), args.repeats)
-    t_plan = best(lambda: plan_rig(rig, axis), args.repeats)
+    t_svd = best_of(lambda: np.linalg.svd(stack), args.repeats)[0]
+    t_plan = best_of(lambda: plan_rig(rig, axis), args.repeats)[0]
     plan = plan_rig(rig, axis)
-    t_cap = best(lambda: capacity_study(plan, [10.0, 20.0, 30.0, 40.0]), args.repeats)
+    t_cap = best_of(lambda: capacity_study(plan, [10.0, 20.0, 30.0, 40.0]), args.repeats)[0]
     t0 = time.perf_counter()
     tolerance_study(plan, position_sd_m=1e-3, gain_sd_db=0.5, phase_sd_deg=2.0, n_trials=args.trials, seed=0)
     t_tol = time.perf_counter() - t0
