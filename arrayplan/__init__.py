@@ -59,13 +59,13 @@ from .errors import ArrayplanError, InputError  # noqa: E402
 #: Public names imported on first use (PEP 562), so that ``import arrayplan`` and the command line's
 #: help and version output stay light: numpy and scipy load only when a name below is used.
 _LAZY = {
-    "ChannelSet": ".channels", "decompose": ".channels", "CouplingStack": ".coupling",
-    "channel_field": ".field", "FrequencyAxis": ".frequency", "paraxial_estimate": ".heuristics",
-    "IRSet": ".irset", "read_irset": ".irset", "write_irset": ".irset", "FreeFieldKernel": ".kernels",
-    "read_weights": ".plan_files", "write_plan": ".plan_files", "Plan": ".planning", "plan_rig": ".planning",
-    "Rig": ".rig", "load_rig": ".rig", "free_field_irset": ".simulate",
-    "MeasuredKernel": ".kernels", "RoomKernel": ".kernels", "Room": ".room",
-    "kernel_impulse_responses": ".simulate", "rig_irset": ".simulate",
+    "ChannelSet": ".channels.svd", "decompose": ".channels.svd", "CouplingStack": ".kernels.coupling",
+    "channel_field": ".channels.field", "FrequencyAxis": ".frequency", "paraxial_estimate": ".channels.heuristics",
+    "IRSet": ".formats.irset", "read_irset": ".formats.irset", "write_irset": ".formats.irset", "FreeFieldKernel": ".kernels",
+    "read_weights": ".formats.plan_folder", "write_plan": ".formats.plan_folder", "Plan": ".channels.planning", "plan_rig": ".channels.planning",
+    "Rig": ".rig", "load_rig": ".rig", "free_field_irset": ".kernels.model_irs",
+    "MeasuredKernel": ".kernels", "RoomKernel": ".kernels", "Room": ".rig.room",
+    "kernel_impulse_responses": ".kernels.model_irs", "rig_irset": ".kernels.model_irs",
     "capacity_study": ".studies.capacity", "compare_plans": ".studies.compare",
     "choose_layout": ".studies.layout", "layout_problem": ".studies.layout",
     "tolerance_study": ".studies.tolerance", "study_zones": ".studies.zones",

@@ -14,7 +14,7 @@ finished with a newline when the work completes and erased when an exception
 :meth:`ProgressBar.print_above` appear above the bar without garbling it.
 
 The bar is also a plain callable ``bar(done, total)``, the progress
-callback that :func:`arrayplan.planning.plan_rig` and others accept.
+callback that :func:`arrayplan.channels.planning.plan_rig` and others accept.
 """
 
 from __future__ import annotations

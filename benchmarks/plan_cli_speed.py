@@ -152,8 +152,8 @@ def part_cli(tmp: Path, repeats: int, track: bool) -> None:
 
 def part_topk(repeats: int) -> None:
     from arrayplan import FrequencyAxis, FreeFieldKernel, Rig
-    from arrayplan.channels import decompose
-    from arrayplan.heuristics import paraxial_estimate
+    from arrayplan.channels.svd import decompose
+    from arrayplan.channels.heuristics import paraxial_estimate
 
     spk, mic = positions(32, 32)
     rig = Rig.from_positions(spk, mic, speed_of_sound=C)
@@ -216,7 +216,7 @@ def part_memory(tmp: Path) -> None:
 
 def part_files(repeats: int) -> None:
     from arrayplan import FrequencyAxis, Rig, plan_rig
-    from arrayplan.plan_files import write_plan
+    from arrayplan.formats.plan_folder import write_plan
 
     spk, mic = positions(32, 1)
     rig = Rig.from_positions(spk, mic, speed_of_sound=C)

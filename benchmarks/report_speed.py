@@ -37,7 +37,7 @@ from matplotlib.figure import Figure
 from arrayplan import FrequencyAxis, Rig, plan_rig, write_plan, write_irset
 from arrayplan.report import build_report
 from arrayplan.report.figures import PAGE_WIDTH_IN, png_bytes
-from arrayplan.simulate import free_field_irset
+from arrayplan.kernels.model_irs import free_field_irset
 
 
 def make_project(folder: Path, n: int, n_freq: int) -> None:

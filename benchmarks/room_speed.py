@@ -23,7 +23,7 @@ from _timing import best_of
 
 from arrayplan import FreeFieldKernel, Rig
 from arrayplan.kernels import RoomKernel
-from arrayplan.room import Room
+from arrayplan.rig.room import Room
 
 
 def make_rig(n: int = 16) -> Rig:

@@ -137,7 +137,7 @@ class TestRecordFiles:
 def test_calibrated_measurement_carries_pascal_per_volt(bench_rig, tmp_path):
     from arrayplan.hardware.measure import MeasurementSettings, RigWiring, measure
     from arrayplan.hardware.simulated import SimulatedLink
-    from arrayplan.irset import read_irset
+    from arrayplan.formats.irset import read_irset
     from arrayplan.rig import load_rig
 
     rig = load_rig(bench_rig)

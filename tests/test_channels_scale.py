@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from scipy.optimize import linear_sum_assignment
 
-from arrayplan.channels import bytes_per_frequency, chunk_for_budget, decompose, decompose_stack
+from arrayplan.channels.svd import bytes_per_frequency, chunk_for_budget, decompose, decompose_stack
 from arrayplan.errors import InputError
 from arrayplan.frequency import FrequencyAxis
 from arrayplan.kernels.freefield import FreeFieldKernel
@@ -156,8 +156,8 @@ def test_chunk_from_memory_budget():
 def test_kernels_pickle_and_plan_alike_on_workers():
     import pickle
 
-    from arrayplan.directivity import Directivity  # noqa: F401  (a directional rig exercises its pickling)
-    from arrayplan.irset import IRSet
+    from arrayplan.rig.directivity import Directivity  # noqa: F401  (a directional rig exercises its pickling)
+    from arrayplan.formats.irset import IRSet
     from arrayplan.kernels.measured import MeasuredKernel
 
     rig = _panel_rig(3)

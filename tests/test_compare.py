@@ -9,7 +9,7 @@ import pytest
 
 from arrayplan.cli import main
 from arrayplan.frequency import FrequencyAxis
-from arrayplan.planning import plan_rig
+from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import Rig
 from arrayplan.studies.compare import capacity_per_frequency, compare_plans
 

@@ -5,11 +5,11 @@ import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 
-from arrayplan.channels import decompose
+from arrayplan.channels.svd import decompose
 from arrayplan.frequency import FrequencyAxis
 from arrayplan.kernels.freefield import FreeFieldKernel
 from arrayplan.rig import Rig
-from arrayplan.simulate import free_field_impulse_responses
+from arrayplan.kernels.model_irs import free_field_impulse_responses
 
 C = 343.2
 

@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 from scipy import special
 
-from arrayplan.directivity import FIRST_ORDER_ALPHA, Directivity, piston_factor
+from arrayplan.rig.directivity import FIRST_ORDER_ALPHA, Directivity, piston_factor
 from arrayplan.kernels.freefield import FreeFieldKernel
 from arrayplan.rig import Rig
 

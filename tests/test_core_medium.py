@@ -4,7 +4,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from arrayplan.medium import air_absorption_db_per_m, speed_of_sound_air, water_vapour_molar_percent
+from arrayplan.rig.medium import air_absorption_db_per_m, speed_of_sound_air, water_vapour_molar_percent
 
 
 def test_speed_of_sound_at_20c_matches_handbook():

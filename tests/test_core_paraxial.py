@@ -41,8 +41,8 @@ import numpy as np
 import pytest
 from scipy.signal.windows import dpss
 
-from arrayplan.channels import decompose
-from arrayplan.heuristics import paraxial_estimate
+from arrayplan.channels.svd import decompose
+from arrayplan.channels.heuristics import paraxial_estimate
 from arrayplan.kernels.freefield import FreeFieldKernel
 from arrayplan.rig import Rig
 

@@ -9,7 +9,7 @@ import pytest
 import soundfile as sf
 
 import arrayplan.cli as cli
-from arrayplan.irset import read_irset
+from arrayplan.formats.irset import read_irset
 from cli_flags import assert_flags_exist
 
 FS = 16000

@@ -7,7 +7,7 @@ import os
 import pytest
 
 from arrayplan.errors import InputError
-from arrayplan.fileio import atomic_path, staged_output_dir, write_text_atomic
+from arrayplan.formats.fileio import atomic_path, staged_output_dir, write_text_atomic
 
 
 def test_staged_output_creates_missing_parents(tmp_path):

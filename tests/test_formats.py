@@ -20,7 +20,7 @@ from arrayplan.formats.deconvolution_summary import (SUMMARY_FILE, SUMMARY_FORMA
                                                       write_deconvolution_summary)
 from arrayplan.formats.signal_sidecar import (SIGNAL_FORMAT, inverse_filter_sidecar, read_signal_sidecar,
                                               signal_sidecar, write_signal_sidecar)
-from arrayplan.irset import IRSet, write_irset
+from arrayplan.formats.irset import IRSet, write_irset
 
 SETTINGS = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 #: Names: any printable text (CSV quoting must carry commas and quotes); no carriage returns or controls.

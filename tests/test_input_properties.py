@@ -310,7 +310,7 @@ def test_singular_values_unchanged_by_reordering_and_moving_the_rig(seed, n_spk,
 @given(seed=st.integers(0, 2 ** 31 - 1), n_spk=st.integers(1, 6), n_mic=st.integers(1, 6),
        hz=st.floats(100.0, 4000.0))
 def test_largest_speaker_entry_of_every_drive_vector_is_real_and_positive(seed, n_spk, n_mic, hz):
-    # the phase convention stated in arrayplan.channels (the SVD leaves one phase per channel free)
+    # the phase convention stated in arrayplan.channels.svd (the SVD leaves one phase per channel free)
     rng = np.random.default_rng(seed)
     spk = rng.uniform(-0.5, 0.5, (n_spk, 3))
     mic = rng.uniform(-0.5, 0.5, (n_mic, 3)) + [0.0, 0.0, 1.5]

@@ -14,12 +14,12 @@ import sofar
 from arrayplan.cli import main
 from arrayplan.errors import InputError
 from arrayplan.frequency import FrequencyAxis
-from arrayplan.irset import IRSet, read_irset, write_irset
-from arrayplan.irset_sofa import read_irset_sofa, write_irset_sofa
-from arrayplan.plan_files import write_plan
-from arrayplan.planning import plan_rig
+from arrayplan.formats.irset import IRSet, read_irset, write_irset
+from arrayplan.formats.irset_sofa import read_irset_sofa, write_irset_sofa
+from arrayplan.formats.plan_folder import write_plan
+from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import Rig
-from arrayplan.simulate import free_field_irset
+from arrayplan.kernels.model_irs import free_field_irset
 from conftest import assert_singular_values_match_free_field
 
 FS = 48000.0

@@ -6,11 +6,11 @@ import json
 
 import numpy as np
 
-from arrayplan.directivity import Directivity
+from arrayplan.rig.directivity import Directivity
 from arrayplan.frequency import FrequencyAxis
 from arrayplan.kernels.freefield import FreeFieldKernel
-from arrayplan.plan_files import write_plan
-from arrayplan.planning import plan_rig
+from arrayplan.formats.plan_folder import write_plan
+from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import Rig, load_rig
 
 C = 343.0

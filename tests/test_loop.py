@@ -16,7 +16,7 @@ import pytest
 import soundfile as sf
 
 from arrayplan.cli import main
-from arrayplan.irset import IRSet, write_irset
+from arrayplan.formats.irset import IRSet, write_irset
 from arrayplan.rig import load_rig
 
 FS = 16000.0

@@ -46,7 +46,7 @@ def _sweep_zero_lag_response(n, whole=False):
 
 
 def _check_unit_impulses(folder):
-    from arrayplan.irset import read_irset
+    from arrayplan.formats.irset import read_irset
 
     irs = read_irset(folder)
     g, n0 = _sweep_zero_lag_response(irs.n_samples)
@@ -178,7 +178,7 @@ def test_full_disk_keeps_finished_takes_and_writes_nothing_half(bench_rig, tmp_p
         assert f"the {len(expect_kept)} finished take(s) are intact" in done.stderr
         assert sorted(p.name for p in (out / "takes").iterdir()) == expect_kept
         for name in expect_kept:
-            from arrayplan.irset import read_irset
+            from arrayplan.formats.irset import read_irset
 
             assert json.loads((out / "takes" / name / "take.json").read_text())["status"] == "ok"
             assert read_irset(out / "takes" / name / "irset").n_spk == 1

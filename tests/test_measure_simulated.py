@@ -13,7 +13,7 @@ from scipy.signal import fftconvolve
 from arrayplan.errors import DeviceError, InputError
 from arrayplan.hardware.measure import MeasurementSettings, RigWiring, completed_takes, measure
 from arrayplan.hardware.simulated import SimulatedLink, apply_nonlinearity
-from arrayplan.irset import IRSet, read_irset
+from arrayplan.formats.irset import IRSet, read_irset
 from arrayplan.rig import load_rig
 from arrayplan.signals.sweeps import make_sweep
 
@@ -127,7 +127,7 @@ class TestTakeChecks:
         assert warned == [] and all(t.status == "ok" for t in summary.takes)
 
     def test_clipping_at_the_input(self, rig, tmp_path):
-        from arrayplan.simulate import free_field_irset
+        from arrayplan.kernels.model_irs import free_field_irset
 
         loud = free_field_irset(rig, FS, N_IR)
         loud.data *= 100.0
@@ -148,7 +148,7 @@ class TestTakeChecks:
         assert all("peak-to-noise below 40 dB" in w for w in warned)
 
     def test_a_speaker_on_no_microphone(self, rig, tmp_path):
-        from arrayplan.simulate import free_field_irset
+        from arrayplan.kernels.model_irs import free_field_irset
 
         cut = free_field_irset(rig, FS, N_IR)
         cut.data[:, :, 1] = 0.0  # S2's cable is unplugged

@@ -5,13 +5,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from arrayplan.channels import decompose_stack
+from arrayplan.channels.svd import decompose_stack
 from arrayplan.errors import InputError
-from arrayplan.irset import IRSet, read_irset, write_irset
+from arrayplan.formats.irset import IRSet, read_irset, write_irset
 from arrayplan.kernels.freefield import FreeFieldKernel
 from arrayplan.kernels.measured import MeasuredKernel, fade_out_window
 from arrayplan.rig import Rig
-from arrayplan.simulate import free_field_irset
+from arrayplan.kernels.model_irs import free_field_irset
 from conftest import assert_singular_values_match_free_field
 
 FS = 48000.0

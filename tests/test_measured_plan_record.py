@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from arrayplan.cli import main
-from arrayplan.irset import IRSet, write_irset
+from arrayplan.formats.irset import IRSet, write_irset
 
 FS = 16000.0
 

@@ -20,7 +20,7 @@ import numpy as np
 import pytest
 
 from arrayplan.errors import InputError
-from arrayplan.fileio import (CHECKSUM_FILE, PUBLISH_PAUSE_ENV, atomic_paths, check_folder, clean_stale_staging,
+from arrayplan.formats.fileio import (CHECKSUM_FILE, PUBLISH_PAUSE_ENV, atomic_paths, check_folder, clean_stale_staging,
                               staged_output_dir)
 
 from conftest import ARRAYPLAN_COMMAND, BENCH_RIG_TOML
@@ -132,7 +132,7 @@ def test_plan_rerun_drops_old_figures_and_a_mixed_plan_is_refused_by_verify_and_
     _sha256sum_ok(a)
     assert _main(capsys, ["plan", str(far), "--out", str(b), *PLAN_ARGS])[0] == 0
     shutil.copy(b / "weights.npz", a / "weights.npz")          # the old per-file publish could leave this mix
-    from arrayplan.plan_files import read_weights
+    from arrayplan.formats.plan_folder import read_weights
 
     with pytest.raises(InputError, match="differs") as err:
         read_weights(a)
@@ -175,7 +175,7 @@ def test_filter_set_with_a_stale_channel_file_is_refused_by_discovery(tmp_path):
 
 
 def test_an_ir_set_of_two_runs_is_refused(tmp_path):
-    from arrayplan.irset import IRSet, read_irset, write_irset
+    from arrayplan.formats.irset import IRSet, read_irset, write_irset
 
     rng = np.random.default_rng(1)
     sets = [IRSet(rng.normal(0, 0.1, (64, 2, 2)), 8000.0, ["s1", "s2"], ["m1", "m2"]) for _ in range(2)]
@@ -257,7 +257,7 @@ def test_a_run_killed_while_publishing_leaves_no_mix_and_the_next_run_tidies(rig
         child.wait()
     assert not out.exists()                                    # never a mix: the folder is either whole or absent
     assert any(n.startswith(".plan.staging.") for n in _hidden(tmp_path))
-    from arrayplan.plan_files import read_weights
+    from arrayplan.formats.plan_folder import read_weights
 
     with pytest.raises(InputError, match="missing"):
         read_weights(out)
@@ -281,7 +281,7 @@ def test_two_runs_into_one_folder_end_with_one_complete_folder(rigs, tmp_path, c
         assert c.returncode == 0, err
     assert _hidden(tmp_path) == []
     _sha256sum_ok(out)
-    from arrayplan.plan_files import read_weights
+    from arrayplan.formats.plan_folder import read_weights
 
     w = read_weights(out)
     far = np.allclose(np.asarray(w.sidecar["mic_positions_m"])[:, 1], 2.5)

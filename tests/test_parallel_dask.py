@@ -4,7 +4,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from arrayplan.channels import decompose
+from arrayplan.channels.svd import decompose
 from arrayplan.errors import InputError
 from arrayplan.frequency import FrequencyAxis
 from arrayplan.kernels.freefield import FreeFieldKernel

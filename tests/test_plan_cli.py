@@ -288,7 +288,7 @@ def test_truncated_plan_says_so_everywhere(tmp_path, capsys):
 
 def test_long_weight_table_above_the_limit_only_on_request(tmp_path, capsys, monkeypatch):
     import arrayplan.commands.plan as plan_command
-    import arrayplan.plan_files as plan_files
+    import arrayplan.formats.plan_folder as plan_files
     rig = tmp_path / "rig.toml"
     rig.write_text(SMALL_RIG)
     monkeypatch.setattr(plan_files, "LONG_TABLE_MAX_ROWS", 10)      # the small rig's 72 rows exceed it

@@ -9,7 +9,7 @@ matplotlib.use("Agg")
 import numpy as np
 from matplotlib.figure import Figure
 
-from arrayplan.irset import IRSet
+from arrayplan.formats.irset import IRSet
 from arrayplan.plots import plot_ir_overview
 from arrayplan.plots._axes import frequency_axis
 from arrayplan.plots.irs import MAX_ROWS, _max_pool
@@ -63,8 +63,8 @@ def test_field_panel_of_a_channel_silent_in_the_plane_is_not_blown_up():
     # Two speakers mirrored about z = 0: the antisymmetric channel (a dipole pair) has the plane
     # z = 0 as a nodal plane, where its pressure is zero (superposition of equal and opposite
     # sources; common practice, no source).  Its panel must not show rounding noise at 0 dB.
-    from arrayplan.field import channel_field, default_plane
-    from arrayplan.planning import plan_rig
+    from arrayplan.channels.field import channel_field, default_plane
+    from arrayplan.channels.planning import plan_rig
     from arrayplan.plots import plot_field_panels
     from arrayplan.rig import Rig
     from arrayplan.frequency import FrequencyAxis
@@ -90,7 +90,7 @@ def test_coupling_levels_stop_at_the_noise_floor_of_the_plan():
     import matplotlib
     matplotlib.use("Agg")
     from arrayplan.frequency import FrequencyAxis
-    from arrayplan.planning import plan_rig
+    from arrayplan.channels.planning import plan_rig
     from arrayplan.plots.channels import plot_couplings
     from arrayplan.rig import Rig
 

@@ -22,7 +22,7 @@ from matplotlib.text import Text
 from PIL import Image
 
 from arrayplan.cli import main
-from arrayplan.plan_files import read_plan
+from arrayplan.formats.plan_folder import read_plan
 from arrayplan.report import build_report, find_results
 from arrayplan.report.figures import (MIN_FONT_PT, filter_figures, irset_figures, plan_figures, report_style,
                                       rig_figures, verification_figures)
@@ -338,8 +338,8 @@ def test_degenerate_channels_of_a_symmetric_rig_are_named(tmp_path):
     # come in pairs with equal singular values (the two-dimensional representations of the
     # group of rotations by 90 degrees; M. Tinkham, Group Theory and Quantum Mechanics, 1964).
     from arrayplan.frequency import FrequencyAxis
-    from arrayplan.planning import plan_rig
-    from arrayplan.plan_files import write_plan
+    from arrayplan.channels.planning import plan_rig
+    from arrayplan.formats.plan_folder import write_plan
     from arrayplan.report.build import degenerate_pairs
     from arrayplan.rig import Rig
 
@@ -362,8 +362,8 @@ def test_near_degenerate_pair_of_two_symmetric_zones_is_flagged(tmp_path):
     # apart the cross coupling b is small and the two channels lie well within 1 dB: the pair
     # that mixes first under placement errors.  a and b are computed here from exp(-jkr)/(4 pi r).
     from arrayplan.frequency import FrequencyAxis
-    from arrayplan.planning import plan_rig
-    from arrayplan.plan_files import write_plan
+    from arrayplan.channels.planning import plan_rig
+    from arrayplan.formats.plan_folder import write_plan
     from arrayplan.report.build import degenerate_pairs
     from arrayplan.rig import Rig
 
@@ -520,7 +520,7 @@ def test_drive_effort_figure_and_a_channel_20_db_down():
     # 20 dB = a factor 10 in amplitude (definition of the decibel): a channel with a tenth of the
     # strongest one's singular value needs 20 dB more drive for the same output.
     from arrayplan.frequency import FrequencyAxis
-    from arrayplan.planning import plan_rig
+    from arrayplan.channels.planning import plan_rig
     from arrayplan.plots.effort import drive_effort_db, plot_drive_effort
     from arrayplan.rig import Rig
 
@@ -560,8 +560,8 @@ def test_plan_weights_are_mapped_lazily_and_equal_numpys_reading(project, tmp_pa
 def test_a_plan_folder_reported_on_its_own_is_named_by_its_folder(tmp_path):
     # common practice, no source: a result is named by its folder, never by "." (the report's own folder)
     from arrayplan.frequency import FrequencyAxis
-    from arrayplan.planning import plan_rig
-    from arrayplan.plan_files import write_plan
+    from arrayplan.channels.planning import plan_rig
+    from arrayplan.formats.plan_folder import write_plan
     from arrayplan.rig import Rig
 
     pts = np.array([[x, 0.0, 0.0] for x in (-0.1, 0.0, 0.1)])

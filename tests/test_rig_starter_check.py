@@ -10,10 +10,10 @@ from scipy.spatial import cKDTree
 
 from arrayplan.cli import main
 from arrayplan.errors import InputError
-from arrayplan.planning import plan_rig
+from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import load_rig
 from arrayplan.rigcheck import check_rig_file, count_by_severity
-from arrayplan.starter import LAYOUTS, write_starter_rig
+from arrayplan.rig.starter import LAYOUTS, write_starter_rig
 
 DEMO = Path(__file__).resolve().parents[1] / "demos" / "workshop-link" / "rig.toml"
 

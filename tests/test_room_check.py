@@ -11,7 +11,7 @@ import pytest
 from arrayplan.cli import main
 from arrayplan.rig import load_rig
 from arrayplan.rigcheck import check_rig_file
-from arrayplan.room import Room, eyring_t60_s, sabine_t60_s, schroeder_frequency_hz
+from arrayplan.rig.room import Room, eyring_t60_s, sabine_t60_s, schroeder_frequency_hz
 
 RIG = """\
 [rig]

@@ -11,7 +11,7 @@ import pytest
 from arrayplan.cli import main
 from arrayplan.errors import InputError
 from arrayplan.rig import load_rig
-from arrayplan.room import image_count
+from arrayplan.rig.room import image_count
 
 from conftest import ARRAYPLAN_COMMAND
 

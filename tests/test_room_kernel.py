@@ -8,12 +8,12 @@ import numpy as np
 import pytest
 from scipy.signal import find_peaks
 
-from arrayplan.directivity import Directivity
+from arrayplan.rig.directivity import Directivity
 from arrayplan.kernels.freefield import FreeFieldKernel
 from arrayplan.kernels.room import RoomKernel, image_lattice
-from arrayplan.medium import Medium
+from arrayplan.rig.medium import Medium
 from arrayplan.rig import Rig
-from arrayplan.room import BAND_CENTRES_HZ, Room, image_count
+from arrayplan.rig.room import BAND_CENTRES_HZ, Room, image_count
 
 C = 343.0
 
@@ -182,7 +182,7 @@ def test_field_over_a_room_plane_is_direct_plus_floor_image():
     # Field map in a room with only a rigid floor: at each grid point the direct path and the floor
     # image (image method, exact geometry; /work/shared/REFERENCE-VALUES.md, "Rigid reflecting floor"),
     # computed here independently.  The default plane spans the room's cross-section.
-    from arrayplan.field import channel_field, default_plane
+    from arrayplan.channels.field import channel_field, default_plane
 
     s = np.array([1.0, 2.0, 0.8])
     rig = _rig([s], [[3.0, 2.0, 1.4]])

@@ -111,7 +111,7 @@ def test_a_resumed_measurement_equals_an_uninterrupted_one(bench_rig, tmp_path, 
     import soundfile as sf
 
     from arrayplan.hardware.measure import MeasurementSettings
-    from arrayplan.irset import read_irset
+    from arrayplan.formats.irset import read_irset
     from arrayplan.rig import load_rig
     from test_measure_simulated import _resumed_and_uninterrupted
 

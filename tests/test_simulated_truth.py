@@ -8,7 +8,7 @@ import pytest
 from arrayplan.cli import main
 from arrayplan.errors import InputError
 from arrayplan.rig import Rig
-from arrayplan.simulate import TruthErrors, truth_irset
+from arrayplan.kernels.model_irs import TruthErrors, truth_irset
 
 FS = 16000.0
 C = 343.0

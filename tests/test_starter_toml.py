@@ -7,7 +7,7 @@ import tomllib
 import pytest
 import tomlkit
 
-from arrayplan.starter import LAYOUTS, starter_rig_text
+from arrayplan.rig.starter import LAYOUTS, starter_rig_text
 
 
 @pytest.mark.parametrize("layout", sorted(LAYOUTS))

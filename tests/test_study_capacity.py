@@ -10,8 +10,8 @@ from scipy.optimize import minimize
 
 from arrayplan.cli import main
 from arrayplan.frequency import FrequencyAxis
-from arrayplan.plan_files import PlanWeights, write_plan
-from arrayplan.planning import plan_rig
+from arrayplan.formats.plan_folder import PlanWeights, write_plan
+from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import Rig
 from arrayplan.studies.capacity import band_widths_hz, capacity_study, water_fill
 from arrayplan.studies.files import read_capacity_study

@@ -273,7 +273,7 @@ def test_a_rig_in_a_room_is_scored_in_the_room():
     # the walls of the box [0, L], each exp(-jkr) / (4 pi r) times beta = sqrt(1 - alpha), written here
     # with numpy (J. B. Allen and D. A. Berkley, JASA 65(4), 1979); log-det as in _capacity (Telatar 1999)
     from dataclasses import replace
-    from arrayplan.room import Room
+    from arrayplan.rig.room import Room
 
     cand = np.array([[0.6, 0.5, 1.0], [1.2, 0.4, 1.3], [1.9, 0.6, 0.9], [2.5, 0.5, 1.1], [1.5, 0.9, 1.6]])
     mic = np.array([[1.0, 2.4, 1.2], [1.6, 2.5, 1.1], [2.2, 2.3, 1.3]])

@@ -9,8 +9,8 @@ import pytest
 
 from arrayplan.cli import main
 from arrayplan.frequency import FrequencyAxis
-from arrayplan.plan_files import write_plan
-from arrayplan.planning import plan_rig
+from arrayplan.formats.plan_folder import write_plan
+from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import Rig
 from arrayplan.studies.tolerance import tolerance_problem, tolerance_study, white_noise_gain_db
 from arrayplan.studies.trials import perturbed_couplings
@@ -266,7 +266,7 @@ def test_a_room_plan_perturbs_the_room():
     # across the walls of the box [0, L], each exp(-jkr) / (4 pi r) times beta = sqrt(1 - alpha), written
     # here with numpy (J. B. Allen and D. A. Berkley, JASA 65(4), 1979); and the planned weights see it
     from dataclasses import replace
-    from arrayplan.room import Room
+    from arrayplan.rig.room import Room
 
     spk = np.array([[1.0, 0.8, 1.1], [1.6, 0.8, 1.2], [2.2, 0.9, 1.0]])
     mic = np.array([[1.2, 2.5, 1.3], [1.9, 2.6, 1.2], [2.4, 2.4, 1.4], [1.5, 2.2, 1.0]])

@@ -15,7 +15,7 @@ from arrayplan.frequency import FrequencyAxis
 from arrayplan.rig import load_rig
 from arrayplan.studies.zones import (ZoneTarget, contrast_db, contrast_weights, effort_db, matching_weights,
                                      perturbed_contrast, study_zones)
-from arrayplan.zones import select_zones
+from arrayplan.rig.zones import select_zones
 
 DEMO = Path(__file__).resolve().parents[1] / "demos" / "two-seats" / "rig.toml"
 
@@ -181,8 +181,8 @@ def test_filters_too_short_for_the_delay_spread_to_the_zone_points_are_refused(t
 
 
 def test_measured_responses_give_the_free_field_design_when_they_are_the_free_field(tmp_path, capsys):
-    from arrayplan.irset import write_irset
-    from arrayplan.simulate import free_field_irset
+    from arrayplan.formats.irset import write_irset
+    from arrayplan.kernels.model_irs import free_field_irset
 
     text = DEMO.read_text() + '\n[[zones]]\nname = "mics-A"\nrole = "bright"\nmembers = ["A1", "A2"]\n'
     rig_path = tmp_path / "rig.toml"

@@ -6,7 +6,7 @@ import pytest
 
 from arrayplan.errors import InputError
 from arrayplan.rigcheck import check_rig_file
-from arrayplan.tomlfields import FieldReader
+from arrayplan.formats.tomlfields import FieldReader
 
 TABLE = {"gain_db": "loud", "count": 2.5, "label": "", "flag": 1, "size": [1.0, 2.0, 3.0]}
 

@@ -7,7 +7,7 @@ import pytest
 import soundfile as sf
 
 from arrayplan import safety
-from arrayplan.audiofiles import read_audio
+from arrayplan.formats.audiofiles import read_audio
 from arrayplan.errors import InputError
 from arrayplan.hardware import calibration
 from arrayplan.units import P_REF_PA, dbu_to_vrms, pressure_from_spl, spl_from_pressure

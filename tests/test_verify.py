@@ -12,14 +12,14 @@ import soundfile as sf
 
 from arrayplan.cli import main
 from arrayplan.frequency import FrequencyAxis
-from arrayplan.irset import IRSet, read_irset, write_irset
+from arrayplan.formats.irset import IRSet, read_irset, write_irset
 from arrayplan.kernels.measured import MeasuredKernel
-from arrayplan.plan_files import read_weights, write_plan
+from arrayplan.formats.plan_folder import read_weights, write_plan
 from arrayplan.plots.verify import plot_singular_values
-from arrayplan.planning import plan_rig
+from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import Rig
-from arrayplan.simulate import free_field_irset
-from arrayplan.verify import verify_plan
+from arrayplan.kernels.model_irs import free_field_irset
+from arrayplan.verification.channels import verify_plan
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402

@@ -9,10 +9,10 @@ import matplotlib
 import numpy as np
 
 from ..errors import InputError
-from ..fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..frequency import FrequencyAxis
-from ..planning import plan_rig
-from ..plan_files import read_plan
+from ..channels.planning import plan_rig
+from ..formats.plan_folder import read_plan
 from ..progress import ProgressBar
 from ..rig import load_rig
 from ._args import add_frequencies_option

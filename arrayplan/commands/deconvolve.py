@@ -12,7 +12,7 @@ match them to the plan; the recordings must then hold the rig's speakers and
 microphones, in rig order.
 
 The output folder is an IR set (``irset.json`` and one WAV per speaker, see
-:mod:`arrayplan.irset`) holding the linear impulse responses (each starts
+:mod:`arrayplan.formats.irset`) holding the linear impulse responses (each starts
 ``--pre-ms`` before zero lag, to keep the pre-ringing of the measurement
 pulse; the set records the index of zero lag), plus
 ``harmonic-N/`` IR sets with the harmonic distortion products of an

@@ -9,10 +9,10 @@ from pathlib import Path
 import matplotlib
 import numpy as np
 
-from ..channels import decompose_stack
+from ..channels.svd import decompose_stack
 from ..errors import InputError
-from ..field import PlaneGrid, channel_field, default_plane
-from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic
+from ..channels.field import PlaneGrid, channel_field, default_plane
+from ..formats.fileio import atomic_path, provenance, staged_output_dir, write_json_atomic
 from ..kernels import rig_kernel
 from ..plots import plot_field
 from ..progress import ProgressBar

@@ -13,7 +13,7 @@ from ..errors import InputError
 from ..filters import check_filters, design_filters, validate_request, write_filters
 from ..filters.source import DesignSource, read_plan_record, source_from_plan, source_from_rig
 from ..filters.taps_search import MAX_AUTO_TAPS, TapsTrial, first_taps, search_taps
-from ..irset import read_irset
+from ..formats.irset import read_irset
 from ..progress import ProgressBar
 from ..rig import load_rig
 from ._args import (accept_old_spelling, add_measured_kernel_options, add_memory_limit, count, finite_float,

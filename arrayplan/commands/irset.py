@@ -8,8 +8,8 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputError
-from ..irset import IRSet, read_irset, write_irset
-from ..irset_sofa import write_irset_sofa
+from ..formats.irset import IRSet, read_irset, write_irset
+from ..formats.irset_sofa import write_irset_sofa
 
 #: Largest table ``show`` prints (speakers across, microphones down).
 MAX_TABLE_SPEAKERS = 6

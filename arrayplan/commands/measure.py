@@ -264,7 +264,7 @@ def _warn_above_cap(args: argparse.Namespace, sweep: Any) -> None:
 
 def _truth_errors(args: argparse.Namespace):
     """The simulated truth's errors from the --sim-* options, each checked."""
-    from ..simulate import TruthErrors
+    from ..kernels.model_irs import TruthErrors
 
     for flag, value in (("--sim-placement-error-mm", args.sim_placement_error_mm),
                         ("--sim-gain-error-db", args.sim_gain_error_db),

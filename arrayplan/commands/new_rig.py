@@ -8,7 +8,7 @@ from ..errors import InputError
 from ._args import accept_old_spelling, count, float_in, positive_float
 from ..rig import load_rig
 from ..rigcheck import check_rig_file
-from ..starter import LAYOUTS, write_starter_rig
+from ..rig.starter import LAYOUTS, write_starter_rig
 
 
 def _count_or_grid(text: str) -> int | str:

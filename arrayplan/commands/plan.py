@@ -10,17 +10,17 @@ import matplotlib
 import numpy as np
 
 from ..errors import InputError
-from ..irset import IRSet, read_irset
+from ..formats.irset import IRSet, read_irset
 from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
 from ._args import (accept_old_spelling, add_frequencies_option, add_measured_kernel_options, add_memory_limit,
                     count, float_in, measured_kernel_from_args, positive_float)
 from ..frequency import FrequencyAxis
-from ..medium import speed_of_sound_air
-from ..channels import chunk_for_budget
-from ..planning import plan_rig
+from ..rig.medium import speed_of_sound_air
+from ..channels.svd import chunk_for_budget
+from ..channels.planning import plan_rig
 from ..parallel import SCHEDULER_ENV, check_scheduler, resolve_scheduler
-from ..plan_files import LONG_TABLE_MAX_ROWS, long_table_rows, measurement_record, summary_lines, write_plan
+from ..formats.plan_folder import LONG_TABLE_MAX_ROWS, long_table_rows, measurement_record, summary_lines, write_plan
 from ..progress import ProgressBar
 from ..rig import Rig, load_rig, read_positions_csv
 

@@ -28,7 +28,7 @@ from ._args import (MAX_CHANNEL_NUMBER, FlatList, accept_old_spelling, add_expos
 from ._args import csv_names as _csv_names
 from ..limits import check_memory
 from ..errors import InputError
-from ..fileio import provenance
+from ..formats.fileio import provenance
 from ..formats.signal_sidecar import inverse_filter_sidecar, signal_sidecar
 from ..safety import (CAUTION_NOTE, DEFAULT_MAX_DBA, check_exposure, estimate_exposure, format_exposure,
                       print_caution)

@@ -12,7 +12,7 @@ from ..frequency import FrequencyAxis
 from ..progress import ProgressBar
 from ..rig import load_rig
 from ..safety import CAUTION_NOTE
-from ..zones import select_zones
+from ..rig.zones import select_zones
 from ._args import accept_old_spelling, add_frequencies_option, add_measured_kernel_options, csv_names
 
 
@@ -131,7 +131,7 @@ def run(args: argparse.Namespace) -> int:
                              "microphones", source="--irset", fix="use zones of microphones (members = [...])")
         rig, kernel = _measured_kernel(args, rig)
         if args.filters:
-            from ..irset import read_irset
+            from ..formats.irset import read_irset
             irs = read_irset(args.irset)
             if abs(irs.sample_rate_hz - args.rate) > 1e-9:
                 raise InputError(f"the IR set's rate {irs.sample_rate_hz:g} Hz differs from the filter rate "

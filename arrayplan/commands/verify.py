@@ -12,12 +12,12 @@ import numpy as np
 
 from ..errors import InputError
 from ..filters.design import strong_ranges_hz
-from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
-from ..irset import read_irset
+from ..formats.fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..formats.irset import read_irset
 from ._args import MAX_CHANNEL_NUMBER, add_measured_kernel_options, finite_float, measured_kernel_from_args
-from ..plan_files import read_weights
+from ..formats.plan_folder import read_weights
 from ..progress import ProgressBar
-from ..verify import GAIN_REFERENCES, Verification, lost_bands_hz, verify_plan
+from ..verification.channels import GAIN_REFERENCES, Verification, lost_bands_hz, verify_plan
 
 EXIT_STATUS = ("exit status: 0 when every wanted channel passes, 1 when some fail, 2 on bad input (nothing is "
                "written then)")
@@ -162,7 +162,7 @@ def _plan_result(args: argparse.Namespace, irs, kernel) -> tuple[Verification, s
 def _filters_result(args: argparse.Namespace, irs, kernel) -> tuple[Verification, str, dict]:
     """Verify a filter folder's WAV taps on a fine grid over their band."""
     from ..filters.files import read_filter_set
-    from ..verify_filters import verify_filters
+    from ..verification.filters import verify_filters
 
     if args.channels is not None:
         raise InputError("a filter folder is verified on the channels it has filters for", source="--channels",

@@ -8,7 +8,7 @@ Fourier transforms exactly, and the rig is a kernel's coupling G(f) at
 every bin (free field, room or measured: the same kernel the filters were
 designed on, or another one to check them against), the spectrum of the
 kernel's band-limited impulse responses as long as the grid (for a free
-field, :func:`arrayplan.simulate.free_field_impulse_responses`); so
+field, :func:`arrayplan.kernels.model_irs.free_field_impulse_responses`); so
 ``T = Cb^T G D`` at each bin is the FFT of the linear convolution of
 filters and rig (:func:`end_to_end_responses` computes the
 same in the time domain from given responses).
@@ -33,7 +33,7 @@ channel j the check reports
   channel (at the nearest design bin), the same rule that chose them; a
   channel strong only at the top of the band is not judged at its foot,
   where the plan itself says it carries nothing (as in
-  :mod:`arrayplan.verify`);
+  :mod:`arrayplan.verification.channels`);
 * its latency, the peak of t_jj in samples, with t_jj taken from its
   spectrum over the filters' band and transitions (where the design window
   is above zero; outside it the filters hold only the time window's
@@ -50,7 +50,7 @@ import numpy as np
 import scipy.fft as sp_fft
 from scipy.signal import fftconvolve
 
-from ..coupling import Kernel
+from ..kernels.coupling import Kernel
 from ..kernels import rig_kernel
 from ..kernels.freefield import FreeFieldKernel
 from ..rig import Rig
@@ -283,7 +283,7 @@ def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarr
 def free_field_at(rig: Rig, n_fft: int, sample_rate_hz: float) -> Callable[[np.ndarray], np.ndarray]:
     """``rig_at(bins)`` for :func:`channel_transfer`: the free-field coupling at bins of an `n_fft` grid.
 
-    The same spectrum as :func:`arrayplan.simulate.free_field_impulse_responses`
+    The same spectrum as :func:`arrayplan.kernels.model_irs.free_field_impulse_responses`
     of `n_fft` samples: the kernel at every bin, its real limit at DC, zero
     at the Nyquist bin of an even grid.
     """

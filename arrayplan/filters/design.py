@@ -42,11 +42,11 @@ from typing import Callable
 import numpy as np
 from scipy.signal.windows import tukey
 
-from ..channels import ChannelSet, decompose
-from ..coupling import Kernel
+from ..channels.svd import ChannelSet, decompose
+from ..kernels.coupling import Kernel
 from ..errors import InputError
 from ..frequency import FrequencyAxis
-from ..irset import IRSet
+from ..formats.irset import IRSet
 from ..kernels import rig_kernel
 from ..rig import Rig
 

@@ -33,7 +33,7 @@ import numpy as np
 import soundfile as sf
 
 from ..errors import InputError
-from ..fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..rig import Rig
 from ..safety import CAUTION_NOTE
 from .check import FilterCheck, plot_crosstalk
@@ -184,7 +184,7 @@ def _matrix_text(source: DesignSource, filters: FilterSet) -> str:
 def _write_responses(source: DesignSource, filters: FilterSet, stage: Path) -> list[str]:
     import matplotlib.pyplot as plt
 
-    from ..fileio import atomic_path
+    from ..formats.fileio import atomic_path
     from ..plots.filter_responses import plot_filter_responses
 
     names = []

@@ -17,12 +17,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from ..coupling import Kernel
+from ..kernels.coupling import Kernel
 from ..errors import InputError
-from ..irset import IRSet
+from ..formats.irset import IRSet
 from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
-from ..plan_files import irset_sha256, planned_rig_file
+from ..formats.plan_folder import irset_sha256, planned_rig_file
 from ..rig import Rig
 
 __all__ = ["DesignSource", "PlanRecord", "read_plan_record", "source_from_rig", "source_from_plan",

@@ -14,8 +14,8 @@ from typing import Callable
 
 import numpy as np
 
-from ..coupling import Kernel
-from ..irset import IRSet
+from ..kernels.coupling import Kernel
+from ..formats.irset import IRSet
 from ..rig import Rig
 from .check import FilterCheck, check_filters
 from .design import FilterSet, design_filters, minimum_taps

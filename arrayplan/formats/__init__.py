@@ -4,6 +4,11 @@ Every file arrayplan writes for another program (or for a later arrayplan
 command) belongs to one module that owns its name, its version and its
 schema, so that a format changes in one place.  Here so far:
 
+``plan_folder``
+    A plan's folder (``arrayplan plan``): manifest, summary, weights.
+``irset`` and ``irset_sofa``
+    Impulse-response sets, as a folder of WAV + JSON manifest and as an
+    AES69 (SOFA) file through sofar.
 ``signal_sidecar``
     The JSON beside every test-signal WAV (``arrayplan signal``): format
     ``arrayplan-signal``; read back by ``arrayplan deconvolve``.
@@ -12,10 +17,12 @@ schema, so that a format changes in one place.  Here so far:
     deconvolve``), versioned through the ``summary`` block of that set's
     manifest: format ``arrayplan-deconvolution-summary``.
 
-Still elsewhere, to move here: the plan folder (:mod:`arrayplan.plan_files`),
-the filter set (:mod:`arrayplan.filters.files`), the IR set
-(:mod:`arrayplan.irset`) and its AES69 (SOFA) form
-(:mod:`arrayplan.irset_sofa`), the verification folder (written by
-``arrayplan verify``, read by :mod:`arrayplan.report.discover`) and the
-calibration record (:mod:`arrayplan.hardware.calibration`).
+The layers they stand on: ``fileio`` (atomic writes, whole folders
+published by one rename, SHA256SUMS, provenance), ``audiofiles`` (reading
+audio with one kind of error) and ``tomlfields`` (typed TOML fields).
+
+Still elsewhere, to move here: the filter set (:mod:`arrayplan.filters.files`),
+the verification folder (written by ``arrayplan verify``, read by
+:mod:`arrayplan.report.discover`) and the calibration record
+(:mod:`arrayplan.hardware.calibration_record`).
 """

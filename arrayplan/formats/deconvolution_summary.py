@@ -38,7 +38,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from ..errors import InputError
-from ..fileio import write_text_atomic
+from .fileio import write_text_atomic
 
 __all__ = ["SUMMARY_FORMAT", "SUMMARY_FORMAT_VERSION", "SUMMARY_FILE", "DeconvolutionSummary", "summarise",
            "summary_record", "write_deconvolution_summary", "read_deconvolution_summary"]

@@ -24,7 +24,7 @@ probe it was made from.  Schema (JSON object, UTF-8)::
     exposure          object or null: the estimated level at the listeners
     warnings          list of text
     caution           text
-    provenance        object (arrayplan.fileio.provenance)
+    provenance        object (arrayplan.formats.fileio.provenance)
 
 An inverse filter's sidecar also has ``inverse_of`` (the signal's file name)
 and ``parameters_in`` (the signal's sidecar) and a ``note``.  Readers refuse
@@ -40,7 +40,7 @@ from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 from ..errors import InputError
-from ..fileio import write_json_atomic
+from .fileio import write_json_atomic
 
 __all__ = ["SIGNAL_FORMAT", "SIGNAL_FORMAT_VERSION", "signal_sidecar", "inverse_filter_sidecar",
            "check_signal_sidecar", "read_signal_sidecar", "write_signal_sidecar"]

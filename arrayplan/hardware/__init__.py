@@ -24,7 +24,7 @@ Play and record (:mod:`.duplex`)
 Simulated rig (:mod:`.simulated`)
     SimulatedLink(truth_irset, speaker_outputs, mic_inputs, latency_samples=, noise_rms_dbfs=,
                   nonlinearity=, reference=, dropouts_per_take=)
-    SimulatedLink.from_rig(rig, rate, n_ir_samples)      free-field truth from arrayplan.simulate
+    SimulatedLink.from_rig(rig, rate, n_ir_samples)      free-field truth from arrayplan.kernels.model_irs
     apply_nonlinearity(x, (a2, a3, ...))
 
 Measurement (:mod:`.measure`)

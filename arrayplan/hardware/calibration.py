@@ -29,11 +29,11 @@ import numpy as np
 import tomlkit
 
 from .._version import __version__
-from ..audiofiles import read_audio
+from ..formats.audiofiles import read_audio
 from ..errors import InputError
-from ..fileio import write_text_atomic
+from ..formats.fileio import write_text_atomic
 from ..limits import MAX_CHANNEL_NUMBER
-from ..tomlfields import FieldReader
+from ..formats.tomlfields import FieldReader
 from ..units import DBU_REFERENCE_VRMS, dbu_to_vrms, sensitivity_db_re_1v_per_pa
 from ..units import P_REF_PA as REFERENCE_PRESSURE_PA
 from ..units import pressure_from_spl as pressure_from_db_spl

@@ -21,7 +21,7 @@ An output folder looks like::
     takes/001-S1/             one folder per finished take, renamed into place, with SHA256SUMS
         recording.wav         raw inputs (mics in rig order, then the reference),
                               every repeat, float32
-        irset/                the take's impulse responses (arrayplan.irset); each
+        irset/                the take's impulse responses (arrayplan.formats.irset); each
                               starts the pre-roll before zero lag (the set's
                               zero_lag_samples) to keep the pulse's pre-ringing
         take.json             status ("ok" or "marked"), warnings, latency, checks
@@ -43,7 +43,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from ..errors import DeviceError, InputError
-from ..fileio import make_folders
+from ..formats.fileio import make_folders
 from ..progress import ticking
 from ..signals.sweeps import SweepSignal, make_sweep
 from .calibration import CalibrationRecord, calibration_factors

@@ -3,8 +3,8 @@
 :func:`arrayplan.hardware.measure.measure` runs the take loop; this module
 writes and reads back what it keeps (the layout is in that module's
 docstring).  A take is built in a hidden staging folder named with the
-process id (:func:`arrayplan.fileio.new_staging_folder`), given
-``SHA256SUMS`` and published whole (:func:`arrayplan.fileio.publish_folder`);
+process id (:func:`arrayplan.formats.fileio.new_staging_folder`), given
+``SHA256SUMS`` and published whole (:func:`arrayplan.formats.fileio.publish_folder`);
 staging left by a dead run is removed by the next one.
 """
 
@@ -18,11 +18,11 @@ from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
 
-from ..audiofiles import read_audio
+from ..formats.audiofiles import read_audio
 from ..errors import InputError
-from ..fileio import (check_folder, clean_stale_staging, new_staging_folder, provenance, publish_folder,
+from ..formats.fileio import (check_folder, clean_stale_staging, new_staging_folder, provenance, publish_folder,
                       write_checksums, write_json_atomic)
-from ..irset import IRSet, write_irset
+from ..formats.irset import IRSet, write_irset
 
 if TYPE_CHECKING:
     from ..signals.sweeps import SweepSignal

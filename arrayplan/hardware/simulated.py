@@ -18,7 +18,7 @@ from typing import Sequence
 import numpy as np
 
 from ..errors import InputError
-from ..irset import IRSet
+from ..formats.irset import IRSet
 from .duplex import DuplexResult, _check_channels, first_sound_index
 
 __all__ = ["SimulatedLink", "apply_nonlinearity"]
@@ -124,15 +124,15 @@ class SimulatedLink:
 
         A room's responses are made at least as long as its longest image
         path, whatever `n_ir_samples` asks for.  With `truth_errors` (a
-        :class:`arrayplan.simulate.TruthErrors`) the truth is the rig as
+        :class:`arrayplan.kernels.model_irs.TruthErrors`) the truth is the rig as
         built, not as drawn: elements off their positions, gain and phase
-        errors, a reflecting floor (:func:`arrayplan.simulate.truth_irset`).
+        errors, a reflecting floor (:func:`arrayplan.kernels.model_irs.truth_irset`).
 
         Channels come from the rig (its 1-based numbers become 0-based here),
         and so does the loopback reference when the rig names one.  Keyword
         options are those of the constructor.
         """
-        from ..simulate import free_field_irset, rig_irset, truth_irset
+        from ..kernels.model_irs import free_field_irset, rig_irset, truth_irset
 
         if truth_errors is not None and truth_errors.any:
             truth = truth_irset(rig, sample_rate_hz, n_ir_samples, truth_errors)

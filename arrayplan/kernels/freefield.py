@@ -15,8 +15,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..directivity import Directivity
-from ..medium import Medium
+from ..rig.directivity import Directivity
+from ..rig.medium import Medium
 from ..rig import ElementSet, Rig
 
 __all__ = ["FreeFieldKernel"]

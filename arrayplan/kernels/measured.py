@@ -39,7 +39,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import InputError
-from ..irset import IRSet
+from ..formats.irset import IRSet
 
 __all__ = ["MeasuredKernel", "fade_out_window"]
 

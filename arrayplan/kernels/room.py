@@ -35,11 +35,11 @@ from typing import Iterator
 
 import numpy as np
 
-from ..directivity import Directivity
+from ..rig.directivity import Directivity
 from ..errors import InputError
-from ..medium import Medium
+from ..rig.medium import Medium
 from ..rig import ElementSet, Rig
-from ..room import Room
+from ..rig.room import Room
 
 __all__ = ["RoomKernel", "image_lattice"]
 

@@ -6,7 +6,7 @@ import numpy as np
 from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
-from ..planning import Plan
+from ..channels.planning import Plan
 from ._axes import frequency_axis
 
 __all__ = ["plot_couplings", "plot_channel_counts", "representative_indices", "centre_index"]

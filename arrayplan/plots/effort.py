@@ -7,7 +7,7 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
-from ..planning import Plan
+from ..channels.planning import Plan
 from ._axes import frequency_axis
 
 __all__ = ["plot_drive_effort", "drive_effort_db", "loudest_speaker_db"]

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure
 
-from ..field import _AXES, PlaneGrid
+from ..channels.field import _AXES, PlaneGrid
 from ..rig import Rig
 
 __all__ = ["plot_field", "plot_field_panels", "draw_walls", "SILENT_RATIO"]

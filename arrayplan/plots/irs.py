@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure
 
-from ..irset import IRSet
+from ..formats.irset import IRSet
 
 __all__ = ["plot_ir_overview"]
 

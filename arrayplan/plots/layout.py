@@ -7,7 +7,7 @@ from matplotlib import colormaps
 from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
-from ..field import _AXES, best_plane
+from ..channels.field import _AXES, best_plane
 from ..rig import Rig
 from ._axes import frequency_axis
 

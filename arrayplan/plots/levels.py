@@ -7,7 +7,7 @@ from matplotlib.colors import BoundaryNorm
 from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
-from ..planning import Plan
+from ..channels.planning import Plan
 from ._axes import frequency_axis
 
 __all__ = ["plot_level_map"]

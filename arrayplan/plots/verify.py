@@ -10,7 +10,7 @@ __all__ = ["plot_crosstalk", "plot_channel_matrices", "plot_singular_values", "p
 
 
 def plot_crosstalk(result, max_panels: int = 4, floor_db: float = -60.0, fig=None):
-    """Heat maps of the realised channel matrix of a :class:`~arrayplan.verify.Verification`.
+    """Heat maps of the realised channel matrix of a :class:`~arrayplan.verification.channels.Verification`.
 
     See :func:`plot_channel_matrices`; channels not judged at a panel's
     frequency are left blank.
@@ -89,7 +89,7 @@ def plot_singular_values(result, ax=None, floor_db: float = -120.0):
     Levels are taken against the strongest planned channel at each
     frequency, whichever its number (a tracked plan's channel 1 need not be
     the strongest).  Measured values are drawn in the plan's channel order
-    by rank (``result.measured_sv``, see :class:`arrayplan.verify.Verification`).
+    by rank (``result.measured_sv``, see :class:`arrayplan.verification.channels.Verification`).
     The axis stops at `floor_db` (dB), so channels far below any noise floor do not squeeze the rest.
 
     Parameters

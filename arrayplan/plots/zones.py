@@ -7,7 +7,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Polygon
 from scipy.spatial import ConvexHull, QhullError
 
-from ..field import _AXES, PlaneGrid
+from ..channels.field import _AXES, PlaneGrid
 from ..rig import Rig
 from ._axes import frequency_axis
 

@@ -12,9 +12,9 @@ import numpy as np
 
 from .._version import __version__
 from ..errors import InputError
-from ..fileio import SIGN_CONVENTION, write_text_atomic
-from ..irset import MANIFEST_NAME
-from ..planning import Plan
+from ..formats.fileio import SIGN_CONVENTION, write_text_atomic
+from ..formats.irset import MANIFEST_NAME
+from ..channels.planning import Plan
 from ..plots.channels import centre_index
 from ..plots.effort import drive_effort_db, loudest_speaker_db
 from ..rig import Rig

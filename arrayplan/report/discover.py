@@ -34,12 +34,12 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
-from ..fileio import check_folder
+from ..formats.fileio import check_folder
 from ..filters.check import FilterCheck
-from ..irset import MANIFEST_NAME, IRSet, read_irset
+from ..formats.irset import MANIFEST_NAME, IRSet, read_irset
 from ..frequency import FrequencyAxis
-from ..plan_files import PlanWeights, planned_rig_file, read_plan
-from ..planning import Plan
+from ..formats.plan_folder import PlanWeights, planned_rig_file, read_plan
+from ..channels.planning import Plan
 from ..rig import Rig, load_rig
 
 __all__ = ["MAX_DEPTH", "FoundPlan", "FoundFilters", "FoundIRSet", "FoundVerification", "FoundStudy",
@@ -59,7 +59,7 @@ class FoundPlan:
     ----------
     folder : Path
     plan : Plan
-        Rebuilt from the folder's files (see :func:`arrayplan.plan_files.read_plan`).
+        Rebuilt from the folder's files (see :func:`arrayplan.formats.plan_folder.read_plan`).
     sidecar : dict
         ``weights.json``.
     rig_file : Path or None

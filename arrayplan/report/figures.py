@@ -16,7 +16,7 @@ from typing import Iterator
 import numpy as np
 from matplotlib.figure import Figure
 
-from ..field import best_plane, channel_field, default_plane
+from ..channels.field import best_plane, channel_field, default_plane
 from ..filters.check import plot_crosstalk as plot_filter_crosstalk
 from ..plots import (plot_channel_counts, plot_channel_matrices, plot_couplings, plot_field_panels,
                      plot_ir_overview, plot_isolation, plot_level_map, plot_rig, plot_singular_values)

@@ -10,7 +10,7 @@
 Every public name is importable from ``arrayplan.rig``.
 """
 
-from ..tomlfields import FieldReader
+from ..formats.tomlfields import FieldReader
 from .entries import ENTRY_KEYS, entry_kind, group_elements, join_entries, resolve_entry, resolve_side, rig_field_reader
 from .model import (COINCIDENT_M, MAX_COINCIDENT_LISTED, MAX_COORDINATE_M, TEMPERATURE_RANGE_C, ElementSet,
                     EntryElements, HardwareMap, PlanSettings, Rig, coincident_pairs)

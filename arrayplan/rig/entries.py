@@ -2,7 +2,7 @@
 
 Each entry resolves to an :class:`~arrayplan.rig.model.EntryElements`; the
 entries of a side join into one :class:`~arrayplan.rig.model.ElementSet`.
-Problems go through a :class:`~arrayplan.tomlfields.FieldReader`, so the same
+Problems go through a :class:`~arrayplan.formats.tomlfields.FieldReader`, so the same
 code fails fast for :func:`~arrayplan.rig.reader.load_rig` and collects every
 problem for the rig checker.
 """
@@ -14,10 +14,10 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from .. import geometry
-from ..directivity import OMNI, Directivity, parse_directivity
+from . import geometry
+from .directivity import OMNI, Directivity, parse_directivity
 from ..limits import MAX_CHANNEL_NUMBER, MAX_ELEMENTS_PER_SIDE
-from ..tomlfields import FieldReader
+from ..formats.tomlfields import FieldReader
 from .model import MAX_COORDINATE_M, ElementSet, EntryElements
 from .positions_csv import read_positions_csv
 
@@ -33,7 +33,7 @@ _CSV_KEYS = {"csv", "directivity", "first_channel", "name"}
 def rig_field_reader(source: str, *, collect: bool = False) -> FieldReader:
     """The :class:`FieldReader` of a rig file: coordinates within :data:`MAX_COORDINATE_M`, counts within
     :data:`MAX_ELEMENTS_PER_SIDE`; with `collect`, recoverable problems are recorded (see
-    :mod:`arrayplan.tomlfields`)."""
+    :mod:`arrayplan.formats.tomlfields`)."""
     return FieldReader(source, collect=collect, number_range=(-MAX_COORDINATE_M, MAX_COORDINATE_M),
                        integer_max=MAX_ELEMENTS_PER_SIDE)
 

@@ -13,12 +13,12 @@ from typing import Sequence
 
 import numpy as np
 
-from ..directivity import OMNI, Directivity
+from .directivity import OMNI, Directivity
 from ..errors import InputError
-from ..fileio import sha256_of_text
+from ..formats.fileio import sha256_of_text
 from ..frequency import FrequencyAxis
-from ..medium import Medium
-from ..room import Room
+from .medium import Medium
+from .room import Room
 
 __all__ = ["COINCIDENT_M", "MAX_COORDINATE_M", "MAX_COINCIDENT_LISTED", "TEMPERATURE_RANGE_C", "ElementSet",
            "EntryElements", "HardwareMap", "PlanSettings", "Rig", "coincident_pairs"]
@@ -88,14 +88,14 @@ class PlanSettings:
         this many dB below it are under the noise floor.
     track : bool
         Order and phase-align channels from bin to bin (see
-        :func:`arrayplan.channels.track_channels`).
+        :func:`arrayplan.channels.svd.track_channels`).
     chunk_size : int, optional
         Frequencies evaluated and decomposed at once; default from
         `memory_mb`.
     workers : int, optional
         Worker processes; default every core for a large plan.
     max_channels : int or "auto", optional
-        Compute only the strongest channels (see :mod:`arrayplan.topk`).
+        Compute only the strongest channels (see :mod:`arrayplan.channels.topk`).
     memory_mb : float
         Working-memory budget per worker that sets the default chunk size, MB.
     """
@@ -123,7 +123,7 @@ class Rig:
     description: str = ""
     source: str = "<arrays>"
     room: Room | None = None
-    zones: tuple = ()  # of arrayplan.zones.Zone, from [[zones]]
+    zones: tuple = ()  # of arrayplan.rig.zones.Zone, from [[zones]]
 
     @property
     def sha256(self) -> str:

@@ -16,9 +16,9 @@ from typing import Any
 from ..errors import InputError
 from ..frequency import FrequencyAxis
 from ..limits import MAX_CHANNEL_NUMBER, MAX_FREQUENCIES
-from ..medium import Medium, speed_of_sound_air
-from ..room import ROOM_KEYS, parse_room
-from ..tomlfields import FieldReader
+from .medium import Medium, speed_of_sound_air
+from .room import ROOM_KEYS, parse_room
+from ..formats.tomlfields import FieldReader
 from .entries import resolve_side, rig_field_reader
 from .model import TEMPERATURE_RANGE_C, HardwareMap, PlanSettings, Rig
 
@@ -175,7 +175,7 @@ def load_rig(path: str | Path) -> Rig:
     spacing "log" or "linear"), ``[[speakers]]`` and ``[[microphones]]``
     (each entry one point, one generated group with ``shape``, or one CSV
     file with ``csv``), ``[hardware]``, ``[planning]`` and ``[room]``
-    (:func:`arrayplan.room.parse_room`).  See the README
+    (:func:`arrayplan.rig.room.parse_room`).  See the README
     for every key.
 
     Raises
@@ -207,6 +207,6 @@ def load_rig(path: str | Path) -> Rig:
     )
     rig.validate()
     if "zones" in doc:
-        from ..zones import resolve_zones
+        from .zones import resolve_zones
         rig = replace(rig, zones=resolve_zones(doc["zones"], rig.mics.names, rig.mics.positions, r, base))
     return rig

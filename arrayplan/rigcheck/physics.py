@@ -8,11 +8,11 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from ..errors import InputError
-from ..heuristics import PARAXIAL_RATIO, aperture_shape
+from ..channels.heuristics import PARAXIAL_RATIO, aperture_shape
 from ..limits import check_memory
-from ..medium import speed_of_sound_air
+from ..rig.medium import speed_of_sound_air
 from ..rig.model import Rig
-from ..room import eyring_t60_s, sabine_t60_s, schroeder_frequency_hz
+from ..rig.room import eyring_t60_s, sabine_t60_s, schroeder_frequency_hz
 from .findings import Finding, SideGroup
 
 __all__ = ["physical_findings", "aliasing_findings", "paraxial_findings", "coupling_findings", "piston_findings",
@@ -88,7 +88,7 @@ def paraxial_findings(rig: Rig) -> list[Finding]:
     Criterion: the estimate Ls Lr / (lambda L) (lines) or As Ar / (lambda L)^2
     (areas) assumes small angles (paraxial regime); it is called rough when
     half the sum of the two apertures exceeds half the distance L, the same
-    rule :func:`arrayplan.heuristics.paraxial_estimate` uses.
+    rule :func:`arrayplan.channels.heuristics.paraxial_estimate` uses.
     """
     spk, mic = aperture_shape(rig.speakers.positions), aperture_shape(rig.mics.positions)
     if spk.kind != mic.kind or spk.kind not in ("line", "area"):

@@ -1,7 +1,7 @@
 """Structural checks of a rig file: everything :func:`arrayplan.rig.load_rig` would refuse, all at once.
 
 With a ``[room]`` table this includes every element outside the room or
-nearer than :data:`arrayplan.room.WALL_CLEARANCE_M` to a wall, each named.
+nearer than :data:`arrayplan.rig.room.WALL_CLEARANCE_M` to a wall, each named.
 """
 
 from __future__ import annotations
@@ -13,8 +13,8 @@ from typing import Any, Callable
 from ..errors import InputError
 from ..rig import (ENTRY_KEYS, TABLE_KEYS, EntryElements, Rig, entry_kind, join_entries, load_rig, read_rig_document,
                    resolve_entry, resolve_section, rig_field_reader)
-from ..room import Room, parse_room
-from ..tomlfields import FieldReader
+from ..rig.room import Room, parse_room
+from ..formats.tomlfields import FieldReader
 from .findings import SEVERITIES, Finding, SideGroup
 from .physics import physical_findings
 

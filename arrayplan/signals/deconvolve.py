@@ -360,7 +360,7 @@ class OfflineResult:
     Attributes
     ----------
     data : ndarray, shape (pre_roll + ir_length, n_mic, n_spk)
-        Linear impulse responses (the layout of :class:`arrayplan.irset.IRSet`),
+        Linear impulse responses (the layout of :class:`arrayplan.formats.irset.IRSet`),
         zero lag at index `zero_lag_index`.
     harmonics : dict of int -> ndarray, shape (n_window, n_mic, n_spk)
         Harmonic distortion products by order.

@@ -80,14 +80,14 @@ def names_from_plan(plan_dir: str | os.PathLike) -> RigNames:
     ----------
     plan_dir : path
         A folder written by ``arrayplan plan`` (read with
-        :func:`arrayplan.plan_files.read_weights`).
+        :func:`arrayplan.formats.plan_folder.read_weights`).
 
     Returns
     -------
     RigNames
         Positions are None where the plan did not store them.
     """
-    from ..plan_files import read_weights
+    from ..formats.plan_folder import read_weights
 
     w = read_weights(plan_dir)
     side = w.sidecar if isinstance(w.sidecar, dict) else {}

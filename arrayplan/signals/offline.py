@@ -20,11 +20,11 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from ..errors import InputError
-from ..fileio import staged_output_dir
+from ..formats.fileio import staged_output_dir
 from ..formats.deconvolution_summary import (DeconvolutionSummary, summarise, summary_record,
                                              write_deconvolution_summary)
 from ..formats.signal_sidecar import read_signal_sidecar
-from ..irset import IRSet, write_irset
+from ..formats.irset import IRSet, write_irset
 from .deconvolve import CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, impulse_responses, split_schedule
 from .sweep_record import SweepRecord
 from .wavout import read_recording

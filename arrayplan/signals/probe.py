@@ -16,9 +16,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ..audiofiles import read_audio
+from ..formats.audiofiles import read_audio
 from ..errors import InputError
-from ..fileio import check_folder
+from ..formats.fileio import check_folder
 
 __all__ = ["read_filter_wav", "filter_names_from_sidecar", "filter_names_from_filter_set", "channel_probe",
            "FILTER_SET_SIDECAR"]

@@ -8,9 +8,9 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from ..audiofiles import read_audio
+from ..formats.audiofiles import read_audio
 from ..errors import InputError
-from ..fileio import atomic_paths
+from ..formats.fileio import atomic_paths
 from ..formats.signal_sidecar import write_signal_sidecar
 from .levels import true_peak_dbfs
 

@@ -9,8 +9,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..frequency import FrequencyAxis
-from ..plan_files import PlanWeights, planned_rig_file, read_plan, read_weights
-from ..planning import Plan, plan_rig
+from ..formats.plan_folder import PlanWeights, planned_rig_file, read_plan, read_weights
+from ..channels.planning import Plan, plan_rig
 from ..rig import Rig, load_rig
 
 __all__ = ["is_measured_plan", "plan_channels", "load_study_source", "DEFAULT_REFERENCE_SNR_DB",
@@ -76,7 +76,7 @@ def load_study_source(source: str | os.PathLike, *, rig_file: str | os.PathLike 
         Frequencies, Hz, when `source` is a rig file (default: its ``[frequencies]``).
     need_positions : bool
         When False, a plan folder without positions is returned as
-        :class:`~arrayplan.plan_files.PlanWeights` instead of failing.
+        :class:`~arrayplan.formats.plan_folder.PlanWeights` instead of failing.
 
     Returns
     -------

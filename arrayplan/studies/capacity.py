@@ -34,8 +34,8 @@ from typing import Sequence
 import numpy as np
 
 from ..errors import InputError
-from ..plan_files import PlanWeights
-from ..planning import Plan
+from ..formats.plan_folder import PlanWeights
+from ..channels.planning import Plan
 from ._common import plan_channels
 
 __all__ = ["CapacityStudy", "capacity_study", "water_fill", "equal_power_capacity", "band_widths_hz",
@@ -203,8 +203,8 @@ def capacity_study(plan: Plan | PlanWeights, snr_db: float | Sequence[float], *,
     Parameters
     ----------
     plan : Plan or PlanWeights
-        From :func:`arrayplan.planning.plan_rig`, :func:`arrayplan.plan_files.read_plan`
-        or :func:`arrayplan.plan_files.read_weights` (positions are not needed).
+        From :func:`arrayplan.channels.planning.plan_rig`, :func:`arrayplan.formats.plan_folder.read_plan`
+        or :func:`arrayplan.formats.plan_folder.read_weights` (positions are not needed).
     snr_db : float or sequence of float
         SNR of the strongest channel with all the power on it, dB.
     threshold_db : float, optional

@@ -26,8 +26,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..frequency import FrequencyAxis
-from ..heuristics import aperture_shape
-from ..planning import Plan
+from ..channels.heuristics import aperture_shape
+from ..channels.planning import Plan
 from ._common import reference_snr_scale
 
 __all__ = ["LayoutSummary", "Comparison", "compare_plans", "capacity_per_frequency"]

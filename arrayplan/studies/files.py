@@ -23,8 +23,8 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
-from ..fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
-from ..verify import _ranges as channel_ranges
+from ..formats.fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..verification.channels import _ranges as channel_ranges
 from ._common import STRONGEST_SNR_MEANING
 from .capacity import CapacityStudy
 from .tolerance import KR_LIMIT, ToleranceStudy

@@ -16,12 +16,12 @@ from pathlib import Path
 
 import numpy as np
 
-from ..directivity import Directivity
+from ..rig.directivity import Directivity
 from ..errors import InputError
-from ..fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..rig import ElementSet, Rig, read_rig_document
-from ..room import IMAGE_LIMIT, SURFACES, Room
-from ..starter import toml_value as _value  # the TOML value writer of the starter rigs
+from ..rig.room import IMAGE_LIMIT, SURFACES, Room
+from ..rig.starter import toml_value as _value  # the TOML value writer of the starter rigs
 from .layout import LayoutChoice, chosen_rig
 from ._common import REFERENCE_SNR_MEANING
 from ._tables import csv_text as _csv

@@ -46,8 +46,8 @@ from typing import Callable, Iterable
 import numpy as np
 
 from ..errors import InputError
-from ..planning import Plan
-from ..verify import wanted_channels
+from ..channels.planning import Plan
+from ..verification.channels import wanted_channels
 from ._common import is_measured_plan
 from .trials import (KernelBuilder, TrialChunk, TrialProblem, free_field_builder, room_builder, run_trial_chunk,
                      trial_chunks)
@@ -225,8 +225,8 @@ def tolerance_study(plan: Plan, *, position_sd_m: float = 0.0, gain_sd_db: float
     Parameters
     ----------
     plan : Plan
-        With element positions (from :func:`arrayplan.planning.plan_rig` or
-        :func:`arrayplan.plan_files.read_plan`).
+        With element positions (from :func:`arrayplan.channels.planning.plan_rig` or
+        :func:`arrayplan.formats.plan_folder.read_plan`).
     position_sd_m : float
         Standard deviation of each position coordinate of each element, m.
     gain_sd_db : float

@@ -34,12 +34,12 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from ..coupling import Kernel
+from ..kernels.coupling import Kernel
 from ..kernels.freefield import FreeFieldKernel
 from ..kernels.room import RoomKernel
-from ..medium import Medium
+from ..rig.medium import Medium
 from ..rig import ElementSet, Rig
-from ..room import Room
+from ..rig.room import Room
 
 __all__ = ["KernelBuilder", "free_field_builder", "room_builder", "TrialProblem", "TrialChunk", "trial_errors",
            "perturbed_couplings", "run_trial_chunk", "trial_chunks", "DEGENERATE_RTOL", "clusters",

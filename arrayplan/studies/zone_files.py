@@ -22,8 +22,8 @@ from pathlib import Path
 import numpy as np
 import soundfile as sf
 
-from ..fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
-from ..field import PlaneGrid, channel_field
+from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..channels.field import PlaneGrid, channel_field
 from ..rig import Rig
 from ..safety import CAUTION_NOTE
 from .zone_filters import ZoneFilters

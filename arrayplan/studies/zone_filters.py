@@ -28,14 +28,14 @@ import numpy as np
 from scipy.signal import fftconvolve
 from scipy.signal.windows import tukey
 
-from ..directivity import OMNI
+from ..rig.directivity import OMNI
 from ..errors import InputError
 from ..filters import band_window, validate_request
 from ..filters.design import TUKEY_ALPHA
 from ..frequency import FrequencyAxis
 from ..rig import ElementSet, Rig
-from ..simulate import kernel_impulse_responses, required_samples
-from ..zones import Zone
+from ..kernels.model_irs import kernel_impulse_responses, required_samples
+from ..rig.zones import Zone
 from .zones import points_model_kernel
 
 __all__ = ["ZoneFilters", "zone_filter_taps", "check_zone_filters", "zone_points_rig"]

@@ -59,8 +59,8 @@ from ..kernels import rig_kernel
 from ..kernels.freefield import FreeFieldKernel
 from ..kernels.room import RoomKernel
 from ..rig import ElementSet, Rig
-from ..directivity import OMNI
-from ..zones import Zone, zones_overlap
+from ..rig.directivity import OMNI
+from ..rig.zones import Zone, zones_overlap
 
 __all__ = ["ZoneTarget", "MethodResult", "ZoneStudy", "zone_coupling", "contrast_weights", "matching_weights",
            "target_pressure", "contrast_db", "effort_db", "matching_error_db", "reference_speaker",

@@ -13,11 +13,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .directivity import OMNI
-from .errors import InputError
-from .kernels.freefield import FreeFieldKernel
-from .kernels.room import RoomKernel
-from .rig import ElementSet, Rig
+from ..rig.directivity import OMNI
+from ..errors import InputError
+from ..kernels.freefield import FreeFieldKernel
+from ..kernels.room import RoomKernel
+from ..rig import ElementSet, Rig
 
 __all__ = ["PlaneGrid", "channel_field", "default_plane", "best_plane"]
 

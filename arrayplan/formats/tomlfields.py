@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 from typing import Any, Callable, Mapping, TypeVar
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["FieldReader", "MISSING"]
 

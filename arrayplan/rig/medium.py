@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["Medium", "speed_of_sound_air", "air_absorption_db_per_m", "water_vapour_molar_percent"]
 

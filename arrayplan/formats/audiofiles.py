@@ -11,7 +11,7 @@ import os
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["read_audio"]
 

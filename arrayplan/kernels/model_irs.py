@@ -26,11 +26,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InputError
-from .irset import IRSet
-from .kernels import FreeFieldKernel, RoomKernel, rig_kernel
-from .rig import Rig
-from .room import BAND_CENTRES_HZ, SURFACES, Room
+from ..errors import InputError
+from ..formats.irset import IRSet
+from . import FreeFieldKernel, RoomKernel, rig_kernel
+from ..rig import Rig
+from ..rig.room import BAND_CENTRES_HZ, SURFACES, Room
 
 __all__ = ["TruthErrors", "free_field_impulse_responses", "free_field_irset", "kernel_impulse_responses",
            "perturbed_rig", "required_samples", "rig_irset", "truth_irset"]
@@ -136,7 +136,7 @@ def free_field_impulse_responses(rig: Rig, sample_rate_hz: float, n_samples: int
 
 
 def free_field_irset(rig: Rig, sample_rate_hz: float, n_samples: int, zero_lag_samples: int = 0) -> IRSet:
-    """:func:`free_field_impulse_responses` wrapped as an :class:`~arrayplan.irset.IRSet`.
+    """:func:`free_field_impulse_responses` wrapped as an :class:`~arrayplan.formats.irset.IRSet`.
 
     `zero_lag_samples` (default 0) keeps that many samples before zero lag
     and is recorded in the set.

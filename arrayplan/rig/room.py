@@ -40,11 +40,11 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from scipy.interpolate import PchipInterpolator
 
-from .errors import InputError
+from ..errors import InputError
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .rig import ElementSet
-    from .tomlfields import FieldReader
+    from . import ElementSet
+    from ..formats.tomlfields import FieldReader
 
 __all__ = ["Room", "SURFACES", "BAND_CENTRES_HZ", "ROOM_KEYS", "IMAGE_LIMIT", "DEFAULT_ORDER", "WALL_CLEARANCE_M",
            "image_count", "parse_room", "sabine_t60_s", "eyring_t60_s", "schroeder_frequency_hz"]

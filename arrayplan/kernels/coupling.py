@@ -13,8 +13,8 @@ from typing import Protocol, Sequence
 
 import numpy as np
 
-from .errors import InputError
-from .frequency import FrequencyAxis
+from ..errors import InputError
+from ..frequency import FrequencyAxis
 
 __all__ = ["CouplingStack", "Kernel"]
 

@@ -50,11 +50,11 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import subspace_angles
 
-from .channels import decompose_stack
-from .coupling import Kernel
-from .errors import InputError
-from .filters.design import strong_ranges_hz
-from .plan_files import PlanWeights
+from ..channels.svd import decompose_stack
+from ..kernels.coupling import Kernel
+from ..errors import InputError
+from ..filters.design import strong_ranges_hz
+from ..formats.plan_folder import PlanWeights
 
 __all__ = ["Verification", "verify_plan", "judge_channels", "align_kernel_names", "wanted_channels",
            "GAIN_REFERENCES", "level_re_strongest_db", "strong_mask", "replanned_in_plan_order", "lost_bands_hz"]
@@ -208,7 +208,7 @@ def strong_mask(sv: np.ndarray, threshold_db: float) -> np.ndarray:
     """Where each channel is within `threshold_db` (dB) of the strongest, shape (n_freq, n_chan).
 
     The same rule as the plan's strong count
-    (:meth:`arrayplan.channels.ChannelSet.strong_channels`), whatever the channel order.
+    (:meth:`arrayplan.channels.svd.ChannelSet.strong_channels`), whatever the channel order.
     """
     return level_re_strongest_db(sv) >= -abs(threshold_db) - 1e-12
 
@@ -290,7 +290,7 @@ def verify_plan(weights: PlanWeights, kernel: Kernel, *, isolation_db: float = 2
     Parameters
     ----------
     weights : PlanWeights
-        From :func:`arrayplan.plan_files.read_weights`.
+        From :func:`arrayplan.formats.plan_folder.read_weights`.
     kernel : Kernel
         The measured rig; element names must match the plan's (any order).
     isolation_db : float

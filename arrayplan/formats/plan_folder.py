@@ -38,18 +38,18 @@ from typing import Any, Callable
 
 import numpy as np
 
-from .channels import ChannelSet
-from .errors import InputError
+from ..channels.svd import ChannelSet
+from ..errors import InputError
 from .fileio import atomic_path, check_folder, provenance, staged_output_dir, write_json_atomic
-from .frequency import FrequencyAxis
-from .heuristics import paraxial_estimate
-from .planning import Plan
-from .rig import Rig, load_rig
+from ..frequency import FrequencyAxis
+from ..channels.heuristics import paraxial_estimate
+from ..channels.planning import Plan
+from ..rig import Rig, load_rig
 
 __all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
            "coupling_text", "long_table_rows", "LONG_TABLE_MAX_ROWS"]
 
-#: What one unit of a measured coupling means, by the IR set's units (see :data:`arrayplan.irset.UNITS`).
+#: What one unit of a measured coupling means, by the IR set's units (see :data:`arrayplan.formats.irset.UNITS`).
 MEASURED_UNITS = {"full_scale": "input full scale per output full scale (uncalibrated)",
                   "pascal_per_full_scale": "Pa per output full scale",
                   "pascal_per_volt": "Pa per V at the speaker terminals"}
@@ -255,7 +255,7 @@ def _sidecar(plan: Plan, with_long: bool = True) -> dict[str, Any]:
 
 
 def _piston_note(rig) -> dict[str, str]:
-    """The level convention of pistons (see arrayplan.directivity), for a rig that has any."""
+    """The level convention of pistons (see arrayplan.rig.directivity), for a rig that has any."""
     sides = {side: {d.kind for d in elements.directivities}
              for side, elements in (("speakers", rig.speakers), ("microphones", rig.mics))}
     if not any("piston" in kinds for kinds in sides.values()):
@@ -378,7 +378,7 @@ def _measurement_fields(measurement: dict[str, Any] | None) -> dict[str, Any]:
 
 
 def _write_figures(plan: Plan, folder: Path) -> None:
-    from .plots import plot_channel_counts, plot_couplings, plot_rig
+    from ..plots import plot_channel_counts, plot_couplings, plot_rig
 
     for name, fig in (("rig.png", plot_rig(plan.rig)), ("couplings.png", plot_couplings(plan)),
                       ("channel-counts.png", plot_channel_counts(plan))):
@@ -453,7 +453,7 @@ def _weight_arrays(npz: Path) -> dict[str, np.ndarray]:
 def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
     """Read ``weights.npz`` and ``weights.json`` from a plan folder, with checks.
 
-    The folder must match its checksums (:func:`arrayplan.fileio.check_folder`),
+    The folder must match its checksums (:func:`arrayplan.formats.fileio.check_folder`),
     so weights of one run are never read beside a sidecar of another.
 
     Raises

@@ -20,7 +20,7 @@ The manifest (JSON, UTF-8)::
       "speakers": [{"name": "L1", "position_m": [0, 0, 1.2], "file": "spk-001.wav"}, ...],
       "microphones": [{"name": "M1", "position_m": null}, ...],
       "warnings": ["..."],                 # every warning a producer raised
-      "provenance": {...}                  # arrayplan.fileio.provenance()
+      "provenance": {...}                  # arrayplan.formats.fileio.provenance()
     }
 
 ``data[n, m, s]`` is the response at microphone ``m`` to speaker ``s`` at
@@ -40,10 +40,10 @@ present they are in metres.
 The loader checks every field, the rates, channel counts and lengths of every
 WAV file, and rejects non-finite samples, each with a one-line message naming
 the file and field.  A set arrayplan wrote also holds ``SHA256SUMS``
-(every file's size and SHA-256, :func:`arrayplan.fileio.check_folder`); the
+(every file's size and SHA-256, :func:`arrayplan.formats.fileio.check_folder`); the
 loader refuses a set whose files differ from it, so a folder mixing files of
 two runs is never read.  Sets made by other programs need not have one.  :func:`read_irset` also reads AES69 (SOFA) files
-(:mod:`arrayplan.irset_sofa`).
+(:mod:`arrayplan.formats.irset_sofa`).
 """
 
 from __future__ import annotations
@@ -58,7 +58,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from .audiofiles import read_audio
-from .errors import InputError
+from ..errors import InputError
 from .fileio import check_folder, provenance as _provenance, staged_output_dir, write_json_atomic
 
 __all__ = ["IRSet", "read_irset", "write_irset", "MANIFEST_NAME", "UNITS", "zero_lag_problem", "format_version_for"]
@@ -233,7 +233,7 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
     """Read and validate the IR set in `folder` (or the path of its manifest).
 
     A path ending in ``.sofa`` is read as an AES69 (SOFA) file through
-    :func:`arrayplan.irset_sofa.read_irset_sofa`.
+    :func:`arrayplan.formats.irset_sofa.read_irset_sofa`.
 
     Raises
     ------

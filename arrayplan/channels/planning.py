@@ -12,13 +12,13 @@ from typing import Callable
 
 import numpy as np
 
-from .channels import ChannelSet, decompose
-from .coupling import Kernel
-from .errors import InputError
-from .frequency import FrequencyAxis
+from .svd import ChannelSet, decompose
+from ..kernels.coupling import Kernel
+from ..errors import InputError
+from ..frequency import FrequencyAxis
 from .heuristics import ParaxialEstimate, paraxial_estimate
-from .kernels import kernel_settings, rig_kernel
-from .rig import Rig
+from ..kernels import kernel_settings, rig_kernel
+from ..rig import Rig
 
 __all__ = ["Plan", "plan_rig"]
 
@@ -73,14 +73,14 @@ def plan_rig(rig: Rig, axis: FrequencyAxis | None = None, *, kernel: Kernel | No
         one, else its free field).  It must pickle to run on workers.
     threshold_db, snr_db, track, chunk_size, workers, max_channels, memory_mb : optional
         Override the rig file's ``[planning]`` settings (see
-        :func:`arrayplan.channels.decompose`; ``max_channels="auto"`` starts
+        :func:`arrayplan.channels.svd.decompose`; ``max_channels="auto"`` starts
         from the paraxial estimate and grows to below the `snr_db` floor).
     progress : callable, optional
         ``progress(done, total)`` after each chunk.
     scheduler : str, optional
         ``"local:N"`` or a Dask scheduler address (:mod:`arrayplan.parallel`).
     precision : {"double", "single"}
-        Arithmetic of the SVD (see :func:`arrayplan.channels.decompose`).
+        Arithmetic of the SVD (see :func:`arrayplan.channels.svd.decompose`).
 
     Returns
     -------

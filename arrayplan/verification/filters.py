@@ -11,7 +11,7 @@ is at least :data:`arrayplan.filters.check.OVERSAMPLE` times finer than the
 filters' design bins and covers their band, so what happens between the
 bins counts.
 
-The verdict follows :func:`arrayplan.verify.judge_channels` with these
+The verdict follows :func:`arrayplan.verification.channels.judge_channels` with these
 choices:
 
 * wanted channels: those with filters;
@@ -28,10 +28,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from .coupling import Kernel
-from .filters.check import channel_transfer, check_grid, kernel_at, kernel_ir_samples
-from .filters.files import FilterFiles
-from .verify import Verification, align_kernel_names, judge_channels
+from ..kernels.coupling import Kernel
+from ..filters.check import channel_transfer, check_grid, kernel_at, kernel_ir_samples
+from ..filters.files import FilterFiles
+from .channels import Verification, align_kernel_names, judge_channels
 
 __all__ = ["verify_filters"]
 
@@ -53,7 +53,7 @@ def verify_filters(filters: FilterFiles, kernel: Kernel, *, isolation_db: float 
     threshold_db : float
         Strong-channel threshold of the re-plan comparison, dB.
     gain_reference : {"plan", "common"}
-        See :func:`arrayplan.verify.verify_plan`.
+        See :func:`arrayplan.verification.channels.verify_plan`.
     progress : callable, optional
         ``progress(done, total)`` in bins.
     measured_source : str, optional

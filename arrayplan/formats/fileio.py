@@ -36,8 +36,8 @@ from typing import Any, Iterator, Sequence
 
 import numpy as np
 
-from ._version import __version__
-from .errors import InputError
+from .._version import __version__
+from ..errors import InputError
 
 __all__ = [
     "SIGN_CONVENTION",

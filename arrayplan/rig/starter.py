@@ -5,7 +5,7 @@ with every key commented (what it is, its unit) and the next commands to run
 on it; :func:`write_starter_rig` writes it atomically and refuses to replace
 an existing file unless asked.  Every starter loads with
 :func:`arrayplan.rig.load_rig` and plans with
-:func:`arrayplan.planning.plan_rig`.
+:func:`arrayplan.channels.planning.plan_rig`.
 
 By default the top planned frequency is the highest the layout samples
 without grating lobes (element spacing d <= lambda / 2, rounded down to two
@@ -23,9 +23,9 @@ from typing import Any, Callable
 import numpy as np
 import tomlkit
 
-from ._version import __version__
-from .errors import InputError
-from .fileio import write_text_atomic
+from .._version import __version__
+from ..errors import InputError
+from ..formats.fileio import write_text_atomic
 from .medium import speed_of_sound_air
 
 __all__ = ["Layout", "LAYOUTS", "starter_rig_text", "write_starter_rig", "parse_counts", "toml_value"]
@@ -534,7 +534,7 @@ def _placed_in_room(head: list[Part], body: list[Part], tail: list[Part], text: 
     """The starter text with the layout centred on the room's floor plan and a [room] table added."""
     import tempfile
 
-    from .rig import load_rig
+    from . import load_rig
 
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "rig.toml"

@@ -25,7 +25,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["Zone", "ROLES", "resolve_zones", "select_zones", "zones_overlap"]
 
@@ -90,7 +90,7 @@ def resolve_zones(entries: Any, mic_names: Sequence[str], mic_positions: np.ndar
     InputError
         Naming the file and the field (``zones[i].members`` ...).
     """
-    from .rig.entries import group_elements  # imported here: the rig reader imports this module
+    from .entries import group_elements  # imported here: the rig reader imports this module
 
     if not isinstance(entries, list):
         raise r.fail("zones", "must be an array of tables ([[zones]])")

@@ -42,7 +42,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["Directivity", "OMNI", "FIRST_ORDER_ALPHA", "piston_factor"]
 

@@ -61,8 +61,8 @@ from typing import Any
 
 import numpy as np
 
-from ._version import __version__
-from .errors import InputError
+from .._version import __version__
+from ..errors import InputError
 from .fileio import atomic_path, json_default, provenance as _provenance
 from .irset import FORMAT_NAME, FORMAT_VERSION, UNITS, IRSet, format_version_for, zero_lag_problem
 

@@ -27,7 +27,7 @@ channel's singular value need not be descending across channels.
 Strong/effective counts never depend on tracking.
 
 Truncation.  With ``max_channels`` only the strongest channels are computed
-(:mod:`arrayplan.topk`); ``ChannelSet.computed`` then gives their number per
+(:mod:`arrayplan.channels.topk`); ``ChannelSet.computed`` then gives their number per
 frequency, the columns beyond it hold zeros, the sum rule is still
 sum |G|^2 from G itself, and :meth:`ChannelSet.share_not_computed` is the
 part of it in the channels not computed.  The effective count of a
@@ -45,9 +45,9 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .coupling import CouplingStack, Kernel
-from .errors import InputError
-from .frequency import FrequencyAxis
+from ..kernels.coupling import CouplingStack, Kernel
+from ..errors import InputError
+from ..frequency import FrequencyAxis
 
 __all__ = ["ChannelSet", "decompose", "decompose_stack", "fix_phase", "track_channels", "chunk_for_budget",
            "bytes_per_frequency", "workers_for"]
@@ -236,7 +236,7 @@ def _track_in_place(s: np.ndarray, drive: np.ndarray, combine: np.ndarray, costs
     """
     from scipy.optimize import linear_sum_assignment   # imported here: scipy.optimize is slow to import
 
-    from .parallel import one_blas_thread
+    from ..parallel import one_blas_thread
 
     if costs is None:
         with one_blas_thread():   # small products: threaded BLAS only loses time here, badly on a busy machine
@@ -381,7 +381,7 @@ def workers_for(n_freq: int, n_mic: int, n_spk: int, workers: int | None) -> int
     """The worker count to use: `workers`, or for None all cores when the job is large enough."""
     if workers is not None:
         return int(workers)
-    from .parallel import available_cores
+    from ..parallel import available_cores
 
     work = float(n_freq) * n_mic * n_spk * min(n_mic, n_spk)
     return available_cores() if work >= AUTO_PARALLEL_WORK else 1
@@ -415,7 +415,7 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
         ``"local:N"`` or a dask.distributed address (:mod:`arrayplan.parallel`).
     max_channels : int, "auto" or None
         Compute only the K strongest channels per frequency
-        (:mod:`arrayplan.topk`); "auto" starts from `first_guess` and grows
+        (:mod:`arrayplan.channels.topk`); "auto" starts from `first_guess` and grows
         until the weakest computed channel is `floor_db` below the
         strongest; None computes all.
     floor_db : float
@@ -483,7 +483,7 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
 
 def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progress):
     """Run the chunks and put their results in frequency order (see :func:`decompose`)."""
-    from .parallel import iter_chunks, one_blas_thread
+    from ..parallel import iter_chunks, one_blas_thread
 
     starts = np.cumsum([0] + [len(it[0]) for it in items])
     sum_rule = np.empty(n_freq)
