@@ -43,12 +43,13 @@ import os
 import socket
 import threading
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from contextlib import contextmanager
 from typing import Any, Callable, Iterable, Iterator, Sequence
 
 from .errors import InputError
 
 __all__ = ["map_chunks", "iter_chunks", "available_cores", "resolve_scheduler", "check_scheduler", "one_blas_thread",
-           "SCHEDULER_ENV"]
+           "alongside", "SCHEDULER_ENV"]
 
 #: Environment variable naming a Dask scheduler address (or ``local:N``) for every parallel call.
 SCHEDULER_ENV = "ARRAYPLAN_SCHEDULER"
@@ -203,6 +204,78 @@ def _iter_pool(func, items, shared, workers: int) -> Iterator[tuple[int, Any]]:
         finally:
             for fut in pending:
                 fut.cancel()
+
+
+def _run_and_report(send, func: Callable[..., Any], args: tuple) -> None:
+    """In the forked child of :func:`alongside`: run, then send None or the exception."""
+    try:
+        func(*args)
+        send.send(None)
+    except BaseException as exc:  # every failure goes back to the parent, which raises it
+        try:
+            send.send(exc)
+        except Exception:          # an exception that does not pickle: its text
+            send.send(RuntimeError(f"{type(exc).__name__}: {exc}"))
+    finally:
+        send.close()
+
+
+@contextmanager
+def alongside(func: Callable[..., Any], *args: Any) -> Iterator[None]:
+    """Run ``func(*args)`` in a forked process while the block runs here; wait for it when the block ends.
+
+    For two independent pieces of one job that would otherwise run one
+    after the other on one core (two files written from the same arrays):
+    the child sees this process's memory as it was at the fork, without
+    copying or pickling it.
+
+    Parameters
+    ----------
+    func : callable
+        Runs in the child; its return value is dropped.  It must not need
+        anything the block changes.
+    *args
+        Passed to `func`.
+
+    Raises
+    ------
+    BaseException
+        What `func` raised (re-raised here after the block), or what the
+        block raised (the child is then stopped).
+
+    Notes
+    -----
+    Without ``fork`` (other threads running, or not Linux) `func` simply
+    runs here before the block.
+    """
+    if _start_method() != "fork":
+        func(*args)
+        yield
+        return
+    import sys
+
+    for stream in (sys.stdout, sys.stderr):   # else the child would flush the same buffered text again
+        stream.flush()
+    ctx = multiprocessing.get_context("fork")
+    receive, send = ctx.Pipe(duplex=False)
+    child = ctx.Process(target=_run_and_report, args=(send, func, args), daemon=True)
+    child.start()
+    send.close()
+    try:
+        yield
+    except BaseException:
+        child.terminate()
+        child.join()
+        raise
+    try:
+        failure = receive.recv()
+    except EOFError:                          # the child died without a word (killed)
+        failure = RuntimeError(f"the process writing beside this one ended with status {child.exitcode}")
+    finally:
+        receive.close()
+        child.join()
+    if failure is not None:
+        raise failure
 
 
 def _unreachable(scheduler: str, reason: str) -> InputError:

@@ -187,3 +187,41 @@ def test_summary_reader_refuses_another_format_or_a_newer_version(tmp_path):
     with pytest.raises(InputError) as err:
         read_deconvolution_summary(tmp_path)
     assert err.value.field == "peak_db (line 2)"
+
+
+# --- NPZ archives written without numpy.savez -----------------------------------------------------
+
+def test_write_npz_reads_back_with_numpy_load(tmp_path):
+    """Reference: numpy.load (numpy's own NPZ reader) and numpy.savez of the same arrays."""
+    import numpy as np
+
+    from arrayplan.formats.npz import write_npz
+
+    rng = np.random.default_rng(5)
+    arrays = {
+        "complex": rng.normal(size=(3, 4, 5)) + 1j * rng.normal(size=(3, 4, 5)),
+        "fortran": np.asfortranarray(rng.normal(size=(4, 6))),
+        "strided": rng.normal(size=(6, 8))[::2, 1::3],
+        "single": rng.normal(size=7).astype(np.complex64),
+        "names": np.array(["spk 1", "mic é"]),
+        "scalar": np.float64(2.5),
+        "empty": np.zeros((0, 3)),
+        "ints": np.arange(10, dtype=np.int32),
+    }
+    write_npz(tmp_path / "ours.npz", arrays)
+    np.savez(tmp_path / "numpy.npz", **arrays)
+    with np.load(tmp_path / "ours.npz") as ours, np.load(tmp_path / "numpy.npz") as ref:
+        assert sorted(ours.files) == sorted(ref.files)
+        for name in ref.files:
+            assert ours[name].dtype == ref[name].dtype and ours[name].shape == ref[name].shape
+            np.testing.assert_array_equal(ours[name], ref[name])
+
+
+def test_write_npz_refuses_object_arrays(tmp_path):
+    import numpy as np
+    import pytest
+
+    from arrayplan.formats.npz import write_npz
+
+    with pytest.raises(ValueError, match="objects"):
+        write_npz(tmp_path / "x.npz", {"a": np.array([{"x": 1}], dtype=object)})

@@ -291,6 +291,7 @@ class _ChunkJob:
     floor_ratio: float
     single: bool = False           # decompose in complex64 (the full SVD only)
     track: bool = False            # also return the overlaps of consecutive bins (for tracking)
+    out: str | None = None         # key of SharedArrays to write the full SVD's results into, or None
 
 
 def _channels_of_chunk(job: _ChunkJob, item: tuple[np.ndarray, np.ndarray | None]):
@@ -299,14 +300,29 @@ def _channels_of_chunk(job: _ChunkJob, item: tuple[np.ndarray, np.ndarray | None
     Returns (s, drive, combine, sum_rule, computed, costs) for the chunk;
     with truncation, unused columns are zero and ``computed`` counts the
     rest; ``costs`` are the tracking overlaps within the chunk (or None).
+    With ``job.out`` the full SVD's s, drive, combine and costs are written
+    into those shared arrays at the chunk's rows instead (and None returned
+    in their place).
     """
-    hz, k_first = item
+    start, hz, k_first = item
     g = job.kernel.evaluate(hz)
     sum_rule = np.einsum("fms,fms->f", g.real, g.real) + np.einsum("fms,fms->f", g.imag, g.imag)
     if job.max_channels is None and not job.auto:
-        s, drive, combine = decompose_stack(g.astype(np.complex64) if job.single else g)
+        if job.single:
+            g = g.astype(np.complex64)
+        if job.out is None:
+            s, drive, combine = decompose_stack(g)
+            del g
+            return s, drive, combine, sum_rule, None, _overlap_costs(drive, combine) if job.track else None
+        from ..shared_arrays import arrays_for
+
+        out, rows = arrays_for(job.out), slice(start, start + len(hz))
+        u, out["s"][rows], vh = np.linalg.svd(g, full_matrices=False)
         del g
-        return s, drive, combine, sum_rule, None, _overlap_costs(drive, combine) if job.track else None
+        _phase_fixed_into(u, vh, out["drive"][rows], out["combine"][rows])
+        if job.track and len(hz) > 1:
+            out["costs"][start:start + len(hz) - 1] = _overlap_costs(out["drive"][rows], out["combine"][rows])
+        return None, None, None, sum_rule, None, None
     from .topk import leading_triplets, triplets_above_floor
 
     parts = [triplets_above_floor(g[f], int(k_first[f]), job.floor_ratio) if job.auto
@@ -467,7 +483,7 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
         first = np.full(len(hz), np.nan) if first_guess is None else np.asarray(first_guess, dtype=float)
         guess = np.where(np.isfinite(first), np.ceil(1.5 * np.nan_to_num(first) + 8), 16).astype(int)
     starts = range(0, len(hz), chunk_size)
-    items = [(hz[a:a + chunk_size], None if guess is None else guess[a:a + chunk_size]) for a in starts]
+    items = [(a, hz[a:a + chunk_size], None if guess is None else guess[a:a + chunk_size]) for a in starts]
     if precision not in ("double", "single"):
         raise InputError(f"expected 'double' or 'single', got {precision!r}", field="precision")
     single = precision == "single" and fixed is None and not auto
@@ -483,35 +499,47 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
 
 def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progress):
     """Run the chunks and put their results in frequency order (see :func:`decompose`)."""
-    from ..parallel import iter_chunks, one_blas_thread
+    from ..parallel import iter_chunks, one_blas_thread, resolve_scheduler
+    from ..shared_arrays import SharedArrays
 
-    starts = np.cumsum([0] + [len(it[0]) for it in items])
+    starts = np.cumsum([0] + [len(it[1]) for it in items])
     sum_rule = np.empty(n_freq)
-    costs = None
+    costs, shared = None, None
     if auto:  # the channel count is known only at the end: keep the chunks, then pad
         parts: list = [None] * len(items)
     else:
         real, cplx = (np.float32, np.complex64) if job.single else (float, complex)
-        s = np.empty((n_freq, k), dtype=real)
-        drive = np.empty((n_freq, n_spk, k), dtype=cplx)
-        combine = np.empty((n_freq, n_mic, k), dtype=cplx)
-        computed = None if job.max_channels is None else np.full(n_freq, k)
+        specs = {"s": ((n_freq, k), real), "drive": ((n_freq, n_spk, k), cplx), "combine": ((n_freq, n_mic, k), cplx)}
         if job.track:
-            costs = np.empty((max(0, n_freq - 1), k, k))
-    freq_done = 0
-    for i, (s_c, d_c, c_c, sr_c, comp_c, cost_c) in iter_chunks(_channels_of_chunk, items, shared=job,
-                                                                workers=workers, scheduler=scheduler):
-        a, b = starts[i], starts[i + 1]
-        sum_rule[a:b] = sr_c
-        freq_done += len(sr_c)
-        if auto:
-            parts[i] = (s_c, d_c, c_c, comp_c)
+            specs["costs"] = ((max(0, n_freq - 1), k, k), float)
+        # the full SVD's results are written in place by the chunks: shared with local workers
+        # (no transfer through pipes), plain memory here; a Dask cluster sends them back
+        if job.max_channels is None and resolve_scheduler(scheduler) is None:
+            shared = SharedArrays(specs, in_memory=workers == 1 or len(items) <= 1)
+            job = replace(job, out=shared.key)
+            out = shared.arrays
         else:
-            s[a:b], drive[a:b], combine[a:b] = s_c, d_c, c_c
-            if costs is not None:
-                costs[a:b - 1] = cost_c
-        if progress is not None:
-            progress(freq_done, n_freq)
+            out = {name: np.empty(shape, dtype=dtype) for name, (shape, dtype) in specs.items()}
+        s, drive, combine, costs = out["s"], out["drive"], out["combine"], out.get("costs")
+        computed = None if job.max_channels is None else np.full(n_freq, k)
+    freq_done = 0
+    try:
+        for i, (s_c, d_c, c_c, sr_c, comp_c, cost_c) in iter_chunks(_channels_of_chunk, items, shared=job,
+                                                                    workers=workers, scheduler=scheduler):
+            a, b = starts[i], starts[i + 1]
+            sum_rule[a:b] = sr_c
+            freq_done += len(sr_c)
+            if auto:
+                parts[i] = (s_c, d_c, c_c, comp_c)
+            elif s_c is not None:
+                s[a:b], drive[a:b], combine[a:b] = s_c, d_c, c_c
+                if costs is not None:
+                    costs[a:b - 1] = cost_c
+            if progress is not None:
+                progress(freq_done, n_freq)
+    finally:
+        if shared is not None:
+            shared.close()
     if not auto:
         if costs is not None:   # the seams between chunks
             with one_blas_thread():

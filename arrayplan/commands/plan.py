@@ -5,8 +5,6 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-import matplotlib
-
 import numpy as np
 
 from ..errors import InputError
@@ -165,7 +163,10 @@ def check_plan_size(rig: Rig, n_freq: int, chunk_size: int, n_chan: int | None =
 
 
 def run(args: argparse.Namespace) -> int:
-    matplotlib.use("Agg")
+    if not args.no_figures:       # matplotlib loads only when figures are drawn
+        import matplotlib
+
+        matplotlib.use("Agg")
     rig = rig_from_args(args)
     kernel = None
     if args.irset:

@@ -40,7 +40,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special
 
 from ..errors import InputError
 
@@ -56,6 +55,8 @@ def piston_factor(v: np.ndarray) -> np.ndarray:
     v = np.asarray(v, dtype=float)
     out = np.ones_like(v)
     nz = np.abs(v) > 1e-8
+    from scipy import special   # here, not at import: scipy.special takes a third of a second to load
+
     out[nz] = 2.0 * special.j1(v[nz]) / v[nz]
     return out
 

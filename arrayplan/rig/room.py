@@ -38,7 +38,6 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from scipy.interpolate import PchipInterpolator
 
 from ..errors import InputError
 
@@ -130,6 +129,8 @@ class Room:
         if self.frequency_independent:
             return np.broadcast_to(self.absorption[:, 0], (hz.size, 6)).copy()
         logf = np.log(np.clip(hz, BAND_CENTRES_HZ[0], BAND_CENTRES_HZ[-1]))
+        from scipy.interpolate import PchipInterpolator   # here: slow to import, rarely needed
+
         out = PchipInterpolator(np.log(BAND_CENTRES_HZ), self.absorption, axis=1)(logf).T
         return np.clip(out, 0.0, 1.0)
 
