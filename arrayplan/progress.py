@@ -19,6 +19,7 @@ callback that :func:`arrayplan.channels.planning.plan_rig` and others accept.
 
 from __future__ import annotations
 
+import functools
 import os
 import sys
 import threading
@@ -26,7 +27,6 @@ import time
 from contextlib import contextmanager
 from typing import Callable, Iterator, TextIO
 
-from tqdm import tqdm
 
 __all__ = ["ProgressBar", "progress_wanted", "format_duration", "mini_bar", "ticking",
            "PROGRESS_ENV", "CI_ENV"]
@@ -90,25 +90,32 @@ def _columns(stream: TextIO) -> int:
         return 80
 
 
-class _Line(tqdm):
-    """A tqdm bar that draws its owner's line (:meth:`ProgressBar.text`) instead of tqdm's meter.
+@functools.lru_cache(maxsize=None)
+def _line_class():
+    """The tqdm bar class (tqdm is imported only when a bar is drawn: it costs ~0.1 s at start-up)."""
+    from tqdm import tqdm
 
-    tqdm does the drawing in place, the rate limiting, printing above the bar,
-    and ending or erasing the line; the owner supplies the text and the clock.
-    """
+    class _Line(tqdm):
+        """A tqdm bar that draws its owner's line (:meth:`ProgressBar.text`) instead of tqdm's meter.
 
-    monitor_interval = 0  # no monitor thread: the owner decides when to redraw
+        tqdm does the drawing in place, the rate limiting, printing above the bar,
+        and ending or erasing the line; the owner supplies the text and the clock.
+        """
 
-    def __init__(self, owner: "ProgressBar", initial: float) -> None:
-        self._owner = owner
-        super().__init__(total=owner.total, initial=initial, file=owner.stream, position=0, leave=True,
-                         mininterval=owner.min_interval_s, miniters=0, maxinterval=0, smoothing=0,
-                         dynamic_ncols=False, ncols=_columns(owner.stream))
-        self._time = owner._clock
-        self.last_print_t = self.start_t = owner._clock()
+        monitor_interval = 0  # no monitor thread: the owner decides when to redraw
 
-    def format_meter(self, *args, **kwargs) -> str:  # type: ignore[override]
-        return self._owner._fitted(self._owner._clock())
+        def __init__(self, owner: "ProgressBar", initial: float) -> None:
+            self._owner = owner
+            super().__init__(total=owner.total, initial=initial, file=owner.stream, position=0, leave=True,
+                             mininterval=owner.min_interval_s, miniters=0, maxinterval=0, smoothing=0,
+                             dynamic_ncols=False, ncols=_columns(owner.stream))
+            self._time = owner._clock
+            self.last_print_t = self.start_t = owner._clock()
+
+        def format_meter(self, *args, **kwargs) -> str:  # type: ignore[override]
+            return self._owner._fitted(self._owner._clock())
+
+    return _Line
 
 
 class ProgressBar:
@@ -161,7 +168,7 @@ class ProgressBar:
         self.done: float = 0.0
         self._clock = clock
         self._start: float = clock()
-        self._line: _Line | None = None   # the tqdm bar on screen, None when none is
+        self._line = None   # the tqdm bar on screen, None when none is
         self._finished = False
         self._lock = threading.RLock()
 
@@ -190,7 +197,7 @@ class ProgressBar:
                 self._start = now
             self.done = done
             if self._line is None:
-                self._line = _Line(self, done)   # draws the first state
+                self._line = _line_class()(self, done)   # draws the first state
             else:
                 self._line.total = self.total
                 self._line.update(done - self._line.n)

@@ -234,9 +234,13 @@ def _repeats(values: Sequence[str], what: str, source: str, label: str) -> list[
     return out
 
 
+#: Up to this many pairs, coincident points are found from every distance; beyond it with a KD-tree.
+_BRUTE_FORCE_PAIRS = 1_000_000
+
+
 def coincident_pairs(a: np.ndarray, b: np.ndarray | None = None, radius_m: float = COINCIDENT_M,
                      limit: int = MAX_COINCIDENT_LISTED) -> list[tuple[int, int]]:
-    """Pairs of points closer than `radius_m`, found with a KD-tree (n log n time, linear memory).
+    """Pairs of points closer than `radius_m`: every distance for small sets, else a KD-tree (n log n, linear memory).
 
     Parameters
     ----------
@@ -254,8 +258,6 @@ def coincident_pairs(a: np.ndarray, b: np.ndarray | None = None, radius_m: float
     list of (int, int)
         Row indices into `a` and `b` (or `a`), ordered by the first index, then the second.
     """
-    from scipy.spatial import cKDTree
-
     same = b is None
     b = a if same else b
     ia = np.flatnonzero(np.all(np.isfinite(a), axis=1))
@@ -263,6 +265,18 @@ def coincident_pairs(a: np.ndarray, b: np.ndarray | None = None, radius_m: float
     if not len(ia) or not len(ib):
         return []
     r = float(np.nextafter(radius_m, 0.0))            # strictly closer than radius_m
+    if len(ia) * len(ib) <= _BRUTE_FORCE_PAIRS:       # small rigs: every distance (no scipy.spatial import)
+        d = np.sqrt(np.sum((a[ia][:, None, :] - b[ib][None, :, :]) ** 2, axis=-1))
+        out = []
+        for k, m in zip(*np.nonzero(d <= r)):
+            i, j = int(ia[k]), int(ib[m])
+            if not same or j > i:
+                out.append((i, j))
+                if len(out) >= limit:
+                    break
+        return out
+    from scipy.spatial import cKDTree
+
     tree_b = cKDTree(b[ib])
     counts = tree_b.query_ball_point(a[ia], r, return_length=True)
     out: list[tuple[int, int]] = []
