@@ -59,7 +59,13 @@ _worker_shared: Any = None
 
 
 def available_cores() -> int:
-    """Cores this process may run on (its CPU affinity), at least 1."""
+    """Cores this process may run on (its CPU affinity).
+
+    Returns
+    -------
+    int
+        At least 1.
+    """
     try:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # not on Linux
@@ -67,7 +73,18 @@ def available_cores() -> int:
 
 
 def resolve_scheduler(scheduler: str | None) -> str | None:
-    """The scheduler to use: `scheduler`, else ``$ARRAYPLAN_SCHEDULER``, else None (local processes)."""
+    """The scheduler to use: `scheduler`, else ``$ARRAYPLAN_SCHEDULER``, else None (local processes).
+
+    Parameters
+    ----------
+    scheduler : str or None
+        ``"local:N"``, a dask.distributed address, or None.
+
+    Returns
+    -------
+    str or None
+        None means worker processes of this machine.
+    """
     if scheduler is None:
         scheduler = os.environ.get(SCHEDULER_ENV, "").strip() or None
     return scheduler
@@ -78,6 +95,12 @@ def one_blas_thread():
 
     Small matrix products and SVDs gain nothing from BLAS threads, and on a
     busy machine threaded BLAS runs them several times slower.
+
+    Returns
+    -------
+    threadpoolctl.threadpool_limits
+        The limit, already in force; as a context manager it restores the
+        previous limits at the end of the block.
     """
     from threadpoolctl import threadpool_limits
     return threadpool_limits(limits=1)
@@ -237,6 +260,11 @@ def alongside(func: Callable[..., Any], *args: Any) -> Iterator[None]:
     *args
         Passed to `func`.
 
+    Yields
+    ------
+    None
+        While the block runs, `func` runs in the child.
+
     Raises
     ------
     BaseException
@@ -300,6 +328,11 @@ def _probe(scheduler: str) -> None:
 
 def check_scheduler(scheduler: str) -> None:
     """Check a scheduler argument before any work: ``local:N`` well formed, a tcp:// address listening.
+
+    Parameters
+    ----------
+    scheduler : str
+        ``"local:N"`` or a dask.distributed address (``tcp://HOST:PORT``).
 
     Raises
     ------

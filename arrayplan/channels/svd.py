@@ -91,56 +91,133 @@ class ChannelSet:
 
     @property
     def n_channels(self) -> int:
+        """Columns of the weight arrays.
+
+        Returns
+        -------
+        int
+            n_chan: min(n_mic, n_spk), or the largest count computed in a truncated plan.
+        """
         return int(self.singular_values.shape[1])
 
     @property
     def truncated(self) -> bool:
-        """True when only the strongest channels were computed (see ``computed``)."""
+        """Whether only the strongest channels were computed (see ``computed``).
+
+        Returns
+        -------
+        bool
+        """
         return self.computed is not None
 
     def channels_computed(self) -> np.ndarray:
-        """Channels computed at each frequency, shape (n_freq,) (all of them unless truncated)."""
+        """Channels computed at each frequency (all of them unless truncated).
+
+        Returns
+        -------
+        ndarray of int, shape (n_freq,)
+        """
         if self.computed is None:
             return np.full(len(self.axis), self.n_channels)
         return np.asarray(self.computed)
 
     def share_not_computed(self) -> np.ndarray:
-        """Share of the sum rule in the channels not computed, 1 - sum s^2 / sum |G|^2, shape (n_freq,).
+        """Share of the sum rule in the channels not computed, 1 - sum s^2 / sum |G|^2.
 
-        Zero up to rounding (about 1e-15) for a complete plan.
+        Returns
+        -------
+        ndarray, shape (n_freq,)
+            Between 0 and 1; zero up to rounding (about 1e-15) for a complete plan.
         """
         return np.clip(1.0 - np.sum(self.power_coupling, axis=1) / self.sum_rule, 0.0, 1.0)
 
     @property
     def power_coupling(self) -> np.ndarray:
-        """s^2, shape (n_freq, n_chan)."""
+        """Power coupling of each channel.
+
+        Returns
+        -------
+        ndarray, shape (n_freq, n_chan)
+            s_j^2, in the unit of |G|^2 (1/m^2 for the free field).
+        """
         return self.singular_values ** 2
 
     def share_of_sum_rule(self) -> np.ndarray:
-        """s_j^2 / sum |G|^2, shape (n_freq, n_chan)."""
+        """Each channel's share of the sum rule.
+
+        Returns
+        -------
+        ndarray, shape (n_freq, n_chan)
+            s_j^2 / sum |G|^2 (a fraction, not percent).
+        """
         return self.power_coupling / self.sum_rule[:, None]
 
     def level_db(self) -> np.ndarray:
-        """10 log10(s_j^2 / s_max^2) at each frequency, dB; -inf for a zero channel."""
+        """Each channel's level against the strongest at its frequency.
+
+        Returns
+        -------
+        ndarray, shape (n_freq, n_chan)
+            10 log10(s_j^2 / s_max^2), dB (0 for the strongest); -inf for a zero channel.
+        """
         p = self.power_coupling
         with np.errstate(divide="ignore"):
             return 10.0 * np.log10(p / p.max(axis=1, keepdims=True))
 
     def strong_channels(self, threshold_db: float = 3.0) -> np.ndarray:
-        """Number of channels within `threshold_db` of the strongest, per frequency."""
+        """Number of channels within `threshold_db` of the strongest, per frequency.
+
+        Parameters
+        ----------
+        threshold_db : float
+            Level below the strongest channel, dB (the sign is ignored).
+
+        Returns
+        -------
+        ndarray of int, shape (n_freq,)
+        """
         return np.sum(self.level_db() >= -abs(threshold_db) - 1e-12, axis=1)
 
     def usable_channels(self, snr_db: float = 40.0) -> np.ndarray:
-        """Channels above the noise floor when the strongest has an SNR of `snr_db`, per frequency."""
+        """Channels above the noise floor when the strongest has an SNR of `snr_db`, per frequency.
+
+        Parameters
+        ----------
+        snr_db : float
+            Signal-to-noise ratio of the strongest channel, dB (the sign is ignored).
+
+        Returns
+        -------
+        ndarray of int, shape (n_freq,)
+            Channels whose level is above -`snr_db`.
+        """
         return np.sum(self.level_db() > -abs(snr_db), axis=1)
 
     def effective_channels(self) -> np.ndarray:
-        """Participation ratio (sum s^2)^2 / sum s^4, per frequency."""
+        """Participation ratio (sum s^2)^2 / sum s^4, per frequency.
+
+        Returns
+        -------
+        ndarray, shape (n_freq,)
+            Between 1 (one channel holds everything) and n_chan (all equal).
+        """
         p = self.power_coupling
         return np.sum(p, axis=1) ** 2 / np.sum(p ** 2, axis=1)
 
     def channel_matrix(self, g: np.ndarray) -> np.ndarray:
-        """``combine^T G drive`` for coupling matrices `g` of shape (n_freq, n_mic, n_spk)."""
+        """The channel matrix ``combine^T G drive``: how the planned channels couple through `g`.
+
+        Parameters
+        ----------
+        g : ndarray, complex, shape (n_freq, n_mic, n_spk)
+            Coupling matrices at this set's frequencies (the planned kernel
+            gives diag(s); measured or perturbed ones show crosstalk).
+
+        Returns
+        -------
+        ndarray, complex, shape (n_freq, n_chan, n_chan)
+            Entry [f, i, j]: output of channel i when channel j is driven.
+        """
         return np.einsum("fmi,fms,fsj->fij", self.combine, g, self.drive)
 
 
@@ -261,6 +338,17 @@ def _track_in_place(s: np.ndarray, drive: np.ndarray, combine: np.ndarray, costs
 
 def track_channels(channels: ChannelSet) -> ChannelSet:
     """Order and phase-align channels from bin to bin (see module Notes).
+
+    Parameters
+    ----------
+    channels : ChannelSet
+        Channels as the SVD found them (not changed).
+
+    Returns
+    -------
+    ChannelSet
+        A copy with columns reordered and rotated in phase per frequency,
+        ``tracked=True``.
 
     Notes
     -----
@@ -394,7 +482,21 @@ AUTO_PARALLEL_WORK = 1e8
 
 
 def workers_for(n_freq: int, n_mic: int, n_spk: int, workers: int | None) -> int:
-    """The worker count to use: `workers`, or for None all cores when the job is large enough."""
+    """The worker count to use: `workers`, or for None all cores when the job is large enough.
+
+    Parameters
+    ----------
+    n_freq, n_mic, n_spk : int
+        Size of the job: frequencies, microphones, speakers.
+    workers : int or None
+        The count asked for; None decides from the job's size
+        (:data:`AUTO_PARALLEL_WORK` multiply-adds or more: every core).
+
+    Returns
+    -------
+    int
+        Worker processes, at least 1.
+    """
     if workers is not None:
         return int(workers)
     from ..parallel import available_cores

@@ -84,7 +84,17 @@ def _fmt_level(x: float) -> str:
 
 
 def long_table_rows(plan: Plan) -> int:
-    """Rows of the long weight table ``weights.csv``: one per computed channel, side and element."""
+    """Rows of the long weight table ``weights.csv``: one per computed channel, side and element.
+
+    Parameters
+    ----------
+    plan : Plan
+
+    Returns
+    -------
+    int
+        Sum over frequencies of channels computed, times (n_spk + n_mic).
+    """
     ch = plan.channels
     return int(np.sum(ch.channels_computed())) * (len(ch.speaker_names) + len(ch.mic_names))
 
@@ -290,7 +300,18 @@ def _piston_note(rig) -> dict[str, str]:
 
 
 def coupling_text(units: str | None = None) -> str:
-    """The ``coupling`` line of ``weights.json``: free field (`units` None) or an IR set's `units`."""
+    """The ``coupling`` line of ``weights.json``: what one unit of G means.
+
+    Parameters
+    ----------
+    units : str, optional
+        An IR set's units (:data:`MEASURED_UNITS` keys); None for a model
+        kernel (pressure per unit source strength, 1/m).
+
+    Returns
+    -------
+    str
+    """
     if units is None:
         return "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)"
     return (f"G[f, m, s]: measured transfer function from speaker s's drive to microphone m, in the IR set's "
@@ -300,6 +321,11 @@ def coupling_text(units: str | None = None) -> str:
 
 def irset_sha256(path: str | os.PathLike) -> tuple[str, str]:
     """SHA-256 of an IR set as a plan records it: of ``irset.json`` in a folder, or of a ``.sofa`` file.
+
+    Parameters
+    ----------
+    path : path
+        An IR-set folder, its ``irset.json``, or a ``.sofa`` file.
 
     Returns
     -------
@@ -322,6 +348,15 @@ def planned_rig_file(sidecar: dict, plan_dir: str | os.PathLike,
 
     A relative path is tried from the working folder, the project folder (if
     given), the plan folder's parent and the plan folder itself.
+
+    Parameters
+    ----------
+    sidecar : dict
+        The plan's ``weights.json``.
+    plan_dir : path
+        The plan folder.
+    project : path, optional
+        A project folder to search too.
 
     Returns
     -------
@@ -416,6 +451,16 @@ class PlanWeights:
     combine : ndarray, complex, (n_freq, n_mic, n_chan)
     speaker_names, mic_names : tuple of str
     sidecar : dict
+        The folder's ``weights.json``.
+    sum_rule : ndarray, shape (n_freq,), or None
+        sum |G|^2 per frequency; None from plans written before it was stored.
+    computed : ndarray of int, shape (n_freq,), or None
+        Channels computed per frequency of a truncated plan; None when complete.
+
+    Parameters
+    ----------
+    axis, singular_values, drive, combine, speaker_names, mic_names, sidecar, sum_rule, computed
+        As the attributes.
     """
 
     def __init__(self, axis, singular_values, drive, combine, speaker_names, mic_names, sidecar, sum_rule=None,
@@ -474,6 +519,15 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
 
     The folder must match its checksums (:func:`arrayplan.formats.fileio.check_folder`),
     so weights of one run are never read beside a sidecar of another.
+
+    Parameters
+    ----------
+    plan_dir : path
+        A folder written by :func:`write_plan`.
+
+    Returns
+    -------
+    PlanWeights
 
     Raises
     ------
@@ -555,7 +609,19 @@ def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None, weights: Plan
 
 
 def summary_lines(plan: Plan, max_rows: int = 12) -> list[str]:
-    """A short human summary of a plan, for stdout."""
+    """A short human summary of a plan, for stdout.
+
+    Parameters
+    ----------
+    plan : Plan
+    max_rows : int
+        Frequencies shown (spread evenly over the axis).
+
+    Returns
+    -------
+    list of str
+        Lines without newlines.
+    """
     ch, rig = plan.channels, plan.rig
     hz = ch.axis.hz
     lines = [f"Rig '{rig.name}': {len(rig.speakers)} speakers, {len(rig.mics)} microphones, "
