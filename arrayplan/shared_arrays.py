@@ -57,10 +57,10 @@ def _layout(specs: Mapping[str, tuple[tuple[int, ...], type]]) -> tuple[list[tup
     return placed, max(offset, _ALIGN)
 
 
-def _folder() -> str:
-    """``/dev/shm`` when it is a writable folder (memory, not disk), else the temporary folder."""
+def _folders() -> list[str]:
+    """Where the file may go, best first: ``/dev/shm`` (memory, not disk) when writable, then the temporary folder."""
     shm = "/dev/shm"
-    return shm if os.path.isdir(shm) and os.access(shm, os.W_OK) else tempfile.gettempdir()
+    return ([shm] if os.path.isdir(shm) and os.access(shm, os.W_OK) else []) + [tempfile.gettempdir()]
 
 
 def _remove_stale(folder: str) -> None:
@@ -87,10 +87,18 @@ def _map(path: str, size: int, placed, create: bool) -> dict[str, np.ndarray]:
     fd = os.open(path, flags, 0o600)
     try:
         if create:
-            os.ftruncate(fd, size)
+            try:
+                # reserve every block now: a mapping that later runs out of space kills the process (SIGBUS)
+                os.posix_fallocate(fd, 0, size)
+            except OSError:
+                os.close(fd)
+                fd = -1
+                os.unlink(path)
+                raise
         buf = mmap.mmap(fd, size)
     finally:
-        os.close(fd)
+        if fd >= 0:
+            os.close(fd)
     return {name: np.frombuffer(buf, dtype=dtype, count=int(np.prod(shape, dtype=np.int64)),
                                 offset=offset).reshape(shape)
             for name, shape, dtype, offset in placed}
@@ -112,6 +120,13 @@ class SharedArrays:
     ----------
     key : str
         What a worker passes to :func:`arrays_for` (picklable, small).
+
+    Raises
+    ------
+    OSError
+        When no folder has room for the file (its blocks are reserved up
+        front, so a full ``/dev/shm`` or disk shows here, not as a crash of
+        a worker later).
     arrays : dict of str to ndarray
         The arrays, zero-filled, writable.
     """
@@ -123,12 +138,18 @@ class SharedArrays:
             self.arrays = {name: np.zeros(shape, dtype=dtype) for name, shape, dtype, _ in placed}
             self._path = None
         else:
-            folder = _folder()
-            _remove_stale(folder)
-            self._path = os.path.join(folder, f"arrayplan-{os.getpid()}-{uuid.uuid4().hex}.shared")
-            self.key = f"{self._path}|{size}|" + ";".join(
-                f"{name}:{','.join(map(str, shape))}:{dtype.str}:{offset}" for name, shape, dtype, offset in placed)
-            self.arrays = _map(self._path, size, placed, create=True)
+            fields = ";".join(f"{name}:{','.join(map(str, shape))}:{dtype.str}:{offset}"
+                              for name, shape, dtype, offset in placed)
+            for i, folder in enumerate(_folders()):
+                _remove_stale(folder)
+                self._path = os.path.join(folder, f"arrayplan-{os.getpid()}-{uuid.uuid4().hex}.shared")
+                self.key = f"{self._path}|{size}|{fields}"
+                try:
+                    self.arrays = _map(self._path, size, placed, create=True)
+                    break
+                except OSError:
+                    if i == len(_folders()) - 1:
+                        raise
         _MAPPED[self.key] = self.arrays
 
     def close(self) -> None:

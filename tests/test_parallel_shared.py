@@ -93,7 +93,7 @@ def test_files_of_dead_runs_are_removed(tmp_path, monkeypatch):
 
     dead = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True, text=True)
     pid = int(dead.stdout)
-    monkeypatch.setattr(shared_arrays, "_folder", lambda: str(tmp_path))
+    monkeypatch.setattr(shared_arrays, "_folders", lambda: [str(tmp_path)])
     stale = tmp_path / f"arrayplan-{pid}-0123.shared"
     stale.write_bytes(b"x")
     mine = tmp_path / f"arrayplan-{os.getpid()}-4567.shared"
@@ -101,3 +101,33 @@ def test_files_of_dead_runs_are_removed(tmp_path, monkeypatch):
     with SharedArrays({"a": ((2,), np.float64)}) as out:
         assert out.key.startswith(str(tmp_path))
     assert not stale.exists() and mine.exists()
+
+
+def test_no_room_for_the_file_is_an_oserror_not_a_crash(tmp_path, monkeypatch):
+    """posix_fallocate reserves the blocks up front: a too-large request fails at once (ENOSPC/EFBIG)."""
+    from arrayplan import shared_arrays
+
+    monkeypatch.setattr(shared_arrays, "_folders", lambda: [str(tmp_path)])
+    with pytest.raises(OSError):
+        SharedArrays({"huge": ((2 ** 47,), np.float64)})     # 1 PiB
+    assert not list(tmp_path.iterdir())
+
+
+def test_plan_falls_back_to_pipes_without_room(monkeypatch):
+    """Without room for the shared file the workers send results back; the plan is the same, bit for bit."""
+    from arrayplan import FreeFieldKernel, FrequencyAxis, Rig, decompose
+    from arrayplan import shared_arrays
+
+    rng = np.random.default_rng(2)
+    rig = Rig.from_positions(rng.uniform(size=(6, 3)), rng.uniform(size=(5, 3)) + [0, 0, 2])
+    axis = FrequencyAxis(np.linspace(200, 2000, 24))
+    ref = decompose(FreeFieldKernel(rig), axis, workers=2, chunk_size=4)
+
+    def no_room(*args, **kwargs):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(shared_arrays, "_map", no_room)
+    piped = decompose(FreeFieldKernel(rig), axis, workers=2, chunk_size=4)
+    for a, b in ((ref.singular_values, piped.singular_values), (ref.drive, piped.drive),
+                 (ref.combine, piped.combine)):
+        np.testing.assert_array_equal(a, b)

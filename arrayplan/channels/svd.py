@@ -617,7 +617,11 @@ def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progr
         # the full SVD's results are written in place by the chunks: shared with local workers
         # (no transfer through pipes), plain memory here; a Dask cluster sends them back
         if job.max_channels is None and resolve_scheduler(scheduler) is None:
-            shared = SharedArrays(specs, in_memory=workers == 1 or len(items) <= 1)
+            try:
+                shared = SharedArrays(specs, in_memory=workers == 1 or len(items) <= 1)
+            except OSError:            # no room for the shared file: results come back through pipes
+                shared = None
+        if shared is not None:
             job = replace(job, out=shared.key)
             out = shared.arrays
         else:
