@@ -76,11 +76,7 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.studies.layout_files",
     "arrayplan.studies.zone_files",
     # In progress on this branch.
-    "arrayplan.channels.field",
-    "arrayplan.channels.heuristics",
-    "arrayplan.channels.planning",
     "arrayplan.errors",
-    "arrayplan.frequency",
     "arrayplan.hardware.calibration",
     "arrayplan.hardware.devices",
     "arrayplan.hardware.duplex",
@@ -88,10 +84,6 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.hardware.session_files",
     "arrayplan.hardware.simulated",
     "arrayplan.hardware.take_analysis",
-    "arrayplan.kernels",
-    "arrayplan.kernels.coupling",
-    "arrayplan.kernels.freefield",
-    "arrayplan.kernels.model_irs",
     "arrayplan.limits",
     "arrayplan.progress",
     "arrayplan.rigcheck.findings",
@@ -116,7 +108,6 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.studies.trials",
     "arrayplan.studies.zone_filters",
     "arrayplan.studies.zones",
-    "arrayplan.verification.channels",
 }
 
 
