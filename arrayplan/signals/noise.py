@@ -60,6 +60,8 @@ def band_limited_noise(colour: str, duration_s: float, sample_rate_hz: float, f_
         Band limits, Hz, 0 < f_lo < f_hi <= fs/2.
     seed : int or None
         Seed of numpy's default generator, for a reproducible file.
+    source : str, optional
+        Named in messages.
 
     Returns
     -------
