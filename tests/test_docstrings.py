@@ -89,14 +89,6 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.rigcheck.findings",
     "arrayplan.rigcheck.physics",
     "arrayplan.safety",
-    "arrayplan.signals.deconvolve",
-    "arrayplan.signals.distortion_floor",
-    "arrayplan.signals.noise",
-    "arrayplan.signals.offline",
-    "arrayplan.signals.probe",
-    "arrayplan.signals.sweep_record",
-    "arrayplan.signals.unity",
-    "arrayplan.signals.wavout",
 }
 
 
