@@ -77,13 +77,6 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.studies.zone_files",
     # In progress on this branch.
     "arrayplan.errors",
-    "arrayplan.hardware.calibration",
-    "arrayplan.hardware.devices",
-    "arrayplan.hardware.duplex",
-    "arrayplan.hardware.measure_settings",
-    "arrayplan.hardware.session_files",
-    "arrayplan.hardware.simulated",
-    "arrayplan.hardware.take_analysis",
     "arrayplan.limits",
     "arrayplan.progress",
     "arrayplan.rigcheck.findings",
