@@ -83,7 +83,7 @@ def format_bytes(n_bytes: float) -> str:
     Returns
     -------
     str
-        Value with one decimal and unit (B, KiB, ... PiB).
+        Value to three significant digits and its unit (B, KiB, ... PiB).
     """
     value = float(n_bytes)
     for unit in ("B", "KiB", "MiB", "GiB", "TiB", "PiB"):

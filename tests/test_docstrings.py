@@ -75,9 +75,6 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.studies.files",
     "arrayplan.studies.layout_files",
     "arrayplan.studies.zone_files",
-    # In progress on this branch.
-    "arrayplan.progress",
-    "arrayplan.rigcheck.physics",
 }
 
 
