@@ -740,12 +740,8 @@ def max_pre_roll_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float) -> 
 
     Parameters
     ----------
-    kind : str
-        ``"exponential"`` or ``"linear"``.
-    f1_hz, f2_hz : float
-        Sweep limits (Hz).
-    duration_s : float
-        Sweep duration T (s).
+    kind, f1_hz, f2_hz, duration_s
+        As for :func:`default_pre_roll_s` (Hz, s).
 
     Returns
     -------
