@@ -114,7 +114,23 @@ def polygon_area_perimeter(vertices: np.ndarray) -> tuple[float, float]:
 
 
 def aperture_shape(positions: np.ndarray) -> ApertureShape:
-    """Classify `positions` (shape (n, 3), metres) as point, line, area or volume."""
+    """Classify `positions` (shape (n, 3), metres) as point, line, area or volume.
+
+    Principal axes come from the SVD of the centred positions; an extent
+    below 5 % of the largest counts as flat.
+
+    Parameters
+    ----------
+    positions : array_like, shape (n, 3)
+        Element positions (m).
+
+    Returns
+    -------
+    ApertureShape
+        For a line, the effective length (extent plus the median neighbour
+        spacing); for an area, the convex hull's area grown by half a
+        neighbour spacing all round (m^2).
+    """
     pos = np.asarray(positions, dtype=float)
     centre = pos.mean(axis=0)
     if len(pos) < 2:

@@ -66,6 +66,17 @@ _LAT_KEYS = {"samples", "sample_rate_hz", "output_channel", "input_channel", "de
 def read_calibration(path: str | os.PathLike) -> CalibrationRecord:
     """Read and check a calibration record.
 
+    Parameters
+    ----------
+    path : str or PathLike
+        The calibration TOML file.
+
+    Returns
+    -------
+    CalibrationRecord
+        Microphone sensitivities (mV/Pa), output full-scale voltages (V RMS)
+        and latency, with the file as source.
+
     Raises
     ------
     InputError
@@ -86,7 +97,25 @@ def read_calibration(path: str | os.PathLike) -> CalibrationRecord:
 
 
 def parse_calibration(text: str, src: str = "<text>") -> CalibrationRecord:
-    """Check and parse the TOML text of a calibration record (see :func:`read_calibration`)."""
+    """Check and parse the TOML text of a calibration record (see :func:`read_calibration`).
+
+    Parameters
+    ----------
+    text : str
+        TOML text.
+    src : str
+        Where the text came from, named in messages.
+
+    Returns
+    -------
+    CalibrationRecord
+        The checked record.
+
+    Raises
+    ------
+    InputError
+        As for :func:`read_calibration`.
+    """
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -195,7 +224,18 @@ def _array_of_tables_of(rows: Sequence[Sequence[tuple[str, Any, str]]]) -> Any:
 
 
 def format_calibration(rec: CalibrationRecord) -> str:
-    """The TOML text of `rec` (what :func:`write_calibration` writes), commented, through tomlkit."""
+    """The TOML text of `rec` (what :func:`write_calibration` writes), commented, through tomlkit.
+
+    Parameters
+    ----------
+    rec : CalibrationRecord
+        The record.
+
+    Returns
+    -------
+    str
+        TOML text with a header comment and a comment giving each value's unit.
+    """
     doc = tomlkit.document()
     for line in ("arrayplan calibration record (format: calibration/README.md).",
                  f"Written by arrayplan {__version__} on {now_utc()}.",
@@ -255,6 +295,18 @@ def write_calibration(path: str | os.PathLike, rec: CalibrationRecord) -> Path:
     The text is read back with :func:`parse_calibration` first, so a record
     that could not be read (a value out of range, a repeated name) is refused
     with an :class:`InputError` naming the field, and nothing is written.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        The TOML file to write.
+    rec : CalibrationRecord
+        The record.
+
+    Returns
+    -------
+    Path
+        The path written.
     """
     text = format_calibration(rec)
     try:
@@ -267,7 +319,20 @@ def write_calibration(path: str | os.PathLike, rec: CalibrationRecord) -> Path:
 
 
 def read_or_new(path: str | os.PathLike, description: str = "") -> CalibrationRecord:
-    """The record at `path`, or an empty one when the file does not exist yet."""
+    """The record at `path`, or an empty one when the file does not exist yet.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        The calibration TOML file.
+    description : str
+        Description of a new, empty record.
+
+    Returns
+    -------
+    CalibrationRecord
+        The file's record, checked, or an empty record with `path` as source.
+    """
     path = Path(path)
     if path.exists():
         return read_calibration(path)
@@ -278,7 +343,30 @@ def read_or_new(path: str | os.PathLike, description: str = "") -> CalibrationRe
 
 def read_wav_channel(path: str | os.PathLike, channel: int, *, field: str = "channel"
                      ) -> tuple[np.ndarray, float]:
-    """One channel (1-based) of a WAV file as float64, and its rate."""
+    """One channel (1-based) of a WAV file as float64, and its rate.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        The WAV file.
+    channel : int
+        1-based channel.
+    field : str
+        Field named in messages about the channel.
+
+    Returns
+    -------
+    x : ndarray, shape (n_samples,)
+        The channel, full scale = 1.
+    rate : float
+        Sample rate (Hz).
+
+    Raises
+    ------
+    InputError
+        A missing or unreadable file, a channel the file does not have, or
+        NaN or infinite samples.
+    """
     src = str(path)
     if not Path(src).is_file():
         raise InputError("recording not found", source=src, fix="check the path")
@@ -300,6 +388,25 @@ def tone_rms(x: np.ndarray, sample_rate_hz: float, frequency_hz: float, *, sourc
     calibrator being fitted and removed), the rest is band-passed over one
     third of an octave around the tone (4th-order Butterworth, zero phase),
     and its RMS returned.
+
+    Parameters
+    ----------
+    x : ndarray, shape (n_samples,)
+        The recording, full scale = 1.
+    sample_rate_hz : float
+        Sample rate (Hz).
+    frequency_hz : float
+        The tone's stated frequency (Hz).
+    source : str
+        Named in messages.
+    trim_fraction : float
+        Share of the recording skipped at each end.
+
+    Returns
+    -------
+    float
+        RMS of the band-passed tone (full scale = 1, so a full-scale sine
+        gives 0.707).
 
     Raises
     ------
@@ -395,6 +502,24 @@ def output_from_loopback_recording(path: str | os.PathLike, channel: int, output
 
     The output is wired (without amplifier) to an input whose full-scale
     voltage is known; a sine of peak `played_peak` (full scale 1) was played.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        WAV recording of the tone.
+    channel : int
+        1-based channel of the file holding it.
+    output_channel : int
+        1-based output channel that played it.
+    played_peak : float
+        Peak of the played sine (full scale = 1).
+    input_full_scale_vrms : float
+        RMS voltage of a full-scale sine at the recording input (V).
+    tone_frequency_hz : float
+        The tone's frequency (Hz).
+    amplifier_gain_db : float
+        Gain of the amplifier used after this output in the rig (dB), for
+        the record.
 
     Returns
     -------

@@ -39,7 +39,32 @@ _STAGING_PREFIX = ".staging-"
 
 @dataclass
 class TakeResult:
-    """One speaker's take, as saved in its take.json."""
+    """One speaker's take, as saved in its take.json.
+
+    Attributes
+    ----------
+    index : int
+        0-based speaker index in the rig.
+    speaker : str
+        The speaker's name.
+    folder : Path
+        The take's folder (``takes/<take_folder_name>``).
+    status : str
+        ``"ok"``, or ``"marked"`` when the take has warnings.
+    warnings : list of str
+        One line each.
+    latency_samples : int or None
+        Round-trip latency used (samples).
+    latency_source : str
+        ``"reference"``, ``"calibration"``, ``"given"`` or ``"none"``.
+    peak_to_noise_db : list of float or None
+        Per microphone, the response's peak-to-noise ratio (dB); None where
+        not measured.
+    resumed : bool
+        True when the take was read back from an earlier run.
+    details : dict
+        Further figures of the take's analysis.
+    """
 
     index: int
     speaker: str
@@ -54,13 +79,38 @@ class TakeResult:
 
 
 def take_folder_name(index: int, speaker: str) -> str:
-    """``"003-S3"``: 1-based index and the speaker's name made safe for file systems."""
+    """``"003-S3"``: 1-based index and the speaker's name made safe for file systems.
+
+    Parameters
+    ----------
+    index : int
+        0-based speaker index.
+    speaker : str
+        The speaker's name; characters other than letters, digits, ``-``,
+        ``_`` and ``.`` become ``_``.
+
+    Returns
+    -------
+    str
+        Three-digit 1-based index, ``-``, safe name.
+    """
     safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in speaker)
     return f"{index + 1:03d}-{safe}"
 
 
 def completed_takes(out_dir: Path) -> dict[str, Path]:
-    """Finished take folders in `out_dir` by folder name (those holding a take.json)."""
+    """Finished take folders in `out_dir` by folder name (those holding a take.json).
+
+    Parameters
+    ----------
+    out_dir : Path
+        The measurement folder (its ``takes/`` subfolder is searched).
+
+    Returns
+    -------
+    dict of str to Path
+        Folder name -> folder, in name order; empty without ``takes/``.
+    """
     takes = Path(out_dir) / "takes"
     if not takes.is_dir():
         return {}

@@ -92,6 +92,18 @@ def filter_names_from_sidecar(wav_path: str | Path, n_channels: int) -> list[str
     ``channel_names`` (plain strings, or objects with a ``name``).  Returns
     None when there is no sidecar or no such list.
 
+    Parameters
+    ----------
+    wav_path : str or Path
+        The filter WAV.
+    n_channels : int
+        Channels of the WAV: the number of names expected.
+
+    Returns
+    -------
+    list of str or None
+        One speaker name per channel, in channel order.
+
     Raises
     ------
     InputError

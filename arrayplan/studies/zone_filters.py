@@ -112,7 +112,21 @@ def zone_filter_taps(weights_at: Callable[[FrequencyAxis], np.ndarray], points: 
 
 
 def zone_points_rig(rig: Rig, zones: list[Zone]) -> Rig:
-    """The rig's speakers with the points of `zones` (in zone order) as its microphones."""
+    """The rig's speakers with the points of `zones` (in zone order) as its microphones.
+
+    Parameters
+    ----------
+    rig : Rig
+        Speakers and medium.
+    zones : list of Zone
+        Zones whose points become omnidirectional microphones.
+
+    Returns
+    -------
+    Rig
+        Microphones named ``<zone>:<point>``, channels 1..n; no room, zones
+        or frequencies carried over.
+    """
     pos = np.vstack([z.positions for z in zones])
     names = tuple(f"{z.name}:{n}" for z in zones for n in z.point_names)
     es = ElementSet(names, pos, (OMNI,) * len(pos), tuple(range(1, len(pos) + 1)))
