@@ -106,7 +106,18 @@ def convex_hull_2d(points: np.ndarray) -> np.ndarray:
 
 
 def polygon_area_perimeter(vertices: np.ndarray) -> tuple[float, float]:
-    """Area (shoelace formula) and perimeter of a simple polygon, in the units of `vertices` (h, 2)."""
+    """Area (shoelace formula) and perimeter of a simple polygon.
+
+    Parameters
+    ----------
+    vertices : ndarray, shape (h, 2)
+        Corners in order (either sense), m.
+
+    Returns
+    -------
+    (float, float)
+        Area in m^2 and perimeter in m.
+    """
     x, y = vertices[:, 0], vertices[:, 1]
     area = 0.5 * abs(float(np.dot(x, np.roll(y, -1)) - np.dot(y, np.roll(x, -1))))
     perimeter = float(np.sum(np.hypot(np.diff(x, append=x[0]), np.diff(y, append=y[0]))))
