@@ -161,7 +161,7 @@ def _plan_result(args: argparse.Namespace, irs, kernel) -> tuple[Verification, s
 
 def _filters_result(args: argparse.Namespace, irs, kernel) -> tuple[Verification, str, dict]:
     """Verify a filter folder's WAV taps on a fine grid over their band."""
-    from ..filters.files import read_filter_set
+    from ..formats.filter_set import read_filter_set
     from ..verification.filters import verify_filters
 
     if args.channels is not None:

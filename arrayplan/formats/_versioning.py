@@ -124,8 +124,6 @@ def read_json_document(path: str | os.PathLike, fix: str | None = None) -> Any:
     path = Path(path)
     try:
         return json.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise InputError("not found", source=str(path), fix=fix) from None
     except OSError as exc:
         raise InputError(f"cannot read ({exc.strerror or exc})", source=str(path), fix=fix) from None
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
