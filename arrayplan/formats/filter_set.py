@@ -346,7 +346,7 @@ def read_filter_set_sidecar(folder: str | os.PathLike) -> dict[str, Any]:
     Returns
     -------
     dict
-        The sidecar (module docstring).
+        ``filters.json`` as decoded (module docstring); its format and version checked, nothing else.
 
     Raises
     ------

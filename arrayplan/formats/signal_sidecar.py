@@ -33,14 +33,13 @@ another ``format`` and a newer ``format_version``.
 
 from __future__ import annotations
 
-import json
 import math
 import os
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 from ..errors import InputError
-from ._versioning import check, stamp
+from ._versioning import check, read_json_document, stamp
 from .fileio import write_json_atomic
 
 __all__ = ["SIGNAL_FORMAT", "SIGNAL_FORMAT_VERSION", "signal_sidecar", "inverse_filter_sidecar",
@@ -195,11 +194,7 @@ def read_signal_sidecar(path: str | os.PathLike) -> dict[str, Any]:
     src = str(path)
     if not path.is_file():
         raise InputError("signal sidecar not found", source=src, fix="give the .json written beside the signal file")
-    try:
-        obj = json.loads(path.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=src) from None
-    return check_signal_sidecar(obj, source=src)
+    return check_signal_sidecar(read_json_document(path), source=src)
 
 
 def write_signal_sidecar(path: str | os.PathLike, sidecar: Mapping[str, Any]) -> Path:
