@@ -179,7 +179,7 @@ def test_cli_writes_tables_sidecar_and_figures(tmp_path, capsys):
     assert {"tolerance.csv", "tolerance.json", "tolerance.npz", "tolerance-trials.npz", "gain-spread.png",
             "survival.png"} <= names
     side = json.loads((out / "tolerance.json").read_text())
-    assert side["kind"] == "arrayplan-tolerance-study" and side["settings"]["n_trials"] == 20
+    assert side["format"] == "arrayplan-tolerance-study" and side["settings"]["n_trials"] == 20
     assert side["settings"]["coupling_model"] == "direct"
     rows = (out / "tolerance.csv").read_text().splitlines()
     assert len(rows) == 1 + len(HZ) * 5

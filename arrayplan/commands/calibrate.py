@@ -111,8 +111,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def run_mic(args: argparse.Namespace) -> int:
-    from ..hardware.calibration import (mic_from_calibrator_recording, read_or_new,
-                                        sensitivity_db_re_1v_per_pa, write_calibration)
+    from ..formats.calibration_record import read_or_new, write_calibration
+    from ..hardware.calibration import mic_from_calibrator_recording, sensitivity_db_re_1v_per_pa
 
     rec = read_or_new(args.record, args.description)
     mic = mic_from_calibrator_recording(
@@ -128,7 +128,8 @@ def run_mic(args: argparse.Namespace) -> int:
 
 
 def run_output(args: argparse.Namespace) -> int:
-    from ..hardware.calibration import output_from_loopback_recording, read_or_new, write_calibration
+    from ..formats.calibration_record import read_or_new, write_calibration
+    from ..hardware.calibration import output_from_loopback_recording
 
     rec = read_or_new(args.record, args.description)
     out = output_from_loopback_recording(
@@ -142,7 +143,7 @@ def run_output(args: argparse.Namespace) -> int:
 
 
 def run_latency(args: argparse.Namespace) -> int:
-    from ..hardware.calibration import LatencyCalibration, now_utc, read_or_new, write_calibration
+    from ..formats.calibration_record import LatencyCalibration, now_utc, read_or_new, write_calibration
     from ..hardware.duplex import SoundDeviceLink
     from ..hardware.measure import estimate_latency
     from ..safety import print_caution
@@ -173,7 +174,8 @@ def run_latency(args: argparse.Namespace) -> int:
 
 
 def run_show(args: argparse.Namespace) -> int:
-    from ..hardware.calibration import read_calibration, sensitivity_db_re_1v_per_pa
+    from ..formats.calibration_record import read_calibration
+    from ..hardware.calibration import sensitivity_db_re_1v_per_pa
 
     rec = read_calibration(args.record)
     print(f"{args.record}: {rec.description}".rstrip(": "))

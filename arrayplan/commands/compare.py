@@ -13,6 +13,7 @@ from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, w
 from ..frequency import FrequencyAxis
 from ..channels.planning import plan_rig
 from ..formats.plan_folder import read_plan
+from ..formats.study_sidecars import stamp_study_sidecar
 from ..progress import ProgressBar
 from ..rig import load_rig
 from ._args import add_frequencies_option
@@ -96,7 +97,7 @@ def run(args: argparse.Namespace) -> int:
               "effective channels": np.array([s.effective for s in comparison.layouts])}
     if args.reference_snr_db is not None:
         series["capacity (bit/s/Hz)"] = np.array([s.capacity for s in comparison.layouts])
-    doc = {"kind": "arrayplan-comparison", "provenance": provenance(), "frequencies_hz": hz,
+    doc = {"provenance": provenance(), "frequencies_hz": hz,
            "reference_snr_db": args.reference_snr_db, "reference_snr": REFERENCE_SNR_MEANING,
            "usable_snr": STRONGEST_SNR_MEANING, "header": head, "rows": rows,
            "layouts": [{"name": s.name, "source": s.source, "kernel": s.kernel} for s in comparison.layouts]}
@@ -105,7 +106,7 @@ def run(args: argparse.Namespace) -> int:
         write_text_atomic(stage / "compare-by-frequency.csv", _csv(
             ["layout", "frequency_hz", "strong", "usable", "effective", "paraxial_estimate", "capacity_bit_per_s_hz"],
             per_f))
-        write_json_atomic(stage / "compare.json", doc)
+        write_json_atomic(stage / "compare.json", stamp_study_sidecar(doc, "comparison"))
         if not args.no_figures:
             from ..plots.layout import plot_comparison
             plot_comparison(hz, [s.name for s in comparison.layouts], series).savefig(stage / "compare.png", dpi=120)

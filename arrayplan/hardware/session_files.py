@@ -18,11 +18,10 @@ from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
 
-from ..formats.audiofiles import read_audio
 from ..errors import InputError
 from ..formats.fileio import (check_folder, clean_stale_staging, new_staging_folder, provenance, publish_folder,
                       write_checksums, write_json_atomic)
-from ..formats.irset import IRSet, write_irset
+from ..formats.irset import IRSet, read_irset, write_irset
 
 if TYPE_CHECKING:
     from ..signals.sweeps import SweepSignal
@@ -257,13 +256,16 @@ def _write_combined(out_dir: Path, takes: Sequence[TakeResult], wiring: RigWirin
         except InputError as exc:
             raise InputError(exc.problem, source=exc.source,
                              fix="delete this take's folder to measure it again") from None
-        wav = t.folder / "irset" / "spk-001.wav"
-        data, rate = read_audio(wav, what="a finished take's responses",
-                                fix="delete this take's folder to measure it again")
-        if rate != round(fs) or data.shape[1] != len(wiring.mic_names):
-            raise InputError(f"take does not match the session ({data.shape[1]} channels at {rate} Hz)",
-                             source=str(wav), fix="delete this take's folder to measure it again")
-        blocks.append(data)
+        try:
+            take = read_irset(t.folder / "irset")
+        except InputError as exc:
+            raise InputError(exc.problem, source=exc.source, field=exc.field,
+                             fix="delete this take's folder to measure it again") from None
+        if round(take.sample_rate_hz) != round(fs) or take.n_mic != len(wiring.mic_names) or take.n_spk != 1:
+            raise InputError(f"take does not match the session ({take.n_mic} microphones x {take.n_spk} speakers at "
+                             f"{take.sample_rate_hz:g} Hz)", source=str(t.folder / "irset"),
+                             fix="delete this take's folder to measure it again")
+        blocks.append(take.data[:, :, 0])
     lengths = {b.shape[0] for b in blocks}
     if len(lengths) != 1:
         raise InputError(f"takes have different lengths {sorted(lengths)}", source=str(out_dir))

@@ -8,7 +8,7 @@ example::
       plan/          weights.json (kind arrayplan-plan), weights.npz, summary.csv, ...
       filters/       filters.json, channel-NN-*.wav, check.csv
       meas/          session.json, takes/, irset/ (an IR set)
-      verify/        verify.json (kind arrayplan-verification), verify-*.csv
+      verify/        verify.json (format arrayplan-verification), verify-*.csv
       capacity/      capacity.json (kind arrayplan-capacity-study), tolerance/ tolerance.json (design studies)
 
 Each result is recognised by its sidecar, wherever it lies (up to
@@ -22,7 +22,6 @@ missing.
 
 from __future__ import annotations
 
-import csv
 import json
 import os
 import struct
@@ -39,6 +38,7 @@ from ..filters.check import FilterCheck
 from ..formats.irset import MANIFEST_NAME, IRSet, read_irset
 from ..frequency import FrequencyAxis
 from ..formats.plan_folder import PlanWeights, planned_rig_file, read_plan
+from ..formats.verification_folder import read_verification
 from ..channels.planning import Plan
 from ..rig import Rig, load_rig
 
@@ -144,13 +144,6 @@ def _read_json(path: Path) -> Any:
         return json.loads(path.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise InputError(f"cannot read ({exc.__class__.__name__}: {exc})", source=str(path)) from None
-
-
-def _read_csv(path: Path) -> list[dict[str, str]]:
-    if not path.exists():
-        raise InputError("missing", source=str(path))
-    with open(path, newline="", encoding="utf-8") as fh:
-        return list(csv.DictReader(fh))
 
 
 def _walk(root: Path) -> list[Path]:
@@ -276,19 +269,8 @@ def _load_irset(folder: Path) -> FoundIRSet:
 
 
 def _load_verification(folder: Path) -> FoundVerification:
-    check_folder(folder, needed=("verify*",))
-    doc = _read_json(folder / "verify.json")
-    arrays = None
-    if (folder / "verify.npz").is_file():
-        keys = ("frequency_hz", "channels", "channel_matrix", "planned_singular_value", "measured_singular_value",
-                "judged")
-        try:
-            with np.load(folder / "verify.npz", allow_pickle=False) as z:
-                arrays = {k: z[k] for k in keys}
-        except (ValueError, KeyError, OSError) as exc:
-            raise InputError(f"cannot read ({exc})", source=str(folder / "verify.npz")) from None
-    return FoundVerification(folder, doc, _read_csv(folder / "verify-channels.csv"),
-                             _read_csv(folder / "verify-summary.csv"), arrays)
+    v = read_verification(folder)
+    return FoundVerification(folder, v.doc, v.channel_rows, v.summary_rows, v.arrays)
 
 
 def _load_study(folder: Path) -> FoundStudy:
