@@ -1,5 +1,8 @@
 """``arrayplan calibrate``: create and show calibration records (TOML).
 
+Calibration records (TOML, documented in calibration/README.md) give measured impulse responses
+physical units and supply the interface latency.
+
 Sub-commands: ``mic`` (sensitivity from a calibrator recording), ``output``
 (full-scale voltage of an output from a tone recorded on a known input),
 ``latency`` (round trip through a loopback cable, measured live), ``show``.
@@ -13,7 +16,7 @@ import math
 import sys
 
 from ..errors import InputError
-from ._args import accept_old_spelling, channel_number, dbfs_level, float_in, positive_float
+from ._args import accept_old_spelling, add_command_group, channel_number, dbfs_level, float_in, positive_float
 
 __all__ = ["register", "run_mic", "run_output", "run_latency", "run_show"]
 
@@ -41,12 +44,7 @@ def _add_full_scale(p: argparse.ArgumentParser, what: str) -> None:
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    p = subparsers.add_parser(
-        "calibrate",
-        description="Calibration records (TOML, documented in calibration/README.md) give measured impulse "
-                    "responses physical units and supply the interface latency.")
-    sub = p.add_subparsers(dest="calibrate_command", metavar="WHAT", parser_class=type(p))
-    sub.required = True
+    sub = add_command_group(subparsers, "calibrate", __doc__, dest="calibrate_command", metavar="WHAT")
 
     m = sub.add_parser("mic", help="microphone sensitivity from a recording of an acoustic calibrator",
                        description="Record the calibrator seated on the microphone (a few seconds, the input gain "

@@ -1,4 +1,10 @@
-"""``arrayplan compare``: two or more layouts side by side on the same frequencies."""
+"""``arrayplan compare``: two or more layouts side by side on the same frequencies.
+
+Compare two or more layouts (rig files, planned here, or plan folders) on the same frequencies:
+strong, usable and effective channel counts, the paraxial estimate, element counts, aperture sizes
+and optionally capacity at an SNR. Writes a table, per-frequency values and an overlaid figure to
+--out.
+"""
 
 from __future__ import annotations
 
@@ -16,19 +22,16 @@ from ..formats.plan_folder import read_plan
 from ..formats.study_sidecars import stamp_study_sidecar
 from ..progress import ProgressBar
 from ..rig import load_rig
-from ._args import add_frequencies_option
+from ._args import add_frequencies_option, add_output_folder_options, command_description
 from ..studies._common import REFERENCE_SNR_MEANING, STRONGEST_SNR_MEANING
 from ..studies._tables import csv_text as _csv
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("compare", help="compare layouts: counts, apertures, capacity, one table",
-                       description="Compare two or more layouts (rig files, planned here, or plan folders) on the "
-                                   "same frequencies: strong, usable and effective channel counts, the paraxial "
-                                   "estimate, element counts, aperture sizes and optionally capacity at an SNR. "
-                                   "Writes a table, per-frequency values and an overlaid figure to --out.")
+                       description=command_description(__doc__))
     p.add_argument("layouts", nargs="+", metavar="RIG_OR_PLAN", help="rig files (TOML) or plan folders")
-    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+    add_output_folder_options(p)
     add_frequencies_option(p, "compare", "the first layout's frequencies")
     p.add_argument("--reference-snr-db", type=float, metavar="DB",
                    help="also give the capacity at this reference SNR: at a microphone 1 m from one speaker in "
@@ -37,7 +40,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--threshold-db", type=float, help="strong-channel threshold for rigs planned here, dB")
     p.add_argument("--snr-db", type=float, help="SNR of the strongest channel for the usable count of rigs planned "
                                                 "here, dB (as in 'arrayplan plan'; not the reference SNR)")
-    p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)
 
 

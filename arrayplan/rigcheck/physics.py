@@ -226,26 +226,31 @@ def piston_findings(rig: Rig, f_top: float) -> list[Finding]:
         return out
     if len(spk) > 1:
         gap = np.linalg.norm(spk.positions[:, None] - spk.positions[None], axis=-1) + np.diag(np.full(len(spk), np.inf))
-        clash = np.argwhere(np.triu(gap < radii[:, None] + radii[None, :], 1))
-        if clash.size:
-            i, j = clash[0]
-            out.append(Finding("warning", "speakers",
-                               f"pistons {spk.names[i]} and {spk.names[j]} are {gap[i, j]:.3g} m apart but "
-                               f"{2 * radii[i]:.3g} m and {2 * radii[j]:.3g} m across, so they cannot both be "
-                               f"mounted there ({len(clash)} such pair(s))",
-                               "space the drivers wider or give smaller radii"))
+        out += _first_pair(np.triu(gap < radii[:, None] + radii[None, :], 1), "speakers", lambda i, j, n: (
+            f"pistons {spk.names[i]} and {spk.names[j]} are {gap[i, j]:.3g} m apart but "
+            f"{2 * radii[i]:.3g} m and {2 * radii[j]:.3g} m across, so they cannot both be "
+            f"mounted there ({n} such pair(s))"), "space the drivers wider or give smaller radii")
     lam = rig.medium.speed_of_sound / f_top
     rayleigh = np.pi * radii ** 2 / lam
     dist = np.linalg.norm(rig.mics.positions[:, None] - spk.positions[None], axis=-1)
-    close = np.argwhere(dist < rayleigh[None, :])
-    if close.size:
-        i, j = close[0]
-        out.append(Finding("warning", "speakers/microphones",
-                           f"microphone {rig.mics.names[i]} is {dist[i, j]:.3g} m from piston {spk.names[j]}, inside "
-                           f"its Rayleigh distance pi a^2 / lambda = {rayleigh[j]:.3g} m at {f_top:.0f} Hz, where "
-                           f"the far-field piston pattern does not hold ({len(close)} such pair(s))",
-                           "move the microphones further out or plan below that frequency"))
+    out += _first_pair(dist < rayleigh[None, :], "speakers/microphones", lambda i, j, n: (
+        f"microphone {rig.mics.names[i]} is {dist[i, j]:.3g} m from piston {spk.names[j]}, inside "
+        f"its Rayleigh distance pi a^2 / lambda = {rayleigh[j]:.3g} m at {f_top:.0f} Hz, where "
+        f"the far-field piston pattern does not hold ({n} such pair(s))"),
+        "move the microphones further out or plan below that frequency")
     return out
+
+
+def _first_pair(flagged: np.ndarray, field: str, problem, fix: str) -> list[Finding]:
+    """A warning about the first flagged pair (i, j) of a boolean matrix, counting all of them; else none.
+
+    `problem(i, j, n_pairs)` words it.
+    """
+    pairs = np.argwhere(flagged)
+    if not pairs.size:
+        return []
+    i, j = pairs[0]
+    return [Finding("warning", field, problem(i, j, len(pairs)), fix)]
 
 
 def proximity_findings(rig: Rig, f_low: float) -> list[Finding]:
