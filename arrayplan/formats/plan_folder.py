@@ -41,6 +41,7 @@ import numpy as np
 
 from ..channels.svd import ChannelSet
 from ..errors import InputError
+from ._versioning import check
 from .npz import write_npz
 from .fileio import atomic_path, check_folder, provenance, staged_output_dir, write_json_atomic
 from ..frequency import FrequencyAxis
@@ -49,7 +50,7 @@ from ..channels.planning import Plan
 from ..parallel import alongside
 from ..rig import Rig, load_rig
 
-__all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
+__all__ = ["PLAN_FORMAT", "PLAN_FORMAT_VERSION", "write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
            "coupling_text", "long_table_rows", "LONG_TABLE_MAX_ROWS"]
 
 #: What one unit of a measured coupling means, by the IR set's units (see :data:`arrayplan.formats.irset.UNITS`).
@@ -62,6 +63,10 @@ NORMALISATION = ("drive and combine weight vectors have unit Euclidean norm per 
 PHASE = ("the speaker entry of largest magnitude in each drive vector is real and positive "
          "(tracked plans: phase follows the previous bin instead)")
 
+
+#: ``format`` and ``format_version`` of ``weights.json`` (plans of the previous release: ``kind``, same version).
+PLAN_FORMAT = "arrayplan-plan"
+PLAN_FORMAT_VERSION = 1
 
 #: Below this many rows ``weights.csv`` (the long weight table) is written by default; above it only
 #: on request, since its text is about 20 times the size of the same weights in ``weights.npz``.
@@ -246,8 +251,8 @@ def _sidecar(plan: Plan, with_long: bool = True) -> dict[str, Any]:
                               "in weights.npz, channels_computed in summary.csv); the sum rule comes from G, "
                               "and share_not_computed is the part of it in the channels not computed"}
     doc = {
-        "kind": "arrayplan-plan",
-        "format_version": 1,
+        "format": PLAN_FORMAT,
+        "format_version": PLAN_FORMAT_VERSION,
         "rig": {"name": rig.name, "source": rig.source, "sha256": rig.sha256,
                 "speed_of_sound_m_per_s": rig.medium.speed_of_sound, "air_absorption": rig.medium.air_absorption},
         "kernel": plan.kernel_name,
@@ -544,6 +549,8 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
     except (OSError, UnicodeDecodeError, ValueError) as exc:
         raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(side),
                          fix="run 'arrayplan plan' again to rewrite the folder") from None
+    check(sidecar, PLAN_FORMAT, PLAN_FORMAT_VERSION, str(side), legacy=PLAN_FORMAT,
+          fix="point at a folder written by 'arrayplan plan'")
     data = _weight_arrays(npz)
     check_folder(folder, needed=("weights.*", "*.csv"))
     return PlanWeights(FrequencyAxis(data["frequency_hz"], source=str(npz)), data["singular_value"],
