@@ -27,6 +27,12 @@ exp(-j k r), unit 1/m, as :mod:`arrayplan.kernels.freefield`.
 
 Reflection is specular and its coefficient real and independent of the
 angle of incidence; the walls are the six planes of a rectangular box.
+
+Evaluation: each phasor exp(-j k r) comes from a table of 4096 angles turned
+by short polynomials (within a few ulp of numpy's cos and sin, about five
+times faster); on an evenly spaced frequency grid, where the weights do
+not depend on frequency, the phasors of one frequency are those of the last
+times exp(-j dk r), evaluated afresh every 64 steps.
 """
 
 from __future__ import annotations
@@ -99,7 +105,7 @@ def _angle_table() -> tuple[np.ndarray, np.ndarray]:
 
 
 _TABLE_COS, _TABLE_SIN = _angle_table()
-#: Elements per piece of the phase evaluation (a dozen float64 buffers of 512 KiB, held in cache).
+#: Elements per piece of the phase evaluation (working memory: a dozen float64 buffers of 512 KiB).
 _PIECE = 1 << 16
 
 
@@ -155,9 +161,10 @@ def _cos_sin_of(phase: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """cos and sin of an array of phases (rad), any shape, by :class:`_CosSin` a piece at a time."""
     flat = np.ascontiguousarray(phase).reshape(-1)
     cos, sin = np.empty_like(flat), np.empty_like(flat)
-    calc = _CosSin(min(_PIECE, flat.size))
-    for start in range(0, flat.size, _PIECE):
-        sl = slice(start, start + _PIECE)
+    piece = min(_PIECE, flat.size)
+    calc = _CosSin(piece)
+    for start in range(0, flat.size, piece):
+        sl = slice(start, start + piece)
         calc(flat[sl], cos[sl], sin[sl])
     return cos.reshape(phase.shape), sin.reshape(phase.shape)
 
@@ -170,7 +177,8 @@ def _uniformly_spaced(k: np.ndarray) -> bool:
     return bool(step[0] > 0 and np.max(np.abs(step - step[0])) <= 1e-9 * max(1.0, float(np.max(np.abs(k)))))
 
 
-def _phasor_sum(k: np.ndarray, r: np.ndarray, w: np.ndarray, anchor_every: int = 64) -> np.ndarray:
+def _phasor_sum(k: np.ndarray, r: np.ndarray, w: np.ndarray, piece: int = _PIECE,
+                anchor_every: int = 64) -> np.ndarray:
     """sum_b w[b, p] exp(-j k[f] r[b, p]) for wavenumbers `k` (rad/m) and distances `r` (m).
 
     Parameters
@@ -178,6 +186,8 @@ def _phasor_sum(k: np.ndarray, r: np.ndarray, w: np.ndarray, anchor_every: int =
     k : ndarray, shape (n_f,)
     r, w : ndarray, shape (n_b, n_p)
         Path lengths and their weights.
+    piece : int
+        Elements (rows of `r` x n_p) evaluated at once, at least one row.
     anchor_every : int
         On an evenly spaced `k`, the phasors of each step are those of the
         step before times exp(-j dk r), and every `anchor_every` steps they
@@ -195,7 +205,7 @@ def _phasor_sum(k: np.ndarray, r: np.ndarray, w: np.ndarray, anchor_every: int =
     frequency is summed over the block before the next block is read.
     """
     n_b, n_p = r.shape
-    rows = max(1, _PIECE // max(1, n_p))
+    rows = max(1, piece // max(1, n_p))
     out = np.zeros((k.size, n_p), dtype=complex)
     parts = out.view(float).reshape(k.size, n_p, 2)
     calc = _CosSin(rows * n_p)
@@ -369,7 +379,8 @@ class RoomKernel:
         for sl, r, w, spk_cos, mic_cos in blocks:
             paths = r.size
             if beta_all is None and air_all is None and not spk_cos and not mic_cos:   # weights fixed in f
-                out += _phasor_sum(k_all, r.reshape(len(r), -1), w.reshape(len(w), -1)).reshape(out.shape)
+                out += _phasor_sum(k_all, r.reshape(len(r), -1), w.reshape(len(w), -1),
+                                   piece=min(_PIECE, self._chunk)).reshape(out.shape)
                 continue
             f_step = max(1, self._chunk // max(1, paths))
             for f0 in range(0, hz.size, f_step):
