@@ -37,8 +37,8 @@ Evaluation: where the requested frequencies lie on a grid k fs / N (to
 rounding; for example a filter check's FFT bins, or any subset of them),
 one real FFT per response gives them all: the responses (after latency and
 window, length N_h) are zero-padded to a multiple N' of N with N' >= N_h
-(the first such multiple that scipy.fft transforms fastest, where one lies
-within a factor two), the samples before zero lag wrapped to the end of
+(the shortest such multiple whose length scipy.fft.next_fast_len accepts,
+if one lies within twice the shortest), the samples before zero lag wrapped to the end of
 the buffer, so that bin k' = k N' / N of the FFT is exactly the sum above.
 The grid is used where it saves work (about when the frequencies on it
 times N_h exceed 2 N' log2 N'); every other frequency is summed directly,
