@@ -326,3 +326,77 @@ def test_smoothing_flattens_the_floor_comb():
 def test_bad_smoothing_width_is_refused(octaves):
     with pytest.raises(InputError, match="smoothing"):
         MeasuredKernel(free_field_irset(_rig(), FS, 512), smoothing_octaves=octaves)
+
+
+# --------------------------------------------------------------------------- FFT path against direct sums
+
+def _decaying_set(n: int, fs: float, n0: int, seed: int = 21) -> IRSet:
+    rng = np.random.default_rng(seed)
+    t = np.abs(np.arange(n) - n0)[:, None, None]
+    return IRSet(rng.standard_normal((n, 2, 3)) * np.exp(-t / 150.0), fs, ["a", "b", "c"], ["m1", "m2"],
+                 zero_lag_samples=n0)
+
+
+def _numpy_reference(irs: IRSet, hz: np.ndarray, window_s, latency: int) -> np.ndarray:
+    """G(f) = sum_n w[n] h[n + L] exp(-j 2 pi f (n - n0) / fs), written out with numpy and scipy.signal.
+
+    The window: 1 before zero lag and for the first 3/4 of `window_s` after it, then the falling half
+    of a Hann window (scipy.signal.windows.hann) reaching zero at `window_s`.
+    """
+    from scipy.signal.windows import hann
+
+    fs, n0 = irs.sample_rate_hz, irs.zero_lag_samples
+    h = irs.data[latency:]
+    w = np.ones(h.shape[0])
+    if window_s is not None:
+        n_end = int(round(window_s * fs))
+        n_fade = int(round(0.25 * n_end))
+        fade = np.concatenate([np.ones(n_end - n_fade), hann(2 * n_fade + 3)[n_fade + 2:2 * n_fade + 2]])
+        w[n0:] = 0.0
+        stop = min(h.shape[0], n0 + n_end)
+        w[n0:stop] = fade[:stop - n0]
+    t = np.arange(h.shape[0]) - n0
+    return np.einsum("ft,tms->fms", np.exp(-2j * np.pi * np.outer(hz, t) / fs), h * w[:, None, None])
+
+
+@pytest.mark.parametrize("fs, n_grid, pick", [
+    (8192.0, 1024, np.arange(3, 500, 3)),          # every third bin of a 1024-point grid (a subset)
+    (48000.0, 3000, np.arange(40, 600)),           # 16 Hz steps: a grid that is not a power of two
+    (8000.0, 256, np.arange(1, 128)),              # a grid shorter than the responses: a multiple of it is used
+])
+@pytest.mark.parametrize("n0, latency, window_s", [(0, 0, None), (37, 0, None), (37, 12, 0.06), (150, 5, 0.03)])
+def test_fft_path_matches_direct_sums_and_a_numpy_reference(fs, n_grid, pick, n0, latency, window_s):
+    # Shift theorem and zero padding (common practice, no source): on a grid k fs / N with N at least the
+    # response length, the DFT of the zero-padded response equals the direct sum of the module docstring.
+    # Reference: that sum written out with numpy (and scipy.signal.windows.hann for the window).
+    from arrayplan.kernels.measured import _fft_grid
+
+    irs = _decaying_set(700, fs, n0)
+    kernel = MeasuredKernel(irs, window_s=window_s, latency_samples=latency)
+    hz = pick * fs / n_grid
+    grid = _fft_grid(hz / fs, kernel.n_samples)
+    assert grid is not None and grid[1].all() and grid[0] % n_grid == 0 and grid[0] >= kernel.n_samples
+    ref = _numpy_reference(irs, hz, window_s, latency)
+    scale = np.max(np.abs(ref))
+    fast = kernel.evaluate(hz)
+    direct = kernel._direct(hz).reshape(fast.shape)
+    assert np.max(np.abs(fast - ref)) <= 1e-12 * scale
+    assert np.max(np.abs(direct - ref)) <= 1e-12 * scale
+    assert np.max(np.abs(fast - direct)) <= 1e-12 * scale
+
+
+def test_frequencies_off_the_grid_are_summed_directly():
+    # A filter check asks for its FFT bins but replaces 0 Hz by a tiny frequency; an off-grid frequency
+    # among grid frequencies is summed directly, the rest by FFT.  Reference: the sum written out with numpy.
+    from arrayplan.kernels.measured import _fft_grid
+
+    irs = _decaying_set(600, 8000.0, 20)
+    kernel = MeasuredKernel(irs, window_s=0.05)
+    hz = np.concatenate([[1e-6], np.arange(1, 300) * 8000.0 / 1024, [1234.567]])
+    n_fft, on, _ = _fft_grid(hz / 8000.0, kernel.n_samples)
+    assert not on[0] and not on[-1] and on[1:-1].all()
+    ref = _numpy_reference(irs, hz, 0.05, 0)
+    np.testing.assert_allclose(kernel.evaluate(hz), ref, rtol=0, atol=1e-12 * np.max(np.abs(ref)))
+    # scattered frequencies (no grid) and a handful of bins (direct sums are cheaper) take no FFT
+    assert _fft_grid(np.geomspace(100.0, 3000.0, 64) / 8000.0, kernel.n_samples) is None
+    assert _fft_grid(np.arange(1, 5) / 1024, kernel.n_samples) is None
