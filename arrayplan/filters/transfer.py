@@ -62,7 +62,7 @@ def filter_spectra(x: np.ndarray, n_fft: int, lo: int, hi: int, workers: int | N
     lo, hi : int
         First bin and one past the last, ``0 <= lo < hi <= n_fft // 2 + 1``.
     workers : int, optional
-        Threads of each FFT; default :data:`WORKERS`.
+        Threads; default :data:`WORKERS`.
 
     Returns
     -------
@@ -71,20 +71,26 @@ def filter_spectra(x: np.ndarray, n_fft: int, lo: int, hi: int, workers: int | N
 
     Notes
     -----
-    The columns are transformed a few at a time along contiguous rows of one
+    The columns are transformed a few at a time along contiguous rows of a
     zero-padded buffer (its zero tail written once), so each batch stays
     small (:data:`FFT_BATCH_BYTES`) and no transform runs along a strided
-    axis.  Each row's FFT is the same whatever the batch.
+    axis; each thread takes its own share of the columns with its own
+    buffer.  Each row's FFT is the same whatever the batch and thread.
     """
     n, a, b = x.shape
     cols = x.reshape(n, a * b)
     out = np.empty((hi - lo, a * b), dtype=complex)
     step = int(max(1, min(a * b, FFT_BATCH_BYTES // (8 * n_fft))))
-    padded = np.zeros((step, n_fft))
-    for c0 in range(0, a * b, step):
-        c1 = min(c0 + step, a * b)
-        padded[:c1 - c0, :n] = cols[:, c0:c1].T
-        out[:, c0:c1] = sp_fft.rfft(padded[:c1 - c0], axis=-1, workers=_threads(workers))[:, lo:hi].T
+
+    def transform(share: slice) -> None:
+        padded = np.zeros((min(step, share.stop - share.start), n_fft))
+        for c0 in range(share.start, share.stop, step):
+            c1 = min(c0 + step, share.stop)
+            padded[:c1 - c0, :n] = cols[:, c0:c1].T
+            out[:, c0:c1] = sp_fft.rfft(padded[:c1 - c0], axis=-1)[:, lo:hi].T
+
+    threads = _threads(workers)
+    map_chunks(transform, a * b, -(-a * b // threads), workers=threads)
     return out.reshape(hi - lo, a, b)
 
 
@@ -100,7 +106,7 @@ def spectra_over(drive: np.ndarray, combine: np.ndarray, n_fft: int, *bins: np.n
     *bins : ndarray of int
         Sets of bins of the `n_fft` grid.
     workers : int, optional
-        Threads of each FFT.
+        Threads; default :data:`WORKERS`.
 
     Returns
     -------
