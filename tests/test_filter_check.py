@@ -94,9 +94,10 @@ def plain_check(spk: np.ndarray, mic: np.ndarray, f, n_fft: int, n_out: int) -> 
 @pytest.mark.parametrize("workers", [1, 3])
 def test_check_equals_plain_per_bin_computation(monkeypatch, workers):
     # Independent computation in this test (plain_check: numpy.fft.rfft of the taps, the free-field
-    # Green's function, plain matrix products bin by bin).  Small chunks and FFT batches force many
-    # chunk and batch boundaries, on one thread and on several: the figures must not depend on them.
-    monkeypatch.setattr(transfer, "CHUNK_BYTES", 40_000)          # a few bins per chunk
+    # Green's function, plain matrix products bin by bin).  Small batches of the kernel, chunks and FFT
+    # batches force many boundaries, on one thread and on several: the figures must not depend on them.
+    monkeypatch.setattr(transfer, "RIG_BATCH_BYTES", 20_000)      # about 100 bins per call of the kernel
+    monkeypatch.setattr(transfer, "CHUNK_BYTES", 40_000)          # about 30 bins per chunk
     monkeypatch.setattr(transfer, "FFT_BATCH_BYTES", 200_000)     # a few columns per FFT batch
     rig = irregular_rig()
     f = design_filters(rig, FS, TAPS, BAND, min_level_db=-60.0)
@@ -121,6 +122,7 @@ def test_check_does_not_depend_on_threads_or_chunks(monkeypatch):
     rig = irregular_rig()
     f = design_filters(rig, FS, TAPS, BAND, min_level_db=-60.0)
     one = check_filters(rig, f, workers=1)
+    monkeypatch.setattr(transfer, "RIG_BATCH_BYTES", 5_000)
     monkeypatch.setattr(transfer, "CHUNK_BYTES", 10_000)
     monkeypatch.setattr(transfer, "FFT_BATCH_BYTES", 100_000)
     many = check_filters(rig, f, workers=4)

@@ -54,7 +54,7 @@ from ..kernels import rig_kernel
 from ..kernels.freefield import FreeFieldKernel
 from ..rig import Rig
 from .design import FilterSet
-from .transfer import (channel_transfer, chunk_bins, free_field_at, kernel_at, map_chunks, spectra_over, take_bins,
+from .transfer import (channel_transfer, free_field_at, kernel_at, over_bins, spectra_over, take_bins,
                        transfer_matrices)
 
 __all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "free_field_at", "kernel_at",
@@ -278,8 +278,8 @@ def _check_on_grid(rig_at: Callable[[np.ndarray], np.ndarray], filters: FilterSe
                    ) -> tuple[list[np.ndarray], np.ndarray, np.ndarray]:
     """The check's figures over the fine grid, chunk by chunk, without keeping the whole T.
 
-    Each chunk of `fine` bins (:func:`arrayplan.filters.transfer.map_chunks`)
-    evaluates the rig there, forms T and the reference gains, and keeps only
+    Each chunk of `fine` bins (:func:`arrayplan.filters.transfer.over_bins`)
+    takes the rig there, forms T and the reference gains, and keeps only
     its worst figures and the diagonal; the worst over all chunks is the
     worst over the grid.
 
@@ -302,8 +302,7 @@ def _check_on_grid(rig_at: Callable[[np.ndarray], np.ndarray], filters: FilterSe
     diag_c = np.empty((len(fine), len(kept)), dtype=complex)
     t_edges = np.empty((len(edges), len(kept)), dtype=complex)
 
-    def on_fine(sl: slice) -> list[np.ndarray]:
-        r = rig_at(fine[sl])
+    def on_fine(sl: slice, r: np.ndarray) -> list[np.ndarray]:
         d, c = take_bins(d_spec, i_fine, sl), take_bins(c_spec, i_fine, sl)
         t = transfer_matrices(r, d, c)                                  # (n, i, j)
         near = nearest[sl]
@@ -316,14 +315,13 @@ def _check_on_grid(rig_at: Callable[[np.ndarray], np.ndarray], filters: FilterSe
         return [_worst_db(diag / ref), cross, _worst_db(np.sum(np.abs(d) ** 2, axis=1), power=True),
                 _worst_db(np.sum(np.abs(c) ** 2, axis=1), power=True)]
 
-    def on_edges(sl: slice) -> None:
-        r = rig_at(edges[sl])
+    def on_edges(sl: slice, r: np.ndarray) -> None:
         t_edges[sl] = np.einsum("fmj,fmj->fj", take_bins(c_spec, i_edge, sl),
                                 np.matmul(r, take_bins(d_spec, i_edge, sl)))
 
-    step, total = chunk_bins(d_spec, c_spec), len(fine) + len(edges)
-    parts = map_chunks(on_fine, len(fine), step, progress, 0, total, workers)
-    map_chunks(on_edges, len(edges), step, progress, len(fine), total, workers)
+    total = len(fine) + len(edges)
+    parts = over_bins(rig_at, fine, on_fine, d_spec, c_spec, progress, 0, total, workers)
+    over_bins(rig_at, edges, on_edges, d_spec, c_spec, progress, len(fine), total, workers)
     worst = [np.max(np.stack(p), axis=0) for p in zip(*parts)]
     return worst, diag_c, t_edges
 

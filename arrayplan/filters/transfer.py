@@ -35,10 +35,13 @@ from ..kernels.freefield import FreeFieldKernel
 from ..rig import Rig
 
 __all__ = ["CHUNK_BYTES", "FFT_BATCH_BYTES", "WORKERS", "channel_transfer", "chunk_bins", "filter_spectra", "free_field_at",
-           "kernel_at", "map_chunks", "spectra_over", "take_bins", "transfer_matrices"]
+           "kernel_at", "map_chunks", "over_bins", "spectra_over", "take_bins", "transfer_matrices"]
 
 #: Bytes of one chunk of bins' temporaries in :func:`map_chunks` callers (small enough to stay in cache).
 CHUNK_BYTES = 2 * 2 ** 20
+#: Bytes of the coupling matrices of one call of ``rig_at`` in :func:`over_bins` (few calls: some kernels
+#: have a cost per call, e.g. smoothed measured responses transform all their responses each time).
+RIG_BATCH_BYTES = 16 * 2 ** 20
 #: Bytes of one batch of zero-padded rows in :func:`filter_spectra`.
 FFT_BATCH_BYTES = 8 * 2 ** 20
 #: Default number of threads: every core this process may use.
@@ -203,6 +206,48 @@ def map_chunks(work: Callable[[slice], object], n: int, step: int, progress=None
     return out
 
 
+def over_bins(rig_at: Callable[[np.ndarray], np.ndarray], bins: np.ndarray,
+              work: Callable[[slice, np.ndarray], object], d_spec: np.ndarray, c_spec: np.ndarray, progress=None,
+              done: int = 0, total: int | None = None, workers: int | None = None) -> list:
+    """``work(sl, r)`` over `bins`: the rig evaluated in batches, the work done in cache-sized chunks.
+
+    The rig is evaluated :data:`RIG_BATCH_BYTES` of coupling matrices at a
+    time (one ``rig_at`` call each; as many batches as the threads share
+    evenly), several batches at once on threads (:func:`map_chunks`); within
+    a batch, `work` runs on chunks of :func:`chunk_bins` bins.
+
+    Parameters
+    ----------
+    rig_at : callable
+        ``rig_at(bins)`` -> complex (len(bins), n_mic, n_spk).
+    bins : ndarray of int, shape (n,)
+    work : callable
+        ``work(sl, r)``: `sl` a slice of ``range(n)``, `r` the rig at
+        ``bins[sl]`` (a view).  Must write only its own slice of shared arrays.
+    d_spec, c_spec : ndarray
+        The drive and combine spectra (:func:`spectra_over`), for their sizes.
+    progress, done, total, workers
+        As in :func:`map_chunks`.
+
+    Returns
+    -------
+    list
+        ``work``'s results, one per chunk, in order.
+    """
+    n, threads = len(bins), _threads(workers)
+    largest = max(1, RIG_BATCH_BYTES // (16 * c_spec.shape[1] * d_spec.shape[1]))
+    n_batches = -(-n // largest)
+    n_batches = -(-n_batches // threads) * threads if n_batches > 1 or threads > 1 else n_batches
+    batch, step = max(1, -(-n // max(1, n_batches))), chunk_bins(d_spec, c_spec)
+
+    def run(sl: slice) -> list:
+        r = rig_at(bins[sl])
+        return [work(slice(b, min(b + step, sl.stop)), r[b - sl.start:min(b + step, sl.stop) - sl.start])
+                for b in range(sl.start, sl.stop, step)]
+
+    return [res for part in map_chunks(run, n, batch, progress, done, total, workers) for res in part]
+
+
 def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarray, combine: np.ndarray,
                      n_fft: int, fine: np.ndarray, diag_bins: np.ndarray, drive_ref: np.ndarray | None = None,
                      combine_ref: np.ndarray | None = None, progress=None, workers: int | None = None
@@ -253,20 +298,18 @@ def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarr
     t_diag = np.empty((len(diag_bins), n_chan), dtype=complex)
     ref = None if drive_ref is None else np.empty((len(fine), n_chan))
 
-    def whole(sl: slice) -> None:
-        r = rig_at(fine[sl])
+    def whole(sl: slice, r: np.ndarray) -> None:
         t_fine[sl] = transfer_matrices(r, take_bins(d_spec, i_fine, sl), take_bins(c_spec, i_fine, sl))
         if ref is not None:
             ref[sl] = np.abs(np.einsum("fmj,fmj->fj", combine_ref[sl], np.matmul(r, drive_ref[sl])))
 
-    def diagonal(sl: slice) -> None:
-        r = rig_at(diag_bins[sl])
+    def diagonal(sl: slice, r: np.ndarray) -> None:
         t_diag[sl] = np.einsum("fmj,fmj->fj", take_bins(c_spec, i_diag, sl),
                                np.matmul(r, take_bins(d_spec, i_diag, sl)))
 
-    step, total = chunk_bins(d_spec, c_spec), len(fine) + len(diag_bins)
-    map_chunks(whole, len(fine), step, progress, 0, total, workers)
-    map_chunks(diagonal, len(diag_bins), step, progress, len(fine), total, workers)
+    total = len(fine) + len(diag_bins)
+    over_bins(rig_at, fine, whole, d_spec, c_spec, progress, 0, total, workers)
+    over_bins(rig_at, diag_bins, diagonal, d_spec, c_spec, progress, len(fine), total, workers)
     drive_energy = np.sum(np.abs(take_bins(d_spec, i_fine, slice(None))) ** 2, axis=1)
     combine_energy = np.sum(np.abs(take_bins(c_spec, i_fine, slice(None))) ** 2, axis=1)
     return t_fine, t_diag, drive_energy, combine_energy, ref
