@@ -37,7 +37,7 @@ from ..rig import Rig
 __all__ = ["CHUNK_BYTES", "FFT_BATCH_BYTES", "WORKERS", "channel_transfer", "chunk_bins", "filter_spectra", "free_field_at",
            "kernel_at", "map_chunks", "over_bins", "spectra_over", "take_bins", "transfer_matrices"]
 
-#: Bytes of one chunk of bins' temporaries in :func:`map_chunks` callers (small enough to stay in cache).
+#: Bytes of the temporaries of one chunk of bins in :func:`over_bins` (small enough to stay in cache).
 CHUNK_BYTES = 2 * 2 ** 20
 #: Bytes of the coupling matrices of one call of ``rig_at`` in :func:`over_bins` (few calls: some kernels
 #: have a cost per call, e.g. smoothed measured responses transform all their responses each time).
