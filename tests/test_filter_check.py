@@ -130,3 +130,20 @@ def test_check_does_not_depend_on_threads_or_chunks(monkeypatch):
                  "crosstalk_db"):
         np.testing.assert_allclose(getattr(many, name), getattr(one, name), rtol=0, atol=1e-12, err_msg=name)
     np.testing.assert_array_equal(many.latency_samples, one.latency_samples)
+
+
+def test_an_error_in_one_chunk_reaches_the_caller_and_stops_the_rest():
+    # Common practice, no source: a failing piece of work is reported as itself, and the pieces not yet
+    # started are dropped instead of run to the end.
+    started = []
+
+    def work(sl):
+        started.append(sl.start)
+        if sl.start == 3:
+            raise ValueError("chunk 3 failed")
+        return sl.start
+
+    with pytest.raises(ValueError, match="chunk 3 failed"):
+        transfer.map_chunks(work, 400, 1, workers=2)
+    assert len(started) < 400
+    assert transfer.map_chunks(lambda sl: (sl.start, sl.stop), 10, 4, workers=3) == [(0, 4), (4, 8), (8, 10)]

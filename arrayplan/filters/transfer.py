@@ -193,11 +193,14 @@ def map_chunks(work: Callable[[slice], object], n: int, step: int, progress=None
     threads = _threads(workers)
     out = []
     if threads > 1 and len(slices) > 1:
-        with ThreadPoolExecutor(max_workers=threads) as pool:
+        pool = ThreadPoolExecutor(max_workers=threads)
+        try:
             for sl, res in zip(slices, pool.map(work, slices)):
                 out.append(res)
                 if progress is not None:
                     progress(done + sl.stop, total)
+        finally:                                  # on an error or Ctrl-C, start no further slice
+            pool.shutdown(wait=True, cancel_futures=True)
     else:
         for sl in slices:
             out.append(work(sl))
