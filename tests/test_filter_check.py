@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import time
+
 import numpy as np
 import pytest
 
@@ -139,6 +141,7 @@ def test_an_error_in_one_chunk_reaches_the_caller_and_stops_the_rest():
 
     def work(sl):
         started.append(sl.start)
+        time.sleep(0.005)                                         # 400 chunks take 1 s on two threads
         if sl.start == 3:
             raise ValueError("chunk 3 failed")
         return sl.start
