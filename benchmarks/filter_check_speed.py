@@ -12,12 +12,15 @@ default threads (every core this process may use) and once on one thread
 (``workers=1``; the SVD baseline runs on one).  The three run in turn
 `--repeats` times (so all see the same machine load); the median of the
 per-pair ratios check / SVD is printed for each, with the largest
-difference between the two checks' figures (they must agree).
+difference between the two checks' figures (they must agree) and the
+machine's load average before and after (other work on the cores slows
+the check, which moves much more memory, more than the SVD).
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import time
 
 import numpy as np
@@ -55,6 +58,7 @@ def main() -> None:
     rig = make_rig(args.n)
     filters = design_filters(rig, FS, args.taps, BAND, min_level_db=-60.0)
     stack = FreeFieldKernel(rig).evaluate(filters.plan.axis.hz)
+    load_before = os.getloadavg()[0]
     runs = {"default threads": None, "one thread": 1}
     t_svd, t_check = [], {name: [] for name in runs}
     checks = {}
@@ -68,6 +72,8 @@ def main() -> None:
     print(f"rig {args.n} x {args.n}, {args.taps} taps at {FS:g} Hz, band {BAND[0]:g}-{BAND[1]:g} Hz, "
           f"{len(filters.kept)} channels with filters, {len(filters.plan.axis.hz)} design bins, "
           f"check grid {chk.grid_factor:g}x finer than the bins, {WORKERS} default threads")
+    print(f"load average (1 min) before {load_before:.1f}, after {os.getloadavg()[0]:.1f}, "
+          f"on {os.cpu_count()} cores")
     print(f"bare numpy.linalg.svd of the design-bin stack: median {np.median(t_svd):.3f} s")
     for name in runs:
         ratios = np.asarray(t_check[name]) / np.asarray(t_svd)
