@@ -25,7 +25,7 @@ import numpy as np
 
 from _timing import best_of
 
-from arrayplan.irset import IRSet
+from arrayplan.formats.irset import IRSet
 from arrayplan.kernels.measured import MeasuredKernel
 
 FS = 48000.0

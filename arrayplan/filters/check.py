@@ -42,7 +42,6 @@ channel j the check reports
 
 from __future__ import annotations
 
-import os
 from dataclasses import dataclass
 from typing import Callable
 
@@ -55,6 +54,8 @@ from ..kernels import rig_kernel
 from ..kernels.freefield import FreeFieldKernel
 from ..rig import Rig
 from .design import FilterSet
+from .transfer import (channel_transfer, free_field_at, kernel_at, over_bins, spectra_over, take_bins,
+                       transfer_matrices)
 
 __all__ = ["FilterCheck", "channel_transfer", "check_filters", "check_grid", "free_field_at", "kernel_at",
            "kernel_ir_samples", "end_to_end_responses", "plot_crosstalk"]
@@ -175,149 +176,6 @@ def kernel_ir_samples(kernel: Kernel, sample_rate_hz: float) -> int:
     return int(max(4096, 2 ** int(np.ceil(np.log2(n)))))
 
 
-#: Memory budget of the temporaries of one batch in :func:`channel_transfer`, bytes.
-BATCH_BYTES = 64 * 2 ** 20
-#: Threads of each FFT (scipy.fft ``workers``): every core this process may use.
-FFT_WORKERS = max(1, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1))
-
-
-def _spectra_at(x: np.ndarray, n_fft: int, *bins: np.ndarray | slice) -> list[np.ndarray]:
-    """Zero-padded real FFTs of x (n, a, b) along axis 0 at each set of `bins`, a few columns at a time.
-
-    The FFTs run along contiguous rows of one zero-padded buffer, reused
-    from batch to batch, which is faster than along the first axis of the
-    original layout.
-    """
-    n_bins = np.arange(n_fft // 2 + 1)
-    out = [np.empty((len(n_bins[b]),) + x.shape[1:], dtype=complex) for b in bins]
-    n = x.shape[0]
-    per_column = (n_fft // 2 + 1) * 16 * x.shape[1]
-    step = int(max(1, BATCH_BYTES // per_column))
-    padded = np.zeros((x.shape[1], min(step, x.shape[2]), n_fft))  # zero tail written once, reused
-    for c0 in range(0, x.shape[2], step):
-        cols = slice(c0, min(c0 + step, x.shape[2]))
-        width = cols.stop - cols.start
-        padded[:, :width, :n] = np.moveaxis(x[:, :, cols], 0, -1)
-        spec = sp_fft.rfft(padded[:, :width], axis=-1, workers=FFT_WORKERS)
-        for o, b in zip(out, bins):
-            o[:, :, cols] = np.moveaxis(spec[:, :, b], -1, 0)
-    return out
-
-
-def channel_transfer(rig_at: Callable[[np.ndarray], np.ndarray], drive: np.ndarray, combine: np.ndarray,
-                     n_fft: int, fine: np.ndarray, diag_bins: np.ndarray, drive_ref: np.ndarray | None = None,
-                     combine_ref: np.ndarray | None = None, progress=None
-                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
-    """End-to-end transfer of drive filters -> rig -> combine filters, straight from the spectra.
-
-    The transfer is ``T(f) = Cb(f)^T R(f) D(f)`` (output i, input j), with R
-    the rig's coupling and D, Cb the discrete-time Fourier transforms of the
-    filter taps, sampled exactly by zero-padded real FFTs of length `n_fft`.
-    With R the FFT of impulse responses, T equals the FFT of the end-to-end
-    responses of :func:`end_to_end_responses` (zero-padded to `n_fft`).
-    Frequencies are taken in batches (:data:`BATCH_BYTES`).
-
-    Parameters
-    ----------
-    rig_at : callable
-        ``rig_at(bins)`` -> ndarray, complex, shape (len(bins), n_mic, n_spk): the
-        rig's coupling at those bins of the `n_fft` grid (bin k is k fs / n_fft).
-    drive : ndarray, shape (taps, n_spk, n_chan)
-    combine : ndarray, shape (taps_c, n_mic, n_chan)
-        The same channels as `drive`, in the same order.
-    n_fft : int
-        FFT length, at least `taps` and `taps_c`.
-    fine : ndarray of int, shape (n_fine,)
-        Bins where the whole matrix T is wanted (evenly spaced bins are read as views).
-    diag_bins : ndarray of int, shape (n_diag,)
-        Bins where only the diagonal T_jj is wanted.
-    drive_ref, combine_ref : ndarray, complex, shapes (n_fine, n_spk, n_chan) and (n_fine, n_mic, n_chan), optional
-        Reference weights at the `fine` bins; when given, the reference gains
-        ``|combine_ref_j^T R drive_ref_j|`` are returned too.
-    progress : callable, optional
-        ``progress(done, total)`` in bins.
-
-    Returns
-    -------
-    t_fine : ndarray, complex, shape (n_fine, n_chan, n_chan)
-        T at the `fine` bins.
-    t_diag : ndarray, complex, shape (n_diag, n_chan)
-        T_jj at the `diag_bins`.
-    drive_energy, combine_energy : ndarray, shape (n_fine, n_chan)
-        ``sum_s |D_sj|^2`` and ``sum_m |Cb_mj|^2`` at the `fine` bins.
-    ref_gain : ndarray, shape (n_fine, n_chan), or None
-        The reference gains, when reference weights are given.
-    """
-    n_fft = int(n_fft)
-    fine, diag_bins = np.asarray(fine, dtype=int), np.asarray(diag_bins, dtype=int)
-    # slices (views, no gather) where the bins are evenly spaced
-    picks = [slice(int(b[0]), int(b[-1]) + 1, int(b[1] - b[0])) if len(b) > 1 and np.all(np.diff(b) == b[1] - b[0])
-             else b for b in (fine, diag_bins)]
-    d_fine, d_diag = _spectra_at(drive, n_fft, *picks)             # (n_bins, n_spk, n_chan)
-    c_fine, c_diag = _spectra_at(combine, n_fft, *picks)           # (n_bins, n_mic, n_chan)
-    n_chan = drive.shape[2]
-    t_fine = np.empty((len(fine), n_chan, n_chan), dtype=complex)
-    ref = None if drive_ref is None else np.empty((len(fine), n_chan))
-    t_diag = np.empty((len(diag_bins), n_chan), dtype=complex)
-    per_bin = 16 * (drive.shape[1] + combine.shape[1] + 2 * n_chan) * max(drive.shape[1], n_chan)
-    batch = int(max(1, BATCH_BYTES // per_bin))
-    total, done = len(fine) + len(diag_bins), 0
-    for bins, whole in ((fine, True), (diag_bins, False)):
-        for b0 in range(0, len(bins), batch):
-            sl = slice(b0, min(b0 + batch, len(bins)))
-            r = rig_at(bins[sl])
-            if whole:
-                t_fine[sl] = np.matmul(np.swapaxes(c_fine[sl], 1, 2), np.matmul(r, d_fine[sl]))
-                if ref is not None:
-                    ref[sl] = np.abs(np.einsum("fmj,fmj->fj", combine_ref[sl], np.matmul(r, drive_ref[sl])))
-            else:
-                t_diag[sl] = np.einsum("fmj,fmj->fj", c_diag[sl], np.matmul(r, d_diag[sl]))
-            done += sl.stop - sl.start
-            if progress is not None:
-                progress(done, total)
-    drive_energy = np.sum(np.abs(d_fine) ** 2, axis=1)
-    combine_energy = np.sum(np.abs(c_fine) ** 2, axis=1)
-    return t_fine, t_diag, drive_energy, combine_energy, ref
-
-
-def free_field_at(rig: Rig, n_fft: int, sample_rate_hz: float) -> Callable[[np.ndarray], np.ndarray]:
-    """``rig_at(bins)`` for :func:`channel_transfer`: the free-field coupling at bins of an `n_fft` grid.
-
-    The same spectrum as :func:`arrayplan.kernels.model_irs.free_field_impulse_responses`
-    of `n_fft` samples: the kernel at every bin, its real limit at DC, zero
-    at the Nyquist bin of an even grid.
-    """
-    return kernel_at(FreeFieldKernel(rig), n_fft, sample_rate_hz)
-
-
-def kernel_at(kernel: Kernel, n_fft: int, sample_rate_hz: float) -> Callable[[np.ndarray], np.ndarray]:
-    """``rig_at(bins)`` for :func:`channel_transfer`: any kernel's coupling at bins of an `n_fft` grid.
-
-    Parameters
-    ----------
-    kernel : Kernel
-    n_fft : int
-        FFT length; bin k is k fs / n_fft.
-    sample_rate_hz : float
-
-    Returns
-    -------
-    callable
-        ``rig_at(bins)`` -> complex (len(bins), n_mic, n_spk): the kernel at
-        each bin, its real limit at DC, zero at the Nyquist bin of an even grid.
-    """
-
-    def rig_at(bins: np.ndarray) -> np.ndarray:
-        hz = np.asarray(bins, dtype=float) * sample_rate_hz / n_fft
-        g = kernel.evaluate(np.where(hz > 0, hz, 1e-6))
-        g[hz == 0] = g[hz == 0].real
-        if n_fft % 2 == 0:
-            g[np.asarray(bins) == n_fft // 2] = 0.0
-        return g
-
-    return rig_at
-
-
 def check_grid(taps: int, n_out: int, sample_rate_hz: float, band_hz: tuple[float, float],
                support_hz: tuple[float, float]) -> tuple[int, np.ndarray, np.ndarray, np.ndarray]:
     """The check's grid: at least OVERSAMPLE times finer than the design bins, and long enough.
@@ -361,7 +219,7 @@ def _worst_db(x: np.ndarray, power: bool = False) -> np.ndarray:
 
 
 def check_filters(kernel: Kernel | Rig, filters: FilterSet, *, limit_db: float = -40.0,
-                  progress=None) -> FilterCheck:
+                  progress=None, workers: int | None = None) -> FilterCheck:
     """Put the filters through a kernel and measure each channel's gain, energy and crosstalk.
 
     Parameters
@@ -376,6 +234,10 @@ def check_filters(kernel: Kernel | Rig, filters: FilterSet, *, limit_db: float =
         Pass/fail limit of the worst in-band crosstalk, dB.
     progress : callable, optional
         ``progress(done, total)`` in bins of the check's grid.
+    workers : int, optional
+        Threads (FFTs, and chunks of the grid at once); default every core
+        this process may use (:data:`arrayplan.filters.transfer.WORKERS`).
+        The results do not depend on it.
 
     Returns
     -------
@@ -393,30 +255,75 @@ def check_filters(kernel: Kernel | Rig, filters: FilterSet, *, limit_db: float =
     kept = list(filters.kept)
     # the planned weights of the nearest design bin at each fine frequency
     nearest = np.clip(np.round((fine_hz - plan_hz[0]) / bin_hz).astype(int), 0, len(plan_hz) - 1)
-    spec, t_edges, e_drive, e_combine, ref_gain = channel_transfer(
-        kernel_at(kernel, n_fft, fs), filters.drive, filters.combine, n_fft, fine, edges,
-        drive_ref=filters.plan.drive[:, :, kept][nearest], combine_ref=filters.plan.combine[:, :, kept][nearest],
-        progress=progress)
-    diag_c = np.einsum("fjj->fj", spec)
-    diag = np.abs(diag_c)
-    gain_err = _worst_db(diag / ref_gain)
+    worst, diag_c, t_edges = _check_on_grid(kernel_at(kernel, n_fft, fs), filters, n_fft, fine, edges, nearest,
+                                            progress, workers)
+    gain_err, crosstalk, e_drive, e_combine = worst
     # the design bins in band are every (n_fft / taps)-th fine bin (n_fft is a multiple of taps)
     band_mask = filters.in_band()
     on_bins = np.searchsorted(fine, np.round(plan_hz[band_mask] / (fs / n_fft)).astype(int))
-    bin_err = _worst_db(diag[on_bins] / filters.plan.singular_values[band_mask][:, kept])
-    mag = np.abs(spec)                                            # (n_fine, i, j)
-    used = _in_use(filters, nearest)                              # (n_fine, n_kept)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = 20 * np.log10(np.max(np.where(used[:, :, None] & used[:, None, :], mag / diag[:, :, None], 0.0),
-                                     axis=0))
+    bin_err = _worst_db(np.abs(diag_c[on_bins]) / filters.plan.singular_values[band_mask][:, kept])
+    with np.errstate(divide="ignore"):
+        ratio = 20 * np.log10(crosstalk)
     np.fill_diagonal(ratio, np.nan)
     # latency: peak of t_jj from its spectrum over the filters' band (band and transitions)
     full = np.zeros((n_fft // 2 + 1, len(kept)), dtype=complex)
     full[fine], full[edges] = diag_c, t_edges
     latency = np.argmax(np.abs(sp_fft.irfft(full, n=n_fft, axis=0)[:n_out]), axis=0)
     return FilterCheck(tuple(kept), gain_err, ratio, latency, float(limit_db), n_ir, bin_gain_error_db=bin_err,
-                       drive_energy_error_db=_worst_db(e_drive, power=True),
-                       combine_energy_error_db=_worst_db(e_combine, power=True), grid_factor=n_fft / taps)
+                       drive_energy_error_db=e_drive, combine_energy_error_db=e_combine, grid_factor=n_fft / taps)
+
+
+def _check_on_grid(rig_at: Callable[[np.ndarray], np.ndarray], filters: FilterSet, n_fft: int, fine: np.ndarray,
+                   edges: np.ndarray, nearest: np.ndarray, progress=None, workers: int | None = None
+                   ) -> tuple[list[np.ndarray], np.ndarray, np.ndarray]:
+    """The check's figures over the fine grid, chunk by chunk, without keeping the whole T.
+
+    Each chunk of `fine` bins (:func:`arrayplan.filters.transfer.over_bins`)
+    takes the rig there, forms T and the reference gains, and keeps only
+    its worst figures and the diagonal; the worst over all chunks is the
+    worst over the grid.
+
+    Returns
+    -------
+    worst : list of ndarray
+        Worst gain error (n_kept,) dB; worst |T_ij| / |T_ii| where both are
+        in use (n_kept, n_kept), a ratio; worst drive and combine energy
+        errors (n_kept,) dB.
+    diag : ndarray, complex, shape (n_fine, n_kept)
+        T_jj at the `fine` bins.
+    t_edges : ndarray, complex, shape (n_edge, n_kept)
+        T_jj at the `edges`.
+    """
+    kept = list(filters.kept)
+    drive_ref, combine_ref = filters.plan.drive[:, :, kept], filters.plan.combine[:, :, kept]
+    used = _in_use(filters, nearest)                              # (n_fine, n_kept)
+    d_spec, c_spec, (i_fine, i_edge) = spectra_over(filters.drive, filters.combine, n_fft, fine, edges,
+                                                    workers=workers)
+    diag_c = np.empty((len(fine), len(kept)), dtype=complex)
+    t_edges = np.empty((len(edges), len(kept)), dtype=complex)
+
+    def on_fine(sl: slice, r: np.ndarray) -> list[np.ndarray]:
+        d, c = take_bins(d_spec, i_fine, sl), take_bins(c_spec, i_fine, sl)
+        t = transfer_matrices(r, d, c)                                  # (n, i, j)
+        near = nearest[sl]
+        ref = np.abs(np.einsum("fmj,fmj->fj", combine_ref[near], np.matmul(r, drive_ref[near])))
+        diag_c[sl] = np.einsum("fjj->fj", t)
+        diag = np.abs(diag_c[sl])
+        both = used[sl, :, None] & used[sl, None, :]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cross = np.max(np.where(both, np.abs(t) / diag[:, :, None], 0.0), axis=0)
+        return [_worst_db(diag / ref), cross, _worst_db(np.sum(np.abs(d) ** 2, axis=1), power=True),
+                _worst_db(np.sum(np.abs(c) ** 2, axis=1), power=True)]
+
+    def on_edges(sl: slice, r: np.ndarray) -> None:
+        t_edges[sl] = np.einsum("fmj,fmj->fj", take_bins(c_spec, i_edge, sl),
+                                np.matmul(r, take_bins(d_spec, i_edge, sl)))
+
+    total = len(fine) + len(edges)
+    parts = over_bins(rig_at, fine, on_fine, d_spec, c_spec, progress, 0, total, workers)
+    over_bins(rig_at, edges, on_edges, d_spec, c_spec, progress, len(fine), total, workers)
+    worst = [np.max(np.stack(p), axis=0) for p in zip(*parts)]
+    return worst, diag_c, t_edges
 
 
 def _in_use(filters: FilterSet, nearest: np.ndarray) -> np.ndarray:
