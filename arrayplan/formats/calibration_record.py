@@ -81,7 +81,7 @@ class MicCalibration:
     recording : str
         File the value came from (for provenance).
     measured_utc : str
-        When it was measured, ISO 8601 UTC (:func:`now_utc`), or "".
+        When the calibrator was recorded, ISO 8601 UTC (:func:`now_utc`), or "".
     """
 
     name: str
@@ -99,10 +99,12 @@ class MicCalibration:
     def pascal_per_full_scale(self) -> float:
         """Pressure that a sample value of 1.0 at this input stands for.
 
+        ``sqrt(2) * input_full_scale_vrms / (sensitivity_mv_per_pa / 1000)``: a full-scale sine has peak 1.0.
+
         Returns
         -------
         float
-            Pa per full-scale unit: ``sqrt(2) * input_full_scale_vrms / (sensitivity_mv_per_pa / 1000)``.
+            Pa per full-scale unit.
         """
         return math.sqrt(2.0) * self.input_full_scale_vrms / (self.sensitivity_mv_per_pa / 1000.0)
 
@@ -138,7 +140,7 @@ class OutputCalibration:
         Returns
         -------
         float
-            V per full-scale unit: ``sqrt(2) * full_scale_vrms * 10^(amplifier_gain_db / 20)``.
+            V per full-scale unit, ``sqrt(2) * full_scale_vrms * 10^(amplifier_gain_db / 20)``.
         """
         return math.sqrt(2.0) * self.full_scale_vrms * 10.0 ** (self.amplifier_gain_db / 20.0)
 
@@ -158,7 +160,7 @@ class LatencyCalibration:
     device : str
         The audio interface's name, or "".
     measured_utc : str
-        When it was measured, ISO 8601 UTC (:func:`now_utc`), or "".
+        Time of the measurement (UTC, ISO 8601), or "".
     """
 
     samples: int
@@ -219,7 +221,7 @@ class CalibrationRecord:
         Returns
         -------
         OutputCalibration or None
-            None when the record holds no such output.
+            None when the channel is not in the record.
         """
         return next((o for o in self.outputs if o.channel == channel), None)
 
@@ -229,7 +231,7 @@ class CalibrationRecord:
         Parameters
         ----------
         mic : MicCalibration
-            The new entry.
+            The new entry, keyed by its name.
 
         Returns
         -------
@@ -245,18 +247,20 @@ class CalibrationRecord:
         Parameters
         ----------
         out : OutputCalibration
-            The new entry.
+            The output's new calibration, keyed by its channel.
 
         Returns
         -------
         CalibrationRecord
-            The outputs sorted by channel; this record is unchanged.
+            A new record, its outputs sorted by channel.
         """
         outs = tuple(o for o in self.outputs if o.channel != out.channel) + (out,)
         return replace(self, outputs=tuple(sorted(outs, key=lambda o: o.channel)))
 
     def with_latency(self, latency: LatencyCalibration) -> "CalibrationRecord":
         """A copy with `latency` in place of the stored latency.
+
+        The latency holds only at its sample rate (:meth:`latency_samples_at`).
 
         Parameters
         ----------

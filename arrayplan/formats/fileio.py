@@ -240,8 +240,8 @@ def write_json_atomic(path: str | os.PathLike, obj: Any) -> Path:
 
     Parameters
     ----------
-    path
-        As for :func:`write_bytes_atomic`.
+    path : path
+        The file to write, as for :func:`write_bytes_atomic`.
     obj : object
         JSON-ready data; numpy values and paths allowed (:func:`json_default`).
 

@@ -139,10 +139,12 @@ class IRSet:
     def n_samples(self) -> int:
         """Length of every response.
 
+        Time runs along the first axis of `data`; sample :attr:`zero_lag_samples` is zero lag.
+
         Returns
         -------
         int
-            Samples per response (the first axis of `data`).
+            Samples per response.
         """
         return int(self.data.shape[0])
 
@@ -150,10 +152,12 @@ class IRSet:
     def n_mic(self) -> int:
         """Number of microphones.
 
+        The middle axis of `data`.
+
         Returns
         -------
         int
-            The middle axis of `data`.
+            One per name in :attr:`mic_names`, in their order.
         """
         return int(self.data.shape[1])
 
@@ -161,10 +165,12 @@ class IRSet:
     def n_spk(self) -> int:
         """Number of speakers.
 
+        One WAV file each; the last axis of `data`.
+
         Returns
         -------
         int
-            The last axis of `data`.
+            The length of :attr:`speaker_names`.
         """
         return int(self.data.shape[2])
 

@@ -38,6 +38,8 @@ __all__ = ["StudySidecar", "STUDY_SIDECARS", "stamp_study_sidecar", "read_study_
 class StudySidecar:
     """One study's sidecar: its file name, ``format`` and newest ``format_version``.
 
+    :data:`STUDY_SIDECARS` holds one per study (the table in the module notes).
+
     Attributes
     ----------
     file : str

@@ -171,7 +171,7 @@ class FieldReader:
         Returns
         -------
         float
-            The value, or `default`.
+            The value as a float, or `default`.
         """
         field = self._field(where, key)
         found, v = self._lookup(table, key, field, default, f"add {key} = <number>")
@@ -229,7 +229,7 @@ class FieldReader:
         Returns
         -------
         tuple of float
-            The values, or `default`.
+            The values, one per component, or `default`.
         """
         field = self._field(where, key)
         found, v = self._lookup(table, key, field, default, f"add {key} = [{', '.join(['0'] * n)}]")
@@ -257,7 +257,7 @@ class FieldReader:
         Returns
         -------
         str
-            The value, or `default`.
+            The string as written (not stripped), or `default`.
         """
         field = self._field(where, key)
         found, v = self._lookup(table, key, field, default, None)
@@ -279,7 +279,7 @@ class FieldReader:
         Returns
         -------
         bool
-            The value, or `default`.
+            ``True`` or ``False``, or `default`.
         """
         field = self._field(where, key)
         found, v = self._lookup(table, key, field, default, f"add {key} = true (or false)")

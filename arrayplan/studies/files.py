@@ -58,6 +58,8 @@ def _bits(x: float) -> str:
 def capacity_verdict(study: CapacityStudy) -> str:
     """One line for people: what the plan carries at the lowest and highest SNR.
 
+    The sidecar's ``verdict``; ``arrayplan study capacity`` prints it.
+
     Parameters
     ----------
     study : CapacityStudy
@@ -161,7 +163,9 @@ def capacity_figures(study: CapacityStudy, water_freq_index: int | None = None) 
 
     Parameters
     ----------
-    study, water_freq_index
+    study : CapacityStudy
+        The study to draw.
+    water_freq_index : int, optional
         As for :func:`write_capacity_study`.
 
     Returns
@@ -177,6 +181,8 @@ def capacity_figures(study: CapacityStudy, water_freq_index: int | None = None) 
 
 def tolerance_verdict(study: ToleranceStudy) -> str:
     """One line for people: which channels keep the isolation limit in 95 % of trials.
+
+    The sidecar's ``verdict``; ``arrayplan study tolerance`` prints it.
 
     Parameters
     ----------
@@ -355,7 +361,7 @@ def read_tolerance_study(folder: str | os.PathLike) -> tuple[ToleranceStudy, dic
     Parameters
     ----------
     folder : path
-        A folder written by :func:`write_tolerance_study`.
+        The study folder, as :func:`write_tolerance_study` wrote it.
 
     Returns
     -------

@@ -146,7 +146,7 @@ def summary_lines(choice: LayoutChoice) -> list[str]:
     Parameters
     ----------
     choice : LayoutChoice
-        The chosen layout and how it was found.
+        The layout chosen, with the steps that found it.
 
     Returns
     -------
