@@ -62,6 +62,8 @@ MAX_LATENCY_SAMPLES = 10_000_000
 class MicCalibration:
     """One microphone on one input.
 
+    :func:`arrayplan.hardware.calibration.mic_from_calibrator_recording` makes one from a calibrator recording.
+
     Attributes
     ----------
     name : str

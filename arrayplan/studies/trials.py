@@ -132,6 +132,8 @@ class TrialProblem:
     def model(self) -> str:
         """Which perturbation model the trials use (module Notes).
 
+        "ratio" scales the plan's couplings by the kernel's change on each path.
+
         Returns
         -------
         str

@@ -345,7 +345,7 @@ def reference_speaker(speaker_positions: np.ndarray) -> int:
     Parameters
     ----------
     speaker_positions : array_like, shape (n_spk, 3)
-        Speaker positions (m).
+        The speakers' positions (m), in rig order.
 
     Returns
     -------
