@@ -171,7 +171,7 @@ class FrequencyAxis:
         Parameters
         ----------
         speed_of_sound : float
-            c (m/s).
+            The speed of sound c (m/s), as for :meth:`wavenumbers`.
 
         Returns
         -------

@@ -165,12 +165,12 @@ def permitted_exposure_osha(dba: float) -> float:
     Parameters
     ----------
     dba : float
-        A-weighted level (dBA).
+        A-weighted level (dBA), as for :func:`permitted_exposure_niosh`.
 
     Returns
     -------
     float
-        Permitted exposure per day (s).
+        Permitted exposure per day (s), by the OSHA rule.
     """
     return _permitted(float(dba), OSHA_CRITERION_DBA, OSHA_EXCHANGE_RATE_DB)
 

@@ -45,14 +45,6 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.filters.design",
     "arrayplan.filters.source",
     "arrayplan.filters.taps_search",
-    "arrayplan.formats.deconvolution_summary",
-    "arrayplan.formats.fileio",
-    "arrayplan.formats.irset",
-    "arrayplan.formats.tomlfields",
-    "arrayplan.formats.calibration_record",
-    "arrayplan.formats.study_sidecars",
-    "arrayplan.hardware.calibration",
-    "arrayplan.hardware.measure",
     "arrayplan.kernels.measured",
     "arrayplan.kernels.room",
     "arrayplan.plots.channels",
@@ -70,9 +62,6 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.report.rigs",
     "arrayplan.report.studies",
     "arrayplan.report.verdicts",
-    "arrayplan.studies.files",
-    "arrayplan.studies.layout_files",
-    "arrayplan.studies.zone_files",
 }
 
 

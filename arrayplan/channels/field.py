@@ -28,6 +28,8 @@ _AXES = {"xy": (0, 1, 2), "xz": (0, 2, 1), "yz": (1, 2, 0)}
 class PlaneGrid:
     """A rectangular grid in a coordinate plane.
 
+    Where :func:`channel_field` evaluates a field map.
+
     Attributes
     ----------
     plane : str

@@ -33,6 +33,8 @@ _ANGLE_TOL_DEG = 15.0
 class ApertureShape:
     """Principal shape of a set of element positions.
 
+    Made by :func:`aperture_shape`.
+
     Attributes
     ----------
     kind : str

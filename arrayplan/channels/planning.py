@@ -30,8 +30,11 @@ class Plan:
     Attributes
     ----------
     rig : Rig
+        The rig planned.
     channels : ChannelSet
+        Singular values and weights of every channel at every planned frequency.
     estimate : ParaxialEstimate
+        The paraxial heuristic's channel count, to compare with the SVD's.
     threshold_db, snr_db : float
         The settings the strong and usable counts were made with.
     kernel_name : str
@@ -65,7 +68,7 @@ class Plan:
         Returns
         -------
         ndarray of int, shape (n_freq,)
-            Counts from :meth:`ChannelSet.usable_channels`.
+            How many channels :meth:`ChannelSet.usable_channels` counts at each frequency.
         """
         return self.channels.usable_channels(self.snr_db)
 

@@ -59,9 +59,12 @@ _TIE_RTOL = 1e-6
 class ChannelSet:
     """The channels of a rig at every planned frequency.
 
+    Each frequency's SVD G = U S V^H, with the weights of each channel as columns.
+
     Attributes
     ----------
     axis : FrequencyAxis
+        The planned frequencies (Hz).
     singular_values : ndarray, shape (n_freq, n_chan)
         Amplitude coupling s_j (unit of G, 1/m for the free field).
     drive : ndarray, complex, shape (n_freq, n_spk, n_chan)

@@ -114,6 +114,7 @@ def read_json_document(path: str | os.PathLike, fix: str | None = None) -> Any:
     Parameters
     ----------
     path : path
+        The JSON file.
     fix : str, optional
         What to point at instead, for the message.
 

@@ -62,6 +62,8 @@ MAX_LATENCY_SAMPLES = 10_000_000
 class MicCalibration:
     """One microphone on one input.
 
+    :func:`arrayplan.hardware.calibration.mic_from_calibrator_recording` makes one from a calibrator recording.
+
     Attributes
     ----------
     name : str
@@ -73,14 +75,15 @@ class MicCalibration:
     input_full_scale_vrms : float
         RMS voltage of a full-scale sine at that input, V.
     calibrator_level_db_spl, calibrator_frequency_hz : float
-        The calibrator's level and frequency.
+        The calibrator's level (dB SPL re 20 µPa) and frequency (Hz).
     calibrator_class : str
         IEC 60942 class of the calibrator ("1", "2", "LS" ...), or "".
-    recorded_rms_dbfs : float
-        RMS of the recorded tone, dBFS (20 log10 of the RMS sample value).
+    recorded_rms_dbfs : float or None
+        RMS of the recorded tone, dBFS (20 log10 of the RMS sample value); None when not stated.
     recording : str
         File the value came from (for provenance).
     measured_utc : str
+        When the calibrator was recorded, ISO 8601 UTC (:func:`now_utc`), or "".
     """
 
     name: str
@@ -96,7 +99,15 @@ class MicCalibration:
 
     @property
     def pascal_per_full_scale(self) -> float:
-        """Pressure (Pa) that a sample value of 1.0 at this input stands for."""
+        """Pressure that a sample value of 1.0 at this input stands for.
+
+        ``sqrt(2) * input_full_scale_vrms / (sensitivity_mv_per_pa / 1000)``: a full-scale sine has peak 1.0.
+
+        Returns
+        -------
+        float
+            Pa per full-scale unit.
+        """
         return math.sqrt(2.0) * self.input_full_scale_vrms / (self.sensitivity_mv_per_pa / 1000.0)
 
 
@@ -115,6 +126,7 @@ class OutputCalibration:
     method : str
         How the value was found.
     measured_utc : str
+        When it was measured, ISO 8601 UTC (:func:`now_utc`), or "".
     """
 
     channel: int
@@ -125,13 +137,33 @@ class OutputCalibration:
 
     @property
     def volts_per_full_scale(self) -> float:
-        """Voltage at the speaker terminals that a sample value of 1.0 stands for."""
+        """Voltage at the speaker terminals that a sample value of 1.0 stands for.
+
+        Returns
+        -------
+        float
+            V per full-scale unit, ``sqrt(2) * full_scale_vrms * 10^(amplifier_gain_db / 20)``.
+        """
         return math.sqrt(2.0) * self.full_scale_vrms * 10.0 ** (self.amplifier_gain_db / 20.0)
 
 
 @dataclass(frozen=True)
 class LatencyCalibration:
-    """Round-trip latency of the interface (output to input), in samples at a rate."""
+    """Round-trip latency of the interface (output to input), in samples at a rate.
+
+    Attributes
+    ----------
+    samples : int
+        The round trip, samples (0 to :data:`MAX_LATENCY_SAMPLES`).
+    sample_rate_hz : float
+        The rate it was measured at, Hz; the value holds only at this rate.
+    output_channel, input_channel : int or None
+        1-based output and input of the loop it was measured on, if known.
+    device : str
+        The audio interface's name, or "".
+    measured_utc : str
+        Time of the measurement (UTC, ISO 8601), or "".
+    """
 
     samples: int
     sample_rate_hz: float
@@ -143,7 +175,21 @@ class LatencyCalibration:
 
 @dataclass(frozen=True)
 class CalibrationRecord:
-    """A whole calibration record (see the module docstring)."""
+    """A whole calibration record (see the module docstring).
+
+    Attributes
+    ----------
+    description : str
+        Free text (the rig, the interface, the gains), or "".
+    microphones : tuple of MicCalibration
+        One per microphone, names unique, sorted by input channel.
+    outputs : tuple of OutputCalibration
+        One per output channel, sorted by channel.
+    latency : LatencyCalibration or None
+        The interface's round-trip latency, when measured.
+    source : str
+        The file it was read from (named in messages), ``"<memory>"`` otherwise.
+    """
 
     description: str = ""
     microphones: tuple[MicCalibration, ...] = ()
@@ -152,26 +198,102 @@ class CalibrationRecord:
     source: str = "<memory>"
 
     def mic(self, name: str) -> MicCalibration | None:
+        """The entry of one microphone.
+
+        Parameters
+        ----------
+        name : str
+            The microphone's name in the rig file.
+
+        Returns
+        -------
+        MicCalibration or None
+            None when the record holds no such microphone.
+        """
         return next((m for m in self.microphones if m.name == name), None)
 
     def output(self, channel: int) -> OutputCalibration | None:
+        """The entry of one output channel.
+
+        Parameters
+        ----------
+        channel : int
+            1-based output channel.
+
+        Returns
+        -------
+        OutputCalibration or None
+            None when the channel is not in the record.
+        """
         return next((o for o in self.outputs if o.channel == channel), None)
 
     def with_mic(self, mic: MicCalibration) -> "CalibrationRecord":
-        """A copy with `mic` added or replacing the entry of the same name."""
+        """A copy with `mic` added or replacing the entry of the same name.
+
+        Parameters
+        ----------
+        mic : MicCalibration
+            The new entry, keyed by its name.
+
+        Returns
+        -------
+        CalibrationRecord
+            The microphones sorted by input channel; this record is unchanged.
+        """
         mics = tuple(m for m in self.microphones if m.name != mic.name) + (mic,)
         return replace(self, microphones=tuple(sorted(mics, key=lambda m: m.input_channel)))
 
     def with_output(self, out: OutputCalibration) -> "CalibrationRecord":
-        """A copy with `out` added or replacing the entry of the same channel."""
+        """A copy with `out` added or replacing the entry of the same channel.
+
+        Parameters
+        ----------
+        out : OutputCalibration
+            The output's new calibration, keyed by its channel.
+
+        Returns
+        -------
+        CalibrationRecord
+            A new record, its outputs sorted by channel.
+        """
         outs = tuple(o for o in self.outputs if o.channel != out.channel) + (out,)
         return replace(self, outputs=tuple(sorted(outs, key=lambda o: o.channel)))
 
     def with_latency(self, latency: LatencyCalibration) -> "CalibrationRecord":
+        """A copy with `latency` in place of the stored latency.
+
+        The latency holds only at its sample rate (:meth:`latency_samples_at`).
+
+        Parameters
+        ----------
+        latency : LatencyCalibration
+            The new round-trip latency.
+
+        Returns
+        -------
+        CalibrationRecord
+            This record is unchanged.
+        """
         return replace(self, latency=latency)
 
     def latency_samples_at(self, sample_rate_hz: float) -> int:
-        """The stored latency, refusing a record made at another rate."""
+        """The stored latency, refusing a record made at another rate.
+
+        Parameters
+        ----------
+        sample_rate_hz : float
+            The rate the measurement runs at, Hz.
+
+        Returns
+        -------
+        int
+            The round-trip latency, samples.
+
+        Raises
+        ------
+        InputError
+            When the record holds no latency, or one measured at another rate.
+        """
         if self.latency is None:
             raise InputError("the calibration record holds no latency", source=self.source, field="latency",
                              fix="run 'arrayplan calibrate latency' or name a reference loop in the rig")
@@ -183,7 +305,13 @@ class CalibrationRecord:
 
 
 def now_utc() -> str:
-    """The time now in UTC, to the second, ISO 8601 (``2026-05-01T09:30:00+00:00``)."""
+    """The time now in UTC, to the second.
+
+    Returns
+    -------
+    str
+        ISO 8601, for example ``2026-05-01T09:30:00+00:00``.
+    """
     return _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
 
 
@@ -198,6 +326,17 @@ _LAT_KEYS = {"samples", "sample_rate_hz", "output_channel", "input_channel", "de
 
 def read_calibration(path: str | os.PathLike) -> CalibrationRecord:
     """Read and check a calibration record.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        The calibration TOML file.
+
+    Returns
+    -------
+    CalibrationRecord
+        Microphone sensitivities (mV/Pa), output full-scale voltages (V RMS)
+        and latency, with the file as source.
 
     Raises
     ------
@@ -219,7 +358,25 @@ def read_calibration(path: str | os.PathLike) -> CalibrationRecord:
 
 
 def parse_calibration(text: str, src: str = "<text>") -> CalibrationRecord:
-    """Check and parse the TOML text of a calibration record (see :func:`read_calibration`)."""
+    """Check and parse the TOML text of a calibration record (see :func:`read_calibration`).
+
+    Parameters
+    ----------
+    text : str
+        TOML text.
+    src : str
+        Where the text came from, named in messages.
+
+    Returns
+    -------
+    CalibrationRecord
+        The checked record.
+
+    Raises
+    ------
+    InputError
+        As for :func:`read_calibration`.
+    """
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -323,7 +480,18 @@ def _array_of_tables_of(rows: Sequence[Sequence[tuple[str, Any, str]]]) -> Any:
 
 
 def format_calibration(rec: CalibrationRecord) -> str:
-    """The TOML text of `rec` (what :func:`write_calibration` writes), commented, through tomlkit."""
+    """The TOML text of `rec` (what :func:`write_calibration` writes), commented, through tomlkit.
+
+    Parameters
+    ----------
+    rec : CalibrationRecord
+        The record.
+
+    Returns
+    -------
+    str
+        TOML text with a header comment and a comment giving each value's unit.
+    """
     doc = tomlkit.document()
     for line in ("arrayplan calibration record (format: calibration/README.md).",
                  f"Written by arrayplan {__version__} on {now_utc()}.",
@@ -383,6 +551,18 @@ def write_calibration(path: str | os.PathLike, rec: CalibrationRecord) -> Path:
     The text is read back with :func:`parse_calibration` first, so a record
     that could not be read (a value out of range, a repeated name) is refused
     with an :class:`InputError` naming the field, and nothing is written.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        The TOML file to write.
+    rec : CalibrationRecord
+        The record.
+
+    Returns
+    -------
+    Path
+        The path written.
     """
     text = format_calibration(rec)
     try:
@@ -395,7 +575,20 @@ def write_calibration(path: str | os.PathLike, rec: CalibrationRecord) -> Path:
 
 
 def read_or_new(path: str | os.PathLike, description: str = "") -> CalibrationRecord:
-    """The record at `path`, or an empty one when the file does not exist yet."""
+    """The record at `path`, or an empty one when the file does not exist yet.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        The calibration TOML file.
+    description : str
+        Description of a new, empty record.
+
+    Returns
+    -------
+    CalibrationRecord
+        The file's record, checked, or an empty record with `path` as source.
+    """
     path = Path(path)
     if path.exists():
         return read_calibration(path)

@@ -80,16 +80,21 @@ class DeconvolutionSummary:
     Attributes
     ----------
     speaker_names, mic_names : tuple of str
+        Names of the speakers (columns) and microphones (rows), rig order.
     peak_db : ndarray
         Peak of each linear response, dB re 1 (full scale per full scale).
     peak_delay_ms : ndarray
         Time of that peak after zero lag, ms (rounded to 0.1 microsecond).
     peak_to_noise_db : ndarray
+        Peak over the RMS of the response's last 10 %, dB.
     clipped_samples : ndarray of int
+        Recorded samples at or above the clip threshold.
     harmonic_db, harmonic_floor_db : dict of int -> ndarray
         By order (2, 3, ...): the level where measured, and the floor (the
         method's and the noise's together), dB.
     harmonic_status : dict of int -> ndarray of str
+        By order: ``"measured"``, ``"below the method's floor"`` or
+        ``"below the noise floor"``.
     thd_db : ndarray or None
         The measured orders together, dB; None without harmonic orders.
     method_floor_db : dict of int -> float, or None
@@ -113,17 +118,49 @@ class DeconvolutionSummary:
 
     @property
     def orders(self) -> list[int]:
-        """Harmonic orders in the summary, ascending."""
+        """Harmonic orders in the summary, ascending.
+
+        Returns
+        -------
+        list of int
+            For example ``[2, 3]``; empty for a sweep without harmonic orders.
+        """
         return sorted(self.harmonic_db)
 
     def thd_status(self, m: int, s: int) -> str | None:
-        """``"measured"`` or ``"below the floors"`` for one pair; None without harmonic orders."""
+        """Whether one pair's THD was measured.
+
+        Parameters
+        ----------
+        m, s : int
+            Microphone and speaker index (0-based, rig order).
+
+        Returns
+        -------
+        str or None
+            ``"measured"`` or ``"below the floors"``; None without harmonic orders.
+        """
         if self.thd_db is None:
             return None
         return "measured" if math.isfinite(self.thd_db[m, s]) else "below the floors"
 
     def worst_harmonic_text(self, order: int, s: int) -> str:
-        """One speaker's `order` in words: ``H2 -44.1 dB`` (worst microphone) or ``H2 below the noise floor (-66.1 dB)``."""
+        """One speaker's harmonic `order` in words, over all microphones.
+
+        Parameters
+        ----------
+        order : int
+            Harmonic order (2, 3, ...), one of :attr:`orders`.
+        s : int
+            Speaker index (0-based, rig order).
+
+        Returns
+        -------
+        str
+            ``H2 -44.1 dB`` (the worst microphone's measured level, dB) or, when
+            no microphone measured it, ``H2 below the noise floor (-66.1 dB)``
+            (the status and floor of the microphone with the highest floor).
+        """
         levels = self.harmonic_db[order][:, s]
         if np.any(np.isfinite(levels)):
             return f"H{order} {np.nanmax(levels):.1f} dB"
@@ -131,7 +168,16 @@ class DeconvolutionSummary:
         return f"H{order} {self.harmonic_status[order][m, s]} ({self.harmonic_floor_db[order][m, s]:.1f} dB)"
 
     def per_pair(self) -> dict[str, dict[str, dict[str, Any]]]:
-        """The figures as JSON: ``[speaker][mic]`` -> fields (null where not finite; delay in s)."""
+        """The figures as JSON-ready nested dicts.
+
+        Returns
+        -------
+        dict
+            ``[speaker][mic]`` -> {``peak_db``, ``peak_delay_s`` (s),
+            ``peak_to_noise_db``, ``clipped_samples``, ``harmonic_db``,
+            ``harmonic_status``, ``harmonic_floor_db`` (by order as a string),
+            ``thd_db``, ``thd_status``}; None where a value is not finite.
+        """
         out: dict[str, dict[str, dict[str, Any]]] = {}
         for s, spk in enumerate(self.speaker_names):
             out[spk] = {}
@@ -173,14 +219,16 @@ def summarise(result: Any, speaker_names: Sequence[str], mic_names: Sequence[str
         Peak levels and indices, peak-to-noise, clipping, harmonic levels and
         statuses, the method's floor.
     speaker_names, mic_names : sequence of str
+        Names in rig order, matching the result's speaker and microphone axes.
     pre_roll_samples : int
         Samples before zero lag in the responses (the peak delay counts from zero lag).
     sample_rate_hz : float
-        Hz.
+        Sample rate of the responses, Hz.
 
     Returns
     -------
     DeconvolutionSummary
+        Levels rounded to :data:`DB_DECIMALS`, delays to :data:`DELAY_MS_DECIMALS`.
     """
     from ..signals.distortion_floor import DISTORTION_MARGIN_DB, combined_floor_db
 
@@ -201,6 +249,11 @@ def summarise(result: Any, speaker_names: Sequence[str], mic_names: Sequence[str
 
 def summary_record(summary: DeconvolutionSummary) -> dict[str, Any]:
     """The summary's block of the IR set's manifest (``extra``): version, definitions, figures per pair.
+
+    Parameters
+    ----------
+    summary : DeconvolutionSummary
+        The figures, as :func:`summarise` gives them.
 
     Returns
     -------
@@ -243,9 +296,17 @@ def _table(summary: DeconvolutionSummary) -> str:
 def write_deconvolution_summary(folder: str | os.PathLike, summary: DeconvolutionSummary) -> Path:
     """Write ``deconvolution.csv`` into `folder`, atomically (its version goes in the IR set: :func:`summary_record`).
 
+    Parameters
+    ----------
+    folder : path
+        The IR set folder (the table goes beside its ``irset.json``).
+    summary : DeconvolutionSummary
+        The figures to write, one row per speaker and microphone.
+
     Returns
     -------
     Path
+        The file written, ``folder / SUMMARY_FILE``.
     """
     return write_text_atomic(Path(folder) / SUMMARY_FILE, _table(summary))
 

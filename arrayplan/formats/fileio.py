@@ -74,7 +74,19 @@ def _umask() -> int:
 
 
 def make_folders(folder: str | os.PathLike, source: str) -> list[Path]:
-    """Create `folder` and its missing parents; return the folders created, outermost first.
+    """Create `folder` and its missing parents (like ``mkdir -p``).
+
+    Parameters
+    ----------
+    folder : path
+        The folder to make.
+    source : str
+        Named in messages (the output the folder is for).
+
+    Returns
+    -------
+    list of Path
+        The folders created, outermost first (empty when `folder` existed).
 
     Raises
     ------
@@ -125,6 +137,16 @@ def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
     `path` removes one a killed run left (:func:`clean_stale_staging`).
     The temporary name keeps the suffix of `path`, so libraries that choose a
     format by suffix (soundfile, matplotlib) still work.
+
+    Parameters
+    ----------
+    path : path
+        The file to write.
+
+    Yields
+    ------
+    Path
+        The temporary file to write to (it exists, empty).
     """
     path = Path(path)
     created = _make_folders(path.parent, str(path))
@@ -149,19 +171,61 @@ def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
 
 
 def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> Path:
-    """Write `data` to `path` atomically and return the path."""
+    """Write `data` to `path` atomically (:func:`atomic_path`).
+
+    Parameters
+    ----------
+    path : path
+        The file to write; missing parent folders are created.
+    data : bytes
+        Its whole content.
+
+    Returns
+    -------
+    Path
+        `path`.
+    """
     with atomic_path(path) as tmp:
         tmp.write_bytes(data)
     return Path(path)
 
 
 def write_text_atomic(path: str | os.PathLike, text: str) -> Path:
-    """Write UTF-8 `text` to `path` atomically and return the path."""
+    """Write `text` to `path` as UTF-8, atomically.
+
+    Parameters
+    ----------
+    path
+        As for :func:`write_bytes_atomic`.
+    text : str
+        Its whole content.
+
+    Returns
+    -------
+    Path
+        `path`.
+    """
     return write_bytes_atomic(path, text.encode("utf-8"))
 
 
 def json_default(obj: Any) -> Any:
-    """``json.dumps(default=...)`` for numpy scalars and arrays and paths."""
+    """``json.dumps(default=...)`` for numpy scalars and arrays and paths.
+
+    Parameters
+    ----------
+    obj : object
+        A value the json module cannot write itself.
+
+    Returns
+    -------
+    object
+        A Python number, a (nested) list, or a string.
+
+    Raises
+    ------
+    TypeError
+        For any other type, as json expects.
+    """
     if isinstance(obj, np.generic):
         return obj.item()
     if isinstance(obj, np.ndarray):
@@ -172,7 +236,20 @@ def json_default(obj: Any) -> Any:
 
 
 def write_json_atomic(path: str | os.PathLike, obj: Any) -> Path:
-    """Write `obj` as indented JSON to `path` atomically."""
+    """Write `obj` as indented JSON to `path` atomically (NaN and infinities refused).
+
+    Parameters
+    ----------
+    path : path
+        The file to write, as for :func:`write_bytes_atomic`.
+    obj : object
+        JSON-ready data; numpy values and paths allowed (:func:`json_default`).
+
+    Returns
+    -------
+    Path
+        `path`.
+    """
     text = json.dumps(obj, indent=2, default=json_default, allow_nan=False)
     return write_text_atomic(path, text + "\n")
 
@@ -240,12 +317,22 @@ def _mtime(p: Path) -> float:
 
 
 def clean_stale_staging(final: str | os.PathLike) -> list[Path]:
-    """Tidy what killed runs left beside `final`; return the hidden paths removed.
+    """Tidy what killed runs left beside `final`.
 
     A set-aside old version whose writer died before renaming the new one in
     is put back as `final` when `final` is missing (the newest such one);
     every other staging or set-aside folder or file of a dead process is
     removed.  Those of live processes are left alone.
+
+    Parameters
+    ----------
+    final : path
+        A file or folder arrayplan writes.
+
+    Returns
+    -------
+    list of Path
+        The hidden paths removed.
     """
     final = Path(final)
     parent = final.parent if str(final.parent) else Path(".")
@@ -283,7 +370,18 @@ def _unescape(name: str) -> str:
 
 
 def write_checksums(folder: str | os.PathLike) -> Path:
-    """Write :data:`CHECKSUM_FILE` listing every file below `folder` with its SHA-256."""
+    """Write :data:`CHECKSUM_FILE` listing every file below `folder` with its SHA-256.
+
+    Parameters
+    ----------
+    folder : path
+        The folder, complete.
+
+    Returns
+    -------
+    Path
+        The checksum file.
+    """
     folder = Path(folder)
     lines = []
     for p in _folder_files(folder):
@@ -312,6 +410,7 @@ def check_folder(folder: str | os.PathLike, needed: Sequence[str] = ()) -> bool:
     Parameters
     ----------
     folder : path
+        The folder to check.
     needed : sequence of str
         Glob patterns (relative to `folder`) of the files the caller will
         read; a file matching one of them that the checksums do not list
@@ -359,10 +458,20 @@ def check_folder(folder: str | os.PathLike, needed: Sequence[str] = ()) -> bool:
 
 
 def new_staging_folder(final: str | os.PathLike) -> Path:
-    """Create and return a hidden staging folder beside `final`, named with this process's id.
+    """Create a hidden staging folder beside `final`, named with this process's id.
 
     Publish it with :func:`publish_folder`; :func:`clean_stale_staging`
     removes it if this process dies first.
+
+    Parameters
+    ----------
+    final : path
+        The folder it will become.
+
+    Returns
+    -------
+    Path
+        The new, empty staging folder.
     """
     final = Path(final)
     stage = final.parent / _hidden_name(final.name, _STAGING_TAG)
@@ -380,6 +489,7 @@ def publish_folder(stage: str | os.PathLike, final: str | os.PathLike, *, ours_o
     Parameters
     ----------
     stage, final : path
+        The complete folder, and the name it is published under.
     ours_only : bool
         Refuse to replace a `final` that holds files its ``SHA256SUMS`` does
         not list (see :func:`foreign_files`), so a mistyped output path never
@@ -394,6 +504,11 @@ def foreign_files(folder: str | os.PathLike) -> list[Path]:
 
     Those its :data:`CHECKSUM_FILE` does not list (every file when it has
     none); hidden files (names starting with ".") are not counted.
+
+    Parameters
+    ----------
+    folder : path
+        An existing folder.
 
     Returns
     -------
@@ -475,6 +590,16 @@ def staged_output_dir(final_dir: str | os.PathLike) -> Iterator[Path]:
     deleted and `final_dir` is exactly as it was.  Leftovers of killed runs
     beside `final_dir` are tidied first (:func:`clean_stale_staging`).
 
+    Parameters
+    ----------
+    final_dir : path
+        The output folder.
+
+    Yields
+    ------
+    Path
+        The staging folder to write the output into.
+
     Raises
     ------
     InputError
@@ -522,6 +647,16 @@ def atomic_paths(paths: Sequence[str | os.PathLike]) -> Iterator[list[Path]]:
     fails, the files renamed so far are removed and the old ones put back,
     and the error is raised.  A target that is a folder is refused before
     anything is renamed.
+
+    Parameters
+    ----------
+    paths : sequence of path
+        The files to write together.
+
+    Yields
+    ------
+    list of Path
+        One temporary path per target, in the order of `paths`.
 
     Raises
     ------
@@ -578,14 +713,35 @@ def atomic_paths(paths: Sequence[str | os.PathLike]) -> Iterator[list[Path]]:
 
 
 def sha256_of_text(text: str) -> str:
-    """Hex SHA-256 of a text, used as the rig hash in file headers."""
+    """SHA-256 of a text's UTF-8 bytes, used as the rig hash in file headers.
+
+    Parameters
+    ----------
+    text : str
+        The text (a rig file's content).
+
+    Returns
+    -------
+    str
+        64 lowercase hex digits.
+    """
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
 def provenance(**extra: Any) -> dict[str, Any]:
     """The header every output file carries: tool, version, date, conventions.
 
-    Keyword arguments are added to it (for example ``rig_sha256=...``).
+    Parameters
+    ----------
+    **extra
+        Added to it (for example ``rig_sha256=...``).
+
+    Returns
+    -------
+    dict
+        ``tool``, ``tool_version``, ``written_utc`` (ISO 8601),
+        ``sign_convention`` (:data:`SIGN_CONVENTION`), ``units`` (m, Hz, s,
+        Pa), then `extra`.
     """
     head = {
         "tool": "arrayplan",

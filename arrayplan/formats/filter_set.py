@@ -290,9 +290,13 @@ class FilterFiles:
     Attributes
     ----------
     folder : Path
+        The filter set's folder.
     sample_rate_hz : float
+        Sample rate of the taps, Hz.
     taps : int
+        Filter length, samples.
     band_hz : (float, float)
+        The design band, Hz.
     kept : tuple of int
         0-based plan channels with filters, the order of the last axis below.
     drive : ndarray, shape (taps, n_spk, n_kept)
@@ -366,6 +370,7 @@ def read_filter_set(folder: str | os.PathLike) -> FilterFiles:
     Parameters
     ----------
     folder : path
+        The filter set's folder.
 
     Returns
     -------

@@ -95,6 +95,10 @@ class IRSet:
         before it are pre-ringing kept by the producer.
     warnings : list of str
         Warnings raised while producing the set (clipping, low peak-to-noise).
+    extra : dict
+        Further JSON-ready fields a producer keeps in the manifest's
+        ``extra`` (for example the deconvolution summary's block,
+        :func:`arrayplan.formats.deconvolution_summary.summary_record`).
     """
 
     data: np.ndarray
@@ -133,19 +137,60 @@ class IRSet:
 
     @property
     def n_samples(self) -> int:
+        """Length of every response.
+
+        Time runs along the first axis of `data`; sample :attr:`zero_lag_samples` is zero lag.
+
+        Returns
+        -------
+        int
+            Samples per response.
+        """
         return int(self.data.shape[0])
 
     @property
     def n_mic(self) -> int:
+        """Number of microphones.
+
+        The middle axis of `data`.
+
+        Returns
+        -------
+        int
+            One per name in :attr:`mic_names`, in their order.
+        """
         return int(self.data.shape[1])
 
     @property
     def n_spk(self) -> int:
+        """Number of speakers.
+
+        One WAV file each; the last axis of `data`.
+
+        Returns
+        -------
+        int
+            The length of :attr:`speaker_names`.
+        """
         return int(self.data.shape[2])
 
 
 def zero_lag_problem(value: Any, n_samples: int) -> str | None:
-    """What is wrong with `value` as the zero-lag index of `n_samples`-sample responses, or None."""
+    """What is wrong with `value` as the zero-lag index of `n_samples`-sample responses, or None.
+
+    Parameters
+    ----------
+    value : object
+        The candidate index (0-based sample), as given.
+    n_samples : int
+        Length of the responses, samples.
+
+    Returns
+    -------
+    str or None
+        The problem in words (for an :class:`~arrayplan.errors.InputError`),
+        or None when `value` is a whole number in ``0..n_samples - 1``.
+    """
     if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
         return f"must be a whole number of samples, got {value!r}"
     if not 0 <= int(value) < n_samples:
@@ -154,7 +199,18 @@ def zero_lag_problem(value: Any, n_samples: int) -> str | None:
 
 
 def format_version_for(irs: IRSet) -> int:
-    """The ``format_version`` to write: 2 when zero lag is not sample 0, else 1."""
+    """The ``format_version`` to write for a set.
+
+    Parameters
+    ----------
+    irs : IRSet
+        The set to be written.
+
+    Returns
+    -------
+    int
+        2 when zero lag is not sample 0 (pre-ringing kept), else 1.
+    """
     return FORMAT_VERSION if irs.zero_lag_samples else FORMAT_VERSION_NO_PRE_ROLL
 
 
@@ -171,7 +227,27 @@ def write_irset(folder: str | os.PathLike, irs: IRSet, **provenance_extra: Any) 
     """Write `irs` to `folder` (created if needed) as an IR set, atomically.
 
     All files are staged and moved into place together; a failure leaves
-    `folder` as it was.  Returns the manifest path.
+    `folder` as it was.
+
+    Parameters
+    ----------
+    folder : path
+        The IR set folder; an earlier arrayplan output there is replaced whole.
+    irs : IRSet
+        The responses and their names, positions (m) and units.
+    **provenance_extra
+        Added to the manifest's ``provenance`` header
+        (:func:`arrayplan.formats.fileio.provenance`), for example ``rig_sha256=...``.
+
+    Returns
+    -------
+    Path
+        The manifest, ``folder / "irset.json"``.
+
+    Raises
+    ------
+    InputError
+        When `folder` cannot be written (naming the path and the cause).
     """
     import soundfile as sf
 
@@ -233,6 +309,16 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
 
     A path ending in ``.sofa`` is read as an AES69 (SOFA) file through
     :func:`arrayplan.formats.irset_sofa.read_irset_sofa`.
+
+    Parameters
+    ----------
+    folder : path
+        The IR set folder, its ``irset.json``, or a ``.sofa`` file.
+
+    Returns
+    -------
+    IRSet
+        Data of shape (n_samples, n_mic, n_spk), in manifest order.
 
     Raises
     ------

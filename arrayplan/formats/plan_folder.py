@@ -94,6 +94,7 @@ def long_table_rows(plan: Plan) -> int:
     Parameters
     ----------
     plan : Plan
+        The plan (its computed channels and element counts).
 
     Returns
     -------

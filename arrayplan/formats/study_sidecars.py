@@ -36,7 +36,19 @@ __all__ = ["StudySidecar", "STUDY_SIDECARS", "stamp_study_sidecar", "read_study_
 
 @dataclass(frozen=True)
 class StudySidecar:
-    """One study's sidecar: its file name, ``format`` and newest ``format_version``."""
+    """One study's sidecar: its file name, ``format`` and newest ``format_version``.
+
+    :data:`STUDY_SIDECARS` holds one per study (the table in the module notes).
+
+    Attributes
+    ----------
+    file : str
+        The sidecar's file name in the study folder, for example ``"capacity.json"``.
+    format : str
+        Its ``format`` value, for example ``"arrayplan-capacity-study"``.
+    version : int
+        The newest ``format_version`` this arrayplan writes and reads.
+    """
 
     file: str
     format: str
@@ -66,6 +78,7 @@ def stamp_study_sidecar(doc: Mapping[str, Any], study: str) -> dict[str, Any]:
     Returns
     -------
     dict
+        ``format`` and ``format_version`` first, then the keys of `doc` (an older ``kind`` marker dropped).
     """
     side = STUDY_SIDECARS[study]
     return stamp(doc, side.format, side.version)

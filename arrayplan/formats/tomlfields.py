@@ -57,22 +57,69 @@ class FieldReader:
     # ----------------------------------------------------------- problems
 
     def fail(self, field: str, problem: str, fix: str | None = None) -> InputError:
-        """The error for `field` (to raise)."""
+        """The error for `field` (to raise).
+
+        Parameters
+        ----------
+        field : str
+            The field path, ``"<where>.<key>"``.
+        problem : str
+            What is wrong, in words.
+        fix : str, optional
+            How to mend it.
+
+        Returns
+        -------
+        InputError
+            Naming :attr:`source` and `field`; the caller raises it.
+        """
         return InputError(problem, source=self.source, field=field, fix=fix)
 
     def reject(self, field: str, problem: str, fallback: T, fix: str | None = None) -> T:
-        """A problem the reading can go on from: raise it, or record it and return `fallback`."""
+        """A problem the reading can go on from: raise it, or record it and return `fallback`.
+
+        Parameters
+        ----------
+        field, problem, fix
+            As for :meth:`fail`.
+        fallback : object
+            The value the reading goes on with when collecting.
+
+        Returns
+        -------
+        object
+            `fallback` (when collecting; otherwise the problem is raised).
+        """
         return self._recoverable(self.fail(field, problem, fix), fallback)
 
     def recover(self, read: Callable[[], T], fallback: T) -> T:
-        """``read()``; when collecting, an InputError it raises is recorded and `fallback` returned."""
+        """``read()``; when collecting, an InputError it raises is recorded and `fallback` returned.
+
+        Parameters
+        ----------
+        read : callable
+            Reads one value (without arguments); may raise :class:`InputError`.
+        fallback : object
+            The value the reading goes on with when `read` fails while collecting.
+
+        Returns
+        -------
+        object
+            What `read` returned, or `fallback`.
+        """
         try:
             return read()
         except InputError as exc:
             return self._recoverable(exc, fallback)
 
     def take(self) -> list[InputError]:
-        """The problems recorded so far, in the order met; the record is emptied."""
+        """Hand over the problems recorded so far; the record is emptied.
+
+        Returns
+        -------
+        list of InputError
+            In the order met; empty in fail-fast mode.
+        """
         out, self.problems = self.problems, []
         return out
 
@@ -114,7 +161,8 @@ class FieldReader:
         where : str
             The table's field path ("" at the top level).
         default : optional
-            Returned when `key` is absent; without it the key is required.
+            Returned when `key` is absent, and when collecting also in place
+            of a bad value; without it the key is required.
         positive : bool
             Require a value above 0.
         low, high : float, optional
@@ -123,7 +171,7 @@ class FieldReader:
         Returns
         -------
         float
-            The value, or `default`.
+            The value as a float, or `default`.
         """
         field = self._field(where, key)
         found, v = self._lookup(table, key, field, default, f"add {key} = <number>")
@@ -141,7 +189,22 @@ class FieldReader:
 
     def integer(self, table: dict, key: str, where: str, default: Any = MISSING, minimum: int = 1,
                 maximum: int | None = None) -> int:
-        """A whole number in ``[minimum, maximum]`` (`maximum` defaults to `integer_max`)."""
+        """A whole number in ``[minimum, maximum]``.
+
+        Parameters
+        ----------
+        table, key, where, default
+            As for :meth:`number`.
+        minimum : int
+            Smallest value accepted.
+        maximum : int, optional
+            Largest value accepted; by default `integer_max`.
+
+        Returns
+        -------
+        int
+            The value, or `default`.
+        """
         field = self._field(where, key)
         found, v = self._lookup(table, key, field, default, f"add {key} = <whole number>")
         if not found:
@@ -154,7 +217,20 @@ class FieldReader:
         return int(v)
 
     def vector(self, table: dict, key: str, where: str, n: int = 3, default: Any = MISSING) -> tuple:
-        """`n` finite numbers, each at most the upper end of `number_range` in magnitude."""
+        """`n` finite numbers, each at most the upper end of `number_range` in magnitude.
+
+        Parameters
+        ----------
+        table, key, where, default
+            As for :meth:`number`.
+        n : int
+            How many numbers (3 for a position in metres).
+
+        Returns
+        -------
+        tuple of float
+            The values, one per component, or `default`.
+        """
         field = self._field(where, key)
         found, v = self._lookup(table, key, field, default, f"add {key} = [{', '.join(['0'] * n)}]")
         if not found:
@@ -169,7 +245,20 @@ class FieldReader:
         return tuple(float(x) for x in v)
 
     def string(self, table: dict, key: str, where: str, default: Any = MISSING, allow_empty: bool = False) -> str:
-        """A string (non-empty unless `allow_empty`)."""
+        """A string (non-empty unless `allow_empty`).
+
+        Parameters
+        ----------
+        table, key, where, default
+            As for :meth:`number`.
+        allow_empty : bool
+            Accept ``""``.
+
+        Returns
+        -------
+        str
+            The string as written (not stripped), or `default`.
+        """
         field = self._field(where, key)
         found, v = self._lookup(table, key, field, default, None)
         if not found:
@@ -180,7 +269,18 @@ class FieldReader:
         return v
 
     def boolean(self, table: dict, key: str, where: str, default: Any = MISSING) -> bool:
-        """``true`` or ``false``."""
+        """``true`` or ``false``.
+
+        Parameters
+        ----------
+        table, key, where, default
+            As for :meth:`number`.
+
+        Returns
+        -------
+        bool
+            ``True`` or ``False``, or `default`.
+        """
         field = self._field(where, key)
         found, v = self._lookup(table, key, field, default, f"add {key} = true (or false)")
         if not found:
@@ -190,7 +290,17 @@ class FieldReader:
         return v
 
     def keys(self, table: dict, allowed: set[str], where: str) -> None:
-        """Refuse keys of `table` outside `allowed` (recorded when collecting)."""
+        """Refuse keys of `table` outside `allowed` (recorded when collecting).
+
+        Parameters
+        ----------
+        table : dict
+            The TOML table.
+        allowed : set of str
+            The keys it may hold.
+        where : str
+            The table's field path ("" at the top level), named in the problem.
+        """
         unknown = sorted(set(table) - allowed)
         if unknown:
             self.reject(where, f"unknown key(s) {', '.join(unknown)}", None,

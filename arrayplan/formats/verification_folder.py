@@ -234,6 +234,7 @@ def read_verification(folder: str | os.PathLike) -> VerificationFolder:
     Parameters
     ----------
     folder : path
+        The verification folder.
 
     Returns
     -------

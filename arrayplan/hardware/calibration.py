@@ -49,7 +49,30 @@ __all__ = [
 
 def read_wav_channel(path: str | os.PathLike, channel: int, *, field: str = "channel"
                      ) -> tuple[np.ndarray, float]:
-    """One channel (1-based) of a WAV file as float64, and its rate."""
+    """One channel (1-based) of a WAV file as float64, and its rate.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        The WAV file.
+    channel : int
+        1-based channel.
+    field : str
+        Field named in messages about the channel.
+
+    Returns
+    -------
+    x : ndarray, shape (n_samples,)
+        The channel, full scale = 1.
+    rate : float
+        Sample rate (Hz).
+
+    Raises
+    ------
+    InputError
+        A missing or unreadable file, a channel the file does not have, or
+        NaN or infinite samples.
+    """
     src = str(path)
     if not Path(src).is_file():
         raise InputError("recording not found", source=src, fix="check the path")
@@ -71,6 +94,25 @@ def tone_rms(x: np.ndarray, sample_rate_hz: float, frequency_hz: float, *, sourc
     calibrator being fitted and removed), the rest is band-passed over one
     third of an octave around the tone (4th-order Butterworth, zero phase),
     and its RMS returned.
+
+    Parameters
+    ----------
+    x : ndarray, shape (n_samples,)
+        The recording, full scale = 1.
+    sample_rate_hz : float
+        Sample rate (Hz).
+    frequency_hz : float
+        The tone's stated frequency (Hz).
+    source : str
+        Named in messages.
+    trim_fraction : float
+        Share of the recording skipped at each end.
+
+    Returns
+    -------
+    float
+        RMS of the band-passed tone (full scale = 1, so a full-scale sine
+        gives 0.707).
 
     Raises
     ------
@@ -167,6 +209,24 @@ def output_from_loopback_recording(path: str | os.PathLike, channel: int, output
     The output is wired (without amplifier) to an input whose full-scale
     voltage is known; a sine of peak `played_peak` (full scale 1) was played.
 
+    Parameters
+    ----------
+    path : str or PathLike
+        WAV recording of the tone.
+    channel : int
+        1-based channel of the file holding it.
+    output_channel : int
+        1-based output channel that played it.
+    played_peak : float
+        Peak of the played sine (full scale = 1).
+    input_full_scale_vrms : float
+        RMS voltage of a full-scale sine at the recording input (V).
+    tone_frequency_hz : float
+        The tone's frequency (Hz).
+    amplifier_gain_db : float
+        Gain of the amplifier used after this output in the rig (dB), for
+        the record.
+
     Returns
     -------
     OutputCalibration
@@ -193,6 +253,7 @@ def calibration_factors(rec: CalibrationRecord, mic_names: Sequence[str], mic_ch
     Parameters
     ----------
     rec : CalibrationRecord
+        Microphone sensitivities and output voltages.
     mic_names : sequence of str
         The rig's microphones; each must be in the record.
     mic_channels, speaker_channels : sequence of int

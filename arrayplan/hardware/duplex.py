@@ -62,6 +62,8 @@ class DuplexResult:
     def xrun(self) -> bool:
         """Whether any block after the lead-in was lost or padded.
 
+        The stream's start-up flags (``startup_flags``) do not count.
+
         Returns
         -------
         bool

@@ -69,7 +69,9 @@ class TakeProgress:
     take : int
         0-based index of the speaker (and take).
     n_takes : int
+        Number of takes (speakers) in the session.
     speaker : str
+        The speaker's name.
     stage : str
         ``"kept"`` (finished by an earlier run, not measured again),
         ``"playing"``, ``"analysing"`` or ``"saved"``.
@@ -91,7 +93,24 @@ class TakeProgress:
 
 @dataclass
 class MeasurementSummary:
-    """What :func:`measure` did."""
+    """What :func:`measure` did.
+
+    Attributes
+    ----------
+    out_dir : Path
+        The output folder.
+    takes : list of TakeResult
+        One per speaker, in rig order: kept ones (``resumed``) and new ones.
+    measured, resumed : list of str
+        Names of the speakers measured in this run, and of those whose
+        finished take an earlier run left (kept, not measured again).
+    irset_path : Path or None
+        The combined IR set's manifest (``out_dir/irset/irset.json``); None
+        when not every take is there.
+    warnings : list of str
+        The session's warnings (calibration, latency), then every take's,
+        prefixed ``speaker <name>:``.
+    """
 
     out_dir: Path
     takes: list[TakeResult]
@@ -115,9 +134,11 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
         The real interface (:class:`~arrayplan.hardware.duplex.SoundDeviceLink`)
         or a simulated one; it must have the channels `wiring` uses.
     wiring : RigWiring
+        Names and 0-based channels of the speakers, microphones and reference loop.
     out_dir : path
         Output folder (created); re-running into it resumes.
     settings : MeasurementSettings
+        Sweep, repeats, response length and checks.
     calibration : CalibrationRecord, optional
         Gives physical units (Pa per V, or Pa per full scale) when it holds
         microphones (then it must hold every microphone of the rig) and, when
@@ -137,6 +158,7 @@ def measure(link: AudioLink, wiring: RigWiring, out_dir: str | os.PathLike,
     Returns
     -------
     MeasurementSummary
+        The takes, what was measured and kept, the combined IR set and every warning.
 
     Raises
     ------

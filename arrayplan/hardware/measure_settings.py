@@ -227,12 +227,12 @@ class RigWiring:
 
     @property
     def n_inputs_needed(self) -> int:
-        """Highest 1-based input channel used.
+        """Highest 1-based input channel used (the microphones' and the reference loop's).
 
         Returns
         -------
         int
-            Inputs the device must have (reference included).
+            The device needs at least this many inputs.
         """
         return max(list(self.mic_inputs) + ([self.reference[1]] if self.reference else [])) + 1
 

@@ -40,6 +40,8 @@ REFERENCE_MIN_DB = 30.0
 class TakeAnalysis:
     """What one take's recording gives.
 
+    Made by :func:`analyse_take`; the take loop saves its responses and checks with the take.
+
     Attributes
     ----------
     ir : ndarray, shape (ir_length, n_mic)

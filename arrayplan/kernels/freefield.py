@@ -102,12 +102,12 @@ class FreeFieldKernel:
         return self._r
 
     def evaluate(self, hz: np.ndarray) -> np.ndarray:
-        """Coupling matrices at `hz`.
+        """Coupling matrices at `hz` (:meth:`arrayplan.kernels.coupling.Kernel.evaluate`).
 
         Parameters
         ----------
         hz : array_like, shape (n,)
-            Frequencies (Hz).
+            Frequencies (Hz), any subset in any order.
 
         Returns
         -------

@@ -76,6 +76,8 @@ def piston_factor(v: np.ndarray) -> np.ndarray:
 class Directivity:
     """A directivity pattern with its axis.
 
+    The rig file's ``directivity`` of an element reads into one.
+
     Parameters
     ----------
     kind : str

@@ -148,12 +148,8 @@ def sphere(count: int, radius: float, center: tuple) -> tuple[np.ndarray, np.nda
 
     Parameters
     ----------
-    count : int
-        Number of points.
-    radius : float
-        Radius of the sphere (m).
-    center : array_like, shape (3,)
-        Centre of the sphere (m).
+    count, radius, center
+        As for :func:`arc`: number of points, and the sphere's radius and centre (m).
 
     Returns
     -------

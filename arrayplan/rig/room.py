@@ -206,7 +206,7 @@ class Room:
         Parameters
         ----------
         hz : array_like, shape (n,)
-            Frequencies (Hz).
+            As for :meth:`absorption_at`.
 
         Returns
         -------
@@ -221,7 +221,7 @@ class Room:
         Parameters
         ----------
         hz : float
-            Frequency (Hz).
+            Frequency at which the absorption is taken (Hz).
 
         Returns
         -------
@@ -289,7 +289,7 @@ def sabine_t60_s(room: Room, hz: float = 1000.0, speed_of_sound: float = 343.0) 
     hz : float
         Frequency at which the absorption is taken (Hz).
     speed_of_sound : float
-        m/s.
+        Speed of sound, m/s.
 
     Returns
     -------
@@ -306,12 +306,8 @@ def eyring_t60_s(room: Room, hz: float = 1000.0, speed_of_sound: float = 343.0) 
 
     Parameters
     ----------
-    room : Room
-        The room.
-    hz : float
-        Frequency at which the absorption is taken (Hz).
-    speed_of_sound : float
-        m/s.
+    room, hz, speed_of_sound
+        As for :func:`sabine_t60_s`.
 
     Returns
     -------

@@ -43,6 +43,7 @@ class Zone:
     Attributes
     ----------
     name : str
+        The zone's name, as written in the rig file.
     role : str
         ``"bright"`` or ``"dark"``.
     point_names : tuple of str

@@ -259,7 +259,7 @@ def proximity_findings(rig: Rig, f_low: float) -> list[Finding]:
     Parameters
     ----------
     rig : Rig
-        The loaded rig.
+        The loaded rig, with its microphones' directivities.
     f_low : float
         Lowest planned frequency (Hz).
 
@@ -292,10 +292,8 @@ def compact_findings(rig: Rig, f_top: float) -> list[Finding]:
 
     Parameters
     ----------
-    rig : Rig
-        The loaded rig.
-    f_top : float
-        Highest planned frequency (Hz).
+    rig, f_top
+        As for :func:`piston_findings`.
 
     Returns
     -------
@@ -327,9 +325,9 @@ def hardware_findings(rig: Rig, f_top: float | None) -> list[Finding]:
     Parameters
     ----------
     rig : Rig
-        The loaded rig.
+        The loaded rig, with its ``[hardware]`` table.
     f_top : float or None
-        Highest planned frequency (Hz); None skips the sample-rate check.
+        As for :func:`piston_findings`; None skips the sample-rate check.
 
     Returns
     -------
@@ -453,6 +451,7 @@ def physical_findings(rig: Rig, groups: dict[str, list[SideGroup]], raw_medium: 
     Parameters
     ----------
     rig : Rig
+        The loaded rig.
     groups : dict
         ``{"speakers": [SideGroup, ...], "microphones": [...]}``, one group per
         generated/CSV entry and one for the points of a side.

@@ -148,8 +148,8 @@ def rms_dbfs(x: np.ndarray) -> float:
 
     Parameters
     ----------
-    x : array_like, shape (n_samples,) or (n_samples, n_channels)
-        Signal, full scale = 1.
+    x : array_like
+        As for :func:`peak_dbfs`.
 
     Returns
     -------

@@ -37,6 +37,8 @@ __all__ = ["PlayedSweep", "Takes", "OfflineIRs", "read_played_sweep", "read_take
 class PlayedSweep:
     """A played file as its sidecar describes it, with the sweep's inverse filter.
 
+    :func:`read_played_sweep` reads one from a signal sidecar and checks it.
+
     Attributes
     ----------
     sidecar_path : Path

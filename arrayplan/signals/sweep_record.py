@@ -135,15 +135,18 @@ class SweepRecord:
     def harmonic_offsets_samples(self, max_order: int) -> dict[int, float]:
         """Offsets of harmonics 2..max_order before the linear response (exponential sweeps only).
 
+        The same as :meth:`arrayplan.signals.sweeps.SweepSignal.harmonic_offsets_samples`
+        for the sweep this record describes.
+
         Parameters
         ----------
         max_order : int
-            Highest harmonic order.
+            Highest harmonic order (below 2: no offsets).
 
         Returns
         -------
         dict of int to float
-            Harmonic order -> offset (samples, fractional); empty for a linear sweep.
+            Order -> offset in samples (fractional); empty for a linear sweep.
         """
         if self.kind != "exponential":
             return {}

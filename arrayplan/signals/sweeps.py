@@ -646,10 +646,8 @@ def fresnel_time_s(freq_hz: float, f1_hz: float, f2_hz: float, duration_s: float
     ----------
     freq_hz : float
         Frequency (Hz).
-    f1_hz, f2_hz : float
-        Sweep limits (Hz).
-    duration_s : float
-        Sweep duration T (s).
+    f1_hz, f2_hz, duration_s : float
+        As for :func:`harmonic_offset_s` (Hz, s).
 
     Returns
     -------
@@ -676,11 +674,8 @@ def default_fades_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float) ->
 
     Parameters
     ----------
-    kind : {"exponential", "linear"}
-    f1_hz, f2_hz : float
-        Sweep limits, Hz.
-    duration_s : float
-        Sweep duration T, s.
+    kind, f1_hz, f2_hz, duration_s
+        The sweep's kind, limits (Hz) and duration T (s), as :func:`default_pre_roll_s` takes them.
 
     Returns
     -------
@@ -720,10 +715,8 @@ def default_pre_roll_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float)
     ----------
     kind : str
         ``"exponential"`` or ``"linear"``.
-    f1_hz, f2_hz : float
-        Sweep limits (Hz).
-    duration_s : float
-        Sweep duration T (s).
+    f1_hz, f2_hz, duration_s : float
+        The sweep's limits (Hz) and duration T (s), as for :func:`harmonic_offset_s`.
 
     Returns
     -------

@@ -56,7 +56,22 @@ def _bits(x: float) -> str:
 
 
 def capacity_verdict(study: CapacityStudy) -> str:
-    """One line for people: what the plan carries at the lowest and highest SNR."""
+    """One line for people: what the plan carries at the lowest and highest SNR.
+
+    The sidecar's ``verdict``; ``arrayplan study capacity`` prints it.
+
+    Parameters
+    ----------
+    study : CapacityStudy
+        The water-filling capacity per SNR and frequency.
+
+    Returns
+    -------
+    str
+        A sentence: bit/s over the planned band (bit/s/Hz for a single
+        frequency) at each end of the SNR range, with and without water-filling,
+        and the largest number of channels given power.
+    """
     parts = []
     for k in sorted({0, len(study.snr_db) - 1}):
         if np.isfinite(study.band_capacity[k]):
@@ -71,7 +86,31 @@ def capacity_verdict(study: CapacityStudy) -> str:
 
 def write_capacity_study(study: CapacityStudy, out_dir: str | os.PathLike, *, plan_source: str = "",
                          figures: bool = True, water_freq_index: int | None = None) -> list[Path]:
-    """Write a capacity study's files into `out_dir` atomically; return their paths."""
+    """Write a capacity study's files into `out_dir` atomically; return their paths.
+
+    Parameters
+    ----------
+    study : CapacityStudy
+        The study to write.
+    out_dir : path
+        The study folder; an earlier arrayplan output there is replaced whole.
+    plan_source : str
+        Where the plan came from (a folder or rig file), recorded in the sidecar.
+    figures : bool
+        Also draw and save the study's PNG figures (:func:`capacity_figures`).
+    water_freq_index : int, optional
+        0-based frequency of the water-level figure (default: the middle one).
+
+    Returns
+    -------
+    list of Path
+        Every file written, sorted by name.
+
+    Raises
+    ------
+    InputError
+        When `out_dir` cannot be written (naming the path and the cause).
+    """
     rows, chan_rows = [], []
     for k, snr in enumerate(study.snr_db):
         for f, hz in enumerate(study.hz):
@@ -120,7 +159,20 @@ def write_capacity_study(study: CapacityStudy, out_dir: str | os.PathLike, *, pl
 
 
 def capacity_figures(study: CapacityStudy, water_freq_index: int | None = None) -> list[tuple[str, Any]]:
-    """The capacity study's figures as (file name, Figure)."""
+    """The capacity study's figures as (file name, Figure).
+
+    Parameters
+    ----------
+    study : CapacityStudy
+        The study to draw.
+    water_freq_index : int, optional
+        As for :func:`write_capacity_study`.
+
+    Returns
+    -------
+    list of (str, Figure)
+        ``capacity.png``, ``active-channels.png`` and ``water-levels.png``.
+    """
     from ..plots.studies import plot_active_channels, plot_capacity, plot_water_levels
 
     return [("capacity.png", plot_capacity(study)), ("active-channels.png", plot_active_channels(study)),
@@ -128,7 +180,23 @@ def capacity_figures(study: CapacityStudy, water_freq_index: int | None = None) 
 
 
 def tolerance_verdict(study: ToleranceStudy) -> str:
-    """One line for people: which channels keep the isolation limit in 95 % of trials."""
+    """One line for people: which channels keep the isolation limit in 95 % of trials.
+
+    The sidecar's ``verdict``; ``arrayplan study tolerance`` prints it.
+
+    Parameters
+    ----------
+    study : ToleranceStudy
+        The Monte Carlo results and their settings (error sizes in m, dB, degrees).
+
+    Returns
+    -------
+    str
+        A sentence naming the channels (1-based) that keep the isolation in
+        95 % of trials at every frequency, those that do not (with the worst
+        channel and frequency, Hz), and where the first-order model stops
+        holding.
+    """
     s = study.settings
     errs = f"{1000 * s['position_sd_m']:g} mm / {s['gain_sd_db']:g} dB / {s['phase_sd_deg']:g}°"
     worst = np.min(np.where(study.judged, study.survival, np.inf), axis=0)         # per channel
@@ -153,7 +221,25 @@ def tolerance_verdict(study: ToleranceStudy) -> str:
 
 def write_tolerance_study(study: ToleranceStudy, out_dir: str | os.PathLike, *, plan_source: str = "",
                           figures: bool = True, trials: bool = True) -> list[Path]:
-    """Write a tolerance study's files into `out_dir` atomically; return their paths."""
+    """Write a tolerance study's files into `out_dir` atomically; return their paths.
+
+    Parameters
+    ----------
+    study : ToleranceStudy
+        The study to write.
+    out_dir, plan_source : path, str
+        As for :func:`write_capacity_study`.
+    figures : bool
+        Also draw and save the study's PNG figures (:func:`tolerance_figures`).
+    trials : bool
+        Also write every trial (``tolerance-trials.npz``, shapes
+        (n_trials, n_freq, n_chan)).
+
+    Returns
+    -------
+    list of Path
+        Every file written, sorted by name.
+    """
     rows = []
     z = 1.6448536269514722
     for f, hz in enumerate(study.hz):
@@ -211,7 +297,18 @@ def write_tolerance_study(study: ToleranceStudy, out_dir: str | os.PathLike, *, 
 
 
 def tolerance_figures(study: ToleranceStudy) -> list[tuple[str, Any]]:
-    """The tolerance study's figures as (file name, Figure)."""
+    """The tolerance study's figures as (file name, Figure).
+
+    Parameters
+    ----------
+    study : ToleranceStudy
+        The study to draw.
+
+    Returns
+    -------
+    list of (str, Figure)
+        ``gain-spread.png`` and ``survival.png``.
+    """
     from ..plots.studies import plot_gain_spread, plot_survival
 
     return [("gain-spread.png", plot_gain_spread(study)), ("survival.png", plot_survival(study))]
@@ -228,7 +325,26 @@ def _load(folder: Path, study: str, npz_name: str) -> tuple[dict, dict]:
 
 
 def read_capacity_study(folder: str | os.PathLike) -> tuple[CapacityStudy, dict]:
-    """A capacity study and its sidecar, read back from a folder written by :func:`write_capacity_study`."""
+    """A capacity study and its sidecar, read back from a folder written by :func:`write_capacity_study`.
+
+    Parameters
+    ----------
+    folder : path
+        The study folder.
+
+    Returns
+    -------
+    study : CapacityStudy
+        Every array as written.
+    sidecar : dict
+        ``capacity.json``, checked for its format and version.
+
+    Raises
+    ------
+    InputError
+        Naming the file: a sidecar of another format or a newer version, an
+        unreadable or incomplete ``capacity.npz``.
+    """
     side, a = _load(Path(folder), "capacity", "capacity.npz")
     try:
         values = {f.name: a[f.name] for f in dataclasses.fields(CapacityStudy)}
@@ -240,7 +356,25 @@ def read_capacity_study(folder: str | os.PathLike) -> tuple[CapacityStudy, dict]
 
 
 def read_tolerance_study(folder: str | os.PathLike) -> tuple[ToleranceStudy, dict]:
-    """A tolerance study (without its trials: an empty TrialChunk) and its sidecar, read back from a folder."""
+    """A tolerance study (without its trials: an empty TrialChunk) and its sidecar, read back from a folder.
+
+    Parameters
+    ----------
+    folder : path
+        The study folder, as :func:`write_tolerance_study` wrote it.
+
+    Returns
+    -------
+    study : ToleranceStudy
+        The summary arrays as written; settings from the sidecar.
+    sidecar : dict
+        ``tolerance.json``, checked for its format and version.
+
+    Raises
+    ------
+    InputError
+        As for :func:`read_capacity_study` (with ``tolerance.npz``).
+    """
     side, a = _load(Path(folder), "tolerance", "tolerance.npz")
     try:
         values: dict[str, Any] = {f.name: a[f.name] for f in dataclasses.fields(ToleranceStudy)

@@ -103,7 +103,9 @@ class LayoutChoice:
     Attributes
     ----------
     problem : LayoutProblem
+        The candidates, the fixed side and the settings chosen under.
     criterion : str
+        One of :data:`CRITERIA`.
     chosen : tuple of int
         0-based candidate indices, in the order they were added (swaps in place).
     value : float

@@ -64,7 +64,28 @@ def _points(label: str, es: ElementSet) -> list[str]:
 
 
 def rig_toml_text(rig: Rig, comment: str) -> str:
-    """A rig file (TOML) holding `rig` as point entries; `comment` heads it (one line)."""
+    """A rig file (TOML) holding `rig` as point entries; `comment` heads it (one line).
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig: medium, frequencies (Hz), planning settings, speakers and
+        microphones (positions in m, 1-based channels), room and zones.
+    comment : str
+        One line, written as a TOML comment at the top.
+
+    Returns
+    -------
+    str
+        The TOML text; :func:`arrayplan.rig.load_rig` reads it back with the
+        same elements (numbers to 10 significant digits), medium, room and zones.
+
+    Raises
+    ------
+    InputError
+        When a zone of generated control points cannot be copied from the
+        rig's own file.
+    """
     m = rig.medium
     lines = [f"# {comment}", "", "[rig]", f"name = {json.dumps(rig.name)}",
              f"description = {json.dumps(rig.description)}", "", "[medium]",
@@ -120,7 +141,19 @@ def _zones(rig: Rig) -> list[str]:
 
 
 def summary_lines(choice: LayoutChoice) -> list[str]:
-    """What the command prints."""
+    """What the command prints.
+
+    Parameters
+    ----------
+    choice : LayoutChoice
+        The layout chosen, with the steps that found it.
+
+    Returns
+    -------
+    list of str
+        The count, criterion and its unit, the chosen names, the value after
+        the greedy steps and swaps and, with a relaxation, its bound and gap.
+    """
     p = choice.problem
     lines = [f"chose {p.count} of {len(p.candidates)} candidate {p.side} by {choice.criterion} "
              f"({_UNITS[choice.criterion]}, {len(p.axis)} frequencies, reference SNR {p.reference_snr_db:g} dB "
@@ -134,7 +167,24 @@ def summary_lines(choice: LayoutChoice) -> list[str]:
 
 
 def write_layout(rig: Rig, choice: LayoutChoice, out_dir: str | Path, figures: bool = True) -> list[Path]:
-    """Write every file of the layout study to `out_dir` atomically; return the paths."""
+    """Write every file of the layout study to `out_dir` atomically; return the paths.
+
+    Parameters
+    ----------
+    rig : Rig
+        The original rig the candidates come from.
+    choice : LayoutChoice
+        The chosen layout.
+    out_dir : path
+        The study folder; an earlier arrayplan output there is replaced whole.
+    figures : bool
+        Also draw and save ``layout-rig.png`` and ``layout-criterion.png``.
+
+    Returns
+    -------
+    list of Path
+        Every file written, sorted by name.
+    """
     p = choice.problem
     new = chosen_rig(rig, choice)
     chosen = set(choice.chosen)

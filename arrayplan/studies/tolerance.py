@@ -212,7 +212,7 @@ class ToleranceStudy:
     Attributes
     ----------
     hz : ndarray, shape (n_freq,)
-        Planned frequencies, Hz.
+        The plan's frequencies, Hz.
     judged : ndarray of bool, shape (n_freq, n_chan)
         Channels in use (strong in the plan) at each frequency.
     trials : TrialChunk

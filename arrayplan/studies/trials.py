@@ -77,10 +77,8 @@ def room_builder(room: Room, speakers: ElementSet, mics: ElementSet, medium: Med
     ----------
     room : Room
         The rectangular room.
-    speakers, mics : ElementSet
-        Element positions (m) and directivities.
-    medium : Medium
-        Speed of sound and air absorption.
+    speakers, mics, medium
+        As for :func:`free_field_builder`.
 
     Returns
     -------
@@ -133,6 +131,8 @@ class TrialProblem:
     @property
     def model(self) -> str:
         """Which perturbation model the trials use (module Notes).
+
+        "ratio" scales the plan's couplings by the kernel's change on each path.
 
         Returns
         -------

@@ -43,7 +43,10 @@ class ZoneTolerance:
     sigma_m : float
         Position error per coordinate, m.
     trials, seed : int
+        Number of perturbed rigs, and the seed of their random errors.
     contrast_db : dict of str to ndarray, shape (trials, n_freq)
+        Contrast of each method's chosen design (keyed by method) on each
+        perturbed rig at each planned frequency, dB.
     """
 
     sigma_m: float
@@ -53,7 +56,22 @@ class ZoneTolerance:
 
 
 def field_grid(rig: Rig, study: ZoneStudy, resolution: int = 121) -> PlaneGrid:
-    """A horizontal (xy) grid at the zones' mean height over the speakers and zones, 20 % margin."""
+    """A horizontal (xy) grid at the zones' mean height over the speakers and zones, 20 % margin.
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig (its speaker positions, m).
+    study : ZoneStudy
+        The study (its bright and dark zones' points, m).
+    resolution : int
+        Grid points along x; along y in proportion to the extent (at least 2).
+
+    Returns
+    -------
+    PlaneGrid
+        An ``"xy"`` plane at the mean height of the zones' points (m).
+    """
     zpts = np.vstack([z.positions for z in (*study.bright, *study.dark)])
     pts = np.vstack([rig.speakers.positions, zpts])
     lo, hi = pts[:, :2].min(axis=0), pts[:, :2].max(axis=0)
@@ -78,7 +96,20 @@ def _band_means(study: ZoneStudy) -> dict:
 
 
 def summary_lines(study: ZoneStudy) -> list[str]:
-    """What the command prints: one line per method's chosen design."""
+    """What the command prints: one line per method's chosen design.
+
+    Parameters
+    ----------
+    study : ZoneStudy
+        The study.
+
+    Returns
+    -------
+    list of str
+        The zones and frequencies, a header, then per method its
+        regularisation and its band mean (and min) contrast, mean (and max)
+        effort and mean matching error, dB.
+    """
     lines = [f"zones: bright {', '.join(z.name for z in study.bright)}; dark {', '.join(z.name for z in study.dark)}; "
              f"{len(study.axis)} frequencies {study.axis.hz[0]:g}-{study.axis.hz[-1]:g} Hz ({study.kernel_name})",
              f"{'method':28s} {'reg.':>8s} {'contrast dB':>16s} {'effort dB':>14s} {'match err dB':>13s}",
@@ -131,7 +162,33 @@ def _sidecar(rig: Rig, study: ZoneStudy, tolerance: ZoneTolerance | None, filter
 def write_zone_study(rig: Rig, study: ZoneStudy, out_dir: str | Path, *, map_hz: float,
                      tolerance: ZoneTolerance | None = None, filters: ZoneFilters | None = None,
                      filter_method: str | None = None, figures: bool = True) -> list[Path]:
-    """Write every file of the study to `out_dir` atomically (all or nothing); return the paths."""
+    """Write every file of the study to `out_dir` atomically (all or nothing); return the paths.
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig studied (names, positions, hash and source go in the files).
+    study : ZoneStudy
+        Every method's designs and metrics.
+    out_dir : path
+        The study folder; an earlier arrayplan output there is replaced whole.
+    map_hz : float
+        Frequency of the field map, Hz (the nearest planned frequency is drawn).
+    tolerance : ZoneTolerance, optional
+        Contrast on perturbed rigs, written to the sidecar and drawn.
+    filters : ZoneFilters, optional
+        Drive filters, written as ``zone-drive.wav`` with their check.
+    filter_method : str, optional
+        The method the filters realise (``"contrast"`` or ``"matching"``),
+        recorded in the sidecar.
+    figures : bool
+        Also draw and save the PNG figures.
+
+    Returns
+    -------
+    list of Path
+        Every file written, sorted by name.
+    """
     hz = study.axis.hz
     rows, wrows = [], []
     for key, res in study.results.items():

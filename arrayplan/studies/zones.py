@@ -345,7 +345,7 @@ def reference_speaker(speaker_positions: np.ndarray) -> int:
     Parameters
     ----------
     speaker_positions : array_like, shape (n_spk, 3)
-        Speaker positions (m).
+        The speakers' positions (m), in rig order.
 
     Returns
     -------
@@ -431,10 +431,8 @@ def effort_db(weights: np.ndarray, g_bright: np.ndarray, g_ref: np.ndarray) -> n
 
     Parameters
     ----------
-    weights : ndarray, complex, shape (n_freq, n_spk)
-        Drive weights.
-    g_bright : ndarray, complex, shape (n_freq, n_b, n_spk)
-        Coupling to the bright-zone points.
+    weights, g_bright : ndarray, complex
+        As for :func:`contrast_db`.
     g_ref : ndarray, complex, shape (n_freq, n_b)
         Coupling of the reference speaker to the bright-zone points.
 
@@ -452,10 +450,8 @@ def matching_error_db(weights: np.ndarray, g_bright: np.ndarray, p_target: np.nd
 
     Parameters
     ----------
-    weights : ndarray, complex, shape (n_freq, n_spk)
-        Drive weights.
-    g_bright : ndarray, complex, shape (n_freq, n_b, n_spk)
-        Coupling to the bright-zone points.
+    weights, g_bright : ndarray, complex
+        As for :func:`contrast_db`.
     p_target : ndarray, complex, shape (n_freq, n_b)
         Target pressure at those points (unit of G).
 
@@ -473,12 +469,8 @@ def align_to_reference(weights: np.ndarray, g_bright: np.ndarray, g_ref: np.ndar
 
     Parameters
     ----------
-    weights : ndarray, complex, shape (n_freq, n_spk)
-        Drive weights.
-    g_bright : ndarray, complex, shape (n_freq, n_b, n_spk)
-        Coupling to the bright-zone points.
-    g_ref : ndarray, complex, shape (n_freq, n_b)
-        Coupling of the reference speaker to the bright-zone points.
+    weights, g_bright, g_ref : ndarray, complex
+        As for :func:`effort_db`.
 
     Returns
     -------

@@ -71,7 +71,8 @@ class Verification:
     Attributes
     ----------
     hz : ndarray, shape (n_freq,)
-        Planned frequencies, Hz.
+        Frequencies checked, Hz: the plan's (:func:`verify_plan`) or the filters'
+        fine in-band grid (:func:`arrayplan.verification.filters.verify_filters`).
     channels : ndarray of int, shape (n_want,)
         Wanted channels, 0-based.
     channel_matrix : ndarray, complex, shape (n_freq, n_chan, n_chan)

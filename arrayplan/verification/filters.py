@@ -44,7 +44,7 @@ def verify_filters(filters: FilterFiles, kernel: Kernel, *, isolation_db: float 
     Parameters
     ----------
     filters : FilterFiles
-        From :func:`arrayplan.formats.filter_set.read_filter_set`.
+        The filters as :func:`arrayplan.formats.filter_set.read_filter_set` reads them.
     kernel : Kernel
         The measured rig; element names must match the filters' (any order).
         Its sample rate, if it has one, must be the filters'.
