@@ -58,6 +58,10 @@ def _add_recording(p: argparse.ArgumentParser, what: str) -> None:
                    help="1-based channel of the file (default: 1)")
 
 
+def _add_output_channel(p: argparse.ArgumentParser, help: str) -> None:
+    p.add_argument("--output-channel", type=channel_number, required=True, metavar="N", help=help)
+
+
 def _finish_record_parser(p: argparse.ArgumentParser, run: Callable[[argparse.Namespace], int]) -> None:
     """Close a :func:`_record_parser` with its last option and the function it runs."""
     p.add_argument("--description", default="", help="description for a new record")
@@ -86,8 +90,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     o = _record_parser(sub, "output", help="full-scale voltage of an output from a tone recorded on a known input",
                        description="Wire the output (without amplifier) to an input of known full-scale level, "
                                    "play a sine of known peak level, record it, and give the recording here.")
-    o.add_argument("--output-channel", type=channel_number, required=True, metavar="N",
-                   help="1-based output calibrated")
+    _add_output_channel(o, "1-based output calibrated")
     _add_recording(o, "the tone")
     o.add_argument("--played-peak-dbfs", type=float_in(-120.0, 0.0, "dBFS"), required=True, metavar="DB",
                    help="peak level of the played sine")
@@ -101,8 +104,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     la = _record_parser(sub, "latency", help="measure the round-trip latency through a loopback cable (plays a sweep)",
                         description="Plays a short quiet sweep on --output-channel and records --input-channel, "
                                     "which must be wired to it; stores the latency in samples at the stream's rate.")
-    la.add_argument("--output-channel", type=channel_number, required=True, metavar="N",
-                    help="1-based output of the loop")
+    _add_output_channel(la, "1-based output of the loop")
     la.add_argument("--input-channel", type=channel_number, required=True, metavar="N",
                     help="1-based input of the loop")
     la.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the system's)")
