@@ -14,6 +14,7 @@ from __future__ import annotations
 import argparse
 import math
 import sys
+from typing import Callable
 
 from ..errors import InputError
 from ._args import accept_old_spelling, add_command_group, channel_number, dbfs_level, float_in, positive_float
@@ -43,17 +44,38 @@ def _add_full_scale(p: argparse.ArgumentParser, what: str) -> None:
                    help="the same in V RMS")
 
 
+def _record_parser(sub: argparse._SubParsersAction, name: str, help: str,
+                   description: str) -> argparse.ArgumentParser:
+    """A sub-command that adds an entry to the calibration record given as its first argument."""
+    p = sub.add_parser(name, help=help, description=description)
+    p.add_argument("record", help="calibration record to create or update (TOML)")
+    return p
+
+
+def _add_recording(p: argparse.ArgumentParser, what: str) -> None:
+    p.add_argument("--recording", required=True, metavar="WAV", help=f"recording of {what}")
+    p.add_argument("--channel", type=channel_number, default=1, metavar="N",
+                   help="1-based channel of the file (default: 1)")
+
+
+def _add_output_channel(p: argparse.ArgumentParser, help: str) -> None:
+    p.add_argument("--output-channel", type=channel_number, required=True, metavar="N", help=help)
+
+
+def _finish_record_parser(p: argparse.ArgumentParser, run: Callable[[argparse.Namespace], int]) -> None:
+    """Close a :func:`_record_parser` with its last option and the function it runs."""
+    p.add_argument("--description", default="", help="description for a new record")
+    p.set_defaults(run=run)
+
+
 def register(subparsers: argparse._SubParsersAction) -> None:
     sub = add_command_group(subparsers, "calibrate", __doc__, dest="calibrate_command", metavar="WHAT")
 
-    m = sub.add_parser("mic", help="microphone sensitivity from a recording of an acoustic calibrator",
+    m = _record_parser(sub, "mic", help="microphone sensitivity from a recording of an acoustic calibrator",
                        description="Record the calibrator seated on the microphone (a few seconds, the input gain "
                                    "as for measuring), then compute the sensitivity in mV/Pa.  94 dB SPL is "
                                    "1 Pa re 20 µPa; IEC 60942 defines calibrator classes.")
-    m.add_argument("record", help="calibration record to create or update (TOML)")
-    m.add_argument("--recording", required=True, metavar="WAV", help="recording of the calibrator")
-    m.add_argument("--channel", type=channel_number, default=1, metavar="N",
-                   help="1-based channel of the file (default: 1)")
+    _add_recording(m, "the calibrator")
     m.add_argument("--mic", required=True, metavar="NAME", help="the microphone's name in the rig file")
     m.add_argument("--input-channel", type=channel_number, metavar="N",
                    help="1-based interface input the mic is on (default: --channel)")
@@ -63,18 +85,13 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     m.add_argument("--calibrator-hz", type=float_in(1.0, 100_000.0, "Hz"), default=1000.0, metavar="HZ",
                    help="default 1000 Hz")
     m.add_argument("--calibrator-class", default="", metavar="CLASS", help="IEC 60942 class, for the record")
-    m.add_argument("--description", default="", help="description for a new record")
-    m.set_defaults(run=run_mic)
+    _finish_record_parser(m, run_mic)
 
-    o = sub.add_parser("output", help="full-scale voltage of an output from a tone recorded on a known input",
+    o = _record_parser(sub, "output", help="full-scale voltage of an output from a tone recorded on a known input",
                        description="Wire the output (without amplifier) to an input of known full-scale level, "
                                    "play a sine of known peak level, record it, and give the recording here.")
-    o.add_argument("record", help="calibration record to create or update (TOML)")
-    o.add_argument("--output-channel", type=channel_number, required=True, metavar="N",
-                   help="1-based output calibrated")
-    o.add_argument("--recording", required=True, metavar="WAV", help="recording of the tone")
-    o.add_argument("--channel", type=channel_number, default=1, metavar="N",
-                   help="1-based channel of the file (default: 1)")
+    _add_output_channel(o, "1-based output calibrated")
+    _add_recording(o, "the tone")
     o.add_argument("--played-peak-dbfs", type=float_in(-120.0, 0.0, "dBFS"), required=True, metavar="DB",
                    help="peak level of the played sine")
     o.add_argument("--tone-hz", type=float_in(1.0, 100_000.0, "Hz"), default=1000.0, metavar="HZ",
@@ -82,15 +99,12 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     o.add_argument("--amplifier-gain-db", type=float_in(-100.0, 100.0, "dB"), default=0.0, metavar="DB",
                    help="voltage gain of the amplifier after this output (default: 0)")
     _add_full_scale(o, "the input that recorded it")
-    o.add_argument("--description", default="", help="description for a new record")
-    o.set_defaults(run=run_output)
+    _finish_record_parser(o, run_output)
 
-    la = sub.add_parser("latency", help="measure the round-trip latency through a loopback cable (plays a sweep)",
+    la = _record_parser(sub, "latency", help="measure the round-trip latency through a loopback cable (plays a sweep)",
                         description="Plays a short quiet sweep on --output-channel and records --input-channel, "
                                     "which must be wired to it; stores the latency in samples at the stream's rate.")
-    la.add_argument("record", help="calibration record to create or update (TOML)")
-    la.add_argument("--output-channel", type=channel_number, required=True, metavar="N",
-                    help="1-based output of the loop")
+    _add_output_channel(la, "1-based output of the loop")
     la.add_argument("--input-channel", type=channel_number, required=True, metavar="N",
                     help="1-based input of the loop")
     la.add_argument("--device", metavar="INDEX|NAME", help="audio device (default: the system's)")
@@ -100,8 +114,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     la.add_argument("--max-latency-s", type=float_in(0.001, 10.0, "s"), default=0.25, metavar="S",
                     help="default 0.25 s")
     la.add_argument("--yes", action="store_true", help="confirm without a prompt, after reading the caution")
-    la.add_argument("--description", default="", help="description for a new record")
-    la.set_defaults(run=run_latency)
+    _finish_record_parser(la, run_latency)
 
     sh = sub.add_parser("show", help="check a record and print what it holds")
     sh.add_argument("record", help="calibration record (TOML)")

@@ -233,63 +233,99 @@ def _driver_radius(spacing: float, largest: float) -> float:
 
 # ------------------------------------------------------------ layouts
 
-def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
-    n_s, n_m = _count(o["speakers"], "speakers"), _count(o["mics"], "mics")
+#: A microphone that hears equally from every direction.
+_OMNI = _kv("directivity", "omni", "pressure microphones, equal in every direction")
+
+
+def _piston(radius: float, axis: Any, facing: str) -> _Pair:
+    """The ``directivity`` pair of a baffled piston of `radius` m pointing along `axis`."""
+    return _kv("directivity", {"type": "piston", "radius": radius, "axis": axis},
+               f"baffled piston, radius in m, {facing}")
+
+
+def _io(label: str) -> str:
+    """The interface side an element of table `label` is wired to."""
+    return "output" if label == "speakers" else "input"
+
+
+def _line_block(label: str, comment: str, prefix: str, count: int, what: str, spacing: float,
+                center: list[float], center_note: str, direction_note: str, directivity: _Pair,
+                channel_note: str = "") -> list[Part]:
+    """The ``[[label]]`` table of a line of `count` `what` named `prefix`1.. running along x."""
+    return [
+        _table(label, comment, array=True),
+        _kv("shape", "line", "a straight line of equally spaced elements"),
+        _kv("name", prefix, f"element names {prefix}1..{prefix}{count}"),
+        _kv("count", count, f"number of {what}"),
+        _kv("spacing", spacing, "centre-to-centre distance, m"),
+        _kv("center", center, center_note),
+        _kv("direction", [1.0, 0.0, 0.0], direction_note),
+        directivity,
+        _kv("first_channel", 1, f"interface {_io(label)} of {prefix}1 (1-based){channel_note}"),
+    ]
+
+
+def _grid_block(label: str, comment: str, prefix: str, counts: tuple[int, int], counts_note: str,
+                spacing: float, center: list[float], center_note: str, normal: list[float], normal_note: str,
+                directivity: _Pair, first_channel: int = 1) -> list[Part]:
+    """The ``[[label]]`` table of a flat grid of ``counts[0] x counts[1]`` elements named `prefix`1.."""
+    return [
+        _table(label, comment, array=True),
+        _kv("shape", "grid", "a rectangular grid in one plane"),
+        _kv("name", prefix, f"element names {prefix}1..{prefix}{counts[0] * counts[1]}, row by row"),
+        _kv("counts", list(counts), counts_note),
+        _kv("spacing", spacing, "centre-to-centre distance both ways, m"),
+        _kv("center", center, center_note),
+        _kv("normal", normal, normal_note),
+        directivity,
+        _kv("first_channel", first_channel, f"interface {_io(label)} of {prefix}1 (1-based)"),
+    ]
+
+
+def _listening_grid(comment: str, prefix: str, counts: tuple[int, int], spacing: float, center: list[float],
+                    center_note: str, first_channel: int = 1) -> list[Part]:
+    """A horizontal grid of pressure microphones at ear height sampling a listening area."""
+    return _grid_block("microphones", comment, prefix, counts, "microphones along x and along y", spacing,
+                       center, center_note, [0.0, 0.0, 1.0], "a horizontal grid at ear height", _OMNI,
+                       first_channel)
+
+
+def _facing_spacings(o: dict[str, Any]) -> tuple[float, float, float, float]:
+    """Speaker and microphone spacing, distance between the arrays (m) and driver radius of a facing layout."""
     d_s = _positive(o["spacing"], "spacing", "metres")
     d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "mic_spacing", "metres")
     dist = _positive(o["distance"], "distance", "metres")
-    a = _driver_radius(d_s, 0.015)
+    return d_s, d_m, dist, _driver_radius(d_s, 0.015)
+
+
+def _facing_lines(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
+    n_s, n_m = _count(o["speakers"], "speakers"), _count(o["mics"], "mics")
+    d_s, d_m, dist, a = _facing_spacings(o)
     return [
-        _table("speakers", "the transmitting line: small drivers on a bar", array=True),
-        _kv("shape", "line", "a straight line of equally spaced elements"),
-        _kv("name", "T", f"element names T1..T{n_s}"),
-        _kv("count", n_s, "number of drivers"),
-        _kv("spacing", d_s, "centre-to-centre distance, m"),
-        _kv("center", [0.0, 0.0, 1.2], "middle of the line (x, y, z), m"),
-        _kv("direction", [1.0, 0.0, 0.0], "the line runs along x"),
-        _kv("directivity", {"type": "piston", "radius": a, "axis": [0.0, 1.0, 0.0]},
-            "baffled piston, radius in m, facing +y"),
-        _kv("first_channel", 1, "interface output of T1 (1-based); T2 the next"),
+        *_line_block("speakers", "the transmitting line: small drivers on a bar", "T", n_s, "drivers", d_s,
+                     [0.0, 0.0, 1.2], "middle of the line (x, y, z), m", "the line runs along x",
+                     _piston(a, [0.0, 1.0, 0.0], "facing +y"), channel_note="; T2 the next"),
         "",
-        _table("microphones", "the receiving line, facing the drivers", array=True),
-        _kv("shape", "line", "a straight line of equally spaced elements"),
-        _kv("name", "R", f"element names R1..R{n_m}"),
-        _kv("count", n_m, "number of microphones"),
-        _kv("spacing", d_m, "centre-to-centre distance, m"),
-        _kv("center", [0.0, dist, 1.2], "middle of the line, m (distance along y)"),
-        _kv("direction", [1.0, 0.0, 0.0], "parallel to the drivers"),
-        _kv("directivity", {"type": "cardioid", "axis": [0.0, -1.0, 0.0]}, "cardioid, facing the drivers (-y)"),
-        _kv("first_channel", 1, "interface input of R1 (1-based)"),
+        *_line_block("microphones", "the receiving line, facing the drivers", "R", n_m, "microphones", d_m,
+                     [0.0, dist, 1.2], "middle of the line, m (distance along y)", "parallel to the drivers",
+                     _kv("directivity", {"type": "cardioid", "axis": [0.0, -1.0, 0.0]},
+                         "cardioid, facing the drivers (-y)")),
     ], [d_s, d_m]
 
 
 def _facing_grids(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
     (su, sv), (mu, mv) = parse_counts(o["speakers"], "speakers"), parse_counts(o["mics"], "mics")
-    d_s = _positive(o["spacing"], "spacing", "metres")
-    d_m = _positive(o["mic_spacing"] if o["mic_spacing"] is not None else d_s, "mic_spacing", "metres")
-    dist = _positive(o["distance"], "distance", "metres")
-    a = _driver_radius(d_s, 0.015)
+    d_s, d_m, dist, a = _facing_spacings(o)
+    width_height = "elements along the panel's width and height"
     return [
-        _table("speakers", "a flat panel of drivers", array=True),
-        _kv("shape", "grid", "a rectangular grid in one plane"),
-        _kv("name", "P", f"element names P1..P{su * sv}, row by row"),
-        _kv("counts", [su, sv], "elements along the panel's width and height"),
-        _kv("spacing", d_s, "centre-to-centre distance both ways, m"),
-        _kv("center", [0.0, 0.0, 1.2], "middle of the panel (x, y, z), m"),
-        _kv("normal", [0.0, 1.0, 0.0], "the panel faces +y (rows run along x)"),
-        _kv("directivity", {"type": "piston", "radius": a, "axis": [0.0, 1.0, 0.0]},
-            "baffled piston, radius in m, facing +y"),
-        _kv("first_channel", 1, "interface output of P1 (1-based)"),
+        *_grid_block("speakers", "a flat panel of drivers", "P", (su, sv), width_height, d_s,
+                     [0.0, 0.0, 1.2], "middle of the panel (x, y, z), m",
+                     [0.0, 1.0, 0.0], "the panel faces +y (rows run along x)",
+                     _piston(a, [0.0, 1.0, 0.0], "facing +y")),
         "",
-        _table("microphones", "a flat panel of microphones, facing the drivers", array=True),
-        _kv("shape", "grid", "a rectangular grid in one plane"),
-        _kv("name", "Q", f"element names Q1..Q{mu * mv}, row by row"),
-        _kv("counts", [mu, mv], "elements along the panel's width and height"),
-        _kv("spacing", d_m, "centre-to-centre distance both ways, m"),
-        _kv("center", [0.0, dist, 1.2], "middle of the panel, m (distance along y)"),
-        _kv("normal", [0.0, 1.0, 0.0], "parallel to the drivers' panel"),
-        _kv("directivity", "omni", "pressure microphones, equal in every direction"),
-        _kv("first_channel", 1, "interface input of Q1 (1-based)"),
+        *_grid_block("microphones", "a flat panel of microphones, facing the drivers", "Q", (mu, mv), width_height,
+                     d_m, [0.0, dist, 1.2], "middle of the panel, m (distance along y)",
+                     [0.0, 1.0, 0.0], "parallel to the drivers' panel", _OMNI),
     ], [d_s, d_m]
 
 
@@ -311,19 +347,11 @@ def _ring_zone(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
         _kv("radius", radius, "circle radius, m"),
         _kv("center", [0.0, 0.0, 1.2], "centre of the ring (ear height), m"),
         _kv("normal", [0.0, 0.0, 1.0], "the ring lies in a horizontal plane"),
-        _kv("directivity", {"type": "piston", "radius": a, "axis": "inward"},
-            "baffled piston, radius in m, each facing the centre"),
+        _piston(a, "inward", "each facing the centre"),
         _kv("first_channel", 1, "interface output of L1 (1-based)"),
         "",
-        _table("microphones", "the listening area, sampled by a grid of microphones", array=True),
-        _kv("shape", "grid", "a rectangular grid in one plane"),
-        _kv("name", "Z", f"element names Z1..Z{mu * mv}, row by row"),
-        _kv("counts", [mu, mv], "microphones along x and along y"),
-        _kv("spacing", d_m, "centre-to-centre distance both ways, m"),
-        _kv("center", [0.0, 0.0, 1.2], "middle of the listening area, m"),
-        _kv("normal", [0.0, 0.0, 1.0], "a horizontal grid at ear height"),
-        _kv("directivity", "omni", "pressure microphones, equal in every direction"),
-        _kv("first_channel", 1, "interface input of Z1 (1-based)"),
+        *_listening_grid("the listening area, sampled by a grid of microphones", "Z", (mu, mv), d_m,
+                         [0.0, 0.0, 1.2], "middle of the listening area, m"),
     ], [chord, d_m]
 
 
@@ -338,31 +366,12 @@ def _two_zones(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
         raise InputError(f"zones {gap:g} m apart overlap: each is {(mu - 1) * d_m:g} m wide",
                          source="zone_separation", fix="separate the zones further or use fewer microphones")
     a = _driver_radius(d_s, 0.04)
-    lines = [
-        _table("speakers", "a line array in front of both zones", array=True),
-        _kv("shape", "line", "a straight line of equally spaced elements"),
-        _kv("name", "S", f"element names S1..S{n_s}"),
-        _kv("count", n_s, "number of loudspeakers"),
-        _kv("spacing", d_s, "centre-to-centre distance, m"),
-        _kv("center", [0.0, 0.0, 1.2], "middle of the line (x, y, z), m"),
-        _kv("direction", [1.0, 0.0, 0.0], "the line runs along x"),
-        _kv("directivity", {"type": "piston", "radius": a, "axis": [0.0, 1.0, 0.0]},
-            "baffled piston, radius in m, facing the zones (+y)"),
-        _kv("first_channel", 1, "interface output of S1 (1-based)"),
-    ]
+    lines = _line_block("speakers", "a line array in front of both zones", "S", n_s, "loudspeakers", d_s,
+                        [0.0, 0.0, 1.2], "middle of the line (x, y, z), m", "the line runs along x",
+                        _piston(a, [0.0, 1.0, 0.0], "facing the zones (+y)"))
     for zone, x, first in (("A", -gap / 2, 1), ("B", gap / 2, 1 + mu * mv)):
-        lines += [
-            "",
-            _table("microphones", f"listening zone {zone}", array=True),
-            _kv("shape", "grid", "a rectangular grid in one plane"),
-            _kv("name", zone, f"element names {zone}1..{zone}{mu * mv}, row by row"),
-            _kv("counts", [mu, mv], "microphones along x and along y"),
-            _kv("spacing", d_m, "centre-to-centre distance both ways, m"),
-            _kv("center", [x, dist, 1.2], f"middle of zone {zone}, m"),
-            _kv("normal", [0.0, 0.0, 1.0], "a horizontal grid at ear height"),
-            _kv("directivity", "omni", "pressure microphones, equal in every direction"),
-            _kv("first_channel", first, f"interface input of {zone}1 (1-based)"),
-        ]
+        lines += ["", *_listening_grid(f"listening zone {zone}", zone, (mu, mv), d_m, [x, dist, 1.2],
+                                       f"middle of zone {zone}, m", first)]
     return lines, [d_s, d_m]
 
 
@@ -382,12 +391,10 @@ def _bench(o: dict[str, Any], c: float) -> tuple[list[Part], list[float]]:
                 _kv("position", [round(x, 6), y, 0.1], "x, y, z in m (z: height above the bench)"),
             ]
             if label == "speakers":
-                lines.append(_kv("directivity", {"type": "piston", "radius": a, "axis": [0.0, 1.0, 0.0]},
-                                 "baffled piston, radius in m, facing +y"))
+                lines.append(_piston(a, [0.0, 1.0, 0.0], "facing +y"))
             else:
                 lines.append(_kv("directivity", "omni", "pressure microphone"))
-            lines += [_kv("channel", i + 1, f"interface {'output' if label == 'speakers' else 'input'} (1-based)"),
-                      ""]
+            lines += [_kv("channel", i + 1, f"interface {_io(label)} (1-based)"), ""]
     lines += [
         _table("hardware", "the audio interface (for measurement)"),
         "# device = \"USB\"                 # interface by index or part of its name; see 'arrayplan devices'",
