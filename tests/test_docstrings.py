@@ -45,6 +45,7 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.filters.design",
     "arrayplan.filters.source",
     "arrayplan.filters.taps_search",
+    "arrayplan.filters.transfer",
     "arrayplan.kernels.measured",
     "arrayplan.kernels.room",
     "arrayplan.plots.channels",
