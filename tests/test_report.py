@@ -569,3 +569,25 @@ def test_a_plan_folder_reported_on_its_own_is_named_by_its_folder(tmp_path):
     write_plan(plan_rig(rig, FrequencyAxis([1000.0, 2000.0])), tmp_path / "lone-plan", figures=False)
     html = build_report(tmp_path / "lone-plan")
     assert "Plan: lone-plan" in html and "Plan: .<" not in html and "Plan: .:" not in html
+
+
+def test_a_filter_verification_names_the_filters_and_their_plan(project, tmp_path):
+    # A verification of a filter set records filters_dir, not plan_dir: its section must name the
+    # filters folder and the plan the filters were designed from, never an empty "plan" field.
+    copy = tmp_path / "proj"
+    shutil.copytree(project, copy)
+    (copy / "report.html").unlink(missing_ok=True)
+    assert main(["filters", str(copy / "plan"), "--rate-hz", "16000", "--band-hz", "400", "4000", "--taps", "512",
+                 "--out", str(copy / "plan-filters")]) in (0, 1)
+    status = main(["verify", str(copy / "plan-filters"), str(copy / "meas" / "irset"), "--out",
+                   str(copy / "verify-filters")])
+    assert status in (0, 1)
+    doc = json.loads((copy / "verify-filters" / "verify.json").read_text())
+    assert "filters_dir" in doc and "plan_dir" not in doc          # what the verify command records
+    section = _section(build_report(copy), "verify-verify-filters")
+    rows = dict(re.findall(r'<tr><td class="text">([^<]*)</td><td class="text">([^<]*)</td></tr>', section))
+    assert rows["filters"] == str(copy / "plan-filters")
+    assert rows["plan the filters were designed from"] == str(copy / "plan")
+    assert "plan" not in rows or rows["plan"].strip()
+    if status == 1:      # free-field filters lost a channel: the remedy is to plan from the measurement
+        assert "plan again from these measured responses" in section

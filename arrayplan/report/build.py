@@ -27,7 +27,8 @@ from ._util import _anchor, _figures_html, _fmt, _rel
 from .conclusions import centre_note, conclusions, verdict_html, verdict_of
 from .html import esc, page, table
 from .rigs import RigGroup, rig_anchor, rig_groups, rig_section
-from .verdicts import filters_verdict, irset_verdict, plan_verdict, study_verdict, verification_verdict
+from .verdicts import (filters_verdict, irset_verdict, plan_verdict, study_verdict, verification_verdict,
+                       verified_sources)
 
 __all__ = ["build_report", "write_report"]
 
@@ -322,7 +323,7 @@ def _verification_section(found: FoundVerification, root: Path) -> str:
     parts = [f'<section id="{_anchor("verify", found.folder, root)}"><h2>Verification: '
              f'{esc(_rel(found.folder, root))}</h2>', verdict_html(verification_verdict(found))]
     parts.append(table(["item", "value"], [
-        ["plan", d.get("plan_dir", "")], ["measured impulse responses", d.get("irset_dir", "")],
+        *[list(row) for row in verified_sources(found)], ["measured impulse responses", d.get("irset_dir", "")],
         ["isolation limit", f"{d.get('isolation_db', '')} dB"], ["measured units", d.get("irset_units", "")],
         ["window", "none" if d.get("window_ms") is None else f"{d.get('window_ms')} ms"],
         ["smoothing", "none" if d.get("smoothing_octaves") is None
