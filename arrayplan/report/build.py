@@ -285,23 +285,24 @@ def _irset_section(found: FoundIRSet, root: Path) -> str:
 
 
 def _verification_verdicts(found: FoundVerification) -> list[list[object]]:
-    by_channel: dict[int, list[dict[str, str]]] = {}
-    for r in found.channel_rows:
-        by_channel.setdefault(int(r["channel"]), []).append(r)
+    """One row per wanted channel: verdict, worst isolation and where, lost count, median gain."""
+    col = found.channel_columns
+    channel, hz, iso_all, gain_all = col["channel"], col["frequency_hz"], col["isolation_db"], col["gain_db"]
+    lost_all = np.nan_to_num(col["lost"])
+    judged_all = col.get("judged", np.ones(len(channel))) != 0
     passed = dict(zip(found.doc.get("channels", []), found.doc.get("passed", [])))
     rows = []
-    for c, rs in sorted(by_channel.items()):
-        iso = np.array([float(r["isolation_db"]) if r["isolation_db"] else np.nan for r in rs])
-        gain = np.array([float(r["gain_db"]) if r["gain_db"] else np.nan for r in rs])
-        lost = sum(int(r["lost"]) for r in rs)
-        judged = sum(r.get("judged", "1") not in ("0", "False", "false") for r in rs)
+    for c in np.unique(channel[np.isfinite(channel)]).astype(int):
+        mine = channel == c
+        iso, gain = iso_all[mine], gain_all[mine]
+        lost, judged = int(lost_all[mine].sum()), int(judged_all[mine].sum())
         finite = np.isfinite(iso)
         worst = int(np.flatnonzero(finite)[np.argmin(iso[finite])]) if finite.any() else None
-        ok = passed.get(c, lost == 0)
+        ok = passed.get(int(c), lost == 0)
         median_gain = float(np.nanmedian(gain)) if np.any(np.isfinite(gain)) else np.nan
-        rows.append([c, "PASS" if ok else "FAIL",
+        rows.append([int(c), "PASS" if ok else "FAIL",
                      "-" if worst is None else _fmt(iso[worst], ".1f"),
-                     "-" if worst is None else _fmt(float(rs[worst]["frequency_hz"]), ".5g"),
+                     "-" if worst is None else _fmt(float(hz[mine][worst]), ".5g"),
                      f"{lost} of {judged} judged", _fmt(median_gain, ".1f")])
     return rows
 

@@ -97,13 +97,25 @@ class FoundIRSet:
 
 @dataclass
 class FoundVerification:
-    """A verification folder: ``verify.json``, its two tables as lists of row dicts, and ``verify.npz``
-    (the realised channel matrices) when present."""
+    """A verification folder: ``verify.json``, its two tables and ``verify.npz`` (the realised channel
+    matrices) when present.
+
+    Attributes
+    ----------
+    folder : Path
+    doc : dict
+        ``verify.json``.
+    channel_columns, summary_columns : dict of str to ndarray
+        ``verify-channels.csv`` and ``verify-summary.csv`` by column, as floats (an empty cell is NaN,
+        ``True``/``False`` are 1/0), each of shape (n_rows,).
+    arrays : dict or None
+        ``verify.npz``.
+    """
 
     folder: Path
     doc: dict
-    channel_rows: list[dict[str, str]]
-    summary_rows: list[dict[str, str]]
+    channel_columns: dict[str, np.ndarray]
+    summary_columns: dict[str, np.ndarray]
     arrays: dict[str, Any] | None = None
 
 
@@ -146,11 +158,39 @@ def _read_json(path: Path) -> Any:
         raise InputError(f"cannot read ({exc.__class__.__name__}: {exc})", source=str(path)) from None
 
 
-def _read_csv(path: Path) -> list[dict[str, str]]:
+def _read_csv_columns(path: Path) -> dict[str, np.ndarray]:
+    """A numeric CSV table by column (float; empty cells NaN, ``True``/``False`` 1/0).
+
+    Read with :func:`csv.reader` and converted a column at a time: a
+    verification's table has a row per frequency and channel (10^5 rows
+    and more), where a dict per row would cost most of the report's reading.
+    """
     if not path.exists():
         raise InputError("missing", source=str(path))
-    with open(path, newline="", encoding="utf-8") as fh:
-        return list(csv.DictReader(fh))
+    try:
+        with open(path, newline="", encoding="utf-8") as fh:
+            reader = csv.reader(fh)
+            header = next(reader, None)
+            rows = list(reader)
+    except (OSError, UnicodeDecodeError, csv.Error) as exc:
+        raise InputError(f"cannot read ({exc.__class__.__name__}: {exc})", source=str(path)) from None
+    if not header:
+        raise InputError("empty, no header row", source=str(path))
+    if any(len(r) != len(header) for r in rows):
+        bad = next(n for n, r in enumerate(rows, 2) if len(r) != len(header))
+        raise InputError(f"line {bad} has another number of cells than the header ({len(header)})", source=str(path))
+    columns = zip(*rows) if rows else ([] for _ in header)
+    out = {}
+    for name, cells in zip(header, columns):
+        text = np.array(cells, dtype=str)
+        text[text == ""] = "nan"
+        text[text == "True"] = "1"
+        text[text == "False"] = "0"
+        try:
+            out[name] = text.astype(float)
+        except ValueError as exc:
+            raise InputError(f"not a number ({exc})", source=str(path), field=name) from None
+    return out
 
 
 def _walk(root: Path) -> list[Path]:
@@ -275,6 +315,10 @@ def _load_irset(folder: Path) -> FoundIRSet:
     return FoundIRSet(folder, irs, "impulse-response set")
 
 
+#: Columns of ``verify-channels.csv`` the report reads.
+_VERIFY_CHANNEL_COLUMNS = ("frequency_hz", "channel", "gain_db", "isolation_db", "lost")
+
+
 def _load_verification(folder: Path) -> FoundVerification:
     check_folder(folder, needed=("verify*",))
     doc = _read_json(folder / "verify.json")
@@ -287,8 +331,11 @@ def _load_verification(folder: Path) -> FoundVerification:
                 arrays = {k: z[k] for k in keys}
         except (ValueError, KeyError, OSError) as exc:
             raise InputError(f"cannot read ({exc})", source=str(folder / "verify.npz")) from None
-    return FoundVerification(folder, doc, _read_csv(folder / "verify-channels.csv"),
-                             _read_csv(folder / "verify-summary.csv"), arrays)
+    channels = _read_csv_columns(folder / "verify-channels.csv")
+    for name in _VERIFY_CHANNEL_COLUMNS:
+        if name not in channels:
+            raise InputError("missing column", source=str(folder / "verify-channels.csv"), field=name)
+    return FoundVerification(folder, doc, channels, _read_csv_columns(folder / "verify-summary.csv"), arrays)
 
 
 def _load_study(folder: Path) -> FoundStudy:

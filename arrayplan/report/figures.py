@@ -61,15 +61,33 @@ def _fig(height_in: float) -> Figure:
     return Figure(figsize=(PAGE_WIDTH_IN, height_in), layout="constrained")
 
 
+#: zlib level of the report's PNGs: 3 encodes about twice as fast as the usual 6 and, with the opaque
+#: figures stored as RGB instead of RGBA, the files come out no larger (measured on the report's figures).
+PNG_COMPRESS_LEVEL = 3
+
+
 def png_bytes(fig: Figure, dpi: int = 150) -> bytes:
     """The figure as PNG bytes, drawn once.
 
     A figure with a layout engine is laid out once at the output resolution
-    and then frozen, and the canvas prints it directly: ``savefig`` would
+    and then frozen, and the canvas draws it directly: ``savefig`` would
     draw such a figure twice (a dry draw for the layout, then the real one).
-    The picture is the same, pixel for pixel, for about half the work.
+    An opaque figure (every pixel's alpha 255, as every report figure) is
+    stored as RGB; the pixels are the same as ``savefig``'s, for less work.
+
+    Parameters
+    ----------
+    fig : Figure
+    dpi : int
+        Output resolution, dots per inch.
+
+    Returns
+    -------
+    bytes
+        A PNG file with the resolution recorded (pHYs chunk).
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from PIL import Image
 
     fig.set_dpi(dpi)
     canvas = FigureCanvasAgg(fig)
@@ -77,8 +95,11 @@ def png_bytes(fig: Figure, dpi: int = 150) -> bytes:
     if engine is not None:
         engine.execute(fig)
         fig.set_layout_engine("none")
+    canvas.draw()
+    rgba = np.asarray(canvas.buffer_rgba())
+    image = Image.fromarray(rgba[..., :3]) if rgba[..., 3].min() == 255 else Image.fromarray(rgba)
     buf = io.BytesIO()
-    canvas.print_png(buf)
+    image.save(buf, format="png", dpi=(dpi, dpi), compress_level=PNG_COMPRESS_LEVEL)
     return buf.getvalue()
 
 
@@ -153,21 +174,17 @@ def irset_figures(found: FoundIRSet) -> list[ReportFigure]:
                          f"{irs.units}).", fig)]
 
 
-def _floats(rows: list[dict[str, str]], key: str) -> np.ndarray:
-    return np.array([float(r[key]) if r.get(key) not in (None, "") else np.nan for r in rows], dtype=float)
-
-
 def verification_figures(found: FoundVerification) -> list[ReportFigure]:
     """Isolation against frequency and the measured channel matrices of a verification."""
-    rows = found.channel_rows
-    if not rows:
+    col = found.channel_columns
+    if len(col["channel"]) == 0:
         return []
-    chans = sorted({int(r["channel"]) for r in rows})
-    hz = np.unique(_floats(rows, "frequency_hz"))
+    ok = np.isfinite(col["channel"]) & np.isfinite(col["frequency_hz"])
+    chan = col["channel"][ok].astype(int)
+    chans = sorted(set(chan.tolist()))
+    hz = np.unique(col["frequency_hz"][ok])
     iso = np.full((len(hz), len(chans)), np.nan)
-    f_idx = np.searchsorted(hz, _floats(rows, "frequency_hz"))
-    c_idx = np.searchsorted(chans, [int(r["channel"]) for r in rows])
-    iso[f_idx, c_idx] = _floats(rows, "isolation_db")
+    iso[np.searchsorted(hz, col["frequency_hz"][ok]), np.searchsorted(chans, chan)] = col["isolation_db"][ok]
     limit = float(found.doc.get("isolation_db", 20.0))
     out = [ReportFigure("Measured isolation of each wanted channel against frequency; a channel is lost where it "
                         f"falls below {limit:g} dB. Gaps: the channel is not judged there, or no other channel is, "
