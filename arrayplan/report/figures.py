@@ -16,7 +16,7 @@ from typing import Iterator
 import numpy as np
 from matplotlib.figure import Figure
 
-from ..channels.field import best_plane, channel_field, default_plane
+from ..channels.field import best_plane, channel_fields, default_plane
 from ..filters.check import plot_crosstalk as plot_filter_crosstalk
 from ..plots import (plot_channel_counts, plot_channel_matrices, plot_couplings, plot_field_panels,
                      plot_ir_overview, plot_isolation, plot_level_map, plot_rig, plot_singular_values)
@@ -113,7 +113,7 @@ def _field_figure(found: FoundPlan) -> ReportFigure | None:
     n = min(FIELD_CHANNELS, ch.n_channels)
     plane = best_plane(rig)
     grid = default_plane(rig, plane, resolution=121)
-    pressures = [channel_field(rig, ch.drive[f, :, j], float(ch.axis.hz[f]), grid) for j in range(n)]
+    pressures = list(channel_fields(rig, ch.drive[f, :, :n], float(ch.axis.hz[f]), grid))    # the kernel once
     level = ch.level_db()[f]
     titles = [f"channel {j + 1}: {level[j]:.1f} dB re strongest" for j in range(n)]
     fig = plot_field_panels(rig, grid, pressures, titles)
