@@ -11,7 +11,7 @@ import contextlib
 import io
 from dataclasses import dataclass
 from types import SimpleNamespace
-from typing import Iterator
+from typing import Callable, Iterator
 
 import numpy as np
 from matplotlib.figure import Figure
@@ -24,9 +24,9 @@ from ..plots.channels import centre_index
 from ..plots.effort import plot_drive_effort
 from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification
 
-__all__ = ["ReportFigure", "PAGE_WIDTH_IN", "MIN_FONT_PT", "report_style", "rig_figures", "plan_figures",
-           "filter_figures",
-           "irset_figures", "verification_figures", "study_figures", "png_bytes"]
+__all__ = ["ReportFigure", "FigureMaker", "made", "PAGE_WIDTH_IN", "MIN_FONT_PT", "report_style", "rig_figures",
+           "plan_figures", "plan_figure_makers", "filter_figures", "irset_figures", "verification_figures",
+           "verification_figure_makers", "study_figures", "study_figure_makers", "png_bytes"]
 
 #: A4 is 210 mm wide; with 15 mm margins the text is 180 mm = 7.09 in wide.
 PAGE_WIDTH_IN = 7.0
@@ -42,6 +42,15 @@ class ReportFigure:
 
     caption: str
     figure: Figure
+
+
+#: Draws some of a section's figures when called (so that figures can be drawn one at a time, anywhere).
+FigureMaker = Callable[[], "list[ReportFigure]"]
+
+
+def made(makers: list[FigureMaker]) -> list[ReportFigure]:
+    """The figures of every maker, in order."""
+    return [rf for make in makers for rf in make()]
 
 
 _STYLE = {"font.size": 9.0, "axes.titlesize": 9.5, "axes.labelsize": 9.0, "xtick.labelsize": 8.0,
@@ -129,28 +138,31 @@ def rig_figures(found: FoundPlan) -> list[ReportFigure]:
     return [ReportFigure(f"The rig in three views ({found.rig_note}).", plot_rig(found.plan.rig, fig=_fig(2.9)))]
 
 
-def plan_figures(found: FoundPlan) -> list[ReportFigure]:
-    """Channel strengths, counts, level map, drive effort and field maps of one plan (the rig: :func:`rig_figures`)."""
+def plan_figure_makers(found: FoundPlan) -> list[FigureMaker]:
+    """Makers of the figures of :func:`plan_figures`, one figure each (the field maps none without a rig file)."""
     plan = found.plan
     hz = plan.channels.axis.hz
-    out = [ReportFigure("Each channel's power coupling s^2 as a share of the sum rule (left) and in dB re the "
-                        f"strongest channel (right), at the lowest, the centre ({hz[centre_index(hz)]:.4g} Hz) and "
-                        "the highest planned frequency; dashed: paraxial estimate of the count.",
-                        plot_couplings(plan, fig=_fig(3.3))),
-           ReportFigure("Strong, usable and effective channel counts against frequency, with the paraxial estimate.",
-                        plot_channel_counts(plan, fig=_fig(3.4))),
-           ReportFigure("Level of every channel (strongest first) over frequency; white: the strong count; "
-                        "dashed: the paraxial estimate.", plot_level_map(plan, fig=_fig(3.6))),
-           ReportFigure("Drive effort: the extra drive (dB) each channel needs to give the same output as the "
-                        "strongest channel at that frequency, 20 log10(s_max / s_j): a channel 20 dB down needs "
-                        "20 dB more drive; dotted: the strong threshold; dash-dotted: the noise floor at the plan's "
-                        "SNR, above which the channel cannot match the strongest one's output; lines at the top "
-                        f"edge need more than {abs(plan.snr_db) + 10:g} dB.",
-                        plot_drive_effort(plan, ax=_fig(3.2).subplots()))]
-    field = _field_figure(found)
-    if field is not None:
-        out.append(field)
-    return out
+    return [
+        lambda: [ReportFigure("Each channel's power coupling s^2 as a share of the sum rule (left) and in dB re the "
+                              f"strongest channel (right), at the lowest, the centre ({hz[centre_index(hz)]:.4g} Hz) "
+                              "and the highest planned frequency; dashed: paraxial estimate of the count.",
+                              plot_couplings(plan, fig=_fig(3.3)))],
+        lambda: [ReportFigure("Strong, usable and effective channel counts against frequency, with the paraxial "
+                              "estimate.", plot_channel_counts(plan, fig=_fig(3.4)))],
+        lambda: [ReportFigure("Level of every channel (strongest first) over frequency; white: the strong count; "
+                              "dashed: the paraxial estimate.", plot_level_map(plan, fig=_fig(3.6)))],
+        lambda: [ReportFigure("Drive effort: the extra drive (dB) each channel needs to give the same output as the "
+                              "strongest channel at that frequency, 20 log10(s_max / s_j): a channel 20 dB down needs "
+                              "20 dB more drive; dotted: the strong threshold; dash-dotted: the noise floor at the "
+                              "plan's SNR, above which the channel cannot match the strongest one's output; lines at "
+                              f"the top edge need more than {abs(plan.snr_db) + 10:g} dB.",
+                              plot_drive_effort(plan, ax=_fig(3.2).subplots()))],
+        lambda: [f for f in (_field_figure(found),) if f is not None]]
+
+
+def plan_figures(found: FoundPlan) -> list[ReportFigure]:
+    """Channel strengths, counts, level map, drive effort and field maps of one plan (the rig: :func:`rig_figures`)."""
+    return made(plan_figure_makers(found))
 
 
 def filter_figures(found: FoundFilters) -> list[ReportFigure]:
@@ -174,8 +186,7 @@ def irset_figures(found: FoundIRSet) -> list[ReportFigure]:
                          f"{irs.units}).", fig)]
 
 
-def verification_figures(found: FoundVerification) -> list[ReportFigure]:
-    """Isolation against frequency and the measured channel matrices of a verification."""
+def _isolation_figure(found: FoundVerification) -> list[ReportFigure]:
     col = found.channel_columns
     if len(col["channel"]) == 0:
         return []
@@ -186,42 +197,61 @@ def verification_figures(found: FoundVerification) -> list[ReportFigure]:
     iso = np.full((len(hz), len(chans)), np.nan)
     iso[np.searchsorted(hz, col["frequency_hz"][ok]), np.searchsorted(chans, chan)] = col["isolation_db"][ok]
     limit = float(found.doc.get("isolation_db", 20.0))
-    out = [ReportFigure("Measured isolation of each wanted channel against frequency; a channel is lost where it "
-                        f"falls below {limit:g} dB. Gaps: the channel is not judged there, or no other channel is, "
-                        "so there is no crosstalk to measure.", plot_isolation(hz, chans, iso, limit, ax=_fig(3.6).subplots()))]
+    return [ReportFigure("Measured isolation of each wanted channel against frequency; a channel is lost where it "
+                         f"falls below {limit:g} dB. Gaps: the channel is not judged there, or no other channel is, "
+                         "so there is no crosstalk to measure.",
+                         plot_isolation(hz, chans, iso, limit, ax=_fig(3.6).subplots()))]
+
+
+def verification_figure_makers(found: FoundVerification) -> list[FigureMaker]:
+    """Makers of the figures of :func:`verification_figures`."""
     a = found.arrays
+    if len(found.channel_columns["channel"]) == 0:
+        return []
+    makers: list[FigureMaker] = [lambda: _isolation_figure(found)]
     if a is not None:
-        out.append(ReportFigure(
+        makers.append(lambda: [ReportFigure(
             "Measured crosstalk: the realised channel matrix |combine^T G_measured drive| of the wanted channels at "
             "up to four frequencies, dB re the strongest diagonal entry; blank rows and columns: channels not "
             "judged there (not strong in the plan).",
             plot_channel_matrices(a["frequency_hz"], a["channel_matrix"], np.asarray(a["channels"]) - 1,
-                                  judged=a["judged"], fig=_fig(3.0))))
+                                  judged=a["judged"], fig=_fig(3.0)))])
         sv = SimpleNamespace(hz=a["frequency_hz"], planned_sv=a["planned_singular_value"],
                              measured_sv=a["measured_singular_value"])
-        out.append(ReportFigure("Planned singular values (solid) and those of the measured coupling matrices "
-                                "(dashed), dB re the strongest planned.", plot_singular_values(sv, ax=_fig(3.6).subplots())))
-    return out
+        makers.append(lambda: [ReportFigure("Planned singular values (solid) and those of the measured coupling "
+                                            "matrices (dashed), dB re the strongest planned.",
+                                            plot_singular_values(sv, ax=_fig(3.6).subplots()))])
+    return makers
 
 
-def study_figures(found: FoundStudy) -> list[ReportFigure]:
-    """The figures of a design study (capacity or tolerance), drawn again at report size."""
+def verification_figures(found: FoundVerification) -> list[ReportFigure]:
+    """Isolation against frequency and the measured channel matrices of a verification."""
+    return made(verification_figure_makers(found))
+
+
+def study_figure_makers(found: FoundStudy) -> list[FigureMaker]:
+    """Makers of the figures of :func:`study_figures` (capacity or tolerance)."""
     from ..plots.studies import (plot_active_channels, plot_capacity, plot_gain_spread, plot_survival,
                                  plot_water_levels)
 
     st = found.study
     if found.kind == "capacity":
-        return [ReportFigure("Capacity against frequency at each SNR (SNR of the strongest channel with all power on "
-                             "it): water-filling (solid) and equal power on the strong channels (dashed).",
-                             plot_capacity(st, ax=_fig(3.4).subplots())),
-                ReportFigure("Channels given power by the water-filling against SNR, at up to four frequencies.",
-                             plot_active_channels(st, ax=_fig(3.0).subplots())),
-                ReportFigure("Water-filling at the middle planned frequency and the highest SNR: each channel's floor "
-                             "1/gamma and the power poured on it, as fractions of the total power.",
-                             plot_water_levels(st, ax=_fig(3.0).subplots()))]
+        return [lambda: [ReportFigure("Capacity against frequency at each SNR (SNR of the strongest channel with all "
+                                      "power on it): water-filling (solid) and equal power on the strong channels "
+                                      "(dashed).", plot_capacity(st, ax=_fig(3.4).subplots()))],
+                lambda: [ReportFigure("Channels given power by the water-filling against SNR, at up to four "
+                                      "frequencies.", plot_active_channels(st, ax=_fig(3.0).subplots()))],
+                lambda: [ReportFigure("Water-filling at the middle planned frequency and the highest SNR: each "
+                                      "channel's floor 1/gamma and the power poured on it, as fractions of the "
+                                      "total power.", plot_water_levels(st, ax=_fig(3.0).subplots()))]]
     rows = int(np.ceil(min(6, max(1, int(st.judged.any(axis=0).sum()))) / 3))
-    return [ReportFigure("Realised gain of each channel in use with the planned weights: median and 5-95 % of the "
-                         "trials; dashed: the first-order prediction (±1.645 standard deviations).",
-                         plot_gain_spread(st, fig=_fig(1.1 + 2.0 * rows))),
-            ReportFigure("Share of trials in which each channel in use keeps the isolation limit.",
-                         plot_survival(st, ax=_fig(3.2).subplots()))]
+    return [lambda: [ReportFigure("Realised gain of each channel in use with the planned weights: median and 5-95 % "
+                                  "of the trials; dashed: the first-order prediction (±1.645 standard deviations).",
+                                  plot_gain_spread(st, fig=_fig(1.1 + 2.0 * rows)))],
+            lambda: [ReportFigure("Share of trials in which each channel in use keeps the isolation limit.",
+                                  plot_survival(st, ax=_fig(3.2).subplots()))]]
+
+
+def study_figures(found: FoundStudy) -> list[ReportFigure]:
+    """The figures of a design study (capacity or tolerance), drawn again at report size."""
+    return made(study_figure_makers(found))
