@@ -13,8 +13,8 @@ in this process:
   report's size as the report holds, the part of the work that does not
   depend on the data;
 * report, drawn here: arrayplan.report.build_report(folder, workers=1);
-* report, drawn by workers: build_report(folder, workers=N) (default: the
-  cores this process may use), when that is more than one.
+* report, drawn by workers: build_report(folder, workers=N) (--workers,
+  default: the cores this process may use), when that is more than one.
 
 The runs alternate (--repeats times each) and the medians are compared, so
 a busy machine slows all alike.  CPU time (time.process_time of this

@@ -440,9 +440,9 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     progress : callable, optional
         ``progress(done, total)`` after each figure, then after each section.
     workers : int, optional
-        Worker processes drawing the figures (default: the cores this
-        process may use; 1 draws them here).  The page is the same either
-        way (see :mod:`arrayplan.report.render`).
+        Worker processes drawing the figures (default 1: drawn here; 0:
+        the cores this process may use).  The page is the same either way
+        (see :mod:`arrayplan.report.render`).
 
     Returns
     -------

@@ -1,14 +1,17 @@
-"""Drawing the report's figures to PNG, one figure per job, spread over worker processes.
+"""Drawing the report's figures to PNG, one figure per job, here or in worker processes.
 
 Drawing is most of a report's work and every figure is independent of the
 others, so the figures of all sections are drawn first, as jobs of
 :func:`arrayplan.parallel.map_chunks`, and the sections are written after,
-around the PNGs.  Worker processes are forked from this one: the results
-already read (plans, IR sets, verifications) reach them without being
-copied or pickled, and only each job's PNG bytes come back.  Where a fork
-is not possible (another thread runs, or not on Linux) or a Dask scheduler
-is configured, the figures are drawn here, one after the other: starting
-fresh interpreters or shipping the results would cost more than it saves.
+around the PNGs.  By default they are drawn here, one after the other
+(:data:`DEFAULT_WORKERS`): on a machine whose cores are already busy, extra
+processes made the report slower, not faster.  Asked for more workers, the
+worker processes are forked from this one: the results already read
+(plans, IR sets, verifications) reach them without being copied or
+pickled, and only each job's PNG bytes come back.  Where a fork is not
+possible (another thread runs, or not on Linux) or a Dask scheduler is
+configured, the figures are drawn here all the same: starting fresh
+interpreters or shipping the results would cost more than it saves.
 """
 
 from __future__ import annotations
@@ -20,7 +23,10 @@ from ..parallel import SCHEDULER_ENV, _start_method, available_cores, map_chunks
 from .figures import (FigureMaker, ReportFigure, filter_figures, irset_figures, plan_figure_makers, png_bytes,
                       report_style, rig_figures, study_figure_makers, verification_figure_makers)
 
-__all__ = ["RenderedFigure", "figure_makers", "render_figures", "report_workers"]
+__all__ = ["RenderedFigure", "DEFAULT_WORKERS", "figure_makers", "render_figures", "report_workers"]
+
+#: Worker processes drawing the figures when none are asked for: 1, here (see the module notes).
+DEFAULT_WORKERS = 1
 
 #: A figure drawn for the page: its caption and its PNG bytes.
 RenderedFigure = tuple[str, bytes]
@@ -75,9 +81,9 @@ def _render_job(steps: list[tuple[str, Any]], job: tuple[int, int]) -> list[Rend
 
 
 def report_workers(n_jobs: int, workers: int | None = None) -> int:
-    """Worker processes for `n_jobs` figure jobs: `workers` (default: the cores this process may use),
-    and 1 where workers cannot be forked or a Dask scheduler is configured (see the module notes)."""
-    wanted = available_cores() if workers is None else int(workers)
+    """Worker processes for `n_jobs` figure jobs: `workers` (default :data:`DEFAULT_WORKERS`; 0: the cores
+    this process may use), and 1 where workers cannot be forked or a Dask scheduler is configured."""
+    wanted = DEFAULT_WORKERS if workers is None else (available_cores() if int(workers) == 0 else int(workers))
     if wanted < 2 or n_jobs < 2 or os.environ.get(SCHEDULER_ENV, "").strip() or _start_method() != "fork":
         return 1
     return min(wanted, n_jobs)
@@ -92,7 +98,7 @@ def render_figures(steps: list[tuple[str, Any]], workers: int | None = None,
     steps : list of (str, object)
         The report's sections: kind and result (see :func:`figure_makers`).
     workers : int, optional
-        Worker processes (default: the cores this process may use; 1 draws here).
+        Worker processes (default :data:`DEFAULT_WORKERS`, 1: here; 0: the cores this process may use).
     progress : callable, optional
         ``progress(done, total)`` after each job.
 
