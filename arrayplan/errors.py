@@ -39,7 +39,13 @@ class InputError(ArrayplanError, ValueError):
         super().__init__(self.one_line())
 
     def one_line(self) -> str:
-        """The message as one line: ``source: field: problem (fix: ...)``."""
+        """The message as one line: ``source: field: problem (fix: ...)``.
+
+        Returns
+        -------
+        str
+            Source and field only where set.
+        """
         parts = [p for p in (self.source, self.field) if p]
         text = ": ".join(parts + [self.problem])
         if self.fix:

@@ -25,6 +25,16 @@ class FrequencyAxis:
     ----------
     hz : array_like, shape (n_freq,)
         Frequencies in Hz, strictly positive, finite and strictly increasing.
+    source : str, optional
+        File the frequencies came from, named in messages.
+    field : str, optional
+        Field named in messages.
+
+    Raises
+    ------
+    InputError
+        No frequencies, a value that is not finite or not above 0 Hz, or
+        values not strictly increasing.
 
     Notes
     -----
@@ -54,7 +64,24 @@ class FrequencyAxis:
     @classmethod
     def spaced(cls, start_hz: float, stop_hz: float, count: int, spacing: str = "log",
                *, source: str | None = None, field: str | None = "frequencies") -> "FrequencyAxis":
-        """`count` frequencies from `start_hz` to `stop_hz`, ``"log"`` or ``"linear"`` spaced."""
+        """`count` frequencies from `start_hz` to `stop_hz`, ``"log"`` or ``"linear"`` spaced.
+
+        Parameters
+        ----------
+        start_hz, stop_hz : float
+            First and last frequency (Hz), 0 < start <= stop.
+        count : int
+            Number of frequencies (>= 1; 1 when start equals stop).
+        spacing : str
+            ``"log"`` (geometric) or ``"linear"``.
+        source, field : str, optional
+            Named in messages.
+
+        Returns
+        -------
+        FrequencyAxis
+            Both ends included.
+        """
         if int(count) != count or count < 1:
             raise InputError(f"count must be a whole number >= 1, got {count!r}",
                              source=source, field=field)
@@ -79,6 +106,21 @@ class FrequencyAxis:
         """The positive bins of an `n_fft`-point FFT at `sample_rate_hz` (DC excluded).
 
         With `band_hz` = (low, high), only bins inside the closed band are kept.
+
+        Parameters
+        ----------
+        sample_rate_hz : float
+            Sample rate (Hz).
+        n_fft : int
+            FFT length (samples).
+        band_hz : (float, float), optional
+            Lowest and highest frequency kept (Hz).
+
+        Returns
+        -------
+        FrequencyAxis
+            Bins k * sample_rate_hz / n_fft for k = 1 .. n_fft // 2 (Hz),
+            as :func:`numpy.fft.rfftfreq` gives them.
         """
         hz = np.fft.rfftfreq(int(n_fft), 1.0 / float(sample_rate_hz))[1:]
         if band_hz is not None:
@@ -89,19 +131,53 @@ class FrequencyAxis:
     # access -----------------------------------------------------------
     @property
     def hz(self) -> np.ndarray:
-        """Frequencies in Hz, shape (n_freq,), read-only."""
+        """The frequencies.
+
+        Returns
+        -------
+        ndarray, shape (n_freq,)
+            Frequencies (Hz), read-only float64.
+        """
         return self._hz
 
     def angular(self) -> np.ndarray:
-        """Angular frequencies omega = 2 pi f in rad/s, shape (n_freq,)."""
+        """Angular frequencies omega = 2 pi f.
+
+        Returns
+        -------
+        ndarray, shape (n_freq,)
+            omega (rad/s).
+        """
         return 2.0 * np.pi * self._hz
 
     def wavenumbers(self, speed_of_sound: float) -> np.ndarray:
-        """Wavenumbers k = 2 pi f / c in rad/m for `speed_of_sound` in m/s."""
+        """Wavenumbers k = 2 pi f / c.
+
+        Parameters
+        ----------
+        speed_of_sound : float
+            c (m/s).
+
+        Returns
+        -------
+        ndarray, shape (n_freq,)
+            k (rad/m).
+        """
         return self.angular() / float(speed_of_sound)
 
     def wavelengths(self, speed_of_sound: float) -> np.ndarray:
-        """Wavelengths c / f in metres."""
+        """Wavelengths c / f.
+
+        Parameters
+        ----------
+        speed_of_sound : float
+            c (m/s).
+
+        Returns
+        -------
+        ndarray, shape (n_freq,)
+            Wavelengths (m).
+        """
         return float(speed_of_sound) / self._hz
 
     def __len__(self) -> int:
@@ -115,7 +191,18 @@ class FrequencyAxis:
         return FrequencyAxis(np.atleast_1d(picked))
 
     def index_of(self, hz: float) -> int:
-        """Index of the bin nearest to `hz` (no interpolation)."""
+        """Index of the bin nearest to `hz` (no interpolation).
+
+        Parameters
+        ----------
+        hz : float
+            Frequency (Hz).
+
+        Returns
+        -------
+        int
+            0-based index of the nearest frequency (the lower one on a tie).
+        """
         return int(np.argmin(np.abs(self._hz - float(hz))))
 
     def __eq__(self, other: object) -> bool:

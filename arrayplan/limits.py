@@ -37,7 +37,13 @@ _limit_gib = [DEFAULT_MAX_MEMORY_GIB]
 
 
 def current_limit_gib() -> float:
-    """The memory limit now in force, GiB."""
+    """The memory limit now in force.
+
+    Returns
+    -------
+    float
+        Limit (GiB).
+    """
     return _limit_gib[-1]
 
 
@@ -49,6 +55,11 @@ def memory_limit(max_memory_gib: float | None) -> Iterator[float]:
     ----------
     max_memory_gib : float or None
         Largest estimate accepted, GiB; finite and positive.
+
+    Yields
+    ------
+    float
+        The limit in force inside the block (GiB).
     """
     if max_memory_gib is None:
         max_memory_gib = current_limit_gib()
@@ -62,7 +73,18 @@ def memory_limit(max_memory_gib: float | None) -> Iterator[float]:
 
 
 def format_bytes(n_bytes: float) -> str:
-    """A byte count in the largest binary unit that keeps it at 1 or more (``'37.3 GiB'``)."""
+    """A byte count in the largest binary unit that keeps it at 1 or more (``'37.3 GiB'``).
+
+    Parameters
+    ----------
+    n_bytes : float
+        Bytes.
+
+    Returns
+    -------
+    str
+        Value to three significant digits and its unit (B, KiB, ... PiB).
+    """
     value = float(n_bytes)
     for unit in ("B", "KiB", "MiB", "GiB", "TiB", "PiB"):
         if value < 1024 or unit == "PiB":

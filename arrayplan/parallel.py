@@ -43,12 +43,13 @@ import os
 import socket
 import threading
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from contextlib import contextmanager
 from typing import Any, Callable, Iterable, Iterator, Sequence
 
 from .errors import InputError
 
 __all__ = ["map_chunks", "iter_chunks", "available_cores", "resolve_scheduler", "check_scheduler", "one_blas_thread",
-           "SCHEDULER_ENV"]
+           "alongside", "SCHEDULER_ENV"]
 
 #: Environment variable naming a Dask scheduler address (or ``local:N``) for every parallel call.
 SCHEDULER_ENV = "ARRAYPLAN_SCHEDULER"
@@ -58,7 +59,13 @@ _worker_shared: Any = None
 
 
 def available_cores() -> int:
-    """Cores this process may run on (its CPU affinity), at least 1."""
+    """Cores this process may run on (its CPU affinity).
+
+    Returns
+    -------
+    int
+        At least 1.
+    """
     try:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # not on Linux
@@ -66,7 +73,18 @@ def available_cores() -> int:
 
 
 def resolve_scheduler(scheduler: str | None) -> str | None:
-    """The scheduler to use: `scheduler`, else ``$ARRAYPLAN_SCHEDULER``, else None (local processes)."""
+    """The scheduler to use: `scheduler`, else ``$ARRAYPLAN_SCHEDULER``, else None (local processes).
+
+    Parameters
+    ----------
+    scheduler : str or None
+        ``"local:N"``, a dask.distributed address, or None.
+
+    Returns
+    -------
+    str or None
+        None means worker processes of this machine.
+    """
     if scheduler is None:
         scheduler = os.environ.get(SCHEDULER_ENV, "").strip() or None
     return scheduler
@@ -77,6 +95,12 @@ def one_blas_thread():
 
     Small matrix products and SVDs gain nothing from BLAS threads, and on a
     busy machine threaded BLAS runs them several times slower.
+
+    Returns
+    -------
+    threadpoolctl.threadpool_limits
+        The limit, already in force; as a context manager it restores the
+        previous limits at the end of the block.
     """
     from threadpoolctl import threadpool_limits
     return threadpool_limits(limits=1)
@@ -205,6 +229,83 @@ def _iter_pool(func, items, shared, workers: int) -> Iterator[tuple[int, Any]]:
                 fut.cancel()
 
 
+def _run_and_report(send, func: Callable[..., Any], args: tuple) -> None:
+    """In the forked child of :func:`alongside`: run, then send None or the exception."""
+    try:
+        func(*args)
+        send.send(None)
+    except BaseException as exc:  # every failure goes back to the parent, which raises it
+        try:
+            send.send(exc)
+        except Exception:          # an exception that does not pickle: its text
+            send.send(RuntimeError(f"{type(exc).__name__}: {exc}"))
+    finally:
+        send.close()
+
+
+@contextmanager
+def alongside(func: Callable[..., Any], *args: Any) -> Iterator[None]:
+    """Run ``func(*args)`` in a forked process while the block runs here; wait for it when the block ends.
+
+    For two independent pieces of one job that would otherwise run one
+    after the other on one core (two files written from the same arrays):
+    the child sees this process's memory as it was at the fork, without
+    copying or pickling it.
+
+    Parameters
+    ----------
+    func : callable
+        Runs in the child; its return value is dropped.  It must not need
+        anything the block changes.
+    *args
+        Passed to `func`.
+
+    Yields
+    ------
+    None
+        While the block runs, `func` runs in the child.
+
+    Raises
+    ------
+    BaseException
+        What `func` raised (re-raised here after the block), or what the
+        block raised (the child is then stopped).
+
+    Notes
+    -----
+    Without ``fork`` (other threads running, or not Linux) `func` simply
+    runs here before the block.
+    """
+    if _start_method() != "fork":
+        func(*args)
+        yield
+        return
+    import sys
+
+    for stream in (sys.stdout, sys.stderr):   # else the child would flush the same buffered text again
+        stream.flush()
+    ctx = multiprocessing.get_context("fork")
+    receive, send = ctx.Pipe(duplex=False)
+    child = ctx.Process(target=_run_and_report, args=(send, func, args), daemon=True)
+    child.start()
+    send.close()
+    try:
+        yield
+    except BaseException:
+        child.terminate()
+        child.join()
+        raise
+    try:
+        failure = receive.recv()
+    except EOFError:                          # the child died without a word (killed)
+        failure = RuntimeError(f"the process writing beside this one ended with status {child.exitcode}")
+    finally:
+        receive.close()
+        child.join()
+    if failure is not None:
+        raise failure
+
+
 def _unreachable(scheduler: str, reason: str) -> InputError:
     return InputError(f"cannot reach the Dask scheduler at {scheduler!r} ({reason})", field="scheduler",
                       fix="start the scheduler or check the address (tcp://HOST:PORT)")
@@ -227,6 +328,11 @@ def _probe(scheduler: str) -> None:
 
 def check_scheduler(scheduler: str) -> None:
     """Check a scheduler argument before any work: ``local:N`` well formed, a tcp:// address listening.
+
+    Parameters
+    ----------
+    scheduler : str
+        ``"local:N"`` or a dask.distributed address (``tcp://HOST:PORT``).
 
     Raises
     ------

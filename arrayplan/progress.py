@@ -19,6 +19,7 @@ callback that :func:`arrayplan.channels.planning.plan_rig` and others accept.
 
 from __future__ import annotations
 
+import functools
 import os
 import sys
 import threading
@@ -26,7 +27,6 @@ import time
 from contextlib import contextmanager
 from typing import Callable, Iterator, TextIO
 
-from tqdm import tqdm
 
 __all__ = ["ProgressBar", "progress_wanted", "format_duration", "mini_bar", "ticking",
            "PROGRESS_ENV", "CI_ENV"]
@@ -46,6 +46,16 @@ def progress_wanted(stream: TextIO | None = None) -> bool:
     ``ARRAYPLAN_PROGRESS`` decides when it is 1/true/yes/on or 0/false/no/off;
     otherwise a true ``CI`` hides progress, and else it is shown only when
     `stream` is a terminal.
+
+    Parameters
+    ----------
+    stream : text stream, optional
+        Where the bar would be drawn.
+
+    Returns
+    -------
+    bool
+        True to draw progress.
     """
     stream = sys.stderr if stream is None else stream
     force = os.environ.get(PROGRESS_ENV, "").strip().lower()
@@ -62,7 +72,18 @@ def progress_wanted(stream: TextIO | None = None) -> bool:
 
 
 def format_duration(seconds: float) -> str:
-    """``"0:07"``, ``"12:34"`` or ``"1:02:03"`` for a duration in seconds (rounded down)."""
+    """``"0:07"``, ``"12:34"`` or ``"1:02:03"`` for a duration in seconds (rounded down).
+
+    Parameters
+    ----------
+    seconds : float
+        Duration (s); negative counts as 0.
+
+    Returns
+    -------
+    str
+        ``m:ss``, or ``h:mm:ss`` from one hour on.
+    """
     s = max(0, int(seconds))
     h, rest = divmod(s, 3600)
     m, s = divmod(rest, 60)
@@ -70,7 +91,20 @@ def format_duration(seconds: float) -> str:
 
 
 def mini_bar(fraction: float, width: int = 10) -> str:
-    """A bracketed bar of `width` cells filled to `fraction` (clipped to 0..1)."""
+    """A bracketed bar of `width` cells filled to `fraction` (clipped to 0..1).
+
+    Parameters
+    ----------
+    fraction : float
+        Share done.
+    width : int
+        Cells between the brackets.
+
+    Returns
+    -------
+    str
+        ``#`` for filled cells (rounded down), ``.`` for the rest.
+    """
     f = min(1.0, max(0.0, float(fraction)))
     filled = int(width * f)
     return "[" + "#" * filled + "." * (width - filled) + "]"
@@ -90,25 +124,32 @@ def _columns(stream: TextIO) -> int:
         return 80
 
 
-class _Line(tqdm):
-    """A tqdm bar that draws its owner's line (:meth:`ProgressBar.text`) instead of tqdm's meter.
+@functools.lru_cache(maxsize=None)
+def _line_class():
+    """The tqdm bar class (tqdm is imported only when a bar is drawn: it costs ~0.1 s at start-up)."""
+    from tqdm import tqdm
 
-    tqdm does the drawing in place, the rate limiting, printing above the bar,
-    and ending or erasing the line; the owner supplies the text and the clock.
-    """
+    class _Line(tqdm):
+        """A tqdm bar that draws its owner's line (:meth:`ProgressBar.text`) instead of tqdm's meter.
 
-    monitor_interval = 0  # no monitor thread: the owner decides when to redraw
+        tqdm does the drawing in place, the rate limiting, printing above the bar,
+        and ending or erasing the line; the owner supplies the text and the clock.
+        """
 
-    def __init__(self, owner: "ProgressBar", initial: float) -> None:
-        self._owner = owner
-        super().__init__(total=owner.total, initial=initial, file=owner.stream, position=0, leave=True,
-                         mininterval=owner.min_interval_s, miniters=0, maxinterval=0, smoothing=0,
-                         dynamic_ncols=False, ncols=_columns(owner.stream))
-        self._time = owner._clock
-        self.last_print_t = self.start_t = owner._clock()
+        monitor_interval = 0  # no monitor thread: the owner decides when to redraw
 
-    def format_meter(self, *args, **kwargs) -> str:  # type: ignore[override]
-        return self._owner._fitted(self._owner._clock())
+        def __init__(self, owner: "ProgressBar", initial: float) -> None:
+            self._owner = owner
+            super().__init__(total=owner.total, initial=initial, file=owner.stream, position=0, leave=True,
+                             mininterval=owner.min_interval_s, miniters=0, maxinterval=0, smoothing=0,
+                             dynamic_ncols=False, ncols=_columns(owner.stream))
+            self._time = owner._clock
+            self.last_print_t = self.start_t = owner._clock()
+
+        def format_meter(self, *args, **kwargs) -> str:  # type: ignore[override]
+            return self._owner._fitted(self._owner._clock())
+
+    return _Line
 
 
 class ProgressBar:
@@ -161,7 +202,7 @@ class ProgressBar:
         self.done: float = 0.0
         self._clock = clock
         self._start: float = clock()
-        self._line: _Line | None = None   # the tqdm bar on screen, None when none is
+        self._line = None   # the tqdm bar on screen, None when none is
         self._finished = False
         self._lock = threading.RLock()
 
@@ -172,7 +213,19 @@ class ProgressBar:
 
     def update(self, done: float, total: float | None = None, *, label: str | None = None,
                detail: str | None = None, force: bool = False) -> None:
-        """Set the amount done (and optionally total, label and detail text) and redraw if due."""
+        """Set the amount done (and optionally total, label and detail text) and redraw if due.
+
+        Parameters
+        ----------
+        done : float
+            Amount done, in the units of `total`.
+        total : float, optional
+            New total; None keeps the current one.
+        label, detail : str, optional
+            New label and detail text; None keeps them.
+        force : bool
+            Redraw now, whatever the time since the last drawing.
+        """
         with self._lock:
             if total is not None:
                 self.total = total
@@ -190,7 +243,7 @@ class ProgressBar:
                 self._start = now
             self.done = done
             if self._line is None:
-                self._line = _Line(self, done)   # draws the first state
+                self._line = _line_class()(self, done)   # draws the first state
             else:
                 self._line.total = self.total
                 self._line.update(done - self._line.n)
@@ -201,7 +254,13 @@ class ProgressBar:
                 self._finished = True
 
     def print_above(self, text: str) -> None:
-        """Print a line of text above the bar (or just print it when no bar is shown)."""
+        """Print a line of text above the bar (or just print it when no bar is shown).
+
+        Parameters
+        ----------
+        text : str
+            One line, without its newline.
+        """
         with self._lock:
             if self._line is not None:
                 self._line.write(text, file=self.stream)
@@ -240,7 +299,18 @@ class ProgressBar:
 
     # -- the line -------------------------------------------------------------------------------
     def text(self, now: float | None = None) -> str:
-        """The line as it would be drawn at clock time `now`."""
+        """The line as it would be drawn at clock time `now`.
+
+        Parameters
+        ----------
+        now : float, optional
+            Clock time (s, the bar's clock); default the clock now.
+
+        Returns
+        -------
+        str
+            Label, bar and percentage, count, detail, elapsed and remaining time.
+        """
         now = self._clock() if now is None else now
         elapsed = now - self._start
         parts = [self.label]
@@ -284,6 +354,18 @@ def ticking(callback: Callable[[float], None], interval_s: float = 0.2) -> Itera
     audio interface): the callback sees wall-clock seconds since the block
     began.  The thread is a daemon, stopped and joined when the block ends,
     by exception too; an exception in the callback stops the ticks only.
+
+    Parameters
+    ----------
+    callback : callable
+        ``callback(elapsed_s)``, elapsed wall-clock time in s.
+    interval_s : float
+        Time between calls (s).
+
+    Yields
+    ------
+    None
+        Control to the block while the ticks run.
     """
     stop = threading.Event()
     t0 = time.monotonic()

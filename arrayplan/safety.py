@@ -94,7 +94,13 @@ CAUTION_NOTE = ("Loud test signal: can harm hearing and loudspeakers (tweeters e
 
 
 def print_caution(stream: TextIO | None = None) -> None:
-    """Print :data:`CAUTION_TEXT` to `stream` (default: standard error)."""
+    """Print :data:`CAUTION_TEXT` to `stream` (default: standard error).
+
+    Parameters
+    ----------
+    stream : text stream, optional
+        Where to print.
+    """
     stream = sys.stderr if stream is None else stream
     print(CAUTION_TEXT, file=stream)
     stream.flush()
@@ -136,6 +142,16 @@ def permitted_exposure_niosh(dba: float) -> float:
 
     ``T = 8 h / 2^((L - 85) / 3)`` (NIOSH Publication 98-126, 1998).  Levels
     below 85 dBA give more than 8 h.
+
+    Parameters
+    ----------
+    dba : float
+        A-weighted level (dBA).
+
+    Returns
+    -------
+    float
+        Permitted exposure per day (s).
     """
     return _permitted(float(dba), NIOSH_CRITERION_DBA, NIOSH_EXCHANGE_RATE_DB)
 
@@ -145,6 +161,16 @@ def permitted_exposure_osha(dba: float) -> float:
 
     ``T = 8 h / 2^((L - 90) / 5)`` (OSHA 29 CFR 1910.95, Table G-16 and its
     formula).  Levels below 90 dBA give more than 8 h.
+
+    Parameters
+    ----------
+    dba : float
+        A-weighted level (dBA).
+
+    Returns
+    -------
+    float
+        Permitted exposure per day (s).
     """
     return _permitted(float(dba), OSHA_CRITERION_DBA, OSHA_EXCHANGE_RATE_DB)
 
@@ -152,7 +178,15 @@ def permitted_exposure_osha(dba: float) -> float:
 def a_weighting_db(freq_hz: float | np.ndarray) -> np.ndarray:
     """A-weighting in dB at `freq_hz` (IEC 61672-1 analogue formula, 0 dB at 1 kHz).
 
-    Returns -inf at 0 Hz.
+    Parameters
+    ----------
+    freq_hz : float or array_like
+        Frequencies (Hz).
+
+    Returns
+    -------
+    ndarray
+        A-weighting (dB), the shape of `freq_hz`; -inf at 0 Hz.
     """
     f2 = np.asarray(freq_hz, dtype=float) ** 2
     ra = (12194.0 ** 2 * f2 ** 2) / ((f2 + 20.6 ** 2) * np.sqrt((f2 + 107.7 ** 2) * (f2 + 737.9 ** 2))
@@ -185,8 +219,21 @@ def a_weight_signal(x: np.ndarray, sample_rate_hz: float) -> np.ndarray:
 def max_window_rms(x: np.ndarray, sample_rate_hz: float, window_s: float = LEVEL_WINDOW_S) -> np.ndarray:
     """Highest RMS over any window of `window_s` seconds, per channel (full scale = 1).
 
-    Shape (n_samples, n_channels) -> (n_channels,).  A signal shorter than the
-    window is measured over its whole length.
+    A signal shorter than the window is measured over its whole length.
+
+    Parameters
+    ----------
+    x : array_like, shape (n_samples, n_channels) or (n_samples,)
+        Signal, full scale = 1.
+    sample_rate_hz : float
+        Sample rate (Hz).
+    window_s : float
+        Window length (s).
+
+    Returns
+    -------
+    ndarray, shape (n_channels,)
+        Highest windowed RMS per channel (full scale = 1).
     """
     x = np.asarray(x, dtype=float)
     if x.ndim == 1:
@@ -354,6 +401,7 @@ class ExposureEstimate:
     niosh_s, osha_s : ndarray, shape (n_listeners,)  permitted daily exposure at `dba`, s
     play_s : float  duration of the signal's active part, s
     combine : str  how the speakers were summed
+    assumptions : str  the model's assumptions, in words
     """
 
     distances_m: np.ndarray
@@ -368,6 +416,14 @@ class ExposureEstimate:
                         "no room gain, level = highest 125 ms RMS")
 
     def to_json(self) -> dict:
+        """The estimate as plain data for sidecars.
+
+        Returns
+        -------
+        dict
+            Levels (dB SPL, dBA) and permitted times (s) per listener, rounded
+            to 3 decimals, None where not finite; play time (s) and the model.
+        """
         def fin(a):
             return [None if not math.isfinite(v) else round(float(v), 3) for v in np.asarray(a).ravel()]
         return {
@@ -555,7 +611,18 @@ def _duration(seconds: float) -> str:
 
 
 def format_exposure(estimate: ExposureEstimate) -> str:
-    """A short human-readable report of an exposure estimate (several lines)."""
+    """A short human-readable report of an exposure estimate (several lines).
+
+    Parameters
+    ----------
+    estimate : ExposureEstimate
+        From the exposure estimate of a signal.
+
+    Returns
+    -------
+    str
+        Lines without a final newline.
+    """
     lines = [f"Estimated level at the listeners ({estimate.assumptions}; speakers {estimate.combine.replace('_', ' ')}):"]
     for i in range(estimate.dba.size):
         dose = estimate.play_s / estimate.niosh_s[i] if estimate.niosh_s[i] > 0 else math.inf

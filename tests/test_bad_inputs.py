@@ -29,6 +29,7 @@ import pytest
 import soundfile as sf
 
 from arrayplan import cli
+from helpers import ARRAYPLAN_COMMAND
 
 RIG = """\
 [rig]
@@ -690,11 +691,10 @@ def test_ctrl_c_while_modules_load_prints_no_traceback(tmp_path):
     # the command modules are still importing
     import signal
     import subprocess
-    import sys
     import time
 
     for marker in ("numpy", "scipy", "matplotlib"):
-        proc = subprocess.Popen([sys.executable, "-m", "arrayplan", "plan", "--help"], cwd=tmp_path,
+        proc = subprocess.Popen(ARRAYPLAN_COMMAND + ["plan", "--help"], cwd=tmp_path,
                                 stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
         maps = Path(f"/proc/{proc.pid}/maps")
         deadline = time.monotonic() + 30

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import math
-import subprocess
 from pathlib import Path
 
 import numpy as np
@@ -18,7 +17,6 @@ from arrayplan.hardware.calibration import (CalibrationRecord, LatencyCalibratio
                                             read_calibration, sensitivity_db_re_1v_per_pa, tone_rms,
                                             write_calibration)
 
-from conftest import ARRAYPLAN_COMMAND
 
 REPO = Path(__file__).resolve().parents[1]
 FS = 48000
@@ -178,40 +176,35 @@ def test_calibrated_measurement_carries_pascal_per_volt(bench_rig, tmp_path):
                 calibration=CalibrationRecord(microphones=rec.microphones[:2]))
 
 
-def _cli(*args, **kw):
-    return subprocess.run(ARRAYPLAN_COMMAND + list(args), capture_output=True, text=True,
-                          stdin=subprocess.DEVNULL, timeout=120, **kw)
-
-
-def test_calibrate_command_builds_a_record(tmp_path):
+def test_calibrate_command_builds_a_record(tmp_path, run_arrayplan):
     record = tmp_path / "bench.toml"
     fs_vrms = dbu_to_vrms(4.0)
     wav = _tone(tmp_path / "m1.wav", 0.020 * pressure_from_db_spl(94.0) / fs_vrms)
-    done = _cli("calibrate", "mic", str(record), "--recording", str(wav), "--mic", "M1",
-                "--input-full-scale-dbu", "4", "--calibrator-class", "1")
+    done = run_arrayplan("calibrate", "mic", str(record), "--recording", str(wav), "--mic", "M1",
+                         "--input-full-scale-dbu", "4", "--calibrator-class", "1")
     assert done.returncode == 0, done.stderr
     assert "M1: 20.0" in done.stdout and "-33.9" in done.stdout  # 20 log10(0.020) = -33.98 dB re 1 V/Pa
     out_wav = _tone(tmp_path / "o1.wav", 0.1 * 2.0 / fs_vrms, channels=1)
-    done = _cli("calibrate", "output", str(record), "--output-channel", "1", "--recording", str(out_wav),
-                "--played-peak-dbfs", "-20", "--input-full-scale-dbu", "4")
+    done = run_arrayplan("calibrate", "output", str(record), "--output-channel", "1", "--recording", str(out_wav),
+                         "--played-peak-dbfs", "-20", "--input-full-scale-dbu", "4")
     assert done.returncode == 0, done.stderr
     rec = read_calibration(record)
     assert rec.mic("M1").sensitivity_mv_per_pa == pytest.approx(20.0, rel=2e-3)
     assert rec.output(1).full_scale_vrms == pytest.approx(2.0, rel=2e-3)
-    shown = _cli("calibrate", "show", str(record))
+    shown = run_arrayplan("calibrate", "show", str(record))
     assert shown.returncode == 0 and "mic M1 on input 1" in shown.stdout and "output 1" in shown.stdout
-    bad = _cli("calibrate", "mic", str(record), "--recording", str(wav), "--mic", "M1")
+    bad = run_arrayplan("calibrate", "mic", str(record), "--recording", str(wav), "--mic", "M1")
     assert bad.returncode == 2 and "give exactly one of --input-full-scale-dbu" in bad.stderr
     assert read_calibration(record).mic("M1") == rec.mic("M1")  # untouched by the failed call
 
 
-def test_calibrate_latency_through_real_audio(audio_server, bench_rig, tmp_path):
+def test_calibrate_latency_through_real_audio(audio_server, bench_rig, tmp_path, run_arrayplan):
     record = tmp_path / "lat.toml"
     for _attempt in range(3):
         # A software audio server can drop a block under load; the command then refuses to write and
         # says "run it again", as a user would: the test does the same, at most three times.
-        done = _cli("calibrate", "latency", str(record), "--output-channel", "4", "--input-channel", "4",
-                    "--device", "pulse", "--rate-hz", "48000", "--yes")
+        done = run_arrayplan("calibrate", "latency", str(record), "--output-channel", "4", "--input-channel", "4",
+                             "--device", "pulse", "--rate-hz", "48000", "--yes")
         if "the stream lost samples" not in done.stderr:
             break
         assert not record.exists()                  # nothing written after a lost block

@@ -106,7 +106,7 @@ def test_command_compares_a_rig_and_a_plan_folder_on_one_table(tmp_path, capsys)
     doc = json.loads((out / "compare.json").read_text())
     assert doc["reference_snr_db"] == 30.0 and "1 m from one speaker" in doc["reference_snr"]
     assert "strongest channel" in doc["usable_snr"]
-    assert doc["kind"] == "arrayplan-comparison" and doc["frequencies_hz"] == [500.0, 1000.0]
+    assert doc["format"] == "arrayplan-comparison" and doc["frequencies_hz"] == [500.0, 1000.0]
     assert {p.name for p in out.iterdir()} == {"compare.csv", "compare-by-frequency.csv", "compare.json",
                                                "compare.png", "SHA256SUMS"}
 

@@ -10,7 +10,7 @@ from arrayplan.signals import (SweepSettings, clipped_sample_counts, deconvolve,
                                harmonic_windows, make_sweep, peak_to_noise_db, split_schedule)
 from arrayplan.signals.deconvolve import impulse_responses
 from arrayplan.signals.schedule import measurement_schedule
-from conftest import known_iir_systems
+from helpers import known_iir_systems
 
 FS = 48000
 

@@ -1,33 +1,18 @@
 """``arrayplan deconvolve``: recordings made elsewhere -> IR set, report, warnings; bad input."""
 
 import csv
-import importlib.util
 import json
 
 import numpy as np
 import pytest
 import soundfile as sf
 
-import arrayplan.cli as cli
 from arrayplan.formats.irset import read_irset
-from cli_flags import assert_flags_exist
+from helpers import arrayplan_main, assert_flags_exist
 
 FS = 16000
 SWEEP = ["--f1-hz", "50", "--f2-hz", "3000", "--duration-s", "0.8", "--pad-after-s", "0.25",
          "--rate-hz", str(FS)]
-
-
-@pytest.fixture(autouse=True)
-def _importable_commands(monkeypatch):
-    # Register only the command modules present in the shared tree (colleagues' may come later).
-    mods = tuple(m for m in cli.COMMAND_MODULES if importlib.util.find_spec(m) is not None)
-    monkeypatch.setattr(cli, "COMMAND_MODULES", mods)
-
-
-def _run(capsys, *argv):
-    rc = cli.main([str(a) for a in argv])
-    out, err = capsys.readouterr()
-    return rc, out, err
 
 
 def _one_line_error(rc, err, *words):
@@ -40,7 +25,7 @@ def _one_line_error(rc, err, *words):
 
 
 def _make(tmp_path, capsys, kind="sweep", *extra):
-    rc, _, err = _run(capsys, "signal", kind, "--out", tmp_path / f"{kind}.wav", *SWEEP, *extra)
+    rc, _, err = arrayplan_main(capsys, "signal", kind, "--out", tmp_path / f"{kind}.wav", *SWEEP, *extra)
     assert rc == 0, err
     data, _ = sf.read(tmp_path / f"{kind}.wav", always_2d=True)
     return data, tmp_path / f"{kind}.json"
@@ -91,8 +76,8 @@ def test_per_speaker_recordings_to_irset(tmp_path, capsys):
         rec = _through(x, delays[s], gains[s])
         sf.write(tmp_path / f"rec{s + 1}.wav", rec, FS, subtype="PCM_24")  # as interface software would
     out = tmp_path / "irs"
-    rc, stdout, err = _run(capsys, "deconvolve", tmp_path / "rec1.wav", tmp_path / "rec2.wav", "--sweep", side,
-                           "--out", out, "--speaker-names", "Left,Right", "--mic-names", "a,b,c")
+    rc, stdout, err = arrayplan_main(capsys, "deconvolve", tmp_path / "rec1.wav", tmp_path / "rec2.wav", "--sweep",
+                                     side, "--out", out, "--speaker-names", "Left,Right", "--mic-names", "a,b,c")
     assert rc == 0, err
     irs = read_irset(out)
     n0 = irs.zero_lag_samples
@@ -122,7 +107,7 @@ def test_per_speaker_recordings_to_irset(tmp_path, capsys):
 def test_linear_sweep_gives_responses_without_harmonics(tmp_path, capsys):
     data, side = _make(tmp_path, capsys, "sweep", "--kind", "linear")
     sf.write(tmp_path / "r.wav", _through(data[:, 0], [33], [0.7]), FS, subtype="FLOAT")
-    rc, _, err = _run(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", side, "--out", tmp_path / "irs")
+    rc, _, err = arrayplan_main(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", side, "--out", tmp_path / "irs")
     assert rc == 0, err
     irs = read_irset(tmp_path / "irs")
     full, lag = _unity_pulse(data[:, 0], side)
@@ -143,7 +128,8 @@ def test_clipping_and_low_peak_to_noise_are_warned_and_stored(tmp_path, capsys):
     sf.write(tmp_path / "r1.wav", clipped, FS, subtype="FLOAT")
     sf.write(tmp_path / "r2.wav", noisy, FS, subtype="FLOAT")
     out = tmp_path / "irs"
-    rc, _, err = _run(capsys, "deconvolve", tmp_path / "r1.wav", tmp_path / "r2.wav", "--sweep", side, "--out", out)
+    rc, _, err = arrayplan_main(capsys, "deconvolve", tmp_path / "r1.wav", tmp_path / "r2.wav", "--sweep", side,
+                                "--out", out)
     assert rc == 0
     warn_lines = [ln for ln in err.splitlines() if "warning:" in ln]
     assert any("speaker S1: recording clipped at M1" in ln for ln in warn_lines)
@@ -165,7 +151,7 @@ def test_schedule_recording_is_split_by_its_sidecar(tmp_path, capsys):
     for s in range(3):
         rec += _through(data[:, s], delays[s], gains[s], length=rec.shape[0])
     sf.write(tmp_path / "long.wav", rec, FS, subtype="FLOAT")
-    rc, _, err = _run(capsys, "deconvolve", tmp_path / "long.wav", "--sweep", side, "--out", tmp_path / "irs")
+    rc, _, err = arrayplan_main(capsys, "deconvolve", tmp_path / "long.wav", "--sweep", side, "--out", tmp_path / "irs")
     assert rc == 0, err
     assert "longer than the played file" in err
     irs = read_irset(tmp_path / "irs")
@@ -181,14 +167,14 @@ def test_channel_probe_recording_gives_the_channel_response(tmp_path, capsys):
     filters = np.zeros((2401, 3))
     filters[0, 0], filters[800, 1], filters[2400, 2] = 0.5, 0.3, -0.2
     sf.write(tmp_path / "chan.wav", filters, FS, subtype="FLOAT")
-    rc, _, err = _run(capsys, "signal", "probe", "--filters", tmp_path / "chan.wav", "--out", tmp_path / "p.wav",
-                      *SWEEP)
+    rc, _, err = arrayplan_main(capsys, "signal", "probe", "--filters", tmp_path / "chan.wav", "--out",
+                                tmp_path / "p.wav", *SWEEP)
     assert rc == 0, err
     data, _ = sf.read(tmp_path / "p.wav", always_2d=True)
     mic = data.sum(axis=1) * 0.5  # every speaker reaches one microphone with gain 0.5
     sf.write(tmp_path / "prec.wav", mic, FS, subtype="FLOAT")
-    rc, _, err = _run(capsys, "deconvolve", tmp_path / "prec.wav", "--sweep", tmp_path / "p.json",
-                      "--out", tmp_path / "pir")
+    rc, _, err = arrayplan_main(capsys, "deconvolve", tmp_path / "prec.wav", "--sweep", tmp_path / "p.json",
+                                "--out", tmp_path / "pir")
     assert rc == 0, err
     irs = read_irset(tmp_path / "pir")
     n0 = irs.zero_lag_samples
@@ -211,7 +197,8 @@ def test_pre_ms_sets_the_samples_kept_before_zero_lag(tmp_path, capsys):
     full, lag = _unity_pulse(data[:, 0], side)
     for pre_ms, n0 in (("0", 0), ("12.5", 200)):
         out = tmp_path / f"irs-{n0}"
-        rc, _, err = _run(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", side, "--out", out, "--pre-ms", pre_ms)
+        rc, _, err = arrayplan_main(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", side, "--out", out, "--pre-ms",
+                                    pre_ms)
         assert rc == 0, err
         irs = read_irset(out)
         assert irs.zero_lag_samples == n0 and irs.n_samples == n0 + 4000
@@ -229,7 +216,7 @@ def test_sidecar_without_pre_roll_takes_the_default_rule(tmp_path, capsys):
     old = tmp_path / "old.json"
     old.write_text(json.dumps(obj))
     sf.write(tmp_path / "r.wav", _through(data[:, 0], [3], [0.5]), FS, subtype="FLOAT")
-    rc, _, err = _run(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", old, "--out", tmp_path / "irs")
+    rc, _, err = arrayplan_main(capsys, "deconvolve", tmp_path / "r.wav", "--sweep", old, "--out", tmp_path / "irs")
     assert rc == 0, err
     assert read_irset(tmp_path / "irs").zero_lag_samples == want
 
@@ -309,7 +296,7 @@ def test_bad_input_is_one_line_and_writes_nothing(tmp_path, capsys, sweep_and_re
         (tmp_path / "b.json").write_text(json.dumps(obj))
         args = [ok, "--sweep", tmp_path / "b.json"]
     out = tmp_path / "irs"
-    rc, _, err = _run(capsys, "deconvolve", *args, "--out", out)
+    rc, _, err = arrayplan_main(capsys, "deconvolve", *args, "--out", out)
     _one_line_error(rc, err, *words)
     assert_flags_exist(capsys, err, "deconvolve")
     assert not out.exists()

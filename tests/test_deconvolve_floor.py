@@ -19,14 +19,14 @@ import soundfile as sf
 from arrayplan.signals import SweepSettings, make_sweep
 from arrayplan.signals.deconvolve import impulse_responses
 from arrayplan.signals.distortion_floor import BELOW_METHOD_FLOOR, MEASURED
-from test_deconvolve_cli import _importable_commands, _run  # noqa: F401  (the fixture is autouse)
+from helpers import arrayplan_main
 
 FS = 16000
 SWEEP = ["--f1-hz", "50", "--f2-hz", "3000", "--duration-s", "0.8", "--pad-after-s", "0.25", "--rate-hz", str(FS)]
 
 
 def _sweep_file(tmp_path, capsys):
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", tmp_path / "sweep.wav", *SWEEP)
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", tmp_path / "sweep.wav", *SWEEP)
     assert rc == 0, err
     data, _ = sf.read(tmp_path / "sweep.wav")
     return data, tmp_path / "sweep.json"
@@ -48,7 +48,8 @@ def test_linear_rig_with_reflections_and_noise_reports_no_distortion(tmp_path, c
         h[d + 37 + rng.integers(0, 900, 6)] += 0.3 * g * rng.standard_normal(6)     # a few reflections
         rec[:, m] = np.convolve(x, h)[:x.size] + 10 ** (-85 / 20) * rng.standard_normal(x.size)
     sf.write(tmp_path / "rec.wav", rec, FS, subtype="FLOAT")
-    rc, stdout, err = _run(capsys, "deconvolve", tmp_path / "rec.wav", "--sweep", side, "--out", tmp_path / "o")
+    rc, stdout, err = arrayplan_main(capsys, "deconvolve", tmp_path / "rec.wav", "--sweep", side, "--out",
+                                     tmp_path / "o")
     assert rc == 0, err
     rows = list(csv.DictReader((tmp_path / "o" / "deconvolution.csv").open()))
     for r in rows:
@@ -82,7 +83,8 @@ def test_known_polynomial_distortion_is_reported_above_the_floor_at_its_level(tm
     a, b = 0.05, 0.2
     rec = _delayed(x + a * x ** 2 + b * x ** 3, 23)
     sf.write(tmp_path / "rec.wav", rec[:, None], FS, subtype="FLOAT")
-    rc, stdout, err = _run(capsys, "deconvolve", tmp_path / "rec.wav", "--sweep", side, "--out", tmp_path / "o")
+    rc, stdout, err = arrayplan_main(capsys, "deconvolve", tmp_path / "rec.wav", "--sweep", side, "--out",
+                                     tmp_path / "o")
     assert rc == 0, err
     row = next(csv.DictReader((tmp_path / "o" / "deconvolution.csv").open()))
     fundamental = amp * (1 + 3 * b * amp ** 2 / 4)

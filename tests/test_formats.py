@@ -187,3 +187,108 @@ def test_summary_reader_refuses_another_format_or_a_newer_version(tmp_path):
     with pytest.raises(InputError) as err:
         read_deconvolution_summary(tmp_path)
     assert err.value.field == "peak_db (line 2)"
+
+
+# --- NPZ archives written without numpy.savez -----------------------------------------------------
+
+def test_write_npz_reads_back_with_numpy_load(tmp_path):
+    """Reference: numpy.load (numpy's own NPZ reader) and numpy.savez of the same arrays."""
+    import numpy as np
+
+    from arrayplan.formats.npz import write_npz
+
+    rng = np.random.default_rng(5)
+    arrays = {
+        "complex": rng.normal(size=(3, 4, 5)) + 1j * rng.normal(size=(3, 4, 5)),
+        "fortran": np.asfortranarray(rng.normal(size=(4, 6))),
+        "strided": rng.normal(size=(6, 8))[::2, 1::3],
+        "single": rng.normal(size=7).astype(np.complex64),
+        "names": np.array(["spk 1", "mic é"]),
+        "scalar": np.float64(2.5),
+        "empty": np.zeros((0, 3)),
+        "ints": np.arange(10, dtype=np.int32),
+    }
+    write_npz(tmp_path / "ours.npz", arrays)
+    np.savez(tmp_path / "numpy.npz", **arrays)
+    with np.load(tmp_path / "ours.npz") as ours, np.load(tmp_path / "numpy.npz") as ref:
+        assert sorted(ours.files) == sorted(ref.files)
+        for name in ref.files:
+            assert ours[name].dtype == ref[name].dtype and ours[name].shape == ref[name].shape
+            np.testing.assert_array_equal(ours[name], ref[name])
+
+
+def test_write_npz_refuses_object_arrays(tmp_path):
+    import numpy as np
+    import pytest
+
+    from arrayplan.formats.npz import write_npz
+
+    with pytest.raises(ValueError, match="objects"):
+        write_npz(tmp_path / "x.npz", {"a": np.array([{"x": 1}], dtype=object)})
+
+
+# --- the plan folder: round trip, version, the previous release's marker ---------------------------
+
+def _small_plan():
+    import numpy as np
+
+    from arrayplan import FrequencyAxis, Rig, plan_rig
+
+    rng = np.random.default_rng(8)
+    rig = Rig.from_positions(rng.uniform(size=(4, 3)), rng.uniform(size=(3, 3)) + [0, 0, 1.5])
+    return plan_rig(rig, FrequencyAxis(np.linspace(300, 3000, 7)))
+
+
+def test_plan_folder_round_trip(tmp_path):
+    """write_plan -> read_weights gives back every weight exactly (common practice, no source)."""
+    import json
+
+    import numpy as np
+
+    from arrayplan.formats.plan_folder import PLAN_FORMAT, read_weights, write_plan
+
+    plan = _small_plan()
+    write_plan(plan, tmp_path / "plan", figures=False)
+    side = json.loads((tmp_path / "plan" / "weights.json").read_text())
+    assert side["format"] == PLAN_FORMAT and side["format_version"] == 1 and "kind" not in side
+    back = read_weights(tmp_path / "plan")
+    ch = plan.channels
+    np.testing.assert_array_equal(back.axis.hz, ch.axis.hz)
+    np.testing.assert_array_equal(back.singular_values, ch.singular_values)
+    np.testing.assert_array_equal(back.drive, ch.drive)
+    np.testing.assert_array_equal(back.combine, ch.combine)
+    np.testing.assert_array_equal(back.sum_rule, ch.sum_rule)
+    assert back.speaker_names == ch.speaker_names and back.mic_names == ch.mic_names
+
+
+def _rewrite_sidecar(folder, change):
+    import json
+
+    from arrayplan.formats.fileio import write_checksums
+
+    side = json.loads((folder / "weights.json").read_text())
+    change(side)
+    (folder / "weights.json").write_text(json.dumps(side))
+    write_checksums(folder)
+
+
+def test_plan_folder_refuses_a_newer_version_and_reads_the_old_marker(tmp_path):
+    import pytest
+
+    from arrayplan.errors import InputError
+    from arrayplan.formats.plan_folder import read_weights, write_plan
+
+    write_plan(_small_plan(), tmp_path / "plan", figures=False)
+    _rewrite_sidecar(tmp_path / "plan", lambda s: s.update(format_version=99))
+    with pytest.raises(InputError, match="format_version 99 is newer"):
+        read_weights(tmp_path / "plan")
+
+    def previous_release(s):
+        del s["format"]
+        s["format_version"] = 1
+        s["kind"] = "arrayplan-plan"
+    _rewrite_sidecar(tmp_path / "plan", previous_release)
+    assert read_weights(tmp_path / "plan").drive.shape == (7, 4, 3)
+    _rewrite_sidecar(tmp_path / "plan", lambda s: s.update(kind="arrayplan-filter-set"))
+    with pytest.raises(InputError, match="expected format 'arrayplan-plan'"):
+        read_weights(tmp_path / "plan")

@@ -20,7 +20,7 @@ from arrayplan.formats.plan_folder import write_plan
 from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import Rig
 from arrayplan.kernels.model_irs import free_field_irset
-from conftest import assert_singular_values_match_free_field
+from helpers import assert_singular_values_match_free_field
 
 FS = 48000.0
 N = 4096

@@ -12,24 +12,21 @@ import json
 import shutil
 import signal
 import subprocess
+import sys
 import time
 
 import numpy as np
 import pytest
 from scipy.signal import fftconvolve
 
-from conftest import ARRAYPLAN_COMMAND, FAST_MEASURE_ARGS
+from helpers import ARRAYPLAN_COMMAND, FAST_MEASURE_ARGS
 
 FS = 48000.0
 
 
-def _measure_cmd(rig, out, *extra):
-    return ARRAYPLAN_COMMAND + ["measure", str(rig), "--out", str(out), "--device", "pulse", "--rate-hz", "48000",
-                                "--yes", *FAST_MEASURE_ARGS, *extra]
-
-
-def _run(cmd, **kw):
-    return subprocess.run(cmd, capture_output=True, text=True, stdin=subprocess.DEVNULL, timeout=120, **kw)
+def _measure_args(rig, out, *extra):
+    return ["measure", str(rig), "--out", str(out), "--device", "pulse", "--rate-hz", "48000",
+            "--yes", *FAST_MEASURE_ARGS, *extra]
 
 
 def _sweep_zero_lag_response(n, whole=False):
@@ -73,10 +70,10 @@ def _check_unit_impulses(folder):
     return irs, peaks
 
 
-def test_loopback_gives_unit_impulses_at_the_measured_latency(audio_server, bench_rig, tmp_path):
+def test_loopback_gives_unit_impulses_at_the_measured_latency(audio_server, bench_rig, tmp_path, run_arrayplan):
     out = tmp_path / "loop"
-    done = _run(_measure_cmd(bench_rig, out, "--speaker-sensitivity-db-spl", "86", "--amp-vrms", "1.0",
-                             "--listener-distance-m", "2"))
+    done = run_arrayplan(*_measure_args(bench_rig, out, "--speaker-sensitivity-db-spl", "86", "--amp-vrms", "1.0",
+                                        "--listener-distance-m", "2"))
     assert done.returncode == 0, done.stderr
     assert "CAUTION" in done.stderr and "Confirmed by --yes" in done.stderr
     assert "Estimated level at the listeners" in done.stderr and "dBA" in done.stderr
@@ -94,10 +91,11 @@ def test_loopback_gives_unit_impulses_at_the_measured_latency(audio_server, benc
     assert "3 take(s) measured" in done.stdout
 
 
-def test_interrupted_run_keeps_its_takes_and_resumes(audio_server, bench_rig, tmp_path):
+def test_interrupted_run_keeps_its_takes_and_resumes(audio_server, bench_rig, tmp_path, run_arrayplan):
     out = tmp_path / "resume"
-    cmd = _measure_cmd(bench_rig, out)
-    proc = subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    cmd = _measure_args(bench_rig, out)
+    proc = subprocess.Popen(ARRAYPLAN_COMMAND + cmd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
     deadline = time.monotonic() + 60
     first = out / "takes" / "001-S1" / "take.json"
     while not first.exists():
@@ -112,31 +110,30 @@ def test_interrupted_run_keeps_its_takes_and_resumes(audio_server, bench_rig, tm
     assert kept == ["001-S1"], kept  # nothing half-written beside it
     assert not (out / "irset").exists()
 
-    again = _run(cmd)
+    again = run_arrayplan(*cmd)
     assert again.returncode == 0, again.stderr
     assert "2 take(s) measured, 1 kept from before" in again.stdout
     assert "S1: ok" in again.stdout and "(kept from before)" in again.stdout
     _check_unit_impulses(out / "irset")
 
 
-def test_nothing_plays_without_confirmation(audio_server, bench_rig, tmp_path):
-    cmd = [c for c in _measure_cmd(bench_rig, tmp_path / "never") if c != "--yes"]
-    done = _run(cmd)
+def test_nothing_plays_without_confirmation(audio_server, bench_rig, tmp_path, run_arrayplan):
+    cmd = [c for c in _measure_args(bench_rig, tmp_path / "never") if c != "--yes"]
+    done = run_arrayplan(*cmd)
     assert done.returncode == 2
     assert "CAUTION" in done.stderr and "Estimated level: UNKNOWN" in done.stderr
     assert "no terminal to ask on" in done.stderr and "pass --yes" in done.stderr
     assert not (tmp_path / "never").exists()
 
 
-def test_missing_device_and_short_device_are_one_line_errors(audio_server, bench_rig, tmp_path):
-    done = _run(ARRAYPLAN_COMMAND + ["measure", str(bench_rig), "--out", str(tmp_path / "x"), "--device",
-                                     "no-such-interface", "--yes"])
+def test_missing_device_and_short_device_are_one_line_errors(audio_server, bench_rig, tmp_path, run_arrayplan):
+    done = run_arrayplan("measure", bench_rig, "--out", tmp_path / "x", "--device", "no-such-interface", "--yes")
     assert done.returncode == 2 and done.stderr.count("\n") == 1
     assert "no device name contains 'no-such-interface'" in done.stderr
     rig = bench_rig.read_text().replace("channel = 3\n", "channel = 40\n")
     wide = tmp_path / "wide.toml"
     wide.write_text(rig)
-    done = _run(_measure_cmd(wide, tmp_path / "y"))
+    done = run_arrayplan(*_measure_args(wide, tmp_path / "y"))
     assert done.returncode == 2 and "has too few channels: 40 outputs needed" in done.stderr
     assert not (tmp_path / "y").exists()
 
@@ -152,16 +149,16 @@ def _small_filesystem(path):
     return lambda: subprocess.run(["umount", str(path)], check=True)
 
 
-def test_full_disk_keeps_finished_takes_and_writes_nothing_half(bench_rig, tmp_path):
+def test_full_disk_keeps_finished_takes_and_writes_nothing_half(bench_rig, tmp_path, run_arrayplan):
     """A real full disk (a 1 MB tmpfs) where the system allows mounting one; else a file-size limit."""
     disk = tmp_path / "disk"
     unmount = _small_filesystem(disk)
     out = disk / "m"
-    cmd = ARRAYPLAN_COMMAND + ["measure", str(bench_rig), "--out", str(out), "--simulate", *FAST_MEASURE_ARGS]
+    cmd = ["measure", str(bench_rig), "--out", str(out), "--simulate", *FAST_MEASURE_ARGS]
     try:
         if unmount is not None:
             # Each take is about 0.6 MB: the first fits, the second fills the disk.
-            done = _run(cmd)
+            done = run_arrayplan(*cmd)
             expect_kept = ["001-S1"]
             assert "No space left on device" in done.stderr
         else:
@@ -169,7 +166,7 @@ def test_full_disk_keeps_finished_takes_and_writes_nothing_half(bench_rig, tmp_p
             code = ("import resource, signal, sys; signal.signal(signal.SIGXFSZ, signal.SIG_IGN); "
                     f"resource.setrlimit(resource.RLIMIT_FSIZE, ({limit}, {limit})); "
                     "from arrayplan.cli import main; sys.exit(main(sys.argv[1:]))")
-            done = _run([ARRAYPLAN_COMMAND[0], "-c", code] + cmd[len(ARRAYPLAN_COMMAND):])
+            done = run_arrayplan(*cmd, command=[sys.executable, "-c", code])
             expect_kept = []
         assert done.returncode == 2, done.stderr
         errors = [line for line in done.stderr.splitlines() if line.startswith("arrayplan measure: error")]

@@ -284,7 +284,7 @@ def test_nonlinearity_helper():
 def test_pre_ms_option_of_the_command(bench_rig, tmp_path, capsys):
     from arrayplan.cli import main
 
-    from conftest import FAST_MEASURE_ARGS
+    from helpers import FAST_MEASURE_ARGS
 
     argv = ["measure", str(bench_rig), "--simulate", *FAST_MEASURE_ARGS]
     assert main(argv + ["--out", str(tmp_path / "a"), "--pre-ms", "5"]) == 0

@@ -12,7 +12,7 @@ from arrayplan.kernels.freefield import FreeFieldKernel
 from arrayplan.kernels.measured import MeasuredKernel, fade_out_window
 from arrayplan.rig import Rig
 from arrayplan.kernels.model_irs import free_field_irset
-from conftest import assert_singular_values_match_free_field
+from helpers import assert_singular_values_match_free_field
 
 FS = 48000.0
 N = 4096

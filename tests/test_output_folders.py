@@ -23,20 +23,12 @@ from arrayplan.errors import InputError
 from arrayplan.formats.fileio import (CHECKSUM_FILE, PUBLISH_PAUSE_ENV, atomic_paths, check_folder, clean_stale_staging,
                               staged_output_dir)
 
-from conftest import ARRAYPLAN_COMMAND, BENCH_RIG_TOML
+from helpers import ARRAYPLAN_COMMAND, BENCH_RIG_TOML, arrayplan_main
 
 #: A second invented rig: the bench rig with its microphones 2.5 m away, so its plan differs.
 FAR_RIG_TOML = BENCH_RIG_TOML.replace('name = "bench-trio"', 'name = "far-trio"').replace(", 1.5, 1.0]", ", 2.5, 1.0]")
 
 PLAN_ARGS = ["--freq-hz", "500", "--freq-hz", "1000", "--no-figures"]
-
-
-def _main(capsys, args):
-    """Run the command in this process (faster than a child); return (status, stderr)."""
-    from arrayplan.cli import main
-
-    rc = main(list(args))
-    return rc, capsys.readouterr().err
 
 
 def _hidden(folder: Path) -> list[str]:
@@ -125,19 +117,19 @@ def test_a_mixed_or_damaged_folder_is_refused_naming_the_file(tmp_path):
 def test_plan_rerun_drops_old_figures_and_a_mixed_plan_is_refused_by_verify_and_report(rigs, tmp_path, capsys):
     bench, far = rigs
     a, b = tmp_path / "proj" / "a", tmp_path / "proj" / "b"
-    assert _main(capsys, ["plan", str(bench), "--out", str(a), "--freq-hz", "500"])[0] == 0
+    assert arrayplan_main(capsys, "plan", str(bench), "--out", str(a), "--freq-hz", "500").returncode == 0
     assert (a / "rig.png").is_file()
-    assert _main(capsys, ["plan", str(bench), "--out", str(a), *PLAN_ARGS])[0] == 0
+    assert arrayplan_main(capsys, "plan", str(bench), "--out", str(a), *PLAN_ARGS).returncode == 0
     assert not list(a.glob("*.png"))                           # no figures of the earlier run remain
     _sha256sum_ok(a)
-    assert _main(capsys, ["plan", str(far), "--out", str(b), *PLAN_ARGS])[0] == 0
+    assert arrayplan_main(capsys, "plan", str(far), "--out", str(b), *PLAN_ARGS).returncode == 0
     shutil.copy(b / "weights.npz", a / "weights.npz")          # the old per-file publish could leave this mix
     from arrayplan.formats.plan_folder import read_weights
 
     with pytest.raises(InputError, match="differs") as err:
         read_weights(a)
     assert err.value.source == str(a / "weights.npz")
-    rc, err = _main(capsys, ["report", str(tmp_path / "proj"), "--out", str(tmp_path / "r.html")])
+    rc, _, err = arrayplan_main(capsys, "report", str(tmp_path / "proj"), "--out", str(tmp_path / "r.html"))
     assert rc == 0, err
     html = (tmp_path / "r.html").read_text()
     assert "could not be read" in html and "weights.npz" in html
@@ -147,14 +139,14 @@ def test_report_lists_a_truncated_weights_file_and_still_writes(rigs, tmp_path, 
     bench, far = rigs
     proj = tmp_path / "proj"
     for name, rig in (("good", far), ("cut", bench)):
-        assert _main(capsys, ["plan", str(rig), "--out", str(proj / name), *PLAN_ARGS])[0] == 0
+        assert arrayplan_main(capsys, "plan", str(rig), "--out", str(proj / name), *PLAN_ARGS).returncode == 0
     npz = proj / "cut" / "weights.npz"
     npz.write_bytes(npz.read_bytes()[:100])
     for folder_has_checksums in (True, False):               # refused by its checksum, or by numpy without one
         if not folder_has_checksums:
             (proj / "cut" / CHECKSUM_FILE).unlink()
         out = tmp_path / f"r{int(folder_has_checksums)}.html"
-        rc, err = _main(capsys, ["report", str(proj), "--out", str(out)])
+        rc, _, err = arrayplan_main(capsys, "report", str(proj), "--out", str(out))
         assert rc == 0, err
         html = out.read_text()
         assert "could not be read" in html and str(npz) in html
@@ -193,17 +185,17 @@ def test_signal_files_appear_together_and_a_folder_in_the_way_is_one_error(tmp_p
     sweep = ["signal", "sweep", "--f1-hz", "100", "--f2-hz", "4000", "--duration-s", "0.3", "--rate-hz", "16000",
              "--pad-after-s", "0.1"]
     (tmp_path / "d.wav").mkdir()
-    rc, err = _main(capsys, [*sweep, "--out", str(tmp_path / "d.wav")])
+    rc, _, err = arrayplan_main(capsys, *sweep, "--out", str(tmp_path / "d.wav"))
     assert rc == 2 and err.count("\n") == 1, err
     assert "d.wav" in err and "is a folder" in err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["d.wav"]
     # One of the later files in the way: nothing of the earlier run is replaced, nothing new appears.
-    assert _main(capsys, [*sweep, "--out", str(tmp_path / "e.wav")])[0] == 0
+    assert arrayplan_main(capsys, *sweep, "--out", str(tmp_path / "e.wav")).returncode == 0
     before = {p.name: p.read_bytes() for p in tmp_path.iterdir() if p.is_file()}
     assert sorted(before) == ["e.inverse.json", "e.inverse.wav", "e.json", "e.wav"]
     (tmp_path / "e.inverse.json").unlink()
     (tmp_path / "e.inverse.json").mkdir()
-    rc, err = _main(capsys, [*sweep, "--out", str(tmp_path / "e.wav"), "--duration-s", "0.4"])
+    rc, _, err = arrayplan_main(capsys, *sweep, "--out", str(tmp_path / "e.wav"), "--duration-s", "0.4")
     assert rc == 2 and "e.inverse.json" in err and err.count("\n") == 1, err
     after = {p.name: p.read_bytes() for p in tmp_path.iterdir() if p.is_file()}
     assert after == {k: v for k, v in before.items() if k != "e.inverse.json"}
@@ -242,7 +234,7 @@ def test_staging_of_dead_runs_is_removed_and_a_set_aside_folder_put_back(tmp_pat
 def test_a_run_killed_while_publishing_leaves_no_mix_and_the_next_run_tidies(rigs, tmp_path, capsys):
     bench, far = rigs
     out = tmp_path / "plan"
-    assert _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])[0] == 0
+    assert arrayplan_main(capsys, "plan", str(bench), "--out", str(out), *PLAN_ARGS).returncode == 0
     old = json.loads((out / "weights.json").read_text())["rig"]["name"]
     env = dict(os.environ, **{PUBLISH_PAUSE_ENV: "60"})
     child = subprocess.Popen(ARRAYPLAN_COMMAND + ["plan", str(far), "--out", str(out), *PLAN_ARGS], env=env,
@@ -262,7 +254,7 @@ def test_a_run_killed_while_publishing_leaves_no_mix_and_the_next_run_tidies(rig
     with pytest.raises(InputError, match="missing"):
         read_weights(out)
     # The next run puts the old plan back first, then replaces it whole, and leaves nothing hidden.
-    assert _main(capsys, ["plan", str(far), "--out", str(out), *PLAN_ARGS])[0] == 0
+    assert arrayplan_main(capsys, "plan", str(far), "--out", str(out), *PLAN_ARGS).returncode == 0
     assert _hidden(tmp_path) == []
     _sha256sum_ok(out)
     assert json.loads((out / "weights.json").read_text())["rig"]["name"] == "far-trio" != old
@@ -271,7 +263,7 @@ def test_a_run_killed_while_publishing_leaves_no_mix_and_the_next_run_tidies(rig
 def test_two_runs_into_one_folder_end_with_one_complete_folder(rigs, tmp_path, capsys):
     bench, far = rigs
     out = tmp_path / "plan"
-    assert _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])[0] == 0
+    assert arrayplan_main(capsys, "plan", str(bench), "--out", str(out), *PLAN_ARGS).returncode == 0
     env = dict(os.environ, **{PUBLISH_PAUSE_ENV: "2"})       # widen the window between set-aside and rename
     children = [subprocess.Popen(ARRAYPLAN_COMMAND + ["plan", str(r), "--out", str(out), *PLAN_ARGS], env=env,
                                  stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, stdin=subprocess.DEVNULL,
@@ -316,14 +308,14 @@ def test_a_folder_holding_someone_elses_files_is_never_replaced(rigs, tmp_path, 
     docs = tmp_path / "docs"
     docs.mkdir()
     (docs / "thesis.tex").write_text("years of work")
-    rc, err = _main(capsys, ["plan", str(bench), "--out", str(docs), *PLAN_ARGS])
+    rc, _, err = arrayplan_main(capsys, "plan", str(bench), "--out", str(docs), *PLAN_ARGS)
     assert rc == 2 and err.count("\n") == 1 and "thesis.tex" in err, err
     assert sorted(p.name for p in docs.iterdir()) == ["thesis.tex"] and _hidden(tmp_path) == []
     # An arrayplan output with a file added later is refused too; the plain output is replaced.
     out = tmp_path / "plan"
-    assert _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])[0] == 0
+    assert arrayplan_main(capsys, "plan", str(bench), "--out", str(out), *PLAN_ARGS).returncode == 0
     (out / "notes.txt").write_text("mine")
-    rc, err = _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])
+    rc, _, err = arrayplan_main(capsys, "plan", str(bench), "--out", str(out), *PLAN_ARGS)
     assert rc == 2 and "notes.txt" in err
     (out / "notes.txt").unlink()
-    assert _main(capsys, ["plan", str(bench), "--out", str(out), *PLAN_ARGS])[0] == 0
+    assert arrayplan_main(capsys, "plan", str(bench), "--out", str(out), *PLAN_ARGS).returncode == 0

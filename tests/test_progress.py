@@ -24,10 +24,10 @@ import pytest
 from arrayplan.commands.measure import show_take_progress
 from arrayplan.hardware.measure import TakeProgress
 from arrayplan.progress import ProgressBar, format_duration, mini_bar, progress_wanted, ticking
+from helpers import ARRAYPLAN_COMMAND
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demos" / "workshop-link" / "rig.toml"
-ARRAYPLAN = [sys.executable, "-m", "arrayplan"]
 
 
 # -- helpers ------------------------------------------------------------------------------------
@@ -119,7 +119,7 @@ def run_on_pipe(args: list[str], env: dict[str, str], cwd: Path) -> tuple[int, s
 
 
 def plan_args(out: Path) -> list[str]:
-    return ARRAYPLAN + ["plan", str(DEMO), "--out", str(out), "--no-figures"]
+    return ARRAYPLAN_COMMAND + ["plan", str(DEMO), "--out", str(out), "--no-figures"]
 
 
 # -- the bar on its own -------------------------------------------------------------------------
@@ -344,7 +344,7 @@ def test_plan_into_a_pipe_is_quiet_unless_forced(tmp_path):
 
 
 def test_filters_on_a_terminal_show_plan_taps_and_check(tmp_path):
-    args = ARRAYPLAN + ["filters", str(DEMO), "--rate-hz", "16000", "--taps", "1024", "--band-hz", "500", "4000",
+    args = ARRAYPLAN_COMMAND + ["filters", str(DEMO), "--rate-hz", "16000", "--taps", "1024", "--band-hz", "500", "4000",
                         "--out", str(tmp_path / "f")]
     status, out, term = run_on_pty(args, clean_env(), tmp_path)
     assert status == 0, term
@@ -362,7 +362,7 @@ def test_filters_on_a_terminal_show_plan_taps_and_check(tmp_path):
 
 
 def test_simulated_measurement_on_a_terminal_shows_the_take_bar(bench_rig, tmp_path):
-    args = ARRAYPLAN + ["measure", str(bench_rig), "--out", str(tmp_path / "m"), "--simulate", "--yes",
+    args = ARRAYPLAN_COMMAND + ["measure", str(bench_rig), "--out", str(tmp_path / "m"), "--simulate", "--yes",
                         "--f1-hz", "100", "--duration-s", "0.5", "--ir-length-s", "0.05", "--max-latency-s", "0.1",
                         "--sim-dropouts", "1"]
     status, out, term = run_on_pty(args, clean_env(), tmp_path)
@@ -396,7 +396,7 @@ def test_ctrl_c_inside_the_bar_leaves_a_clean_line_on_a_terminal(tmp_path):
 
 
 def test_field_on_a_terminal_shows_the_rows_bar(tmp_path):
-    args = ARRAYPLAN + ["field", str(DEMO), "--freq-hz", "2000", "--plane", "xy", "--resolution", "60",
+    args = ARRAYPLAN_COMMAND + ["field", str(DEMO), "--freq-hz", "2000", "--plane", "xy", "--resolution", "60",
                         "--out", str(tmp_path / "f")]
     status, out, term = run_on_pty(args, clean_env(), tmp_path)
     assert status == 0, term

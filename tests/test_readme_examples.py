@@ -20,6 +20,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from helpers import ARRAYPLAN_COMMAND
 
 ROOT = Path(__file__).resolve().parents[1]
 README = ROOT / "README.md"
@@ -52,7 +53,7 @@ def test_every_readme_example_runs(tmp_path):
     for command in readme_commands(README.read_text(encoding="utf-8")):
         words = shlex.split(command)
         if words[0] == "arrayplan":
-            argv = [sys.executable, "-m", "arrayplan", *words[1:]]
+            argv = [*ARRAYPLAN_COMMAND, *words[1:]]
         else:  # bash demos/... walkthrough scripts
             argv = words
         done = subprocess.run(argv, cwd=tmp_path, env=env, capture_output=True, text=True, timeout=600,

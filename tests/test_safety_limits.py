@@ -10,7 +10,6 @@ from __future__ import annotations
 import argparse
 import io
 import math
-import subprocess
 
 import numpy as np
 import pytest
@@ -19,8 +18,7 @@ from arrayplan.commands.measure import print_level_estimate
 from arrayplan.errors import InputError
 from arrayplan.safety import check_exposure, estimate_exposure
 
-from conftest import ARRAYPLAN_COMMAND, FAST_MEASURE_ARGS
-from test_signals_cli import _importable_commands, _run  # noqa: F401  (autouse fixture, runner)
+from helpers import FAST_MEASURE_ARGS, arrayplan_main
 
 FS = 16000
 SWEEP = ["signal", "sweep", "--f1-hz", "50", "--f2-hz", "5000", "--duration-s", "0.5", "--pad-after-s", "0.2",
@@ -113,17 +111,18 @@ def test_absurd_listener_distances_are_refused(d):
     (["--sensitivity-vrms", "nan"], ["--sensitivity-vrms", "nan"]),
 ])
 def test_signal_command_keeps_the_refusal(tmp_path, capsys, extra, words):
-    rc, _, err = _run(capsys, *SWEEP, "--out", str(tmp_path / "s.wav"), *LOUD, *extra)
+    rc, _, err = arrayplan_main(capsys, *SWEEP, "--out", str(tmp_path / "s.wav"), *LOUD, *extra)
     _one_line(rc, err, *words)
     assert list(tmp_path.iterdir()) == []
     # The same estimate is refused without the extra option, and only --allow-loud passes it.
-    rc, _, err = _run(capsys, *SWEEP, "--out", str(tmp_path / "s.wav"), *LOUD)
+    rc, _, err = arrayplan_main(capsys, *SWEEP, "--out", str(tmp_path / "s.wav"), *LOUD)
     _one_line(rc, err, "exceeds the cap of 100 dBA")
     assert list(tmp_path.iterdir()) == []
 
 
 def test_raised_cap_with_consent_writes_and_warns(tmp_path, capsys):
-    rc, _, err = _run(capsys, *SWEEP, "--out", str(tmp_path / "s.wav"), *LOUD, "--max-dba", "120", "--allow-loud")
+    rc, _, err = arrayplan_main(capsys, *SWEEP, "--out", str(tmp_path / "s.wav"), *LOUD, "--max-dba", "120",
+                                "--allow-loud")
     assert rc == 0 and "above 85 dBA" in err and (tmp_path / "s.wav").is_file()
 
 
@@ -162,17 +161,15 @@ def test_hot_outputs_at_an_unknown_level_need_their_own_consent():
                              stream=io.StringIO())
 
 
-def test_measure_refuses_hot_calibrated_outputs_of_unknown_level(audio_server, bench_rig, tmp_path):
+def test_measure_refuses_hot_calibrated_outputs_of_unknown_level(audio_server, bench_rig, tmp_path, run_arrayplan):
     from arrayplan.hardware.calibration import CalibrationRecord, OutputCalibration, write_calibration
 
     cal = tmp_path / "hot.toml"
     write_calibration(cal, CalibrationRecord(outputs=tuple(
         OutputCalibration(channel=c, full_scale_vrms=2.0, amplifier_gain_db=40.0) for c in (1, 2, 3))))
     out = tmp_path / "never"
-    done = subprocess.run(ARRAYPLAN_COMMAND + ["measure", str(bench_rig), "--out", str(out), "--device", "pulse",
-                                               "--rate-hz", "48000", "--calibration", str(cal), "--yes",
-                                               *FAST_MEASURE_ARGS],
-                          capture_output=True, text=True, stdin=subprocess.DEVNULL, timeout=120)
+    done = run_arrayplan("measure", bench_rig, "--out", out, "--device", "pulse", "--rate-hz", "48000",
+                         "--calibration", cal, "--yes", *FAST_MEASURE_ARGS)
     assert done.returncode == 2, done.stderr
     last = done.stderr.strip().splitlines()[-1]
     assert "HOT OUTPUTS AT AN UNKNOWN LEVEL" in last and "--allow-unknown-level" in last

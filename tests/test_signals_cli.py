@@ -1,6 +1,5 @@
 """``arrayplan signal ...``: real WAV files written and read back, bad input, nothing half-written."""
 
-import importlib.util
 import json
 
 import numpy as np
@@ -12,22 +11,9 @@ from arrayplan.safety import CAUTION_NOTE
 from arrayplan.errors import InputError
 from arrayplan.formats.signal_sidecar import signal_sidecar
 from arrayplan.signals import wavout
+from helpers import arrayplan_main
 
 SWEEP = ["--f1-hz", "50", "--f2-hz", "5000", "--duration-s", "0.5", "--pad-after-s", "0.2", "--rate-hz", "16000"]
-
-
-@pytest.fixture(autouse=True)
-def _importable_commands(monkeypatch):
-    # The shared tree may list colleagues' command modules before they are committed; register the
-    # ones that exist so these tests run the real cli.main either way.
-    mods = tuple(m for m in cli.COMMAND_MODULES if importlib.util.find_spec(m) is not None)
-    monkeypatch.setattr(cli, "COMMAND_MODULES", mods)
-
-
-def _run(capsys, *argv):
-    rc = cli.main(list(argv))
-    out, err = capsys.readouterr()
-    return rc, out, err
 
 
 def _assert_one_line_error(rc, err, *words):
@@ -43,7 +29,7 @@ def _assert_one_line_error(rc, err, *words):
 @pytest.mark.parametrize("fmt, subtype", [("float32", "FLOAT"), ("pcm24", "PCM_24")])
 def test_sweep_round_trip(tmp_path, capsys, fmt, subtype):
     out = tmp_path / "sweep.wav"
-    rc, stdout, err = _run(capsys, "signal", "sweep", "--out", str(out), "--format", fmt, *SWEEP)
+    rc, stdout, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(out), "--format", fmt, *SWEEP)
     assert rc == 0
     assert "CAUTION" in err and "licensed practice" in err
     info = sf.info(out)
@@ -80,7 +66,7 @@ def test_sweep_fades_default_to_one_fresnel_time_and_given_ones_are_kept(tmp_pat
     # 1 / sqrt(f ln(f2/f1) / T) at f1 and f2: the time the sweep takes to cross one Fresnel zone
     # (common practice, no source), at most half an octave's time T ln 2 / ln(f2/f1) / 2 (which binds
     # at f1 for this short sweep); recorded in both the conditioning and the sweep block.
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "a.wav"), *SWEEP)
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(tmp_path / "a.wav"), *SWEEP)
     assert rc == 0, err
     side = json.loads((tmp_path / "a.json").read_text())
     rate = 0.5 / np.log(5000 / 50)
@@ -90,8 +76,8 @@ def test_sweep_fades_default_to_one_fresnel_time_and_given_ones_are_kept(tmp_pat
         assert side["conditioning"][key] == side["sweep"][key] == pytest.approx(want, rel=1e-12)
     assert side["sweep"]["fade_rule"].startswith("one Fresnel time")
     assert side["sweep"]["pre_roll_samples"] == int(half_octave * 16000)
-    rc, _, err = _run(capsys, "signal", "schedule", "--speakers", "2", "--out", str(tmp_path / "s.wav"), *SWEEP,
-                      "--fade-in-s", "0.01", "--fade-out-s", "0.002")
+    rc, _, err = arrayplan_main(capsys, "signal", "schedule", "--speakers", "2", "--out", str(tmp_path / "s.wav"),
+                                *SWEEP, "--fade-in-s", "0.01", "--fade-out-s", "0.002")
     assert rc == 0, err
     side = json.loads((tmp_path / "s.json").read_text())
     assert (side["conditioning"]["fade_in_s"], side["conditioning"]["fade_out_s"]) == (0.01, 0.002)
@@ -108,7 +94,7 @@ def test_other_signals_round_trip(tmp_path, capsys):
     }
     for name, args in cases.items():
         out = tmp_path / name
-        rc, _, err = _run(capsys, "signal", args[0], "--out", str(out), "--rate-hz", "16000", *args[1:])
+        rc, _, err = arrayplan_main(capsys, "signal", args[0], "--out", str(out), "--rate-hz", "16000", *args[1:])
         assert rc == 0, err
         data, rate = sf.read(out, always_2d=True)
         side = json.loads(out.with_suffix(".json").read_text())
@@ -128,20 +114,20 @@ def test_other_signals_round_trip(tmp_path, capsys):
 def test_exposure_estimate_warns_refuses_and_overrides(tmp_path, capsys):
     out = tmp_path / "loud.wav"
     expo = ["--speaker-sensitivity-db-spl", "95", "--amp-vrms", "20", "--listener-distance-m", "1"]
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(out), *SWEEP, *expo)
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(out), *SWEEP, *expo)
     _assert_one_line_error(rc, err, "exceeds the cap of 100 dBA", "--allow-loud")
     assert list(tmp_path.iterdir()) == []
-    rc, stdout, err = _run(capsys, "signal", "sweep", "--out", str(out), *SWEEP, *expo, "--allow-loud")
+    rc, stdout, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(out), *SWEEP, *expo, "--allow-loud")
     assert rc == 0 and "allowed by --allow-loud" in err and "NIOSH" in stdout
     side = json.loads((tmp_path / "loud.json").read_text())
     assert side["exposure"]["dba"][0] > 100
     assert any("above 85 dBA" in w for w in side["warnings"])
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "x.wav"), *SWEEP,
-                      "--speaker-sensitivity-db-spl", "95")
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(tmp_path / "x.wav"), *SWEEP,
+                                "--speaker-sensitivity-db-spl", "95")
     _assert_one_line_error(rc, err, "needs both", "--amp-vrms")
     # without distances the estimate is made for a listener 1 m away, as in 'measure'
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "near.wav"), *SWEEP, *expo[:4],
-                      "--allow-loud")
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(tmp_path / "near.wav"), *SWEEP, *expo[:4],
+                                "--allow-loud")
     assert rc == 0, err
     assert json.loads((tmp_path / "near.json").read_text())["exposure"]["listener_distances_m"] == [1.0]
 
@@ -156,7 +142,7 @@ def test_exposure_estimate_warns_refuses_and_overrides(tmp_path, capsys):
     (["--fade-in-s", "0"], ["fade"]),
 ])
 def test_bad_sweep_input_is_one_line_and_writes_nothing(tmp_path, capsys, extra, words):
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, *extra)
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, *extra)
     assert rc == 2 and len(err.strip().splitlines()) == 1 and "Traceback" not in err, err
     assert all(w in err for w in words), err
     assert list(tmp_path.iterdir()) == []
@@ -166,12 +152,12 @@ def test_usage_errors_exit_2(tmp_path, capsys):
     assert cli.main(["signal", "sweep", "--out", str(tmp_path / "s.wav"), "--format", "pcm8"]) == 2
     assert len(capsys.readouterr().err.strip().splitlines()) == 1
     (tmp_path / "notes").write_text("a file where a folder is wanted")
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "notes" / "s.wav"), *SWEEP)
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(tmp_path / "notes" / "s.wav"), *SWEEP)
     _assert_one_line_error(rc, err, "is a file, not a folder")
 
 
 def test_missing_output_folders_are_created(tmp_path, capsys):
-    rc, _, _ = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "new" / "s.wav"), *SWEEP)
+    rc, _, _ = arrayplan_main(capsys, "signal", "sweep", "--out", str(tmp_path / "new" / "s.wav"), *SWEEP)
     assert rc == 0 and (tmp_path / "new" / "s.wav").is_file() and (tmp_path / "new" / "s.json").is_file()
 
 
@@ -181,8 +167,8 @@ def test_probe_sends_the_signal_through_each_filter(tmp_path, capsys):
     filters[2, 0], filters[10, 1], filters[31, 2] = 0.5, -0.25, 1.0
     sf.write(tmp_path / "ch1.wav", filters, fs, subtype="FLOAT")
     (tmp_path / "ch1.json").write_text(json.dumps({"speaker_names": ["L", "C", "R"]}))
-    rc, _, err = _run(capsys, "signal", "probe", "--filters", str(tmp_path / "ch1.wav"),
-                      "--out", str(tmp_path / "probe.wav"), *SWEEP)
+    rc, _, err = arrayplan_main(capsys, "signal", "probe", "--filters", str(tmp_path / "ch1.wav"),
+                                "--out", str(tmp_path / "probe.wav"), *SWEEP)
     assert rc == 0, err
     data, _ = sf.read(tmp_path / "probe.wav", always_2d=True)
     side = json.loads((tmp_path / "probe.json").read_text())
@@ -195,14 +181,14 @@ def test_probe_sends_the_signal_through_each_filter(tmp_path, capsys):
     np.testing.assert_allclose(data[:-21, 1], -0.25 * ref[21:], atol=3e-4)
     # noise source, no names sidecar
     (tmp_path / "ch1.json").unlink()
-    rc, _, err = _run(capsys, "signal", "probe", "--filters", str(tmp_path / "ch1.wav"), "--source", "pink",
-                      "--out", str(tmp_path / "pn.wav"), *SWEEP, "--seed", "1")
+    rc, _, err = arrayplan_main(capsys, "signal", "probe", "--filters", str(tmp_path / "ch1.wav"), "--source", "pink",
+                                "--out", str(tmp_path / "pn.wav"), *SWEEP, "--seed", "1")
     assert rc == 0, err
     side = json.loads((tmp_path / "pn.json").read_text())
     assert side["channel_names"] == ["S1", "S2", "S3"] and side["sweep"] is None
     # wrong rate
-    rc, _, err = _run(capsys, "signal", "probe", "--filters", str(tmp_path / "ch1.wav"),
-                      "--out", str(tmp_path / "p2.wav"), *SWEEP[:-2], "--rate-hz", "48000")
+    rc, _, err = arrayplan_main(capsys, "signal", "probe", "--filters", str(tmp_path / "ch1.wav"),
+                                "--out", str(tmp_path / "p2.wav"), *SWEEP[:-2], "--rate-hz", "48000")
     _assert_one_line_error(rc, err, "16000 Hz")
     assert not (tmp_path / "p2.wav").exists()
 

@@ -10,7 +10,7 @@ from arrayplan.errors import InputError
 from arrayplan.signals import (SweepSettings, deconvolve, exponential_inverse_filter, exponential_sweep,
                                harmonic_offset_s, linear_sweep, make_sweep)
 from arrayplan.signals.sweeps import fresnel_time_s, unity_response
-from conftest import known_iir_systems
+from helpers import known_iir_systems
 
 FS = 48000
 

@@ -5,7 +5,6 @@ largest magnitude); the reference oversampling here is scipy.signal.resample_pol
 long Kaiser-windowed filter from scipy.signal.firwin, independent of arrayplan's interpolator.
 """
 
-import importlib.util
 import json
 import math
 
@@ -14,20 +13,14 @@ import pytest
 import soundfile as sf
 from scipy.signal import firwin, resample_poly
 
-import arrayplan.cli as cli
 from arrayplan.errors import InputError
 from arrayplan.signals import check_peak, scale_to_level
 from arrayplan.signals.levels import DEFAULT_PEAK_CAP_DBFS, effective_cap_dbfs, peak_dbfs, true_peak_dbfs
 from arrayplan.signals.noise import band_limited_noise
+from helpers import arrayplan_main
 
 FS = 48000
 SWEEP = ["--f1-hz", "50", "--f2-hz", "5000", "--duration-s", "0.5", "--pad-after-s", "0.2", "--rate-hz", "16000"]
-
-
-@pytest.fixture(autouse=True)
-def _importable_commands(monkeypatch):
-    mods = tuple(m for m in cli.COMMAND_MODULES if importlib.util.find_spec(m) is not None)
-    monkeypatch.setattr(cli, "COMMAND_MODULES", mods)
 
 
 def _reference_true_peak_dbfs(x):
@@ -91,12 +84,6 @@ def test_a_raised_cap_is_a_lifted_cap():
 
 # ----------------------------------------------------------------------------- through the command line
 
-def _run(capsys, *argv):
-    rc = cli.main(list(argv))
-    out, err = capsys.readouterr()
-    return rc, out, err
-
-
 def _active(path):
     """The written signal without its padding, from the file and the sidecar's pad lengths."""
     data, rate = sf.read(path, always_2d=True, dtype="float64")
@@ -111,7 +98,7 @@ def _active(path):
 def test_rms_target_reads_back_on_the_active_part(tmp_path, capsys, argv, pad_after_s):
     out = tmp_path / "x.wav"
     target = float(argv[-1])
-    rc, stdout, _ = _run(capsys, "signal", *argv, "--out", str(out))
+    rc, stdout, _ = arrayplan_main(capsys, "signal", *argv, "--out", str(out))
     assert rc == 0
     data, rate, side = _active(out)
     nb, na = int(round(0.1 * rate)), int(round(pad_after_s * rate))
@@ -129,8 +116,8 @@ def test_rms_target_reads_back_on_the_active_part(tmp_path, capsys, argv, pad_af
 
 def test_written_signals_report_their_true_peak(tmp_path, capsys):
     out = tmp_path / "n.wav"
-    rc, stdout, _ = _run(capsys, "signal", "noise", "--colour", "white", "--duration-s", "1", "--seed", "2",
-                         "--out", str(out))
+    rc, stdout, _ = arrayplan_main(capsys, "signal", "noise", "--colour", "white", "--duration-s", "1", "--seed", "2",
+                                   "--out", str(out))
     assert rc == 0
     data, _, side = _active(out)
     ref = _reference_true_peak_dbfs(data[:, 0])
@@ -141,12 +128,13 @@ def test_written_signals_report_their_true_peak(tmp_path, capsys):
 
 
 def test_raised_cap_needs_consent_and_then_warns(tmp_path, capsys):
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, "--peak-cap-dbfs", "0")
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, "--peak-cap-dbfs",
+                                "0")
     assert rc == 2 and len(err.strip().splitlines()) == 1
     assert "--peak-cap-dbfs" in err and "--allow-above-cap" in err
     assert list(tmp_path.iterdir()) == []
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, "--peak-cap-dbfs", "0",
-                      "--allow-above-cap")
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, "--peak-cap-dbfs",
+                                "0", "--allow-above-cap")
     assert rc == 0
     assert "above the default cap of -12.0 dBFS (allowed by --allow-above-cap)" in err
     data, _ = sf.read(tmp_path / "s.wav")
@@ -154,20 +142,20 @@ def test_raised_cap_needs_consent_and_then_warns(tmp_path, capsys):
 
 
 def test_measure_above_the_cap_prints_the_same_warning(bench_rig, tmp_path, capsys):
-    from conftest import FAST_MEASURE_ARGS
+    from helpers import FAST_MEASURE_ARGS
 
-    rc, _, err = _run(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, "--peak-dbfs", "-3",
-                      "--allow-above-cap")
+    rc, _, err = arrayplan_main(capsys, "signal", "sweep", "--out", str(tmp_path / "s.wav"), *SWEEP, "--peak-dbfs",
+                                "-3", "--allow-above-cap")
     assert rc == 0
     signal_warning = [ln for ln in err.splitlines() if "(allowed by --allow-above-cap)" in ln]
     assert len(signal_warning) == 1
     text = signal_warning[0].split("warning: ", 1)[1]
-    rc, _, err = _run(capsys, "measure", str(bench_rig), "--simulate", *FAST_MEASURE_ARGS, "--out",
-                      str(tmp_path / "m"), "--peak-dbfs", "-3", "--allow-above-cap")
+    rc, _, err = arrayplan_main(capsys, "measure", str(bench_rig), "--simulate", *FAST_MEASURE_ARGS, "--out",
+                                str(tmp_path / "m"), "--peak-dbfs", "-3", "--allow-above-cap")
     assert rc == 0
     assert text in err
-    rc, _, err = _run(capsys, "measure", str(bench_rig), "--simulate", *FAST_MEASURE_ARGS, "--out",
-                      str(tmp_path / "m2"))
+    rc, _, err = arrayplan_main(capsys, "measure", str(bench_rig), "--simulate", *FAST_MEASURE_ARGS, "--out",
+                                str(tmp_path / "m2"))
     assert rc == 0 and "allowed by --allow-above-cap" not in err
 
 

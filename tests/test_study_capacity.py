@@ -121,7 +121,7 @@ def test_cli_writes_tables_sidecar_and_figures(tmp_path, capsys):
     assert {"capacity.csv", "capacity-channels.csv", "capacity-band.csv", "capacity.json", "capacity.npz",
             "capacity.png", "active-channels.png", "water-levels.png"} <= names
     side = json.loads((out / "capacity.json").read_text())
-    assert side["kind"] == "arrayplan-capacity-study" and side["snr_db"] == [10.0, 30.0]
+    assert side["format"] == "arrayplan-capacity-study" and side["snr_db"] == [10.0, 30.0]
     study, _ = read_capacity_study(out)
     rows = (out / "capacity.csv").read_text().splitlines()
     assert len(rows) == 1 + 2 * 4

@@ -14,6 +14,7 @@ from arrayplan.cli import main
 from arrayplan.frequency import FrequencyAxis
 from arrayplan.rig import Rig, load_rig
 from arrayplan.studies.layout import choose_layout, layout_problem
+from helpers import arrayplan_main, first_order_box_coupling
 
 C = 343.0
 
@@ -121,17 +122,11 @@ center = [0.0, 2.0, 0.0]
 """
 
 
-def _run(capsys, *args):
-    status = main(["study", "layout", *map(str, args)])
-    got = capsys.readouterr()
-    return status, got.out, got.err
-
-
 def test_command_writes_a_rig_that_plans(tmp_path, capsys):
     rig = tmp_path / "rig.toml"
     rig.write_text(RIG_TEXT)
     out = tmp_path / "lay"
-    status, text, err = _run(capsys, rig, "--choose", "4", "--out", out)
+    status, text, err = arrayplan_main(capsys, "study", "layout", rig, "--choose", "4", "--out", out)
     assert status == 0, err
     assert "gap" in text and "upper bound" in text
     chosen = load_rig(out / "chosen-rig.toml")
@@ -151,7 +146,7 @@ def test_bad_input_is_one_line_exit_2_and_nothing_written(tmp_path, capsys, monk
     Path("rig.toml").write_text(RIG_TEXT)
     if csv_text is not None:
         Path("cand.csv").write_text(csv_text)
-    status, _, err = _run(capsys, "rig.toml", "--out", "never", *extra)
+    status, _, err = arrayplan_main(capsys, "study", "layout", "rig.toml", "--out", "never", *extra)
     assert status == 2 and len(err.strip().splitlines()) == 1 and word in err
     assert not Path("never").exists()
 
@@ -159,7 +154,8 @@ def test_bad_input_is_one_line_exit_2_and_nothing_written(tmp_path, capsys, monk
 def test_unknown_criterion_is_a_usage_error(tmp_path, capsys, monkeypatch):
     monkeypatch.chdir(tmp_path)
     Path("rig.toml").write_text(RIG_TEXT)
-    status, _, err = _run(capsys, "rig.toml", "--out", "never", "--choose", "2", "--criterion", "loudest")
+    status, _, err = arrayplan_main(capsys, "study", "layout", "rig.toml", "--out", "never", "--choose", "2",
+                                    "--criterion", "loudest")
     assert status == 2 and "criterion" in err and len(err.strip().splitlines()) == 1
     assert not Path("never").exists()
 
@@ -183,7 +179,8 @@ def test_layout_value_equals_the_compare_capacity_of_the_chosen_rig(tmp_path, ca
     rig = tmp_path / "rig.toml"
     rig.write_text(RIG_TEXT)
     out = tmp_path / "lay"
-    status, _, err = _run(capsys, rig, "--choose", "4", "--reference-snr-db", "35", "--out", out, "--no-figures")
+    status, _, err = arrayplan_main(capsys, "study", "layout", rig, "--choose", "4", "--reference-snr-db", "35",
+                                    "--out", out, "--no-figures")
     assert status == 0, err
     side = json.loads((out / "layout.json").read_text())
     assert side["reference_snr_db"] == 35.0 and "1 m from one speaker" in side["reference_snr"]
@@ -250,7 +247,8 @@ def test_chosen_rig_keeps_the_room_and_the_zones(tmp_path, capsys, side, count):
     rig_path = tmp_path / "rig.toml"
     rig_path.write_text(ZONED)
     out = tmp_path / "lay"
-    status, _, err = _run(capsys, rig_path, "--choose", count, "--side", side, "--out", out, "--no-figures")
+    status, _, err = arrayplan_main(capsys, "study", "layout", rig_path, "--choose", count, "--side", side, "--out",
+                                    out, "--no-figures")
     assert status == 0, err
     original, chosen = load_rig(rig_path), load_rig(out / "chosen-rig.toml")
     assert chosen.room.size_m == original.room.size_m
@@ -270,8 +268,8 @@ def test_chosen_rig_keeps_the_room_and_the_zones(tmp_path, capsys, side, count):
 
 def test_a_rig_in_a_room_is_scored_in_the_room():
     # the capacity of the chosen set with G from the direct path and the six first-order images across
-    # the walls of the box [0, L], each exp(-jkr) / (4 pi r) times beta = sqrt(1 - alpha), written here
-    # with numpy (J. B. Allen and D. A. Berkley, JASA 65(4), 1979); log-det as in _capacity (Telatar 1999)
+    # the walls of the box [0, L], each exp(-jkr) / (4 pi r) times beta = sqrt(1 - alpha), written with numpy
+    # in tests/helpers.py (J. B. Allen and D. A. Berkley, JASA 65(4), 1979); log-det as in _capacity (Telatar 1999)
     from dataclasses import replace
     from arrayplan.rig.room import Room
 
@@ -281,12 +279,7 @@ def test_a_rig_in_a_room_is_scored_in_the_room():
     rig = replace(Rig.from_positions(cand, mic, speed_of_sound=C), room=Room.uniform(tuple(size), alpha, 1))
     hz = np.array([350.0, 800.0])
     choice = choose_layout(layout_problem(rig, "speakers", 2, FrequencyAxis(hz), reference_snr_db=30.0))
-    g = _green(cand, mic, hz)
-    for axis_i in range(3):
-        for wall in (0.0, size[axis_i]):
-            img = cand.copy()
-            img[:, axis_i] = 2 * wall - cand[:, axis_i]
-            g = g + np.sqrt(1 - alpha) * _green(img, mic, hz)
+    g = first_order_box_coupling(cand, mic, hz, size, np.sqrt(1 - alpha), C)
     assert choice.value == pytest.approx(_capacity(g, choice.chosen, 30.0, 2), rel=1e-9)
     best = max(_capacity(g, s, 30.0, 2) for s in itertools.combinations(range(5), 2))
     # Nemhauser, Wolsey and Fisher 1978: greedy within (1 - 1/e); Joshi and Boyd 2009: the bound holds

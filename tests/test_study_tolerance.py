@@ -14,6 +14,7 @@ from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import Rig
 from arrayplan.studies.tolerance import tolerance_problem, tolerance_study, white_noise_gain_db
 from arrayplan.studies.trials import perturbed_couplings
+from helpers import arrayplan_main, first_order_box_coupling
 
 HZ = [700.0, 1300.0]
 
@@ -155,13 +156,6 @@ def test_kernel_builder_is_used_for_the_perturbed_rig():
     assert len(moved) >= 3                                              # one perturbed rig per trial
 
 
-def _main(args: list[str]) -> int:
-    try:
-        return main(args)
-    except SystemExit as exc:                                           # argparse's own usage errors
-        return int(exc.code)
-
-
 def _plan_dir(tmp_path, rig=None):
     out = tmp_path / "plan"
     write_plan(plan_rig(rig or _scattered(), FrequencyAxis(HZ)), out, figures=False)
@@ -179,7 +173,7 @@ def test_cli_writes_tables_sidecar_and_figures(tmp_path, capsys):
     assert {"tolerance.csv", "tolerance.json", "tolerance.npz", "tolerance-trials.npz", "gain-spread.png",
             "survival.png"} <= names
     side = json.loads((out / "tolerance.json").read_text())
-    assert side["kind"] == "arrayplan-tolerance-study" and side["settings"]["n_trials"] == 20
+    assert side["format"] == "arrayplan-tolerance-study" and side["settings"]["n_trials"] == 20
     assert side["settings"]["coupling_model"] == "direct"
     rows = (out / "tolerance.csv").read_text().splitlines()
     assert len(rows) == 1 + len(HZ) * 5
@@ -218,8 +212,9 @@ def test_cli_threshold_decides_the_channels_in_use(tmp_path, capsys, threshold):
 def test_cli_rejects_bad_numbers(tmp_path, capsys, args, flag):
     plan = _plan_dir(tmp_path)
     out = tmp_path / "new" / "tol"
-    assert _main(["study", "tolerance", str(plan), "--out", str(out), *args]) == 2
-    err = capsys.readouterr().err.strip()
+    status, _, err = arrayplan_main(capsys, "study", "tolerance", plan, "--out", out, *args)
+    assert status == 2
+    err = err.strip()
     assert len(err.splitlines()) == 1 and flag in err
     assert not (tmp_path / "new").exists()
 
@@ -264,7 +259,7 @@ def test_trial_chunks_can_run_in_worker_processes():
 def test_a_room_plan_perturbs_the_room():
     # with no error the trial's coupling is the room's: the direct path and the six first-order images
     # across the walls of the box [0, L], each exp(-jkr) / (4 pi r) times beta = sqrt(1 - alpha), written
-    # here with numpy (J. B. Allen and D. A. Berkley, JASA 65(4), 1979); and the planned weights see it
+    # with numpy in tests/helpers.py (J. B. Allen and D. A. Berkley, JASA 65(4), 1979); the planned weights see it
     from dataclasses import replace
     from arrayplan.rig.room import Room
 
@@ -277,13 +272,5 @@ def test_a_room_plan_perturbs_the_room():
     problem = tolerance_problem(plan, gain_sd_db=0.0)
     assert problem.model == "direct"
     size, beta, hz = np.array([3.5, 3.2, 2.5]), np.sqrt(1 - 0.4), np.array(HZ)
-    g = 0
-    for axis_i in (None, 0, 1, 2):
-        for wall in ((None,) if axis_i is None else (0.0, size[axis_i])):
-            img = spk.copy()
-            if axis_i is not None:
-                img[:, axis_i] = 2 * wall - spk[:, axis_i]
-            r = np.linalg.norm(mic[:, None] - img[None], axis=-1)
-            g = g + (1.0 if axis_i is None else beta) * np.exp(-2j * np.pi * hz[:, None, None] / 343.0 * r) / (
-                4 * np.pi * r)
+    g = first_order_box_coupling(spk, mic, hz, size, beta, 343.0)
     np.testing.assert_allclose(perturbed_couplings(problem, 0), g, rtol=1e-9)

@@ -4,18 +4,17 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
-from types import SimpleNamespace
 
 import numpy as np
 import pytest
 import scipy.linalg
 
-from arrayplan.cli import main
 from arrayplan.frequency import FrequencyAxis
 from arrayplan.rig import load_rig
 from arrayplan.studies.zones import (ZoneTarget, contrast_db, contrast_weights, effort_db, matching_weights,
                                      perturbed_contrast, study_zones)
 from arrayplan.rig.zones import select_zones
+from helpers import arrayplan_main, first_order_box_coupling
 
 DEMO = Path(__file__).resolve().parents[1] / "demos" / "two-seats" / "rig.toml"
 
@@ -121,17 +120,12 @@ def test_demo_rig_zones_and_study_on_a_perturbed_rig():
     assert np.median(big) < acc.contrast_db[0].mean()     # contrast control is fragile to position errors
 
 
-def _cli(capsys, *args):
-    status = main(["study", "zones", *map(str, args)])
-    got = capsys.readouterr()
-    return SimpleNamespace(returncode=status, stdout=got.out, stderr=got.err)
-
-
 def test_command_writes_tables_figures_and_filters_whose_contrast_matches_the_design(tmp_path, capsys):
     out = tmp_path / "z"
-    r = _cli(capsys, DEMO, "--bright", "seat-A", "--dark", "seat-B", "--out", out, "--freq-hz", "300",
-             "--freq-hz", "600", "--regularisation", "0.01,0.1", "--filters", "contrast", "--taps", "1024",
-             "--rate-hz", "8000", "--band-hz", "300", "600", "--tolerance-m", "0.005", "--trials", "3")
+    r = arrayplan_main(capsys, "study", "zones", DEMO, "--bright", "seat-A", "--dark", "seat-B", "--out", out,
+                       "--freq-hz", "300", "--freq-hz", "600", "--regularisation", "0.01,0.1", "--filters", "contrast",
+                       "--taps", "1024", "--rate-hz", "8000", "--band-hz", "300", "600", "--tolerance-m", "0.005",
+                       "--trials", "3")
     assert r.returncode == 0, r.stderr
     assert "contrast realised" in r.stdout
     names = {p.name for p in out.iterdir()}
@@ -158,7 +152,7 @@ def test_bad_input_is_one_line_exit_2_and_nothing_written(tmp_path, capsys, extr
         rig = tmp_path / "rig.toml"
         rig.write_text(text)
     out = tmp_path / "never"
-    r = _cli(capsys, rig, "--out", out, "--bright", "seat-A", *extra)
+    r = arrayplan_main(capsys, "study", "zones", rig, "--out", out, "--bright", "seat-A", *extra)
     assert r.returncode == 2
     assert len(r.stderr.strip().splitlines()) == 1 and word in r.stderr
     assert not out.exists()
@@ -174,8 +168,9 @@ def test_filters_too_short_for_the_delay_spread_to_the_zone_points_are_refused(t
     spread = (r.max() - r.min()) / rig.medium.speed_of_sound * 48000.0
     taps = int(np.floor(spread))                     # shorter than the spread itself
     out = tmp_path / "never"
-    got = _cli(capsys, DEMO, "--bright", "seat-A", "--dark", "seat-B", "--out", out, "--freq-hz", "500",
-               "--filters", "contrast", "--rate-hz", "48000", "--taps", max(taps, 16), "--band-hz", "300", "900")
+    got = arrayplan_main(capsys, "study", "zones", DEMO, "--bright", "seat-A", "--dark", "seat-B", "--out", out,
+                         "--freq-hz", "500", "--filters", "contrast", "--rate-hz", "48000", "--taps", max(taps, 16),
+                         "--band-hz", "300", "900")
     assert got.returncode == 2 and "--taps" in got.stderr and "delay spread" in got.stderr
     assert len(got.stderr.strip().splitlines()) == 1 and not out.exists()
 
@@ -191,9 +186,10 @@ def test_measured_responses_give_the_free_field_design_when_they_are_the_free_fi
     write_irset(tmp_path / "irs", free_field_irset(rig, 8000.0, 4096, zero_lag_samples=256))
     runs = {}
     for name, extra in (("free", []), ("measured", ["--irset", tmp_path / "irs"])):
-        r = _cli(capsys, rig_path, "--bright", "mics-A", "--dark", "mics-B", "--out", tmp_path / name,
-                 "--freq-hz", "300", "--freq-hz", "900", "--regularisation", "0.01", "--no-figures", "--filters",
-                 "matching", "--rate-hz", "8000", "--taps", "512", "--band-hz", "300", "900", *extra)
+        r = arrayplan_main(capsys, "study", "zones", rig_path, "--bright", "mics-A", "--dark", "mics-B", "--out",
+                           tmp_path / name, "--freq-hz", "300", "--freq-hz", "900", "--regularisation", "0.01",
+                           "--no-figures", "--filters", "matching", "--rate-hz", "8000", "--taps", "512", "--band-hz",
+                           "300", "900", *extra)
         assert r.returncode == 0, r.stderr
         runs[name] = json.loads((tmp_path / name / "zones.json").read_text())
     # the DTFT of band-limited sampled responses reproduces the free field below Nyquist
@@ -203,8 +199,8 @@ def test_measured_responses_give_the_free_field_design_when_they_are_the_free_fi
             runs["free"]["chosen"][method]["mean_contrast_db"], abs=0.05)
     assert runs["measured"]["filters"]["band_contrast_realised_db"] == pytest.approx(
         runs["free"]["filters"]["band_contrast_realised_db"], abs=0.5)
-    r = _cli(capsys, rig_path, "--bright", "seat-A", "--dark", "mics-B", "--out", tmp_path / "never",
-             "--irset", tmp_path / "irs")
+    r = arrayplan_main(capsys, "study", "zones", rig_path, "--bright", "seat-A", "--dark", "mics-B", "--out",
+                       tmp_path / "never", "--irset", tmp_path / "irs")
     assert r.returncode == 2 and "control points" in r.stderr and not (tmp_path / "never").exists()
 
 
@@ -244,8 +240,8 @@ reflection_order = 1
 
 
 def test_zones_in_a_room_use_the_room(tmp_path):
-    # first-order image sources written here with numpy (J. B. Allen and D. A. Berkley, JASA 65(4), 1979):
-    # the direct path and the six mirror images across the walls of the box [0, L], each
+    # first-order image sources written with numpy in tests/helpers.py (J. B. Allen and D. A. Berkley,
+    # JASA 65(4), 1979): the direct path and the six mirror images across the walls of the box [0, L], each
     # exp(-jkr) / (4 pi r) times the reflection coefficient beta = sqrt(1 - alpha); the acoustic contrast
     # of the study's weights is then mean |p_bright|^2 / mean |p_dark|^2 (Choi and Kim, JASA 111(4), 2002)
     path = tmp_path / "rig.toml"
@@ -257,21 +253,7 @@ def test_zones_in_a_room_use_the_room(tmp_path):
     assert study.kernel_name == "room"
     size, beta, c = np.array([4.0, 3.5, 2.6]), np.sqrt(1 - 0.5), rig.medium.speed_of_sound
     spk = rig.speakers.positions
-    images = [(spk, 1.0)]
-    for axis_i in range(3):
-        for wall in (0.0, size[axis_i]):
-            img = spk.copy()
-            img[:, axis_i] = 2 * wall - spk[:, axis_i]
-            images.append((img, beta))
-
-    def g(points):
-        out = 0
-        for img, amp in images:
-            r = np.linalg.norm(points[:, None] - img[None], axis=-1)
-            out = out + amp * np.exp(-2j * np.pi * axis.hz[:, None, None] / c * r) / (4 * np.pi * r)
-        return out
-
-    g_b, g_d = g(bright[0].positions), g(dark[0].positions)
+    g_b, g_d = (first_order_box_coupling(spk, zone[0].positions, axis.hz, size, beta, c) for zone in (bright, dark))
     for key, res in study.results.items():
         w = res.weights[0]
         e_b = np.mean(np.abs(np.einsum("fps,fs->fp", g_b, w)) ** 2, axis=1)

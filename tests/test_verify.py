@@ -10,7 +10,6 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from arrayplan.cli import main
 from arrayplan.frequency import FrequencyAxis
 from arrayplan.formats.irset import IRSet, read_irset, write_irset
 from arrayplan.kernels.measured import MeasuredKernel
@@ -20,6 +19,7 @@ from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import Rig
 from arrayplan.kernels.model_irs import free_field_irset
 from arrayplan.verification.channels import verify_plan
+from helpers import arrayplan_main
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
@@ -162,16 +162,10 @@ def test_common_reference_on_a_moved_rig_is_the_mean_db_offset(plan_dir, tmp_pat
     assert np.nanstd(res.gain_db) > 0.01
 
 
-def _run(capsys, *args):
-    code = main(["verify", *map(str, args)])
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
 def test_cli_pass_and_fail(plan_dir, tmp_path, capsys):
     good = _irset_dir(tmp_path, _rig(), "good")
     out = tmp_path / "v-good"
-    code, stdout, _ = _run(capsys, plan_dir, good, "--out", out, "--channels", "1,2,3")
+    code, stdout, _ = arrayplan_main(capsys, "verify", plan_dir, good, "--out", out, "--channels", "1,2,3")
     assert code == 0
     lines = [ln for ln in stdout.splitlines() if ln.startswith("channel ")]
     assert len(lines) == 3 and all(": PASS" in ln for ln in lines)
@@ -184,7 +178,7 @@ def test_cli_pass_and_fail(plan_dir, tmp_path, capsys):
     # 5 cm of microphone displacement (~0.5 wavelength at 3.5 kHz) ruins isolation
     rng = np.random.default_rng(9)
     bad = _irset_dir(tmp_path, _rig(rng.uniform(-0.05, 0.05, (4, 3))), "bad")
-    code, stdout, _ = _run(capsys, plan_dir, bad, "--out", tmp_path / "v-bad", "--window-ms", "20")
+    code, stdout, _ = arrayplan_main(capsys, "verify", plan_dir, bad, "--out", tmp_path / "v-bad", "--window-ms", "20")
     assert code == 1
     assert "FAIL" in stdout
     summary = list(csv.DictReader((tmp_path / "v-bad" / "verify-summary.csv").open()))
@@ -196,7 +190,7 @@ def test_cli_gain_reference_defaults_follow_the_units(plan_dir, tmp_path, capsys
     irs = free_field_irset(_rig(), FS, N)
     irs.data = irs.data * 0.02
     full_scale = _irset_dir(tmp_path, None, "fs", irs=irs)
-    code, stdout, _ = _run(capsys, plan_dir, full_scale, "--out", tmp_path / "v1", "--no-figures")
+    code, stdout, _ = arrayplan_main(capsys, "verify", plan_dir, full_scale, "--out", tmp_path / "v1", "--no-figures")
     assert code == 0
     doc = json.loads((tmp_path / "v1" / "verify.json").read_text())
     assert doc["gain_reference"] == "common" and "full_scale" in doc["gain_reference_reason"]
@@ -210,15 +204,15 @@ def test_cli_gain_reference_defaults_follow_the_units(plan_dir, tmp_path, capsys
     assert all(r["gain_db"] == "" and r["lost"] == "0" for r in rows if r["judged"] == "0")
     assert doc["judged_frequencies_hz"]["4"] == [pytest.approx(HZ[1])]
     calibrated = IRSet(irs.data, FS, irs.speaker_names, irs.mic_names, units="pascal_per_volt")
-    code, stdout, _ = _run(capsys, plan_dir, _irset_dir(tmp_path, None, "pv", irs=calibrated),
-                           "--out", tmp_path / "v2", "--no-figures", "--channels", "all")
+    code, stdout, _ = arrayplan_main(capsys, "verify", plan_dir, _irset_dir(tmp_path, None, "pv", irs=calibrated),
+                                     "--out", tmp_path / "v2", "--no-figures", "--channels", "all")
     assert code == 0
     doc = json.loads((tmp_path / "v2" / "verify.json").read_text())
     assert doc["gain_reference"] == "plan" and doc["channels"] == [1, 2, 3, 4]
     assert "gain reference: plan (the IR set is calibrated" in stdout
     assert "all 4 planned channels, each judged at every planned frequency" in stdout
-    code, stdout, _ = _run(capsys, plan_dir, full_scale, "--out", tmp_path / "v3", "--no-figures",
-                           "--gain-reference", "plan")
+    code, stdout, _ = arrayplan_main(capsys, "verify", plan_dir, full_scale, "--out", tmp_path / "v3", "--no-figures",
+                                     "--gain-reference", "plan")
     assert "median gain -33.98 dB re plan" in stdout
 
 
@@ -250,7 +244,7 @@ def test_cli_bad_input_exit_2_nothing_written(plan_dir, tmp_path, capsys, damage
     if damage == "silent":
         _rewrite_wav(folder, "spk-001.wav", lambda d, r: (np.zeros_like(d), r))
     out = tmp_path / "v"
-    code, stdout, err = _run(capsys, plan_dir, folder, "--out", out)
+    code, stdout, err = arrayplan_main(capsys, "verify", plan_dir, folder, "--out", out)
     assert code == 2
     assert len(err.strip().splitlines()) == 1 and message in err, err
     assert "Traceback" not in err and stdout == ""
@@ -261,7 +255,7 @@ def test_cli_rejects_plan_above_nyquist(tmp_path, capsys):
     plan = tmp_path / "plan"
     write_plan(plan_rig(_rig(), FrequencyAxis([1000.0, 9000.0])), plan, figures=False)
     irs = free_field_irset(_rig(), 16000.0, 1024)
-    code, _, err = _run(capsys, plan, _irset_dir(tmp_path, None, irs=irs), "--out", tmp_path / "v")
+    code, _, err = arrayplan_main(capsys, "verify", plan, _irset_dir(tmp_path, None, irs=irs), "--out", tmp_path / "v")
     assert code == 2 and "Nyquist" in err
     assert not (tmp_path / "v").exists()
 
@@ -276,7 +270,7 @@ def test_cli_rejects_plan_above_nyquist(tmp_path, capsys):
 def test_cli_bad_options_exit_2(plan_dir, tmp_path, capsys, flags, message):
     folder = _irset_dir(tmp_path, _rig())
     try:
-        code, _, err = _run(capsys, plan_dir, folder, "--out", tmp_path / "v", *flags)
+        code, _, err = arrayplan_main(capsys, "verify", plan_dir, folder, "--out", tmp_path / "v", *flags)
     except SystemExit as stop:  # argparse refuses the option before the command runs
         code, err = stop.code, capsys.readouterr().err
     assert code == 2 and message in err and len(err.strip().splitlines()) == 1, err

@@ -44,7 +44,13 @@ class PlaneGrid:
     v: np.ndarray
 
     def points(self) -> np.ndarray:
-        """Grid points, shape (nv * nu, 3), row-major over (v, u)."""
+        """Grid points, row-major over (v, u).
+
+        Returns
+        -------
+        ndarray, shape (nv * nu, 3)
+            Point coordinates (m); `u` runs fastest.
+        """
         i, j, k = _AXES[self.plane]
         uu, vv = np.meshgrid(self.u, self.v)
         pts = np.zeros((uu.size, 3))
@@ -63,6 +69,16 @@ def default_plane(rig: Rig, plane: str = "xz", offset: float | None = None, reso
 
     Parameters
     ----------
+    rig : Rig
+        The rig, positions in m.
+    plane : str
+        ``"xy"``, ``"xz"`` or ``"yz"``.
+    offset : float, optional
+        The plane's third coordinate (m); default the mean of the elements'
+        third coordinates.  In a room it must lie inside the room.
+    resolution : int
+        Points along the plane's first axis; the second gets as many as
+        keep the spacing about equal (at least 2).
     margin : float
         Growth of the bounding box on each side, as a fraction of its size
         (0.25 by default; larger values show spill and grating lobes beyond
@@ -70,6 +86,17 @@ def default_plane(rig: Rig, plane: str = "xz", offset: float | None = None, reso
     extent_m : (u_min, u_max, v_min, v_max), optional
         The grid's extent along the plane's two axes, m (for ``"xz"``: x then
         z); replaces the bounding box when given.
+
+    Returns
+    -------
+    PlaneGrid
+        The grid.
+
+    Raises
+    ------
+    InputError
+        An unknown plane, an offset outside the room, a bad extent or a
+        negative margin.
     """
     if plane not in _AXES:
         raise InputError(f"plane must be one of {', '.join(_AXES)}, got {plane!r}", field="plane")
@@ -103,6 +130,16 @@ def best_plane(rig: Rig) -> str:
 
     For two parallel line arrays facing each other this is the plane that
     contains both lines; for two facing grids, a plane through both.
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig, positions in m.
+
+    Returns
+    -------
+    str
+        ``"xy"``, ``"xz"`` or ``"yz"``.
     """
     pts = np.vstack([rig.speakers.positions, rig.mics.positions])
     spread = pts.max(axis=0) - pts.min(axis=0)
@@ -112,6 +149,18 @@ def best_plane(rig: Rig) -> str:
 
 def channel_field(rig: Rig, drive_weights: np.ndarray, frequency_hz: float, grid: PlaneGrid) -> np.ndarray:
     """Complex pressure over `grid` for speaker weights `drive_weights` (shape (n_spk,)).
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig; its room's image sources are used when it has one, else
+        the free field.
+    drive_weights : array_like, complex, shape (n_spk,)
+        Speaker weights, e.g. one column of a channel set's drive weights.
+    frequency_hz : float
+        Frequency (Hz).
+    grid : PlaneGrid
+        Where to evaluate the field (m).
 
     Returns
     -------

@@ -21,7 +21,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.spatial import ConvexHull, QhullError, cKDTree
 
 __all__ = ["PARAXIAL_RATIO", "ApertureShape", "aperture_shape", "ParaxialEstimate", "paraxial_estimate"]
 
@@ -54,8 +53,95 @@ class ApertureShape:
     extent: float
 
 
+#: Up to this many points, nearest neighbours are found from the full distance matrix (no KD-tree:
+#: scipy.spatial takes a fifth of a second to import, more than the search).
+_BRUTE_FORCE_POINTS = 1024
+
+
+def _nearest_neighbour_m(pos: np.ndarray) -> np.ndarray:
+    """Distance from each point to its nearest other point, m; `pos` shape (n, 3), n >= 2."""
+    if len(pos) <= _BRUTE_FORCE_POINTS:
+        d = np.sqrt(np.sum((pos[:, None, :] - pos[None, :, :]) ** 2, axis=-1))
+        np.fill_diagonal(d, np.inf)
+        return d.min(axis=1)
+    from scipy.spatial import cKDTree
+
+    return cKDTree(pos).query(pos, k=2)[0][:, 1]
+
+
+def convex_hull_2d(points: np.ndarray) -> np.ndarray:
+    """Vertices of the convex hull of 2-D points, counter-clockwise (Andrew's monotone chain).
+
+    Parameters
+    ----------
+    points : ndarray, shape (n, 2)
+
+    Returns
+    -------
+    ndarray, shape (h, 2)
+        The hull's corners without collinear points; fewer than 3 rows when
+        the points are all on one line (or fewer than 3 are distinct).
+
+    Notes
+    -----
+    A. M. Andrew, "Another efficient algorithm for convex hulls in two
+    dimensions", Information Processing Letters 9(5), 1979.
+    """
+    pts = np.unique(np.asarray(points, dtype=float), axis=0)     # sorted by x, then y
+    if len(pts) < 3:
+        return pts
+    xy = pts.tolist()
+
+    def half(seq):
+        chain: list = []
+        for p in seq:
+            while len(chain) >= 2 and ((chain[-1][0] - chain[-2][0]) * (p[1] - chain[-2][1])
+                                       - (chain[-1][1] - chain[-2][1]) * (p[0] - chain[-2][0])) <= 0:
+                chain.pop()
+            chain.append(p)
+        return chain
+
+    lower, upper = half(xy), half(reversed(xy))
+    return np.array(lower[:-1] + upper[:-1])
+
+
+def polygon_area_perimeter(vertices: np.ndarray) -> tuple[float, float]:
+    """Area (shoelace formula) and perimeter of a simple polygon.
+
+    Parameters
+    ----------
+    vertices : ndarray, shape (h, 2)
+        Corners in order (either sense), m.
+
+    Returns
+    -------
+    (float, float)
+        Area in m^2 and perimeter in m.
+    """
+    x, y = vertices[:, 0], vertices[:, 1]
+    area = 0.5 * abs(float(np.dot(x, np.roll(y, -1)) - np.dot(y, np.roll(x, -1))))
+    perimeter = float(np.sum(np.hypot(np.diff(x, append=x[0]), np.diff(y, append=y[0]))))
+    return area, perimeter
+
+
 def aperture_shape(positions: np.ndarray) -> ApertureShape:
-    """Classify `positions` (shape (n, 3), metres) as point, line, area or volume."""
+    """Classify `positions` (shape (n, 3), metres) as point, line, area or volume.
+
+    Principal axes come from the SVD of the centred positions; an extent
+    below 5 % of the largest counts as flat.
+
+    Parameters
+    ----------
+    positions : array_like, shape (n, 3)
+        Element positions (m).
+
+    Returns
+    -------
+    ApertureShape
+        For a line, the effective length (extent plus the median neighbour
+        spacing); for an area, the convex hull's area grown by half a
+        neighbour spacing all round (m^2).
+    """
     pos = np.asarray(positions, dtype=float)
     centre = pos.mean(axis=0)
     if len(pos) < 2:
@@ -63,17 +149,16 @@ def aperture_shape(positions: np.ndarray) -> ApertureShape:
     _, _, axes = np.linalg.svd(pos - centre, full_matrices=False)  # rows: principal axes (3 x 3; U is n x 3)
     proj = (pos - centre) @ axes.T
     extents = proj.max(axis=0) - proj.min(axis=0)
-    d = float(np.median(cKDTree(pos).query(pos, k=2)[0][:, 1]))
+    d = float(np.median(_nearest_neighbour_m(pos)))
     if extents[0] == 0:
         return ApertureShape("point", centre, np.zeros(3), 0.0, 0.0)
     if extents[1] <= _FLAT * extents[0]:
         return ApertureShape("line", centre, axes[0], float(extents[0] + d), float(extents[0]))
     if extents[2] <= _FLAT * extents[0]:
-        pts = proj[:, :2]
-        try:
-            hull = ConvexHull(pts)
-            area, perimeter = float(hull.volume), float(hull.area)
-        except QhullError:
+        hull = convex_hull_2d(proj[:, :2])
+        if len(hull) >= 3:
+            area, perimeter = polygon_area_perimeter(hull)
+        else:
             area, perimeter = float(extents[0] * extents[1]), float(2 * (extents[0] + extents[1]))
         return ApertureShape("area", centre, axes[2], area + perimeter * d / 2.0 + d * d, float(extents[0]))
     return ApertureShape("volume", centre, np.zeros(3), 0.0, float(extents[0]))

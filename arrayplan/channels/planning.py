@@ -49,10 +49,24 @@ class Plan:
 
     @property
     def strong_channels(self) -> np.ndarray:
+        """Channels within :attr:`threshold_db` of the strongest, per frequency.
+
+        Returns
+        -------
+        ndarray of int, shape (n_freq,)
+            Counts from :meth:`ChannelSet.strong_channels`.
+        """
         return self.channels.strong_channels(self.threshold_db)
 
     @property
     def usable_channels(self) -> np.ndarray:
+        """Channels above the noise floor at :attr:`snr_db`, per frequency.
+
+        Returns
+        -------
+        ndarray of int, shape (n_freq,)
+            Counts from :meth:`ChannelSet.usable_channels`.
+        """
         return self.channels.usable_channels(self.snr_db)
 
 

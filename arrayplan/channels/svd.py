@@ -91,56 +91,133 @@ class ChannelSet:
 
     @property
     def n_channels(self) -> int:
+        """Columns of the weight arrays.
+
+        Returns
+        -------
+        int
+            n_chan: min(n_mic, n_spk), or the largest count computed in a truncated plan.
+        """
         return int(self.singular_values.shape[1])
 
     @property
     def truncated(self) -> bool:
-        """True when only the strongest channels were computed (see ``computed``)."""
+        """Whether only the strongest channels were computed (see ``computed``).
+
+        Returns
+        -------
+        bool
+        """
         return self.computed is not None
 
     def channels_computed(self) -> np.ndarray:
-        """Channels computed at each frequency, shape (n_freq,) (all of them unless truncated)."""
+        """Channels computed at each frequency (all of them unless truncated).
+
+        Returns
+        -------
+        ndarray of int, shape (n_freq,)
+        """
         if self.computed is None:
             return np.full(len(self.axis), self.n_channels)
         return np.asarray(self.computed)
 
     def share_not_computed(self) -> np.ndarray:
-        """Share of the sum rule in the channels not computed, 1 - sum s^2 / sum |G|^2, shape (n_freq,).
+        """Share of the sum rule in the channels not computed, 1 - sum s^2 / sum |G|^2.
 
-        Zero up to rounding (about 1e-15) for a complete plan.
+        Returns
+        -------
+        ndarray, shape (n_freq,)
+            Between 0 and 1; zero up to rounding (about 1e-15) for a complete plan.
         """
         return np.clip(1.0 - np.sum(self.power_coupling, axis=1) / self.sum_rule, 0.0, 1.0)
 
     @property
     def power_coupling(self) -> np.ndarray:
-        """s^2, shape (n_freq, n_chan)."""
+        """Power coupling of each channel.
+
+        Returns
+        -------
+        ndarray, shape (n_freq, n_chan)
+            s_j^2, in the unit of |G|^2 (1/m^2 for the free field).
+        """
         return self.singular_values ** 2
 
     def share_of_sum_rule(self) -> np.ndarray:
-        """s_j^2 / sum |G|^2, shape (n_freq, n_chan)."""
+        """Each channel's share of the sum rule.
+
+        Returns
+        -------
+        ndarray, shape (n_freq, n_chan)
+            s_j^2 / sum |G|^2 (a fraction, not percent).
+        """
         return self.power_coupling / self.sum_rule[:, None]
 
     def level_db(self) -> np.ndarray:
-        """10 log10(s_j^2 / s_max^2) at each frequency, dB; -inf for a zero channel."""
+        """Each channel's level against the strongest at its frequency.
+
+        Returns
+        -------
+        ndarray, shape (n_freq, n_chan)
+            10 log10(s_j^2 / s_max^2), dB (0 for the strongest); -inf for a zero channel.
+        """
         p = self.power_coupling
         with np.errstate(divide="ignore"):
             return 10.0 * np.log10(p / p.max(axis=1, keepdims=True))
 
     def strong_channels(self, threshold_db: float = 3.0) -> np.ndarray:
-        """Number of channels within `threshold_db` of the strongest, per frequency."""
+        """Number of channels within `threshold_db` of the strongest, per frequency.
+
+        Parameters
+        ----------
+        threshold_db : float
+            Level below the strongest channel, dB (the sign is ignored).
+
+        Returns
+        -------
+        ndarray of int, shape (n_freq,)
+        """
         return np.sum(self.level_db() >= -abs(threshold_db) - 1e-12, axis=1)
 
     def usable_channels(self, snr_db: float = 40.0) -> np.ndarray:
-        """Channels above the noise floor when the strongest has an SNR of `snr_db`, per frequency."""
+        """Channels above the noise floor when the strongest has an SNR of `snr_db`, per frequency.
+
+        Parameters
+        ----------
+        snr_db : float
+            Signal-to-noise ratio of the strongest channel, dB (the sign is ignored).
+
+        Returns
+        -------
+        ndarray of int, shape (n_freq,)
+            Channels whose level is above -`snr_db`.
+        """
         return np.sum(self.level_db() > -abs(snr_db), axis=1)
 
     def effective_channels(self) -> np.ndarray:
-        """Participation ratio (sum s^2)^2 / sum s^4, per frequency."""
+        """Participation ratio (sum s^2)^2 / sum s^4, per frequency.
+
+        Returns
+        -------
+        ndarray, shape (n_freq,)
+            Between 1 (one channel holds everything) and n_chan (all equal).
+        """
         p = self.power_coupling
         return np.sum(p, axis=1) ** 2 / np.sum(p ** 2, axis=1)
 
     def channel_matrix(self, g: np.ndarray) -> np.ndarray:
-        """``combine^T G drive`` for coupling matrices `g` of shape (n_freq, n_mic, n_spk)."""
+        """The channel matrix ``combine^T G drive``: how the planned channels couple through `g`.
+
+        Parameters
+        ----------
+        g : ndarray, complex, shape (n_freq, n_mic, n_spk)
+            Coupling matrices at this set's frequencies (the planned kernel
+            gives diag(s); measured or perturbed ones show crosstalk).
+
+        Returns
+        -------
+        ndarray, complex, shape (n_freq, n_chan, n_chan)
+            Entry [f, i, j]: output of channel i when channel j is driven.
+        """
         return np.einsum("fmi,fms,fsj->fij", self.combine, g, self.drive)
 
 
@@ -262,6 +339,17 @@ def _track_in_place(s: np.ndarray, drive: np.ndarray, combine: np.ndarray, costs
 def track_channels(channels: ChannelSet) -> ChannelSet:
     """Order and phase-align channels from bin to bin (see module Notes).
 
+    Parameters
+    ----------
+    channels : ChannelSet
+        Channels as the SVD found them (not changed).
+
+    Returns
+    -------
+    ChannelSet
+        A copy with columns reordered and rotated in phase per frequency,
+        ``tracked=True``.
+
     Notes
     -----
     The overlaps of every pair of consecutive bins are computed at once, on
@@ -291,6 +379,7 @@ class _ChunkJob:
     floor_ratio: float
     single: bool = False           # decompose in complex64 (the full SVD only)
     track: bool = False            # also return the overlaps of consecutive bins (for tracking)
+    out: str | None = None         # key of SharedArrays to write the full SVD's results into, or None
 
 
 def _channels_of_chunk(job: _ChunkJob, item: tuple[np.ndarray, np.ndarray | None]):
@@ -299,14 +388,29 @@ def _channels_of_chunk(job: _ChunkJob, item: tuple[np.ndarray, np.ndarray | None
     Returns (s, drive, combine, sum_rule, computed, costs) for the chunk;
     with truncation, unused columns are zero and ``computed`` counts the
     rest; ``costs`` are the tracking overlaps within the chunk (or None).
+    With ``job.out`` the full SVD's s, drive, combine and costs are written
+    into those shared arrays at the chunk's rows instead (and None returned
+    in their place).
     """
-    hz, k_first = item
+    start, hz, k_first = item
     g = job.kernel.evaluate(hz)
     sum_rule = np.einsum("fms,fms->f", g.real, g.real) + np.einsum("fms,fms->f", g.imag, g.imag)
     if job.max_channels is None and not job.auto:
-        s, drive, combine = decompose_stack(g.astype(np.complex64) if job.single else g)
+        if job.single:
+            g = g.astype(np.complex64)
+        if job.out is None:
+            s, drive, combine = decompose_stack(g)
+            del g
+            return s, drive, combine, sum_rule, None, _overlap_costs(drive, combine) if job.track else None
+        from ..shared_arrays import arrays_for
+
+        out, rows = arrays_for(job.out), slice(start, start + len(hz))
+        u, out["s"][rows], vh = np.linalg.svd(g, full_matrices=False)
         del g
-        return s, drive, combine, sum_rule, None, _overlap_costs(drive, combine) if job.track else None
+        _phase_fixed_into(u, vh, out["drive"][rows], out["combine"][rows])
+        if job.track and len(hz) > 1:
+            out["costs"][start:start + len(hz) - 1] = _overlap_costs(out["drive"][rows], out["combine"][rows])
+        return None, None, None, sum_rule, None, None
     from .topk import leading_triplets, triplets_above_floor
 
     parts = [triplets_above_floor(g[f], int(k_first[f]), job.floor_ratio) if job.auto
@@ -378,7 +482,21 @@ AUTO_PARALLEL_WORK = 1e8
 
 
 def workers_for(n_freq: int, n_mic: int, n_spk: int, workers: int | None) -> int:
-    """The worker count to use: `workers`, or for None all cores when the job is large enough."""
+    """The worker count to use: `workers`, or for None all cores when the job is large enough.
+
+    Parameters
+    ----------
+    n_freq, n_mic, n_spk : int
+        Size of the job: frequencies, microphones, speakers.
+    workers : int or None
+        The count asked for; None decides from the job's size
+        (:data:`AUTO_PARALLEL_WORK` multiply-adds or more: every core).
+
+    Returns
+    -------
+    int
+        Worker processes, at least 1.
+    """
     if workers is not None:
         return int(workers)
     from ..parallel import available_cores
@@ -467,7 +585,7 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
         first = np.full(len(hz), np.nan) if first_guess is None else np.asarray(first_guess, dtype=float)
         guess = np.where(np.isfinite(first), np.ceil(1.5 * np.nan_to_num(first) + 8), 16).astype(int)
     starts = range(0, len(hz), chunk_size)
-    items = [(hz[a:a + chunk_size], None if guess is None else guess[a:a + chunk_size]) for a in starts]
+    items = [(a, hz[a:a + chunk_size], None if guess is None else guess[a:a + chunk_size]) for a in starts]
     if precision not in ("double", "single"):
         raise InputError(f"expected 'double' or 'single', got {precision!r}", field="precision")
     single = precision == "single" and fixed is None and not auto
@@ -483,35 +601,51 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
 
 def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progress):
     """Run the chunks and put their results in frequency order (see :func:`decompose`)."""
-    from ..parallel import iter_chunks, one_blas_thread
+    from ..parallel import iter_chunks, one_blas_thread, resolve_scheduler
+    from ..shared_arrays import SharedArrays
 
-    starts = np.cumsum([0] + [len(it[0]) for it in items])
+    starts = np.cumsum([0] + [len(it[1]) for it in items])
     sum_rule = np.empty(n_freq)
-    costs = None
+    costs, shared = None, None
     if auto:  # the channel count is known only at the end: keep the chunks, then pad
         parts: list = [None] * len(items)
     else:
         real, cplx = (np.float32, np.complex64) if job.single else (float, complex)
-        s = np.empty((n_freq, k), dtype=real)
-        drive = np.empty((n_freq, n_spk, k), dtype=cplx)
-        combine = np.empty((n_freq, n_mic, k), dtype=cplx)
-        computed = None if job.max_channels is None else np.full(n_freq, k)
+        specs = {"s": ((n_freq, k), real), "drive": ((n_freq, n_spk, k), cplx), "combine": ((n_freq, n_mic, k), cplx)}
         if job.track:
-            costs = np.empty((max(0, n_freq - 1), k, k))
-    freq_done = 0
-    for i, (s_c, d_c, c_c, sr_c, comp_c, cost_c) in iter_chunks(_channels_of_chunk, items, shared=job,
-                                                                workers=workers, scheduler=scheduler):
-        a, b = starts[i], starts[i + 1]
-        sum_rule[a:b] = sr_c
-        freq_done += len(sr_c)
-        if auto:
-            parts[i] = (s_c, d_c, c_c, comp_c)
+            specs["costs"] = ((max(0, n_freq - 1), k, k), float)
+        # the full SVD's results are written in place by the chunks: shared with local workers
+        # (no transfer through pipes), plain memory here; a Dask cluster sends them back
+        if job.max_channels is None and resolve_scheduler(scheduler) is None:
+            try:
+                shared = SharedArrays(specs, in_memory=workers == 1 or len(items) <= 1)
+            except OSError:            # no room for the shared file: results come back through pipes
+                shared = None
+        if shared is not None:
+            job = replace(job, out=shared.key)
+            out = shared.arrays
         else:
-            s[a:b], drive[a:b], combine[a:b] = s_c, d_c, c_c
-            if costs is not None:
-                costs[a:b - 1] = cost_c
-        if progress is not None:
-            progress(freq_done, n_freq)
+            out = {name: np.empty(shape, dtype=dtype) for name, (shape, dtype) in specs.items()}
+        s, drive, combine, costs = out["s"], out["drive"], out["combine"], out.get("costs")
+        computed = None if job.max_channels is None else np.full(n_freq, k)
+    freq_done = 0
+    try:
+        for i, (s_c, d_c, c_c, sr_c, comp_c, cost_c) in iter_chunks(_channels_of_chunk, items, shared=job,
+                                                                    workers=workers, scheduler=scheduler):
+            a, b = starts[i], starts[i + 1]
+            sum_rule[a:b] = sr_c
+            freq_done += len(sr_c)
+            if auto:
+                parts[i] = (s_c, d_c, c_c, comp_c)
+            elif s_c is not None:
+                s[a:b], drive[a:b], combine[a:b] = s_c, d_c, c_c
+                if costs is not None:
+                    costs[a:b - 1] = cost_c
+            if progress is not None:
+                progress(freq_done, n_freq)
+    finally:
+        if shared is not None:
+            shared.close()
     if not auto:
         if costs is not None:   # the seams between chunks
             with one_blas_thread():

@@ -23,7 +23,8 @@ __all__ = ["csv_names", "octaves", "finite_float", "positive_float", "nonnegativ
            "add_measured_kernel_options", "measured_kernel_from_args", "add_memory_limit",
            "text_with_flags", "error_with_flags", "say", "command_parser", "parameter_flags",
            "DefaultsShown", "accept_old_spelling", "renamed_options", "positive_floats", "FlatList",
-           "add_sweep_options", "add_exposure_options", "add_frequencies_option"]
+           "add_sweep_options", "add_exposure_options", "add_frequencies_option", "command_description",
+           "add_command_group", "add_output_folder_options", "add_plan_or_rig_argument"]
 
 #: Highest count any option accepts before a command's own size estimate (repeats, bursts, channels...).
 MAX_COUNT = 1_000_000
@@ -252,6 +253,51 @@ def renamed_options(parser: argparse.ArgumentParser) -> dict[str, str]:
     """Old spelling -> new option of `parser` (not its sub-commands)."""
     return {name: max(a.option_strings, key=len) for name, a in parser._option_string_actions.items()
             if name not in a.option_strings}
+
+
+def command_description(doc: str) -> str:
+    """A command's ``--help`` description: the second paragraph of its module's docstring, on one line."""
+    return " ".join(doc.split("\n\n")[1].split())
+
+
+def add_command_group(sub: argparse._SubParsersAction, name: str, doc: str, *, dest: str, metavar: str,
+                      **defaults: Any) -> argparse._SubParsersAction:
+    """A command made of sub-commands (``arrayplan study ...``); returns the action that takes them.
+
+    Parameters
+    ----------
+    sub : argparse._SubParsersAction
+        Where the command is added.
+    name : str
+        The command's name.
+    doc : str
+        The command module's docstring; its second paragraph is the description.
+    dest, metavar : str
+        Attribute that receives the sub-command's name, and its placeholder in the usage line.
+    **defaults
+        Attributes every sub-command's namespace gets (``run=...``), as ``set_defaults``.
+
+    Returns
+    -------
+    argparse._SubParsersAction
+        Add the sub-commands to it; one of them is required.
+    """
+    p = sub.add_parser(name, description=command_description(doc))
+    p.set_defaults(**defaults)
+    actions = p.add_subparsers(dest=dest, metavar=metavar, parser_class=type(p))
+    actions.required = True
+    return actions
+
+
+def add_plan_or_rig_argument(p: argparse.ArgumentParser) -> None:
+    """The ``source`` positional of the studies: a plan folder or a rig file that they plan themselves."""
+    p.add_argument("source", metavar="PLAN_DIR|RIG", help="plan folder (from 'arrayplan plan') or rig file (TOML)")
+
+
+def add_output_folder_options(p: argparse.ArgumentParser, tables_only: str = "write tables only") -> None:
+    """``--out`` (a new folder, published whole) and ``--no-figures`` (its help says what is still written)."""
+    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+    p.add_argument("--no-figures", action="store_true", help=tables_only)
 
 
 def add_memory_limit(p: argparse.ArgumentParser) -> None:

@@ -1,5 +1,8 @@
 """``arrayplan calibrate``: create and show calibration records (TOML).
 
+Calibration records (TOML, documented in calibration/README.md) give measured impulse responses
+physical units and supply the interface latency.
+
 Sub-commands: ``mic`` (sensitivity from a calibrator recording), ``output``
 (full-scale voltage of an output from a tone recorded on a known input),
 ``latency`` (round trip through a loopback cable, measured live), ``show``.
@@ -13,7 +16,7 @@ import math
 import sys
 
 from ..errors import InputError
-from ._args import accept_old_spelling, channel_number, dbfs_level, float_in, positive_float
+from ._args import accept_old_spelling, add_command_group, channel_number, dbfs_level, float_in, positive_float
 
 __all__ = ["register", "run_mic", "run_output", "run_latency", "run_show"]
 
@@ -41,12 +44,7 @@ def _add_full_scale(p: argparse.ArgumentParser, what: str) -> None:
 
 
 def register(subparsers: argparse._SubParsersAction) -> None:
-    p = subparsers.add_parser(
-        "calibrate",
-        description="Calibration records (TOML, documented in calibration/README.md) give measured impulse "
-                    "responses physical units and supply the interface latency.")
-    sub = p.add_subparsers(dest="calibrate_command", metavar="WHAT", parser_class=type(p))
-    sub.required = True
+    sub = add_command_group(subparsers, "calibrate", __doc__, dest="calibrate_command", metavar="WHAT")
 
     m = sub.add_parser("mic", help="microphone sensitivity from a recording of an acoustic calibrator",
                        description="Record the calibrator seated on the microphone (a few seconds, the input gain "
@@ -111,8 +109,8 @@ def register(subparsers: argparse._SubParsersAction) -> None:
 
 
 def run_mic(args: argparse.Namespace) -> int:
-    from ..hardware.calibration import (mic_from_calibrator_recording, read_or_new,
-                                        sensitivity_db_re_1v_per_pa, write_calibration)
+    from ..formats.calibration_record import read_or_new, write_calibration
+    from ..hardware.calibration import mic_from_calibrator_recording, sensitivity_db_re_1v_per_pa
 
     rec = read_or_new(args.record, args.description)
     mic = mic_from_calibrator_recording(
@@ -128,7 +126,8 @@ def run_mic(args: argparse.Namespace) -> int:
 
 
 def run_output(args: argparse.Namespace) -> int:
-    from ..hardware.calibration import output_from_loopback_recording, read_or_new, write_calibration
+    from ..formats.calibration_record import read_or_new, write_calibration
+    from ..hardware.calibration import output_from_loopback_recording
 
     rec = read_or_new(args.record, args.description)
     out = output_from_loopback_recording(
@@ -142,7 +141,7 @@ def run_output(args: argparse.Namespace) -> int:
 
 
 def run_latency(args: argparse.Namespace) -> int:
-    from ..hardware.calibration import LatencyCalibration, now_utc, read_or_new, write_calibration
+    from ..formats.calibration_record import LatencyCalibration, now_utc, read_or_new, write_calibration
     from ..hardware.duplex import SoundDeviceLink
     from ..hardware.measure import estimate_latency
     from ..safety import print_caution
@@ -173,7 +172,8 @@ def run_latency(args: argparse.Namespace) -> int:
 
 
 def run_show(args: argparse.Namespace) -> int:
-    from ..hardware.calibration import read_calibration, sensitivity_db_re_1v_per_pa
+    from ..formats.calibration_record import read_calibration
+    from ..hardware.calibration import sensitivity_db_re_1v_per_pa
 
     rec = read_calibration(args.record)
     print(f"{args.record}: {rec.description}".rstrip(": "))

@@ -1,20 +1,21 @@
-"""``arrayplan check-rig``: check a rig file and explain each problem in plain words."""
+"""``arrayplan check-rig``: check a rig file and explain each problem in plain words.
+
+List every problem in a rig file at once (syntax, keys, values, positions, CSV files), then what
+will go wrong physically (spacing against the wavelength, near field, elements facing away, sample
+rate, missing calibration). Exit status 0: no errors; 1: warnings with --strict; 2: errors.
+"""
 
 from __future__ import annotations
 
 import argparse
 
 from ..rigcheck import check_rig_file, count_by_severity
-from ._args import add_memory_limit, say
+from ._args import add_memory_limit, command_description, say
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("check-rig",
-                       description="List every problem in a rig file at once (syntax, keys, values, positions, "
-                                   "CSV files), then what will go wrong physically (spacing against the "
-                                   "wavelength, near field, elements facing away, sample rate, missing "
-                                   "calibration). Exit status 0: no errors; 1: warnings with --strict; "
-                                   "2: errors.")
+                       description=command_description(__doc__))
     p.add_argument("rig", metavar="RIG.toml", help="rig file (TOML)")
     p.add_argument("--strict", action="store_true", help="exit with status 1 when there are warnings")
     add_memory_limit(p)

@@ -1,4 +1,10 @@
-"""``arrayplan compare``: two or more layouts side by side on the same frequencies."""
+"""``arrayplan compare``: two or more layouts side by side on the same frequencies.
+
+Compare two or more layouts (rig files, planned here, or plan folders) on the same frequencies:
+strong, usable and effective channel counts, the paraxial estimate, element counts, aperture sizes
+and optionally capacity at an SNR. Writes a table, per-frequency values and an overlaid figure to
+--out.
+"""
 
 from __future__ import annotations
 
@@ -13,21 +19,19 @@ from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, w
 from ..frequency import FrequencyAxis
 from ..channels.planning import plan_rig
 from ..formats.plan_folder import read_plan
+from ..formats.study_sidecars import stamp_study_sidecar
 from ..progress import ProgressBar
 from ..rig import load_rig
-from ._args import add_frequencies_option
+from ._args import add_frequencies_option, add_output_folder_options, command_description
 from ..studies._common import REFERENCE_SNR_MEANING, STRONGEST_SNR_MEANING
 from ..studies._tables import csv_text as _csv
 
 
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("compare", help="compare layouts: counts, apertures, capacity, one table",
-                       description="Compare two or more layouts (rig files, planned here, or plan folders) on the "
-                                   "same frequencies: strong, usable and effective channel counts, the paraxial "
-                                   "estimate, element counts, aperture sizes and optionally capacity at an SNR. "
-                                   "Writes a table, per-frequency values and an overlaid figure to --out.")
+                       description=command_description(__doc__))
     p.add_argument("layouts", nargs="+", metavar="RIG_OR_PLAN", help="rig files (TOML) or plan folders")
-    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+    add_output_folder_options(p)
     add_frequencies_option(p, "compare", "the first layout's frequencies")
     p.add_argument("--reference-snr-db", type=float, metavar="DB",
                    help="also give the capacity at this reference SNR: at a microphone 1 m from one speaker in "
@@ -36,7 +40,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--threshold-db", type=float, help="strong-channel threshold for rigs planned here, dB")
     p.add_argument("--snr-db", type=float, help="SNR of the strongest channel for the usable count of rigs planned "
                                                 "here, dB (as in 'arrayplan plan'; not the reference SNR)")
-    p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)
 
 
@@ -96,7 +99,7 @@ def run(args: argparse.Namespace) -> int:
               "effective channels": np.array([s.effective for s in comparison.layouts])}
     if args.reference_snr_db is not None:
         series["capacity (bit/s/Hz)"] = np.array([s.capacity for s in comparison.layouts])
-    doc = {"kind": "arrayplan-comparison", "provenance": provenance(), "frequencies_hz": hz,
+    doc = {"provenance": provenance(), "frequencies_hz": hz,
            "reference_snr_db": args.reference_snr_db, "reference_snr": REFERENCE_SNR_MEANING,
            "usable_snr": STRONGEST_SNR_MEANING, "header": head, "rows": rows,
            "layouts": [{"name": s.name, "source": s.source, "kernel": s.kernel} for s in comparison.layouts]}
@@ -105,7 +108,7 @@ def run(args: argparse.Namespace) -> int:
         write_text_atomic(stage / "compare-by-frequency.csv", _csv(
             ["layout", "frequency_hz", "strong", "usable", "effective", "paraxial_estimate", "capacity_bit_per_s_hz"],
             per_f))
-        write_json_atomic(stage / "compare.json", doc)
+        write_json_atomic(stage / "compare.json", stamp_study_sidecar(doc, "comparison"))
         if not args.no_figures:
             from ..plots.layout import plot_comparison
             plot_comparison(hz, [s.name for s in comparison.layouts], series).savefig(stage / "compare.png", dpi=120)

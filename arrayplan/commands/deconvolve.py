@@ -35,7 +35,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ._args import accept_old_spelling, count, finite_float, nonnegative_float, positive_float
+from ._args import accept_old_spelling, command_description, count, finite_float, nonnegative_float, positive_float
 from ._args import csv_names as _csv_names
 from ..errors import InputError
 from ..formats.deconvolution_summary import SUMMARY_FILE
@@ -161,7 +161,7 @@ def _run(args: argparse.Namespace) -> int:
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add the ``deconvolve`` command."""
     p = subparsers.add_parser("deconvolve",
-                              description=__doc__.split("\n\n")[1].replace("\n", " "))
+                              description=command_description(__doc__))
     p.add_argument("recordings", nargs="+", type=Path, metavar="RECORDING.wav",
                    help="one WAV per speaker (channels = microphones), or one recording of a schedule or probe")
     p.add_argument("--sweep", required=True, type=Path, metavar="SWEEP.json",

@@ -10,7 +10,8 @@ import matplotlib
 import numpy as np
 
 from ..errors import InputError
-from ..filters import check_filters, design_filters, validate_request, write_filters
+from ..filters import check_filters, design_filters, validate_request
+from ..formats.filter_set import write_filter_set
 from ..filters.source import DesignSource, read_plan_record, source_from_plan, source_from_rig
 from ..filters.taps_search import MAX_AUTO_TAPS, TapsTrial, first_taps, search_taps
 from ..formats.irset import read_irset
@@ -200,7 +201,7 @@ def run(args: argparse.Namespace) -> int:
         if not args.no_check:
             with ProgressBar("checking crosstalk") as check_bar:
                 check = check_filters(source.kernel, filters, limit_db=limit, progress=check_bar)
-    files = write_filters(source, filters, args.out, check)
+    files = write_filter_set(source, filters, args.out, check)
     fs = filters.sample_rate_hz
     print(f"{source.name}: {len(filters.kept)} channels with filters, {filters.taps} taps at {fs:g} Hz, "
           f"bulk delay {filters.bulk_delay_samples} samples ({1e3 * filters.bulk_delay_samples / fs:.2f} ms), "

@@ -1,4 +1,8 @@
-"""``arrayplan irset``: convert IR sets between folders and AES69 (SOFA) files, and summarise them."""
+"""``arrayplan irset``: convert IR sets between folders and AES69 (SOFA) files, and summarise them.
+
+Work with impulse-response sets: IR-set folders (irset.json plus one WAV per speaker) and AES69
+(SOFA) files, told apart by the '.sofa' ending.
+"""
 
 from __future__ import annotations
 
@@ -7,6 +11,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ._args import add_command_group
 from ..errors import InputError
 from ..formats.irset import IRSet, read_irset, write_irset
 from ..formats.irset_sofa import write_irset_sofa
@@ -18,11 +23,7 @@ MAX_LISTED_NAMES = 12
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("irset",
-                       description="Work with impulse-response sets: IR-set folders (irset.json plus one WAV "
-                                   "per speaker) and AES69 (SOFA) files, told apart by the '.sofa' ending.")
-    actions = p.add_subparsers(dest="irset_action", metavar="ACTION", parser_class=type(p))
-    actions.required = True
+    actions = add_command_group(sub, "irset", __doc__, dest="irset_action", metavar="ACTION")
     conv = actions.add_parser("convert", help="copy an IR set from SRC to DST, SOFA file <-> IR-set folder",
                               description="Read SRC (a .sofa file or an IR-set folder) and write it to DST (a .sofa "
                                           "file or an IR-set folder). Names, positions, units, latency removed, zero "

@@ -279,7 +279,7 @@ def _truth_errors(args: argparse.Namespace):
 
 
 def run(args: argparse.Namespace) -> int:
-    from ..hardware.calibration import read_calibration
+    from ..formats.calibration_record import read_calibration
     from ..hardware.measure import MeasurementSettings, RigWiring, measure
     from ..rig import load_rig
     from ..safety import print_caution

@@ -5,8 +5,6 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-import matplotlib
-
 import numpy as np
 
 from ..errors import InputError
@@ -14,7 +12,7 @@ from ..formats.irset import IRSet, read_irset
 from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
 from ._args import (accept_old_spelling, add_frequencies_option, add_measured_kernel_options, add_memory_limit,
-                    count, float_in, measured_kernel_from_args, positive_float)
+                    add_output_folder_options, count, float_in, measured_kernel_from_args, positive_float)
 from ..frequency import FrequencyAxis
 from ..rig.medium import speed_of_sound_air
 from ..channels.svd import chunk_for_budget
@@ -30,7 +28,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                        description="Plan the independent channels of a speaker/microphone rig at each "
                                    "frequency and write tables, weights and figures to --out.")
     p.add_argument("rig", nargs="?", help="rig file (TOML); omit to use --speakers/--mics")
-    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+    add_output_folder_options(p, "write tables and weights only")
     p.add_argument("--speakers", help="CSV of speaker positions (header x,y,z[,name]) in metres")
     p.add_argument("--mics", help="CSV of microphone positions (header x,y,z[,name]) in metres")
     add_frequencies_option(p, "plan", "the rig file's [frequencies]")
@@ -68,7 +66,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_measured_kernel_options(p, prefix="with --irset: ")
     p.add_argument("--free-field", action="store_true",
                    help="plan in the free field even when the rig file has a [room] table")
-    p.add_argument("--no-figures", action="store_true", help="write tables and weights only")
     add_memory_limit(p)
     accept_old_spelling(p, "--speed-of-sound-m-s", "--speed-of-sound")
     p.set_defaults(run=run)
@@ -165,7 +162,10 @@ def check_plan_size(rig: Rig, n_freq: int, chunk_size: int, n_chan: int | None =
 
 
 def run(args: argparse.Namespace) -> int:
-    matplotlib.use("Agg")
+    if not args.no_figures:       # matplotlib loads only when figures are drawn
+        import matplotlib
+
+        matplotlib.use("Agg")
     rig = rig_from_args(args)
     kernel = None
     if args.irset:

@@ -22,9 +22,9 @@ from typing import Any
 
 import numpy as np
 
-from ._args import (MAX_CHANNEL_NUMBER, FlatList, accept_old_spelling, add_exposure_options, add_memory_limit,
-                    add_sweep_options, count, dbfs_level, finite_float, nonnegative_count, nonnegative_float,
-                    positive_float, positive_floats, say)
+from ._args import (MAX_CHANNEL_NUMBER, FlatList, accept_old_spelling, add_command_group, add_exposure_options,
+                    add_memory_limit, add_sweep_options, count, dbfs_level, finite_float, nonnegative_count,
+                    nonnegative_float, positive_float, positive_floats, say)
 from ._args import csv_names as _csv_names
 from ..limits import check_memory
 from ..errors import InputError
@@ -112,6 +112,13 @@ def _add_level(p: argparse.ArgumentParser, fade_in: float | None, fade_out: floa
                    help="its order (2: 12 dB per octave)")
     g.add_argument("--pad-before-s", type=nonnegative_float, default=_SWEEP.pad_before_s, metavar="S",
                    help="silence before the signal, s")
+
+
+def _add_playable(p: argparse.ArgumentParser, fade_in: float | None, fade_out: float | None) -> None:
+    """The options of a signal meant for a speaker: level and fades, the output file, the exposure check."""
+    _add_level(p, fade_in, fade_out)
+    _add_output(p)
+    _add_exposure(p)
 
 
 def _add_exposure(p: argparse.ArgumentParser) -> None:
@@ -221,38 +228,40 @@ def _build_sweep(args: argparse.Namespace, src: str) -> dict[str, Any]:
             "active": sw.sweep[:, None], "active_basis": "the sweep without the silence before and after it"}
 
 
+def _one_channel(raw: np.ndarray, args: argparse.Namespace, src: str, kind: str, active_basis: str,
+                 parameters: dict[str, Any]) -> dict[str, Any]:
+    """A one-channel signal: `raw` faded, levelled and checked, then padded; with its sidecar entries."""
+    active = _finish(raw, args, src)
+    x = _pad(active, args.pad_before_s, args.pad_after_s, args.rate_hz, src)
+    return {"signal": x, "kind": kind, "combine": "coherent", "channel_names": ["S1"], "active": active,
+            "active_basis": active_basis, "parameters": parameters}
+
+
 def _build_noise(args: argparse.Namespace, src: str) -> dict[str, Any]:
     raw = band_limited_noise(args.colour, args.duration_s, args.rate_hz, args.f1_hz, _f2(args),
                              seed=args.seed, source=src)
-    active = _finish(raw, args, src)
-    x = _pad(active, args.pad_before_s, args.pad_after_s, args.rate_hz, src)
-    return {"signal": x, "kind": f"{args.colour}_noise", "combine": "coherent", "channel_names": ["S1"],
-            "active": active, "active_basis": "the noise without the silence before and after it",
-            "parameters": {"colour": args.colour, "f1_hz": args.f1_hz, "f2_hz": _f2(args),
-                           "duration_s": args.duration_s, "seed": args.seed}}
+    return _one_channel(raw, args, src, f"{args.colour}_noise", "the noise without the silence before and after it",
+                        {"colour": args.colour, "f1_hz": args.f1_hz, "f2_hz": _f2(args),
+                         "duration_s": args.duration_s, "seed": args.seed})
 
 
 def _build_tones(args: argparse.Namespace, src: str) -> dict[str, Any]:
     raw = stepped_tones(args.freqs_hz, args.tone_s, args.gap_s, args.rate_hz, args.fade_in_s, source=src)
-    active = _finish(raw, args, src)
-    x = _pad(active, args.pad_before_s, args.pad_after_s, args.rate_hz, src)
-    return {"signal": x, "kind": "stepped_tones", "combine": "coherent", "channel_names": ["S1"],
-            "active": active, "active_basis": "from the first tone's start to the last tone's end, the gaps "
-                                              "between tones included, without the silence before and after",
-            "parameters": {"freqs_hz": args.freqs_hz, "tone_s": args.tone_s, "gap_s": args.gap_s,
-                           "tone_fade_s": args.fade_in_s}}
+    return _one_channel(raw, args, src, "stepped_tones",
+                        "from the first tone's start to the last tone's end, the gaps between tones included, "
+                        "without the silence before and after",
+                        {"freqs_hz": args.freqs_hz, "tone_s": args.tone_s, "gap_s": args.gap_s,
+                         "tone_fade_s": args.fade_in_s})
 
 
 def _build_bursts(args: argparse.Namespace, src: str) -> dict[str, Any]:
     raw = tone_bursts(args.freq_hz, args.cycles, args.period_s, args.count, args.rate_hz,
                       fade_cycles=args.fade_cycles, source=src)
-    active = _finish(raw, args, src)
-    x = _pad(active, args.pad_before_s, args.pad_after_s, args.rate_hz, src)
-    return {"signal": x, "kind": "tone_bursts", "combine": "coherent", "channel_names": ["S1"],
-            "active": active, "active_basis": "from the first burst's start to the last period's end, the "
-                                              "silences between bursts included, without the padding",
-            "parameters": {"freq_hz": args.freq_hz, "cycles": args.cycles, "period_s": args.period_s,
-                           "count": args.count, "fade_cycles": args.fade_cycles}}
+    return _one_channel(raw, args, src, "tone_bursts",
+                        "from the first burst's start to the last period's end, the silences between bursts "
+                        "included, without the padding",
+                        {"freq_hz": args.freq_hz, "cycles": args.cycles, "period_s": args.period_s,
+                         "count": args.count, "fade_cycles": args.fade_cycles})
 
 
 def _build_silence(args: argparse.Namespace, src: str) -> dict[str, Any]:
@@ -457,24 +466,20 @@ def _run(args: argparse.Namespace) -> int:
 
 def register(subparsers: argparse._SubParsersAction) -> None:
     """Add the ``signal`` command and its sub-commands."""
-    p = subparsers.add_parser("signal",
-                              description=__doc__.split("\n\n")[1].replace("\n", " "))
-    sub = p.add_subparsers(dest="signal", metavar="KIND")
-    sub.required = True
+    flags = {"sample_rate_hz": "--rate-hz", "amp_vrms_full_scale": "--amp-vrms",
+             "distances_m": "--listener-distance-m", "fade_s": "--fade-in-s"}
+    sub = add_command_group(subparsers, "signal", __doc__, dest="signal", metavar="KIND", run=_run,
+                            parameter_flags=flags)
 
     s = sub.add_parser("sweep", help="exponential or linear sine sweep, with its inverse filter")
     _add_sweep(s)
-    _add_level(s, None, None)
-    _add_output(s)
-    _add_exposure(s)
+    _add_playable(s, None, None)
 
     s = sub.add_parser("noise", help="band-limited pink or white noise")
     s.add_argument("--colour", choices=NOISE_COLOURS, default="pink", help="spectrum (default: pink)")
     s.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), help="random seed, for a reproducible file")
     _add_sweep(s, kind=False, what="noise")
-    _add_level(s, 0.05, 0.05)
-    _add_output(s)
-    _add_exposure(s)
+    _add_playable(s, 0.05, 0.05)
 
     s = sub.add_parser("tones", help="stepped steady tones separated by silence")
     s.add_argument("--freqs-hz", type=positive_floats, nargs="+", action=FlatList, required=True, metavar="HZ",
@@ -483,9 +488,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--gap-s", type=nonnegative_float, default=0.5, help="silence between tones, s (default: 0.5)")
     s.add_argument("--pad-after-s", type=nonnegative_float, default=0.1,
                    help="silence after the last tone, s (default: 0.1)")
-    _add_level(s, 0.01, 0.01)
-    _add_output(s)
-    _add_exposure(s)
+    _add_playable(s, 0.01, 0.01)
 
     s = sub.add_parser("bursts", help="tone bursts: a few periods of a tone, repeated")
     s.add_argument("--freq-hz", type=positive_float, required=True, help="tone frequency, Hz")
@@ -497,9 +500,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--count", type=count(), default=8, help="number of bursts (default: 8)")
     s.add_argument("--pad-after-s", type=nonnegative_float, default=0.1,
                    help="silence after the last burst, s (default: 0.1)")
-    _add_level(s, 0.001, 0.001)
-    _add_output(s)
-    _add_exposure(s)
+    _add_playable(s, 0.001, 0.001)
 
     s = sub.add_parser("silence", help="silence, for padding a playlist or recording the noise floor")
     s.add_argument("--duration-s", type=positive_float, default=1.0, help="duration, s (default: 1)")
@@ -510,9 +511,7 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--speakers", type=count(MAX_CHANNEL_NUMBER), help="number of speakers (channels, rig order)")
     s.add_argument("--speaker-names", type=_csv_names, help="speaker names, comma-separated (default: S1, S2, ...)")
     _add_sweep(s)
-    _add_level(s, None, None)
-    _add_output(s)
-    _add_exposure(s)
+    _add_playable(s, None, None)
 
     s = sub.add_parser("probe", help="one planned channel: a sweep or noise through its drive filters, "
                                      "all speakers at once")
@@ -526,9 +525,5 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     s.add_argument("--channel-name", help="name of the channel in the sidecar (default: the filter file's stem)")
     s.add_argument("--seed", type=nonnegative_count(2 ** 32 - 1), help="random seed for a noise source")
     _add_sweep(s)
-    _add_level(s, None, None)
-    _add_output(s)
-    _add_exposure(s)
+    _add_playable(s, None, None)
 
-    p.set_defaults(run=_run, parameter_flags={"sample_rate_hz": "--rate-hz", "amp_vrms_full_scale": "--amp-vrms",
-                                              "distances_m": "--listener-distance-m", "fade_s": "--fade-in-s"})

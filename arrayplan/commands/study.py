@@ -1,5 +1,7 @@
 """``arrayplan study``: design studies of a plan or rig, one sub-command per study module.
 
+Design studies of a plan or rig. Each writes tables, a JSON sidecar and figures to its --out folder.
+
 Each module listed in :data:`STUDY_MODULES` defines ``register(actions)``,
 which adds its parser to the ``study`` sub-commands and sets ``run=...``.
 """
@@ -8,6 +10,8 @@ from __future__ import annotations
 
 import argparse
 import importlib
+
+from ._args import add_command_group
 
 #: Study command modules, in the order ``arrayplan study --help`` lists them.
 STUDY_MODULES: tuple[str, ...] = (
@@ -19,10 +23,6 @@ STUDY_MODULES: tuple[str, ...] = (
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    p = sub.add_parser("study",
-                       description="Design studies of a plan or rig. Each writes tables, a JSON sidecar and "
-                                   "figures to its --out folder.")
-    actions = p.add_subparsers(dest="study_action", metavar="STUDY", parser_class=type(p))
-    actions.required = True
+    actions = add_command_group(sub, "study", __doc__, dest="study_action", metavar="STUDY")
     for name in STUDY_MODULES:
         importlib.import_module(name).register(actions)

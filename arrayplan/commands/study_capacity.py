@@ -1,4 +1,9 @@
-"""``arrayplan study capacity``: water-filling capacity of a plan against the SNR."""
+"""``arrayplan study capacity``: water-filling capacity of a plan against the SNR.
+
+Water-filling capacity of a plan's channels at each frequency and SNR, with equal power on the
+strong channels for comparison, and the band's capacity in bit/s.  The SNR is that of the strongest
+channel with all the power on it, as in 'arrayplan plan'.
+"""
 
 from __future__ import annotations
 
@@ -6,7 +11,8 @@ import argparse
 
 import matplotlib
 
-from ._args import add_frequencies_option, positive_float
+from ._args import (add_frequencies_option, add_output_folder_options, add_plan_or_rig_argument, command_description,
+                    positive_float)
 from ..errors import InputError
 from ..studies._common import load_study_source
 from ..studies.capacity import capacity_study, check_snr_list
@@ -15,12 +21,9 @@ from ..studies.files import capacity_verdict, write_capacity_study
 
 def register(actions: argparse._SubParsersAction) -> None:
     p = actions.add_parser("capacity", help="capacity of the channels against SNR (water-filling), bit/s",
-                           description="Water-filling capacity of a plan's channels at each frequency and SNR, "
-                                       "with equal power on the strong channels for comparison, and the band's "
-                                       "capacity in bit/s.  The SNR is that of the strongest channel with all the "
-                                       "power on it, as in 'arrayplan plan'.")
-    p.add_argument("source", metavar="PLAN_DIR|RIG", help="plan folder (from 'arrayplan plan') or rig file (TOML)")
-    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+                           description=command_description(__doc__))
+    add_plan_or_rig_argument(p)
+    add_output_folder_options(p)
     p.add_argument("--snr-db", nargs="+", metavar="DB",
                    help="SNR of the strongest channel, dB, one or more values (default: the plan's)")
     p.add_argument("--threshold-db", type=positive_float, metavar="DB",
@@ -28,7 +31,6 @@ def register(actions: argparse._SubParsersAction) -> None:
     add_frequencies_option(p, "with a rig file: plan", "the rig's [frequencies]")
     p.add_argument("--water-hz", type=positive_float, metavar="HZ",
                    help="frequency of the water-level figure (nearest planned; default the middle one)")
-    p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)
 
 

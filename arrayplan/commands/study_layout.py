@@ -1,4 +1,10 @@
-"""``arrayplan study layout``: which N of the candidate positions to fill, with an optimality gap."""
+"""``arrayplan study layout``: which N of the candidate positions to fill, with an optimality gap.
+
+Choose N of the candidate positions for speakers or microphones (the other side fixed) by a
+broadband criterion: greedy selection, refined by swaps; for capacity also an upper bound from a
+convex relaxation and the gap to it. Writes the chosen layout as a rig file that 'arrayplan plan'
+reads.
+"""
 
 from __future__ import annotations
 
@@ -11,18 +17,15 @@ from ..errors import InputError
 from ..frequency import FrequencyAxis
 from ..progress import ProgressBar
 from ..rig import ElementSet, load_rig, read_positions_csv
-from ._args import add_frequencies_option
+from ._args import add_frequencies_option, add_output_folder_options, command_description
 from ..studies._common import DEFAULT_REFERENCE_SNR_DB
 
 
 def register(actions: argparse._SubParsersAction) -> None:
     p = actions.add_parser("layout", help="choose where N speakers or microphones go, out of candidate positions",
-                           description="Choose N of the candidate positions for speakers or microphones (the other "
-                                       "side fixed) by a broadband criterion: greedy selection, refined by swaps; for "
-                                       "capacity also an upper bound from a convex relaxation and the gap to it. "
-                                       "Writes the chosen layout as a rig file that 'arrayplan plan' reads.")
+                           description=command_description(__doc__))
     p.add_argument("rig", help="rig file (TOML); the other side stays fixed")
-    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+    add_output_folder_options(p, "write tables and the rig file only")
     p.add_argument("--choose", type=int, required=True, metavar="N", help="number of elements to choose")
     p.add_argument("--side", choices=("speakers", "microphones"), default="speakers",
                    help="which side the candidates are (default speakers)")
@@ -38,7 +41,6 @@ def register(actions: argparse._SubParsersAction) -> None:
                         "reference as 'arrayplan compare', not the plan's SNR of the strongest channel)")
     p.add_argument("--threshold-db", type=float, help="strong-channel threshold, dB (default the rig's)")
     add_frequencies_option(p, "score", "the rig file's [frequencies]")
-    p.add_argument("--no-figures", action="store_true", help="write tables and the rig file only")
     p.set_defaults(run=run)
 
 

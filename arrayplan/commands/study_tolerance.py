@@ -1,4 +1,9 @@
-"""``arrayplan study tolerance``: what the planned weights do on a rig built a little off."""
+"""``arrayplan study tolerance``: what the planned weights do on a rig built a little off.
+
+Keep the planned weights and apply them to coupling matrices of rigs built a little off (Gaussian
+position, gain and phase errors per element): spread of each channel's gain, worst crosstalk, the
+share of trials keeping the isolation limit, a first-order prediction and white-noise gains.
+"""
 
 from __future__ import annotations
 
@@ -7,7 +12,8 @@ import argparse
 import matplotlib
 import numpy as np
 
-from ._args import add_frequencies_option, count, nonnegative_count
+from ._args import (add_frequencies_option, add_output_folder_options, add_plan_or_rig_argument, command_description,
+                    count, nonnegative_count)
 from ..errors import InputError
 from ..progress import ProgressBar
 from ..studies._common import load_study_source
@@ -24,12 +30,9 @@ def _number(text: str) -> float:
 
 def register(actions: argparse._SubParsersAction) -> None:
     p = actions.add_parser("tolerance", help="Monte Carlo of placement, gain and phase errors on the planned weights",
-                           description="Keep the planned weights and apply them to coupling matrices of rigs built "
-                                       "a little off (Gaussian position, gain and phase errors per element): spread "
-                                       "of each channel's gain, worst crosstalk, the share of trials keeping the "
-                                       "isolation limit, a first-order prediction and white-noise gains.")
-    p.add_argument("source", metavar="PLAN_DIR|RIG", help="plan folder (from 'arrayplan plan') or rig file (TOML)")
-    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+                           description=command_description(__doc__))
+    add_plan_or_rig_argument(p)
+    add_output_folder_options(p)
     p.add_argument("--position-mm", type=_number, default=0.0, metavar="MM",
                    help="standard deviation of each position coordinate, mm (default 0)")
     p.add_argument("--gain-db", type=_number, default=0.0, metavar="DB",
@@ -46,7 +49,6 @@ def register(actions: argparse._SubParsersAction) -> None:
                         "(default: the plan's strong threshold)")
     p.add_argument("--rig", metavar="RIG", help="the rig file a plan folder was made for (positions, directivities)")
     add_frequencies_option(p, "with a rig file: plan", "the rig's [frequencies]")
-    p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)
 
 

@@ -1,4 +1,9 @@
-"""``arrayplan study zones``: bright and dark zones, contrast control and pressure matching, with filters."""
+"""``arrayplan study zones``: bright and dark zones, contrast control and pressure matching, with filters.
+
+Drive weights that make the bright zone loud and the dark zone quiet, per frequency: acoustic
+contrast control, pressure matching and the plan's own channels, over a sweep of regularisation;
+figures of merit, field maps, and optionally drive FIR filters and a robustness check.
+"""
 
 from __future__ import annotations
 
@@ -13,7 +18,8 @@ from ..progress import ProgressBar
 from ..rig import load_rig
 from ..safety import CAUTION_NOTE
 from ..rig.zones import select_zones
-from ._args import accept_old_spelling, add_frequencies_option, add_measured_kernel_options, csv_names
+from ._args import (accept_old_spelling, add_frequencies_option, add_measured_kernel_options, add_output_folder_options,
+                    command_description, csv_names)
 
 
 def _numbers(text: str) -> list[float]:
@@ -32,12 +38,9 @@ def _vector(text: str) -> list[float]:
 
 def register(actions: argparse._SubParsersAction) -> None:
     p = actions.add_parser("zones", help="bright and dark zones: contrast control, pressure matching, filters",
-                           description="Drive weights that make the bright zone loud and the dark zone quiet, per "
-                                       "frequency: acoustic contrast control, pressure matching and the plan's own "
-                                       "channels, over a sweep of regularisation; figures of merit, field maps, "
-                                       "and optionally drive FIR filters and a robustness check.")
+                           description=command_description(__doc__))
     p.add_argument("rig", help="rig file (TOML) with [[zones]] entries")
-    p.add_argument("--out", required=True, help="output folder (created; files written atomically)")
+    add_output_folder_options(p)
     p.add_argument("--bright", type=csv_names, metavar="ZONE[,ZONE]",
                    help="bright zone(s) by name (default: every zone with role = \"bright\")")
     p.add_argument("--dark", type=csv_names, metavar="ZONE[,ZONE]",
@@ -71,7 +74,6 @@ def register(actions: argparse._SubParsersAction) -> None:
                         "instead of the free field (every zone must then be made of microphones); --tolerance-m "
                         "and the field maps stay free field, the filter check uses the measured responses")
     add_measured_kernel_options(p, prefix="with --irset: ")
-    p.add_argument("--no-figures", action="store_true", help="write tables only")
     accept_old_spelling(p, "--rate-hz", "--rate")
     accept_old_spelling(p, "--band-hz", "--band")
     accept_old_spelling(p, "--tolerance-m", "--tolerance")

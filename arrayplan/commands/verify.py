@@ -3,17 +3,15 @@
 from __future__ import annotations
 
 import argparse
-import csv
-import io
 from pathlib import Path
 
 import matplotlib
 import numpy as np
 
 from ..errors import InputError
-from ..filters.design import strong_ranges_hz
-from ..formats.fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..formats.filter_set import FILTER_SET_SIDECAR
 from ..formats.irset import read_irset
+from ..formats.verification_folder import verification_record, write_verification
 from ._args import MAX_CHANNEL_NUMBER, add_measured_kernel_options, finite_float, measured_kernel_from_args
 from ..formats.plan_folder import read_weights
 from ..progress import ProgressBar
@@ -62,48 +60,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_measured_kernel_options(p)
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(run=run)
-
-
-def _fmt(x: float) -> str:
-    if np.isnan(x):
-        return ""
-    if np.isinf(x):
-        return "inf" if x > 0 else "-inf"
-    return f"{x:.8g}"
-
-
-def _finite_or_none(x: float) -> float | None:
-    return float(x) if np.isfinite(x) else None
-
-
-def _csv(header: list[str], rows: list[list]) -> str:
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(header)
-    w.writerows(rows)
-    return buf.getvalue()
-
-
-def channel_rows(res: Verification) -> list[list]:
-    rows = []
-    judged = res.judged if res.judged is not None else np.ones(res.lost.shape, bool)
-    for f, hz in enumerate(res.hz):
-        for k, j in enumerate(res.channels):
-            rows.append([_fmt(hz), j + 1, _fmt(res.planned_sv[f, j]), _fmt(abs(res.channel_matrix[f, j, j])),
-                         _fmt(res.gain_db[f, k]), _fmt(res.crosstalk_db[f, k]), _fmt(-res.crosstalk_db[f, k]),
-                         int(res.lost[f, k]), _fmt(res.measured_sv[f, j]), int(judged[f, k])])
-    return rows
-
-
-def summary_rows(res: Verification) -> list[list]:
-    return [[_fmt(hz), len(res.channels), int(res.lost[f].sum()), int(res.strong_planned[f]),
-             int(res.strong_measured[f]), _fmt(res.max_angle_deg[f]), _fmt(_nanmax(res.crosstalk_db[f]))]
-            for f, hz in enumerate(res.hz)]
-
-
-def _nanmax(x: np.ndarray) -> float:
-    x = np.asarray(x, dtype=float)
-    return float(np.nanmax(x)) if np.any(~np.isnan(x)) else float("nan")
 
 
 #: IR-set units whose gains can be compared with a plan directly.
@@ -161,7 +117,7 @@ def _plan_result(args: argparse.Namespace, irs, kernel) -> tuple[Verification, s
 
 def _filters_result(args: argparse.Namespace, irs, kernel) -> tuple[Verification, str, dict]:
     """Verify a filter folder's WAV taps on a fine grid over their band."""
-    from ..filters.files import read_filter_set
+    from ..formats.filter_set import read_filter_set
     from ..verification.filters import verify_filters
 
     if args.channels is not None:
@@ -199,57 +155,14 @@ def run(args: argparse.Namespace) -> int:
     if not (args.isolation_db > 0):
         raise InputError(f"must be positive, got {args.isolation_db}", source="--isolation-db")
     kernel = measured_kernel_from_args(irs, args)
-    is_filters = (Path(args.plan_dir) / "filters.json").is_file()
+    is_filters = (Path(args.plan_dir) / FILTER_SET_SIDECAR).is_file()
     res, reason, origin = (_filters_result if is_filters else _plan_result)(args, irs, kernel)
     lost_bands = lost_bands_hz(res)
-    with staged_output_dir(args.out) as stage:
-        write_text_atomic(stage / "verify-channels.csv", _csv(
-            ["frequency_hz", "channel", "planned_singular_value", "realised_gain", "gain_db", "worst_crosstalk_db",
-             "isolation_db", "lost", "measured_singular_value", "judged"], channel_rows(res)))
-        write_text_atomic(stage / "verify-summary.csv", _csv(
-            ["frequency_hz", "wanted_channels", "lost_channels", "strong_planned", "strong_measured",
-             "max_subspace_angle_deg", "worst_crosstalk_db"], summary_rows(res)))
-        rig_sha256 = origin.pop("rig_sha256", None)
-        write_json_atomic(stage / "verify.json", {
-            "kind": "arrayplan-verification", **origin, "irset_dir": str(args.irset_dir),
-            "irset_units": irs.units, "isolation_db": res.isolation_db, "threshold_db": res.threshold_db,
-            "window_ms": args.window_ms, "latency_samples": args.latency_samples,
-            "smoothing_octaves": args.smooth_octaves,
-            "channels": [int(j) + 1 for j in res.channels], "passed": [bool(p) for p in res.passed],
-            "lost_bands_hz": {str(int(j) + 1): [list(r) for r in lost_bands[k]] for k, j in enumerate(res.channels)},
-            "wanted_channels_rule": res.wanted_rule,
-            **({"judged_bands_hz": {str(int(j) + 1): [list(r) for r in strong_ranges_hz(res.hz, res.judged[:, k])]
-                                    for k, j in enumerate(res.channels)}} if is_filters else
-               {"judged_frequencies_hz": {str(int(j) + 1): [float(h) for h in res.hz[res.judged[:, k]]]
-                                          for k, j in enumerate(res.channels)}}),
-            "gain_reference": res.gain_reference, "gain_reference_reason": reason,
-            "common_gain_db": _finite_or_none(res.common_gain_db),
-            "gain_note": ("gain_db is re the plan times the common factor common_gain_db (one real positive "
-                          "scalar, the least-squares fit in dB of |C_jj| to the planned singular values over the "
-                          "judged channels and frequencies); the channel matrix and measured singular values are "
-                          "divided by it; crosstalk and isolation are ratios and do not change"
-                          if res.gain_reference == "common" else
-                          "gain_db is re the plan's singular values in the plan's units (1/m for a free-field "
-                          "plan): absolute only when the IR set is in the same units; common_gain_db is the "
-                          "mean offset, for information"),
-            "files": {"verify.npz": "frequency_hz (n_freq,), channels (n_want,) 1-based, channel_matrix complex "
-                                    "(n_freq, n_chan, n_chan) = combine^T G_measured drive, planned_singular_value "
-                                    "and measured_singular_value (n_freq, n_chan; the measured value of the same "
-                                    "rank as the planned channel at that frequency), judged (n_freq, n_want)"},
-            "levels": "re the strongest channel at each frequency (a tracked plan's channel 1 need not be it)",
-            "provenance": provenance(rig_sha256=rig_sha256)})
-        np.savez(stage / "verify.npz", frequency_hz=res.hz, channels=np.asarray(res.channels) + 1,
-                 channel_matrix=res.channel_matrix, planned_singular_value=res.planned_sv,
-                 measured_singular_value=res.measured_sv, judged=res.judged)
-        if not args.no_figures:
-            import matplotlib.pyplot as plt
-
-            from ..plots.verify import plot_crosstalk, plot_singular_values
-            for name, fig in (("verify-crosstalk.png", plot_crosstalk(res)),
-                              ("verify-singular-values.png", plot_singular_values(res))):
-                with atomic_path(stage / name) as tmp:
-                    fig.savefig(tmp, dpi=120)
-                plt.close(fig)
+    record = verification_record(res, origin=origin, irset_dir=str(args.irset_dir), irset_units=irs.units,
+                                 settings={"window_ms": args.window_ms, "latency_samples": args.latency_samples,
+                                           "smoothing_octaves": args.smooth_octaves},
+                                 gain_reference_reason=reason)
+    write_verification(args.out, res, record, figures=not args.no_figures)
     print(f"wanted channels: {res.wanted_rule}")
     for line in _gain_lines(res, reason):
         print(line)

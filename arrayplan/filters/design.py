@@ -51,7 +51,7 @@ from ..kernels import rig_kernel
 from ..rig import Rig
 
 __all__ = ["FilterSet", "band_window", "delay_spread_s", "design_filters", "minimum_taps", "strong_ranges_hz",
-           "validate_request"]
+           "validate_request", "taps_from_weights"]
 
 #: Width of each raised-cosine transition outside the band, in octaves.
 TRANSITION_OCTAVES = 1.0 / 6.0
@@ -275,13 +275,40 @@ def _group_delay_samples(w: np.ndarray, bin_hz: float, sample_rate_hz: float) ->
     return int(np.round(tau_s * sample_rate_hz))
 
 
-def _taps(weights: np.ndarray, window: np.ndarray, design_idx: np.ndarray, taps: int, delay: int,
-          sample_rate_hz: float, progress: Callable[[int, int], None] | None = None,
-          done_before: int = 0, total: int | None = None) -> np.ndarray:
-    """(taps, n_elem, n_chan) real taps from weights on the design bins, one channel at a time.
+def taps_from_weights(weights: np.ndarray, window: np.ndarray, design_idx: np.ndarray, taps: int, delay: int,
+                      sample_rate_hz: float, progress: Callable[[int, int], None] | None = None,
+                      done_before: int = 0, total: int | None = None) -> np.ndarray:
+    """Real FIR taps that realise complex weights on the design bins, one channel at a time.
 
-    `progress(done_before + j + 1, total)` follows each channel j (and
-    `progress(0, total)` comes first when `done_before` is 0).
+    Each channel's spectrum is the weights times the band window times a
+    delay of `delay` samples on the bins ``design_idx`` of an rfft of
+    length `taps` (zero elsewhere); the inverse rfft is tapered by a Tukey
+    window (:data:`TUKEY_ALPHA`).
+
+    Parameters
+    ----------
+    weights : ndarray, complex, shape (n_design, n_elem, n_chan)
+        Weights at the frequencies ``rfftfreq(taps, 1 / sample_rate_hz)[design_idx]``.
+    window : ndarray, shape (taps // 2 + 1,)
+        Band window on every rfft bin (:func:`band_window`), dimensionless.
+    design_idx : ndarray of int, shape (n_design,)
+        The rfft bins the weights belong to.
+    taps : int
+        Filter length, samples.
+    delay : int
+        Bulk delay, samples (the filters are causal once it covers half their spread).
+    sample_rate_hz : float
+        Hz.
+    progress : callable, optional
+        ``progress(done_before + j + 1, total)`` after each channel j (and
+        ``progress(0, total)`` first when `done_before` is 0).
+    done_before, total : int
+        Offsets for `progress` when several calls share one bar.
+
+    Returns
+    -------
+    ndarray, shape (taps, n_elem, n_chan)
+        Dimensionless taps.
     """
     n_rfft = taps // 2 + 1
     hz = np.fft.rfftfreq(taps, 1.0 / sample_rate_hz)
@@ -374,8 +401,8 @@ def design_filters(kernel: Kernel | Rig, sample_rate_hz: float, taps: int, band_
     a_combine = _group_delay_samples(combine_w[in_band], bin_hz, fs)
     bulk = taps // 2
     n_sets = 2 * len(kept)
-    drive = _taps(drive_w, window, design_idx, taps, bulk - a_drive, fs, taps_progress, 0, n_sets)
-    combine = _taps(combine_w, window, design_idx, taps, bulk - a_combine, fs, taps_progress, len(kept), n_sets)
+    drive = taps_from_weights(drive_w, window, design_idx, taps, bulk - a_drive, fs, taps_progress, 0, n_sets)
+    combine = taps_from_weights(combine_w, window, design_idx, taps, bulk - a_combine, fs, taps_progress, len(kept), n_sets)
     return FilterSet(fs, taps, (lo, hi), bulk, a_drive, a_combine, drive, combine, kept, skipped, plan,
                      level, float(axis.hz[ci]), band_level_db=band_level, min_level_db=float(min_level_db),
                      kernel_name=str(getattr(kernel, "name", "free field")))

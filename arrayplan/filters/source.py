@@ -12,13 +12,13 @@ plan's frequencies.
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from ..kernels.coupling import Kernel
 from ..errors import InputError
+from ..formats._versioning import read_json_document
 from ..formats.irset import IRSet
 from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
@@ -110,12 +110,7 @@ class PlanRecord:
 
 def read_json_object(path: Path, fix: str) -> dict:
     """A JSON object from `path`, or InputError naming the file (`fix` says what to point at)."""
-    try:
-        doc = json.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(path), fix=fix) from None
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(path)) from None
+    doc = read_json_document(path, fix)
     if not isinstance(doc, dict):
         raise InputError("not a JSON object", source=str(path), fix=fix)
     return doc

@@ -38,6 +38,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from ..errors import InputError
+from ._versioning import check, stamp
 from .fileio import write_text_atomic
 
 __all__ = ["SUMMARY_FORMAT", "SUMMARY_FORMAT_VERSION", "SUMMARY_FILE", "DeconvolutionSummary", "summarise",
@@ -208,7 +209,7 @@ def summary_record(summary: DeconvolutionSummary) -> dict[str, Any]:
         definitions, ``harmonic_floor`` and ``per_pair``.
     """
     floors = summary.method_floor_db
-    return {"summary": {"format": SUMMARY_FORMAT, "format_version": SUMMARY_FORMAT_VERSION, "file": SUMMARY_FILE},
+    return {"summary": stamp({"file": SUMMARY_FILE}, SUMMARY_FORMAT, SUMMARY_FORMAT_VERSION),
             **_DEFINITIONS,
             "harmonic_floor": {"method_floor_db": None if floors is None else
                                {str(n): _json(round(v, DB_DECIMALS)) for n, v in floors.items()},
@@ -276,12 +277,7 @@ def _manifest_block(folder: Path) -> Mapping[str, Any]:
     block = extra.get("summary")
     if block is None:
         return extra
-    if not isinstance(block, dict) or block.get("format") != SUMMARY_FORMAT:
-        raise InputError("not an arrayplan deconvolution summary", source=str(path), field="extra.summary.format")
-    version = block.get("format_version")
-    if not (isinstance(version, int) and not isinstance(version, bool) and 1 <= version <= SUMMARY_FORMAT_VERSION):
-        raise InputError(f"format_version {version!r} is not one this arrayplan reads (1..{SUMMARY_FORMAT_VERSION})",
-                         source=str(path), field="extra.summary.format_version", fix="use a newer arrayplan")
+    check(block, SUMMARY_FORMAT, SUMMARY_FORMAT_VERSION, str(path), field_prefix="extra.summary.")
     return extra
 
 

@@ -57,6 +57,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from ._versioning import check, stamp
 from .audiofiles import read_audio
 from ..errors import InputError
 from .fileio import check_folder, provenance as _provenance, staged_output_dir, write_json_atomic
@@ -183,9 +184,7 @@ def write_irset(folder: str | os.PathLike, irs: IRSet, **provenance_extra: Any) 
                      subtype="FLOAT", format="WAV")
             speakers.append({"name": name, "position_m": _positions_json(irs.speaker_positions, s),
                              "file": fname})
-        manifest = {
-            "format": FORMAT_NAME,
-            "format_version": format_version_for(irs),
+        manifest = stamp({
             "sample_rate_hz": float(irs.sample_rate_hz),
             "n_samples": irs.n_samples,
             "zero_lag_samples": irs.zero_lag_samples,
@@ -197,7 +196,7 @@ def write_irset(folder: str | os.PathLike, irs: IRSet, **provenance_extra: Any) 
             "warnings": list(irs.warnings),
             "extra": irs.extra,
             "provenance": _provenance(**provenance_extra),
-        }
+        }, FORMAT_NAME, format_version_for(irs))
         write_json_atomic(stage / MANIFEST_NAME, manifest)
     return folder / MANIFEST_NAME
 
@@ -255,12 +254,7 @@ def read_irset(folder: str | os.PathLike) -> IRSet:
         manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise InputError(f"not valid JSON ({exc})", source=src) from None
-    if not isinstance(manifest, dict) or manifest.get("format") != FORMAT_NAME:
-        raise InputError(f"not an {FORMAT_NAME} manifest", source=src, field="format")
-    version = _require(manifest, "format_version", int, src, "")
-    if version > FORMAT_VERSION:
-        raise InputError(f"format_version {version} is newer than this arrayplan reads ({FORMAT_VERSION})",
-                         source=src, field="format_version", fix="upgrade arrayplan")
+    check(manifest, FORMAT_NAME, FORMAT_VERSION, src, fix=f"point at a folder containing an {FORMAT_NAME} manifest")
     rate = float(_require(manifest, "sample_rate_hz", (int, float), src, ""))
     if not math.isfinite(rate) or rate <= 0:
         raise InputError(f"sample rate must be positive, got {rate}", source=src, field="sample_rate_hz")

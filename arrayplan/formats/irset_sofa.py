@@ -63,6 +63,7 @@ import numpy as np
 
 from .._version import __version__
 from ..errors import InputError
+from ._versioning import check, stamp
 from .fileio import atomic_path, json_default, provenance as _provenance
 from .irset import FORMAT_NAME, FORMAT_VERSION, UNITS, IRSet, format_version_for, zero_lag_problem
 
@@ -125,9 +126,7 @@ def write_irset_sofa(path: str | os.PathLike, irs: IRSet, **provenance_extra: An
     _check_suffix(path)
     sofar = _sofar(str(path))
     n_mic, n_spk = irs.n_mic, irs.n_spk
-    meta = {
-        "format": FORMAT_NAME,
-        "format_version": format_version_for(irs),
+    meta = stamp({
         "speaker_names": list(irs.speaker_names),
         "mic_names": list(irs.mic_names),
         "units": irs.units,
@@ -136,7 +135,7 @@ def write_irset_sofa(path: str | os.PathLike, irs: IRSet, **provenance_extra: An
         "warnings": list(irs.warnings),
         "extra": irs.extra,
         "provenance": _provenance(**provenance_extra),
-    }
+    }, FORMAT_NAME, format_version_for(irs))
     sofa = sofar.Sofa(SOFA_CONVENTION)
     sofa.GLOBAL_Title = f"Impulse responses of {n_spk} loudspeakers to {n_mic} microphones"
     sofa.GLOBAL_ApplicationName = "arrayplan"
@@ -400,12 +399,7 @@ def _metadata(sofa: Any, src: str, n_spk: int, n_mic: int, n_samples: int) -> di
         meta = json.loads(str(text))
     except json.JSONDecodeError as exc:
         raise InputError(f"is not valid JSON ({exc})", source=src, field=field) from None
-    if not isinstance(meta, dict) or meta.get("format") != FORMAT_NAME:
-        raise InputError(f"is not {FORMAT_NAME} metadata", source=src, field=field)
-    version = meta.get("format_version")
-    if not isinstance(version, int) or version > FORMAT_VERSION:
-        raise InputError(f"format_version {version!r} is not one this arrayplan reads", source=src,
-                         field=field + ".format_version", fix="upgrade arrayplan")
+    check(meta, FORMAT_NAME, FORMAT_VERSION, src, field_prefix=field + ".")
     for key, n, what in (("speaker_names", n_spk, "speakers"), ("mic_names", n_mic, "microphones")):
         names = meta.get(key)
         if not isinstance(names, list) or not all(isinstance(v, str) for v in names) or len(names) != n:

@@ -29,6 +29,7 @@ Files (all written together, atomically, by :func:`write_plan`):
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import json
 import math
@@ -40,13 +41,16 @@ import numpy as np
 
 from ..channels.svd import ChannelSet
 from ..errors import InputError
+from ._versioning import check
+from .npz import write_npz
 from .fileio import atomic_path, check_folder, provenance, staged_output_dir, write_json_atomic
 from ..frequency import FrequencyAxis
 from ..channels.heuristics import paraxial_estimate
 from ..channels.planning import Plan
+from ..parallel import alongside
 from ..rig import Rig, load_rig
 
-__all__ = ["write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
+__all__ = ["PLAN_FORMAT", "PLAN_FORMAT_VERSION", "write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
            "coupling_text", "long_table_rows", "LONG_TABLE_MAX_ROWS"]
 
 #: What one unit of a measured coupling means, by the IR set's units (see :data:`arrayplan.formats.irset.UNITS`).
@@ -59,6 +63,10 @@ NORMALISATION = ("drive and combine weight vectors have unit Euclidean norm per 
 PHASE = ("the speaker entry of largest magnitude in each drive vector is real and positive "
          "(tracked plans: phase follows the previous bin instead)")
 
+
+#: ``format`` and ``format_version`` of ``weights.json`` (plans of the previous release: ``kind``, same version).
+PLAN_FORMAT = "arrayplan-plan"
+PLAN_FORMAT_VERSION = 1
 
 #: Below this many rows ``weights.csv`` (the long weight table) is written by default; above it only
 #: on request, since its text is about 20 times the size of the same weights in ``weights.npz``.
@@ -81,7 +89,17 @@ def _fmt_level(x: float) -> str:
 
 
 def long_table_rows(plan: Plan) -> int:
-    """Rows of the long weight table ``weights.csv``: one per computed channel, side and element."""
+    """Rows of the long weight table ``weights.csv``: one per computed channel, side and element.
+
+    Parameters
+    ----------
+    plan : Plan
+
+    Returns
+    -------
+    int
+        Sum over frequencies of channels computed, times (n_spk + n_mic).
+    """
     ch = plan.channels
     return int(np.sum(ch.channels_computed())) * (len(ch.speaker_names) + len(ch.mic_names))
 
@@ -132,24 +150,40 @@ def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *,
             progress(min(done[0], total), total)
 
     with staged_output_dir(out_dir) as stage:
-        _write_channels_csv(plan, stage / "channels.csv", lambda f: advance(steps[0] / max(1, n_freq)))
-        _write_summary_csv(plan, stage / "summary.csv")
-        advance(steps[1])
-        with atomic_path(stage / "weights.npz") as tmp:
-            extra = {} if ch.computed is None else {"computed_channels": np.asarray(ch.computed)}
-            np.savez(tmp, frequency_hz=ch.axis.hz, singular_value=ch.singular_values, drive=ch.drive,
-                     combine=ch.combine, sum_rule=ch.sum_rule, speaker_names=np.array(ch.speaker_names),
-                     mic_names=np.array(ch.mic_names), **extra)
-        advance(steps[2])
-        if with_long:
-            _write_weights_csv(plan, stage / "weights.csv", lambda f: advance(steps[3] / max(1, n_freq)))
-        write_json_atomic(stage / "weights.json", _sidecar(plan, with_long) | _measurement_fields(measurement))
-        advance(steps[4])
+        # the channel table is formatted in a second process while this one writes the rest
+        beside = rows >= _CHANNELS_BESIDE_ROWS
+        with (alongside(_write_channels_csv, plan, stage / "channels.csv", _no_progress) if beside
+              else contextlib.nullcontext()):
+            if not beside:
+                _write_channels_csv(plan, stage / "channels.csv", lambda f: advance(steps[0] / max(1, n_freq)))
+            _write_summary_csv(plan, stage / "summary.csv")
+            advance(steps[1])
+            with atomic_path(stage / "weights.npz") as tmp:
+                extra = {} if ch.computed is None else {"computed_channels": np.asarray(ch.computed)}
+                write_npz(tmp, dict(frequency_hz=ch.axis.hz, singular_value=ch.singular_values, drive=ch.drive,
+                                    combine=ch.combine, sum_rule=ch.sum_rule,
+                                    speaker_names=np.array(ch.speaker_names), mic_names=np.array(ch.mic_names),
+                                    **extra))
+            advance(steps[2])
+            if with_long:
+                _write_weights_csv(plan, stage / "weights.csv", lambda f: advance(steps[3] / max(1, n_freq)))
+            write_json_atomic(stage / "weights.json", _sidecar(plan, with_long) | _measurement_fields(measurement))
+            advance(steps[4])
+        if beside:
+            advance(steps[0])
         if figures:
             _write_figures(plan, stage)
         advance(steps[5])
         written = sorted(p.name for p in stage.iterdir())
     return [Path(out_dir) / name for name in written]
+
+
+#: From this many rows on, ``channels.csv`` is written by a second process (a fork costs ~10 ms).
+_CHANNELS_BESIDE_ROWS = 50_000
+
+
+def _no_progress(_f: int) -> None:
+    pass
 
 
 def _write_channels_csv(plan: Plan, path: Path, each_frequency: Callable[[int], None]) -> None:
@@ -217,8 +251,8 @@ def _sidecar(plan: Plan, with_long: bool = True) -> dict[str, Any]:
                               "in weights.npz, channels_computed in summary.csv); the sum rule comes from G, "
                               "and share_not_computed is the part of it in the channels not computed"}
     doc = {
-        "kind": "arrayplan-plan",
-        "format_version": 1,
+        "format": PLAN_FORMAT,
+        "format_version": PLAN_FORMAT_VERSION,
         "rig": {"name": rig.name, "source": rig.source, "sha256": rig.sha256,
                 "speed_of_sound_m_per_s": rig.medium.speed_of_sound, "air_absorption": rig.medium.air_absorption},
         "kernel": plan.kernel_name,
@@ -271,7 +305,18 @@ def _piston_note(rig) -> dict[str, str]:
 
 
 def coupling_text(units: str | None = None) -> str:
-    """The ``coupling`` line of ``weights.json``: free field (`units` None) or an IR set's `units`."""
+    """The ``coupling`` line of ``weights.json``: what one unit of G means.
+
+    Parameters
+    ----------
+    units : str, optional
+        An IR set's units (:data:`MEASURED_UNITS` keys); None for a model
+        kernel (pressure per unit source strength, 1/m).
+
+    Returns
+    -------
+    str
+    """
     if units is None:
         return "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)"
     return (f"G[f, m, s]: measured transfer function from speaker s's drive to microphone m, in the IR set's "
@@ -281,6 +326,11 @@ def coupling_text(units: str | None = None) -> str:
 
 def irset_sha256(path: str | os.PathLike) -> tuple[str, str]:
     """SHA-256 of an IR set as a plan records it: of ``irset.json`` in a folder, or of a ``.sofa`` file.
+
+    Parameters
+    ----------
+    path : path
+        An IR-set folder, its ``irset.json``, or a ``.sofa`` file.
 
     Returns
     -------
@@ -303,6 +353,15 @@ def planned_rig_file(sidecar: dict, plan_dir: str | os.PathLike,
 
     A relative path is tried from the working folder, the project folder (if
     given), the plan folder's parent and the plan folder itself.
+
+    Parameters
+    ----------
+    sidecar : dict
+        The plan's ``weights.json``.
+    plan_dir : path
+        The plan folder.
+    project : path, optional
+        A project folder to search too.
 
     Returns
     -------
@@ -397,6 +456,16 @@ class PlanWeights:
     combine : ndarray, complex, (n_freq, n_mic, n_chan)
     speaker_names, mic_names : tuple of str
     sidecar : dict
+        The folder's ``weights.json``.
+    sum_rule : ndarray, shape (n_freq,), or None
+        sum |G|^2 per frequency; None from plans written before it was stored.
+    computed : ndarray of int, shape (n_freq,), or None
+        Channels computed per frequency of a truncated plan; None when complete.
+
+    Parameters
+    ----------
+    axis, singular_values, drive, combine, speaker_names, mic_names, sidecar, sum_rule, computed
+        As the attributes.
     """
 
     def __init__(self, axis, singular_values, drive, combine, speaker_names, mic_names, sidecar, sum_rule=None,
@@ -456,6 +525,15 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
     The folder must match its checksums (:func:`arrayplan.formats.fileio.check_folder`),
     so weights of one run are never read beside a sidecar of another.
 
+    Parameters
+    ----------
+    plan_dir : path
+        A folder written by :func:`write_plan`.
+
+    Returns
+    -------
+    PlanWeights
+
     Raises
     ------
     InputError
@@ -471,6 +549,8 @@ def read_weights(plan_dir: str | os.PathLike) -> PlanWeights:
     except (OSError, UnicodeDecodeError, ValueError) as exc:
         raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(side),
                          fix="run 'arrayplan plan' again to rewrite the folder") from None
+    check(sidecar, PLAN_FORMAT, PLAN_FORMAT_VERSION, str(side), legacy=PLAN_FORMAT,
+          fix="point at a folder written by 'arrayplan plan'")
     data = _weight_arrays(npz)
     check_folder(folder, needed=("weights.*", "*.csv"))
     return PlanWeights(FrequencyAxis(data["frequency_hz"], source=str(npz)), data["singular_value"],
@@ -536,7 +616,19 @@ def read_plan(plan_dir: str | os.PathLike, rig: Rig | None = None, weights: Plan
 
 
 def summary_lines(plan: Plan, max_rows: int = 12) -> list[str]:
-    """A short human summary of a plan, for stdout."""
+    """A short human summary of a plan, for stdout.
+
+    Parameters
+    ----------
+    plan : Plan
+    max_rows : int
+        Frequencies shown (spread evenly over the axis).
+
+    Returns
+    -------
+    list of str
+        Lines without newlines.
+    """
     ch, rig = plan.channels, plan.rig
     hz = ch.axis.hz
     lines = [f"Rig '{rig.name}': {len(rig.speakers)} speakers, {len(rig.mics)} microphones, "

@@ -33,13 +33,13 @@ another ``format`` and a newer ``format_version``.
 
 from __future__ import annotations
 
-import json
 import math
 import os
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 from ..errors import InputError
+from ._versioning import check, read_json_document, stamp
 from .fileio import write_json_atomic
 
 __all__ = ["SIGNAL_FORMAT", "SIGNAL_FORMAT_VERSION", "signal_sidecar", "inverse_filter_sidecar",
@@ -84,15 +84,15 @@ def signal_sidecar(*, signal: str, file: str, sample_rate_hz: float, n_samples: 
     dict
         Ready for :func:`write_signal_sidecar`.
     """
-    obj = {"format": SIGNAL_FORMAT, "format_version": SIGNAL_FORMAT_VERSION, "signal": signal, "file": file,
-           "sample_rate_hz": float(sample_rate_hz), "n_samples": int(n_samples), "n_channels": int(n_channels),
-           "channel_names": list(channel_names), "sample_format": sample_format,
-           "level": None if level is None else dict(level),
-           "conditioning": None if conditioning is None else dict(conditioning), "parameters": dict(parameters),
-           "sweep": None if sweep is None else dict(sweep), "schedule": None if schedule is None else dict(schedule),
-           "probe": None if probe is None else dict(probe), "exposure": None if exposure is None else dict(exposure),
-           "warnings": list(warnings), "caution": caution,
-           "provenance": None if provenance is None else dict(provenance)}
+    obj = stamp({"signal": signal, "file": file,
+                 "sample_rate_hz": float(sample_rate_hz), "n_samples": int(n_samples), "n_channels": int(n_channels),
+                 "channel_names": list(channel_names), "sample_format": sample_format,
+                 "level": None if level is None else dict(level),
+                 "conditioning": None if conditioning is None else dict(conditioning), "parameters": dict(parameters),
+                 "sweep": None if sweep is None else dict(sweep), "schedule": None if schedule is None else dict(schedule),
+                 "probe": None if probe is None else dict(probe), "exposure": None if exposure is None else dict(exposure),
+                 "warnings": list(warnings), "caution": caution,
+                 "provenance": None if provenance is None else dict(provenance)}, SIGNAL_FORMAT, SIGNAL_FORMAT_VERSION)
     return check_signal_sidecar(obj)
 
 
@@ -120,12 +120,12 @@ def inverse_filter_sidecar(*, file: str, signal_file: str, sample_rate_hz: float
     -------
     dict
     """
-    obj = {"format": SIGNAL_FORMAT, "format_version": SIGNAL_FORMAT_VERSION, "signal": "inverse_filter",
-           "file": file, "inverse_of": signal_file, "parameters_in": Path(signal_file).with_suffix(".json").name,
-           "sample_rate_hz": float(sample_rate_hz), "n_samples": int(n_samples), "n_channels": 1,
-           "sample_format": "float32", "sweep": None if sweep is None else dict(sweep),
-           "note": "inverse filter for deconvolution: not a signal to play", "caution": caution,
-           "provenance": None if provenance is None else dict(provenance)}
+    obj = stamp({"signal": "inverse_filter", "file": file, "inverse_of": signal_file,
+                 "parameters_in": Path(signal_file).with_suffix(".json").name,
+                 "sample_rate_hz": float(sample_rate_hz), "n_samples": int(n_samples), "n_channels": 1,
+                 "sample_format": "float32", "sweep": None if sweep is None else dict(sweep),
+                 "note": "inverse filter for deconvolution: not a signal to play", "caution": caution,
+                 "provenance": None if provenance is None else dict(provenance)}, SIGNAL_FORMAT, SIGNAL_FORMAT_VERSION)
     return check_signal_sidecar(obj)
 
 
@@ -149,15 +149,7 @@ def check_signal_sidecar(obj: Any, source: str | None = None) -> dict[str, Any]:
         `obj` itself.
     """
     fix = "give the .json written beside the file by 'arrayplan signal'"
-    if not isinstance(obj, dict) or obj.get("format") != SIGNAL_FORMAT:
-        raise InputError("not an arrayplan signal sidecar", source=source, field="format", fix=fix)
-    version = obj.get("format_version")
-    if not _whole(version):
-        raise InputError(f"missing or bad format_version {version!r}", source=source, field="format_version",
-                         fix=fix)
-    if version > SIGNAL_FORMAT_VERSION:
-        raise InputError(f"format_version {version} is newer than this arrayplan reads ({SIGNAL_FORMAT_VERSION})",
-                         source=source, field="format_version", fix="use a newer arrayplan")
+    check(obj, SIGNAL_FORMAT, SIGNAL_FORMAT_VERSION, source, fix=fix)
     for key in ("signal", "file"):
         if not (isinstance(obj.get(key), str) and obj[key]):
             raise InputError("missing or not a text", source=source, field=key, fix=fix)
@@ -202,11 +194,7 @@ def read_signal_sidecar(path: str | os.PathLike) -> dict[str, Any]:
     src = str(path)
     if not path.is_file():
         raise InputError("signal sidecar not found", source=src, fix="give the .json written beside the signal file")
-    try:
-        obj = json.loads(path.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=src) from None
-    return check_signal_sidecar(obj, source=src)
+    return check_signal_sidecar(read_json_document(path), source=src)
 
 
 def write_signal_sidecar(path: str | os.PathLike, sidecar: Mapping[str, Any]) -> Path:

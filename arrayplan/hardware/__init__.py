@@ -44,10 +44,10 @@ Calibration records (:mod:`.calibration`; format in calibration/README.md)
     pressure_from_db_spl(94) -> 1.002 Pa; sensitivity_db_re_1v_per_pa(mV/Pa); dbu_to_vrms(dBu)
 """
 
-from .calibration import (CalibrationRecord, LatencyCalibration, MicCalibration, OutputCalibration,
-                          calibration_factors, dbu_to_vrms, mic_from_calibrator_recording,
-                          output_from_loopback_recording, pressure_from_db_spl, read_calibration,
-                          sensitivity_db_re_1v_per_pa, write_calibration)
+from ..formats.calibration_record import (CalibrationRecord, LatencyCalibration, MicCalibration, OutputCalibration,
+                                          read_calibration, write_calibration)
+from .calibration import (calibration_factors, dbu_to_vrms, mic_from_calibrator_recording,
+                          output_from_loopback_recording, pressure_from_db_spl, sensitivity_db_re_1v_per_pa)
 from .devices import (DeviceInfo, HostApiInfo, check_stream_settings, choose_device, format_device_table,
                       list_devices, list_host_apis)
 from .duplex import AudioLink, DuplexResult, SoundDeviceLink

@@ -1,7 +1,8 @@
-"""Calibration records: microphone sensitivities, output gains and interface latency, as TOML.
+"""Calibration values from recordings: microphone sensitivities, output gains, and the factors they give.
 
-A record (format in ``calibration/README.md``) holds what turns a
-measurement in full-scale units into physical ones:
+The record they go into, and its TOML file, is
+:mod:`arrayplan.formats.calibration_record` (its names are importable from
+here too).  What it holds:
 
 * per microphone: its sensitivity in mV/Pa, found from a recording of an
   acoustic calibrator (commonly 94 dB SPL = 1 Pa re 20 µPa at 1 kHz; IEC
@@ -21,29 +22,19 @@ from __future__ import annotations
 
 import math
 import os
-import sys
 from pathlib import Path
-from typing import Any, Sequence
+from typing import Sequence
 
 import numpy as np
-import tomlkit
 
-from .._version import __version__
-from ..formats.audiofiles import read_audio
 from ..errors import InputError
-from ..formats.fileio import write_text_atomic
-from ..limits import MAX_CHANNEL_NUMBER
-from ..formats.tomlfields import FieldReader
+from ..formats.audiofiles import read_audio
+from ..formats.calibration_record import (FORMAT_NAME, RANGES, CalibrationRecord, LatencyCalibration,
+                                          MicCalibration, OutputCalibration, format_calibration, now_utc,
+                                          parse_calibration, read_calibration, read_or_new, write_calibration)
 from ..units import DBU_REFERENCE_VRMS, dbu_to_vrms, sensitivity_db_re_1v_per_pa
 from ..units import P_REF_PA as REFERENCE_PRESSURE_PA
 from ..units import pressure_from_spl as pressure_from_db_spl
-from .calibration_record import (FORMAT_NAME, FORMAT_VERSION, MAX_LATENCY_SAMPLES, RANGES, CalibrationRecord,
-                                 LatencyCalibration, MicCalibration, OutputCalibration, now_utc)
-
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover
-    import tomli as tomllib
 
 __all__ = [
     "REFERENCE_PRESSURE_PA", "DBU_REFERENCE_VRMS", "FORMAT_NAME",
@@ -53,226 +44,6 @@ __all__ = [
     "output_from_loopback_recording", "read_wav_channel", "format_calibration", "read_or_new",
     "calibration_factors", "now_utc",
 ]
-
-# ------------------------------------------------------------------ TOML reading
-
-_MIC_KEYS = {"name", "input_channel", "sensitivity_mv_per_pa", "sensitivity_db_re_1v_per_pa",
-             "input_full_scale_vrms", "calibrator_level_db_spl", "calibrator_frequency_hz",
-             "calibrator_class", "recorded_rms_dbfs", "recording", "measured_utc"}
-_OUT_KEYS = {"channel", "full_scale_vrms", "amplifier_gain_db", "method", "measured_utc"}
-_LAT_KEYS = {"samples", "sample_rate_hz", "output_channel", "input_channel", "device", "measured_utc"}
-
-
-def read_calibration(path: str | os.PathLike) -> CalibrationRecord:
-    """Read and check a calibration record.
-
-    Raises
-    ------
-    InputError
-        Missing file, malformed TOML, a missing or wrong field (named), a
-        number outside its range (:data:`RANGES`), a duplicated microphone or
-        output, or a stated dB sensitivity that disagrees with the mV/Pa value.
-    """
-    path = Path(path)
-    src = str(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError("calibration record not found", source=src,
-                         fix="create it with 'arrayplan calibrate mic/output/latency'") from None
-    except (UnicodeDecodeError, IsADirectoryError) as exc:
-        raise InputError(f"cannot read as UTF-8 text ({exc.__class__.__name__})", source=src) from None
-    return parse_calibration(text, src)
-
-
-def parse_calibration(text: str, src: str = "<text>") -> CalibrationRecord:
-    """Check and parse the TOML text of a calibration record (see :func:`read_calibration`)."""
-    try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"not valid TOML ({exc})", source=src) from None
-    r = FieldReader(src, ranges=RANGES, integer_max=MAX_CHANNEL_NUMBER)
-    r.keys(doc, {"format", "format_version", "description", "microphones", "outputs", "latency"}, "")
-    if doc.get("format") != FORMAT_NAME:
-        raise r.fail("format", f"expected format = \"{FORMAT_NAME}\", got {doc.get('format')!r}")
-    version = r.integer(doc, "format_version", "")
-    if version > FORMAT_VERSION:
-        raise r.fail("format_version", f"version {version} is newer than this arrayplan reads "
-                                       f"({FORMAT_VERSION})", fix="upgrade arrayplan")
-    mics: list[MicCalibration] = []
-    for i, entry in enumerate(_array_of_tables(doc, "microphones", src)):
-        mic = _mic(entry, f"microphones[{i}]", r)
-        if any(m.name == mic.name for m in mics):
-            raise r.fail(f"microphones[{i}].name", f"microphone {mic.name!r} appears twice")
-        mics.append(mic)
-    outs: list[OutputCalibration] = []
-    for i, entry in enumerate(_array_of_tables(doc, "outputs", src)):
-        where = f"outputs[{i}]"
-        r.keys(entry, _OUT_KEYS, where)
-        out = OutputCalibration(channel=r.integer(entry, "channel", where),
-                                full_scale_vrms=r.number(entry, "full_scale_vrms", where, positive=True),
-                                amplifier_gain_db=r.number(entry, "amplifier_gain_db", where, 0.0),
-                                method=r.string(entry, "method", where, "", allow_empty=True),
-                                measured_utc=r.string(entry, "measured_utc", where, "", allow_empty=True))
-        if any(o.channel == out.channel for o in outs):
-            raise r.fail(f"{where}.channel", f"output channel {out.channel} appears twice")
-        outs.append(out)
-    latency = None
-    if "latency" in doc:
-        t = doc["latency"]
-        if not isinstance(t, dict):
-            raise r.fail("latency", "must be a table [latency]")
-        r.keys(t, _LAT_KEYS, "latency")
-        latency = LatencyCalibration(
-            samples=r.integer(t, "samples", "latency", minimum=0, maximum=MAX_LATENCY_SAMPLES),
-            sample_rate_hz=r.number(t, "sample_rate_hz", "latency", positive=True),
-            output_channel=r.integer(t, "output_channel", "latency", None),
-            input_channel=r.integer(t, "input_channel", "latency", None),
-            device=r.string(t, "device", "latency", "", allow_empty=True),
-            measured_utc=r.string(t, "measured_utc", "latency", "", allow_empty=True))
-    return CalibrationRecord(description=r.string(doc, "description", "", "", allow_empty=True),
-                             microphones=tuple(mics), outputs=tuple(outs), latency=latency, source=src)
-
-
-def _mic(entry: dict, where: str, r: FieldReader) -> MicCalibration:
-    """One ``[[microphones]]`` entry; a stated dB sensitivity must agree with the mV/Pa value."""
-    r.keys(entry, _MIC_KEYS, where)
-    mic = MicCalibration(
-        name=r.string(entry, "name", where, allow_empty=True), input_channel=r.integer(entry, "input_channel", where),
-        sensitivity_mv_per_pa=r.number(entry, "sensitivity_mv_per_pa", where, positive=True),
-        input_full_scale_vrms=r.number(entry, "input_full_scale_vrms", where, positive=True),
-        calibrator_level_db_spl=r.number(entry, "calibrator_level_db_spl", where, 94.0, positive=True),
-        calibrator_frequency_hz=r.number(entry, "calibrator_frequency_hz", where, 1000.0, positive=True),
-        calibrator_class=r.string(entry, "calibrator_class", where, "", allow_empty=True),
-        recorded_rms_dbfs=r.number(entry, "recorded_rms_dbfs", where, None),
-        recording=r.string(entry, "recording", where, "", allow_empty=True),
-        measured_utc=r.string(entry, "measured_utc", where, "", allow_empty=True))
-    if "sensitivity_db_re_1v_per_pa" in entry:
-        stated = r.number(entry, "sensitivity_db_re_1v_per_pa", where)
-        implied = sensitivity_db_re_1v_per_pa(mic.sensitivity_mv_per_pa)
-        if abs(stated - implied) > 0.01:
-            raise r.fail(f"{where}.sensitivity_db_re_1v_per_pa",
-                         f"{stated:g} dB re 1 V/Pa disagrees with {mic.sensitivity_mv_per_pa:g} mV/Pa "
-                         f"({implied:.2f} dB)", fix="correct one of them, or delete the dB value")
-    return mic
-
-
-def _array_of_tables(doc: dict, key: str, src: str) -> list[dict]:
-    v = doc.get(key, [])
-    if not isinstance(v, list) or not all(isinstance(e, dict) for e in v):
-        raise InputError(f"must be an array of tables ([[{key}]])", source=src, field=key)
-    return v
-
-
-# ------------------------------------------------------------------ TOML writing
-
-#: Column at which the comment after a value starts (as far as the value leaves room).
-_COMMENT_COLUMN = 45
-
-
-def _add_pairs(table: Any, pairs: Sequence[tuple[str, Any, str]]) -> None:
-    """Add ``key = value  # comment`` lines to a tomlkit table, skipping None and empty strings."""
-    for key, value, comment in pairs:
-        if value is None or value == "":
-            continue
-        if isinstance(value, float) and not math.isfinite(value):
-            raise InputError(f"cannot write {value!r}: not a finite number", field=key)
-        item = tomlkit.item(value)
-        if comment:
-            item.comment(comment)
-            width = len(f"{key} = {item.as_string()}")
-            item.trivia.comment_ws = " " * max(1, _COMMENT_COLUMN - width)
-        table.add(key, item)
-
-
-def _array_of_tables_of(rows: Sequence[Sequence[tuple[str, Any, str]]]) -> Any:
-    out = tomlkit.aot()
-    for pairs in rows:
-        table = tomlkit.table()
-        _add_pairs(table, pairs)
-        out.append(table)
-    return out
-
-
-def format_calibration(rec: CalibrationRecord) -> str:
-    """The TOML text of `rec` (what :func:`write_calibration` writes), commented, through tomlkit."""
-    doc = tomlkit.document()
-    for line in ("arrayplan calibration record (format: calibration/README.md).",
-                 f"Written by arrayplan {__version__} on {now_utc()}.",
-                 "A full-scale sine has peak 1.0; 0 dBu = 0.7746 V RMS; sensitivity in dB re 1 V/Pa",
-                 "= 20 log10(mV/Pa / 1000).  Calibrate with a calibrator of known class (IEC 60942)",
-                 "and follow its manual and local practice."):
-        doc.add(tomlkit.comment(line))
-    doc.add(tomlkit.nl())
-    _add_pairs(doc, [("format", FORMAT_NAME, ""), ("format_version", FORMAT_VERSION, ""),
-                     ("description", rec.description, "")])
-    if rec.microphones:
-        doc.append("microphones", _array_of_tables_of([[
-            ("name", m.name, "as in the rig file"),
-            ("input_channel", m.input_channel, "1-based input it was calibrated on"),
-            ("sensitivity_mv_per_pa", _significant(m.sensitivity_mv_per_pa), "mV/Pa"),
-            ("sensitivity_db_re_1v_per_pa", round(sensitivity_db_re_1v_per_pa(m.sensitivity_mv_per_pa), 3)
-             if _in_range("sensitivity_mv_per_pa", m.sensitivity_mv_per_pa) else None,
-             "derived, checked on reading"),
-            ("input_full_scale_vrms", _significant(m.input_full_scale_vrms), "V RMS of a full-scale sine"),
-            ("calibrator_level_db_spl", m.calibrator_level_db_spl, "dB re 20 uPa"),
-            ("calibrator_frequency_hz", m.calibrator_frequency_hz, "Hz"),
-            ("calibrator_class", m.calibrator_class, "IEC 60942 class"),
-            ("recorded_rms_dbfs", None if m.recorded_rms_dbfs is None else round(m.recorded_rms_dbfs, 3),
-             "RMS of the recorded tone"),
-            ("recording", m.recording, ""), ("measured_utc", m.measured_utc, "")] for m in rec.microphones]))
-    if rec.outputs:
-        doc.append("outputs", _array_of_tables_of([[
-            ("channel", o.channel, "1-based output channel"),
-            ("full_scale_vrms", _significant(o.full_scale_vrms), "V RMS of a full-scale sine at the output"),
-            ("amplifier_gain_db", o.amplifier_gain_db, "voltage gain after the output, dB"),
-            ("method", o.method, ""), ("measured_utc", o.measured_utc, "")] for o in rec.outputs]))
-    if rec.latency is not None:
-        la = rec.latency
-        table = tomlkit.table()
-        _add_pairs(table, [
-            ("samples", la.samples, "round trip, output to input"),
-            ("sample_rate_hz", la.sample_rate_hz, "valid only at this rate"),
-            ("output_channel", la.output_channel, "1-based"), ("input_channel", la.input_channel, "1-based"),
-            ("device", la.device, ""), ("measured_utc", la.measured_utc, "")])
-        doc.append("latency", table)
-    return tomlkit.dumps(doc)
-
-
-def _in_range(key: str, value: float) -> bool:
-    low, high = RANGES[key]
-    return isinstance(value, (int, float)) and low <= value <= high
-
-
-def _significant(x: float, digits: int = 7) -> float:
-    """`x` rounded to `digits` significant digits (readable, and relative error below 1e-6)."""
-    return float(f"{x:.{digits}g}")
-
-
-def write_calibration(path: str | os.PathLike, rec: CalibrationRecord) -> Path:
-    """Write `rec` to `path` as TOML, atomically; returns the path.
-
-    The text is read back with :func:`parse_calibration` first, so a record
-    that could not be read (a value out of range, a repeated name) is refused
-    with an :class:`InputError` naming the field, and nothing is written.
-    """
-    text = format_calibration(rec)
-    try:
-        text.encode("utf-8")
-    except UnicodeEncodeError:
-        raise InputError("a name or description holds characters that cannot be written as UTF-8",
-                         source=str(path)) from None
-    parse_calibration(text, str(path))
-    return write_text_atomic(path, text)
-
-
-def read_or_new(path: str | os.PathLike, description: str = "") -> CalibrationRecord:
-    """The record at `path`, or an empty one when the file does not exist yet."""
-    path = Path(path)
-    if path.exists():
-        return read_calibration(path)
-    return CalibrationRecord(description=description, source=str(path))
-
 
 # ------------------------------------------------------------------ from recordings
 

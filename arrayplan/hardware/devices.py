@@ -18,7 +18,19 @@ __all__ = ["DeviceInfo", "HostApiInfo", "sounddevice_module", "list_devices", "l
 
 @dataclass(frozen=True)
 class HostApiInfo:
-    """One PortAudio host API (ALSA, JACK, CoreAudio, WASAPI ...)."""
+    """One PortAudio host API (ALSA, JACK, CoreAudio, WASAPI ...).
+
+    Attributes
+    ----------
+    index : int
+        PortAudio's 0-based host API index.
+    name : str
+        E.g. ``"ALSA"``.
+    device_indices : tuple of int
+        PortAudio device indices of this host API.
+    default_input, default_output : int or None
+        Its default input and output device indices; None when it has none.
+    """
 
     index: int
     name: str
@@ -51,13 +63,30 @@ class DeviceInfo:
     default_sample_rate_hz: float
 
     def label(self) -> str:
-        """``"3: Name (Host API, 2 in / 2 out, 48000 Hz)"``."""
+        """The device in one line.
+
+        Returns
+        -------
+        str
+            ``"3: Name (Host API, 2 in / 2 out, 48000 Hz)"``.
+        """
         return (f"{self.index}: {self.name} ({self.host_api}, {self.max_inputs} in / "
                 f"{self.max_outputs} out, {self.default_sample_rate_hz:g} Hz)")
 
 
 def sounddevice_module() -> Any:
-    """Import and return sounddevice, or raise DeviceError when PortAudio is missing."""
+    """Import and return sounddevice, or raise DeviceError when PortAudio is missing.
+
+    Returns
+    -------
+    module
+        The imported :mod:`sounddevice`.
+
+    Raises
+    ------
+    DeviceError
+        The PortAudio library cannot be loaded.
+    """
     try:
         import sounddevice
     except OSError as exc:  # sounddevice raises OSError when libportaudio cannot be loaded
@@ -67,7 +96,13 @@ def sounddevice_module() -> Any:
 
 
 def list_host_apis() -> list[HostApiInfo]:
-    """Every host API PortAudio knows on this machine."""
+    """Every host API PortAudio knows on this machine.
+
+    Returns
+    -------
+    list of HostApiInfo
+        In PortAudio's index order.
+    """
     sd = sounddevice_module()
     apis = []
     for i, api in enumerate(sd.query_hostapis()):
@@ -78,7 +113,13 @@ def list_host_apis() -> list[HostApiInfo]:
 
 
 def list_devices() -> list[DeviceInfo]:
-    """Every PortAudio device, in PortAudio's index order."""
+    """Every PortAudio device, in PortAudio's index order.
+
+    Returns
+    -------
+    list of DeviceInfo
+        Index, name, host API, channel counts and default rate (Hz).
+    """
     sd = sounddevice_module()
     apis = sd.query_hostapis()
     out = []
@@ -90,7 +131,14 @@ def list_devices() -> list[DeviceInfo]:
 
 
 def default_device_index() -> int | None:
-    """The device PortAudio uses by default for duplex streams, or None."""
+    """The device PortAudio uses by default for duplex streams, or None.
+
+    Returns
+    -------
+    int or None
+        PortAudio's default output device index, else its default input
+        device index; None when neither is set.
+    """
     sd = sounddevice_module()
     din, dout = sd.default.device
     for d in (dout, din):
@@ -120,6 +168,11 @@ def choose_device(spec: str | int | None, *, n_inputs: int = 0, n_outputs: int =
         The devices to choose from (default: :func:`list_devices`).
     default_index : int, optional
         The default device when `spec` is None (default: PortAudio's).
+
+    Returns
+    -------
+    DeviceInfo
+        The chosen device.
 
     Raises
     ------
@@ -176,6 +229,15 @@ def check_stream_settings(device: DeviceInfo, sample_rate_hz: float, n_inputs: i
                           n_outputs: int) -> None:
     """Ask PortAudio whether `device` can run a duplex stream at `sample_rate_hz`.
 
+    Parameters
+    ----------
+    device : DeviceInfo
+        The device.
+    sample_rate_hz : float
+        Sample rate (Hz).
+    n_inputs, n_outputs : int
+        Input and output channels the stream opens.
+
     Raises
     ------
     DeviceError
@@ -200,7 +262,22 @@ def check_stream_settings(device: DeviceInfo, sample_rate_hz: float, n_inputs: i
 
 def format_device_table(devices: Sequence[DeviceInfo], host_apis: Sequence[HostApiInfo],
                         default_index: int | None = None) -> str:
-    """A plain-text listing of host APIs and devices (the ``devices`` command's output)."""
+    """A plain-text listing of host APIs and devices (the ``devices`` command's output).
+
+    Parameters
+    ----------
+    devices : sequence of DeviceInfo
+        The devices to list.
+    host_apis : sequence of HostApiInfo
+        The host APIs to list.
+    default_index : int, optional
+        Index of the default device, marked with ``*``.
+
+    Returns
+    -------
+    str
+        Lines without a final newline.
+    """
     lines = ["Host APIs:"]
     for api in host_apis:
         lines.append(f"  {api.index}: {api.name} ({len(api.device_indices)} devices)")

@@ -60,12 +60,24 @@ class DuplexResult:
 
     @property
     def xrun(self) -> bool:
-        """True when any block after the lead-in was lost or padded."""
+        """Whether any block after the lead-in was lost or padded.
+
+        Returns
+        -------
+        bool
+            True when any overflow, underflow or dropout count is non-zero.
+        """
         return bool(self.input_overflows or self.input_underflows or self.output_underflows
                     or self.output_overflows or self.dropouts)
 
     def flag_texts(self) -> list[str]:
-        """One short phrase per kind of flag raised, e.g. ``"3 input overflows"``."""
+        """One short phrase per kind of flag raised, e.g. ``"3 input overflows"``.
+
+        Returns
+        -------
+        list of str
+            Empty when no flag was raised.
+        """
         out = []
         for count, what in ((self.input_overflows, "input overflow"),
                             (self.input_underflows, "input underflow"),
@@ -116,7 +128,18 @@ class AudioLink(Protocol):
 
 
 def first_sound_index(signal: np.ndarray) -> int:
-    """Index of the first sample where any channel of `signal` is non-zero (len if none)."""
+    """Index of the first sample where any channel of `signal` is non-zero (len if none).
+
+    Parameters
+    ----------
+    signal : array_like, shape (n_samples, n_channels)
+        Output samples.
+
+    Returns
+    -------
+    int
+        0-based sample index; n_samples for silence.
+    """
     nz = np.flatnonzero(np.any(np.asarray(signal) != 0, axis=1))
     return int(nz[0]) if nz.size else int(len(signal))
 
@@ -180,7 +203,26 @@ class SoundDeviceLink:
 
     def play_record(self, signal: np.ndarray, out_channels: Sequence[int],
                     in_channels: Sequence[int]) -> DuplexResult:
-        """Play `signal` on `out_channels` and record `in_channels` (see :class:`AudioLink`)."""
+        """Play `signal` on `out_channels` and record `in_channels` (see :class:`AudioLink`).
+
+        Parameters
+        ----------
+        signal : ndarray, shape (n_samples, len(out_channels))
+            Output samples, full scale 1, finite, peak at most 1.
+        out_channels, in_channels : sequence of int
+            0-based device channels.
+
+        Returns
+        -------
+        DuplexResult
+            The recording, shape (n_samples, len(in_channels)), with the
+            stream's flags.
+
+        Raises
+        ------
+        DeviceError
+            A bad signal or channel, or a stream PortAudio refuses.
+        """
         sig = _check_channels(signal, out_channels, in_channels, self.n_outputs, self.n_inputs,
                               f"device {self.device.index} ({self.device.name})")
         sd = sounddevice_module()

@@ -46,7 +46,8 @@ from ..errors import DeviceError, InputError
 from ..formats.fileio import make_folders
 from ..progress import ticking
 from ..signals.sweeps import SweepSignal, make_sweep
-from .calibration import CalibrationRecord, calibration_factors
+from ..formats.calibration_record import CalibrationRecord
+from .calibration import calibration_factors
 from .duplex import AudioLink, DuplexResult
 from .measure_settings import MeasurementSettings, RigWiring
 from .session_files import (SESSION_FILE, TakeResult, _cleanup_staging, _load_take, _open_session, _save_take,

@@ -69,7 +69,24 @@ class MeasurementSettings:
     clip_threshold: float = CLIP_THRESHOLD
 
     def sweep_settings(self, sample_rate_hz: float) -> SweepSettings:
-        """The sweep of one repeat, at `sample_rate_hz`."""
+        """The sweep of one repeat, at `sample_rate_hz`.
+
+        Parameters
+        ----------
+        sample_rate_hz : float
+            The device's sample rate (Hz); without an f2, the sweep stops at
+            min(20 kHz, 0.45 fs).
+
+        Returns
+        -------
+        SweepSettings
+            Exponential or linear sweep settings for :func:`make_sweep`.
+
+        Raises
+        ------
+        InputError
+            Fewer than 1 repeat, or a non-positive duration.
+        """
         if self.repeats < 1:
             raise InputError(f"repeats must be at least 1, got {self.repeats}", field="repeats")
         for name, v in (("ir_s", self.ir_s), ("max_latency_s", self.max_latency_s),
@@ -87,6 +104,16 @@ class MeasurementSettings:
 
     def pre_roll_samples(self, sweep: SweepSignal) -> int:
         """Samples kept before zero lag: `pre_s`, else the sweep's default.
+
+        Parameters
+        ----------
+        sweep : SweepSignal
+            The sweep that was played.
+
+        Returns
+        -------
+        int
+            Pre-roll (samples).
 
         Raises
         ------
@@ -158,7 +185,23 @@ class RigWiring:
 
     @classmethod
     def from_rig(cls, rig: Any) -> "RigWiring":
-        """From an :class:`arrayplan.rig.Rig` (1-based channels become 0-based)."""
+        """From an :class:`arrayplan.rig.Rig` (1-based channels become 0-based).
+
+        Parameters
+        ----------
+        rig : Rig
+            Element names, 1-based hardware channels and reference.
+
+        Returns
+        -------
+        RigWiring
+            0-based device channels.
+
+        Raises
+        ------
+        InputError
+            A reference with only one of its two channels.
+        """
         hw = rig.hardware
         ref = None
         if (hw.reference_output is None) != (hw.reference_input is None):
@@ -173,15 +216,35 @@ class RigWiring:
 
     @property
     def n_outputs_needed(self) -> int:
-        """Highest 1-based output channel used."""
+        """Highest 1-based output channel used.
+
+        Returns
+        -------
+        int
+            Outputs the device must have (reference included).
+        """
         return max(list(self.speaker_outputs) + ([self.reference[0]] if self.reference else [])) + 1
 
     @property
     def n_inputs_needed(self) -> int:
-        """Highest 1-based input channel used."""
+        """Highest 1-based input channel used.
+
+        Returns
+        -------
+        int
+            Inputs the device must have (reference included).
+        """
         return max(list(self.mic_inputs) + ([self.reference[1]] if self.reference else [])) + 1
 
     def to_json(self) -> dict[str, Any]:
+        """The wiring as plain data for the session file.
+
+        Returns
+        -------
+        dict
+            ``rig_sha256``, speakers and microphones with their 1-based
+            channels, and the 1-based reference pair (or None).
+        """
         return {
             "rig_sha256": self.rig_sha256,
             "speakers": [{"name": n, "output_channel": c + 1} for n, c in

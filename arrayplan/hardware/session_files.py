@@ -18,11 +18,10 @@ from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
 
-from ..formats.audiofiles import read_audio
 from ..errors import InputError
 from ..formats.fileio import (check_folder, clean_stale_staging, new_staging_folder, provenance, publish_folder,
                       write_checksums, write_json_atomic)
-from ..formats.irset import IRSet, write_irset
+from ..formats.irset import IRSet, read_irset, write_irset
 
 if TYPE_CHECKING:
     from ..signals.sweeps import SweepSignal
@@ -39,7 +38,32 @@ _STAGING_PREFIX = ".staging-"
 
 @dataclass
 class TakeResult:
-    """One speaker's take, as saved in its take.json."""
+    """One speaker's take, as saved in its take.json.
+
+    Attributes
+    ----------
+    index : int
+        0-based speaker index in the rig.
+    speaker : str
+        The speaker's name.
+    folder : Path
+        The take's folder (``takes/<take_folder_name>``).
+    status : str
+        ``"ok"``, or ``"marked"`` when the take has warnings.
+    warnings : list of str
+        One line each.
+    latency_samples : int or None
+        Round-trip latency used (samples).
+    latency_source : str
+        ``"reference"``, ``"calibration"``, ``"given"`` or ``"none"``.
+    peak_to_noise_db : list of float or None
+        Per microphone, the response's peak-to-noise ratio (dB); None where
+        not measured.
+    resumed : bool
+        True when the take was read back from an earlier run.
+    details : dict
+        Further figures of the take's analysis.
+    """
 
     index: int
     speaker: str
@@ -54,13 +78,38 @@ class TakeResult:
 
 
 def take_folder_name(index: int, speaker: str) -> str:
-    """``"003-S3"``: 1-based index and the speaker's name made safe for file systems."""
+    """``"003-S3"``: 1-based index and the speaker's name made safe for file systems.
+
+    Parameters
+    ----------
+    index : int
+        0-based speaker index.
+    speaker : str
+        The speaker's name; characters other than letters, digits, ``-``,
+        ``_`` and ``.`` become ``_``.
+
+    Returns
+    -------
+    str
+        Three-digit 1-based index, ``-``, safe name.
+    """
     safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in speaker)
     return f"{index + 1:03d}-{safe}"
 
 
 def completed_takes(out_dir: Path) -> dict[str, Path]:
-    """Finished take folders in `out_dir` by folder name (those holding a take.json)."""
+    """Finished take folders in `out_dir` by folder name (those holding a take.json).
+
+    Parameters
+    ----------
+    out_dir : Path
+        The measurement folder (its ``takes/`` subfolder is searched).
+
+    Returns
+    -------
+    dict of str to Path
+        Folder name -> folder, in name order; empty without ``takes/``.
+    """
     takes = Path(out_dir) / "takes"
     if not takes.is_dir():
         return {}
@@ -207,13 +256,16 @@ def _write_combined(out_dir: Path, takes: Sequence[TakeResult], wiring: RigWirin
         except InputError as exc:
             raise InputError(exc.problem, source=exc.source,
                              fix="delete this take's folder to measure it again") from None
-        wav = t.folder / "irset" / "spk-001.wav"
-        data, rate = read_audio(wav, what="a finished take's responses",
-                                fix="delete this take's folder to measure it again")
-        if rate != round(fs) or data.shape[1] != len(wiring.mic_names):
-            raise InputError(f"take does not match the session ({data.shape[1]} channels at {rate} Hz)",
-                             source=str(wav), fix="delete this take's folder to measure it again")
-        blocks.append(data)
+        try:
+            take = read_irset(t.folder / "irset")
+        except InputError as exc:
+            raise InputError(exc.problem, source=exc.source, field=exc.field,
+                             fix="delete this take's folder to measure it again") from None
+        if round(take.sample_rate_hz) != round(fs) or take.n_mic != len(wiring.mic_names) or take.n_spk != 1:
+            raise InputError(f"take does not match the session ({take.n_mic} microphones x {take.n_spk} speakers at "
+                             f"{take.sample_rate_hz:g} Hz)", source=str(t.folder / "irset"),
+                             fix="delete this take's folder to measure it again")
+        blocks.append(take.data[:, :, 0])
     lengths = {b.shape[0] for b in blocks}
     if len(lengths) != 1:
         raise InputError(f"takes have different lengths {sorted(lengths)}", source=str(out_dir))

@@ -131,6 +131,26 @@ class SimulatedLink:
         Channels come from the rig (its 1-based numbers become 0-based here),
         and so does the loopback reference when the rig names one.  Keyword
         options are those of the constructor.
+
+        Parameters
+        ----------
+        rig : Rig
+            Elements, hardware channels, medium and room.
+        sample_rate_hz : float
+            Sample rate of the simulated interface (Hz).
+        n_ir_samples : int
+            Length of the true impulse responses (samples).
+        truth_errors : TruthErrors, optional
+            How the built rig differs from the rig file.
+        **options
+            Further constructor arguments (noise, latency, nonlinearity,
+            dropouts, seed, reference ...).
+
+        Returns
+        -------
+        SimulatedLink
+            A link whose truth is an IR set of shape (n_ir_samples or more,
+            n_mic, n_spk).
         """
         from ..kernels.model_irs import free_field_irset, rig_irset, truth_irset
 
@@ -151,6 +171,16 @@ class SimulatedLink:
         Seeded by ``(seed, out channels, in channels, n)`` where ``n`` counts
         earlier calls of this link with the same channels (0 for the first
         take of each speaker).  Calls with other channels do not shift it.
+
+        Parameters
+        ----------
+        out_channels, in_channels : sequence of int
+            0-based channels of the call.
+
+        Returns
+        -------
+        numpy.random.Generator
+            A fresh generator; the call count for these channels goes up by one.
         """
         key = (tuple(int(c) for c in out_channels), tuple(int(c) for c in in_channels))
         n = self._plays.get(key, 0)
@@ -161,7 +191,26 @@ class SimulatedLink:
 
     def play_record(self, signal: np.ndarray, out_channels: Sequence[int],
                     in_channels: Sequence[int]) -> DuplexResult:
-        """Simulate playing `signal` and recording (see :class:`arrayplan.hardware.duplex.AudioLink`)."""
+        """Simulate playing `signal` and recording (see :class:`arrayplan.hardware.duplex.AudioLink`).
+
+        Each speaker output is passed through the nonlinearity and convolved
+        with the true responses; the reference output is looped to its input;
+        then the latency, noise and dropouts are applied and the inputs
+        clipped to full scale.
+
+        Parameters
+        ----------
+        signal : ndarray, shape (n_samples, len(out_channels))
+            Output samples, full scale 1.
+        out_channels, in_channels : sequence of int
+            0-based channels.
+
+        Returns
+        -------
+        DuplexResult
+            Recording of shape (n_samples, len(in_channels)), float32 values
+            as float64, and the number of dropouts.
+        """
         from scipy.signal import fftconvolve
 
         sig = _check_channels(signal, out_channels, in_channels, self.n_outputs, self.n_inputs,

@@ -73,7 +73,11 @@ def estimate_latency(reference: np.ndarray, sweep: SweepSignal, max_latency_samp
     reference : ndarray, shape (n_samples,)
         The reference input's recording of one sweep file (lead-in, sweep, tail).
     sweep : SweepSignal
+        The sweep that was played.
     max_latency_samples : int
+        Longest latency searched (samples).
+    source : str
+        Named in messages.
 
     Returns
     -------

@@ -32,7 +32,19 @@ def rig_kernel(rig: Rig, *, free_field: bool = False) -> RoomKernel | FreeFieldK
 
 
 def kernel_settings(kernel: object) -> dict:
-    """A kernel's name and settings as plain data, for sidecars."""
+    """A kernel's name and settings as plain data, for sidecars.
+
+    Parameters
+    ----------
+    kernel : object
+        Any kernel; one with a ``settings()`` method gives its own.
+
+    Returns
+    -------
+    dict
+        The kernel's ``settings()``, or ``kernel`` (its name) plus, when it
+        has a medium, ``speed_of_sound`` (m/s) and ``air_absorption``.
+    """
     if hasattr(kernel, "settings"):
         return kernel.settings()
     out = {"kernel": getattr(kernel, "name", "free field" if isinstance(kernel, FreeFieldKernel)

@@ -30,7 +30,18 @@ class Kernel(Protocol):
     mic_names: tuple[str, ...]
 
     def evaluate(self, hz: np.ndarray) -> np.ndarray:
-        """Coupling matrices at `hz` (Hz, shape (n,)); returns shape (n, n_mic, n_spk), complex."""
+        """Coupling matrices at `hz`.
+
+        Parameters
+        ----------
+        hz : ndarray, shape (n,)
+            Frequencies (Hz).
+
+        Returns
+        -------
+        ndarray, complex, shape (n, n_mic, n_spk)
+            G per frequency, exp(-jkr) sign.
+        """
         ...
 
 
@@ -60,7 +71,22 @@ class CouplingStack:
 
     @classmethod
     def from_kernel(cls, kernel: Kernel, axis: FrequencyAxis, chunk_size: int = 64) -> "CouplingStack":
-        """Evaluate `kernel` on `axis`, `chunk_size` frequencies at a time."""
+        """Evaluate `kernel` on `axis`, `chunk_size` frequencies at a time.
+
+        Parameters
+        ----------
+        kernel : Kernel
+            Free-field, room, measured or any object with ``evaluate``.
+        axis : FrequencyAxis
+            Frequencies (Hz).
+        chunk_size : int
+            Frequencies per ``evaluate`` call.
+
+        Returns
+        -------
+        CouplingStack
+            Data of shape (n_freq, n_mic, n_spk) with the kernel's names.
+        """
         hz = axis.hz
         out = np.empty((len(hz), len(kernel.mic_names), len(kernel.speaker_names)), dtype=complex)
         for start in range(0, len(hz), chunk_size):
@@ -69,6 +95,13 @@ class CouplingStack:
 
     @property
     def shape(self) -> tuple[int, int, int]:
+        """Shape of the data.
+
+        Returns
+        -------
+        (int, int, int)
+            (n_freq, n_mic, n_spk).
+        """
         return self.data.shape  # type: ignore[return-value]
 
     def __getitem__(self, index: int | slice | Sequence[int]) -> "CouplingStack":
@@ -77,15 +110,43 @@ class CouplingStack:
         return CouplingStack(self.data[idx], self.axis[idx], self.speaker_names, self.mic_names)
 
     def sum_rule(self) -> np.ndarray:
-        """Sum of |G_ms|^2 per frequency, shape (n_freq,)."""
+        """Sum of |G_ms|^2 per frequency (equal to the sum of s_j^2 of its SVD).
+
+        Returns
+        -------
+        ndarray, shape (n_freq,)
+            Sum over microphones and speakers of |G|^2, in the squared unit of G.
+        """
         return np.sum(np.abs(self.data) ** 2, axis=(1, 2))
 
     def transposed(self) -> "CouplingStack":
-        """The reciprocal stack: speakers and microphones swapped, G -> G^T."""
+        """The reciprocal stack: speakers and microphones swapped, G -> G^T.
+
+        Returns
+        -------
+        CouplingStack
+            Data of shape (n_freq, n_spk, n_mic), names swapped.
+        """
         return CouplingStack(np.swapaxes(self.data, 1, 2), self.axis, self.mic_names, self.speaker_names)
 
     def evaluate(self, hz: np.ndarray) -> np.ndarray:
-        """Kernel interface: the stored matrices at exactly these frequencies (no interpolation)."""
+        """Kernel interface: the stored matrices at exactly these frequencies (no interpolation).
+
+        Parameters
+        ----------
+        hz : array_like, shape (n,)
+            Frequencies on this stack's axis (Hz), within a relative 1e-9.
+
+        Returns
+        -------
+        ndarray, complex, shape (n, n_mic, n_spk)
+            The stored matrices.
+
+        Raises
+        ------
+        InputError
+            A frequency that is not on the axis.
+        """
         idx = [self.axis.index_of(f) for f in np.atleast_1d(hz)]
         if not np.allclose(self.axis.hz[idx], hz, rtol=1e-9, atol=0):
             raise InputError("requested frequencies are not on this stack's axis",

@@ -55,7 +55,24 @@ class FreeFieldKernel:
     @classmethod
     def between(cls, speakers: ElementSet, receivers: ElementSet, medium: Medium,
                 min_distance_m: float = 1e-3) -> "FreeFieldKernel":
-        """A kernel from `speakers` to arbitrary `receivers`; distances clamped at `min_distance_m`."""
+        """A kernel from `speakers` to arbitrary `receivers`; distances clamped at `min_distance_m`.
+
+        Parameters
+        ----------
+        speakers : ElementSet
+            Sources (columns of G), positions in m.
+        receivers : ElementSet
+            Receiving points (rows of G), positions in m.
+        medium : Medium
+            Speed of sound and air absorption.
+        min_distance_m : float
+            Smallest distance used (m), so a receiver on a speaker stays finite.
+
+        Returns
+        -------
+        FreeFieldKernel
+            Not checked like a rig (no coincidence or name checks).
+        """
         self = cls.__new__(cls)
         self._setup(speakers, receivers, medium, min_distance_m)
         return self
@@ -75,11 +92,28 @@ class FreeFieldKernel:
 
     @property
     def distances_m(self) -> np.ndarray:
-        """Speaker-to-microphone distances in metres, shape (n_mic, n_spk)."""
+        """Speaker-to-microphone distances.
+
+        Returns
+        -------
+        ndarray, shape (n_mic, n_spk)
+            Distances (m), after clamping at the kernel's minimum distance.
+        """
         return self._r
 
     def evaluate(self, hz: np.ndarray) -> np.ndarray:
-        """Coupling matrices at `hz` (Hz, shape (n,)); shape (n, n_mic, n_spk), complex."""
+        """Coupling matrices at `hz`.
+
+        Parameters
+        ----------
+        hz : array_like, shape (n,)
+            Frequencies (Hz).
+
+        Returns
+        -------
+        ndarray, complex, shape (n, n_mic, n_spk)
+            G in Pa per unit source strength (1/m), exp(-jkr) sign.
+        """
         hz = np.atleast_1d(np.asarray(hz, dtype=float))
         medium = self.medium
         k = 2.0 * np.pi * hz / medium.speed_of_sound

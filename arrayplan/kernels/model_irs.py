@@ -140,6 +140,23 @@ def free_field_irset(rig: Rig, sample_rate_hz: float, n_samples: int, zero_lag_s
 
     `zero_lag_samples` (default 0) keeps that many samples before zero lag
     and is recorded in the set.
+
+    Parameters
+    ----------
+    rig : Rig
+        Speakers, microphones and medium; its room, if any, is ignored.
+    sample_rate_hz : float
+        Sample rate (Hz).
+    n_samples : int
+        Length of each response (samples).
+    zero_lag_samples : int
+        Samples kept before zero lag.
+
+    Returns
+    -------
+    IRSet
+        Responses of shape (n_samples, n_mic, n_spk), pressure per unit
+        source strength (1/m).
     """
     return _irset(rig, FreeFieldKernel(rig), sample_rate_hz, n_samples, zero_lag_samples)
 
@@ -221,11 +238,23 @@ class TruthErrors:
 
     @property
     def any(self) -> bool:
-        """Whether the truth differs from the rig file at all."""
+        """Whether the truth differs from the rig file at all.
+
+        Returns
+        -------
+        bool
+            True when any standard deviation is non-zero or a floor is set.
+        """
         return bool(self.placement_mm or self.gain_db or self.phase_deg or self.floor_absorption is not None)
 
     def settings(self) -> dict:
-        """Plain data for sidecars."""
+        """Plain data for sidecars.
+
+        Returns
+        -------
+        dict
+            The fields by name (mm, dB, degrees, absorption, seed).
+        """
         return dataclasses.asdict(self)
 
 

@@ -8,7 +8,7 @@ example::
       plan/          weights.json (kind arrayplan-plan), weights.npz, summary.csv, ...
       filters/       filters.json, channel-NN-*.wav, check.csv
       meas/          session.json, takes/, irset/ (an IR set)
-      verify/        verify.json (kind arrayplan-verification), verify-*.csv
+      verify/        verify.json (format arrayplan-verification), verify-*.csv
       capacity/      capacity.json (kind arrayplan-capacity-study), tolerance/ tolerance.json (design studies)
 
 Each result is recognised by its sidecar, wherever it lies (up to
@@ -40,6 +40,7 @@ from ..filters.check import FilterCheck
 from ..formats.irset import MANIFEST_NAME, IRSet, read_irset
 from ..frequency import FrequencyAxis
 from ..formats.plan_folder import PlanWeights, planned_rig_file, read_plan
+from ..formats.verification_folder import read_verification_record
 from ..channels.planning import Plan
 from ..rig import Rig, load_rig
 
@@ -353,17 +354,7 @@ _VERIFY_CHANNEL_COLUMNS = ("frequency_hz", "channel", "gain_db", "isolation_db",
 
 
 def _load_verification(folder: Path) -> FoundVerification:
-    check_folder(folder, needed=("verify*",))
-    doc = _read_json(folder / "verify.json")
-    arrays = None
-    if (folder / "verify.npz").is_file():
-        keys = ("frequency_hz", "channels", "channel_matrix", "planned_singular_value", "measured_singular_value",
-                "judged")
-        try:
-            with np.load(folder / "verify.npz", allow_pickle=False) as z:
-                arrays = {k: z[k] for k in keys}
-        except (ValueError, KeyError, OSError) as exc:
-            raise InputError(f"cannot read ({exc})", source=str(folder / "verify.npz")) from None
+    doc, _version, arrays = read_verification_record(folder)      # the sidecar checked, the arrays; not the tables
     channels = _read_csv_columns(folder / "verify-channels.csv")
     for name in _VERIFY_CHANNEL_COLUMNS:
         if name not in channels:

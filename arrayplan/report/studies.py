@@ -9,21 +9,20 @@ size.
 from __future__ import annotations
 
 import csv
-import json
 from pathlib import Path
 
 import numpy as np
 from matplotlib.figure import Figure
 
 from ..errors import InputError
+from ..formats.study_sidecars import STUDY_SIDECARS, read_study_sidecar
 from .html import esc, table
 
 __all__ = ["study_kind", "load_study", "study_section_html", "study_figures", "study_summary",
            "STUDY_NAMES"]
 
-#: Sidecar file and ``kind`` of each study.
-_SIDECARS = {"zones": ("zones.json", "arrayplan-zones-study"), "layout": ("layout.json", "arrayplan-layout-study"),
-             "comparison": ("compare.json", "arrayplan-comparison")}
+#: The studies shown here (their sidecars: :data:`arrayplan.formats.study_sidecars.STUDY_SIDECARS`).
+_STUDIES = ("zones", "layout", "comparison")
 #: Heading of each study's section.
 STUDY_NAMES = {"zones": "Zones study", "layout": "Layout choice", "comparison": "Layout comparison"}
 _METHOD_LABELS = {"contrast": "acoustic contrast control", "matching": "pressure matching",
@@ -32,8 +31,8 @@ _METHOD_LABELS = {"contrast": "acoustic contrast control", "matching": "pressure
 
 def study_kind(folder: Path) -> str | None:
     """``"zones"``, ``"layout"``, ``"comparison"`` or None, from the folder's sidecar file."""
-    for kind, (name, _) in _SIDECARS.items():
-        if (folder / name).is_file():
+    for kind in _STUDIES:
+        if (folder / STUDY_SIDECARS[kind].file).is_file():
             return kind
     return None
 
@@ -56,13 +55,7 @@ def load_study(folder: Path):
     kind = study_kind(folder)
     if kind is None:
         raise InputError("not a study folder", source=str(folder))
-    name, expected = _SIDECARS[kind]
-    try:
-        doc = json.loads((folder / name).read_text(encoding="utf-8"))
-    except (OSError, ValueError) as exc:
-        raise InputError(f"cannot read ({exc.__class__.__name__})", source=str(folder / name)) from None
-    if not isinstance(doc, dict) or doc.get("kind") != expected:
-        raise InputError(f"kind is not {expected!r}", source=str(folder / name), field="kind")
+    doc = read_study_sidecar(folder, kind)
     table_file = {"zones": "zones-metrics.csv", "layout": "layout-steps.csv",
                   "comparison": "compare-by-frequency.csv"}[kind]
     from .discover import FoundStudy

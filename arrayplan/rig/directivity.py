@@ -40,7 +40,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special
 
 from ..errors import InputError
 
@@ -52,10 +51,23 @@ FIRST_ORDER_ALPHA = {"omni": 1.0, "cardioid": 0.5, "supercardioid": 0.37,
 
 
 def piston_factor(v: np.ndarray) -> np.ndarray:
-    """2 J1(v) / v, with the limit 1 at v = 0."""
+    """2 J1(v) / v, with the limit 1 at v = 0.
+
+    Parameters
+    ----------
+    v : array_like
+        Argument k a sin(theta) (dimensionless).
+
+    Returns
+    -------
+    ndarray
+        The piston's far-field pressure factor, same shape as `v`.
+    """
     v = np.asarray(v, dtype=float)
     out = np.ones_like(v)
     nz = np.abs(v) > 1e-8
+    from scipy import special   # here, not at import: scipy.special takes a third of a second to load
+
     out[nz] = 2.0 * special.j1(v[nz]) / v[nz]
     return out
 
@@ -84,10 +96,24 @@ class Directivity:
 
     @property
     def is_omni(self) -> bool:
+        """Whether the gain is 1 in every direction.
+
+        Returns
+        -------
+        bool
+            True for ``"omni"`` and for a non-piston pattern with alpha = 1.
+        """
         return self.kind == "omni" or (self.kind != "piston" and self.alpha == 1.0)
 
     @property
     def depends_on_frequency(self) -> bool:
+        """Whether :meth:`gain` needs the wavenumber.
+
+        Returns
+        -------
+        bool
+            True for a piston, the only frequency-dependent pattern.
+        """
         return self.kind == "piston"
 
     def gain(self, cos_theta: np.ndarray, wavenumber: np.ndarray | float | None = None) -> np.ndarray:
@@ -128,6 +154,29 @@ def parse_directivity(spec: object, *, source: str, field: str,
 
     A name alone (``"cardioid"``) or a table such as
     ``{ type = "piston", radius = 0.05, axis = [0, 1, 0] }``.
+
+    Parameters
+    ----------
+    spec : str, dict or None
+        The value read from the rig file; None gives omni.
+    source : str
+        File the value came from, for error messages.
+    field : str
+        Dotted name of the value in that file, for error messages.
+    default_axis : tuple of 3 float, optional
+        Axis used when the table has none (e.g. the group's outward
+        direction); normalised here.
+
+    Returns
+    -------
+    Directivity
+        The pattern, with a unit axis; :data:`OMNI` for ``"omni"``.
+
+    Raises
+    ------
+    InputError
+        Unknown type or key, a missing or zero axis, a piston radius that is
+        not a positive number of metres, or alpha outside 0..1.
     """
     if spec is None:
         return OMNI

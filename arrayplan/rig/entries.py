@@ -33,12 +33,37 @@ _CSV_KEYS = {"csv", "directivity", "first_channel", "name"}
 def rig_field_reader(source: str, *, collect: bool = False) -> FieldReader:
     """The :class:`FieldReader` of a rig file: coordinates within :data:`MAX_COORDINATE_M`, counts within
     :data:`MAX_ELEMENTS_PER_SIDE`; with `collect`, recoverable problems are recorded (see
-    :mod:`arrayplan.formats.tomlfields`)."""
+    :mod:`arrayplan.formats.tomlfields`).
+
+    Parameters
+    ----------
+    source : str
+        The rig file's path as shown in messages.
+    collect : bool
+        Record recoverable problems instead of raising at the first.
+
+    Returns
+    -------
+    FieldReader
+        A reader bound to `source` with the rig file's limits.
+    """
     return FieldReader(source, collect=collect, number_range=(-MAX_COORDINATE_M, MAX_COORDINATE_M),
                        integer_max=MAX_ELEMENTS_PER_SIDE)
 
 def entry_kind(entry: dict) -> str:
-    """``"csv"``, ``"group"`` or ``"point"``: how a side's entry gives its elements."""
+    """``"csv"``, ``"group"`` or ``"point"``: how a side's entry gives its elements.
+
+    Parameters
+    ----------
+    entry : dict
+        One ``[[speakers]]`` or ``[[microphones]]`` table.
+
+    Returns
+    -------
+    str
+        ``"csv"`` when it has a ``csv`` key, else ``"group"`` when it has a
+        ``shape`` key, else ``"point"``.
+    """
     return "csv" if "csv" in entry else "group" if "shape" in entry else "point"
 
 
@@ -66,6 +91,12 @@ def resolve_entry(entry: Any, index: int, label: str, r: "FieldReader", base: Pa
         Entries on this side, elements resolved before this entry, and the
         channel the entry starts at when it gives none (default names and
         channels depend on them).
+
+    Returns
+    -------
+    EntryElements
+        The entry's names, positions (m, shape (n, 3)), directivities and
+        1-based hardware channels.
 
     Raises
     ------
@@ -118,7 +149,19 @@ def _directivities(spec: Any, outward: np.ndarray | None, n: int, where: str, r:
 
 
 def join_entries(parts: Sequence[EntryElements]) -> ElementSet:
-    """One :class:`ElementSet` from the entries of a side, in order."""
+    """One :class:`ElementSet` from the entries of a side, in order.
+
+    Parameters
+    ----------
+    parts : sequence of EntryElements
+        The side's resolved entries.
+
+    Returns
+    -------
+    ElementSet
+        Names, read-only positions (m, shape (n, 3)), directivities and
+        channels of all entries concatenated; empty when `parts` is.
+    """
     if not parts:
         return ElementSet((), np.zeros((0, 3)), (), ())
     pos_all = np.vstack([p.positions for p in parts])
@@ -129,6 +172,35 @@ def join_entries(parts: Sequence[EntryElements]) -> ElementSet:
 
 
 def resolve_side(entries: Any, label: str, prefix: str, r: FieldReader, base: Path) -> ElementSet:
+    """Resolve every entry of one side of a rig file and join them.
+
+    Channels not given continue from the highest channel of the entries
+    before (the first entry starts at 1).
+
+    Parameters
+    ----------
+    entries : list of dict or None
+        The side's array of tables as read from TOML.
+    label : str
+        ``"speakers"`` or ``"microphones"``.
+    prefix : str
+        Name prefix of the side (not used: default names come from `label`).
+    r : FieldReader
+        Typed access that names the rig file in its errors.
+    base : Path
+        Folder CSV paths are relative to.
+
+    Returns
+    -------
+    ElementSet
+        The side's elements in file order.
+
+    Raises
+    ------
+    InputError
+        The side is missing or not an array of tables, an entry is wrong,
+        or the side has more than :data:`MAX_ELEMENTS_PER_SIDE` elements.
+    """
     if entries is None:
         raise r.fail(label, "missing", fix=f"add at least one [[{label}]] entry")
     if not isinstance(entries, list):
@@ -148,6 +220,37 @@ def resolve_side(entries: Any, label: str, prefix: str, r: FieldReader, base: Pa
 
 def group_elements(entry: dict, where: str, r: FieldReader, sole_prefix: str | None, offset: int
            ) -> tuple[list[str], np.ndarray, np.ndarray]:
+    """The elements of a generated group (``shape`` = line, grid, arc, circle or sphere).
+
+    Parameters
+    ----------
+    entry : dict
+        The group's TOML table (lengths in m, angles in degrees).
+    where : str
+        Field name of the entry in messages, e.g. ``"speakers[0]"``.
+    r : FieldReader
+        Typed access that names the rig file in its errors.
+    sole_prefix : str or None
+        Name prefix when this is the side's only entry (``"S"`` or ``"M"``);
+        None gives ``"G<offset + 1>-"``.  The entry's ``name`` overrides both.
+    offset : int
+        Elements on this side before this entry.
+
+    Returns
+    -------
+    names : list of str
+        ``prefix`` followed by 1, 2, ...
+    positions : ndarray, shape (n, 3)
+        Element positions (m).
+    outward : ndarray, shape (n, 3)
+        Unit outward direction of each element (see
+        :mod:`arrayplan.rig.geometry`).
+
+    Raises
+    ------
+    InputError
+        Unknown shape, or a missing or wrong field.
+    """
     shape = entry["shape"]
     center = r.vector(entry, "center", where, default=(0.0, 0.0, 0.0))
     if shape == "line":

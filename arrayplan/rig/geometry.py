@@ -23,6 +23,16 @@ def orthonormal_pair(normal: np.ndarray | tuple) -> tuple[np.ndarray, np.ndarray
 
     The first is the projection of the global x axis onto the plane (or of y
     when `normal` is along x), so that a grid facing +z has rows along x.
+
+    Parameters
+    ----------
+    normal : array_like, shape (3,)
+        Normal of the plane; any non-zero length.
+
+    Returns
+    -------
+    u, v : ndarray, shape (3,)
+        Unit vectors in the plane, with v = normal x u (right-handed).
     """
     n = _unit(normal)
     ref = np.array([1.0, 0.0, 0.0]) if abs(n[0]) < 0.9 else np.array([0.0, 1.0, 0.0])
@@ -36,6 +46,26 @@ def line(count: int, spacing: float, center: tuple, direction: tuple, facing: tu
 
     The outward direction is `facing` (default: perpendicular to the line,
     from :func:`orthonormal_pair`).
+
+    Parameters
+    ----------
+    count : int
+        Number of points.
+    spacing : float
+        Distance between neighbours (m).
+    center : array_like, shape (3,)
+        Midpoint of the line (m).
+    direction : array_like, shape (3,)
+        Direction of the line; normalised here.
+    facing : array_like, shape (3,), optional
+        Outward direction of every element; normalised here.
+
+    Returns
+    -------
+    positions : ndarray, shape (count, 3)
+        Points in m, in order along `direction`.
+    outward : ndarray, shape (count, 3)
+        Unit outward direction of each point (all the same).
     """
     d = _unit(direction)
     offsets = (np.arange(count) - (count - 1) / 2.0) * spacing
@@ -50,6 +80,24 @@ def grid(counts: tuple[int, int], spacing: tuple[float, float], center: tuple, n
 
     Row-major order: the first index runs along the plane's first axis
     (see :func:`orthonormal_pair`).  The outward direction is `normal`.
+
+    Parameters
+    ----------
+    counts : (int, int)
+        Points along the plane's first and second axis.
+    spacing : (float, float)
+        Pitch along the first and second axis (m).
+    center : array_like, shape (3,)
+        Centre of the grid (m).
+    normal : array_like, shape (3,)
+        Normal of the grid's plane; also the outward direction.
+
+    Returns
+    -------
+    positions : ndarray, shape (counts[0] * counts[1], 3)
+        Points in m.
+    outward : ndarray, shape (counts[0] * counts[1], 3)
+        The unit normal, repeated.
     """
     u, v = orthonormal_pair(normal)
     nu, nv = counts
@@ -67,6 +115,26 @@ def arc(count: int, radius: float, center: tuple, normal: tuple, start_deg: floa
     Angles are measured from the plane's first axis (:func:`orthonormal_pair`)
     towards its second.  A full circle (stop - start = 360) does not repeat
     its first point.  The outward direction is radial.
+
+    Parameters
+    ----------
+    count : int
+        Number of points.
+    radius : float
+        Radius of the arc (m).
+    center : array_like, shape (3,)
+        Centre of the circle (m).
+    normal : array_like, shape (3,)
+        Normal of the circle's plane.
+    start_deg, stop_deg : float
+        First and last angle (degrees).
+
+    Returns
+    -------
+    positions : ndarray, shape (count, 3)
+        Points in m.
+    outward : ndarray, shape (count, 3)
+        Unit radial directions, from `center` to each point.
     """
     u, v = orthonormal_pair(normal)
     full = abs((stop_deg - start_deg) - 360.0) < 1e-9
@@ -76,7 +144,24 @@ def arc(count: int, radius: float, center: tuple, normal: tuple, start_deg: floa
 
 
 def sphere(count: int, radius: float, center: tuple) -> tuple[np.ndarray, np.ndarray]:
-    """`count` nearly uniform points on a sphere (Fibonacci lattice); outward is radial."""
+    """`count` nearly uniform points on a sphere (Fibonacci lattice); outward is radial.
+
+    Parameters
+    ----------
+    count : int
+        Number of points.
+    radius : float
+        Radius of the sphere (m).
+    center : array_like, shape (3,)
+        Centre of the sphere (m).
+
+    Returns
+    -------
+    positions : ndarray, shape (count, 3)
+        Points in m, from near the +z pole to near the -z pole.
+    outward : ndarray, shape (count, 3)
+        Unit radial directions.
+    """
     i = np.arange(count) + 0.5
     z = 1.0 - 2.0 * i / count
     phi = np.pi * (1.0 + 5 ** 0.5) * i

@@ -25,6 +25,16 @@ def speed_of_sound_air(temperature_c: float) -> float:
     """Speed of sound in dry air in m/s at `temperature_c` degrees Celsius.
 
     Uses c = 331.3 * sqrt(1 + theta / 273.15).
+
+    Parameters
+    ----------
+    temperature_c : float
+        Air temperature (degrees Celsius), above -273.15.
+
+    Returns
+    -------
+    float
+        Speed of sound (m/s).
     """
     if not math.isfinite(temperature_c) or temperature_c <= -273.15:
         raise InputError(f"temperature must be above absolute zero, got {temperature_c} °C",
@@ -34,7 +44,22 @@ def speed_of_sound_air(temperature_c: float) -> float:
 
 def water_vapour_molar_percent(temperature_c: float, relative_humidity_pct: float,
                                pressure_kpa: float = _P_REF_KPA) -> float:
-    """Molar concentration of water vapour h in percent (ISO 9613-1, Annex B)."""
+    """Molar concentration of water vapour h in percent (ISO 9613-1, Annex B).
+
+    Parameters
+    ----------
+    temperature_c : float
+        Air temperature (degrees Celsius).
+    relative_humidity_pct : float
+        Relative humidity (%).
+    pressure_kpa : float
+        Atmospheric pressure (kPa).
+
+    Returns
+    -------
+    float
+        Molar concentration of water vapour (%).
+    """
     t = temperature_c + 273.15
     c = -6.8346 * (_T01 / t) ** 1.261 + 4.6151
     psat_over_pr = 10.0 ** c
@@ -108,7 +133,18 @@ class Medium:
             raise InputError(f"pressure must be positive kPa, got {self.pressure_kpa}", field="medium.pressure_kpa")
 
     def absorption_db_per_m(self, frequency_hz: np.ndarray) -> np.ndarray:
-        """Attenuation in dB/m at `frequency_hz` (zeros when absorption is off)."""
+        """Attenuation in dB/m at `frequency_hz` (zeros when absorption is off).
+
+        Parameters
+        ----------
+        frequency_hz : array_like
+            Frequencies (Hz).
+
+        Returns
+        -------
+        ndarray
+            Pure-tone attenuation (dB/m), same shape as `frequency_hz`.
+        """
         f = np.asarray(frequency_hz, dtype=float)
         if not self.air_absorption:
             return np.zeros_like(f)

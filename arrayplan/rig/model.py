@@ -60,12 +60,31 @@ class ElementSet:
 
     @property
     def all_omni(self) -> bool:
+        """Whether every element is omnidirectional.
+
+        Returns
+        -------
+        bool
+            True when each directivity's ``is_omni`` is (also for an empty set).
+        """
         return all(d.is_omni for d in self.directivities)
 
 
 @dataclass(frozen=True)
 class HardwareMap:
-    """How the rig connects to the audio interface (all channels 1-based)."""
+    """How the rig connects to the audio interface (all channels 1-based).
+
+    Attributes
+    ----------
+    device : str, int or None
+        Audio device by name substring or index; None for the default.
+    sample_rate_hz : float or None
+        Sample rate to run the device at (Hz).
+    reference_output, reference_input : int or None
+        1-based output and input channel of the loopback reference, if any.
+    calibration : Path or None
+        Calibration file of the rig's inputs and outputs.
+    """
 
     device: str | int | None = None
     sample_rate_hz: float | None = None
@@ -111,7 +130,29 @@ class PlanSettings:
 
 @dataclass(frozen=True)
 class Rig:
-    """A complete rig description."""
+    """A complete rig description.
+
+    Attributes
+    ----------
+    speakers, mics : ElementSet
+        The speakers (columns of G) and microphones (rows of G).
+    medium : Medium
+        Speed of sound and air absorption.
+    frequencies : FrequencyAxis or None
+        Planning frequencies (Hz), if the rig gives them.
+    hardware : HardwareMap
+        Audio device, sample rate and reference channels.
+    planning : PlanSettings
+        Planning options from the rig file.
+    name, description : str
+        Label and free text.
+    source : str
+        The file the rig came from, or ``"<arrays>"``; named in messages.
+    room : Room or None
+        Rectangular room around the rig; None for free field.
+    zones : tuple of Zone
+        Listening zones from ``[[zones]]`` (see :mod:`arrayplan.rig.zones`).
+    """
 
     speakers: ElementSet
     mics: ElementSet
@@ -127,7 +168,14 @@ class Rig:
 
     @property
     def sha256(self) -> str:
-        """Hash of the resolved geometry, directivities and medium (not of file layout)."""
+        """Hash of the resolved geometry, directivities and medium (not of file layout).
+
+        Returns
+        -------
+        str
+            Hex SHA-256 of the canonical JSON of names, positions (rounded to
+            1e-9 m), directivities, medium and room settings.
+        """
         canon = {
             "speakers": _canon(self.speakers),
             "mics": _canon(self.mics),
@@ -144,7 +192,37 @@ class Rig:
                        speaker_names: Sequence[str] | None = None, mic_names: Sequence[str] | None = None,
                        speaker_directivity: Directivity = OMNI, mic_directivity: Directivity = OMNI,
                        name: str = "rig", source: str = "<arrays>") -> "Rig":
-        """A rig from position arrays in metres, shapes (n_spk, 3) and (n_mic, 3)."""
+        """A rig from position arrays in metres, shapes (n_spk, 3) and (n_mic, 3).
+
+        Parameters
+        ----------
+        speaker_positions : array_like, shape (n_spk, 3)
+            Speaker positions (m).
+        mic_positions : array_like, shape (n_mic, 3)
+            Microphone positions (m).
+        speed_of_sound : float
+            m/s.
+        frequencies : sequence of float, optional
+            Planning frequencies (Hz).
+        speaker_names, mic_names : sequence of str, optional
+            Default ``S1, S2, ...`` and ``M1, M2, ...``.
+        speaker_directivity, mic_directivity : Directivity
+            One pattern for every element of the side (default omni).
+        name : str
+            Label of the rig.
+        source : str
+            Named in messages.
+
+        Returns
+        -------
+        Rig
+            Validated; hardware channels 1..n in order on each side.
+
+        Raises
+        ------
+        InputError
+            Wrong shapes, name counts or any problem of :meth:`problems`.
+        """
         spk = _element_set(speaker_positions, speaker_names, "S", speaker_directivity, source, "speakers")
         mic = _element_set(mic_positions, mic_names, "M", mic_directivity, source, "microphones")
         rig = cls(spk, mic, Medium(speed_of_sound=float(speed_of_sound)),
@@ -234,9 +312,13 @@ def _repeats(values: Sequence[str], what: str, source: str, label: str) -> list[
     return out
 
 
+#: Up to this many pairs, coincident points are found from every distance; beyond it with a KD-tree.
+_BRUTE_FORCE_PAIRS = 1_000_000
+
+
 def coincident_pairs(a: np.ndarray, b: np.ndarray | None = None, radius_m: float = COINCIDENT_M,
                      limit: int = MAX_COINCIDENT_LISTED) -> list[tuple[int, int]]:
-    """Pairs of points closer than `radius_m`, found with a KD-tree (n log n time, linear memory).
+    """Pairs of points closer than `radius_m`: every distance for small sets, else a KD-tree (n log n, linear memory).
 
     Parameters
     ----------
@@ -254,8 +336,6 @@ def coincident_pairs(a: np.ndarray, b: np.ndarray | None = None, radius_m: float
     list of (int, int)
         Row indices into `a` and `b` (or `a`), ordered by the first index, then the second.
     """
-    from scipy.spatial import cKDTree
-
     same = b is None
     b = a if same else b
     ia = np.flatnonzero(np.all(np.isfinite(a), axis=1))
@@ -263,6 +343,18 @@ def coincident_pairs(a: np.ndarray, b: np.ndarray | None = None, radius_m: float
     if not len(ia) or not len(ib):
         return []
     r = float(np.nextafter(radius_m, 0.0))            # strictly closer than radius_m
+    if len(ia) * len(ib) <= _BRUTE_FORCE_PAIRS:       # small rigs: every distance (no scipy.spatial import)
+        d = np.sqrt(np.sum((a[ia][:, None, :] - b[ib][None, :, :]) ** 2, axis=-1))
+        out = []
+        for k, m in zip(*np.nonzero(d <= r)):
+            i, j = int(ia[k]), int(ib[m])
+            if not same or j > i:
+                out.append((i, j))
+                if len(out) >= limit:
+                    break
+        return out
+    from scipy.spatial import cKDTree
+
     tree_b = cKDTree(b[ib])
     counts = tree_b.query_ball_point(a[ia], r, return_length=True)
     out: list[tuple[int, int]] = []

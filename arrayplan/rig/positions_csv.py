@@ -25,11 +25,25 @@ def read_positions_csv(path: str | Path, *, field: str = "csv") -> tuple[list[st
 
     Optional columns ``name`` and ``channel`` (1-based hardware channel).
 
+    Parameters
+    ----------
+    path : str or Path
+        The CSV file (UTF-8, optional byte-order mark).
+    field : str
+        Field named in messages about a missing file.
+
     Returns
     -------
     names : list of str or None
     positions : ndarray, shape (n, 3)
     channels : list of int or None
+
+    Raises
+    ------
+    InputError
+        Missing or unreadable file, a wrong header or row, a non-finite or
+        out-of-range coordinate, an empty name, a channel outside
+        1..MAX_CHANNEL_NUMBER, or no rows.
     """
     path = Path(path)
     src = str(path)

@@ -132,9 +132,27 @@ def _planning(table: Any, r: FieldReader) -> PlanSettings:
 def resolve_section(name: str, table: Any, r: FieldReader, base: Path) -> Any:
     """Resolve one optional table of a rig file: ``medium``, ``frequencies``, ``hardware`` or ``planning``.
 
-    Returns the :class:`Medium`, :class:`FrequencyAxis` (or None),
-    :class:`HardwareMap` or :class:`PlanSettings`; raises InputError at the
-    first problem.
+    Parameters
+    ----------
+    name : str
+        ``"medium"``, ``"frequencies"``, ``"hardware"`` or ``"planning"``.
+    table : dict or None
+        The table as read from TOML; None when the file has none.
+    r : FieldReader
+        Typed access that names the rig file in its errors.
+    base : Path
+        Folder the ``hardware.calibration`` path is relative to.
+
+    Returns
+    -------
+    Medium, FrequencyAxis or None, HardwareMap or PlanSettings
+        The resolved table; defaults when it is absent (None for
+        frequencies).
+
+    Raises
+    ------
+    InputError
+        At the first problem in the table.
     """
     if name == "hardware":
         return _hardware(table, r, base)
@@ -143,6 +161,16 @@ def resolve_section(name: str, table: Any, r: FieldReader, base: Path) -> Any:
 
 def read_rig_document(path: str | Path) -> dict:
     """The TOML document of a rig file, unchecked.
+
+    Parameters
+    ----------
+    path : str or Path
+        The rig file.
+
+    Returns
+    -------
+    dict
+        The parsed TOML, keys and values as :mod:`tomllib` gives them.
 
     Raises
     ------
@@ -177,6 +205,18 @@ def load_rig(path: str | Path) -> Rig:
     file with ``csv``), ``[hardware]``, ``[planning]`` and ``[room]``
     (:func:`arrayplan.rig.room.parse_room`).  See the README
     for every key.
+
+    Parameters
+    ----------
+    path : str or Path
+        The rig file; CSV and calibration paths in it are relative to its
+        folder.
+
+    Returns
+    -------
+    Rig
+        The validated rig, with ``[[zones]]`` resolved; its name defaults
+        to the file's stem.
 
     Raises
     ------

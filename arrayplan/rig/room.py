@@ -38,7 +38,6 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from scipy.interpolate import PchipInterpolator
 
 from ..errors import InputError
 
@@ -67,6 +66,16 @@ def image_count(order: int) -> int:
     """Number of image sources (the source itself included) up to reflection `order`.
 
     The lattice points with ``|i| + |j| + |k| <= order``: (2N+1)(2N^2+2N+3)/3.
+
+    Parameters
+    ----------
+    order : int
+        Highest reflection order N (>= 0).
+
+    Returns
+    -------
+    int
+        Image sources, 1 at order 0, 7 at order 1, 25 at order 2.
     """
     n = int(order)
     return (2 * n + 1) * (2 * n * n + 2 * n + 3) // 3
@@ -97,61 +106,165 @@ class Room:
     @classmethod
     def uniform(cls, size_m: tuple[float, float, float], alpha: float, reflection_order: int = DEFAULT_ORDER,
                 max_delay_ms: float | None = None) -> "Room":
-        """A room whose six surfaces all absorb `alpha` (0..1) at every frequency."""
+        """A room whose six surfaces all absorb `alpha` (0..1) at every frequency.
+
+        Parameters
+        ----------
+        size_m : (float, float, float)
+            Lx, Ly, Lz (m).
+        alpha : float
+            Energy absorption of every surface, 0 (rigid) .. 1 (open).
+        reflection_order : int
+            Highest reflection order kept.
+        max_delay_ms : float, optional
+            Drop paths longer than this (ms).
+
+        Returns
+        -------
+        Room
+            The room, with `alpha` in every surface and octave band.
+        """
         return cls(tuple(float(s) for s in size_m), np.full((6, BAND_CENTRES_HZ.size), float(alpha)),
                    int(reflection_order), max_delay_ms)
 
     @property
     def volume_m3(self) -> float:
+        """Volume of the room.
+
+        Returns
+        -------
+        float
+            Lx Ly Lz (m^3).
+        """
         lx, ly, lz = self.size_m
         return lx * ly * lz
 
     @property
     def surface_areas_m2(self) -> np.ndarray:
-        """Area of each surface in :data:`SURFACES` order, m^2, shape (6,)."""
+        """Area of each surface in :data:`SURFACES` order.
+
+        Returns
+        -------
+        ndarray, shape (6,)
+            Areas (m^2).
+        """
         lx, ly, lz = self.size_m
         return np.array([ly * lz, ly * lz, lx * lz, lx * lz, lx * ly, lx * ly])
 
     @property
     def frequency_independent(self) -> bool:
+        """Whether every surface has the same absorption in every band.
+
+        Returns
+        -------
+        bool
+            True when each surface's seven band values are equal (surfaces may differ).
+        """
         return bool(np.all(self.absorption == self.absorption[:, :1]))
 
     @property
     def n_images(self) -> int:
+        """Number of image sources up to the room's reflection order.
+
+        Returns
+        -------
+        int
+            :func:`image_count` of :attr:`reflection_order` (before any
+            `max_delay_ms` cut).
+        """
         return image_count(self.reflection_order)
 
     def absorption_at(self, hz: np.ndarray) -> np.ndarray:
-        """Absorption per surface at `hz` (Hz, shape (n,)); shape (n, 6), values in [0, 1].
+        """Absorption per surface at `hz`.
 
         Monotone cubic interpolation in log frequency between band centres,
         flat below 125 Hz and above 8 kHz.
+
+        Parameters
+        ----------
+        hz : array_like, shape (n,)
+            Frequencies (Hz); a scalar counts as one.
+
+        Returns
+        -------
+        ndarray, shape (n, 6)
+            Energy absorption per frequency and surface (:data:`SURFACES`
+            order), in [0, 1].
         """
         hz = np.atleast_1d(np.asarray(hz, dtype=float))
         if self.frequency_independent:
             return np.broadcast_to(self.absorption[:, 0], (hz.size, 6)).copy()
         logf = np.log(np.clip(hz, BAND_CENTRES_HZ[0], BAND_CENTRES_HZ[-1]))
+        from scipy.interpolate import PchipInterpolator   # here: slow to import, rarely needed
+
         out = PchipInterpolator(np.log(BAND_CENTRES_HZ), self.absorption, axis=1)(logf).T
         return np.clip(out, 0.0, 1.0)
 
     def reflection_coefficients(self, hz: np.ndarray) -> np.ndarray:
-        """Pressure reflection coefficient beta = sqrt(1 - alpha) per surface; shape (n, 6)."""
+        """Pressure reflection coefficient beta = sqrt(1 - alpha) per surface.
+
+        Parameters
+        ----------
+        hz : array_like, shape (n,)
+            Frequencies (Hz).
+
+        Returns
+        -------
+        ndarray, shape (n, 6)
+            Real reflection coefficients in [0, 1], :data:`SURFACES` order.
+        """
         return np.sqrt(1.0 - self.absorption_at(hz))
 
     def mean_absorption(self, hz: float = 1000.0) -> float:
-        """Area-weighted mean absorption at `hz`."""
+        """Area-weighted mean absorption at `hz`.
+
+        Parameters
+        ----------
+        hz : float
+            Frequency (Hz).
+
+        Returns
+        -------
+        float
+            sum(alpha_i S_i) / sum(S_i), in [0, 1].
+        """
         a = self.absorption_at(np.array([hz]))[0]
         s = self.surface_areas_m2
         return float(np.sum(a * s) / np.sum(s))
 
     def settings(self) -> dict:
-        """The room as plain data for plan sidecars (JSON-ready)."""
+        """The room as plain data for plan sidecars (JSON-ready).
+
+        Returns
+        -------
+        dict
+            ``size_m`` (m), ``surfaces``, ``band_centres_hz`` (Hz),
+            ``absorption`` (6 x 7 nested lists), ``reflection_order``,
+            ``images`` and ``max_delay_ms`` (ms or None).
+        """
         return {"size_m": list(self.size_m), "surfaces": list(SURFACES),
                 "band_centres_hz": BAND_CENTRES_HZ.tolist(), "absorption": self.absorption.tolist(),
                 "reflection_order": self.reflection_order, "images": self.n_images,
                 "max_delay_ms": self.max_delay_ms}
 
     def element_problems(self, es: "ElementSet", label: str, source: str) -> list[InputError]:
-        """Elements of `es` outside the room or within :data:`WALL_CLEARANCE_M` of a wall."""
+        """Elements of `es` outside the room or within :data:`WALL_CLEARANCE_M` of a wall.
+
+        Parameters
+        ----------
+        es : ElementSet
+            Speakers or microphones, positions in m.
+        label : str
+            ``"speakers"`` or ``"microphones"``, for the field name.
+        source : str
+            The rig file, named in messages.
+
+        Returns
+        -------
+        list of InputError
+            One per element too close to a wall or outside; empty when all
+            are well inside.
+        """
         pos = np.asarray(es.positions, dtype=float)
         size = np.asarray(self.size_m)
         clearance = np.minimum(pos, size - pos).min(axis=1)
@@ -167,14 +280,44 @@ class Room:
 
 
 def sabine_t60_s(room: Room, hz: float = 1000.0, speed_of_sound: float = 343.0) -> float:
-    """Sabine reverberation time 24 ln(10) V / (c S alpha_mean), s (0.161 V / (S alpha) at c = 343 m/s)."""
+    """Sabine reverberation time 24 ln(10) V / (c S alpha_mean), s (0.161 V / (S alpha) at c = 343 m/s).
+
+    Parameters
+    ----------
+    room : Room
+        The room.
+    hz : float
+        Frequency at which the absorption is taken (Hz).
+    speed_of_sound : float
+        m/s.
+
+    Returns
+    -------
+    float
+        T60 (s); inf for a rigid room.
+    """
     s = float(np.sum(room.surface_areas_m2))
     a = room.mean_absorption(hz)
     return math.inf if a <= 0 else 24.0 * math.log(10.0) * room.volume_m3 / (speed_of_sound * s * a)
 
 
 def eyring_t60_s(room: Room, hz: float = 1000.0, speed_of_sound: float = 343.0) -> float:
-    """Eyring reverberation time 24 ln(10) V / (-c S ln(1 - alpha_mean)), s."""
+    """Eyring reverberation time 24 ln(10) V / (-c S ln(1 - alpha_mean)), s.
+
+    Parameters
+    ----------
+    room : Room
+        The room.
+    hz : float
+        Frequency at which the absorption is taken (Hz).
+    speed_of_sound : float
+        m/s.
+
+    Returns
+    -------
+    float
+        T60 (s); inf for a rigid room, 0 when the mean absorption is 1.
+    """
     s = float(np.sum(room.surface_areas_m2))
     a = room.mean_absorption(hz)
     if a <= 0:
@@ -185,7 +328,20 @@ def eyring_t60_s(room: Room, hz: float = 1000.0, speed_of_sound: float = 343.0) 
 
 
 def schroeder_frequency_hz(t60_s: float, volume_m3: float) -> float:
-    """Schroeder frequency 2000 sqrt(T60 / V), Hz (T60 in s, V in m^3)."""
+    """Schroeder frequency 2000 sqrt(T60 / V), Hz (T60 in s, V in m^3).
+
+    Parameters
+    ----------
+    t60_s : float
+        Reverberation time (s).
+    volume_m3 : float
+        Room volume (m^3).
+
+    Returns
+    -------
+    float
+        Frequency above which the room's modes overlap (Hz).
+    """
     return 2000.0 * math.sqrt(t60_s / volume_m3)
 
 
@@ -220,6 +376,11 @@ def parse_room(table: Any, r: "FieldReader") -> Room | None:
         The parsed TOML table.
     r : FieldReader
         Typed access that names the rig file in its errors.
+
+    Returns
+    -------
+    Room or None
+        The room; None when `table` is None.
 
     Raises
     ------

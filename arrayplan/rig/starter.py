@@ -172,7 +172,26 @@ class Layout:
 
 
 def parse_counts(value: Any, option: str) -> tuple[int, int]:
-    """Grid counts from ``"4x6"``, ``6`` (a square) or a pair of whole numbers."""
+    """Grid counts from ``"4x6"``, ``6`` (a square) or a pair of whole numbers.
+
+    Parameters
+    ----------
+    value : str, int or pair of int
+        ``"NxM"`` (``×`` also accepted; ``"N"`` for a square), one whole
+        number for a square, or two whole numbers.
+    option : str
+        Option named in messages.
+
+    Returns
+    -------
+    (int, int)
+        Counts along the grid's first and second axis.
+
+    Raises
+    ------
+    InputError
+        Not counts, a count below 1, or fewer than 2 elements in all.
+    """
     if isinstance(value, str):
         parts = value.lower().replace("×", "x").split("x")
         try:
@@ -403,7 +422,18 @@ ROOM_MARGIN_M = 0.1
 
 
 def option_flag(option: str) -> str:
-    """A starter option as messages name it (```spacing```); the command line shows its own flag there."""
+    """A starter option as messages name it (```spacing```); the command line shows its own flag there.
+
+    Parameters
+    ----------
+    option : str
+        Option name, e.g. ``"spacing"``.
+
+    Returns
+    -------
+    str
+        The name between backticks.
+    """
     return f"`{option}`"
 
 
@@ -517,7 +547,20 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
 
 
 def parse_room_size(value: Any, source: str) -> tuple[float, float, float]:
-    """Room size from three numbers or text ``"LxWxH"`` (metres); InputError naming `source` otherwise."""
+    """Room size from three numbers or text ``"LxWxH"`` (metres); InputError naming `source` otherwise.
+
+    Parameters
+    ----------
+    value : str or sequence of float
+        ``"5x4x2.7"`` or three numbers (m).
+    source : str
+        Option named in messages.
+
+    Returns
+    -------
+    (float, float, float)
+        Lx, Ly, Lz (m), each finite and positive.
+    """
     parts = value.lower().split("x") if isinstance(value, str) else value
     try:
         size = tuple(float(p) for p in parts)
@@ -571,8 +614,27 @@ def _placed_in_room(head: list[Part], body: list[Part], tail: list[Part], text: 
 def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = False, **options: Any) -> Path:
     """Write the starter rig of `layout` to `path` atomically; refuse to replace a file unless `force`.
 
-    Returns the path.  Raises InputError (and writes nothing) on bad options
-    or an existing file.
+    Parameters
+    ----------
+    path : str or PathLike
+        The rig file to write.
+    layout : str
+        A key of :data:`LAYOUTS`.
+    force : bool
+        Replace an existing file.
+    **options
+        The layout's options, as for :func:`starter_rig_text`.
+
+    Returns
+    -------
+    Path
+        The path written.
+
+    Raises
+    ------
+    InputError
+        Bad options, an existing file without `force`, or a folder at
+        `path`; nothing is written.
     """
     path = Path(path)
     if path.exists() and not force:

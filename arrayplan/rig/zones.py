@@ -138,6 +138,22 @@ def resolve_zones(entries: Any, mic_names: Sequence[str], mic_positions: np.ndar
 def select_zones(zones: Sequence[Zone], names: Sequence[str] | None, role: str, source: str) -> list[Zone]:
     """The zones named in `names` (default: every zone whose role is `role`).
 
+    Parameters
+    ----------
+    zones : sequence of Zone
+        The rig's zones.
+    names : sequence of str or None
+        Zone names to pick, in the order wanted; None picks by `role`.
+    role : str
+        ``"bright"`` or ``"dark"``.
+    source : str
+        The rig file, named in messages.
+
+    Returns
+    -------
+    list of Zone
+        The chosen zones, in the order of `names` (or of the rig).
+
     Raises
     ------
     InputError
@@ -158,7 +174,21 @@ def select_zones(zones: Sequence[Zone], names: Sequence[str] | None, role: str, 
 
 
 def zones_overlap(bright: Sequence[Zone], dark: Sequence[Zone], tolerance_m: float = 1e-6) -> str | None:
-    """Why the bright and dark zones overlap (a shared zone, microphone or point), or None."""
+    """Why the bright and dark zones overlap (a shared zone, microphone or point), or None.
+
+    Parameters
+    ----------
+    bright, dark : sequence of Zone
+        The zones on each side.
+    tolerance_m : float
+        Points closer than this are the same point (m).
+
+    Returns
+    -------
+    str or None
+        One sentence naming the first zone or pair of points found in both;
+        None when the sides are apart.
+    """
     for b in bright:
         for d in dark:
             if b.name == d.name:

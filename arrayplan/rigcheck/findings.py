@@ -34,7 +34,13 @@ class Finding:
     fix: str | None = None
 
     def one_line(self) -> str:
-        """``severity: field: explanation; fix: ...`` on one line."""
+        """``severity: field: explanation; fix: ...`` on one line.
+
+        Returns
+        -------
+        str
+            Without the fix when there is none.
+        """
         text = f"{self.severity}: {self.field}: {self.explanation}"
         if self.fix:
             text += f"; fix: {self.fix}"
@@ -63,5 +69,16 @@ class SideGroup:
 
 
 def count_by_severity(findings: list[Finding]) -> dict[str, int]:
-    """How many findings of each severity, ``{"error": n, "warning": n, "note": n}``."""
+    """How many findings of each severity, ``{"error": n, "warning": n, "note": n}``.
+
+    Parameters
+    ----------
+    findings : list of Finding
+        The checker's findings.
+
+    Returns
+    -------
+    dict of str to int
+        Count per severity, every severity present.
+    """
     return {s: sum(f.severity == s for f in findings) for s in SEVERITIES}

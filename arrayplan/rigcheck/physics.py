@@ -60,6 +60,18 @@ def aliasing_findings(rig: Rig, groups: dict[str, list[SideGroup]]) -> list[Find
     A uniformly spaced array forms no grating lobes at any steering angle
     when d <= lambda / 2 (the spatial sampling theorem for arrays); above it,
     from f = c / (2 d), it does.
+
+    Parameters
+    ----------
+    rig : Rig
+        The loaded rig.
+    groups : dict of str to list of SideGroup
+        The generated groups of each side.
+
+    Returns
+    -------
+    list of Finding
+        One warning per group spaced wider than half a wavelength.
     """
     if rig.frequencies is None:
         return []
@@ -89,6 +101,16 @@ def paraxial_findings(rig: Rig) -> list[Finding]:
     (areas) assumes small angles (paraxial regime); it is called rough when
     half the sum of the two apertures exceeds half the distance L, the same
     rule :func:`arrayplan.channels.heuristics.paraxial_estimate` uses.
+
+    Parameters
+    ----------
+    rig : Rig
+        The loaded rig.
+
+    Returns
+    -------
+    list of Finding
+        Empty, or one warning.
     """
     spk, mic = aperture_shape(rig.speakers.positions), aperture_shape(rig.mics.positions)
     if spk.kind != mic.kind or spk.kind not in ("line", "area"):
@@ -128,7 +150,21 @@ def _gains(rig: Rig, k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def coupling_findings(rig: Rig, freqs_hz: np.ndarray) -> list[Finding]:
-    """Microphones that hear no speaker and speakers no microphone hears (baffles, nulls)."""
+    """Microphones that hear no speaker and speakers no microphone hears (baffles, nulls).
+
+    Parameters
+    ----------
+    rig : Rig
+        The loaded rig.
+    freqs_hz : ndarray, shape (n_freq,)
+        Frequencies checked (Hz).
+
+    Returns
+    -------
+    list of Finding
+        An error when no path is heard at all; else warnings naming the
+        unheard microphones and the unheard speakers.
+    """
     k = 2.0 * np.pi * freqs_hz / rig.medium.speed_of_sound
     g_spk, g_mic = _gains(rig, k)
     path = (g_spk * g_mic).max(axis=0)                                       # (n_mic, n_spk)
@@ -170,6 +206,18 @@ def piston_findings(rig: Rig, f_top: float) -> list[Finding]:
 
     The far-field piston pattern 2 J1(ka sin theta) / (ka sin theta) holds
     beyond the Rayleigh distance pi a^2 / lambda.
+
+    Parameters
+    ----------
+    rig : Rig
+        The loaded rig.
+    f_top : float
+        Highest planned frequency (Hz).
+
+    Returns
+    -------
+    list of Finding
+        Warnings for overlapping pistons and microphones too close to one.
     """
     out = []
     spk = rig.speakers
@@ -178,30 +226,49 @@ def piston_findings(rig: Rig, f_top: float) -> list[Finding]:
         return out
     if len(spk) > 1:
         gap = np.linalg.norm(spk.positions[:, None] - spk.positions[None], axis=-1) + np.diag(np.full(len(spk), np.inf))
-        clash = np.argwhere(np.triu(gap < radii[:, None] + radii[None, :], 1))
-        if clash.size:
-            i, j = clash[0]
-            out.append(Finding("warning", "speakers",
-                               f"pistons {spk.names[i]} and {spk.names[j]} are {gap[i, j]:.3g} m apart but "
-                               f"{2 * radii[i]:.3g} m and {2 * radii[j]:.3g} m across, so they cannot both be "
-                               f"mounted there ({len(clash)} such pair(s))",
-                               "space the drivers wider or give smaller radii"))
+        out += _first_pair(np.triu(gap < radii[:, None] + radii[None, :], 1), "speakers", lambda i, j, n: (
+            f"pistons {spk.names[i]} and {spk.names[j]} are {gap[i, j]:.3g} m apart but "
+            f"{2 * radii[i]:.3g} m and {2 * radii[j]:.3g} m across, so they cannot both be "
+            f"mounted there ({n} such pair(s))"), "space the drivers wider or give smaller radii")
     lam = rig.medium.speed_of_sound / f_top
     rayleigh = np.pi * radii ** 2 / lam
     dist = np.linalg.norm(rig.mics.positions[:, None] - spk.positions[None], axis=-1)
-    close = np.argwhere(dist < rayleigh[None, :])
-    if close.size:
-        i, j = close[0]
-        out.append(Finding("warning", "speakers/microphones",
-                           f"microphone {rig.mics.names[i]} is {dist[i, j]:.3g} m from piston {spk.names[j]}, inside "
-                           f"its Rayleigh distance pi a^2 / lambda = {rayleigh[j]:.3g} m at {f_top:.0f} Hz, where "
-                           f"the far-field piston pattern does not hold ({len(close)} such pair(s))",
-                           "move the microphones further out or plan below that frequency"))
+    out += _first_pair(dist < rayleigh[None, :], "speakers/microphones", lambda i, j, n: (
+        f"microphone {rig.mics.names[i]} is {dist[i, j]:.3g} m from piston {spk.names[j]}, inside "
+        f"its Rayleigh distance pi a^2 / lambda = {rayleigh[j]:.3g} m at {f_top:.0f} Hz, where "
+        f"the far-field piston pattern does not hold ({n} such pair(s))"),
+        "move the microphones further out or plan below that frequency")
     return out
 
 
+def _first_pair(flagged: np.ndarray, field: str, problem, fix: str) -> list[Finding]:
+    """A warning about the first flagged pair (i, j) of a boolean matrix, counting all of them; else none.
+
+    `problem(i, j, n_pairs)` words it.
+    """
+    pairs = np.argwhere(flagged)
+    if not pairs.size:
+        return []
+    i, j = pairs[0]
+    return [Finding("warning", field, problem(i, j, len(pairs)), fix)]
+
+
 def proximity_findings(rig: Rig, f_low: float) -> list[Finding]:
-    """Directional microphones within kr < 1 of a speaker at the lowest frequency (proximity effect)."""
+    """Directional microphones within kr < 1 of a speaker at the lowest frequency (proximity effect).
+
+    Parameters
+    ----------
+    rig : Rig
+        The loaded rig.
+    f_low : float
+        Lowest planned frequency (Hz).
+
+    Returns
+    -------
+    list of Finding
+        Empty, or one warning naming the directional microphones within
+        kr < 1 of a speaker.
+    """
     c = rig.medium.speed_of_sound
     k = 2.0 * np.pi * f_low / c
     idx = [i for i, d in enumerate(rig.mics.directivities) if not d.is_omni and d.kind != "piston"]
@@ -221,7 +288,21 @@ def proximity_findings(rig: Rig, f_low: float) -> list[Finding]:
 
 
 def compact_findings(rig: Rig, f_top: float) -> list[Finding]:
-    """A side much smaller than a wavelength at the top frequency (k a < 1) carries one strong channel."""
+    """A side much smaller than a wavelength at the top frequency (k a < 1) carries one strong channel.
+
+    Parameters
+    ----------
+    rig : Rig
+        The loaded rig.
+    f_top : float
+        Highest planned frequency (Hz).
+
+    Returns
+    -------
+    list of Finding
+        Per side: a note for a single element, or a warning when the side
+        spans k a < 1.
+    """
     c = rig.medium.speed_of_sound
     k = 2.0 * np.pi * f_top / c
     out = []
@@ -241,7 +322,20 @@ def compact_findings(rig: Rig, f_top: float) -> list[Finding]:
 
 
 def hardware_findings(rig: Rig, f_top: float | None) -> list[Finding]:
-    """Sample rate against the planned band, missing calibration file, reference channel clashes."""
+    """Sample rate against the planned band, missing calibration file, reference channel clashes.
+
+    Parameters
+    ----------
+    rig : Rig
+        The loaded rig.
+    f_top : float or None
+        Highest planned frequency (Hz); None skips the sample-rate check.
+
+    Returns
+    -------
+    list of Finding
+        Warnings about the ``[hardware]`` table.
+    """
     hw, out = rig.hardware, []
     if hw.sample_rate_hz and f_top is not None and f_top >= hw.sample_rate_hz / 2.0:
         out.append(Finding("warning", "hardware.sample_rate_hz",
@@ -267,7 +361,20 @@ def hardware_findings(rig: Rig, f_top: float | None) -> list[Finding]:
 
 
 def medium_findings(rig: Rig, raw_medium: dict) -> list[Finding]:
-    """speed_of_sound and temperature_c that disagree by more than 0.5 %."""
+    """speed_of_sound and temperature_c that disagree by more than 0.5 %.
+
+    Parameters
+    ----------
+    rig : Rig
+        The loaded rig.
+    raw_medium : dict
+        The [medium] table as written in the file.
+
+    Returns
+    -------
+    list of Finding
+        Empty, or one warning.
+    """
     if "speed_of_sound" in raw_medium and "temperature_c" in raw_medium:
         c_t = speed_of_sound_air(rig.medium.temperature_c)
         c = rig.medium.speed_of_sound
@@ -287,7 +394,20 @@ ROOM_SLOW_S = 60.0
 
 
 def room_findings(rig: Rig, freqs_hz: np.ndarray | None) -> list[Finding]:
-    """The room's cost estimate (warning when slow) and its reverberation guides (notes)."""
+    """The room's cost estimate (warning when slow) and its reverberation guides (notes).
+
+    Parameters
+    ----------
+    rig : Rig
+        The loaded rig.
+    freqs_hz : ndarray, shape (n_freq,), or None
+        Planned frequencies (Hz), if any.
+
+    Returns
+    -------
+    list of Finding
+        Empty without a room; else the cost estimate and reverberation notes.
+    """
     room = rig.room
     if room is None:
         return []

@@ -80,6 +80,8 @@ class Deconvolution:
         The whole deconvolved signal.
     linear_lag : int
         Index in `full` of the linear response's zero lag.
+    notes : list of str
+        Remarks on the cut, one line each (none are added by this module).
     zero_lag_index : int
         Index in `linear` of zero lag: the samples kept before it (pre-roll).
     """
@@ -286,7 +288,19 @@ def harmonic_levels_db(linear: np.ndarray, harmonics: Mapping[int, np.ndarray]) 
 
 
 def total_harmonic_level_db(levels_db: Mapping[int, np.ndarray]) -> np.ndarray:
-    """Sum of the harmonic energies relative to the linear one, per channel, dB (broadband THD)."""
+    """Sum of the harmonic energies relative to the linear one, per channel, dB (broadband THD).
+
+    Parameters
+    ----------
+    levels_db : mapping of int to ndarray
+        Harmonic order -> level re the linear response (dB), all of one shape.
+
+    Returns
+    -------
+    ndarray
+        10 log10 of the summed energy ratios (dB), the shape of the levels;
+        empty when `levels_db` is.
+    """
     if not levels_db:
         return np.array([])
     total = sum(10.0 ** (np.asarray(v) / 10.0) for v in levels_db.values())
@@ -326,7 +340,17 @@ def peak_to_noise_db(ir: np.ndarray, noise_fraction: float = 0.1) -> np.ndarray:
 def clipped_sample_counts(recording: np.ndarray, threshold: float = CLIP_THRESHOLD) -> np.ndarray:
     """Number of samples per channel whose magnitude reaches `threshold` (full scale = 1).
 
-    Shape (n_samples, n_channels) -> (n_channels,), int.
+    Parameters
+    ----------
+    recording : ndarray, shape (n_samples, n_channels)
+        Recorded signal, full scale = 1.
+    threshold : float
+        Magnitude counted as clipped (full scale = 1).
+
+    Returns
+    -------
+    ndarray of int, shape (n_channels,)
+        Samples at or above `threshold` per channel.
     """
     rec = _as_2d(recording, "recording")
     return np.sum(np.abs(rec) >= threshold, axis=0).astype(int)
@@ -389,6 +413,8 @@ class OfflineResult:
         The noise floor per order and pair, dB.
     harmonic_status : dict of int -> ndarray of str, shape (n_mic, n_spk)
         "measured", "below the method's floor" or "below the noise floor".
+    zero_lag_index : int
+        0-based index of zero lag in `data` (the pre-roll in samples).
     """
 
     data: np.ndarray
@@ -407,7 +433,18 @@ class OfflineResult:
     harmonic_status: dict[int, np.ndarray] = field(default_factory=dict)
 
     def reported_harmonic_db(self, order: int) -> np.ndarray:
-        """Level of `order` where it is measured, NaN where below a floor; shape (n_mic, n_spk), dB."""
+        """Level of `order` where it is measured, NaN where below a floor.
+
+        Parameters
+        ----------
+        order : int
+            Harmonic order (2, 3, ...).
+
+        Returns
+        -------
+        ndarray, shape (n_mic, n_spk)
+            Level re the linear response (dB), NaN where not measured.
+        """
         return np.where(self.harmonic_status[order] == MEASURED, self.harmonic_db[order], np.nan)
 
 

@@ -102,7 +102,20 @@ def noise_floor_db(linear: np.ndarray, window_lengths: Mapping[int, int],
 
 
 def combined_floor_db(method_db: float | None, noise_db: np.ndarray) -> np.ndarray:
-    """Energy sum of the method's floor (None: unknown, taken as none) and the noise floor, dB."""
+    """Energy sum of the method's floor (None: unknown, taken as none) and the noise floor, dB.
+
+    Parameters
+    ----------
+    method_db : float or None
+        The method's own floor (dB re the linear response).
+    noise_db : array_like
+        Noise floor (dB re the linear response), any shape.
+
+    Returns
+    -------
+    ndarray
+        10 log10 of the summed energies (dB), the shape of `noise_db`.
+    """
     total = 10.0 ** (np.asarray(noise_db, dtype=float) / 10.0)
     if method_db is not None:
         total = total + 10.0 ** (method_db / 10.0)

@@ -51,7 +51,18 @@ DEFAULT_PEAK_CAP_DBFS = -12.0
 
 
 def amplitude_from_dbfs(level_dbfs: float) -> float:
-    """Linear amplitude (full scale = 1) of a level in dBFS."""
+    """Linear amplitude (full scale = 1) of a level in dBFS.
+
+    Parameters
+    ----------
+    level_dbfs : float
+        Level (dBFS).
+
+    Returns
+    -------
+    float
+        10 ** (level_dbfs / 20).
+    """
     return float(10.0 ** (level_dbfs / 20.0))
 
 
@@ -60,7 +71,18 @@ def _db(value: float) -> float:
 
 
 def peak_dbfs(x: np.ndarray) -> float:
-    """Peak level of `x` in dBFS over all samples and channels (-inf for silence)."""
+    """Peak level of `x` in dBFS over all samples and channels (-inf for silence).
+
+    Parameters
+    ----------
+    x : array_like, shape (n_samples,) or (n_samples, n_channels)
+        Signal, full scale = 1.
+
+    Returns
+    -------
+    float
+        Sample peak (dBFS); -inf for silence or an empty signal.
+    """
     x = np.asarray(x, dtype=float)
     return _db(float(np.max(np.abs(x)))) if x.size else -math.inf
 
@@ -122,13 +144,36 @@ def true_peak_dbfs(x: np.ndarray) -> float:
 
 
 def rms_dbfs(x: np.ndarray) -> float:
-    """RMS level of `x` in dBFS over all samples and channels (-inf for silence)."""
+    """RMS level of `x` in dBFS over all samples and channels (-inf for silence).
+
+    Parameters
+    ----------
+    x : array_like, shape (n_samples,) or (n_samples, n_channels)
+        Signal, full scale = 1.
+
+    Returns
+    -------
+    float
+        20 log10 of the RMS (dBFS; a full-scale sine reads -3.01 dBFS); -inf
+        for silence or an empty signal.
+    """
     x = np.asarray(x, dtype=float)
     return _db(float(np.sqrt(np.mean(x * x)))) if x.size else -math.inf
 
 
 def channel_rms_dbfs(x: np.ndarray) -> np.ndarray:
-    """RMS level of each channel of `x`, shape (n_samples, n_channels) -> (n_channels,), dBFS."""
+    """RMS level of each channel of `x`.
+
+    Parameters
+    ----------
+    x : array_like, shape (n_samples, n_channels) or (n_samples,)
+        Signal, full scale = 1; a 1-D signal is one channel.
+
+    Returns
+    -------
+    ndarray, shape (n_channels,)
+        RMS per channel (dBFS); -inf for a silent channel.
+    """
     x = np.asarray(x, dtype=float)
     if x.ndim == 1:
         x = x[:, None]
@@ -164,6 +209,8 @@ def raised_cosine_fade(x: np.ndarray, sample_rate_hz: float, fade_in_s: float, f
         Sample rate in Hz.
     fade_in_s, fade_out_s : float
         Fade durations in seconds, both > 0 (at least 2 samples each).
+    source : str, optional
+        Named in messages.
 
     Returns
     -------
@@ -219,6 +266,13 @@ def highpass(x: np.ndarray, sample_rate_hz: float, cutoff_hz: float, order: int 
         -3 dB frequency in Hz, inside (0, sample_rate_hz / 2).
     order : int
         Filter order (roll-off 6 dB per octave per order), 1 to 8.
+    source : str, optional
+        Named in messages.
+
+    Returns
+    -------
+    ndarray, same shape as `x`
+        The filtered signal (second-order sections, filtered along axis 0).
     """
     from scipy.signal import butter, sosfilt
 
@@ -249,6 +303,8 @@ def condition(x: np.ndarray, sample_rate_hz: float, *, fade_in_s: float, fade_ou
         Cutoff of a Butterworth high-pass applied first, or None for none.
     highpass_order : int
         Its order.
+    source : str, optional
+        Named in messages.
 
     Returns
     -------
@@ -275,6 +331,8 @@ def scale_to_level(x: np.ndarray, *, peak_dbfs: float | None = None,
     x : ndarray, shape (n_samples,) or (n_samples, n_channels)
     peak_dbfs, rms_dbfs : float or None
         Target true peak or RMS level, dBFS.
+    source : str, optional
+        Named in messages.
 
     Returns
     -------
@@ -334,6 +392,8 @@ def check_peak(x: np.ndarray, *, cap_dbfs: float = DEFAULT_PEAK_CAP_DBFS,
         with `allow_above_cap` (:func:`effective_cap_dbfs`).
     allow_above_cap : bool
         Allow a true peak above the cap (never above 0 dBFS).
+    source : str, optional
+        Named in messages.
 
     Returns
     -------

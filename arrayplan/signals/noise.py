@@ -26,7 +26,25 @@ MIN_PERIODS_OF_LOWEST = 10.0
 
 def check_noise_band(duration_s: float, sample_rate_hz: float, f_lo_hz: float, f_hi_hz: float,
                      *, source: str | None = None) -> None:
-    """Refuse band limits outside (0, fs/2] and durations too short for the band."""
+    """Refuse band limits outside (0, fs/2] and durations too short for the band.
+
+    Parameters
+    ----------
+    duration_s : float
+        Noise duration (s); at least :data:`MIN_PERIODS_OF_LOWEST` periods of
+        `f_lo_hz`.
+    sample_rate_hz : float
+        Sample rate (Hz).
+    f_lo_hz, f_hi_hz : float
+        Band limits (Hz), 0 < low < high <= fs / 2.
+    source : str, optional
+        Named in messages.
+
+    Raises
+    ------
+    InputError
+        Naming the bad limit or the duration.
+    """
     nyq = sample_rate_hz / 2.0
     for name, f in (("f1_hz", f_lo_hz), ("f2_hz", f_hi_hz)):
         if not (math.isfinite(f) and 0 < f <= nyq):
@@ -60,6 +78,8 @@ def band_limited_noise(colour: str, duration_s: float, sample_rate_hz: float, f_
         Band limits, Hz, 0 < f_lo < f_hi <= fs/2.
     seed : int or None
         Seed of numpy's default generator, for a reproducible file.
+    source : str, optional
+        Named in messages.
 
     Returns
     -------

@@ -55,12 +55,24 @@ class PlayedSweep:
 
     @property
     def sample_rate_hz(self) -> int:
-        """The file's sample rate, Hz."""
+        """The file's sample rate.
+
+        Returns
+        -------
+        int
+            Sample rate (Hz), rounded to a whole number.
+        """
         return int(round(self.record.sample_rate_hz))
 
     @property
     def n_samples(self) -> int:
-        """Samples in the played file."""
+        """Samples in the played file.
+
+        Returns
+        -------
+        int
+            The sidecar's ``n_samples``.
+        """
         return int(self.sidecar["n_samples"])
 
 
@@ -114,7 +126,13 @@ class Takes:
 
     @property
     def n_mic(self) -> int:
-        """Microphone channels in each recording."""
+        """Microphone channels in each recording.
+
+        Returns
+        -------
+        int
+            Columns of the first recording.
+        """
         return int(self.recordings[0].shape[1])
 
 
@@ -277,6 +295,15 @@ def deconvolve_takes(played: PlayedSweep, takes: Takes, *, speaker_names: Sequen
 
 def write_offline_irs(folder: str | os.PathLike, made: OfflineIRs, command: str = "arrayplan deconvolve") -> Path:
     """Write the IR set, ``harmonic-N/`` sets and ``deconvolution.csv`` into `folder`, all or nothing.
+
+    Parameters
+    ----------
+    folder : str or PathLike
+        Output folder, written through a staging folder.
+    made : OfflineIRs
+        The deconvolved responses, harmonics and summary.
+    command : str
+        The command recorded in the IR sets' provenance.
 
     Returns
     -------

@@ -11,7 +11,6 @@ play that channel at once.
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import numpy as np
@@ -19,19 +18,11 @@ import numpy as np
 from ..formats.audiofiles import read_audio
 from ..errors import InputError
 from ..formats.fileio import check_folder
+from ..formats._versioning import read_json_document
+from ..formats.filter_set import FILTER_SET_SIDECAR, read_filter_set_sidecar
 
 __all__ = ["read_filter_wav", "filter_names_from_sidecar", "filter_names_from_filter_set", "channel_probe",
            "FILTER_SET_SIDECAR"]
-
-#: The sidecar ``arrayplan filters`` writes beside its channel files (see :mod:`arrayplan.filters.files`).
-FILTER_SET_SIDECAR = "filters.json"
-
-
-def _read_json(path: Path) -> object:
-    try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"not valid JSON ({' '.join(str(exc).split())})", source=str(path)) from None
 
 
 def filter_names_from_filter_set(wav_path: str | Path, n_channels: int) -> list[str] | None:
@@ -54,15 +45,16 @@ def filter_names_from_filter_set(wav_path: str | Path, n_channels: int) -> list[
     ------
     InputError
         When the file is a combine filter (one channel per microphone, not
-        something to play), or ``filters.json`` is not valid JSON or lists a
-        different number of speakers than the file has channels.
+        something to play), or ``filters.json`` is not valid JSON, not of this
+        format (:mod:`arrayplan.formats.filter_set`) or lists a different
+        number of speakers than the file has channels.
     """
     wav = Path(wav_path)
     doc_path = wav.parent / FILTER_SET_SIDECAR
     if not doc_path.is_file():
         return None
-    doc = _read_json(doc_path)
-    channels = doc.get("channels") if isinstance(doc, dict) else None
+    doc = read_filter_set_sidecar(doc_path)
+    channels = doc.get("channels")
     if not isinstance(channels, list):
         return None
     entries = [c for c in channels if isinstance(c, dict)]
@@ -92,6 +84,18 @@ def filter_names_from_sidecar(wav_path: str | Path, n_channels: int) -> list[str
     ``channel_names`` (plain strings, or objects with a ``name``).  Returns
     None when there is no sidecar or no such list.
 
+    Parameters
+    ----------
+    wav_path : str or Path
+        The filter WAV.
+    n_channels : int
+        Channels of the WAV: the number of names expected.
+
+    Returns
+    -------
+    list of str or None
+        One speaker name per channel, in channel order.
+
     Raises
     ------
     InputError
@@ -101,7 +105,7 @@ def filter_names_from_sidecar(wav_path: str | Path, n_channels: int) -> list[str
     side = Path(wav_path).with_suffix(".json")
     if not side.exists():
         return None
-    obj = _read_json(side)
+    obj = read_json_document(side)
     if not isinstance(obj, dict):
         return None
     for key in ("speaker_names", "speakers", "element_names", "channel_names"):

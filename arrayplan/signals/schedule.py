@@ -52,6 +52,8 @@ def measurement_schedule(sweep: SweepSignal, n_speakers: int, *, source: str | N
         The sweep (its silence-after is the gap between speakers).
     n_speakers : int
         Number of speakers (channels), >= 1.
+    source : str, optional
+        Named in messages.
 
     Returns
     -------

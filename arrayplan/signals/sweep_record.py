@@ -37,6 +37,32 @@ class SweepRecord:
     is resolved against the sidecar's folder by the caller.  Sidecars written
     before ``pre_roll_samples`` existed get the default rule's value
     (:func:`default_pre_roll_s`).
+
+    Attributes
+    ----------
+    kind : str
+        ``"exponential"`` or ``"linear"``.
+    f1_hz, f2_hz : float
+        Sweep limits (Hz).
+    duration_s : float
+        Sweep duration without padding (s).
+    sample_rate_hz : float
+        Sample rate (Hz).
+    n_sweep_samples, pad_before_samples, pad_after_samples : int
+        Lengths of the sweep and of the silence before and after it (samples).
+    linear_lag_samples : int
+        0-based index of the linear response's zero lag in
+        ``fftconvolve(file, inverse)``.
+    inverse_filter_file : str
+        File name of the inverse filter, as written in the sidecar.
+    pre_roll_samples : int
+        Samples a response keeps before zero lag.
+    fade_in_s, fade_out_s : float or None
+        Raised-cosine fades (s); None when the sidecar does not give them.
+    highpass_hz : float or None
+        Cutoff of the sweep's high-pass (Hz); None for none.
+    highpass_order : int or None
+        Its order (1 to 8).
     """
 
     kind: str
@@ -85,15 +111,40 @@ class SweepRecord:
 
     @property
     def max_pre_roll_samples(self) -> int:
-        """Most samples a response may keep before zero lag (:func:`max_pre_roll_s`)."""
+        """Most samples a response may keep before zero lag (:func:`max_pre_roll_s`).
+
+        Returns
+        -------
+        int
+            Samples, rounded down.
+        """
         return int(math.floor(max_pre_roll_s(self.kind, self.f1_hz, self.f2_hz, self.duration_s)
                               * self.sample_rate_hz))
 
     @property
     def n_file_samples(self) -> int:
+        """Length of the single-sweep file.
+
+        Returns
+        -------
+        int
+            Padding before + sweep + padding after (samples).
+        """
         return self.pad_before_samples + self.n_sweep_samples + self.pad_after_samples
 
     def harmonic_offsets_samples(self, max_order: int) -> dict[int, float]:
+        """Offsets of harmonics 2..max_order before the linear response (exponential sweeps only).
+
+        Parameters
+        ----------
+        max_order : int
+            Highest harmonic order.
+
+        Returns
+        -------
+        dict of int to float
+            Harmonic order -> offset (samples, fractional); empty for a linear sweep.
+        """
         if self.kind != "exponential":
             return {}
         return {n: harmonic_offset_s(n, self.f1_hz, self.f2_hz, self.duration_s) * self.sample_rate_hz
@@ -101,7 +152,20 @@ class SweepRecord:
 
     @classmethod
     def from_json(cls, block: Any, *, source: str | None = None) -> "SweepRecord":
-        """Validate a sidecar's ``sweep`` block; InputError naming the field otherwise."""
+        """Validate a sidecar's ``sweep`` block; InputError naming the field otherwise.
+
+        Parameters
+        ----------
+        block : dict
+            The ``sweep`` block as read from JSON.
+        source : str, optional
+            The sidecar file, named in messages.
+
+        Returns
+        -------
+        SweepRecord
+            The checked record.
+        """
         if not isinstance(block, dict):
             raise InputError("no 'sweep' block: this sidecar does not describe a sweep", source=source,
                              field="sweep", fix="give the .json written beside a sweep, schedule or sweep probe")

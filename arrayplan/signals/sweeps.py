@@ -141,7 +141,19 @@ def exponential_sweep(f1_hz: float, f2_hz: float, duration_s: float, sample_rate
 def linear_sweep(f1_hz: float, f2_hz: float, duration_s: float, sample_rate_hz: float) -> np.ndarray:
     """Unit-amplitude linear sine sweep ``sin(2 pi (f1 t + (f2 - f1) t^2 / (2 T)))``, no fades.
 
-    Shape (round(T * fs),); arguments as for :func:`exponential_sweep`.
+    Parameters
+    ----------
+    f1_hz, f2_hz : float
+        Start and end frequencies (Hz).
+    duration_s : float
+        Sweep duration T (s).
+    sample_rate_hz : float
+        Sample rate fs (Hz).
+
+    Returns
+    -------
+    ndarray, shape (round(T * fs),)
+        The sweep at t = n / fs.
     """
     t = _times(duration_s, sample_rate_hz)
     return np.sin(2.0 * math.pi * (f1_hz * t + (f2_hz - f1_hz) * t * t / (2.0 * duration_s)))
@@ -173,7 +185,17 @@ def linear_inverse_filter(sweep: np.ndarray) -> np.ndarray:
     """Unnormalised inverse (matched filter) of a linear sweep: the sweep reversed in time.
 
     A linear sweep's spectrum is flat over its band, so its time reversal is
-    its inverse there.  Shape (n_sweep,) -> (n_sweep,).
+    its inverse there.
+
+    Parameters
+    ----------
+    sweep : array_like, shape (n_sweep,)
+        The sweep, one channel.
+
+    Returns
+    -------
+    ndarray, shape (n_sweep,)
+        The sweep reversed (a copy); scale it with :func:`normalise_inverse`.
     """
     return np.asarray(sweep, dtype=float).reshape(-1)[::-1].copy()
 
@@ -182,6 +204,25 @@ def harmonic_offset_s(order: int, f1_hz: float, f2_hz: float, duration_s: float)
     """Time (s) by which the `order`-th harmonic's impulse response precedes the linear one.
 
     ``T ln(order) / ln(f2 / f1)`` for an exponential sweep (Farina 2000).
+
+    Parameters
+    ----------
+    order : int
+        Harmonic order, >= 1 (1 gives 0).
+    f1_hz, f2_hz : float
+        Sweep limits (Hz).
+    duration_s : float
+        Sweep duration T (s).
+
+    Returns
+    -------
+    float
+        Offset (s).
+
+    Raises
+    ------
+    ValueError
+        `order` below 1.
     """
     if order < 1:
         raise ValueError(f"harmonic order must be >= 1, got {order}")
@@ -192,6 +233,22 @@ def check_sweep_band(kind: str, f1_hz: float, f2_hz: float, duration_s: float, s
                      *, fade_in_s: float | None = None, fade_out_s: float | None = None,
                      source: str | None = None) -> None:
     """Refuse sweep limits outside (0, fs/2) and durations too short for the band.
+
+    Parameters
+    ----------
+    kind : str
+        ``"exponential"`` or ``"linear"``.
+    f1_hz, f2_hz : float
+        Sweep limits (Hz), 0 < f1 < f2 < fs / 2.
+    duration_s : float
+        Sweep duration (s).
+    sample_rate_hz : float
+        Sample rate fs (Hz).
+    fade_in_s, fade_out_s : float, optional
+        Fades to check (s): at most half an octave's time (exponential) or a
+        quarter of the sweep (linear).
+    source : str, optional
+        Named in messages.
 
     Raises
     ------
@@ -265,9 +322,13 @@ class SweepSettings:
         Target level, dBFS: true peak (4x oversampled) or RMS of the sweep
         without its padding; at most one is set (default: true peak at the cap).
     peak_cap_dbfs : float
-        Highest peak allowed unless `allow_above_cap`.
+        Highest peak allowed unless `allow_above_cap`, dBFS.
+    allow_above_cap : bool
+        Consent to a peak above `peak_cap_dbfs`.
     highpass_hz : float or None
-        Optional Butterworth high-pass for small drivers, Hz; `highpass_order` its order.
+        Optional Butterworth high-pass for small drivers, Hz.
+    highpass_order : int
+        Order of that high-pass.
     """
 
     kind: str = "exponential"
@@ -287,7 +348,13 @@ class SweepSettings:
     highpass_order: int = 2
 
     def with_fades(self) -> "SweepSettings":
-        """These settings with the default fades (:func:`default_fades_s`) filled in where None."""
+        """These settings with the default fades (:func:`default_fades_s`) filled in where None.
+
+        Returns
+        -------
+        SweepSettings
+            `self` when both fades are given, else a copy with the defaults (s).
+        """
         if self.fade_in_s is not None and self.fade_out_s is not None:
             return self
         auto_in, auto_out = default_fades_s(self.kind, self.f1_hz, self.f2_hz, self.duration_s)
@@ -295,6 +362,14 @@ class SweepSettings:
                        fade_out_s=auto_out if self.fade_out_s is None else self.fade_out_s)
 
     def level(self) -> dict[str, float | None]:
+        """The level target as keyword arguments of :func:`scale_to_level`.
+
+        Returns
+        -------
+        dict
+            ``peak_dbfs`` and ``rms_dbfs`` (dBFS or None); without either, a
+            true peak at the effective cap.
+        """
         if self.peak_dbfs is None and self.rms_dbfs is None:
             cap = effective_cap_dbfs(self.peak_cap_dbfs, self.allow_above_cap)
             return {"peak_dbfs": cap, "rms_dbfs": None}
@@ -320,6 +395,9 @@ class SweepSignal:
     linear_lag : int
         Index, in ``fftconvolve(file, inverse)``, of the linear impulse
         response's zero lag: ``n_pad_before + n_sweep - 1``.
+    extra : dict
+        Values computed on the way: ``fade_rule`` (how the fades were
+        chosen) and the cached ``flat_band_hz``.
     """
 
     settings: SweepSettings
@@ -332,17 +410,36 @@ class SweepSignal:
 
     @property
     def n_sweep(self) -> int:
+        """Length of the sweep without padding.
+
+        Returns
+        -------
+        int
+            Samples.
+        """
         return int(self.sweep.size)
 
     @property
     def centre_hz(self) -> float:
-        """The band centre where the deconvolution gain is exactly 1, Hz."""
+        """The band centre where the deconvolution gain is exactly 1.
+
+        Returns
+        -------
+        float
+            :func:`band_centre_hz` of the settings (Hz).
+        """
         return band_centre_hz(self.settings.kind, self.settings.f1_hz, self.settings.f2_hz)
 
     @property
     def flat_band_hz(self) -> tuple[float, float]:
-        """Band (Hz) around the centre where a unity system deconvolves to 0 dB within
-        :data:`FLAT_BAND_TOLERANCE_DB` (computed once, then kept)."""
+        """Band around the centre where a unity system deconvolves to 0 dB within
+        :data:`FLAT_BAND_TOLERANCE_DB` (computed once, then kept).
+
+        Returns
+        -------
+        (float, float)
+            Lowest and highest frequency of the band (Hz).
+        """
         if "flat_band_hz" not in self.extra:
             self.extra["flat_band_hz"] = flat_band_hz(self.sweep, self.inverse, self.centre_hz,
                                                       self.settings.sample_rate_hz)
@@ -350,11 +447,24 @@ class SweepSignal:
 
     @property
     def linear_lag(self) -> int:
+        """Zero lag of the linear response in ``fftconvolve(file, inverse)``.
+
+        Returns
+        -------
+        int
+            0-based sample index ``n_pad_before + n_sweep - 1``.
+        """
         return self.n_pad_before + self.n_sweep - 1
 
     @property
     def pre_roll_samples(self) -> int:
-        """Samples to keep before zero lag in a deconvolved response (:func:`default_pre_roll_s`)."""
+        """Samples to keep before zero lag in a deconvolved response (:func:`default_pre_roll_s`).
+
+        Returns
+        -------
+        int
+            The pre-roll in samples, rounded down.
+        """
         s = self.settings
         return int(math.floor(default_pre_roll_s(s.kind, s.f1_hz, s.f2_hz, s.duration_s) * s.sample_rate_hz))
 
@@ -362,6 +472,16 @@ class SweepSignal:
         """Offsets (samples, fractional) of harmonics 2..max_order before the linear response.
 
         Empty for a linear sweep, whose harmonics do not separate in time.
+
+        Parameters
+        ----------
+        max_order : int
+            Highest harmonic order.
+
+        Returns
+        -------
+        dict of int to float
+            Harmonic order -> offset (samples, fractional).
         """
         s = self.settings
         if s.kind != "exponential":
@@ -370,7 +490,20 @@ class SweepSignal:
                 for n in range(2, max_order + 1)}
 
     def sidecar(self, inverse_file: str | None) -> dict[str, Any]:
-        """The ``sweep`` block of the JSON sidecar: everything deconvolution needs."""
+        """The ``sweep`` block of the JSON sidecar: everything deconvolution needs.
+
+        Parameters
+        ----------
+        inverse_file : str or None
+            File name of the inverse filter written beside the sweep, if any.
+
+        Returns
+        -------
+        dict
+            JSON-ready: limits (Hz), durations and fades (s), paddings, lags and
+            offsets (samples), the sweep's levels (dBFS), the flat band and
+            how the inverse is normalised.
+        """
         s = self.settings
         return {
             "kind": s.kind,
@@ -424,6 +557,19 @@ def _pad_samples(value_s: float, fs: float, name: str, source: str | None) -> in
 def make_sweep(settings: SweepSettings, *, source: str | None = None) -> SweepSignal:
     """Build a playable sweep: generate, condition, set the level, pad, and make its inverse.
 
+    Parameters
+    ----------
+    settings : SweepSettings
+        What to build.
+    source : str, optional
+        Named in messages (e.g. the output file).
+
+    Returns
+    -------
+    SweepSignal
+        The sweep, the padded file content (n_samples,), the normalised
+        inverse filter, and the settings with the fades used.
+
     Raises
     ------
     InputError
@@ -471,6 +617,18 @@ def band_centre_hz(kind: str, f1_hz: float, f2_hz: float) -> float:
     """Frequency the sweep passes half-way through its duration, Hz.
 
     ``sqrt(f1 f2)`` for an exponential sweep, ``(f1 + f2) / 2`` for a linear one.
+
+    Parameters
+    ----------
+    kind : str
+        ``"exponential"``; anything else counts as linear.
+    f1_hz, f2_hz : float
+        Sweep limits (Hz).
+
+    Returns
+    -------
+    float
+        Band centre (Hz).
     """
     if kind == "exponential":
         return math.sqrt(f1_hz * f2_hz)
@@ -483,6 +641,20 @@ def fresnel_time_s(freq_hz: float, f1_hz: float, f2_hz: float, duration_s: float
     ``1 / sqrt(df/dt)`` with ``df/dt = f ln(f2/f1) / T`` (Hz/s); a raised-cosine
     fade at least this long keeps the sweep's edge ripple out of the band
     (measured; common practice, no source).
+
+    Parameters
+    ----------
+    freq_hz : float
+        Frequency (Hz).
+    f1_hz, f2_hz : float
+        Sweep limits (Hz).
+    duration_s : float
+        Sweep duration T (s).
+
+    Returns
+    -------
+    float
+        Fresnel time (s).
     """
     return 1.0 / math.sqrt(freq_hz * math.log(f2_hz / f1_hz) / duration_s)
 
@@ -543,6 +715,20 @@ def default_pre_roll_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float)
     time left 0.11 dB for linear sweeps (measured, tests/test_deconvolve.py).
     Without it, a delay shorter than the pre-ringing reads up to a few dB low
     near f1.
+
+    Parameters
+    ----------
+    kind : str
+        ``"exponential"`` or ``"linear"``.
+    f1_hz, f2_hz : float
+        Sweep limits (Hz).
+    duration_s : float
+        Sweep duration T (s).
+
+    Returns
+    -------
+    float
+        Pre-roll (s).
     """
     if kind == "exponential":
         return default_fades_s(kind, f1_hz, f2_hz, duration_s)[0]
@@ -550,5 +736,16 @@ def default_pre_roll_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float)
 
 
 def max_pre_roll_s(kind: str, f1_hz: float, f2_hz: float, duration_s: float) -> float:
-    """Longest pre-roll (s) that stays clear of the 2nd harmonic: half its offset (linear sweeps: T / 4)."""
+    """Longest pre-roll (s) that stays clear of the 2nd harmonic: half its offset (linear sweeps: T / 4).
+
+    Parameters
+    ----------
+    kind, f1_hz, f2_hz, duration_s
+        As for :func:`default_pre_roll_s` (Hz, s).
+
+    Returns
+    -------
+    float
+        Longest pre-roll (s).
+    """
     return _fade_limit_s(kind, f1_hz, f2_hz, duration_s)

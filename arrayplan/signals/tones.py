@@ -46,6 +46,8 @@ def stepped_tones(freqs_hz: Sequence[float], tone_s: float, gap_s: float, sample
     sample_rate_hz : float
     fade_s : float
         Raised-cosine fade at both ends of every tone, s (> 0).
+    source : str, optional
+        Named in messages.
 
     Returns
     -------
@@ -99,6 +101,8 @@ def tone_bursts(freq_hz: float, cycles: float, period_s: float, count: int, samp
     sample_rate_hz : float
     fade_cycles : float
         Raised-cosine fade at each end of every burst, in periods (> 0).
+    source : str, optional
+        Named in messages.
 
     Returns
     -------

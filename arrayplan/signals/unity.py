@@ -139,7 +139,24 @@ def flat_band_hz(played: np.ndarray, inverse: np.ndarray, centre_hz: float, samp
 
 
 def highpass_response(freqs_hz: np.ndarray, cutoff_hz: float, order: int, sample_rate_hz: float) -> np.ndarray:
-    """Complex response of :func:`arrayplan.signals.levels.highpass` at `freqs_hz` (shape kept)."""
+    """Complex response of :func:`arrayplan.signals.levels.highpass` at `freqs_hz` (shape kept).
+
+    Parameters
+    ----------
+    freqs_hz : array_like
+        Frequencies (Hz), any shape.
+    cutoff_hz : float
+        -3 dB frequency of the Butterworth high-pass (Hz).
+    order : int
+        Its order.
+    sample_rate_hz : float
+        Sample rate (Hz).
+
+    Returns
+    -------
+    ndarray, complex
+        H at each frequency, the shape of `freqs_hz`.
+    """
     from scipy.signal import butter, sosfreqz
 
     sos = butter(int(order), cutoff_hz, btype="highpass", fs=sample_rate_hz, output="sos")

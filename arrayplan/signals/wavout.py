@@ -21,12 +21,34 @@ SAMPLE_FORMATS = {"float32": "FLOAT", "pcm24": "PCM_24"}
 
 
 def sidecar_path(wav_path: str | os.PathLike) -> Path:
-    """The JSON sidecar beside a WAV file: same folder, same stem, ``.json``."""
+    """The JSON sidecar beside a WAV file: same folder, same stem, ``.json``.
+
+    Parameters
+    ----------
+    wav_path : str or PathLike
+        The WAV file.
+
+    Returns
+    -------
+    Path
+        ``<stem>.json`` beside it.
+    """
     return Path(wav_path).with_suffix(".json")
 
 
 def inverse_path(wav_path: str | os.PathLike) -> Path:
-    """Where a sweep's inverse filter goes: ``<stem>.inverse.wav`` beside it."""
+    """Where a sweep's inverse filter goes: ``<stem>.inverse.wav`` beside it.
+
+    Parameters
+    ----------
+    wav_path : str or PathLike
+        The sweep's WAV file.
+
+    Returns
+    -------
+    Path
+        ``<stem>.inverse.wav`` in the same folder.
+    """
     p = Path(wav_path)
     return p.with_name(p.stem + ".inverse.wav")
 
@@ -94,11 +116,23 @@ def write_signal_files(wav_path: str | os.PathLike, signal: np.ndarray, sample_r
 def read_recording(path: str | os.PathLike, *, field: str | None = None) -> tuple[np.ndarray, int]:
     """Read a recording (any WAV soundfile reads) as float64, full scale = 1.
 
+    Parameters
+    ----------
+    path : str or PathLike
+        The recording.
+    field : str, optional
+        Field named in messages (e.g. the sidecar key that gave the path).
+
     Returns
     -------
     data : ndarray, shape (n_samples, n_channels)
     rate : int
         Sample rate, Hz.
+
+    Raises
+    ------
+    InputError
+        A missing or unreadable file, no samples, or NaN or infinite samples.
     """
     path = Path(path)
     if not path.exists():

@@ -133,7 +133,21 @@ def equal_power_capacity(gamma: np.ndarray, active: np.ndarray) -> np.ndarray:
 
 
 def band_widths_hz(hz: np.ndarray) -> np.ndarray:
-    """Width of the band each planned frequency stands for, Hz (see module Notes); shape (n_freq,)."""
+    """Width of the band each planned frequency stands for (see module Notes).
+
+    Band edges are the midpoints between neighbours, the outer edges half a
+    step beyond the ends (the lower one not below 0 Hz).
+
+    Parameters
+    ----------
+    hz : array_like, shape (n_freq,)
+        Planned frequencies (Hz), increasing.
+
+    Returns
+    -------
+    ndarray, shape (n_freq,)
+        Band widths (Hz); NaN for a single frequency.
+    """
     hz = np.asarray(hz, dtype=float)
     if hz.size < 2:
         return np.full(hz.shape, np.nan)

@@ -82,7 +82,18 @@ class Comparison:
     reference_snr_db: float | None
 
     def table(self) -> tuple[list[str], list[list]]:
-        """Header and rows of the client table: one row per layout, band means and totals."""
+        """Header and rows of the client table: one row per layout, band means and totals.
+
+        Returns
+        -------
+        head : list of str
+            Column titles (distance in m, capacity in bit/s/Hz when a
+            reference SNR was given).
+        rows : list of list
+            One row per layout: name, counts, apertures, distance and the
+            means over frequency of the channel counts, paraxial estimate
+            (``"n/a"`` when it has none) and capacity.
+        """
         head = ["layout", "speakers", "microphones", "speaker aperture", "microphone aperture", "distance (m)",
                 "strong (mean)", "usable (mean)", "effective (mean)", "paraxial estimate (mean)"]
         if self.reference_snr_db is not None:
@@ -140,6 +151,11 @@ def compare_plans(named: list[tuple[str, str, Plan]], reference_snr_db: float | 
         At least two.
     reference_snr_db : float, optional
         rho in dB for the capacity (module docstring); no capacity without it.
+
+    Returns
+    -------
+    Comparison
+        One :class:`LayoutSummary` per plan, in the order given.
 
     Raises
     ------

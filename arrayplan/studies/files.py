@@ -4,18 +4,17 @@ Capacity folder: ``capacity.csv`` (one row per SNR and frequency),
 ``capacity-channels.csv`` (per SNR, frequency and channel: power and floor),
 ``capacity-band.csv`` (per SNR: bit/s), ``capacity.npz`` (every array of
 :class:`~arrayplan.studies.capacity.CapacityStudy`), ``capacity.json`` (the
-sidecar, kind ``arrayplan-capacity-study``) and figures.
+sidecar, :mod:`arrayplan.formats.study_sidecars`) and figures.
 
 Tolerance folder: ``tolerance.csv`` (one row per frequency and channel),
 ``tolerance.npz`` (the summary arrays), ``tolerance-trials.npz`` (every
-trial), ``tolerance.json`` (kind ``arrayplan-tolerance-study``) and figures.
+trial), ``tolerance.json`` (the sidecar) and figures.
 Channels are numbered from 1 in every file.
 """
 
 from __future__ import annotations
 
 import dataclasses
-import json
 import os
 from pathlib import Path
 from typing import Any
@@ -23,6 +22,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
+from ..formats.study_sidecars import read_study_sidecar, stamp_study_sidecar
 from ..formats.fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..verification.channels import _ranges as channel_ranges
 from ._common import STRONGEST_SNR_MEANING
@@ -30,11 +30,8 @@ from .capacity import CapacityStudy
 from .tolerance import KR_LIMIT, ToleranceStudy
 from .trials import TrialChunk
 
-__all__ = ["CAPACITY_KIND", "TOLERANCE_KIND", "write_capacity_study", "write_tolerance_study", "read_capacity_study",
+__all__ = ["write_capacity_study", "write_tolerance_study", "read_capacity_study",
            "read_tolerance_study", "capacity_verdict", "tolerance_verdict"]
-
-CAPACITY_KIND = "arrayplan-capacity-study"
-TOLERANCE_KIND = "arrayplan-tolerance-study"
 
 
 def _g(x: float) -> str:
@@ -84,7 +81,7 @@ def write_capacity_study(study: CapacityStudy, out_dir: str | os.PathLike, *, pl
                 chan_rows.append([_g(hz), _g(snr), j + 1, _g(study.power[k, f, j]), _g(study.noise_floor[k, f, j])])
     band = [[_g(snr), _g(study.band_capacity[k]), _g(study.band_equal_capacity[k])]
             for k, snr in enumerate(study.snr_db)]
-    side = {"kind": CAPACITY_KIND, "format_version": 1, "plan": plan_source, "verdict": capacity_verdict(study),
+    side = {"plan": plan_source, "verdict": capacity_verdict(study),
             "snr_db": study.snr_db.tolist(), "threshold_db": study.threshold_db, "measured_plan": study.measured,
             "conventions": {
                 "snr": STRONGEST_SNR_MEANING + ": P s_1^2 / N0",
@@ -115,7 +112,7 @@ def write_capacity_study(study: CapacityStudy, out_dir: str | os.PathLike, *, pl
         with atomic_path(stage / "capacity.npz") as tmp:
             with open(tmp, "wb") as fh:
                 np.savez(fh, **{k: np.asarray(v) for k, v in dataclasses.asdict(study).items()})
-        write_json_atomic(stage / "capacity.json", side)
+        write_json_atomic(stage / "capacity.json", stamp_study_sidecar(side, "capacity"))
         if figures:
             _save_figures(stage, capacity_figures(study, water_freq_index))
         names = sorted(p.name for p in stage.iterdir())
@@ -173,7 +170,7 @@ def write_tolerance_study(study: ToleranceStudy, out_dir: str | os.PathLike, *, 
               "crosstalk_p50_db", "crosstalk_p95_db", "keeps_isolation_fraction", "strength_p5_db",
               "strength_p50_db", "strength_p95_db", "strength_sd_db", "first_order_strength_sd_db",
               "white_noise_gain_speakers_db", "white_noise_gain_mics_db", "beyond_first_order"]
-    side = {"kind": TOLERANCE_KIND, "format_version": 1, "plan": plan_source, "verdict": tolerance_verdict(study),
+    side = {"plan": plan_source, "verdict": tolerance_verdict(study),
             "settings": study.settings,
             "conventions": {
                 "errors": "Gaussian: each position coordinate (position_sd_m, m), each element's gain (gain_sd_db, "
@@ -206,7 +203,7 @@ def write_tolerance_study(study: ToleranceStudy, out_dir: str | os.PathLike, *, 
                 with atomic_path(stage / name) as tmp:
                     with open(tmp, "wb") as fh:
                         np.savez(fh, **data)
-        write_json_atomic(stage / "tolerance.json", side)
+        write_json_atomic(stage / "tolerance.json", stamp_study_sidecar(side, "tolerance"))
         if figures:
             _save_figures(stage, tolerance_figures(study))
         names = sorted(p.name for p in stage.iterdir())
@@ -220,24 +217,19 @@ def tolerance_figures(study: ToleranceStudy) -> list[tuple[str, Any]]:
     return [("gain-spread.png", plot_gain_spread(study)), ("survival.png", plot_survival(study))]
 
 
-def _load(folder: Path, json_name: str, npz_name: str, kind: str) -> tuple[dict, dict]:
-    side_path = folder / json_name
+def _load(folder: Path, study: str, npz_name: str) -> tuple[dict, dict]:
+    side = read_study_sidecar(folder, study)
     try:
-        side = json.loads(side_path.read_text(encoding="utf-8"))
-        if side.get("kind") != kind:
-            raise InputError(f"kind is {side.get('kind')!r}, expected {kind!r}", source=str(side_path), field="kind")
         with np.load(folder / npz_name, allow_pickle=False) as z:
             arrays = {k: z[k] for k in z.files}
     except (OSError, ValueError, AttributeError) as exc:
-        if isinstance(exc, InputError):
-            raise
         raise InputError(f"cannot read the study ({exc})", source=str(folder)) from None
     return side, arrays
 
 
 def read_capacity_study(folder: str | os.PathLike) -> tuple[CapacityStudy, dict]:
     """A capacity study and its sidecar, read back from a folder written by :func:`write_capacity_study`."""
-    side, a = _load(Path(folder), "capacity.json", "capacity.npz", CAPACITY_KIND)
+    side, a = _load(Path(folder), "capacity", "capacity.npz")
     try:
         values = {f.name: a[f.name] for f in dataclasses.fields(CapacityStudy)}
     except KeyError as exc:
@@ -249,7 +241,7 @@ def read_capacity_study(folder: str | os.PathLike) -> tuple[CapacityStudy, dict]
 
 def read_tolerance_study(folder: str | os.PathLike) -> tuple[ToleranceStudy, dict]:
     """A tolerance study (without its trials: an empty TrialChunk) and its sidecar, read back from a folder."""
-    side, a = _load(Path(folder), "tolerance.json", "tolerance.npz", TOLERANCE_KIND)
+    side, a = _load(Path(folder), "tolerance", "tolerance.npz")
     try:
         values: dict[str, Any] = {f.name: a[f.name] for f in dataclasses.fields(ToleranceStudy)
                                   if f.name not in ("trials", "settings")}

@@ -129,7 +129,13 @@ class LayoutChoice:
 
     @property
     def gap_percent(self) -> float | None:
-        """100 (bound - value) / bound, or None without a bound."""
+        """How far the chosen layout may be from the best one, at most.
+
+        Returns
+        -------
+        float or None
+            100 (bound - value) / bound (%); None without a positive bound.
+        """
         if self.bound is None or self.bound <= 0:
             return None
         return 100.0 * (self.bound - self.value) / self.bound
@@ -164,6 +170,18 @@ def layout_problem(rig: Rig, side: str, count: int, axis: FrequencyAxis, *, cand
         the free field, in the rig's medium.
     source : str
         Names the candidates in error messages.
+
+    Returns
+    -------
+    LayoutProblem
+        The candidates' coupling columns of shape (n_freq, n_other, n_cand)
+        and the capacity scale c.
+
+    Raises
+    ------
+    InputError
+        Unknown side, a count outside 1..n_cand, a candidate on a fixed
+        element or on another candidate, or a candidate outside the room.
     """
     if side not in SIDES:
         raise InputError(f"side must be speakers or microphones, got {side!r}", source=source)
@@ -314,7 +332,25 @@ def _swap_capacity(problem: LayoutProblem, chosen: list[int], max_passes: int) -
 
 def greedy_select(problem: LayoutProblem, criterion: str, progress: Callable[[int, int], None] | None = None
                   ) -> tuple[list[int], list[float]]:
-    """Add, N times, the candidate that raises the criterion most; return the order and the values."""
+    """Add, N times, the candidate that raises the criterion most; return the order and the values.
+
+    Parameters
+    ----------
+    problem : LayoutProblem
+        Candidates and N.
+    criterion : str
+        One of :data:`CRITERIA`; count criteria break ties by capacity.
+    progress : callable, optional
+        ``progress(done, total)`` after each step.
+
+    Returns
+    -------
+    chosen : list of int
+        0-based candidate indices in the order they were added, length N.
+    values : list of float
+        Criterion after each step (bit/s/Hz or a channel count, summed over
+        frequencies).
+    """
     if criterion == "capacity":
         return _greedy_capacity(problem, progress)
     chosen: list[int] = []
@@ -334,7 +370,27 @@ def greedy_select(problem: LayoutProblem, criterion: str, progress: Callable[[in
 
 def swap_refine(problem: LayoutProblem, chosen: list[int], criterion: str, max_passes: int = 50
                 ) -> tuple[list[int], list[dict]]:
-    """Swap one chosen candidate for one other while the best such swap improves the criterion."""
+    """Swap one chosen candidate for one other while the best such swap improves the criterion.
+
+    Parameters
+    ----------
+    problem : LayoutProblem
+        Candidates and N.
+    chosen : list of int
+        0-based candidate indices to start from.
+    criterion : str
+        One of :data:`CRITERIA`.
+    max_passes : int
+        Most swaps made.
+
+    Returns
+    -------
+    chosen : list of int
+        The refined indices; a swap replaces an index in place.
+    swaps : list of dict
+        ``{"removed", "added", "value"}`` per swap made (0-based indices,
+        criterion after the swap).
+    """
     if criterion == "capacity":
         return _swap_capacity(problem, chosen, max_passes)
     chosen = list(chosen)
@@ -384,6 +440,17 @@ def relaxation_bound(problem: LayoutProblem, rounds: int = 3, newton_steps: int 
     of at most `newton_steps` steps each (a round ends when the Newton
     decrement falls below `tolerance` times |F|).  The bound is valid at any
     z, so fewer steps only loosen it.
+
+    Parameters
+    ----------
+    problem : LayoutProblem
+        Candidates and N.
+    rounds : int
+        Barrier rounds.
+    newton_steps : int
+        Most Newton steps per round.
+    tolerance : float
+        Stopping threshold on the Newton decrement, relative to |F|.
 
     Returns
     -------
@@ -461,7 +528,28 @@ def _fix_sum(z: np.ndarray, count: int) -> np.ndarray:
 
 def choose_layout(problem: LayoutProblem, criterion: str = "capacity",
                   progress: Callable[[int, int], None] | None = None) -> LayoutChoice:
-    """Greedy selection, swap refinement and (for capacity) the relaxation bound (module docstring)."""
+    """Greedy selection, swap refinement and (for capacity) the relaxation bound (module docstring).
+
+    Parameters
+    ----------
+    problem : LayoutProblem
+        From :func:`layout_problem`.
+    criterion : str
+        ``"capacity"``, ``"strong"`` or ``"usable"``.
+    progress : callable, optional
+        ``progress(done, total)`` after each greedy step.
+
+    Returns
+    -------
+    LayoutChoice
+        The chosen indices, criterion value, steps, and for capacity the
+        upper bound and relaxed weights.
+
+    Raises
+    ------
+    InputError
+        An unknown criterion.
+    """
     if criterion not in CRITERIA:
         raise InputError(f"unknown criterion {criterion!r}", source="criterion",
                          fix=f"use one of {', '.join(CRITERIA)}")
@@ -479,12 +567,25 @@ def choose_layout(problem: LayoutProblem, criterion: str = "capacity",
 
 
 def chosen_rig(rig: Rig, choice: LayoutChoice) -> Rig:
-    """The rig with the chosen elements on the chosen side (hardware channels 1..N in choice order).
+    """The rig with the chosen elements on the chosen side (hardware channels 1..N in candidate order).
 
     The room and the zones come along.  When microphones are chosen, a zone
     made of microphones keeps those of its members that were chosen (its
     indices re-pointed at the new microphones) and is dropped when none was;
     zones of generated control points stay as they are.
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig the problem was set up from.
+    choice : LayoutChoice
+        From :func:`choose_layout`.
+
+    Returns
+    -------
+    Rig
+        Named ``<rig name>-chosen``, on the problem's frequencies, the chosen
+        elements in the candidates' order.
     """
     cand = choice.problem.candidates
     idx = sorted(choice.chosen)

@@ -18,6 +18,7 @@ import numpy as np
 
 from ..rig.directivity import Directivity
 from ..errors import InputError
+from ..formats.study_sidecars import stamp_study_sidecar
 from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..rig import ElementSet, Rig, read_rig_document
 from ..rig.room import IMAGE_LIMIT, SURFACES, Room
@@ -140,7 +141,7 @@ def write_layout(rig: Rig, choice: LayoutChoice, out_dir: str | Path, figures: b
     cand_rows = [[n, float(x), float(y), float(z), int(i in chosen),
                   "" if choice.relaxed is None else float(choice.relaxed[i])]
                  for i, (n, (x, y, z)) in enumerate(zip(p.candidates.names, p.candidates.positions))]
-    doc = {"kind": "arrayplan-layout-study", "provenance": provenance(rig_sha256=rig.sha256, rig_source=rig.source),
+    doc = {"provenance": provenance(rig_sha256=rig.sha256, rig_source=rig.source),
            "side": p.side, "count": p.count, "candidates": len(p.candidates), "criterion": choice.criterion,
            "unit": _UNITS[choice.criterion], "reference_snr_db": p.reference_snr_db,
            "reference_snr": REFERENCE_SNR_MEANING, "threshold_db": p.threshold_db,
@@ -155,7 +156,7 @@ def write_layout(rig: Rig, choice: LayoutChoice, out_dir: str | Path, figures: b
             [[s["step"], s["action"], s["added"], s["removed"], float(s["value"])] for s in choice.steps]))
         write_text_atomic(stage / "layout-candidates.csv", _csv(
             ["name", "x", "y", "z", "chosen", "relaxed_weight"], cand_rows))
-        write_json_atomic(stage / "layout.json", doc)
+        write_json_atomic(stage / "layout.json", stamp_study_sidecar(doc, "layout"))
         if figures:
             from ..plots.layout import plot_layout_criterion, plot_layout_rig
             plot_layout_rig(rig, choice).savefig(stage / "layout-rig.png", dpi=120)

@@ -73,7 +73,41 @@ def _check(value: float, name: str, *, integer: bool = False) -> None:
 def tolerance_problem(plan: Plan, *, position_sd_m: float = 0.0, gain_sd_db: float = 0.0, phase_sd_deg: float = 0.0,
                       isolation_db: float = 20.0, seed: int = 0, kernel_builder: KernelBuilder | None = None,
                       threshold_db: float | None = None) -> TrialProblem:
-    """The trial problem of `plan` (see :func:`tolerance_study` for the parameters)."""
+    """The trial problem of `plan` (see :func:`tolerance_study` for the parameters).
+
+    Parameters
+    ----------
+    plan : Plan
+        With element positions.
+    position_sd_m : float
+        Standard deviation of each position coordinate (m).
+    gain_sd_db : float
+        Standard deviation of each element's gain (dB).
+    phase_sd_deg : float
+        Standard deviation of each element's phase (degrees).
+    isolation_db : float
+        Crosstalk margin a channel must keep (dB), finite.
+    seed : int
+        Base seed of the trials.
+    kernel_builder : callable, optional
+        ``builder(speakers, mics, medium) -> Kernel``; default the rig's room
+        when the plan was made in it, else the free field.
+    threshold_db : float, optional
+        Strong-channel threshold (dB); default the plan's.
+
+    Returns
+    -------
+    TrialProblem
+        The plan's singular values, weights and judged cells, with a scale
+        (the plan's couplings over the builder's) when the builder does not
+        reproduce the plan's couplings.
+
+    Raises
+    ------
+    InputError
+        A negative or non-finite standard deviation, a non-finite
+        isolation, or a kernel with a zero path where the plan needs scaling.
+    """
     for value, name in ((position_sd_m, "position_sd_m"), (gain_sd_db, "gain_sd_db"), (phase_sd_deg, "phase_sd_deg")):
         _check(value, name)
     if not np.isfinite(isolation_db):
@@ -107,6 +141,17 @@ def first_order_gain_sd_db(problem: TrialProblem) -> np.ndarray:
 
     See the module Notes.  Position derivatives are central differences of
     the problem's kernel over all speakers (or microphones) moved at once.
+
+    Parameters
+    ----------
+    problem : TrialProblem
+        From :func:`tolerance_problem`.
+
+    Returns
+    -------
+    ndarray, shape (n_freq, n_chan)
+        Standard deviation of 20 log10 of each channel's realised coupling
+        (dB), in the plan's channel order; inf or NaN where s_j = 0.
     """
     n_s, n_m = len(problem.rig.speakers), len(problem.rig.mics)
     comb_t = np.swapaxes(problem.combine, 1, 2)                     # (f, c, m)

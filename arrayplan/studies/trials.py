@@ -53,12 +53,40 @@ DEGENERATE_RTOL = 1e-6
 
 
 def free_field_builder(speakers: ElementSet, mics: ElementSet, medium: Medium) -> Kernel:
-    """The free-field kernel between `speakers` and `mics` (the default kernel builder)."""
+    """The free-field kernel between `speakers` and `mics` (the default kernel builder).
+
+    Parameters
+    ----------
+    speakers, mics : ElementSet
+        Element positions (m) and directivities.
+    medium : Medium
+        Speed of sound and air absorption.
+
+    Returns
+    -------
+    Kernel
+        A :class:`FreeFieldKernel`, distances clamped at 1 µm.
+    """
     return FreeFieldKernel.between(speakers, mics, medium, min_distance_m=1e-6)
 
 
 def room_builder(room: Room, speakers: ElementSet, mics: ElementSet, medium: Medium) -> Kernel:
-    """The image-source kernel of `room` between `speakers` and `mics`; bind `room` with functools.partial."""
+    """The image-source kernel of `room` between `speakers` and `mics`; bind `room` with functools.partial.
+
+    Parameters
+    ----------
+    room : Room
+        The rectangular room.
+    speakers, mics : ElementSet
+        Element positions (m) and directivities.
+    medium : Medium
+        Speed of sound and air absorption.
+
+    Returns
+    -------
+    Kernel
+        A :class:`RoomKernel`, distances clamped at 1 µm.
+    """
     return RoomKernel.between(speakers, mics, medium, room, min_distance_m=1e-6)
 
 
@@ -104,10 +132,24 @@ class TrialProblem:
 
     @property
     def model(self) -> str:
+        """Which perturbation model the trials use (module Notes).
+
+        Returns
+        -------
+        str
+            ``"direct"`` without a ratio base, else ``"ratio"``.
+        """
         return "direct" if self.ratio_base is None else "ratio"
 
     def couplings_at(self, speaker_offsets_m: np.ndarray, mic_offsets_m: np.ndarray) -> np.ndarray:
         """Couplings with the elements moved by the offsets (m, shapes (n_spk, 3), (n_mic, 3)), no gain errors.
+
+        Parameters
+        ----------
+        speaker_offsets_m : ndarray, shape (n_spk, 3)
+            Speaker position offsets (m).
+        mic_offsets_m : ndarray, shape (n_mic, 3)
+            Microphone position offsets (m).
 
         Returns
         -------
@@ -121,7 +163,17 @@ class TrialProblem:
 
 @dataclass(frozen=True)
 class TrialErrors:
-    """The errors drawn for one trial: offsets (m), gains (dB), phases (rad), per speaker and microphone."""
+    """The errors drawn for one trial: offsets (m), gains (dB), phases (rad), per speaker and microphone.
+
+    Attributes
+    ----------
+    speaker_offsets_m, mic_offsets_m : ndarray, shape (n_spk, 3), (n_mic, 3)
+        Position errors (m).
+    speaker_gain_db, mic_gain_db : ndarray, shape (n_spk,), (n_mic,)
+        Gain errors (dB).
+    speaker_phase_rad, mic_phase_rad : ndarray, shape (n_spk,), (n_mic,)
+        Phase errors (rad).
+    """
 
     speaker_offsets_m: np.ndarray
     mic_offsets_m: np.ndarray
@@ -132,7 +184,21 @@ class TrialErrors:
 
 
 def trial_errors(problem: TrialProblem, trial: int) -> TrialErrors:
-    """The errors of trial `trial` (0-based), from ``default_rng([seed, trial])``; independent of chunking."""
+    """The errors of trial `trial` (0-based), from ``default_rng([seed, trial])``; independent of chunking.
+
+    Parameters
+    ----------
+    problem : TrialProblem
+        Standard deviations, seed and element counts.
+    trial : int
+        0-based trial index.
+
+    Returns
+    -------
+    TrialErrors
+        Position, gain and phase errors scaled by the problem's standard
+        deviations, all drawn in one fixed order.
+    """
     rng = np.random.default_rng([int(problem.seed), int(trial)])
     n_s, n_m = len(problem.rig.speakers), len(problem.rig.mics)
     z = rng.standard_normal(4 * n_s + 4 * n_m + n_s + n_m)       # one draw, fixed order
@@ -144,7 +210,20 @@ def trial_errors(problem: TrialProblem, trial: int) -> TrialErrors:
 
 
 def perturbed_couplings(problem: TrialProblem, trial: int) -> np.ndarray:
-    """Coupling matrices of trial `trial`, complex, shape (n_freq, n_mic, n_spk) (see module Notes)."""
+    """Coupling matrices of trial `trial` (see module Notes).
+
+    Parameters
+    ----------
+    problem : TrialProblem
+        The nominal rig, kernel builder and standard deviations.
+    trial : int
+        0-based trial index.
+
+    Returns
+    -------
+    ndarray, complex, shape (n_freq, n_mic, n_spk)
+        G_t with the trial's position, gain and phase errors.
+    """
     e = trial_errors(problem, trial)
     g = problem.couplings_at(e.speaker_offsets_m, e.mic_offsets_m)
     a_s = 10.0 ** (e.speaker_gain_db / 20.0) * np.exp(1j * e.speaker_phase_rad)
@@ -153,7 +232,21 @@ def perturbed_couplings(problem: TrialProblem, trial: int) -> np.ndarray:
 
 
 def clusters(values: np.ndarray, rtol: float = DEGENERATE_RTOL) -> list[np.ndarray]:
-    """Indices of `values` (shape (n,)) grouped into clusters of equal values (relative `rtol`), largest first."""
+    """Indices of `values` (shape (n,)) grouped into clusters of equal values (relative `rtol`), largest first.
+
+    Parameters
+    ----------
+    values : ndarray, shape (n,)
+        Values to group, e.g. one frequency's singular values.
+    rtol : float
+        A value joins the current cluster when within `rtol` of its first
+        (largest) value, relatively.
+
+    Returns
+    -------
+    list of ndarray of int
+        0-based indices per cluster, clusters in descending order of value.
+    """
     order = np.argsort(-values, kind="stable")
     groups: list[list[int]] = []
     for i in order:
@@ -252,7 +345,21 @@ class TrialChunk:
 
 
 def run_trial_chunk(problem: TrialProblem, trials: Sequence[int]) -> TrialChunk:
-    """Run the trials `trials` (0-based indices) of `problem`; see :class:`TrialChunk`."""
+    """Run the trials `trials` (0-based indices) of `problem`; see :class:`TrialChunk`.
+
+    Parameters
+    ----------
+    problem : TrialProblem
+        The plan's weights and the error model.
+    trials : sequence of int
+        0-based trial indices.
+
+    Returns
+    -------
+    TrialChunk
+        Gains and crosstalk (dB) and re-planned and predicted strengths,
+        shape (n_t, n_freq, n_chan) each.
+    """
     trials = np.asarray(trials, dtype=int)
     sv, judged = problem.singular_values, problem.judged
     n_f, n_c = sv.shape
@@ -279,5 +386,18 @@ def run_trial_chunk(problem: TrialProblem, trials: Sequence[int]) -> TrialChunk:
 
 
 def trial_chunks(n_trials: int, chunk_size: int) -> list[np.ndarray]:
-    """Trial indices 0..n_trials-1 split into chunks of at most `chunk_size`."""
+    """Trial indices 0..n_trials-1 split into chunks of at most `chunk_size`.
+
+    Parameters
+    ----------
+    n_trials : int
+        Number of trials.
+    chunk_size : int
+        Most trials per chunk (values below 1 count as 1).
+
+    Returns
+    -------
+    list of ndarray of int
+        Consecutive index ranges, in order.
+    """
     return [np.arange(i, min(i + chunk_size, n_trials)) for i in range(0, n_trials, max(1, chunk_size))]

@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 import soundfile as sf
 
+from ..formats.study_sidecars import stamp_study_sidecar
 from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..channels.field import PlaneGrid, channel_field
 from ..rig import Rig
@@ -93,7 +94,6 @@ def summary_lines(study: ZoneStudy) -> list[str]:
 def _sidecar(rig: Rig, study: ZoneStudy, tolerance: ZoneTolerance | None, filters: ZoneFilters | None,
              filter_method: str | None, map_hz: float) -> dict:
     doc = {
-        "kind": "arrayplan-zones-study",
         "provenance": provenance(rig_sha256=rig.sha256, rig_source=rig.source),
         "kernel": study.kernel_name,
         "frequencies_hz": study.axis.hz,
@@ -147,7 +147,8 @@ def write_zone_study(rig: Rig, study: ZoneStudy, out_dir: str | Path, *, map_hz:
         write_text_atomic(stage / "zones-metrics.csv", _csv(
             ["method", "regularisation", "frequency_hz", "contrast_db", "effort_db", "error_db", "chosen"], rows))
         write_text_atomic(stage / "zones-weights.csv", _csv(["method", "frequency_hz", "speaker", "re", "im"], wrows))
-        write_json_atomic(stage / "zones.json", _sidecar(rig, study, tolerance, filters, filter_method, map_hz))
+        write_json_atomic(stage / "zones.json", stamp_study_sidecar(
+            _sidecar(rig, study, tolerance, filters, filter_method, map_hz), "zones"))
         if filters is not None:
             sf.write(stage / "zone-drive.wav", filters.taps.astype(np.float32), int(round(filters.sample_rate_hz)),
                      subtype="FLOAT")

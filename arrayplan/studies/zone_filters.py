@@ -26,12 +26,11 @@ from typing import Callable
 
 import numpy as np
 from scipy.signal import fftconvolve
-from scipy.signal.windows import tukey
 
 from ..rig.directivity import OMNI
 from ..errors import InputError
 from ..filters import band_window, validate_request
-from ..filters.design import TUKEY_ALPHA
+from ..filters.design import taps_from_weights
 from ..frequency import FrequencyAxis
 from ..rig import ElementSet, Rig
 from ..kernels.model_irs import kernel_impulse_responses, required_samples
@@ -104,15 +103,26 @@ def zone_filter_taps(weights_at: Callable[[FrequencyAxis], np.ndarray], points: 
     hz = np.fft.rfftfreq(taps, 1.0 / fs)
     window = band_window(hz, (float(band_hz[0]), float(band_hz[1])), fs)
     idx = np.flatnonzero(window > 0)
-    n_spk = len(points.speakers)
     w = weights_at(FrequencyAxis(hz[idx]))
-    spec = np.zeros((hz.size, n_spk), dtype=complex)
-    spec[idx] = w * (window[idx] * np.exp(-2j * np.pi * hz[idx] * (taps // 2) / fs))[:, None]
-    return np.fft.irfft(spec, n=taps, axis=0) * tukey(taps, TUKEY_ALPHA)[:, None]
+    return taps_from_weights(w[:, :, None], window, idx, taps, taps // 2, fs)[:, :, 0]
 
 
 def zone_points_rig(rig: Rig, zones: list[Zone]) -> Rig:
-    """The rig's speakers with the points of `zones` (in zone order) as its microphones."""
+    """The rig's speakers with the points of `zones` (in zone order) as its microphones.
+
+    Parameters
+    ----------
+    rig : Rig
+        Speakers and medium.
+    zones : list of Zone
+        Zones whose points become omnidirectional microphones.
+
+    Returns
+    -------
+    Rig
+        Microphones named ``<zone>:<point>``, channels 1..n; no room, zones
+        or frequencies carried over.
+    """
     pos = np.vstack([z.positions for z in zones])
     names = tuple(f"{z.name}:{n}" for z in zones for n in z.point_names)
     es = ElementSet(names, pos, (OMNI,) * len(pos), tuple(range(1, len(pos) + 1)))

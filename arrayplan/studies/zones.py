@@ -91,7 +91,25 @@ class ZoneTarget:
 
     @classmethod
     def plane(cls, direction: Sequence[float], source: str = "target") -> "ZoneTarget":
-        """A plane wave travelling along `direction` (any length above zero)."""
+        """A plane wave travelling along `direction` (any length above zero).
+
+        Parameters
+        ----------
+        direction : sequence of 3 float
+            Direction of travel; normalised here.
+        source : str
+            Named in messages.
+
+        Returns
+        -------
+        ZoneTarget
+            Kind ``"plane"`` with a unit vector.
+
+        Raises
+        ------
+        InputError
+            Not 3 finite numbers of non-zero length.
+        """
         d = np.asarray(direction, dtype=float)
         n = float(np.linalg.norm(d)) if d.shape == (3,) and np.all(np.isfinite(d)) else 0.0
         if n == 0.0:
@@ -101,13 +119,39 @@ class ZoneTarget:
 
     @classmethod
     def point(cls, position: Sequence[float], source: str = "target") -> "ZoneTarget":
-        """The field of a virtual point source at `position` (m)."""
+        """The field of a virtual point source at `position` (m).
+
+        Parameters
+        ----------
+        position : sequence of 3 float
+            Source position (m).
+        source : str
+            Named in messages.
+
+        Returns
+        -------
+        ZoneTarget
+            Kind ``"point"``.
+
+        Raises
+        ------
+        InputError
+            Not 3 finite numbers.
+        """
         p = np.asarray(position, dtype=float)
         if p.shape != (3,) or not np.all(np.isfinite(p)):
             raise InputError(f"virtual source position must be 3 finite numbers, got {list(p)}", source=source)
         return cls("point", tuple(float(x) for x in p))  # type: ignore[arg-type]
 
     def describe(self) -> str:
+        """The target in words, for reports.
+
+        Returns
+        -------
+        str
+            E.g. ``"plane wave travelling along (0, 1, 0)"`` or
+            ``"virtual point source at (1, 2, 0.5) m"``.
+        """
         v = ", ".join(f"{x:.3g}" for x in self.vector)
         return f"plane wave travelling along ({v})" if self.kind == "plane" else f"virtual point source at ({v}) m"
 
@@ -209,7 +253,21 @@ def zone_coupling(rig: Rig, zones: Sequence[Zone], hz: np.ndarray, kernel: Any =
 
 
 def points_model_kernel(rig: Rig, receivers: ElementSet) -> Any:
-    """The rig's model kernel (room when it has one, else free field) from its speakers to `receivers`."""
+    """The rig's model kernel (room when it has one, else free field) from its speakers to `receivers`.
+
+    Parameters
+    ----------
+    rig : Rig
+        Speakers, medium and room.
+    receivers : ElementSet
+        Receiving points (m), e.g. zone points.
+
+    Returns
+    -------
+    Kernel
+        ``evaluate(hz)`` gives shape (n, n_receivers, n_spk); distances
+        clamped at 1 mm.
+    """
     if rig.room is not None:
         return RoomKernel.between(rig.speakers, receivers, rig.medium, rig.room)
     return FreeFieldKernel.between(rig.speakers, receivers, rig.medium)
@@ -282,7 +340,18 @@ def matching_weights(g_bright: np.ndarray, g_dark: np.ndarray, p_target: np.ndar
 
 
 def reference_speaker(speaker_positions: np.ndarray) -> int:
-    """0-based index of the speaker nearest the centroid of all speakers (the effort's reference)."""
+    """0-based index of the speaker nearest the centroid of all speakers (the effort's reference).
+
+    Parameters
+    ----------
+    speaker_positions : array_like, shape (n_spk, 3)
+        Speaker positions (m).
+
+    Returns
+    -------
+    int
+        0-based speaker index (the first on a tie).
+    """
     pos = np.asarray(speaker_positions, dtype=float)
     return int(np.argmin(np.linalg.norm(pos - pos.mean(axis=0), axis=1)))
 
@@ -333,20 +402,68 @@ def _mean_sq(p: np.ndarray) -> np.ndarray:
 
 
 def contrast_db(weights: np.ndarray, g_bright: np.ndarray, g_dark: np.ndarray) -> np.ndarray:
-    """Acoustic contrast in dB, shape (n_freq,), for weights (n_freq, n_spk)."""
+    """Acoustic contrast: mean |p|^2 over the bright points over that over the dark points.
+
+    Parameters
+    ----------
+    weights : ndarray, complex, shape (n_freq, n_spk)
+        Drive weights.
+    g_bright : ndarray, complex, shape (n_freq, n_b, n_spk)
+        Coupling to the bright-zone points.
+    g_dark : ndarray, complex, shape (n_freq, n_d, n_spk)
+        Coupling to the dark-zone points.
+
+    Returns
+    -------
+    ndarray, shape (n_freq,)
+        Contrast (dB); both energies floored at 1e-300.
+    """
     pb = _mean_sq(np.einsum("fps,fs->fp", g_bright, weights))
     pd = _mean_sq(np.einsum("fps,fs->fp", g_dark, weights))
     return 10 * np.log10(np.maximum(pb, _TINY) / np.maximum(pd, _TINY))
 
 
 def effort_db(weights: np.ndarray, g_bright: np.ndarray, g_ref: np.ndarray) -> np.ndarray:
-    """Array effort in dB re the reference speaker, shape (n_freq,); g_ref shape (n_freq, n_b)."""
+    """Array effort in dB re the reference speaker.
+
+    ``||w||^2 mean|g_ref|^2 / mean|G_b w|^2``: the drive energy needed for
+    the bright-zone level, against one reference speaker driven alone.
+
+    Parameters
+    ----------
+    weights : ndarray, complex, shape (n_freq, n_spk)
+        Drive weights.
+    g_bright : ndarray, complex, shape (n_freq, n_b, n_spk)
+        Coupling to the bright-zone points.
+    g_ref : ndarray, complex, shape (n_freq, n_b)
+        Coupling of the reference speaker to the bright-zone points.
+
+    Returns
+    -------
+    ndarray, shape (n_freq,)
+        Effort (dB); 0 dB for the reference speaker alone at unit drive.
+    """
     pb = _mean_sq(np.einsum("fps,fs->fp", g_bright, weights))
     return 10 * np.log10(np.sum(np.abs(weights) ** 2, axis=1) * _mean_sq(g_ref) / np.maximum(pb, _TINY))
 
 
 def matching_error_db(weights: np.ndarray, g_bright: np.ndarray, p_target: np.ndarray) -> np.ndarray:
-    """Bright-zone matching error 10 log10(||G_b w - p_t||^2 / ||p_t||^2), dB, shape (n_freq,)."""
+    """Bright-zone matching error 10 log10(||G_b w - p_t||^2 / ||p_t||^2).
+
+    Parameters
+    ----------
+    weights : ndarray, complex, shape (n_freq, n_spk)
+        Drive weights.
+    g_bright : ndarray, complex, shape (n_freq, n_b, n_spk)
+        Coupling to the bright-zone points.
+    p_target : ndarray, complex, shape (n_freq, n_b)
+        Target pressure at those points (unit of G).
+
+    Returns
+    -------
+    ndarray, shape (n_freq,)
+        Matching error (dB); the error energy is floored at 1e-300.
+    """
     err = np.einsum("fps,fs->fp", g_bright, weights) - p_target
     return 10 * np.log10(np.maximum(_mean_sq(err), _TINY) / _mean_sq(p_target))
 
@@ -354,8 +471,20 @@ def matching_error_db(weights: np.ndarray, g_bright: np.ndarray, p_target: np.nd
 def align_to_reference(weights: np.ndarray, g_bright: np.ndarray, g_ref: np.ndarray) -> np.ndarray:
     """Scale and rotate weights so the bright-zone pressure matches the reference speaker's level and phase.
 
-    Returns weights (n_freq, n_spk) with mean|G_b w|^2 = mean|g_ref|^2 and
-    sum(conj(g_ref) G_b w) real and positive.
+    Parameters
+    ----------
+    weights : ndarray, complex, shape (n_freq, n_spk)
+        Drive weights.
+    g_bright : ndarray, complex, shape (n_freq, n_b, n_spk)
+        Coupling to the bright-zone points.
+    g_ref : ndarray, complex, shape (n_freq, n_b)
+        Coupling of the reference speaker to the bright-zone points.
+
+    Returns
+    -------
+    ndarray, complex, shape (n_freq, n_spk)
+        Weights with mean|G_b w|^2 = mean|g_ref|^2 and
+        sum(conj(g_ref) G_b w) real and positive.
     """
     p = np.einsum("fps,fs->fp", g_bright, weights)
     c = np.sum(np.conj(g_ref) * p, axis=1)

@@ -125,7 +125,13 @@ class Verification:
 
     @property
     def passed(self) -> np.ndarray:
-        """Per wanted channel: never lost at any planned frequency, shape (n_want,)."""
+        """Per wanted channel: never lost at any planned frequency.
+
+        Returns
+        -------
+        ndarray of bool, shape (n_want,)
+            True where :attr:`lost` is False at every frequency.
+        """
         return ~np.any(self.lost, axis=0)
 
 
@@ -143,7 +149,28 @@ class _Reordered:
 
 def align_kernel_names(weights: PlanWeights, kernel: Kernel, *, plan_source: str | None = None,
                        measured_source: str | None = None) -> Kernel:
-    """Return `kernel` with its elements in the plan's order, or raise InputError naming the mismatch."""
+    """Return `kernel` with its elements in the plan's order, or raise InputError naming the mismatch.
+
+    Parameters
+    ----------
+    weights : PlanWeights
+        The plan's weights, with its speaker and microphone names.
+    kernel : Kernel
+        The measured kernel.
+    plan_source, measured_source : str, optional
+        The plan folder and the IR set, named in messages.
+
+    Returns
+    -------
+    Kernel
+        `kernel` itself when the order already matches, else a view that
+        evaluates to shape (n, n_mic, n_spk) in the plan's order.
+
+    Raises
+    ------
+    InputError
+        The two sides do not hold the same element names.
+    """
     out_idx = {}
     for kind, planned, measured in (("speakers", weights.speaker_names, kernel.speaker_names),
                                     ("microphones", weights.mic_names, kernel.mic_names)):
@@ -209,6 +236,18 @@ def strong_mask(sv: np.ndarray, threshold_db: float) -> np.ndarray:
 
     The same rule as the plan's strong count
     (:meth:`arrayplan.channels.svd.ChannelSet.strong_channels`), whatever the channel order.
+
+    Parameters
+    ----------
+    sv : ndarray, shape (n_freq, n_chan)
+        Singular values, in any channel order.
+    threshold_db : float
+        Margin below the strongest channel at each frequency (dB; the sign is ignored).
+
+    Returns
+    -------
+    ndarray of bool, shape (n_freq, n_chan)
+        True where the channel is strong.
     """
     return level_re_strongest_db(sv) >= -abs(threshold_db) - 1e-12
 
@@ -406,5 +445,17 @@ def judge_channels(hz: np.ndarray, channel_matrix: np.ndarray, g: np.ndarray, pl
 
 
 def lost_bands_hz(res: Verification) -> list[list[tuple[float, float]]]:
-    """Per wanted channel, the runs of consecutive frequencies where it is lost, as (low, high) Hz."""
+    """Per wanted channel, the runs of consecutive frequencies where it is lost, as (low, high) Hz.
+
+    Parameters
+    ----------
+    res : Verification
+        A verification result.
+
+    Returns
+    -------
+    list of list of (float, float)
+        One list per wanted channel (in ``res.channels`` order) of
+        (lowest, highest) planned frequency of each run (Hz).
+    """
     return [strong_ranges_hz(res.hz, res.lost[:, k]) for k in range(len(res.channels))]

@@ -30,7 +30,7 @@ import numpy as np
 
 from ..kernels.coupling import Kernel
 from ..filters.check import channel_transfer, check_grid, kernel_at, kernel_ir_samples
-from ..filters.files import FilterFiles
+from ..formats.filter_set import FilterFiles
 from .channels import Verification, align_kernel_names, judge_channels
 
 __all__ = ["verify_filters"]
@@ -44,7 +44,7 @@ def verify_filters(filters: FilterFiles, kernel: Kernel, *, isolation_db: float 
     Parameters
     ----------
     filters : FilterFiles
-        From :func:`arrayplan.filters.files.read_filter_set`.
+        From :func:`arrayplan.formats.filter_set.read_filter_set`.
     kernel : Kernel
         The measured rig; element names must match the filters' (any order).
         Its sample rate, if it has one, must be the filters'.

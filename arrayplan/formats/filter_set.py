@@ -1,12 +1,18 @@
-"""Filter files for a DSP: WAV taps per channel, a JSON sidecar, the weights table, the check.
+"""The filter set: FIR filters for a DSP as WAV taps per channel, a JSON sidecar, the weights table, the check.
 
+``arrayplan filters`` writes the folder (:func:`write_filter_set`); ``arrayplan
+verify`` reads it back (:func:`read_filter_set`) and the channel probe reads
+its sidecar for the speakers' names (:func:`read_filter_set_sidecar`).
 Files (channel numbers NN are 1-based, the plan's tracked numbering):
 
 * ``channel-NN-drive.wav``: float32 WAV, one audio channel per speaker in
   rig order, ``taps`` samples at the design rate.
 * ``channel-NN-combine.wav``: likewise, one audio channel per microphone.
-* ``filters.json``: rate, taps, delays, band, channel strengths, skipped
-  channels with reasons, element names by order, provenance and rig hash.
+* ``filters.json``: ``format`` ``"arrayplan-filter-set"`` and
+  ``format_version`` 1 (:mod:`arrayplan.formats._versioning`), rate, taps,
+  delays, band, channel strengths, skipped channels with reasons, element
+  names by order, provenance and rig hash.  The previous release wrote it
+  without either key; such files are still read, for one release.
 * ``weights.csv``: the planned weights on the in-band design bins
   (frequency_hz, channel, side, element, re, im).
 * ``filters.json`` also holds the plan on the in-band design bins
@@ -26,35 +32,67 @@ from __future__ import annotations
 
 import csv
 import io
+import os
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import soundfile as sf
 
 from ..errors import InputError
-from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..rig import Rig
 from ..safety import CAUTION_NOTE
-from .check import FilterCheck, plot_crosstalk
-from .design import TRANSITION_MIN_BINS, TRANSITION_OCTAVES, TUKEY_ALPHA, FilterSet
-from .source import DesignSource, read_json_object, source_from_rig
+from ._versioning import UNMARKED, check as check_version, read_json_document, stamp
+from .fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 
-__all__ = ["FilterFiles", "read_filter_set", "write_filters", "sidecar"]
+if TYPE_CHECKING:   # the filters package imports this module: its parts are imported where they are used
+    from ..filters.check import FilterCheck
+    from ..filters.design import FilterSet
+    from ..filters.source import DesignSource
+
+__all__ = ["FILTER_SET_FORMAT", "FILTER_SET_FORMAT_VERSION", "FILTER_SET_SIDECAR", "FilterFiles",
+           "filter_set_sidecar", "read_filter_set", "read_filter_set_sidecar", "write_filter_set"]
+
+FILTER_SET_FORMAT = "arrayplan-filter-set"
+FILTER_SET_FORMAT_VERSION = 1
+#: The sidecar's file name in the folder.
+FILTER_SET_SIDECAR = "filters.json"
+_FIX = "point at a folder written by the filters command"
 
 
 def _finite(x: float) -> float | None:
     return float(x) if np.isfinite(x) else None
 
 
-def sidecar(source: DesignSource | Rig, filters: FilterSet, check: FilterCheck | None = None) -> dict:
-    """The content of ``filters.json`` (`source`: what the filters were designed from, or a rig for its model)."""
-    if isinstance(source, Rig):
-        source = source_from_rig(source)
+def _design_source(source: DesignSource | Rig) -> DesignSource:
+    from ..filters.source import source_from_rig
+
+    return source_from_rig(source) if isinstance(source, Rig) else source
+
+
+def filter_set_sidecar(source: DesignSource | Rig, filters: FilterSet, check: FilterCheck | None = None) -> dict:
+    """The content of ``filters.json``.
+
+    Parameters
+    ----------
+    source : DesignSource or Rig
+        What the filters were designed from, or a rig for its model kernel.
+    filters : FilterSet
+    check : FilterCheck, optional
+
+    Returns
+    -------
+    dict
+        JSON-ready, with ``format`` and ``format_version`` first.
+    """
+    from ..filters.design import TRANSITION_MIN_BINS, TRANSITION_OCTAVES, TUKEY_ALPHA
+
+    source = _design_source(source)
     fs = filters.sample_rate_hz
     s_centre = filters.plan.singular_values[filters.plan.axis.index_of(filters.centre_hz)]
     band = filters.in_band()
-    doc = {
+    doc = stamp({
         "provenance": provenance(command="arrayplan filters", rig_sha256=source.origin.get("rig_sha256"),
                                  rig=source.origin.get("rig")),
         "designed_from": source.origin,
@@ -102,7 +140,7 @@ def sidecar(source: DesignSource | Rig, filters: FilterSet, check: FilterCheck |
         "microphones": list(source.mic_names),
         "sign_convention": provenance()["sign_convention"],
         "caution": CAUTION_NOTE,
-    }
+    }, FILTER_SET_FORMAT, FILTER_SET_FORMAT_VERSION)
     if check is not None:
         doc["check"] = {
             "limit_db": check.limit_db, "rig_ir_samples": check.ir_samples,
@@ -184,7 +222,7 @@ def _matrix_text(source: DesignSource, filters: FilterSet) -> str:
 def _write_responses(source: DesignSource, filters: FilterSet, stage: Path) -> list[str]:
     import matplotlib.pyplot as plt
 
-    from ..formats.fileio import atomic_path
+    from .fileio import atomic_path
     from ..plots.filter_responses import plot_filter_responses
 
     names = []
@@ -201,8 +239,8 @@ def _write_responses(source: DesignSource, filters: FilterSet, stage: Path) -> l
     return names
 
 
-def write_filters(source: DesignSource | Rig, filters: FilterSet, out_dir: str | Path,
-                  check: FilterCheck | None = None) -> list[Path]:
+def write_filter_set(source: DesignSource | Rig, filters: FilterSet, out_dir: str | os.PathLike,
+                     check: FilterCheck | None = None) -> list[Path]:
     """Write every filter file (and the check, if given) to `out_dir` atomically; return the paths.
 
     Parameters
@@ -219,8 +257,9 @@ def write_filters(source: DesignSource | Rig, filters: FilterSet, out_dir: str |
     """
     import matplotlib.pyplot as plt
 
-    if isinstance(source, Rig):
-        source = source_from_rig(source)
+    from ..filters.check import plot_crosstalk
+
+    source = _design_source(source)
     out_dir = Path(out_dir)
     names: list[str] = []
     with staged_output_dir(out_dir) as stage:
@@ -230,10 +269,10 @@ def write_filters(source: DesignSource | Rig, filters: FilterSet, out_dir: str |
                 name = f"channel-{j + 1:02d}-{side}.wav"
                 sf.write(stage / name, taps.astype(np.float32), fs, subtype="FLOAT")
                 names.append(name)
-        write_json_atomic(stage / "filters.json", sidecar(source, filters, check))
+        write_json_atomic(stage / FILTER_SET_SIDECAR, filter_set_sidecar(source, filters, check))
         write_text_atomic(stage / "weights.csv", _weights_csv(source, filters))
         write_text_atomic(stage / "filters-matrix.txt", _matrix_text(source, filters))
-        names += ["filters.json", "weights.csv", "filters-matrix.txt"]
+        names += [FILTER_SET_SIDECAR, "weights.csv", "filters-matrix.txt"]
         names += _write_responses(source, filters, stage)
         if check is not None:
             write_text_atomic(stage / "check.csv", _check_csv(check))
@@ -246,7 +285,7 @@ def write_filters(source: DesignSource | Rig, filters: FilterSet, out_dir: str |
 
 @dataclass(frozen=True)
 class FilterFiles:
-    """A filter folder read back (:func:`read_filter_set`).
+    """A filter set read back (:func:`read_filter_set`).
 
     Attributes
     ----------
@@ -296,8 +335,41 @@ def _read_wav(path: Path, n_channels: int, taps: int, rate: float) -> np.ndarray
     return data
 
 
-def read_filter_set(folder: str | Path) -> FilterFiles:
-    """Read a folder written by :func:`write_filters`: its ``filters.json`` and every channel's WAV taps.
+def read_filter_set_sidecar(folder: str | os.PathLike) -> dict[str, Any]:
+    """Read and check a filter set's ``filters.json`` (its format and version only).
+
+    Parameters
+    ----------
+    folder : path
+        The folder, or its ``filters.json``.
+
+    Returns
+    -------
+    dict
+        ``filters.json`` as decoded (module docstring); its format and version checked, nothing else.
+
+    Raises
+    ------
+    InputError
+        When the file is missing, not a JSON object, of another format or of a newer version.
+    """
+    path = Path(folder)
+    path = path if path.name == FILTER_SET_SIDECAR and path.is_file() else path / FILTER_SET_SIDECAR
+    doc = read_json_document(path, _FIX)
+    check_version(doc, FILTER_SET_FORMAT, FILTER_SET_FORMAT_VERSION, str(path), legacy=UNMARKED, fix=_FIX)
+    return doc
+
+
+def read_filter_set(folder: str | os.PathLike) -> FilterFiles:
+    """Read a folder written by :func:`write_filter_set`: its ``filters.json`` and every channel's WAV taps.
+
+    Parameters
+    ----------
+    folder : path
+
+    Returns
+    -------
+    FilterFiles
 
     Raises
     ------
@@ -305,8 +377,8 @@ def read_filter_set(folder: str | Path) -> FilterFiles:
         Naming the file and field when the folder is not a complete filter set.
     """
     folder = Path(folder)
-    path = folder / "filters.json"
-    doc = read_json_object(path, "point at a folder written by the filters command")
+    path = folder / FILTER_SET_SIDECAR
+    doc = read_filter_set_sidecar(folder)
     field = "plan_on_bins"
     try:
         rate, taps = float(doc["sample_rate_hz"]), int(doc["taps"])
