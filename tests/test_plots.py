@@ -142,3 +142,15 @@ def test_field_extent_option_sets_the_grid_and_an_empty_extent_is_refused(tmp_pa
                  "--out", str(tmp_path / "g")]) == 2
     err = capsys.readouterr().err
     assert "--extent-m" in err and not (tmp_path / "g").exists()
+
+
+def test_max_pool_of_float32_along_either_axis_matches_block_maxima():
+    # reference: each block's maximum computed one block at a time with numpy, the short last block included
+    rng = np.random.default_rng(3)
+    a = rng.standard_normal((23, 2411)).astype(np.float32)
+    step = int(np.ceil(2411 / 1200))
+    ref = np.stack([a[:, i:i + step].max(axis=1) for i in range(0, 2411, step)], axis=1)
+    pooled = _max_pool(a, 1, 1200)
+    assert pooled.dtype == np.float64 and pooled.shape == ref.shape
+    np.testing.assert_array_equal(pooled, ref)
+    np.testing.assert_array_equal(_max_pool(a.T, 0, 1200), ref.T)

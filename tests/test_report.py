@@ -569,3 +569,97 @@ def test_a_plan_folder_reported_on_its_own_is_named_by_its_folder(tmp_path):
     write_plan(plan_rig(rig, FrequencyAxis([1000.0, 2000.0])), tmp_path / "lone-plan", figures=False)
     html = build_report(tmp_path / "lone-plan")
     assert "Plan: lone-plan" in html and "Plan: .<" not in html and "Plan: .:" not in html
+
+
+def test_a_filter_verification_names_the_filters_and_their_plan(project, tmp_path):
+    # A verification of a filter set records filters_dir, not plan_dir: its section must name the
+    # filters folder and the plan the filters were designed from, never an empty "plan" field.
+    copy = tmp_path / "proj"
+    shutil.copytree(project, copy)
+    (copy / "report.html").unlink(missing_ok=True)
+    assert main(["filters", str(copy / "plan"), "--rate-hz", "16000", "--band-hz", "400", "4000", "--taps", "512",
+                 "--out", str(copy / "plan-filters")]) in (0, 1)
+    status = main(["verify", str(copy / "plan-filters"), str(copy / "meas" / "irset"), "--out",
+                   str(copy / "verify-filters")])
+    assert status in (0, 1)
+    doc = json.loads((copy / "verify-filters" / "verify.json").read_text())
+    assert "filters_dir" in doc and "plan_dir" not in doc          # what the verify command records
+    section = _section(build_report(copy), "verify-verify-filters")
+    rows = dict(re.findall(r'<tr><td class="text">([^<]*)</td><td class="text">([^<]*)</td></tr>', section))
+    assert rows["filters"] == str(copy / "plan-filters")
+    assert rows["plan the filters were designed from"] == str(copy / "plan")
+    assert "plan" not in rows or rows["plan"].strip()
+    if status == 1:      # free-field filters lost a channel: the remedy is to plan from the measurement
+        assert "plan again from these measured responses" in section
+
+
+def test_report_drawn_by_workers_equals_the_report_drawn_here(project):
+    # The same page whichever process draws the figures (only the generation time may differ).
+    import threading
+    from arrayplan.report.render import report_workers
+    assert report_workers(8, 2) == 2 or threading.active_count() > 1      # workers really are used here
+    stamp = re.compile(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\+00:00")
+    here = stamp.sub("T", build_report(project, workers=1))
+    spread = stamp.sub("T", build_report(project, workers=2))
+    assert here.count("<img ") >= 8
+    assert spread == here
+
+
+def test_png_bytes_has_the_pixels_of_savefig(project):
+    # Reference: matplotlib's own savefig of the same figure, laid out the same way.
+    from arrayplan.report.figures import png_bytes
+    with report_style():
+        ours = Image.open(io.BytesIO(png_bytes(plan_figures(find_results(project).plans[0])[0].figure)))
+        fig = plan_figures(find_results(project).plans[0])[0].figure
+        buf = io.BytesIO()
+        fig.savefig(buf, format="png", dpi=150)
+    theirs = Image.open(io.BytesIO(buf.getvalue()))
+    assert ours.size == theirs.size and ours.info.get("dpi", (0,))[0] == pytest.approx(150, abs=0.05)   # pHYs is in pixels per metre
+    np.testing.assert_array_equal(np.asarray(ours.convert("RGBA")), np.asarray(theirs.convert("RGBA")))
+
+
+def test_verification_table_read_by_column_equals_the_csv_module(project, tmp_path):
+    # Reference: Python's csv.DictReader, cell by cell (empty cell = NaN).
+    import csv
+    from arrayplan.errors import InputError
+    from arrayplan.report.discover import _read_csv_columns
+    path = project / "verify" / "verify-channels.csv"
+    with open(path, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    cols = _read_csv_columns(path)
+    assert set(cols) == set(rows[0])
+    for key, values in cols.items():
+        ref = np.array([float(r[key]) if r[key] != "" else np.nan for r in rows])
+        np.testing.assert_array_equal(values, ref)
+    gaps = tmp_path / "gaps.csv"
+    gaps.write_text("a,b,c\n,1,\n2,,3\n", encoding="utf-8")
+    got = _read_csv_columns(gaps)
+    np.testing.assert_array_equal(np.column_stack([got["a"], got["b"], got["c"]]),
+                                  [[np.nan, 1.0, np.nan], [2.0, np.nan, 3.0]])
+    bad = tmp_path / "bad.csv"
+    bad.write_text("a,b\n1,2\n3,oops\n", encoding="utf-8")
+    with pytest.raises(InputError, match="bad.csv.*b.*not a number"):
+        _read_csv_columns(bad)
+    bad.write_text("a,b\n1,2\n3\n", encoding="utf-8")
+    with pytest.raises(InputError, match="line 3"):
+        _read_csv_columns(bad)
+
+
+def test_field_maps_of_several_channels_equal_the_free_field_sum(project):
+    # Reference: p(x) = sum_s w_s exp(-j k r_s) / (4 pi r_s), the free-field Green's function
+    # (D. A. B. Miller, Applied Optics 39(11), 2000; DSP sign convention), summed here with numpy.
+    from arrayplan.channels.field import channel_field, channel_fields, default_plane
+    rig = load_rig(project / "rig.toml")
+    grid = default_plane(rig, "xy", resolution=15)
+    rng = np.random.default_rng(5)
+    w = rng.standard_normal((len(rig.speakers), 3)) + 1j * rng.standard_normal((len(rig.speakers), 3))
+    hz = 1500.0
+    k = 2 * np.pi * hz / rig.medium.speed_of_sound
+    pts = grid.points()
+    r = np.linalg.norm(pts[:, None, :] - rig.speakers.positions[None, :, :], axis=2)
+    ref = (np.exp(-1j * k * r) / (4 * np.pi * r)) @ w                      # (n_points, 3)
+    got = channel_fields(rig, w, hz, grid)
+    assert got.shape == (3, len(grid.v), len(grid.u))
+    for j in range(3):
+        np.testing.assert_allclose(got[j].reshape(-1), ref[:, j], rtol=1e-9)
+        np.testing.assert_allclose(channel_field(rig, w[:, j], hz, grid), got[j], rtol=1e-12)

@@ -19,7 +19,7 @@ from ..kernels.freefield import FreeFieldKernel
 from ..kernels.room import RoomKernel
 from ..rig import ElementSet, Rig
 
-__all__ = ["PlaneGrid", "channel_field", "default_plane", "best_plane"]
+__all__ = ["PlaneGrid", "channel_field", "channel_fields", "default_plane", "best_plane"]
 
 _AXES = {"xy": (0, 1, 2), "xz": (0, 2, 1), "yz": (1, 2, 0)}
 
@@ -171,10 +171,31 @@ def channel_field(rig: Rig, drive_weights: np.ndarray, frequency_hz: float, grid
         speaker are evaluated at 1 mm.
     """
     w = np.asarray(drive_weights, dtype=complex).reshape(-1)
-    if w.size != len(rig.speakers):
-        raise InputError(f"{w.size} drive weights for {len(rig.speakers)} speakers", field="drive_weights")
+    return channel_fields(rig, w[:, None], frequency_hz, grid)[0]
+
+
+def channel_fields(rig: Rig, drive_weights: np.ndarray, frequency_hz: float, grid: PlaneGrid) -> np.ndarray:
+    """Complex pressure over `grid` for several channels' speaker weights, the kernel evaluated once.
+
+    Parameters
+    ----------
+    rig : Rig
+    drive_weights : ndarray, shape (n_spk, n_chan)
+        One column of speaker weights per channel.
+    frequency_hz : float
+        Hz.
+    grid : PlaneGrid
+
+    Returns
+    -------
+    ndarray, complex, shape (n_chan, len(grid.v), len(grid.u))
+        As :func:`channel_field` for each column.
+    """
+    w = np.asarray(drive_weights, dtype=complex)
+    if w.ndim != 2 or w.shape[0] != len(rig.speakers):
+        raise InputError(f"drive weights of shape {w.shape} for {len(rig.speakers)} speakers", field="drive_weights")
     pts = grid.points()
-    out = np.empty(len(pts), dtype=complex)
+    out = np.empty((len(pts), w.shape[1]), dtype=complex)
     step = max(1, 200_000 // max(1, len(rig.speakers)))
     for start in range(0, len(pts), step):          # bound memory for fine grids
         chunk = pts[start:start + step]
@@ -184,4 +205,4 @@ def channel_field(rig: Rig, drive_weights: np.ndarray, frequency_hz: float, grid
                   else FreeFieldKernel.between(rig.speakers, sub, rig.medium))
         g = kernel.evaluate(np.array([frequency_hz]))[0]
         out[start:start + step] = g @ w
-    return out.reshape(len(grid.v), len(grid.u))
+    return out.T.reshape(w.shape[1], len(grid.v), len(grid.u))

@@ -37,7 +37,7 @@ from ._versioning import check, read_json_document, stamp
 from .fileio import atomic_path, check_folder, provenance, staged_output_dir, write_json_atomic, write_text_atomic
 
 __all__ = ["VERIFICATION_FORMAT", "VERIFICATION_FORMAT_VERSION", "VERIFICATION_SIDECAR", "VerificationFolder",
-           "verification_record", "write_verification", "read_verification"]
+           "verification_record", "write_verification", "read_verification", "read_verification_record"]
 
 VERIFICATION_FORMAT = "arrayplan-verification"
 VERIFICATION_FORMAT_VERSION = 1
@@ -228,6 +228,43 @@ def _read_csv(path: Path) -> list[dict[str, str]]:
         return list(csv.DictReader(fh))
 
 
+def read_verification_record(folder: str | os.PathLike) -> tuple[dict, int, dict[str, np.ndarray] | None]:
+    """The checked sidecar and the arrays of a verification folder, without its two tables.
+
+    For readers that parse the tables their own way (the report reads them by column).
+
+    Parameters
+    ----------
+    folder : path
+
+    Returns
+    -------
+    (dict, int, dict or None)
+        ``verify.json``, its format version (0: the previous release) and ``verify.npz``'s arrays (None
+        when the folder has none).
+
+    Raises
+    ------
+    InputError
+        As :func:`read_verification`, but for the tables.
+    """
+    folder = Path(folder)
+    check_folder(folder, needed=("verify*",))
+    path = folder / VERIFICATION_SIDECAR
+    fix = "point at a folder written by the verify command"
+    doc = read_json_document(path, fix)
+    version = check(doc, VERIFICATION_FORMAT, VERIFICATION_FORMAT_VERSION, str(path), legacy=VERIFICATION_FORMAT,
+                    fix=fix)
+    arrays = None
+    if (folder / _ARRAYS).is_file():
+        try:
+            with np.load(folder / _ARRAYS, allow_pickle=False) as z:
+                arrays = {k: z[k] for k in _ARRAY_KEYS}
+        except (ValueError, KeyError, OSError) as exc:
+            raise InputError(f"cannot read ({exc})", source=str(folder / _ARRAYS)) from None
+    return doc, version, arrays
+
+
 def read_verification(folder: str | os.PathLike) -> VerificationFolder:
     """Read a folder written by :func:`write_verification`.
 
@@ -247,18 +284,6 @@ def read_verification(folder: str | os.PathLike) -> VerificationFolder:
         another format or a newer version, a missing table or unreadable arrays.
     """
     folder = Path(folder)
-    check_folder(folder, needed=("verify*",))
-    path = folder / VERIFICATION_SIDECAR
-    fix = "point at a folder written by the verify command"
-    doc = read_json_document(path, fix)
-    version = check(doc, VERIFICATION_FORMAT, VERIFICATION_FORMAT_VERSION, str(path), legacy=VERIFICATION_FORMAT,
-                    fix=fix)
-    arrays = None
-    if (folder / _ARRAYS).is_file():
-        try:
-            with np.load(folder / _ARRAYS, allow_pickle=False) as z:
-                arrays = {k: z[k] for k in _ARRAY_KEYS}
-        except (ValueError, KeyError, OSError) as exc:
-            raise InputError(f"cannot read ({exc})", source=str(folder / _ARRAYS)) from None
+    doc, version, arrays = read_verification_record(folder)
     return VerificationFolder(folder, doc, version, _read_csv(folder / _CHANNELS_CSV),
                               _read_csv(folder / _SUMMARY_CSV), arrays)

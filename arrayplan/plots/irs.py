@@ -15,17 +15,24 @@ MAX_COLUMNS = 1200
 
 
 def _max_pool(a: np.ndarray, axis: int, target: int) -> np.ndarray:
-    """Largest value over runs of equal length along `axis`, so that at most `target` remain."""
+    """Largest value over runs of equal length along `axis`, so that at most `target` remain (as float).
+
+    The whole runs are pooled in place through a reshaped view and the short
+    last run on its own, so no padded copy of `a` is made.
+    """
     n = a.shape[axis]
     if n <= target:
-        return a
+        return a.astype(float, copy=False)
     step = int(np.ceil(n / target))
-    pad = [(0, 0)] * a.ndim
-    pad[axis] = (0, (-n) % step)
-    a = np.pad(a.astype(float, copy=False), pad, constant_values=-np.inf)
+    whole = n - n % step
+    lead = (slice(None),) * axis
+    head = a[lead + (slice(0, whole),)]                    # a view
     shape = list(a.shape)
-    shape[axis:axis + 1] = [shape[axis] // step, step]
-    return a.reshape(shape).max(axis=axis + 1)
+    shape[axis:axis + 1] = [whole // step, step]
+    parts = [head.reshape(shape).max(axis=axis + 1)]
+    if whole < n:
+        parts.append(a[lead + (slice(whole, n),)].max(axis=axis, keepdims=True))
+    return np.concatenate(parts, axis=axis).astype(float, copy=False)
 
 
 def plot_ir_overview(irs: IRSet, fig: Figure | None = None, range_db: float = 80.0,

@@ -6,7 +6,6 @@ from pathlib import Path
 
 import numpy as np
 
-from .figures import ReportFigure, png_bytes
 from .html import figure_html
 
 __all__ = ["_rel", "_anchor", "_fmt", "_figures_html"]
@@ -32,11 +31,6 @@ def _fmt(x: float, spec: str = ".3g") -> str:
     return text[1:] if text.startswith("-") and not text.strip("-0.") else text     # no "-0.0"
 
 
-def _figures_html(figs: list[ReportFigure], label: str) -> str:
-    import matplotlib.pyplot as plt
-
-    parts = []
-    for k, rf in enumerate(figs, 1):
-        parts.append(figure_html(png_bytes(rf.figure), rf.caption, f"{label}, figure {k}"))
-        plt.close(rf.figure)
-    return "\n".join(parts)
+def _figures_html(figs: list[tuple[str, bytes]], label: str) -> str:
+    """The ``<figure>`` elements of a section's drawn figures, (caption, PNG bytes) each."""
+    return "\n".join(figure_html(png, caption, f"{label}, figure {k}") for k, (caption, png) in enumerate(figs, 1))

@@ -21,13 +21,13 @@ from ..rig import Rig
 from ..safety import CAUTION_TEXT
 from .discover import (FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification, ProjectResults,
                        find_results)
-from .figures import (ReportFigure, filter_figures, irset_figures, plan_figures, png_bytes, report_style,
-                      study_figures, verification_figures)
+from .render import figure_makers, render_figures
 from ._util import _anchor, _figures_html, _fmt, _rel
 from .conclusions import centre_note, conclusions, verdict_html, verdict_of
 from .html import esc, page, table
 from .rigs import RigGroup, rig_anchor, rig_groups, rig_section
-from .verdicts import filters_verdict, irset_verdict, plan_verdict, study_verdict, verification_verdict
+from .verdicts import (filters_verdict, irset_verdict, plan_verdict, study_verdict, verification_verdict,
+                       verified_sources)
 
 __all__ = ["build_report", "write_report"]
 
@@ -166,7 +166,7 @@ def _effort_table(plan: Plan, max_rows: int = 12) -> str:
             + f'<p class="note">{esc(note)}</p>')
 
 
-def _plan_section(found: FoundPlan, root: Path) -> str:
+def _plan_section(found: FoundPlan, root: Path, figs: list[tuple[str, bytes]]) -> str:
     plan, side = found.plan, found.sidecar
     rig = plan.rig
     hz = plan.channels.axis.hz
@@ -198,12 +198,12 @@ def _plan_section(found: FoundPlan, root: Path) -> str:
                         "strongest s² (% of sum rule)"], rows, text_columns=()))
     parts.append(f'<p class="note">{esc(note)}</p>')
     parts.append(_effort_table(plan))
-    parts.append(_figures_html(plan_figures(found), f"plan {_rel(found.folder, root)}"))
+    parts.append(_figures_html(figs, f"plan {_rel(found.folder, root)}"))
     parts.append("</section>")
     return "\n".join(parts)
 
 
-def _filters_section(found: FoundFilters, root: Path) -> str:
+def _filters_section(found: FoundFilters, root: Path, figs: list[tuple[str, bytes]]) -> str:
     d = found.sidecar
     parts = [f'<section id="{_anchor("filters", found.folder, root)}"><h2>Filters: '
              f'{esc(_rel(found.folder, root))}</h2>', verdict_html(filters_verdict(found))]
@@ -235,7 +235,7 @@ def _filters_section(found: FoundFilters, root: Path) -> str:
     if check:
         parts.append(f'<p class="note">Check limit {esc(check.get("limit_db"))} dB: the kept channels\' filters '
                      "drive the simulated free-field rig and the leakage between them is measured.</p>")
-    parts.append(_figures_html(filter_figures(found), f"filters {_rel(found.folder, root)}"))
+    parts.append(_figures_html(figs, f"filters {_rel(found.folder, root)}"))
     parts.append("</section>")
     return "\n".join(parts)
 
@@ -256,7 +256,7 @@ def _sweep_text(session: dict) -> str:
     return ", ".join(parts)
 
 
-def _irset_section(found: FoundIRSet, root: Path) -> str:
+def _irset_section(found: FoundIRSet, root: Path, figs: list[tuple[str, bytes]]) -> str:
     irs = found.irs
     parts = [f'<section id="{_anchor("irset", found.folder, root)}"><h2>Impulse responses: '
              f'{esc(_rel(found.folder, root))}</h2>', verdict_html(irset_verdict(found))]
@@ -278,29 +278,30 @@ def _irset_section(found: FoundIRSet, root: Path) -> str:
     if found.marked_takes:
         parts.append("<h3>Marked takes</h3><ul>" + "".join(f"<li>{esc(t)}</li>" for t in found.marked_takes)
                      + "</ul>")
-    parts.append(_figures_html(irset_figures(found), f"impulse responses {_rel(found.folder, root)}"))
+    parts.append(_figures_html(figs, f"impulse responses {_rel(found.folder, root)}"))
     parts.append("</section>")
     return "\n".join(parts)
 
 
 def _verification_verdicts(found: FoundVerification) -> list[list[object]]:
-    by_channel: dict[int, list[dict[str, str]]] = {}
-    for r in found.channel_rows:
-        by_channel.setdefault(int(r["channel"]), []).append(r)
+    """One row per wanted channel: verdict, worst isolation and where, lost count, median gain."""
+    col = found.channel_columns
+    channel, hz, iso_all, gain_all = col["channel"], col["frequency_hz"], col["isolation_db"], col["gain_db"]
+    lost_all = np.nan_to_num(col["lost"])
+    judged_all = col.get("judged", np.ones(len(channel))) != 0
     passed = dict(zip(found.doc.get("channels", []), found.doc.get("passed", [])))
     rows = []
-    for c, rs in sorted(by_channel.items()):
-        iso = np.array([float(r["isolation_db"]) if r["isolation_db"] else np.nan for r in rs])
-        gain = np.array([float(r["gain_db"]) if r["gain_db"] else np.nan for r in rs])
-        lost = sum(int(r["lost"]) for r in rs)
-        judged = sum(r.get("judged", "1") not in ("0", "False", "false") for r in rs)
+    for c in np.unique(channel[np.isfinite(channel)]).astype(int):
+        mine = channel == c
+        iso, gain = iso_all[mine], gain_all[mine]
+        lost, judged = int(lost_all[mine].sum()), int(judged_all[mine].sum())
         finite = np.isfinite(iso)
         worst = int(np.flatnonzero(finite)[np.argmin(iso[finite])]) if finite.any() else None
-        ok = passed.get(c, lost == 0)
+        ok = passed.get(int(c), lost == 0)
         median_gain = float(np.nanmedian(gain)) if np.any(np.isfinite(gain)) else np.nan
-        rows.append([c, "PASS" if ok else "FAIL",
+        rows.append([int(c), "PASS" if ok else "FAIL",
                      "-" if worst is None else _fmt(iso[worst], ".1f"),
-                     "-" if worst is None else _fmt(float(rs[worst]["frequency_hz"]), ".5g"),
+                     "-" if worst is None else _fmt(float(hz[mine][worst]), ".5g"),
                      f"{lost} of {judged} judged", _fmt(median_gain, ".1f")])
     return rows
 
@@ -317,12 +318,12 @@ def _gain_reference_text(doc: dict) -> str:
     return text
 
 
-def _verification_section(found: FoundVerification, root: Path) -> str:
+def _verification_section(found: FoundVerification, root: Path, figs: list[tuple[str, bytes]]) -> str:
     d = found.doc
     parts = [f'<section id="{_anchor("verify", found.folder, root)}"><h2>Verification: '
              f'{esc(_rel(found.folder, root))}</h2>', verdict_html(verification_verdict(found))]
     parts.append(table(["item", "value"], [
-        ["plan", d.get("plan_dir", "")], ["measured impulse responses", d.get("irset_dir", "")],
+        *[list(row) for row in verified_sources(found)], ["measured impulse responses", d.get("irset_dir", "")],
         ["isolation limit", f"{d.get('isolation_db', '')} dB"], ["measured units", d.get("irset_units", "")],
         ["window", "none" if d.get("window_ms") is None else f"{d.get('window_ms')} ms"],
         ["smoothing", "none" if d.get("smoothing_octaves") is None
@@ -337,14 +338,14 @@ def _verification_section(found: FoundVerification, root: Path) -> str:
         rows, text_columns=(), cell_classes=classes))
     if d.get("gain_note"):
         parts.append(f'<p class="note">{esc(d["gain_note"])}</p>')
-    parts.append(_figures_html(verification_figures(found), f"verification {_rel(found.folder, root)}"))
+    parts.append(_figures_html(figs, f"verification {_rel(found.folder, root)}"))
     parts.append("</section>")
     return "\n".join(parts)
 
 
-def _study_section(found: FoundStudy, root: Path) -> str:
+def _study_section(found: FoundStudy, root: Path, figs: list[tuple[str, bytes]]) -> str:
     if found.kind in ("zones", "layout", "comparison"):
-        return _design_study_section(found, root)
+        return _design_study_section(found, root, figs)
     side = found.sidecar
     title = {"capacity": "Capacity study", "tolerance": "Tolerance study"}[found.kind]
     parts = [f'<section id="{_anchor("study", found.folder, root)}"><h2>{title}: {esc(_rel(found.folder, root))}</h2>',
@@ -354,16 +355,15 @@ def _study_section(found: FoundStudy, root: Path) -> str:
     if found.kind == "tolerance":
         rows = [[k.replace("_", " "), str(v)] for k, v in side.get("settings", {}).items()] + rows
     parts.append(table(["item", "value"], [["plan", str(side.get("plan", ""))]] + rows, text_columns=(0, 1)))
-    parts.append(_figures_html(study_figures(found), f"{found.kind} study {_rel(found.folder, root)}"))
+    parts.append(_figures_html(figs, f"{found.kind} study {_rel(found.folder, root)}"))
     parts.append("</section>")
     return "\n".join(parts)
 
 
-def _design_study_section(found, root: Path) -> str:
+def _design_study_section(found, root: Path, figs: list[tuple[str, bytes]]) -> str:
     """A zones, layout or comparison study (tables and figures from :mod:`arrayplan.report.studies`)."""
-    from .studies import STUDY_NAMES, study_figures, study_section_html
+    from .studies import STUDY_NAMES, study_section_html
 
-    figs = [ReportFigure(caption, fig) for caption, fig in study_figures(found)]
     return "\n".join([f'<section id="{_anchor("study", found.folder, root)}"><h2>{STUDY_NAMES[found.kind]}: '
                       f'{esc(_rel(found.folder, root))}</h2>', verdict_html(study_verdict(found)),
                       study_section_html(found),
@@ -425,7 +425,7 @@ def _provenance_section(results: ProjectResults, root: Path, generated: str) -> 
 
 
 def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, title: str | None = None,
-                 progress: Callable[[int, int], None] | None = None) -> str:
+                 progress: Callable[[int, int], None] | None = None, workers: int | None = None) -> str:
     """The report of everything under `project_dir`, as one HTML document.
 
     Parameters
@@ -438,7 +438,11 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
     title : str, optional
         Page title (default: the folder's name).
     progress : callable, optional
-        ``progress(done, total)`` after each section.
+        ``progress(done, total)`` after each figure, then after each section.
+    workers : int, optional
+        Worker processes drawing the figures (default 1: drawn here; 0:
+        the cores this process may use).  The page is the same either way
+        (see :mod:`arrayplan.report.render`).
 
     Returns
     -------
@@ -462,24 +466,26 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
              + [("plan", fp) for fp in results.plans] + [("filters", ff) for ff in results.filters]
              + [("irset", fi) for fi in results.irsets] + [("verify", fv) for fv in results.verifications]
              + [("study", fs) for fs in results.studies])
-    total = len(steps) + 1
+    n_figs = sum(len(figure_makers(kind, found)) for kind, found in steps)
+    total = n_figs + len(steps) + 1
+    step_progress = None if progress is None else (lambda done, _n: progress(done, total))
+    rendered = render_figures(steps, workers=workers, progress=step_progress)
     builders = {"rig": (rig_section, "Rig"), "plan": (_plan_section, "Plan"), "filters": (_filters_section, "Filters"),
                 "irset": (_irset_section, "Impulse responses"), "verify": (_verification_section, "Verification"),
                 "study": (_study_section, "Study")}
     toc = []
     sections = []
     entries = []
-    with report_style():
-        for done, (kind, found) in enumerate(steps, 1):
-            build, name = builders[kind]
-            sections.append(build(found, root))
-            anchor, label = _step_anchor(kind, found, root), f"{name}: {_step_label(kind, found, root)}"
-            toc.append(f'<li><a href="#{anchor}">{esc(label)}</a></li>')
-            verdict = verdict_of(kind, found)
-            if verdict is not None:
-                entries.append((kind, anchor, label, verdict))
-            if progress is not None:
-                progress(done, total)
+    for done, ((kind, found), figs) in enumerate(zip(steps, rendered), n_figs + 1):
+        build, name = builders[kind]
+        sections.append(build(found, root, figs))
+        anchor, label = _step_anchor(kind, found, root), f"{name}: {_step_label(kind, found, root)}"
+        toc.append(f'<li><a href="#{anchor}">{esc(label)}</a></li>')
+        verdict = verdict_of(kind, found)
+        if verdict is not None:
+            entries.append((kind, anchor, label, verdict))
+        if progress is not None:
+            progress(done, total)
     header = (f"<header><h1>{esc(title)}</h1><p class=\"meta\">Generated {esc(generated)} UTC by arrayplan "
               f"{esc(__version__)} from <code>{esc(str(root.resolve()))}</code>.</p></header>")
     caution = ('<section class="caution" id="caution"><h2>Caution</h2>'

@@ -22,6 +22,8 @@ missing.
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 import os
 import struct
@@ -38,7 +40,7 @@ from ..filters.check import FilterCheck
 from ..formats.irset import MANIFEST_NAME, IRSet, read_irset
 from ..frequency import FrequencyAxis
 from ..formats.plan_folder import PlanWeights, planned_rig_file, read_plan
-from ..formats.verification_folder import read_verification
+from ..formats.verification_folder import read_verification_record
 from ..channels.planning import Plan
 from ..rig import Rig, load_rig
 
@@ -97,13 +99,25 @@ class FoundIRSet:
 
 @dataclass
 class FoundVerification:
-    """A verification folder: ``verify.json``, its two tables as lists of row dicts, and ``verify.npz``
-    (the realised channel matrices) when present."""
+    """A verification folder: ``verify.json``, its two tables and ``verify.npz`` (the realised channel
+    matrices) when present.
+
+    Attributes
+    ----------
+    folder : Path
+    doc : dict
+        ``verify.json``.
+    channel_columns, summary_columns : dict of str to ndarray
+        ``verify-channels.csv`` and ``verify-summary.csv`` by column, as floats (an empty cell is NaN,
+        ``True``/``False`` are 1/0), each of shape (n_rows,).
+    arrays : dict or None
+        ``verify.npz``.
+    """
 
     folder: Path
     doc: dict
-    channel_rows: list[dict[str, str]]
-    summary_rows: list[dict[str, str]]
+    channel_columns: dict[str, np.ndarray]
+    summary_columns: dict[str, np.ndarray]
     arrays: dict[str, Any] | None = None
 
 
@@ -144,6 +158,73 @@ def _read_json(path: Path) -> Any:
         return json.loads(path.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise InputError(f"cannot read ({exc.__class__.__name__}: {exc})", source=str(path)) from None
+
+
+def _read_csv_columns(path: Path) -> dict[str, np.ndarray]:
+    """A numeric CSV table by column (float; empty cells NaN, ``True``/``False`` 1/0).
+
+    A verification's table has a row per frequency and channel (10^5 rows
+    and more), where a dict per row would cost most of the report's reading:
+    the table is parsed by :func:`numpy.loadtxt` (empty cells written as
+    ``nan`` first), and only a table that parser refuses is read cell by
+    cell, to name the column at fault.
+    """
+    if not path.exists():
+        raise InputError("missing", source=str(path))
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"cannot read ({exc.__class__.__name__}: {exc})", source=str(path)) from None
+    first, _, body = text.partition("\n")
+    header = next(csv.reader([first.rstrip("\r")]), [])
+    if not header or not "".join(header).strip():
+        raise InputError("empty, no header row", source=str(path))
+    try:
+        return _parse_fast(header, body)
+    except ValueError:
+        return _parse_by_cell(header, body, path)
+
+
+def _parse_fast(header: list[str], body: str) -> dict[str, np.ndarray]:
+    """Columns of a plain numeric CSV body (no quotes), empty cells as NaN; ValueError when it is not one."""
+    if '"' in body:
+        raise ValueError("quoted cells")
+    lines = [ln for ln in body.replace("\r", "").replace("True", "1").replace("False", "0").split("\n") if ln]
+    if not lines:
+        return {name: np.empty(0) for name in header}
+    clean = "\n".join(f",{ln}," for ln in lines)           # a leading and a trailing empty cell on every line
+    while ",," in clean:
+        clean = clean.replace(",,", ",nan,")
+    table = np.loadtxt(io.StringIO(clean), delimiter=",", ndmin=2, usecols=range(1, len(header) + 1))
+    if table.shape[1] != len(header) or any(ln.count(",") != len(header) - 1 for ln in lines):
+        raise ValueError("ragged table")
+    return {name: np.ascontiguousarray(table[:, k]) for k, name in enumerate(header)}
+
+
+def _parse_by_cell(header: list[str], body: str, path: Path) -> dict[str, np.ndarray]:
+    """Columns of a CSV body read cell by cell, naming the line or column at fault."""
+    rows = list(csv.reader(io.StringIO(body)))
+    rows = [r for r in rows if r]
+    for n, r in enumerate(rows, 2):
+        if len(r) != len(header):
+            raise InputError(f"line {n} has {len(r)} cells, the header {len(header)}", source=str(path))
+    out = {}
+    for k, name in enumerate(header):
+        try:
+            out[name] = np.array([_cell(r[k]) for r in rows], dtype=float)
+        except ValueError as exc:
+            raise InputError(f"not a number ({exc})", source=str(path), field=name) from None
+    return out
+
+
+def _cell(text: str) -> float:
+    text = text.strip()
+    if text in _BOOL_CELLS:
+        return _BOOL_CELLS[text]
+    return float(text) if text else float("nan")
+
+
+_BOOL_CELLS = {"True": 1.0, "False": 0.0}
 
 
 def _walk(root: Path) -> list[Path]:
@@ -268,9 +349,17 @@ def _load_irset(folder: Path) -> FoundIRSet:
     return FoundIRSet(folder, irs, "impulse-response set")
 
 
+#: Columns of ``verify-channels.csv`` the report reads.
+_VERIFY_CHANNEL_COLUMNS = ("frequency_hz", "channel", "gain_db", "isolation_db", "lost")
+
+
 def _load_verification(folder: Path) -> FoundVerification:
-    v = read_verification(folder)
-    return FoundVerification(folder, v.doc, v.channel_rows, v.summary_rows, v.arrays)
+    doc, _version, arrays = read_verification_record(folder)      # the sidecar checked, the arrays; not the tables
+    channels = _read_csv_columns(folder / "verify-channels.csv")
+    for name in _VERIFY_CHANNEL_COLUMNS:
+        if name not in channels:
+            raise InputError("missing column", source=str(folder / "verify-channels.csv"), field=name)
+    return FoundVerification(folder, doc, channels, _read_csv_columns(folder / "verify-summary.csv"), arrays)
 
 
 def _load_study(folder: Path) -> FoundStudy:

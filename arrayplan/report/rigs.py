@@ -8,7 +8,6 @@ from pathlib import Path
 from ..rig import Rig
 from ._util import _anchor, _figures_html, _rel
 from .discover import FoundPlan
-from .figures import rig_figures
 from .html import esc, table
 
 __all__ = ["RigGroup", "rig_groups", "rig_anchor", "rig_section"]
@@ -73,7 +72,8 @@ def rig_groups(plans: list[FoundPlan]) -> list[RigGroup]:
 
 
 
-def rig_section(group: RigGroup, root: Path) -> str:
+def rig_section(group: RigGroup, root: Path, figs: list[tuple[str, bytes]]) -> str:
+    """A rig's section: geometry hash, plans, element table and the drawn figures `figs` (caption, PNG)."""
     found = group.shown
     rig = found.plan.rig
     plans = ", ".join(f'<a href="#{_anchor("plan", fp.folder, root)}">{esc(_rel(fp.folder, root))}</a>'
@@ -83,7 +83,7 @@ def rig_section(group: RigGroup, root: Path) -> str:
              f"Geometry shown from {esc(found.rig_note)}.</p>"]
     header, rows = _element_rows(rig, with_directivity=found.rig_file is not None)
     parts.append("<h3>Elements</h3>" + table(header, rows, text_columns=(0, 1, 6)))
-    parts.append(_figures_html(rig_figures(found), f"rig {rig.name}"))
+    parts.append(_figures_html(figs, f"rig {rig.name}"))
     parts.append("</section>")
     return "\n".join(parts)
 

@@ -20,7 +20,7 @@ import numpy as np
 from .discover import FoundFilters, FoundIRSet, FoundPlan, FoundStudy, FoundVerification
 
 __all__ = ["Verdict", "plan_verdict", "filters_verdict", "irset_verdict", "verification_verdict",
-           "study_verdict", "TOLERANCE_SHARE", "hz_text"]
+           "study_verdict", "verified_sources", "TOLERANCE_SHARE", "hz_text"]
 
 #: Share of trials in which a channel must keep its isolation limit for a tolerance study to pass it.
 TOLERANCE_SHARE = 0.95
@@ -136,14 +136,61 @@ def irset_verdict(found: FoundIRSet) -> Verdict:
     return Verdict("info", line)
 
 
-def _plan_kernel(found: FoundVerification) -> str | None:
-    """The kernel recorded in the verified plan's ``weights.json``, where that folder is still found."""
-    plan_dir = Path(str(found.doc.get("plan_dir", "")))
-    for cand in (plan_dir, found.folder.parent / plan_dir, found.folder.parent / plan_dir.name):
+def _recorded_sidecar(found: FoundVerification, recorded: str, name: str) -> dict | None:
+    """The sidecar `name` in a folder a verification recorded, where that folder is still found.
+
+    The folder is looked for as recorded, relative to the verification's parent
+    folder, and by its name beside the verification (a project that was moved).
+    """
+    where = Path(recorded)
+    for cand in (where, found.folder.parent / where, found.folder.parent / where.name):
         try:
-            return str(json.loads((cand / "weights.json").read_text(encoding="utf-8")).get("kernel", "free field"))
-        except (OSError, ValueError, AttributeError):
+            doc = json.loads((cand / name).read_text(encoding="utf-8"))
+        except (OSError, ValueError):
             continue
+        if isinstance(doc, dict):
+            return doc
+    return None
+
+
+def verified_sources(found: FoundVerification) -> list[tuple[str, str]]:
+    """What a verification verified, as (item, folder) rows: the plan, or the filters and the plan behind them.
+
+    Parameters
+    ----------
+    found : FoundVerification
+
+    Returns
+    -------
+    list of (str, str)
+        ``[("plan", plan folder)]`` for a plan's verification; ``[("filters", filters folder), ("plan the
+        filters were designed from", plan folder)]`` for a filter set's (the second row when its
+        ``filters.json`` is still found and names the plan).
+    """
+    doc = found.doc
+    if doc.get("plan_dir"):
+        return [("plan", str(doc["plan_dir"]))]
+    if not doc.get("filters_dir"):
+        return [("plan", "not recorded")]
+    rows = [("filters", str(doc["filters_dir"]))]
+    side = _recorded_sidecar(found, str(doc["filters_dir"]), "filters.json") or {}
+    origin = side.get("designed_from")
+    if isinstance(origin, dict) and origin.get("plan"):
+        rows.append(("plan the filters were designed from", str(origin["plan"])))
+    return rows
+
+
+def _plan_kernel(found: FoundVerification) -> str | None:
+    """The kernel of the verified plan (or of the plan behind verified filters), where its folder is still found."""
+    doc = found.doc
+    if doc.get("plan_dir"):
+        side = _recorded_sidecar(found, str(doc["plan_dir"]), "weights.json")
+        return None if side is None else str(side.get("kernel", "free field"))
+    if doc.get("filters_dir"):
+        side = _recorded_sidecar(found, str(doc["filters_dir"]), "filters.json")
+        origin = (side or {}).get("designed_from")
+        kernel = (origin.get("kernel") if isinstance(origin, dict) else None) or (side or {}).get("kernel")
+        return None if kernel is None else str(kernel)
     return None
 
 
