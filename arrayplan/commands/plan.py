@@ -18,7 +18,9 @@ from ..rig.medium import speed_of_sound_air
 from ..channels.svd import chunk_for_budget
 from ..channels.planning import plan_rig
 from ..parallel import SCHEDULER_ENV, check_scheduler, resolve_scheduler
-from ..formats.plan_folder import LONG_TABLE_MAX_ROWS, long_table_rows, measurement_record, summary_lines, write_plan
+from ..formats.plan_folder import summary_lines, write_plan
+from ..formats.plan_provenance import measurement_record
+from ..formats.plan_tables import LONG_TABLE_MAX_ROWS, long_table_rows
 from ..progress import ProgressBar
 from ..rig import Rig, load_rig, read_positions_csv
 

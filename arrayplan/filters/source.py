@@ -22,7 +22,7 @@ from ..formats._versioning import read_json_document
 from ..formats.irset import IRSet
 from ..kernels import rig_kernel
 from ..kernels.measured import MeasuredKernel
-from ..formats.plan_folder import irset_sha256, planned_rig_file
+from ..formats.plan_provenance import irset_sha256, planned_rig_file
 from ..rig import Rig
 
 __all__ = ["DesignSource", "PlanRecord", "read_plan_record", "source_from_rig", "source_from_plan",

@@ -9,8 +9,10 @@ the previous release's files (marked with ``kind``, or unmarked) for one
 release.
 
 ``plan_folder``
-    A plan's folder (``arrayplan plan``): manifest, summary, weights
-    (still marked ``kind`` + ``format_version``, not yet through ``_versioning``).
+    A plan's folder (``arrayplan plan``): ``weights.json`` (format
+    ``arrayplan-plan``), ``weights.npz``, and the tables of ``plan_tables``
+    (channels, summary, long weights); ``plan_provenance`` records the IR
+    set or rig file a plan came from.
 ``filter_set``
     FIR filters for a DSP (``arrayplan filters``): WAV taps per channel,
     ``filters.json`` (format ``arrayplan-filter-set``), weights table,

@@ -32,7 +32,6 @@ from __future__ import annotations
 import contextlib
 import csv
 import json
-import math
 import os
 from pathlib import Path
 from typing import Any, Callable
@@ -43,20 +42,19 @@ from ..channels.svd import ChannelSet
 from ..errors import InputError
 from ._versioning import check
 from .npz import write_npz
+from .plan_provenance import (MEASURED_UNITS, coupling_text, irset_sha256, measurement_fields, measurement_record,
+                              planned_rig_file)
+from .plan_tables import (LONG_TABLE_MAX_ROWS, long_table_rows, write_channels_csv, write_summary_csv,
+                          write_weights_csv)
 from .fileio import atomic_path, check_folder, provenance, staged_output_dir, write_json_atomic
 from ..frequency import FrequencyAxis
 from ..channels.heuristics import paraxial_estimate
 from ..channels.planning import Plan
 from ..parallel import alongside
-from ..rig import Rig, load_rig
+from ..rig import Rig
 
 __all__ = ["PLAN_FORMAT", "PLAN_FORMAT_VERSION", "write_plan", "read_weights", "read_plan", "PlanWeights", "summary_lines", "measurement_record",
-           "coupling_text", "long_table_rows", "LONG_TABLE_MAX_ROWS"]
-
-#: What one unit of a measured coupling means, by the IR set's units (see :data:`arrayplan.formats.irset.UNITS`).
-MEASURED_UNITS = {"full_scale": "input full scale per output full scale (uncalibrated)",
-                  "pascal_per_full_scale": "Pa per output full scale",
-                  "pascal_per_volt": "Pa per V at the speaker terminals"}
+           "coupling_text", "long_table_rows", "LONG_TABLE_MAX_ROWS", "planned_rig_file", "irset_sha256", "MEASURED_UNITS"]
 
 NORMALISATION = ("drive and combine weight vectors have unit Euclidean norm per channel and frequency; "
                  "combine^T G drive = diag(singular_value)")
@@ -67,43 +65,6 @@ PHASE = ("the speaker entry of largest magnitude in each drive vector is real an
 #: ``format`` and ``format_version`` of ``weights.json`` (plans of the previous release: ``kind``, same version).
 PLAN_FORMAT = "arrayplan-plan"
 PLAN_FORMAT_VERSION = 1
-
-#: Below this many rows ``weights.csv`` (the long weight table) is written by default; above it only
-#: on request, since its text is about 20 times the size of the same weights in ``weights.npz``.
-LONG_TABLE_MAX_ROWS = 500_000
-
-_CHANNEL_HEADER = "frequency_hz,channel,singular_value,power_coupling,share_of_sum_rule,level_db\n"
-_SUMMARY_HEADER = ["frequency_hz", "sum_rule", "strong_channels", "usable_channels", "effective_channels",
-                   "heuristic_channels"]
-_TRUNCATED_HEADER = ["channels_computed", "share_not_computed"]
-
-
-def _fmt(x: float) -> str:
-    """Ten significant digits; empty for NaN or infinity.  Takes Python floats (fast) or numpy scalars."""
-    x = float(x)
-    return f"{x:.10g}" if math.isfinite(x) else ""
-
-
-def _fmt_level(x: float) -> str:
-    return f"{x:.10g}" if math.isfinite(x) else "-inf"
-
-
-def long_table_rows(plan: Plan) -> int:
-    """Rows of the long weight table ``weights.csv``: one per computed channel, side and element.
-
-    Parameters
-    ----------
-    plan : Plan
-        The plan (its computed channels and element counts).
-
-    Returns
-    -------
-    int
-        Sum over frequencies of channels computed, times (n_spk + n_mic).
-    """
-    ch = plan.channels
-    return int(np.sum(ch.channels_computed())) * (len(ch.speaker_names) + len(ch.mic_names))
-
 
 def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *,
                measurement: dict[str, Any] | None = None, long_weights: bool | None = None,
@@ -153,11 +114,11 @@ def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *,
     with staged_output_dir(out_dir) as stage:
         # the channel table is formatted in a second process while this one writes the rest
         beside = rows >= _CHANNELS_BESIDE_ROWS
-        with (alongside(_write_channels_csv, plan, stage / "channels.csv", _no_progress) if beside
+        with (alongside(write_channels_csv, plan, stage / "channels.csv", _no_progress) if beside
               else contextlib.nullcontext()):
             if not beside:
-                _write_channels_csv(plan, stage / "channels.csv", lambda f: advance(steps[0] / max(1, n_freq)))
-            _write_summary_csv(plan, stage / "summary.csv")
+                write_channels_csv(plan, stage / "channels.csv", lambda f: advance(steps[0] / max(1, n_freq)))
+            write_summary_csv(plan, stage / "summary.csv")
             advance(steps[1])
             with atomic_path(stage / "weights.npz") as tmp:
                 extra = {} if ch.computed is None else {"computed_channels": np.asarray(ch.computed)}
@@ -167,8 +128,8 @@ def write_plan(plan: Plan, out_dir: str | os.PathLike, figures: bool = True, *,
                                     **extra))
             advance(steps[2])
             if with_long:
-                _write_weights_csv(plan, stage / "weights.csv", lambda f: advance(steps[3] / max(1, n_freq)))
-            write_json_atomic(stage / "weights.json", _sidecar(plan, with_long) | _measurement_fields(measurement))
+                write_weights_csv(plan, stage / "weights.csv", lambda f: advance(steps[3] / max(1, n_freq)))
+            write_json_atomic(stage / "weights.json", _sidecar(plan, with_long) | measurement_fields(measurement))
             advance(steps[4])
         if beside:
             advance(steps[0])
@@ -185,60 +146,6 @@ _CHANNELS_BESIDE_ROWS = 50_000
 
 def _no_progress(_f: int) -> None:
     pass
-
-
-def _write_channels_csv(plan: Plan, path: Path, each_frequency: Callable[[int], None]) -> None:
-    """``channels.csv`` streamed a frequency at a time; every derived column computed once."""
-    ch = plan.channels
-    hz, s, power = ch.axis.hz, ch.singular_values, ch.power_coupling
-    share, level, computed = ch.share_of_sum_rule(), ch.level_db(), ch.channels_computed()
-    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
-        fh.write(_CHANNEL_HEADER)
-        for f in range(len(hz)):
-            f_text, n = _fmt(hz[f]), int(computed[f])
-            rows = zip(range(1, n + 1), s[f, :n].tolist(), power[f, :n].tolist(), share[f, :n].tolist(),
-                       level[f, :n].tolist())
-            if np.all(np.isfinite(share[f, :n])) and np.all(np.isfinite(power[f, :n])) \
-                    and not np.any(np.isnan(level[f, :n])):
-                # all finite (level may be -inf, which %g writes as -inf): one format per row
-                line = f_text + ",%d,%.10g,%.10g,%.10g,%.10g\n"
-                fh.write("".join([line % row for row in rows]))
-            else:
-                fh.write("".join(f"{f_text},{j},{_fmt(a)},{_fmt(b)},{_fmt(c)},{_fmt_level(d)}\n"
-                                 for j, a, b, c, d in rows))
-            each_frequency(f)
-
-
-def _write_summary_csv(plan: Plan, path: Path) -> None:
-    ch = plan.channels
-    hz = ch.axis.hz
-    strong, usable, eff = plan.strong_channels, plan.usable_channels, ch.effective_channels()
-    header = _SUMMARY_HEADER + (_TRUNCATED_HEADER if ch.truncated else [])
-    computed, left = ch.channels_computed(), ch.share_not_computed()
-    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
-        w = csv.writer(fh, lineterminator="\n")
-        w.writerow(header)
-        for f in range(len(hz)):
-            row = [_fmt(hz[f]), _fmt(ch.sum_rule[f]), int(strong[f]), int(usable[f]), _fmt(eff[f]),
-                   _fmt(plan.estimate.counts[f])]
-            w.writerow(row + ([int(computed[f]), _fmt(left[f])] if ch.truncated else []))
-
-
-def _write_weights_csv(plan: Plan, path: Path, each_frequency: Callable[[int], None]) -> None:
-    """The long table, streamed a frequency and channel at a time."""
-    ch = plan.channels
-    computed = ch.channels_computed()
-    sides = (("drive", ch.speaker_names, ch.drive), ("combine", ch.mic_names, ch.combine))
-    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
-        fh.write("frequency_hz,channel,side,element,re,im\n")
-        for f, hz in enumerate(ch.axis.hz):
-            for j in range(int(computed[f])):
-                for side, names, w in sides:
-                    head = f"{hz:.10g},{j + 1},{side},"
-                    col = w[f, :, j]
-                    fh.write("".join(f"{head}{name},{z.real:.12g},{z.imag:.12g}\n"
-                                     for name, z in zip(names, col.tolist())))
-            each_frequency(f)
 
 
 def _sidecar(plan: Plan, with_long: bool = True) -> dict[str, Any]:
@@ -303,138 +210,6 @@ def _piston_note(rig) -> dict[str, str]:
         note += (f"; the {' and '.join(mixed)} mix pistons with other patterns, so their relative levels compare "
                  "equal on-axis far-field output, not equal volume velocity")
     return {"level_convention": note + "; valid beyond the Rayleigh distance pi a^2 / lambda"}
-
-
-def coupling_text(units: str | None = None) -> str:
-    """The ``coupling`` line of ``weights.json``: what one unit of G means.
-
-    Parameters
-    ----------
-    units : str, optional
-        An IR set's units (:data:`MEASURED_UNITS` keys); None for a model
-        kernel (pressure per unit source strength, 1/m).
-
-    Returns
-    -------
-    str
-    """
-    if units is None:
-        return "G[f, m, s]: complex pressure at microphone m per unit source strength of speaker s (1/m)"
-    return (f"G[f, m, s]: measured transfer function from speaker s's drive to microphone m, in the IR set's "
-            f"units: {MEASURED_UNITS.get(units, units)}")
-
-
-
-def irset_sha256(path: str | os.PathLike) -> tuple[str, str]:
-    """SHA-256 of an IR set as a plan records it: of ``irset.json`` in a folder, or of a ``.sofa`` file.
-
-    Parameters
-    ----------
-    path : path
-        An IR-set folder, its ``irset.json``, or a ``.sofa`` file.
-
-    Returns
-    -------
-    (str, str)
-        The hex digest and the name of the hashed file.
-    """
-    import hashlib
-
-    p = Path(path)
-    hashed = p if p.suffix.lower() == ".sofa" else (p if p.name == "irset.json" else p / "irset.json")
-    try:
-        return hashlib.sha256(hashed.read_bytes()).hexdigest(), hashed.name
-    except OSError as exc:
-        raise InputError(f"cannot read ({exc.strerror or exc})", source=str(hashed)) from None
-
-
-def planned_rig_file(sidecar: dict, plan_dir: str | os.PathLike,
-                     project: str | os.PathLike | None = None) -> tuple[Rig | None, Path | None, str]:
-    """The rig file a plan's ``weights.json`` names, when it is still there with the plan's geometry hash.
-
-    A relative path is tried from the working folder, the project folder (if
-    given), the plan folder's parent and the plan folder itself.
-
-    Parameters
-    ----------
-    sidecar : dict
-        The plan's ``weights.json``.
-    plan_dir : path
-        The plan folder.
-    project : path, optional
-        A project folder to search too.
-
-    Returns
-    -------
-    (Rig or None, Path or None, str)
-        The rig and its file, or None and None with the reason in words.
-    """
-    rig_info = sidecar.get("rig") if isinstance(sidecar.get("rig"), dict) else {}
-    source, want = str(rig_info.get("source", "")), str(rig_info.get("sha256", ""))
-    if not source or source.startswith("<") or source == "command line":
-        return None, None, "the plan was not made from a rig file"
-    folder, p = Path(plan_dir), Path(source)
-    roots = [Path.cwd()] + ([Path(project)] if project is not None else []) + [folder.parent, folder]
-    candidates = [p] if p.is_absolute() else [r / p for r in roots] + ([Path(project) / p.name] if project else [])
-    changed = False
-    for cand in candidates:
-        if cand.is_file():
-            try:
-                rig = load_rig(cand)
-            except InputError:
-                continue
-            if rig.sha256 == want:
-                return rig, cand, ""
-            changed = True
-    return None, None, (f"the rig file {source} has changed since the plan was made (hash differs)" if changed
-                        else f"the rig file the plan was made from ({source}) is not there")
-
-def measurement_record(irset_path: str | os.PathLike, kernel: Any) -> dict[str, Any]:
-    """What ``weights.json`` records of the IR set a plan was made from.
-
-    Parameters
-    ----------
-    irset_path : path
-        The IR-set folder (its ``irset.json`` is hashed) or AES69 (SOFA) file
-        (the file is hashed).
-    kernel : MeasuredKernel
-        The kernel planned from (:class:`arrayplan.kernels.measured.MeasuredKernel`):
-        its units, window (s), latency (samples) and smoothing (octaves).
-
-    Returns
-    -------
-    dict
-        ``irset`` (``path``, ``sha256`` and ``hashed_file``, ``format``,
-        ``format_version``), ``units``, ``units_meaning``, ``sample_rate_hz``,
-        ``zero_lag_samples``, ``window_ms``, ``latency_samples`` and
-        ``smoothing_octaves`` (None where not used).
-    """
-    path = Path(irset_path)
-    digest, hashed_name = irset_sha256(path)
-    hashed = path if path.suffix.lower() == ".sofa" else path / hashed_name
-    raw = hashed.read_bytes()
-    if hashed.suffix.lower() == ".sofa":
-        fmt, version = "AES69 (SOFA)", None
-    else:
-        try:
-            manifest = json.loads(raw.decode("utf-8"))
-        except (UnicodeDecodeError, json.JSONDecodeError):
-            manifest = {}
-        fmt, version = manifest.get("format"), manifest.get("format_version")
-    return {"irset": {"path": str(path), "hashed_file": hashed.name, "sha256": digest,
-                      "format": fmt, "format_version": version},
-            "units": kernel.units, "units_meaning": MEASURED_UNITS.get(kernel.units, kernel.units),
-            "sample_rate_hz": float(kernel.sample_rate_hz), "zero_lag_samples": int(kernel.zero_lag_samples),
-            "window_ms": None if kernel.window_s is None else 1e3 * float(kernel.window_s),
-            "latency_samples": int(kernel.latency_samples),
-            "smoothing_octaves": kernel.smoothing_octaves}
-
-
-def _measurement_fields(measurement: dict[str, Any] | None) -> dict[str, Any]:
-    """The ``weights.json`` fields of a plan made from measured responses (none for a free-field plan)."""
-    if measurement is None:
-        return {}
-    return {"coupling": coupling_text(measurement["units"]), "measurement": measurement}
 
 
 def _write_figures(plan: Plan, folder: Path) -> None:

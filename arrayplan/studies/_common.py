@@ -9,7 +9,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..frequency import FrequencyAxis
-from ..formats.plan_folder import PlanWeights, planned_rig_file, read_plan, read_weights
+from ..formats.plan_folder import PlanWeights, read_plan, read_weights
+from ..formats.plan_provenance import planned_rig_file
 from ..channels.planning import Plan, plan_rig
 from ..rig import Rig, load_rig
 
