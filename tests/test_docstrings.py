@@ -56,6 +56,7 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.plots.verify",
     "arrayplan.plots.zones",
     "arrayplan.report.build",
+    "arrayplan.report.render",
     "arrayplan.report.conclusions",
     "arrayplan.report.discover",
     "arrayplan.report.figures",
