@@ -106,13 +106,27 @@ class FilterCheck:
     grid_factor: float = float("nan")
 
     def worst_crosstalk_db(self) -> np.ndarray:
-        """Worst crosstalk into each channel, shape (n_kept,)."""
+        """Worst crosstalk into each channel: the largest entry of its row of :attr:`crosstalk_db`.
+
+        Returns
+        -------
+        ndarray, shape (n_kept,)
+            dB re the channel's own gain; -inf where no other channel is
+            ever in use with it (and for every channel when fewer than two
+            are kept).
+        """
         if len(self.channels) < 2:
             return np.full(len(self.channels), -np.inf)
         return np.nanmax(self.crosstalk_db, axis=1)
 
     def passed(self) -> np.ndarray:
-        """True where the worst crosstalk into the channel is below the limit, shape (n_kept,)."""
+        """Which channels meet the crosstalk limit.
+
+        Returns
+        -------
+        ndarray of bool, shape (n_kept,)
+            True where :meth:`worst_crosstalk_db` is below :attr:`limit_db`.
+        """
         return self.worst_crosstalk_db() < self.limit_db
 
 
@@ -122,8 +136,13 @@ def end_to_end_responses(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndar
     Parameters
     ----------
     rig_ir : ndarray, shape (n_ir, n_mic, n_spk)
+        The rig's impulse responses at the filters' sample rate.
     drive : ndarray, shape (taps, n_spk, n_chan)
+        Drive filter taps (dimensionless), one set per input channel.
     combine : ndarray, shape (taps_c, n_mic, n_chan)
+        Combine filter taps (dimensionless), the same channels in the same order.
+    progress : callable, optional
+        ``progress(j + 1, n_chan)`` after each input channel j (0-based).
 
     Returns
     -------
@@ -143,7 +162,23 @@ def end_to_end_responses(rig_ir: np.ndarray, drive: np.ndarray, combine: np.ndar
 
 
 def rig_ir_samples(rig: Rig, sample_rate_hz: float) -> int:
-    """Length of the rig's free-field impulse responses: a power of two >= 8 x (longest delay + 64), >= 4096."""
+    """Length allowed for the rig's free-field impulse responses, samples.
+
+    :func:`kernel_ir_samples` of the rig's free-field kernel: a power of two
+    >= 8 x (longest direct delay in samples + 64), at least 4096.
+
+    Parameters
+    ----------
+    rig : Rig
+        Speakers, microphones and medium (its room, if any, is not used).
+    sample_rate_hz : float
+        As for :func:`kernel_ir_samples`.
+
+    Returns
+    -------
+    int
+        The length :func:`kernel_ir_samples` gives the free-field kernel.
+    """
     return kernel_ir_samples(FreeFieldKernel(rig), sample_rate_hz)
 
 
@@ -187,6 +222,7 @@ def check_grid(taps: int, n_out: int, sample_rate_hz: float, band_hz: tuple[floa
     n_out : int
         Length of the end-to-end responses, samples.
     sample_rate_hz : float
+        The filters' rate, Hz.
     band_hz : (low, high)
         Band, Hz.
     support_hz : (low, high)
@@ -230,6 +266,7 @@ def check_filters(kernel: Kernel | Rig, filters: FilterSet, *, limit_db: float =
         (:func:`arrayplan.kernels.rig_kernel`).  Element order must be the
         filters'.
     filters : FilterSet
+        The filters to check (:func:`arrayplan.filters.design.design_filters`).
     limit_db : float
         Pass/fail limit of the worst in-band crosstalk, dB.
     progress : callable, optional
@@ -242,6 +279,7 @@ def check_filters(kernel: Kernel | Rig, filters: FilterSet, *, limit_db: float =
     Returns
     -------
     FilterCheck
+        Per kept channel: gain, energy and crosstalk figures and latency.
     """
     if isinstance(kernel, Rig):
         kernel = rig_kernel(kernel)
@@ -340,12 +378,27 @@ def _in_use(filters: FilterSet, nearest: np.ndarray) -> np.ndarray:
 
 
 def plot_crosstalk(check: FilterCheck, ax=None, margin_db: float = 40.0):
-    """Heat map of worst in-band crosstalk (dB re each output's own gain); returns the axes.
+    """Heat map of worst in-band crosstalk (dB re each output's own gain).
 
     The colour scale runs from `margin_db` below the crosstalk limit (weaker
     crosstalk is drawn at that floor: far below the limit it does not matter)
     to 10 dB above the limit or the worst cell, the limit is marked on the
-    colour bar, and every cell over the limit carries its value.
+    colour bar, and every cell over the limit carries its value.  Channels
+    are labelled 1-based.
+
+    Parameters
+    ----------
+    check : FilterCheck
+        The check to draw (:func:`check_filters`).
+    ax : matplotlib.axes.Axes, optional
+        Axes to draw on; default a new figure's.
+    margin_db : float
+        How far below the limit the colour scale starts, dB (its magnitude is used).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The axes drawn on (with a colour bar beside them).
     """
     import matplotlib.pyplot as plt
 

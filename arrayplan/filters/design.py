@@ -70,6 +70,17 @@ class FilterSet:
 
     Attributes
     ----------
+    sample_rate_hz : float
+        The DSP's sample rate, Hz.
+    taps : int
+        Filter length N, samples.
+    band_hz : (low, high)
+        Band where the filters realise the planned weights, Hz.
+    bulk_delay_samples : int
+        D = taps // 2, samples.
+    drive_alignment_samples, combine_alignment_samples : int
+        a_drive and a_combine: the weights' own group delay removed from each
+        side, whole samples (usually negative; see the module docstring).
     drive : ndarray, shape (taps, n_spk, n_kept)
         Drive filter taps (dimensionless), one column per speaker, rig order.
     combine : ndarray, shape (taps, n_mic, n_kept)
@@ -112,21 +123,52 @@ class FilterSet:
 
     @property
     def drive_delay_samples(self) -> int:
-        """Delay applied to the drive weights, D - a_drive."""
+        """Delay applied to the drive weights.
+
+        Returns
+        -------
+        int
+            D - a_drive, samples.
+        """
         return self.bulk_delay_samples - self.drive_alignment_samples
 
     @property
     def combine_delay_samples(self) -> int:
-        """Delay applied to the combine weights, D - a_combine."""
+        """Delay applied to the combine weights.
+
+        Returns
+        -------
+        int
+            D - a_combine, samples.
+        """
         return self.bulk_delay_samples - self.combine_alignment_samples
 
     def in_band(self) -> np.ndarray:
-        """Boolean mask over ``plan.axis`` of the bins inside the band."""
+        """Which design bins lie inside the band.
+
+        Returns
+        -------
+        ndarray of bool, shape (n_design,)
+            Mask over ``plan.axis``: True where low <= f <= high (edges included).
+        """
         hz = self.plan.axis.hz
         return (hz >= self.band_hz[0]) & (hz <= self.band_hz[1])
 
     def strong_ranges_hz(self, channel: int) -> list[tuple[float, float]]:
-        """Where channel `channel` (0-based) reaches :attr:`min_level_db` in band, as (low, high) Hz runs."""
+        """Where a channel reaches :attr:`min_level_db` in band.
+
+        Parameters
+        ----------
+        channel : int
+            0-based channel number in ``plan`` (a column of :attr:`band_level_db`,
+            which must be set).
+
+        Returns
+        -------
+        list of (float, float)
+            (low, high) Hz of each run of in-band design bins where it does,
+            ascending (see the function :func:`strong_ranges_hz`).
+        """
         return strong_ranges_hz(self.plan.axis.hz[self.in_band()], self.band_level_db[:, channel] >= self.min_level_db)
 
 
@@ -232,9 +274,30 @@ def minimum_taps(source: Rig | IRSet | float, sample_rate_hz: float) -> int:
 
 def validate_request(source: Rig | IRSet | float, sample_rate_hz: float, taps: int,
                      band_hz: tuple[float, float]) -> None:
-    """Raise InputError (naming the flag) when rate, taps or band cannot work.
+    """Raise InputError (naming the parameter) when rate, taps or band cannot work.
 
-    `source` gives the delay spread the taps must hold (see :func:`minimum_taps`).
+    The rate must be positive and at least twice the band's top, the band
+    must satisfy 0 < low < high < Nyquist, and the taps must be a whole
+    number >= 16, hold the delay spread (:func:`minimum_taps`) and put at
+    least 2 FFT bins in the band.
+
+    Parameters
+    ----------
+    source : Rig, IRSet or float
+        Where the delay spread the taps must hold comes from, or the spread
+        itself in seconds (as for :func:`minimum_taps`).
+    sample_rate_hz : float
+        DSP sample rate, Hz.
+    taps : int
+        Filter length, samples.
+    band_hz : (low, high)
+        Band, Hz.
+
+    Raises
+    ------
+    InputError
+        On the first check that fails, naming ``sample_rate_hz``, ``band_hz``
+        or ``taps``.
     """
     fs = float(sample_rate_hz)
     lo, hi = (float(b) for b in band_hz)

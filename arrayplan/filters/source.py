@@ -58,12 +58,33 @@ class DesignSource:
 
     @property
     def kernel_name(self) -> str:
-        """The kernel's name (``"free field"`` when it has none)."""
+        """The kernel's name.
+
+        Returns
+        -------
+        str
+            Its ``name`` attribute, or ``"free field"`` when it has none.
+        """
         return str(getattr(self.kernel, "name", "free field"))
 
 
 def source_from_rig(rig: Rig, *, free_field: bool = False) -> DesignSource:
-    """The rig's model kernel: its room when it has a ``[room]`` table (unless `free_field`), else the free field."""
+    """The rig's model kernel: its room when it has a ``[room]`` table (unless `free_field`), else the free field.
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig read from its file (its ``source`` and ``sha256`` are recorded).
+    free_field : bool
+        Use the free field even when the rig has a room.
+
+    Returns
+    -------
+    DesignSource
+        The kernel (:func:`arrayplan.kernels.rig_kernel`), the rig's element
+        names, the rig as the delay-spread source, and an origin naming the
+        rig file, its hash and the kernel.
+    """
     kernel = rig_kernel(rig, free_field=free_field)
     return DesignSource(kernel, tuple(rig.speakers.names), tuple(rig.mics.names), rig, rig.name,
                         {"rig": rig.source, "rig_sha256": rig.sha256,
@@ -77,12 +98,15 @@ class PlanRecord:
     Attributes
     ----------
     folder : Path
+        The plan folder.
     kernel : str
         The plan's kernel name (``free field``, ``room``, ``measured ...``).
     speaker_names, mic_names : tuple of str
+        Element names in the plan's order.
     rig_source : str or None
         The rig file the plan was made from.
     rig_sha256 : str or None
+        SHA-256 of that rig file, as the plan recorded it.
     measurement : dict or None
         The plan's record of its IR set (``irset.path``, ``irset.sha256``,
         ``window_ms``, ``latency_samples``, ``smoothing_octaves``), when it has one.
@@ -98,18 +122,45 @@ class PlanRecord:
 
     @property
     def measured(self) -> bool:
-        """Made from measured impulse responses."""
+        """Whether the plan was made from measured impulse responses.
+
+        Returns
+        -------
+        bool
+            True when its kernel's name starts with ``measured`` or it has a
+            measurement record.
+        """
         return self.kernel.startswith("measured") or self.measurement is not None
 
     @property
     def recorded_irset(self) -> str | None:
-        """The IR set's path as the plan recorded it, or None."""
+        """The IR set's path as the plan recorded it.
+
+        Returns
+        -------
+        str or None
+            ``measurement.irset.path``, or None when the plan records none.
+        """
         irset = (self.measurement or {}).get("irset")
         return str(irset["path"]) if isinstance(irset, dict) and irset.get("path") else None
 
 
 def read_json_object(path: Path, fix: str) -> dict:
-    """A JSON object from `path`, or InputError naming the file (`fix` says what to point at)."""
+    """A JSON object from `path`, or InputError naming the file.
+
+    Parameters
+    ----------
+    path : Path
+        The JSON file.
+    fix : str
+        What to point at instead, for the message when the file cannot be
+        read or its JSON is not an object.
+
+    Returns
+    -------
+    dict
+        The decoded object.
+    """
     doc = read_json_document(path, fix)
     if not isinstance(doc, dict):
         raise InputError("not a JSON object", source=str(path), fix=fix)
@@ -117,7 +168,25 @@ def read_json_object(path: Path, fix: str) -> dict:
 
 
 def read_plan_record(plan_dir: str | Path) -> PlanRecord:
-    """Read a plan folder's ``weights.json`` for its kernel, rig and IR-set record."""
+    """Read a plan folder's ``weights.json`` for its kernel, rig and IR-set record.
+
+    Parameters
+    ----------
+    plan_dir : str or Path
+        Folder written by the plan command.
+
+    Returns
+    -------
+    PlanRecord
+        Kernel name (default ``free field``), element names, rig file and
+        hash, and measurement record.
+
+    Raises
+    ------
+    InputError
+        When ``weights.json`` is missing, not a JSON object, or lacks
+        ``speaker_names`` or ``mic_names`` as lists of names.
+    """
     folder = Path(plan_dir)
     path = folder / "weights.json"
     doc = read_json_object(path, "point at a folder written by the plan command")

@@ -30,7 +30,17 @@ MIN_AUTO_TAPS = 512
 
 @dataclass(frozen=True)
 class TapsTrial:
-    """One filter length tried: the filters and their check."""
+    """One filter length tried: the filters and their check.
+
+    Attributes
+    ----------
+    taps : int
+        Filter length, samples.
+    filters : FilterSet
+        The filters designed at that length.
+    check : FilterCheck
+        Their check against the kernel they were designed on.
+    """
 
     taps: int
     filters: FilterSet
@@ -38,12 +48,25 @@ class TapsTrial:
 
     @property
     def passed(self) -> bool:
-        """Every kept channel meets the crosstalk limit."""
+        """Whether every kept channel meets the crosstalk limit.
+
+        Returns
+        -------
+        bool
+            True when :meth:`FilterCheck.passed` holds for every kept channel
+            (also when none is kept).
+        """
         return bool(np.all(self.check.passed()))
 
     @property
     def worst_crosstalk_db(self) -> float:
-        """The worst crosstalk of any kept channel, dB."""
+        """The worst crosstalk into any kept channel.
+
+        Returns
+        -------
+        float
+            dB re that channel's own gain; -inf when no channel is kept.
+        """
         w = self.check.worst_crosstalk_db()
         return float(np.max(w)) if w.size else float("-inf")
 

@@ -134,7 +134,22 @@ def _as_index(i: np.ndarray) -> range | np.ndarray:
 
 
 def take_bins(spec: np.ndarray, index: range | np.ndarray, sl: slice) -> np.ndarray:
-    """``spec[index[sl]]``: a view where `index` is a range, else a copy."""
+    """``spec[index[sl]]``: a view where `index` is a range, else a copy.
+
+    Parameters
+    ----------
+    spec : ndarray, shape (n_span, ...)
+        Spectra, frequency first (:func:`spectra_over`).
+    index : range or ndarray of int
+        One set's rows of `spec` (an entry of the index :func:`spectra_over` returns).
+    sl : slice
+        Which entries of `index` to take (a chunk of that set's bins).
+
+    Returns
+    -------
+    ndarray, shape (len(index[sl]), ...)
+        The rows; writing to a view writes to `spec`.
+    """
     part = index[sl]
     return spec[slice(part.start, part.stop, part.step)] if isinstance(part, range) else spec[part]
 
@@ -157,7 +172,18 @@ def transfer_matrices(r: np.ndarray, d: np.ndarray, c: np.ndarray) -> np.ndarray
 
 
 def chunk_bins(d_spec: np.ndarray, c_spec: np.ndarray) -> int:
-    """Bins per chunk: :data:`CHUNK_BYTES` over one bin's temporaries (rig, spectra, r d, T), at least 1."""
+    """Bins per chunk: :data:`CHUNK_BYTES` over one bin's temporaries (rig, spectra, r d, T), at least 1.
+
+    Parameters
+    ----------
+    d_spec, c_spec : ndarray, complex, shapes (n, n_spk, n_chan) and (n, n_mic, n_chan)
+        Drive and combine spectra (:func:`spectra_over`); only their sizes are used.
+
+    Returns
+    -------
+    int
+        Bins per chunk.
+    """
     n_spk, n_mic, n_chan = d_spec.shape[1], c_spec.shape[1], d_spec.shape[2]
     per_bin = 16 * (n_mic * n_spk + 2 * (n_spk + n_mic) * n_chan + 3 * n_chan * n_chan)
     return int(max(1, CHUNK_BYTES // per_bin))
@@ -324,6 +350,18 @@ def free_field_at(rig: Rig, n_fft: int, sample_rate_hz: float) -> Callable[[np.n
     The same spectrum as :func:`arrayplan.kernels.model_irs.free_field_impulse_responses`
     of `n_fft` samples: the kernel at every bin, its real limit at DC, zero
     at the Nyquist bin of an even grid.
+
+    Parameters
+    ----------
+    rig : Rig
+        Speakers, microphones and medium (its room, if any, is not used).
+    n_fft, sample_rate_hz
+        As for :func:`kernel_at`.
+
+    Returns
+    -------
+    callable
+        :func:`kernel_at` of the rig's :class:`arrayplan.kernels.freefield.FreeFieldKernel`.
     """
     return kernel_at(FreeFieldKernel(rig), n_fft, sample_rate_hz)
 
@@ -334,9 +372,11 @@ def kernel_at(kernel: Kernel, n_fft: int, sample_rate_hz: float) -> Callable[[np
     Parameters
     ----------
     kernel : Kernel
+        Anything with ``evaluate(hz)`` giving (n, n_mic, n_spk).
     n_fft : int
         FFT length; bin k is k fs / n_fft.
     sample_rate_hz : float
+        fs, Hz.
 
     Returns
     -------

@@ -169,11 +169,33 @@ class MeasuredKernel:
 
     @property
     def n_samples(self) -> int:
-        """Samples used per response after latency removal and windowing (pre-roll included)."""
+        """Samples used per response after latency removal and windowing (pre-roll included).
+
+        Returns
+        -------
+        int
+            N_h, samples at :attr:`sample_rate_hz`.
+        """
         return int(self._h.shape[0])
 
     def evaluate(self, hz: np.ndarray) -> np.ndarray:
-        """Coupling matrices at `hz` (Hz, shape (n,), each below fs / 2); shape (n, n_mic, n_spk), complex."""
+        """Coupling matrices at `hz` (the sums of the module docstring, smoothed when asked).
+
+        Parameters
+        ----------
+        hz : array_like, shape (n,)
+            Frequencies, Hz, each in 0 <= f < fs / 2; any subset in any order.
+
+        Returns
+        -------
+        ndarray, complex, shape (n, n_mic, n_spk)
+            G in the IR set's units (:attr:`units`) per unit drive, exp(-jkr) sign.
+
+        Raises
+        ------
+        InputError
+            When a frequency is negative or not below Nyquist.
+        """
         hz = np.atleast_1d(np.asarray(hz, dtype=float))
         if np.any(hz < 0) or np.any(hz >= self.sample_rate_hz / 2):
             raise InputError(f"frequencies must lie in 0..{self.sample_rate_hz / 2:g} Hz (below Nyquist), "

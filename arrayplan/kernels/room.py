@@ -54,9 +54,23 @@ _CACHE_PATHS = 4_000_000
 
 
 def image_lattice(order: int) -> np.ndarray:
-    """Image indices (ux, uy, uz) with |ux| + |uy| + |uz| <= `order`, shape (n_img, 3), int.
+    """Image indices (ux, uy, uz) with |ux| + |uy| + |uz| <= `order`.
 
-    Sorted by reflection order (the real source first).
+    Parameters
+    ----------
+    order : int
+        Largest reflection order N kept, >= 0.
+
+    Returns
+    -------
+    ndarray of int, shape (n_img, 3)
+        (2N+1)(2N^2+2N+3)/3 rows, sorted by |ux| + |uy| + |uz| (the real
+        source, (0, 0, 0), first).
+
+    Raises
+    ------
+    InputError
+        When `order` is negative.
     """
     n = int(order)
     if n < 0:
@@ -274,7 +288,29 @@ class RoomKernel:
     @classmethod
     def between(cls, speakers: ElementSet, receivers: ElementSet, medium: Medium, room: Room,
                 min_distance_m: float = 1e-3, chunk_elements: int = 2 ** 19) -> "RoomKernel":
-        """A kernel from `speakers` to arbitrary `receivers`; distances clamped at `min_distance_m`."""
+        """A kernel from `speakers` to arbitrary `receivers` (field points, not only a rig's microphones).
+
+        Parameters
+        ----------
+        speakers : ElementSet
+            Sources: positions (m) and directivities.
+        receivers : ElementSet
+            Receiving points in the coupling's rows: positions (m) and directivities.
+        medium : Medium
+            Speed of sound and air absorption.
+        room : Room
+            Size, absorption, reflection order and delay cut.
+        min_distance_m : float
+            Path lengths below this are clamped to it, m (a receiver on a
+            source or image stays finite).
+        chunk_elements : int
+            As for :class:`RoomKernel`.
+
+        Returns
+        -------
+        RoomKernel
+            Rows: `receivers` in order; columns: `speakers`.
+        """
         self = cls.__new__(cls)
         self._setup(speakers, receivers, medium, room, min_distance_m, chunk_elements)
         return self
@@ -312,18 +348,39 @@ class RoomKernel:
 
     @property
     def n_images(self) -> int:
+        """Image sources kept: the lattice of the room's reflection order less those through an open side.
+
+        Returns
+        -------
+        int
+            Count, the real source included.
+        """
         return len(self._lattice)
 
     @property
     def longest_path_m(self) -> float:
-        """Length of the longest image path kept, metres (sets how long the room's responses last)."""
+        """Length of the longest image path kept (sets how long the room's responses last).
+
+        Returns
+        -------
+        float
+            Metres, over every kept image and every microphone-speaker pair,
+            leaving out paths longer than the room's delay cut.
+        """
         if not hasattr(self, "_longest"):
             blocks = self._cache if self._cache is not None else self._blocks()
             self._longest = max(float(np.max(r, initial=0.0, where=r <= self._r_max)) for _, r, *_ in blocks)
         return self._longest
 
     def settings(self) -> dict:
-        """The kernel and its settings as plain data (for plan sidecars)."""
+        """The kernel and its settings as plain data (for plan sidecars).
+
+        Returns
+        -------
+        dict
+            ``kernel`` (name), ``room`` (its settings), ``images_kept``,
+            ``air_absorption``, ``speed_of_sound`` (m/s) and ``chunk_elements``.
+        """
         return {"kernel": self.name, "room": self.room.settings(), "images_kept": self.n_images,
                 "air_absorption": self.medium.air_absorption, "speed_of_sound": self.medium.speed_of_sound,
                 "chunk_elements": self._chunk}
@@ -367,7 +424,19 @@ class RoomKernel:
             yield sl, r, w, spk_cos, mic_cos
 
     def evaluate(self, hz: np.ndarray) -> np.ndarray:
-        """Coupling matrices at `hz` (Hz, shape (n,)); shape (n, n_mic, n_spk), complex."""
+        """Coupling matrices at `hz`: the image-source sum of the module docstring.
+
+        Parameters
+        ----------
+        hz : array_like, shape (n,)
+            Frequencies, Hz; any subset in any order (an evenly spaced
+            ascending grid is fastest, see the module Notes).
+
+        Returns
+        -------
+        ndarray, complex, shape (n, n_mic, n_spk)
+            G in 1/m (as the free-field kernel), exp(-jkr) sign.
+        """
         hz = np.atleast_1d(np.asarray(hz, dtype=float))
         n_mic, n_spk = len(self._mic), len(self._spk)
         out = np.zeros((hz.size, n_mic, n_spk), dtype=complex)
