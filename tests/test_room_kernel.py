@@ -201,7 +201,7 @@ def test_field_over_a_room_plane_is_direct_plus_floor_image():
 def test_fast_cos_sin_matches_numpy():
     # The kernel's table-and-polynomial cos/sin against numpy.cos and numpy.sin (reference library:
     # numpy), over the phases a room produces (k r up to 1e6 rad) and around zero and multiples of pi/2.
-    from arrayplan.kernels.room import _CosSin
+    from arrayplan.kernels._trig import _CosSin
 
     rng = np.random.default_rng(5)
     x = np.concatenate([rng.uniform(0.0, 1e6, 20000), rng.uniform(-50.0, 50.0, 5000),

@@ -18,6 +18,7 @@ import numpy as np
 from ..rig.directivity import Directivity
 from ..rig.medium import Medium
 from ..rig import ElementSet, Rig
+from ._trig import _PIECE, _CosSin
 
 __all__ = ["FreeFieldKernel"]
 
@@ -43,11 +44,9 @@ def _unit_phasors(k: np.ndarray, r: np.ndarray) -> np.ndarray:
     """exp(-j k r) for every wavenumber and distance, shape (n_freq,) + r.shape.
 
     Written piece by piece straight into the complex result with the table
-    cos/sin of the room kernel (within a few ulp of numpy's, several times
+    cos/sin of :mod:`arrayplan.kernels._trig` (within a few ulp of numpy's, several times
     faster than ``numpy.exp`` of a complex array).
     """
-    from .room import _PIECE, _CosSin   # the shared fast cos/sin
-
     phase = np.multiply.outer(k, r).reshape(-1)
     g = np.empty(phase.size, dtype=complex)
     parts = g.view(float).reshape(-1, 2)
