@@ -48,22 +48,6 @@ NOT_YET_DONE: set[str] = {
     "arrayplan.filters.transfer",
     "arrayplan.kernels.measured",
     "arrayplan.kernels.room",
-    "arrayplan.plots.channels",
-    "arrayplan.plots.field",
-    "arrayplan.plots.layout",
-    "arrayplan.plots.rig",
-    "arrayplan.plots.studies",
-    "arrayplan.plots.verify",
-    "arrayplan.plots.zones",
-    "arrayplan.report.build",
-    "arrayplan.report.render",
-    "arrayplan.report.conclusions",
-    "arrayplan.report.discover",
-    "arrayplan.report.figures",
-    "arrayplan.report.html",
-    "arrayplan.report.rigs",
-    "arrayplan.report.studies",
-    "arrayplan.report.verdicts",
 }
 
 
