@@ -41,6 +41,21 @@ def representative_indices(n_freq: int, count: int = 3, hz: np.ndarray | None = 
 
     With `hz` (Hz, ascending) and ``count == 3`` the middle index is the
     centre of :func:`centre_index` instead of the middle of the list.
+
+    Parameters
+    ----------
+    n_freq : int
+        Length of the frequency axis.
+    count : int
+        Indices wanted at most.
+    hz : ndarray, shape (n_freq,), optional
+        Ascending frequencies, Hz; used only to place the middle of three.
+
+    Returns
+    -------
+    list of int
+        0-based, ascending, no repeats; fewer than `count` when `n_freq` is
+        smaller or indices coincide.
     """
     idx = sorted(set(np.linspace(0, n_freq - 1, min(count, n_freq)).round().astype(int).tolist()))
     if hz is not None and len(idx) == 3:
@@ -63,7 +78,10 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
     Parameters
     ----------
     plan : Plan
+        The channel plan: its channels, paraxial estimate, ``threshold_db``
+        and ``snr_db`` (dB).
     fig : Figure, optional
+        Figure to draw on (two panels are added); a new one when None.
     max_channels : int
         Channels drawn at each frequency, strongest first.
 
@@ -109,7 +127,17 @@ def plot_couplings(plan: Plan, fig: Figure | None = None, max_channels: int = 40
 
 
 def plot_channel_counts(plan: Plan, fig: Figure | None = None) -> Figure:
-    """Strong, usable and effective channel counts against frequency, with the paraxial estimate."""
+    """Strong, usable and effective channel counts against frequency, with the paraxial estimate.
+
+    Parameters
+    ----------
+    plan, fig : Plan, Figure or None
+        As for :func:`plot_couplings` (one panel is added to `fig`).
+
+    Returns
+    -------
+    Figure
+    """
     fig = fig or Figure(figsize=(7.5, 4.2), layout="constrained")
     ax = fig.subplots()
     hz = plan.channels.axis.hz

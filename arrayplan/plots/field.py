@@ -15,7 +15,17 @@ SILENT_RATIO = 1e-10
 
 
 def draw_walls(ax, rig: Rig, i: int, j: int) -> None:
-    """Draw the walls of the rig's room (if any) projected on the axes `i`, `j` (0, 1, 2 for x, y, z)."""
+    """Draw the walls of the rig's room (if any) projected on the axes `i`, `j` (0, 1, 2 for x, y, z).
+
+    Parameters
+    ----------
+    ax : matplotlib Axes
+        Axes to draw on; nothing is drawn for a rig without a room.
+    rig : Rig
+        The rig; its ``room.size_m`` (m) gives the box from the origin.
+    i, j : int
+        0-based coordinates (0 = x, 1 = y, 2 = z) drawn across and up.
+    """
     if rig.room is None:
         return
     li, lj = rig.room.size_m[i], rig.room.size_m[j]
@@ -28,6 +38,26 @@ def plot_field(rig: Rig, grid: PlaneGrid, pressure: np.ndarray, title: str, fig:
 
     0 dB is the 99th percentile of |p| over the plane, so that the near field
     of the speakers does not set the scale; louder points are drawn at 0 dB.
+
+    Parameters
+    ----------
+    rig : Rig
+        Its speakers, microphones and room (if any) are drawn in the plane.
+    grid : PlaneGrid
+        The plane and its coordinates ``u``, ``v`` (m).
+    pressure : ndarray, shape (len(grid.v), len(grid.u))
+        Complex or magnitude pressure over the grid (Pa, or per unit source
+        strength as :func:`arrayplan.channels.field.channel_field` gives it).
+    title : str
+        Axes title.
+    fig : Figure, optional
+        Figure to draw on; a new one sized to the plane's aspect when None.
+    range_db : float
+        Colour range below the reference, dB.
+
+    Returns
+    -------
+    Figure
     """
     aspect = (grid.v[-1] - grid.v[0]) / max(grid.u[-1] - grid.u[0], 1e-12)
     if aspect <= 1:
@@ -70,8 +100,8 @@ def plot_field_panels(rig: Rig, grid: PlaneGrid, pressures: list[np.ndarray], ti
 
     Parameters
     ----------
-    rig : Rig
-    grid : PlaneGrid
+    rig, grid : Rig, PlaneGrid
+        As for :func:`plot_field`.
     pressures : list of ndarray, each shape (len(grid.v), len(grid.u))
         Complex or magnitude pressure per panel.
     titles : list of str

@@ -24,6 +24,21 @@ def plot_layout_rig(rig: Rig, choice, fig: Figure | None = None) -> Figure:
 
     Two views: the coordinate plane that holds most of the rig, and the plane
     of the candidates themselves (when it differs).
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig the choice was made for; its other side is drawn as fixed.
+    choice : LayoutChoice
+        The result of :func:`arrayplan.studies.layout.choose_layout`: its
+        problem's candidates (positions in m), the 0-based chosen indices and
+        the relaxation's weights (if any).
+    fig : Figure, optional
+        Figure to draw on (one panel per view); a new one when None.
+
+    Returns
+    -------
+    Figure
     """
     p = choice.problem
     fixed = rig.mics if p.side == "speakers" else rig.speakers
@@ -60,7 +75,22 @@ def plot_layout_rig(rig: Rig, choice, fig: Figure | None = None) -> Figure:
 
 
 def plot_layout_criterion(choice, ax=None) -> Figure:
-    """The criterion after each greedy step (k chosen), the value after swaps and the relaxation's bound."""
+    """The criterion after each greedy step (k chosen), the value after swaps and the relaxation's bound.
+
+    Parameters
+    ----------
+    choice : LayoutChoice
+        As for :func:`plot_layout_rig`; its ``greedy_values``, ``value`` and
+        ``bound`` are drawn in the criterion's unit (bit/s/Hz or channels,
+        summed over frequencies).
+    ax : matplotlib Axes, optional
+        Axes to draw on; None: a new 6 x 4 in figure.
+
+    Returns
+    -------
+    Figure
+        The figure of `ax`, or the new one.
+    """
     if ax is None:
         fig = Figure(figsize=(6.0, 4.0), layout="constrained")
         ax = fig.subplots()
@@ -91,10 +121,17 @@ def plot_comparison(hz: np.ndarray, names: list[str], series: dict[str, np.ndarr
     Parameters
     ----------
     hz : ndarray, shape (n_freq,)
+        Frequencies, Hz.
     names : list of str
         One per layout.
     series : dict of str to ndarray, shape (n_layouts, n_freq)
         Panel title -> values; keys ending in "(bit/s/Hz)" are capacities, others counts.
+    fig : Figure, optional
+        Figure to draw on (one panel per entry of `series`); a new one when None.
+
+    Returns
+    -------
+    Figure
     """
     fig = fig or Figure(figsize=(6.5, 2.4 * len(series) + 0.6), layout="constrained")
     axes = np.atleast_1d(fig.subplots(len(series), 1, sharex=True))

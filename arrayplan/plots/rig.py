@@ -22,6 +22,19 @@ def plot_rig(rig: Rig, fig: Figure | None = None, label_limit: int = 8) -> Figur
     other kind in a view still shows.  A rig in a room shows the room's walls
     as a black outline in each view.  Element names are written when there
     are at most `label_limit` of a kind.
+
+    Parameters
+    ----------
+    rig : Rig
+        Speakers, microphones (positions in m) and room (if any).
+    fig : Figure, optional
+        Figure to draw on (three panels are added); a new one when None.
+    label_limit : int
+        Largest number of elements of one kind whose names are written.
+
+    Returns
+    -------
+    Figure
     """
     fig = fig or Figure(figsize=(11.0, 3.9), layout="constrained")
     axes = fig.subplots(1, 3)

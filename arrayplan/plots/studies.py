@@ -131,7 +131,20 @@ def plot_water_levels(study, freq_index: int | None = None, snr_index: int = -1,
 
 
 def shown_channels(judged: np.ndarray, max_channels: int = 6) -> np.ndarray:
-    """The first `max_channels` channels judged somewhere (0-based), shape (n,)."""
+    """The first `max_channels` channels judged somewhere (0-based), shape (n,).
+
+    Parameters
+    ----------
+    judged : ndarray of bool, shape (n_freq, n_chan)
+        Where each channel is judged (in use).
+    max_channels : int
+        Channels returned at most.
+
+    Returns
+    -------
+    ndarray of int, shape (n,)
+        0-based channel indices, ascending, ``n <= max_channels``.
+    """
     return np.flatnonzero(np.asarray(judged).any(axis=0))[:max_channels]
 
 

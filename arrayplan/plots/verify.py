@@ -14,6 +14,18 @@ def plot_crosstalk(result, max_panels: int = 4, floor_db: float = -60.0, fig=Non
 
     See :func:`plot_channel_matrices`; channels not judged at a panel's
     frequency are left blank.
+
+    Parameters
+    ----------
+    result : Verification
+        Its ``hz`` (Hz), ``channel_matrix``, ``channels`` (0-based) and
+        ``judged`` (when present) are drawn.
+    max_panels, floor_db, fig : int, float, Figure or None
+        As for :func:`plot_channel_matrices`.
+
+    Returns
+    -------
+    Figure
     """
     return plot_channel_matrices(result.hz, result.channel_matrix, result.channels,
                                  judged=getattr(result, "judged", None), max_panels=max_panels,
@@ -37,9 +49,11 @@ def plot_channel_matrices(hz, channel_matrix, channels, judged=None, max_panels:
         not judged at a panel's frequency are left blank.  Panels are picked
         among the frequencies where at least two channels are judged.
     max_panels : int
+        Heat maps drawn at most, at frequencies spread over those picked.
     floor_db : float
         Lower end of the colour scale, dB.
     fig : matplotlib Figure, optional
+        Figure to draw on (one panel per frequency); a new one when None.
 
     Returns
     -------

@@ -31,6 +31,19 @@ def plot_tradeoff(study, ax=None) -> Figure:
 
     The chosen design of each method is ringed; each point is labelled with
     its relative regularisation.
+
+    Parameters
+    ----------
+    study : ZoneStudy
+        The result of :func:`arrayplan.studies.zones.study_zones`; one line
+        per method in its ``results``.
+    ax : matplotlib Axes, optional
+        Axes to draw on; a new figure when None.
+
+    Returns
+    -------
+    Figure
+        The figure of `ax`.
     """
     fig, ax = _ax(ax)
     for key, res in study.results.items():
@@ -50,7 +63,20 @@ def plot_tradeoff(study, ax=None) -> Figure:
 
 
 def plot_zone_metrics(study, fig: Figure | None = None) -> Figure:
-    """Contrast, effort and bright-zone matching error of each method's chosen design against frequency."""
+    """Contrast, effort and bright-zone matching error of each method's chosen design against frequency.
+
+    Parameters
+    ----------
+    study : ZoneStudy
+        As for :func:`plot_tradeoff`; its ``max_effort_db`` (dB) is drawn as
+        the effort limit.
+    fig : Figure, optional
+        Figure to draw on (three panels are added); a new one when None.
+
+    Returns
+    -------
+    Figure
+    """
     fig = fig or Figure(figsize=(6.5, 7.0), layout="constrained")
     axes = fig.subplots(3, 1, sharex=True)
     hz = study.axis.hz
@@ -102,12 +128,20 @@ def plot_zone_field(rig: Rig, grid: PlaneGrid, pressure: np.ndarray, zones, titl
     pressure : ndarray, complex, shape (len(grid.v), len(grid.u))
         Pa per unit input.
     zones : sequence of Zone
+        Outlined by the padded convex hull of their points in the plane (a
+        box when the points are flat in it).
     title : str
     ax : Axes, optional
+        Axes to draw on; a new figure when None.
     reference : float, optional
         |p| drawn as 0 dB (default the 99th percentile over the plane), Pa.
     range_db : float
-        Levels shown below the reference, dB.
+        Levels shown below the reference, dB (up to 6 dB above it is drawn too).
+
+    Returns
+    -------
+    Figure
+        The figure of `ax`.
     """
     fig, ax = _ax(ax, (6.5, 5.0))
     mag = np.abs(pressure)
@@ -144,12 +178,23 @@ def plot_tolerance(hz: np.ndarray, nominal_db: np.ndarray, perturbed_db: np.ndar
     Parameters
     ----------
     hz : ndarray, shape (n_freq,)
+        Frequencies, Hz.
     nominal_db : ndarray, shape (n_freq,)
+        Acoustic contrast of the design on the nominal rig, dB.
     perturbed_db : ndarray, shape (trials, n_freq)
+        Acoustic contrast of the same design on each perturbed rig, dB.
     sigma_m : float
         Position error used, m.
     label : str
-        The design's name.
+        The design's name, in the title.
+    ax : matplotlib Axes, optional
+        As for :func:`plot_tradeoff`.
+
+    Returns
+    -------
+    Figure
+        The figure of `ax` (or a new one): median and 10-90 % band of the
+        perturbed rigs, and the design as planned.
     """
     fig, ax = _ax(ax)
     lo, med, hi = np.percentile(perturbed_db, [10, 50, 90], axis=0)

@@ -503,6 +503,21 @@ def build_report(project_dir: str | os.PathLike, *, rig: Rig | None = None, titl
 
 
 def write_report(project_dir: str | os.PathLike, out_path: str | os.PathLike, **kwargs) -> Path:
-    """Build the report (see :func:`build_report`) and write it atomically to `out_path`."""
+    """Build the report (see :func:`build_report`) and write it atomically to `out_path`.
+
+    Parameters
+    ----------
+    project_dir : path
+        As for :func:`build_report`.
+    out_path : path
+        The HTML file written; replaced whole or left as it was.
+    **kwargs
+        `rig`, `title`, `progress` and `workers` of :func:`build_report`.
+
+    Returns
+    -------
+    Path
+        `out_path`.
+    """
     text = build_report(project_dir, **kwargs)
     return write_text_atomic(out_path, text)

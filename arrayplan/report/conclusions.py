@@ -19,20 +19,60 @@ _BADGE = {"pass": "all pass", "fail": "some fail", "info": "result"}
 
 
 def verdict_html(v: Verdict) -> str:
-    """A result's verdict as the paragraph that opens its section (same words as in the conclusions)."""
+    """A result's verdict as the paragraph that opens its section (same words as in the conclusions).
+
+    Parameters
+    ----------
+    v : Verdict
+        Status, line and remedy (if any) of the result.
+
+    Returns
+    -------
+    str
+        An HTML ``<p class="verdict">`` with the status badge, text escaped.
+    """
     remedy = f'<br><span class="remedy">Remedy: {esc(v.remedy)}.</span>' if v.remedy else ""
     return (f'<p class="verdict"><span class="badge {v.status}">{_BADGE[v.status]}</span> '
             f"{esc(v.line[:1].upper() + v.line[1:])}.{remedy}</p>")
 
 
 def verdict_of(kind: str, found: object) -> Verdict | None:
+    """The verdict on one result of the report.
+
+    Parameters
+    ----------
+    kind : str
+        The section's kind: ``"plan"``, ``"filters"``, ``"irset"``,
+        ``"verify"``, ``"study"`` (others, such as ``"rig"``, have none).
+    found : object
+        The result as found by :func:`arrayplan.report.discover.find_results`
+        (a ``FoundPlan``, ``FoundFilters``, ...).
+
+    Returns
+    -------
+    Verdict or None
+        None for a kind without a verdict.
+    """
     makers = {"plan": plan_verdict, "filters": filters_verdict, "irset": irset_verdict,
               "verify": verification_verdict, "study": study_verdict}
     return makers[kind](found) if kind in makers else None
 
 
 def centre_note(results: ProjectResults, root: Path) -> str:
-    """The one statement of what "centre" means in this report, with its value for each result that uses it."""
+    """The one statement of what "centre" means in this report, with its value for each result that uses it.
+
+    Parameters
+    ----------
+    results : ProjectResults
+        Its plans and filters (with a ``band_hz`` and ``centre_hz``, Hz) are named.
+    root : Path
+        The project folder; results are named by their path relative to it.
+
+    Returns
+    -------
+    str
+        An HTML ``<p class="note" id="centre">``; empty when no result has a centre.
+    """
     items = []
     for fp in results.plans:
         hz = fp.plan.channels.axis.hz
@@ -51,7 +91,21 @@ def centre_note(results: ProjectResults, root: Path) -> str:
 
 
 def conclusions(entries: list[tuple[str, str, str, Verdict]], centre_note: str) -> str:
-    """One line per result: its verdict, a link to its section and the remedy where one is known."""
+    """One line per result: its verdict, a link to its section and the remedy where one is known.
+
+    Parameters
+    ----------
+    entries : list of (str, str, str, Verdict)
+        Per result: its kind, the id of its section, its label and its verdict.
+    centre_note : str
+        HTML put after the list (see :func:`centre_note`); may be empty.
+
+    Returns
+    -------
+    str
+        The ``<section id="summary">``: the count of checked results that
+        pass, then the list.
+    """
     items = []
     for _kind, anchor, label, v in entries:
         remedy = f' <span class="remedy">Remedy: {esc(v.remedy)}.</span>' if v.remedy else ""

@@ -79,7 +79,17 @@ class FoundPlan:
 
 @dataclass
 class FoundFilters:
-    """A filters folder: ``filters.json`` and, when the check ran, its result."""
+    """A filters folder: ``filters.json`` and, when the check ran, its result.
+
+    Attributes
+    ----------
+    folder : Path
+    sidecar : dict
+        ``filters.json``.
+    check : FilterCheck or None
+        The time-domain check recorded in ``filters.json`` (channels 0-based),
+        None when it did not run.
+    """
 
     folder: Path
     sidecar: dict
@@ -88,7 +98,23 @@ class FoundFilters:
 
 @dataclass
 class FoundIRSet:
-    """An IR set (a folder, or a ``.sofa`` file); `role` says who wrote it (measurement, deconvolution, SOFA...)."""
+    """An IR set (a folder, or a ``.sofa`` file); `role` says who wrote it (measurement, deconvolution, SOFA...).
+
+    Attributes
+    ----------
+    folder : Path
+        The IR set's folder, or the ``.sofa`` file.
+    irs : IRSet
+        The impulse responses, (n_samples, n_mic, n_spk).
+    role : str
+        ``"measurement"``, ``"deconvolution"``, ``"AES69 (SOFA) file"`` or
+        ``"impulse-response set"``.
+    session : dict or None
+        ``session.json`` of the measurement the set lies in, if any.
+    marked_takes : list of str
+        One line per take of that measurement whose status is not ``ok``:
+        speaker, status and warnings.
+    """
 
     folder: Path
     irs: IRSet
@@ -123,7 +149,20 @@ class FoundVerification:
 
 @dataclass
 class FoundStudy:
-    """A design-study folder: `kind` ``capacity`` or ``tolerance``, the study read back and its sidecar."""
+    """A design-study folder: its kind, the study read back and its sidecar.
+
+    Attributes
+    ----------
+    folder : Path
+    kind : str
+        ``"capacity"``, ``"tolerance"``, ``"zones"``, ``"layout"`` or ``"comparison"``.
+    study : object
+        A ``CapacityStudy`` or ``ToleranceStudy`` read back; for the other
+        kinds the study's main CSV table as a list of row dicts (see
+        :func:`arrayplan.report.studies.load_study`).
+    sidecar : dict
+        The study's JSON sidecar.
+    """
 
     folder: Path
     kind: str
@@ -138,7 +177,18 @@ _STUDY_SIDECARS = {"capacity.json": ("capacity", "read_capacity_study"),
 
 @dataclass
 class ProjectResults:
-    """Everything found under a project folder, each list sorted by path."""
+    """Everything found under a project folder, each list sorted by path.
+
+    Attributes
+    ----------
+    folder : Path
+        The project folder.
+    plans, filters, irsets, verifications, studies : list
+        The results of each kind (:class:`FoundPlan`, :class:`FoundFilters`,
+        :class:`FoundIRSet`, :class:`FoundVerification`, :class:`FoundStudy`).
+    problems : list of str
+        One line per result that could not be read: its kind, where, and why.
+    """
 
     folder: Path
     plans: list[FoundPlan] = field(default_factory=list)
@@ -150,6 +200,12 @@ class ProjectResults:
 
     @property
     def empty(self) -> bool:
+        """Whether no result at all was found (problems do not count).
+
+        Returns
+        -------
+        bool
+        """
         return not (self.plans or self.filters or self.irsets or self.verifications or self.studies)
 
 

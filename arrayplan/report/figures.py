@@ -38,7 +38,14 @@ FIELD_CHANNELS = 4
 
 @dataclass
 class ReportFigure:
-    """A figure and its caption."""
+    """A figure and its caption.
+
+    Attributes
+    ----------
+    caption : str
+        Plain text shown under the figure.
+    figure : Figure
+    """
 
     caption: str
     figure: Figure
@@ -49,7 +56,17 @@ FigureMaker = Callable[[], "list[ReportFigure]"]
 
 
 def made(makers: list[FigureMaker]) -> list[ReportFigure]:
-    """The figures of every maker, in order."""
+    """The figures of every maker, in order.
+
+    Parameters
+    ----------
+    makers : list of FigureMaker
+        Each is called once, here.
+
+    Returns
+    -------
+    list of ReportFigure
+    """
     return [rf for make in makers for rf in make()]
 
 
@@ -59,7 +76,13 @@ _STYLE = {"font.size": 9.0, "axes.titlesize": 9.5, "axes.labelsize": 9.0, "xtick
 
 @contextlib.contextmanager
 def report_style() -> Iterator[None]:
-    """Matplotlib settings for report figures (font sizes for print)."""
+    """Matplotlib settings for report figures (font sizes for print).
+
+    Yields
+    ------
+    None
+        Inside the ``with`` block the settings apply; they are restored after.
+    """
     import matplotlib
 
     with matplotlib.rc_context(_STYLE):
@@ -134,12 +157,32 @@ def _field_figure(found: FoundPlan) -> ReportFigure | None:
 
 
 def rig_figures(found: FoundPlan) -> list[ReportFigure]:
-    """The rig geometry of a plan, in three views."""
+    """The rig geometry of a plan, in three views.
+
+    Parameters
+    ----------
+    found : FoundPlan
+        The plan whose rig is drawn; its ``rig_note`` goes in the caption.
+
+    Returns
+    -------
+    list of ReportFigure
+        One figure.
+    """
     return [ReportFigure(f"The rig in three views ({found.rig_note}).", plot_rig(found.plan.rig, fig=_fig(2.9)))]
 
 
 def plan_figure_makers(found: FoundPlan) -> list[FigureMaker]:
-    """Makers of the figures of :func:`plan_figures`, one figure each (the field maps none without a rig file)."""
+    """Makers of the figures of :func:`plan_figures`, one figure each (the field maps none without a rig file).
+
+    Parameters
+    ----------
+    found : FoundPlan
+
+    Returns
+    -------
+    list of FigureMaker
+    """
     plan = found.plan
     hz = plan.channels.axis.hz
     return [
@@ -161,12 +204,32 @@ def plan_figure_makers(found: FoundPlan) -> list[FigureMaker]:
 
 
 def plan_figures(found: FoundPlan) -> list[ReportFigure]:
-    """Channel strengths, counts, level map, drive effort and field maps of one plan (the rig: :func:`rig_figures`)."""
+    """Channel strengths, counts, level map, drive effort and field maps of one plan (the rig: :func:`rig_figures`).
+
+    Parameters
+    ----------
+    found : FoundPlan
+        The field maps (at the centre frequency, Hz) need its rig file.
+
+    Returns
+    -------
+    list of ReportFigure
+    """
     return made(plan_figure_makers(found))
 
 
 def filter_figures(found: FoundFilters) -> list[ReportFigure]:
-    """The planned crosstalk matrix from the filters' time-domain check."""
+    """The planned crosstalk matrix from the filters' time-domain check.
+
+    Parameters
+    ----------
+    found : FoundFilters
+
+    Returns
+    -------
+    list of ReportFigure
+        One figure; none without a check of at least two channels.
+    """
     if found.check is None or len(found.check.channels) < 2:
         return []
     fig = _fig(3.4)
@@ -177,7 +240,17 @@ def filter_figures(found: FoundFilters) -> list[ReportFigure]:
 
 
 def irset_figures(found: FoundIRSet) -> list[ReportFigure]:
-    """Envelopes and peak levels of an IR set."""
+    """Envelopes and peak levels of an IR set.
+
+    Parameters
+    ----------
+    found : FoundIRSet
+
+    Returns
+    -------
+    list of ReportFigure
+        One figure (levels in dB re the set's largest sample).
+    """
     irs = found.irs
     fig = plot_ir_overview(irs, fig=_fig(3.8))
     peak = float(max(irs.data.max(), -irs.data.min()))          # max |h| without a copy of |h|
@@ -204,7 +277,18 @@ def _isolation_figure(found: FoundVerification) -> list[ReportFigure]:
 
 
 def verification_figure_makers(found: FoundVerification) -> list[FigureMaker]:
-    """Makers of the figures of :func:`verification_figures`."""
+    """Makers of the figures of :func:`verification_figures`.
+
+    Parameters
+    ----------
+    found : FoundVerification
+
+    Returns
+    -------
+    list of FigureMaker
+        Empty when the channel table is empty; the channel matrices and
+        singular values only with ``verify.npz``.
+    """
     a = found.arrays
     if len(found.channel_columns["channel"]) == 0:
         return []
@@ -225,12 +309,31 @@ def verification_figure_makers(found: FoundVerification) -> list[FigureMaker]:
 
 
 def verification_figures(found: FoundVerification) -> list[ReportFigure]:
-    """Isolation against frequency and the measured channel matrices of a verification."""
+    """Isolation against frequency and the measured channel matrices of a verification.
+
+    Parameters
+    ----------
+    found : FoundVerification
+
+    Returns
+    -------
+    list of ReportFigure
+    """
     return made(verification_figure_makers(found))
 
 
 def study_figure_makers(found: FoundStudy) -> list[FigureMaker]:
-    """Makers of the figures of :func:`study_figures` (capacity or tolerance)."""
+    """Makers of the figures of :func:`study_figures` (capacity or tolerance).
+
+    Parameters
+    ----------
+    found : FoundStudy
+        Of kind ``"capacity"`` (three figures) or ``"tolerance"`` (two).
+
+    Returns
+    -------
+    list of FigureMaker
+    """
     from ..plots.studies import (plot_active_channels, plot_capacity, plot_gain_spread, plot_survival,
                                  plot_water_levels)
 
@@ -253,5 +356,16 @@ def study_figure_makers(found: FoundStudy) -> list[FigureMaker]:
 
 
 def study_figures(found: FoundStudy) -> list[ReportFigure]:
-    """The figures of a design study (capacity or tolerance), drawn again at report size."""
+    """The figures of a design study (capacity or tolerance), drawn again at report size.
+
+    Parameters
+    ----------
+    found : FoundStudy
+        Of kind ``"capacity"`` or ``"tolerance"``, as for :func:`study_figure_makers`.
+
+    Returns
+    -------
+    list of ReportFigure
+        Drawn here, one after the other.
+    """
     return made(study_figure_makers(found))

@@ -56,7 +56,18 @@ nav ol { margin-top: 2pt; }
 
 
 def esc(text: object) -> str:
-    """HTML-escape ``str(text)``."""
+    """HTML-escape ``str(text)``.
+
+    Parameters
+    ----------
+    text : object
+        Anything; its ``str`` is escaped.
+
+    Returns
+    -------
+    str
+        ``&``, ``<``, ``>`` and both quotes replaced by entities.
+    """
     return html.escape(str(text), quote=True)
 
 
@@ -64,7 +75,21 @@ def table(header: Sequence[str], rows: Iterable[Sequence[object]], text_columns:
           cell_classes: dict[tuple[int, int], str] | None = None) -> str:
     """An HTML table; columns in `text_columns` are left-aligned, others right-aligned (numbers).
 
-    `cell_classes` maps (row, column) to an extra CSS class (e.g. ``"pass"``).
+    Parameters
+    ----------
+    header : sequence of str
+        Column headings.
+    rows : iterable of sequences
+        Cells of each row (any object, shown as escaped ``str``).
+    text_columns : sequence of int
+        0-based columns aligned left.
+    cell_classes : dict of (int, int) to str, optional
+        Maps 0-based (row, column) of the body to an extra CSS class (e.g. ``"pass"``).
+
+    Returns
+    -------
+    str
+        A ``<table>`` with a ``<thead>`` and a ``<tbody>``.
     """
     cell_classes = cell_classes or {}
 
@@ -81,14 +106,40 @@ def table(header: Sequence[str], rows: Iterable[Sequence[object]], text_columns:
 
 
 def figure_html(png: bytes, caption: str, alt: str) -> str:
-    """A ``<figure>`` holding `png` as a data URI, with its caption."""
+    """A ``<figure>`` holding `png` as a data URI, with its caption.
+
+    Parameters
+    ----------
+    png : bytes
+        A PNG file.
+    caption : str
+        Plain text under the image (escaped).
+    alt : str
+        The image's alternative text (escaped).
+
+    Returns
+    -------
+    str
+    """
     data = base64.b64encode(png).decode("ascii")
     return (f'<figure><img src="data:image/png;base64,{data}" alt="{esc(alt)}">'
             f"<figcaption>{esc(caption)}</figcaption></figure>")
 
 
 def page(title: str, body: str) -> str:
-    """A complete HTML5 document with the inline style sheet."""
+    """A complete HTML5 document with the inline style sheet.
+
+    Parameters
+    ----------
+    title : str
+        Plain text of the ``<title>`` (escaped).
+    body : str
+        HTML put inside ``<body>`` as it is.
+
+    Returns
+    -------
+    str
+    """
     return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
             f"<meta name=\"generator\" content=\"arrayplan\">\n<title>{esc(title)}</title>\n"
             f"<style>{STYLE_SHEET}</style>\n</head>\n<body>\n{body}\n</body>\n</html>\n")

@@ -81,8 +81,23 @@ def _render_job(steps: list[tuple[str, Any]], job: tuple[int, int]) -> list[Rend
 
 
 def report_workers(n_jobs: int, workers: int | None = None) -> int:
-    """Worker processes for `n_jobs` figure jobs: `workers` (default :data:`DEFAULT_WORKERS`; 0: the cores
-    this process may use), and 1 where workers cannot be forked or a Dask scheduler is configured."""
+    """Worker processes for `n_jobs` figure jobs.
+
+    Parameters
+    ----------
+    n_jobs : int
+        Figure jobs to draw.
+    workers : int, optional
+        Worker processes asked for (default :data:`DEFAULT_WORKERS`; 0: the
+        cores this process may use).
+
+    Returns
+    -------
+    int
+        At most `n_jobs`; 1 (drawn here) when fewer than two are asked for or
+        there are fewer than two jobs, and where workers cannot be forked or
+        a Dask scheduler is configured.
+    """
     wanted = DEFAULT_WORKERS if workers is None else (available_cores() if int(workers) == 0 else int(workers))
     if wanted < 2 or n_jobs < 2 or os.environ.get(SCHEDULER_ENV, "").strip() or _start_method() != "fork":
         return 1

@@ -35,20 +35,44 @@ def _element_rows(rig: Rig, with_directivity: bool) -> tuple[list[str], list[lis
 
 
 def rig_anchor(sha256: str) -> str:
-    """The id of a rig's section, from its geometry hash."""
+    """The id of a rig's section, from its geometry hash.
+
+    Parameters
+    ----------
+    sha256 : str
+        The rig's geometry hash (hex).
+
+    Returns
+    -------
+    str
+        ``"rig-"`` and the first 16 hex digits.
+    """
     return "rig-" + sha256[:16]
 
 
 @dataclass
 class RigGroup:
-    """One rig (by geometry hash) and the plans made for it, in path order."""
+    """One rig (by geometry hash) and the plans made for it, in path order.
+
+    Attributes
+    ----------
+    sha256 : str
+        The geometry hash the plans recorded (hex).
+    plans : list of FoundPlan
+        At least one.
+    """
 
     sha256: str
     plans: list[FoundPlan]
 
     @property
     def shown(self) -> FoundPlan:
-        """The plan whose rig is shown: the first one that found its rig file (with directivity), else the first."""
+        """The plan whose rig is shown: the first one that found its rig file (with directivity), else the first.
+
+        Returns
+        -------
+        FoundPlan
+        """
         return next((fp for fp in self.plans if fp.rig_file is not None), self.plans[0])
 
 
@@ -73,7 +97,22 @@ def rig_groups(plans: list[FoundPlan]) -> list[RigGroup]:
 
 
 def rig_section(group: RigGroup, root: Path, figs: list[tuple[str, bytes]]) -> str:
-    """A rig's section: geometry hash, plans, element table and the drawn figures `figs` (caption, PNG)."""
+    """A rig's section: geometry hash, plans, element table and the drawn figures `figs` (caption, PNG).
+
+    Parameters
+    ----------
+    group : RigGroup
+        The rig and its plans; the geometry is taken from :attr:`RigGroup.shown`.
+    root : Path
+        The project folder; plans are named by their path relative to it.
+    figs : list of (str, bytes)
+        Caption and PNG bytes of each figure, in order.
+
+    Returns
+    -------
+    str
+        The ``<section>`` (positions in m in the element table).
+    """
     found = group.shown
     rig = found.plan.rig
     plans = ", ".join(f'<a href="#{_anchor("plan", fp.folder, root)}">{esc(_rel(fp.folder, root))}</a>'

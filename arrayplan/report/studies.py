@@ -30,7 +30,19 @@ _METHOD_LABELS = {"contrast": "acoustic contrast control", "matching": "pressure
 
 
 def study_kind(folder: Path) -> str | None:
-    """``"zones"``, ``"layout"``, ``"comparison"`` or None, from the folder's sidecar file."""
+    """``"zones"``, ``"layout"``, ``"comparison"`` or None, from the folder's sidecar file.
+
+    Parameters
+    ----------
+    folder : Path
+        A folder that may hold a study; only the names of its files are
+        looked at.
+
+    Returns
+    -------
+    str or None
+        The kind of the first sidecar found, None without one.
+    """
     for kind in _STUDIES:
         if (folder / STUDY_SIDECARS[kind].file).is_file():
             return kind
@@ -49,8 +61,21 @@ def load_study(folder: Path):
     """Read a study folder (see :func:`study_kind`) as a :class:`~arrayplan.report.discover.FoundStudy`.
 
     Its ``study`` is the study's main table (list of row dicts), its
-    ``sidecar`` the JSON sidecar.  Raises InputError naming the file when it
-    cannot.
+    ``sidecar`` the JSON sidecar.
+
+    Parameters
+    ----------
+    folder : Path
+        The study folder.
+
+    Returns
+    -------
+    FoundStudy
+
+    Raises
+    ------
+    InputError
+        Naming the file, when the folder is no study or a file cannot be read.
     """
     kind = study_kind(folder)
     if kind is None:
@@ -96,7 +121,18 @@ def _zones_figure(found) -> Figure:
 
 
 def study_figures(found) -> list[tuple[str, Figure]]:
-    """(caption, figure) pairs of a study section."""
+    """(caption, figure) pairs of a study section.
+
+    Parameters
+    ----------
+    found : FoundStudy
+        Of kind ``"zones"``, ``"layout"`` or ``"comparison"`` (see :func:`load_study`).
+
+    Returns
+    -------
+    list of (str, Figure)
+        One pair, drawn from the study's table and sidecar.
+    """
     if found.kind == "zones":
         return [("Left: contrast of each method's chosen design against frequency. Right: band-mean contrast "
                  "against band-mean array effort over the regularisation sweep (one point per value, least "
@@ -122,7 +158,18 @@ def study_figures(found) -> list[tuple[str, Figure]]:
 
 
 def study_section_html(found) -> str:
-    """The tables of a study section (the caller adds the heading and the figures)."""
+    """The tables of a study section (the caller adds the heading and the figures).
+
+    Parameters
+    ----------
+    found : FoundStudy
+        As for :func:`study_figures`; the tables come from its sidecar.
+
+    Returns
+    -------
+    str
+        HTML: tables and short paragraphs (levels in dB, position errors in mm).
+    """
     d = found.sidecar
     if found.kind == "zones":
         rows = [[_METHOD_LABELS.get(k, k), "-" if m["regularisation"] is None else f"{m['regularisation']:g}",
@@ -158,7 +205,18 @@ def study_section_html(found) -> str:
 
 
 def study_summary(found) -> str:
-    """One sentence for the report's summary (plain text)."""
+    """One sentence for the report's summary (plain text).
+
+    Parameters
+    ----------
+    found : FoundStudy
+        As for :func:`study_figures`; the numbers are read from its sidecar.
+
+    Returns
+    -------
+    str
+        One sentence, without a closing full stop.
+    """
     d = found.sidecar
     if found.kind == "zones":
         best = max(d["chosen"].items(), key=lambda kv: kv[1]["mean_contrast_db"])

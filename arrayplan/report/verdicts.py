@@ -47,7 +47,18 @@ class Verdict:
 
 
 def hz_text(hz: float) -> str:
-    """A frequency for prose: ``'400 Hz'``, ``'2.9 kHz'``, ``'8 kHz'``."""
+    """A frequency for prose: ``'400 Hz'``, ``'2.9 kHz'``, ``'8 kHz'``.
+
+    Parameters
+    ----------
+    hz : float
+        Frequency, Hz.
+
+    Returns
+    -------
+    str
+        Three significant digits, in kHz from 1000 Hz up.
+    """
     return f"{hz / 1e3:.3g} kHz" if hz >= 1000.0 else f"{hz:.3g} Hz"
 
 
