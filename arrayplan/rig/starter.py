@@ -25,7 +25,7 @@ import tomlkit
 
 from .._version import __version__
 from ..errors import InputError
-from ..formats.fileio import write_text_atomic
+from ..formats.atomic_files import write_text_atomic
 from .medium import speed_of_sound_air
 
 __all__ = ["Layout", "LAYOUTS", "starter_rig_text", "write_starter_rig", "parse_counts", "toml_value"]
