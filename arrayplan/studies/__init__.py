@@ -13,6 +13,7 @@ as files and figures.  One module per study.
 * :mod:`~arrayplan.studies.files` — their folders, read back, and verdicts.
 * :mod:`~arrayplan.studies.zones` — bright and dark zones: acoustic contrast,
   pressure matching and the plan's channels (:func:`~arrayplan.studies.zones.study_zones`);
+  the weights and figures of merit in :mod:`~arrayplan.studies.zone_weights`,
   drive filters in :mod:`~arrayplan.studies.zone_filters`, files in
   :mod:`~arrayplan.studies.zone_files`.
 * :mod:`~arrayplan.studies.layout` — which N of the candidate positions to fill
