@@ -29,7 +29,7 @@ from ..formats.atomic_files import write_text_atomic
 from .commented_toml import Part, _document, _kv, _Pair, _table, toml_value
 from .medium import speed_of_sound_air
 
-__all__ = ["Layout", "LAYOUTS", "starter_rig_text", "write_starter_rig", "parse_counts", "toml_value"]
+__all__ = ["Layout", "LAYOUTS", "starter_rig_text", "write_starter_rig", "parse_counts", "toml_value", "Part"]
 
 
 # ------------------------------------------------------------ options

@@ -17,9 +17,9 @@ as files and figures.  One module per study.
   drive filters in :mod:`~arrayplan.studies.zone_filters`, files in
   :mod:`~arrayplan.studies.zone_files`.
 * :mod:`~arrayplan.studies.layout` — which N of the candidate positions to fill
-  (:func:`~arrayplan.studies.layout.layout_problem`,
-  :func:`~arrayplan.studies.layout.choose_layout`); files in
-  :mod:`~arrayplan.studies.layout_files`.
+  (:func:`~arrayplan.studies.layout_problem.layout_problem`,
+  :func:`~arrayplan.studies.layout.choose_layout`); the capacity bound in
+  :mod:`~arrayplan.studies.layout_bound`, files in :mod:`~arrayplan.studies.layout_files`.
 * :mod:`~arrayplan.studies.compare` — layouts side by side
   (:func:`~arrayplan.studies.compare.compare_plans`).
 
