@@ -23,6 +23,7 @@ from __future__ import annotations
 import sys
 from typing import TextIO
 
+from . import exposure_estimate as _estimate, exposure_limits as _limits
 from .exposure_estimate import (ASSUMED_SENSITIVE_SPEAKER_DB_SPL, DEFAULT_LISTENER_DISTANCE_M, PLAUSIBLE_AMP_VRMS,
                                 PLAUSIBLE_DISTANCE_M, PLAUSIBLE_SENSITIVITY_DB_SPL, PLAUSIBLE_SENSITIVITY_VRMS,
                                 RATING_VRMS, ExposureEstimate, check_exposure, check_exposure_inputs,
@@ -39,35 +40,10 @@ __all__ = [
     "CAUTION_NOTE",
     "print_caution",
     "P_REF_PA",
-    "NIOSH_CRITERION_DBA",
-    "NIOSH_EXCHANGE_RATE_DB",
-    "OSHA_CRITERION_DBA",
-    "OSHA_EXCHANGE_RATE_DB",
-    "WARN_DBA",
-    "DEFAULT_MAX_DBA",
-    "DEFAULT_MAX_PEAK_DB_SPL",
-    "LEVEL_WINDOW_S",
     "spl_from_pressure",
     "pressure_from_spl",
-    "permitted_exposure_niosh",
-    "permitted_exposure_osha",
-    "a_weighting_db",
-    "a_weight_signal",
-    "max_window_rms",
-    "estimate_spl_at_listeners",
-    "ExposureEstimate",
-    "estimate_exposure",
-    "check_exposure",
-    "format_exposure",
-    "PLAUSIBLE_SENSITIVITY_DB_SPL",
-    "PLAUSIBLE_SENSITIVITY_VRMS",
-    "PLAUSIBLE_AMP_VRMS",
-    "PLAUSIBLE_DISTANCE_M",
-    "ASSUMED_SENSITIVE_SPEAKER_DB_SPL",
-    "check_exposure_inputs",
-    "worst_case_unknown_speaker",
-    "RATING_VRMS",
-    "DEFAULT_LISTENER_DISTANCE_M",
+    *_limits.__all__,
+    *_estimate.__all__,
 ]
 
 CAUTION_TEXT = """\

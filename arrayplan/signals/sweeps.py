@@ -34,6 +34,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
+from . import sweep_formulas as _formulas
 from .sweep_formulas import (MIN_CYCLES_LOWEST_OCTAVE, MIN_TIME_BANDWIDTH, SWEEP_KINDS, band_centre_hz,
                              check_sweep_band, default_fades_s, default_pre_roll_s, exponential_inverse_filter,
                              exponential_sweep, fresnel_time_s, harmonic_offset_s, linear_inverse_filter, linear_sweep,
@@ -44,27 +45,14 @@ from .levels import (DEFAULT_PEAK_CAP_DBFS, check_peak, condition, effective_cap
                      rms_dbfs, scale_to_level, true_peak_dbfs)
 
 __all__ = [
-    "SWEEP_KINDS",
-    "MIN_CYCLES_LOWEST_OCTAVE",
-    "MIN_TIME_BANDWIDTH",
-    "exponential_sweep",
-    "linear_sweep",
-    "exponential_inverse_filter",
-    "linear_inverse_filter",
+    *_formulas.__all__,
     "normalise_inverse",
     "FLAT_BAND_TOLERANCE_DB",
-    "band_centre_hz",
     "unity_response",
     "flat_band_hz",
-    "fresnel_time_s",
-    "default_fades_s",
-    "default_pre_roll_s",
-    "harmonic_offset_s",
-    "check_sweep_band",
     "SweepSettings",
     "SweepSignal",
     "make_sweep",
-    "max_pre_roll_s",
 ]
 
 
