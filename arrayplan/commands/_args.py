@@ -362,7 +362,8 @@ def add_exposure_options(p: argparse.ArgumentParser, title: str, amp_help: str) 
     """The sound-level estimate's inputs: speaker rating, amplifier voltage, listener distances, ``--allow-loud``.
 
     The rating's voltage and the listeners' distance default to the library's
-    (:data:`arrayplan.safety.RATING_VRMS`, :data:`arrayplan.safety.DEFAULT_LISTENER_DISTANCE_M`).
+    (:data:`arrayplan.exposure_estimate.RATING_VRMS`,
+    :data:`arrayplan.exposure_estimate.DEFAULT_LISTENER_DISTANCE_M`).
 
     Parameters
     ----------
@@ -378,7 +379,7 @@ def add_exposure_options(p: argparse.ArgumentParser, title: str, amp_help: str) 
     argparse._ArgumentGroup
         The group, for the command's own options of the same kind.
     """
-    from ..safety import DEFAULT_LISTENER_DISTANCE_M, RATING_VRMS
+    from ..exposure_estimate import DEFAULT_LISTENER_DISTANCE_M, RATING_VRMS
 
     g = p.add_argument_group(title)
     g.add_argument("--speaker-sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"), metavar="DB",

@@ -15,7 +15,9 @@ import matplotlib
 import numpy as np
 
 from ..errors import InputError
-from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..formats.atomic_files import write_json_atomic, write_text_atomic
+from ..formats.fileio import provenance
+from ..formats.output_folders import staged_output_dir
 from ..frequency import FrequencyAxis
 from ..channels.planning import plan_rig
 from ..formats.plan_folder import read_plan

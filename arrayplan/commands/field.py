@@ -12,7 +12,9 @@ import numpy as np
 from ..channels.svd import decompose_stack
 from ..errors import InputError
 from ..channels.field import PlaneGrid, channel_field, default_plane
-from ..formats.fileio import atomic_path, provenance, staged_output_dir, write_json_atomic
+from ..formats.atomic_files import atomic_path, write_json_atomic
+from ..formats.fileio import provenance
+from ..formats.output_folders import staged_output_dir
 from ..kernels import rig_kernel
 from ..plots import plot_field
 from ..progress import ProgressBar

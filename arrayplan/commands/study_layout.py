@@ -57,7 +57,8 @@ def _candidates(args: argparse.Namespace, rig) -> ElementSet | None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from ..studies.layout import choose_layout, layout_problem
+    from ..studies.layout import choose_layout
+    from ..studies.layout_problem import layout_problem
     from ..studies.layout_files import summary_lines, write_layout
 
     matplotlib.use("Agg")

@@ -84,8 +84,8 @@ def run(args: argparse.Namespace) -> int:
     from ..studies.zone_files import ZoneTolerance, summary_lines, write_zone_study
     from ..filters import validate_request
     from ..studies.zone_filters import check_zone_filters, zone_filter_taps, zone_points_rig
-    from ..studies.zones import (AUTO_REGULARISATION, ZoneTarget, contrast_db, perturbed_contrast, study_zones,
-                                 zone_coupling)
+    from ..studies.zone_weights import ZoneTarget, contrast_db
+    from ..studies.zones import AUTO_REGULARISATION, perturbed_contrast, study_zones, zone_coupling
 
     matplotlib.use("Agg")
     rig = load_rig(args.rig)
@@ -110,7 +110,7 @@ def run(args: argparse.Namespace) -> int:
     elif args.target_direction is not None:
         target = ZoneTarget.plane(args.target_direction, source="--target-direction")
     else:
-        from ..studies.zones import reference_speaker
+        from ..studies.zone_weights import reference_speaker
         ref = rig.speakers.positions[reference_speaker(rig.speakers.positions)]
         target = ZoneTarget.plane(pts_b.mean(axis=0) - ref, source="rig")
     if args.tolerance is not None and not (np.isfinite(args.tolerance) and args.tolerance > 0):

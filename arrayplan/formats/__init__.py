@@ -42,7 +42,10 @@ release.
     they draw.
 
 The layers they stand on: ``_versioning`` (naming and versioning),
-``fileio`` (atomic writes, whole folders published by one rename,
-SHA256SUMS, provenance), ``audiofiles`` (reading audio with one kind of
+``hidden_names`` (hidden staging and set-aside names, cleanup of those
+killed runs left), ``atomic_files`` (atomic single-file writes),
+``output_folders`` (whole folders published by one rename, SHA256SUMS,
+refusal of foreign files), ``fileio`` (the provenance header; every writer
+importable from it too), ``audiofiles`` (reading audio with one kind of
 error) and ``tomlfields`` (typed TOML fields).
 """

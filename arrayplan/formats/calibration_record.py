@@ -26,7 +26,7 @@ from ..errors import InputError
 from ..limits import MAX_CHANNEL_NUMBER
 from ..units import sensitivity_db_re_1v_per_pa
 from ._versioning import check, stamp
-from .fileio import write_text_atomic
+from .atomic_files import write_text_atomic
 from .tomlfields import FieldReader
 
 if sys.version_info >= (3, 11):

@@ -39,7 +39,7 @@ import numpy as np
 
 from ..errors import InputError
 from ._versioning import check, stamp
-from .fileio import write_text_atomic
+from .atomic_files import write_text_atomic
 
 __all__ = ["SUMMARY_FORMAT", "SUMMARY_FORMAT_VERSION", "SUMMARY_FILE", "DeconvolutionSummary", "summarise",
            "summary_record", "write_deconvolution_summary", "read_deconvolution_summary"]

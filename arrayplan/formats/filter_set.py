@@ -44,7 +44,9 @@ from ..errors import InputError
 from ..rig import Rig
 from ..safety import CAUTION_NOTE
 from ._versioning import UNMARKED, check as check_version, read_json_document, stamp
-from .fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from .atomic_files import write_json_atomic, write_text_atomic
+from .fileio import provenance
+from .output_folders import staged_output_dir
 
 if TYPE_CHECKING:   # the filters package imports this module: its parts are imported where they are used
     from ..filters.check import FilterCheck
@@ -222,7 +224,7 @@ def _matrix_text(source: DesignSource, filters: FilterSet) -> str:
 def _write_responses(source: DesignSource, filters: FilterSet, stage: Path) -> list[str]:
     import matplotlib.pyplot as plt
 
-    from .fileio import atomic_path
+    from .atomic_files import atomic_path
     from ..plots.filter_responses import plot_filter_responses
 
     names = []

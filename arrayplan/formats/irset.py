@@ -40,7 +40,7 @@ present they are in metres.
 The loader checks every field, the rates, channel counts and lengths of every
 WAV file, and rejects non-finite samples, each with a one-line message naming
 the file and field.  A set arrayplan wrote also holds ``SHA256SUMS``
-(every file's size and SHA-256, :func:`arrayplan.formats.fileio.check_folder`); the
+(every file's size and SHA-256, :func:`arrayplan.formats.output_folders.check_folder`); the
 loader refuses a set whose files differ from it, so a folder mixing files of
 two runs is never read.  Sets made by other programs need not have one.  :func:`read_irset` also reads AES69 (SOFA) files
 (:mod:`arrayplan.formats.irset_sofa`).
@@ -60,7 +60,9 @@ import numpy as np
 from ._versioning import check, stamp
 from .audiofiles import read_audio
 from ..errors import InputError
-from .fileio import check_folder, provenance as _provenance, staged_output_dir, write_json_atomic
+from .atomic_files import write_json_atomic
+from .fileio import provenance as _provenance
+from .output_folders import check_folder, staged_output_dir
 
 __all__ = ["IRSet", "read_irset", "write_irset", "MANIFEST_NAME", "UNITS", "zero_lag_problem", "format_version_for"]
 

@@ -64,7 +64,8 @@ import numpy as np
 from .._version import __version__
 from ..errors import InputError
 from ._versioning import check, stamp
-from .fileio import atomic_path, json_default, provenance as _provenance
+from .atomic_files import atomic_path, json_default
+from .fileio import provenance as _provenance
 from .irset import FORMAT_NAME, FORMAT_VERSION, UNITS, IRSet, format_version_for, zero_lag_problem
 
 __all__ = ["write_irset_sofa", "read_irset_sofa", "SOFA_CONVENTION", "METADATA_ATTRIBUTE"]

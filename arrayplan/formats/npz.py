@@ -26,7 +26,7 @@ def write_npz(path: str | os.PathLike, arrays: Mapping[str, np.ndarray]) -> None
     ----------
     path : path
         The archive to write (replaced if it exists).  Write into a
-        temporary name and rename (:func:`arrayplan.formats.fileio.atomic_path`)
+        temporary name and rename (:func:`arrayplan.formats.atomic_files.atomic_path`)
         for an atomic result.
     arrays : mapping of str to array_like
         Member names (without ``.npy``) and arrays of any shape; object

@@ -40,7 +40,7 @@ from typing import Any, Mapping, Sequence
 
 from ..errors import InputError
 from ._versioning import check, read_json_document, stamp
-from .fileio import write_json_atomic
+from .atomic_files import write_json_atomic
 
 __all__ = ["SIGNAL_FORMAT", "SIGNAL_FORMAT_VERSION", "signal_sidecar", "inverse_filter_sidecar",
            "check_signal_sidecar", "read_signal_sidecar", "write_signal_sidecar"]

@@ -34,7 +34,9 @@ from ..errors import InputError
 from ..filters.design import strong_ranges_hz
 from ..verification.channels import Verification, lost_bands_hz
 from ._versioning import check, read_json_document, stamp
-from .fileio import atomic_path, check_folder, provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from .atomic_files import atomic_path, write_json_atomic, write_text_atomic
+from .fileio import provenance
+from .output_folders import check_folder, staged_output_dir
 
 __all__ = ["VERIFICATION_FORMAT", "VERIFICATION_FORMAT_VERSION", "VERIFICATION_SIDECAR", "VerificationFolder",
            "verification_record", "write_verification", "read_verification", "read_verification_record"]

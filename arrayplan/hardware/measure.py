@@ -43,7 +43,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from ..errors import DeviceError, InputError
-from ..formats.fileio import make_folders
+from ..formats.atomic_files import make_folders
 from ..progress import ticking
 from ..signals.sweeps import SweepSignal, make_sweep
 from ..formats.calibration_record import CalibrationRecord

@@ -10,7 +10,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..signals.deconvolve import CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB
-from ..signals.sweeps import SweepSettings, SweepSignal, max_pre_roll_s
+from ..signals.sweep_formulas import max_pre_roll_s
+from ..signals.sweeps import SweepSettings, SweepSignal
 
 __all__ = ["MeasurementSettings", "RigWiring"]
 
@@ -35,7 +36,7 @@ class MeasurementSettings:
         Time kept before zero lag for the pre-ringing of the measurement
         pulse, s; None takes the sweep's default (one Fresnel time at f1,
         at most half-way to the 2nd harmonic; see
-        :func:`arrayplan.signals.sweeps.default_pre_roll_s`).
+        :func:`arrayplan.signals.sweep_formulas.default_pre_roll_s`).
     lead_in_s : float
         Silence before each sweep, s; covers the audio stream's start-up.
     max_latency_s : float
@@ -46,7 +47,7 @@ class MeasurementSettings:
     fade_in_s, fade_out_s : float or None
         Raised-cosine fades of the sweep, s; None (the default) takes one
         Fresnel time at f1 and f2, which keeps the band flat
-        (:func:`arrayplan.signals.sweeps.default_fades_s`).
+        (:func:`arrayplan.signals.sweep_formulas.default_fades_s`).
     min_peak_to_noise_db : float
         A microphone response below this peak-to-noise ratio marks the take.
     clip_threshold : float

@@ -3,8 +3,8 @@
 :func:`arrayplan.hardware.measure.measure` runs the take loop; this module
 writes and reads back what it keeps (the layout is in that module's
 docstring).  A take is built in a hidden staging folder named with the
-process id (:func:`arrayplan.formats.fileio.new_staging_folder`), given
-``SHA256SUMS`` and published whole (:func:`arrayplan.formats.fileio.publish_folder`);
+process id (:func:`arrayplan.formats.output_folders.new_staging_folder`), given
+``SHA256SUMS`` and published whole (:func:`arrayplan.formats.output_folders.publish_folder`);
 staging left by a dead run is removed by the next one.
 """
 
@@ -19,8 +19,10 @@ from typing import TYPE_CHECKING, Any, Sequence
 import numpy as np
 
 from ..errors import InputError
-from ..formats.fileio import (check_folder, clean_stale_staging, new_staging_folder, provenance, publish_folder,
-                      write_checksums, write_json_atomic)
+from ..formats.atomic_files import write_json_atomic
+from ..formats.fileio import provenance
+from ..formats.hidden_names import clean_stale_staging
+from ..formats.output_folders import check_folder, new_staging_folder, publish_folder, write_checksums
 from ..formats.irset import IRSet, read_irset, write_irset
 
 if TYPE_CHECKING:

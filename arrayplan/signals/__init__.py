@@ -3,7 +3,7 @@
 Time signals are ``(n_samples,)`` or ``(n_samples, n_channels)``, full
 scale = 1.0; frequencies in Hz, durations in s, levels in dBFS.
 
-Sweeps (:mod:`.sweeps`; exponential after A. Farina, 108th AES Convention, 2000)
+Sweeps (:mod:`.sweep_formulas`, :mod:`.sweeps`; exponential after A. Farina, 108th AES Convention, 2000)
     exponential_sweep(f1_hz, f2_hz, duration_s, sample_rate_hz) -> (n,)
     linear_sweep(f1_hz, f2_hz, duration_s, sample_rate_hz) -> (n,)
     exponential_inverse_filter(sweep, f1_hz, f2_hz, duration_s, sample_rate_hz) -> (n,)
@@ -56,9 +56,9 @@ from .deconvolve import (CLIP_THRESHOLD, DEFAULT_MIN_PEAK_TO_NOISE_DB, Deconvolu
 from .levels import (DEFAULT_PEAK_CAP_DBFS, amplitude_from_dbfs, block_dc, channel_rms_dbfs, check_peak,
                      condition, highpass, peak_dbfs, raised_cosine_fade, rms_dbfs, scale_to_level)
 from .sweep_record import SweepRecord
-from .sweeps import (SWEEP_KINDS, SweepSettings, SweepSignal, check_sweep_band,
-                     exponential_inverse_filter, exponential_sweep, harmonic_offset_s, linear_inverse_filter,
-                     linear_sweep, make_sweep, normalise_inverse)
+from .sweep_formulas import (SWEEP_KINDS, check_sweep_band, exponential_inverse_filter, exponential_sweep,
+                             harmonic_offset_s, linear_inverse_filter, linear_sweep)
+from .sweeps import SweepSettings, SweepSignal, make_sweep, normalise_inverse
 from .noise import NOISE_COLOURS, band_limited_noise
 from .probe import channel_probe, read_filter_wav
 from .schedule import Schedule, measurement_schedule

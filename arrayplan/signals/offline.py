@@ -20,7 +20,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from ..errors import InputError
-from ..formats.fileio import staged_output_dir
+from ..formats.output_folders import staged_output_dir
 from ..formats.deconvolution_summary import (DeconvolutionSummary, summarise, summary_record,
                                              write_deconvolution_summary)
 from ..formats.signal_sidecar import read_signal_sidecar

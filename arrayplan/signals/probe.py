@@ -17,7 +17,7 @@ import numpy as np
 
 from ..formats.audiofiles import read_audio
 from ..errors import InputError
-from ..formats.fileio import check_folder
+from ..formats.output_folders import check_folder
 from ..formats._versioning import read_json_document
 from ..formats.filter_set import FILTER_SET_SIDECAR, read_filter_set_sidecar
 

@@ -9,8 +9,8 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
-from .sweeps import (SWEEP_KINDS, SweepSettings, check_sweep_band, default_pre_roll_s, harmonic_offset_s, make_sweep,
-                     max_pre_roll_s)
+from .sweep_formulas import SWEEP_KINDS, check_sweep_band, default_pre_roll_s, harmonic_offset_s, max_pre_roll_s
+from .sweeps import SweepSettings, make_sweep
 
 __all__ = ["SweepRecord"]
 

@@ -10,7 +10,7 @@ import numpy as np
 
 from ..formats.audiofiles import read_audio
 from ..errors import InputError
-from ..formats.fileio import atomic_paths
+from ..formats.atomic_files import atomic_paths
 from ..formats.signal_sidecar import write_signal_sidecar
 from .levels import true_peak_dbfs
 

@@ -13,12 +13,13 @@ as files and figures.  One module per study.
 * :mod:`~arrayplan.studies.files` — their folders, read back, and verdicts.
 * :mod:`~arrayplan.studies.zones` — bright and dark zones: acoustic contrast,
   pressure matching and the plan's channels (:func:`~arrayplan.studies.zones.study_zones`);
+  the weights and figures of merit in :mod:`~arrayplan.studies.zone_weights`,
   drive filters in :mod:`~arrayplan.studies.zone_filters`, files in
   :mod:`~arrayplan.studies.zone_files`.
 * :mod:`~arrayplan.studies.layout` — which N of the candidate positions to fill
-  (:func:`~arrayplan.studies.layout.layout_problem`,
-  :func:`~arrayplan.studies.layout.choose_layout`); files in
-  :mod:`~arrayplan.studies.layout_files`.
+  (:func:`~arrayplan.studies.layout_problem.layout_problem`,
+  :func:`~arrayplan.studies.layout.choose_layout`); the capacity bound in
+  :mod:`~arrayplan.studies.layout_bound`, files in :mod:`~arrayplan.studies.layout_files`.
 * :mod:`~arrayplan.studies.compare` — layouts side by side
   (:func:`~arrayplan.studies.compare.compare_plans`).
 

@@ -23,7 +23,9 @@ import numpy as np
 
 from ..errors import InputError
 from ..formats.study_sidecars import read_study_sidecar, stamp_study_sidecar
-from ..formats.fileio import atomic_path, provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..formats.atomic_files import atomic_path, write_json_atomic, write_text_atomic
+from ..formats.fileio import provenance
+from ..formats.output_folders import staged_output_dir
 from ..verification.channels import _ranges as channel_ranges
 from ._common import STRONGEST_SNR_MEANING
 from .capacity import CapacityStudy

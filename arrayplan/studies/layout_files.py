@@ -18,11 +18,13 @@ import numpy as np
 
 from ..rig.directivity import Directivity
 from ..errors import InputError
+from ..formats.atomic_files import write_json_atomic, write_text_atomic
+from ..formats.fileio import provenance
+from ..formats.output_folders import staged_output_dir
 from ..formats.study_sidecars import stamp_study_sidecar
-from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
 from ..rig import ElementSet, Rig, read_rig_document
+from ..rig.commented_toml import toml_value as _value  # the TOML value writer of the starter rigs
 from ..rig.room import IMAGE_LIMIT, SURFACES, Room
-from ..rig.starter import toml_value as _value  # the TOML value writer of the starter rigs
 from .layout import LayoutChoice, chosen_rig
 from ._common import REFERENCE_SNR_MEANING
 from ._tables import csv_text as _csv

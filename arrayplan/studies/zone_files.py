@@ -23,7 +23,9 @@ import numpy as np
 import soundfile as sf
 
 from ..formats.study_sidecars import stamp_study_sidecar
-from ..formats.fileio import provenance, staged_output_dir, write_json_atomic, write_text_atomic
+from ..formats.atomic_files import write_json_atomic, write_text_atomic
+from ..formats.fileio import provenance
+from ..formats.output_folders import staged_output_dir
 from ..channels.field import PlaneGrid, channel_field
 from ..rig import Rig
 from ..safety import CAUTION_NOTE
