@@ -362,8 +362,8 @@ def add_exposure_options(p: argparse.ArgumentParser, title: str, amp_help: str) 
     """The sound-level estimate's inputs: speaker rating, amplifier voltage, listener distances, ``--allow-loud``.
 
     The rating's voltage and the listeners' distance default to the library's
-    (:data:`arrayplan.exposure_estimate.RATING_VRMS`,
-    :data:`arrayplan.exposure_estimate.DEFAULT_LISTENER_DISTANCE_M`).
+    (:data:`arrayplan.safety.exposure_estimate.RATING_VRMS`,
+    :data:`arrayplan.safety.exposure_estimate.DEFAULT_LISTENER_DISTANCE_M`).
 
     Parameters
     ----------
@@ -379,7 +379,7 @@ def add_exposure_options(p: argparse.ArgumentParser, title: str, amp_help: str) 
     argparse._ArgumentGroup
         The group, for the command's own options of the same kind.
     """
-    from ..exposure_estimate import DEFAULT_LISTENER_DISTANCE_M, RATING_VRMS
+    from ..safety.exposure_estimate import DEFAULT_LISTENER_DISTANCE_M, RATING_VRMS
 
     g = p.add_argument_group(title)
     g.add_argument("--speaker-sensitivity-db-spl", type=float_in(0.0, 200.0, "dB SPL"), metavar="DB",

@@ -52,7 +52,7 @@ def print_level_estimate(args: argparse.Namespace, signal: np.ndarray, sample_ra
 
     With a known output voltage but no speaker sensitivity, the level is
     bounded with a sensitive speaker
-    (:func:`arrayplan.exposure_estimate.worst_case_unknown_speaker`); when that bound
+    (:func:`arrayplan.safety.exposure_estimate.worst_case_unknown_speaker`); when that bound
     exceeds a refusal cap, the outputs are hot and nothing plays without
     ``--allow-unknown-level`` (a consent of its own, apart from ``--yes``).
 
@@ -62,9 +62,9 @@ def print_level_estimate(args: argparse.Namespace, signal: np.ndarray, sample_ra
         Above the caps without ``--allow-loud``; hot outputs at an unknown
         level without ``--allow-unknown-level``; implausible inputs.
     """
-    from ..exposure_estimate import (ASSUMED_SENSITIVE_SPEAKER_DB_SPL, check_exposure, estimate_exposure,
+    from ..safety.exposure_estimate import (ASSUMED_SENSITIVE_SPEAKER_DB_SPL, check_exposure, estimate_exposure,
                                      format_exposure, worst_case_unknown_speaker)
-    from ..exposure_limits import DEFAULT_MAX_DBA, DEFAULT_MAX_PEAK_DB_SPL
+    from ..safety.exposure_limits import DEFAULT_MAX_DBA, DEFAULT_MAX_PEAK_DB_SPL
 
     stream = sys.stderr if stream is None else stream
     amp = args.amp_vrms if args.amp_vrms is not None else amp_vrms_default

@@ -30,8 +30,8 @@ from ..limits import check_memory
 from ..errors import InputError
 from ..formats.fileio import provenance
 from ..formats.signal_sidecar import inverse_filter_sidecar, signal_sidecar
-from ..exposure_estimate import check_exposure, estimate_exposure, format_exposure
-from ..exposure_limits import DEFAULT_MAX_DBA
+from ..safety.exposure_estimate import check_exposure, estimate_exposure, format_exposure
+from ..safety.exposure_limits import DEFAULT_MAX_DBA
 from ..safety import CAUTION_NOTE, print_caution
 from ..signals.levels import (DEFAULT_PEAK_CAP_DBFS, block_dc, channel_rms_dbfs, check_peak, condition,
                               effective_cap_dbfs, peak_dbfs, rms_dbfs, scale_to_level, true_peak_dbfs)

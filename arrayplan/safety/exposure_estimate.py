@@ -4,7 +4,7 @@ From the speaker's sensitivity (dB SPL at 1 m for a stated drive voltage),
 the amplifier's voltage at full scale, the signal's level and the listener
 distances, the sound level at each listener (:func:`estimate_spl_at_listeners`,
 :func:`estimate_exposure`), the permitted daily exposure after NIOSH and
-OSHA (:mod:`arrayplan.exposure_limits`), and a warning above 85 dBA and a
+OSHA (:mod:`arrayplan.safety.exposure_limits`), and a warning above 85 dBA and a
 refusal above a cap unless overridden (:func:`check_exposure`).
 
 Assumptions (stated in the printed report too): free field, inverse-square
@@ -23,7 +23,7 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 from .exposure_limits import (_EIGHT_HOURS_S, DEFAULT_MAX_DBA, DEFAULT_MAX_PEAK_DB_SPL, WARN_DBA, a_weight_signal,
                               max_window_rms, permitted_exposure_niosh, permitted_exposure_osha)
 

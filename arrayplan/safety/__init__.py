@@ -6,10 +6,10 @@
 
 The exposure estimate is importable from here too:
 
-* :mod:`arrayplan.exposure_limits`: the permitted daily exposure after
+* :mod:`arrayplan.safety.exposure_limits`: the permitted daily exposure after
   NIOSH and OSHA, the warning level and the caps, A-weighting and the
   windowed RMS level;
-* :mod:`arrayplan.exposure_estimate`: the sound level at each listener
+* :mod:`arrayplan.safety.exposure_estimate`: the sound level at each listener
   from the speaker's sensitivity, the amplifier's voltage, the signal and
   the distances, and the check that warns above 85 dBA and refuses above a
   cap unless overridden (fails closed).
@@ -33,7 +33,7 @@ from .exposure_limits import (DEFAULT_MAX_DBA, DEFAULT_MAX_PEAK_DB_SPL, LEVEL_WI
                               NIOSH_EXCHANGE_RATE_DB, OSHA_CRITERION_DBA, OSHA_EXCHANGE_RATE_DB, WARN_DBA,
                               a_weight_signal, a_weighting_db, max_window_rms, permitted_exposure_niosh,
                               permitted_exposure_osha)
-from .units import P_REF_PA, pressure_from_spl, spl_from_pressure
+from ..units import P_REF_PA, pressure_from_spl, spl_from_pressure
 
 __all__ = [
     "CAUTION_TEXT",

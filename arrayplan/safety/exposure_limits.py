@@ -11,7 +11,7 @@
   (:func:`max_window_rms`).
 
 The estimate of the level a signal makes at the listeners, and the check
-against these limits, are :mod:`arrayplan.exposure_estimate`.
+against these limits, are :mod:`arrayplan.safety.exposure_estimate`.
 """
 
 from __future__ import annotations
@@ -20,7 +20,7 @@ import math
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = [
     "NIOSH_CRITERION_DBA",
