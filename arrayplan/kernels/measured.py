@@ -50,7 +50,6 @@ of the largest value for records of a few thousand samples).
 from __future__ import annotations
 
 import numpy as np
-import scipy.fft
 
 from ..errors import InputError
 from ..formats.irset import IRSet
@@ -238,6 +237,8 @@ class MeasuredKernel:
         n_pairs = self._h.shape[1]
         out = np.empty((bins.size, n_pairs), dtype=complex)
         step = max(1, _CHUNK_ELEMENTS // (n_fft // 2 + 1))
+        import scipy.fft   # here, not at import: it takes a fifth of a second to load
+
         buf = np.zeros((min(step, n_pairs), n_fft))
         for start in range(0, n_pairs, step):
             cols = slice(start, min(start + step, n_pairs))
@@ -309,6 +310,8 @@ def _fft_grid(cycles: np.ndarray, n_min: int) -> tuple[int, np.ndarray, np.ndarr
             break
     else:
         return None
+    import scipy.fft
+
     least = -(-int(n_min) // n_grid)                      # smallest multiple of the grid that does not wrap
     n_fft = n_grid * least
     for m in range(least, 2 * least + 1):                 # a length scipy.fft transforms fast, if one is near
