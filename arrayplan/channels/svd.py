@@ -41,6 +41,7 @@ and the result does not depend on where it was computed.
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -528,6 +529,11 @@ def decompose(source: Kernel | CouplingStack, axis: FrequencyAxis | None = None,
                       tracked=track, computed=computed)
 
 
+def _import_assignment() -> None:
+    """Import scipy.optimize (for tracking's assignment) in a helper thread."""
+    import scipy.optimize  # noqa: F401
+
+
 def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progress):
     """Run the chunks and put their results in frequency order (see :func:`decompose`)."""
     from ..parallel import iter_chunks, one_blas_thread, resolve_scheduler
@@ -558,9 +564,15 @@ def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progr
         s, drive, combine, costs = out["s"], out["drive"], out["combine"], out.get("costs")
         computed = None if job.max_channels is None else np.full(n_freq, k)
     freq_done = 0
+    preload = None
     try:
         for i, (s_c, d_c, c_c, sr_c, comp_c, cost_c) in iter_chunks(_channels_of_chunk, items, shared=job,
                                                                     workers=workers, scheduler=scheduler):
+            if job.track and preload is None:
+                # the workers are running by now (a thread started before the pool would rule out fork):
+                # load the assignment solver while they work, not after (scipy.optimize takes ~0.5 s)
+                preload = threading.Thread(target=_import_assignment, name="arrayplan-preload", daemon=True)
+                preload.start()
             a, b = starts[i], starts[i + 1]
             sum_rule[a:b] = sr_c
             freq_done += len(sr_c)
@@ -575,6 +587,8 @@ def _gather(job, items, n_freq, n_mic, n_spk, k, auto, workers, scheduler, progr
     finally:
         if shared is not None:
             shared.close()
+        if preload is not None:
+            preload.join()
     if not auto:
         if costs is not None:   # the seams between chunks
             with one_blas_thread():
