@@ -328,3 +328,27 @@ def test_tracked_plan_on_a_perfect_rig_passes_with_levels_re_the_strongest(tmp_p
     planned = np.array([ln.get_ydata() for ln in fig.axes[0].get_lines() if ln.get_linestyle() == "-"])
     np.testing.assert_allclose(planned.max(axis=0), 0.0, atol=1e-9)
     plt.close(fig)
+
+
+@pytest.mark.parametrize("scale", [1e-7, 1e-2, 0.5, 3.0])
+def test_largest_subspace_angles_match_scipy(scale):
+    """Reference: scipy.linalg.subspace_angles (Knyazev and Argentati, SIAM J. Sci. Comput. 23(6), 2002)."""
+    from scipy.linalg import subspace_angles
+
+    from arrayplan.verification.channels import largest_subspace_angles_deg
+
+    rng = np.random.default_rng(12)
+    n_freq, n, n_chan = 9, 7, 5
+    planned = np.linalg.qr(rng.normal(size=(n_freq, n, n_chan)) + 1j * rng.normal(size=(n_freq, n, n_chan)))[0]
+    chosen = rng.uniform(size=(n_freq, n_chan)) < 0.6
+    chosen[:, 0] = True
+    # the other basis starts with the chosen columns, perturbed by `scale` (angles from 1e-5 deg to large)
+    first = np.stack([np.concatenate([planned[f][:, chosen[f]], planned[f][:, ~chosen[f]]], axis=1)
+                      for f in range(n_freq)])
+    noise = rng.normal(size=planned.shape) + 1j * rng.normal(size=planned.shape)
+    other = np.linalg.qr(first + scale * noise)[0]
+    ours = largest_subspace_angles_deg(planned, chosen, other)
+    for f in range(n_freq):
+        k = int(chosen[f].sum())
+        ref = np.degrees(np.max(subspace_angles(planned[f][:, chosen[f]], other[f][:, :k])))
+        assert ours[f] == pytest.approx(ref, rel=1e-9, abs=1e-9)

@@ -48,7 +48,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import subspace_angles
 
 from ..channels.svd import decompose_stack
 from ..kernels.coupling import Kernel
@@ -433,16 +432,57 @@ def judge_channels(hz: np.ndarray, channel_matrix: np.ndarray, g: np.ndarray, pl
     strong = strong_mask(planned_sv, threshold_db)                  # (n_freq, n_chan), any channel order
     strong_p = np.sum(strong, axis=1)
     strong_m = np.sum(strong_mask(s_meas, threshold_db), axis=1)
-    angles = np.empty(len(hz))
-    for f in range(len(hz)):
-        k = int(strong_p[f])
-        # the planned strong channels, whatever their numbers, against the re-planned subspace
-        # of the same dimension (s_meas is descending: its first k channels are its strongest)
-        angles[f] = np.degrees(np.max(subspace_angles(planned_drive[f][:, strong[f]], drive_meas[f][:, :k])))
+    # the planned strong channels, whatever their numbers, against the re-planned subspace
+    # of the same dimension (s_meas is descending: its first k channels are its strongest)
+    angles = largest_subspace_angles_deg(planned_drive, strong, drive_meas)
     s_meas = replanned_in_plan_order(planned_sv, s_meas)
     return Verification(hz, want, c, planned_sv, s_meas, gain, crosstalk, lost, strong_p, strong_m,
                         angles, float(isolation_db), float(threshold_db), judged=judged,
                         gain_reference=gain_reference, common_gain_db=common_db, wanted_rule=rule)
+
+
+def largest_subspace_angles_deg(planned: np.ndarray, chosen: np.ndarray, other: np.ndarray) -> np.ndarray:
+    """The largest principal angle between two subspaces at every frequency, degrees.
+
+    At frequency f the first subspace is spanned by the columns of
+    ``planned[f]`` where ``chosen[f]`` is True (k of them), the second by the
+    first k columns of ``other[f]``.  Frequencies with the same k are done
+    together (batched QR and SVD) with the cosine/sine rule of
+    scipy.linalg.subspace_angles (A. V. Knyazev and M. E. Argentati,
+    "Principal angles between subspaces in an A-based scalar product", SIAM
+    J. Sci. Comput. 23(6), 2002): the sine of the largest angle where the
+    largest cosine is at least 1/sqrt(2), else the arccosine of the smallest
+    cosine, so that small angles keep their precision.
+
+    Parameters
+    ----------
+    planned : ndarray, complex, shape (n_freq, n, n_chan)
+        Column vectors (for example planned drive weights).
+    chosen : ndarray of bool, shape (n_freq, n_chan)
+        The columns of `planned` that span the first subspace; at least one per frequency.
+    other : ndarray, complex, shape (n_freq, n, n_other)
+        Column vectors whose first k columns span the second subspace.
+
+    Returns
+    -------
+    ndarray, shape (n_freq,)
+        Degrees, from 0 to 90.
+    """
+    k_of = np.sum(chosen, axis=1)
+    order = np.argsort(~chosen, axis=1, kind="stable")        # the chosen columns first, in their order
+    out = np.empty(len(k_of))
+    for k in np.unique(k_of):
+        fs = np.flatnonzero(k_of == k)
+        a = np.take_along_axis(planned[fs], order[fs, None, :k], axis=2)
+        qa = np.linalg.qr(a)[0]
+        qb = np.linalg.qr(other[fs][:, :, :k])[0]
+        cosines = qa.conj().swapaxes(-1, -2) @ qb
+        sigma = np.linalg.svd(cosines, compute_uv=False)                # descending
+        sines = np.linalg.svd(qb - qa @ cosines, compute_uv=False)
+        largest = np.where(sigma[:, 0] ** 2 >= 0.5, np.arcsin(np.clip(sines[:, 0], -1.0, 1.0)),
+                           np.arccos(np.clip(sigma[:, -1], -1.0, 1.0)))
+        out[fs] = np.degrees(largest)
+    return out
 
 
 def lost_bands_hz(res: Verification) -> list[list[tuple[float, float]]]:
