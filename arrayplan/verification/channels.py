@@ -40,7 +40,7 @@ its singular values with the planned ones (paired by rank at each
 frequency) and gives the principal (subspace) angles between the drive
 subspace of the planned strong channels, whatever their numbers, and the
 re-planned drive subspace of the same dimension
-(scipy.linalg.subspace_angles).
+(:func:`largest_subspace_angles_deg`, the rule of scipy.linalg.subspace_angles).
 """
 
 from __future__ import annotations
