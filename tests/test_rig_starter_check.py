@@ -9,6 +9,7 @@ import pytest
 from scipy.spatial import cKDTree
 
 from arrayplan.cli import main
+from arrayplan.commands.new_rig import NEXT_STEPS
 from arrayplan.errors import InputError
 from arrayplan.channels.planning import plan_rig
 from arrayplan.rig import load_rig
@@ -32,7 +33,7 @@ def _fields(findings, severity=None):
 
 @pytest.mark.parametrize("layout", sorted(LAYOUTS))
 def test_every_layout_loads_plans_and_comments_every_key(tmp_path, layout):
-    path = write_starter_rig(tmp_path / "rig.toml", layout)
+    path = write_starter_rig(tmp_path / "rig.toml", layout, next_steps=NEXT_STEPS)   # as new-rig writes it
     rig = load_rig(path)
     plan = plan_rig(rig)
     assert plan.channels.singular_values.shape[0] == len(rig.frequencies.hz)

@@ -21,6 +21,11 @@ def _count_or_grid(text: str) -> int | str:
     return int(parts[0]) if len(parts) == 1 else text.strip()
 
 
+#: The "Next:" comment of a starter rig file ({file}: its name).
+NEXT_STEPS = ("arrayplan check-rig {file}             explains any problem before you mount hardware",
+              "arrayplan plan {file} --out plan/      channels per frequency: counts, weights, figures")
+
+
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("new-rig",
                        description="Write a rig file (TOML) for one of the starter layouts, every key commented, "
@@ -84,7 +89,7 @@ def run(args: argparse.Namespace) -> int:
     if not args.out:
         raise InputError("no output file given", source="--out", fix="add --out rig.toml")
     options = {key: getattr(args, key) for key in ("speakers", "mics", *_FLAGS, "name", "room")}
-    path = write_starter_rig(args.out, args.layout, force=args.force, **options)
+    path = write_starter_rig(args.out, args.layout, force=args.force, next_steps=NEXT_STEPS, **options)
     rig = load_rig(path)
     hz = rig.frequencies.hz if rig.frequencies is not None else None
     band = f", {hz[0]:g}..{hz[-1]:g} Hz" if hz is not None else ""

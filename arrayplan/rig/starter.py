@@ -18,7 +18,7 @@ import math
 import os
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any, Callable, Sequence
 
 import numpy as np
 import tomlkit
@@ -43,7 +43,7 @@ class Layout:
     name : str
         What to type after ``arrayplan new-rig``.
     summary : str
-        One line for ``--list``.
+        One line for the list of layouts.
     defaults : dict
         The options the layout takes, with their defaults (None: computed).
     body : callable
@@ -345,7 +345,8 @@ def _resolve_options(layout: str, options: dict[str, Any]) -> tuple[Layout, dict
     return lay, dict(allowed, **given)
 
 
-def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any) -> str:
+def starter_rig_text(layout: str, *, file_name: str = "rig.toml", next_steps: Sequence[str] = (),
+                     **options: Any) -> str:
     """The commented rig file of `layout` (a key of :data:`LAYOUTS`).
 
     Parameters
@@ -353,7 +354,11 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
     layout : str
         ``"facing-lines"``, ``"facing-grids"``, ``"ring-zone"``, ``"two-zones"`` or ``"bench"``.
     file_name : str
-        Used in the "next steps" comment.
+        The file's name, for `next_steps`.
+    next_steps : sequence of str
+        Lines of the "Next:" comment near the top (for example the commands
+        to run on the file; ``{file}`` is replaced by `file_name`); none
+        leaves the comment out.
     **options
         The layout's options (see ``LAYOUTS[layout].defaults``): counts
         (``speakers``, ``mics``; ``"NxM"`` for grids), spacings and
@@ -400,10 +405,7 @@ def starter_rig_text(layout: str, *, file_name: str = "rig.toml", **options: Any
         f"# Written by 'arrayplan new-rig {layout}' (arrayplan {__version__}) as a starting point: edit the",
         "# positions to match what you build.  Lengths in metres, frequencies in Hz, channels from 1.",
         "#",
-        "# Next:",
-        f"#   arrayplan check-rig {file_name}             explains any problem before you mount hardware",
-        f"#   arrayplan plan {file_name} --out plan/      channels per frequency: counts, weights, figures",
-        "#",
+        *((["# Next:"] + [f"#   {line.format(file=file_name)}" for line in next_steps] + ["#"]) if next_steps else []),
         "# Caution: measuring this rig drives its loudspeakers with test signals that can harm hearing",
         "# and loudspeakers.  Start quiet, protect your hearing near loud rigs, and follow local codes",
         "# and licensed practice.",
@@ -505,7 +507,8 @@ def _placed_in_room(head: list[Part], body: list[Part], tail: list[Part], text: 
     return tomlkit.dumps(_document(head + [moved(b) for b in body] + room_table + tail))
 
 
-def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = False, **options: Any) -> Path:
+def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = False, next_steps: Sequence[str] = (),
+                      **options: Any) -> Path:
     """Write the starter rig of `layout` to `path` atomically; refuse to replace a file unless `force`.
 
     Parameters
@@ -516,6 +519,8 @@ def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = Fal
         A key of :data:`LAYOUTS`.
     force : bool
         Replace an existing file.
+    next_steps : sequence of str
+        As for :func:`starter_rig_text`.
     **options
         The layout's options, as for :func:`starter_rig_text`.
 
@@ -536,5 +541,5 @@ def write_starter_rig(path: str | os.PathLike, layout: str, *, force: bool = Fal
                          fix="choose another `out` or add `force`")
     if path.is_dir():
         raise InputError("is a folder", source=str(path), fix="give a file name such as rig.toml")
-    text = starter_rig_text(layout, file_name=path.name, **options)
+    text = starter_rig_text(layout, file_name=path.name, next_steps=next_steps, **options)
     return write_text_atomic(path, text)
